@@ -1,0 +1,3 @@
+from benchfit.cli import main
+
+main()

@@ -1,0 +1,225 @@
+"""The one waveform object: :class:`Capture`.
+
+A capture holds samples as float64 in SI units (volts) or full-scale units ("FS")
+when no gain calibration is known, shape ``(channels, samples)``, a uniform sample
+rate, channel names, where it came from, and the input calibration that applies to it.
+It is immutable: the sample array is made read-only.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from dataclasses import dataclass, field, replace
+from types import MappingProxyType
+from typing import Any, Mapping
+
+import numpy as np
+
+from benchfit.errors import CaptureError
+
+__all__ = ["Capture", "InputCalibration"]
+
+
+@dataclass(frozen=True)
+class InputCalibration:
+    """Sound-card calibration that applies to a capture (from its sidecar).
+
+    Attributes
+    ----------
+    profile : str or None
+        Name of the calibration profile the values came from.
+    gain_v_per_fs : tuple of float or None
+        Volts per full-scale unit, one per channel; already applied to the samples.
+    timebase_ppm : float
+        Sample-clock error in parts per million (positive: the card's clock runs fast,
+        so the true sample rate is ``nominal * (1 + ppm·1e-6)``); already applied to
+        :attr:`Capture.sample_rate`.
+    timebase_u_ppm : float
+        Standard uncertainty of ``timebase_ppm`` (ppm); measure adds it to every
+        frequency's uncertainty budget.
+    coupling_tau_s : float or None
+        Time constant of the input's high-pass (AC coupling), in seconds; pulse
+        measurements compensate the droop it causes.
+    """
+
+    profile: str | None = None
+    gain_v_per_fs: tuple[float, ...] | None = None
+    timebase_ppm: float = 0.0
+    timebase_u_ppm: float = 0.0
+    coupling_tau_s: float | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "profile": self.profile,
+            "gain_v_per_fs": list(self.gain_v_per_fs) if self.gain_v_per_fs else None,
+            "timebase_ppm": self.timebase_ppm,
+            "timebase_u_ppm": self.timebase_u_ppm,
+            "coupling_tau_s": self.coupling_tau_s,
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class Capture:
+    """A recorded waveform: samples in SI units on a uniform time grid.
+
+    Parameters
+    ----------
+    samples : array_like, shape (channels, n) or (n,)
+        Sample values in volts (``units`` "V") or full-scale units ("FS").
+    sample_rate : float
+        Samples per second (Hz), after any timebase correction.
+    channel_names : sequence of str, optional
+        One name per channel; default ``"ch1"``, ``"ch2"``, ...
+    units : sequence of str, optional
+        ``"V"`` or ``"FS"`` per channel; default ``"FS"``.
+    source : str, optional
+        Path of the file the capture was read from (or a description of the device).
+    sha256 : str, optional
+        SHA-256 of the source file's bytes, as a hex string.
+    metadata : mapping, optional
+        Free-form key/value pairs (CSV preamble, sidecar fields).
+    calibration : InputCalibration, optional
+        Input calibration that applies to the capture.
+    warnings : sequence of str, optional
+        Problems found while reading (e.g. a truncated file).
+    t0 : float
+        Time of the first sample in seconds (from a CSV time column), default 0.
+    """
+
+    samples: np.ndarray
+    sample_rate: float
+    channel_names: tuple[str, ...] = ()
+    units: tuple[str, ...] = ()
+    source: str | None = None
+    sha256: str | None = None
+    metadata: Mapping[str, Any] = field(default_factory=dict)
+    calibration: InputCalibration = field(default_factory=InputCalibration)
+    warnings: tuple[str, ...] = ()
+    t0: float = 0.0
+
+    def __post_init__(self) -> None:
+        where = self.source or "capture"
+        data = np.array(self.samples, dtype=np.float64, copy=True)
+        if data.ndim == 1:
+            data = data[np.newaxis, :]
+        if data.ndim != 2:
+            raise CaptureError(f"{where}: samples must be 1-D or 2-D (channels, samples), got shape {data.shape}")
+        if data.shape[1] < 2:
+            raise CaptureError(f"{where}: a capture needs at least 2 samples per channel, got {data.shape[1]}")
+        if not np.all(np.isfinite(data)):
+            ch, idx = np.argwhere(~np.isfinite(data))[0]
+            raise CaptureError(f"{where}: sample {idx} of channel {ch + 1} is NaN or infinite")
+        fs = float(self.sample_rate)
+        if not math.isfinite(fs) or fs <= 0:
+            raise CaptureError(f"{where}: sample rate must be a positive number of Hz, got {self.sample_rate!r}")
+        data.setflags(write=False)
+        n_ch = data.shape[0]
+        names = tuple(self.channel_names) or tuple(f"ch{i + 1}" for i in range(n_ch))
+        units = tuple(self.units) or ("FS",) * n_ch
+        if len(names) != n_ch or len(units) != n_ch:
+            raise CaptureError(
+                f"{where}: {n_ch} channels but {len(names)} names and {len(units)} units were given"
+            )
+        object.__setattr__(self, "samples", data)
+        object.__setattr__(self, "sample_rate", fs)
+        object.__setattr__(self, "channel_names", names)
+        object.__setattr__(self, "units", units)
+        object.__setattr__(self, "metadata", MappingProxyType(dict(self.metadata)))
+        object.__setattr__(self, "warnings", tuple(self.warnings))
+
+    # --- shape and time -------------------------------------------------
+    @property
+    def n_channels(self) -> int:
+        return int(self.samples.shape[0])
+
+    @property
+    def n_samples(self) -> int:
+        return int(self.samples.shape[1])
+
+    @property
+    def duration_s(self) -> float:
+        """Record length N/fs in seconds."""
+        return self.n_samples / self.sample_rate
+
+    @property
+    def time(self) -> np.ndarray:
+        """Sample instants in seconds, ``t0 + n/fs``."""
+        return self.t0 + np.arange(self.n_samples) / self.sample_rate
+
+    # --- channel selection ----------------------------------------------
+    def channel_index(self, key: str | int) -> int:
+        """Index of a channel given by name (case-insensitive) or by 0-based index.
+
+        A string of digits is read as a 1-based channel number only when no channel has
+        that name, so ``"2"`` picks the second channel.
+        """
+        where = self.source or "capture"
+        if isinstance(key, int):
+            if 0 <= key < self.n_channels:
+                return key
+            raise CaptureError(f"{where}: no channel {key} — it has {self.n_channels} (0…{self.n_channels - 1})")
+        lowered = [n.lower() for n in self.channel_names]
+        if key.lower() in lowered:
+            return lowered.index(key.lower())
+        if key.strip().isdigit():
+            number = int(key)
+            if 1 <= number <= self.n_channels:
+                return number - 1
+        raise CaptureError(
+            f"{where}: no channel {key!r} — choose one of {', '.join(self.channel_names)} or a number 1…{self.n_channels}"
+        )
+
+    def channel(self, key: str | int) -> np.ndarray:
+        """Samples of one channel (read-only view)."""
+        return self.samples[self.channel_index(key)]
+
+    def select(self, keys: list[str | int]) -> "Capture":
+        """A new capture with only the chosen channels, in the given order."""
+        idx = [self.channel_index(k) for k in keys]
+        gains = self.calibration.gain_v_per_fs
+        cal = self.calibration
+        if gains is not None:
+            cal = replace(cal, gain_v_per_fs=tuple(gains[i] for i in idx))
+        return replace(
+            self,
+            samples=self.samples[idx],
+            channel_names=tuple(self.channel_names[i] for i in idx),
+            units=tuple(self.units[i] for i in idx),
+            calibration=cal,
+        )
+
+    def slice_time(self, start_s: float, stop_s: float) -> "Capture":
+        """A new capture holding the samples with ``start_s <= t < stop_s`` (seconds from t0)."""
+        a = max(0, int(math.ceil(start_s * self.sample_rate)))
+        b = min(self.n_samples, int(math.ceil(stop_s * self.sample_rate)))
+        return replace(self, samples=self.samples[:, a:b], t0=self.t0 + a / self.sample_rate)
+
+    # --- display ----------------------------------------------------------
+    def __repr__(self) -> str:
+        chans = ", ".join(f"{n} [{u}]" for n, u in zip(self.channel_names, self.units))
+        return (f"Capture({self.source or 'in memory'}: {self.n_channels} ch ({chans}), "
+                f"{self.n_samples} samples at {self.sample_rate:g} Hz, {self.duration_s:.4g} s)")
+
+    def _repr_html_(self) -> str:
+        rows = "".join(
+            f"<tr><td>{html.escape(n)}</td><td>{html.escape(u)}</td>"
+            f"<td>{np.min(x):.4g}</td><td>{np.max(x):.4g}</td><td>{np.sqrt(np.mean(x * x)):.4g}</td></tr>"
+            for n, u, x in zip(self.channel_names, self.units, self.samples)
+        )
+        warn = "".join(f"<li>{html.escape(w)}</li>" for w in self.warnings)
+        return (
+            f"<div><b>Capture</b> {html.escape(self.source or 'in memory')}<br>"
+            f"{self.n_samples} samples at {self.sample_rate:g} Hz ({self.duration_s:.4g} s)"
+            f"<table><tr><th>channel</th><th>unit</th><th>min</th><th>max</th><th>rms</th></tr>{rows}</table>"
+            + (f"<ul>{warn}</ul>" if warn else "") + "</div>"
+        )
+
+    def to_dataframe(self):
+        """The samples as a pandas DataFrame with a ``time_s`` column and one column per channel."""
+        import pandas as pd
+
+        cols = {"time_s": self.time}
+        for name, unit, x in zip(self.channel_names, self.units, self.samples):
+            cols[f"{name}_{unit}"] = x
+        return pd.DataFrame(cols)

@@ -1,0 +1,32 @@
+"""The typer application object and its command groups.
+
+Command modules (``benchfit/cli/*_cmd.py``) register their commands on these objects.
+They import only typer and the standard library at module level; numpy, scipy, lmfit,
+matplotlib and sounddevice are imported inside the command functions so that
+``benchfit --help`` stays fast and works without PortAudio.
+"""
+
+from __future__ import annotations
+
+import typer
+
+app = typer.Typer(
+    name="benchfit",
+    help=("Bench tool for low-frequency signal sources and L-C filters: capture a waveform, "
+          "measure it, back-solve the effective parts, and report and log a built unit."),
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    context_settings={"help_option_names": ["-h", "--help"]},
+)
+
+calibrate_app = typer.Typer(help="Sound-card calibration profiles (gain, timebase, input coupling).",
+                            no_args_is_help=True)
+log_app = typer.Typer(help="The measurement log: list, show, export runs and batch statistics.",
+                      no_args_is_help=True)
+design_app = typer.Typer(help="Design and trim advice: timer parts, filter parts, combinations, trims.",
+                         no_args_is_help=True)
+
+app.add_typer(calibrate_app, name="calibrate")
+app.add_typer(log_app, name="log")
+app.add_typer(design_app, name="design")

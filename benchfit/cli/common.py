@@ -1,0 +1,75 @@
+"""Helpers shared by the command modules: consoles, one-line errors, option parsing."""
+
+from __future__ import annotations
+
+import json
+import sys
+from typing import Any, NoReturn
+
+from benchfit.errors import BenchfitError
+
+__all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse_value"]
+
+
+def _console(err: bool):
+    from rich.console import Console
+
+    return Console(stderr=err, highlight=False, soft_wrap=False)
+
+
+class _LazyConsole:
+    """A rich Console created on first use (rich is imported only when something is printed)."""
+
+    def __init__(self, err: bool) -> None:
+        self._err = err
+        self._c = None
+
+    def __getattr__(self, name: str) -> Any:
+        if self._c is None:
+            self._c = _console(self._err)
+        return getattr(self._c, name)
+
+
+stdout = _LazyConsole(err=False)
+stderr = _LazyConsole(err=True)
+
+
+def fail(message: str, code: int = 2) -> NoReturn:
+    """Raise a BenchfitError that the entry point prints as ``error: message`` with ``code``."""
+    err = BenchfitError(message)
+    err.exit_code = code
+    raise err
+
+
+def print_json(obj: Any) -> None:
+    """Print one JSON object on one line to stdout (machine output)."""
+    sys.stdout.write(json.dumps(obj, allow_nan=False) + "\n")
+    sys.stdout.flush()
+
+
+def parse_value(text: str, option: str, *, positive: bool = True, allow_zero: bool = False) -> float:
+    """Parse an SI-prefixed option value or fail with a one-line message."""
+    from benchfit.units import parse_quantity
+
+    try:
+        return parse_quantity(text, option, positive=positive, allow_zero=allow_zero)
+    except ValueError as e:
+        fail(str(e))
+
+
+def parse_assignments(items: list[str] | None, allowed: tuple[str, ...], option: str,
+                      zero_ok: tuple[str, ...] = ()) -> dict[str, float]:
+    """Parse repeated ``NAME=VALUE`` options; values must be positive (zero only for ``zero_ok``)."""
+    from benchfit.units import parse_assignment
+
+    out: dict[str, float] = {}
+    for item in items or []:
+        try:
+            name, value = parse_assignment(item, allowed, option)
+        except ValueError as e:
+            fail(str(e))
+        if value < 0 or (value == 0 and name not in zero_ok):
+            need = "zero or positive" if name in zero_ok else "positive"
+            fail(f"{option} {item!r}: {name} must be {need}")
+        out[name] = value
+    return out

@@ -1,0 +1,1 @@
+"""(commands registered here by their module owner)"""

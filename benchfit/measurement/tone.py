@@ -1,0 +1,398 @@
+"""Sine and multi-harmonic least-squares fits (IEEE Std 1057 / IEEE Std 1241 sine fitting).
+
+Pure functions of ``(samples, sample_rate)``. The model is
+
+    x(t) ≈ dc + Σ_k Re(P_k · exp(j·k·ω·t)),   t = n / fs  (t = 0 at the first sample)
+
+so a single tone ``A·cos(ωt + φ)`` has phasor ``P_1 = A·exp(jφ)``. With columns
+``cos(kωt)`` and ``sin(kωt)`` and coefficients ``a_k``, ``b_k`` this is ``P_k = a_k − j·b_k``
+(the phase convention θ = atan2(−B, A) of the three-parameter fit).
+
+* :func:`dft_frequency_seed` — interpolated DFT on a Hann window (Grandke's two-bin rule,
+  IEEE Trans. Instrum. Meas. 32(2), 1983) to start the iteration.
+* :func:`fit_harmonics` — linear least squares at a known frequency (the three-parameter fit
+  when ``n_harmonics == 1``), or, with ``fit_frequency=True``, the four-parameter IEEE 1057
+  Gauss–Newton iteration generalised to several harmonics: the extra column is
+  ``∂x/∂ω = Σ_k k·t·(−a_k sin kωt + b_k cos kωt)``.
+
+The normal equations are accumulated in blocks, so memory stays O(block × columns) and the
+cost is O(N·K²) for K harmonics. Time is centred on the record for conditioning; phasors are
+returned referred to the first sample. Standard uncertainties come from the covariance
+σ²·(DᵀD)⁻¹ with σ² = RSS/(N − p): for white noise this reaches the Cramér–Rao bound
+(Rife & Boorstyn 1974) for long records.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["HarmonicFit", "dft_frequency_seed", "fit_harmonics", "fit_tone"]
+
+_SEGMENT = 4096
+
+
+@dataclass(frozen=True, eq=False)
+class HarmonicFit:
+    """Result of a (multi-)harmonic least-squares fit.
+
+    Attributes
+    ----------
+    frequency_hz : float
+        Fundamental frequency (Hz), fitted or as given.
+    frequency_u_hz : float or None
+        Standard uncertainty of the frequency (Hz); None when the frequency was not fitted.
+    dc : float
+        Offset (same unit as the samples).
+    orders : ndarray of int
+        Harmonic orders k, ascending (1 = fundamental).
+    phasors : ndarray of complex
+        ``P_k`` referred to the first sample (peak amplitude, cosine phase).
+    phasor_cov : ndarray, shape (K, 2, 2)
+        Covariance of (Re P_k, Im P_k) for each order.
+    dc_u : float
+        Standard uncertainty of ``dc``.
+    rss : float
+        Residual sum of squares.
+    n_samples : int
+        Number of samples fitted.
+    n_params : int
+        Number of fitted parameters.
+    iterations : int
+        Gauss–Newton iterations used (0 for a linear fit).
+    converged : bool
+        False when the iteration hit its limit without settling.
+    """
+
+    frequency_hz: float
+    frequency_u_hz: float | None
+    dc: float
+    orders: np.ndarray
+    phasors: np.ndarray
+    phasor_cov: np.ndarray
+    dc_u: float
+    rss: float
+    n_samples: int
+    n_params: int
+    iterations: int = 0
+    converged: bool = True
+
+    @property
+    def amplitudes(self) -> np.ndarray:
+        """Peak amplitude |P_k| of each order."""
+        return np.abs(self.phasors)
+
+    @property
+    def amplitudes_u(self) -> np.ndarray:
+        """Standard uncertainty of |P_k| (linearised; for |P| ≫ u)."""
+        p = self.phasors
+        mag = np.abs(p)
+        safe = np.where(mag > 0, mag, 1.0)
+        g = np.stack([p.real / safe, p.imag / safe], axis=1)  # d|P|/d(re, im)
+        var = np.einsum("ki,kij,kj->k", g, self.phasor_cov, g)
+        out = np.sqrt(np.maximum(var, 0.0))
+        # at |P| = 0 the magnitude is not linearisable: use the mean per-axis std
+        zero = mag == 0
+        if np.any(zero):
+            out[zero] = np.sqrt(0.5 * (self.phasor_cov[zero, 0, 0] + self.phasor_cov[zero, 1, 1]))
+        return out
+
+    @property
+    def phases_rad(self) -> np.ndarray:
+        return np.angle(self.phasors)
+
+    @property
+    def sigma(self) -> float:
+        """Residual standard deviation sqrt(RSS / (N − p))."""
+        dof = max(self.n_samples - self.n_params, 1)
+        return math.sqrt(self.rss / dof)
+
+    @property
+    def residual_rms(self) -> float:
+        """RMS of the residual, sqrt(RSS / N) (IEEE 1241 NAD)."""
+        return math.sqrt(self.rss / self.n_samples)
+
+    def phasor(self, order: int) -> complex:
+        idx = np.nonzero(self.orders == order)[0]
+        if idx.size == 0:
+            raise KeyError(f"order {order} was not fitted")
+        return complex(self.phasors[idx[0]])
+
+    def evaluate(self, n_samples: int, sample_rate: float, orders: "np.ndarray | None" = None,
+                 include_dc: bool = True) -> np.ndarray:
+        """The fitted waveform at t = n/fs, n = 0…n_samples−1 (optionally a subset of orders)."""
+        t = np.arange(n_samples) / sample_rate
+        w = 2 * math.pi * self.frequency_hz
+        y = np.full(n_samples, self.dc if include_dc else 0.0)
+        for k, p in zip(self.orders, self.phasors):
+            if orders is not None and k not in orders:
+                continue
+            y += p.real * np.cos(k * w * t) - p.imag * np.sin(k * w * t)
+        return y
+
+
+def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -> float | None:
+    """Frequency of the strongest spectral peak by interpolated DFT (Hann window, Grandke's rule).
+
+    Parameters
+    ----------
+    x : ndarray
+        Samples (any unit).
+    sample_rate : float
+        Sample rate in Hz.
+    min_hz : float
+        Ignore peaks below this frequency (Hz); bins 0 and 1 are always ignored.
+
+    Returns
+    -------
+    float or None
+        Frequency in Hz, or None when the record is too short or has no spectral peak.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    n = x.size
+    if n < 8:
+        return None
+    w = np.hanning(n + 1)[:-1]  # periodic Hann
+    spec = np.abs(np.fft.rfft((x - x.mean()) * w))
+    lo = max(2, int(math.ceil(min_hz * n / sample_rate)))
+    if lo >= spec.size - 1:
+        return None
+    k = lo + int(np.argmax(spec[lo:-1]))
+    if spec[k] <= 0:
+        return None
+    left, right = spec[k - 1], spec[k + 1]
+    if right >= left:
+        alpha, sign = right / spec[k], 1.0
+    else:
+        alpha, sign = left / spec[k], -1.0
+    delta = sign * (2 * alpha - 1) / (alpha + 1)
+    delta = min(max(delta, -0.5), 0.5)
+    return (k + delta) * sample_rate / n
+
+
+def _segments(n: int) -> tuple[int, int, int]:
+    """Split n samples into m segments of length L plus a remainder: (L, m, remainder)."""
+    length = min(n, _SEGMENT)
+    m = n // length
+    return length, m, n - m * length
+
+
+def _template(length: int, fs: float, omega: float, orders: np.ndarray) -> np.ndarray:
+    """U = [1, cos k ωτ, sin k ωτ, …] for τ = j/fs, j = 0…length−1 (angle-addition recurrence)."""
+    tau = np.arange(length) / fs
+    u = np.empty((length, 1 + 2 * orders.size))
+    u[:, 0] = 1.0
+    kmax = int(orders.max())
+    c1, s1 = np.cos(omega * tau), np.sin(omega * tau)
+    ck, sk = c1.copy(), s1.copy()
+    col = {int(k): i for i, k in enumerate(orders)}
+    for k in range(1, kmax + 1):
+        if k > 1:
+            ck, sk = ck * c1 - sk * s1, sk * c1 + ck * s1
+            if k % 16 == 0:  # re-anchor the recurrence to keep rounding at the 1e-15 level
+                ck, sk = np.cos(k * omega * tau), np.sin(k * omega * tau)
+        i = col.get(k)
+        if i is not None:
+            u[:, 1 + 2 * i] = ck
+            u[:, 2 + 2 * i] = sk
+    return u
+
+
+def _rotations(t_starts: np.ndarray, omega: float, orders: np.ndarray) -> np.ndarray:
+    """Per-segment maps P (m, p, p) from template columns to global columns (p = 1 + 2K)."""
+    m = t_starts.size
+    p = 1 + 2 * orders.size
+    rot = np.zeros((m, p, p))
+    rot[:, 0, 0] = 1.0
+    ang = np.outer(t_starts, orders * omega)
+    c, s = np.cos(ang), np.sin(ang)
+    for i in range(orders.size):
+        ia, ib = 1 + 2 * i, 2 + 2 * i
+        rot[:, ia, ia] = c[:, i]
+        rot[:, ia, ib] = s[:, i]
+        rot[:, ib, ia] = -s[:, i]
+        rot[:, ib, ib] = c[:, i]
+    return rot
+
+
+def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
+    """DᵀD, Dᵀy and yᵀy for the design [1, cos kωt, sin kωt, …, (∂x/∂ω)/t_scale].
+
+    The record is cut into equal segments; every segment shares one template U (and τ·U),
+    so the data enter only through two matrix products and the per-segment Grams are
+    rotations of the template's Gram. The result equals the direct computation up to rounding.
+    """
+    n = x.size
+    p = 1 + 2 * orders.size
+    with_w = coef_ab is not None
+    ncol = p + with_w
+    g = np.zeros((ncol, ncol))
+    r = np.zeros(ncol)
+    yy = float(x @ x)
+    length, m, rem = _segments(n)
+    pieces = [(0, length, m)]
+    if rem:
+        pieces.append((m * length, rem, 1))
+    if with_w:
+        v = np.zeros(p)
+        v[1::2] = orders * coef_ab[1::2] / t_scale  # coefficient of cos: k·b_k
+        v[2::2] = -orders * coef_ab[0::2] / t_scale  # coefficient of sin: −k·a_k
+    for start, seg_len, count in pieces:
+        u = _template(seg_len, fs, omega, orders)
+        y = x[start:start + seg_len * count].reshape(count, seg_len)
+        a = y @ u  # (count, p) template projections
+        t_starts = (start + seg_len * np.arange(count)) / fs - t_mid
+        rot = _rotations(t_starts, omega, orders)
+        g0 = u.T @ u
+        g[:p, :p] += np.einsum("mip,ij,mjq->pq", rot, g0, rot, optimize=True)
+        r[:p] += np.einsum("mip,mi->p", rot, a)
+        if with_w:
+            tau = np.arange(seg_len) / fs
+            ut = u * tau[:, None]
+            b = y @ ut
+            g1 = u.T @ ut
+            g2 = ut.T @ ut
+            w = rot @ v  # (count, p): dw column = t_m·U w + (τU) w
+            g0w = w @ g0  # (count, p)
+            g1w = w @ g1.T
+            cross = t_starts[:, None] * g0w + g1w  # Uᵀ(dw) per segment, template basis
+            g[:p, -1] += np.einsum("mip,mi->p", rot, cross)
+            g[-1, -1] += float(np.sum(t_starts ** 2 * np.einsum("mi,mi->m", g0w, w))
+                               + 2 * np.sum(t_starts * np.einsum("mi,mi->m", w @ g1, w))
+                               + np.sum(np.einsum("mi,ij,mj->m", w, g2, w)))
+            r[-1] += float(np.sum(t_starts * np.einsum("mi,mi->m", w, a)) + np.sum(np.einsum("mi,mi->m", w, b)))
+    if with_w:
+        g[-1, :p] = g[:p, -1]
+    return g, r, yy
+
+
+def _solve(g: np.ndarray, r: np.ndarray, yy: float) -> tuple[np.ndarray, np.ndarray, float]:
+    """Solve the normal equations with column scaling; return (beta, G⁻¹, RSS)."""
+    scale = np.sqrt(np.clip(np.diag(g), 1e-300, None))
+    gs = g / np.outer(scale, scale)
+    try:
+        ginv_s = np.linalg.inv(gs)
+    except np.linalg.LinAlgError:
+        ginv_s = np.linalg.pinv(gs)
+    ginv = ginv_s / np.outer(scale, scale)
+    beta = ginv @ r
+    rss = max(yy - 2 * float(beta @ r) + float(beta @ g @ beta), 0.0)
+    return beta, ginv, rss
+
+
+def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harmonics: int = 1,
+                  *, fit_frequency: bool = False, orders: "np.ndarray | None" = None,
+                  max_iter: int = 30, rtol: float = 1e-12) -> HarmonicFit:
+    """Least-squares fit of a DC term and harmonics k·f of a fundamental.
+
+    Parameters
+    ----------
+    x : ndarray
+        Samples (any unit), uniformly spaced.
+    sample_rate : float
+        Sample rate in Hz.
+    frequency_hz : float
+        The fundamental (Hz): exact when ``fit_frequency`` is False, a start value otherwise
+        (it should be within a fraction of 1/duration of the truth, as an interpolated DFT gives).
+    n_harmonics : int
+        Fit orders 1…n_harmonics (ignored when ``orders`` is given). Orders at or above
+        Nyquist are dropped.
+    fit_frequency : bool
+        Also fit the frequency (IEEE 1057 four-parameter iteration, generalised).
+    orders : array of int, optional
+        Explicit harmonic orders to fit; must include 1 when ``fit_frequency``.
+    max_iter : int
+        Iteration limit for the frequency fit.
+    rtol : float
+        Stop when |Δω|/ω falls below this.
+
+    Returns
+    -------
+    HarmonicFit
+    """
+    x = np.asarray(x, dtype=np.float64)
+    n = x.size
+    fs = float(sample_rate)
+    if orders is None:
+        orders = np.arange(1, max(int(n_harmonics), 1) + 1)
+    orders = np.asarray(orders, dtype=np.int64)
+    orders = orders[orders * frequency_hz < fs / 2]
+    if orders.size == 0:
+        orders = np.array([1], dtype=np.int64)
+    t_mid = (n - 1) / (2 * fs)
+    t_scale = max(t_mid, 1.0 / fs)
+    omega = 2 * math.pi * float(frequency_hz)
+
+    # linear fit at the start frequency (the three-parameter fit when K = 1)
+    g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, None, t_scale)
+    beta, ginv, rss = _solve(g, r, yy)
+    iterations = 0
+    converged = True
+    omega_var = None
+    if fit_frequency:
+        converged = False
+        bin_w = 2 * math.pi * fs / n  # one DFT bin in rad/s
+        for iterations in range(1, max_iter + 1):
+            g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, beta[1:], t_scale)
+            beta_w, ginv_w, rss_w = _solve(g, r, yy)
+            d_omega = beta_w[-1] / t_scale
+            # a Gauss–Newton step beyond half a bin means the start was poor: limit it
+            d_omega = max(-0.5 * bin_w, min(0.5 * bin_w, d_omega))
+            if not (0 < omega + d_omega < math.pi * fs):
+                break
+            beta, ginv, rss = beta_w[:-1], ginv_w[:-1, :-1], rss_w
+            omega_var = ginv_w[-1, -1] / t_scale ** 2
+            omega += d_omega
+            if abs(d_omega) <= rtol * omega:
+                converged = True
+                break
+        # final linear solve at the converged frequency (the iteration's coefficients lag one step)
+        g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, beta[1:], t_scale)
+        beta_w, ginv_w, rss = _solve(g, r, yy)
+        beta = beta_w[:-1]
+        ginv = ginv_w[:-1, :-1]
+        omega_var = ginv_w[-1, -1] / t_scale ** 2
+        # RSS of the model without the (near-zero) frequency step
+        g_lin = g[:-1, :-1]
+        r_lin = r[:-1]
+        rss = max(yy - 2 * float(beta @ r_lin) + float(beta @ g_lin @ beta), 0.0)
+
+    n_params = beta.size + (1 if fit_frequency else 0)
+    dof = max(n - n_params, 1)
+    s2 = rss / dof
+    cov = s2 * ginv
+    a = beta[1::2]
+    b = beta[2::2]
+    # phasor at the record middle, then refer to the first sample: P0 = Pmid·exp(−jkω·t_mid)
+    rot = np.exp(-1j * orders * omega * t_mid)
+    phasors = (a - 1j * b) * rot
+    pcov = np.empty((orders.size, 2, 2))
+    for i in range(orders.size):
+        ia, ib = 1 + 2 * i, 2 + 2 * i
+        # (Re, Im) of (a − j b) is (a, −b); then rotate by rot
+        c_ab = np.array([[cov[ia, ia], -cov[ia, ib]], [-cov[ib, ia], cov[ib, ib]]])
+        cr, sr = rot[i].real, rot[i].imag
+        m = np.array([[cr, -sr], [sr, cr]])
+        pcov[i] = m @ c_ab @ m.T
+    f_u = None
+    if fit_frequency and omega_var is not None:
+        f_u = math.sqrt(max(s2 * omega_var, 0.0)) / (2 * math.pi)
+    return HarmonicFit(
+        frequency_hz=omega / (2 * math.pi), frequency_u_hz=f_u, dc=float(beta[0]),
+        orders=orders, phasors=phasors, phasor_cov=pcov, dc_u=math.sqrt(max(cov[0, 0], 0.0)),
+        rss=rss, n_samples=n, n_params=n_params, iterations=iterations, converged=converged,
+    )
+
+
+def fit_tone(x: np.ndarray, sample_rate: float, n_harmonics: int = 1,
+             frequency_hz: float | None = None, min_hz: float = 0.0) -> HarmonicFit | None:
+    """Estimate the fundamental and its harmonics: interpolated-DFT seed, then the iterative fit.
+
+    Returns None when no spectral peak exists (silence, DC only, too short).
+    """
+    seed = frequency_hz if frequency_hz is not None else dft_frequency_seed(x, sample_rate, min_hz)
+    if seed is None or seed <= 0:
+        return None
+    return fit_harmonics(x, sample_rate, seed, n_harmonics, fit_frequency=True)
