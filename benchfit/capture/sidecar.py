@@ -1,0 +1,246 @@
+"""Sidecar JSON files: what the recorder knew about an audio capture.
+
+A sidecar has the same stem as its audio file (``unit7.wav`` → ``unit7.json``) and holds
+the channel names, the sample rate the card was asked for, the device, the start time,
+the overflow/clip counts and the input calibration that applies to the raw samples::
+
+    {"benchfit_sidecar": 1,
+     "channels": [{"name": "drive"}, {"name": "output"}],
+     "sample_rate_hz": 48000, "device": "...", "start_utc": "2026-12-01T17:00:00Z",
+     "overflow_count": 0, "clip_count": 0,
+     "calibration": {"profile": "name" | null, "gain_v_per_fs": [g1, g2] | null,
+                     "timebase_ppm": 0.0, "timebase_u_ppm": 0.0,
+                     "coupling_tau_s": null | float},
+     "benchfit_version": "0.1.0"}
+
+The raw audio file is never rewritten; the calibration is applied when the capture is
+loaded. This module only reads, validates and writes the JSON.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+from typing import Any
+
+from benchfit.errors import CaptureError
+
+__all__ = ["SIDECAR_VERSION", "sidecar_path", "read_sidecar", "write_sidecar", "validate_sidecar"]
+
+#: schema version written in the ``benchfit_sidecar`` key
+SIDECAR_VERSION = 1
+
+_CAL_DEFAULTS: dict[str, Any] = {
+    "profile": None,
+    "gain_v_per_fs": None,
+    "timebase_ppm": 0.0,
+    "timebase_u_ppm": 0.0,
+    "coupling_tau_s": None,
+}
+
+
+def sidecar_path(audio_path: str | os.PathLike[str]) -> Path:
+    """Path of the sidecar JSON that belongs to an audio file (same stem, ``.json``)."""
+    return Path(audio_path).with_suffix(".json")
+
+
+def _is_number(value: Any) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+def _is_count(value: Any) -> bool:
+    return isinstance(value, int) and not isinstance(value, bool) and value >= 0
+
+
+def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
+    """Check a parsed sidecar against the schema and return a normalised copy.
+
+    Parameters
+    ----------
+    data : object
+        The parsed JSON value.
+    where : str
+        Name of the file (or parameter) used in error messages.
+
+    Returns
+    -------
+    dict
+        A copy of ``data`` in which ``calibration`` is always present with all five keys
+        (missing ones take their defaults: no profile, no gain, 0 ppm, 0 ppm, no coupling
+        time constant). Unknown keys are kept, so newer writers stay readable.
+
+    Raises
+    ------
+    CaptureError
+        One line naming ``where`` and the offending key.
+    """
+    fix = "fix the sidecar, or delete it to read the audio without it"
+    if not isinstance(data, dict):
+        raise CaptureError(f"{where}: sidecar must be a JSON object, got {type(data).__name__} — {fix}")
+    version = data.get("benchfit_sidecar")
+    if version is None:
+        raise CaptureError(f"{where}: not a benchfit sidecar (no 'benchfit_sidecar' key) — {fix}")
+    if version != SIDECAR_VERSION or isinstance(version, bool):
+        raise CaptureError(
+            f"{where}: sidecar version {version!r} is not supported (this benchfit reads version "
+            f"{SIDECAR_VERSION}) — update benchfit or rewrite the sidecar"
+        )
+    out = dict(data)
+
+    channels = data.get("channels")
+    if not isinstance(channels, list) or not channels:
+        raise CaptureError(f"{where}: 'channels' must be a non-empty list of {{\"name\": ...}} objects — {fix}")
+    names: list[str] = []
+    for i, ch in enumerate(channels):
+        if not isinstance(ch, dict) or not isinstance(ch.get("name"), str) or not ch["name"].strip():
+            raise CaptureError(f"{where}: channels[{i}] needs a non-empty string 'name' — {fix}")
+        names.append(ch["name"])
+    if len({n.lower() for n in names}) != len(names):
+        raise CaptureError(f"{where}: channel names {names!r} are not unique — {fix}")
+    out["channels"] = [dict(ch) for ch in channels]
+
+    fs = data.get("sample_rate_hz")
+    if not _is_number(fs) or fs <= 0:
+        raise CaptureError(f"{where}: 'sample_rate_hz' must be a positive number of Hz, got {fs!r} — {fix}")
+
+    for key in ("device", "start_utc", "benchfit_version"):
+        if key in data and data[key] is not None and not isinstance(data[key], str):
+            raise CaptureError(f"{where}: {key!r} must be a string, got {data[key]!r} — {fix}")
+    for key in ("overflow_count", "clip_count"):
+        if key in data and not _is_count(data[key]):
+            raise CaptureError(f"{where}: {key!r} must be a whole number ≥ 0, got {data[key]!r} — {fix}")
+
+    cal_in = data.get("calibration")
+    if cal_in is None:
+        cal_in = {}
+    if not isinstance(cal_in, dict):
+        raise CaptureError(f"{where}: 'calibration' must be an object or null — {fix}")
+    cal = dict(_CAL_DEFAULTS)
+    cal.update(cal_in)
+    if cal["profile"] is not None and not isinstance(cal["profile"], str):
+        raise CaptureError(f"{where}: calibration.profile must be a string or null, got {cal['profile']!r} — {fix}")
+    gains = cal["gain_v_per_fs"]
+    if gains is not None:
+        if not isinstance(gains, list) or len(gains) != len(names):
+            raise CaptureError(
+                f"{where}: calibration.gain_v_per_fs must list one gain per channel ({len(names)}), "
+                f"got {gains!r} — {fix}"
+            )
+        for i, g in enumerate(gains):
+            if not _is_number(g) or g <= 0:
+                raise CaptureError(
+                    f"{where}: calibration.gain_v_per_fs[{i}] must be a positive number of V/FS, got {g!r} — {fix}"
+                )
+        cal["gain_v_per_fs"] = [float(g) for g in gains]
+    for key in ("timebase_ppm", "timebase_u_ppm"):
+        if not _is_number(cal[key]):
+            raise CaptureError(f"{where}: calibration.{key} must be a number of ppm, got {cal[key]!r} — {fix}")
+        cal[key] = float(cal[key])
+    if cal["timebase_u_ppm"] < 0:
+        raise CaptureError(f"{where}: calibration.timebase_u_ppm must be ≥ 0, got {cal['timebase_u_ppm']!r} — {fix}")
+    if abs(cal["timebase_ppm"]) >= 1e5:
+        raise CaptureError(
+            f"{where}: calibration.timebase_ppm {cal['timebase_ppm']!r} is implausible (|ppm| ≥ 1e5) — {fix}"
+        )
+    tau = cal["coupling_tau_s"]
+    if tau is not None:
+        if not _is_number(tau) or tau <= 0:
+            raise CaptureError(f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {tau!r} — {fix}")
+        cal["coupling_tau_s"] = float(tau)
+    out["calibration"] = cal
+    return out
+
+
+def read_sidecar(audio_path: str | os.PathLike[str]) -> dict[str, Any] | None:
+    """Read and validate the sidecar of an audio file.
+
+    Parameters
+    ----------
+    audio_path : str or Path
+        Path of the audio file (not of the JSON).
+
+    Returns
+    -------
+    dict or None
+        The validated, normalised sidecar (see :func:`validate_sidecar`), or ``None`` when
+        the audio file has no sidecar.
+
+    Raises
+    ------
+    CaptureError
+        The sidecar exists but cannot be read, is not JSON, or breaks the schema; the
+        message names the JSON file.
+    """
+    path = sidecar_path(audio_path)
+    if Path(audio_path).suffix.lower() == ".json" or not path.is_file():
+        return None
+    try:
+        with open(path, "r", encoding="utf-8") as fh:
+            data = json.load(fh)
+    except json.JSONDecodeError as e:
+        raise CaptureError(
+            f"{path}: sidecar is not valid JSON (line {e.lineno}, column {e.colno}: {e.msg}) — "
+            "fix the sidecar, or delete it to read the audio without it"
+        ) from e
+    except UnicodeDecodeError as e:
+        raise CaptureError(f"{path}: sidecar is not UTF-8 text — fix or delete the sidecar") from e
+    except OSError as e:
+        raise CaptureError(f"{path}: sidecar cannot be read ({e.strerror or e}) — check its permissions") from e
+    return validate_sidecar(data, str(path))
+
+
+def write_sidecar(audio_path: str | os.PathLike[str], data: dict[str, Any], overwrite: bool = False) -> Path:
+    """Write the sidecar of an audio file atomically.
+
+    The JSON goes to a temporary file in the same directory, is flushed to disk and then
+    renamed over the target (``os.replace``), so a reader never sees half a file.
+
+    Parameters
+    ----------
+    audio_path : str or Path
+        Path of the audio file the sidecar describes.
+    data : dict
+        Sidecar content; validated against the schema before anything is written.
+    overwrite : bool, default False
+        Replace an existing sidecar. Without it an existing sidecar is an error.
+
+    Returns
+    -------
+    Path
+        Path of the written JSON file.
+
+    Raises
+    ------
+    CaptureError
+        The data break the schema, the sidecar exists and ``overwrite`` is False, or the
+        file cannot be written.
+    """
+    path = sidecar_path(audio_path)
+    if Path(audio_path).suffix.lower() == ".json":
+        raise CaptureError(f"{audio_path}: a sidecar belongs to an audio file, not to a .json file — pass the audio path")
+    clean = validate_sidecar(data, f"{path} (data to write)")
+    if path.exists() and not overwrite:
+        raise CaptureError(f"{path}: sidecar already exists — choose another file name or allow overwriting")
+    text = json.dumps(clean, indent=2, ensure_ascii=False) + "\n"
+    tmp_name: str | None = None
+    try:
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".json.tmp", dir=path.parent)
+        os.chmod(tmp_name, 0o644)  # mkstemp makes 0600; a sidecar is ordinary readable data
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp_name, path)
+        tmp_name = None
+    except OSError as e:
+        raise CaptureError(f"{path}: sidecar cannot be written ({e.strerror or e}) — check the folder exists and is writable") from e
+    finally:
+        if tmp_name is not None:
+            try:
+                os.unlink(tmp_name)
+            except OSError:
+                pass
+    return path
