@@ -1,0 +1,309 @@
+"""All of benchfit's figures (matplotlib, Agg, our own plain light design).
+
+Every public function returns SVG text (a :class:`FigureSVG`, which is a ``str`` that
+also keeps the matplotlib figure so :func:`save_figure` can write a PNG of it).
+The SVGs are self-contained: text is drawn as paths (``svg.fonttype = "path"``), there
+are no external references and no time stamp, so the same input gives the same bytes.
+
+matplotlib is imported inside the functions: importing this module is cheap and the
+command line's ``--help`` never loads it. No pyplot state is used: figures are built
+with :class:`matplotlib.figure.Figure` directly and rendered by the Agg/SVG canvases that
+``savefig`` picks from the format, so no backend is selected and nothing global changes.
+
+Functions
+---------
+waveform_svg(capture, channel=0, model=None, periods=4)
+    A few periods of one channel, with an optional model overlay.
+spectrum_svg(channel_measurement)
+    Harmonic amplitudes on a log scale.
+fit_svg(fit_result)
+    Data and model over time, |H| and phase at the harmonics, residuals.
+save_figure(svg_or_fig, path)
+    Write ``.svg`` or ``.png``.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = ["FigureSVG", "waveform_svg", "spectrum_svg", "fit_svg", "save_figure"]
+
+# our own plain palette: ink for data, rust for models, moss for residuals, slate for grid
+_INK = "#22313f"
+_MODEL = "#b5523b"
+_RESID = "#5b7f3a"
+_GRID = "#d5dbe0"
+_FACE = "#ffffff"
+_RC = {
+    "svg.fonttype": "path",
+    "svg.hashsalt": "benchfit",
+    "font.size": 8.5,
+    "axes.edgecolor": "#7a8793",
+    "axes.linewidth": 0.7,
+    "axes.facecolor": _FACE,
+    "figure.facecolor": _FACE,
+    "axes.grid": True,
+    "grid.color": _GRID,
+    "grid.linewidth": 0.6,
+    "xtick.color": "#4a5561",
+    "ytick.color": "#4a5561",
+    "axes.labelcolor": "#22313f",
+    "axes.titlesize": 9,
+    "axes.titleweight": "bold",
+    "legend.frameon": False,
+    "legend.fontsize": 7.5,
+}
+
+
+class FigureSVG(str):
+    """SVG text that also carries the matplotlib figure it was drawn from (for PNG output)."""
+
+    figure: Any = None
+
+
+def _new_figure(width_in: float, height_in: float):
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=(width_in, height_in), dpi=100, layout="constrained")
+
+
+def _to_svg(fig) -> FigureSVG:
+    import matplotlib
+
+    buf = io.StringIO()
+    with matplotlib.rc_context(_RC):
+        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "benchfit"})
+    out = FigureSVG(buf.getvalue())
+    out.figure = fig
+    return out
+
+
+def _time_unit(span_s: float) -> tuple[float, str]:
+    """Scale and label for a time axis covering ``span_s`` seconds."""
+    if span_s < 2e-3:
+        return 1e6, "µs"
+    if span_s < 2.0:
+        return 1e3, "ms"
+    return 1.0, "s"
+
+
+def waveform_svg(capture, channel: int | str = 0, model: np.ndarray | None = None,
+                 periods: int = 4) -> str:
+    """A few periods of one channel of a capture, optionally with a model overlay.
+
+    Parameters
+    ----------
+    capture : Capture
+        The waveform (samples in V or FS, uniform sample rate in Hz).
+    channel : int or str
+        Channel index (0-based) or name.
+    model : ndarray, optional
+        Model samples aligned with the capture's samples (same length), same unit.
+    periods : int
+        Number of periods of the strongest spectral component to show (the whole record
+        when no period can be found or the record is shorter).
+
+    Returns
+    -------
+    str
+        Self-contained SVG text (a :class:`FigureSVG`).
+    """
+    import matplotlib
+
+    from benchfit.measurement.tone import dft_frequency_seed
+
+    idx = capture.channel_index(channel)
+    x = np.asarray(capture.samples[idx], dtype=float)
+    fs = capture.sample_rate
+    n = x.size
+    f = dft_frequency_seed(x, fs) if n >= 16 else None
+    if f and f > 0 and periods > 0:
+        n_show = min(n, max(16, int(math.ceil(periods * fs / f))))
+    else:
+        n_show = n
+    t = capture.t0 + np.arange(n_show) / fs
+    scale, tu = _time_unit(n_show / fs)
+    unit = capture.units[idx]
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(6.4, 2.8)
+        ax = fig.add_subplot(1, 1, 1)
+        ax.plot(t * scale, x[:n_show], color=_INK, lw=1.1, label="captured")
+        if model is not None:
+            m = np.asarray(model, dtype=float)
+            if m.size == n:
+                ax.plot(t * scale, m[:n_show], color=_MODEL, lw=1.0, ls="--", label="model")
+        ax.set_xlabel(f"time ({tu})")
+        ax.set_ylabel(f"{capture.channel_names[idx]} ({unit})")
+        title = capture.channel_names[idx]
+        if f:
+            title += f" — {periods} periods at about {f:.4g} Hz"
+        ax.set_title(title, loc="left")
+        if model is not None:
+            ax.legend(loc="upper right")
+        return _to_svg(fig)
+
+
+def spectrum_svg(channel_measurement) -> str:
+    """Harmonic amplitudes of one measured channel on a log scale.
+
+    Parameters
+    ----------
+    channel_measurement : ChannelMeasurement
+        Uses ``harmonics`` (order, frequency in Hz, peak amplitude in the channel's unit)
+        and, when present, each harmonic's ``amplitude_u`` as an error bar.
+
+    Returns
+    -------
+    str
+        Self-contained SVG text (a :class:`FigureSVG`).
+    """
+    import matplotlib
+
+    cm = channel_measurement
+    hs = list(cm.harmonics)
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(6.4, 2.8)
+        ax = fig.add_subplot(1, 1, 1)
+        if hs:
+            orders = np.array([h.order for h in hs])
+            amp = np.array([max(h.amplitude, 1e-300) for h in hs])
+            ax.vlines(orders, amp.min() * 0.3, amp, color=_INK, lw=2.2)
+            ax.plot(orders, amp, "o", color=_INK, ms=3.5)
+            us = [h.amplitude_u for h in hs]
+            if all(u is not None for u in us):
+                ax.errorbar(orders, amp, yerr=np.array(us, dtype=float), fmt="none",
+                            ecolor=_MODEL, elinewidth=0.8, capsize=2)
+            ax.set_yscale("log")
+            ax.set_ylim(amp.min() * 0.3, amp.max() * 3)
+            ax.set_xticks(orders)
+            if hs[0].frequency_hz:
+                ax.set_xlabel(f"harmonic order (fundamental {hs[0].frequency_hz:.5g} Hz)")
+            else:
+                ax.set_xlabel("harmonic order")
+        else:
+            ax.text(0.5, 0.5, "no harmonics measured", ha="center", va="center",
+                    transform=ax.transAxes, color=_INK)
+            ax.set_xlabel("harmonic order")
+        ax.set_ylabel(f"peak amplitude ({cm.unit})")
+        title = f"{cm.name} harmonics"
+        if cm.thd_pct is not None:
+            title += f" — THD {cm.thd_pct:.3g} %"
+        ax.set_title(title, loc="left")
+        return _to_svg(fig)
+
+
+def fit_svg(fit_result) -> str:
+    """Figure of a fit: data and model over time, |H| and phase at the harmonics, residuals.
+
+    Parameters
+    ----------
+    fit_result : FitResult
+        Uses ``fit_result.curves`` (time in s; complex responses at the harmonic
+        frequencies in Hz; residuals on the points actually fitted).
+
+    Returns
+    -------
+    str
+        Self-contained SVG text (a :class:`FigureSVG`).
+    """
+    import matplotlib
+
+    c = fit_result.curves
+    has_h = c.harmonic_hz.size > 0
+    rows = 3 if has_h else 2
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(7.0, 2.3 * rows)
+        grid = fig.add_gridspec(rows, 2) if has_h else fig.add_gridspec(rows, 1)
+        ax_t = fig.add_subplot(grid[0, :])
+        if c.time_s.size:
+            scale, tu = _time_unit(float(c.time_s[-1] - c.time_s[0]) if c.time_s.size > 1 else 1.0)
+            ax_t.plot(c.time_s * scale, c.data, color=_INK, lw=1.0, label="data")
+            if c.model.size == c.time_s.size:
+                ax_t.plot(c.time_s * scale, c.model, color=_MODEL, lw=1.0, ls="--", label="model")
+            ax_t.set_xlabel(f"time ({tu})")
+            ax_t.legend(loc="upper right")
+        ax_t.set_ylabel("signal")
+        ax_t.set_title(f"{fit_result.model} fit ({fit_result.method}) — "
+                       f"NRMSE {fit_result.quality.nrmse:.3g}", loc="left")
+        if has_h:
+            f = c.harmonic_hz
+            ax_m = fig.add_subplot(grid[1, 0])
+            ax_p = fig.add_subplot(grid[1, 1])
+            hm = np.abs(c.h_measured)
+            if c.h_measured_u.size == f.size:
+                ax_m.errorbar(f, hm, yerr=c.h_measured_u, fmt="o", color=_INK, ms=3.5,
+                              elinewidth=0.8, capsize=2, label="measured")
+            else:
+                ax_m.plot(f, hm, "o", color=_INK, ms=3.5, label="measured")
+            ax_p.plot(f, np.degrees(np.angle(c.h_measured)), "o", color=_INK, ms=3.5,
+                      label="measured")
+            if c.h_model.size == f.size:
+                ax_m.plot(f, np.abs(c.h_model), "s", mfc="none", color=_MODEL, ms=5, label="model")
+                ax_p.plot(f, np.degrees(np.angle(c.h_model)), "s", mfc="none", color=_MODEL,
+                          ms=5, label="model")
+            ax_m.set_yscale("log")
+            for ax in (ax_m, ax_p):
+                ax.set_xscale("log")
+                ax.set_xlabel("frequency (Hz)")
+            ax_m.set_ylabel("|H|")
+            ax_p.set_ylabel("phase (°)")
+            ax_m.legend(loc="lower left")
+            ax_m.set_title("magnitude at the harmonics", loc="left")
+            ax_p.set_title("phase at the harmonics", loc="left")
+            ax_r = fig.add_subplot(grid[2, :])
+        else:
+            ax_r = fig.add_subplot(grid[1, 0])
+        r = np.asarray(c.residual, dtype=float)
+        if r.size:
+            ax_r.plot(np.arange(r.size), r, ".", color=_RESID, ms=2.5)
+            ax_r.axhline(0.0, color="#7a8793", lw=0.7)
+        ax_r.set_xlabel("fitted point")
+        ax_r.set_ylabel("residual")
+        ax_r.set_title("residuals (data − model)", loc="left")
+        return _to_svg(fig)
+
+
+def save_figure(svg_or_fig, path: str | Path) -> Path:
+    """Write a figure to ``path`` as SVG or PNG, chosen by the suffix.
+
+    Parameters
+    ----------
+    svg_or_fig : FigureSVG, str or matplotlib Figure
+        What one of this module's functions returned, or a matplotlib figure. Plain SVG text
+        without a figure can only be written as ``.svg``.
+    path : str or Path
+        Target file; suffix ``.svg`` or ``.png``.
+
+    Returns
+    -------
+    Path
+        The path written.
+    """
+    import matplotlib
+
+    from benchfit.errors import BenchfitError
+
+    p = Path(path)
+    suffix = p.suffix.lower()
+    if suffix not in (".svg", ".png"):
+        raise BenchfitError(f"{p}: unknown figure type {p.suffix!r} — use a .svg or .png file name")
+    fig = getattr(svg_or_fig, "figure", None) if isinstance(svg_or_fig, str) else svg_or_fig
+    try:
+        if suffix == ".svg":
+            text = str(svg_or_fig) if isinstance(svg_or_fig, str) else str(_to_svg(fig))
+            p.write_text(text, encoding="utf-8")
+        else:
+            if fig is None:
+                raise BenchfitError(f"{p}: this SVG text carries no figure to render as PNG — "
+                                    "save it as .svg, or pass the figure function's result unchanged")
+            with matplotlib.rc_context(_RC):
+                fig.savefig(p, format="png", dpi=150, metadata={"Software": "benchfit"})
+    except OSError as e:
+        raise BenchfitError(f"{p}: cannot write the figure ({e.strerror}) — check the folder exists "
+                            "and is writable") from e
+    return p
