@@ -1,0 +1,226 @@
+"""Pure model functions of the "lc-lowpass" circuit (no fitting, no I/O).
+
+Circuit: drive → Rs → L → node *out*; from *out* to ground the capacitor C in series with
+its ESR ``Resr``, and the load ``Rload`` across the output. With ``g = 1/Rload`` (so an
+open output is ``g = 0``) the transfer function is (REFERENCES §6; Nilsson & Riedel,
+*Electric Circuits*, impedance divider with Z_sh = Rload ∥ (Resr + 1/sC))::
+
+              1 + s·Resr·C
+    H(s) = ----------------------------------------------------------------
+           L·C·(1 + Resr·g)·s² + (L·g + C·(Rs·(1 + Resr·g) + Resr))·s + (1 + Rs·g)
+
+which is the textbook form divided through by Rload. The characteristic polynomial
+``a2·s² + a1·s + a0`` gives ω0² = a0/a2, Q = √(a0·a2)/a1, decay rate α = a1/(2·a2) and
+damped frequency ω_d = √(ω0² − α²).
+
+The time response to an arbitrary sampled drive uses the exact discretisation of the
+state-space model (states: inductor current i_L, capacitor voltage v_C) with a first-order
+hold (the drive is taken as linear between samples), computed with a matrix exponential
+and run as a second-order recursion (``scipy.signal.lfilter``), not a fixed-step Euler loop.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["PARAMETER_NAMES", "LowpassParts", "coefficients", "transfer", "second_order",
+           "state_space", "discretize", "simulate", "free_response_basis", "rectangular_phasors"]
+
+#: the parameters of the lc-lowpass model, in the order used everywhere
+PARAMETER_NAMES: tuple[str, ...] = ("L", "C", "Rs", "Resr", "Rload")
+
+
+@dataclass(frozen=True)
+class LowpassParts:
+    """Effective parts of the lc-lowpass model.
+
+    Attributes
+    ----------
+    L : float
+        Inductance in henry (H).
+    C : float
+        Capacitance in farad (F).
+    Rs : float
+        Everything in series with L between the drive and the output, in ohm.
+    Resr : float
+        Capacitor equivalent series resistance in ohm (may be 0).
+    Rload : float
+        Load across the output in ohm (``math.inf`` for an open output).
+    """
+
+    L: float
+    C: float
+    Rs: float
+    Resr: float = 0.0
+    Rload: float = math.inf
+
+    @property
+    def g(self) -> float:
+        """Load conductance 1/Rload in siemens (0 for an open output)."""
+        return 0.0 if math.isinf(self.Rload) else 1.0 / self.Rload
+
+    def as_dict(self) -> dict[str, float]:
+        return {"L": self.L, "C": self.C, "Rs": self.Rs, "Resr": self.Resr, "Rload": self.Rload}
+
+
+def coefficients(p: LowpassParts) -> tuple[np.ndarray, np.ndarray]:
+    """Numerator ``[b1, b0]`` and denominator ``[a2, a1, a0]`` of H(s), highest power first.
+
+    Both are the textbook polynomials divided by Rload, so they stay finite for an open output.
+    """
+    g = p.g
+    b = np.array([p.Resr * p.C, 1.0])
+    a = np.array([p.L * p.C * (1.0 + p.Resr * g),
+                  p.L * g + p.C * (p.Rs * (1.0 + p.Resr * g) + p.Resr),
+                  1.0 + p.Rs * g])
+    return b, a
+
+
+def transfer(frequency_hz: np.ndarray | float, p: LowpassParts) -> np.ndarray:
+    """Complex response H(j·2πf) (output / drive, dimensionless) at the given frequencies in Hz."""
+    s = 2j * math.pi * np.asarray(frequency_hz, dtype=float)
+    b, a = coefficients(p)
+    return (b[0] * s + b[1]) / ((a[0] * s + a[1]) * s + a[2])
+
+
+def second_order(p: LowpassParts) -> dict[str, float]:
+    """Resonance figures from the characteristic polynomial.
+
+    Returns
+    -------
+    dict
+        ``resonant_frequency_hz`` (√(a0/a2)/2π), ``q_factor`` (√(a0·a2)/a1),
+        ``decay_rate_per_s`` (α = a1/(2·a2), in 1/s) and ``damped_frequency_hz``
+        (√(ω0² − α²)/2π, NaN when the circuit is not underdamped, Q ≤ 0.5).
+    """
+    _, a = coefficients(p)
+    a2, a1, a0 = (float(v) for v in a)
+    w0 = math.sqrt(a0 / a2)
+    alpha = a1 / (2.0 * a2)
+    wd2 = w0 * w0 - alpha * alpha
+    return {
+        "resonant_frequency_hz": w0 / (2 * math.pi),
+        "q_factor": math.sqrt(a0 * a2) / a1,
+        "damped_frequency_hz": math.sqrt(wd2) / (2 * math.pi) if wd2 > 0 else math.nan,
+        "decay_rate_per_s": alpha,
+    }
+
+
+def state_space(p: LowpassParts) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Continuous state-space matrices (A, B, C_out) for states x = [i_L (A), v_C (V)].
+
+    From Kirchhoff's laws: v_out = (v_C + Resr·i_L)/(1 + Resr·g);
+    L·di_L/dt = u − Rs·i_L − v_out; C·dv_C/dt = i_L − g·v_out.
+    """
+    g, rc = p.g, p.Resr
+    k = 1.0 / (1.0 + rc * g)
+    a = np.array([[-(p.Rs + rc * k) / p.L, -k / p.L],
+                  [k / p.C, -g * k / p.C]])
+    b = np.array([1.0 / p.L, 0.0])
+    c = np.array([rc * k, k])
+    return a, b, c
+
+
+def _foh(p: LowpassParts, sample_rate: float):
+    """Φ, Γ0, Γ1 of the first-order-hold discretisation and the output row C."""
+    from scipy.linalg import expm
+
+    h = 1.0 / float(sample_rate)
+    a, b, c = state_space(p)
+    m = np.zeros((4, 4))
+    m[:2, :2] = a * h
+    m[:2, 2] = b * h
+    m[2, 3] = 1.0
+    e = expm(m)
+    # top row of expm([[A·h, B·h, 0], [0, 0, 1], [0, 0, 0]]) = [Φ, Γ0, Γ1]
+    return e[:2, :2], e[:2, 2], e[:2, 3], c
+
+
+def discretize(p: LowpassParts, sample_rate: float) -> tuple[np.ndarray, np.ndarray]:
+    """Exact first-order-hold discretisation as a z-domain filter ``(b, a)`` for ``lfilter``.
+
+    With Φ = e^{A·h}, Γ0 = ∫₀ʰ e^{Aτ}dτ·B and Γ1 = (1/h)∫₀ʰ e^{Aτ}(h − τ)dτ·B (all from one
+    matrix exponential of an augmented matrix), a drive linear between samples gives
+    x[k+1] = Φx[k] + (Γ0 − Γ1)u[k] + Γ1·u[k+1]; with ξ = x − Γ1·u this is the ordinary
+    state-space system (Φ, ΦΓ1 + Γ0 − Γ1, C, CΓ1), converted to a transfer function.
+    """
+    from scipy.signal import ss2tf
+
+    phi, gam0, gam1, c = _foh(p, sample_rate)
+    bd = phi @ gam1 + gam0 - gam1
+    dd = float(c @ gam1)
+    num, den = ss2tf(phi, bd[:, None], c[None, :], np.array([[dd]]))
+    return np.asarray(num[0], dtype=float), np.asarray(den, dtype=float)
+
+
+def simulate(drive: np.ndarray, sample_rate: float, p: LowpassParts,
+             x0: tuple[float, float] = (0.0, 0.0)) -> np.ndarray:
+    """Output voltage for a sampled drive voltage (drive linear between samples).
+
+    Parameters
+    ----------
+    drive : ndarray
+        Drive samples in volts, uniformly spaced.
+    sample_rate : float
+        Samples per second (Hz).
+    p : LowpassParts
+        The circuit.
+    x0 : (float, float)
+        Initial state: inductor current in A and capacitor voltage in V (default: at rest).
+
+    Returns
+    -------
+    ndarray
+        Output samples in volts, same length as ``drive``.
+    """
+    from scipy.signal import lfilter
+
+    u = np.asarray(drive, dtype=float)
+    if u.size == 0:
+        return u.copy()
+    b, a = discretize(p, sample_rate)
+    y = lfilter(b, a, u)  # zero-state response of the ξ system
+    phi, _, gam1, c = _foh(p, sample_rate)
+    xi0 = np.asarray(x0, dtype=float) - gam1 * u[0]
+    if np.any(xi0 != 0):
+        y = y + xi0 @ free_response_basis(p, sample_rate, u.size)
+    return y
+
+
+def free_response_basis(p: LowpassParts, sample_rate: float, n: int) -> np.ndarray:
+    """Two output sequences spanning the free (initial-state) response, shape (2, n).
+
+    Row j is y[k] = C·Φᵏ·e_j for the unit initial states e_0 = [1 A, 0] and
+    e_1 = [0, 1 V]; used to add or fit an initial state linearly.
+    """
+    from scipy.linalg import expm
+
+    a, _, c = state_space(p)
+    phi = expm(a / float(sample_rate))
+    w, v = np.linalg.eig(phi)
+    k = np.arange(n)
+    if np.linalg.cond(v) < 1e8:
+        vinv = np.linalg.inv(v)
+        powers = w[:, None] ** k[None, :]  # (2, n)
+        # C·V·diag(wᵏ)·V⁻¹ → row j uses column j of V⁻¹
+        out = np.real(((c @ v)[:, None] * powers).T @ vinv).T
+        return np.ascontiguousarray(out)
+    out = np.empty((2, n))  # repeated eigenvalue (critical damping): iterate
+    x = np.eye(2)
+    for i in range(n):
+        out[:, i] = c @ x
+        x = phi @ x
+    return out
+
+
+def rectangular_phasors(orders: np.ndarray, duty: float) -> np.ndarray:
+    """Phasors P_k of a 0→1 rectangular wave that is high for t in [0, D·T) of each period.
+
+    With x(t) ≈ D + Σ Re(P_k e^{jkωt}): P_k = (2/(kπ))·sin(kπD)·e^{−jkπD} (Fourier series of
+    a pulse train, REFERENCES §5: a_k = (2A/(kπ))·|sin(kπD)|).
+    """
+    k = np.asarray(orders, dtype=float)
+    return 2.0 / (k * math.pi) * np.sin(k * math.pi * duty) * np.exp(-1j * k * math.pi * duty)
