@@ -1,0 +1,608 @@
+"""Sound-card calibration profiles: input gain, sample-clock error and input coupling.
+
+A profile is a small TOML file in the user's configuration folder
+(``platformdirs.user_config_dir("benchfit")/profiles/NAME.toml``, or
+``$BENCHFIT_CONFIG_DIR/profiles/NAME.toml`` when that variable is set). It holds what one
+sound card (at one input-level setting) was found to do:
+
+* **gain** — volts per full-scale unit for each input channel, from a sine whose RMS the
+  user read on a meter: ``V/FS = rms_known / rms_fitted_FS``;
+* **timebase** — the sample-clock error in ppm, from a tone whose frequency the user
+  trusts. Positive ppm means the card's clock runs fast, so the true sample rate is
+  ``nominal · (1 + ppm·1e-6)``. With the frequency ``f_meas`` measured on the nominal
+  rate and the trusted ``f_ref``: ``ppm = (f_ref / f_meas − 1)·1e6``;
+* **coupling** — the time constant of the input's high-pass (AC coupling capacitor), from
+  the droop of a low-frequency square wave.
+
+Profiles act through the sidecar: ``record`` copies the profile's values into the
+sidecar, and ``load`` applies them. Raw samples are never rewritten.
+
+The module has two halves: pure estimators (arrays in, frozen dataclasses out) and the
+profile store (TOML read with :mod:`tomllib`, written with :mod:`tomli_w`, atomically).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import tempfile
+import tomllib
+from dataclasses import asdict, dataclass, replace
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from benchfit.capture.capture import InputCalibration
+from benchfit.errors import CaptureError, MeasureError
+
+__all__ = [
+    "ENV_CONFIG_DIR",
+    "PROFILE_VERSION",
+    "CLIP_FS",
+    "ChannelGain",
+    "TimebaseCalibration",
+    "CouplingCalibration",
+    "CalibrationProfile",
+    "GainEstimate",
+    "TimebaseEstimate",
+    "estimate_gain",
+    "estimate_timebase",
+    "estimate_coupling",
+    "config_dir",
+    "profile_path",
+    "check_profile_name",
+    "list_profiles",
+    "load_profile",
+    "save_profile",
+    "read_raw_wav",
+    "utc_now_iso",
+]
+
+#: environment variable that moves the configuration folder (the tests use it)
+ENV_CONFIG_DIR = "BENCHFIT_CONFIG_DIR"
+#: version number written as ``benchfit_profile`` in every profile file
+PROFILE_VERSION = 1
+#: a sample at or above this magnitude (−0.1 dBFS) counts as clipped
+CLIP_FS = 10.0 ** (-0.1 / 20.0)
+
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
+
+
+# --------------------------------------------------------------------------------------
+# profile data
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class ChannelGain:
+    """Gain of one input channel.
+
+    Attributes
+    ----------
+    channel : int
+        Input channel number, 1-based (1 = the card's first input).
+    v_per_fs : float
+        Volts per full-scale unit (V/FS).
+    u_v_per_fs : float
+        Standard uncertainty of ``v_per_fs`` from the sine fit alone (V/FS); the meter's
+        own uncertainty is not included.
+    reference_rms_v : float
+        The RMS voltage the user read on the meter (V).
+    source : str
+        File the gain was measured from.
+    measured_utc : str
+        When it was measured (ISO 8601, UTC).
+    """
+
+    channel: int
+    v_per_fs: float
+    u_v_per_fs: float
+    reference_rms_v: float
+    source: str = ""
+    measured_utc: str = ""
+
+
+@dataclass(frozen=True)
+class TimebaseCalibration:
+    """Sample-clock error of the card.
+
+    Attributes
+    ----------
+    ppm : float
+        Clock error in parts per million; positive = the card's clock runs fast.
+    u_ppm : float
+        Standard uncertainty of ``ppm`` (fit and, when given, the reference's uncertainty).
+    reference_hz : float
+        The trusted frequency that was fed in (Hz).
+    nominal_rate_hz : float
+        The sample rate the card was asked for when it was measured (Hz).
+    source, measured_utc : str
+        Where and when it was measured.
+    """
+
+    ppm: float
+    u_ppm: float
+    reference_hz: float
+    nominal_rate_hz: float
+    source: str = ""
+    measured_utc: str = ""
+
+
+@dataclass(frozen=True)
+class CouplingCalibration:
+    """Time constant of the input's high-pass (AC coupling).
+
+    Attributes
+    ----------
+    tau_s : float
+        Time constant (s).
+    channel : int
+        Channel it was measured on (1-based).
+    source, measured_utc : str
+        Where and when it was measured.
+    """
+
+    tau_s: float
+    channel: int = 1
+    source: str = ""
+    measured_utc: str = ""
+
+
+@dataclass(frozen=True)
+class CalibrationProfile:
+    """A named set of sound-card calibrations; any part may be missing.
+
+    Attributes
+    ----------
+    name : str
+        Profile name (letters, digits, ``_ . -``; up to 64 characters).
+    gains : tuple of ChannelGain
+        Per-channel gains, sorted by channel number.
+    timebase : TimebaseCalibration or None
+    coupling : CouplingCalibration or None
+    """
+
+    name: str
+    gains: tuple[ChannelGain, ...] = ()
+    timebase: TimebaseCalibration | None = None
+    coupling: CouplingCalibration | None = None
+
+    def gain_of(self, channel: int) -> ChannelGain | None:
+        """The gain entry for a 1-based channel number, or None."""
+        for g in self.gains:
+            if g.channel == channel:
+                return g
+        return None
+
+    def with_gain(self, gain: ChannelGain) -> "CalibrationProfile":
+        """A copy with the gain of ``gain.channel`` set (others kept)."""
+        kept = [g for g in self.gains if g.channel != gain.channel]
+        return replace(self, gains=tuple(sorted(kept + [gain], key=lambda g: g.channel)))
+
+    def gains_for(self, n_channels: int) -> tuple[float, ...] | None:
+        """V/FS for input channels 1…n_channels, or None unless every one of them is known."""
+        out = []
+        for ch in range(1, n_channels + 1):
+            g = self.gain_of(ch)
+            if g is None:
+                return None
+            out.append(g.v_per_fs)
+        return tuple(out)
+
+    def missing_gains(self, n_channels: int) -> list[int]:
+        """Channel numbers among 1…n_channels that have no gain in this profile."""
+        return [ch for ch in range(1, n_channels + 1) if self.gain_of(ch) is None]
+
+    def input_calibration(self, n_channels: int) -> InputCalibration:
+        """The :class:`InputCalibration` a capture of ``n_channels`` inputs gets from this profile."""
+        tb = self.timebase
+        return InputCalibration(
+            profile=self.name,
+            gain_v_per_fs=self.gains_for(n_channels),
+            timebase_ppm=tb.ppm if tb else 0.0,
+            timebase_u_ppm=tb.u_ppm if tb else 0.0,
+            coupling_tau_s=self.coupling.tau_s if self.coupling else None,
+        )
+
+    def sidecar_calibration(self, n_channels: int) -> dict[str, Any]:
+        """The ``calibration`` object of a sidecar for a capture of ``n_channels`` inputs."""
+        return self.input_calibration(n_channels).to_dict()
+
+    # --- TOML mapping -------------------------------------------------------------------
+    def to_toml_dict(self) -> dict[str, Any]:
+        """Plain data for :mod:`tomli_w` (TOML has no null: absent parts are left out)."""
+        out: dict[str, Any] = {"benchfit_profile": PROFILE_VERSION, "name": self.name}
+        if self.timebase is not None:
+            out["timebase"] = _drop_empty(asdict(self.timebase))
+        if self.coupling is not None:
+            out["coupling"] = _drop_empty(asdict(self.coupling))
+        if self.gains:
+            out["gain"] = [_drop_empty(asdict(g)) for g in self.gains]
+        return out
+
+    @classmethod
+    def from_toml_dict(cls, data: dict[str, Any], where: str) -> "CalibrationProfile":
+        """Build a profile from parsed TOML, checking every value (CaptureError naming ``where``)."""
+        fix = "fix the file or run the calibrate command again"
+        if data.get("benchfit_profile") != PROFILE_VERSION:
+            raise CaptureError(
+                f"{where}: not a version-{PROFILE_VERSION} benchfit profile "
+                f"(benchfit_profile = {data.get('benchfit_profile')!r}) — {fix}")
+        name = data.get("name")
+        if not isinstance(name, str) or not _NAME_RE.match(name):
+            raise CaptureError(f"{where}: 'name' must be a profile name, got {name!r} — {fix}")
+        try:
+            gains = tuple(sorted((_gain_from(d) for d in data.get("gain", [])), key=lambda g: g.channel))
+            tb = _timebase_from(data["timebase"]) if "timebase" in data else None
+            cp = _coupling_from(data["coupling"]) if "coupling" in data else None
+        except (TypeError, ValueError, KeyError) as e:
+            raise CaptureError(f"{where}: {e} — {fix}") from e
+        if len({g.channel for g in gains}) != len(gains):
+            raise CaptureError(f"{where}: a channel has two [[gain]] entries — {fix}")
+        return cls(name=name, gains=gains, timebase=tb, coupling=cp)
+
+
+def _drop_empty(d: dict[str, Any]) -> dict[str, Any]:
+    return {k: v for k, v in d.items() if v is not None and v != ""}
+
+
+def _number(d: dict[str, Any], key: str, *, positive: bool = False, nonneg: bool = False) -> float:
+    if key not in d:
+        raise KeyError(f"missing {key!r}")
+    v = d[key]
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+        raise ValueError(f"{key!r} must be a finite number, got {v!r}")
+    if positive and v <= 0:
+        raise ValueError(f"{key!r} must be positive, got {v!r}")
+    if nonneg and v < 0:
+        raise ValueError(f"{key!r} must be zero or positive, got {v!r}")
+    return float(v)
+
+
+def _channel(d: dict[str, Any]) -> int:
+    ch = d.get("channel", 1)
+    if isinstance(ch, bool) or not isinstance(ch, int) or ch < 1:
+        raise ValueError(f"'channel' must be a whole number ≥ 1, got {ch!r}")
+    return ch
+
+
+def _text(d: dict[str, Any], key: str) -> str:
+    v = d.get(key, "")
+    if not isinstance(v, str):
+        raise ValueError(f"{key!r} must be text, got {v!r}")
+    return v
+
+
+def _gain_from(d: Any) -> ChannelGain:
+    if not isinstance(d, dict):
+        raise ValueError("every [[gain]] entry must be a table")
+    return ChannelGain(channel=_channel(d), v_per_fs=_number(d, "v_per_fs", positive=True),
+                       u_v_per_fs=_number(d, "u_v_per_fs", nonneg=True),
+                       reference_rms_v=_number(d, "reference_rms_v", positive=True),
+                       source=_text(d, "source"), measured_utc=_text(d, "measured_utc"))
+
+
+def _timebase_from(d: Any) -> TimebaseCalibration:
+    if not isinstance(d, dict):
+        raise ValueError("[timebase] must be a table")
+    ppm = _number(d, "ppm")
+    if abs(ppm) >= 1e5:
+        raise ValueError(f"'ppm' {ppm!r} is implausible (|ppm| ≥ 1e5)")
+    return TimebaseCalibration(ppm=ppm, u_ppm=_number(d, "u_ppm", nonneg=True),
+                               reference_hz=_number(d, "reference_hz", positive=True),
+                               nominal_rate_hz=_number(d, "nominal_rate_hz", positive=True),
+                               source=_text(d, "source"), measured_utc=_text(d, "measured_utc"))
+
+
+def _coupling_from(d: Any) -> CouplingCalibration:
+    if not isinstance(d, dict):
+        raise ValueError("[coupling] must be a table")
+    return CouplingCalibration(tau_s=_number(d, "tau_s", positive=True), channel=_channel(d),
+                               source=_text(d, "source"), measured_utc=_text(d, "measured_utc"))
+
+
+# --------------------------------------------------------------------------------------
+# pure estimators
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class GainEstimate:
+    """Result of :func:`estimate_gain`.
+
+    Attributes
+    ----------
+    v_per_fs, u_v_per_fs : float
+        Gain (V/FS) and its standard uncertainty from the fit (V/FS).
+    rms_fs : float
+        RMS of the fitted fundamental in full-scale units (FS).
+    frequency_hz : float
+        Frequency of the fitted sine (Hz, on the nominal sample rate).
+    residual_pct : float
+        RMS of what the sine does not explain, relative to the sine's RMS (%).
+    """
+
+    v_per_fs: float
+    u_v_per_fs: float
+    rms_fs: float
+    frequency_hz: float
+    residual_pct: float
+
+
+@dataclass(frozen=True)
+class TimebaseEstimate:
+    """Result of :func:`estimate_timebase`.
+
+    Attributes
+    ----------
+    ppm, u_ppm : float
+        Clock error (positive = fast) and its standard uncertainty (ppm).
+    measured_hz, measured_u_hz : float
+        The tone's frequency on the nominal sample rate and its standard uncertainty (Hz).
+    """
+
+    ppm: float
+    u_ppm: float
+    measured_hz: float
+    measured_u_hz: float
+
+
+def _fit_sine(x: np.ndarray, fs: float, what: str):
+    from benchfit.measurement.tone import fit_tone
+
+    x = np.asarray(x, dtype=np.float64)
+    if x.ndim != 1 or x.size < 64:
+        raise MeasureError(f"{what}: need at least 64 samples of one channel, got shape {x.shape} — record longer")
+    peak = float(np.max(np.abs(x)))
+    if peak >= CLIP_FS:
+        raise MeasureError(
+            f"{what}: the input reaches {20 * math.log10(peak):.2f} dBFS (clipped) — "
+            "lower the level (attenuator or input gain) and record again")
+    fit = fit_tone(x, fs, n_harmonics=1)
+    if fit is None or not fit.converged or fit.frequency_u_hz is None:
+        raise MeasureError(f"{what}: no steady tone found — feed a sine and record at least a few cycles")
+    amp = float(fit.amplitudes[0])
+    if amp < 1e-4:
+        raise MeasureError(
+            f"{what}: the tone is only {20 * math.log10(max(amp, 1e-12)):.1f} dBFS — raise the level to "
+            "between −20 and −1 dBFS")
+    return fit, amp
+
+
+def estimate_gain(x: np.ndarray, sample_rate: float, rms_known_v: float,
+                  what: str = "gain") -> GainEstimate:
+    """Volts per full-scale unit from a sine of known RMS voltage.
+
+    Parameters
+    ----------
+    x : ndarray
+        Raw samples of one channel in full-scale units (FS), no gain applied.
+    sample_rate : float
+        Nominal sample rate (Hz).
+    rms_known_v : float
+        RMS voltage of the sine as read on a meter (V).
+    what : str
+        Name used in error messages (file and channel).
+
+    Returns
+    -------
+    GainEstimate
+        ``v_per_fs = rms_known_v / (A/√2)`` where A is the fitted fundamental's peak (FS).
+
+    Raises
+    ------
+    MeasureError
+        Clipped input, no tone, a tone too weak, or a waveform that is not a sine
+        (more than 10 % of its RMS unexplained).
+    """
+    if not (math.isfinite(rms_known_v) and rms_known_v > 0):
+        raise MeasureError(f"--rms: must be a positive voltage, got {rms_known_v!r}")
+    fit, amp = _fit_sine(x, sample_rate, what)
+    rms_fs = amp / math.sqrt(2.0)
+    residual_pct = 100.0 * fit.residual_rms / rms_fs
+    if residual_pct > 10.0:
+        raise MeasureError(
+            f"{what}: the signal is not a clean sine ({residual_pct:.1f} % of its RMS is not the fundamental) — "
+            "feed a sine from a generator for the gain calibration")
+    u_amp = float(fit.amplitudes_u[0])
+    gain = rms_known_v / rms_fs
+    return GainEstimate(v_per_fs=gain, u_v_per_fs=gain * u_amp / amp, rms_fs=rms_fs,
+                        frequency_hz=fit.frequency_hz, residual_pct=residual_pct)
+
+
+def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
+                      reference_u_hz: float = 0.0, what: str = "timebase") -> TimebaseEstimate:
+    """Sample-clock error from a tone of trusted frequency.
+
+    Parameters
+    ----------
+    x : ndarray
+        Raw samples of one channel (any unit).
+    nominal_rate : float
+        The sample rate the card was asked for (Hz).
+    reference_hz : float
+        The tone's true frequency (Hz).
+    reference_u_hz : float
+        Standard uncertainty of ``reference_hz`` (Hz), added to the budget.
+    what : str
+        Name used in error messages.
+
+    Returns
+    -------
+    TimebaseEstimate
+        ``ppm = (reference_hz / f_meas − 1)·1e6`` with
+        ``u_ppm = 1e6·√((f_ref·u_meas/f_meas²)² + (u_ref/f_meas)²)``.
+
+    Raises
+    ------
+    MeasureError
+        No tone, or a tone more than 1 % away from the reference (wrong frequency given).
+    """
+    if not (math.isfinite(reference_hz) and 0 < reference_hz < nominal_rate / 2):
+        raise MeasureError(
+            f"--frequency: {reference_hz!r} Hz must be positive and below half the sample rate "
+            f"({nominal_rate / 2:g} Hz)")
+    fit, _ = _fit_sine(x, nominal_rate, what)
+    f_meas = float(fit.frequency_hz)
+    if abs(f_meas / reference_hz - 1.0) > 0.01:
+        raise MeasureError(
+            f"{what}: the tone measures {f_meas:.4f} Hz, not near the reference {reference_hz:g} Hz — "
+            "check --frequency or the generator")
+    u_meas = float(fit.frequency_u_hz)
+    ppm = (reference_hz / f_meas - 1.0) * 1e6
+    u_ppm = 1e6 * math.hypot(reference_hz * u_meas / f_meas ** 2, reference_u_hz / f_meas)
+    return TimebaseEstimate(ppm=ppm, u_ppm=u_ppm, measured_hz=f_meas, measured_u_hz=u_meas)
+
+
+def estimate_coupling(x: np.ndarray, sample_rate: float, what: str = "coupling") -> float:
+    """Time constant (s) of the input high-pass from the droop of a low-frequency square wave.
+
+    The estimator itself is :func:`benchfit.measurement.pulse.estimate_coupling_tau`; this
+    wrapper checks the input and turns "cannot tell" into a one-line MeasureError.
+    """
+    from benchfit.measurement import pulse
+
+    x = np.asarray(x, dtype=np.float64)
+    peak = float(np.max(np.abs(x))) if x.size else 0.0
+    if peak >= CLIP_FS:
+        raise MeasureError(
+            f"{what}: the input reaches {20 * math.log10(peak):.2f} dBFS (clipped) — lower the level and record again")
+    result = pulse.estimate_coupling_tau(x, sample_rate)
+    tau = getattr(result, "tau_s", result)
+    if tau is None or not (isinstance(tau, (int, float)) and math.isfinite(tau) and tau > 0):
+        raise MeasureError(
+            f"{what}: no droop could be measured — feed a square wave of 5–20 Hz and record a few seconds")
+    return float(tau)
+
+
+# --------------------------------------------------------------------------------------
+# reading a raw file for calibration
+# --------------------------------------------------------------------------------------
+def read_raw_wav(path: str | os.PathLike[str]) -> tuple[np.ndarray, float, tuple[str, ...]]:
+    """Raw samples (channels, n) in FS, the nominal sample rate (Hz) and channel names.
+
+    Calibration works on raw samples at the nominal rate, so an existing sidecar's gain and
+    timebase are deliberately *not* applied; only its channel names are used.
+    """
+    import soundfile as sf
+
+    from benchfit.capture.sidecar import read_sidecar
+
+    p = Path(path)
+    if not p.is_file():
+        raise CaptureError(f"{p}: no such file — check the path")
+    try:
+        data, fs = sf.read(str(p), dtype="float64", always_2d=True)
+    except (sf.LibsndfileError, RuntimeError, TypeError) as e:
+        raise CaptureError(f"{p}: cannot be read as audio ({e}) — give a WAV or FLAC file") from e
+    if data.shape[0] < 2:
+        raise CaptureError(f"{p}: holds {data.shape[0]} samples — record longer")
+    names: tuple[str, ...] = tuple(f"ch{i + 1}" for i in range(data.shape[1]))
+    side = read_sidecar(p)
+    if side is not None and len(side["channels"]) == data.shape[1]:
+        names = tuple(ch["name"] for ch in side["channels"])
+    return np.ascontiguousarray(data.T), float(fs), names
+
+
+# --------------------------------------------------------------------------------------
+# profile store
+# --------------------------------------------------------------------------------------
+def config_dir() -> Path:
+    """benchfit's configuration folder: ``$BENCHFIT_CONFIG_DIR`` or the platform's user config dir."""
+    env = os.environ.get(ENV_CONFIG_DIR)
+    if env:
+        return Path(env)
+    from platformdirs import user_config_dir
+
+    return Path(user_config_dir("benchfit"))
+
+
+def check_profile_name(name: str) -> str:
+    """Return ``name`` if it is a valid profile name, else raise CaptureError (one line)."""
+    if not isinstance(name, str) or not _NAME_RE.match(name):
+        raise CaptureError(
+            f"--profile {name!r}: not a valid profile name — use letters, digits, '_', '.', '-' "
+            "(up to 64, starting with a letter or digit)")
+    return name
+
+
+def profile_path(name: str) -> Path:
+    """Path of the TOML file of profile ``name``."""
+    return config_dir() / "profiles" / f"{check_profile_name(name)}.toml"
+
+
+def list_profiles() -> list[CalibrationProfile]:
+    """Every readable profile, sorted by name (an unreadable file raises CaptureError)."""
+    folder = config_dir() / "profiles"
+    if not folder.is_dir():
+        return []
+    return [load_profile(p.stem) for p in sorted(folder.glob("*.toml")) if _NAME_RE.match(p.stem)]
+
+
+def load_profile(name: str, *, missing_ok: bool = False) -> CalibrationProfile | None:
+    """Read profile ``name``.
+
+    Parameters
+    ----------
+    name : str
+        Profile name.
+    missing_ok : bool
+        Return None for a profile that does not exist instead of raising.
+
+    Raises
+    ------
+    CaptureError
+        The profile does not exist (unless ``missing_ok``), or its file is malformed.
+    """
+    path = profile_path(name)
+    if not path.is_file():
+        if missing_ok:
+            return None
+        known = ", ".join(p.stem for p in sorted((config_dir() / "profiles").glob("*.toml"))) or "none yet"
+        raise CaptureError(
+            f"--profile {name!r}: no such calibration profile (known: {known}) — "
+            "create it with 'benchfit calibrate gain|timebase|coupling --profile NAME'")
+    try:
+        with open(path, "rb") as fh:
+            data = tomllib.load(fh)
+    except tomllib.TOMLDecodeError as e:
+        raise CaptureError(f"{path}: not valid TOML ({e}) — fix or delete the profile file") from e
+    except OSError as e:
+        raise CaptureError(f"{path}: cannot be read ({e.strerror or e}) — check its permissions") from e
+    profile = CalibrationProfile.from_toml_dict(data, str(path))
+    if profile.name != name:
+        raise CaptureError(f"{path}: holds profile {profile.name!r}, not {name!r} — rename the file or fix 'name'")
+    return profile
+
+
+def save_profile(profile: CalibrationProfile) -> Path:
+    """Write a profile atomically (temporary file + rename) and return its path."""
+    import tomli_w
+
+    path = profile_path(profile.name)
+    text = tomli_w.dumps(profile.to_toml_dict())
+    tmp: str | None = None
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{profile.name}.", suffix=".toml.tmp", dir=path.parent)
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+        tmp = None
+    except OSError as e:
+        raise CaptureError(
+            f"{path}: profile cannot be written ({e.strerror or e}) — check that the folder is writable "
+            f"or set {ENV_CONFIG_DIR}") from e
+    finally:
+        if tmp is not None:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+    return path
+
+
+def utc_now_iso() -> str:
+    """The current time as ISO 8601 UTC with a ``Z`` (seconds resolution)."""
+    return datetime.now(timezone.utc).replace(microsecond=0).isoformat().replace("+00:00", "Z")

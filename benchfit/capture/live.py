@@ -1,0 +1,925 @@
+"""Live capture from a sound card: device list, streaming recorder, sliding windows for tuning.
+
+Three layers, from convenience to control:
+
+* :func:`record` — one call that streams an input device into a WAV file and writes its
+  sidecar. The PortAudio callback only copies each block into a queue; a writer thread
+  streams the blocks into the file with :mod:`soundfile`. Ctrl-C or an exception stops the
+  stream, drains the queue, closes the file (soundfile finishes the header on close) and
+  writes the sidecar, so every sample captured so far stays in a valid file.
+* :class:`LiveWindows` — an input stream that yields overlapping analysis windows
+  (the block source of ``benchfit tune``); :class:`Windower` is its pure core.
+* :func:`analyse_window` — the pure per-window reading shown while tuning a unit.
+
+:mod:`sounddevice` is imported on first use; a missing PortAudio library or a device that
+refuses the request becomes a :class:`~benchfit.errors.DeviceError` (exit code 3).
+
+Safety: a line input takes about 1–2 V peak. Feed it through a resistive divider and a
+DC-blocking capacitor, never connect mains or anything referenced to mains, mind ground
+loops, and remember that an inductor kicks when its current is interrupted. Local codes
+and qualified practice take precedence.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import math
+import os
+import queue
+import signal
+import tempfile
+import threading
+import time
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any, Literal, get_args
+
+import numpy as np
+
+from benchfit.capture.calibration import CLIP_FS, CalibrationProfile, load_profile
+from benchfit.capture.capture import InputCalibration
+from benchfit.errors import CaptureError, DeviceError, MeasureError
+
+__all__ = [
+    "SampleFormat",
+    "InputDevice",
+    "RecordStatus",
+    "RecordingResult",
+    "RecordingInterrupted",
+    "Window",
+    "Windower",
+    "LiveWindows",
+    "TuneReading",
+    "list_input_devices",
+    "resolve_input_device",
+    "check_input",
+    "record",
+    "iter_windows",
+    "analyse_window",
+    "direction_hint",
+    "to_dbfs",
+]
+
+SampleFormat = Literal["pcm24", "float"]
+_SUBTYPES: dict[str, str] = {"pcm24": "PCM_24", "float": "FLOAT"}
+
+#: dBFS shown for a block of digital silence
+_FLOOR_DBFS = -150.0
+#: no block for this long (s) after the stream started means the device is stuck
+_STALL_S = 5.0
+
+
+def to_dbfs(peak: float) -> float:
+    """Peak level in dBFS (20·log10 |x|), floored at −150 dBFS for silence."""
+    return 20.0 * math.log10(peak) if peak > 10.0 ** (_FLOOR_DBFS / 20.0) else _FLOOR_DBFS
+
+
+# --------------------------------------------------------------------------------------
+# PortAudio access
+# --------------------------------------------------------------------------------------
+@contextlib.contextmanager
+def _quiet_native_stderr():
+    """Send what C libraries (ALSA, PortAudio) print to file descriptor 2 to a scratch file.
+
+    Their diagnostics ("Expression … failed", "Unknown PCM …") are not errors of ours; the
+    PortAudio error code that follows is turned into one DeviceError line instead.
+    """
+    try:
+        fd = os.dup(2)
+    except OSError:  # no stderr at all
+        yield
+        return
+    with tempfile.TemporaryFile() as scratch:
+        try:
+            os.dup2(scratch.fileno(), 2)
+            yield
+        finally:
+            os.dup2(fd, 2)
+            os.close(fd)
+
+
+def _sounddevice():
+    """Import sounddevice, turning a missing PortAudio library into a DeviceError."""
+    try:
+        with _quiet_native_stderr():
+            import sounddevice as sd
+    except OSError as e:
+        raise DeviceError(
+            f"PortAudio: the audio library is not available ({e}) — install PortAudio "
+            "(Debian/Ubuntu: apt install libportaudio2) to record from a sound card") from e
+    return sd
+
+
+@dataclass(frozen=True)
+class InputDevice:
+    """An audio input device as PortAudio reports it.
+
+    Attributes
+    ----------
+    index : int
+        PortAudio device index.
+    name : str
+        Device name.
+    hostapi : str
+        Host API name (ALSA, PulseAudio, …).
+    input_channels : int
+        Maximum number of input channels.
+    default_rate_hz : float
+        Default sample rate (Hz).
+    is_default : bool
+        True for the default input device.
+    """
+
+    index: int
+    name: str
+    hostapi: str
+    input_channels: int
+    default_rate_hz: float
+    is_default: bool
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"index": self.index, "name": self.name, "hostapi": self.hostapi,
+                "input_channels": self.input_channels, "default_rate_hz": self.default_rate_hz,
+                "is_default": self.is_default}
+
+
+def list_input_devices() -> list[InputDevice]:
+    """Every device with at least one input channel, in PortAudio's order."""
+    sd = _sounddevice()
+    try:
+        with _quiet_native_stderr():
+            devices = sd.query_devices()
+            apis = sd.query_hostapis()
+            default_in = sd.default.device[0]
+    except sd.PortAudioError as e:
+        raise DeviceError(f"PortAudio: cannot list devices ({e}) — check the sound system is running") from e
+    if default_in is None or default_in < 0:
+        default_in = next((a["default_input_device"] for a in apis if a["default_input_device"] >= 0), -1)
+    out = []
+    for i, d in enumerate(devices):
+        if d["max_input_channels"] > 0:
+            out.append(InputDevice(index=i, name=d["name"], hostapi=apis[d["hostapi"]]["name"],
+                                   input_channels=int(d["max_input_channels"]),
+                                   default_rate_hz=float(d["default_samplerate"]),
+                                   is_default=(i == default_in)))
+    return out
+
+
+def resolve_input_device(device: str | int | None) -> InputDevice:
+    """Find an input device by index, by (part of) its name, or the default one.
+
+    Raises
+    ------
+    DeviceError
+        No input devices, no match, or an ambiguous name; the message lists the choices.
+    """
+    devices = list_input_devices()
+    if not devices:
+        raise DeviceError("--device: no audio input devices found — connect a sound card "
+                          "or start the sound server, then run 'benchfit devices'")
+    names = "; ".join(f"{d.index}: {d.name}" for d in devices)
+    if device is None or (isinstance(device, str) and not device.strip()):
+        for d in devices:
+            if d.is_default:
+                return d
+        return devices[0]
+    if isinstance(device, int) or (isinstance(device, str) and device.strip().isdigit()):
+        idx = int(device)
+        for d in devices:
+            if d.index == idx:
+                return d
+        raise DeviceError(f"--device {device!r}: no input device with that index — choose one of {names}")
+    key = device.strip().lower()
+    exact = [d for d in devices if d.name.lower() == key]
+    if len(exact) == 1:
+        return exact[0]
+    partial = [d for d in devices if key in d.name.lower()]
+    if len(partial) == 1:
+        return partial[0]
+    if not partial:
+        raise DeviceError(f"--device {device!r}: no input device of that name — choose one of {names}")
+    raise DeviceError(f"--device {device!r}: matches several devices ({'; '.join(d.name for d in partial)}) "
+                      "— give the index instead")
+
+
+def check_input(device: str | int | None, rate: float, channels: int) -> InputDevice:
+    """Resolve the device and ask PortAudio whether it accepts the rate and channel count.
+
+    Raises
+    ------
+    DeviceError
+        The device is missing or refuses the settings (exit code 3).
+    """
+    if not (isinstance(channels, int) and channels >= 1):
+        raise CaptureError(f"--channels: must be a whole number ≥ 1, got {channels!r}")
+    if not (math.isfinite(rate) and rate > 0):
+        raise CaptureError(f"--rate: must be a positive number of Hz, got {rate!r}")
+    dev = resolve_input_device(device)
+    if channels > dev.input_channels:
+        raise DeviceError(f"--channels {channels}: device {dev.name!r} has only {dev.input_channels} "
+                          "input channel(s) — ask for fewer")
+    sd = _sounddevice()
+    try:
+        with _quiet_native_stderr():
+            sd.check_input_settings(device=dev.index, channels=channels, samplerate=rate, dtype="float32")
+    except sd.PortAudioError as e:
+        raise DeviceError(f"--device {dev.name!r}: refuses {channels} channel(s) at {rate:g} Hz ({e}) — "
+                          f"try its default rate {dev.default_rate_hz:g} Hz or fewer channels") from e
+    return dev
+
+
+# --------------------------------------------------------------------------------------
+# recording
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class RecordStatus:
+    """Progress of a recording, passed to ``on_block`` about ten times a second.
+
+    Attributes
+    ----------
+    frames_done, frames_total : int
+        Sample frames written so far and asked for.
+    elapsed_s : float
+        Recorded time (frames_done / rate, s).
+    peak_dbfs : tuple of float
+        Per-channel peak level (dBFS) since the previous status.
+    new_clips : int
+        Samples at or above −0.1 dBFS since the previous status.
+    new_overflows : int
+        Input overflows PortAudio reported since the previous status.
+    clip_count, overflow_count : int
+        Totals since the start.
+    """
+
+    frames_done: int
+    frames_total: int
+    elapsed_s: float
+    peak_dbfs: tuple[float, ...]
+    new_clips: int
+    new_overflows: int
+    clip_count: int
+    overflow_count: int
+
+
+@dataclass(frozen=True)
+class RecordingResult:
+    """What :func:`record` wrote.
+
+    Attributes
+    ----------
+    path, sidecar_path : Path
+        The WAV file and its sidecar JSON.
+    frames : int
+        Sample frames in the file.
+    sample_rate : float
+        Nominal sample rate (Hz).
+    channel_names : tuple of str
+    device : str
+        Name of the input device.
+    start_utc : str
+        Start of the recording (ISO 8601, UTC).
+    overflow_count, clip_count : int
+        Input overflows reported by PortAudio, and samples at or above −0.1 dBFS.
+    peak_dbfs : tuple of float
+        Per-channel peak over the whole recording (dBFS).
+    interrupted : bool
+        True when Ctrl-C stopped the recording early.
+    calibration : InputCalibration
+        What the sidecar tells ``load`` to apply.
+    warnings : tuple of str
+    """
+
+    path: Path
+    sidecar_path: Path
+    frames: int
+    sample_rate: float
+    channel_names: tuple[str, ...]
+    device: str
+    start_utc: str
+    overflow_count: int
+    clip_count: int
+    peak_dbfs: tuple[float, ...]
+    interrupted: bool
+    calibration: InputCalibration
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def duration_s(self) -> float:
+        """Recorded length (s)."""
+        return self.frames / self.sample_rate
+
+
+class RecordingInterrupted(KeyboardInterrupt):
+    """Ctrl-C stopped :func:`record`; the file and sidecar were finished. ``result`` says what was saved."""
+
+    def __init__(self, result: RecordingResult) -> None:
+        super().__init__(f"recording interrupted after {result.duration_s:.2f} s")
+        self.result = result
+
+
+def _channel_names(names: list[str] | tuple[str, ...] | str | None, channels: int) -> tuple[str, ...]:
+    if names is None:
+        return tuple(f"ch{i + 1}" for i in range(channels))
+    if isinstance(names, str):
+        names = [n.strip() for n in names.split(",")]
+    names = tuple(str(n).strip() for n in names)
+    if len(names) != channels or any(not n for n in names):
+        raise CaptureError(f"--names {','.join(names)!r}: give {channels} non-empty name(s), comma-separated, "
+                           f"one per channel")
+    if len({n.lower() for n in names}) != len(names):
+        raise CaptureError(f"--names {','.join(names)!r}: channel names must be different")
+    return names
+
+
+def _utc_now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
+
+
+class _Stats:
+    """Counters shared by the writer thread and the caller (guarded by a lock)."""
+
+    def __init__(self, channels: int) -> None:
+        self.lock = threading.Lock()
+        self.frames = 0
+        self.peak_recent = np.zeros(channels)
+        self.peak_all = np.zeros(channels)
+        self.clips = 0
+        self.clips_reported = 0
+        self.overflows = 0
+        self.overflows_reported = 0
+        self.error: BaseException | None = None
+        self.last_block = time.monotonic()
+
+    def snapshot(self, total: int, rate: float) -> RecordStatus:
+        with self.lock:
+            peaks = tuple(to_dbfs(float(p)) for p in self.peak_recent)
+            self.peak_recent[:] = 0.0
+            st = RecordStatus(frames_done=self.frames, frames_total=total, elapsed_s=self.frames / rate,
+                              peak_dbfs=peaks, new_clips=self.clips - self.clips_reported,
+                              new_overflows=self.overflows - self.overflows_reported,
+                              clip_count=self.clips, overflow_count=self.overflows)
+            self.clips_reported = self.clips
+            self.overflows_reported = self.overflows
+        return st
+
+
+def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats) -> None:
+    """Writer thread: stream blocks from the queue into the open sound file until ``None``."""
+    failed = False
+    while True:
+        item = blocks.get()
+        if item is None:
+            return
+        block, overflow = item
+        if failed:
+            continue  # keep draining so the producer never blocks
+        try:
+            sf_file.write(block)
+        except Exception as e:  # disk full, file removed: report it, keep the queue moving
+            with stats.lock:
+                stats.error = e
+            failed = True
+            continue
+        mag = np.abs(block)
+        peaks = mag.max(axis=0) if block.shape[0] else np.zeros(block.shape[1])
+        clips = int(np.count_nonzero(mag >= CLIP_FS))
+        with stats.lock:
+            stats.frames += block.shape[0]
+            np.maximum(stats.peak_recent, peaks, out=stats.peak_recent)
+            np.maximum(stats.peak_all, peaks, out=stats.peak_all)
+            stats.clips += clips
+            stats.overflows += int(overflow)
+            stats.last_block = time.monotonic()
+
+
+@contextlib.contextmanager
+def _sigint_deferred():
+    """Hold off a second Ctrl-C while a file is being finished (main thread only)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    pending: list[int] = []
+    previous = signal.signal(signal.SIGINT, lambda signum, frame: pending.append(signum))
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
+def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, channels: int = 1,
+           device: str | int | None = None, names: list[str] | tuple[str, ...] | str | None = None,
+           profile: str | None = None, overwrite: bool = False,
+           on_block: Callable[[RecordStatus], None] | None = None,
+           sample_format: SampleFormat = "pcm24") -> RecordingResult:
+    """Record an input device into a WAV file and write its sidecar JSON.
+
+    Parameters
+    ----------
+    path : str or Path
+        Output WAV file; the sidecar goes next to it (same stem, ``.json``).
+    seconds : float
+        Length to record (s).
+    rate : int, default 48000
+        Sample rate (Hz).
+    channels : int, default 1
+        Number of input channels.
+    device : str or int, optional
+        Input device index or (part of) its name; default: the default input.
+    names : sequence of str or comma-separated str, optional
+        One name per channel (default ``ch1``, ``ch2``, …).
+    profile : str, optional
+        Calibration profile whose gain, timebase and coupling go into the sidecar.
+    overwrite : bool, default False
+        Replace an existing WAV or sidecar; otherwise either existing is an error.
+    on_block : callable, optional
+        Called from the calling thread about ten times a second with a :class:`RecordStatus`
+        (progress, peak level per channel, clip and overflow counts).
+    sample_format : {"pcm24", "float"}, default "pcm24"
+        WAV sample format: 24-bit integer or 32-bit float.
+
+    Returns
+    -------
+    RecordingResult
+
+    Raises
+    ------
+    RecordingInterrupted
+        Ctrl-C: the samples captured so far were saved; ``.result`` describes them.
+    DeviceError
+        PortAudio missing, device missing or refusing the settings, or a stalled stream.
+    CaptureError
+        Bad arguments, an existing file without ``overwrite``, or a failed write.
+    """
+    import soundfile as sf
+
+    from benchfit import __version__
+    from benchfit.capture.sidecar import sidecar_path, write_sidecar
+
+    if sample_format not in get_args(SampleFormat):
+        raise CaptureError(f"--sample-format {sample_format!r}: choose one of {', '.join(get_args(SampleFormat))}")
+    if not (isinstance(seconds, (int, float)) and math.isfinite(seconds) and seconds > 0):
+        raise CaptureError(f"--seconds: must be a positive number of seconds, got {seconds!r}")
+    out = Path(path)
+    if out.suffix.lower() != ".wav":
+        raise CaptureError(f"{out}: recordings are WAV files — give a name ending in .wav")
+    side = sidecar_path(out)
+    if not overwrite:
+        for p in (out, side):
+            if p.exists():
+                raise CaptureError(f"{p}: already exists — choose another name or pass --overwrite")
+    if not out.parent.is_dir():
+        raise CaptureError(f"{out.parent}: no such folder — create it first")
+    chan_names = _channel_names(names, channels)
+    prof: CalibrationProfile | None = load_profile(profile) if profile else None
+    dev = check_input(device, float(rate), channels)
+    sd = _sounddevice()
+
+    warnings: list[str] = []
+    calibration = prof.input_calibration(channels) if prof else InputCalibration()
+    if prof is not None and prof.gains and calibration.gain_v_per_fs is None:
+        missing = ", ".join(str(c) for c in prof.missing_gains(channels))
+        warnings.append(f"profile {prof.name!r} has no gain for channel(s) {missing} — samples stay in FS")
+
+    total = int(round(seconds * rate))
+    blocks: queue.Queue[Any] = queue.Queue()
+    stats = _Stats(channels)
+    seen = [0]
+
+    def callback(indata, frames, time_info, status):  # PortAudio thread: copy and queue only
+        left = total - seen[0]
+        take = min(frames, left)
+        if take > 0:
+            blocks.put((indata[:take].copy(), bool(status.input_overflow)))
+            seen[0] += take
+        if seen[0] >= total:
+            raise sd.CallbackStop
+
+    interrupted = False
+    start_utc = _utc_now()
+    try:
+        sf_file = sf.SoundFile(str(out), mode="w", samplerate=int(rate), channels=channels,
+                               subtype=_SUBTYPES[sample_format], format="WAV")
+    except (sf.LibsndfileError, RuntimeError, OSError) as e:
+        raise CaptureError(f"{out}: cannot be created ({e}) — check the folder is writable") from e
+    writer = threading.Thread(target=_writer, args=(sf_file, blocks, stats), name="benchfit-writer", daemon=True)
+    writer.start()
+    try:
+        with _quiet_native_stderr():
+            stream = sd.InputStream(device=dev.index, channels=channels, samplerate=rate,
+                                    dtype="float32", blocksize=max(256, int(rate) // 50),
+                                    latency="high", callback=callback)
+            stream.start()
+    except sd.PortAudioError as e:
+        blocks.put(None)
+        writer.join()
+        sf_file.close()
+        with contextlib.suppress(OSError):
+            out.unlink()  # nothing was recorded: leave no empty file behind
+        raise DeviceError(f"--device {dev.name!r}: cannot open the input stream ({e}) — "
+                          "check the device is free and supports the settings") from e
+    try:
+        start_utc = _utc_now()
+        with stats.lock:
+            stats.last_block = time.monotonic()
+        next_report = time.monotonic()
+        while True:
+            time.sleep(0.02)
+            with stats.lock:
+                done, err, last = stats.frames, stats.error, stats.last_block
+            if err is not None:
+                raise CaptureError(f"{out}: writing failed ({err}) — check free disk space") from err
+            now = time.monotonic()
+            if on_block is not None and (now >= next_report or done >= total):
+                on_block(stats.snapshot(total, rate))
+                next_report = now + 0.1
+            if done >= total:
+                break
+            if now - last > _STALL_S:
+                raise DeviceError(f"--device {dev.name!r}: no samples arrived for {_STALL_S:g} s — "
+                                  "check the device is connected and not used by another program")
+    except KeyboardInterrupt:
+        interrupted = True
+    finally:
+        # runs on success, Ctrl-C and errors alike: every captured sample ends up in a valid file
+        with _sigint_deferred():
+            with contextlib.suppress(Exception), _quiet_native_stderr():
+                stream.abort()
+                stream.close()
+            blocks.put(None)
+            writer.join()
+            sf_file.close()
+            with stats.lock:
+                frames, overflows, clips = stats.frames, stats.overflows, stats.clips
+                peak_all = tuple(to_dbfs(float(p)) for p in stats.peak_all)
+            if overflows:
+                warnings.append(f"PortAudio reported {overflows} input overflow(s): samples were lost")
+            if clips:
+                warnings.append(f"{clips} sample(s) at or above −0.1 dBFS: the input clipped")
+            sidecar = {
+                "benchfit_sidecar": 1,
+                "channels": [{"name": n} for n in chan_names],
+                "sample_rate_hz": int(rate),
+                "device": dev.name,
+                "start_utc": start_utc,
+                "overflow_count": overflows,
+                "clip_count": clips,
+                "calibration": calibration.to_dict(),
+                "benchfit_version": __version__,
+                "frames": frames,
+                "interrupted": interrupted,
+                "sample_format": sample_format,
+                "peak_dbfs": [round(p, 3) for p in peak_all],
+            }
+            side = write_sidecar(out, sidecar, overwrite=True)
+    result = RecordingResult(path=out, sidecar_path=side, frames=frames, sample_rate=float(rate),
+                             channel_names=chan_names, device=dev.name, start_utc=start_utc,
+                             overflow_count=overflows, clip_count=clips, peak_dbfs=peak_all,
+                             interrupted=interrupted, calibration=calibration, warnings=tuple(warnings))
+    if interrupted:
+        raise RecordingInterrupted(result)
+    return result
+
+
+# --------------------------------------------------------------------------------------
+# sliding windows
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class Window:
+    """One analysis window.
+
+    Attributes
+    ----------
+    start_frame : int
+        Index of the window's first sample since the stream started.
+    samples : ndarray, shape (channels, n)
+        Samples in FS (float64).
+    sample_rate : float
+        Nominal sample rate (Hz).
+    overflow_count : int
+        Input overflows reported since the stream started.
+    dropped : int
+        Windows skipped so far because analysis fell behind.
+    """
+
+    start_frame: int
+    samples: np.ndarray
+    sample_rate: float
+    overflow_count: int = 0
+    dropped: int = 0
+
+    @property
+    def end_s(self) -> float:
+        """Time of the end of the window since the stream started (s)."""
+        return (self.start_frame + self.samples.shape[1]) / self.sample_rate
+
+
+class Windower:
+    """Cut a stream of blocks into overlapping windows (pure; no I/O).
+
+    Windows are ``window`` samples long and start every ``hop`` samples: the k-th window
+    covers samples ``k·hop … k·hop + window − 1``.
+
+    Parameters
+    ----------
+    channels : int
+        Number of channels in each block.
+    window : int
+        Window length (samples).
+    hop : int
+        Step between window starts (samples), 1 ≤ hop.
+    """
+
+    def __init__(self, channels: int, window: int, hop: int) -> None:
+        if window < 2 or hop < 1:
+            raise ValueError(f"window ({window}) must be ≥ 2 samples and hop ({hop}) ≥ 1")
+        self.channels = channels
+        self.window = window
+        self.hop = hop
+        self._buf = np.zeros((channels, 0))
+        self._buf_start = 0  # absolute index of _buf[:, 0]
+        self._next_start = 0  # absolute start of the next window
+
+    def push(self, block: np.ndarray) -> list[tuple[int, np.ndarray]]:
+        """Add a block of shape (frames, channels); return the completed ``(start_frame, window)`` pairs."""
+        block = np.asarray(block, dtype=np.float64)
+        if block.ndim == 1:
+            block = block[:, np.newaxis]
+        if block.shape[1] != self.channels:
+            raise ValueError(f"block has {block.shape[1]} channels, expected {self.channels}")
+        self._buf = np.concatenate([self._buf, block.T], axis=1)
+        out = []
+        while self._buf_start + self._buf.shape[1] >= self._next_start + self.window:
+            a = self._next_start - self._buf_start
+            out.append((self._next_start, self._buf[:, a:a + self.window].copy()))
+            self._next_start += self.hop
+        drop = max(0, min(self._next_start - self._buf_start, self._buf.shape[1]))
+        if drop:
+            self._buf = self._buf[:, drop:]
+            self._buf_start += drop
+        return out
+
+
+def iter_windows(samples: np.ndarray, sample_rate: float, window_s: float,
+                 hop_s: float) -> Iterator[Window]:
+    """Overlapping windows over a recorded array of shape (channels, n), as ``tune`` sees them live."""
+    x = np.atleast_2d(np.asarray(samples, dtype=np.float64))
+    w = max(2, int(round(window_s * sample_rate)))
+    h = max(1, int(round(hop_s * sample_rate)))
+    for start in range(0, x.shape[1] - w + 1, h):
+        yield Window(start_frame=start, samples=x[:, start:start + w], sample_rate=sample_rate)
+
+
+class LiveWindows:
+    """An input stream that yields overlapping windows (the block source of ``benchfit tune``).
+
+    Use as a context manager and iterate::
+
+        with LiveWindows(rate=48000, channels=1, window_s=1.0, hop_s=0.25) as live:
+            for win in live:
+                ...
+
+    The PortAudio callback only queues copies of its blocks. Iteration hands out the most
+    recent complete window; when analysis falls behind, older windows are skipped (counted
+    in :attr:`Window.dropped`) so the readout stays current.
+
+    Parameters
+    ----------
+    rate : int
+        Sample rate (Hz).
+    channels : int
+        Input channels to open.
+    window_s, hop_s : float
+        Window length and step (s).
+    device : str or int, optional
+        Input device index or name.
+    """
+
+    def __init__(self, rate: int = 48000, channels: int = 1, window_s: float = 1.0, hop_s: float = 0.25,
+                 device: str | int | None = None) -> None:
+        if not (math.isfinite(window_s) and window_s > 0):
+            raise CaptureError(f"--window: must be a positive number of seconds, got {window_s!r}")
+        if not (math.isfinite(hop_s) and 0 < hop_s):
+            raise CaptureError(f"hop: must be a positive number of seconds, got {hop_s!r}")
+        self.rate = rate
+        self.channels = channels
+        self.device_info = check_input(device, float(rate), channels)
+        self._windower = Windower(channels, max(2, int(round(window_s * rate))), max(1, int(round(hop_s * rate))))
+        self._blocks: queue.Queue[Any] = queue.Queue()
+        self._stream = None
+        self.overflow_count = 0
+        self.dropped = 0
+
+    def __enter__(self) -> "LiveWindows":
+        sd = _sounddevice()
+        blocks = self._blocks
+
+        def callback(indata, frames, time_info, status):
+            blocks.put((indata.copy(), bool(status.input_overflow)))
+
+        try:
+            with _quiet_native_stderr():
+                self._stream = sd.InputStream(device=self.device_info.index, channels=self.channels,
+                                              samplerate=self.rate, dtype="float32",
+                                              blocksize=max(256, int(self.rate) // 50), latency="high",
+                                              callback=callback)
+                self._stream.start()
+        except sd.PortAudioError as e:
+            raise DeviceError(f"--device {self.device_info.name!r}: cannot open the input stream ({e}) — "
+                              "check the device is free and supports the settings") from e
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        if self._stream is not None:
+            with contextlib.suppress(Exception), _quiet_native_stderr():
+                self._stream.abort()
+                self._stream.close()
+            self._stream = None
+
+    def __iter__(self) -> Iterator[Window]:
+        last_block = time.monotonic()
+        while True:
+            try:
+                item = self._blocks.get(timeout=0.5)
+            except queue.Empty:
+                if time.monotonic() - last_block > _STALL_S:
+                    raise DeviceError(f"--device {self.device_info.name!r}: no samples arrived for "
+                                      f"{_STALL_S:g} s — check the device is connected and not in use") from None
+                continue
+            last_block = time.monotonic()
+            ready: list[tuple[int, np.ndarray]] = []
+            while True:
+                block, overflow = item
+                self.overflow_count += int(overflow)
+                ready.extend(self._windower.push(block))
+                try:
+                    item = self._blocks.get_nowait()
+                except queue.Empty:
+                    break
+            if not ready:
+                continue
+            self.dropped += len(ready) - 1
+            start, samples = ready[-1]
+            yield Window(start_frame=start, samples=samples, sample_rate=float(self.rate),
+                         overflow_count=self.overflow_count, dropped=self.dropped)
+
+
+# --------------------------------------------------------------------------------------
+# the tuning readout (pure)
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class TuneReading:
+    """One readout of ``benchfit tune``.
+
+    Attributes
+    ----------
+    frequency_hz, frequency_u_hz : float
+        Fundamental frequency and its standard uncertainty (Hz): fit uncertainty combined with
+        the timebase calibration's uncertainty.
+    target_hz : float
+        The frequency being tuned to (Hz).
+    deviation_hz : float
+        ``frequency_hz − target_hz`` (Hz).
+    deviation_ppm : float
+        Deviation relative to the target (ppm).
+    amplitude : float
+        Peak amplitude of the fundamental (``unit``).
+    rms : float
+        RMS of the whole window, DC removed (``unit``).
+    unit : str
+        "V" when a gain calibration applies, else "FS".
+    thd_pct : float or None
+        THD_F over harmonics 2…``n_harmonics`` below Nyquist (%).
+    duty_cycle_pct : float or None
+        High time / period (%), when the waveform has clean transitions.
+    peak_dbfs : float
+        Largest raw sample (dBFS).
+    clipped : bool
+        A raw sample reached −0.1 dBFS.
+    hint : str
+        Plain-words direction: how far off and which way to turn.
+    status : {"on-target", "within-tolerance", "off-target"}
+    """
+
+    frequency_hz: float
+    frequency_u_hz: float
+    target_hz: float
+    deviation_hz: float
+    deviation_ppm: float
+    amplitude: float
+    rms: float
+    unit: str
+    thd_pct: float | None
+    duty_cycle_pct: float | None
+    peak_dbfs: float
+    clipped: bool
+    hint: str
+    status: str
+    warnings: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"frequency_hz": self.frequency_hz, "frequency_u_hz": self.frequency_u_hz,
+                "target_hz": self.target_hz, "deviation_hz": self.deviation_hz,
+                "deviation_ppm": self.deviation_ppm, "amplitude": self.amplitude, "rms": self.rms,
+                "unit": self.unit, "thd_pct": self.thd_pct, "duty_cycle_pct": self.duty_cycle_pct,
+                "peak_dbfs": self.peak_dbfs, "clipped": self.clipped, "hint": self.hint,
+                "status": self.status, "warnings": list(self.warnings)}
+
+
+def direction_hint(deviation_hz: float, u_hz: float, tolerance_hz: float | None = None) -> tuple[str, str]:
+    """Plain-words advice for a 555-style astable, and a status word.
+
+    The astable's frequency is about 1.44/((RA + 2·RB)·C1) (NE555 datasheets), so a unit
+    running fast needs more RB (or RA) or C1, and a slow one less.
+
+    Returns
+    -------
+    (hint, status)
+        ``status`` is "on-target" when the deviation is within 2 standard uncertainties,
+        "within-tolerance" when inside ``tolerance_hz``, else "off-target".
+    """
+    size = abs(deviation_hz)
+    if size <= 2.0 * u_hz:
+        return (f"on target — the {deviation_hz:+.3f} Hz offset is within the measurement uncertainty", "on-target")
+    if deviation_hz > 0:
+        words = f"running {size:.3f} Hz fast — lower the frequency: increase RB or C1"
+    else:
+        words = f"running {size:.3f} Hz slow — raise the frequency: decrease RB or C1"
+    if tolerance_hz is not None and size <= tolerance_hz:
+        return (f"within ±{tolerance_hz:g} Hz; {words}", "within-tolerance")
+    return (words, "off-target")
+
+
+def _duty_cycle(x: np.ndarray, fs: float) -> float | None:
+    """Duty cycle (%) from the pulse module when it can tell; None for a sine or no edges."""
+    try:
+        from benchfit.measurement import pulse
+    except ImportError:
+        return None
+    fn = getattr(pulse, "duty_cycle", None)
+    if fn is None:
+        return None
+    try:
+        value = fn(x, fs)
+    except MeasureError:
+        return None
+    value = getattr(value, "duty_cycle_pct", value)
+    if value is None or not math.isfinite(float(value)):
+        return None
+    return float(value)
+
+
+def analyse_window(x: np.ndarray, sample_rate: float, target_hz: float, *,
+                   gain_v_per_fs: float | None = None, timebase_u_ppm: float = 0.0,
+                   n_harmonics: int = 10, tolerance_hz: float | None = None) -> TuneReading:
+    """The tuning readout of one window of one channel.
+
+    Parameters
+    ----------
+    x : ndarray
+        Raw samples of the channel (FS).
+    sample_rate : float
+        Sample rate (Hz), already corrected by the profile's timebase.
+    target_hz : float
+        The frequency being tuned to (Hz).
+    gain_v_per_fs : float, optional
+        Channel gain (V/FS); amplitudes are then in volts.
+    timebase_u_ppm : float
+        Standard uncertainty of the timebase correction (ppm), added in quadrature.
+    n_harmonics : int
+        Harmonics fitted (THD is over orders 2…n_harmonics).
+    tolerance_hz : float, optional
+        Allowed deviation (Hz) for the "within tolerance" status.
+
+    Raises
+    ------
+    MeasureError
+        No tone in the window (silence, DC only).
+    """
+    from benchfit.measurement.tone import fit_tone
+
+    x = np.asarray(x, dtype=np.float64)
+    peak = float(np.max(np.abs(x))) if x.size else 0.0
+    fit = fit_tone(x, sample_rate, n_harmonics=n_harmonics, min_hz=min(0.5 * target_hz, 1.0))
+    if fit is None or fit.frequency_u_hz is None or not fit.amplitudes[0] > 0:
+        raise MeasureError("input: no tone found in the window — check the connection and the level")
+    f = float(fit.frequency_hz)
+    u = math.hypot(float(fit.frequency_u_hz), f * timebase_u_ppm * 1e-6)
+    amps = fit.amplitudes
+    a1 = float(amps[0])
+    thd = 100.0 * math.sqrt(float(np.sum(amps[1:] ** 2))) / a1 if amps.size > 1 else None
+    g = gain_v_per_fs if gain_v_per_fs is not None else 1.0
+    dev = f - target_hz
+    hint, status = direction_hint(dev, u, tolerance_hz)
+    warnings = []
+    if not fit.converged:
+        warnings.append("frequency fit did not settle — the tone may be drifting or noisy")
+    clipped = peak >= CLIP_FS
+    if clipped:
+        warnings.append("input clipped (≥ −0.1 dBFS) — lower the level")
+    return TuneReading(frequency_hz=f, frequency_u_hz=u, target_hz=target_hz, deviation_hz=dev,
+                       deviation_ppm=dev / target_hz * 1e6, amplitude=a1 * g,
+                       rms=float(np.std(x)) * g, unit="V" if gain_v_per_fs is not None else "FS",
+                       thd_pct=thd, duty_cycle_pct=_duty_cycle(x, sample_rate), peak_dbfs=to_dbfs(peak),
+                       clipped=clipped, hint=hint, status=status, warnings=tuple(warnings))
