@@ -1,0 +1,436 @@
+"""Gather the results of one unit into the report model, and run one unit end to end.
+
+:func:`build_report` is pure: it takes already computed objects (Capture, Measurement,
+FitResult, Spec) and returns the report model — a JSON-ready dict that is written as the
+report's JSON twin and rendered to HTML. It does no maths beyond the decision-rule
+comparisons of :mod:`benchfit.report.spec` and U = k·u with k = 2 (JCGM 100:2008, 6.2.1).
+Every measured number in the model is copied from ``Measurement.to_dict()`` (the
+``benchfit measure --json`` object) and every fitted one from ``FitResult.to_dict()``.
+
+:func:`run_unit` is the per-unit job (load → measure → fit → assemble → write → log), a
+top-level function with plain arguments so an integrator can run units in a process pool.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import importlib
+import importlib.util
+import inspect
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Literal, Mapping, Sequence
+
+from benchfit.errors import FitError, SpecError
+from benchfit.report.spec import (FITTED_QUANTITIES, MEASURED_QUANTITIES, Decision, Limit, Spec,
+                                  decide, load_spec, overall_verdict, quantity_unit)
+
+__all__ = ["Role", "FitOptions", "UnitRun", "REPORT_FORMAT", "COVERAGE_K", "uncertainty_keys",
+           "build_report", "run_unit", "METHODS", "SAFETY_NOTES"]
+
+Role = Literal["as-found", "as-left"]
+
+#: version of the report JSON twin's layout
+REPORT_FORMAT = 1
+#: coverage factor of the expanded uncertainty U = k·u
+COVERAGE_K = 2.0
+
+#: methods and standards named in every report
+METHODS: tuple[str, ...] = (
+    "Frequency, amplitude and harmonics: sine fit generalised to K harmonics "
+    "(IEEE Std 1057 / IEEE Std 1241 sine-fit method), t = 0 at the first sample.",
+    "THD relative to the fundamental (THD_F) from the fitted harmonic amplitudes (IEEE Std 1241 "
+    "figures of merit); the number of harmonics is stated by the measurement.",
+    "Duty cycle, rise and fall time: state levels by histogram, 10 %/50 %/90 % reference levels "
+    "(IEEE Std 181).",
+    "Effective parts (L, C, Rs, ESR, load) by least-squares fit of a second-order L-C low-pass model.",
+    "Uncertainty: standard uncertainties from the methods, expanded with k = 2 "
+    "(JCGM 100:2008 (GUM), 6.2.1; about 95 % coverage for a normal distribution).",
+    "Conformity decision: ILAC-G8:09/2019 decision rules; the rule applied to each limit is "
+    "named in the results table.",
+)
+
+#: cautions printed in every report (defer to local codes and qualified practice)
+SAFETY_NOTES: tuple[str, ...] = (
+    "A computer's audio input tolerates about 1–2 V peak and shares its ground with the computer "
+    "and, through it, often with mains earth. Use an attenuator or isolation transformer and "
+    "check the level before connecting; never connect mains-derived circuits directly.",
+    "Chokes store energy: breaking the current through the 150 mH inductors produces an inductive "
+    "voltage spike. Switch the supply off and let the circuit settle before changing parts.",
+    "Use a current-limited bench supply at the stated voltage, and check electrolytic capacitor "
+    "polarity and voltage rating before power-up.",
+    "These notes are general cautions, not a safety assessment: follow local electrical codes "
+    "and the practice of a qualified person for anything connected to mains.",
+)
+
+_UNIT_SUFFIXES = ("_hz", "_pct", "_s", "_db", "_per_s")
+
+
+def uncertainty_keys(quantity: str) -> tuple[str, ...]:
+    """Names under which a measured quantity's standard uncertainty may be stored.
+
+    ``frequency_hz`` → ``frequency_u_hz``; ``thd_pct`` → ``thd_u_pct``; ``vrms`` → ``vrms_u``.
+    """
+    for suffix in _UNIT_SUFFIXES:
+        if quantity.endswith(suffix):
+            base = quantity[: -len(suffix)]
+            return (f"{base}_u{suffix}", f"{quantity}_u")
+    return (f"{quantity}_u",)
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """What to fit and how (passed on to ``benchfit.fit_lowpass`` / ``fit_ringdown``).
+
+    Attributes
+    ----------
+    model : str
+        ``"lc-lowpass"`` or ``"ringdown"``.
+    drive, response : str or None
+        Channel names (or 1-based numbers) of the drive and the filter output.
+    fix : mapping of str to float
+        Parameters held fixed, SI units (``{"Rload": 10e3}``).
+    """
+
+    model: str = "lc-lowpass"
+    drive: str | None = None
+    response: str | None = None
+    fix: Mapping[str, float] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class UnitRun:
+    """What :func:`run_unit` produced: the paths written, the verdict and the exit code."""
+
+    html_path: Path
+    json_path: Path
+    verdict: str
+    exit_code: int
+    run_id: int | None = None
+
+
+# --- picking values ----------------------------------------------------------------------
+
+def _channel_index(limit: Limit, channels: Sequence[Mapping[str, Any]]) -> int | None:
+    names = [str(c.get("name", "")).lower() for c in channels]
+    if isinstance(limit.channel, int):
+        return limit.channel if limit.channel < len(channels) else None
+    if isinstance(limit.channel, str):
+        return names.index(limit.channel.lower()) if limit.channel.lower() in names else None
+    if len(channels) == 1:
+        return 0
+    return names.index("output") if "output" in names else None
+
+
+def _measured_value(limit: Limit, measured: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
+    """First capture whose chosen channel has a value for ``limit`` (entries of the report model)."""
+    reasons = []
+    for entry in measured:
+        m = entry["measurement"]
+        idx = _channel_index(limit, m["channels"])
+        if idx is None:
+            names = ", ".join(c["name"] for c in m["channels"])
+            reasons.append(f"{m['file']}: no channel "
+                           f"{'named output' if limit.channel is None else repr(limit.channel)} "
+                           f"(has {names}) — set channel in the spec")
+            continue
+        ch = m["channels"][idx]
+        value = ch.get(limit.quantity)
+        if value is None:
+            reasons.append(f"{m['file']} {ch['name']}: {limit.quantity} not determined")
+            continue
+        if MEASURED_QUANTITIES[limit.quantity] == "<channel>" and ch["unit"] != limit.unit:
+            reasons.append(f"{m['file']} {ch['name']}: level is in {ch['unit']}, the limit in {limit.unit} "
+                           "— record with a calibration profile")
+            continue
+        u = None
+        extra = entry["channel_extra"][idx]
+        for key in uncertainty_keys(limit.quantity):
+            u = ch.get(key) if ch.get(key) is not None else extra.get(key)
+            if u is not None:
+                break
+        return {"value": value, "u": u, "file": m["file"], "channel": ch["name"],
+                "unit": quantity_unit(limit.quantity, ch["unit"]), "reason": ""}
+    return {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit,
+            "reason": "; ".join(reasons) or "no capture measured"}
+
+
+def _fitted_value(limit: Limit, fits: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
+    reasons = []
+    for entry in fits:
+        f = entry["fit"]
+        item = f["parameters"].get(limit.quantity) or f["derived"].get(limit.quantity)
+        if item is None or item.get("value") is None:
+            reasons.append(f"{f['file']}: {limit.quantity} not given by the {f['model']} fit")
+            continue
+        return {"value": item["value"], "u": item.get("stderr"), "file": f["file"], "channel": None,
+                "unit": limit.unit, "reason": ""}
+    return {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit,
+            "reason": "; ".join(reasons) or "no fit made — give fit options or check the fit errors"}
+
+
+def _judge(limit: Limit, picked: dict[str, Any], rule: str) -> dict[str, Any]:
+    u = picked["u"]
+    expanded = None if u is None else COVERAGE_K * float(u)
+    dec: Decision = decide(picked["value"], expanded, limit.lower, limit.upper, rule)  # type: ignore[arg-type]
+    note = dec.note if picked["value"] is not None else picked["reason"]
+    return {**picked, "expanded_u": expanded, "decision": dec.decision, "rule": dec.rule, "note": note}
+
+
+# --- the report model --------------------------------------------------------------------
+
+def _capture_entry(capture: Any, role: Role) -> dict[str, Any]:
+    meta = dict(capture.metadata)
+    return {
+        "role": role, "path": capture.source, "sha256": capture.sha256,
+        "device": meta.get("device"), "start_utc": meta.get("start_utc"),
+        "sidecar": meta.get("sidecar"),
+        "calibration": capture.calibration.to_dict(),
+        "sample_rate_hz": capture.sample_rate, "duration_s": capture.duration_s,
+        "channels": [{"name": n, "unit": u} for n, u in zip(capture.channel_names, capture.units)],
+        "overflow_count": meta.get("overflow_count"), "clip_count": meta.get("clip_count"),
+        "warnings": list(capture.warnings),
+    }
+
+
+def _measurement_entry(measurement: Any, role: Role) -> dict[str, Any]:
+    full = measurement.to_dict(full=True)
+    return {"role": role, "measurement": measurement.to_dict(),
+            "channel_extra": [c.get("extra", {}) for c in full["channels"]]}
+
+
+def _trim_entry(fits: Sequence[Any], spec: Spec) -> dict[str, Any] | None:
+    """Suggested capacitor trim from the design helper, when that helper is installed."""
+    if importlib.util.find_spec("benchfit.design.trim") is None:
+        return None
+    trim = importlib.import_module("benchfit.design.trim")
+    fn = getattr(trim, "suggest_capacitor_trim", None)
+    if not callable(fn) or len(inspect.signature(fn).parameters) < 2:
+        return None
+    lim = spec.limit_for("frequency_hz") or spec.limit_for("resonant_frequency_hz")
+    target = None if lim is None else lim.nominal
+    lowpass = [f for f in fits if f.model == "lc-lowpass" and "C" in f.parameters]
+    if target is None or not lowpass:
+        return None
+    advice = fn(lowpass[0], target)
+    if hasattr(advice, "to_dict"):
+        body = advice.to_dict()
+    elif isinstance(advice, Mapping):
+        body = dict(advice)
+    else:
+        body = {"advice": str(advice)}
+    return {"target_hz": target, "from_fit": lowpass[0].file, "advice": body}
+
+
+def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
+                 as_found: Sequence[tuple[Any, Any]] = (), fits_left: Sequence[Any] = (),
+                 fits_found: Sequence[Any] = (), fit_errors: Sequence[str] = (),
+                 operator: str | None = None, created_utc: str | None = None,
+                 notes: Sequence[str] = ()) -> dict[str, Any]:
+    """The report model of one unit (JSON-ready dict).
+
+    Parameters
+    ----------
+    unit : str
+        Serial of the unit under test.
+    spec : Spec
+        Limits, conditions and decision rule.
+    as_left, as_found : sequence of (Capture, Measurement)
+        Captures after and before adjustment, each with its measurement.
+    fits_left, fits_found : sequence of FitResult
+        Fits of the as-left / as-found captures.
+    fit_errors : sequence of str
+        One-line reasons for fits that could not be made.
+    operator : str, optional
+        Who measured.
+    created_utc : str, optional
+        ISO 8601 UTC time stamp; default now.
+    notes : sequence of str
+        Extra notes.
+    """
+    if not as_left:
+        raise SpecError(f"{unit}: no as-left capture — give at least one capture to report on")
+    from benchfit import __version__
+
+    created = created_utc or _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    left_meas = [_measurement_entry(m, "as-left") for _, m in as_left]
+    found_meas = [_measurement_entry(m, "as-found") for _, m in as_found]
+    left_fits = [{"role": "as-left", "fit": f.to_dict()} for f in fits_left]
+    found_fits = [{"role": "as-found", "fit": f.to_dict()} for f in fits_found]
+    rows = []
+    for lim in spec.limits:
+        if lim.quantity in FITTED_QUANTITIES:
+            left = _judge(lim, _fitted_value(lim, left_fits), spec.decision_rule)
+            found = _judge(lim, _fitted_value(lim, found_fits), spec.decision_rule) if as_found else None
+        else:
+            left = _judge(lim, _measured_value(lim, left_meas), spec.decision_rule)
+            found = _judge(lim, _measured_value(lim, found_meas), spec.decision_rule) if as_found else None
+        rows.append({"quantity": lim.quantity, "label": lim.label, "source": lim.source,
+                     "channel": left["channel"], "unit": left["unit"] or lim.unit,
+                     "nominal": lim.nominal, "lower": lim.lower, "upper": lim.upper,
+                     "as_left": left, "as_found": found, "decision": left["decision"]})
+    decisions = [Decision(r["decision"], r["as_left"]["value"], r["as_left"]["expanded_u"],
+                          r["as_left"]["rule"]) for r in rows]
+    verdict = overall_verdict(decisions)
+    found_verdict = None
+    if as_found:
+        found_verdict = overall_verdict([Decision(r["as_found"]["decision"], r["as_found"]["value"],
+                                                  r["as_found"]["expanded_u"], r["as_found"]["rule"])
+                                         for r in rows])
+    warnings = []
+    for entry in left_meas + found_meas:
+        for ch in entry["measurement"]["channels"]:
+            warnings += [f"{entry['measurement']['file']} {ch['name']}: {w}" for w in ch["warnings"]]
+    for entry in left_fits + found_fits:
+        warnings += [f"{entry['fit']['file']} fit: {w}" for w in entry["fit"]["warnings"]]
+    all_fits = list(fits_left)
+    return {
+        "benchfit_report": REPORT_FORMAT,
+        "unit": unit,
+        "created_utc": created,
+        "operator": operator,
+        "benchfit_version": __version__,
+        "spec": spec.to_dict(),
+        "verdict": verdict,
+        "as_found_verdict": found_verdict,
+        "exit_code": 1 if verdict == "fail" else 0,
+        "coverage_factor": COVERAGE_K,
+        "results": rows,
+        "captures": [_capture_entry(c, "as-found") for c, _ in as_found]
+                    + [_capture_entry(c, "as-left") for c, _ in as_left],
+        "measurements": found_meas + left_meas,
+        "fits": found_fits + left_fits,
+        "fit_errors": list(fit_errors),
+        "trim": _trim_entry(all_fits, spec),
+        "methods": list(METHODS),
+        "warnings": warnings,
+        "notes": ([spec.notes] if spec.notes else []) + list(notes),
+        "safety": list(SAFETY_NOTES),
+    }
+
+
+# --- one unit, end to end (I/O) ----------------------------------------------------------
+
+def _call_fit(capture: Any, options: FitOptions) -> Any:
+    """Call ``benchfit.fit_lowpass`` or ``benchfit.fit_ringdown`` with the options it accepts."""
+    import benchfit
+
+    if options.model == "ringdown":
+        fn = benchfit.fit_ringdown
+    elif options.model == "lc-lowpass":
+        fn = benchfit.fit_lowpass
+    else:
+        raise FitError(f"--model: {options.model!r} is unknown — use lc-lowpass or ringdown")
+    params = inspect.signature(fn).parameters
+    wanted = {"drive": options.drive, "response": options.response,
+              "fix": dict(options.fix) if options.fix else None}
+    kwargs = {}
+    for name, value in wanted.items():
+        if value is None:
+            continue
+        if name not in params:
+            raise FitError(f"--{name}: the {options.model} fit does not take this option — leave it out")
+        kwargs[name] = value
+    return fn(capture, **kwargs)
+
+
+def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: Sequence[Mapping[str, Any]]
+             ) -> list[dict[str, str]]:
+    """Inline SVG figures: waveform (with fitted model), harmonic spectrum, fit residuals."""
+    from benchfit.report import figures
+
+    out = []
+    for capture, measurement in as_left:
+        chosen = [r["as_left"]["channel"] for r in results
+                  if r["as_left"]["file"] == measurement.file and r["as_left"]["channel"]]
+        name = chosen[0] if chosen else measurement.channels[-1].name
+        idx = capture.channel_index(name)
+        model = None
+        for f in fits:
+            if f.file == measurement.file and f.curves.model.size == capture.n_samples:
+                model = f.curves.model
+                break
+        out.append({"title": f"Waveform — {capture.source or 'capture'}, channel {name}",
+                    "svg": str(figures.waveform_svg(capture, channel=idx, model=model, periods=4))})
+        out.append({"title": f"Harmonic spectrum — {capture.source or 'capture'}, channel {name}",
+                    "svg": str(figures.spectrum_svg(measurement.channels[idx]))})
+    for f in fits:
+        out.append({"title": f"Fit of the {f.model} model — {f.file}", "svg": str(figures.fit_svg(f))})
+    return out
+
+
+def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Spec,
+             as_found: Sequence[str | Path] = (), operator: str | None = None,
+             out_dir: str | Path = ".", fit: FitOptions | None = None,
+             log_path: str | Path | None = None, with_figures: bool = True) -> UnitRun:
+    """Measure (and fit) one unit's captures, write its HTML report and JSON twin, log the run.
+
+    Parameters
+    ----------
+    captures : sequence of path
+        As-left capture files (WAV/FLAC/CSV), read with :func:`benchfit.load`.
+    unit : str
+        Serial of the unit.
+    spec : path or Spec
+        The spec TOML file (or an already parsed spec).
+    as_found : sequence of path
+        Captures made before adjustment.
+    operator : str, optional
+        Who measured.
+    out_dir : path
+        Directory for ``<serial>_<UTC time>.html`` and ``.json`` (never overwritten).
+    fit : FitOptions, optional
+        Fit the captures with these options. Without it, captures are fitted with the
+        default ``lc-lowpass`` options only when the spec names a fitted quantity.
+    log_path : path, optional
+        Append the run to this measurement log (None: do not log).
+    with_figures : bool
+        Draw the inline SVG figures.
+
+    Returns
+    -------
+    UnitRun
+    """
+    import benchfit
+    from benchfit.errors import BenchfitError
+    from benchfit.report.html import render_html, write_report
+
+    sp = spec if isinstance(spec, Spec) else load_spec(spec)
+    if not unit or not unit.strip():
+        raise SpecError("--unit: the serial is empty — give the unit's serial, e.g. --unit HC-07")
+    left = [(c, benchfit.measure(c)) for c in (benchfit.load(p) for p in captures)]
+    found = [(c, benchfit.measure(c)) for c in (benchfit.load(p) for p in as_found)]
+    fit_opts = fit if fit is not None else (FitOptions() if sp.needs_fit else None)
+    fits_left, fits_found, fit_errors = [], [], []
+    if fit_opts is not None:
+        for group, target in ((left, fits_left), (found, fits_found)):
+            for capture, _ in group:
+                try:
+                    target.append(_call_fit(capture, fit_opts))
+                except BenchfitError as e:
+                    # a capture that cannot be fitted is reported (its fitted limits become
+                    # "not measured"); the other captures are still judged
+                    fit_errors.append(f"{capture.source}: {e}")
+    report = build_report(unit=unit, spec=sp, as_left=left, as_found=found, fits_left=fits_left,
+                          fits_found=fits_found, fit_errors=fit_errors, operator=operator)
+    figs = _figures(left, fits_left, report["results"]) if with_figures else []
+    html_text = render_html(report, figs)
+    html_path, json_path = write_report(report, html_text, out_dir)
+    run_id = None
+    if log_path is not None:
+        from benchfit.log.store import append_run
+
+        caps = [("as-found", c) for c, _ in found] + [("as-left", c) for c, _ in left]
+        meas = [("as-found", m) for _, m in found] + [("as-left", m) for _, m in left]
+        fits = [("as-found", f) for f in fits_found] + [("as-left", f) for f in fits_left]
+        decisions = [{"quantity": r["quantity"], "channel": r["channel"], "label": r["label"],
+                      "value": r["as_left"]["value"], "expanded_u": r["as_left"]["expanded_u"],
+                      "lower": r["lower"], "upper": r["upper"], "unit": r["unit"],
+                      "rule": r["as_left"]["rule"], "decision": r["decision"], "note": r["as_left"]["note"]}
+                     for r in report["results"]]
+        run_id = append_run(log_path, command="report", operator=operator, unit=unit, captures=caps,
+                            measurements=meas, fits=fits, decisions=decisions, verdict=report["verdict"],
+                            details={"spec": sp.path, "spec_name": sp.name, "html": str(html_path),
+                                     "json": str(json_path)})
+    return UnitRun(html_path=html_path, json_path=json_path, verdict=report["verdict"],
+                   exit_code=report["exit_code"], run_id=run_id)

@@ -1,0 +1,159 @@
+"""Render the report model to a self-contained HTML page and write it with its JSON twin.
+
+The page is rendered by Jinja2 with autoescaping on, from the packaged templates in
+``benchfit/report/templates`` (``report.html`` and its stylesheet ``report.css``, inlined).
+Every user-supplied string (serial, operator, file names, notes) is escaped by Jinja2; the
+only markup inserted as-is is the SVG text of benchfit's own figures, after its XML
+prolog, DOCTYPE and metadata block are removed. No external assets: no links, fonts or
+scripts are loaded.
+
+Numbers are formatted here for display only (SI prefix, value rounded to the decimal
+place of its uncertainty, JCGM 100:2008 7.2.6); the JSON twin keeps the full values.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+from pathlib import Path
+from typing import Any, Mapping, Sequence
+
+from benchfit.errors import BenchfitError
+
+__all__ = ["render_html", "write_report", "format_value", "format_limits", "clean_svg", "report_stem"]
+
+_PREFIXES = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
+_PREFIXABLE = {"V", "FS", "Hz", "s", "H", "F", "ohm", "1/s", "A"}
+_DISPLAY_UNIT = {"ohm": "Ω", "1/s": "s⁻¹"}
+
+
+def _unit_text(prefix: str, unit: str) -> str:
+    shown = _DISPLAY_UNIT.get(unit, unit)
+    if unit == "1/s" and prefix:
+        return f"{prefix}s⁻¹"
+    return f"{prefix}{shown}"
+
+
+def format_value(value: float | None, unit: str = "", ref: float | None = None, digits: int = 5) -> str:
+    """Display text of a value: SI prefix for SI units, rounded to the decimal place of ``ref``.
+
+    Parameters
+    ----------
+    value : float or None
+        Value in SI units; None gives "—".
+    unit : str
+        "Hz", "V", "%", "dB", "ohm", ... (empty for dimensionless).
+    ref : float, optional
+        Uncertainty whose second significant digit sets the last digit shown.
+    digits : int
+        Significant digits when no ``ref`` is given.
+    """
+    if value is None or not isinstance(value, (int, float)) or not math.isfinite(value):
+        return "—"
+    exp3 = 0
+    if unit in _PREFIXABLE and value != 0:
+        exp3 = min(max(3 * math.floor(math.log10(abs(value)) / 3), -15), 9)
+    scale = 10.0 ** exp3
+    v = value / scale
+    if ref is not None and math.isfinite(ref) and ref > 0:
+        decimals = max(0, 1 - int(math.floor(math.log10(ref / scale))))
+        text = f"{v:.{decimals}f}"
+    else:
+        text = f"{v:.{digits}g}"
+    u = _unit_text(_PREFIXES[exp3], unit)
+    sep = "" if unit == "%" else " "
+    return f"{text}{sep}{u}".strip() if u else text
+
+
+def format_u(u: float | None, unit: str = "") -> str:
+    """An uncertainty to two significant digits with its unit."""
+    if u is None or not isinstance(u, (int, float)) or not math.isfinite(u):
+        return "—"
+    return format_value(u, unit, digits=2)
+
+
+def format_limits(lower: float | None, upper: float | None, unit: str) -> str:
+    """"a … b unit", "≤ b unit" or "≥ a unit"."""
+    if lower is not None and upper is not None:
+        return f"{format_value(lower, unit)} … {format_value(upper, unit)}"
+    if upper is not None:
+        return f"≤ {format_value(upper, unit)}"
+    if lower is not None:
+        return f"≥ {format_value(lower, unit)}"
+    return "—"
+
+
+_PROLOG = re.compile(r"<\?xml[^>]*\?>\s*", re.S)
+_DOCTYPE = re.compile(r"<!DOCTYPE[^>]*>\s*", re.S)
+_METADATA = re.compile(r"<metadata>.*?</metadata>\s*", re.S)
+
+
+def clean_svg(svg: str) -> str:
+    """SVG text ready to inline in HTML: without XML prolog, DOCTYPE and metadata."""
+    out = _METADATA.sub("", _DOCTYPE.sub("", _PROLOG.sub("", svg)))
+    return out.strip()
+
+
+def _environment():
+    from jinja2 import Environment, PackageLoader, StrictUndefined, select_autoescape
+
+    env = Environment(loader=PackageLoader("benchfit.report", "templates"),
+                      autoescape=select_autoescape(["html", "htm", "xml"], default=True),
+                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True)
+    env.filters["value"] = format_value
+    env.filters["u"] = format_u
+    env.filters["limits"] = format_limits
+    env.filters["unit"] = lambda unit: _unit_text("", unit)
+    env.filters["slug"] = lambda text: re.sub(r"[^a-z]+", "-", str(text).lower()).strip("-")
+    return env
+
+
+def render_html(report: Mapping[str, Any], figures: Sequence[Mapping[str, str]] = ()) -> str:
+    """The report page (HTML text) for a report model from :func:`~benchfit.report.assemble.build_report`.
+
+    ``figures`` are ``{"title": str, "svg": str}`` items from :mod:`benchfit.report.figures`.
+    """
+    from markupsafe import Markup
+
+    env = _environment()
+    template = env.get_template("report.html")
+    figs = [{"title": f["title"], "svg": Markup(clean_svg(f["svg"]))} for f in figures]
+    return template.render(r=report, figures=figs)
+
+
+def report_stem(unit: str, created_utc: str) -> str:
+    """File stem ``<serial>_<YYYYmmddTHHMMSSZ>`` with characters unsafe in file names replaced."""
+    safe = re.sub(r"[^A-Za-z0-9._-]+", "_", unit).strip("._") or "unit"
+    stamp = re.sub(r"[^0-9TZ]", "", created_utc)
+    return f"{safe}_{stamp}"
+
+
+def write_report(report: Mapping[str, Any], html_text: str, out_dir: str | Path) -> tuple[Path, Path]:
+    """Write ``<stem>.html`` and ``<stem>.json`` in ``out_dir``; never overwrite (adds -2, -3, …)."""
+    out = Path(out_dir)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as e:
+        raise BenchfitError(f"{out}: cannot create the output directory ({e.strerror}) — check --out") from e
+    stem = report_stem(str(report["unit"]), str(report["created_utc"]))
+    json_text = json.dumps(report, indent=1, ensure_ascii=False, allow_nan=False)
+    for n in range(1, 1000):
+        name = stem if n == 1 else f"{stem}-{n}"
+        html_path, json_path = out / f"{name}.html", out / f"{name}.json"
+        if html_path.exists() or json_path.exists():
+            continue
+        try:
+            with html_path.open("x", encoding="utf-8") as f:
+                f.write(html_text)
+        except FileExistsError:
+            continue
+        except OSError as e:
+            raise BenchfitError(f"{html_path}: cannot write the report ({e.strerror}) — check --out") from e
+        try:
+            with json_path.open("x", encoding="utf-8") as f:
+                f.write(json_text + "\n")
+        except OSError as e:
+            raise BenchfitError(f"{json_path}: cannot write the JSON twin ({e}) — check --out") from e
+        return html_path, json_path
+    raise BenchfitError(f"{out}: 999 reports named {stem} already exist — choose another --out")
