@@ -1,1 +1,190 @@
-"""(commands registered here by their module owner)"""
+"""``benchfit log list|show|export|stats``: read the measurement log."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from benchfit.cli.app import log_app
+
+_LOG_HELP = "Measurement log file (default: $BENCHFIT_LOG or the user data directory's benchfit/log.sqlite)."
+
+
+def _log_path(option: Optional[str]) -> Path:
+    from benchfit.log.store import resolve_log_path
+
+    return resolve_log_path(option)
+
+
+def _check_since(since: Optional[str]) -> Optional[str]:
+    if since is None:
+        return None
+    import datetime as dt
+
+    from benchfit.cli.common import fail
+
+    try:
+        parsed = dt.datetime.fromisoformat(since.replace("Z", "+00:00"))
+    except ValueError:
+        fail(f"--since {since!r}: not a date — write it like 2026-12-01 or 2026-12-01T17:00:00Z")
+    if parsed.tzinfo is not None:
+        parsed = parsed.astimezone(dt.timezone.utc).replace(tzinfo=None)
+    return parsed.strftime("%Y-%m-%dT%H:%M:%S")
+
+
+@log_app.command("list", help="List logged runs.\n\nExample:\n\n  benchfit log list --unit HC-07 --since 2026-12-01")
+def list_command(
+    unit: Optional[str] = typer.Option(None, "--unit", help="Only runs of this unit serial."),
+    since: Optional[str] = typer.Option(None, "--since", help="Only runs at or after this UTC date/time."),
+    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+    as_json: bool = typer.Option(False, "--json", help="Print the runs as one JSON object."),
+) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.log.store import list_runs
+
+    runs = list_runs(_log_path(log), unit=unit, since=_check_since(since))
+    if as_json:
+        print_json({"runs": runs})
+        return
+    from rich.table import Table
+
+    table = Table(title=f"{len(runs)} run(s) in {_log_path(log)}", title_justify="left")
+    for col in ("run", "time (UTC)", "command", "unit", "operator", "verdict", "captures"):
+        table.add_column(col)
+    for r in runs:
+        table.add_row(str(r["id"]), r["time_utc"][:19], r["command"], r["unit"] or "—", r["operator"] or "—",
+                      r["verdict"] or "—", str(r["n_captures"]))
+    stdout.print(table)
+
+
+@log_app.command("show", help="Show everything logged about one run.\n\nExample:\n\n  benchfit log show 12")
+def show_command(
+    run: int = typer.Argument(..., help="Run id (see `benchfit log list`)."),
+    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+    as_json: bool = typer.Option(False, "--json", help="Print the run as one JSON object."),
+) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.log.store import get_run
+    from benchfit.report.html import format_limits, format_u, format_value
+
+    data = get_run(_log_path(log), run)
+    if as_json:
+        print_json(data)
+        return
+    from rich.table import Table
+
+    stdout.print(f"run {data['id']} · {data['command']} · {data['time_utc']} · unit {data['unit'] or '—'} · "
+                 f"operator {data['operator'] or '—'} · benchfit {data['benchfit_version']}"
+                 + (f" · verdict {data['verdict']}" if data["verdict"] else ""), markup=False)
+    for c in data["captures"]:
+        stdout.print(f"  capture {c['role'] or ''} {c['path']}  sha256 {c['sha256'] or '—'}", markup=False)
+    table = Table(title="results", title_justify="left")
+    for col in ("role", "source", "channel", "quantity", "value", "u (k=1)"):
+        table.add_column(col)
+    for r in data["results"]:
+        table.add_row(r["role"] or "—", r["source"], r["channel"] or "—", r["quantity"],
+                      format_value(r["value"], r["unit"], r["uncertainty"]), format_u(r["uncertainty"], r["unit"]))
+    stdout.print(table)
+    if data["decisions"]:
+        dt = Table(title="decisions", title_justify="left")
+        for col in ("quantity", "value", "U (k=2)", "limits", "rule", "decision"):
+            dt.add_column(col)
+        for d in data["decisions"]:
+            dt.add_row(d["label"] or d["quantity"], format_value(d["value"], d["unit"], d["expanded_u"]),
+                       format_u(d["expanded_u"], d["unit"]), format_limits(d["lower"], d["upper"], d["unit"]),
+                       d["rule"], d["decision"])
+        stdout.print(dt)
+
+
+@log_app.command("export", help="Export the logged results as CSV or JSON (one row per result).\n\n"
+                 "Example:\n\n  benchfit log export --format csv --out batch.csv")
+def export_command(
+    fmt: str = typer.Option("csv", "--format", help="csv or json."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Output file (default: print to stdout)."),
+    overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --out file."),
+    unit: Optional[str] = typer.Option(None, "--unit", help="Only results of this unit serial."),
+    since: Optional[str] = typer.Option(None, "--since", help="Only runs at or after this UTC date/time."),
+    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+) -> None:
+    import sys
+
+    from benchfit.cli.common import stderr
+    from benchfit.log.export import export_log
+
+    text = export_log(_log_path(log), fmt, out, overwrite=overwrite, unit=unit, since=_check_since(since))
+    if text is not None:
+        sys.stdout.write(text if text.endswith("\n") else text + "\n")
+    else:
+        stderr.print(f"wrote {out}", markup=False)
+
+
+@log_app.command("stats", help="Batch statistics of one quantity: n, mean, std, min, max, Cp and Cpk.\n\n"
+                 "One value per unit (its latest as-left result); runs without a serial count singly.\n\n"
+                 "Example:\n\n  benchfit log stats frequency_hz --spec sample_captures/hc_spec.toml --plot f.svg")
+def stats_command(
+    quantity: str = typer.Argument(..., help="Quantity name, e.g. frequency_hz, thd_pct, vrms, C."),
+    spec: Optional[Path] = typer.Option(None, "--spec", help="Spec TOML file giving the limits (for Cp, Cpk)."),
+    channel: Optional[str] = typer.Option(None, "--channel", help="Only results of this channel name."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Write a histogram with the limits (SVG)."),
+    overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --plot file."),
+    all_runs: bool = typer.Option(False, "--all-runs", help="Use every logged value, not one per unit."),
+    since: Optional[str] = typer.Option(None, "--since", help="Only runs at or after this UTC date/time."),
+    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+    as_json: bool = typer.Option(False, "--json", help="Print the statistics as one JSON object."),
+) -> None:
+    from benchfit.cli.common import fail, print_json, stderr, stdout
+    from benchfit.log.stats import capability, histogram_svg
+    from benchfit.log.store import results_rows
+    from benchfit.report.html import format_value
+
+    lower = upper = None
+    if spec is not None:
+        from benchfit.report.spec import load_spec
+
+        sp = load_spec(spec)
+        lim = sp.limit_for(quantity)
+        if lim is None:
+            fail(f"{spec}: no limit on {quantity!r} — the spec limits "
+                 f"{', '.join(x.quantity for x in sp.limits)}")
+        lower, upper = lim.lower, lim.upper
+        if channel is None and isinstance(lim.channel, str):
+            channel = lim.channel
+    if plot is not None and plot.exists() and not overwrite:
+        fail(f"{plot}: file exists — choose another --plot or add --overwrite")
+    rows = [r for r in results_rows(_log_path(log), quantity=quantity, since=_check_since(since))
+            if r["role"] in ("as-left", "") and r["value"] is not None
+            and (channel is None or (r["channel"] or "").lower() == channel.lower())]
+    if not all_runs:
+        latest: dict[object, dict] = {}
+        for i, r in enumerate(rows):
+            key = r["unit"] if r["unit"] else ("run", r["run_id"], i)
+            latest[key] = r
+        rows = list(latest.values())
+    units = {r["value_unit"] for r in rows}
+    if len(units) > 1:
+        fail(f"{quantity}: logged in several units ({', '.join(sorted(units))}) — choose one with --channel")
+    unit = units.pop() if units else ""
+    values = [r["value"] for r in rows]
+    cap = capability(values, lower, upper, quantity)
+    if plot is not None:
+        svg = histogram_svg(values, cap, quantity, unit)
+        try:
+            with plot.open("w" if overwrite else "x", encoding="utf-8") as f:
+                f.write(svg)
+        except OSError as e:
+            fail(f"{plot}: cannot write the plot ({e.strerror}) — check the path")
+        stderr.print(f"wrote {plot}", markup=False)
+    if as_json:
+        print_json({"quantity": quantity, "channel": channel, "unit": unit, **cap.to_dict()})
+        return
+    ratio = lambda v: "—" if v is None else f"{v:.3f}"  # noqa: E731
+    stdout.print(f"{quantity}{f' ({channel})' if channel else ''}: n = {cap.n}", markup=False)
+    stdout.print(f"  mean {format_value(cap.mean, unit)}   std {format_value(cap.std, unit, digits=3)}", markup=False)
+    stdout.print(f"  min {format_value(cap.min, unit)}   max {format_value(cap.max, unit)}", markup=False)
+    if spec is not None:
+        from benchfit.report.html import format_limits
+
+        stdout.print(f"  limits {format_limits(lower, upper, unit)}   Cp {ratio(cap.cp)}   Cpk {ratio(cap.cpk)}",
+                     markup=False)

@@ -19,7 +19,7 @@ import importlib.util
 import inspect
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal, Mapping, Sequence
+from typing import Any, Callable, Literal, Mapping, Sequence
 
 from benchfit.errors import FitError, SpecError
 from benchfit.report.spec import (FITTED_QUANTITIES, MEASURED_QUANTITIES, Decision, Limit, Spec,
@@ -362,7 +362,8 @@ def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: S
 def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Spec,
              as_found: Sequence[str | Path] = (), operator: str | None = None,
              out_dir: str | Path = ".", fit: FitOptions | None = None,
-             log_path: str | Path | None = None, with_figures: bool = True) -> UnitRun:
+             log_path: str | Path | None = None, with_figures: bool = True,
+             progress: Callable[[str], None] | None = None) -> UnitRun:
     """Measure (and fit) one unit's captures, write its HTML report and JSON twin, log the run.
 
     Parameters
@@ -386,6 +387,8 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
         Append the run to this measurement log (None: do not log).
     with_figures : bool
         Draw the inline SVG figures.
+    progress : callable, optional
+        Called with a short text before each step (the command line shows it on stderr).
 
     Returns
     -------
@@ -395,16 +398,22 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     from benchfit.errors import BenchfitError
     from benchfit.report.html import render_html, write_report
 
+    step = progress or (lambda text: None)
     sp = spec if isinstance(spec, Spec) else load_spec(spec)
     if not unit or not unit.strip():
         raise SpecError("--unit: the serial is empty — give the unit's serial, e.g. --unit HC-07")
-    left = [(c, benchfit.measure(c)) for c in (benchfit.load(p) for p in captures)]
-    found = [(c, benchfit.measure(c)) for c in (benchfit.load(p) for p in as_found)]
+    left, found = [], []
+    for paths, group in ((captures, left), (as_found, found)):
+        for p in paths:
+            step(f"measuring {p}")
+            capture = benchfit.load(p)
+            group.append((capture, benchfit.measure(capture)))
     fit_opts = fit if fit is not None else (FitOptions() if sp.needs_fit else None)
     fits_left, fits_found, fit_errors = [], [], []
     if fit_opts is not None:
         for group, target in ((left, fits_left), (found, fits_found)):
             for capture, _ in group:
+                step(f"fitting {capture.source}")
                 try:
                     target.append(_call_fit(capture, fit_opts))
                 except BenchfitError as e:
@@ -413,6 +422,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
                     fit_errors.append(f"{capture.source}: {e}")
     report = build_report(unit=unit, spec=sp, as_left=left, as_found=found, fits_left=fits_left,
                           fits_found=fits_found, fit_errors=fit_errors, operator=operator)
+    step("drawing figures and writing the report")
     figs = _figures(left, fits_left, report["results"]) if with_figures else []
     html_text = render_html(report, figs)
     html_path, json_path = write_report(report, html_text, out_dir)
