@@ -1,0 +1,507 @@
+"""Pulse and transition parameters of two-level waveforms (IEEE Std 181), with AC-coupling droop.
+
+Pure functions of ``(samples, sample_rate)``; results are frozen dataclasses.
+
+Method (IEEE Std 181-2003, state levels by histogram; reference-level instants by linear
+interpolation):
+
+1. **State levels.** Histogram all samples between the lowest and highest; split it at the
+   middle; the low and high state levels are the *modes* of the two halves, refined to the
+   median of the samples within ±2 % of the amplitude of each mode (so the bin width does
+   not quantise the level). The wave is called *two-level* when at least 75 % of the samples
+   lie within ±10 % of the amplitude of one of the two states and each state holds at least
+   1 % of them (a sine has about 41 % there, a triangle 20 %).
+2. **Transitions.** A Schmitt trigger at 30 % and 70 % of the amplitude finds the
+   transitions; the 50 % instant is the last crossing of the 50 % level before the wave enters
+   the new state, the 10 % and 90 % instants are the crossings of those levels nearest to it
+   on the same edge, all by linear interpolation between the bracketing samples.
+3. **Duty cycle** = high time (rising 50 % to falling 50 %) / period (rising 50 % to the next
+   rising 50 %), summed over *complete* periods only: a partial period at either end of the
+   record is not used. Its standard uncertainty is the spread of the per-period ratios over
+   √n.
+4. **Rise and fall time** = t₉₀ − t₁₀ of each edge, averaged. **Overshoot** = mean over rising
+   edges of the largest sample between that edge and the next, above the high state, in % of
+   the amplitude; **undershoot** the same below the low state after falling edges (post-
+   transition aberrations, clipped at 0).
+
+AC coupling (a sound-card input is a first-order high-pass with time constant τ) makes flat
+tops droop exponentially: during a flat input the recorded value decays as ``y' = −y/τ``.
+:func:`compensate_coupling` inverts the high-pass, ``x̂ = y + (1/τ)·∫y dt``, with the mean
+removed before integrating and the integral detrended, then the recorded mean added back
+(the "DC fix": the true DC is lost by the coupling). :func:`fit_coupling` estimates 1/τ by
+least squares as the value that makes every flat segment of the compensated wave flattest,
+which is linear in 1/τ and so has a closed form.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["StateLevels", "CouplingFit", "PulseResult", "state_levels", "fit_coupling",
+           "estimate_coupling_tau", "compensate_coupling", "pulse_parameters"]
+
+#: band around each state level (fraction of the amplitude) used for the two-level decision
+_STATE_BAND = 0.10
+#: minimum fraction of samples inside the state bands for a two-level wave
+_TWO_LEVEL_FRACTION = 0.75
+#: band used to refine each histogram mode to a median (fraction of the amplitude)
+_REFINE_BAND = 0.02
+#: Schmitt-trigger thresholds (fractions of the amplitude above the low state)
+_SCHMITT_LO, _SCHMITT_HI = 0.30, 0.70
+#: state levels are found on a regular subset of at most this many samples
+_LEVEL_SAMPLES = 1 << 17
+#: the droop fit uses a regular subset of at most about this many flat-top samples
+_COUPLING_SAMPLES = 1 << 16
+#: a droop estimate is used only when 1/τ exceeds this many standard uncertainties
+_DROOP_SIGNIFICANCE = 5.0
+
+
+@dataclass(frozen=True)
+class StateLevels:
+    """Low and high state levels (IEEE 181 histogram method), sample units.
+
+    Attributes
+    ----------
+    low, high : float
+        State levels s₁ and s₂.
+    fraction_in_states : float
+        Fraction of samples within ±10 % of the amplitude of either state.
+    fraction_low, fraction_high : float
+        Fraction of samples in each band.
+    noise_rms : float
+        Robust standard deviation of the samples in the state bands around their levels
+        (median absolute deviation × 1.4826).
+    """
+
+    low: float
+    high: float
+    fraction_in_states: float
+    fraction_low: float
+    fraction_high: float
+    noise_rms: float
+
+    @property
+    def amplitude(self) -> float:
+        """s₂ − s₁."""
+        return self.high - self.low
+
+    @property
+    def two_level(self) -> bool:
+        """True for a bimodal (pulse-like) wave, by the rule in the module docstring."""
+        return (self.amplitude > 0 and self.fraction_in_states >= _TWO_LEVEL_FRACTION
+                and self.fraction_low >= 0.01 and self.fraction_high >= 0.01)
+
+    def level(self, percent: float) -> float:
+        """Reference level y(x %) = s₁ + (x/100)(s₂ − s₁)."""
+        return self.low + percent / 100.0 * self.amplitude
+
+
+@dataclass(frozen=True)
+class CouplingFit:
+    """Estimated AC-coupling time constant from the droop of a two-level wave.
+
+    Attributes
+    ----------
+    tau_s : float
+        Time constant τ of the first-order high-pass (s).
+    tau_u_s : float
+        Its standard uncertainty (s), from the least-squares residual.
+    droop_pct : float
+        Droop over the mean flat-segment length, ``100·(1 − exp(−t_flat/τ))`` (%).
+    n_segments : int
+        Flat segments used.
+    """
+
+    tau_s: float
+    tau_u_s: float
+    droop_pct: float
+    n_segments: int
+
+
+@dataclass(frozen=True)
+class PulseResult:
+    """IEEE 181 parameters of a two-level wave. Times in seconds, levels in sample units.
+
+    ``None`` marks a value that could not be determined (the reason is in ``warnings``).
+    """
+
+    two_level: bool
+    state_low: float | None = None
+    state_high: float | None = None
+    duty_cycle_pct: float | None = None
+    duty_cycle_u_pct: float | None = None
+    rise_time_s: float | None = None
+    rise_time_u_s: float | None = None
+    fall_time_s: float | None = None
+    fall_time_u_s: float | None = None
+    overshoot_pct: float | None = None
+    undershoot_pct: float | None = None
+    period_s: float | None = None
+    n_periods: int = 0
+    n_rising: int = 0
+    n_falling: int = 0
+    noise_rms: float | None = None
+    coupling_tau_s: float | None = None
+    coupling_source: str | None = None
+    droop_pct: float | None = None
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+
+def state_levels(x: np.ndarray, n_bins: int | None = None) -> StateLevels:
+    """State levels by the histogram-mode method (IEEE Std 181).
+
+    Parameters
+    ----------
+    x : ndarray
+        Samples.
+    n_bins : int, optional
+        Histogram bins between the lowest and highest sample; default ``clip(√N, 32, 512)``.
+        Records longer than 131072 samples are analysed on a regular subset of that size.
+
+    Returns
+    -------
+    StateLevels
+    """
+    x = np.asarray(x, dtype=np.float64)
+    if x.size > _LEVEL_SAMPLES:  # a regular subset is plenty for levels and fractions
+        x = x[::int(math.ceil(x.size / _LEVEL_SAMPLES))]
+    vmin, vmax = float(x.min()), float(x.max())
+    if not vmax > vmin:
+        return StateLevels(vmin, vmax, 0.0, 0.0, 0.0, 0.0)
+    bins = int(n_bins or min(max(int(math.sqrt(x.size)), 32), 512))
+    width_bin = (vmax - vmin) / bins
+    ib = np.minimum(((x - vmin) / width_bin).astype(np.int64), bins - 1)
+    counts = np.bincount(ib, minlength=bins)
+    half = bins // 2
+    low = vmin + (int(np.argmax(counts[:half])) + 0.5) * width_bin
+    high = vmin + (half + int(np.argmax(counts[half:])) + 0.5) * width_bin
+    amp = high - low
+    if amp <= 0:
+        return StateLevels(low, high, 0.0, 0.0, 0.0, 0.0)
+    width = max(_REFINE_BAND * amp, 2.0 * width_bin)
+    near_low = x[np.abs(x - low) <= width]
+    near_high = x[np.abs(x - high) <= width]
+    if near_low.size:
+        low = float(np.median(near_low))
+    if near_high.size:
+        high = float(np.median(near_high))
+    amp = high - low
+    if amp <= 0:
+        return StateLevels(low, high, 0.0, 0.0, 0.0, 0.0)
+    band = _STATE_BAND * amp
+    d_low = x - low
+    d_high = x - high
+    in_low = np.abs(d_low) <= band
+    in_high = np.abs(d_high) <= band
+    dev = np.concatenate([d_low[in_low], d_high[in_high]])
+    noise = float(1.4826 * np.median(np.abs(dev))) if dev.size else 0.0
+    f_low = float(np.count_nonzero(in_low)) / x.size
+    f_high = float(np.count_nonzero(in_high)) / x.size
+    return StateLevels(low, high, f_low + f_high, f_low, f_high, noise)
+
+
+def _crossings(z: np.ndarray, level: float) -> np.ndarray:
+    """Indices k where the wave crosses ``level`` between samples k and k+1."""
+    above = z >= level
+    return np.flatnonzero(above[1:] != above[:-1])
+
+
+def _interp(z: np.ndarray, k: np.ndarray, level: float) -> np.ndarray:
+    """Fractional sample index of the crossing of ``level`` between k and k+1 (NaN for k < 0)."""
+    out = np.full(k.shape, np.nan)
+    ok = k >= 0
+    kk = k[ok]
+    z0, z1 = z[kk], z[kk + 1]
+    dz = z1 - z0
+    frac = np.where(dz != 0, (level - z0) / np.where(dz != 0, dz, 1.0), 0.5)
+    out[ok] = kk + frac
+    return out
+
+
+@dataclass(frozen=True)
+class _Edges:
+    t50: np.ndarray  # fractional sample index of each transition's 50 % instant
+    rising: np.ndarray  # bool per transition
+    t10: np.ndarray
+    t90: np.ndarray
+    k50: np.ndarray  # integer sample index before each 50 % instant
+
+
+def _find_edges(z: np.ndarray, s: StateLevels) -> _Edges:
+    """Transitions by a 30/70 % Schmitt trigger and their 10/50/90 % instants."""
+    empty = np.zeros(0)
+    lo_thr, hi_thr = s.level(100 * _SCHMITT_LO), s.level(100 * _SCHMITT_HI)
+    hi = z > hi_thr
+    definite = np.flatnonzero(hi | (z < lo_thr))
+    if definite.size < 2:
+        return _Edges(empty, np.zeros(0, bool), empty, empty, np.zeros(0, int))
+    state = hi[definite]
+    change = np.flatnonzero(state[1:] != state[:-1])
+    enter = definite[change + 1]  # first sample in the new state
+    leave = definite[change]  # last sample in the old state
+    rising = state[change + 1]
+    y50 = s.level(50)
+    c50 = _crossings(z, y50)
+    pos = np.searchsorted(c50, enter, side="left") - 1
+    k50 = np.where(pos >= 0, c50[np.maximum(pos, 0)], -1)
+    k50 = np.where(k50 >= leave, k50, -1)  # the crossing must lie inside this transition
+    keep = k50 >= 0
+    k50, rising = k50[keep], rising[keep]
+    t50 = _interp(z, k50, y50)
+    n = k50.size
+    prev_b = np.concatenate(([-1], k50[:-1]))  # previous transition's crossing sample
+    next_b = np.concatenate((k50[1:], [z.size]))
+    t10 = np.full(n, np.nan)
+    t90 = np.full(n, np.nan)
+    for level, arr, before_on_rise in ((s.level(10), t10, True), (s.level(90), t90, False)):
+        c = _crossings(z, level)
+        if c.size == 0:
+            continue
+        before = np.searchsorted(c, k50, side="right") - 1  # last crossing at or before k50
+        after = np.searchsorted(c, k50, side="left")  # first crossing at or after k50
+        kb = np.where(before >= 0, c[np.maximum(before, 0)], -1)
+        ka = np.where(after < c.size, c[np.minimum(after, c.size - 1)], -1)
+        kb = np.where(kb > prev_b, kb, -1)
+        ka = np.where((ka >= 0) & (ka < next_b), ka, -1)
+        use_before = rising if before_on_rise else ~rising
+        k = np.where(use_before, kb, ka)
+        arr[:] = _interp(z, k, level)
+    return _Edges(t50, rising, t10, t90, k50)
+
+
+def compensate_coupling(x: np.ndarray, sample_rate: float, tau_s: float,
+                        span: int | None = None) -> np.ndarray:
+    """Undo a first-order high-pass (AC coupling) of time constant ``tau_s``.
+
+    ``x̂[n] = (x[n] − m) + (1/τ)·(S[n] − trend) + m`` with ``S = cumsum(x − m)/fs`` and
+    ``m`` the mean over ``x[:span]`` (a whole number of periods when given). The linear trend
+    of S is removed because the true high-pass output has no DC, so any residual mean is an
+    offset of the recorder, not signal. The result keeps the recorded mean (the true DC
+    before the coupling cannot be known).
+
+    Parameters
+    ----------
+    x : ndarray
+        Recorded samples.
+    sample_rate : float
+        Sample rate (Hz).
+    tau_s : float
+        Coupling time constant (s), > 0.
+    span : int, optional
+        Samples over which to take the mean and the trend (default: all).
+
+    Returns
+    -------
+    ndarray
+        The compensated waveform, same shape and unit.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    n = x.size
+    span = n if span is None else max(2, min(int(span), n))
+    m = float(np.mean(x[:span]))
+    y = x - m
+    s = np.cumsum(y) / sample_rate
+    # least-squares line through S[:span] (closed form, indices centred for conditioning)
+    c = 0.5 * (span - 1)
+    k = np.arange(span, dtype=np.float64) - c
+    slope = float(k @ s[:span]) / float(k @ k)
+    intercept = float(np.mean(s[:span]))
+    s = s - (intercept + slope * (np.arange(n, dtype=np.float64) - c))
+    return y + s / tau_s + m
+
+
+def _whole_period_span(edges: _Edges, n: int) -> int:
+    """Samples up to the last rising 50 % crossing after the first (whole periods), or n."""
+    rise = edges.k50[edges.rising]
+    if rise.size >= 2:
+        return int(rise[-1] - rise[0])
+    return n
+
+
+def fit_coupling(x: np.ndarray, sample_rate: float) -> CouplingFit | None:
+    """Estimate an AC-coupling time constant from the droop of a two-level wave.
+
+    Finds the flat segments between transitions (trimmed by 10 % of their length, at least
+    3 samples, at each end to skip the edges), forms ``S = ∫(x − m) dt`` and solves
+    ``min_β Σ_segments Σ (x̃ + β·S̃)²`` where ~ removes each segment's mean: β = 1/τ.
+
+    Parameters
+    ----------
+    x : ndarray
+        Recorded samples of a square or pulse wave.
+    sample_rate : float
+        Sample rate (Hz).
+
+    Returns
+    -------
+    CouplingFit or None
+        None when the wave is not two-level enough to find flats, or the droop is not
+        significant (1/τ below 5 standard uncertainties, or negative).
+    """
+    x = np.asarray(x, dtype=np.float64)
+    s = state_levels(x)
+    if s.amplitude <= 0:
+        return None
+    return _fit_coupling(x, float(sample_rate), _find_edges(x, s))
+
+
+def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingFit | None:
+    if edges.k50.size < 3:
+        return None
+    start = edges.k50[:-1] + 1
+    stop = edges.k50[1:] + 1
+    trim = np.maximum(3, ((stop - start) * 0.10).astype(np.int64))
+    a, b = start + trim, stop - trim
+    ok = (b - a) >= 8
+    a, b = a[ok], b[ok]
+    if a.size < 2:
+        return None
+    span = _whole_period_span(edges, x.size)
+    first = int(edges.k50[edges.rising][0]) + 1 if np.any(edges.rising) else 0
+    m = float(np.mean(x[first:first + span])) if span < x.size else float(np.mean(x))
+    y = x - m
+    integral = np.cumsum(y) / sample_rate
+    # work on a regular subset of the flats' samples (enough for 1/τ; keeps long records fast)
+    step = max(1, int(math.ceil(float(np.sum(b - a)) / _COUPLING_SAMPLES)))
+    a_d = -(-a // step)  # first multiple of step at or after a
+    b_d = -(-b // step)
+    keep = (b_d - a_d) >= 3
+    if np.count_nonzero(keep) < 2:
+        return None
+    a_d, b_d = a_d[keep], b_d[keep]
+    lengths = b_d - a_d
+    # indices of every (subset) sample inside the trimmed flats, and the flat each belongs to
+    lab = np.repeat(np.arange(a_d.size), lengths)
+    offsets = np.arange(lab.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
+    idx = (a_d[lab] + offsets) * step
+    ys, ss = y[idx], integral[idx]
+    ym = np.bincount(lab, ys) / lengths
+    sm = np.bincount(lab, ss) / lengths
+    yt = ys - ym[lab]
+    st = ss - sm[lab]
+    sxx = float(st @ st)
+    if sxx <= 0:
+        return None
+    beta = -float(yt @ st) / sxx
+    resid = yt + beta * st
+    dof = max(ys.size - a_d.size - 1, 1)
+    u_beta = math.sqrt(float(resid @ resid) / dof / sxx)
+    if not beta > 0 or (u_beta > 0 and beta < _DROOP_SIGNIFICANCE * u_beta):
+        return None
+    tau = 1.0 / beta
+    t_flat = float(np.mean(stop - start)) / sample_rate
+    return CouplingFit(tau_s=tau, tau_u_s=u_beta / beta ** 2,
+                       droop_pct=100.0 * (1.0 - math.exp(-t_flat / tau)), n_segments=int(a.size))
+
+
+def estimate_coupling_tau(x: np.ndarray, sample_rate: float) -> float | None:
+    """AC-coupling time constant (s) from a recorded square wave, or None when none is seen.
+
+    A convenience over :func:`fit_coupling` for calibration: feed a recording of a clean,
+    DC-coupled square wave (tens of Hz, well below the card's corner is best) taken through
+    the input to be characterised.
+    """
+    fit = fit_coupling(x, sample_rate)
+    return None if fit is None else fit.tau_s
+
+
+def _mean_u(v: np.ndarray) -> tuple[float | None, float | None]:
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return None, None
+    u = float(np.std(v, ddof=1) / math.sqrt(v.size)) if v.size > 1 else None
+    return float(np.mean(v)), u
+
+
+def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | None = None,
+                     compensate: bool = True) -> PulseResult:
+    """IEEE 181 pulse parameters of a two-level wave, compensating AC-coupling droop.
+
+    Parameters
+    ----------
+    x : ndarray
+        Samples (V or FS).
+    sample_rate : float
+        Sample rate (Hz).
+    coupling_tau_s : float, optional
+        Known coupling time constant (s), e.g. from a sound-card calibration. When None and
+        ``compensate`` is True, the droop is estimated from the wave itself and compensated
+        when significant.
+    compensate : bool
+        Set False to analyse the samples as recorded.
+
+    Returns
+    -------
+    PulseResult
+        ``two_level`` False (all parameters None) when the wave is not bimodal.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    fs = float(sample_rate)
+    warnings: list[str] = []
+    raw = state_levels(x)
+    # a drooped square is smeared: test bimodality loosely before deciding to compensate
+    tau, source, droop = None, None, None
+    raw_edges = None
+    if compensate and coupling_tau_s is not None and coupling_tau_s > 0:
+        tau, source = float(coupling_tau_s), "calibration"
+    elif compensate and raw.amplitude > 0 and raw.fraction_in_states >= 0.5:
+        raw_edges = _find_edges(x, raw)
+        cf = _fit_coupling(x, fs, raw_edges)
+        if cf is not None:
+            tau, source, droop = cf.tau_s, "estimated", cf.droop_pct
+    z = x
+    if tau is not None:
+        if raw_edges is None and raw.amplitude > 0:
+            raw_edges = _find_edges(x, raw)
+        span = _whole_period_span(raw_edges, x.size) if raw_edges is not None else x.size
+        z = compensate_coupling(x, fs, tau, span)
+    s = state_levels(z) if tau is not None else raw
+    if not s.two_level:
+        return PulseResult(two_level=False, coupling_tau_s=tau, coupling_source=source,
+                           droop_pct=droop)
+    e = _find_edges(z, s)
+    amp = s.amplitude
+    rise_idx = np.flatnonzero(e.rising)
+    fall_idx = np.flatnonzero(~e.rising)
+    rise, rise_u = _mean_u((e.t90[rise_idx] - e.t10[rise_idx]) / fs)
+    fall, fall_u = _mean_u((e.t10[fall_idx] - e.t90[fall_idx]) / fs)
+    duty = duty_u = period = None
+    n_periods = 0
+    if rise_idx.size and rise_idx[0] + 2 < e.t50.size:
+        seq = e.t50[rise_idx[0]:]
+        r, f = seq[0::2], seq[1::2]
+        n_periods = min(r.size - 1, f.size)
+        if n_periods >= 1:
+            per = r[1:n_periods + 1] - r[:n_periods]
+            high = f[:n_periods] - r[:n_periods]
+            duty = 100.0 * float(np.sum(high) / np.sum(per))
+            if n_periods > 1:
+                duty_u = 100.0 * float(np.std(high / per, ddof=1) / math.sqrt(n_periods))
+            period = float(np.sum(per)) / n_periods / fs
+    if n_periods < 1:
+        warnings.append("no complete period between two rising edges — duty cycle not determined")
+    over = under = None
+    if e.k50.size >= 2:
+        bounds = e.k50 + 1
+        seg_max = np.maximum.reduceat(z, bounds)[:-1]
+        seg_min = np.minimum.reduceat(z, bounds)[:-1]
+        after_rise = e.rising[:-1]
+        if np.any(after_rise):
+            over = max(0.0, 100.0 * float(np.mean(seg_max[after_rise] - s.high)) / amp)
+        if np.any(~after_rise):
+            under = max(0.0, 100.0 * float(np.mean(s.low - seg_min[~after_rise])) / amp)
+    for name, value in (("rise", rise), ("fall", fall)):
+        if value is not None and value < 3.0 / fs:
+            warnings.append(f"{name} time {value * 1e6:.3g} µs is within 3 sample intervals — it shows "
+                            "the recorder's bandwidth, not the source; use a faster sample rate")
+    return PulseResult(
+        two_level=True, state_low=s.low, state_high=s.high, duty_cycle_pct=duty,
+        duty_cycle_u_pct=duty_u, rise_time_s=rise, rise_time_u_s=rise_u, fall_time_s=fall,
+        fall_time_u_s=fall_u, overshoot_pct=over, undershoot_pct=under, period_s=period,
+        n_periods=int(n_periods), n_rising=int(rise_idx.size), n_falling=int(fall_idx.size),
+        noise_rms=s.noise_rms, coupling_tau_s=tau, coupling_source=source, droop_pct=droop,
+        warnings=tuple(warnings),
+    )
