@@ -213,13 +213,13 @@ def _trim_entry(fits: Sequence[Any], spec: Spec) -> dict[str, Any] | None:
     if target is None or not lowpass:
         return None
     advice = fn(lowpass[0], target)
-    if hasattr(advice, "to_dict"):
-        body = advice.to_dict()
-    elif isinstance(advice, Mapping):
-        body = dict(advice)
-    else:
-        body = {"advice": str(advice)}
-    return {"target_hz": target, "from_fit": lowpass[0].file, "advice": body}
+    if advice is None:
+        return {"target_hz": target, "from_fit": lowpass[0].file, "advice": None,
+                "lines": ["no change suggested: the fitted resonance is already at the target "
+                          "within its uncertainty, or no capacitor trim applies"]}
+    body = advice.to_dict() if hasattr(advice, "to_dict") else {"advice": str(advice)}
+    lines = list(advice.summary_lines()) if hasattr(advice, "summary_lines") else [str(advice)]
+    return {"target_hz": target, "from_fit": lowpass[0].file, "advice": body, "lines": lines}
 
 
 def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
