@@ -1,0 +1,254 @@
+"""Fitting engine shared by the lc-lowpass methods, and the identifiability analysis.
+
+The free parts are fitted as natural logarithms (so they stay positive and the Jacobian
+is in relative units) with lmfit's Levenberg–Marquardt on a vector of *whitened*
+residuals (each residual divided by its standard uncertainty, or multiplied by the
+inverse Cholesky factor of its covariance), so χ² has its usual meaning.
+
+Identifiability. At the solution the whitened Jacobian J (residuals × log-parameters) is
+decomposed, J = U·S·Vᵀ. Along the right singular vector v_i the standard deviation of the
+log-parameters is σ_i = √χ²_red / s_i. A direction with σ_i > 1 (more than 100 % relative
+uncertainty, or numerically singular) is *undetermined*; a parameter with a noticeable
+component in such a direction is not determined by the data and is reported with
+``stderr=None`` and a warning naming what to measure. The classic case: with a light
+(high-impedance) load the response depends on L·C, Rs·C and Resr·C only, so the direction
+(+L, −C, +Rs, +Resr, +Rload) is free and one part must be fixed.
+
+Derived values (resonant frequency, Q, damped frequency, decay rate) get uncertainties by
+the delta method with the covariance of the determined directions; a derived value that
+changes along an undetermined direction is itself reported as not determined.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable, Mapping
+
+import numpy as np
+
+from benchfit.fit.circuits import PARAMETER_NAMES, LowpassParts, second_order
+from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitParameter
+
+__all__ = ["Identification", "identify", "fit_log_parameters", "numeric_jacobian",
+           "parameter_table", "derived_values", "correlations", "undetermined_warning", "DERIVED_NAMES"]
+
+DERIVED_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "q_factor", "damped_frequency_hz",
+                                  "decay_rate_per_s")
+
+#: a direction whose log-parameter standard deviation exceeds this is undetermined (100 %)
+_SIGMA_LIMIT = 1.0
+#: components of undetermined directions smaller than this are rounding, not dependence
+_COMPONENT_FLOOR = 1e-3
+
+
+@dataclass(frozen=True, eq=False)
+class Identification:
+    """What the data determine, from the whitened Jacobian at the solution.
+
+    Attributes
+    ----------
+    names : tuple of str
+        The free (fitted) parameters, in column order.
+    cov_log : ndarray
+        Covariance of the log-parameters restricted to the determined directions.
+    undetermined : tuple of str
+        Parameters with a noticeable component in an undetermined direction.
+    null_directions : list of ndarray
+        Unit vectors (in log-parameter space) of the undetermined directions.
+    chi2_red : float
+        Reduced χ² of the fit (the covariance is scaled by it).
+    """
+
+    names: tuple[str, ...]
+    cov_log: np.ndarray
+    undetermined: tuple[str, ...]
+    null_directions: list = field(default_factory=list)
+    chi2_red: float = 1.0
+
+
+def numeric_jacobian(fun: Callable[[np.ndarray], np.ndarray], x: np.ndarray,
+                     step: float = 1e-6) -> np.ndarray:
+    """Central-difference Jacobian of ``fun`` at ``x`` (columns = parameters)."""
+    x = np.asarray(x, dtype=float)
+    cols = []
+    for i in range(x.size):
+        dx = np.zeros_like(x)
+        dx[i] = step
+        cols.append((fun(x + dx) - fun(x - dx)) / (2 * step))
+    return np.stack(cols, axis=1) if cols else np.zeros((fun(x).size, 0))
+
+
+def identify(jac: np.ndarray, names: tuple[str, ...], chi2_red: float) -> Identification:
+    """Decide which log-parameters the data determine (see the module docstring)."""
+    n_par = len(names)
+    if n_par == 0:
+        return Identification((), np.zeros((0, 0)), (), [], chi2_red)
+    scale = math.sqrt(max(chi2_red, 1e-300))
+    _, s, vt = np.linalg.svd(jac, full_matrices=False)
+    smax = float(s[0]) if s.size else 0.0
+    cov = np.zeros((n_par, n_par))
+    null: list[np.ndarray] = []
+    for i in range(n_par):
+        si = float(s[i]) if i < s.size else 0.0
+        sigma = scale / si if si > 1e-12 * max(smax, 1e-300) else math.inf
+        if sigma > _SIGMA_LIMIT:
+            null.append(vt[i])
+        else:
+            cov += sigma ** 2 * np.outer(vt[i], vt[i])
+    bad = set()
+    for v in null:
+        for j, name in enumerate(names):
+            if abs(v[j]) > _COMPONENT_FLOOR:
+                bad.add(name)
+    und = tuple(n for n in names if n in bad)
+    return Identification(tuple(names), cov, und, null, chi2_red)
+
+
+def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
+                       start: Mapping[str, float], free: tuple[str, ...],
+                       fixed: Mapping[str, float],
+                       extra: Mapping[str, tuple[float, float, float]] | None = None,
+                       max_nfev: int = 4000):
+    """Least-squares fit of ``residual(values)`` over the log of the ``free`` parts (lmfit).
+
+    Parameters
+    ----------
+    residual : callable
+        Maps a dict of all values (parts in SI units, extras as given) to the whitened
+        residual vector.
+    start : mapping
+        Start values of the free parts (SI units, positive).
+    free, fixed
+        Names of parts to fit (as logarithms), and values held constant.
+    extra : mapping name → (start, min, max), optional
+        Further parameters fitted directly (not as logarithms), e.g. a duty cycle or a phase.
+
+    Returns
+    -------
+    (values, names, jac, chi2_red, success, message)
+        Fitted values (all, SI), the fitted names (parts then extras), the whitened Jacobian
+        (log-parts, raw extras) at the solution, reduced χ², lmfit's success flag and message.
+    """
+    import lmfit
+
+    extra = dict(extra or {})
+    names = tuple(free) + tuple(extra)
+
+    def values_from(z: np.ndarray) -> dict[str, float]:
+        out = dict(fixed)
+        out.update({n: float(math.exp(v)) for n, v in zip(free, z[:len(free)])})
+        out.update({n: float(v) for n, v in zip(extra, z[len(free):])})
+        return out
+
+    x0 = np.array([math.log(start[n]) for n in free] + [extra[n][0] for n in extra])
+    if names:
+        params = lmfit.Parameters()
+        for n in free:
+            v = math.log(start[n])
+            params.add(f"log_{n}", value=v, min=v - 25.0, max=v + 25.0)
+        for n, (v, lo, hi) in extra.items():
+            params.add(f"x_{n}", value=float(v), min=lo, max=hi)
+        keys = [f"log_{n}" for n in free] + [f"x_{n}" for n in extra]
+
+        def fcn(pars):
+            z = np.array([pars[k].value for k in keys])
+            r = residual(values_from(z))
+            return np.where(np.isfinite(r), r, 1e150)
+
+        out = lmfit.minimize(fcn, params, method="leastsq", max_nfev=max_nfev,
+                             xtol=1e-12, ftol=1e-12)
+        xs = np.array([out.params[k].value for k in keys])
+        success, message = bool(out.success), str(out.message)
+    else:
+        xs, success, message = x0, True, "no free parameters"
+    r = residual(values_from(xs))
+    dof = max(r.size - len(names), 1)
+    chi2_red = float(r @ r) / dof
+    jac = numeric_jacobian(lambda z: residual(values_from(z)), xs)
+    return values_from(xs), names, jac, chi2_red, success, message
+
+
+def parameter_table(values: Mapping[str, float], ident: Identification,
+                    fixed: Mapping[str, float]) -> dict[str, FitParameter]:
+    """FitParameter for every model part: fixed, fitted (with stderr), or not determined."""
+    out: dict[str, FitParameter] = {}
+    for name in PARAMETER_NAMES:
+        unit = PARAMETER_UNITS[name]
+        if name in fixed:
+            out[name] = FitParameter(float(fixed[name]), None, True, unit)
+            continue
+        v = float(values[name])
+        if name in ident.undetermined or name not in ident.names:
+            out[name] = FitParameter(v, None, False, unit)
+            continue
+        j = ident.names.index(name)
+        var = float(ident.cov_log[j, j])
+        out[name] = FitParameter(v, v * math.sqrt(var) if var >= 0 else None, False, unit)
+    return out
+
+
+def correlations(ident: Identification) -> dict[str, float]:
+    """Correlation coefficient of each pair of determined fitted parameters ("C,Rs": r)."""
+    out: dict[str, float] = {}
+    names = ident.names
+    d = np.sqrt(np.clip(np.diag(ident.cov_log), 0, None))
+    for i in range(len(names)):
+        for j in range(i + 1, len(names)):
+            if names[i] in ident.undetermined or names[j] in ident.undetermined:
+                continue
+            if names[i] not in PARAMETER_NAMES or names[j] not in PARAMETER_NAMES:
+                continue
+            if d[i] > 0 and d[j] > 0:
+                out[f"{names[i]},{names[j]}"] = float(ident.cov_log[i, j] / (d[i] * d[j]))
+    return out
+
+
+def derived_values(values: Mapping[str, float], ident: Identification) -> dict[str, DerivedValue]:
+    """Resonance figures with delta-method uncertainties (None when not determined)."""
+
+    def figures(z: np.ndarray) -> np.ndarray:
+        v = {n: values[n] for n in PARAMETER_NAMES}
+        v.update({n: float(math.exp(x)) for n, x in zip(ident.names, z) if n in PARAMETER_NAMES})
+        fig = second_order(LowpassParts(**v))
+        return np.array([fig[k] for k in DERIVED_NAMES])
+
+    # parts enter as logarithms, extras (duty, phase) as themselves; the latter do not move
+    # the resonance figures
+    x = np.array([math.log(values[n]) if n in PARAMETER_NAMES else float(values[n])
+                  for n in ident.names])
+    base = figures(x)
+    grad = numeric_jacobian(figures, x, step=1e-6) if x.size else np.zeros((base.size, 0))
+    out: dict[str, DerivedValue] = {}
+    for i, name in enumerate(DERIVED_NAMES):
+        val = float(base[i])
+        if not math.isfinite(val):
+            out[name] = DerivedValue(None, None)
+            continue
+        g = grad[i]
+        if not np.all(np.isfinite(g)):
+            out[name] = DerivedValue(val, None)
+            continue
+        # a derived value that moves (> 1 % per unit log change) along an undetermined
+        # direction is itself undetermined
+        moves = any(abs(float(g @ v)) > 1e-2 * abs(val) for v in ident.null_directions)
+        var = float(g @ ident.cov_log @ g) if g.size else 0.0
+        out[name] = DerivedValue(val, None if moves else math.sqrt(max(var, 0.0)))
+    return out
+
+
+def undetermined_warning(undetermined: tuple[str, ...], high_impedance: bool) -> list[str]:
+    """One-line warnings that say which part to measure and fix."""
+    und = [n for n in PARAMETER_NAMES if n in set(undetermined)]
+    msgs: list[str] = []
+    if "L" in und and "C" in und:
+        combos = "L·C, Rs·C and Resr·C" if high_impedance else "L·C and the resistances relative to √(L/C)"
+        rest = [n for n in und if n not in ("L", "C")]
+        tail = f" ({', '.join(rest)} also follow only once one part is known)" if rest else ""
+        msgs.append(f"L, C: L and C are not separately determined: the data fix {combos}{tail} — "
+                    "measure L (or C) and pass --fix L=… (or --fix C=…)")
+        return msgs
+    for name in und:
+        why = " (the load is too light to show in the response)" if name == "Rload" else ""
+        msgs.append(f"{name}: not determined by these data{why} — measure it and pass --fix {name}=…")
+    return msgs

@@ -1,0 +1,425 @@
+"""Back-solve the effective parts of an L-C low-pass: :func:`fit_lowpass`.
+
+Methods
+-------
+two-channel
+    Drive and output captured together. The drive's fundamental f is estimated precisely
+    (:func:`benchfit.measurement.tone.fit_tone`); both channels' complex phasors X_k, Y_k are
+    fitted by least squares at k·f for the orders where the drive stands clearly above the
+    noise (|X_k| > 10·u), H_k = Y_k/X_k is formed with its 2×2 (Re, Im) covariance
+    propagated from both phasor covariances, and the model H(jkω) is fitted on the
+    whitened complex residuals. ``time_domain=True`` then refines the parts by simulating
+    the output from the measured drive samples (exact discretisation,
+    :func:`benchfit.fit.circuits.simulate`) with the initial state and an output offset
+    solved linearly at each step — for drives far from periodic.
+one-channel
+    Only the output captured (see :mod:`benchfit.fit.onechannel`).
+
+The parts are fitted as logarithms (they stay positive); what the data cannot determine is
+found from the Jacobian (:mod:`benchfit.fit.identify`) and reported with ``stderr=None``
+and a warning naming the part to measure and fix.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from pathlib import Path
+from typing import Literal, Mapping, get_args
+
+import numpy as np
+
+from benchfit.errors import FitError
+from benchfit.fit.circuits import PARAMETER_NAMES, LowpassParts, simulate, transfer, free_response_basis
+from benchfit.fit.identify import (Identification, correlations, derived_values, fit_log_parameters,
+                                   identify, parameter_table, undetermined_warning)
+from benchfit.fit.result import PARAMETER_UNITS, FitCurves, FitParameter, FitQuality, FitResult
+
+__all__ = ["fit_lowpass", "MethodOption", "MODEL_NAME"]
+
+MethodOption = Literal["auto", "two-channel", "one-channel"]
+MODEL_NAME = "lc-lowpass"
+
+#: a harmonic is used when its amplitude exceeds this many standard uncertainties
+SIGNIFICANCE = 10.0
+#: highest harmonic order considered
+MAX_ORDER = 49
+
+_DRIVE_NAMES = re.compile(r"^(drive|in|input|source|src|v_?in|vin)\b", re.I)
+_RESPONSE_NAMES = re.compile(r"^(out|output|response|resp|v_?out|vout)\b", re.I)
+
+
+# --- input checks ----------------------------------------------------------------------
+
+def as_capture(capture):
+    """A Capture (a path is loaded with :func:`benchfit.capture.load.load`)."""
+    if isinstance(capture, (str, Path)):
+        from benchfit.capture.load import load
+
+        return load(capture)
+    return capture
+
+
+def source_name(cap) -> str:
+    return cap.source or "capture"
+
+
+def check_parts(fix: Mapping[str, float] | None, guess: Mapping[str, float] | None,
+                where: str) -> tuple[dict[str, float], dict[str, float]]:
+    """Validate ``fix`` and ``guess``: known names, finite, positive (Resr may be fixed at 0)."""
+    out = []
+    for option, parts in (("--fix", fix), ("--guess", guess)):
+        clean: dict[str, float] = {}
+        for name, value in (parts or {}).items():
+            if name not in PARAMETER_NAMES:
+                raise FitError(f"{option} {name}: unknown part {name!r} — use one of "
+                               f"{', '.join(PARAMETER_NAMES)}")
+            v = float(value)
+            zero_ok = name == "Resr" and option == "--fix"
+            if not math.isfinite(v) or v < 0 or (v == 0 and not zero_ok):
+                need = "zero or positive" if zero_ok else "positive"
+                raise FitError(f"{option} {name}={value!r}: {name} must be a finite, {need} value "
+                               f"in {PARAMETER_UNITS[name]} — correct the value")
+            clean[name] = v
+        out.append(clean)
+    return out[0], out[1]
+
+
+def pick_channels(cap, drive: str | int | None, response: str | int | None) -> tuple[int, int]:
+    """Drive and response channel indices: given, else by name, else the first and second."""
+    from benchfit.errors import CaptureError
+
+    try:
+        di = cap.channel_index(drive) if drive is not None else None
+        ri = cap.channel_index(response) if response is not None else None
+    except CaptureError as e:
+        raise FitError(str(e)) from e
+    names = cap.channel_names
+    if di is None:
+        hits = [i for i, n in enumerate(names) if _DRIVE_NAMES.match(n) and i != ri]
+        di = hits[0] if hits else next(i for i in range(cap.n_channels) if i != ri)
+    if ri is None:
+        hits = [i for i, n in enumerate(names) if _RESPONSE_NAMES.match(n) and i != di]
+        ri = hits[0] if hits else next(i for i in range(cap.n_channels) if i != di)
+    if di == ri:
+        raise FitError(f"{source_name(cap)}: drive and response are the same channel "
+                       f"({names[di]!r}) — pass different --drive and --response channels")
+    return di, ri
+
+
+def check_not_silent(x: np.ndarray, cap, index: int, role: str) -> None:
+    """Reject a channel that is flat (all samples equal, or only rounding noise)."""
+    span = float(np.max(x) - np.min(x))
+    level = max(float(np.max(np.abs(x))), 1e-30)
+    if span <= 1e-9 * level or span == 0.0 or float(np.std(x)) < 1e-12:
+        raise FitError(f"{source_name(cap)}: {role} channel {cap.channel_names[index]!r} is silent "
+                       f"(no signal) — check the wiring, or choose another channel with --{role}")
+
+
+# --- shared fitting steps ----------------------------------------------------------------
+
+def start_parts(w0: float, q: float, dc_gain: float | None, fix: Mapping[str, float],
+                guess: Mapping[str, float]) -> dict[str, float]:
+    """Start values of all parts from a resonance estimate (ω0 in rad/s, Q) and given parts."""
+    known = {**guess, **fix}
+    w0 = w0 if math.isfinite(w0) and w0 > 0 else 1.0
+    q = min(max(q if math.isfinite(q) and q > 0 else 1.0, 0.05), 500.0)
+    if "L" in known:
+        L = known["L"]
+        C = known.get("C", 1.0 / (w0 * w0 * L))
+    elif "C" in known:
+        C = known["C"]
+        L = 1.0 / (w0 * w0 * C)
+    else:  # no scale known: take a characteristic impedance of 100 ohm
+        L, C = 100.0 / w0, 1.0 / (100.0 * w0)
+    z0 = math.sqrt(L / C)
+    r_total = z0 / q
+    rs = known.get("Rs", max(0.9 * r_total, 1e-6 * z0))
+    resr = known.get("Resr", max(0.1 * r_total, 1e-4 * z0))
+    if resr == 0.0:
+        resr = 1e-4 * z0  # only a start value; a fixed 0 is applied by the caller
+    if "Rload" in known:
+        rl = known["Rload"]
+    elif dc_gain is not None and 0.05 < dc_gain < 0.97:
+        rl = rs * dc_gain / (1.0 - dc_gain)
+    else:
+        rl = 300.0 * z0
+    out = {"L": L, "C": C, "Rs": rs, "Resr": resr, "Rload": rl}
+    out.update(fix)
+    return out
+
+
+def solve(residual, start: dict[str, float], fix: Mapping[str, float],
+          extra: Mapping[str, tuple[float, float, float]] | None = None):
+    """Fit the free parts (and extras); fold an undetermined ESR into Rs and refit.
+
+    Returns (values, ident, folded, warnings, success, message).
+    """
+    fixed = dict(fix)
+    folded: list[str] = []
+    warnings: list[str] = []
+    start = dict(start)
+    while True:
+        free = tuple(n for n in PARAMETER_NAMES if n not in fixed)
+        values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, fixed, extra)
+        ident = identify(jac, names, chi2)
+        only_scale = {"L", "C"} <= set(ident.undetermined)
+        if "Resr" in ident.undetermined and "Resr" not in fixed and not only_scale:
+            fixed["Resr"] = 0.0
+            folded.append("Resr")
+            start = dict(values)
+            start["Rs"] = values["Rs"] + values["Resr"]
+            if extra:
+                extra = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
+            warnings.append("Resr: the capacitor's ESR is not separated from Rs by these data, so it "
+                            "was set to 0 and Rs holds Rs + ESR — measure the ESR and pass --fix Resr=… "
+                            "to split them")
+            continue
+        return values, ident, fixed, folded, warnings, ok, msg
+
+
+def assemble(cap, method: str, values: dict[str, float], ident: Identification,
+             user_fix: Mapping[str, float], folded: list[str], warnings: list[str],
+             curves: FitCurves, quality: FitQuality, success: bool, message: str) -> FitResult:
+    """Build the FitResult: parameter table, derived values, correlations and warnings."""
+    params = parameter_table(values, ident, {**user_fix, **{n: 0.0 for n in folded}})
+    for n in folded:
+        params[n] = FitParameter(0.0, None, False, PARAMETER_UNITS[n])
+    z0 = math.sqrt(values["L"] / values["C"])
+    high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
+    warn = list(warnings) + undetermined_warning(ident.undetermined, high_z)
+    if not success:
+        warn.append(f"fit: the optimiser did not report convergence ({message}) — check the "
+                    "capture and try --guess with approximate part values")
+    return FitResult(file=source_name(cap), model=MODEL_NAME, method=method, parameters=params,
+                     derived=derived_values(values, ident), correlations=correlations(ident),
+                     quality=quality, warnings=tuple(warn), curves=curves, success=success,
+                     message=message)
+
+
+def quality_complex(measured: np.ndarray, model: np.ndarray) -> FitQuality:
+    """NRMSE (rms(data − model)/rms(data)) and R² of complex points (2 real numbers each)."""
+    d = measured - model
+    ss_res = float(np.sum(np.abs(d) ** 2))
+    ss_tot = float(np.sum(np.abs(measured - measured.mean()) ** 2))
+    rms = float(np.sqrt(np.mean(np.abs(measured) ** 2)))
+    nrmse = math.sqrt(ss_res / measured.size) / rms if rms > 0 else math.nan
+    r2 = 1.0 - ss_res / ss_tot if ss_tot > 0 else math.nan
+    return FitQuality(nrmse, r2, int(2 * measured.size))
+
+
+def quality_real(data: np.ndarray, model: np.ndarray) -> FitQuality:
+    d = data - model
+    ss_res = float(d @ d)
+    ss_tot = float(np.sum((data - data.mean()) ** 2))
+    rms = float(np.sqrt(np.mean(data ** 2)))
+    return FitQuality(math.sqrt(ss_res / data.size) / rms if rms > 0 else math.nan,
+                      1.0 - ss_res / ss_tot if ss_tot > 0 else math.nan, int(data.size))
+
+
+def whitening(cov: np.ndarray) -> np.ndarray:
+    """Per-point 2×2 matrices W with W·cov·Wᵀ = I (inverse Cholesky factors), shape (K, 2, 2)."""
+    out = np.empty_like(cov)
+    for i, c in enumerate(cov):
+        c = 0.5 * (c + c.T)
+        tr = max(float(np.trace(c)), 1e-300)
+        try:
+            chol = np.linalg.cholesky(c + 1e-12 * tr * np.eye(2))
+        except np.linalg.LinAlgError:
+            chol = np.eye(2) * math.sqrt(tr / 2)
+        out[i] = np.linalg.inv(chol)
+    return out
+
+
+def whiten(w: np.ndarray, z: np.ndarray) -> np.ndarray:
+    """Whitened (Re, Im) residual vector of complex points z with matrices w."""
+    return np.einsum("kij,kj->ki", w, np.stack([z.real, z.imag], axis=1)).ravel()
+
+
+def complex_mult_cov(factor: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    """Covariance of (Re, Im) of factor·z given that of z (factor complex, per point)."""
+    m = np.empty((factor.size, 2, 2))
+    m[:, 0, 0] = factor.real
+    m[:, 0, 1] = -factor.imag
+    m[:, 1, 0] = factor.imag
+    m[:, 1, 1] = factor.real
+    return np.einsum("kij,kjl,kml->kim", m, cov, m)
+
+
+def levy_start(f_hz: np.ndarray, h: np.ndarray, u: np.ndarray) -> tuple[float, float, float | None]:
+    """ω0 (rad/s), Q and DC gain of a two-pole fit H ≈ b0/(1 + a1·s + a2·s²), linear (Levy)."""
+    s = 2j * math.pi * f_hz
+    w = 1.0 / np.maximum(u, 1e-300)
+    # H·a1·s + H·a2·s² − b0 = −H
+    a = np.stack([h * s, h * s * s, -np.ones_like(h)], axis=1) * w[:, None]
+    rhs = -h * w
+    aa = np.concatenate([a.real, a.imag])
+    bb = np.concatenate([rhs.real, rhs.imag])
+    try:
+        (a1, a2, b0), *_ = np.linalg.lstsq(aa, bb, rcond=None)
+    except np.linalg.LinAlgError:
+        return math.nan, math.nan, None
+    if a2 <= 0 or a1 <= 0:
+        return math.nan, math.nan, (float(b0) if b0 > 0 else None)
+    w0 = 1.0 / math.sqrt(a2)
+    return w0, w0 * a2 / a1, float(b0)
+
+
+# --- the public entry point --------------------------------------------------------------
+
+def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | None = None,
+                response: str | int | None = None, fix: Mapping[str, float] | None = None,
+                guess: Mapping[str, float] | None = None, drive_duty: float | None = None,
+                time_domain: bool = False) -> FitResult:
+    """Back-solve effective L, C, Rs, Resr and Rload of the lc-lowpass model.
+
+    Parameters
+    ----------
+    capture : Capture or path
+        The waveform(s); a path is loaded with :func:`benchfit.load`.
+    method : {"auto", "two-channel", "one-channel"}
+        "auto" uses two-channel when the capture has two or more channels.
+    drive, response : str or int, optional
+        Channel names or 0-based indices; default by name (drive/in/source,
+        out/output/response), else the first and second channel.
+    fix : mapping, optional
+        Parts held at known values, SI units (H, F, ohm); Resr may be 0.
+    guess : mapping, optional
+        Start values for parts, SI units.
+    drive_duty : float, optional
+        One-channel only: the drive's duty cycle (0…1, high time / period); fitted when None.
+    time_domain : bool
+        Two-channel only: refine by fitting the simulated output to the samples.
+
+    Returns
+    -------
+    FitResult
+        Method "two-channel" or "one-channel".
+
+    Raises
+    ------
+    FitError
+        Bad option, silent response, a drive with no periodic content.
+    """
+    cap = as_capture(capture)
+    where = source_name(cap)
+    if method not in get_args(MethodOption):
+        raise FitError(f"method {method!r}: unknown — use one of {', '.join(get_args(MethodOption))}")
+    fix_d, guess_d = check_parts(fix, guess, where)
+    if drive_duty is not None and not (0.0 < float(drive_duty) < 1.0):
+        raise FitError(f"--drive-duty {drive_duty!r}: the duty cycle must be between 0 and 1 "
+                       "(high time / period), e.g. 0.5")
+    if method == "auto":
+        method = "two-channel" if cap.n_channels >= 2 else "one-channel"
+    if method == "two-channel":
+        if cap.n_channels < 2:
+            raise FitError(f"{where}: two-channel fitting needs the drive and the output, but the "
+                           "capture has one channel — use --method one-channel")
+        di, ri = pick_channels(cap, drive, response)
+        return _two_channel(cap, di, ri, fix_d, guess_d, time_domain)
+    from benchfit.fit.onechannel import fit_one_channel
+
+    if response is not None:
+        from benchfit.errors import CaptureError
+
+        try:
+            ri = cap.channel_index(response)
+        except CaptureError as e:
+            raise FitError(str(e)) from e
+    elif cap.n_channels == 1:
+        ri = 0
+    else:
+        ri = pick_channels(cap, drive, None)[1]
+    return fit_one_channel(cap, ri, fix_d, guess_d, drive_duty)
+
+
+def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, float],
+                 time_domain: bool) -> FitResult:
+    from benchfit.measurement.tone import fit_harmonics, fit_tone
+
+    where = source_name(cap)
+    fs = cap.sample_rate
+    x = np.asarray(cap.samples[di], dtype=float)
+    y = np.asarray(cap.samples[ri], dtype=float)
+    check_not_silent(y, cap, ri, "response")
+    check_not_silent(x, cap, di, "drive")
+    tone = fit_tone(x, fs, n_harmonics=9)
+    if tone is None or tone.amplitudes[0] <= SIGNIFICANCE * tone.amplitudes_u[0]:
+        raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} has no periodic content — "
+                       "capture at least a few periods of the drive, or use --model ringdown")
+    f = tone.frequency_hz
+    kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
+    hx_all = fit_harmonics(x, fs, f, kmax)
+    keep = hx_all.amplitudes > SIGNIFICANCE * hx_all.amplitudes_u
+    orders = hx_all.orders[keep]
+    if orders.size < 2:
+        raise FitError(f"{where}: the drive has fewer than two harmonics above the noise — a square "
+                       "drive is needed for two-channel fitting; check the drive channel")
+    hx = fit_harmonics(x, fs, f, orders=orders)
+    hy = fit_harmonics(y, fs, f, orders=orders)
+    if not np.any(hy.amplitudes > SIGNIFICANCE * hy.amplitudes_u):
+        raise FitError(f"{where}: response channel {cap.channel_names[ri]!r} shows no response at the "
+                       "drive's harmonics — check the wiring, or choose the channel with --response")
+    xk, yk = hx.phasors, hy.phasors
+    hk = yk / xk
+    cov = complex_mult_cov(1.0 / xk, hy.phasor_cov) + complex_mult_cov(-yk / xk ** 2, hx.phasor_cov)
+    w = whitening(cov)
+    fk = orders * f
+    u_abs = np.sqrt(np.maximum(np.einsum("ki,kij,kj->k",
+                                         np.stack([hk.real, hk.imag], 1) / np.abs(hk)[:, None],
+                                         cov, np.stack([hk.real, hk.imag], 1) / np.abs(hk)[:, None]),
+                               0.0))
+
+    def residual(v: dict[str, float]) -> np.ndarray:
+        return whiten(w, hk - transfer(fk, _parts(v)))
+
+    w0, q, b0 = levy_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
+    start = start_parts(w0, q, b0, fix, guess)
+    values, ident, fixed, folded, warnings, ok, msg = solve(residual, start, fix)
+    h_model = transfer(fk, _parts(values))
+    n_show = min(x.size, int(math.ceil(4 * fs / f)))
+    t = np.arange(n_show) / fs
+    y_model = hy.dc + sum((xk[i] * h_model[i] * np.exp(1j * orders[i] * 2 * math.pi * f * t)).real
+                          for i in range(orders.size))
+    curves = FitCurves(time_s=t, data=y[:n_show].copy(), model=np.asarray(y_model),
+                       harmonic_hz=fk, h_measured=hk, h_model=h_model, h_measured_u=u_abs,
+                       residual=np.concatenate([(hk - h_model).real, (hk - h_model).imag]))
+    quality = quality_complex(hk, h_model)
+    if time_domain:
+        values, ident, fixed, folded2, warn2, ok, msg, curves, quality = _time_domain(
+            x, y, fs, values, fixed, fix, hy.sigma, curves)
+        folded = sorted(set(folded) | set(folded2))
+        warnings = warnings + [m for m in warn2 if m not in warnings]
+    return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg)
+
+
+def _parts(v: Mapping[str, float]) -> LowpassParts:
+    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"])
+
+
+def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
+    """Refine by fitting the exactly discretised simulation of the measured drive to the output."""
+    n = y.size
+    sigma = max(float(sigma), 1e-12 * max(float(np.max(np.abs(y))), 1e-30))
+
+    def model(v: dict[str, float]) -> np.ndarray:
+        p = _parts(v)
+        sim = simulate(x, fs, p)
+        basis = free_response_basis(p, fs, n)
+        design = np.stack([np.ones(n), basis[0], basis[1]], axis=1)
+        coef, *_ = np.linalg.lstsq(design, y - sim, rcond=None)
+        return sim + design @ coef
+
+    def residual(v: dict[str, float]) -> np.ndarray:
+        return (y - model(v)) / sigma
+
+    start = {k: (v if v > 0 else 1e-3) for k, v in values.items()}
+    fix_now = {k: v for k, v in fixed.items()}
+    values, ident, fixed, folded, warnings, ok, msg = solve(residual, start, fix_now)
+    ym = model(values)
+    curves = FitCurves(time_s=np.arange(n) / fs, data=y.copy(), model=ym,
+                       harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
+                       h_model=transfer(curves.harmonic_hz, _parts(values)),
+                       h_measured_u=curves.h_measured_u, residual=y - ym)
+    folded = [k for k in fixed if k not in user_fix and fixed[k] == 0.0]
+    return values, ident, fixed, folded, warnings, ok, msg, curves, quality_real(y, ym)
