@@ -1,0 +1,250 @@
+#!/usr/bin/env python3
+"""Generate the bundled sample captures of the demo scenario (all synthetic).
+
+The scenario (invented): a makerspace electronics group builds "hum-check" boxes HC-01…HC-12.
+Each box makes a 50 Hz sine from a 555-style astable (12 V supply) whose square output is cut
+down by a low-impedance divider (220 Ω over 100 Ω) and filtered by an L-C low-pass: two
+150 mH chokes in series and a 33 µF capacitor bank, into a 10 kΩ load.
+
+The circuit is simulated here with scipy.signal.lsim (state space, first-order-hold exact
+discretisation) at 480 kHz, then "captured" the way the group does it:
+
+* a USB oscilloscope samples directly (no anti-alias filter) and exports CSV;
+* the sound card's line-in (through an attenuator) low-pass filters, decimates to 48 kHz,
+  AC-couples (first-order high-pass), adds noise and quantises to 16 bits; its crystal runs
+  a few tens of ppm off, and a calibration profile in the sidecar records gain and timebase.
+
+Run ``python scripts/make_samples.py`` to rewrite sample_captures/ (seeded: byte-identical
+output for the same numpy/scipy/soundfile versions). Nothing here is measured data.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+import numpy as np
+import soundfile as sf
+from scipy import signal
+
+OUT = Path(__file__).resolve().parent.parent / "sample_captures"
+FS_SIM = 480_000.0  # simulation rate, Hz
+
+# the sound card used for the recordings (invented): 38 ppm fast, 0.1 s input time constant
+CARD_PPM = 38.0
+CARD_TAU_S = 0.1
+PROFILE = {"profile": "makerspace-laptop", "timebase_ppm": CARD_PPM, "timebase_u_ppm": 0.5,
+           "coupling_tau_s": CARD_TAU_S}
+
+
+@dataclass(frozen=True)
+class Unit:
+    """One built hum-check box (effective values of the built unit)."""
+
+    serial: str
+    f_timer: float = 50.0   # astable frequency, Hz
+    duty: float = 0.52      # high time / period
+    v_high: float = 10.6    # 555 output high level at 12 V supply, V
+    v_low: float = 0.08     # output low level, V
+    r_top: float = 220.0    # divider, ohm
+    r_bottom: float = 56.0
+    l_h: float = 0.300      # two 150 mH chokes in series (effective, incl. coupling), H
+    r_wind: float = 24.0    # winding resistance of both chokes plus wiring, ohm
+    c_f: float = 33e-6      # capacitor bank, F
+    esr: float = 0.6        # bank ESR, ohm
+    r_load: float = 10e3    # test load, ohm
+
+    @property
+    def r_th(self) -> float:
+        return self.r_top * self.r_bottom / (self.r_top + self.r_bottom)
+
+    def k_div(self) -> float:
+        return self.r_bottom / (self.r_top + self.r_bottom)
+
+
+def timer_wave(t: np.ndarray, u: Unit, rise_s: float = 2e-6) -> np.ndarray:
+    """The 555 output: a rectangular wave with linear edges (levels v_low/v_high)."""
+    period = 1.0 / u.f_timer
+    ph = np.mod(t, period)
+    high = u.duty * period
+    y = np.where(ph < high, u.v_high, u.v_low).astype(float)
+    # linear edges of rise_s at both transitions
+    r = ph < rise_s
+    y[r] = u.v_low + (u.v_high - u.v_low) * ph[r] / rise_s
+    f = (ph >= high) & (ph < high + rise_s)
+    y[f] = u.v_high - (u.v_high - u.v_low) * (ph[f] - high) / rise_s
+    return y
+
+
+def simulate(u: Unit, seconds: float, source: np.ndarray | None = None, r_source: float | None = None):
+    """Simulate the filter. Returns (t, drive_at_filter_input, output) at FS_SIM.
+
+    States x = (i_L, v_C); input v_th (Thevenin source); outputs (v_out, v_drive).
+    """
+    t = np.arange(int(seconds * FS_SIM)) / FS_SIM
+    if source is None:
+        v_th = timer_wave(t, u) * u.k_div()
+        r_th = u.r_th
+    else:
+        v_th, r_th = source, float(r_source)
+    rl, esr, c, l = u.r_load, u.esr, u.c_f, u.l_h
+    rtot = r_th + u.r_wind
+    g = 1.0 / (1.0 + esr / rl)  # v_out = g·(v_C + esr·i_L)
+    # dv_C/dt = (i_L − v_out/rl)/C ; L di_L/dt = v_th − rtot·i_L − v_out
+    a = np.array([
+        [(-rtot - g * esr) / l, -g / l],
+        [(1 - g * esr / rl) / c, -g / (rl * c)],
+    ])
+    b = np.array([[1.0 / l], [0.0]])
+    cm = np.array([[g * esr, g], [-r_th, 0.0]])
+    d = np.array([[0.0], [1.0]])
+    sys = signal.StateSpace(a, b, cm, d)
+    # start from the periodic steady state approximately: run one extra second and drop it
+    _, y, _ = signal.lsim(sys, v_th, t)
+    return t, y[:, 1], y[:, 0]
+
+
+def soundcard(x_sim: np.ndarray, seconds: float, gain_v_per_fs: float, rng, noise_fs: float = 2e-4):
+    """Capture through the line-in: anti-alias + decimate to the card's true rate, AC-couple,
+    add noise, quantise to 16 bits. Returns FS samples (file rate nominally 48 kHz)."""
+    fs_true = 48_000.0 * (1 + CARD_PPM * 1e-6)
+    # resample the simulated signal onto the card's sample instants (band-limited)
+    n_out = int(seconds * 48_000)
+    t_card = np.arange(n_out) / fs_true
+    # anti-alias: low-pass at 20 kHz before interpolation
+    sos = signal.butter(8, 20_000, fs=FS_SIM, output="sos")
+    xf = signal.sosfiltfilt(sos, x_sim)
+    t_sim = np.arange(x_sim.size) / FS_SIM
+    xc = np.interp(t_card, t_sim, xf)
+    # AC coupling: first-order high-pass with time constant CARD_TAU_S (bilinear)
+    b, a = signal.bilinear([CARD_TAU_S, 0.0], [CARD_TAU_S, 1.0], fs=fs_true)
+    # (the line-in has been connected for a while: start the high-pass in its steady state)
+    zi = signal.lfilter_zi(b, a) * 0.0
+    xc = signal.lfilter(b, a, xc - xc.mean(), zi=zi)[0]
+    fs_units = xc / gain_v_per_fs + rng.normal(0, noise_fs, xc.size)
+    return np.clip(np.round(fs_units * 32767) / 32767, -1, 32767 / 32768)
+
+
+def write_wav(path: Path, data: np.ndarray, names: list[str], gains: list[float], device: str,
+              start: str, subtype: str = "PCM_16", fmt: str | None = None) -> None:
+    sf.write(str(path), data.T if data.ndim == 2 else data, 48_000, subtype=subtype, format=fmt)
+    side = {
+        "benchfit_sidecar": 1,
+        "channels": [{"name": n} for n in names],
+        "sample_rate_hz": 48_000,
+        "device": device,
+        "start_utc": start,
+        "overflow_count": 0,
+        "clip_count": 0,
+        "calibration": dict(PROFILE, gain_v_per_fs=gains),
+        "benchfit_version": "0.1.0",
+    }
+    path.with_suffix(".json").write_text(json.dumps(side, indent=2) + "\n")
+
+
+def write_scope_csv(path: Path, t: np.ndarray, cols: dict[str, np.ndarray], rate: float,
+                    european: bool, serial: str) -> None:
+    """A scope-style CSV: a preamble, a header with units, one row per sample."""
+    step = 1.0 / rate
+    idx = np.round(np.arange(int(t[-1] * rate)) * FS_SIM / rate).astype(int)
+    idx = idx[idx < t.size]
+    lines = []
+    if european:
+        sep = ";"
+        lines += [f"Record;{serial}", f"Sample interval;{step:.6e}".replace(".", ","),
+                  "Points;" + str(idx.size), ""]
+        header = ["Time [ms]"] + [f"{k} [V]" for k in cols]
+        lines.append(sep.join(header))
+        for i in idx:
+            row = [f"{t[i] * 1e3:.5f}"] + [f"{cols[k][i]:.5f}" for k in cols]
+            lines.append(sep.join(v.replace(".", ",") for v in row))
+    else:
+        sep = ","
+        lines += [f"# record,{serial}", f"# sample interval,{step:.6e}", ""]
+        header = ["time (s)"] + [f"{k} (V)" for k in cols]
+        lines.append(sep.join(header))
+        for i in idx:
+            lines.append(sep.join([f"{t[i]:.7f}"] + [f"{cols[k][i]:.5f}" for k in cols]))
+    path.write_text("\n".join(lines) + "\n")
+
+
+def scope_noise(rng, x, lsb=0.04):
+    """8-bit-scope-like: noise plus quantisation to lsb volts."""
+    return np.round((x + rng.normal(0, 0.3 * lsb, x.size)) / lsb) * lsb
+
+
+def main() -> None:
+    OUT.mkdir(exist_ok=True)
+    rng = np.random.default_rng(20261201)
+    gain = 4.0  # V per FS: an 8:1 attenuator into a line-in of 0.5 V peak full scale
+    # --- the batch: HC-01 … HC-06, as-left, sound-card recordings of the output --------------
+    batch = [
+        Unit("HC-01", f_timer=50.03, duty=0.521, l_h=0.302, c_f=33.4e-6),
+        Unit("HC-02", f_timer=49.96, duty=0.518, l_h=0.297, c_f=32.6e-6, r_wind=25.1),
+        Unit("HC-04", f_timer=50.08, duty=0.524, l_h=0.305, c_f=33.9e-6, esr=0.9),
+        Unit("HC-05", f_timer=49.92, duty=0.519, l_h=0.299, c_f=33.1e-6),
+        Unit("HC-06", f_timer=50.11, duty=0.522, l_h=0.296, c_f=32.2e-6, r_wind=23.2),
+    ]
+    info = {}
+    for k, u in enumerate(batch):
+        _, _, out = simulate(u, 1.6)
+        x = soundcard(out[int(0.6 * FS_SIM):], 1.0, gain, rng)
+        name = f"{u.serial.lower().replace('-', '')}_output.flac"
+        write_wav(OUT / name, x, ["output"], [gain], "line-in (USB audio adapter)",
+                  f"2026-11-2{k}T18:{10 + k:02d}:00Z", subtype="PCM_16", fmt="FLAC")
+        info[name] = u
+
+    # --- HC-03: as found (timer 50.40 Hz, out of spec) and as left (trimmed to 50.01 Hz) -------
+    hc03 = Unit("HC-03", f_timer=50.40, duty=0.527, l_h=0.304, c_f=33.6e-6, r_wind=24.6)
+    for tag, f in (("asfound", 50.40), ("asleft", 50.01)):
+        u = replace(hc03, f_timer=f)
+        _, _, out = simulate(u, 2.6)
+        x = soundcard(out[int(0.6 * FS_SIM):], 2.0, gain, rng)
+        write_wav(OUT / f"hc03_{tag}.wav", x, ["output"], [gain], "line-in (USB audio adapter)",
+                  "2026-11-27T19:02:00Z" if tag == "asfound" else "2026-11-27T19:20:00Z")
+        info[f"hc03_{tag}.wav"] = u
+
+    # --- HC-03: the timer output on the scope (European CSV dialect) -------------------------
+    u = replace(hc03, f_timer=50.01)
+    t = np.arange(int(0.12 * FS_SIM)) / FS_SIM
+    timer = timer_wave(t, u)
+    write_scope_csv(OUT / "hc03_timer_scope.csv", t, {"CH A": scope_noise(rng, timer)},
+                    rate=25_000, european=True, serial="HC-03")
+
+    # --- HC-03: two-channel capture, drive (filter input) and output, on the scope ------------
+    t, drive, out = simulate(u, 1.2)
+    keep = t >= 0.8
+    t2 = t[keep] - 0.8
+    write_scope_csv(OUT / "hc03_drive_output_scope.csv", t2,
+                    {"drive": scope_noise(rng, drive[keep], 0.016), "output": scope_noise(rng, out[keep], 0.016)},
+                    rate=10_000, european=False, serial="HC-03")
+
+    # --- HC-05: ring-down of the bare L-C tank from a 2 Hz bench square (5 Ω source), scope ----
+    u = replace(batch[3], r_load=1e6)
+    t = np.arange(int(0.56 * FS_SIM)) / FS_SIM
+    sq = np.where(np.mod(t + 0.05, 0.5) < 0.25, 0.5, -0.5)
+    _, _, out = simulate(u, 0.56, source=sq, r_source=5.0)
+    write_scope_csv(OUT / "hc05_ringdown_scope.csv", t, {"tank": scope_noise(rng, out, 0.008)},
+                    rate=20_000, european=False, serial="HC-05")
+    info["hc05_ringdown_scope.csv"] = u
+
+    # --- HC-07: the failing unit: one choke is a wrong 47 mH part ----------------------------
+    u = Unit("HC-07", f_timer=50.05, duty=0.523, l_h=0.150 + 0.047, c_f=33.2e-6, r_wind=17.0)
+    _, _, out = simulate(u, 1.6)
+    x = soundcard(out[int(0.6 * FS_SIM):], 1.0, gain, rng)
+    write_wav(OUT / "hc07_output.wav", x, ["output"], [gain], "line-in (USB audio adapter)",
+              "2026-11-28T17:45:00Z")
+    info["hc07_output.wav"] = u
+
+    for name, u in info.items():
+        f0 = 1 / (2 * math.pi * math.sqrt(u.l_h * u.c_f))
+        print(f"{name:28s} {u.serial}: timer {u.f_timer:.2f} Hz, L {u.l_h * 1e3:.0f} mH, "
+              f"C {u.c_f * 1e6:.1f} µF, f0 {f0:.2f} Hz")
+    total = sum(p.stat().st_size for p in OUT.iterdir() if p.is_file())
+    print(f"sample_captures/: {total / 1e6:.2f} MB")
+
+
+if __name__ == "__main__":
+    main()
