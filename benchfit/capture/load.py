@@ -1,0 +1,113 @@
+"""``benchfit.load``: read any supported capture file into a :class:`Capture`.
+
+The reader is chosen by extension (``.wav``/``.flac``/``.ogg``… → audio, ``.csv``/``.txt``/
+``.tsv`` → CSV) and, for any other name, by content: an audio header means audio, text
+means CSV, other binary data is refused. The file's SHA-256 is stored in the capture so a
+report or log entry can be traced to the exact bytes measured.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+from pathlib import Path
+from typing import Sequence
+
+from benchfit.capture.audiofile import AUDIO_SUFFIXES, read_audio, sniff_audio
+from benchfit.capture.capture import Capture
+from benchfit.capture.csvfile import read_csv
+from benchfit.errors import CaptureError
+
+__all__ = ["load", "file_sha256"]
+
+CSV_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".prn")
+_CHUNK = 1 << 20
+
+
+def file_sha256(path: str | os.PathLike[str]) -> str:
+    """SHA-256 of a file's bytes as a lower-case hex string (read in 1 MiB chunks)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(_CHUNK), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def load(path: str | os.PathLike[str], *, sample_rate: float | None = None,
+         channels: str | int | Sequence[str | int] | None = None) -> Capture:
+    """Read a capture file (WAV, FLAC, OGG or CSV export) into a :class:`Capture`.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file. Audio files may have a sidecar JSON with the same stem giving channel
+        names and the input calibration (gain in V/FS, timebase in ppm, coupling).
+    sample_rate : float, optional
+        Samples per second (Hz) for a CSV that has neither a time column nor a sample
+        interval in its preamble. Not used when the file gives its own rate.
+    channels : str, int or sequence of them, optional
+        Keep only these channels, in this order: names (case-insensitive), 1-based
+        numbers as strings (``"2"``), 0-based ints, or one string ``"drive,output"``.
+
+    Returns
+    -------
+    Capture
+        Samples in volts (or FS for an uncalibrated sound-card recording), with
+        ``source`` = the path and ``sha256`` of the file's bytes.
+
+    Raises
+    ------
+    CaptureError
+        Missing, empty, unreadable or unrecognised file; bad data (the message names the
+        file and, for CSV, the line and column); an unknown channel.
+
+    Examples
+    --------
+    >>> cap = load("HC-03_as-found.csv")                        # doctest: +SKIP
+    >>> cap = load("HC-03.wav", channels="output")              # doctest: +SKIP
+    """
+    p = Path(path)
+    where = str(p)
+    if sample_rate is not None:
+        try:
+            rate = float(sample_rate)
+        except (TypeError, ValueError) as e:
+            raise CaptureError(f"sample rate: {sample_rate!r} is not a number — give it in Hz, e.g. 48000") from e
+        if not (rate > 0 and rate < float("inf")):
+            raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — e.g. 48000")
+        sample_rate = rate
+    if not p.exists():
+        raise CaptureError(f"{where}: no such file — check the path and the spelling")
+    if p.is_dir():
+        raise CaptureError(f"{where}: is a folder, not a capture file — give a WAV, FLAC, OGG or CSV file")
+    try:
+        size = p.stat().st_size
+        with open(p, "rb") as fh:
+            head = fh.read(64)
+        digest = file_sha256(p)
+    except OSError as e:
+        raise CaptureError(f"{where}: cannot read the file ({e.strerror or e}) — check its permissions") from e
+    if size == 0:
+        raise CaptureError(f"{where}: the file is empty — record or export it again")
+
+    suffix = p.suffix.lower()
+    kind = sniff_audio(head)
+    if suffix in AUDIO_SUFFIXES or (kind is not None and suffix not in CSV_SUFFIXES):
+        capture = read_audio(p, sha256=digest, sample_rate=sample_rate)
+    elif kind is not None:
+        raise CaptureError(f"{where}: holds {kind} audio but is named like a CSV — rename it to .{kind.lower()}")
+    else:
+        capture = read_csv(p, sha256=digest, sample_rate=sample_rate)
+
+    if channels is not None:
+        keys: list[str | int]
+        if isinstance(channels, str):
+            keys = [k.strip() for k in channels.split(",") if k.strip()]
+        elif isinstance(channels, int):
+            keys = [channels]
+        else:
+            keys = list(channels)
+        if not keys:
+            raise CaptureError(f"channels: {channels!r} selects nothing — name at least one channel")
+        capture = capture.select(keys)
+    return capture
