@@ -105,10 +105,10 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     if not periodic:
         levels = signal_levels(x, fs, None)
         what = "silence (all samples equal)" if flat else "no periodic signal found"
-        warnings.append(f"{name}: {what} — frequency, distortion and pulse values are not given; "
+        warnings.append(f"{what} — frequency, distortion and pulse values are not given; "
                         "check the connection and the input level")
         if clip.clipped:
-            warnings.append(_clip_warning(name, clip))
+            warnings.append(_clip_warning(clip))
         return ChannelMeasurement(
             name=name, unit=unit, frequency_hz=None, frequency_u_hz=None, amplitude=None,
             vdc=levels.vdc, vrms=levels.vrms, vpp=levels.vpp, duty_cycle_pct=None,
@@ -120,32 +120,33 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     u_tb = abs(f) * float(timebase_u_ppm) * 1e-6
     u_f = math.sqrt(u_fit ** 2 + u_tb ** 2)
     if not fit.converged:
-        warnings.append(f"{name}: the frequency fit did not settle — the frequency may be off; "
+        warnings.append(f"the frequency fit did not settle — the frequency may be off; "
                         "record a longer, steadier signal")
     n_periods = n * f / fs
     if n_periods < _MIN_PERIODS:
-        warnings.append(f"{name}: only {n_periods:.2g} periods recorded — record at least 3 "
+        warnings.append(f"only {n_periods:.2g} periods recorded — record at least 3 "
                         "(10 or more for good uncertainty)")
     levels = signal_levels(x, fs, f)
     dist = analyse_distortion(x, fs, fit)
     pulse = pulse_parameters(x, fs, coupling_tau_s)
-    warnings.extend(f"{name}: {w}" for w in pulse.warnings if pulse.two_level)
+    if pulse.two_level:
+        warnings.extend(pulse.warnings)
     if pulse.two_level and pulse.state_low is not None and pulse.state_high is not None and clip.kind == "rail":
         # a two-level wave's flat extremes are its states, not a saturated recorder's rails
         clip = find_clipping(x, unit, full_scale, rails=False)
     if clip.clipped:
-        warnings.append(_clip_warning(name, clip))
+        warnings.append(_clip_warning(clip))
     if pulse.two_level and pulse.noise_rms is not None:
         amp_half = 0.5 * (pulse.state_high - pulse.state_low)
         snr = 20.0 * math.log10(amp_half / pulse.noise_rms) if pulse.noise_rms > 0 else math.inf
     else:
         snr = dist.snr_fit_db
     if snr < _LOW_SNR_DB:
-        warnings.append(f"{name}: low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
+        warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
                         "raise the signal level or shorten the leads")
     h_eff = max_harmonic_order(f, fs, harmonics)
     if harmonics >= 2 and h_eff < 2:
-        warnings.append(f"{name}: no harmonic lies below Nyquist ({_fmt(fs / 2, 'Hz')}) — THD not given")
+        warnings.append(f"no harmonic lies below Nyquist ({_fmt(fs / 2, 'Hz')}) — THD not given")
     thd = dist.thd if h_eff >= 2 else None
     table = tuple(
         Harmonic(order=int(k), frequency_hz=float(fk), amplitude=float(a), phase_deg=float(ph),
@@ -156,6 +157,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         "harmonics_h": int(dist.harmonics_h),
         "amplitude_u": float(fit.amplitudes_u[0]),
         "vdc_u": float(fit.dc_u),
+        "vrms_u": _vrms_u(levels.vrms, fit.rss / n, levels.span_samples),
         "vac_rms": levels.vac_rms,
         "vmax": levels.vmax, "vmin": levels.vmin,
         "n_periods": float(n_periods),
@@ -190,9 +192,22 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         harmonics=table, clipped=clip.clipped, warnings=tuple(warnings), extra=extra)
 
 
-def _clip_warning(name: str, clip) -> str:
+def _vrms_u(vrms: float, noise_var: float, n: int) -> float:
+    """Standard uncertainty of an rms value from white noise of variance ``noise_var``.
+
+    For x = s + w, var(mean(x²)) = (4·mean(s²)·σ² + 2σ⁴)/N, and u(rms) = u(ms)/(2·rms).
+    The fit residual also holds harmonics above H, so for pulse waves this is an upper bound.
+    """
+    if vrms <= 0 or n <= 0:
+        return 0.0
+    ms_signal = max(vrms * vrms - noise_var, 0.0)
+    var_ms = (4.0 * ms_signal * noise_var + 2.0 * noise_var * noise_var) / n
+    return math.sqrt(var_ms) / (2.0 * vrms)
+
+
+def _clip_warning(clip) -> str:
     where = "full scale" if clip.kind == "full-scale" else "the recorder's rail"
-    return (f"{name}: clipped — {clip.n_samples} samples in {clip.n_runs} flat runs at {where} "
+    return (f"clipped — {clip.n_samples} samples in {clip.n_runs} flat runs at {where} "
             f"({clip.level:.4g}); levels and distortion are wrong — lower the input level "
             "(a resistive divider; keep within the input's rated level)")
 
