@@ -1,1 +1,422 @@
-"""(commands registered here by their module owner)"""
+"""``benchfit design``: timer parts, filter parts, part combinations and trim advice.
+
+Commands on :data:`benchfit.cli.app.design_app`: ``astable``, ``filter``, ``combine`` and
+``trim``. Each calls a pure function of :mod:`benchfit.design` and renders its frozen result
+as a rich table (or one JSON object with ``--json``). Only typer and the standard library
+are imported at module level.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import re
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from benchfit.cli.app import design_app
+
+__all__ = ["parse_fraction", "parse_part_value", "read_stock"]
+
+_CAUTION = ("Caution: timer and filter run from the supply and a tuned filter can swing well above it; "
+            "block DC and attenuate before a sound-card input, and follow local codes and qualified "
+            "practice.")
+
+
+# --- option parsing -------------------------------------------------------------------------
+
+def parse_fraction(text: str, option: str, *, allow_zero: bool = True, below_one: bool = True) -> float:
+    """``"1%"`` → 0.01, ``"0.01"`` → 0.01. A bare number of 1 or more is refused (ambiguous)."""
+    from benchfit.cli.common import fail
+
+    s = str(text).strip()
+    try:
+        value = float(s[:-1]) / 100.0 if s.endswith("%") else float(s)
+    except ValueError:
+        fail(f"{option}: {text!r} is not a fraction — write it like 5% or 0.05")
+    if not math.isfinite(value) or value < 0 or (value == 0 and not allow_zero):
+        fail(f"{option}: {text!r} must be {'zero or ' if allow_zero else ''}positive — write it like 5% or 0.05")
+    if below_one and value >= 1:
+        fail(f"{option}: {text!r} must be below 100 % — write it like 5% or 0.05")
+    return value
+
+
+_RKM = re.compile(r"^(\d+)([pnuµmRkKMG])(\d+)$")
+
+
+def parse_part_value(text: str, where: str, kind: str = "R") -> float:
+    """Parse a part value: SI prefixes (``"4.7k"``, ``"33u"``, ``"150mH"``), the code form
+    ``"4k7"`` / ``"2R2"`` / ``"4u7"``, and an optional unit (Ω, ohm, F, H)."""
+    from benchfit.cli.common import fail
+    from benchfit.units import parse_quantity
+
+    s = str(text).strip().replace(" ", "")
+    for unit in ("ohms", "ohm", "Ω", "F", "H"):
+        if s.endswith(unit) and len(s) > len(unit):
+            s = s[: -len(unit)]
+            break
+    m = _RKM.match(s)
+    if m:
+        prefix = "" if m.group(2) == "R" else m.group(2)
+        s = f"{m.group(1)}.{m.group(3)}{prefix}"
+    try:
+        return parse_quantity(s, where, positive=True, allow_zero=False)
+    except ValueError as e:
+        fail(_with_fix(str(e)))
+
+
+def _with_fix(message: str) -> str:
+    return message if "—" in message else f"{message} — give a value above zero, e.g. 4.7k or 33u"
+
+
+def _opt_value(text: Optional[str], option: str, *, allow_zero: bool = False) -> Optional[float]:
+    from benchfit.cli.common import fail
+    from benchfit.units import parse_quantity
+
+    if text is None:
+        return None
+    try:
+        return parse_quantity(text, option, positive=True, allow_zero=allow_zero)
+    except ValueError as e:
+        fail(_with_fix(str(e)))
+
+
+def read_stock(path: Path, kind: str) -> tuple[list[float], list[int] | None]:
+    """Read a stock list: a CSV with a ``value`` column (SI prefixes allowed) and an optional
+    ``qty``/``quantity``/``count`` column; a file with a single column needs no header."""
+    from benchfit.cli.common import fail
+
+    if not path.is_file():
+        fail(f"{path}: stock file not found — give the path of a CSV with a 'value' column")
+    try:
+        with path.open(newline="", encoding="utf-8-sig") as fh:
+            rows = [r for r in csv.reader(fh) if any(c.strip() for c in r)]
+    except (OSError, UnicodeDecodeError, csv.Error) as e:
+        fail(f"{path}: cannot read the stock list ({e}) — save it as UTF-8 CSV")
+    if not rows:
+        fail(f"{path}: the stock list is empty — add a 'value' column with one part per row")
+    header = [c.strip().lower() for c in rows[0]]
+    if "value" in header:
+        vcol = header.index("value")
+        qcol = next((header.index(n) for n in ("qty", "quantity", "count") if n in header), None)
+        body, first_row = rows[1:], 2
+    elif len(header) == 1:
+        vcol, qcol, body, first_row = 0, None, rows, 1
+    else:
+        fail(f"{path}: no 'value' column in the header {rows[0]!r} — name the column of part values 'value'")
+    values: list[float] = []
+    counts: list[int] = []
+    for i, row in enumerate(body, start=first_row):
+        if vcol >= len(row) or not row[vcol].strip():
+            fail(f"{path} row {i}: no value — fill the 'value' column or delete the row")
+        values.append(parse_part_value(row[vcol], f"{path} row {i}", kind))
+        if qcol is not None:
+            raw = row[qcol].strip() if qcol < len(row) else ""
+            try:
+                n = int(raw) if raw else 1
+            except ValueError:
+                fail(f"{path} row {i}: quantity {raw!r} is not a whole number — write e.g. 3")
+            if n < 0:
+                fail(f"{path} row {i}: quantity {n} is negative — write 0 or more")
+            counts.append(n)
+    if not values:
+        fail(f"{path}: the stock list has a header but no parts — add one value per row")
+    return values, (counts if qcol is not None else None)
+
+
+def _table(title: str, columns: tuple[str, ...]):
+    from rich.table import Table
+
+    t = Table(title=title, title_justify="left", show_lines=False, header_style="bold")
+    for c in columns:
+        t.add_column(c, justify="left")
+    return t
+
+
+def _print_lines(lines, style: str = "") -> None:
+    from benchfit.cli.common import stdout
+
+    for line in lines:
+        stdout.print(line, markup=False, style=style or None)
+
+
+# --- astable --------------------------------------------------------------------------------
+
+_ASTABLE_EXAMPLE = """
+Example:
+
+  benchfit design astable --frequency 50 --cap 1u --trim-pot 5k --tolerance-c 10%
+"""
+
+
+@design_app.command("astable", help="Choose 555-style astable parts for a frequency and duty, with the "
+                    "tolerance spread and trim range." + _ASTABLE_EXAMPLE)
+def astable_command(
+    frequency: str = typer.Option(..., "--frequency", help="Wanted frequency, e.g. 50 or 1.2k (Hz)."),
+    duty: Optional[str] = typer.Option(None, "--duty", help="High time / period, e.g. 55% or 0.55. "
+                                       "Default: as near 50 % as the circuit allows."),
+    cap: Optional[str] = typer.Option(None, "--cap", help="Timing capacitor C1, e.g. 1u (F). Default: chosen."),
+    series: str = typer.Option("E24", "--series", help="Resistor series: E6, E12, E24, E48 or E96."),
+    cap_series: str = typer.Option("E6", "--cap-series", help="Series for C1 when it is chosen."),
+    supply: str = typer.Option("12", "--supply", help="Supply voltage (V)."),
+    control_voltage: Optional[str] = typer.Option(None, "--control-voltage",
+                                                  help="Voltage held on the control pin (V)."),
+    diode: bool = typer.Option(False, "--diode", help="Diode across RB: allows duty below 50 %."),
+    tolerance_r: str = typer.Option("1%", "--tolerance-r", help="Resistor tolerance."),
+    tolerance_c: str = typer.Option("10%", "--tolerance-c", help="Capacitor tolerance."),
+    yield_within: str = typer.Option("1%", "--yield-within", help="Frequency band for the yield figure."),
+    distribution: str = typer.Option("uniform", "--distribution",
+                                     help="Part spread: uniform over ±tolerance, or normal with tolerance = 3σ."),
+    trials: int = typer.Option(20000, "--trials", help="Number of simulated units."),
+    seed: int = typer.Option(0, "--seed", help="Seed of the random generator."),
+    trim_pot: Optional[str] = typer.Option(None, "--trim-pot", help="Trimmer in series with RB, e.g. 10k (Ω)."),
+    control_range: Optional[str] = typer.Option(None, "--control-range",
+                                                help="Control-pin trim range LOW:HIGH in volts, e.g. 6:9."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
+) -> None:
+    from benchfit.cli.common import fail, print_json, stdout
+    from benchfit.design.astable import design_astable
+    from benchfit.units import format_quantity as fq
+
+    f = _opt_value(frequency, "--frequency")
+    d = None if duty is None else parse_fraction(duty, "--duty", allow_zero=False)
+    c1 = _opt_value(cap, "--cap")
+    cr = None
+    if control_range is not None:
+        lo, sep, hi = control_range.partition(":")
+        if not sep:
+            fail(f"--control-range: {control_range!r} needs LOW:HIGH in volts, e.g. 6:9")
+        cr = (_opt_value(lo, "--control-range low"), _opt_value(hi, "--control-range high"))
+    result = design_astable(
+        f, d, c1_farad=c1, series=series, c_series=cap_series, supply_v=_opt_value(supply, "--supply"),
+        control_voltage_v=_opt_value(control_voltage, "--control-voltage"), diode=diode,
+        tolerance_r=parse_fraction(tolerance_r, "--tolerance-r"),
+        tolerance_c=parse_fraction(tolerance_c, "--tolerance-c"),
+        yield_within=parse_fraction(yield_within, "--yield-within", allow_zero=False),
+        distribution=distribution, n_trials=trials, seed=seed,
+        trim_pot_ohm=_opt_value(trim_pot, "--trim-pot"), control_range_v=cr)
+    if as_json:
+        print_json(result.to_dict())
+        return
+    t = _table(f"555 astable for {result.target_frequency_hz:g} Hz", ("quantity", "value"))
+    t.add_row("RA", fq(result.ra_ohm, "Ω"))
+    t.add_row("RB", fq(result.rb_ohm, "Ω") + ("" if result.trim is None or result.trim.kind != "pot"
+                                                else f" + {fq(result.trim.high, 'Ω')} trimmer"))
+    t.add_row("C1", fq(result.c_farad, "F") + (" (given)" if result.c_given else ""))
+    tm = result.timing
+    t.add_row("high time", fq(tm.t_high_s, "s", 5))
+    t.add_row("low time", fq(tm.t_low_s, "s", 5))
+    t.add_row("frequency", f"{tm.frequency_hz:.5g} Hz ({result.frequency_error * 100:+.2f} %)")
+    t.add_row("duty (high / period)", f"{tm.duty * 100:.2f} %")
+    s = result.spread
+    t.add_row("frequency, 95 % of units", f"{s.frequency_low_hz:.5g} Hz to {s.frequency_high_hz:.5g} Hz")
+    t.add_row("frequency, std. deviation", f"{s.frequency_std_hz:.3g} Hz")
+    t.add_row("duty, 95 % of units", f"{s.duty_low * 100:.2f} % to {s.duty_high * 100:.2f} %")
+    t.add_row(f"yield within ±{s.yield_within * 100:g} %", f"{s.yield_fraction * 100:.1f} % ± {s.yield_u * 100:.1f} %")
+    if result.trim is not None:
+        tr = result.trim
+        t.add_row("trim range", f"{tr.frequency_low_hz:.5g} Hz to {tr.frequency_high_hz:.5g} Hz")
+        t.add_row("trim setting for target", "—" if tr.setting_for_target is None
+                  else fq(tr.setting_for_target, tr.unit))
+        t.add_row("units that can be trimmed", f"{tr.trimmable_fraction * 100:.1f} %")
+    stdout.print(t)
+    spread_text = (f"Spread: {s.n_trials} simulated units, seed {s.seed}, parts {s.distribution} "
+                   + ("(tolerance = 3σ)" if s.distribution == "normal" else "over ±tolerance")
+                   + f", RA/RB ±{s.tolerance_r * 100:g} %, C1 ±{s.tolerance_c * 100:g} %.")
+    _print_lines([spread_text] + list(result.notes))
+    _print_lines([f"Caution: {c}" for c in result.cautions], "yellow")
+
+
+# --- filter ---------------------------------------------------------------------------------
+
+_FILTER_EXAMPLE = """
+Example:
+
+  benchfit design filter --frequency 50 --inductance 300m --rs 400 --load 10k --duty 52%
+"""
+
+
+@design_app.command("filter", help="Parts of a tuned L-C low-pass for a rectangular drive, with the "
+                    "expected output level and THD." + _FILTER_EXAMPLE)
+def filter_command(
+    frequency: str = typer.Option(..., "--frequency", help="Drive frequency; the resonance is put there (Hz)."),
+    inductance: Optional[str] = typer.Option(None, "--inductance", help="Known inductance, e.g. 300m (H)."),
+    capacitance: Optional[str] = typer.Option(None, "--capacitance", help="Known capacitance, e.g. 33u (F)."),
+    load: Optional[str] = typer.Option(None, "--load", help="Load across the output, e.g. 10k (Ω). Default: open."),
+    rs: str = typer.Option("0", "--rs", help="Series resistance: timer output + winding (Ω)."),
+    esr: str = typer.Option("0", "--esr", help="Capacitor ESR (Ω)."),
+    duty: str = typer.Option("50%", "--duty", help="Drive duty (high time / period)."),
+    series: str = typer.Option("E12", "--series", help="Series for the solved part."),
+    amplitude: str = typer.Option("12", "--amplitude", help="Drive swing, 0 V to this (V)."),
+    harmonics: int = typer.Option(40, "--harmonics", help="Highest harmonic in the THD sum."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
+) -> None:
+    from benchfit.cli.common import fail, print_json, stdout
+    from benchfit.design.filter import design_filter
+    from benchfit.units import format_quantity as fq
+
+    if (inductance is None) == (capacitance is None):
+        fail("--inductance/--capacitance: give exactly one of them — the other part is solved for")
+    result = design_filter(
+        _opt_value(frequency, "--frequency"), inductance=_opt_value(inductance, "--inductance"),
+        capacitance=_opt_value(capacitance, "--capacitance"), load_ohm=_opt_value(load, "--load"),
+        rs_ohm=_opt_value(rs, "--rs", allow_zero=True), esr_ohm=_opt_value(esr, "--esr", allow_zero=True),
+        duty=parse_fraction(duty, "--duty", allow_zero=False), series=series,
+        amplitude_v=_opt_value(amplitude, "--amplitude"), n_harmonics=harmonics)
+    if as_json:
+        print_json(result.to_dict())
+        return
+    unit = "F" if result.solved_for == "C" else "H"
+    t = _table(f"L-C low-pass tuned to {result.frequency_hz:g} Hz ({result.solved_for} for "
+               f"f0 = {result.frequency_hz:g} Hz: {fq(result.nominal_value, unit, 5)})",
+               ("option", result.solved_for, "f0", "Q", "fund. rms", "AC rms", "DC", "THD"))
+    for o in result.options:
+        r = o.response
+        t.add_row(o.label, o.description, f"{o.resonant_frequency_hz:.4g} Hz", f"{o.q_factor:.3g}",
+                  f"{r.fundamental_rms_v:.3g} V", f"{r.ac_rms_v:.3g} V", f"{r.dc_v:.3g} V",
+                  f"{r.thd * 100:.2f} %")
+    stdout.print(t)
+    load_text = "open" if result.load_ohm is None else fq(result.load_ohm, "Ω")
+    _print_lines([f"Circuit: drive 0 V…{result.amplitude_v:g} V, duty {result.duty * 100:g} % → Rs "
+                  f"{fq(result.rs_ohm, 'Ω')} → L → out; C with ESR {fq(result.esr_ohm, 'Ω')} to ground; "
+                  f"load {load_text}."] + list(result.notes))
+    _print_lines([f"Caution: {c}" for c in result.cautions], "yellow")
+
+
+# --- combine --------------------------------------------------------------------------------
+
+_COMBINE_EXAMPLE = """
+Example:
+
+  benchfit design combine 29.7u --kind C --series E12 --max-parts 3
+  benchfit design combine 9.2k --kind R --stock drawer.csv
+"""
+
+
+@design_app.command("combine", help="Best series/parallel combinations of parts for a value, from a "
+                    "series or your stock list." + _COMBINE_EXAMPLE)
+def combine_command(
+    value: str = typer.Argument(..., help="Wanted value, e.g. 29.7u, 9.2k, 300m."),
+    kind: str = typer.Option(..., "--kind", help="R, C or L."),
+    series: str = typer.Option("E12", "--series", help="Series to draw from: E6, E12, E24, E48 or E96."),
+    max_parts: int = typer.Option(3, "--max-parts", help="At most this many parts (1 to 3)."),
+    stock: Optional[Path] = typer.Option(None, "--stock",
+                                         help="CSV of parts on hand: a 'value' column, optional 'qty'."),
+    top: int = typer.Option(5, "--top", help="How many combinations to list."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
+) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.design.parts import PART_UNITS, check_kind, combine
+    from benchfit.units import format_quantity as fq
+
+    k = check_kind(kind)
+    target = parse_part_value(value, "VALUE", k)
+    values, counts = (None, None) if stock is None else read_stock(stock, k)
+    result = combine(target, k, series=series, stock=values, stock_counts=counts, max_parts=max_parts,
+                     top=top, source=None if stock is None else str(stock))
+    if as_json:
+        print_json(result.to_dict())
+        return
+    unit = PART_UNITS[k]
+    t = _table(f"Combinations for {fq(target, unit, 5)} from {result.source}",
+               ("#", "parts", "value", "error"))
+    for i, c in enumerate(result.combinations, start=1):
+        err = 0.0 if abs(c.error) < 5e-6 else c.error * 100
+        t.add_row(str(i), c.describe(), fq(c.value, unit, 6), f"{err:+.3f} %")
+    stdout.print(t)
+    _print_lines([f"Caution: {c}" for c in result.cautions], "yellow")
+
+
+# --- trim -----------------------------------------------------------------------------------
+
+_TRIM_EXAMPLE = """
+Example:
+
+  benchfit fit hc07.wav --json > hc07_fit.json
+  benchfit design trim --fit hc07_fit.json --target 50 --bank 22u,10u,1u
+  benchfit design trim --fit hc07_fit.json --target 50 --timer-frequency 50.61 --ra 1k --rb 9.1k --c1 1.5u --supply 12
+"""
+
+
+def _read_fit(path: Path):
+    from benchfit.cli.common import fail
+    from benchfit.fit.result import FitResult
+
+    if not path.is_file():
+        fail(f"{path}: fit file not found — save one with 'benchfit fit CAPTURE --json > FILE'")
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as e:
+        fail(f"{path}: not a JSON file ({e}) — save one with 'benchfit fit CAPTURE --json > FILE'")
+    try:
+        return FitResult.from_dict(data)
+    except (KeyError, TypeError, AttributeError, ValueError) as e:
+        fail(f"{path}: not a benchfit fit result (missing or bad {e}) — use the output of 'benchfit fit --json'")
+
+
+@design_app.command("trim", help="From a unit's fit, the one part change that brings it to the target "
+                    "frequency, with the predicted result." + _TRIM_EXAMPLE)
+def trim_command(
+    fit: Path = typer.Option(..., "--fit", help="JSON from 'benchfit fit --model lc-lowpass --json'."),
+    target: str = typer.Option(..., "--target", help="Wanted frequency (Hz)."),
+    series: str = typer.Option("E12", "--series", help="Series for capacitors to add."),
+    max_parts: int = typer.Option(2, "--max-parts", help="At most this many capacitors to add (1 to 3)."),
+    part_tolerance: Optional[str] = typer.Option(None, "--part-tolerance",
+                                                 help="Tolerance of added capacitors (default: the series')."),
+    bank: Optional[str] = typer.Option(None, "--bank", help="Nominal values of the present capacitor bank, "
+                                       "comma-separated, e.g. 22u,10u,1u."),
+    timer_frequency: Optional[str] = typer.Option(None, "--timer-frequency", help="Measured timer frequency (Hz)."),
+    timer_frequency_u: Optional[str] = typer.Option(None, "--timer-frequency-u",
+                                                    help="Its standard uncertainty (Hz)."),
+    ra: Optional[str] = typer.Option(None, "--ra", help="Timer RA (Ω)."),
+    rb: Optional[str] = typer.Option(None, "--rb", help="Timer RB (Ω)."),
+    c1: Optional[str] = typer.Option(None, "--c1", help="Timer C1 (F)."),
+    supply: Optional[str] = typer.Option(None, "--supply", help="Supply voltage (V): enables control-pin advice."),
+    control_voltage: Optional[str] = typer.Option(None, "--control-voltage",
+                                                  help="Present control-pin voltage (V), if held."),
+    diode: bool = typer.Option(False, "--diode", help="The timer has a diode across RB."),
+    resistor_series: str = typer.Option("E24", "--resistor-series", help="Series for a new RB."),
+    tolerance_r: str = typer.Option("1%", "--tolerance-r", help="Tolerance of a new RB."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
+) -> None:
+    from benchfit.cli.common import fail, print_json, stdout
+    from benchfit.design.trim import suggest_trim
+    from benchfit.units import format_quantity as fq
+    from benchfit.units import format_with_uncertainty as fu
+
+    fit_result = _read_fit(fit)
+    timer_args = {"--ra": ra, "--rb": rb, "--c1": c1}
+    if timer_frequency is not None and any(v is None for v in timer_args.values()):
+        missing = ", ".join(k for k, v in timer_args.items() if v is None)
+        fail(f"--timer-frequency: also give {missing} — the timer's nominal parts")
+    bank_values = None
+    if bank is not None:
+        bank_values = [parse_part_value(x, "--bank", "C") for x in bank.split(",") if x.strip()]
+        if not bank_values:
+            fail("--bank: no values — list the bank's capacitors, e.g. 22u,10u,1u")
+    advice = suggest_trim(
+        fit_result, _opt_value(target, "--target"), series=series, max_parts=max_parts,
+        part_tolerance=None if part_tolerance is None else parse_fraction(part_tolerance, "--part-tolerance"),
+        bank=bank_values, timer_frequency_hz=_opt_value(timer_frequency, "--timer-frequency"),
+        timer_frequency_u_hz=_opt_value(timer_frequency_u, "--timer-frequency-u"),
+        ra_ohm=_opt_value(ra, "--ra"), rb_ohm=_opt_value(rb, "--rb"), c1_farad=_opt_value(c1, "--c1"),
+        supply_v=_opt_value(supply, "--supply"),
+        control_voltage_v=_opt_value(control_voltage, "--control-voltage"), diode=diode,
+        resistor_series=resistor_series, resistor_tolerance=parse_fraction(tolerance_r, "--tolerance-r"))
+    if as_json:
+        print_json(advice.to_dict())
+        return
+    t = _table(f"Trim advice for {advice.source or 'the unit'} → {advice.target_hz:g} Hz",
+               ("change", "now", "exact need", "before", "predicted (k = 1)", "95 % interval (k = 2)"))
+    for c in advice.changes:
+        iv = c.interval(2.0)
+        need = fu(c.needed, c.needed_u, c.unit) if c.needed_u else fq(c.needed, c.unit, 5)
+        t.add_row(c.action, fq(c.present, c.unit, 5), need, f"{c.before_hz:.4f} Hz",
+                  fu(c.predicted_hz, c.predicted_u_hz, "Hz"),
+                  "—" if iv is None else f"{iv[0]:.3f} Hz to {iv[1]:.3f} Hz")
+    stdout.print(t)
+    _print_lines(list(advice.notes))
+    _print_lines([f"Caution: {c}" for c in advice.cautions] + [_CAUTION], "yellow")
