@@ -30,10 +30,12 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.fit.circuits import PARAMETER_NAMES, LowpassParts, simulate, transfer, free_response_basis
+from benchfit.fit.circuits import (PARAMETER_NAMES, LowpassParts, free_response_basis, second_order,
+                                   simulate, transfer)
 from benchfit.fit.identify import (Identification, correlations, derived_values, fit_log_parameters,
                                    identify, parameter_table, undetermined_warning)
-from benchfit.fit.result import PARAMETER_UNITS, FitCurves, FitParameter, FitQuality, FitResult
+from benchfit.fit.result import (PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality,
+                                FitResult)
 
 __all__ = ["fit_lowpass", "MethodOption", "MODEL_NAME"]
 
@@ -83,6 +85,12 @@ def check_parts(fix: Mapping[str, float] | None, guess: Mapping[str, float] | No
             clean[name] = v
         out.append(clean)
     return out[0], out[1]
+
+
+def display_unit(name: str) -> str:
+    """Unit of a part for people (Ω rather than the JSON contract's "ohm")."""
+    u = PARAMETER_UNITS[name]
+    return "Ω" if u == "ohm" else u
 
 
 def pick_channels(cap, drive: str | int | None, response: str | int | None) -> tuple[int, int]:
@@ -151,9 +159,12 @@ def start_parts(w0: float, q: float, dc_gain: float | None, fix: Mapping[str, fl
 
 def solve(residual, start: dict[str, float], fix: Mapping[str, float],
           extra: Mapping[str, tuple[float, float, float]] | None = None):
-    """Fit the free parts (and extras); fold an undetermined ESR into Rs and refit.
+    """Fit the free parts (and extras); fold an undetermined ESR into Rs and refit; look for a
+    second, equally good solution.
 
-    Returns (values, ident, folded, warnings, success, message).
+    Returns (values, ident, fixed, folded, warnings, success, message, alternatives) where
+    ``alternatives`` lists other solutions whose χ² is within 4 of the best (a two-fold
+    ambiguity that a local analysis cannot see, e.g. losses in Rs versus in Rload).
     """
     fixed = dict(fix)
     folded: list[str] = []
@@ -175,24 +186,103 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
                             "was set to 0 and Rs holds Rs + ESR — measure the ESR and pass --fix Resr=… "
                             "to split them")
             continue
-        return values, ident, fixed, folded, warnings, ok, msg
+        break
+    alternatives: list[dict[str, float]] = []
+    if {"Rs", "Rload"} <= set(free) and not {"L", "C"} <= set(ident.undetermined):
+        dof = max(residual(values).size - len(names), 1)
+        best_total = ident.chi2_red * dof
+        for factor in (0.02, 50.0):
+            st = dict(values)
+            # move the losses between the load and Rs, keeping the damping term
+            # a1 ≈ L/Rload + C·(Rs + Resr) unchanged
+            st["Rload"] = values["Rload"] * factor
+            z2 = values["L"] / values["C"]
+            rs = values["Rs"] + z2 * (1.0 / values["Rload"] - 1.0 / st["Rload"])
+            st["Rs"] = max(rs, 1e-3 * math.sqrt(z2))
+            ex = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()} if extra else None
+            v2, n2, j2, c2, ok2, msg2 = fit_log_parameters(residual, st, free, fixed, ex)
+            total2 = c2 * dof
+            if total2 < best_total - 1e-6 * max(best_total, 1.0):
+                alternatives.append(values)
+                values, ident, ok, msg, best_total = v2, identify(j2, n2, c2), ok2, msg2, total2
+            elif total2 - best_total < 4.0:
+                alternatives.append(v2)
+        alternatives = [a for a in alternatives if _distinct(a, values, ident)]
+    return values, ident, fixed, folded, warnings, ok, msg, alternatives
+
+
+def _distinct(a: Mapping[str, float], b: Mapping[str, float], ident: Identification) -> bool:
+    """True when two solutions differ by more than 3 standard errors (or 5 %) in some part."""
+    for j, n in enumerate(ident.names):
+        if n not in PARAMETER_NAMES:
+            continue
+        sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
+        if abs(math.log(a[n]) - math.log(b[n])) > max(3 * sd, 0.05):
+            return True
+    return False
+
+
+def ambiguity(values: Mapping[str, float], ident: Identification,
+              alternatives: list[dict[str, float]]) -> tuple[Identification, list[str]]:
+    """Mark the parts that differ between equally good solutions as undetermined; warn."""
+    from dataclasses import replace
+
+    from benchfit.units import format_quantity
+
+    if not alternatives:
+        return ident, []
+    bad: list[str] = []
+    cov = ident.cov_log.copy()
+    for j, n in enumerate(ident.names):
+        if n not in PARAMETER_NAMES:
+            continue
+        sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
+        spread = max(abs(math.log(a[n]) - math.log(values[n])) for a in alternatives)
+        if spread > max(3 * sd, 0.05):
+            bad.append(n)
+        elif spread > 3 * sd:  # a small but significant difference: widen the uncertainty
+            cov[j, j] += (spread / 2) ** 2
+    ident = replace(ident, cov_log=cov)
+    if not bad:
+        return ident, []
+    alt = alternatives[0]
+
+    def describe(v):
+        return ", ".join(f"{n} = {format_quantity(v[n], display_unit(n), 3)}" for n in bad)
+
+    target = "Rload" if "Rload" in bad else bad[-1]
+    msg = (f"{', '.join(bad)}: two solutions fit these data equally well ({describe(values)}; or "
+           f"{describe(alt)}) — measure {target} and pass --fix {target}=…")
+    und = tuple(n for n in ident.names if n in set(ident.undetermined) | set(bad))
+    return replace(ident, undetermined=und), [msg]
 
 
 def assemble(cap, method: str, values: dict[str, float], ident: Identification,
              user_fix: Mapping[str, float], folded: list[str], warnings: list[str],
-             curves: FitCurves, quality: FitQuality, success: bool, message: str) -> FitResult:
+             curves: FitCurves, quality: FitQuality, success: bool, message: str,
+             alternatives: list[dict[str, float]] | None = None) -> FitResult:
     """Build the FitResult: parameter table, derived values, correlations and warnings."""
+    ident, amb_warn = ambiguity(values, ident, alternatives or [])
     params = parameter_table(values, ident, {**user_fix, **{n: 0.0 for n in folded}})
     for n in folded:
         params[n] = FitParameter(0.0, None, False, PARAMETER_UNITS[n])
     z0 = math.sqrt(values["L"] / values["C"])
     high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
-    warn = list(warnings) + undetermined_warning(ident.undetermined, high_z)
+    und_plain = tuple(n for n in ident.undetermined if not any(n in w.split(":")[0] for w in amb_warn))
+    warn = list(warnings) + amb_warn + undetermined_warning(und_plain, high_z)
     if not success:
         warn.append(f"fit: the optimiser did not report convergence ({message}) — check the "
                     "capture and try --guess with approximate part values")
+    derived = derived_values(values, ident)
+    for name, dv in list(derived.items()):  # a derived value that differs between solutions
+        if dv.value is None or dv.stderr is None:
+            continue
+        for alt in alternatives or []:
+            other = second_order(_parts(alt))[name]
+            if math.isfinite(other) and abs(other - dv.value) > max(3 * dv.stderr, 1e-9 * abs(dv.value)):
+                derived[name] = DerivedValue(dv.value, None)
     return FitResult(file=source_name(cap), model=MODEL_NAME, method=method, parameters=params,
-                     derived=derived_values(values, ident), correlations=correlations(ident),
+                     derived=derived, correlations=correlations(ident),
                      quality=quality, warnings=tuple(warn), curves=curves, success=success,
                      message=message)
 
@@ -375,7 +465,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
 
     w0, q, b0 = levy_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
     start = start_parts(w0, q, b0, fix, guess)
-    values, ident, fixed, folded, warnings, ok, msg = solve(residual, start, fix)
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix)
     h_model = transfer(fk, _parts(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs
@@ -386,11 +476,12 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                        residual=np.concatenate([(hk - h_model).real, (hk - h_model).imag]))
     quality = quality_complex(hk, h_model)
     if time_domain:
-        values, ident, fixed, folded2, warn2, ok, msg, curves, quality = _time_domain(
+        values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality = _time_domain(
             x, y, fs, values, fixed, fix, hy.sigma, curves)
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
-    return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg)
+    return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
+                    alts)
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
@@ -415,11 +506,11 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
 
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items()}
     fix_now = {k: v for k, v in fixed.items()}
-    values, ident, fixed, folded, warnings, ok, msg = solve(residual, start, fix_now)
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix_now)
     ym = model(values)
     curves = FitCurves(time_s=np.arange(n) / fs, data=y.copy(), model=ym,
                        harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
                        h_model=transfer(curves.harmonic_hz, _parts(values)),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
     folded = [k for k in fixed if k not in user_fix and fixed[k] == 0.0]
-    return values, ident, fixed, folded, warnings, ok, msg, curves, quality_real(y, ym)
+    return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym)
