@@ -459,8 +459,14 @@ def estimate_coupling(x: np.ndarray, sample_rate: float, what: str = "coupling")
     The estimator itself is :func:`benchfit.measurement.pulse.estimate_coupling_tau`; this
     wrapper checks the input and turns "cannot tell" into a one-line MeasureError.
     """
-    from benchfit.measurement import pulse
-
+    try:
+        from benchfit.measurement import pulse
+    except ImportError as e:
+        raise MeasureError(f"{what}: the pulse measurements are not available in this installation "
+                           "— reinstall benchfit") from e
+    if not hasattr(pulse, "estimate_coupling_tau"):
+        raise MeasureError(f"{what}: this benchfit cannot estimate the coupling time constant yet "
+                           "— update benchfit")
     x = np.asarray(x, dtype=np.float64)
     peak = float(np.max(np.abs(x))) if x.size else 0.0
     if peak >= CLIP_FS:

@@ -791,8 +791,9 @@ class TuneReading:
         "V" when a gain calibration applies, else "FS".
     thd_pct : float or None
         THD_F over harmonics 2…``n_harmonics`` below Nyquist (%).
-    duty_cycle_pct : float or None
-        High time / period (%), when the waveform has clean transitions.
+    duty_cycle_pct, duty_cycle_u_pct : float or None
+        High time / period (%, IEEE 181 by the pulse module) and its standard uncertainty,
+        when the waveform is two-level.
     peak_dbfs : float
         Largest raw sample (dBFS).
     clipped : bool
@@ -812,6 +813,7 @@ class TuneReading:
     unit: str
     thd_pct: float | None
     duty_cycle_pct: float | None
+    duty_cycle_u_pct: float | None
     peak_dbfs: float
     clipped: bool
     hint: str
@@ -823,6 +825,7 @@ class TuneReading:
                 "target_hz": self.target_hz, "deviation_hz": self.deviation_hz,
                 "deviation_ppm": self.deviation_ppm, "amplitude": self.amplitude, "rms": self.rms,
                 "unit": self.unit, "thd_pct": self.thd_pct, "duty_cycle_pct": self.duty_cycle_pct,
+                "duty_cycle_u_pct": self.duty_cycle_u_pct,
                 "peak_dbfs": self.peak_dbfs, "clipped": self.clipped, "hint": self.hint,
                 "status": self.status, "warnings": list(self.warnings)}
 
@@ -851,28 +854,24 @@ def direction_hint(deviation_hz: float, u_hz: float, tolerance_hz: float | None 
     return (words, "off-target")
 
 
-def _duty_cycle(x: np.ndarray, fs: float) -> float | None:
-    """Duty cycle (%) from the pulse module when it can tell; None for a sine or no edges."""
+def _duty_cycle(x: np.ndarray, fs: float, coupling_tau_s: float | None) -> tuple[float | None, float | None]:
+    """Duty cycle and its standard uncertainty (%) by IEEE 181 (high time / period); (None, None)
+    when the wave is not two-level (a filtered sine) or has no complete period."""
+    from benchfit.measurement.pulse import pulse_parameters
+
     try:
-        from benchfit.measurement import pulse
-    except ImportError:
-        return None
-    fn = getattr(pulse, "duty_cycle", None)
-    if fn is None:
-        return None
-    try:
-        value = fn(x, fs)
+        res = pulse_parameters(x, fs, coupling_tau_s=coupling_tau_s)
     except MeasureError:
-        return None
-    value = getattr(value, "duty_cycle_pct", value)
-    if value is None or not math.isfinite(float(value)):
-        return None
-    return float(value)
+        return None, None
+    if not res.two_level or res.duty_cycle_pct is None:
+        return None, None
+    return float(res.duty_cycle_pct), res.duty_cycle_u_pct
 
 
 def analyse_window(x: np.ndarray, sample_rate: float, target_hz: float, *,
                    gain_v_per_fs: float | None = None, timebase_u_ppm: float = 0.0,
-                   n_harmonics: int = 10, tolerance_hz: float | None = None) -> TuneReading:
+                   coupling_tau_s: float | None = None, n_harmonics: int = 10,
+                   tolerance_hz: float | None = None) -> TuneReading:
     """The tuning readout of one window of one channel.
 
     Parameters
@@ -887,6 +886,9 @@ def analyse_window(x: np.ndarray, sample_rate: float, target_hz: float, *,
         Channel gain (V/FS); amplitudes are then in volts.
     timebase_u_ppm : float
         Standard uncertainty of the timebase correction (ppm), added in quadrature.
+    coupling_tau_s : float, optional
+        Input coupling time constant (s) from the profile, for the duty cycle; when None the
+        pulse module estimates the droop from the window itself.
     n_harmonics : int
         Harmonics fitted (THD is over orders 2…n_harmonics).
     tolerance_hz : float, optional
@@ -915,11 +917,12 @@ def analyse_window(x: np.ndarray, sample_rate: float, target_hz: float, *,
     warnings = []
     if not fit.converged:
         warnings.append("frequency fit did not settle — the tone may be drifting or noisy")
+    duty, duty_u = _duty_cycle(x, sample_rate, coupling_tau_s)
     clipped = peak >= CLIP_FS
     if clipped:
         warnings.append("input clipped (≥ −0.1 dBFS) — lower the level")
     return TuneReading(frequency_hz=f, frequency_u_hz=u, target_hz=target_hz, deviation_hz=dev,
                        deviation_ppm=dev / target_hz * 1e6, amplitude=a1 * g,
                        rms=float(np.std(x)) * g, unit="V" if gain_v_per_fs is not None else "FS",
-                       thd_pct=thd, duty_cycle_pct=_duty_cycle(x, sample_rate), peak_dbfs=to_dbfs(peak),
+                       thd_pct=thd, duty_cycle_pct=duty, duty_cycle_u_pct=duty_u, peak_dbfs=to_dbfs(peak),
                        clipped=clipped, hint=hint, status=status, warnings=tuple(warnings))
