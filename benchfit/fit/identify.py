@@ -142,6 +142,13 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
         return out
 
     x0 = np.array([math.log(start[n]) for n in free] + [extra[n][0] for n in extra])
+    n_res = residual(values_from(x0)).size
+    if n_res <= len(names):
+        from benchfit.errors import FitError
+
+        raise FitError(f"fit: the data give only {n_res} numbers for {len(names)} unknowns "
+                       f"({', '.join(names)}) — fix known parts with --fix, or capture a drive "
+                       "whose harmonics reach further above the noise")
     if names:
         params = lmfit.Parameters()
         for n in free:

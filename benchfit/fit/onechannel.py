@@ -1,0 +1,159 @@
+"""One-channel lc-lowpass fit: only the filter's output was captured (the sound-card case).
+
+The drive is modelled as a rectangular wave at the measured fundamental f, high for a
+fraction D of each period (given with ``drive_duty`` or fitted), with unknown gain G (an
+AC-coupled capture has unknown scale and no DC) and unknown time offset τ. Its phasors are
+P_k(D) = (2/(kπ))·sin(kπD)·e^{−jkπD} (REFERENCES §5), so the output phasors are modelled as
+
+    Y_k = G · P_k(D) · e^{−jkωτ} · H(jkω)
+
+and fitted (whitened complex residuals) for k = 1…K, K being the highest order that stands
+above the noise. G is solved linearly at every step (variable projection). Because G is
+free, only the *ratios* |H(kω)|/|H(ω)| and the relative phases matter: the data determine
+the shape of H — resonant frequency, Q and the ESR zero — but not the impedance scale
+(one part must be fixed, usually L) and hardly the load. A rectangular wave of duty D and
+its inverse of duty 1 − D differ only in sign and timing, so D is reported as the smaller
+of the two. When the capture's input coupling time constant is known
+(``Capture.calibration.coupling_tau_s``) the phasors are corrected for that high-pass first.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Mapping
+
+import numpy as np
+
+from benchfit.errors import FitError
+from benchfit.fit.circuits import LowpassParts, rectangular_phasors, transfer
+from benchfit.fit.lowpass import (MAX_ORDER, SIGNIFICANCE, assemble, check_not_silent, complex_mult_cov,
+                                  quality_complex, solve, source_name, start_parts, whiten, whitening)
+from benchfit.fit.result import FitCurves
+
+__all__ = ["fit_one_channel"]
+
+_DUTY_MIN = 0.02
+
+
+def _parts(v: Mapping[str, float]) -> LowpassParts:
+    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"])
+
+
+def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
+                duty: float | None) -> tuple[float, float, float]:
+    """Coarse start (f0/f, Q, D) from the output phasors, independent of gain and timing.
+
+    The timing offset τ cancels in Z_k = Y_k·(Y₁*/|Y₁|)^k, which the model predicts as
+    G·s^k·N_k with N_k = M_k·(M₁*/|M₁|)^k, M_k = P_k(D)·H₂(k) and s = sign(G). H₂ is the plain
+    two-pole response 1/(1 − (k/r)² + j·k/(r·Q)) with r = f0/f. G is solved in closed form at
+    each grid point, for both signs.
+    """
+    r = np.geomspace(0.15, 40.0, 90)
+    q = np.geomspace(0.2, 60.0, 30)
+    d = np.array([duty]) if duty is not None else np.linspace(_DUTY_MIN, 0.5, 25)
+    w = 1.0 / np.maximum(amp_u, 1e-300) ** 2
+    rot = np.conj(yk[0]) / max(abs(yk[0]), 1e-300)
+    z = yk * rot ** k
+    pk = rectangular_phasors(k[None, :], d[:, None])  # (D, K)
+    kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
+    h2 = 1.0 / (1.0 - kr ** 2 + 1j * kr / q[None, :, None])  # (R, Q, K)
+    m = h2[:, :, None, :] * pk[None, None, :, :]  # (R, Q, D, K)
+    m1 = m[..., :1]
+    n = m * (np.conj(m1) / np.maximum(np.abs(m1), 1e-300)) ** k
+    best = (math.inf, 0, 0, 0)
+    for sign in (1.0, -1.0):
+        ns = n * np.where(k % 2 == 0, sign, 1.0)
+        num = np.sum(w * (np.conj(ns) * z).real, axis=-1)
+        den = np.sum(w * np.abs(ns) ** 2, axis=-1)
+        g = num / np.maximum(den, 1e-300)
+        cost = -g * num  # Σw|z|² − 2g·num + g²·den, minus the constant, at the optimal g
+        idx = np.unravel_index(int(np.argmin(cost)), cost.shape)
+        if cost[idx] < best[0]:
+            best = (float(cost[idx]), *idx)
+    _, i, j, l = best
+    return float(r[i]), float(q[j]), float(d[l])
+
+
+def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],
+                    drive_duty: float | None):
+    """Fit the lc-lowpass model to the output channel ``ri`` alone (see the module docstring)."""
+    from benchfit.measurement.tone import fit_harmonics, fit_tone
+
+    where = source_name(cap)
+    fs = cap.sample_rate
+    y = np.asarray(cap.samples[ri], dtype=float)
+    name = cap.channel_names[ri]
+    check_not_silent(y, cap, ri, "response")
+    tone = fit_tone(y, fs, n_harmonics=9)
+    if tone is None or tone.amplitudes[0] <= SIGNIFICANCE * tone.amplitudes_u[0]:
+        raise FitError(f"{where}: channel {name!r} has no periodic content — capture a few periods of "
+                       "the filter's output while the drive runs, or use --model ringdown")
+    f = tone.frequency_hz
+    kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
+    hy_all = fit_harmonics(y, fs, f, kmax)
+    strong = np.nonzero(hy_all.amplitudes > SIGNIFICANCE * hy_all.amplitudes_u)[0]
+    if strong.size < 2:
+        raise FitError(f"{where}: only the fundamental of {name!r} stands above the noise, so its "
+                       "shape says nothing about the filter — record longer, or capture the drive "
+                       "too and use --method two-channel")
+    orders = np.arange(1, int(hy_all.orders[strong[-1]]) + 1)
+    hy = fit_harmonics(y, fs, f, orders=orders)
+    yk = hy.phasors
+    cov = hy.phasor_cov
+    tau_c = cap.calibration.coupling_tau_s
+    fk = orders * f
+    if tau_c:
+        jwt = 2j * math.pi * fk * tau_c
+        corr = (1.0 + jwt) / jwt  # undo the input's first-order high-pass
+        yk = yk * corr
+        cov = complex_mult_cov(corr, cov)
+    w = whitening(cov)
+    wy = whiten(w, yk)
+    k = orders.astype(float)
+
+    def model_phasors(v: Mapping[str, float]) -> np.ndarray:
+        duty = v["duty"] if "duty" in v else drive_duty
+        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, _parts(v))
+
+    def gain(wm: np.ndarray) -> float:
+        return float(wm @ wy) / max(float(wm @ wm), 1e-300)
+
+    def residual(v: dict[str, float]) -> np.ndarray:
+        wm = whiten(w, model_phasors(v))
+        return wy - gain(wm) * wm
+
+    # start: shape grid on magnitudes, then the timing phase by a scan
+    amp_u = np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1]))
+    duty0 = None if drive_duty is None else min(drive_duty, 1.0 - drive_duty)
+    r0, q0, d0 = _shape_grid(k, yk, amp_u, duty0)
+    start = start_parts(2 * math.pi * f * r0, q0, None, fix, guess)
+    duty_start = drive_duty if drive_duty is not None else d0
+    best = (math.inf, 0.0)
+    for phase in np.linspace(-math.pi, math.pi, 73)[:-1]:
+        v = {**start, "phase": float(phase), "duty": duty_start}
+        r = residual(v)
+        c = float(r @ r)
+        if c < best[0]:
+            best = (c, float(phase))
+    extra = {"phase": (best[1], -4 * math.pi, 4 * math.pi)}
+    if drive_duty is None:
+        extra["duty"] = (d0, _DUTY_MIN * 0.5, 1.0 - _DUTY_MIN * 0.5)
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix, extra)
+    if drive_duty is None:
+        warnings = list(warnings)
+        d = values["duty"]
+        warnings.insert(0, f"duty: the drive's duty cycle was fitted as {100 * min(d, 1 - d):.1f} % "
+                           "(or its complement; the output alone cannot tell which)")
+    mk = model_phasors(values)
+    g = gain(whiten(w, mk))
+    y_model_k = g * mk
+    n_show = min(y.size, int(math.ceil(4 * fs / f)))
+    t = np.arange(n_show) / fs
+    y_model = hy.dc + sum((y_model_k[i] * np.exp(1j * k[i] * 2 * math.pi * f * t)).real
+                          for i in range(k.size))
+    curves = FitCurves(time_s=t, data=y[:n_show].copy(), model=np.asarray(y_model),
+                       harmonic_hz=fk, h_measured=yk, h_model=y_model_k,
+                       h_measured_u=amp_u,
+                       residual=np.concatenate([(yk - y_model_k).real, (yk - y_model_k).imag]))
+    return assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
+                    quality_complex(yk, y_model_k), ok, msg, alts)
