@@ -1,0 +1,256 @@
+"""Ring-down fit: resonant frequency, damped frequency, decay rate and Q from free ringing.
+
+A slow square wave (a few hertz) drives the filter; after each edge the L-C tank rings at
+its damped frequency and the ring decays. This module
+
+1. estimates the ring frequency from the spectrum of the sample differences (which
+   favours the ringing over the slow square) by an interpolated DFT;
+2. finds the edges as upward crossings of a one-ring-period moving average of |Δy|
+   at half its maximum, at least four ring periods apart;
+3. fits each ring, from one ring period after its edge to one ring period before the next
+   (or until the ring has decayed by about 40 dB), with an exponentially damped sinusoid
+   plus baseline, y = c + e^{−αt}(a·cos ω_d t + b·sin ω_d t): variable projection over
+   (α, ω_d) started from the DFT frequency and the slope of the log envelope (the
+   log-decrement idea, REFERENCES §6), then the covariance of all five parameters from the
+   Jacobian (σ² (JᵀJ)⁻¹);
+4. combines the segments by inverse-variance weighted means, the uncertainty scaled up by
+   the Birge ratio √(χ²/(n−1)) when the segments scatter more than their own errors say;
+5. reports ω0 = √(ω_d² + α²) (the characteristic polynomial's roots are −α ± jω_d),
+   f0 = ω0/2π, f_d = ω_d/2π, α, and Q = ω0/(2α), with delta-method uncertainties.
+
+With a fixed L (or C) the other follows from ω0 (light load and small ESR assumed).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Mapping
+
+import numpy as np
+
+from benchfit.errors import FitError
+from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult
+
+__all__ = ["fit_ringdown", "RingSegment", "find_ring_starts", "fit_ring"]
+
+_MIN_PERIODS = 3
+
+
+class RingSegment:
+    """Fit of one ring: ω_d (rad/s), α (1/s), their variances and covariance, and arrays."""
+
+    __slots__ = ("start", "omega", "alpha", "var_omega", "var_alpha", "cov_wa", "t", "data",
+                 "model", "baseline")
+
+    def __init__(self, start, omega, alpha, var_omega, var_alpha, cov_wa, t, data, model, baseline):
+        self.start, self.omega, self.alpha = start, omega, alpha
+        self.var_omega, self.var_alpha, self.cov_wa = var_omega, var_alpha, cov_wa
+        self.t, self.data, self.model, self.baseline = t, data, model, baseline
+
+
+def _moving_average(x: np.ndarray, width: int) -> np.ndarray:
+    width = max(1, int(width))
+    c = np.concatenate([[0.0], np.cumsum(x)])
+    out = (c[width:] - c[:-width]) / width
+    pad = width - 1
+    return np.concatenate([np.full(pad // 2, out[0]), out, np.full(pad - pad // 2, out[-1])])
+
+
+def find_ring_starts(y: np.ndarray, sample_rate: float) -> tuple[list[int], float | None]:
+    """Edge positions (sample indices) and the ring frequency seed in Hz (None if no ring)."""
+    from benchfit.measurement.tone import dft_frequency_seed
+
+    dy = np.diff(y)
+    f_ring = dft_frequency_seed(dy, sample_rate)
+    if f_ring is None or f_ring <= 0:
+        return [], None
+    period = sample_rate / f_ring
+    env = _moving_average(np.abs(dy), int(round(period)))
+    peak = float(np.max(env))
+    if peak <= 0:
+        return [], None
+    above = env > 0.5 * peak
+    rising = np.nonzero(above[1:] & ~above[:-1])[0] + 1
+    if above[0]:
+        rising = np.concatenate([[0], rising])
+    starts: list[int] = []
+    for r in rising:
+        if not starts or r - starts[-1] > 4 * period:
+            starts.append(int(r))
+    return starts, f_ring
+
+
+def _damped(t: np.ndarray, alpha: float, omega: float) -> np.ndarray:
+    e = np.exp(-alpha * t)
+    return np.stack([np.ones_like(t), e * np.cos(omega * t), e * np.sin(omega * t)], axis=1)
+
+
+def fit_ring(t: np.ndarray, y: np.ndarray, omega0: float) -> tuple[np.ndarray, np.ndarray, float]:
+    """Fit c + e^{−αt}(a cos ωt + b sin ωt) to one ring.
+
+    Returns (theta, cov, sigma): theta = [c, a, b, α, ω] (V, V, V, 1/s, rad/s), the 5×5
+    covariance, and the residual standard deviation.
+    """
+    from scipy.optimize import least_squares
+    from scipy.signal import hilbert
+
+    base = float(np.median(y[-max(4, y.size // 4):]))
+    env = np.abs(hilbert(y - base))
+    good = env > 0.1 * env.max()
+    idx = np.nonzero(good)[0]
+    alpha0 = 1.0 / max(t[-1] - t[0], 1e-12)
+    if idx.size > 8:
+        slope = np.polyfit(t[idx], np.log(env[idx]), 1)[0]
+        if slope < 0:
+            alpha0 = -slope
+
+    def resid(z):
+        d = _damped(t, math.exp(z[0]), z[1])
+        coef, *_ = np.linalg.lstsq(d, y, rcond=None)
+        return y - d @ coef
+
+    sol = least_squares(resid, [math.log(alpha0), omega0], x_scale=[1.0, max(0.01 * omega0, 1e-9)],
+                        method="lm", xtol=1e-12, ftol=1e-12)
+    alpha, omega = math.exp(sol.x[0]), float(sol.x[1])
+    d = _damped(t, alpha, omega)
+    coef, *_ = np.linalg.lstsq(d, y, rcond=None)
+    c, a, b = (float(v) for v in coef)
+    e = np.exp(-alpha * t)
+    cs, sn = np.cos(omega * t), np.sin(omega * t)
+    jac = np.stack([np.ones_like(t), e * cs, e * sn, -t * e * (a * cs + b * sn),
+                    t * e * (-a * sn + b * cs)], axis=1)
+    r = y - d @ coef
+    dof = max(t.size - 5, 1)
+    s2 = float(r @ r) / dof
+    scale = np.sqrt(np.sum(jac * jac, axis=0))
+    scale[scale == 0] = 1.0
+    js = jac / scale
+    cov = np.linalg.pinv(js.T @ js) / np.outer(scale, scale) * s2
+    return np.array([c, a, b, alpha, omega]), cov, math.sqrt(s2)
+
+
+def _weighted(values: np.ndarray, variances: np.ndarray) -> tuple[float, float]:
+    """Inverse-variance weighted mean and its uncertainty, scaled by the Birge ratio (≥ 1)."""
+    w = 1.0 / np.maximum(variances, 1e-300)
+    mean = float(np.sum(w * values) / np.sum(w))
+    u = math.sqrt(1.0 / float(np.sum(w)))
+    n = values.size
+    if n >= 2:
+        chi2 = float(np.sum(w * (values - mean) ** 2))
+        u *= max(1.0, math.sqrt(chi2 / (n - 1)))
+    return mean, u
+
+
+def fit_ringdown(capture, *, channel: str | int | None = None,
+                 fix: Mapping[str, float] | None = None) -> FitResult:
+    """Fit the free ringing after the edges of a slow square drive.
+
+    Parameters
+    ----------
+    capture : Capture or path
+        The filter's output (a path is loaded with :func:`benchfit.load`).
+    channel : str or int, optional
+        Channel with the ringing; default: one named out/output/response, else the only
+        or the second channel.
+    fix : mapping, optional
+        ``{"L": henry}`` or ``{"C": farad}``: the other part is then computed from ω0.
+
+    Returns
+    -------
+    FitResult
+        Method "ringdown"; the derived values carry the result.
+    """
+    from benchfit.errors import CaptureError
+    from benchfit.fit.lowpass import _RESPONSE_NAMES, as_capture, check_not_silent, check_parts, source_name
+
+    cap = as_capture(capture)
+    where = source_name(cap)
+    fix_d, _ = check_parts(fix, None, where)
+    unknown = [k for k in fix_d if k not in ("L", "C")]
+    if unknown or len(fix_d) > 1:
+        raise FitError(f"--fix {', '.join(fix_d)}: a ring-down fit can use one known part, L or C — "
+                       "pass only --fix L=… or --fix C=…")
+    try:
+        if channel is not None:
+            ci = cap.channel_index(channel)
+        else:
+            hits = [i for i, n in enumerate(cap.channel_names) if _RESPONSE_NAMES.match(n)]
+            ci = hits[0] if hits else (0 if cap.n_channels == 1 else 1)
+    except CaptureError as e:
+        raise FitError(str(e)) from e
+    name = cap.channel_names[ci]
+    y = np.asarray(cap.samples[ci], dtype=float)
+    check_not_silent(y, cap, ci, "response")
+    fs = cap.sample_rate
+    starts, f_ring = find_ring_starts(y, fs)
+    if not starts or f_ring is None:
+        raise FitError(f"{where}: no ring-down found in {name!r} — capture the filter's output while "
+                       "a slow square wave (a few hertz) drives it")
+    period = fs / f_ring
+    skip = int(math.ceil(period))
+    env = _moving_average(np.abs(np.diff(y, append=y[-1])), int(round(period)))
+    segments: list[RingSegment] = []
+    for i, s in enumerate(starts):
+        a = s + skip
+        b = (starts[i + 1] - skip) if i + 1 < len(starts) else y.size
+        if b - a < _MIN_PERIODS * period:
+            continue
+        # stop once the ring has decayed by about 40 dB (the rest is baseline and noise)
+        seg_env = env[a:b]
+        quiet = np.nonzero(seg_env < 0.01 * seg_env[:skip].max())[0]
+        if quiet.size and quiet[0] > _MIN_PERIODS * period:
+            b = a + int(max(quiet[0], 10 * period))
+            b = min(b, (starts[i + 1] - skip) if i + 1 < len(starts) else y.size)
+        t = np.arange(b - a) / fs
+        theta, cov, _ = fit_ring(t, y[a:b], 2 * math.pi * f_ring)
+        if not (theta[3] > 0 and theta[4] > 0 and np.all(np.isfinite(cov))):
+            continue
+        model = _damped(t, theta[3], theta[4]) @ theta[:3]
+        segments.append(RingSegment(a, theta[4], theta[3], cov[4, 4], cov[3, 3], cov[3, 4], t,
+                                    y[a:b].copy(), model, theta[0]))
+    if not segments:
+        raise FitError(f"{where}: the rings in {name!r} are too short to fit (fewer than "
+                       f"{_MIN_PERIODS} periods between edges) — slow the square drive down")
+    wd, u_wd = _weighted(np.array([s.omega for s in segments]), np.array([s.var_omega for s in segments]))
+    al, u_al = _weighted(np.array([s.alpha for s in segments]), np.array([s.var_alpha for s in segments]))
+    w0 = math.sqrt(wd * wd + al * al)
+    # delta method, ω_d and α treated as independent after averaging
+    dw0 = np.array([wd / w0, al / w0])
+    u_w0 = math.sqrt((dw0[0] * u_wd) ** 2 + (dw0[1] * u_al) ** 2)
+    q = w0 / (2 * al)
+    dq = np.array([wd / (2 * al * w0), al / (2 * al * w0) - w0 / (2 * al * al)])
+    u_q = math.sqrt((dq[0] * u_wd) ** 2 + (dq[1] * u_al) ** 2)
+    two_pi = 2 * math.pi
+    derived = {
+        "resonant_frequency_hz": DerivedValue(w0 / two_pi, u_w0 / two_pi),
+        "q_factor": DerivedValue(q, u_q),
+        "damped_frequency_hz": DerivedValue(wd / two_pi, u_wd / two_pi),
+        "decay_rate_per_s": DerivedValue(al, u_al),
+    }
+    warnings: list[str] = []
+    if len(segments) < 2:
+        warnings.append(f"{name}: only one ring could be fitted, so the spread between rings is not "
+                        "in the uncertainty — capture several edges")
+    params: dict[str, FitParameter] = {}
+    if fix_d:
+        (known, value), = fix_d.items()
+        other = "C" if known == "L" else "L"
+        val = 1.0 / (w0 * w0 * value)
+        params[known] = FitParameter(value, None, True, PARAMETER_UNITS[known])
+        params[other] = FitParameter(val, 2 * val * u_w0 / w0, False, PARAMETER_UNITS[other])
+        warnings.append(f"{other}: computed from the resonant frequency and the fixed {known}, "
+                        "assuming a light load and a small ESR")
+    data = np.concatenate([s.data - s.baseline for s in segments])
+    model = np.concatenate([s.model - s.baseline for s in segments])
+    res = data - model
+    ss_res = float(res @ res)
+    ss_tot = float(np.sum((data - data.mean()) ** 2))
+    rms = float(np.sqrt(np.mean(data ** 2)))
+    quality = FitQuality(math.sqrt(ss_res / data.size) / rms if rms > 0 else math.nan,
+                         1.0 - ss_res / ss_tot if ss_tot > 0 else math.nan, int(data.size))
+    first = segments[0]
+    curves = FitCurves(time_s=first.t + first.start / fs, data=first.data, model=first.model,
+                       residual=res)
+    return FitResult(file=where, model="ringdown", method="ringdown", parameters=params,
+                     derived=derived, correlations={}, quality=quality, warnings=tuple(warnings),
+                     curves=curves, success=True, message=f"{len(segments)} rings fitted")
