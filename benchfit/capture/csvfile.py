@@ -114,6 +114,11 @@ def _unit(text: str) -> tuple[UnitKind, float] | None:
     return None
 
 
+# units accepted as a bare suffix ("v_out_V", "time_ms"): seconds and volts with small prefixes only, so that
+# "Vertical Min" or "Channel A" keep their last word
+_SUFFIX_UNITS = {("time", f) for f in _TIME_PREFIX.values()} | {("volt", f) for f in _VOLT_PREFIX.values()}
+
+
 def parse_header_unit(header: str) -> tuple[str, str | None]:
     """Split a column header into (name, unit text) — ``"CH A [mV]"`` → ``("CH A", "mV")``.
 
@@ -136,7 +141,7 @@ def parse_header_unit(header: str) -> tuple[str, str | None]:
     if m and _unit(m.group(2)) is not None and _unit(m.group(2))[0] in ("time", "volt"):
         return m.group(1).strip(), m.group(2)
     m = re.match(r"^(.*?[^\s_\-])[\s_\-]+([A-Za-zµμ]+)$", h)
-    if m and _unit(m.group(2)) is not None and _unit(m.group(2))[0] in ("time", "volt"):
+    if m and _unit(m.group(2)) in _SUFFIX_UNITS:
         return m.group(1).strip(), m.group(2)
     if _unit(h) is not None and _unit(h)[0] in ("time", "volt"):
         return "", h
@@ -381,6 +386,7 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
 
     # preamble and comments → metadata
     preamble: dict[str, str] = {}
+    comments: list[str] = []
 
     def keep(key: str, value: str) -> None:
         key, value = key.strip().strip('"').strip(), value.strip().strip('"').strip()
@@ -400,6 +406,8 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
             m = re.match(r"^([^:=]{1,60}?)\s*[:=]\s*(.+)$", body)
             if m:
                 keep(m.group(1), m.group(2))
+            elif body:
+                comments.append(body)
             continue
         cells = _cells(ln, lay) if lay.delim else [s]
         if len(cells) >= 2 and cells[0].strip():
@@ -429,6 +437,8 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
         fast_no = range(start + 1, start + 1 + len(block))
         values = _parse_numbers(block, fast_no, lay, col_names, where, pd, sep=d, joined=joined)
         header_no = head_idx[0] + 1 if names is not None else None
+        if comments:
+            preamble["comments"] = " | ".join(comments)
         return _build(values, fast_no, names, unit_row, preamble, lay, where, sha256, sample_rate, header_no)
     del joined
     data_no: list[int] = []
@@ -457,6 +467,8 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
         raise CaptureError(f"{where}: holds a header but no data rows — export the data again")
 
     header_no = head_idx[0] + 1 if names is not None else None
+    if comments:
+        preamble["comments"] = " | ".join(comments)
     return _build(values, data_no, names, unit_row, preamble, lay, where, sha256, sample_rate, header_no)
 
 
@@ -535,7 +547,7 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
         meta["preamble"] = dict(preamble)
 
     # what the preamble says
-    interval: tuple[float, str] | None = None
+    interval: tuple[float, str, float] | None = None  # (step s, key, rate Hz)
     start_time: float | None = None
     time_unit_hint: tuple[str, float] | None = None
     volt_unit_hint: tuple[str, float] | None = None
@@ -560,9 +572,9 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
             kind = unit[0] if unit else ("time" if nk in _INTERVAL_KEYS else "rate")
             factor = unit[1] if unit else 1.0
             if kind == "time":
-                interval = (parsed[0] * factor, key)
+                interval = (parsed[0] * factor, key, 1.0 / (parsed[0] * factor))
             elif kind == "rate":
-                interval = (1.0 / (parsed[0] * factor), key)
+                interval = (1.0 / (parsed[0] * factor), key, parsed[0] * factor)
         elif nk in _START_KEYS:
             factor = unit[1] if unit and unit[0] == "time" else 1.0
             start_time = parsed[0] * factor
@@ -637,6 +649,7 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
         t = values[:, time_col] * factor
         label = names[time_col] if names else "column 1"
         dt, jitter = _check_time(t, line_no, label, where)
+        fs = 1.0 / dt
         t0 = float(t[0])
         t_src = f"time column {label!r}"
         meta["time_jitter_max_rel"] = jitter
@@ -644,12 +657,13 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
             warnings.append(f"{where}: preamble {interval[1]!r} gives a step of {interval[0]:.6g} s but the time "
                             f"column steps by {dt:.6g} s — the time column is used")
     elif interval is not None:
-        dt, t0 = interval[0], (start_time if start_time is not None else 0.0)
+        dt, t0, fs = interval[0], (start_time if start_time is not None else 0.0), interval[2]
         t_src = f"preamble {interval[1]!r}"
     elif sample_rate is not None:
         if not (math.isfinite(float(sample_rate)) and float(sample_rate) > 0):
             raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — pass e.g. 50000")
-        dt, t0 = 1.0 / float(sample_rate), (start_time if start_time is not None else 0.0)
+        fs = float(sample_rate)
+        dt, t0 = 1.0 / fs, (start_time if start_time is not None else 0.0)
         t_src = "sample rate given by the caller"
         sample_rate = None
     else:
@@ -707,7 +721,7 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
     if names is not None:
         meta["columns"] = list(names)
     samples = values[:, ch_idx].T * np.asarray(scales)[:, np.newaxis]
-    return Capture(samples=samples, sample_rate=1.0 / dt, channel_names=tuple(ch_names),
+    return Capture(samples=samples, sample_rate=fs, channel_names=tuple(ch_names),
                    units=("V",) * len(ch_idx), source=where, sha256=sha256, metadata=meta,
                    warnings=tuple(warnings), t0=t0)
 
