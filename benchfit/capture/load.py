@@ -20,7 +20,7 @@ from benchfit.errors import CaptureError
 
 __all__ = ["load", "file_sha256"]
 
-CSV_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".prn")
+CSV_SUFFIXES = (".csv", ".txt", ".tsv")
 _CHUNK = 1 << 20
 
 
