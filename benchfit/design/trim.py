@@ -166,10 +166,28 @@ def _parallel_only(target: float, series: str, max_parts: int) -> Combination:
     return ok[0] if ok else found.best
 
 
+#: above this |correlation| of L and C the fit has in effect determined only their product
+#: (a tuned low-pass separates L from C only through the small L/Rload term)
+SEPARATE_LC_MAX_CORRELATION = 0.999
+#: tolerance assumed for the capacitor bank when its make-up is given and the fit did not
+#: determine C (aluminium electrolytics are commonly ±20 %; common practice, no source)
+BANK_TOLERANCE = 0.20
+
+
 def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int = 2,
-                   part_tolerance: float | None = None,
-                   bank: Sequence[float] | None = None) -> tuple[TrimChange, list[str]]:
+                   part_tolerance: float | None = None, bank: Sequence[float] | None = None,
+                   bank_tolerance: float = BANK_TOLERANCE) -> tuple[TrimChange, list[str]]:
     """The capacitance change that moves the fitted resonance to ``target_hz``.
+
+    Three cases, by what the fit determined:
+
+    * L and C separately (both with a standard error, |ρ(L, C)| ≤ 0.999): the new resonance
+      is propagated from L and C with their correlation;
+    * C fixed in the fit (``--fix C=…``, e.g. the bank measured on a meter): f0 and its
+      standard error, C taken as exact;
+    * otherwise only the product LC is known: f0 and its standard error with C taken from
+      ``bank`` (the sum of its nominal values, ±``bank_tolerance`` rectangular) or, without a
+      bank, the fit's C, whose error the prediction then cannot include (a note says so).
 
     Parameters
     ----------
@@ -185,8 +203,10 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
         Tolerance of the added part(s) as a fraction, treated as rectangular (u = tol/√3).
         None: the conventional tolerance of ``series``; 0 for parts measured before fitting.
     bank : sequence of float, optional
-        Nominal values (F) of the capacitors that make up the present bank; used to say which
-        one to remove or swap when C must decrease.
+        Nominal values (F) of the capacitors that make up the present bank; used when the fit
+        did not determine C, and to say which one to remove or swap when C must decrease.
+    bank_tolerance : float
+        Tolerance of the bank's nominal sum as a fraction (rectangular).
 
     Returns
     -------
@@ -211,58 +231,81 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
         raise DesignError(f"{fit.file}: the fit has no resonant frequency — fit again with L and C")
     tol = SERIES_TOLERANCE[name] if part_tolerance is None else float(part_tolerance)
     if not math.isfinite(tol) or tol < 0 or tol >= 1:
-        raise DesignError(f"tolerance: {part_tolerance!r} must be a fraction from 0 to below 1")
+        raise DesignError(f"part-tolerance: {part_tolerance!r} must be a fraction from 0 to below 1")
+    if not math.isfinite(bank_tolerance) or not 0 <= bank_tolerance < 1:
+        raise DesignError(f"bank-tolerance: {bank_tolerance!r} must be a fraction from 0 to below 1")
     notes: list[str] = []
-    c_new = cv * (f0 / target) ** 2
-    delta = c_new - cv
-    # relative standard uncertainties and correlation of L and C as the fit determined them
-    l_ok = lv is not None and lv > 0 and (lfixed or lu is not None)
-    c_ok = cfixed or cu is not None
-    if l_ok and c_ok:
-        rl = 0.0 if lfixed or lu is None else lu / lv
-        rc = 0.0 if cfixed or cu is None else cu / cv
-        rho = _correlation(fit, "L", "C") if rl and rc else 0.0
-        route = "LC"
-        needed_u = math.sqrt((c_new * rl) ** 2 + (cv * rc) ** 2 + 2 * c_new * cv * rho * rl * rc)
-        if cfixed:
-            notes.append(f"C was fixed at {cv:.5g} F in the fit: the advice is only as good as that value "
-                         "(an error of ε in it changes the capacitance to add by about ε × the bank)")
-        if lfixed:
-            notes.append(f"L was fixed at {lv:.5g} H in the fit: the advice assumes that value")
-    else:
-        route = "f0"
-        rf = 0.0 if f0u is None else f0u / f0
-        needed_u = 2 * c_new * rf
-        notes.append(f"L and C were not determined separately by the fit: the advice works from the "
-                     f"resonance f0 = {f0:.5g} Hz and the fit's C = {cv:.5g} F, whose ratio fixes the "
-                     "change; an error ε in that C changes the capacitance to add by the same fraction")
-        if f0u is None:
-            notes.append("the fit gave no uncertainty for f0, so the prediction has none")
     from benchfit.units import format_quantity as fq
 
+    rho = _correlation(fit, "L", "C")
+    separate = (not cfixed and cu is not None and lv is not None and lv > 0 and not lfixed
+                and lu is not None and abs(rho) <= SEPARATE_LC_MAX_CORRELATION)
+    rl = rc = 0.0
+    rc_known = True
+    c_ref = cv
+    if separate:
+        route = "LC"
+        rl, rc = lu / lv, cu / cv
+        notes.append(f"L and C determined separately by the fit (correlation {rho:+.4f}); their "
+                     "uncertainties and correlation are propagated")
+    elif cfixed:
+        route = "f0"
+        notes.append(f"C was fixed at {fq(cv, 'F', 5)} in the fit: the advice takes it as exact — an error "
+                     "ε in it changes the capacitance to add by the same fraction ε")
+    else:
+        route = "f0"
+        why = ("C has no standard error" if cu is None else
+               f"L and C are {abs(rho):.5f} correlated" if lv is not None else "L is missing")
+        if bank:
+            c_ref = float(sum(_pos(v, "bank value") for v in bank))
+            rc = bank_tolerance / math.sqrt(3.0)
+            notes.append(f"the fit did not determine C by itself ({why}): the advice works from "
+                         f"f0 = {f0:.6g} Hz and the bank's nominal {fq(c_ref, 'F', 5)} "
+                         f"(±{bank_tolerance * 100:g} %, rectangular, included)")
+        else:
+            rc_known = False
+            notes.append(f"the fit did not determine C by itself ({why}): the advice works from "
+                         f"f0 = {f0:.6g} Hz and the fit's C = {fq(cv, 'F', 5)}; an error ε in that C "
+                         "changes the capacitance to add by the same fraction and is NOT in the "
+                         "prediction — give the bank's make-up (--bank) or fix C in the fit")
+    c_new = c_ref * (f0 / target) ** 2
+    delta = c_new - c_ref
+    # standard uncertainty of the needed total C: C_new = (a0/a2 ratio)/(ω²L) in the LC case,
+    # C_ref·(f0/F)² otherwise
+    if route == "LC":
+        needed_u = c_new * rl
+    else:
+        rf = 0.0 if f0u is None else f0u / f0
+        needed_u = c_new * math.hypot(2 * rf, rc)
     if delta >= 0:
         combo = _parallel_only(delta, name, max_parts)
         what = combo.describe().removesuffix(" in parallel")
         action = f"add {what} across the capacitor bank"
-        kept, new = cv, combo.value
+        kept, new = c_ref, combo.value
     else:
-        combo, action, kept, new = _decrease(cv, c_new, -delta, name, bank, max_parts, notes)
-    # after the change: the kept share of the fitted C (same relative error as C) plus new parts
+        combo, action, kept, new = _decrease(c_ref, c_new, -delta, name, bank, max_parts, notes)
+    # after the change: the kept share of the present C (same relative error as C) plus new parts
     c_after = kept + new
-    predicted = f0 * math.sqrt(cv / c_after)
+    predicted = f0 * math.sqrt(c_ref / c_after)
     w = kept / c_after
     u_part = tol * new / math.sqrt(3.0)
     if route == "LC":
+        # ln f_new = const − ½ ln L − ½ ln(kept + new)
         var_rel = 0.25 * (rl ** 2 + (w * rc) ** 2 + 2 * w * rho * rl * rc)
     else:
-        var_rel = (0.0 if f0u is None else (f0u / f0) ** 2)
+        # ln f_new = ln f0 + ½ ln C − ½ ln(kept + new): C enters with ½(1 − w)
+        var_rel = (0.0 if f0u is None else (f0u / f0) ** 2) + (0.5 * (1 - w) * rc) ** 2
     var_rel += 0.25 * (u_part / c_after) ** 2
     pred_u = None if (route == "f0" and f0u is None) else predicted * math.sqrt(var_rel)
+    if f0u is None and route == "f0":
+        notes.append("the fit gave no uncertainty for f0, so the prediction has none")
     if tol > 0:
         notes.append(f"prediction includes ±{tol * 100:g} % tolerance of the added part(s) (rectangular)")
+    if not rc_known:
+        notes.append("the prediction's uncertainty leaves out the error of C (see above)")
     notes.append(f"computed with every other part unchanged (f0 ∝ 1/√C); the added part's ESR and "
                  f"leads are neglected — needed C {fq(c_new, 'F', 5)} for {target:g} Hz")
-    change = TrimChange("capacitor", action, "C", "F", cv, c_new, needed_u, c_after, combo,
+    change = TrimChange("capacitor", action, "C", "F", c_ref, c_new, needed_u, c_after, combo,
                         predicted, pred_u, f0)
     return change, notes
 
@@ -389,6 +432,7 @@ def timer_trim(timer_hz: float, target_hz: float, *, ra_ohm: float, rb_ohm: floa
 
 def suggest_trim(fit_result, target_hz: float, *, series: str = "E12", max_parts: int = 2,
                  part_tolerance: float | None = None, bank: Sequence[float] | None = None,
+                 bank_tolerance: float = BANK_TOLERANCE,
                  timer_frequency_hz: float | None = None, timer_frequency_u_hz: float | None = None,
                  ra_ohm: float | None = None, rb_ohm: float | None = None, c1_farad: float | None = None,
                  supply_v: float | None = None, control_voltage_v: float | None = None,
@@ -403,7 +447,7 @@ def suggest_trim(fit_result, target_hz: float, *, series: str = "E12", max_parts
         ``benchfit fit --json``). None for timer advice only.
     target_hz : float
         Wanted frequency (Hz): the filter's resonance and the timer's frequency.
-    series, max_parts, part_tolerance, bank
+    series, max_parts, part_tolerance, bank, bank_tolerance
         See :func:`capacitor_trim`.
     timer_frequency_hz, timer_frequency_u_hz, ra_ohm, rb_ohm, c1_farad, supply_v,
     control_voltage_v, diode, resistor_series, resistor_tolerance
@@ -420,7 +464,8 @@ def suggest_trim(fit_result, target_hz: float, *, series: str = "E12", max_parts
     source = "" if fit_result is None else fit_result.file
     if fit_result is not None:
         change, n = capacitor_trim(fit_result, target, series=series, max_parts=max_parts,
-                                   part_tolerance=part_tolerance, bank=bank)
+                                   part_tolerance=part_tolerance, bank=bank,
+                                   bank_tolerance=bank_tolerance)
         changes.append(change)
         notes += n
     if timer_frequency_hz is not None:
