@@ -184,11 +184,11 @@ def _report_recording(result, json_out: bool) -> None:
 # --------------------------------------------------------------------------------------
 def _freq_text(f: float, u: float) -> str:
     """Frequency with at least mHz resolution and its standard uncertainty (2 significant digits)."""
-    if not (u > 0):
-        return f"{f:.3f} Hz"
+    if not (u > 0):  # a noise-free (synthetic) signal: the fit leaves no residual
+        return f"{f:.6f} ± <0.000001 Hz"
     d = max(3, 1 - math.floor(math.log10(u)))
     if d > 6:
-        return f"{f:.6f} Hz ± {u:.1e} Hz"
+        return f"{f:.6f} ± {u:.1e} Hz"
     return f"{f:.{d}f} ± {u:.{d}f} Hz"
 
 
