@@ -59,7 +59,7 @@ def _pos(value: float | None, name: str) -> float:
 def _fraction(value: float, name: str, *, upper_open: bool = True) -> float:
     v = float(value)
     if not math.isfinite(v) or v < 0 or v >= 1:
-        raise DesignError(f"{name}: {value!r} must be a fraction from 0 to below 1 (e.g. 0.05 for 5 %)")
+        raise DesignError(f"{name}: {value!r} must be a fraction from 0 to below 1 — write e.g. 0.05 for 5 %")
     return v
 
 
@@ -387,7 +387,7 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
     if duty is not None:
         d_t = float(duty)
         if not math.isfinite(d_t) or not 0 < d_t < 1:
-            raise DesignError(f"duty: {duty!r} must be between 0 and 1 (e.g. 0.55 for 55 %)")
+            raise DesignError(f"duty: {duty!r} must be between 0 and 1 — write e.g. 0.55 for 55 %")
         if not diode and d_t <= d_min:
             raise DesignError(
                 f"duty: {d_t * 100:.4g} % is impossible with the basic astable, whose high time always "

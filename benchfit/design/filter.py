@@ -128,9 +128,9 @@ def rectangular_response(parts, drive_hz: float, *, duty: float = 0.5, amplitude
     f = _pos(drive_hz, "frequency")
     a = _pos(amplitude_v, "amplitude")
     if not 0 < duty < 1:
-        raise DesignError(f"duty: {duty!r} must be between 0 and 1 (e.g. 0.5 for 50 %)")
+        raise DesignError(f"duty: {duty!r} must be between 0 and 1 — write e.g. 0.5 for 50 %")
     if int(n_harmonics) < 2:
-        raise DesignError(f"harmonics: {n_harmonics!r} must be at least 2")
+        raise DesignError(f"harmonics: {n_harmonics!r} must be at least 2 — use e.g. 40")
     k = np.arange(1, int(n_harmonics) + 1)
     h = transfer(k * f, parts)
     if not np.all(np.isfinite(h)):
@@ -246,7 +246,7 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
     load = None if load_ohm is None else _pos(load_ohm, "load")
     _pos(amplitude_v, "amplitude")
     if not 0 < float(duty) < 1:
-        raise DesignError(f"duty: {duty!r} must be between 0 and 1 (e.g. 0.5 for 50 %)")
+        raise DesignError(f"duty: {duty!r} must be between 0 and 1 — write e.g. 0.5 for 50 %")
     if rs == 0 and esr == 0 and load is None:
         raise DesignError("filter: with no --rs, --esr or --load the circuit has no loss and its response at "
                           "f0 is unbounded — give at least --rs (timer output and winding resistance)")
