@@ -47,9 +47,10 @@ def _parts(L: float, C: float, rs: float, esr: float, load: float | None):
 def resonant_frequency(L: float, C: float, *, rs_ohm: float = 0.0, esr_ohm: float = 0.0,
                        load_ohm: float | None = None) -> float:
     """Resonant frequency f0 (Hz) of the lc-lowpass model, √(a0/a2)/2π (see :mod:`benchfit.fit.circuits`)."""
-    from benchfit.fit.circuits import second_order
+    from benchfit.fit.circuits import coefficients
 
-    return second_order(_parts(L, C, rs_ohm, esr_ohm, load_ohm))["resonant_frequency_hz"]
+    _, a = coefficients(_parts(_pos(L, "inductance"), _pos(C, "capacitance"), rs_ohm, esr_ohm, load_ohm))
+    return math.sqrt(float(a[2]) / float(a[0])) / (2 * math.pi)
 
 
 def part_for_resonance(frequency_hz: float, *, inductance: float | None = None,
