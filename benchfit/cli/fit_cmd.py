@@ -1,1 +1,184 @@
-"""(commands registered here by their module owner)"""
+"""``benchfit fit``: back-solve the effective L, C and losses of an L-C low-pass.
+
+Only typer and the standard library are imported at module level; numpy, scipy, lmfit and
+matplotlib load inside the command.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any, List, Optional
+
+import typer
+
+from benchfit.cli.app import app
+
+__all__ = ["fit_command", "render_fit"]
+
+_MODELS = ("lc-lowpass", "ringdown")
+_METHODS = ("auto", "two-channel", "one-channel")
+
+_HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a capture.
+
+Examples:
+
+  benchfit fit HC-03_drive_output.csv --fix L=300m --fix Rload=10k
+
+  benchfit fit HC-05_output.wav --method one-channel --fix L=300m --drive-duty 0.5
+
+  benchfit fit HC-05_ringdown.csv --model ringdown --json
+
+lc-lowpass: drive → Rs → L → output; C in series with its ESR (Resr) to ground; Rload across
+the output. Two-channel (drive and output captured together) fits H(jkω) = Y_k/X_k at the
+drive's harmonics; one-channel fits the output's harmonics against a rectangular drive of
+unknown level and timing, which fixes only the shape of H (f0, Q): pass one known part,
+usually --fix L=…. ringdown fits the free ringing after the edges of a slow square drive.
+Parts the data cannot determine are shown as "not determined" with the part to measure.
+Values are SI with prefixes (300m = 0.3, 33u = 33e-6, 10k = 10 000). ± values are standard
+uncertainties (k = 1).
+
+Safety: a sound-card input takes about 1 V at most. Bring the drive and output to it through
+a resistive divider and a series capacitor; an inductor that is switched off kicks back a
+high voltage, so never connect a choke's ends directly to the input. Keep mains-connected
+circuits away from the computer and follow local codes and qualified practice.
+"""
+
+
+def _fmt(value: float | None, stderr: float | None, unit: str) -> str:
+    from benchfit.units import format_quantity, format_with_uncertainty
+
+    if value is None or not math.isfinite(value):
+        return "—"
+    if stderr is not None and math.isfinite(stderr) and stderr > 0:
+        if stderr < 1e-7 * abs(value):
+            return f"{format_quantity(value, unit, 8)} ± {format_quantity(stderr, unit, 2)}"
+        return format_with_uncertainty(value, stderr, unit)
+    return format_quantity(value, unit, 5)
+
+
+def render_fit(d: dict[str, Any], console) -> None:
+    """Print a fit result (its JSON dict) as tables."""
+    from rich.table import Table
+
+    console.print(f"[bold]{d['file']}[/]  model {d['model']}, method {d['method']}", markup=True,
+                  highlight=False)
+    units = {"ohm": "Ω"}
+    if d["parameters"]:
+        t = Table(title="effective parts", title_justify="left", box=None, pad_edge=False,
+                  header_style="bold", caption="± values are standard uncertainties (k = 1)",
+                  caption_justify="left")
+        for col, just in (("part", "left"), ("value", "right"), ("status", "left")):
+            t.add_column(col, justify=just, no_wrap=True)
+        for name, p in d["parameters"].items():
+            unit = units.get(p["unit"], p["unit"])
+            if p["fixed"]:
+                t.add_row(name, _fmt(p["value"], None, unit), "fixed (given)")
+            elif p["stderr"] is None:
+                shown = "—" if p["value"] is None else f"({_fmt(p['value'], None, unit)})"
+                t.add_row(name, shown, "[yellow]not determined[/]")
+            else:
+                t.add_row(name, _fmt(p["value"], p["stderr"], unit), "fitted")
+        console.print(t)
+    labels = {"resonant_frequency_hz": ("resonant frequency f0", "Hz"),
+              "q_factor": ("Q", ""), "damped_frequency_hz": ("damped frequency", "Hz"),
+              "decay_rate_per_s": ("decay rate α", "1/s")}
+    t = Table(title="resonance", title_justify="left", box=None, pad_edge=False, header_style="bold")
+    t.add_column("quantity", no_wrap=True)
+    t.add_column("value", justify="right", no_wrap=True)
+    for key, (label, unit) in labels.items():
+        dv = d["derived"].get(key)
+        if dv is None:
+            continue
+        if dv["value"] is None:
+            text = "—"
+        elif dv["stderr"] is None:
+            text = f"{_fmt(dv['value'], None, unit)} (not determined)"
+        elif unit == "":
+            text = f"{dv['value']:.5g} ± {dv['stderr']:.2g}"
+        else:
+            text = _fmt(dv["value"], dv["stderr"], unit)
+        t.add_row(label, text)
+    console.print(t)
+    if d["correlations"]:
+        pairs = ", ".join(f"{k}: {v:+.3f}" for k, v in d["correlations"].items() if v is not None)
+        console.print(f"correlations  {pairs}", markup=False, highlight=False)
+    q = d["quality"]
+    nrmse = "—" if q["nrmse"] is None else f"{100 * q['nrmse']:.3g} %"
+    r2 = "—" if q["r_squared"] is None else f"{q['r_squared']:.6f}"
+    console.print(f"fit quality   NRMSE {nrmse}, R² {r2}, {q['n_points']} points", markup=False,
+                  highlight=False)
+    for w in d["warnings"]:
+        console.print(f"[yellow]warning:[/] {w}", markup=True, highlight=False)
+
+
+@app.command("fit", help=_HELP)
+def fit_command(
+    file: Path = typer.Argument(..., help="Capture file: WAV, FLAC or CSV.", show_default=False),
+    model: str = typer.Option("lc-lowpass", "--model", "-m", help="lc-lowpass or ringdown."),
+    method: str = typer.Option("auto", "--method",
+                               help="auto, two-channel or one-channel (lc-lowpass only)."),
+    drive: Optional[str] = typer.Option(None, "--drive", help="Drive channel: name or 1-based number."),
+    response: Optional[str] = typer.Option(None, "--response",
+                                           help="Output channel: name or 1-based number."),
+    fix: Optional[List[str]] = typer.Option(None, "--fix", help="Known part NAME=VALUE (repeatable): "
+                                            "L, C, Rs, Resr, Rload; e.g. --fix L=300m."),
+    guess: Optional[List[str]] = typer.Option(None, "--guess", help="Start value NAME=VALUE (repeatable)."),
+    drive_duty: Optional[str] = typer.Option(None, "--drive-duty", help="One-channel: the drive's duty "
+                                             "cycle, high time / period, as 0.5 or 50%; fitted if omitted."),
+    time_domain: bool = typer.Option(False, "--time-domain", help="Two-channel: refine by simulating "
+                                     "the output from the drive samples (for non-periodic drives)."),
+    as_json: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Write a figure: FILE.svg or FILE.png."),
+    sample_rate: Optional[str] = typer.Option(
+        None, "--sample-rate", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
+) -> None:
+    from benchfit.cli.common import fail, parse_assignments, parse_value, print_json, stderr, stdout
+
+    if model not in _MODELS:
+        fail(f"--model {model!r}: unknown model — use one of {', '.join(_MODELS)}")
+    if method not in _METHODS:
+        fail(f"--method {method!r}: unknown method — use one of {', '.join(_METHODS)}")
+    if plot is not None and plot.suffix.lower() not in (".svg", ".png"):
+        fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
+    names = ("L", "C", "Rs", "Resr", "Rload")
+    fixed = parse_assignments(fix, names, "--fix", zero_ok=("Resr",))
+    guessed = parse_assignments(guess, names, "--guess")
+    duty = None
+    if drive_duty is not None:
+        text = drive_duty.strip()
+        pct = text.endswith("%")
+        duty = parse_value(text.rstrip("%").strip(), "--drive-duty")
+        duty = duty / 100.0 if pct else duty
+        if not 0.0 < duty < 1.0:
+            fail(f"--drive-duty {drive_duty!r}: the duty cycle must lie between 0 and 1 (or 0 % and "
+                 "100 %) — e.g. --drive-duty 0.5")
+    rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
+
+    from benchfit.capture.load import load
+
+    with stderr.status("fitting…", spinner="line"):
+        cap = load(file, sample_rate=rate)
+        if model == "ringdown":
+            from benchfit.fit.ringdown import fit_ringdown
+
+            if guessed or duty is not None or time_domain or drive is not None:
+                fail("--guess, --drive, --drive-duty and --time-domain apply to --model lc-lowpass only "
+                     "— remove them for a ring-down fit")
+            result = fit_ringdown(cap, channel=response, fix=fixed or None)
+        else:
+            from benchfit.fit.lowpass import fit_lowpass
+
+            result = fit_lowpass(cap, method=method, drive=drive, response=response, fix=fixed,
+                                 guess=guessed, drive_duty=duty, time_domain=time_domain)
+    if plot is not None:
+        from benchfit.report.figures import fit_svg, save_figure
+
+        save_figure(fit_svg(result), plot)
+    d = result.to_dict()
+    if as_json:
+        print_json(d)
+    else:
+        render_fit(d, stdout)
+        if plot is not None:
+            stdout.print(f"figure written to {plot}", markup=False, highlight=False)

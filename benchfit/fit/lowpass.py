@@ -170,9 +170,18 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
     folded: list[str] = []
     warnings: list[str] = []
     start = dict(start)
+    # with neither L nor C known the impedance scale is free: pin L at its start value so the
+    # optimiser does not wander along that direction, then analyse with L free again
+    pin = "L" if not ({"L", "C"} & set(fix)) else None
     while True:
-        free = tuple(n for n in PARAMETER_NAMES if n not in fixed)
-        values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, fixed, extra)
+        free = tuple(n for n in PARAMETER_NAMES if n not in fixed and n != pin)
+        pinned = {**fixed, pin: start[pin]} if pin else fixed
+        values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, pinned, extra)
+        if pin:
+            names, jac = _unpinned_jacobian(residual, values, pin, names, extra)
+            dof = max(residual(values).size - len(names), 1)
+            r0 = residual(values)
+            chi2 = float(r0 @ r0) / dof
         ident = identify(jac, names, chi2)
         only_scale = {"L", "C"} <= set(ident.undetermined)
         if "Resr" in ident.undetermined and "Resr" not in fixed and not only_scale:
@@ -209,6 +218,23 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
                 alternatives.append(v2)
         alternatives = [a for a in alternatives if _distinct(a, values, ident)]
     return values, ident, fixed, folded, warnings, ok, msg, alternatives
+
+
+def _unpinned_jacobian(residual, values, pin, names, extra):
+    """Jacobian in (pin, names…) at the solution: log-parts, raw extras."""
+    from benchfit.fit.identify import numeric_jacobian
+
+    all_names = (pin,) + tuple(names)
+    extra = extra or {}
+
+    def at(z):
+        v = dict(values)
+        for n, x in zip(all_names, z):
+            v[n] = float(x) if n in extra else float(math.exp(x))
+        return residual(v)
+
+    z0 = np.array([float(values[n]) if n in extra else math.log(values[n]) for n in all_names])
+    return all_names, numeric_jacobian(at, z0)
 
 
 def _distinct(a: Mapping[str, float], b: Mapping[str, float], ident: Identification) -> bool:
@@ -336,23 +362,23 @@ def complex_mult_cov(factor: np.ndarray, cov: np.ndarray) -> np.ndarray:
     return np.einsum("kij,kjl,kml->kim", m, cov, m)
 
 
-def levy_start(f_hz: np.ndarray, h: np.ndarray, u: np.ndarray) -> tuple[float, float, float | None]:
-    """ω0 (rad/s), Q and DC gain of a two-pole fit H ≈ b0/(1 + a1·s + a2·s²), linear (Levy)."""
-    s = 2j * math.pi * f_hz
-    w = 1.0 / np.maximum(u, 1e-300)
-    # H·a1·s + H·a2·s² − b0 = −H
-    a = np.stack([h * s, h * s * s, -np.ones_like(h)], axis=1) * w[:, None]
-    rhs = -h * w
-    aa = np.concatenate([a.real, a.imag])
-    bb = np.concatenate([rhs.real, rhs.imag])
-    try:
-        (a1, a2, b0), *_ = np.linalg.lstsq(aa, bb, rcond=None)
-    except np.linalg.LinAlgError:
-        return math.nan, math.nan, None
-    if a2 <= 0 or a1 <= 0:
-        return math.nan, math.nan, (float(b0) if b0 > 0 else None)
-    w0 = 1.0 / math.sqrt(a2)
-    return w0, w0 * a2 / a1, float(b0)
+def grid_start(f_hz: np.ndarray, h: np.ndarray, u: np.ndarray) -> tuple[float, float, float | None]:
+    """ω0 (rad/s), Q and DC gain of the best two-pole response b0/(1 − (f/f0)² + j f/(f0·Q)).
+
+    A coarse grid over f0 and Q with b0 solved in closed form at each point (weights 1/u²);
+    robust where a linearised (Levy-type) solution is thrown off by noise or the ESR zero.
+    """
+    w = 1.0 / np.maximum(u, 1e-300) ** 2
+    f0 = np.geomspace(max(f_hz[0] * 0.05, 1e-6), f_hz[-1] * 5.0, 160)
+    q = np.geomspace(0.1, 200.0, 48)
+    x = f_hz[None, None, :] / f0[:, None, None]
+    m = 1.0 / (1.0 - x * x + 1j * x / q[None, :, None])  # (F, Q, K)
+    num = np.sum(w * (np.conj(m) * h).real, axis=-1)
+    den = np.sum(w * np.abs(m) ** 2, axis=-1)
+    b0 = num / np.maximum(den, 1e-300)
+    cost = -b0 * num
+    i, j = np.unravel_index(int(np.argmin(cost)), cost.shape)
+    return 2 * math.pi * float(f0[i]), float(q[j]), float(b0[i, j]) if b0[i, j] > 0 else None
 
 
 # --- the public entry point --------------------------------------------------------------
@@ -463,7 +489,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     def residual(v: dict[str, float]) -> np.ndarray:
         return whiten(w, hk - transfer(fk, _parts(v)))
 
-    w0, q, b0 = levy_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
+    w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
     start = start_parts(w0, q, b0, fix, guess)
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix)
     h_model = transfer(fk, _parts(values))

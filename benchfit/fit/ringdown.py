@@ -5,10 +5,13 @@ its damped frequency and the ring decays. This module
 
 1. estimates the ring frequency from the spectrum of the sample differences (which
    favours the ringing over the slow square) by an interpolated DFT;
-2. finds the edges as upward crossings of a one-ring-period moving average of |Δy|
-   at half its maximum, at least four ring periods apart;
-3. fits each ring, from one ring period after its edge to one ring period before the next
-   (or until the ring has decayed by about 40 dB), with an exponentially damped sinusoid
+2. finds the edges as upward crossings of the ring envelope (:func:`ring_envelope`)
+   halfway between its noise floor and its maximum, at least four ring periods apart, each moved back to where that
+   average left its floor (10 % of the way from the noise floor to the maximum, half a
+   window before the edge);
+3. fits each ring, from one ring period after that point (half a period after the edge)
+   to the point where the next edge's average leaves the floor (or until the ring has
+   decayed by about 40 dB or into the noise), with an exponentially damped sinusoid
    plus baseline, y = c + e^{−αt}(a·cos ω_d t + b·sin ω_d t): variable projection over
    (α, ω_d) started from the DFT frequency and the slope of the log envelope (the
    log-decrement idea, REFERENCES §6), then the covariance of all five parameters from the
@@ -56,6 +59,17 @@ def _moving_average(x: np.ndarray, width: int) -> np.ndarray:
     return np.concatenate([np.full(pad // 2, out[0]), out, np.full(pad - pad // 2, out[-1])])
 
 
+def ring_envelope(y: np.ndarray, period: float) -> np.ndarray:
+    """One-period moving average of |y − (one-period moving average of y)|.
+
+    Subtracting the one-period average removes the slow square's levels but keeps the ring
+    (the average of whole periods of a sinusoid is zero) and does not amplify noise as a
+    difference would; steps show as a transient one period wide.
+    """
+    width = max(1, int(round(period)))
+    return _moving_average(np.abs(y - _moving_average(y, width)), width)
+
+
 def find_ring_starts(y: np.ndarray, sample_rate: float) -> tuple[list[int], float | None]:
     """Edge positions (sample indices) and the ring frequency seed in Hz (None if no ring)."""
     from benchfit.measurement.tone import dft_frequency_seed
@@ -65,18 +79,26 @@ def find_ring_starts(y: np.ndarray, sample_rate: float) -> tuple[list[int], floa
     if f_ring is None or f_ring <= 0:
         return [], None
     period = sample_rate / f_ring
-    env = _moving_average(np.abs(dy), int(round(period)))
+    env = ring_envelope(y, period)
     peak = float(np.max(env))
     if peak <= 0:
         return [], None
-    above = env > 0.5 * peak
+    floor = float(np.percentile(env, 10))  # noise floor of |Δy| between rings
+    above = env > floor + 0.5 * (peak - floor)
     rising = np.nonzero(above[1:] & ~above[:-1])[0] + 1
     if above[0]:
         rising = np.concatenate([[0], rising])
-    starts: list[int] = []
+    crossings: list[int] = []
     for r in rising:
-        if not starts or r - starts[-1] > 4 * period:
-            starts.append(int(r))
+        if not crossings or r - crossings[-1] > 4 * period:
+            crossings.append(int(r))
+    # the centred average starts to rise half a window before the edge: walk back from the
+    # crossing to where it left the floor (10 % of the peak)
+    low = np.nonzero(env < floor + 0.1 * (peak - floor))[0]
+    starts = []
+    for r in crossings:
+        before = low[low < r]
+        starts.append(int(before[-1]) if before.size else 0)
     return starts, f_ring
 
 
@@ -188,19 +210,20 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
                        "a slow square wave (a few hertz) drives it")
     period = fs / f_ring
     skip = int(math.ceil(period))
-    env = _moving_average(np.abs(np.diff(y, append=y[-1])), int(round(period)))
+    env = ring_envelope(y, period)
+    floor = float(np.percentile(env, 10))
     segments: list[RingSegment] = []
     for i, s in enumerate(starts):
         a = s + skip
-        b = (starts[i + 1] - skip) if i + 1 < len(starts) else y.size
+        b = starts[i + 1] if i + 1 < len(starts) else y.size
         if b - a < _MIN_PERIODS * period:
             continue
         # stop once the ring has decayed by about 40 dB (the rest is baseline and noise)
         seg_env = env[a:b]
-        quiet = np.nonzero(seg_env < 0.01 * seg_env[:skip].max())[0]
+        quiet = np.nonzero(seg_env < max(0.01 * seg_env[:skip].max(), 1.5 * floor))[0]
         if quiet.size and quiet[0] > _MIN_PERIODS * period:
             b = a + int(max(quiet[0], 10 * period))
-            b = min(b, (starts[i + 1] - skip) if i + 1 < len(starts) else y.size)
+            b = min(b, starts[i + 1] if i + 1 < len(starts) else y.size)
         t = np.arange(b - a) / fs
         theta, cov, _ = fit_ring(t, y[a:b], 2 * math.pi * f_ring)
         if not (theta[3] > 0 and theta[4] > 0 and np.all(np.isfinite(cov))):
