@@ -6,9 +6,9 @@ its damped frequency and the ring decays. This module
 1. estimates the ring frequency from the spectrum of the sample differences (which
    favours the ringing over the slow square) by an interpolated DFT;
 2. finds the edges as upward crossings of the ring envelope (:func:`ring_envelope`)
-   halfway between its noise floor and its maximum, at least four ring periods apart, each moved back to where that
-   average left its floor (10 % of the way from the noise floor to the maximum, half a
-   window before the edge);
+   halfway between its noise floor and its maximum, at least four ring periods apart,
+   each moved back to where the envelope left its floor (10 % of the way from the noise
+   floor to the maximum, half a window before the edge);
 3. fits each ring, from one ring period after that point (half a period after the edge)
    to the point where the next edge's average leaves the floor (or until the ring has
    decayed by about 40 dB or into the noise), with an exponentially damped sinusoid
