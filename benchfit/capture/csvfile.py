@@ -29,7 +29,7 @@ import io
 import math
 import os
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal, Sequence
 
@@ -45,7 +45,6 @@ UnitKind = Literal["time", "volt", "rate", "other"]
 #: largest accepted time-stamp deviation from the uniform grid, as a fraction of the step
 JITTER_LIMIT = 0.01
 
-_MICRO = ("u", "µ", "μ")
 _TIME_PREFIX = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "n": 1e-9, "p": 1e-12}
 _VOLT_PREFIX = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "n": 1e-9, "k": 1e3, "K": 1e3}
 _RATE_PREFIX = {"": 1.0, "k": 1e3, "K": 1e3, "M": 1e6, "G": 1e9}
@@ -328,76 +327,69 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
             raise CaptureError(f"{where}: cannot read the file ({e.strerror or e}) — check the path") from e
     if not raw.strip():
         raise CaptureError(f"{where}: the file is empty — export the data again")
-    text = _decode(raw, where)
-    lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    lines = _decode(raw, where).replace("\r\n", "\n").replace("\r", "\n").split("\n")
     lay = _sniff_layout(lines, where)
-    K = lay.n_fields
+    start = _data_start(lines, lay, where)
+    names, unit_row, header_at = _header(lines, start, lay)
+    preamble = _preamble(lines[: start if header_at is None else header_at], lay)
+    values, line_no = _data(lines, start, lay, _column_labels(names, unit_row, lay.n_fields), where, pd)
+    return _build(values, line_no, names, unit_row, preamble, lay, where, sha256, sample_rate,
+                  None if header_at is None else header_at + 1)
 
-    # locate the first clean data row D, then walk back over damaged rows to the true start
-    start = None
-    for i, ln in enumerate(lines):
-        if not ln.strip():
-            continue
-        cells = _cells(ln, lay)
-        if len(cells) == K and all(_is_number(c, lay.decimal) for c in cells):
-            start = i
-            break
+
+def _data_start(lines: list[str], lay: _Layout, where: str) -> int:
+    """Index of the first data row: the first all-numeric row, moved up over damaged rows above it."""
+    start = next((i for i, ln in enumerate(lines) if ln.strip() and len(cells := _cells(ln, lay)) == lay.n_fields
+                  and all(_is_number(c, lay.decimal) for c in cells)), None)
     if start is None:
         raise CaptureError(f"{where}: holds a header or preamble but no numeric data rows — export the data again")
-    j = start - 1
-    while j >= 0:
+    for j in range(start - 1, -1, -1):
         if not lines[j].strip():
-            j -= 1
             continue
-        if _looks_like_data(_cells(lines[j], lay), lay):
-            start = j
-            j -= 1
-            continue
-        break
+        if not _looks_like_data(_cells(lines[j], lay), lay):
+            break
+        start = j
+    return start
 
-    # header (and optional row of units) just above the data
-    head_idx: list[int] = []
-    j = start - 1
-    while j >= 0 and len(head_idx) < 2:
+
+def _header(lines: list[str], start: int, lay: _Layout) -> tuple[list[str] | None, list[str] | None, int | None]:
+    """(names, units row, index of the first header line) from the non-numeric rows just above the data."""
+    K = lay.n_fields
+    found: list[int] = []
+    for j in range(start - 1, -1, -1):
+        if len(found) == 2 or (found and K == 1):
+            break
         ln = lines[j]
         if not ln.strip():
-            j -= 1
             continue
         cells = _cells(ln, lay)
-        if _is_marked(ln) and not (K > 1 and len(cells) == K):
+        if (_is_marked(ln) and not (K > 1 and len(cells) == K)) or len(cells) != K \
+                or any(_is_number(c, lay.decimal) for c in cells):
             break
-        if len(cells) == K and not any(_is_number(c, lay.decimal) for c in cells) and (K > 1 or not head_idx):
-            head_idx.insert(0, j)
-            j -= 1
-            continue
-        break
-    names: list[str] | None = None
-    unit_row: list[str] | None = None
-    if head_idx:
-        rows = [[c.strip().strip('"').strip() for c in _cells(lines[k], lay)] for k in head_idx]
-        if len(rows) == 2 and all(not c or _unit(c) is not None for c in rows[1]):
-            names, unit_row = rows
-        else:
-            names = rows[-1]
-            head_idx = head_idx[-1:]
-        if K == 1 and names and re.search(r"[:=,;\t]\s*[-+.\d]", names[0]):
-            names, head_idx = None, []  # "key: value" line, not a header
-    header_line = head_idx[0] if head_idx else start
+        found.insert(0, j)
+    if not found:
+        return None, None, None
+    rows = [[c.strip().strip('"').strip() for c in _cells(lines[k], lay)] for k in found]
+    if len(rows) == 2 and all(not c or _unit(c) is not None for c in rows[1]):
+        return rows[0], rows[1], found[0]
+    if K == 1 and re.search(r"[:=,;\t]\s*[-+.\d]", rows[-1][0]):
+        return None, None, None  # a "key: value" line, not a header
+    return rows[-1], None, found[-1]
 
-    # preamble and comments → metadata
-    preamble: dict[str, str] = {}
+
+def _preamble(lines: list[str], lay: _Layout) -> dict[str, str]:
+    """``key<delim>value``, ``key: value`` and ``# key = value`` lines as a dict; other comments joined."""
+    out: dict[str, str] = {}
     comments: list[str] = []
 
     def keep(key: str, value: str) -> None:
         key, value = key.strip().strip('"').strip(), value.strip().strip('"').strip()
-        if not key:
-            return
         k, n = key, 2
-        while k in preamble:
+        while k in out:
             k, n = f"{key} ({n})", n + 1
-        preamble[k] = value
+        out[k] = value
 
-    for i, ln in enumerate(lines[:header_line]):
+    for i, ln in enumerate(lines):
         s = ln.strip()
         if not s:
             continue
@@ -410,66 +402,51 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
                 comments.append(body)
             continue
         cells = _cells(ln, lay) if lay.delim else [s]
+        m = re.match(r"^([^:=,;\t]{1,60}?)\s*[:=,;\t]\s*(.+)$", s)
         if len(cells) >= 2 and cells[0].strip():
-            keep(cells[0], (lay.delim if lay.delim != " " else " ").join(c for c in cells[1:] if c.strip()))
+            keep(cells[0], (lay.delim or " ").join(c for c in cells[1:] if c.strip()))
+        elif m:
+            keep(m.group(1), m.group(2))
         else:
-            m = re.match(r"^([^:=,;\t]{1,60}?)\s*[:=,;\t]\s*(.+)$", s)
-            if m:
-                keep(m.group(1), m.group(2))
-            else:
-                keep(f"line {i + 1}", s)
+            keep(f"line {i + 1}", s)
+    if comments:
+        out["comments"] = " | ".join(comments)
+    return out
 
-    # data rows: field count per line, then a fast numeric parse
-    # (rows are re-joined with the unit separator \x1f so quoted cells cannot split)
-    d = lay.delim
+
+def _data(lines: list[str], start: int, lay: _Layout, labels: list[str], where: str,
+          pd: Any) -> tuple[np.ndarray, Sequence[int]]:
+    """Parse the data rows (rows × columns, float64) and their 1-based line numbers."""
+    K, d = lay.n_fields, lay.delim
     block = lines[start:]
     while block and not block[-1].strip():
         block.pop()
     joined = "\n".join(block) if d in (",", ";", "\t") and not lay.strip_trailing else ""
-    col_names = _column_labels(names, unit_row, K)
     if joined and '"' not in joined and not re.search(r"^[ \t]*(#|//|;|$)", joined, re.M):
-        # fast path: plain rows, no quotes, comments or blank lines
+        # fast path: plain rows without quotes, comments or blank lines
         counts = [ln.count(d) for ln in block]
         if counts.count(K - 1) != len(counts):
             r = next(i for i, c in enumerate(counts) if c != K - 1)
             raise CaptureError(f"{where}: line {start + r + 1} has {counts[r] + 1} cell(s) but the data rows have "
                                f"{K} — fix or delete that line")
-        fast_no = range(start + 1, start + 1 + len(block))
-        values = _parse_numbers(block, fast_no, lay, col_names, where, pd, sep=d, joined=joined)
-        header_no = head_idx[0] + 1 if names is not None else None
-        if comments:
-            preamble["comments"] = " | ".join(comments)
-        return _build(values, fast_no, names, unit_row, preamble, lay, where, sha256, sample_rate, header_no)
-    del joined
-    data_no: list[int] = []
-    data_txt: list[str] = []
-    for i in range(start, len(lines)):
-        ln = lines[i]
+        line_no: Sequence[int] = range(start + 1, start + 1 + len(block))
+        return _parse_numbers(block, line_no, lay, labels, where, pd, sep=d, joined=joined), line_no
+    # general path: rows re-joined with the unit separator \x1f so quoted cells cannot split
+    numbers: list[int] = []
+    texts: list[str] = []
+    for i, ln in enumerate(block, start=start):
         if not ln.strip():
             continue
-        cells: list[str] | None
-        if lay.strip_trailing or d is None or d == " " or '"' in ln:
-            cells = _cells(ln, lay)
-            n = len(cells)
-        else:
-            cells = None
-            n = ln.count(d) + 1
-        if _is_marked(ln) and not _looks_like_data(cells if cells is not None else _cells(ln, lay), lay):
+        cells = _cells(ln, lay)
+        if _is_marked(ln) and not _looks_like_data(cells, lay):
             continue  # a comment among or after the data
-        if n != K:
+        if len(cells) != K:
             raise CaptureError(
-                f"{where}: line {i + 1} has {n} cell(s) but the data rows have {K} — fix or delete that line"
+                f"{where}: line {i + 1} has {len(cells)} cell(s) but the data rows have {K} — fix or delete that line"
             )
-        data_no.append(i + 1)
-        data_txt.append("\x1f".join(cells) if cells is not None else (ln.replace(d, "\x1f") if d else ln))
-    values = _parse_numbers(data_txt, data_no, lay, col_names, where, pd)
-    if values.shape[0] == 0:
-        raise CaptureError(f"{where}: holds a header but no data rows — export the data again")
-
-    header_no = head_idx[0] + 1 if names is not None else None
-    if comments:
-        preamble["comments"] = " | ".join(comments)
-    return _build(values, data_no, names, unit_row, preamble, lay, where, sha256, sample_rate, header_no)
+        numbers.append(i + 1)
+        texts.append("\x1f".join(cells))
+    return _parse_numbers(texts, numbers, lay, labels, where, pd), numbers
 
 
 def _column_labels(names: list[str] | None, unit_row: list[str] | None, K: int) -> list[str]:
@@ -534,20 +511,20 @@ def _parse_numbers(texts: list[str], line_no: Sequence[int], lay: _Layout, label
     return out
 
 
-def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, unit_row: list[str] | None,
-           preamble: dict[str, str], lay: _Layout, where: str, sha256: str | None,
-           sample_rate: float | None, header_no: int | None) -> Capture:
-    K = values.shape[1]
-    if values.shape[0] < 2:
-        raise CaptureError(f"{where}: holds only {values.shape[0]} data row, at least 2 are needed — export more data")
-    warnings: list[str] = []
-    meta: dict[str, Any] = {"format": "CSV", "csv_delimiter": {None: "none", " ": "space", "\t": "tab"}.get(
-        lay.delim, lay.delim), "csv_decimal": lay.decimal, "header_line": header_no}
-    if preamble:
-        meta["preamble"] = dict(preamble)
+@dataclass(frozen=True)
+class _Hints:
+    """What the preamble says about the time axis, the units and the vertical range."""
 
-    # what the preamble says
-    interval: tuple[float, str, float] | None = None  # (step s, key, rate Hz)
+    interval: tuple[float, str, float] | None = None   # (step in s, preamble key, rate in Hz)
+    start_time: float | None = None                    # s
+    time_unit: tuple[str, float] | None = None         # (unit text, factor to s)
+    volt_unit: tuple[str, float] | None = None         # (unit text, factor to V)
+    rails: dict[str, list[float | None]] = field(default_factory=dict)  # label → [min V, max V]
+
+
+def _read_hints(preamble: dict[str, str], decimal: str) -> _Hints:
+    """Interpret the recognised preamble keys (see the ``_*_KEYS`` sets); other keys are only kept."""
+    interval: tuple[float, str, float] | None = None
     start_time: float | None = None
     time_unit_hint: tuple[str, float] | None = None
     volt_unit_hint: tuple[str, float] | None = None
@@ -555,7 +532,7 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
     for key, value in preamble.items():
         kname, kunit = parse_header_unit(key)
         nk = _norm_key(kname)
-        parsed = _parse_value(value, lay.decimal)
+        parsed = _parse_value(value, decimal)
         unit_text = (parsed[1] if parsed and parsed[1] else (kunit or ""))
         unit = _unit(unit_text) if unit_text else None
         if nk in _TIME_UNIT_KEYS:
@@ -580,7 +557,7 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
             start_time = parsed[0] * factor
         elif (nk in _RANGE_KEYS or nk in _RANGE_MIN_KEYS or nk in _RANGE_MAX_KEYS
               or (nk.endswith("range") and not re.search(r"time|horizontal|^x", nk))):
-            nums, rtext = _numbers_and_unit(value, lay.decimal)
+            nums, rtext = _numbers_and_unit(value, decimal)
             runit = _unit(rtext) if rtext else (_unit(kunit) if kunit else None)
             if not nums or (runit is not None and runit[0] != "volt"):
                 continue
@@ -596,120 +573,52 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
                 entry[:] = sorted([nums[0] * factor, nums[1] * factor])
             else:
                 entry[:] = [-abs(nums[0]) * factor, abs(nums[0]) * factor]  # "±5 V" or "5 V": symmetric
-    if rails:
-        meta["rails_v"] = {k: v for k, v in rails.items()}
+    clean = {k: [None if math.isnan(v) else v for v in pair] for k, pair in rails.items()}
+    return _Hints(interval, start_time, time_unit_hint, volt_unit_hint, clean)
 
-    # column roles
-    kinds: list[tuple[str, str | None, tuple[UnitKind, float] | None]] = []
-    for i in range(K):
-        if names is None:
-            kinds.append(("", None, None))
-            continue
-        name, utext = parse_header_unit(names[i])
-        if unit_row is not None and unit_row[i]:
-            utext = unit_row[i]
-        kinds.append((name, utext, _unit(utext) if utext else None))
-    time_col: int | None = None
-    dropped: list[str] = []
-    index_cols: list[int] = []
-    for i, (name, utext, unit) in enumerate(kinds):
-        if unit is not None and unit[0] == "time" and time_col is None:
-            time_col = i
-    if time_col is None and names is not None:
-        for i, (name, utext, unit) in enumerate(kinds):
-            if name.lower() in _TIME_NAMES and unit is None and utext is None:
-                time_col = i
-                break
-    if names is not None:
-        for i, (name, utext, unit) in enumerate(kinds):
-            if i != time_col and utext is None and name.lower() in _INDEX_NAMES:
-                index_cols.append(i)
-    elif K >= 2 and values.shape[0] >= 2:
-        first = values[:, 0]
-        steps = np.diff(first)
-        if np.all(steps > 0):
-            if np.all(first == np.round(first)) and np.all(steps == 1) and first[0] in (0.0, 1.0):
-                index_cols.append(0)
-                warnings.append(f"{where}: the first column counts 0, 1, 2… — read as a sample number, not time")
-            else:
-                time_col = 0
-    # time axis
-    t_src: str
-    if time_col is not None:
-        name, utext, unit = kinds[time_col]
-        if unit is None:
-            if time_unit_hint is not None:
-                factor = time_unit_hint[1]
-            else:
-                factor = 1.0
-                warnings.append(f"{where}: time column {(names[time_col] if names else 'column 1')!r} has no unit — "
-                                "read as seconds")
-        else:
-            factor = unit[1]
-        t = values[:, time_col] * factor
-        label = names[time_col] if names else "column 1"
-        dt, jitter = _check_time(t, line_no, label, where)
-        fs = 1.0 / dt
-        t0 = float(t[0])
-        t_src = f"time column {label!r}"
-        meta["time_jitter_max_rel"] = jitter
-        if interval is not None and abs(interval[0] / dt - 1) > JITTER_LIMIT:
-            warnings.append(f"{where}: preamble {interval[1]!r} gives a step of {interval[0]:.6g} s but the time "
-                            f"column steps by {dt:.6g} s — the time column is used")
-    elif interval is not None:
-        dt, t0, fs = interval[0], (start_time if start_time is not None else 0.0), interval[2]
-        t_src = f"preamble {interval[1]!r}"
-    elif sample_rate is not None:
-        if not (math.isfinite(float(sample_rate)) and float(sample_rate) > 0):
-            raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — pass e.g. 50000")
-        fs = float(sample_rate)
-        dt, t0 = 1.0 / fs, (start_time if start_time is not None else 0.0)
-        t_src = "sample rate given by the caller"
-        sample_rate = None
-    else:
-        raise CaptureError(f"{where}: no time column and no sample interval in the file — pass the sample "
-                           "rate (--sample-rate, in Hz)")
-    if sample_rate is not None and abs(float(sample_rate) * dt - 1) > JITTER_LIMIT:
-        warnings.append(f"{where}: sample rate {float(sample_rate):g} Hz given, but the file's {t_src} says "
-                        f"{1 / dt:.6g} Hz — the file is used")
-    meta["time_step_s"] = dt
-    meta["time_source"] = t_src
 
-    # channels
+def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, unit_row: list[str] | None,
+           preamble: dict[str, str], lay: _Layout, where: str, sha256: str | None,
+           sample_rate: float | None, header_no: int | None) -> Capture:
+    """Turn parsed rows into a Capture: pick the time axis and the voltage columns, scale to SI."""
+    if values.shape[0] < 2:
+        raise CaptureError(f"{where}: holds only {values.shape[0]} data row, at least 2 are needed — export more data")
+    warnings: list[str] = []
+    meta: dict[str, Any] = {"format": "CSV", "csv_delimiter": {None: "none", " ": "space", "\t": "tab"}.get(
+        lay.delim, lay.delim), "csv_decimal": lay.decimal, "header_line": header_no}
+    if preamble:
+        meta["preamble"] = dict(preamble)
+    hints = _read_hints(preamble, lay.decimal)
+    if hints.rails:
+        meta["rails_v"] = hints.rails
+    labels = list(names) if names is not None else [f"column {i + 1}" for i in range(values.shape[1])]
+    kinds = [(("", None) if names is None else parse_header_unit(n)) for n in labels]
+    if unit_row is not None:
+        kinds = [(name, unit_row[i] or utext) for i, (name, utext) in enumerate(kinds)]
+    units = [_unit(u) if u else None for _, u in kinds]
+    time_col, skip = _column_roles(values, names, kinds, units, where, warnings)
+    fs, t0 = _time_axis(values, line_no, time_col, labels, units, hints, sample_rate, where, warnings, meta)
+
     ch_idx: list[int] = []
     ch_names: list[str] = []
     scales: list[float] = []
-    seen: set[str] = set()
-    for i, (name, utext, unit) in enumerate(kinds):
-        if i == time_col or i in index_cols:
-            if i in index_cols and names is not None:
-                dropped.append(names[i])
-            continue
-        label = names[i] if names else f"column {i + 1}"
-        if unit is not None and unit[0] == "time":
-            dropped.append(label)
-            warnings.append(f"{where}: column {label!r} is a second time column — skipped")
+    dropped = [labels[i] for i in skip if names is not None]
+    for i, ((name, utext), unit) in enumerate(zip(kinds, units)):
+        if i == time_col or i in skip:
             continue
         if utext is not None and (unit is None or unit[0] != "volt"):
-            dropped.append(label)
-            warnings.append(f"{where}: column {label!r} is in {utext!r}, not volts — skipped")
+            dropped.append(labels[i])
+            what = "a second time column" if unit and unit[0] == "time" else f"in {utext!r}, not volts"
+            warnings.append(f"{where}: column {labels[i]!r} is {what} — skipped")
             continue
-        if unit is None:
-            if volt_unit_hint is not None:
-                scale = volt_unit_hint[1]
-            else:
-                scale = 1.0
-                if names is not None:
-                    warnings.append(f"{where}: column {label!r} has no unit — read as volts")
-                elif not ch_idx:
-                    warnings.append(f"{where}: no header row — values read as volts")
-        else:
-            scale = unit[1]
-        base = name or f"ch{len(ch_idx) + 1}"
-        final, n = base, 2
-        while final.lower() in seen:
+        scale = unit[1] if unit else (hints.volt_unit[1] if hints.volt_unit else 1.0)
+        if unit is None and hints.volt_unit is None and (names is not None or not ch_idx):
+            warnings.append(f"{where}: column {labels[i]!r} has no unit — read as volts" if names is not None
+                            else f"{where}: no header row — values read as volts")
+        base, n = name or f"ch{len(ch_idx) + 1}", 2
+        final = base
+        while final.lower() in {c.lower() for c in ch_names}:
             final, n = f"{base}_{n}", n + 1
-        seen.add(final.lower())
         ch_idx.append(i)
         ch_names.append(final)
         scales.append(scale)
@@ -721,9 +630,64 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
     if names is not None:
         meta["columns"] = list(names)
     samples = values[:, ch_idx].T * np.asarray(scales)[:, np.newaxis]
-    return Capture(samples=samples, sample_rate=fs, channel_names=tuple(ch_names),
-                   units=("V",) * len(ch_idx), source=where, sha256=sha256, metadata=meta,
-                   warnings=tuple(warnings), t0=t0)
+    return Capture(samples=samples, sample_rate=fs, channel_names=tuple(ch_names), units=("V",) * len(ch_idx),
+                   source=where, sha256=sha256, metadata=meta, warnings=tuple(warnings), t0=t0)
+
+
+def _column_roles(values: np.ndarray, names: list[str] | None, kinds: list[tuple[str, str | None]],
+                  units: list[tuple[UnitKind, float] | None], where: str,
+                  warnings: list[str]) -> tuple[int | None, list[int]]:
+    """(time column or None, sample-number columns to skip)."""
+    if names is None:
+        first = values[:, 0]
+        steps = np.diff(first)
+        if values.shape[1] < 2 or not np.all(steps > 0):
+            return None, []
+        if np.all(steps == 1) and first[0] in (0.0, 1.0):
+            warnings.append(f"{where}: the first column counts 0, 1, 2… — read as a sample number, not time")
+            return None, [0]
+        return 0, []
+    time_col = next((i for i, u in enumerate(units) if u is not None and u[0] == "time"), None)
+    if time_col is None:
+        time_col = next((i for i, (n, u) in enumerate(kinds) if u is None and n.lower() in _TIME_NAMES), None)
+    skip = [i for i, (n, u) in enumerate(kinds) if i != time_col and u is None and n.lower() in _INDEX_NAMES]
+    return time_col, skip
+
+
+def _time_axis(values: np.ndarray, line_no: Sequence[int], time_col: int | None, labels: list[str],
+               units: list[tuple[UnitKind, float] | None], hints: _Hints, sample_rate: float | None, where: str,
+               warnings: list[str], meta: dict[str, Any]) -> tuple[float, float]:
+    """(sample rate in Hz, time of the first sample in s) from the time column, the preamble or the caller."""
+    interval = hints.interval
+    start = hints.start_time if hints.start_time is not None else 0.0
+    if time_col is not None:
+        unit = units[time_col]
+        factor = unit[1] if unit else (hints.time_unit[1] if hints.time_unit else 1.0)
+        if unit is None and hints.time_unit is None:
+            warnings.append(f"{where}: time column {labels[time_col]!r} has no unit — read as seconds")
+        t = values[:, time_col] * factor
+        dt, jitter = _check_time(t, line_no, labels[time_col], where)
+        fs, t0, source = 1.0 / dt, float(t[0]), f"time column {labels[time_col]!r}"
+        meta["time_jitter_max_rel"] = jitter
+        if interval is not None and abs(interval[0] / dt - 1) > JITTER_LIMIT:
+            warnings.append(f"{where}: preamble {interval[1]!r} gives a step of {interval[0]:.6g} s but the time "
+                            f"column steps by {dt:.6g} s — the time column is used")
+    elif interval is not None:
+        fs, t0, source = interval[2], start, f"preamble {interval[1]!r}"
+    elif sample_rate is not None:
+        fs = float(sample_rate)
+        if not (math.isfinite(fs) and fs > 0):
+            raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — pass e.g. 50000")
+        t0, source, sample_rate = start, "sample rate given by the caller", None
+    else:
+        raise CaptureError(f"{where}: no time column and no sample interval in the file — pass the sample "
+                           "rate (--sample-rate, in Hz)")
+    if sample_rate is not None and abs(float(sample_rate) / fs - 1) > JITTER_LIMIT:
+        warnings.append(f"{where}: sample rate {float(sample_rate):g} Hz given, but the file's {source} says "
+                        f"{fs:.6g} Hz — the file is used")
+    meta["time_step_s"] = 1.0 / fs
+    meta["time_source"] = source
+    return fs, t0
 
 
 def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str) -> tuple[float, float]:
