@@ -227,16 +227,20 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
             timebase_u_ppm=cal["timebase_u_ppm"],
             coupling_tau_s=cal["coupling_tau_s"],
         )
-        for key in ("device", "start_utc", "overflow_count", "clip_count", "benchfit_version"):
-            if key in sidecar:
-                metadata[key] = sidecar[key]
+        for key, value in sidecar.items():  # device, start_utc, counts, recorder's extras
+            if key not in ("benchfit_sidecar", "channels", "calibration", "sample_rate_hz"):
+                metadata[key] = value
         metadata["sidecar"] = str(jpath)
+        frames_noted = sidecar.get("frames")
+        if isinstance(frames_noted, int) and not isinstance(frames_noted, bool) and frames_noted > n:
+            warnings.append(f"{jpath}: the recorder wrote {frames_noted} frames but {p.name} holds {n} — "
+                            "the audio file was cut short after recording")
         if sidecar.get("overflow_count", 0):
             warnings.append(f"{jpath}: the input overflowed {sidecar['overflow_count']} time(s) while recording — "
                             "samples may be missing; record again with a larger buffer")
         if sidecar.get("clip_count", 0):
-            warnings.append(f"{jpath}: the recorder counted {sidecar['clip_count']} clipped block(s) — "
-                            "lower the input level and record again")
+            warnings.append(f"{jpath}: the recorder counted {sidecar['clip_count']} sample(s) at full scale "
+                            "(clipping) — lower the input level and record again")
     if sample_rate is not None and abs(float(sample_rate) - fs) > 1e-9 * fs:
         warnings.append(f"{where}: sample rate {float(sample_rate):g} Hz given but the audio header says "
                         f"{fs:g} Hz — the header's rate is used")

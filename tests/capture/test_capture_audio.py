@@ -136,7 +136,17 @@ def test_sidecar_counts_become_warnings(tmp_path):
     write_sidecar(path, _sidecar(["output"], overflow_count=2, clip_count=5))
     cap = load(path)
     assert any("overflowed 2 time" in w for w in cap.warnings)
-    assert any("5 clipped" in w for w in cap.warnings)
+    assert any("5 sample(s) at full scale" in w for w in cap.warnings)
+
+
+def test_recorder_extras_pass_into_metadata_and_frame_count_is_checked(tmp_path):
+    path = tmp_path / "u.wav"
+    sf.write(path, _signal(1, n=1000), FS, subtype="PCM_16")
+    write_sidecar(path, _sidecar(["output"], frames=1200, interrupted=True, peak_dbfs=[-6.0]))
+    cap = load(path)
+    assert (cap.metadata["interrupted"], cap.metadata["peak_dbfs"], cap.metadata["frames"]) == (True, [-6.0], 1200)
+    assert cap.metadata["sidecar"] == str(tmp_path / "u.json")
+    assert any("wrote 1200 frames but u.wav holds 1000" in w for w in cap.warnings)
 
 
 def test_sidecar_with_wrong_channel_count_is_an_error(tmp_path):
