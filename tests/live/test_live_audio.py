@@ -186,8 +186,10 @@ def test_tune_plain_reports_the_played_frequency(rig, tmp_path):
         assert "running 0.130 Hz fast — lower the frequency: increase RB or C1" in ln
         assert "within ±0.25 Hz" in ln
     times = [float(re.match(r"t=\s*([0-9.]+) s", ln).group(1)) for ln in lines]
-    # overlapping windows: consecutive readings 0.25 s apart (≥ 4 a second), none skipped here
-    assert np.allclose(np.diff(times), 0.25, atol=1e-9)
+    # overlapping windows start every 0.25 s (≥ 4 readings a second); a loaded machine may skip
+    # stale windows, so a gap is a whole number of hops
+    steps = np.diff(times) / 0.25
+    assert np.all(steps >= 1 - 1e-9) and np.allclose(steps, np.round(steps), atol=1e-9)
     assert elapsed < 10  # 1 s to fill the window + 4 hops + start-up
 
 
