@@ -111,9 +111,9 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             warnings.append(_clip_warning(clip))
         return ChannelMeasurement(
             name=name, unit=unit, frequency_hz=None, frequency_u_hz=None, amplitude=None,
-            vdc=levels.vdc, vrms=levels.vrms, vpp=levels.vpp, duty_cycle_pct=None,
+            vdc=float(levels.vdc), vrms=float(levels.vrms), vpp=float(levels.vpp), duty_cycle_pct=None,
             rise_time_s=None, fall_time_s=None, thd_pct=None, thd_n_pct=None, sinad_db=None,
-            harmonics=(), clipped=clip.clipped, warnings=tuple(warnings), extra=extra)
+            harmonics=(), clipped=bool(clip.clipped), warnings=tuple(warnings), extra=extra)
 
     f = float(fit.frequency_hz)
     u_fit = float(fit.frequency_u_hz) if fit.frequency_u_hz is not None else math.nan
@@ -182,14 +182,20 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             "droop_pct": pulse.droop_pct,
         })
     return ChannelMeasurement(
-        name=name, unit=unit, frequency_hz=f, frequency_u_hz=u_f, amplitude=float(abs(fit.phasors[0])),
-        vdc=levels.vdc, vrms=levels.vrms, vpp=levels.vpp,
-        duty_cycle_pct=pulse.duty_cycle_pct, rise_time_s=pulse.rise_time_s,
-        fall_time_s=pulse.fall_time_s,
-        thd_pct=None if thd is None else 100.0 * thd,
-        thd_n_pct=100.0 * dist.thd_n if math.isfinite(dist.thd_n) else None,
-        sinad_db=dist.sinad_db if math.isfinite(dist.sinad_db) else None,
-        harmonics=table, clipped=clip.clipped, warnings=tuple(warnings), extra=extra)
+        name=name, unit=unit, frequency_hz=f, frequency_u_hz=_f(u_f),
+        amplitude=_f(abs(fit.phasors[0])), vdc=float(levels.vdc), vrms=float(levels.vrms),
+        vpp=float(levels.vpp), duty_cycle_pct=_f(pulse.duty_cycle_pct),
+        rise_time_s=_f(pulse.rise_time_s), fall_time_s=_f(pulse.fall_time_s),
+        thd_pct=None if thd is None else _f(100.0 * thd),
+        thd_n_pct=_f(100.0 * dist.thd_n) if math.isfinite(dist.thd_n) else None,
+        sinad_db=_f(dist.sinad_db) if math.isfinite(dist.sinad_db) else None,
+        harmonics=table, clipped=bool(clip.clipped), warnings=tuple(warnings),
+        extra={k: (_f(v) if isinstance(v, (float, np.floating)) else v) for k, v in extra.items()})
+
+
+def _f(v: Any) -> float | None:
+    """A plain Python float (JSON-safe type) or None."""
+    return None if v is None else float(v)
 
 
 def _vrms_u(vrms: float, noise_var: float, n: int) -> float:
