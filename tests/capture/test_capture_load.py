@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import json
 
 import numpy as np
 import pytest
@@ -139,3 +140,22 @@ def test_error_is_a_benchfit_error_with_exit_code_2(tmp_path):
     with pytest.raises(benchfit.BenchfitError) as info:
         load(tmp_path / "missing.csv")
     assert info.value.exit_code == 2
+
+
+def test_metadata_is_plain_json(tmp_path):
+    """Report and log store Capture.metadata as JSON; readers must only put JSON types in it."""
+    csv_path = tmp_path / "HC-03.csv"
+    csv_path.write_text("# bench logger\nSample rate;1 kS/s\nVertical Max;5 V\nCH A [mV]\n1\n2\n3\n", encoding="utf-8")
+    wav = _wav(tmp_path / "u.wav", n_ch=1)
+    write_sidecar(wav, {"benchfit_sidecar": 1, "channels": [{"name": "output"}], "sample_rate_hz": 48000,
+                        "peak_dbfs": [-3.0]})
+    for cap in (load(csv_path), load(wav)):
+        text = json.dumps(dict(cap.metadata), allow_nan=False)
+        assert json.loads(text) == dict(cap.metadata)
+    assert load(csv_path).metadata["rails_v"] == {"*": [None, 5.0]}
+
+
+def test_sample_rate_argument_is_ignored_for_audio_with_a_warning(tmp_path):
+    cap = load(_wav(tmp_path / "u.wav"), sample_rate=44100)
+    assert cap.sample_rate == 48000
+    assert any("44100 Hz given but the audio header says 48000 Hz" in w for w in cap.warnings)
