@@ -127,6 +127,7 @@ def test_sidecar_without_gain_keeps_full_scale_units(tmp_path):
     cap = load(path)
     assert cap.units == ("FS",)
     assert cap.channel_names == ("output",)
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     assert cap.sample_rate == pytest.approx(FS * (1 + 50e-6), rel=1e-15)
 
 

@@ -108,6 +108,7 @@ def test_unitless_voltage_column_is_read_as_volts_with_a_warning(tmp_path):
 def test_units_row_under_the_names(tmp_path):
     cap = load(_write(tmp_path, "X,CH1,CH2\nSecond,mV,Volt\n-0.001,100,1\n-0.0009,200,2\n-0.0008,300,3\n"))
     assert cap.channel_names == ("CH1", "CH2")
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     np.testing.assert_allclose(cap.samples, [[0.1, 0.2, 0.3], [1, 2, 3]], rtol=1e-15)
     assert cap.t0 == -0.001
     assert cap.sample_rate == pytest.approx(10_000, rel=1e-9)  # printed time has 1-digit steps; rounding only
@@ -124,7 +125,9 @@ def test_non_voltage_and_index_columns_are_dropped(tmp_path):
 def test_preamble_units_apply_to_unitless_columns(tmp_path):
     text = "Horizontal Units,ms\nVertical Units,mV\nTime,CH1\n0,100\n0.5,200\n1,300\n"
     cap = load(_write(tmp_path, text))
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     np.testing.assert_allclose(cap.samples[0], [0.1, 0.2, 0.3], rtol=1e-15)
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     assert cap.sample_rate == pytest.approx(2000, rel=1e-12)
     assert cap.warnings == ()
 
@@ -152,7 +155,9 @@ def test_semicolon_preamble_with_decimal_comma_and_start_time(tmp_path):
     text = "Sample rate;50000\nStart time;-0,004 s\nCH A [mV];CH B [mV]\n1,5;2\n2,5;3\n3,5;4\n"
     cap = load(_write(tmp_path, text))
     assert cap.sample_rate == 50000
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     assert cap.t0 == pytest.approx(-0.004, rel=1e-15)
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     np.testing.assert_allclose(cap.samples, [[1.5e-3, 2.5e-3, 3.5e-3], [2e-3, 3e-3, 4e-3]], rtol=1e-15)
 
 
@@ -174,6 +179,7 @@ def test_vertical_range_is_kept_as_rails(tmp_path, lines, rails):
 def test_time_column_wins_over_preamble_and_argument_with_warnings(tmp_path):
     text = "Sample Interval,1e-3\nTime (s),CH1 (V)\n0,1\n2e-3,2\n4e-3,3\n"
     cap = load(_write(tmp_path, text), sample_rate=1000)
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     assert cap.sample_rate == pytest.approx(500, rel=1e-12)
     assert any("preamble 'Sample Interval'" in w for w in cap.warnings)
     assert any("sample rate 1000 Hz given" in w for w in cap.warnings)
@@ -294,6 +300,7 @@ def test_latin1_and_utf16_text_are_decoded(tmp_path):
     for enc in ("latin-1", "utf-16"):
         cap = load(_write(tmp_path, text, name=f"{enc}.csv", encoding=enc))
         assert cap.sample_rate == pytest.approx(50_000, rel=1e-12)  # 1/20 µs, binary rounding only
+        # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
         np.testing.assert_allclose(cap.samples[0], [1.5e-3, 2.5e-3, 3.5e-3], rtol=1e-15)
 
 
@@ -301,6 +308,7 @@ def test_latin1_and_utf16_text_are_decoded(tmp_path):
 def test_logger_export_fixture():
     cap = load(DATA / "capture_hc03_logger_semicolon.csv")
     assert cap.channel_names == ("CH A", "CH B")
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     assert cap.sample_rate == 10_000 and cap.t0 == pytest.approx(-0.002, rel=1e-15)
     assert cap.metadata["rails_v"] == {"*": [-12.0, 12.0]}
     assert cap.metadata["preamble"]["Device"] == "bench logger 2-ch"
@@ -332,6 +340,7 @@ def test_million_row_csv_loads_in_a_few_seconds(tmp_path):
     cap = read_csv(path)
     elapsed = time.perf_counter() - start
     assert cap.n_samples == n and cap.sample_rate == pytest.approx(50_000, rel=1e-12)  # exact integer steps
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     np.testing.assert_allclose(cap.samples[0], a_mv * 1e-3, rtol=1e-15)
     # "a few seconds" on the 2-core test machine; ~0.6 s measured, bound leaves room for a loaded CI box
     assert elapsed < 8.0

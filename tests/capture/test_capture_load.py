@@ -63,6 +63,7 @@ def test_text_is_read_as_csv_whatever_the_name(tmp_path, name):
     path.write_text(CSV_TEXT, encoding="utf-8")
     cap = load(path)
     assert cap.channel_names == ("drive", "output")
+    # tolerance: IEEE 754 double rounding of parsing and unit scaling (~2e-16 per step), common practice, no source
     np.testing.assert_allclose(cap.samples[1], [0.1, 0.25, 0.3, 0.15], rtol=1e-15)
 
 
