@@ -127,10 +127,11 @@ def read_stock(path: Path, kind: str) -> tuple[list[float], list[int] | None]:
     return values, (counts if qcol is not None else None)
 
 
-def _table(title: str, columns: tuple[str, ...]):
+def _table(title: str, columns: tuple[str, ...], header: bool = True):
     from rich.table import Table
 
-    t = Table(title=title, title_justify="left", show_lines=False, header_style="bold")
+    t = Table(title=title, title_justify="left", show_lines=False, header_style="bold",
+              show_header=header)
     for c in columns:
         t.add_column(c, justify="left")
     return t
@@ -201,7 +202,7 @@ def astable_command(
     if as_json:
         print_json(result.to_dict())
         return
-    t = _table(f"555 astable for {result.target_frequency_hz:g} Hz", ("quantity", "value"))
+    t = _table(f"555 astable for {result.target_frequency_hz:g} Hz", ("quantity", "value"), header=False)
     t.add_row("RA", fq(result.ra_ohm, "Ω"))
     t.add_row("RB", fq(result.rb_ohm, "Ω") + ("" if result.trim is None or result.trim.kind != "pot"
                                                 else f" + {fq(result.trim.high, 'Ω')} trimmer"))
@@ -409,14 +410,18 @@ def trim_command(
     if as_json:
         print_json(advice.to_dict())
         return
-    t = _table(f"Trim advice for {advice.source or 'the unit'} → {advice.target_hz:g} Hz",
-               ("change", "now", "exact need", "before", "predicted (k = 1)", "95 % interval (k = 2)"))
     for c in advice.changes:
+        what = "filter resonance" if c.kind == "capacitor" else "timer frequency"
+        t = _table(f"Trim advice for {advice.source or 'the unit'} → {advice.target_hz:g} Hz", ("", ""),
+                   header=False)
         iv = c.interval(2.0)
         need = fu(c.needed, c.needed_u, c.unit) if c.needed_u else fq(c.needed, c.unit, 5)
-        t.add_row(c.action, fq(c.present, c.unit, 5), need, f"{c.before_hz:.4f} Hz",
-                  fu(c.predicted_hz, c.predicted_u_hz, "Hz"),
-                  "—" if iv is None else f"{iv[0]:.3f} Hz to {iv[1]:.3f} Hz")
-    stdout.print(t)
+        t.add_row("change", c.action)
+        t.add_row(f"{c.part} now", fq(c.present, c.unit, 5))
+        t.add_row(f"{c.part} for {advice.target_hz:g} Hz", need)
+        t.add_row(f"{what} now", f"{c.before_hz:.4f} Hz")
+        t.add_row(f"{what} after (k = 1)", fu(c.predicted_hz, c.predicted_u_hz, "Hz"))
+        t.add_row("95 % interval (k = 2)", "—" if iv is None else f"{iv[0]:.3f} Hz to {iv[1]:.3f} Hz")
+        stdout.print(t)
     _print_lines(list(advice.notes))
     _print_lines([f"Caution: {c}" for c in advice.cautions] + [_CAUTION], "yellow")
