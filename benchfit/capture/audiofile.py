@@ -178,7 +178,9 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
             raise CaptureError(
                 f"{where}: not an audio file ({detail}) — give a WAV, FLAC or OGG recording, or a CSV export"
             ) from e
-        raise CaptureError(f"{where}: unreadable audio ({detail}) — the file is damaged; record or export it again") from e
+        raise CaptureError(
+            f"{where}: unreadable audio ({detail}) — the file is damaged; record or export it again"
+        ) from e
     n = frames.shape[0]
     declared = wav_declared_frames(p) if fmt in ("WAV", "WAVEX", "RF64") else None
     if declared is not None and declared > n:

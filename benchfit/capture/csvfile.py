@@ -290,7 +290,8 @@ def _looks_like_data(cells: list[str], lay: _Layout) -> bool:
     first = cells[0].strip().strip('"')
     if not any(numeric):
         return False
-    is_key = bool(re.search(r"[A-Za-z]", first)) and first.lower() not in _NAN_TOKENS and not first.startswith(("#", "="))
+    is_key = (bool(re.search(r"[A-Za-z]", first)) and first.lower() not in _NAN_TOKENS
+              and not first.startswith(("#", "=")))
     return not is_key
 
 
@@ -469,6 +470,8 @@ def _cell_problem(cell: str) -> str:
         float(cell.strip().strip('"').replace(",", "."))
     except ValueError:
         return f"{shown!r} is not a number"
+    if "_" in cell:
+        return f"{shown!r} is not a number"
     return f"{shown!r} is not a finite number"
 
 
@@ -478,9 +481,10 @@ def _parse_numbers(texts: list[str], line_no: Sequence[int], lay: _Layout, label
     if not texts:
         return np.empty((0, lay.n_fields))
     try:
-        frame = pd.read_csv(io.StringIO(joined if joined is not None else "\n".join(texts)), sep=sep, header=None, decimal=lay.decimal,
-                            dtype=np.float64, engine="c", skip_blank_lines=False, skipinitialspace=True,
-                            names=list(range(lay.n_fields)), index_col=False)
+        source = io.StringIO(joined if joined is not None else "\n".join(texts))
+        frame = pd.read_csv(source, sep=sep, header=None, decimal=lay.decimal, dtype=np.float64, engine="c",
+                            skip_blank_lines=False, skipinitialspace=True, names=list(range(lay.n_fields)),
+                            index_col=False)
         values = frame.to_numpy(dtype=np.float64)
         if values.shape != (len(texts), lay.n_fields):
             raise ValueError("shape mismatch")
@@ -582,7 +586,8 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
            sample_rate: float | None, header_no: int | None) -> Capture:
     """Turn parsed rows into a Capture: pick the time axis and the voltage columns, scale to SI."""
     if values.shape[0] < 2:
-        raise CaptureError(f"{where}: holds only {values.shape[0]} data row, at least 2 are needed — export more data")
+        raise CaptureError(
+            f"{where}: holds only {values.shape[0]} data row, at least 2 are needed — export more data")
     warnings: list[str] = []
     meta: dict[str, Any] = {"format": "CSV", "csv_delimiter": {None: "none", " ": "space", "\t": "tab"}.get(
         lay.delim, lay.delim), "csv_decimal": lay.decimal, "header_line": header_no}

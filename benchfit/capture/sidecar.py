@@ -140,7 +140,8 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
             raise CaptureError(f"{where}: calibration.{key} must be a number of ppm, got {cal[key]!r} — {fix}")
         cal[key] = float(cal[key])
     if cal["timebase_u_ppm"] < 0:
-        raise CaptureError(f"{where}: calibration.timebase_u_ppm must be ≥ 0, got {cal['timebase_u_ppm']!r} — {fix}")
+        raise CaptureError(
+            f"{where}: calibration.timebase_u_ppm must be ≥ 0, got {cal['timebase_u_ppm']!r} — {fix}")
     if abs(cal["timebase_ppm"]) >= 1e5:
         raise CaptureError(
             f"{where}: calibration.timebase_ppm {cal['timebase_ppm']!r} is implausible (|ppm| ≥ 1e5) — {fix}"
@@ -148,7 +149,8 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
     tau = cal["coupling_tau_s"]
     if tau is not None:
         if not _is_number(tau) or tau <= 0:
-            raise CaptureError(f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {tau!r} — {fix}")
+            raise CaptureError(
+                f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {tau!r} — {fix}")
         cal["coupling_tau_s"] = float(tau)
     out["calibration"] = cal
     return out
@@ -220,7 +222,8 @@ def write_sidecar(audio_path: str | os.PathLike[str], data: dict[str, Any], over
     """
     path = sidecar_path(audio_path)
     if Path(audio_path).suffix.lower() == ".json":
-        raise CaptureError(f"{audio_path}: a sidecar belongs to an audio file, not to a .json file — pass the audio path")
+        raise CaptureError(
+            f"{audio_path}: a sidecar belongs to an audio file, not to a .json file — pass the audio path")
     clean = validate_sidecar(data, f"{path} (data to write)")
     if path.exists() and not overwrite:
         raise CaptureError(f"{path}: sidecar already exists — choose another file name or allow overwriting")
@@ -236,7 +239,9 @@ def write_sidecar(audio_path: str | os.PathLike[str], data: dict[str, Any], over
         os.replace(tmp_name, path)
         tmp_name = None
     except OSError as e:
-        raise CaptureError(f"{path}: sidecar cannot be written ({e.strerror or e}) — check the folder exists and is writable") from e
+        raise CaptureError(
+            f"{path}: sidecar cannot be written ({e.strerror or e}) — check the folder exists and is writable"
+        ) from e
     finally:
         if tmp_name is not None:
             try:
