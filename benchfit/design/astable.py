@@ -25,7 +25,7 @@ from typing import Literal, get_args
 
 import numpy as np
 
-from benchfit.design.parts import check_series, nearest_values, series_values
+from benchfit.design.parts import check_series, series_values
 from benchfit.errors import DesignError
 
 __all__ = ["Distribution", "TimingForm", "AstableTiming", "ToleranceSpread", "TrimRange",
@@ -440,10 +440,13 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
         if best is None or sc[i] < best[0]:
             best = (float(sc[i]), float(ra[i]), float(rb[i]), float(c))
     if best is None:
-        lo = 1.0 / ((k + 2 * LN2) * R_MAX_OHM * (c_cands.max()))
+        slow = 1.0 / sum(_times(R_MAX_OHM, R_MAX_OHM, float(c_cands.max()), k, diode))
+        fast = 1.0 / sum(_times(R_MIN_OHM, R_MIN_OHM, float(c_cands.min()), k, diode))
+        hint = ("use a trimmer well below 2 × RB" if pot is not None and slow <= f_t <= fast
+                else "choose another --cap" if c1_farad is not None else "the frequency is out of range")
         raise DesignError(f"frequency: {f_t:g} Hz cannot be reached with resistors from "
-                          f"{R_MIN_OHM:g} Ω to {R_MAX_OHM:g} Ω and the timing capacitor given — "
-                          f"choose another --cap (slowest here about {lo:.3g} Hz)")
+                          f"{R_MIN_OHM:g} Ω to {R_MAX_OHM:g} Ω (about {slow:.3g} Hz to {fast:.3g} Hz "
+                          f"with this capacitor range) — {hint}")
     _, ra, rb, c = best
     notes: list[str] = []
     cautions: list[str] = []
