@@ -443,10 +443,9 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
         slow = 1.0 / sum(_times(R_MAX_OHM, R_MAX_OHM, float(c_cands.max()), k, diode))
         fast = 1.0 / sum(_times(R_MIN_OHM, R_MIN_OHM, float(c_cands.min()), k, diode))
         hint = ("use a trimmer well below 2 × RB" if pot is not None and slow <= f_t <= fast
-                else "choose another --cap" if c1_farad is not None else "the frequency is out of range")
-        raise DesignError(f"frequency: {f_t:g} Hz cannot be reached with resistors from "
-                          f"{R_MIN_OHM:g} Ω to {R_MAX_OHM:g} Ω (about {slow:.3g} Hz to {fast:.3g} Hz "
-                          f"with this capacitor range) — {hint}")
+                else "choose another --cap" if c1_farad is not None else "ask for a frequency in that range")
+        raise DesignError(f"frequency: {f_t:g} Hz cannot be reached with resistors from 1 kΩ to 1 MΩ "
+                          f"(about {slow:.3g} Hz to {fast:.3g} Hz with this timing capacitor range) — {hint}")
     _, ra, rb, c = best
     notes: list[str] = []
     cautions: list[str] = []
