@@ -80,10 +80,11 @@ def show_command(
                  + (f" · verdict {data['verdict']}" if data["verdict"] else ""), markup=False)
     for c in data["captures"]:
         stdout.print(f"  capture {c['role'] or ''} {c['path']}  sha256 {c['sha256'] or '—'}", markup=False)
-    table = Table(title="results", title_justify="left")
+    table = Table(title="results (quantities with a value)", title_justify="left")
     for col in ("role", "source", "channel", "quantity", "value", "u (k=1)"):
         table.add_column(col)
-    for r in data["results"]:
+    shown = [r for r in data["results"] if r["value"] is not None]
+    for r in shown:
         table.add_row(r["role"] or "—", r["source"], r["channel"] or "—", r["quantity"],
                       format_value(r["value"], r["unit"], r["uncertainty"]), format_u(r["uncertainty"], r["unit"]))
     stdout.print(table)

@@ -35,6 +35,7 @@ from pathlib import Path
 from typing import Any, Iterable, Mapping, Sequence
 
 from benchfit.errors import LogError
+from benchfit.report.spec import uncertainty_keys
 
 __all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "default_log_path", "resolve_log_path",
            "append_run", "list_runs", "get_run", "results_rows", "open_log"]
@@ -105,19 +106,11 @@ _MIGRATIONS: dict[int, str] = {
     """,
 }
 
-# scalar quantities of the measure contract, their uncertainty key(s) in extra, their unit
-_MEASURED: tuple[tuple[str, tuple[str, ...], str], ...] = (
-    ("frequency_hz", ("frequency_u_hz",), "Hz"),
-    ("amplitude", ("amplitude_u",), "<ch>"),
-    ("vdc", ("vdc_u",), "<ch>"),
-    ("vrms", ("vrms_u",), "<ch>"),
-    ("vpp", ("vpp_u",), "<ch>"),
-    ("duty_cycle_pct", ("duty_cycle_u_pct",), "%"),
-    ("rise_time_s", ("rise_time_u_s",), "s"),
-    ("fall_time_s", ("fall_time_u_s",), "s"),
-    ("thd_pct", ("thd_u_pct",), "%"),
-    ("thd_n_pct", ("thd_n_u_pct",), "%"),
-    ("sinad_db", ("sinad_u_db",), "dB"),
+# scalar quantities of the measure contract (DESIGN.md) and their unit ("<ch>": the channel's)
+_MEASURED: tuple[tuple[str, str], ...] = (
+    ("frequency_hz", "Hz"), ("amplitude", "<ch>"), ("vdc", "<ch>"), ("vrms", "<ch>"), ("vpp", "<ch>"),
+    ("duty_cycle_pct", "%"), ("rise_time_s", "s"), ("fall_time_s", "s"), ("thd_pct", "%"),
+    ("thd_n_pct", "%"), ("sinad_db", "dB"),
 )
 _DERIVED_UNITS = {"resonant_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
                   "decay_rate_per_s": "1/s", "q_factor": ""}
@@ -171,6 +164,9 @@ def _inspect(path: Path) -> int | None:
     try:
         app_id = con.execute("PRAGMA application_id").fetchone()[0]
         tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
+        if app_id == 0 and not tables:
+            # an empty database: a log another process has just created and not yet set up
+            return None
         if app_id != APPLICATION_ID or "benchfit_schema" not in tables:
             raise LogError(f"{path}: not a benchfit measurement log — give another path with --log "
                            "or BENCHFIT_LOG (this file was left untouched)")
@@ -294,11 +290,11 @@ def _measurement_rows(m: Mapping[str, Any], role: str) -> list[dict[str, Any]]:
     rows = []
     for ch in m.get("channels", []):
         extra = ch.get("extra", {}) or {}
-        for q, ukeys, unit in _MEASURED:
+        for q, unit in _MEASURED:
             if q not in ch:
                 continue
             u = None
-            for k in ukeys:
+            for k in uncertainty_keys(q):
                 if ch.get(k) is not None:
                     u = ch.get(k)
                 elif extra.get(k) is not None:

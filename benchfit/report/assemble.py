@@ -23,9 +23,9 @@ from typing import Any, Callable, Literal, Mapping, Sequence
 
 from benchfit.errors import FitError, SpecError
 from benchfit.report.spec import (FITTED_QUANTITIES, MEASURED_QUANTITIES, Decision, Limit, Spec,
-                                  decide, load_spec, overall_verdict, quantity_unit)
+                                  decide, load_spec, overall_verdict, quantity_unit, uncertainty_keys)
 
-__all__ = ["Role", "FitOptions", "UnitRun", "REPORT_FORMAT", "COVERAGE_K", "uncertainty_keys",
+__all__ = ["Role", "FitOptions", "UnitRun", "REPORT_FORMAT", "COVERAGE_K",
            "build_report", "run_unit", "METHODS", "SAFETY_NOTES"]
 
 Role = Literal["as-found", "as-left"]
@@ -62,21 +62,6 @@ SAFETY_NOTES: tuple[str, ...] = (
     "These notes are general cautions, not a safety assessment: follow local electrical codes "
     "and the practice of a qualified person for anything connected to mains.",
 )
-
-_UNIT_SUFFIXES = ("_hz", "_pct", "_s", "_db", "_per_s")
-
-
-def uncertainty_keys(quantity: str) -> tuple[str, ...]:
-    """Names under which a measured quantity's standard uncertainty may be stored.
-
-    ``frequency_hz`` → ``frequency_u_hz``; ``thd_pct`` → ``thd_u_pct``; ``vrms`` → ``vrms_u``.
-    """
-    for suffix in _UNIT_SUFFIXES:
-        if quantity.endswith(suffix):
-            base = quantity[: -len(suffix)]
-            return (f"{base}_u{suffix}", f"{quantity}_u")
-    return (f"{quantity}_u",)
-
 
 @dataclass(frozen=True)
 class FitOptions:

@@ -21,7 +21,7 @@ from typing import Any, Mapping, Sequence
 
 from benchfit.errors import BenchfitError
 
-__all__ = ["render_html", "write_report", "format_value", "format_limits", "clean_svg", "report_stem"]
+__all__ = ["render_html", "write_report", "format_value", "format_limits", "format_condition", "clean_svg", "report_stem"]
 
 _PREFIXES = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
 _PREFIXABLE = {"V", "FS", "Hz", "s", "H", "F", "ohm", "1/s", "A"}
@@ -84,6 +84,22 @@ def format_limits(lower: float | None, upper: float | None, unit: str) -> str:
     return "—"
 
 
+_CONDITION_UNITS = (("_ohm", "ohm"), ("_v", "V"), ("_a", "A"), ("_hz", "Hz"), ("_s", "s"), ("_f", "F"),
+                    ("_h", "H"), ("_pct", "%"), ("_c", "°C"))
+
+
+def format_condition(key: str, value: Any) -> tuple[str, str]:
+    """(label, text) of a test condition; a number whose key ends in a unit (``load_ohm``) gets it."""
+    label = key.replace("_", " ")
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        for suffix, unit in _CONDITION_UNITS:
+            if key.lower().endswith(suffix):
+                if unit == "°C":
+                    return label, f"{value:g} °C"
+                return label, format_value(float(value), unit)
+    return label, str(value)
+
+
 _PROLOG = re.compile(r"<\?xml[^>]*\?>\s*", re.S)
 _DOCTYPE = re.compile(r"<!DOCTYPE[^>]*>\s*", re.S)
 _METADATA = re.compile(r"<metadata>.*?</metadata>\s*", re.S)
@@ -104,6 +120,7 @@ def _environment():
     env.filters["value"] = format_value
     env.filters["u"] = format_u
     env.filters["limits"] = format_limits
+    env.globals["condition"] = format_condition
     env.filters["unit"] = lambda unit: _unit_text("", unit)
     env.filters["slug"] = lambda text: re.sub(r"[^a-z]+", "-", str(text).lower()).strip("-")
     return env

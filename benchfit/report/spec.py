@@ -88,7 +88,7 @@ from benchfit.errors import SpecError
 __all__ = [
     "DecisionRule", "DecisionLabel", "Limit", "Spec", "Decision",
     "MEASURED_QUANTITIES", "FITTED_QUANTITIES", "QUANTITY_UNITS",
-    "load_spec", "parse_spec", "decide", "overall_verdict", "quantity_unit",
+    "load_spec", "parse_spec", "decide", "overall_verdict", "quantity_unit", "uncertainty_keys",
 ]
 
 DecisionRule = Literal["simple", "guard-banded", "guard-banded-binary"]
@@ -124,6 +124,22 @@ def quantity_unit(quantity: str, channel_unit: str | None = None) -> str:
     if unit == "<channel>":
         return channel_unit or "V"
     return unit
+
+
+_UNIT_SUFFIXES = ("_per_s", "_hz", "_pct", "_s", "_db")
+
+
+def uncertainty_keys(quantity: str) -> tuple[str, ...]:
+    """Names under which a measured quantity's standard uncertainty (k = 1) may be stored.
+
+    ``frequency_hz`` → ``frequency_u_hz`` (the DESIGN.md contract name); ``thd_pct`` →
+    ``thd_u_pct``; ``vrms`` → ``vrms_u``. The second name (``<quantity>_u``) is also accepted.
+    """
+    for suffix in _UNIT_SUFFIXES:
+        if quantity.endswith(suffix):
+            base = quantity[: -len(suffix)]
+            return (f"{base}_u{suffix}", f"{quantity}_u")
+    return (f"{quantity}_u",)
 
 
 @dataclass(frozen=True)

@@ -8,7 +8,8 @@ from pathlib import Path
 
 import pytest
 
-from benchfit.report.assemble import build_report, uncertainty_keys
+from benchfit.report.assemble import build_report
+from benchfit.report.spec import uncertainty_keys
 from benchfit.report.html import format_value, render_html, write_report
 from benchfit.report.spec import load_spec, parse_spec
 from conftest import make_capture, make_fit, make_measurement
