@@ -98,7 +98,10 @@ def wav_declared_frames(path: str | os.PathLike[str]) -> int | None:
 
 
 def _read_frames(sf_file: Any, where: str) -> tuple[np.ndarray, bool]:
-    """Read every frame that can be decoded; returns (frames × channels, stopped_by_error)."""
+    """Read every frame that can be decoded; returns ((channels, frames) array, stopped_by_error).
+
+    Blocks are transposed one at a time (cache-friendly), then joined once.
+    """
     import soundfile as sf
 
     parts: list[np.ndarray] = []
@@ -120,11 +123,11 @@ def _read_frames(sf_file: Any, where: str) -> tuple[np.ndarray, bool]:
             continue
         if block.shape[0] == 0:
             break
-        parts.append(block)
+        parts.append(np.ascontiguousarray(block.T))
         got += block.shape[0]
     if not parts:
-        return np.empty((0, sf_file.channels)), failed
-    return np.concatenate(parts, axis=0), failed
+        return np.empty((int(sf_file.channels), 0)), failed
+    return np.concatenate(parts, axis=1), failed
 
 
 def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
@@ -181,7 +184,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
         raise CaptureError(
             f"{where}: unreadable audio ({detail}) — the file is damaged; record or export it again"
         ) from e
-    n = frames.shape[0]
+    n = frames.shape[1]
     declared = wav_declared_frames(p) if fmt in ("WAV", "WAVEX", "RF64") else None
     if declared is not None and declared > n:
         warnings.append(f"{where}: audio data truncated: header declares {declared} frames, file holds {n}")
@@ -197,7 +200,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
     fs = header_fs
     names: tuple[str, ...] = tuple(f"ch{i + 1}" for i in range(n_ch))
     units = ("FS",) * n_ch
-    samples = frames.T
+    samples = frames
     calibration = InputCalibration()
     metadata: dict[str, Any] = {"format": fmt, "subtype": subtype, "header_sample_rate_hz": header_fs,
                                 "header_frames": header_frames}
