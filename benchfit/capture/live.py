@@ -32,7 +32,7 @@ import threading
 import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
+from datetime import datetime, timedelta, timezone
 from pathlib import Path
 from typing import Any, Literal, get_args
 
@@ -487,7 +487,11 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     stats = _Stats(channels)
     seen = [0]
 
+    first_block_utc: list[datetime] = []
+
     def callback(indata, frames, time_info, status):  # PortAudio thread: copy and queue only
+        if not first_block_utc:  # the stream's first sample was taken one block ago
+            first_block_utc.append(datetime.now(timezone.utc) - timedelta(seconds=frames / rate))
         left = total - seen[0]
         take = min(frames, left)
         if take > 0:
@@ -550,6 +554,8 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
             blocks.put(None)
             writer.join()
             sf_file.close()
+            if first_block_utc:
+                start_utc = first_block_utc[0].isoformat(timespec="milliseconds").replace("+00:00", "Z")
             with stats.lock:
                 frames, overflows, clips = stats.frames, stats.overflows, stats.clips
                 peak_all = tuple(to_dbfs(float(p)) for p in stats.peak_all)
