@@ -194,25 +194,27 @@ def free_response_basis(p: LowpassParts, sample_rate: float, n: int) -> np.ndarr
     """Two output sequences spanning the free (initial-state) response, shape (2, n).
 
     Row j is y[k] = C·Φᵏ·e_j for the unit initial states e_0 = [1 A, 0] and
-    e_1 = [0, 1 V]; used to add or fit an initial state linearly.
+    e_1 = [0, 1 V]; used to add or fit an initial state linearly. Each row obeys the
+    recursion of Φ's characteristic polynomial z² + c1·z + c0, so it is the impulse
+    response of the filter (b0 + b1·z⁻¹)/(1 + c1·z⁻¹ + c0·z⁻²) with b0 = y[0] and
+    b1 = y[1] + c1·y[0] (run by ``lfilter``).
     """
     from scipy.linalg import expm
+    from scipy.signal import lfilter
 
     a, _, c = state_space(p)
     phi = expm(a / float(sample_rate))
-    w, v = np.linalg.eig(phi)
-    k = np.arange(n)
-    if np.linalg.cond(v) < 1e8:
-        vinv = np.linalg.inv(v)
-        powers = w[:, None] ** k[None, :]  # (2, n)
-        # C·V·diag(wᵏ)·V⁻¹ → row j uses column j of V⁻¹
-        out = np.real(((c @ v)[:, None] * powers).T @ vinv).T
-        return np.ascontiguousarray(out)
-    out = np.empty((2, n))  # repeated eigenvalue (critical damping): iterate
-    x = np.eye(2)
-    for i in range(n):
-        out[:, i] = c @ x
-        x = phi @ x
+    den = np.array([1.0, -np.trace(phi), np.linalg.det(phi)])
+    impulse = np.zeros(n)
+    if n:
+        impulse[0] = 1.0
+    out = np.empty((2, n))
+    for j in range(2):
+        x0 = np.zeros(2)
+        x0[j] = 1.0
+        y0 = float(c @ x0)
+        y1 = float(c @ (phi @ x0))
+        out[j] = lfilter([y0, y1 + den[1] * y0], den, impulse)
     return out
 
 

@@ -74,6 +74,31 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
     return float(r[i]), float(q[j]), float(d[l])
 
 
+def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
+    """The lowest m-th subharmonic (m ≤ 12) of the strongest line that stands out in the spectrum.
+
+    Behind a resonant filter the strongest output line may be a harmonic of the drive (the
+    one nearest the resonance), so the fundamental is looked for below it: the Hann-window
+    spectrum at f_peak/m must exceed 30× the median level of the neighbouring bins.
+    """
+    n = y.size
+    spec = np.abs(np.fft.rfft((y - y.mean()) * np.hanning(n)))
+    best = f_peak
+    for m in range(2, 13):
+        fm = f_peak / m
+        b = fm * n / fs
+        if b < 4:
+            break
+        i = int(round(b))
+        lo, hi = max(1, i - 25), min(spec.size, i + 26)
+        around = np.concatenate([spec[lo:max(lo, i - 3)], spec[min(hi, i + 4):hi]])
+        if around.size < 8:
+            continue
+        if spec[max(i - 1, 1):i + 2].max() > 30.0 * float(np.median(around)):
+            best = fm
+    return best
+
+
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],
                     drive_duty: float | None):
     """Fit the lc-lowpass model to the output channel ``ri`` alone (see the module docstring)."""
@@ -89,6 +114,10 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         raise FitError(f"{where}: channel {name!r} has no periodic content — capture a few periods of "
                        "the filter's output while the drive runs, or use --model ringdown")
     f = tone.frequency_hz
+    f_low = true_fundamental(y, fs, f)
+    if f_low != f:
+        tone = fit_tone(y, fs, n_harmonics=max(9, int(round(f / f_low)) + 3), frequency_hz=f_low)
+        f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
     hy_all = fit_harmonics(y, fs, f, kmax)
     strong = np.nonzero(hy_all.amplitudes > SIGNIFICANCE * hy_all.amplitudes_u)[0]
