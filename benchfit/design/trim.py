@@ -192,7 +192,8 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
     Parameters
     ----------
     fit : FitResult
-        Result of an lc-lowpass fit (parameters L, C; derived resonant_frequency_hz).
+        Result of an lc-lowpass or ring-down fit (derived resonant_frequency_hz; parameters
+        L and C when the fit has them).
     target_hz : float
         Wanted resonance (Hz).
     series : str
@@ -214,18 +215,19 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
     """
     name = check_series(series)
     target = _pos(target_hz, "target")
-    if fit.model != "lc-lowpass":
-        raise DesignError(f"{fit.file}: model {fit.model!r} has no filter capacitance — "
-                          "fit with --model lc-lowpass")
+    if fit.model not in ("lc-lowpass", "ringdown"):
+        raise DesignError(f"{fit.file}: model {fit.model!r} has no filter resonance — "
+                          "fit with --model lc-lowpass or ringdown")
     cv, cu, cfixed = _param(fit, "C")
     lv, lu, lfixed = _param(fit, "L")
+    if cv is not None and not cv > 0:
+        cv = None
+    if lv is not None and not lv > 0:
+        lv = None
     d = fit.derived.get("resonant_frequency_hz")
-    if cv is None or cv <= 0:
-        raise DesignError(f"{fit.file}: the fit has no capacitance value — fit again with C free or "
-                          "--fix C=<bank value>")
     f0 = None if d is None else d.value
     f0u = None if d is None else d.stderr
-    if f0 is None and lv is not None and lv > 0:
+    if f0 is None and lv is not None and cv is not None:
         f0 = 1.0 / (2 * math.pi * math.sqrt(lv * cv))
     if f0 is None or not f0 > 0:
         raise DesignError(f"{fit.file}: the fit has no resonant frequency — fit again with L and C")
@@ -238,23 +240,26 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
     from benchfit.units import format_quantity as fq
 
     rho = _correlation(fit, "L", "C")
-    separate = (not cfixed and cu is not None and lv is not None and lv > 0 and not lfixed
-                and lu is not None and abs(rho) <= SEPARATE_LC_MAX_CORRELATION)
+    # C has its own standard error and L is fixed or has one, and the two are not merely
+    # their product (a ring-down with L fixed gives C from f0: then L is exact and u_C = 2·u_f0/f0·C)
+    separate = (cv is not None and not cfixed and cu is not None and lv is not None
+                and (lfixed or lu is not None) and abs(rho) <= SEPARATE_LC_MAX_CORRELATION)
     rl = rc = 0.0
     rc_known = True
     c_ref = cv
     if separate:
         route = "LC"
-        rl, rc = lu / lv, cu / cv
-        notes.append(f"L and C determined separately by the fit (correlation {rho:+.4f}); their "
+        rl, rc = (0.0 if lfixed else lu / lv), cu / cv
+        notes.append("L fixed and C from the resonance" if lfixed else
+                     f"L and C determined separately by the fit (correlation {rho:+.4f}); their "
                      "uncertainties and correlation are propagated")
-    elif cfixed:
+    elif cv is not None and cfixed:
         route = "f0"
         notes.append(f"C was fixed at {fq(cv, 'F', 5)} in the fit: the advice takes it as exact — an error "
                      "ε in it changes the capacitance to add by the same fraction ε")
     else:
         route = "f0"
-        why = ("C has no standard error" if cu is None else
+        why = ("the fit has no C" if cv is None else "C has no standard error" if cu is None else
                f"L and C are {abs(rho):.5f} correlated" if lv is not None else "L is missing")
         if bank:
             c_ref = float(sum(_pos(v, "bank value") for v in bank))
@@ -262,12 +267,15 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
             notes.append(f"the fit did not determine C by itself ({why}): the advice works from "
                          f"f0 = {f0:.6g} Hz and the bank's nominal {fq(c_ref, 'F', 5)} "
                          f"(±{bank_tolerance * 100:g} %, rectangular, included)")
-        else:
+        elif cv is not None:
             rc_known = False
             notes.append(f"the fit did not determine C by itself ({why}): the advice works from "
                          f"f0 = {f0:.6g} Hz and the fit's C = {fq(cv, 'F', 5)}; an error ε in that C "
                          "changes the capacitance to add by the same fraction and is NOT in the "
                          "prediction — give the bank's make-up (--bank) or fix C in the fit")
+        else:
+            raise DesignError(f"{fit.file}: the fit gives the resonance but no capacitance — give the "
+                              "capacitor bank's values (--bank 22u,10u,1u) or fix C or L in the fit")
     c_new = c_ref * (f0 / target) ** 2
     delta = c_new - c_ref
     # standard uncertainty of the needed total C: C_new = (a0/a2 ratio)/(ω²L) in the LC case,
@@ -322,7 +330,8 @@ def _decrease(cv: float, c_new: float, need_less: float, series: str, bank: Sequ
     if bank:
         vals = [_pos(v, "bank value") for v in bank]
         scale = cv / sum(vals)  # assume every bank part is off its nominal value by the same factor
-        notes.append(f"bank parts taken as {scale:.4f} × nominal (fitted C over the bank's nominal sum)")
+        if abs(scale - 1.0) > 1e-9:
+            notes.append(f"bank parts taken as {scale:.4f} × nominal (fitted C over the bank's nominal sum)")
         best: tuple[float, str, float, float, Combination | None] | None = None
         for v in vals:
             rest = cv - scale * v
@@ -443,7 +452,7 @@ def suggest_trim(fit_result, target_hz: float, *, series: str = "E12", max_parts
     Parameters
     ----------
     fit_result : FitResult or None
-        The unit's lc-lowpass fit (``benchfit.fit_lowpass`` or ``FitResult.from_dict`` of
+        The unit's lc-lowpass or ring-down fit (``benchfit.fit_lowpass`` or ``FitResult.from_dict`` of
         ``benchfit fit --json``). None for timer advice only.
     target_hz : float
         Wanted frequency (Hz): the filter's resonance and the timer's frequency.
@@ -489,10 +498,11 @@ def suggest_trim(fit_result, target_hz: float, *, series: str = "E12", max_parts
 def suggest_capacitor_trim(fit_result, target_hz: float) -> TrimAdvice | None:
     """Filter-capacitor advice for a calibration report, or None when none applies.
 
-    None when the fit is not an lc-lowpass fit, lacks C or f0, or when f0 is already within
-    two standard uncertainties of the target (no significant change to make).
+    None when the fit is neither an lc-lowpass nor a ring-down fit, when it lacks what the
+    advice needs (f0, and C or a fixed L), or when f0 is already within two standard
+    uncertainties of the target (no significant change to make).
     """
-    if fit_result is None or getattr(fit_result, "model", None) != "lc-lowpass":
+    if fit_result is None or getattr(fit_result, "model", None) not in ("lc-lowpass", "ringdown"):
         return None
     d = fit_result.derived.get("resonant_frequency_hz")
     if d is not None and d.value is not None and d.stderr is not None:

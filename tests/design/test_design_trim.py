@@ -117,6 +117,29 @@ def test_timer_advice_meets_the_target_in_the_scaled_equations():
     assert vc.present == pytest.approx(8.0)  # ⅔ of 12 V, the internal divider
 
 
+def ringdown_fit(f0=53.0, uf0=0.004, fixed_l=None):
+    params = {}
+    if fixed_l is not None:
+        c = 1 / ((2 * math.pi * f0) ** 2 * fixed_l)
+        params = {"L": FitParameter(fixed_l, None, True, "H"),
+                  "C": FitParameter(c, 2 * c * uf0 / f0, False, "F")}
+    return FitResult("hc04_ring.wav", "ringdown", "ringdown", params,
+                     {"resonant_frequency_hz": DerivedValue(f0, uf0)}, {}, FitQuality(0.01, 0.99, 900))
+
+
+def test_ringdown_fits_are_accepted():
+    # L fixed (two 150 mH chokes), C from the ring frequency: only f0's error remains, entering
+    # with the weight w = C/(C + ΔC') because C itself came from f0 (ln C = −2 ln f0 + const)
+    fit = ringdown_fit(fixed_l=0.3)
+    ch = suggest_trim(fit, 50.0, part_tolerance=0.0).capacitor
+    w = fit.parameters["C"].value / ch.chosen
+    assert ch.predicted_u_hz / ch.predicted_hz == pytest.approx(w * 0.004 / 53.0, rel=1e-9)
+    assert ch.predicted_hz == pytest.approx(1 / (2 * math.pi * math.sqrt(0.3 * ch.chosen)), rel=1e-12)
+    # nothing fixed: the bank's nominal value carries the advice
+    ch2 = suggest_trim(ringdown_fit(), 50.0, bank=[22e-6, 10e-6, 1e-6]).capacitor
+    assert ch2.present == pytest.approx(33e-6) and ch2.needed == pytest.approx(33e-6 * (53 / 50) ** 2)
+
+
 def test_report_helper_and_json_round_trip():
     fit = make_fit(uL=0.003, uC=0.3e-6, rho=-0.5, uf0=0.01)
     round_tripped = FitResult.from_dict(json.loads(json.dumps(fit.to_dict())))
@@ -129,13 +152,14 @@ def test_report_helper_and_json_round_trip():
     # within two standard uncertainties of the target: nothing to adjust
     f0 = fit.derived["resonant_frequency_hz"].value
     assert suggest_capacitor_trim(fit, f0 + 0.015) is None
-    assert suggest_capacitor_trim(make_fit(model="ringdown"), 50.0) is None
+    assert suggest_capacitor_trim(make_fit(model="rc-highpass"), 50.0) is None
 
 
 @pytest.mark.parametrize("call", [
     lambda f: suggest_trim(f, 0.0),
     lambda f: suggest_trim(f, -50.0),
-    lambda f: suggest_trim(make_fit(model="ringdown"), 50.0),
+    lambda f: suggest_trim(make_fit(model="rc-highpass"), 50.0),
+    lambda f: suggest_trim(ringdown_fit(), 50.0),            # no C, no fixed L, no bank
     lambda f: suggest_trim(f, 50.0, series="E5"),
     lambda f: suggest_trim(f, 50.0, part_tolerance=1.5),
     lambda f: suggest_trim(f, 50.0, timer_frequency_hz=50.3, ra_ohm=1e3),
