@@ -117,6 +117,20 @@ def whole_period_span(n_samples: int, sample_rate: float, frequency_hz: float | 
     return max(2, min(span, n_samples)), periods
 
 
+def _percentiles(x: np.ndarray, p_lo: float, p_hi: float) -> tuple[float, float]:
+    """Two percentiles (%), linear interpolation between order statistics (numpy's default
+    method), with one partial sort of one copy."""
+    n = x.size
+    pos = np.array([p_lo, p_hi]) / 100.0 * (n - 1)
+    lo_i = np.floor(pos).astype(np.int64)
+    hi_i = np.minimum(lo_i + 1, n - 1)
+    kth = np.unique(np.concatenate([lo_i, hi_i]))
+    part = np.partition(x, kth)
+    frac = pos - lo_i
+    vals = part[lo_i] + frac * (part[hi_i] - part[lo_i])
+    return float(vals[0]), float(vals[1])
+
+
 def signal_levels(x: np.ndarray, sample_rate: float, frequency_hz: float | None = None) -> Levels:
     """DC, RMS and robust peak-to-peak of a channel.
 
@@ -142,7 +156,7 @@ def signal_levels(x: np.ndarray, sample_rate: float, frequency_hz: float | None 
     vdc = float(np.mean(seg))
     vrms = float(math.sqrt(float(seg @ seg) / seg.size))
     vac = float(np.std(seg))
-    lo, hi = np.percentile(x, [VPP_PERCENTILE, 100.0 - VPP_PERCENTILE])
+    lo, hi = _percentiles(x, VPP_PERCENTILE, 100.0 - VPP_PERCENTILE)
     return Levels(vdc=vdc, vrms=vrms, vac_rms=vac, vpp=float(hi - lo), vmax=float(x.max()),
                   vmin=float(x.min()), span_samples=int(span), whole_periods=int(periods))
 
