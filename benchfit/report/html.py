@@ -24,7 +24,7 @@ from benchfit.errors import BenchfitError
 __all__ = ["render_html", "write_report", "format_value", "format_limits", "format_condition", "clean_svg", "report_stem"]
 
 _PREFIXES = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G"}
-_PREFIXABLE = {"V", "FS", "Hz", "s", "H", "F", "ohm", "1/s", "A"}
+_PREFIXABLE = {"V", "FS", "Hz", "s", "H", "F", "ohm", "A"}
 _DISPLAY_UNIT = {"ohm": "Ω", "1/s": "s⁻¹"}
 
 
@@ -35,7 +35,19 @@ def _unit_text(prefix: str, unit: str) -> str:
     return f"{prefix}{shown}"
 
 
-def format_value(value: float | None, unit: str = "", ref: float | None = None, digits: int = 5) -> str:
+def _significant(v: float, digits: int) -> str:
+    """``v`` to ``digits`` significant digits, in positional notation (no exponent)."""
+    if v == 0:
+        return "0"
+    exponent = math.floor(math.log10(abs(v)))
+    decimals = digits - 1 - exponent
+    if decimals >= 0:
+        return f"{v:.{decimals}f}"
+    return f"{round(v, decimals):.0f}"
+
+
+def format_value(value: float | None, unit: str = "", ref: float | None = None, digits: int = 5,
+                 strip: bool = True) -> str:
     """Display text of a value: SI prefix for SI units, rounded to the decimal place of ``ref``.
 
     Parameters
@@ -48,6 +60,8 @@ def format_value(value: float | None, unit: str = "", ref: float | None = None, 
         Uncertainty whose second significant digit sets the last digit shown.
     digits : int
         Significant digits when no ``ref`` is given.
+    strip : bool
+        Drop trailing zeros when no ``ref`` is given (kept for uncertainties).
     """
     if value is None or not isinstance(value, (int, float)) or not math.isfinite(value):
         return "—"
@@ -60,7 +74,9 @@ def format_value(value: float | None, unit: str = "", ref: float | None = None, 
         decimals = max(0, 1 - int(math.floor(math.log10(ref / scale))))
         text = f"{v:.{decimals}f}"
     else:
-        text = f"{v:.{digits}g}"
+        text = _significant(v, digits)
+        if "." in text and strip:
+            text = text.rstrip("0").rstrip(".")
     u = _unit_text(_PREFIXES[exp3], unit)
     sep = "" if unit == "%" else " "
     return f"{text}{sep}{u}".strip() if u else text
@@ -70,7 +86,7 @@ def format_u(u: float | None, unit: str = "") -> str:
     """An uncertainty to two significant digits with its unit."""
     if u is None or not isinstance(u, (int, float)) or not math.isfinite(u):
         return "—"
-    return format_value(u, unit, digits=2)
+    return format_value(u, unit, digits=2, strip=False)
 
 
 def format_limits(lower: float | None, upper: float | None, unit: str) -> str:

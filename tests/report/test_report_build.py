@@ -10,7 +10,7 @@ import pytest
 
 from benchfit.report.assemble import build_report
 from benchfit.report.spec import uncertainty_keys
-from benchfit.report.html import format_value, render_html, write_report
+from benchfit.report.html import format_u, format_value, render_html, write_report
 from benchfit.report.spec import load_spec, parse_spec
 from conftest import make_capture, make_fit, make_measurement
 
@@ -106,7 +106,7 @@ def test_html_shows_the_measured_numbers_with_units():
     html = render_html(_report(m), [])
     # the as-left frequency, rounded to the decimal place of U = 8 mHz (JCGM 100:2008, 7.2.6)
     assert format_value(50.0213, "Hz", 0.008) == "50.0213 Hz"
-    assert "50.0213 Hz" in html and "8 mHz" in html
+    assert "50.0213 Hz" in html and "8.0 mHz" in html       # U to two significant digits
     for text in ("output frequency", "49.75 Hz … 50.25 Hz", "≤ 5%", "1 V … 1.6 V", "guard-banded",
                  "5e5e5e", "USB audio interface", "bench-card-1", "IEEE Std 1057", "IEEE Std 181",
                  "ILAC-G8:09/2019", "k = 2", "inductive", "qualified"):
@@ -114,6 +114,9 @@ def test_html_shows_the_measured_numbers_with_units():
 
 
 def test_format_value():
+    assert format_u(0.00023, "Hz") == "230 µHz"              # no exponent notation
+    assert format_u(0.008, "Hz") == "8.0 mHz"                # two significant digits kept
+    assert format_u(0.17, "1/s") == "0.17 s⁻¹"               # no SI prefix on a reciprocal unit
     assert format_value(0.0213, "V", 0.0004) == "21.30 mV"   # value to the place of 2 digits of U
     assert format_value(4.0, "%") == "4%"
     assert format_value(None, "Hz") == "—"
