@@ -153,7 +153,7 @@ Example:
 """
 
 
-@design_app.command("astable", help="Choose 555-style astable parts for a frequency and duty, with the "
+@design_app.command("astable", short_help="555-style astable parts, spread and trim range.", help="Choose 555-style astable parts for a frequency and duty, with the "
                     "tolerance spread and trim range." + _ASTABLE_EXAMPLE)
 def astable_command(
     frequency: str = typer.Option(..., "--frequency", help="Wanted frequency, e.g. 50 or 1.2k (Hz)."),
@@ -240,7 +240,7 @@ Example:
 """
 
 
-@design_app.command("filter", help="Parts of a tuned L-C low-pass for a rectangular drive, with the "
+@design_app.command("filter", short_help="Tuned L-C low-pass parts and expected output.", help="Parts of a tuned L-C low-pass for a rectangular drive, with the "
                     "expected output level and THD." + _FILTER_EXAMPLE)
 def filter_command(
     frequency: str = typer.Option(..., "--frequency", help="Drive frequency; the resonance is put there (Hz)."),
@@ -297,7 +297,7 @@ Example:
 """
 
 
-@design_app.command("combine", help="Best series/parallel combinations of parts for a value, from a "
+@design_app.command("combine", short_help="Series/parallel part combinations for a value.", help="Best series/parallel combinations of parts for a value, from a "
                     "series or your stock list." + _COMBINE_EXAMPLE)
 def combine_command(
     value: str = typer.Argument(..., help="Wanted value, e.g. 29.7u, 9.2k, 300m."),
@@ -358,7 +358,7 @@ def _read_fit(path: Path):
         fail(f"{path}: not a benchfit fit result (missing or bad {e}) — use the output of 'benchfit fit --json'")
 
 
-@design_app.command("trim", help="From a unit's fit, the one part change that brings it to the target "
+@design_app.command("trim", short_help="The part change that brings a fitted unit to target.", help="From a unit's fit, the one part change that brings it to the target "
                     "frequency, with the predicted result." + _TRIM_EXAMPLE)
 def trim_command(
     fit: Path = typer.Option(..., "--fit", help="JSON from 'benchfit fit --model lc-lowpass --json'."),
