@@ -696,7 +696,10 @@ def _time_axis(values: np.ndarray, line_no: Sequence[int], time_col: int | None,
 
 
 def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str) -> tuple[float, float]:
-    """Mean step (s) and largest relative deviation from the uniform grid; errors name the line."""
+    """Mean step (s) and jitter: the largest distance of a time stamp from the least-squares uniform
+    grid, as a fraction of the step. Errors name the line: the first decreasing time, the largest gap
+    (a step off by more than half), or the first time stamp straying more than :data:`JITTER_LIMIT`.
+    """
     steps = np.diff(t)
     bad = np.flatnonzero(~(steps > 0))
     if bad.size:
@@ -705,13 +708,19 @@ def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str) -
                            f"(previous {t[r - 1]:.9g} s) — sort the rows or remove the repeated ones")
     n = t.size
     dt = float((t[-1] - t[0]) / (n - 1))
-    grid = t[0] + dt * np.arange(n)
-    jitter = float(np.max(np.abs(t - grid)) / dt) if n > 2 else 0.0
+    if n < 3:
+        return dt, 0.0
+    k = np.arange(n) - (n - 1) / 2
+    slope = float(np.dot(k, t - t.mean()) / np.dot(k, k))
+    deviation = np.abs(t - t.mean() - slope * k) / dt
+    jitter = float(deviation.max())
     if jitter > JITTER_LIMIT:
-        r = int(np.argmax(np.abs(steps - dt))) + 1
+        off = np.abs(steps - dt)
+        r = int(np.argmax(off)) + 1 if off.max() > 0.5 * dt else int(np.argmax(deviation > JITTER_LIMIT))
+        r = max(r, 1)
         raise CaptureError(
-            f"{where}: line {line_no[r]}, column {label!r}: time step {steps[r - 1]:.6g} s differs from the mean "
-            f"step {dt:.6g} s (time stamps stray up to {100 * jitter:.3g} % of a step, limit "
-            f"{100 * JITTER_LIMIT:g} %) — the samples are not evenly spaced; export without gaps or resample"
+            f"{where}: line {line_no[r]}, column {label!r}: time step {steps[r - 1]:.6g} s against a mean step of "
+            f"{dt:.6g} s — time stamps stray up to {100 * jitter:.3g} % of a step from a uniform grid (limit "
+            f"{100 * JITTER_LIMIT:g} %); the samples are not evenly spaced: export without gaps or resample"
         )
     return dt, jitter

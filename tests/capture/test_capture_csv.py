@@ -229,7 +229,9 @@ def test_small_jitter_is_accepted_and_recorded(tmp_path):
     cap = load(_write(tmp_path, _jittered(400, 0.005, seed=11)))
     assert cap.sample_rate == pytest.approx(10_000, rel=1e-9)  # ends pinned: mean step is 1e-4 s (9-digit print)
     jitter = cap.metadata["time_jitter_max_rel"]
-    assert 0.003 < jitter <= 0.005 + 1e-6  # uniform ±0.5 % over 400 draws reaches above 0.3 % (seeded)
+    # uniform ±0.5 % draws (seeded) reach above 0.3 %; measured from the least-squares grid, whose
+    # offset and slope move by ~0.5 %/sqrt(400) ≈ 0.03 % of a step, so 0.6 % bounds it
+    assert 0.003 < jitter < 0.006
 
 
 def test_large_jitter_is_rejected_naming_a_line(tmp_path):
