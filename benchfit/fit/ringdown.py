@@ -228,12 +228,15 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
         theta, cov, _ = fit_ring(t, y[a:b], 2 * math.pi * f_ring)
         if not (theta[3] > 0 and theta[4] > 0 and np.all(np.isfinite(cov))):
             continue
+        if theta[3] * t[-1] < 1.0:  # not a decaying ring: less than one time constant seen
+            continue
         model = _damped(t, theta[3], theta[4]) @ theta[:3]
         segments.append(RingSegment(a, theta[4], theta[3], cov[4, 4], cov[3, 3], cov[3, 4], t,
                                     y[a:b].copy(), model, theta[0]))
     if not segments:
-        raise FitError(f"{where}: the rings in {name!r} are too short to fit (fewer than "
-                       f"{_MIN_PERIODS} periods between edges) — slow the square drive down")
+        raise FitError(f"{where}: no decaying ring found in {name!r} (each ring needs at least "
+                       f"{_MIN_PERIODS} periods and one decay time before the next edge) — drive the "
+                       "filter with a slower square wave and capture its output")
     wd, u_wd = _weighted(np.array([s.omega for s in segments]), np.array([s.var_omega for s in segments]))
     al, u_al = _weighted(np.array([s.alpha for s in segments]), np.array([s.var_alpha for s in segments]))
     w0 = math.sqrt(wd * wd + al * al)
