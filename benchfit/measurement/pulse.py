@@ -55,6 +55,9 @@ _SCHMITT_LO, _SCHMITT_HI = 0.30, 0.70
 _LEVEL_SAMPLES = 1 << 17
 #: the droop fit uses a regular subset of at most about this many flat-top samples
 _COUPLING_SAMPLES = 1 << 16
+#: a heavily drooped square smears its states: below this fraction in the state bands no
+#: droop fit is tried (a triangle has 0.20, a sine 0.41; a square drooping 70 % still 0.2)
+_TRY_DROOP_FRACTION = 0.15
 #: a droop estimate is used only when 1/τ exceeds this many standard uncertainties
 _DROOP_SIGNIFICANCE = 5.0
 
@@ -447,7 +450,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     raw_edges = None
     if compensate and coupling_tau_s is not None and coupling_tau_s > 0:
         tau, source = float(coupling_tau_s), "calibration"
-    elif compensate and raw.amplitude > 0 and raw.fraction_in_states >= 0.5:
+    elif compensate and raw.amplitude > 0 and raw.fraction_in_states >= _TRY_DROOP_FRACTION:
         raw_edges = _find_edges(x, raw)
         cf = _fit_coupling(x, fs, raw_edges)
         if cf is not None:

@@ -161,3 +161,31 @@ def test_noisy_square_duty_uncertainty_is_honest():
         us.append(p.duty_cycle_u_pct)
     assert float(np.mean(us)) == pytest.approx(float(np.std(vals, ddof=1)), rel=0.35)
     assert float(np.mean(vals)) == pytest.approx(45.0, abs=0.01)
+
+
+def test_heavy_droop_is_still_found():
+    # a cheap card with a 20 Hz corner: a 50 Hz square droops ~70 % per half period, so only
+    # ~20 % of the raw samples sit near the states; the droop fit still recovers τ = 1/(2π·20 Hz)
+    t = times(2.5)
+    sq = trapezoid(t, 50.0, 0.6, 30e-6, low=-1.0, high=1.0, delay_s=0.4e-3)
+    b, a = signal.butter(1, 20.0, "highpass", fs=FS)
+    y = signal.lfilter(b, a, sq)[int(1.5 * FS):] + np.random.default_rng(1).normal(0, 1e-3, 48000)
+    p = pulse_parameters(y, FS)
+    assert p.two_level and p.coupling_source == "estimated"
+    # the bilinear high-pass and our rectangle-rule inverse differ by O(1/(fs·τ)) ≈ 0.3 %
+    assert p.coupling_tau_s == pytest.approx(1 / (2 * math.pi * 20.0), rel=0.01)
+    assert p.duty_cycle_pct == pytest.approx(60.0, abs=0.02)
+
+
+@pytest.mark.parametrize("kind", ["sine", "sine+2nd", "triangle", "sawtooth", "noise"])
+def test_no_droop_or_pulse_found_on_other_waves(kind):
+    from _measurement_signals import fourier_wave
+
+    t = times(1.0)
+    x = {"sine": lambda: tone(t, 50.0, 1.0, 0.3),
+         "sine+2nd": lambda: tone(t, 50.0, 1.0, 0.3) + 0.3 * np.sin(2 * math.pi * 100.0 * t),
+         "triangle": lambda: fourier_wave(t, 50.3, "triangle"),
+         "sawtooth": lambda: fourier_wave(t, 50.3, "sawtooth"),
+         "noise": lambda: np.random.default_rng(0).normal(size=t.size)}[kind]()
+    p = pulse_parameters(x, FS)
+    assert not p.two_level and p.coupling_tau_s is None
