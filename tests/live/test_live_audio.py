@@ -210,6 +210,21 @@ def test_device_errors_exit_3_with_one_line(rig, tmp_path):
     assert not list(tmp_path.glob("*.wav")) and not list(tmp_path.glob("*.json"))  # nothing left behind
 
 
+def test_calibrate_gain_recording_live(rig, tmp_path):
+    """`calibrate gain --record` captures from the card itself and stores the gain."""
+    player = rig.play(write_tone(tmp_path / "play.wav", 8.0, [(1000.0, 0.5), (1000.0, 0.5)]))
+    try:
+        r = rig.benchfit("calibrate", "gain", "--record", "--seconds", "1", "--device", "pulse",
+                         "--rms", "353.5534m", "--profile", "live", "--json")
+    finally:
+        stop(player)
+    assert r.returncode == 0, r.stderr
+    (g,) = json.loads(r.stdout)["gains"]
+    assert g["channel"] == 1 and g["v_per_fs"] == pytest.approx(1.0, rel=1e-4)  # 0.5 FS peak = 0.35355 V rms
+    assert "Safety" in r.stderr  # the caution is shown before a live capture
+    assert (tmp_path / "config" / "profiles" / "live.toml").is_file()
+
+
 def test_devices_lists_the_virtual_card(rig):
     r = rig.benchfit("devices", "--json")
     assert r.returncode == 0, r.stderr

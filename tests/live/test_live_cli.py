@@ -3,6 +3,7 @@
 
 from __future__ import annotations
 
+import io
 import json
 import math
 
@@ -130,3 +131,31 @@ def test_bad_input_exits_2_with_one_line(tmp_path, capsys, args, match):
     assert len(lines) == 1 and lines[0].startswith("error: ") and match in lines[0], err
     assert not (tmp_path / "new.wav").exists() and not (tmp_path / "new.json").exists()
     assert not (tmp_path / "cfg" / "profiles" / "p.toml").exists()  # nothing stored on failure
+
+
+def test_tune_screen_and_plain_line_show_units_and_uncertainty():
+    """The readout's text: mHz resolution with uncertainty, deviation in Hz and ppm, the hint."""
+    from rich.console import Console
+
+    from benchfit.capture.live import analyse_window
+    from benchfit.cli.live_cmd import _freq_text, _panel, _plain_line
+
+    rng = np.random.default_rng(9)
+    t = np.arange(FS) / FS
+    x = 0.4 * np.sin(2 * np.pi * 49.868 * t) + 1e-3 * rng.standard_normal(FS)
+    r = analyse_window(x, float(FS), 50.0, gain_v_per_fs=2.0, tolerance_hz=0.25)
+    line = _plain_line(1.0, r)
+    assert "running 0.132 Hz slow — raise the frequency: decrease RB or C1" in line
+    assert " V peak" in line and " V rms" in line and "ppm)" in line and "dBFS" in line
+    console = Console(record=True, width=120, file=io.StringIO())
+    console.print(_panel(r, 1.0, 50.0, 0.25, 3, 0, 0, 1.0, 0.25, None))
+    screen = console.export_text()
+    for text in ("tuning to 50 Hz ± 0.25 Hz", "frequency", _freq_text(r.frequency_hz, r.frequency_u_hz), "advice", "THD", "Ctrl-C to stop",
+                 "— (not a two-level wave)"):
+        assert text in screen, text
+    console.print(_panel(None, 0.0, 50.0, None, 0, 0, 0, 1.0, 0.25, None))
+    assert "waiting for the first full window" in console.export_text()
+    # at least mHz resolution, uncertainty to 2 significant digits
+    assert _freq_text(50.1234567, 0.0004) == "50.12346 ± 0.00040 Hz"
+    assert _freq_text(50.1234567, 0.04) == "50.123 ± 0.040 Hz"
+    assert _freq_text(50.1234567, 2e-8) == "50.123457 ± 2.0e-08 Hz"
