@@ -296,8 +296,12 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
 
 # --- one unit, end to end (I/O) ----------------------------------------------------------
 
-def _call_fit(capture: Any, options: FitOptions) -> Any:
-    """Call ``benchfit.fit_lowpass`` or ``benchfit.fit_ringdown`` with the options it accepts."""
+def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
+    """``benchfit.fit_lowpass`` or ``benchfit.fit_ringdown`` and the keyword options it accepts.
+
+    Raises FitError (bad input, exit 2) for an unknown model or an option the fitter does not take,
+    before any capture is read.
+    """
     import benchfit
 
     if options.model == "ringdown":
@@ -316,7 +320,7 @@ def _call_fit(capture: Any, options: FitOptions) -> Any:
         if name not in params:
             raise FitError(f"--{name}: the {options.model} fit does not take this option — leave it out")
         kwargs[name] = value
-    return fn(capture, **kwargs)
+    return fn, kwargs
 
 
 def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: Sequence[Mapping[str, Any]]
@@ -387,20 +391,21 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     sp = spec if isinstance(spec, Spec) else load_spec(spec)
     if not unit or not unit.strip():
         raise SpecError("--unit: the serial is empty — give the unit's serial, e.g. --unit HC-07")
+    fit_opts = fit if fit is not None else (FitOptions() if sp.needs_fit else None)
+    fit_fn, fit_kwargs = _fit_call(fit_opts) if fit_opts is not None else (None, {})
     left, found = [], []
     for paths, group in ((captures, left), (as_found, found)):
         for p in paths:
             step(f"measuring {p}")
             capture = benchfit.load(p)
             group.append((capture, benchfit.measure(capture)))
-    fit_opts = fit if fit is not None else (FitOptions() if sp.needs_fit else None)
     fits_left, fits_found, fit_errors = [], [], []
-    if fit_opts is not None:
+    if fit_fn is not None:
         for group, target in ((left, fits_left), (found, fits_found)):
             for capture, _ in group:
                 step(f"fitting {capture.source}")
                 try:
-                    target.append(_call_fit(capture, fit_opts))
+                    target.append(fit_fn(capture, **fit_kwargs))
                 except BenchfitError as e:
                     # a capture that cannot be fitted is reported (its fitted limits become
                     # "not measured"); the other captures are still judged
