@@ -45,6 +45,8 @@ DEFAULT_HARMONICS = 10
 _DETECT_RATIO = 8.0
 #: below this SNR (dB) a channel gets a low-SNR warning
 _LOW_SNR_DB = 10.0
+#: an estimated coupling droop above this (%) is reported as a warning
+_DROOP_WARN_PCT = 5.0
 #: fewer whole periods than this gives a short-record warning
 _MIN_PERIODS = 3.0
 
@@ -131,6 +133,11 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     pulse = pulse_parameters(x, fs, coupling_tau_s)
     if pulse.two_level:
         warnings.extend(pulse.warnings)
+        if pulse.coupling_source == "estimated" and (pulse.droop_pct or 0.0) >= _DROOP_WARN_PCT:
+            warnings.append(
+                f"flat tops droop {pulse.droop_pct:.0f} % (input AC coupling, τ ≈ "
+                f"{_fmt(pulse.coupling_tau_s, 's')} estimated): pulse values are compensated, levels "
+                "and THD are as recorded — calibrate the input's coupling or use a DC-coupled input")
     if pulse.two_level and pulse.state_low is not None and pulse.state_high is not None and clip.kind == "rail":
         # a two-level wave's flat extremes are its states, not a saturated recorder's rails
         clip = find_clipping(x, unit, full_scale, rails=False)
