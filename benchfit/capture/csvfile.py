@@ -342,6 +342,9 @@ def _data_start(lines: list[str], lay: _Layout, where: str) -> int:
     """Index of the first data row: the first all-numeric row, moved up over damaged rows above it."""
     start = next((i for i, ln in enumerate(lines) if ln.strip() and len(cells := _cells(ln, lay)) == lay.n_fields
                   and all(_is_number(c, lay.decimal) for c in cells)), None)
+    if start is None:  # no clean row at all: start at the first row that looks like damaged data
+        start = next((i for i, ln in enumerate(lines) if ln.strip() and not _is_marked(ln)
+                      and _looks_like_data(_cells(ln, lay), lay)), None)
     if start is None:
         raise CaptureError(f"{where}: holds a header or preamble but no numeric data rows — export the data again")
     for j in range(start - 1, -1, -1):
@@ -463,16 +466,20 @@ def _column_labels(names: list[str] | None, unit_row: list[str] | None, K: int) 
 
 
 def _cell_problem(cell: str) -> str:
+    """What is wrong with a cell and what to do, for the one-line error."""
     shown = cell if len(cell) <= 40 else cell[:37] + "..."
     if not cell.strip():
-        return "the cell is empty"
+        return "the cell is empty — fix or delete that row"
+    if re.search(r"\d:\d\d", cell):
+        return (f"{shown!r} is a clock time, not a number — export elapsed time in seconds "
+                "(or drop the column and pass the sample rate)")
     try:
         float(cell.strip().strip('"').replace(",", "."))
     except ValueError:
-        return f"{shown!r} is not a number"
+        return f"{shown!r} is not a number — fix or delete that row"
     if "_" in cell:
-        return f"{shown!r} is not a number"
-    return f"{shown!r} is not a finite number"
+        return f"{shown!r} is not a number — fix or delete that row"
+    return f"{shown!r} is not a finite number — fix or delete that row"
 
 
 def _parse_numbers(texts: list[str], line_no: Sequence[int], lay: _Layout, labels: list[str], where: str,
@@ -495,8 +502,7 @@ def _parse_numbers(texts: list[str], line_no: Sequence[int], lay: _Layout, label
     if values is not None:
         r, c = (int(v) for v in np.argwhere(~np.isfinite(values))[0])
         cell = texts[r].split(sep)[c]
-        raise CaptureError(f"{where}: line {line_no[r]}, column {labels[c]!r}: {_cell_problem(cell)} — "
-                           "fix or delete that row")
+        raise CaptureError(f"{where}: line {line_no[r]}, column {labels[c]!r}: {_cell_problem(cell)}")
     # slow path: parse in Python, naming the first cell that cannot be read
     out = np.empty((len(texts), lay.n_fields))
     for r, t in enumerate(texts):
@@ -509,8 +515,7 @@ def _parse_numbers(texts: list[str], line_no: Sequence[int], lay: _Layout, label
             except ValueError:
                 ok = False
             if not ok:
-                raise CaptureError(f"{where}: line {line_no[r]}, column {labels[c]!r}: {_cell_problem(cell)} — "
-                                   "fix or delete that row")
+                raise CaptureError(f"{where}: line {line_no[r]}, column {labels[c]!r}: {_cell_problem(cell)}")
             out[r, c] = float(v)
     return out
 

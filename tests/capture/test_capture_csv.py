@@ -267,6 +267,7 @@ def test_time_not_increasing_names_the_row(tmp_path):
         ("Time (s),CH1 (V)\n0,1\n0.001\n0.002,3\n0.003,4\n", "line 3 has 1 cell(s) but the data rows have 2"),
         ('Time (s);CH1 (V)\n0;1\n0,001;"1,2,3"\n0,002;3\n', "line 3, column 'CH1 (V)': '1,2,3' is not a number"),
         ("#VALUE!,1\n0.1,2\n0.2,3\n", "line 1, column 'column 1': '#VALUE!' is not a number"),
+        ("Time,CH1 (V)\n17:00:00.000,1\n17:00:00.001,2\n", "line 2, column 'Time': '17:00:00.000' is a clock time"),
         ("Time (s),CH1 (V)\n", "no numeric data rows"),
         ("Time (s),CH1 (V)\n0,1\n", "only 1 data row"),
         ("# only a comment\n", "no data rows, only comments"),
