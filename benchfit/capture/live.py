@@ -365,8 +365,12 @@ class _Stats:
         return st
 
 
-def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats) -> None:
-    """Writer thread: stream blocks from the queue into the open sound file until ``None``."""
+def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats, integer: bool) -> None:
+    """Writer thread: stream blocks from the queue into the open sound file until ``None``.
+
+    For an integer file (PCM_24) samples beyond ±1 FS (possible from a float sound server)
+    are limited to full scale before writing, as an ADC would; they are counted as clips.
+    """
     failed = False
     while True:
         item = blocks.get()
@@ -376,7 +380,7 @@ def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats) -> None:
         if failed:
             continue  # keep draining so the producer never blocks
         try:
-            sf_file.write(block)
+            sf_file.write(np.clip(block, -1.0, 1.0) if integer else block)
         except Exception as e:  # disk full, file removed: report it, keep the queue moving
             with stats.lock:
                 stats.error = e
@@ -396,12 +400,11 @@ def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats) -> None:
 
 @contextlib.contextmanager
 def _sigint_deferred():
-    """Hold off a second Ctrl-C while a file is being finished (main thread only)."""
+    """Ignore a second Ctrl-C while the file is being finished (main thread only)."""
     if threading.current_thread() is not threading.main_thread():
         yield
         return
-    pending: list[int] = []
-    previous = signal.signal(signal.SIGINT, lambda signum, frame: pending.append(signum))
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
     try:
         yield
     finally:
@@ -507,7 +510,8 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
                                subtype=_SUBTYPES[sample_format], format="WAV")
     except (sf.LibsndfileError, RuntimeError, OSError) as e:
         raise CaptureError(f"{out}: cannot be created ({e}) — check the folder is writable") from e
-    writer = threading.Thread(target=_writer, args=(sf_file, blocks, stats), name="benchfit-writer", daemon=True)
+    writer = threading.Thread(target=_writer, args=(sf_file, blocks, stats, sample_format == "pcm24"),
+                              name="benchfit-writer", daemon=True)
     writer.start()
     try:
         with _quiet_native_stderr():

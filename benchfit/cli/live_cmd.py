@@ -63,6 +63,7 @@ def devices(json_out: bool = typer.Option(False, "--json", help="Print one JSON 
     if not devs:
         stdout.print("no audio input devices found — connect a sound card or start the sound server")
         return
+    from rich.markup import escape
     from rich.table import Table
 
     table = Table(title="audio inputs", title_justify="left", box=None, pad_edge=False)
@@ -70,7 +71,7 @@ def devices(json_out: bool = typer.Option(False, "--json", help="Print one JSON 
                       ("inputs", "right"), ("default rate", "right")):
         table.add_column(col, justify=just)
     for d in devs:
-        table.add_row("*" if d.is_default else "", str(d.index), d.name, d.hostapi, str(d.input_channels),
+        table.add_row("*" if d.is_default else "", str(d.index), escape(d.name), escape(d.hostapi), str(d.input_channels),
                       f"{d.default_rate_hz:g} Hz")
     stdout.print(table)
     stdout.print("* = default input. Pick one with --device INDEX or --device NAME.")
@@ -111,11 +112,11 @@ def _progress_recorder(out: Path, seconds: float, rate: int, channels: int, devi
         now = time.monotonic()
         if st.new_clips and now - last_warn["clip"] >= 1.0:
             progress.console.print(f"warning: input clipping (≥ −0.1 dBFS): {st.clip_count} sample(s) "
-                                   "so far — lower the input level", soft_wrap=True)
+                                   "so far — lower the input level", soft_wrap=True, markup=False)
             last_warn["clip"] = now
         if st.new_overflows and now - last_warn["overflow"] >= 1.0:
             progress.console.print(f"warning: input overflow reported by PortAudio: {st.overflow_count} "
-                                   "so far — samples were lost; close other audio programs", soft_wrap=True)
+                                   "so far — samples were lost; close other audio programs", soft_wrap=True, markup=False)
             last_warn["overflow"] = now
 
     try:
@@ -156,7 +157,7 @@ def record(
     except RecordingInterrupted as stop:
         res = stop.result
         stderr.print(f"stopped by Ctrl-C: saved {res.duration_s:.3f} s ({res.frames} frames) to {res.path} "
-                     f"and {res.sidecar_path}", soft_wrap=True)
+                     f"and {res.sidecar_path}", soft_wrap=True, markup=False)
         raise typer.Exit(130) from None
     _report_recording(result, json_out)
 
@@ -171,12 +172,12 @@ def _report_recording(result, json_out: bool) -> None:
                     "calibration": result.calibration.to_dict(), "warnings": list(result.warnings)})
         return
     for w in result.warnings:
-        stderr.print(f"warning: {w}")
+        stderr.print(f"warning: {w}", soft_wrap=True, markup=False)
     peaks = ", ".join(f"{n} {p:.1f} dBFS" for n, p in zip(result.channel_names, result.peak_dbfs))
     stdout.print(f"saved {result.path}: {result.duration_s:.3f} s, {len(result.channel_names)} ch at "
                  f"{result.sample_rate:g} Hz from {result.device!r}; peak {peaks}; "
                  f"{result.clip_count} clipped sample(s), {result.overflow_count} overflow(s); "
-                 f"sidecar {result.sidecar_path}", soft_wrap=True)
+                 f"sidecar {result.sidecar_path}", soft_wrap=True, markup=False)
 
 
 # --------------------------------------------------------------------------------------
@@ -366,7 +367,7 @@ def _calibration_source(file: Optional[Path], do_record: bool, seconds: Optional
         if seconds is None:
             fail("--seconds: give the recording length with --record, e.g. --seconds 5")
         target = file if file is not None else Path(tmp) / "calibration.wav"
-        stderr.print(CAUTION)
+        stderr.print(CAUTION, markup=False)
         _progress_recorder(target, seconds, _rate(rate), channels, _device(device), None, None,
                            overwrite=False, sample_format="float")
         return read_raw_wav(target), str(target) if file is not None else f"live recording ({seconds:g} s)"
@@ -438,8 +439,8 @@ def calibrate_gain(
 
     for i, e in out:
         stdout.print(f"channel {i + 1} ({names[i]}): {format_with_uncertainty(e.v_per_fs, e.u_v_per_fs, 'V/FS')} "
-                     f"(sine {e.rms_fs:.5f} FS rms at {e.frequency_hz:.3f} Hz, {e.residual_pct:.2f} % not sine)", soft_wrap=True)
-    stdout.print(f"saved to profile {prof.name!r} ({path})")
+                     f"(sine {e.rms_fs:.5f} FS rms at {e.frequency_hz:.3f} Hz, {e.residual_pct:.2f} % not sine)", soft_wrap=True, markup=False)
+    stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
 @calibrate_app.command("timebase", short_help="Sample-clock error in ppm, from a tone of trusted frequency.", help=(
@@ -484,8 +485,8 @@ def calibrate_timebase(
     speed = "fast" if est.ppm > 0 else "slow"
     stdout.print(f"tone measured {_freq_text(est.measured_hz, est.measured_u_hz)} on the nominal {fs:g} Hz; "
                  f"sample clock error {_ppm_text(est.ppm, est.u_ppm)} (runs {speed}); "
-                 f"true rate {fs * (1 + est.ppm * 1e-6):.4f} Hz", soft_wrap=True)
-    stdout.print(f"saved to profile {prof.name!r} ({path})")
+                 f"true rate {fs * (1 + est.ppm * 1e-6):.4f} Hz", soft_wrap=True, markup=False)
+    stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
 @calibrate_app.command("coupling", short_help="Input high-pass time constant, from a low-frequency square wave.", help=(
@@ -518,8 +519,8 @@ def calibrate_coupling(
                     "corner_hz": 1.0 / (2 * math.pi * tau)})
         return
     stdout.print(f"input coupling time constant {tau * 1e3:.4g} ms (high-pass corner "
-                 f"{1.0 / (2 * math.pi * tau):.4g} Hz) on channel {i + 1} ({names[i]})", soft_wrap=True)
-    stdout.print(f"saved to profile {prof.name!r} ({path})")
+                 f"{1.0 / (2 * math.pi * tau):.4g} Hz) on channel {i + 1} ({names[i]})", soft_wrap=True, markup=False)
+    stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
 @calibrate_app.command("show", epilog="Example: benchfit calibrate show desk")
@@ -537,18 +538,19 @@ def calibrate_show(
         return
     if not profiles:
         stdout.print(f"no calibration profiles in {folder} — create one with 'benchfit calibrate gain|timebase|"
-                     "coupling FILE --profile NAME'")
+                     "coupling FILE --profile NAME'", markup=False)
         return
+    from rich.markup import escape
     from rich.table import Table
 
     from benchfit.units import format_with_uncertainty
 
-    table = Table(title=f"calibration profiles ({folder})", title_justify="left", box=None, pad_edge=False)
+    table = Table(title=escape(f"calibration profiles ({folder})"), title_justify="left", box=None, pad_edge=False)
     for col in ("profile", "gain (V/FS)", "sample clock", "input coupling τ"):
         table.add_column(col)
     for p in profiles:
         gains = "\n".join(f"ch{g.channel}: {format_with_uncertainty(g.v_per_fs, g.u_v_per_fs)}" for g in p.gains) or "—"
         tb = _ppm_text(p.timebase.ppm, p.timebase.u_ppm) if p.timebase else "—"
         cp = (f"{p.coupling.tau_s * 1e3:.4g} ms" if p.coupling else "—")
-        table.add_row(p.name, gains, tb, cp)
+        table.add_row(escape(p.name), gains, tb, cp)
     stdout.print(table)
