@@ -23,6 +23,7 @@ import json
 import math
 import os
 import tempfile
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
@@ -109,6 +110,12 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
     for key in ("device", "start_utc", "benchfit_version"):
         if key in data and data[key] is not None and not isinstance(data[key], str):
             raise CaptureError(f"{where}: {key!r} must be a string, got {data[key]!r} — {fix}")
+    if isinstance(data.get("start_utc"), str):
+        try:
+            datetime.fromisoformat(data["start_utc"].replace("Z", "+00:00"))
+        except ValueError:
+            raise CaptureError(f"{where}: 'start_utc' {data['start_utc']!r} is not an ISO 8601 time such as "
+                               f"2026-12-01T17:00:00Z — {fix}") from None
     for key in ("overflow_count", "clip_count"):
         if key in data and not _is_count(data[key]):
             raise CaptureError(f"{where}: {key!r} must be a whole number ≥ 0, got {data[key]!r} — {fix}")

@@ -92,6 +92,7 @@ def _broken(path, value):
         (("overflow_count",), -1, "overflow_count"),
         (("clip_count",), 1.5, "clip_count"),
         (("device",), 12, "'device'"),
+        (("start_utc",), "yesterday evening", "not an ISO 8601 time"),
         (("calibration",), [1, 2], "'calibration'"),
         (("calibration", "gain_v_per_fs"), [2.5], "one gain per channel"),
         (("calibration", "gain_v_per_fs"), [2.5, -1.0], "gain_v_per_fs[1]"),
