@@ -113,9 +113,9 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
     if isinstance(data.get("start_utc"), str):
         try:
             datetime.fromisoformat(data["start_utc"].replace("Z", "+00:00"))
-        except ValueError:
+        except ValueError as e:
             raise CaptureError(f"{where}: 'start_utc' {data['start_utc']!r} is not an ISO 8601 time such as "
-                               f"2026-12-01T17:00:00Z — {fix}") from None
+                               f"2026-12-01T17:00:00Z — {fix}") from e
     for key in ("overflow_count", "clip_count"):
         if key in data and not _is_count(data[key]):
             raise CaptureError(f"{where}: {key!r} must be a whole number ≥ 0, got {data[key]!r} — {fix}")
