@@ -28,7 +28,8 @@ def _signal(n_ch: int, n: int = 1000, seed: int = 7) -> np.ndarray:
 # bits of resolution of each subtype; None = floating point
 SUBTYPES = [
     ("WAV", "PCM_16", 16), ("WAV", "PCM_24", 24), ("WAV", "PCM_32", 32), ("WAV", "PCM_U8", 8),
-    ("WAV", "FLOAT", None), ("WAV", "DOUBLE", None), ("FLAC", "PCM_16", 16), ("FLAC", "PCM_24", 24),
+    ("WAV", "FLOAT", None), ("WAV", "DOUBLE", None), ("FLAC", "PCM_S8", 8), ("FLAC", "PCM_16", 16),
+    ("FLAC", "PCM_24", 24),
 ]
 
 
