@@ -7,7 +7,6 @@ sounddevice and rich load inside the command functions.
 from __future__ import annotations
 
 import math
-import os
 import tempfile
 from pathlib import Path
 from typing import Optional
