@@ -7,8 +7,8 @@ inverse Cholesky factor of its covariance), so χ² has its usual meaning.
 
 Identifiability. At the solution the whitened Jacobian J (residuals × log-parameters) is
 decomposed, J = U·S·Vᵀ. Along the right singular vector v_i the standard deviation of the
-log-parameters is σ_i = √χ²_red / s_i. A direction with σ_i > 1 (more than 100 % relative
-uncertainty, or numerically singular) is *undetermined*; a parameter with a noticeable
+log-parameters is σ_i = √χ²_red / s_i. A direction with σ_i > 0.5 (more than about 50 %
+relative uncertainty, or numerically singular) is *undetermined*; a parameter with a noticeable
 component in such a direction is not determined by the data and is reported with
 ``stderr=None`` and a warning naming what to measure. The classic case: with a light
 (high-impedance) load the response depends on L·C, Rs·C and Resr·C only, so the direction
@@ -36,8 +36,10 @@ __all__ = ["Identification", "identify", "fit_log_parameters", "numeric_jacobian
 DERIVED_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "q_factor", "damped_frequency_hz",
                                   "decay_rate_per_s")
 
-#: a direction whose log-parameter standard deviation exceeds this is undetermined (100 %)
-_SIGMA_LIMIT = 1.0
+#: a direction whose log-parameter standard deviation exceeds this is undetermined: 0.5 is
+#: a factor e^0.5 ≈ 1.65 either way (over 50 % relative), where the linearised error bar
+#: itself stops being trustworthy and a part value is no longer useful
+_SIGMA_LIMIT = 0.5
 #: components of undetermined directions smaller than this are rounding, not dependence
 _COMPONENT_FLOOR = 1e-3
 

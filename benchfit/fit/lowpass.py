@@ -424,7 +424,7 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
     fix_d, guess_d = check_parts(fix, guess, where)
     if drive_duty is not None and not (0.0 < float(drive_duty) < 1.0):
         raise FitError(f"--drive-duty {drive_duty!r}: the duty cycle must be between 0 and 1 "
-                       "(high time / period), e.g. 0.5")
+                       "(high time / period) — pass e.g. --drive-duty 0.5")
     if method == "auto":
         method = "two-channel" if cap.n_channels >= 2 else "one-channel"
     if method == "two-channel":

@@ -1,0 +1,142 @@
+"""What the data determine, the JSON contract, and bad input to fit_lowpass.
+
+Synthetic captures are made with benchfit's own exact simulation (checked against scipy in
+test_circuits.py) plus seeded noise; these tests are about behaviour (which parts are
+reported as determined, which warnings appear), not about accuracy against an outside tool
+(that is test_lowpass_ngspice.py).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from benchfit.capture.capture import Capture
+from benchfit.errors import FitError
+from benchfit.fit.circuits import LowpassParts, second_order, simulate
+from benchfit.fit.lowpass import fit_lowpass
+from benchfit.fit.result import FitResult
+
+FS = 20000.0
+
+
+def _two_channel(p: LowpassParts, seed: int = 1, f: float = 50.0, duty: float = 0.5,
+                 seconds: float = 1.0) -> Capture:
+    n_settle = int(0.5 * FS)
+    n = int(seconds * FS)
+    t = np.arange(n_settle + n) / FS
+    drive = 12.0 * (((t * f) % 1.0) < duty)
+    out = simulate(drive, FS, p)
+    rng = np.random.default_rng(seed)
+    x = drive[n_settle:] + rng.normal(0, 5e-3, n)
+    y = out[n_settle:] + rng.normal(0, 2e-3, n)
+    return Capture(np.vstack([x, y]), FS, ("drive", "output"), ("V", "V"), source="synthetic.csv")
+
+
+HIGH_Z = LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e6)  # a 10 MΩ probe as the only load
+
+
+def test_nothing_fixed_high_impedance_leaves_L_and_C_open():
+    r = fit_lowpass(_two_channel(HIGH_Z))
+    d = r.to_dict()
+    # with a light load the response depends on L·C, Rs·C and Resr·C only (REFERENCES §6 H(s)
+    # with R_L → ∞): C (and L) must not get a finite stderr, and the warning says what to fix
+    assert d["parameters"]["C"]["stderr"] is None
+    assert d["parameters"]["L"]["stderr"] is None
+    assert any("--fix L=" in w and "L·C" in w for w in d["warnings"])
+    # the resonance figures are determined all the same
+    truth = second_order(HIGH_Z)
+    f0 = d["derived"]["resonant_frequency_hz"]
+    assert f0["stderr"] is not None and f0["stderr"] > 0
+    # 2 mV noise: f0 to well within 0.1 % (the stderr is about 0.002 %)
+    assert f0["value"] == pytest.approx(truth["resonant_frequency_hz"], rel=1e-3)
+    assert d["derived"]["q_factor"]["stderr"] is not None
+    assert d["correlations"] == {} or all(",C" not in k and not k.startswith("C,") for k in d["correlations"])
+
+
+def test_L_fixed_high_impedance_determines_C_not_Rload():
+    r = fit_lowpass(_two_channel(HIGH_Z, seed=2), fix={"L": 0.3})
+    p = r.parameters
+    assert p["C"].stderr is not None
+    assert p["C"].value == pytest.approx(33e-6, rel=0.01)  # 2 mV noise, stderr ≈ 0.01 %
+    assert p["Rload"].stderr is None
+    assert any(w.startswith("Rload:") or "Rload" in w.split(":")[0] for w in r.warnings)
+    assert all("--fix" in w for w in r.warnings)
+
+
+def test_all_fixed_but_C_and_Rs_correlations_reported():
+    r = fit_lowpass(_two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=3),
+                    fix={"L": 0.3, "Rload": 10e3})
+    assert set(r.correlations) == {"C,Rs", "C,Resr", "Rs,Resr"}
+    assert all(-1.0 <= v <= 1.0 for v in r.correlations.values())
+    assert r.warnings == ()
+
+
+def test_json_contract_shape():
+    r = fit_lowpass(_two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=4),
+                    fix={"L": 0.3, "Rload": 10e3})
+    d = json.loads(json.dumps(r.to_dict(), allow_nan=False))
+    assert set(d) == {"file", "model", "method", "parameters", "derived", "correlations",
+                      "quality", "warnings"}
+    assert d["model"] == "lc-lowpass" and d["method"] == "two-channel"
+    assert list(d["parameters"]) == ["L", "C", "Rs", "Resr", "Rload"]
+    assert {k: v["unit"] for k, v in d["parameters"].items()} == {
+        "L": "H", "C": "F", "Rs": "ohm", "Resr": "ohm", "Rload": "ohm"}
+    assert set(d["derived"]) == {"resonant_frequency_hz", "q_factor", "damped_frequency_hz",
+                                 "decay_rate_per_s"}
+    assert set(d["quality"]) == {"nrmse", "r_squared", "n_points"}
+    back = FitResult.from_dict(d)
+    assert back.parameters["C"].value == r.parameters["C"].value
+
+
+def test_resr_fixed_at_zero_is_allowed():
+    r = fit_lowpass(_two_channel(LowpassParts(0.3, 33e-6, 20.0, 0.0, 10e3), seed=5),
+                    fix={"L": 0.3, "Rload": 10e3, "Resr": 0})
+    assert r.parameters["Resr"].fixed and r.parameters["Resr"].value == 0.0
+    assert r.parameters["Rs"].value == pytest.approx(20.0, rel=0.01)  # 2 mV noise, stderr ≈ 0.1 %
+
+
+@pytest.mark.parametrize("kwargs,match", [
+    ({"fix": {"Lx": 1.0}}, "unknown part"),
+    ({"fix": {"C": -1e-6}}, "must be"),
+    ({"fix": {"L": 0.0}}, "must be"),
+    ({"guess": {"Resr": 0.0}}, "must be"),
+    ({"drive_duty": 1.5}, "between 0 and 1"),
+    ({"method": "three-channel"}, "unknown"),
+])
+def test_bad_options_raise_one_line(kwargs, match):
+    cap = _two_channel(HIGH_Z, seconds=0.2)
+    with pytest.raises(FitError, match=match) as e:
+        fit_lowpass(cap, **kwargs)
+    assert "\n" not in str(e.value) and " — " in str(e.value)
+
+
+def test_silent_response_and_aperiodic_drive():
+    n = 4000
+    rng = np.random.default_rng(9)
+    drive = 12.0 * ((np.arange(n) // 200) % 2)
+    silent = Capture(np.vstack([drive, np.zeros(n)]), FS, ("drive", "output"), ("V", "V"), source="s.csv")
+    with pytest.raises(FitError, match="silent") as e:
+        fit_lowpass(silent)
+    assert "s.csv" in str(e.value)
+    noise = Capture(np.vstack([rng.normal(0, 1, n), rng.normal(0, 1, n)]), FS, ("drive", "output"),
+                    ("V", "V"), source="n.csv")
+    with pytest.raises(FitError, match="periodic|harmonics") as e:
+        fit_lowpass(noise)
+    assert "\n" not in str(e.value)
+
+
+def test_two_channel_needs_two_channels():
+    cap = Capture(np.sin(np.arange(4000) / 10.0)[None, :], FS, ("output",), ("V",), source="one.wav")
+    with pytest.raises(FitError, match="one channel"):
+        fit_lowpass(cap, method="two-channel")
+
+
+def test_channels_picked_by_name():
+    cap = _two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=6, seconds=0.5)
+    swapped = Capture(cap.samples[::-1], FS, ("Vout", "Vin"), ("V", "V"), source="swap.csv")
+    r = fit_lowpass(swapped, fix={"L": 0.3, "Rload": 10e3})
+    assert r.parameters["C"].value == pytest.approx(33e-6, rel=0.01)  # picked vin as drive
