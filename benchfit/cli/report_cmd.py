@@ -25,7 +25,7 @@ _FIT_NAMES = ("L", "C", "Rs", "Resr", "Rload")
 
 
 @app.command("report", help="Judge a built unit against its spec and write an HTML + JSON calibration record."
-             + _EXAMPLE)
+             + _EXAMPLE, short_help="Judge a built unit against its spec; write an HTML + JSON calibration record.")
 def report_command(
     captures: List[Path] = typer.Argument(..., help="As-left capture file(s): WAV, FLAC or CSV."),
     unit: str = typer.Option(..., "--unit", help="Serial of the unit under test, e.g. HC-07."),
