@@ -25,7 +25,8 @@ from benchfit.errors import CaptureError
 __all__ = ["AUDIO_SUFFIXES", "sniff_audio", "read_audio", "wav_declared_frames"]
 
 #: file name extensions read as audio without sniffing
-AUDIO_SUFFIXES = (".wav", ".wave", ".flac", ".ogg", ".oga", ".aif", ".aiff", ".w64", ".rf64", ".caf")
+AUDIO_SUFFIXES = (".wav", ".wave", ".flac", ".ogg", ".oga", ".opus", ".mp3", ".aif", ".aiff", ".w64", ".rf64",
+                  ".caf")
 
 # frames per read; on a read error the reader falls back to smaller blocks to recover the
 # last good frames of a truncated compressed file
@@ -35,8 +36,8 @@ _BLOCKS = (1 << 16, 4096, 256, 16, 1)
 def sniff_audio(head: bytes) -> str | None:
     """Container name if ``head`` (the first bytes of a file) starts like an audio file.
 
-    Returns ``"WAV"``, ``"RF64"``, ``"W64"``, ``"FLAC"``, ``"OGG"``, ``"AIFF"``, ``"CAF"``
-    or ``None``.
+    Returns ``"WAV"``, ``"RF64"``, ``"W64"``, ``"FLAC"``, ``"OGG"``, ``"AIFF"``, ``"CAF"``,
+    ``"MP3"`` or ``None``.
     """
     if len(head) >= 12 and head[:4] in (b"RIFF", b"RIFX") and head[8:12] == b"WAVE":
         return "WAV"
@@ -52,6 +53,12 @@ def sniff_audio(head: bytes) -> str | None:
         return "AIFF"
     if head[:4] == b"caff":
         return "CAF"
+    if head[:3] == b"ID3":
+        return "MP3"
+    if (len(head) >= 3 and head[0] == 0xFF and head[1] & 0xE0 == 0xE0 and head[1] & 0x18 != 0x08
+            and head[1] & 0x06 and head[2] >> 4 != 0xF and (head[2] >> 2) & 3 != 3
+            and not head.startswith((b"\xff\xfe", b"\xfe\xff"))):
+        return "MP3"  # an MPEG audio frame header (sync, valid version/layer/rate), not a UTF-16 mark
     return None
 
 
