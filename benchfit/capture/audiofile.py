@@ -104,7 +104,7 @@ def wav_declared_frames(path: str | os.PathLike[str]) -> int | None:
         return None
 
 
-def _read_frames(sf_file: Any, where: str) -> tuple[np.ndarray, bool]:
+def _read_frames(sf_file: Any) -> tuple[np.ndarray, bool]:
     """Read every frame that can be decoded; returns ((channels, frames) array, stopped_by_error).
 
     Blocks are transposed one at a time (cache-friendly), then joined once.
@@ -181,7 +181,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
             header_fs = float(fh.samplerate)
             fmt, subtype = fh.format, fh.subtype
             n_ch = int(fh.channels)
-            frames, failed = _read_frames(fh, where)
+            frames, failed = _read_frames(fh)
     except (sf.LibsndfileError, RuntimeError) as e:
         detail = str(e).split(":")[-1].strip() or "libsndfile cannot decode it"
         if sniff_audio(_head(p)) is None:
@@ -244,7 +244,8 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
                 metadata[key] = value
         metadata["sidecar"] = str(jpath)
         frames_noted = sidecar.get("frames")
-        if isinstance(frames_noted, int) and not isinstance(frames_noted, bool) and frames_noted > n:
+        if (isinstance(frames_noted, int) and not isinstance(frames_noted, bool) and frames_noted > n
+                and not any("truncated" in w for w in warnings)):
             warnings.append(f"{jpath}: the recorder wrote {frames_noted} frames but {p.name} holds {n} — "
                             "the audio file was cut short after recording")
         if sidecar.get("overflow_count", 0):
@@ -253,9 +254,9 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
         if sidecar.get("clip_count", 0):
             warnings.append(f"{jpath}: the recorder counted {sidecar['clip_count']} sample(s) at full scale "
                             "(clipping) — lower the input level and record again")
-    if sample_rate is not None and abs(float(sample_rate) - fs) > 1e-9 * fs:
+    if sample_rate is not None and abs(float(sample_rate) - header_fs) > 1e-9 * header_fs:
         warnings.append(f"{where}: sample rate {float(sample_rate):g} Hz given but the audio header says "
-                        f"{fs:g} Hz — the header's rate is used")
+                        f"{header_fs:g} Hz — the header's rate is used")
     return Capture(samples=samples, sample_rate=fs, channel_names=names, units=units, source=where,
                    sha256=sha256, metadata=metadata, calibration=calibration, warnings=tuple(warnings))
 
