@@ -1,0 +1,136 @@
+"""`benchfit fit` end to end: the --json contract, tables, figures, one-line errors (exit 2)."""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from benchfit.fit.circuits import LowpassParts, simulate
+
+FS = 20000.0
+PARTS = LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3)
+
+
+def _write_csv(path: Path, columns: dict[str, np.ndarray]) -> Path:
+    n = len(next(iter(columns.values())))
+    t = np.arange(n) / FS
+    header = "time (s)," + ",".join(f"{k} (V)" for k in columns)
+    np.savetxt(path, np.column_stack([t, *columns.values()]), delimiter=",", header=header,
+               comments="", fmt="%.9g")
+    return path
+
+
+def _filter_capture(path: Path, seed: int = 1) -> Path:
+    n_settle, n = int(0.5 * FS), int(0.5 * FS)
+    t = np.arange(n_settle + n) / FS
+    drive = 12.0 * (((t * 50.0) % 1.0) < 0.5)
+    out = simulate(drive, FS, PARTS)
+    rng = np.random.default_rng(seed)
+    return _write_csv(path, {"drive": drive[n_settle:] + rng.normal(0, 5e-3, n),
+                             "output": out[n_settle:] + rng.normal(0, 2e-3, n)})
+
+
+@pytest.fixture
+def run(capsys, monkeypatch):
+    """benchfit.cli.main in this process: (exit code, stdout, stderr)."""
+    from benchfit.cli import main
+
+    monkeypatch.setenv("COLUMNS", "120")
+
+    def _run(*args: str):
+        try:
+            main(list(args))
+            code = 0
+        except SystemExit as e:
+            code = e.code if isinstance(e.code, int) else (0 if e.code is None else 1)
+        out = capsys.readouterr()
+        return code, out.out, out.err
+
+    return _run
+
+
+def test_json_output_follows_the_contract(tmp_path, run):
+    f = _filter_capture(tmp_path / "hc03_drive_output.csv")
+    code, out, err = run("fit", str(f), "--fix", "L=300m", "--fix", "Rload=10k", "--json")
+    assert code == 0, err
+    d = json.loads(out)
+    assert d["model"] == "lc-lowpass" and d["method"] == "two-channel"
+    assert d["file"].endswith("hc03_drive_output.csv")
+    assert d["parameters"]["L"] == {"value": 0.3, "stderr": None, "fixed": True, "unit": "H"}
+    # 2 mV noise on the output: C within 1 % (stderr ≈ 0.01 %)
+    assert d["parameters"]["C"]["value"] == pytest.approx(33e-6, rel=0.01)
+    assert d["parameters"]["C"]["stderr"] > 0
+    assert "C,Rs" in d["correlations"]
+
+
+def test_table_output_and_png_figure(tmp_path, run):
+    f = _filter_capture(tmp_path / "unit.csv", seed=2)
+    png = tmp_path / "fit.png"
+    code, out, err = run("fit", str(f), "--fix", "L=300m", "--plot", str(png))
+    assert code == 0, err
+    assert "effective parts" in out and "resonant frequency" in out and "Hz" in out
+    assert "not determined" in out or "fitted" in out
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_ringdown_command(tmp_path, run):
+    t = np.arange(int(1.0 * FS)) / FS
+    drive = 5.0 * (((t * 10.0) % 1.0) < 0.5)
+    y = simulate(drive, FS, LowpassParts(0.1, 1e-6, 20.0, 0.0, math.inf))
+    y += np.random.default_rng(3).normal(0, 2e-3, y.size)
+    f = _write_csv(tmp_path / "ring.csv", {"tank": y})
+    svg = tmp_path / "ring.svg"
+    code, out, err = run("fit", str(f), "--model", "ringdown", "--json", "--plot", str(svg))
+    assert code == 0, err
+    d = json.loads(out)
+    assert d["method"] == "ringdown" and d["parameters"] == {}
+    f0 = 1 / (2 * math.pi * math.sqrt(0.1 * 1e-6))  # textbook ω0 = 1/√(LC) (Nilsson & Riedel)
+    # the 20 Ω series loss lowers nothing in ω0 for an unloaded tank; 2 mV noise → 0.1 %
+    assert d["derived"]["resonant_frequency_hz"]["value"] == pytest.approx(f0, rel=1e-3)
+    assert svg.read_text().lstrip().startswith("<?xml")
+
+
+@pytest.mark.parametrize("args,needle", [
+    (["--fix", "Lx=1"], "unknown name"),
+    (["--fix", "C=-33u"], "must be positive"),
+    (["--fix", "L=abc"], "is not a number"),
+    (["--model", "bandpass"], "unknown model"),
+    (["--method", "stereo"], "unknown method"),
+    (["--drive-duty", "150%"], "between 0 and 1"),
+    (["--plot", "fig.pdf"], ".svg or .png"),
+    (["--drive", "nosuch"], "no channel"),
+])
+def test_bad_options_exit_2_with_one_line(tmp_path, run, args, needle):
+    f = _filter_capture(tmp_path / "u.csv", seed=4)
+    code, out, err = run("fit", str(f), *args)
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("error: ") and needle in lines[0]
+    assert "Traceback" not in err
+
+
+def test_silent_response_and_no_periodic_drive_exit_2(tmp_path, run):
+    n = int(0.2 * FS)
+    drive = 12.0 * ((np.arange(n) // 200) % 2)
+    f = _write_csv(tmp_path / "silent.csv", {"drive": drive, "output": np.zeros(n)})
+    code, _, err = run("fit", str(f))
+    assert code == 2 and "silent" in err and len(err.strip().splitlines()) == 1
+    rng = np.random.default_rng(5)
+    g = _write_csv(tmp_path / "noise.csv", {"drive": rng.normal(0, 1, n), "output": rng.normal(0, 1, n)})
+    code, _, err = run("fit", str(g))
+    assert code == 2 and err.startswith("error: ") and len(err.strip().splitlines()) == 1
+
+
+def test_help_has_example_and_safety_note():
+    env = dict(os.environ, COLUMNS="120")
+    res = subprocess.run([sys.executable, "-m", "benchfit", "fit", "--help"], capture_output=True,
+                         text=True, env=env, timeout=60)
+    assert res.returncode == 0
+    assert "--fix L=300m" in res.stdout and "Safety" in res.stdout
