@@ -106,7 +106,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     clip = find_clipping(x, unit, full_scale, rails=True)
     if not periodic:
         levels = signal_levels(x, fs, None)
-        what = "silence (all samples equal)" if flat else "no periodic signal found"
+        what = "silence: all samples equal" if flat else "no periodic signal found"
         warnings.append(f"{what} — frequency, distortion and pulse values are not given; "
                         "check the connection and the input level")
         if clip.clipped:

@@ -37,7 +37,7 @@ def test_levels_against_stored_sox_stats(stem):
     # amplitude) and the extremes to 1e-6; sox takes the whole record, we take whole periods
     # (difference < 1e-4 at 25 periods and more).
     stats = _sox_stats((DATA / f"{stem}_stats.txt").read_text())
-    m = measure(load(DATA / f"{stem}.wav"))
+    m = measure(DATA / f"{stem}.wav")  # a path: measure() reads it with benchfit's loader
     ch = m.channels[0]
     assert ch.vrms == pytest.approx(10 ** (stats["RMS lev dB"] / 20), rel=1.2e-3)
     # robust vpp (0.1/99.9 % percentiles) equals max − min when the extremes repeat ≥ 0.1 %
@@ -81,16 +81,16 @@ def test_vpp_ignores_a_single_spike():
 
 
 def test_vrms_uncertainty_is_honest():
-    # vrms_u from the noise (var(mean x²) = (4·P·σ² + 2σ⁴)/N) against the spread over 60 records;
-    # ±30 % covers the Monte Carlo error of a 60-run std (9 %)
+    # vrms_u from the noise (var(mean x²) = (4·P·σ² + 2σ⁴)/N) against the spread over 50 records;
+    # ±33 % covers 3.3× the Monte Carlo error of a 50-run std (10 %)
     vals, us = [], []
-    for seed in range(60):
+    for seed in range(50):
         rng = np.random.default_rng(seed)
-        x = tone(times(0.2), 50.0, 1.5, rng.uniform(0, 6), 0.05, rng)
+        x = tone(times(0.1), 50.0, 1.5, rng.uniform(0, 6), 0.05, rng)
         ch = measure_channel(x, FS, unit="V")
         vals.append(ch.vrms)
         us.append(ch.extra["vrms_u"])
-    assert float(np.mean(us)) == pytest.approx(float(np.std(vals, ddof=1)), rel=0.3)
+    assert float(np.mean(us)) == pytest.approx(float(np.std(vals, ddof=1)), rel=0.33)
 
 
 def test_full_scale_clipping_is_flagged():
