@@ -17,6 +17,7 @@ from benchfit.capture.audiofile import AUDIO_SUFFIXES, read_audio, sniff_audio
 from benchfit.capture.capture import Capture
 from benchfit.capture.csvfile import read_csv
 from benchfit.errors import CaptureError
+from benchfit.units import parse_quantity
 
 __all__ = ["load", "file_sha256"]
 
@@ -33,7 +34,7 @@ def file_sha256(path: str | os.PathLike[str]) -> str:
     return digest.hexdigest()
 
 
-def load(path: str | os.PathLike[str], *, sample_rate: float | None = None,
+def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None,
          channels: str | int | Sequence[str | int] | None = None) -> Capture:
     """Read a capture file (WAV, FLAC, OGG or CSV export) into a :class:`Capture`.
 
@@ -42,9 +43,10 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | None = None,
     path : str or Path
         The file. Audio files may have a sidecar JSON with the same stem giving channel
         names and the input calibration (gain in V/FS, timebase in ppm, coupling).
-    sample_rate : float, optional
+    sample_rate : float or str, optional
         Samples per second (Hz) for a CSV that has neither a time column nor a sample
-        interval in its preamble. Not used when the file gives its own rate.
+        interval in its preamble (``48000``, ``"100k"``, ``"50 kHz"``). Not used when the
+        file gives its own rate.
     channels : str, int or sequence of them, optional
         Keep only these channels, in this order: names (case-insensitive), 1-based
         numbers as strings (``"2"``), 0-based ints, or one string ``"drive,output"``.
@@ -70,9 +72,13 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | None = None,
     where = str(p)
     if sample_rate is not None:
         try:
-            rate = float(sample_rate)
+            if isinstance(sample_rate, str):
+                rate = parse_quantity(sample_rate, "sample rate", unit="Hz")
+            else:
+                rate = float(sample_rate)
         except (TypeError, ValueError) as e:
-            raise CaptureError(f"sample rate: {sample_rate!r} is not a number — give it in Hz, e.g. 48000") from e
+            raise CaptureError(
+                f"sample rate: {sample_rate!r} is not a number — give it in Hz, e.g. 48000 or 100k") from e
         if not (rate > 0 and rate < float("inf")):
             raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — e.g. 48000")
         sample_rate = rate

@@ -127,6 +127,14 @@ def test_bad_arguments_are_one_line_errors(tmp_path, kwargs, fragment):
     assert fragment in str(info.value) and "\n" not in str(info.value)
 
 
+@pytest.mark.parametrize("text, rate", [("100k", 100e3), ("50 kHz", 50e3), ("48000", 48e3), ("2.5M", 2.5e6)])
+def test_sample_rate_accepts_si_prefixes(tmp_path, text, rate):
+    path = tmp_path / "raw.csv"
+    path.write_text("0.1\n0.2\n0.3\n", encoding="utf-8")
+    # SI prefixes k = 1e3, M = 1e6: BIPM SI Brochure, 9th ed., Table 7
+    assert load(path, sample_rate=text).sample_rate == rate
+
+
 def test_folder_and_missing_and_empty(tmp_path):
     with pytest.raises(CaptureError, match="is a folder"):
         load(tmp_path)
