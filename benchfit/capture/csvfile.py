@@ -356,6 +356,16 @@ def _data_start(lines: list[str], lay: _Layout, where: str) -> int:
     return start
 
 
+def _header_cells(line: str, lay: _Layout) -> list[str]:
+    """Cells of a header line; with white-space columns, names may hold single spaces ("Time (s)  CH1 (V)")."""
+    cells = _cells(line, lay)
+    if lay.delim == " " and len(cells) != lay.n_fields:
+        wide = re.split(r"\s{2,}|\t", line.strip())
+        if len(wide) == lay.n_fields:
+            return wide
+    return cells
+
+
 def _header(lines: list[str], start: int, lay: _Layout) -> tuple[list[str] | None, list[str] | None, int | None]:
     """(names, units row, index of the first header line) from the non-numeric rows just above the data."""
     K = lay.n_fields
@@ -366,14 +376,14 @@ def _header(lines: list[str], start: int, lay: _Layout) -> tuple[list[str] | Non
         ln = lines[j]
         if not ln.strip():
             continue
-        cells = _cells(ln, lay)
+        cells = _header_cells(ln, lay)
         if (_is_marked(ln) and not (K > 1 and len(cells) == K)) or len(cells) != K \
                 or any(_is_number(c, lay.decimal) for c in cells):
             break
         found.insert(0, j)
     if not found:
         return None, None, None
-    rows = [[c.strip().strip('"').strip() for c in _cells(lines[k], lay)] for k in found]
+    rows = [[c.strip().strip('"').strip() for c in _header_cells(lines[k], lay)] for k in found]
     if len(rows) == 2 and all(not c or _unit(c) is not None for c in rows[1]):
         return rows[0], rows[1], found[0]
     if K == 1 and re.search(r"[:=,;\t]\s*[-+.\d]", rows[-1][0]):

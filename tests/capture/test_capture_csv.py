@@ -24,6 +24,8 @@ DIALECTS = {
     "tab-decimal-comma": "Time (s)\tCH A (V)\tCH B (V)\n0\t0,1\t-1,5\n2E-05\t0,2\t0\n4E-05\t0,3\t1,5\n",
     "tab-decimal-point": "Time (s)\tCH A (V)\tCH B (V)\n0\t0.1\t-1.5\n2e-05\t0.2\t0\n4e-05\t0.3\t1.5\n",
     "whitespace": "  0.000000   0.1  -1.5\n  0.000020   0.2   0.0\n  0.000040   0.3   1.5\n",
+    "whitespace-with-header": "Time (s)    CH A (V)    CH B (V)\n0.000000    0.1    -1.5\n0.000020    0.2    0.0\n"
+                              "0.000040    0.3    1.5\n",
     "quoted-decimal-comma": '"Time (s)","CH A (V)","CH B (V)"\n"0","0,1","-1,5"\n"0,00002","0,2","0"\n'
                             '"0,00004","0,3","1,5"\n',
     "crlf-and-bom": "\ufeffTime (s),CH A (V),CH B (V)\r\n0,0.1,-1.5\r\n2e-05,0.2,0\r\n4e-05,0.3,1.5\r\n",
