@@ -250,11 +250,16 @@ def fit_svg(fit_result) -> str:
             for ax in (ax_m, ax_p):
                 ax.set_xscale("log")
                 ax.set_xlabel("frequency (Hz)")
-            ax_m.set_ylabel("|H|")
+            if fit_result.method == "one-channel":  # output phasors: the drive level is unknown
+                ax_m.set_ylabel("output |Y_k| (peak)")
+                ax_m.set_title("output harmonics", loc="left")
+                ax_p.set_title("output phase", loc="left")
+            else:
+                ax_m.set_ylabel("|H|")
+                ax_m.set_title("magnitude at the harmonics", loc="left")
+                ax_p.set_title("phase at the harmonics", loc="left")
             ax_p.set_ylabel("phase (°)")
             ax_m.legend(loc="lower left")
-            ax_m.set_title("magnitude at the harmonics", loc="left")
-            ax_p.set_title("phase at the harmonics", loc="left")
             ax_r = fig.add_subplot(grid[2, :])
         else:
             ax_r = fig.add_subplot(grid[1, 0])

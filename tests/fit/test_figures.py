@@ -1,0 +1,86 @@
+"""Figures: self-contained SVG text, PNG output, every panel drawn from the results."""
+
+from __future__ import annotations
+
+import math
+import re
+
+import numpy as np
+import pytest
+
+from benchfit.capture.capture import Capture
+from benchfit.errors import BenchfitError
+from benchfit.fit.result import DerivedValue, FitCurves, FitParameter, FitQuality, FitResult
+from benchfit.measurement.result import ChannelMeasurement, Harmonic
+from benchfit.report.figures import fit_svg, save_figure, spectrum_svg, waveform_svg
+
+
+def _self_contained(svg: str) -> None:
+    assert svg.lstrip().startswith("<?xml") and svg.rstrip().endswith("</svg>")
+    # only internal references (#id); no external files, fonts or scripts
+    refs = re.findall(r'(?:xlink:)?href="([^"]*)"', svg)
+    assert all(r.startswith("#") for r in refs)
+    # namespaces (xmlns="http://…") are names, not fetches; nothing else may point outside
+    assert "<script" not in svg and "@font-face" not in svg and "@import" not in svg
+    assert "<image" not in svg and "url(http" not in svg
+
+
+def _capture() -> Capture:
+    fs = 48000.0
+    t = np.arange(4800) / fs
+    return Capture(np.vstack([np.sign(np.sin(2 * math.pi * 50 * t)), np.sin(2 * math.pi * 50 * t)]),
+                   fs, ("drive", "output"), ("V", "V"))
+
+
+def test_waveform_svg_with_model_overlay():
+    cap = _capture()
+    svg = waveform_svg(cap, channel="output", model=cap.samples[1] * 0.98, periods=3)
+    _self_contained(svg)
+    assert svg.count("<path") > 5
+    # same input, same bytes (no time stamp, fixed hash salt)
+    assert svg == waveform_svg(cap, channel="output", model=cap.samples[1] * 0.98, periods=3)
+
+
+def test_spectrum_svg_uses_the_harmonics():
+    hs = tuple(Harmonic(k, 50.0 * k, 1.0 / k, 0.0, 1e-4) for k in (1, 3, 5, 7))
+    cm = ChannelMeasurement("output", "V", 50.0, 1e-4, 1.0, 0.0, 0.7, 2.0, None, None, None,
+                            12.3, 12.4, 18.1, harmonics=hs)
+    svg = spectrum_svg(cm)
+    _self_contained(svg)
+    empty = spectrum_svg(ChannelMeasurement("x", "FS", None, None, None, 0, 0, 0, None, None, None,
+                                            None, None, None))
+    _self_contained(empty)
+    assert svg != empty
+
+
+def _result(method: str, with_h: bool) -> FitResult:
+    t = np.arange(200) / 2000.0
+    data = np.sin(2 * math.pi * 20 * t)
+    f = np.array([50.0, 150.0, 250.0])
+    h = 1 / (1 + 1j * f / 100)
+    curves = FitCurves(time_s=t, data=data, model=data * 0.99, harmonic_hz=f if with_h else np.zeros(0),
+                       h_measured=h if with_h else np.zeros(0, complex),
+                       h_model=h * 1.01 if with_h else np.zeros(0, complex),
+                       h_measured_u=np.abs(h) * 0.01 if with_h else np.zeros(0),
+                       residual=data * 0.01)
+    return FitResult("x.csv", "lc-lowpass", method, {"L": FitParameter(0.3, None, True, "H")},
+                     {"q_factor": DerivedValue(4.0, 0.1)}, {}, FitQuality(0.01, 0.999, 400),
+                     curves=curves)
+
+
+@pytest.mark.parametrize("method,with_h", [("two-channel", True), ("one-channel", True),
+                                           ("ringdown", False)])
+def test_fit_svg_and_png(tmp_path, method, with_h):
+    svg = fit_svg(_result(method, with_h))
+    _self_contained(svg)
+    out = save_figure(svg, tmp_path / "f.png")
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    save_figure(svg, tmp_path / "f.svg")
+    assert (tmp_path / "f.svg").read_text(encoding="utf-8") == svg
+
+
+def test_save_figure_rejects_other_types_and_plain_text_png(tmp_path):
+    with pytest.raises(BenchfitError, match=r"\.svg or \.png"):
+        save_figure(fit_svg(_result("two-channel", True)), tmp_path / "f.pdf")
+    with pytest.raises(BenchfitError, match="as .svg"):
+        save_figure("<svg></svg>", tmp_path / "f.png")
