@@ -315,6 +315,7 @@ def tune(
     hop = min(window / 4.0, 0.25)
     plain = plain or json_out
     count = 0
+    previous = None
     live_display = None
     try:
         with LiveWindows(rate=r, channels=channel, window_s=window, hop_s=hop, device=_device(device)) as src:
@@ -331,9 +332,12 @@ def tune(
                 reading, error = None, None
                 try:
                     reading = analyse_window(win.samples[channel - 1], fs_true, target_hz, gain_v_per_fs=gain,
-                                             timebase_u_ppm=u_ppm, coupling_tau_s=tau, n_harmonics=harmonics, tolerance_hz=tol)
+                                             timebase_u_ppm=u_ppm, coupling_tau_s=tau, n_harmonics=harmonics,
+                                             tolerance_hz=tol, seed_hz=previous)
+                    previous = reading.frequency_hz
                 except MeasureError as e:
                     error = str(e)
+                    previous = None
                 if json_out:
                     rec = {"update": count, "time_s": t, "overflow_count": win.overflow_count,
                            "skipped": win.dropped}

@@ -120,3 +120,16 @@ def test_analyse_window_is_fast_enough_for_four_updates_a_second():
         analyse_window(x, FS, 50.0)
     per = (time.process_time() - t0) / 3
     assert per < 0.2  # 0.25 s hop minus margin for the capture thread and the display
+
+
+def test_previous_reading_seed_is_used_only_when_close():
+    rng = np.random.default_rng(1057)
+    t = np.arange(48000) / FS
+    x = 0.4 * np.sin(2 * np.pi * 50.2 * t) + 1e-3 * rng.standard_normal(t.size)
+    fresh = analyse_window(x, FS, 50.0)
+    near = analyse_window(x, FS, 50.0, seed_hz=fresh.frequency_hz + 1e-4)
+    stale = analyse_window(x, FS, 50.0, seed_hz=47.0)  # the unit was swapped: 3 bins away
+    # the iteration stops at a 1e-10 relative step, so every start lands on the same least-squares point
+    assert near.frequency_hz == pytest.approx(fresh.frequency_hz, rel=1e-9)
+    assert stale.frequency_hz == pytest.approx(fresh.frequency_hz, rel=1e-9)
+    assert abs(fresh.frequency_hz - 50.2) < 4 * fresh.frequency_u_hz  # 4σ, seeded noise
