@@ -465,7 +465,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     if not s.two_level:
         return PulseResult(two_level=False, coupling_tau_s=tau, coupling_source=source,
                            droop_pct=droop)
-    e = _find_edges(z, s)
+    e = raw_edges if (tau is None and raw_edges is not None) else _find_edges(z, s)
     amp = s.amplitude
     rise_idx = np.flatnonzero(e.rising)
     fall_idx = np.flatnonzero(~e.rising)
