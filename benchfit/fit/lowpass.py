@@ -471,8 +471,11 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     if orders.size < 2:
         raise FitError(f"{where}: the drive has fewer than two harmonics above the noise — a square "
                        "drive is needed for two-channel fitting; check the drive channel")
-    hx = fit_harmonics(x, fs, f, orders=orders)
-    hy = fit_harmonics(y, fs, f, orders=orders)
+    # both channels fitted with every order below the limit (the unused ones stay in the
+    # model, so they cannot leak into the used ones), then the drive's strong orders selected
+    hy_all = fit_harmonics(y, fs, f, kmax)
+    hx = _subset(hx_all, keep)
+    hy = _subset(hy_all, keep)
     if not np.any(hy.amplitudes > SIGNIFICANCE * hy.amplitudes_u):
         raise FitError(f"{where}: response channel {cap.channel_names[ri]!r} shows no response at the "
                        "drive's harmonics — check the wiring, or choose the channel with --response")
@@ -508,6 +511,13 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         warnings = warnings + [m for m in warn2 if m not in warnings]
     return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
                     alts)
+
+
+def _subset(h, keep: np.ndarray):
+    """A HarmonicFit restricted to the orders where ``keep`` is true (other fields unchanged)."""
+    from dataclasses import replace
+
+    return replace(h, orders=h.orders[keep], phasors=h.phasors[keep], phasor_cov=h.phasor_cov[keep])
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:

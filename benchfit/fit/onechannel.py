@@ -48,9 +48,9 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
     two-pole response 1/(1 − (k/r)² + j·k/(r·Q)) with r = f0/f. G is solved in closed form at
     each grid point, for both signs.
     """
-    r = np.geomspace(0.15, 40.0, 90)
-    q = np.geomspace(0.2, 60.0, 30)
-    d = np.array([duty]) if duty is not None else np.linspace(_DUTY_MIN, 0.5, 25)
+    r = np.geomspace(0.15, 40.0, 64)
+    q = np.geomspace(0.2, 60.0, 24)
+    d = np.array([duty]) if duty is not None else np.linspace(_DUTY_MIN, 0.5, 17)
     w = 1.0 / np.maximum(amp_u, 1e-300) ** 2
     rot = np.conj(yk[0]) / max(abs(yk[0]), 1e-300)
     z = yk * rot ** k
@@ -125,8 +125,11 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         raise FitError(f"{where}: only the fundamental of {name!r} stands above the noise, so its "
                        "shape says nothing about the filter — record longer, or capture the drive "
                        "too and use --method two-channel")
-    orders = np.arange(1, int(hy_all.orders[strong[-1]]) + 1)
-    hy = fit_harmonics(y, fs, f, orders=orders)
+    from benchfit.fit.lowpass import _subset
+
+    keep = hy_all.orders <= int(hy_all.orders[strong[-1]])
+    hy = _subset(hy_all, keep)  # orders 1…K; the fit included all orders below the limit
+    orders = hy.orders
     yk = hy.phasors
     cov = hy.phasor_cov
     tau_c = cap.calibration.coupling_tau_s
