@@ -17,7 +17,7 @@ from benchfit.report import figures
 from benchfit.report.assemble import build_report
 from benchfit.report.html import render_html, write_report
 from benchfit.report.spec import load_spec
-from conftest import make_capture, make_fit, make_measurement
+from report_builders import make_capture, make_fit, make_measurement
 
 ROOT = Path(__file__).resolve().parents[2]
 CHROMIUM = "/usr/bin/chromium"

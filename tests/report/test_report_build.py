@@ -12,7 +12,7 @@ from benchfit.report.assemble import build_report
 from benchfit.report.spec import uncertainty_keys
 from benchfit.report.html import format_u, format_value, render_html, write_report
 from benchfit.report.spec import load_spec, parse_spec
-from conftest import make_capture, make_fit, make_measurement
+from report_builders import make_capture, make_fit, make_measurement
 
 ROOT = Path(__file__).resolve().parents[2]
 SPEC = load_spec(ROOT / "sample_captures" / "hc_spec.toml")

@@ -10,7 +10,7 @@ import pytest
 import benchfit
 from benchfit.errors import FitError
 from benchfit.report.assemble import FitOptions, run_unit
-from conftest import make_fit
+from report_builders import make_fit
 from test_report_cli import SPEC, run, write_unit
 
 FIT_SPEC = """

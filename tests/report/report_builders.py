@@ -1,9 +1,11 @@
-"""Builders for report tests: captures, measurements and fits made in the test (seeded)."""
+"""Builders for report tests: captures, measurements and fits made in the test (seeded).
+
+A plain module (not conftest.py) with a unique name, imported by the test files.
+"""
 
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from benchfit.capture.capture import Capture, InputCalibration
 from benchfit.fit.result import DerivedValue, FitCurves, FitParameter, FitQuality, FitResult
@@ -55,8 +57,3 @@ def make_fit(file="hc07_drive_output.csv", f0=49.6, f0_u=0.05):
         correlations={"C,Rs": 0.3}, quality=FitQuality(0.01, 0.9999, 800),
         warnings=("Resr is not determined by the data — fix it with --fix Resr=...",),
         curves=FitCurves(time_s=t, data=data, model=model, residual=data - model))
-
-
-@pytest.fixture
-def builders():
-    return {"capture": make_capture, "measurement": make_measurement, "fit": make_fit}
