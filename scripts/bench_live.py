@@ -82,7 +82,7 @@ def _start_pulse(base: Path) -> dict[str, str] | None:
     env.update({"XDG_RUNTIME_DIR": str(run), "HOME": str(home), "PULSE_SOURCE": f"{SINK}.monitor",
                 "PULSE_SINK": SINK})
     env.pop("PULSE_SERVER", None)
-    subprocess.run(["pulseaudio", "-D", "--system=false", "--exit-idle-time=-1", "--disallow-exit", "-n",
+    subprocess.run(["pulseaudio", "-D", "--system=false", "--exit-idle-time=120", "--disallow-exit", "-n",
                     "--disable-shm=true", "--load=module-native-protocol-unix",
                     f"--load=module-null-sink sink_name={SINK} rate=48000 format=float32le channels=2"],
                    env=env, capture_output=True, timeout=30)

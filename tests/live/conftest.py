@@ -4,8 +4,10 @@ The audio path under test is real: ``paplay`` plays a generated WAV into the nul
 ``benchfit_test``; benchfit records the sink's monitor through sounddevice → PortAudio →
 ALSA (the ``pulse`` plugin of libasound2-plugins) → PulseAudio. The daemon gets its own
 XDG_RUNTIME_DIR and HOME in a temporary folder, so it never touches a desktop's sound
-server, and is killed at the end of the session. The null sink runs at 48 kHz float so a
-played file reaches the recorder without resampling or 16-bit rounding.
+server, and is killed at the end of the session. It also exits by itself after 120 s without
+clients, so a test run that is killed before its teardown leaves no daemon behind. The null
+sink runs at 48 kHz float so a played file reaches the recorder without resampling or 16-bit
+rounding.
 """
 
 from __future__ import annotations
@@ -91,7 +93,7 @@ def pulse(tmp_path_factory) -> PulseRig:
                         "the live-capture tests need a virtual sound card")
     base = tmp_path_factory.mktemp("pulse")
     env = _pa_env(base)
-    cmd = ["pulseaudio", "-D", "--system=false", "--exit-idle-time=-1", "--disallow-exit", "-n",
+    cmd = ["pulseaudio", "-D", "--system=false", "--exit-idle-time=120", "--disallow-exit", "-n",
            "--disable-shm=true", "--load=module-native-protocol-unix",
            f"--load=module-null-sink sink_name={SINK} rate=48000 format=float32le channels=2"]
     started = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=30)
