@@ -25,9 +25,9 @@ def test_cp_cpk_against_the_definition():
     cap = capability(_batch(16.0, 2.0), lower=8.0, upper=20.0)
     assert cap.n == 12
     assert cap.mean == pytest.approx(16.0, abs=1e-12)       # rescaled exactly; float rounding only
-    assert cap.std == pytest.approx(2.0, rel=1e-12)
-    assert cap.cp == pytest.approx(12.0 / 12.0, rel=1e-12)  # (20 − 8)/(6·2) = 1
-    assert cap.cpk == pytest.approx(4.0 / 6.0, rel=1e-12)   # min(4, 8)/(3·2) = 0.667
+    assert cap.std == pytest.approx(2.0, rel=1e-12)          # rescaled exactly; float rounding only
+    assert cap.cp == pytest.approx(12.0 / 12.0, rel=1e-12)  # (20 − 8)/(6·2) = 1; rel: float rounding
+    assert cap.cpk == pytest.approx(4.0 / 6.0, rel=1e-12)   # min(4, 8)/(3·2) = 0.667; rel: float rounding
 
 
 def test_mean_std_agree_with_python_statistics_module():
@@ -35,16 +35,16 @@ def test_mean_std_agree_with_python_statistics_module():
     cap = capability(values, 49.75, 50.25)
     # independent tool: Python's statistics module (sample standard deviation, n − 1)
     assert cap.mean == pytest.approx(statistics.fmean(values), rel=1e-14)   # float summation order
-    assert cap.std == pytest.approx(statistics.stdev(values), rel=1e-12)
+    assert cap.std == pytest.approx(statistics.stdev(values), rel=1e-12)    # different algorithms; rounding
     assert (cap.min, cap.max) == (49.95, 50.11)
     mu, s = statistics.fmean(values), statistics.stdev(values)
-    assert cap.cpk == pytest.approx(min(50.25 - mu, mu - 49.75) / (3 * s), rel=1e-12)
+    assert cap.cpk == pytest.approx(min(50.25 - mu, mu - 49.75) / (3 * s), rel=1e-12)   # float rounding
 
 
 def test_one_sided_limit_gives_cpk_only():
     cap = capability(_batch(3.0, 0.5), upper=5.0)             # THD ≤ 5 %
     assert cap.cp is None
-    assert cap.cpk == pytest.approx((5.0 - 3.0) / 1.5, rel=1e-12)
+    assert cap.cpk == pytest.approx((5.0 - 3.0) / 1.5, rel=1e-12)   # (USL − μ)/(3σ); float rounding
     assert capability([1.0], 0.0, 2.0).std is None             # one value: no spread
     with pytest.raises(LogError, match="no logged values"):
         capability([], 0.0, 1.0, "thd_pct")

@@ -145,6 +145,7 @@ def test_log_commands(bench, capsys):
     assert stats["n"] == 2 and stats["min"] == values[0] and stats["max"] == values[1]
     assert (stats["lower"], stats["upper"]) == (49.75, 50.25)
     # Cp = (USL − LSL)/(6 s), definition from NIST/SEMATECH e-Handbook 6.1.6; numbers computed
+    # rel 1e-12: float rounding only (same formula, different summation order)
     assert stats["cp"] == pytest.approx(0.5 / (6 * np.std(values, ddof=1)), rel=1e-12)
     assert plot.read_text(encoding="utf-8").lstrip().startswith("<?xml")
     code, _, err = run(["log", "stats", "frequency_hz", "--plot", str(plot)], capsys)

@@ -116,7 +116,7 @@ def test_tolerance_pct_and_fitted_quantity():
                        "limit": [{"quantity": "C", "nominal": 33e-6, "tolerance_pct": 10}]})
     lim = spec.limits[0]
     assert lim.lower == pytest.approx(29.7e-6, rel=1e-12)   # float rounding of 33e-6 × 0.9
-    assert lim.upper == pytest.approx(36.3e-6, rel=1e-12)
+    assert lim.upper == pytest.approx(36.3e-6, rel=1e-12)   # float rounding of 33e-6 × 1.1
     assert lim.source == "fit" and spec.needs_fit
 
 
