@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import tempfile
+from dataclasses import replace
 from pathlib import Path
 from typing import Optional
 
@@ -475,10 +476,9 @@ def calibrate_timebase(
         (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
     i = _pick_channels(channel, names, default_all=False)[0]
     est = estimate_timebase(x[i], fs, f_ref, u_ref, what=f"{source} channel {i + 1} ({names[i]})")
-    prof = prof.__class__(name=prof.name, gains=prof.gains, coupling=prof.coupling,
-                          timebase=TimebaseCalibration(ppm=est.ppm, u_ppm=est.u_ppm, reference_hz=f_ref,
-                                                       nominal_rate_hz=fs, source=source,
-                                                       measured_utc=utc_now_iso()))
+    prof = replace(prof, timebase=TimebaseCalibration(ppm=est.ppm, u_ppm=est.u_ppm, reference_hz=f_ref,
+                                                      nominal_rate_hz=fs, source=source,
+                                                      measured_utc=utc_now_iso()))
     path = save_profile(prof)
     if json_out:
         print_json({"profile": prof.name, "path": str(path), "ppm": est.ppm, "u_ppm": est.u_ppm,
@@ -513,9 +513,8 @@ def calibrate_coupling(
         (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
     i = _pick_channels(channel, names, default_all=False)[0]
     tau = estimate_coupling(x[i], fs, what=f"{source} channel {i + 1} ({names[i]})")
-    prof = prof.__class__(name=prof.name, gains=prof.gains, timebase=prof.timebase,
-                          coupling=CouplingCalibration(tau_s=tau, channel=i + 1, source=source,
-                                                       measured_utc=utc_now_iso()))
+    prof = replace(prof, coupling=CouplingCalibration(tau_s=tau, channel=i + 1, source=source,
+                                                      measured_utc=utc_now_iso()))
     path = save_profile(prof)
     if json_out:
         print_json({"profile": prof.name, "path": str(path), "coupling_tau_s": tau,
