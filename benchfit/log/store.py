@@ -14,7 +14,9 @@ Layout (schema version 1)::
 The file carries ``PRAGMA application_id`` = :data:`APPLICATION_ID` so a foreign SQLite
 file is recognised. Before anything is written the file is inspected through a read-only
 connection: a file that is not a benchfit log gives one :class:`~benchfit.errors.LogError`
-line and is never modified. The journal is WAL; each run is one ``BEGIN IMMEDIATE``
+line and is never modified (an empty file, or an SQLite database with no tables at all, is
+taken as a new log: that is also what a log just created by another process looks like).
+The journal is WAL; each run is one ``BEGIN IMMEDIATE``
 transaction, so a process killed mid-write leaves every committed run intact. Writers wait
 on a busy database (``busy_timeout``) and retry the transaction a few times.
 Structured blobs are JSON (never pickle).
