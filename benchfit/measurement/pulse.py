@@ -56,8 +56,8 @@ _LEVEL_SAMPLES = 1 << 17
 #: the droop fit uses a regular subset of at most about this many flat-top samples
 _COUPLING_SAMPLES = 1 << 16
 #: a heavily drooped square smears its states: below this fraction in the state bands no
-#: droop fit is tried (a triangle has 0.20, a sine 0.41; a square drooping 70 % still 0.2)
-_TRY_DROOP_FRACTION = 0.15
+#: droop fit is tried (a square drooping 70 % per half period still has 0.2, at 95 % 0.06)
+_TRY_DROOP_FRACTION = 0.05
 #: a droop estimate is used only when 1/τ exceeds this many standard uncertainties
 _DROOP_SIGNIFICANCE = 5.0
 
@@ -275,15 +275,25 @@ def _find_edges(z: np.ndarray, s: StateLevels) -> _Edges:
     return _Edges(t50, rising, t10, t90, k50)
 
 
+def _integral(y: np.ndarray, sample_rate: float) -> np.ndarray:
+    """Running integral ∫y dt by the trapezoidal rule, 0 at the first sample (s·unit).
+
+    The trapezoidal rule is the exact inverse of a first-order high-pass discretised by the
+    bilinear transform, and second-order accurate for the analogue one.
+    """
+    c = np.cumsum(y)
+    return (c - 0.5 * (y + y[0])) / sample_rate
+
+
 def compensate_coupling(x: np.ndarray, sample_rate: float, tau_s: float,
                         span: int | None = None) -> np.ndarray:
     """Undo a first-order high-pass (AC coupling) of time constant ``tau_s``.
 
-    ``x̂[n] = (x[n] − m) + (1/τ)·(S[n] − trend) + m`` with ``S = cumsum(x − m)/fs`` and
-    ``m`` the mean over ``x[:span]`` (a whole number of periods when given). The linear trend
-    of S is removed because the true high-pass output has no DC, so any residual mean is an
-    offset of the recorder, not signal. The result keeps the recorded mean (the true DC
-    before the coupling cannot be known).
+    ``x̂[n] = (x[n] − m) + (1/τ)·S[n] + m`` with ``S = ∫(x − m) dt`` (trapezoidal rule, 0 at
+    the first sample) and ``m`` the mean over ``x[:span]``. The "DC fix": in steady state the
+    high-pass output has no DC, so the recorded mean ``m`` is an offset of the recorder; taken
+    over a whole number of periods it makes S periodic (no ramp). The result keeps the
+    recorded mean, since the true DC before the coupling cannot be known.
 
     Parameters
     ----------
@@ -294,7 +304,8 @@ def compensate_coupling(x: np.ndarray, sample_rate: float, tau_s: float,
     tau_s : float
         Coupling time constant (s), > 0.
     span : int, optional
-        Samples over which to take the mean and the trend (default: all).
+        Samples over which to take the mean: a whole number of periods (default: all, which
+        leaves a small ramp when the record ends inside a period).
 
     Returns
     -------
@@ -306,13 +317,7 @@ def compensate_coupling(x: np.ndarray, sample_rate: float, tau_s: float,
     span = n if span is None else max(2, min(int(span), n))
     m = float(np.mean(x[:span]))
     y = x - m
-    s = np.cumsum(y) / sample_rate
-    # least-squares line through S[:span] (closed form, indices centred for conditioning)
-    c = 0.5 * (span - 1)
-    k = np.arange(span, dtype=np.float64) - c
-    slope = float(k @ s[:span]) / float(k @ k)
-    intercept = float(np.mean(s[:span]))
-    s = s - (intercept + slope * (np.arange(n, dtype=np.float64) - c))
+    s = _integral(y, sample_rate)
     return y + s / tau_s + m
 
 
@@ -366,7 +371,7 @@ def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingF
     first = int(edges.k50[edges.rising][0]) + 1 if np.any(edges.rising) else 0
     m = float(np.mean(x[first:first + span])) if span < x.size else float(np.mean(x))
     y = x - m
-    integral = np.cumsum(y) / sample_rate
+    integral = _integral(y, sample_rate)
     # work on a regular subset of the flats' samples (enough for 1/τ; keeps long records fast)
     step = max(1, int(math.ceil(float(np.sum(b - a)) / _COUPLING_SAMPLES)))
     a_d = -(-a // step)  # first multiple of step at or after a
