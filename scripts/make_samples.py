@@ -148,7 +148,9 @@ def write_scope_csv(path: Path, t: np.ndarray, cols: dict[str, np.ndarray], rate
                     european: bool, serial: str) -> None:
     """A scope-style CSV: a preamble, a header with units, one row per sample."""
     step = 1.0 / rate
-    idx = np.round(np.arange(int(t[-1] * rate)) * FS_SIM / rate).astype(int)
+    if abs(FS_SIM / rate - round(FS_SIM / rate)) > 1e-9:
+        raise ValueError(f"scope rate {rate} must divide the simulation rate {FS_SIM}")
+    idx = np.arange(int(t[-1] * rate)) * int(round(FS_SIM / rate))
     idx = idx[idx < t.size]
     lines = []
     if european:
@@ -211,7 +213,7 @@ def main() -> None:
     t = np.arange(int(0.12 * FS_SIM)) / FS_SIM
     timer = timer_wave(t, u)
     write_scope_csv(OUT / "hc03_timer_scope.csv", t, {"CH A": scope_noise(rng, timer)},
-                    rate=25_000, european=True, serial="HC-03")
+                    rate=24_000, european=True, serial="HC-03")
 
     # --- HC-03: two-channel capture, drive (filter input) and output, on the scope ------------
     t, drive, out = simulate(u, 1.2)
