@@ -187,5 +187,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                        harmonic_hz=fk, h_measured=yk, h_model=y_model_k,
                        h_measured_u=amp_u,
                        residual=np.concatenate([(yk - y_model_k).real, (yk - y_model_k).imag]))
+    msg = (f"{msg}; one-channel: the drive level is unknown, so the data fix the shape of H "
+           "(resonant frequency, Q, ESR zero) and the parts only once one of them is known")
     return assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
                     quality_complex(yk, y_model_k), ok, msg, alts)

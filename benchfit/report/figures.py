@@ -227,7 +227,7 @@ def fit_svg(fit_result) -> str:
                 ax_t.plot(c.time_s * scale, c.model, color=_MODEL, lw=1.0, ls="--", label="model")
             ax_t.set_xlabel(f"time ({tu})")
             ax_t.legend(loc="upper right")
-        ax_t.set_ylabel("signal")
+        ax_t.set_ylabel("ring (baseline included)" if fit_result.method == "ringdown" else "output")
         ax_t.set_title(f"{fit_result.model} fit ({fit_result.method}) — "
                        f"NRMSE {fit_result.quality.nrmse:.3g}", loc="left")
         if has_h:
@@ -240,12 +240,17 @@ def fit_svg(fit_result) -> str:
                               elinewidth=0.8, capsize=2, label="measured")
             else:
                 ax_m.plot(f, hm, "o", color=_INK, ms=3.5, label="measured")
-            ax_p.plot(f, np.degrees(np.angle(c.h_measured)), "o", color=_INK, ms=3.5,
-                      label="measured")
-            if c.h_model.size == f.size:
+            has_model = c.h_model.size == f.size
+            if has_model:
+                # unwrap the model's phase; show each measured phase in the turn nearest it
+                ph_model = np.degrees(np.unwrap(np.angle(c.h_model)))
+                ph_meas = ph_model + np.degrees(np.angle(c.h_measured / c.h_model))
+            else:
+                ph_meas = np.degrees(np.unwrap(np.angle(c.h_measured)))
+            ax_p.plot(f, ph_meas, "o", color=_INK, ms=3.5, label="measured")
+            if has_model:
                 ax_m.plot(f, np.abs(c.h_model), "s", mfc="none", color=_MODEL, ms=5, label="model")
-                ax_p.plot(f, np.degrees(np.angle(c.h_model)), "s", mfc="none", color=_MODEL,
-                          ms=5, label="model")
+                ax_p.plot(f, ph_model, "s", mfc="none", color=_MODEL, ms=5, label="model")
             ax_m.set_yscale("log")
             for ax in (ax_m, ax_p):
                 ax.set_xscale("log")
@@ -267,7 +272,10 @@ def fit_svg(fit_result) -> str:
         if r.size:
             ax_r.plot(np.arange(r.size), r, ".", color=_RESID, ms=2.5)
             ax_r.axhline(0.0, color="#7a8793", lw=0.7)
-        ax_r.set_xlabel("fitted point")
+        if has_h and r.size == 2 * c.harmonic_hz.size:
+            ax_r.set_xlabel("fitted point (real parts at the harmonics, then imaginary parts)")
+        else:
+            ax_r.set_xlabel("fitted point")
         ax_r.set_ylabel("residual")
         ax_r.set_title("residuals (data − model)", loc="left")
         return _to_svg(fig)
