@@ -18,13 +18,14 @@ from benchfit.cli.app import app
 __all__ = ["measure_file", "measure_command", "render_channel_rows"]
 
 _EXAMPLE = """
+
 Examples:
 
-  benchfit measure HC-03_as-left.wav
+benchfit measure HC-03_as-left.wav
 
-  benchfit measure HC-*.wav --channel output --json > batch.jsonl
+benchfit measure HC-*.wav --channel output --json > batch.jsonl
 
-  benchfit measure scope_export.csv --sample-rate 100k --harmonics 20
+benchfit measure scope_export.csv --sample-rate 100k --harmonics 20
 
 Uncertainties are standard uncertainties (k = 1). THD is relative to the fundamental over
 harmonics 2…H (H = --harmonics, default 10, or the highest order below Nyquist); THD+N
