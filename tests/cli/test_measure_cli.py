@@ -147,7 +147,7 @@ def test_sample_rate_option_reaches_the_csv_reader(tmp_path, run):
     ch = json.loads(res.stdout)["channels"][0]
     assert json.loads(res.stdout)["sample_rate_hz"] == 10000.0
     assert ch["frequency_hz"] == pytest.approx(50.0, rel=1e-6)  # 6-decimal printing noise
-    assert ch["vrms"] == pytest.approx(1.5 / math.sqrt(2), rel=1e-5)
+    assert ch["vrms"] == pytest.approx(1.5 / math.sqrt(2), rel=1e-5)  # 6-decimal printing, 40 periods
 
 
 def test_help_states_h_and_is_quick():

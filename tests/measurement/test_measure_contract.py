@@ -45,7 +45,7 @@ def test_contract_keys_and_types_exactly():
     assert set(d) == TOP_KEYS
     assert d["file"] == "HC-05_as-found.wav"
     assert isinstance(d["sample_rate_hz"], float) and isinstance(d["duration_s"], float)
-    assert d["duration_s"] == pytest.approx(0.5)
+    assert d["duration_s"] == pytest.approx(0.5)  # 24 000 samples / 48 kHz, float rounding only
     assert [c["name"] for c in d["channels"]] == ["drive", "output", "spare"]
     for c in d["channels"]:
         assert set(c) == set(CHANNEL_TYPES), set(c) ^ set(CHANNEL_TYPES)
@@ -66,7 +66,7 @@ def test_contract_values_of_the_hum_check_capture():
     drive, out, spare = m.channels
     assert drive.duty_cycle_pct == pytest.approx(52.0, abs=0.05)  # 5 mV noise on 11.5 V edges
     assert drive.rise_time_s is not None and out.duty_cycle_pct is None
-    assert out.frequency_hz == pytest.approx(50.04, abs=5 * out.frequency_u_hz)
+    assert out.frequency_hz == pytest.approx(50.04, abs=5 * out.frequency_u_hz)  # 5 u: noise, never by chance
     assert out.thd_pct == pytest.approx(4.0, abs=0.01)  # 0.072/1.8; noise floor ~1e-3 %
     assert out.extra["timebase_u_ppm"] == 2.0
     assert spare.frequency_hz is None and spare.to_dict()["harmonics"] == []

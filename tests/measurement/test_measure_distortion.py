@@ -71,9 +71,9 @@ def test_harmonic_table_frequency_and_phase():
     ch = measure_channel(x, FS, unit="V", harmonics=5)
     h1, h2 = ch.harmonics[0], ch.harmonics[1]
     assert h1.phase_deg == pytest.approx(-40.0, abs=1e-7)  # noise-free: rounding only
-    assert h2.phase_deg == pytest.approx(75.0, abs=1e-6)
-    assert h2.frequency_hz == pytest.approx(2 * 123.45, rel=1e-10)
-    assert ch.thd_pct == pytest.approx(100 * 0.1 / 0.8, rel=1e-8)
+    assert h2.phase_deg == pytest.approx(75.0, abs=1e-6)  # smaller component: 1e-6° rounding
+    assert h2.frequency_hz == pytest.approx(2 * 123.45, rel=1e-10)  # noise-free frequency fit
+    assert ch.thd_pct == pytest.approx(100 * 0.1 / 0.8, rel=1e-8)  # exact two-tone ratio, rounding
     assert [h.order for h in ch.harmonics] == [1, 2, 3, 4, 5]
 
 

@@ -79,9 +79,9 @@ def test_timebase_uncertainty_is_added_in_quadrature():
     with_tb = measure_channel(x, FS, unit="V", timebase_ppm=12.5, timebase_u_ppm=20.0)
     assert with_tb.frequency_hz == plain.frequency_hz
     u_tb = with_tb.frequency_hz * 20e-6  # the budget uses the measured frequency
-    assert with_tb.frequency_u_hz == pytest.approx(math.hypot(plain.frequency_u_hz, u_tb), rel=1e-12)
+    assert with_tb.frequency_u_hz == pytest.approx(math.hypot(plain.frequency_u_hz, u_tb), rel=1e-12)  # arithmetic
     assert with_tb.extra["timebase_ppm"] == 12.5
-    assert with_tb.extra["frequency_u_timebase_hz"] == pytest.approx(u_tb, rel=1e-12)
+    assert with_tb.extra["frequency_u_timebase_hz"] == pytest.approx(u_tb, rel=1e-12)  # arithmetic
 
 
 def test_square_wave_frequency_from_multiharmonic_fit():
