@@ -67,6 +67,8 @@ class Identification:
     undetermined: tuple[str, ...]
     null_directions: list = field(default_factory=list)
     chi2_red: float = 1.0
+    #: standard deviation along each undetermined direction (inf when numerically singular)
+    null_sigmas: tuple = ()
 
 
 def numeric_jacobian(fun: Callable[[np.ndarray], np.ndarray], x: np.ndarray,
@@ -85,17 +87,19 @@ def identify(jac: np.ndarray, names: tuple[str, ...], chi2_red: float) -> Identi
     """Decide which log-parameters the data determine (see the module docstring)."""
     n_par = len(names)
     if n_par == 0:
-        return Identification((), np.zeros((0, 0)), (), [], chi2_red)
+        return Identification((), np.zeros((0, 0)), (), [], chi2_red, ())
     scale = math.sqrt(max(chi2_red, 1e-300))
     _, s, vt = np.linalg.svd(jac, full_matrices=False)
     smax = float(s[0]) if s.size else 0.0
     cov = np.zeros((n_par, n_par))
     null: list[np.ndarray] = []
+    sigmas: list[float] = []
     for i in range(n_par):
         si = float(s[i]) if i < s.size else 0.0
         sigma = scale / si if si > 1e-12 * max(smax, 1e-300) else math.inf
         if sigma > _SIGMA_LIMIT:
             null.append(vt[i])
+            sigmas.append(sigma)
         else:
             cov += sigma ** 2 * np.outer(vt[i], vt[i])
     bad = set()
@@ -104,7 +108,7 @@ def identify(jac: np.ndarray, names: tuple[str, ...], chi2_red: float) -> Identi
             if abs(v[j]) > _COMPONENT_FLOOR:
                 bad.add(name)
     und = tuple(n for n in names if n in bad)
-    return Identification(tuple(names), cov, und, null, chi2_red)
+    return Identification(tuple(names), cov, und, null, chi2_red, tuple(sigmas))
 
 
 def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
@@ -238,11 +242,21 @@ def derived_values(values: Mapping[str, float], ident: Identification) -> dict[s
         if not np.all(np.isfinite(g)):
             out[name] = DerivedValue(val, None)
             continue
-        # a derived value that moves (> 1 % per unit log change) along an undetermined
-        # direction is itself undetermined
-        moves = any(abs(float(g @ v)) > 1e-2 * abs(val) for v in ident.null_directions)
+        # undetermined directions: a numerically singular one makes the value undetermined
+        # if the value moves along it (> 1 % per unit log change); a merely poorly determined
+        # one adds its share (g·v)²σ² to the variance
         var = float(g @ ident.cov_log @ g) if g.size else 0.0
-        out[name] = DerivedValue(val, None if moves else math.sqrt(max(var, 0.0)))
+        moves = False
+        for v, sig in zip(ident.null_directions, ident.null_sigmas or (math.inf,) * len(ident.null_directions)):
+            gv = float(g @ v)
+            if math.isinf(sig):
+                moves = moves or abs(gv) > 1e-2 * abs(val)
+            else:
+                var += (gv * sig) ** 2
+        u = math.sqrt(max(var, 0.0))
+        if u > 0.5 * abs(val):  # the same 50 % limit as for the parts
+            moves = True
+        out[name] = DerivedValue(val, None if moves else u)
     return out
 
 

@@ -288,6 +288,9 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
              curves: FitCurves, quality: FitQuality, success: bool, message: str,
              alternatives: list[dict[str, float]] | None = None) -> FitResult:
     """Build the FitResult: parameter table, derived values, correlations and warnings."""
+    from dataclasses import replace
+
+    cov_local = ident.cov_log
     ident, amb_warn = ambiguity(values, ident, alternatives or [])
     params = parameter_table(values, ident, {**user_fix, **{n: 0.0 for n in folded}})
     for n in folded:
@@ -299,14 +302,21 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
     if not success:
         warn.append(f"fit: the optimiser did not report convergence ({message}) — check the "
                     "capture and try --guess with approximate part values")
-    derived = derived_values(values, ident)
+    # derived values use the local covariance; the spread between equally good solutions is
+    # checked on the derived values themselves below (it widens only the parts' own errors)
+    derived = derived_values(values, replace(ident, cov_log=cov_local))
     for name, dv in list(derived.items()):  # a derived value that differs between solutions
         if dv.value is None or dv.stderr is None:
             continue
         for alt in alternatives or []:
             other = second_order(_parts(alt))[name]
-            if math.isfinite(other) and abs(other - dv.value) > max(3 * dv.stderr, 1e-9 * abs(dv.value)):
+            if not math.isfinite(other):
+                continue
+            diff = abs(other - dv.value)
+            if diff > 0.05 * abs(dv.value):
                 derived[name] = DerivedValue(dv.value, None)
+            elif diff > 3 * dv.stderr:  # small but significant: widen by half the spread
+                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2))
     return FitResult(file=source_name(cap), model=MODEL_NAME, method=method, parameters=params,
                      derived=derived, correlations=correlations(ident),
                      quality=quality, warnings=tuple(warn), curves=curves, success=success,
