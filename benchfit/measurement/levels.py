@@ -10,7 +10,8 @@ Pure functions of sample arrays; no I/O.
   ``1 − cos(0.001·π) ≈ 5·10⁻⁶`` of the true value (the sine's sample distribution is the
   arcsine law); for a square the percentiles land on the flat tops.
 * Clipping: runs of at least 3 samples at or beyond ±0.999 of full scale (audio), or long
-  flat runs at the channel's exact extreme value (rails of a recorder that saturates).
+  flat runs at the channel's exact extreme value that pile up far more samples than the
+  next value (rails of a recorder that saturates, not the top code of a quantised peak).
 """
 
 from __future__ import annotations
@@ -30,6 +31,8 @@ VPP_PERCENTILE = 0.1
 _FS_MIN_RUN = 3
 #: shortest run at the channel's exact extreme reported as rail clipping (samples)
 _RAIL_MIN_RUN = 5
+#: samples at a rail must outnumber those at the next value by this factor
+_RAIL_PILEUP = 5
 #: full-scale threshold as a fraction of full scale (audio)
 _FS_LEVEL = 0.999
 
@@ -188,8 +191,10 @@ def find_clipping(x: np.ndarray, unit: str, full_scale: float | None = None,
         the gain in V per FS). Runs of ≥ 3 samples with ``|x| ≥ 0.999·full_scale`` count.
     rails : bool
         When no full scale is known, count runs of ≥ 5 samples that equal the channel's
-        exact maximum or minimum (a saturating recorder repeats its last code). Pass False
-        for waveforms whose flat tops are legitimately the extremes (a clean square).
+        exact maximum or minimum (a saturating recorder repeats its last code), provided
+        that value holds at least 5 times as many samples as the next value inside it (a
+        quantised but unclipped peak spreads over neighbouring codes). Pass False for
+        waveforms whose flat tops are legitimately the extremes (a clean square).
 
     Returns
     -------
@@ -210,8 +215,16 @@ def find_clipping(x: np.ndarray, unit: str, full_scale: float | None = None,
     if vmax == vmin:
         return ClipReport(False)
     best = ClipReport(False)
-    for level in (vmax, vmin):
-        runs, count = _runs(x == level, _RAIL_MIN_RUN)
-        if runs and count > best.n_samples:
+    for level, beyond in ((vmax, x < vmax), (vmin, x > vmin)):
+        at = x == level
+        runs, count = _runs(at, _RAIL_MIN_RUN)
+        if not runs or count <= best.n_samples:
+            continue
+        # a quantised smooth peak also repeats its top code, but the next code down holds a
+        # comparable count (≤ 2.4× fewer for a sine); a rail piles samples up at one value
+        rest = x[beyond]
+        neighbour = rest.max() if level == vmax else rest.min()
+        n_neighbour = int(np.count_nonzero(rest == neighbour))
+        if int(np.count_nonzero(at)) >= _RAIL_PILEUP * max(n_neighbour, 1):
             best = ClipReport(True, runs, count, level, "rail")
     return best

@@ -156,3 +156,16 @@ def test_low_snr_warns_but_still_measures():
 def test_capture_warnings_are_carried_over():
     cap = Capture(tone(times(0.2), 50.0, 1.0, 0.0), FS, warnings=("file truncated after 9600 samples",))
     assert "file truncated after 9600 samples" in measure(cap).channels[0].warnings
+
+
+@pytest.mark.parametrize("lsb", [0.005, 0.02, 0.05])
+def test_quantised_peaks_are_not_rails(lsb):
+    # a scope's 8-bit codes make a slow sine repeat its top code for dozens of samples; that
+    # is not clipping (the next code down holds a comparable count: ≤ 2.4× fewer for a sine,
+    # from the arcsine law), while a real rail piles samples up at one code
+    t = np.arange(20000) / 1e5
+    for phase in (0.0, 0.3, 1.1):
+        x = np.round(np.sin(2 * math.pi * 50 * t + phase) / lsb) * lsb
+        assert not find_clipping(x, "V").clipped
+        clipped = np.clip(np.round(1.2 * np.sin(2 * math.pi * 50 * t + phase) / lsb) * lsb, -1.0, 1.0)
+        assert find_clipping(clipped, "V").clipped
