@@ -225,6 +225,39 @@ def test_calibrate_gain_recording_live(rig, tmp_path):
     assert (tmp_path / "config" / "profiles" / "live.toml").is_file()
 
 
+_API_SNIPPET = """
+import json, sys
+import benchfit
+statuses = []
+res = benchfit.record(sys.argv[1], 1.0, rate=48000, channels=2, device="pulse", names="left,right",
+                      on_block=lambda st: statuses.append(st))
+print(json.dumps({"frames": res.frames, "names": list(res.channel_names), "peaks": list(res.peak_dbfs),
+                  "done": [st.frames_done for st in statuses], "total": statuses[-1].frames_total,
+                  "levels": [list(st.peak_dbfs) for st in statuses], "interrupted": res.interrupted,
+                  "duration": res.duration_s, "sidecar": str(res.sidecar_path)}))
+"""
+
+
+def test_python_api_record_reports_progress(rig, tmp_path):
+    """benchfit.record(..., on_block=...) from a script: progress about ten times a second."""
+    player = rig.play(write_tone(tmp_path / "play.wav", 8.0, [(300.0, 0.5), (600.0, 0.1)]))
+    out = tmp_path / "api.wav"
+    try:
+        r = subprocess.run([sys.executable, "-c", _API_SNIPPET, str(out)], env=rig.env, capture_output=True,
+                           text=True, timeout=60)
+    finally:
+        stop(player)
+    assert r.returncode == 0, r.stderr
+    res = json.loads(r.stdout)
+    assert res["frames"] == FS and res["total"] == FS and res["duration"] == 1.0
+    assert res["names"] == ["left", "right"] and not res["interrupted"]
+    done = res["done"]
+    assert done == sorted(done) and done[-1] == FS and len(done) >= 5  # ~10 calls/s over ≥ 1 s
+    # peaks: 0.5 FS → −6.02 dBFS and 0.1 FS → −20 dBFS (20·log10), noise adds < 0.01 dB
+    assert res["peaks"] == [pytest.approx(-6.02, abs=0.05), pytest.approx(-20.0, abs=0.05)]
+    assert json.loads((tmp_path / "api.json").read_text())["channels"] == [{"name": "left"}, {"name": "right"}]
+
+
 def test_devices_lists_the_virtual_card(rig):
     r = rig.benchfit("devices", "--json")
     assert r.returncode == 0, r.stderr
