@@ -9,7 +9,6 @@ reported as determined, which warnings appear), not about accuracy against an ou
 from __future__ import annotations
 
 import json
-import math
 
 import numpy as np
 import pytest
@@ -140,3 +139,53 @@ def test_channels_picked_by_name():
     swapped = Capture(cap.samples[::-1], FS, ("Vout", "Vin"), ("V", "V"), source="swap.csv")
     r = fit_lowpass(swapped, fix={"L": 0.3, "Rload": 10e3})
     assert r.parameters["C"].value == pytest.approx(33e-6, rel=0.01)  # picked vin as drive
+
+
+def test_second_equally_good_solution_is_reported():
+    # with L fixed and a 10 kΩ load free, losses in Rs and in Rload trade off: the normalised
+    # coefficients of H(s) (REFERENCES §6) admit two part sets with the same response here
+    r = fit_lowpass(_two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=7), fix={"L": 0.3})
+    amb = [w for w in r.warnings if "two solutions" in w]
+    assert amb and "--fix Rload=" in amb[0]
+    assert r.parameters["Rs"].stderr is None and r.parameters["Rload"].stderr is None
+    # the resonance figures are the same for both solutions and stay determined
+    f0 = r.derived["resonant_frequency_hz"]
+    assert f0.stderr is not None
+    assert f0.value == pytest.approx(second_order(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3))
+                                     ["resonant_frequency_hz"], rel=1e-3)  # 2 mV noise
+
+
+def test_one_channel_undoes_a_known_input_coupling(tmp_path):
+    from dataclasses import replace
+
+    from scipy.signal import bilinear, lfilter
+
+    from benchfit.capture.capture import InputCalibration
+
+    p = LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3)
+    cap = _two_channel(p, seed=8)
+    out = np.asarray(cap.samples[1])
+    tau = 0.02  # a 8 Hz input high-pass, strong enough to move the 50 Hz phase by 9°
+    b, a = bilinear([tau, 0.0], [tau, 1.0], FS)  # sτ/(1 + sτ), bilinear transform (scipy)
+    coupled = lfilter(b, a, out - out.mean())
+    plain = Capture(coupled[None, :], FS, ("output",), ("V",), source="ac.wav")
+    known = replace(plain, calibration=InputCalibration(coupling_tau_s=tau))
+    truth = second_order(p)["resonant_frequency_hz"]
+    r_known = fit_lowpass(known, fix={"L": 0.3}, drive_duty=0.5)
+    # with the coupling undone, f0 to 0.1 % (2 mV noise; the bilinear map warps 8 Hz by 1e-6)
+    assert r_known.derived["resonant_frequency_hz"].value == pytest.approx(truth, rel=1e-3)
+    r_plain = fit_lowpass(plain, fix={"L": 0.3}, drive_duty=0.5)
+    err_known = abs(r_known.derived["resonant_frequency_hz"].value - truth)
+    err_plain = abs(r_plain.derived["resonant_frequency_hz"].value - truth)
+    assert err_known < err_plain
+
+
+def test_fit_lowpass_accepts_a_path(tmp_path):
+    cap = _two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=9, seconds=0.5)
+    path = tmp_path / "unit.csv"
+    t = np.arange(cap.n_samples) / FS
+    np.savetxt(path, np.column_stack([t, cap.samples[0], cap.samples[1]]), delimiter=",",
+               header="time (s),drive (V),output (V)", comments="", fmt="%.10g")
+    r = fit_lowpass(str(path), fix={"L": 0.3, "Rload": 10e3})
+    assert r.file == str(path)
+    assert r.parameters["C"].value == pytest.approx(33e-6, rel=0.01)  # 2 mV noise

@@ -16,7 +16,6 @@ sampled at 20 kHz without an anti-alias filter bias the highest harmonics by up 
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 import pytest
