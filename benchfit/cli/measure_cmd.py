@@ -150,12 +150,13 @@ def render_channel_rows(ch: dict[str, Any]) -> list[tuple[str, str, str]]:
 
 
 def _render(d: dict[str, Any], console) -> None:
+    from rich.markup import escape
     from rich.table import Table
 
-    console.print(f"[bold]{d['file']}[/]  {d['sample_rate_hz']:g} Hz sample rate, "
+    console.print(f"[bold]{escape(d['file'])}[/]  {d['sample_rate_hz']:g} Hz sample rate, "
                   f"{d['duration_s']:.4g} s", markup=True, highlight=False)
     for ch in d["channels"]:
-        table = Table(title=f"channel {ch['name']} ({ch['unit']})", title_justify="left",
+        table = Table(title=escape(f"channel {ch['name']} ({ch['unit']})"), title_justify="left",
                       caption="± values are standard uncertainties (k = 1)", caption_justify="left",
                       show_header=True, header_style="bold", box=None, pad_edge=False)
         table.add_column("quantity", no_wrap=True)
@@ -177,7 +178,7 @@ def _render(d: dict[str, Any], console) -> None:
                            _num(hm["amplitude"], ch["unit"]), rel_txt, f"{hm['phase_deg']:.1f}°")
             console.print(ht)
         for w in ch["warnings"]:
-            console.print(f"[yellow]warning:[/] {w}", markup=True, highlight=False)
+            console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False)
         console.print()
 
 
