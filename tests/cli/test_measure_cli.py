@@ -157,3 +157,17 @@ def test_help_states_h_and_is_quick():
     assert res.returncode == 0
     assert "2…H" in res.stdout and "default 10" in res.stdout
     assert elapsed < 10.0  # generous: a loaded 2-core CI box; scripts/bench_measure.py measures it
+
+
+def test_measure_file_is_a_picklable_top_level_job(wavs):
+    # the per-file job must travel to a process pool: a module-level function, plain-dict result
+    import pickle
+
+    from benchfit.cli.measure_cmd import measure_file
+
+    job = pickle.loads(pickle.dumps(measure_file))
+    d = job(wavs["mono"], channels=None, harmonics=5, sample_rate=None)
+    pickle.dumps(d)
+    json.dumps(d, allow_nan=False)
+    ch = d["channels"][0]
+    assert ch["extra"]["harmonics_h"] == 5 and len(ch["harmonics"]) == 5
