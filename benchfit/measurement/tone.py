@@ -154,8 +154,11 @@ def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -
     n = x.size
     if n < 8:
         return None
-    w = np.hanning(n + 1)[:-1]  # periodic Hann
-    spec = np.abs(np.fft.rfft((x - x.mean()) * w))
+    # periodic Hann window applied in the frequency domain: X_w[k] = X[k]/2 − (X[k−1] + X[k+1])/4
+    raw = np.fft.rfft(x - x.mean())
+    spec = np.empty(raw.size)
+    spec[1:-1] = np.abs(0.5 * raw[1:-1] - 0.25 * (raw[:-2] + raw[2:]))
+    spec[0] = spec[-1] = 0.0
     lo = max(2, int(math.ceil(min_hz * n / sample_rate)))
     if lo >= spec.size - 1:
         return None
@@ -246,8 +249,9 @@ def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
         t_starts = (start + seg_len * np.arange(count)) / fs - t_mid
         rot = _rotations(t_starts, omega, orders)
         g0 = u.T @ u
-        g[:p, :p] += np.einsum("mip,ij,mjq->pq", rot, g0, rot, optimize=True)
-        r[:p] += np.einsum("mip,mi->p", rot, a)
+        rot_t = rot.transpose(0, 2, 1)
+        g[:p, :p] += (rot_t @ g0 @ rot).sum(axis=0)
+        r[:p] += (rot_t @ a[:, :, None]).sum(axis=0)[:, 0]
         if with_w:
             tau = np.arange(seg_len) / fs
             ut = u * tau[:, None]
@@ -258,7 +262,7 @@ def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
             g0w = w @ g0  # (count, p)
             g1w = w @ g1.T
             cross = t_starts[:, None] * g0w + g1w  # Uᵀ(dw) per segment, template basis
-            g[:p, -1] += np.einsum("mip,mi->p", rot, cross)
+            g[:p, -1] += (rot_t @ cross[:, :, None]).sum(axis=0)[:, 0]
             g[-1, -1] += float(np.sum(t_starts ** 2 * np.einsum("mi,mi->m", g0w, w))
                                + 2 * np.sum(t_starts * np.einsum("mi,mi->m", w @ g1, w))
                                + np.sum(np.einsum("mi,ij,mj->m", w, g2, w)))
