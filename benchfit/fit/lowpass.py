@@ -471,11 +471,22 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     check_not_silent(x, cap, di, "drive")
     tone = fit_tone(x, fs, n_harmonics=9)
     if tone is None or tone.amplitudes[0] <= SIGNIFICANCE * tone.amplitudes_u[0]:
+        if time_domain:  # any drive will do: start from the cross-spectral estimate of H
+            return _aperiodic(cap, x, y, di, fix, guess)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} has no periodic content — "
-                       "capture at least a few periods of the drive, or use --model ringdown")
+                       "capture at least a few periods of the drive, use --time-domain for a "
+                       "non-periodic drive, or use --model ringdown")
     f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
     hx_all = fit_harmonics(x, fs, f, kmax)
+    # a periodic drive is explained by its harmonics: require 90 % of its variance
+    var_x = float(np.sum((x - x.mean()) ** 2))
+    if var_x <= 0 or hx_all.rss > 0.1 * var_x:
+        if time_domain:
+            return _aperiodic(cap, x, y, di, fix, guess)
+        raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} is not periodic (its harmonics "
+                       f"at {f:.4g} Hz explain {100 * max(0.0, 1 - hx_all.rss / var_x):.0f} % of it) — "
+                       "use --time-domain for a non-periodic drive, or check the drive channel")
     keep = hx_all.amplitudes > SIGNIFICANCE * hx_all.amplitudes_u
     orders = hx_all.orders[keep]
     if orders.size < 2:
@@ -519,6 +530,51 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
             x, y, fs, values, fixed, fix, hy.sigma, curves)
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
+    return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
+                    alts)
+
+
+def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],
+               guess: dict[str, float]) -> FitResult:
+    """Time-domain fit for a drive that is not periodic, started from H = P_xy/P_xx (Welch).
+
+    Bins with magnitude-squared coherence γ² > 0.9 are used for the start; their relative
+    random error √(1−γ²)/(|γ|·√(2·n_d)) for n_d averaged segments is the usual one for a
+    frequency-response estimate (Bendat & Piersol, *Random Data*, from memory).
+    """
+    from scipy.signal import coherence, csd, welch
+
+    where = source_name(cap)
+    fs = cap.sample_rate
+    nper = int(min(max(256, x.size // 8), 16384))
+    if x.size < 2 * nper:
+        raise FitError(f"{where}: the record is too short for a non-periodic drive — capture longer")
+    f, pxx = welch(x, fs, nperseg=nper)
+    _, pxy = csd(x, y, fs, nperseg=nper)
+    _, coh = coherence(x, y, fs, nperseg=nper)
+    sel = (f > 0) & (coh > 0.9) & (pxx > 0)
+    if np.count_nonzero(sel) < 4:
+        raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} and the response are not "
+                       "related (coherence below 0.9 everywhere) — check the channels and the wiring")
+    n_d = max(1.0, 2.0 * x.size / nper - 1.0)  # Welch segments with 50 % overlap
+    h = pxy[sel] / pxx[sel]
+    g = np.sqrt(coh[sel])
+    u = np.abs(h) * np.sqrt(1.0 - coh[sel]) / (g * math.sqrt(2.0 * n_d)) + 1e-12 * np.abs(h).max()
+    fk = f[sel]
+    w0, q, b0 = grid_start(fk, h, u)
+    start = start_parts(w0, q, b0, fix, guess)
+    # a first fit to the spectral estimate, then the time-domain fit from there
+    uu = np.maximum(u, 1e-300)
+
+    def residual(v: dict[str, float]) -> np.ndarray:
+        d = (h - transfer(fk, _parts(v))) / uu
+        return np.concatenate([d.real, d.imag])
+
+    start, _, fixed0, _, _, _, _, _ = solve(residual, start, fix)
+    curves = FitCurves(harmonic_hz=fk, h_measured=h, h_measured_u=u)
+    sigma = 1e-3 * float(np.std(y))  # scales χ² only; the covariance is rescaled by χ²_red
+    values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality = _time_domain(
+        x, y, fs, start, dict(fix), fix, sigma, curves)
     return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
                     alts)
 
