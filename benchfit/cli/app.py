@@ -17,15 +17,16 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    rich_markup_mode=None,
     context_settings={"help_option_names": ["-h", "--help"]},
 )
 
 calibrate_app = typer.Typer(help="Sound-card calibration profiles (gain, timebase, input coupling).",
-                            no_args_is_help=True)
+                            no_args_is_help=True, rich_markup_mode=None)
 log_app = typer.Typer(help="The measurement log: list, show, export runs and batch statistics.",
-                      no_args_is_help=True)
+                      no_args_is_help=True, rich_markup_mode=None)
 design_app = typer.Typer(help="Design and trim advice: timer parts, filter parts, combinations, trims.",
-                         no_args_is_help=True)
+                         no_args_is_help=True, rich_markup_mode=None)
 
 app.add_typer(calibrate_app, name="calibrate")
 app.add_typer(log_app, name="log")
