@@ -32,8 +32,8 @@ import numpy as np
 from benchfit.errors import FitError
 from benchfit.fit.circuits import (PARAMETER_NAMES, LowpassParts, free_response_basis, second_order,
                                    simulate, transfer)
-from benchfit.fit.identify import (Identification, correlations, derived_values, fit_log_parameters,
-                                   identify, parameter_table, undetermined_warning)
+from benchfit.fit.identify import (Identification, ambiguity, correlations, derived_values,
+                                   parameter_table, solve, undetermined_warning)
 from benchfit.fit.result import (PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality,
                                 FitResult)
 
@@ -85,12 +85,6 @@ def check_parts(fix: Mapping[str, float] | None, guess: Mapping[str, float] | No
             clean[name] = v
         out.append(clean)
     return out[0], out[1]
-
-
-def display_unit(name: str) -> str:
-    """Unit of a part for people (Ω rather than the JSON contract's "ohm")."""
-    u = PARAMETER_UNITS[name]
-    return "Ω" if u == "ohm" else u
 
 
 def pick_channels(cap, drive: str | int | None, response: str | int | None) -> tuple[int, int]:
@@ -155,132 +149,6 @@ def start_parts(w0: float, q: float, dc_gain: float | None, fix: Mapping[str, fl
     out = {"L": L, "C": C, "Rs": rs, "Resr": resr, "Rload": rl}
     out.update(fix)
     return out
-
-
-def solve(residual, start: dict[str, float], fix: Mapping[str, float],
-          extra: Mapping[str, tuple[float, float, float]] | None = None):
-    """Fit the free parts (and extras); fold an undetermined ESR into Rs and refit; look for a
-    second, equally good solution.
-
-    Returns (values, ident, fixed, folded, warnings, success, message, alternatives) where
-    ``alternatives`` lists other solutions whose χ² is within 4 of the best (a two-fold
-    ambiguity that a local analysis cannot see, e.g. losses in Rs versus in Rload).
-    """
-    fixed = dict(fix)
-    folded: list[str] = []
-    warnings: list[str] = []
-    start = dict(start)
-    # with neither L nor C known the impedance scale is free: pin L at its start value so the
-    # optimiser does not wander along that direction, then analyse with L free again
-    pin = "L" if not ({"L", "C"} & set(fix)) else None
-    while True:
-        free = tuple(n for n in PARAMETER_NAMES if n not in fixed and n != pin)
-        pinned = {**fixed, pin: start[pin]} if pin else fixed
-        values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, pinned, extra)
-        if pin:
-            names, jac = _unpinned_jacobian(residual, values, pin, names, extra)
-            dof = max(residual(values).size - len(names), 1)
-            r0 = residual(values)
-            chi2 = float(r0 @ r0) / dof
-        ident = identify(jac, names, chi2)
-        only_scale = {"L", "C"} <= set(ident.undetermined)
-        if "Resr" in ident.undetermined and "Resr" not in fixed and not only_scale:
-            fixed["Resr"] = 0.0
-            folded.append("Resr")
-            start = dict(values)
-            start["Rs"] = values["Rs"] + values["Resr"]
-            if extra:
-                extra = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-            warnings.append("Resr: the capacitor's ESR is not separated from Rs by these data, so it "
-                            "was set to 0 and Rs holds Rs + ESR — measure the ESR and pass --fix Resr=… "
-                            "to split them")
-            continue
-        break
-    alternatives: list[dict[str, float]] = []
-    if {"Rs", "Rload"} <= set(free) and not {"L", "C"} <= set(ident.undetermined):
-        dof = max(residual(values).size - len(names), 1)
-        best_total = ident.chi2_red * dof
-        for factor in (0.02, 50.0):
-            st = dict(values)
-            # move the losses between the load and Rs, keeping the damping term
-            # a1 ≈ L/Rload + C·(Rs + Resr) unchanged
-            st["Rload"] = values["Rload"] * factor
-            z2 = values["L"] / values["C"]
-            rs = values["Rs"] + z2 * (1.0 / values["Rload"] - 1.0 / st["Rload"])
-            st["Rs"] = max(rs, 1e-3 * math.sqrt(z2))
-            ex = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()} if extra else None
-            v2, n2, j2, c2, ok2, msg2 = fit_log_parameters(residual, st, free, fixed, ex)
-            total2 = c2 * dof
-            if total2 < best_total - 1e-6 * max(best_total, 1.0):
-                alternatives.append(values)
-                values, ident, ok, msg, best_total = v2, identify(j2, n2, c2), ok2, msg2, total2
-            elif total2 - best_total < 4.0:
-                alternatives.append(v2)
-        alternatives = [a for a in alternatives if _distinct(a, values, ident)]
-    return values, ident, fixed, folded, warnings, ok, msg, alternatives
-
-
-def _unpinned_jacobian(residual, values, pin, names, extra):
-    """Jacobian in (pin, names…) at the solution: log-parts, raw extras."""
-    from benchfit.fit.identify import numeric_jacobian
-
-    all_names = (pin,) + tuple(names)
-    extra = extra or {}
-
-    def at(z):
-        v = dict(values)
-        for n, x in zip(all_names, z):
-            v[n] = float(x) if n in extra else float(math.exp(x))
-        return residual(v)
-
-    z0 = np.array([float(values[n]) if n in extra else math.log(values[n]) for n in all_names])
-    return all_names, numeric_jacobian(at, z0)
-
-
-def _distinct(a: Mapping[str, float], b: Mapping[str, float], ident: Identification) -> bool:
-    """True when two solutions differ by more than 3 standard errors (or 5 %) in some part."""
-    for j, n in enumerate(ident.names):
-        if n not in PARAMETER_NAMES:
-            continue
-        sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
-        if abs(math.log(a[n]) - math.log(b[n])) > max(3 * sd, 0.05):
-            return True
-    return False
-
-
-def ambiguity(values: Mapping[str, float], ident: Identification,
-              alternatives: list[dict[str, float]]) -> tuple[Identification, list[str]]:
-    """Mark the parts that differ between equally good solutions as undetermined; warn."""
-    from dataclasses import replace
-
-    from benchfit.units import format_quantity
-
-    if not alternatives:
-        return ident, []
-    bad: list[str] = []
-    cov = ident.cov_log.copy()
-    for j, n in enumerate(ident.names):
-        if n not in PARAMETER_NAMES:
-            continue
-        sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
-        spread = max(abs(math.log(a[n]) - math.log(values[n])) for a in alternatives)
-        if spread > max(3 * sd, 0.05):
-            bad.append(n)
-        elif spread > 3 * sd:  # a small but significant difference: widen the uncertainty
-            cov[j, j] += (spread / 2) ** 2
-    ident = replace(ident, cov_log=cov)
-    if not bad:
-        return ident, []
-    alt = alternatives[0]
-
-    def describe(v):
-        return ", ".join(f"{n} = {format_quantity(v[n], display_unit(n), 3)}" for n in bad)
-
-    target = "Rload" if "Rload" in bad else bad[-1]
-    msg = (f"{', '.join(bad)}: two solutions fit these data equally well ({describe(values)}; or "
-           f"{describe(alt)}) — measure {target} and pass --fix {target}=…")
-    und = tuple(n for n in ident.names if n in set(ident.undetermined) | set(bad))
-    return replace(ident, undetermined=und), [msg]
 
 
 def assemble(cap, method: str, values: dict[str, float], ident: Identification,
