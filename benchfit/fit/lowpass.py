@@ -165,7 +165,14 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
         params[n] = FitParameter(0.0, None, False, PARAMETER_UNITS[n])
     z0 = math.sqrt(values["L"] / values["C"])
     high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
-    und_plain = tuple(n for n in ident.undetermined if not any(n in w.split(":")[0] for w in amb_warn))
+    named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
+    und_plain = tuple(n for n in ident.undetermined if n not in named)
+    if amb_warn and und_plain and not {"L", "C"} <= set(und_plain):
+        # these move together with the parts of the two solutions: fixing the load settles them
+        amb_warn.append(f"{', '.join(und_plain)}: not determined by these data either (they shift "
+                        "with the two solutions above) — fixing Rload usually settles them; otherwise "
+                        f"measure {und_plain[0]} and pass --fix {und_plain[0]}=…")
+        und_plain = ()
     warn = list(warnings) + amb_warn + undetermined_warning(und_plain, high_z)
     if not success:
         warn.append(f"fit: the optimiser did not report convergence ({message}) — check the "
