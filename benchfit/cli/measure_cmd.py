@@ -116,7 +116,8 @@ def render_channel_rows(ch: dict[str, Any]) -> list[tuple[str, str, str]]:
     h = ex.get("harmonics_h")
     rows = [
         ("frequency", _num(ch["frequency_hz"], "Hz", ch["frequency_u_hz"]),
-         "fit of 1…H"),
+         "edges (IEEE 181 period)" if str(ex.get("frequency_method", "")).startswith("edge")
+         else "fit of harmonics 1…H"),
         ("fundamental amplitude", _num(ch["amplitude"], unit, ex.get("amplitude_u")), "peak"),
         ("DC level", _num(ch["vdc"], unit, ex.get("vdc_u") if ch["frequency_hz"] else None),
          "mean over whole periods"),

@@ -144,6 +144,11 @@ class PulseResult:
     undershoot_pct: float | None = None
     period_s: float | None = None
     n_periods: int = 0
+    #: period from a least-squares line through every 50 % instant (rising and falling edges
+    #: share the slope), and its standard uncertainty from the residual scatter; None with
+    #: fewer than two whole periods
+    edge_period_s: float | None = None
+    edge_period_u_s: float | None = None
     n_rising: int = 0
     n_falling: int = 0
     noise_rms: float | None = None
@@ -424,6 +429,34 @@ def _mean_u(v: np.ndarray) -> tuple[float | None, float | None]:
     return float(np.mean(v)), u
 
 
+def edge_period(rising: np.ndarray, falling: np.ndarray) -> tuple[float, float] | None:
+    """Period from the 50 % instants of a two-level wave, with its standard uncertainty.
+
+    Fits ``t = a_rise·[rising] + a_fall·[falling] + T·j`` by least squares, j being the cycle
+    index of each instant: the IEEE 181 period (interval between same-polarity 50 % instants)
+    estimated from every edge at once. The uncertainty comes from the residual scatter, so it
+    includes edge jitter and the sampling grid's quantisation of sharp edges, which a harmonic
+    model of a square cannot see. Instants in samples; returns (T, u(T)) in samples, or None
+    with fewer than 2 rising and 2 falling instants (no residual degree of freedom).
+    """
+    rising = np.asarray(rising, dtype=float)
+    falling = np.asarray(falling, dtype=float)
+    if rising.size < 2 or falling.size < 2 or rising.size + falling.size < 5:
+        return None
+    t = np.concatenate([rising, falling])
+    d = np.zeros((t.size, 3))
+    d[:rising.size, 0] = 1.0
+    d[rising.size:, 1] = 1.0
+    d[:rising.size, 2] = np.arange(rising.size)
+    d[rising.size:, 2] = np.arange(falling.size)
+    beta, *_ = np.linalg.lstsq(d, t, rcond=None)
+    resid = t - d @ beta
+    dof = t.size - 3
+    s2 = float(resid @ resid) / dof
+    cov = s2 * np.linalg.inv(d.T @ d)
+    return float(beta[2]), math.sqrt(max(float(cov[2, 2]), 0.0))
+
+
 def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | None = None,
                      compensate: bool = True) -> PulseResult:
     """IEEE 181 pulse parameters of a two-level wave, compensating AC-coupling droop.
@@ -477,6 +510,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     rise, rise_u = _mean_u((e.t90[rise_idx] - e.t10[rise_idx]) / fs)
     fall, fall_u = _mean_u((e.t10[fall_idx] - e.t90[fall_idx]) / fs)
     duty = duty_u = period = None
+    edge_t = edge_u = None
     n_periods = 0
     if rise_idx.size and rise_idx[0] + 2 < e.t50.size:
         seq = e.t50[rise_idx[0]:]
@@ -489,6 +523,18 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
             if n_periods > 1:
                 duty_u = 100.0 * float(np.std(high / per, ddof=1) / math.sqrt(n_periods))
             period = float(np.sum(per)) / n_periods / fs
+        if n_periods >= 2:
+            ep = edge_period(r, f)
+            if ep is not None:
+                edge_t, edge_u = ep[0] / fs, ep[1] / fs
+                edges_s = [v for v in (rise, fall) if v is not None]
+                if edges_s and min(edges_s) < 2.0 / fs:
+                    # Edges within two samples: each 50 % instant is quantised by up to ±Ts/2
+                    # by the sampling grid. When the wave is nearly coherent with the grid that
+                    # error drifts slowly and hides in the slope, not the scatter: bound it as
+                    # a rectangular slope error of half-width Ts/n (GUM 4.3.7, Type B).
+                    u_grid = (1.0 / fs) / (n_periods * math.sqrt(3.0))
+                    edge_u = math.sqrt(edge_u ** 2 + u_grid ** 2)
     if n_periods < 1:
         warnings.append("no complete period between two rising edges — duty cycle not determined")
     over = under = None
@@ -509,7 +555,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
         two_level=True, state_low=s.low, state_high=s.high, duty_cycle_pct=duty,
         duty_cycle_u_pct=duty_u, rise_time_s=rise, rise_time_u_s=rise_u, fall_time_s=fall,
         fall_time_u_s=fall_u, overshoot_pct=over, undershoot_pct=under, period_s=period,
-        n_periods=int(n_periods), n_rising=int(rise_idx.size), n_falling=int(fall_idx.size),
+        edge_period_s=edge_t, edge_period_u_s=edge_u, n_periods=int(n_periods), n_rising=int(rise_idx.size), n_falling=int(fall_idx.size),
         noise_rms=s.noise_rms, coupling_tau_s=tau, coupling_source=source, droop_pct=droop,
         warnings=tuple(warnings),
     )

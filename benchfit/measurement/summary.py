@@ -131,6 +131,16 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     levels = signal_levels(x, fs, f)
     dist = analyse_distortion(x, fs, fit)
     pulse = pulse_parameters(x, fs, coupling_tau_s)
+    method = "multi-harmonic fit"
+    if pulse.two_level and pulse.edge_period_s and pulse.edge_period_u_s is not None:
+        # Two-level wave: its sharp edges put harmonics far above H (and, sampled without an
+        # anti-alias filter, alias them), so the residual of the harmonic fit is not white and
+        # its covariance understates the error. The IEEE 181 period from every 50 % instant
+        # carries that jitter in its own scatter: report it instead.
+        f = 1.0 / pulse.edge_period_s
+        u_fit = f * pulse.edge_period_u_s / pulse.edge_period_s
+        u_f = math.sqrt(u_fit ** 2 + (abs(f) * float(timebase_u_ppm) * 1e-6) ** 2)
+        method = "edge regression (IEEE 181 period)"
     if pulse.two_level:
         warnings.extend(pulse.warnings)
         if pulse.coupling_source == "estimated" and (pulse.droop_pct or 0.0) >= _DROOP_WARN_PCT:
@@ -170,6 +180,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         "n_periods": float(n_periods),
         "whole_periods_used": levels.whole_periods,
         "frequency_u_fit_hz": u_fit,
+        "frequency_method": method,
         "frequency_u_timebase_hz": u_tb,
         "fit_iterations": int(fit.iterations),
         "thd_u_pct": None if thd is None or dist.thd_u is None else 100.0 * dist.thd_u,
