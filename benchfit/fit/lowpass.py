@@ -166,7 +166,7 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
     z0 = math.sqrt(values["L"] / values["C"])
     high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
     named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
-    und_plain = tuple(n for n in ident.undetermined if n not in named)
+    und_plain = tuple(n for n in ident.undetermined if n not in named and n in PARAMETER_NAMES)
     if amb_warn and und_plain and not {"L", "C"} <= set(und_plain):
         # these move together with the parts of the two solutions: fixing the load settles them
         amb_warn.append(f"{', '.join(und_plain)}: not determined by these data either (they shift "
