@@ -220,6 +220,9 @@ def fit_svg(fit_result) -> str:
         fig = _new_figure(7.0, 2.3 * rows)
         grid = fig.add_gridspec(rows, 2) if has_h else fig.add_gridspec(rows, 1)
         ax_t = fig.add_subplot(grid[0, :])
+        if not c.time_s.size:
+            ax_t.text(0.5, 0.5, "no waveform kept with this result", ha="center", va="center",
+                      transform=ax_t.transAxes, color=_INK)
         if c.time_s.size:
             scale, tu = _time_unit(float(c.time_s[-1] - c.time_s[0]) if c.time_s.size > 1 else 1.0)
             ax_t.plot(c.time_s * scale, c.data, color=_INK, lw=1.0, label="data")
@@ -228,8 +231,10 @@ def fit_svg(fit_result) -> str:
             ax_t.set_xlabel(f"time ({tu})")
             ax_t.legend(loc="upper right")
         ax_t.set_ylabel("ring (baseline included)" if fit_result.method == "ringdown" else "output")
-        ax_t.set_title(f"{fit_result.model} fit ({fit_result.method}) — "
-                       f"NRMSE {fit_result.quality.nrmse:.3g}", loc="left")
+        nrmse = fit_result.quality.nrmse
+        quality = (f" — NRMSE {100 * nrmse:.3g} %" if isinstance(nrmse, (int, float)) and math.isfinite(nrmse)
+                   else "")
+        ax_t.set_title(f"{fit_result.model} fit ({fit_result.method}){quality}", loc="left")
         if has_h:
             f = c.harmonic_hz
             ax_m = fig.add_subplot(grid[1, 0])

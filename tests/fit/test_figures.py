@@ -84,3 +84,11 @@ def test_save_figure_rejects_other_types_and_plain_text_png(tmp_path):
         save_figure(fit_svg(_result("two-channel", True)), tmp_path / "f.pdf")
     with pytest.raises(BenchfitError, match="as .svg"):
         save_figure("<svg></svg>", tmp_path / "f.png")
+
+
+def test_fit_svg_of_a_result_read_back_from_json():
+    # FitResult.from_dict keeps no curves and may carry null quality figures
+    d = {"file": "x.csv", "model": "lc-lowpass", "method": "two-channel", "parameters": {},
+         "derived": {}, "correlations": {}, "quality": {"nrmse": None, "r_squared": None, "n_points": 0},
+         "warnings": []}
+    _self_contained(fit_svg(FitResult.from_dict(d)))
