@@ -176,8 +176,11 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         d = values["duty"]
         j = ident.names.index("duty")
         sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
-        text = (f"{100 * min(d, 1 - d):.2f} ± {100 * sd:.2f} %" if "duty" not in ident.undetermined
-                and sd > 0 else f"{100 * min(d, 1 - d):.1f} % (not determined)")
+        from benchfit.units import format_with_uncertainty
+
+        text = (format_with_uncertainty(100 * min(d, 1 - d), 100 * sd, "%")
+                if "duty" not in ident.undetermined and sd > 0
+                else f"{100 * min(d, 1 - d):.1f} % (not determined)")
         warnings.insert(0, f"duty: the drive's duty cycle was fitted as {text} "
                            "(or its complement; the output alone cannot tell which)")
     mk = model_phasors(values)
