@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Any, List, Optional
+from typing import Any, List, Literal, Optional, get_args
 
 import typer
 
@@ -16,8 +16,11 @@ from benchfit.cli.app import app
 
 __all__ = ["fit_command", "render_fit"]
 
-_MODELS = ("lc-lowpass", "ringdown")
-_METHODS = ("auto", "two-channel", "one-channel")
+Model = Literal["lc-lowpass", "ringdown"]
+#: the same options as benchfit.fit.lowpass.MethodOption (not imported: it would load numpy)
+MethodChoice = Literal["auto", "two-channel", "one-channel"]
+_MODELS = get_args(Model)
+_METHODS = get_args(MethodChoice)
 
 _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a capture.
 

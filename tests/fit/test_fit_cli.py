@@ -134,3 +134,12 @@ def test_help_has_example_and_safety_note():
                          text=True, env=env, timeout=60)
     assert res.returncode == 0
     assert "--fix L=300m" in res.stdout and "Safety" in res.stdout
+
+
+def test_cli_method_choices_match_the_library():
+    from typing import get_args
+
+    from benchfit.cli.fit_cmd import MethodChoice
+    from benchfit.fit.lowpass import MethodOption
+
+    assert get_args(MethodChoice) == get_args(MethodOption)
