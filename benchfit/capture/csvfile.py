@@ -18,6 +18,9 @@ Time stamps may jitter by up to 1 % of the mean step (measured as the largest di
 time stamp from the uniform grid through the first and last ones); the mean step is used
 and the jitter is kept in metadata. Anything worse is an error naming the line.
 
+The unit vocabulary, header units and preamble hints live in the pure module
+:mod:`benchfit.capture.csvpreamble`; this module is the text layer and the reader.
+
 Every problem is a :class:`~benchfit.errors.CaptureError` with one line naming the file
 and, for data, the 1-based line number and the column's header.
 """
@@ -29,32 +32,20 @@ import io
 import math
 import os
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Literal, Sequence
+from typing import Any, Sequence
 
 import numpy as np
 
 from benchfit.capture.capture import Capture
+from benchfit.capture.csvpreamble import PreambleHints, UnitKind, parse_header_unit, read_hints, unit_kind
 from benchfit.errors import CaptureError
 
 __all__ = ["read_csv", "parse_header_unit", "UnitKind", "JITTER_LIMIT"]
 
-UnitKind = Literal["time", "volt", "rate", "other"]
-
 #: largest accepted time-stamp deviation from the uniform grid, as a fraction of the step
 JITTER_LIMIT = 0.01
-
-_TIME_PREFIX = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "n": 1e-9, "p": 1e-12}
-_VOLT_PREFIX = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "n": 1e-9, "k": 1e3, "K": 1e3}
-_RATE_PREFIX = {"": 1.0, "k": 1e3, "K": 1e3, "M": 1e6, "G": 1e9}
-_TIME_BASES = ("seconds", "second", "secs", "sec", "s")
-_TIME_WORDS = {"millisecond": 1e-3, "microsecond": 1e-6, "nanosecond": 1e-9,
-               "min": 60.0, "minute": 60.0, "minutes": 60.0, "h": 3600.0, "hour": 3600.0, "hours": 3600.0}
-_VOLT_BASES = ("volts", "volt", "v")
-_RATE_BASES = ("samples/second", "samples/sec", "samples/s", "sample/s", "sa/sec", "sa/s", "s/s", "sps", "hz")
-_OTHER_UNITS = ("a", "ma", "ua", "µa", "°c", "degc", "c", "%", "db", "dbv", "dbm", "dbfs", "w", "mw",
-                "ohm", "ω", "pa", "kpa", "hz", "v^2", "v²", "a/div", "v/div", "div", "counts", "lsb", "fs")
 
 _TIME_NAMES = {"time", "t", "times", "zeit", "temps", "tiempo", "tempo", "x", "timestamp", "elapsed",
                "elapsed time", "relative time", "rel time", "time axis", "horizontal", "seconds", "second", "sec"}
@@ -63,119 +54,8 @@ _INDEX_NAMES = {"no", "no.", "nr", "nr.", "index", "idx", "sample", "samples", "
 _NAN_TOKENS = {"nan", "-nan", "inf", "-inf", "+inf", "infinity", "-infinity", "n/a", "na", "null", "none",
                "error", "err", "-", "--", "?", "overflow", "ovl", "ol"}
 
-# preamble keys, normalised by _norm_key (lower case, letters and digits only)
-_INTERVAL_KEYS = {"sampleinterval", "sampleperiod", "samplinginterval", "samplingperiod", "xincrement",
-                  "xinc", "timestep", "timeinterval", "dt", "deltat", "interval", "secondsperpoint",
-                  "timeperpoint", "timeresolution", "sampletime", "samplingtime"}
-_RATE_KEYS = {"samplerate", "samplingrate", "samplingfrequency", "samplefrequency", "fs", "samplespersecond",
-              "srate", "acquisitionrate", "lograte", "scanrate"}
-_TIME_UNIT_KEYS = {"horizontalunits", "horizontalunit", "timeunits", "timeunit", "xunits", "xunit",
-                   "timebaseunits", "timebaseunit", "hunits", "hunit", "timeaxisunits", "timeaxisunit"}
-_VOLT_UNIT_KEYS = {"verticalunits", "verticalunit", "yunits", "yunit", "voltageunits", "voltageunit",
-                   "vunits", "vunit", "amplitudeunits", "amplitudeunit"}
-_START_KEYS = {"starttime", "xorigin", "xstart", "t0", "firsttime", "xzero", "timeoffset", "starttimes"}
-_RANGE_KEYS = {"verticalrange", "range", "inputrange", "voltagerange", "yrange", "fullscalerange", "fullscale"}
-_RANGE_MIN_KEYS = {"verticalmin", "ymin", "vmin", "rangemin", "verticalminimum", "inputmin"}
-_RANGE_MAX_KEYS = {"verticalmax", "ymax", "vmax", "rangemax", "verticalmaximum", "inputmax"}
-
-_NUMBER_RE = re.compile(r"^\s*(±|\+/-|\+-)?\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
 _COMMA_DECIMAL_RE = re.compile(r"^\s*[+-]?\d*,\d+(?:[eE][+-]?\d+)?\s*$")
 _DOT_DECIMAL_RE = re.compile(r"^\s*[+-]?\d*\.\d+(?:[eE][+-]?\d+)?\s*$")
-
-
-# --------------------------------------------------------------------------- units
-def _unit(text: str) -> tuple[UnitKind, float] | None:
-    """Kind and SI factor of a unit string (``"ms"`` → ("time", 1e-3)), or None if not a unit."""
-    u = text.strip().strip(".")
-    if not u:
-        return None
-    low = u.lower()
-    for word, factor in _TIME_WORDS.items():
-        if low in (word, word + "s"):
-            return "time", factor
-    for base in _TIME_BASES:
-        if low.endswith(base):
-            prefix = u[: len(u) - len(base)]
-            if prefix in _TIME_PREFIX:
-                return "time", _TIME_PREFIX[prefix]
-    for base in _RATE_BASES:
-        if low.endswith(base):
-            prefix = u[: len(u) - len(base)]
-            if prefix in _RATE_PREFIX:
-                return "rate", _RATE_PREFIX[prefix]
-    for base in _VOLT_BASES:
-        if low.endswith(base):
-            prefix = u[: len(u) - len(base)]
-            if prefix in _VOLT_PREFIX:
-                return "volt", _VOLT_PREFIX[prefix]
-    if low in _OTHER_UNITS or low.startswith(("°", "deg")):
-        return "other", 1.0
-    return None
-
-
-# units accepted as a bare suffix ("v_out_V", "time_ms"): seconds and volts with small prefixes only, so that
-# "Vertical Min" or "Channel A" keep their last word
-_SUFFIX_UNITS = {("time", f) for f in _TIME_PREFIX.values()} | {("volt", f) for f in _VOLT_PREFIX.values()}
-
-
-def parse_header_unit(header: str) -> tuple[str, str | None]:
-    """Split a column header into (name, unit text) — ``"CH A [mV]"`` → ``("CH A", "mV")``.
-
-    Brackets and parentheses always delimit a unit (the content may be any unit, or a
-    non-unit remark, in which case the whole header is the name). A slash or a trailing
-    ``_``/space/``-`` token counts only when it is a time or voltage unit. A header that is
-    a unit alone (``"V"``, ``"Second"``) gives an empty name.
-    """
-    h = header.strip()
-    for pattern in (r"^(.*?)\s*\[([^\[\]]*)\]\s*$", r"^(.*?)\s*\(([^()]*)\)\s*$"):
-        m = re.match(pattern, h)
-        if m:
-            inner = m.group(2).strip()
-            if not inner or inner in ("-", "1") or _unit(inner) is not None:
-                return m.group(1).strip(), inner or None
-            if re.fullmatch(r"[^\s]{1,6}", inner) and not inner.isalnum():
-                return m.group(1).strip(), inner  # e.g. "°C", "%" — an unknown unit, kept
-            return h, None
-    m = re.match(r"^(.*\S)\s*/\s*([^\s/]+)$", h)
-    if m and _unit(m.group(2)) is not None and _unit(m.group(2))[0] in ("time", "volt"):
-        return m.group(1).strip(), m.group(2)
-    m = re.match(r"^(.*?[^\s_\-])[\s_\-]+([A-Za-zµμ]+)$", h)
-    if m and _unit(m.group(2)) in _SUFFIX_UNITS:
-        return m.group(1).strip(), m.group(2)
-    if _unit(h) is not None and _unit(h)[0] in ("time", "volt"):
-        return "", h
-    return h, None
-
-
-def _norm_key(key: str) -> str:
-    return re.sub(r"[^a-z0-9]", "", key.lower())
-
-
-def _parse_value(text: str, decimal: str) -> tuple[float, str, bool] | None:
-    """(number, unit text, had ±) from a preamble value such as ``"20 µs"`` or ``"±5 V"``."""
-    t = text.strip().strip('"').strip()
-    if decimal == ",":
-        t = t.replace(",", ".")
-    m = _NUMBER_RE.match(t)
-    if not m:
-        return None
-    try:
-        value = float(m.group(2))
-    except ValueError:
-        return None
-    if not math.isfinite(value):
-        return None
-    return value, m.group(3), bool(m.group(1))
-
-
-def _numbers_and_unit(text: str, decimal: str) -> tuple[list[float], str]:
-    """All numbers in a range text (``"-5,5 V"``, ``"±2 V"``, ``"0 to 10 V"``) and the unit after them."""
-    mark = "," if decimal == "," else r"\."
-    num = rf"[+-]?(?:\d+(?:{mark}\d*)?|{mark}\d+)(?:[eE][+-]?\d+)?"
-    t = text.strip().strip('"')
-    nums = [float(x.replace(",", ".")) for x in re.findall(num, t)]
-    rest = re.sub(r"±|\+/-|\bto\b|[,;\t]", " ", re.sub(num, " ", t)).split()
-    return [x for x in nums if math.isfinite(x)], (rest[-1] if rest else "")
 
 
 # --------------------------------------------------------------------------- text layer
@@ -384,7 +264,7 @@ def _header(lines: list[str], start: int, lay: _Layout) -> tuple[list[str] | Non
     if not found:
         return None, None, None
     rows = [[c.strip().strip('"').strip() for c in _header_cells(lines[k], lay)] for k in found]
-    if len(rows) == 2 and all(not c or _unit(c) is not None for c in rows[1]):
+    if len(rows) == 2 and all(not c or unit_kind(c) is not None for c in rows[1]):
         return rows[0], rows[1], found[0]
     if K == 1 and re.search(r"[:=,;\t]\s*[-+.\d]", rows[-1][0]):
         return None, None, None  # a "key: value" line, not a header
@@ -530,71 +410,6 @@ def _parse_numbers(texts: list[str], line_no: Sequence[int], lay: _Layout, label
     return out
 
 
-@dataclass(frozen=True)
-class _Hints:
-    """What the preamble says about the time axis, the units and the vertical range."""
-
-    interval: tuple[float, str, float] | None = None   # (step in s, preamble key, rate in Hz)
-    start_time: float | None = None                    # s
-    time_unit: tuple[str, float] | None = None         # (unit text, factor to s)
-    volt_unit: tuple[str, float] | None = None         # (unit text, factor to V)
-    rails: dict[str, list[float | None]] = field(default_factory=dict)  # label → [min V, max V]
-
-
-def _read_hints(preamble: dict[str, str], decimal: str) -> _Hints:
-    """Interpret the recognised preamble keys (see the ``_*_KEYS`` sets); other keys are only kept."""
-    interval: tuple[float, str, float] | None = None
-    start_time: float | None = None
-    time_unit_hint: tuple[str, float] | None = None
-    volt_unit_hint: tuple[str, float] | None = None
-    rails: dict[str, list[float]] = {}
-    for key, value in preamble.items():
-        kname, kunit = parse_header_unit(key)
-        nk = _norm_key(kname)
-        parsed = _parse_value(value, decimal)
-        unit_text = (parsed[1] if parsed and parsed[1] else (kunit or ""))
-        unit = _unit(unit_text) if unit_text else None
-        if nk in _TIME_UNIT_KEYS:
-            u = _unit(value.strip().strip('"'))
-            if u and u[0] == "time":
-                time_unit_hint = (value.strip(), u[1])
-        elif nk in _VOLT_UNIT_KEYS:
-            u = _unit(value.strip().strip('"'))
-            if u and u[0] == "volt":
-                volt_unit_hint = (value.strip(), u[1])
-        elif parsed is None:
-            continue
-        elif (nk in _INTERVAL_KEYS or nk in _RATE_KEYS) and interval is None and parsed[0] > 0:
-            kind = unit[0] if unit else ("time" if nk in _INTERVAL_KEYS else "rate")
-            factor = unit[1] if unit else 1.0
-            if kind == "time":
-                interval = (parsed[0] * factor, key, 1.0 / (parsed[0] * factor))
-            elif kind == "rate":
-                interval = (1.0 / (parsed[0] * factor), key, parsed[0] * factor)
-        elif nk in _START_KEYS:
-            factor = unit[1] if unit and unit[0] == "time" else 1.0
-            start_time = parsed[0] * factor
-        elif (nk in _RANGE_KEYS or nk in _RANGE_MIN_KEYS or nk in _RANGE_MAX_KEYS
-              or (nk.endswith("range") and not re.search(r"time|horizontal|^x", nk))):
-            nums, rtext = _numbers_and_unit(value, decimal)
-            runit = _unit(rtext) if rtext else (_unit(kunit) if kunit else None)
-            if not nums or (runit is not None and runit[0] != "volt"):
-                continue
-            factor = runit[1] if runit else 1.0
-            label = "*" if (nk in _RANGE_KEYS or nk in _RANGE_MIN_KEYS or nk in _RANGE_MAX_KEYS) else \
-                re.sub(r"[\s_]*range\s*$", "", kname, flags=re.I).strip()
-            entry = rails.setdefault(label, [math.nan, math.nan])
-            if nk in _RANGE_MIN_KEYS:
-                entry[0] = nums[0] * factor
-            elif nk in _RANGE_MAX_KEYS:
-                entry[1] = nums[0] * factor
-            elif len(nums) >= 2:
-                entry[:] = sorted([nums[0] * factor, nums[1] * factor])
-            else:
-                entry[:] = [-abs(nums[0]) * factor, abs(nums[0]) * factor]  # "±5 V" or "5 V": symmetric
-    clean = {k: [None if math.isnan(v) else v for v in pair] for k, pair in rails.items()}
-    return _Hints(interval, start_time, time_unit_hint, volt_unit_hint, clean)
-
 
 def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, unit_row: list[str] | None,
            preamble: dict[str, str], lay: _Layout, where: str, sha256: str | None,
@@ -608,14 +423,14 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
         lay.delim, lay.delim), "csv_decimal": lay.decimal, "header_line": header_no}
     if preamble:
         meta["preamble"] = dict(preamble)
-    hints = _read_hints(preamble, lay.decimal)
+    hints = read_hints(preamble, lay.decimal)
     if hints.rails:
         meta["rails_v"] = hints.rails
     labels = list(names) if names is not None else [f"column {i + 1}" for i in range(values.shape[1])]
     kinds = [(("", None) if names is None else parse_header_unit(n)) for n in labels]
     if unit_row is not None:
         kinds = [(name, unit_row[i] or utext) for i, (name, utext) in enumerate(kinds)]
-    units = [_unit(u) if u else None for _, u in kinds]
+    units = [unit_kind(u) if u else None for _, u in kinds]
     time_col, skip = _column_roles(values, names, kinds, units, where, warnings)
     fs, t0 = _time_axis(values, line_no, time_col, labels, units, hints, sample_rate, where, warnings, meta)
 
@@ -675,7 +490,7 @@ def _column_roles(values: np.ndarray, names: list[str] | None, kinds: list[tuple
 
 
 def _time_axis(values: np.ndarray, line_no: Sequence[int], time_col: int | None, labels: list[str],
-               units: list[tuple[UnitKind, float] | None], hints: _Hints, sample_rate: float | None, where: str,
+               units: list[tuple[UnitKind, float] | None], hints: PreambleHints, sample_rate: float | None, where: str,
                warnings: list[str], meta: dict[str, Any]) -> tuple[float, float]:
     """(sample rate in Hz, time of the first sample in s) from the time column, the preamble or the caller."""
     interval = hints.interval
