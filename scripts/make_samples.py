@@ -128,7 +128,7 @@ def soundcard(x_sim: np.ndarray, seconds: float, gain_v_per_fs: float, rng, nois
 
 
 def write_wav(path: Path, data: np.ndarray, names: list[str], gains: list[float], device: str,
-              start: str, subtype: str = "PCM_16", fmt: str | None = None) -> None:
+              start: str, unit: str, subtype: str = "PCM_16", fmt: str | None = None) -> None:
     sf.write(str(path), data.T if data.ndim == 2 else data, 48_000, subtype=subtype, format=fmt)
     side = {
         "benchfit_sidecar": 1,
@@ -140,6 +140,7 @@ def write_wav(path: Path, data: np.ndarray, names: list[str], gains: list[float]
         "clip_count": 0,
         "calibration": dict(PROFILE, gain_v_per_fs=gains),
         "benchfit_version": "0.1.0",
+        "unit": unit,
     }
     path.with_suffix(".json").write_text(json.dumps(side, indent=2) + "\n")
 
@@ -195,7 +196,7 @@ def main() -> None:
         x = soundcard(out[int(0.6 * FS_SIM):], 1.0, gain, rng)
         name = f"{u.serial.lower().replace('-', '')}_output.flac"
         write_wav(OUT / name, x, ["output"], [gain], "line-in (USB audio adapter)",
-                  f"2026-11-2{k}T18:{10 + k:02d}:00Z", subtype="PCM_16", fmt="FLAC")
+                  f"2026-11-2{k}T18:{10 + k:02d}:00Z", u.serial, subtype="PCM_16", fmt="FLAC")
         info[name] = u
 
     # --- HC-03: as found (timer 50.40 Hz, out of spec) and as left (trimmed to 50.01 Hz) -------
@@ -205,7 +206,7 @@ def main() -> None:
         _, _, out = simulate(u, 2.6)
         x = soundcard(out[int(0.6 * FS_SIM):], 2.0, gain, rng)
         write_wav(OUT / f"hc03_{tag}.wav", x, ["output"], [gain], "line-in (USB audio adapter)",
-                  "2026-11-27T19:02:00Z" if tag == "asfound" else "2026-11-27T19:20:00Z")
+                  "2026-11-27T19:02:00Z" if tag == "asfound" else "2026-11-27T19:20:00Z", u.serial)
         info[f"hc03_{tag}.wav"] = u
 
     # --- HC-03: the timer output on the scope (European CSV dialect) -------------------------
@@ -237,7 +238,7 @@ def main() -> None:
     _, _, out = simulate(u, 1.6)
     x = soundcard(out[int(0.6 * FS_SIM):], 1.0, gain, rng)
     write_wav(OUT / "hc07_output.wav", x, ["output"], [gain], "line-in (USB audio adapter)",
-              "2026-11-28T17:45:00Z")
+              "2026-11-28T17:45:00Z", u.serial)
     info["hc07_output.wav"] = u
 
     for name, u in info.items():
