@@ -391,6 +391,11 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
     start = start_parts(w0, q, b0, fix, guess)
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix)
+    if cap.units[di] != cap.units[ri] or "FS" in (cap.units[di], cap.units[ri]):
+        warnings = list(warnings) + [
+            f"{cap.channel_names[ri]}: drive and output are not both calibrated in volts "
+            f"({cap.units[di]}, {cap.units[ri]}), so a gain difference between the inputs looks like "
+            "loss in the load — calibrate the inputs, or fix Rload (--fix Rload=…)"]
     h_model = transfer(fk, _parts(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs

@@ -212,3 +212,10 @@ def test_time_domain_fits_a_non_periodic_drive():
     assert r.parameters["C"].value == pytest.approx(33e-6, rel=1e-3)
     assert r.parameters["Rs"].value == pytest.approx(20.0, rel=1e-3)
     assert r.curves.harmonic_hz.size > 4  # the cross-spectral H used for the start is kept
+
+
+def test_uncalibrated_two_channel_capture_is_flagged():
+    cap = _two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=11, seconds=0.5)
+    fs_units = Capture(cap.samples, FS, cap.channel_names, ("FS", "FS"), source="card.wav")
+    r = fit_lowpass(fs_units, fix={"L": 0.3, "Rload": 10e3})
+    assert any("not both calibrated" in w and "--fix Rload" in w for w in r.warnings)
