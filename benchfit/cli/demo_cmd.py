@@ -1,1 +1,178 @@
-"""(commands registered here by their module owner)"""
+"""``benchfit demo``: the whole job on the bundled sample captures, as a guided tour.
+
+Every step is a real benchfit command, printed as you would type it and then run in this
+process, so the demo doubles as a tour of the command line. The scenario and the captures are
+synthetic (sample_captures/README.md).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import shlex
+import time
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from benchfit.cli.app import app
+
+#: timer parts of the demo scenario's hum-check box (invented): RA 1 kΩ, RB 13.7 kΩ, C1 1 µF
+_TIMER = ("--ra", "1k", "--rb", "13.7k", "--c1", "1u", "--supply", "12")
+
+
+def _samples_dir(option: Optional[Path]) -> Path:
+    from benchfit.cli.common import fail
+
+    if option is not None:
+        where = option
+    else:
+        import benchfit
+
+        where = Path(benchfit.__file__).resolve().parent.parent / "sample_captures"
+    if not (where / "hc_spec.toml").is_file():
+        fail(f"{where}: the sample captures are not there — run the demo from a benchfit checkout "
+             "(pip install -e .) or pass --samples DIR")
+    return where
+
+
+class _Tour:
+    """Prints each command, runs it in-process, and keeps going when a step fails."""
+
+    def __init__(self, out_dir: Path) -> None:
+        from benchfit.cli import get_app
+
+        self.command = typer.main.get_command(get_app())
+        self.out_dir = out_dir
+        self.failed: list[str] = []
+
+    def section(self, title: str, text: str = "") -> None:
+        from benchfit.cli.common import stdout
+
+        stdout.rule(title, style="bold")
+        if text:
+            stdout.print(text, markup=False, highlight=False)
+
+    def run(self, args: list[str], *, save_stdout: Path | None = None, expect: tuple[int, ...] = (0,)) -> int:
+        """Run ``benchfit ARGS``; print it first; optionally keep its stdout in a file."""
+        from benchfit.cli.common import stderr, stdout
+        from benchfit.errors import BenchfitError
+
+        shown = "benchfit " + " ".join(shlex.quote(a) for a in args)
+        if save_stdout is not None:
+            shown += f" > {shlex.quote(str(save_stdout))}"
+        stdout.print(f"\n$ {shown}", style="bold cyan", markup=False, highlight=False)
+        buffer = io.StringIO()
+        code = 0
+        try:
+            with contextlib.redirect_stdout(buffer) if save_stdout is not None else contextlib.nullcontext():
+                result = self.command.main(args=args, prog_name="benchfit", standalone_mode=False)
+            code = int(result or 0) if isinstance(result, int) else 0
+        except BenchfitError as e:
+            stderr.print(f"error: {e}", markup=False, highlight=False)
+            code = e.exit_code
+        except SystemExit as e:  # typer.Exit inside a command
+            code = int(e.code or 0)
+        except Exception as e:  # a click usage error or a bug: report it, keep touring
+            import click
+
+            if isinstance(e, click.exceptions.Exit):
+                code = e.exit_code
+            elif isinstance(e, click.ClickException):
+                stderr.print(f"error: {e.format_message()}", markup=False)
+                code = e.exit_code
+            else:
+                raise
+        if save_stdout is not None:
+            save_stdout.write_text(buffer.getvalue(), encoding="utf-8")
+            stdout.print(f"(saved {save_stdout})", style="dim", markup=False)
+        if code not in expect:
+            self.failed.append(f"{shown} (exit {code})")
+        return code
+
+
+@app.command("demo", help=(
+    "Run the whole job on the bundled sample captures: measure, fit (two-channel, one-channel, "
+    "ring-down), a calibration report per unit (one fails), the log and its batch statistics, "
+    "and trim advice. Writes everything to --out.\n\n"
+    "\b\nExample:\n  benchfit demo --out benchfit-demo"))
+def demo_command(
+    out: Path = typer.Option(Path("benchfit-demo"), "--out", help="Folder for reports, log and figures."),
+    samples: Optional[Path] = typer.Option(None, "--samples", help="Folder of the sample captures "
+                                           "(default: sample_captures/ of this checkout)."),
+    jobs: Optional[int] = typer.Option(None, "--jobs", help="Worker processes for the batch steps "
+                                       "(default: the CPU count)."),
+) -> None:
+    from benchfit.cli.common import fail, stdout
+
+    started = time.perf_counter()
+    src = _samples_dir(samples)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        (out / "reports").mkdir(exist_ok=True)
+    except OSError as e:
+        fail(f"{out}: cannot create the demo folder ({e.strerror}) — choose another --out")
+    log = str(out / "demo-log.sqlite")
+    spec = str(src / "hc_spec.toml")
+    s = lambda name: str(src / name)  # noqa: E731
+    job_args = [] if jobs is None else ["--jobs", str(jobs)]
+    tour = _Tour(out)
+
+    tour.section("benchfit demo", (
+        "Scenario (invented): a makerspace group builds 'hum-check' boxes HC-01 … HC-12, each a\n"
+        "555-style astable (12 V) whose square is divided down and filtered by an L-C low-pass\n"
+        "(two 150 mH chokes in series, a 33 µF bank) into a 50 Hz sine across 10 kΩ.\n"
+        "Spec: 50.00 Hz ± 0.25 Hz, THD ≤ 5 %, 1.0–1.6 V rms. All captures are synthetic.\n"
+        "Safety: a sound card's line-in takes about 1–2 V peak — use an attenuator and a\n"
+        "DC-blocking capacitor, never connect mains; see README 'Safety cautions'."))
+
+    tour.section("1. Measure", "A scope CSV of HC-03's timer (European dialect: ';' and decimal comma),\n"
+                 "then the sound-card recordings of the batch (WAV/FLAC with calibration sidecars).")
+    tour.run(["measure", s("hc03_timer_scope.csv"), "--harmonics", "10"])
+    tour.run(["measure", *sorted(str(p) for p in src.glob("hc0[1-7]_*.flac")), s("hc07_output.wav"),
+              "--json", *job_args], save_stdout=out / "batch_measurements.jsonl")
+
+    tour.section("2. Fit the effective parts",
+                 "Two-channel (drive and output on the scope), with the chokes' inductance and the\n"
+                 "load known; then one-channel (the sound card sees only the output); then a ring-down.")
+    tour.run(["fit", s("hc03_drive_output_scope.csv"), "--model", "lc-lowpass",
+              "--fix", "L=300m", "--fix", "Rload=10k", "--plot", str(out / "hc03_two_channel_fit.svg")])
+    tour.run(["fit", s("hc03_asleft.wav"), "--model", "lc-lowpass", "--fix", "L=300m", "--fix", "Rload=10k"])
+    tour.run(["fit", s("hc05_ringdown_scope.csv"), "--model", "ringdown"])
+
+    tour.section("3. Calibration reports",
+                 "HC-03 was found running at 50.40 Hz and trimmed; HC-07 has a wrong choke and fails on THD.\n"
+                 "Exit code 1 marks a failing unit, so scripts can gate on it.")
+    tour.run(["report", s("hc03_asleft.wav"), "--as-found", s("hc03_asfound.wav"), "--unit", "HC-03",
+              "--spec", spec, "--operator", "demo", "--out", str(out / "reports"), "--log", log])
+    tour.run(["report", *sorted(str(p) for p in src.glob("hc0[1-7]_*.flac")), s("hc07_output.wav"),
+              "--each", "--spec", spec, "--operator", "demo", "--out", str(out / "reports"), "--log", log,
+              *job_args], expect=(1,))
+
+    tour.section("4. The log and batch statistics")
+    tour.run(["log", "list", "--log", log])
+    for quantity in ("frequency_hz", "thd_pct", "vrms"):
+        tour.run(["log", "stats", quantity, "--spec", spec, "--log", log])
+
+    tour.section("5. Trim advice",
+                 "HC-07: fit with its capacitor bank measured (33 µF) to find the effective inductance,\n"
+                 "then ask which capacitance brings the tank back to 50 Hz. HC-03 as found: the new RB.")
+    fit_json = out / "hc07_fit.json"
+    tour.run(["fit", s("hc07_output.wav"), "--model", "lc-lowpass", "--fix", "C=33u", "--fix", "Rload=10k",
+              "--json"], save_stdout=fit_json)
+    tour.run(["design", "trim", "--fit", str(fit_json), "--target", "50", "--bank", "22u,10u,1u"])
+    tour.run(["design", "trim", "--target", "50", "--timer-frequency", "50.40", *_TIMER])
+
+    elapsed = time.perf_counter() - started
+    reports = sorted((out / "reports").glob("*.html"))
+    tour.section("Done")
+    stdout.print(f"{len(reports)} reports in {out / 'reports'} (and their JSON twins); log {log}; "
+                 f"{elapsed:.1f} s.", markup=False)
+    if reports:
+        stdout.print(f"Open them with:  python3 -m webbrowser -t {shlex.quote(reports[0].resolve().as_uri())}"
+                     if len(reports) == 1 else
+                     f"Open them with:  python3 -m http.server -d {shlex.quote(str((out / 'reports').resolve()))} "
+                     "8000   then browse http://localhost:8000/", markup=False)
+    if tour.failed:
+        fail(f"demo: {len(tour.failed)} step(s) did not do what was expected: {'; '.join(tour.failed)}")

@@ -361,7 +361,8 @@ def _read_fit(path: Path):
 @design_app.command("trim", short_help="The part change that brings a fitted unit to target.", help="From a unit's fit, the one part change that brings it to the target "
                     "frequency, with the predicted result." + _TRIM_EXAMPLE)
 def trim_command(
-    fit: Path = typer.Option(..., "--fit", help="JSON from 'benchfit fit --model lc-lowpass --json'."),
+    fit: Optional[Path] = typer.Option(None, "--fit", help="JSON from 'benchfit fit --model lc-lowpass "
+                                       "--json' (filter advice). Leave out for timer advice only."),
     target: str = typer.Option(..., "--target", help="Wanted frequency (Hz)."),
     series: str = typer.Option("E12", "--series", help="Series for capacitors to add."),
     max_parts: int = typer.Option(2, "--max-parts", help="At most this many capacitors to add (1 to 3)."),
@@ -388,7 +389,10 @@ def trim_command(
     from benchfit.units import format_quantity as fq
     from benchfit.units import format_with_uncertainty as fu
 
-    fit_result = _read_fit(fit)
+    if fit is None and timer_frequency is None:
+        fail("design trim: give --fit FIT.json (filter advice) and/or --timer-frequency with --ra, --rb, "
+             "--c1 (timer advice)")
+    fit_result = None if fit is None else _read_fit(fit)
     timer_args = {"--ra": ra, "--rb": rb, "--c1": c1}
     if timer_frequency is not None and any(v is None for v in timer_args.values()):
         missing = ", ".join(k for k, v in timer_args.items() if v is None)
