@@ -55,7 +55,7 @@ def _captures():
     return parts, ring_parts, two, one, rd
 
 
-def run(repeats: int = 3) -> list[dict]:
+def run(repeats: int = 5) -> list[dict]:
     from benchfit.fit.circuits import second_order
     from benchfit.fit.lowpass import fit_lowpass
     from benchfit.fit.ringdown import fit_ringdown
