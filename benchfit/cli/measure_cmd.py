@@ -1,8 +1,10 @@
 """``benchfit measure``: frequency, levels, pulse parameters and distortion of capture files.
 
-The per-file work is the top-level function :func:`measure_file` (path and options in, a
-plain dict out) so that it can be sent to a process pool. Only typer and the standard
-library are imported at module level.
+Many files or folders are measured in worker processes (``--jobs``); the per-file job is
+:func:`benchfit.cli.batch.measure_job` (:func:`measure_file` here is its one-file form).
+``--log PATH`` / ``--log-default`` append each measured file to the measurement log, from
+this process only, as results arrive. Only typer and the standard library are imported at
+module level.
 """
 
 from __future__ import annotations
@@ -25,7 +27,18 @@ benchfit measure HC-03_as-left.wav
 
 benchfit measure HC-*.wav --channel output --json > batch.jsonl
 
+benchfit measure captures/ --recursive --jobs 2 --log-default
+
 benchfit measure scope_export.csv --sample-rate 100k --harmonics 20
+
+Several files or a folder: files are measured at the same time in worker processes (--jobs)
+and each result is printed as soon as its file is done, so the order can differ from the
+input (each JSON object names its "file"). A file that cannot be measured gives one
+"error: <file>: …" line on stderr and the others go on; the exit status is then 2.
+
+Logging is off unless asked for: --log PATH appends to that log file, --log-default to
+$BENCHFIT_LOG or, when that is unset, benchfit/log.sqlite in the user data directory.
+See the runs with "benchfit log list".
 
 Uncertainties are standard uncertainties (k = 1). THD is relative to the fundamental over
 harmonics 2…H (H = --harmonics, default 10, or the highest order below Nyquist); THD+N
@@ -59,12 +72,10 @@ def measure_file(path: str | Path, *, channels: list[str] | None = None, harmoni
     dict
         ``Measurement.to_dict(full=True)``: the JSON contract plus each channel's ``extra``.
     """
-    from benchfit.capture.load import load
-    from benchfit.measurement.summary import measure
+    from benchfit.cli.batch import measure_job
 
-    cap = load(path, sample_rate=sample_rate)
-    result = measure(cap, harmonics=harmonics, channels=list(channels) if channels else None)
-    return result.to_dict(full=True)
+    out = measure_job(path, channels=channels, harmonics=harmonics, sample_rate=sample_rate)
+    return out["measurement"]
 
 
 def _contract(d: dict[str, Any]) -> dict[str, Any]:
@@ -186,51 +197,125 @@ def _render(d: dict[str, Any], console) -> None:
 @app.command("measure", help="Measure frequency, levels, duty cycle, edges and distortion of capture files."
              + _EXAMPLE)
 def measure_command(
-    files: List[Path] = typer.Argument(..., help="Capture file(s): WAV, FLAC or CSV.", show_default=False),
+    files: List[Path] = typer.Argument(
+        ..., show_default=False,
+        help="Capture files (WAV, FLAC, OGG, AIFF or CSV) and/or folders. A folder gives its files ending in "
+             ".wav .flac .csv .tsv .txt .ogg .aiff, sorted by name (sidecar .json files are not captures)."),
     channel: Optional[List[str]] = typer.Option(
         None, "--channel", "-c", help="Channel name or 1-based number to measure (repeatable; default all)."),
     as_json: bool = typer.Option(False, "--json",
-                                 help="Print one JSON object per file (one line each) instead of tables."),
+                                 help="Print one JSON object per file (one line each, in the order the files "
+                                      "finish) instead of tables."),
     harmonics: int = typer.Option(10, "--harmonics", min=1,
                                   help="Highest harmonic order H: THD over harmonics 2…H (default 10), "
                                        "limited to orders below Nyquist."),
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", help="Sample rate for a CSV without a time column, e.g. 48000 or 100k (Hz)."),
+    recursive: bool = typer.Option(False, "--recursive", "-r", help="Also take capture files from sub-folders."),
+    jobs: Optional[int] = typer.Option(
+        None, "--jobs", "-j", min=1, show_default=False,
+        help="Files measured at once, each in its own worker process (default: the number of CPUs); "
+             "--jobs 1 measures one after the other in this process."),
+    log: Optional[Path] = typer.Option(
+        None, "--log", show_default=False,
+        help="Append each measured file as a run (command \"measure\") to this measurement log file; "
+             "created when missing. Without --log or --log-default nothing is logged."),
+    log_default: bool = typer.Option(
+        False, "--log-default",
+        help="Append each measured file to the default measurement log: $BENCHFIT_LOG when set, else "
+             "benchfit/log.sqlite in the user data directory."),
 ) -> None:
-    from benchfit.cli.common import fail, parse_value, print_json, stdout
-    from benchfit.errors import BenchfitError
+    from benchfit.cli.batch import collect_captures, default_jobs
+    from benchfit.cli.common import fail, parse_value
 
+    if log is not None and log_default:
+        fail("--log and --log-default: give only one — --log PATH names the log, --log-default uses "
+             "$BENCHFIT_LOG or the user data directory")
+    log_path = None
+    if log is not None or log_default:
+        from benchfit.log.store import resolve_log_path
+
+        if log is not None and not str(log).strip():
+            fail("--log: the path is empty — give the log file, or use --log-default")
+        log_path = resolve_log_path(log)
     rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
-    opts = {"channels": channel or None, "harmonics": harmonics, "sample_rate": rate}
-    if len(files) == 1:
-        d = measure_file(files[0], **opts)
-        if as_json:
-            print_json(_contract(d))
-        else:
-            _render(d, stdout)
+    opts = {"channels": list(channel) if channel else None, "harmonics": harmonics, "sample_rate": rate,
+            "with_capture": log_path is not None}
+    paths, notes = collect_captures(files, recursive=recursive)
+    if not paths:
+        fail(notes[0] if len(notes) == 1 else "; ".join(notes))
+    single = len(files) == 1 and not files[0].is_dir()
+    if single:
+        _measure_single(paths[0], opts, as_json, log_path)
         return
+    _measure_batch(paths, notes, opts, as_json, log_path, jobs or default_jobs())
 
-    from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-    err_console = Console(stderr=True, highlight=False)
-    errors: list[str] = []
-    with Progress(TextColumn("measuring"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
-                  TextColumn("{task.description}"), console=err_console, transient=True) as progress:
-        task = progress.add_task("", total=len(files))
-        for path in files:
-            progress.update(task, description=str(path.name))
-            try:
-                d = measure_file(path, **opts)
-            except BenchfitError as e:
-                errors.append(str(e))
-                err_console.print(f"error: {e}", markup=False)
-                progress.advance(task)
-                continue
-            if as_json:
-                print_json(_contract(d))
-            else:
-                _render(d, stdout)
-            progress.advance(task)
-    if errors:
-        fail(f"{len(errors)} of {len(files)} files could not be measured — see the messages above")
+def _log_measurement(log_path: Path, out: dict[str, Any]) -> int:
+    """Append one measured file to the log as a ``measure`` run; returns the run id."""
+    from benchfit.log.store import append_run
+
+    cap, d = out["capture"], out["measurement"]
+    return append_run(log_path, command="measure", unit=cap.get("unit"),
+                      captures=[{"path": cap["path"], "sha256": cap["sha256"], "metadata": cap["metadata"]}],
+                      measurements=[d], details={"file": d["file"]})
+
+
+def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: Path | None) -> None:
+    from benchfit.cli.common import print_json, stdout
+
+    if as_json:
+        print_json(_contract(out["measurement"]))
+        return
+    _render(out["measurement"], stdout)
+    if run_id is not None:
+        stdout.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)
+        stdout.print()
+
+
+def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: Path | None) -> None:
+    """One file, in this process: a failure is the command's one-line error (exit 2)."""
+    from benchfit.cli.batch import measure_job
+    from benchfit.cli.common import stderr
+
+    out = measure_job(path, **opts)
+    run_id = _log_measurement(log_path, out) if log_path is not None else None
+    _show(out, as_json, run_id, log_path)
+    if as_json and run_id is not None:
+        stderr.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)
+
+
+def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as_json: bool,
+                   log_path: Path | None, jobs: int) -> None:
+    """Many files in worker processes; results and error lines stream out as files finish."""
+    from benchfit.cli.batch import measure_job, progress_bar, run_jobs
+    from benchfit.cli.common import fail
+
+    failed: list[str] = []
+    run_ids: list[int] = []
+    with progress_bar("measuring", len(paths)) as progress:
+        task = progress.add_task("", total=len(paths))
+        for note in notes:
+            progress.console.print(f"note: {note}", markup=False)
+
+        def on_outcome(outcome) -> None:
+            progress.update(task, advance=1, description=outcome.path.name)
+            if not outcome.ok:
+                failed.append(outcome.error)
+                progress.console.print(f"error: {outcome.error}", markup=False)
+                return
+            run_id = None
+            if log_path is not None:
+                run_id = _log_measurement(log_path, outcome.result)
+                run_ids.append(run_id)
+            _show(outcome.result, as_json, run_id, log_path)
+
+        run_jobs(measure_job, paths, jobs=jobs, kwargs=opts, on_outcome=on_outcome)
+    if log_path is not None and as_json and run_ids:
+        from benchfit.cli.common import stderr
+
+        stderr.print(f"logged {len(run_ids)} run(s) (ids {min(run_ids)}–{max(run_ids)}) in {log_path}",
+                     markup=False, highlight=False)
+    if failed:
+        fail(f"{len(failed)} of {len(paths)} files could not be measured — see the lines above; "
+             "the others were measured")

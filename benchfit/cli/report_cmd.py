@@ -1,8 +1,14 @@
 """``benchfit report``: measure (and fit) one unit's captures, judge them against a spec,
 write an HTML calibration record with its JSON twin, and append the run to the log.
 
-Exit codes: 0 the unit passes (including a conditional pass), 1 it fails (fail,
-conditional fail or a quantity not measured), 2 bad input.
+With ``--each`` every capture file is its own unit (a batch of built units, one report
+each), run in worker processes (``--jobs``); the serial of each unit comes from the
+capture's sidecar ``"unit"`` key when present, else from the file name stem
+(``HC-07.wav`` → ``HC-07``). See :func:`benchfit.cli.batch.unit_serial`.
+
+Exit codes: 0 the unit(s) pass (including a conditional pass), 1 a unit fails (fail,
+conditional fail or a quantity not measured), 2 bad input — in a batch, 2 when any capture
+could not be reported (it wins over 1).
 """
 
 from __future__ import annotations
@@ -19,6 +25,13 @@ Example:
 
   benchfit report hc07_left.wav --as-found hc07_found.wav --unit HC-07 \\
       --spec sample_captures/hc_spec.toml --operator "R. Okafor" --out reports/
+
+A batch of units, one report each (serial from each sidecar's "unit" key, else the file name):
+
+  benchfit report captures/ --each --spec sample_captures/hc_spec.toml --out reports/ --jobs 2
+
+Exit status 1 when a unit fails its spec; 2 when a capture could not be reported (in a
+batch the others are still reported, and 2 wins over 1).
 """
 
 _FIT_NAMES = ("L", "C", "Rs", "Resr", "Rload")
@@ -27,11 +40,24 @@ _FIT_NAMES = ("L", "C", "Rs", "Resr", "Rload")
 @app.command("report", help="Judge a built unit against its spec and write an HTML + JSON calibration record."
              + _EXAMPLE, short_help="Judge a built unit against its spec; write an HTML + JSON calibration record.")
 def report_command(
-    captures: List[Path] = typer.Argument(..., help="As-left capture file(s): WAV, FLAC or CSV."),
-    unit: str = typer.Option(..., "--unit", help="Serial of the unit under test, e.g. HC-07."),
+    captures: List[Path] = typer.Argument(
+        ..., help="As-left capture files (WAV, FLAC, OGG, AIFF or CSV) and/or folders. A folder gives its "
+                  "files ending in .wav .flac .csv .tsv .txt .ogg .aiff, sorted by name."),
+    unit: Optional[str] = typer.Option(None, "--unit", help="Serial of the unit under test, e.g. HC-07 "
+                                                            "(required without --each)."),
     spec: Path = typer.Option(..., "--spec", help="Spec TOML file (limits, conditions, decision rule)."),
+    each: bool = typer.Option(False, "--each",
+                              help="Every capture is its own unit, with its own report. The serial is the "
+                                   "sidecar's \"unit\" key when present, else the file name without its "
+                                   "extension (HC-07.wav → HC-07)."),
+    recursive: bool = typer.Option(False, "--recursive", "-r", help="Also take capture files from sub-folders."),
+    jobs: Optional[int] = typer.Option(
+        None, "--jobs", "-j", min=1, show_default=False,
+        help="With --each: units judged at once, each in its own worker process (default: the number of "
+             "CPUs); --jobs 1 works in this process."),
     as_found: Optional[List[Path]] = typer.Option(None, "--as-found",
-                                                  help="Capture made before adjustment (repeatable)."),
+                                                  help="Capture made before adjustment (repeatable; "
+                                                       "not with --each)."),
     operator: Optional[str] = typer.Option(None, "--operator", help="Who made the measurement."),
     out: Path = typer.Option(Path("."), "--out", help="Directory for the report files."),
     model: Optional[str] = typer.Option(None, "--model",
@@ -46,31 +72,126 @@ def report_command(
                                            "directory's benchfit/log.sqlite)."),
     no_log: bool = typer.Option(False, "--no-log", help="Do not append this run to the measurement log."),
     no_figures: bool = typer.Option(False, "--no-figures", help="Leave the figures out (faster)."),
-    as_json: bool = typer.Option(False, "--json", help="Print the paths and verdict as one JSON object."),
+    as_json: bool = typer.Option(False, "--json", help="Print the paths and verdict as one JSON object "
+                                                       "(with --each: one line per unit as it finishes)."),
 ) -> None:
-    from benchfit.cli.common import parse_assignments, print_json, stderr, stdout
+    from benchfit.cli.batch import collect_captures
+    from benchfit.cli.common import fail, parse_assignments
     from benchfit.log.store import resolve_log_path
-    from benchfit.report.assemble import FitOptions, run_unit
+    from benchfit.report.assemble import FitOptions
 
     fix_values = parse_assignments(fix, _FIT_NAMES, "--fix", zero_ok=("Resr", "Rs"))
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:
         fit = FitOptions(model=model or "lc-lowpass", drive=drive, response=response, fix=fix_values)
     log_path = None if no_log else resolve_log_path(log)
+    if each:
+        if unit is not None:
+            fail(f"--unit {unit!r}: not used with --each — each capture's serial comes from its sidecar's "
+                 "\"unit\" key or its file name; leave --unit out")
+        if as_found:
+            fail("--as-found: not used with --each — report a unit with as-found captures on its own, "
+                 "without --each")
+    elif unit is None:
+        fail("--unit: missing — give the serial of the unit (e.g. --unit HC-07), or --each to make "
+             "every capture its own unit")
+    paths, notes = collect_captures(captures, recursive=recursive)
+    if not paths:
+        fail("; ".join(notes))
+    if each:
+        _report_each(paths, notes, spec=spec, out=out, fit=fit, operator=operator, log_path=log_path,
+                     with_figures=not no_figures, as_json=as_json, jobs=jobs)
+        return
+    _report_one(paths, unit=unit, spec=spec, as_found=as_found or [], operator=operator, out=out, fit=fit,
+                log_path=log_path, with_figures=not no_figures, as_json=as_json)
+
+
+def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path], operator: str | None,
+                out: Path, fit, log_path: Path | None, with_figures: bool, as_json: bool) -> None:
+    """All captures belong to one unit (in this process)."""
+    from benchfit.cli.common import print_json, stderr, stdout
+    from benchfit.report.assemble import run_unit
+
     with stderr.status("benchfit report", spinner="line") as status:
-        result = run_unit(captures, unit=unit, spec=spec, as_found=as_found or (), operator=operator,
-                          out_dir=out, fit=fit, log_path=log_path, with_figures=not no_figures,
+        result = run_unit(paths, unit=unit, spec=spec, as_found=as_found, operator=operator,
+                          out_dir=out, fit=fit, log_path=log_path, with_figures=with_figures,
                           progress=lambda text: status.update(text))
     if as_json:
         print_json({"unit": unit, "verdict": result.verdict, "exit_code": result.exit_code,
                     "html": str(result.html_path), "json": str(result.json_path),
                     "log": None if log_path is None else str(log_path), "run_id": result.run_id})
     else:
-        style = {"pass": "bold green", "conditional pass": "bold yellow"}.get(result.verdict, "bold red")
-        stdout.print(f"unit {unit}: [{style}]{result.verdict}[/]", markup=True)
+        stdout.print(f"unit {unit}: [{_style(result.verdict)}]{result.verdict}[/]", markup=True)
         stdout.print(f"report  {result.html_path}", markup=False)
         stdout.print(f"json    {result.json_path}", markup=False)
         if result.run_id is not None:
             stdout.print(f"logged  run {result.run_id} in {log_path}", markup=False)
     if result.exit_code:
         raise typer.Exit(code=result.exit_code)
+
+
+def _style(verdict: str) -> str:
+    return {"pass": "bold green", "conditional pass": "bold yellow"}.get(verdict, "bold red")
+
+
+def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, fit, operator: str | None,
+                 log_path: Path | None, with_figures: bool, as_json: bool, jobs: int | None) -> None:
+    """Every capture its own unit, in worker processes; a bad capture is named and skipped.
+
+    The spec and fit options are checked here first, so a mistake in them is one error, not
+    one per capture. Each worker appends its own run to the log (the log takes concurrent
+    writers: one ``BEGIN IMMEDIATE`` transaction per run, with waiting and retries).
+    """
+    from benchfit.cli.batch import REPORT_PRELOAD, default_jobs, progress_bar, report_job, run_jobs
+    from benchfit.cli.common import fail, print_json, stdout
+    from benchfit.report.assemble import _fit_call
+    from benchfit.report.spec import load_spec
+
+    load_spec(spec)
+    if fit is not None:
+        _fit_call(fit)
+    kwargs = {"spec": str(spec), "out_dir": str(out), "fit": fit, "operator": operator,
+              "log_path": None if log_path is None else str(log_path), "with_figures": with_figures}
+    outcomes = []
+    with progress_bar("reporting", len(paths)) as progress:
+        task = progress.add_task("", total=len(paths))
+        for note in notes:
+            progress.console.print(f"note: {note}", markup=False)
+
+        def on_outcome(outcome) -> None:
+            progress.update(task, advance=1, description=outcome.path.name)
+            outcomes.append(outcome)
+            if not outcome.ok:
+                progress.console.print(f"error: {outcome.error}", markup=False)
+            elif as_json:
+                print_json({**outcome.result, "log": None if log_path is None else str(log_path)})
+
+        run_jobs(report_job, paths, jobs=jobs or default_jobs(), kwargs=kwargs, on_outcome=on_outcome,
+                 preload=REPORT_PRELOAD)
+    outcomes.sort(key=lambda o: o.index)
+    failed = [o for o in outcomes if not o.ok]
+    if not as_json:
+        from rich.markup import escape
+        from rich.table import Table
+
+        n_fail = sum(1 for o in outcomes if o.ok and o.result["exit_code"])
+        table = Table(title=f"{len(outcomes)} unit(s): {len(outcomes) - n_fail - len(failed)} passed, "
+                            f"{n_fail} failed, {len(failed)} not reported", title_justify="left",
+                      box=None, pad_edge=False, header_style="bold")
+        for col in ("unit", "decision", "report"):
+            table.add_column(col, no_wrap=col != "report")
+        for o in outcomes:
+            if o.ok:
+                r = o.result
+                table.add_row(escape(r["unit"]), f"[{_style(r['verdict'])}]{escape(r['verdict'])}[/]",
+                              escape(r["html"]))
+            else:
+                table.add_row(escape(o.path.stem), "[bold red]error[/]", escape(f"{o.path} (see the error above)"))
+        stdout.print(table)
+        if log_path is not None:
+            stdout.print(f"logged in {log_path}", markup=False)
+    if failed:
+        fail(f"{len(failed)} of {len(paths)} captures could not be reported — see the lines above; "
+             "the others were")
+    if any(o.result["exit_code"] for o in outcomes):
+        raise typer.Exit(code=1)
