@@ -297,9 +297,10 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
     folded: list[str] = []
     warnings: list[str] = []
     start = dict(start)
-    # with neither L nor C known the impedance scale is free: pin L at its start value so the
+    # with no part known the impedance scale is free: pin L at its start value so the
     # optimiser does not wander along that direction, then analyse with L free again
-    pin = "L" if not ({"L", "C"} & set(fix)) else None
+    scale_known = bool({"L", "C", "Rs", "Rload"} & set(fix)) or fix.get("Resr", 0.0) > 0.0
+    pin = "L" if not scale_known else None
     while True:
         free = tuple(n for n in PARAMETER_NAMES if n not in fixed and n != pin)
         pinned = {**fixed, pin: start[pin]} if pin else fixed
