@@ -219,3 +219,14 @@ def test_uncalibrated_two_channel_capture_is_flagged():
     fs_units = Capture(cap.samples, FS, cap.channel_names, ("FS", "FS"), source="card.wav")
     r = fit_lowpass(fs_units, fix={"L": 0.3, "Rload": 10e3})
     assert any("not both calibrated" in w and "--fix Rload" in w for w in r.warnings)
+
+
+def test_scale_from_known_resistances():
+    # any part that is not scale-free sets the impedance scale: with Rs and Rload known,
+    # L and C both follow (REFERENCES §6 H(s): the resistances fix √(L/C))
+    r = fit_lowpass(_two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=3),
+                    fix={"Rs": 20.0, "Rload": 10e3})
+    assert r.parameters["L"].stderr is not None and r.parameters["C"].stderr is not None
+    # 2 mV noise: both within 0.5 % (stderr about 0.02 %)
+    assert r.parameters["L"].value == pytest.approx(0.3, rel=5e-3)
+    assert r.parameters["C"].value == pytest.approx(33e-6, rel=5e-3)
