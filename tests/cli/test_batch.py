@@ -1,0 +1,297 @@
+"""Batch work of `benchfit measure` and `benchfit report --each`: folders, worker processes,
+streamed results, one error line per bad file, exit codes.
+
+All captures are small synthetic hum-check outputs written here with soundfile (0.5 s at
+48 kHz, seeded noise); the expected values are the synthesis parameters.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+FS = 48000
+GAIN_V_PER_FS = 4.0  # sidecar gain: samples × 4 V/FS → volts
+
+SPEC_TOML = """
+[spec]
+name = "hum-check box, 50 Hz reference tone (test copy)"
+decision_rule = "guard-banded"
+
+[[limit]]
+quantity = "frequency_hz"
+label = "output frequency"
+nominal = 50.0
+tolerance = 0.25
+
+[[limit]]
+quantity = "thd_pct"
+label = "output THD"
+max = 5.0
+
+[[limit]]
+quantity = "vrms"
+label = "output level into 10 kΩ"
+unit = "V"
+min = 1.0
+max = 1.6
+"""
+
+
+class _Result:
+    def __init__(self, returncode: int, stdout: str, stderr: str) -> None:
+        self.returncode, self.stdout, self.stderr = returncode, stdout, stderr
+
+
+@pytest.fixture
+def run(capsys, monkeypatch):
+    """benchfit.cli.main in this process, with its exit code and captured output."""
+    from benchfit.cli import main
+
+    monkeypatch.setenv("COLUMNS", "200")
+
+    def _run(*args: str) -> _Result:
+        code = 0
+        try:
+            main(list(args))
+        except SystemExit as e:
+            code = e.code if isinstance(e.code, int) else (0 if e.code is None else 1)
+        out, err = capsys.readouterr()
+        return _Result(code, out, err)
+
+    return _run
+
+
+def write_unit(path: Path, *, freq: float, seed: int, unit: str | None = None, seconds: float = 0.5) -> Path:
+    """A hum-check output (1.6 V peak sine + 2 % third harmonic + noise) with its sidecar."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(int(seconds * FS)) / FS
+    x = 0.4 * np.cos(2 * math.pi * freq * t + 0.3) + 0.008 * np.cos(6 * math.pi * freq * t)
+    x = x + rng.normal(0.0, 1e-3, t.size)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    sf.write(path, x, FS, subtype="FLOAT")
+    sidecar = {"benchfit_sidecar": 1, "channels": [{"name": "output"}], "sample_rate_hz": FS,
+               "device": "test", "start_utc": "2026-12-01T17:00:00Z", "overflow_count": 0, "clip_count": 0,
+               "calibration": {"profile": "test", "gain_v_per_fs": [GAIN_V_PER_FS], "timebase_ppm": 0.0,
+                               "timebase_u_ppm": 0.0, "coupling_tau_s": None},
+               "benchfit_version": "0.1.0"}
+    if unit is not None:
+        sidecar["unit"] = unit
+    path.with_suffix(".json").write_text(json.dumps(sidecar))
+    return path
+
+
+@pytest.fixture(scope="module")
+def batch(tmp_path_factory) -> dict[str, Path]:
+    """Four good captures, a non-numeric CSV and a capture in a sub-folder."""
+    d = tmp_path_factory.mktemp("batch")
+    write_unit(d / "HC-01.wav", freq=50.00, seed=1)
+    write_unit(d / "HC-02.wav", freq=50.05, seed=2)
+    write_unit(d / "box_c.wav", freq=49.98, seed=3, unit="HC-03")
+    write_unit(d / "HC-04.wav", freq=51.00, seed=4)  # 1 Hz high: fails the ±0.25 Hz limit
+    (d / "HC-99_bad.csv").write_text("time,output\nabc,def\nghi,jkl\n")
+    write_unit(d / "nested" / "HC-05.wav", freq=50.01, seed=5)
+    (d / "notes.md").write_text("bench notes, not a capture\n")
+    spec = d / "hc_spec.toml"
+    spec.write_text(SPEC_TOML, encoding="utf-8")
+    return {"dir": d, "spec": spec, "bad": d / "HC-99_bad.csv"}
+
+
+def _lines(text: str) -> list[dict]:
+    return [json.loads(line) for line in text.strip().splitlines()]
+
+
+# --- choosing files -------------------------------------------------------------------------
+
+def test_collect_captures_picks_by_extension_sorted_and_skips_sidecars(tmp_path):
+    from benchfit.cli.batch import collect_captures
+
+    for name in ("b.wav", "a.FLAC", "c.csv", "c.json", "d.tsv", "e.txt", "f.ogg", "g.aiff", "h.md", "i.wav.bak"):
+        (tmp_path / name).write_bytes(b"")
+    (tmp_path / "sub").mkdir()
+    (tmp_path / "sub" / "z.wav").write_bytes(b"")
+    files, notes = collect_captures([tmp_path])
+    assert [f.name for f in files] == ["a.FLAC", "b.wav", "c.csv", "d.tsv", "e.txt", "f.ogg", "g.aiff"]
+    assert notes == []
+    deep, _ = collect_captures([tmp_path], recursive=True)
+    assert [f.name for f in deep][-1] == "z.wav" and len(deep) == 8
+    # a named file is taken whatever its extension, once; a missing one is kept for its job to report
+    named, _ = collect_captures([tmp_path / "h.md", tmp_path / "b.wav", tmp_path, tmp_path / "gone.wav"])
+    assert [f.name for f in named][:2] == ["h.md", "b.wav"]
+    assert [f.name for f in named].count("b.wav") == 1 and named[-1].name == "gone.wav"
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    files, notes = collect_captures([empty])
+    assert files == [] and len(notes) == 1 and "--recursive" in notes[0]
+
+
+def test_unit_serial_from_sidecar_else_stem(batch, tmp_path):
+    from benchfit.cli.batch import unit_serial
+    from benchfit.errors import CaptureError
+
+    assert unit_serial(batch["dir"] / "box_c.wav") == "HC-03"
+    assert unit_serial(batch["dir"] / "HC-01.wav") == "HC-01"
+    assert unit_serial(batch["bad"]) == "HC-99_bad"
+    odd = write_unit(tmp_path / "x.wav", freq=50.0, seed=9)
+    data = json.loads(odd.with_suffix(".json").read_text())
+    odd.with_suffix(".json").write_text(json.dumps({**data, "unit": 7}))
+    with pytest.raises(CaptureError, match="'unit' must be"):
+        unit_serial(odd)
+
+
+# --- measure ----------------------------------------------------------------------------------
+
+def test_measure_folder_good_results_bad_file_one_line_exit_2(batch, run):
+    res = run("measure", str(batch["dir"]), "--json", "--jobs", "2")
+    assert res.returncode == 2, res.stderr
+    objs = _lines(res.stdout)
+    assert sorted(Path(o["file"]).name for o in objs) == ["HC-01.wav", "HC-02.wav", "HC-04.wav", "box_c.wav"]
+    named = [line for line in res.stderr.splitlines() if "HC-99_bad.csv" in line]
+    assert len(named) == 1 and named[0].startswith("error: "), res.stderr
+    assert "Traceback" not in res.stderr
+    by_name = {Path(o["file"]).name: o["channels"][0] for o in objs}
+    assert by_name["HC-02.wav"]["frequency_hz"] == pytest.approx(50.05, abs=1e-3)  # u ≈ 1e-5 Hz at this SNR
+    assert by_name["HC-01.wav"]["vrms"] == pytest.approx(1.6 / math.sqrt(2), rel=2e-3)  # + harmonic, noise
+    assert by_name["HC-01.wav"]["unit"] == "V"  # sidecar gain applied in the worker
+
+
+def test_json_lines_equal_single_file_runs(batch, run):
+    res = run("measure", str(batch["dir"]), "--json", "--jobs", "2")
+    for obj in _lines(res.stdout):
+        single = run("measure", obj["file"], "--json")
+        assert single.returncode == 0, single.stderr
+        assert json.loads(single.stdout) == obj  # same code on the same bytes: identical numbers
+
+
+def test_jobs_1_and_2_give_the_same_results(batch, run):
+    one = run("measure", str(batch["dir"]), "-r", "--json", "--jobs", "1")
+    two = run("measure", str(batch["dir"]), "-r", "--json", "--jobs", "2")
+    assert one.returncode == two.returncode == 2
+    key = lambda o: o["file"]  # noqa: E731
+    assert sorted(_lines(one.stdout), key=key) == sorted(_lines(two.stdout), key=key)
+    assert len(_lines(one.stdout)) == 5
+
+
+def test_recursive_finds_nested_files(batch, run):
+    flat = run("measure", str(batch["dir"]), "--json", "--jobs", "1")
+    deep = run("measure", str(batch["dir"]), "--recursive", "--json", "--jobs", "1")
+    flat_names = {Path(o["file"]).name for o in _lines(flat.stdout)}
+    deep_names = {Path(o["file"]).name for o in _lines(deep.stdout)}
+    assert "HC-05.wav" not in flat_names and deep_names == flat_names | {"HC-05.wav"}
+
+
+def test_human_output_prints_every_good_file(batch, run):
+    res = run("measure", str(batch["dir"]), "--jobs", "2")
+    assert res.returncode == 2
+    for name in ("HC-01.wav", "HC-02.wav", "HC-04.wav", "box_c.wav"):
+        assert name in res.stdout
+    assert res.stdout.count("channel output (V)") == 4
+
+
+def test_empty_folder_is_bad_input(tmp_path, run):
+    res = run("measure", str(tmp_path), "--json")
+    assert res.returncode == 2 and res.stdout == ""
+    assert res.stderr.startswith("error: ") and len(res.stderr.strip().splitlines()) == 1
+
+
+def _probe(path: Path) -> list[str]:
+    """Measure in a worker, then name the heavy or device modules the worker has loaded."""
+    from benchfit.cli.batch import measure_job
+
+    measure_job(path)
+    return sorted(m for m in ("sounddevice", "typer", "benchfit.cli.app", "benchfit.capture.live")
+                  if m in sys.modules)
+
+
+def test_workers_do_not_load_sounddevice_or_the_cli(batch):
+    from benchfit.cli.batch import run_jobs
+
+    files = [batch["dir"] / "HC-01.wav", batch["dir"] / "HC-02.wav"]
+    outcomes = run_jobs(_probe, files, jobs=2)
+    assert all(o.ok for o in outcomes), [o.error for o in outcomes]
+    assert [o.result for o in outcomes] == [[], []]
+
+
+def test_run_jobs_reports_in_completion_order_with_index(batch):
+    from benchfit.cli.batch import measure_job, run_jobs
+
+    files = [batch["bad"], batch["dir"] / "HC-01.wav"]
+    seen = []
+    outcomes = run_jobs(measure_job, files, jobs=1, on_outcome=seen.append)
+    assert seen == outcomes and [o.index for o in outcomes] == [0, 1]
+    assert not outcomes[0].ok and str(batch["bad"]) in outcomes[0].error and "\n" not in outcomes[0].error
+    assert outcomes[1].ok and outcomes[1].result["measurement"]["file"] == str(files[1])
+
+
+# --- report --each -----------------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def units(tmp_path_factory, batch) -> Path:
+    """Three passing units and one failing unit (no bad file)."""
+    d = tmp_path_factory.mktemp("units")
+    for name in ("HC-01.wav", "HC-02.wav", "box_c.wav", "HC-04.wav"):
+        for suffix in (".wav", ".json"):
+            src = (batch["dir"] / name).with_suffix(suffix)
+            (d / src.name).write_bytes(src.read_bytes())
+    return d
+
+
+def test_report_each_one_report_per_unit_and_exit_1(units, batch, run, tmp_path):
+    out = tmp_path / "reports"
+    res = run("report", str(units), "--each", "--spec", str(batch["spec"]), "--out", str(out),
+              "--no-log", "--no-figures", "--jobs", "2")
+    assert res.returncode == 1, res.stderr  # HC-04 fails its frequency limit, nothing errored
+    htmls = sorted(p.name.split("_")[0] for p in out.glob("*.html"))
+    assert htmls == ["HC-01", "HC-02", "HC-03", "HC-04"]  # box_c.wav is HC-03 by its sidecar
+    assert len(list(out.glob("*.json"))) == 4
+    rows = {line.split()[0]: line.split()[1] for line in res.stdout.splitlines() if line.startswith("HC-")}
+    assert rows == {"HC-01": "pass", "HC-02": "pass", "HC-03": "pass", "HC-04": "fail"}
+    for p in out.glob("HC-04_*.json"):
+        twin = json.loads(p.read_text())
+        assert twin["verdict"] == "fail" and twin["unit"] == "HC-04"
+
+
+def test_report_each_json_lines_and_error_wins(batch, run, tmp_path):
+    out = tmp_path / "reports"
+    res = run("report", str(batch["dir"]), "--each", "--spec", str(batch["spec"]), "--out", str(out),
+              "--no-log", "--no-figures", "--jobs", "2", "--json")
+    assert res.returncode == 2  # the bad CSV errored; 2 wins over the failing unit's 1
+    objs = _lines(res.stdout)
+    assert {o["unit"]: o["verdict"] for o in objs} == {"HC-01": "pass", "HC-02": "pass", "HC-03": "pass",
+                                                       "HC-04": "fail"}
+    assert all(Path(o["html"]).is_file() and Path(o["json"]).is_file() for o in objs)
+    assert len([line for line in res.stderr.splitlines() if "HC-99_bad.csv" in line]) == 1
+
+
+def test_report_each_logs_every_unit(units, batch, run, tmp_path):
+    from benchfit.log.store import list_runs
+
+    log = tmp_path / "log.sqlite"
+    res = run("report", str(units), "--each", "--spec", str(batch["spec"]), "--out", str(tmp_path / "r"),
+              "--log", str(log), "--no-figures", "--jobs", "2")
+    assert res.returncode == 1, res.stderr
+    runs = list_runs(log)
+    assert sorted((r["unit"], r["verdict"]) for r in runs) == [
+        ("HC-01", "pass"), ("HC-02", "pass"), ("HC-03", "pass"), ("HC-04", "fail")]
+    assert {r["command"] for r in runs} == {"report"}
+
+
+def test_report_options_that_do_not_fit_together(batch, run, tmp_path):
+    spec = str(batch["spec"])
+    cases = [
+        ("report", str(batch["dir"] / "HC-01.wav"), "--spec", spec, "--no-log"),  # no --unit, no --each
+        ("report", str(batch["dir"]), "--each", "--unit", "HC-01", "--spec", spec, "--no-log"),
+        ("report", str(batch["dir"]), "--each", "--as-found", str(batch["dir"] / "HC-01.wav"),
+         "--spec", spec, "--no-log"),
+    ]
+    for args in cases:
+        res = run(*args, "--out", str(tmp_path))
+        assert res.returncode == 2, args
+        assert res.stderr.startswith("error: ") and len(res.stderr.strip().splitlines()) == 1, res.stderr
+    assert list(tmp_path.glob("*.html")) == []
