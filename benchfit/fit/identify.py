@@ -403,7 +403,7 @@ def ambiguity(values: Mapping[str, float], ident: Identification,
         return ", ".join(f"{n} = {format_quantity(v[n], display_unit(n), 3)}" for n in bad)
 
     target = "Rload" if "Rload" in bad else bad[-1]
-    msg = (f"{', '.join(bad)}: two solutions fit these data equally well ({describe(values)}; or "
+    msg = (f"{', '.join(bad)}: quite different values fit these data equally well ({describe(values)}; or "
            f"{describe(alt)}) — measure {target} and pass --fix {target}=…")
     und = tuple(n for n in ident.names if n in set(ident.undetermined) | set(bad))
     return replace(ident, undetermined=und), [msg]

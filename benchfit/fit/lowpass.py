@@ -168,9 +168,9 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
     named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
     und_plain = tuple(n for n in ident.undetermined if n not in named and n in PARAMETER_NAMES)
     if amb_warn and und_plain and not {"L", "C"} <= set(und_plain):
-        # these move together with the parts of the two solutions: fixing the load settles them
+        # these move together with the parts of the other solution: fixing the load settles them
         amb_warn.append(f"{', '.join(und_plain)}: not determined by these data either (they shift "
-                        "with the two solutions above) — fixing Rload usually settles them; otherwise "
+                        "with the other solution above) — fixing Rload usually settles them; otherwise "
                         f"measure {und_plain[0]} and pass --fix {und_plain[0]}=…")
         und_plain = ()
     warn = list(warnings) + amb_warn + undetermined_warning(und_plain, high_z)
