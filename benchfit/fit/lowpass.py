@@ -8,16 +8,24 @@ two-channel
     fitted by least squares at k·f for the orders where the drive stands clearly above the
     noise (|X_k| > 10·u), H_k = Y_k/X_k is formed with its 2×2 (Re, Im) covariance
     propagated from both phasor covariances, and the model H(jkω) is fitted on the
-    whitened complex residuals. ``time_domain=True`` then refines the parts by simulating
-    the output from the measured drive samples (exact discretisation,
-    :func:`benchfit.fit.circuits.simulate`) with the initial state and an output offset
-    solved linearly at each step — for drives far from periodic.
+    whitened complex residuals. A drive whose harmonics explain less than 90 % of its
+    variance is not periodic and is refused — unless ``time_domain=True``.
+    ``time_domain=True`` refines the parts by simulating the output from the measured drive
+    samples (exact discretisation, :func:`benchfit.fit.circuits.simulate`) with the initial
+    state and an output offset solved linearly at each step. For a drive far from periodic
+    the start comes instead from the cross-spectral estimate H = P_xy/P_xx (Welch).
 one-channel
     Only the output captured (see :mod:`benchfit.fit.onechannel`).
 
 The parts are fitted as logarithms (they stay positive); what the data cannot determine is
-found from the Jacobian (:mod:`benchfit.fit.identify`) and reported with ``stderr=None``
-and a warning naming the part to measure and fix.
+found from the Jacobian and from a search for a second, equally good solution
+(:mod:`benchfit.fit.identify`) and reported with ``stderr=None`` and a warning naming the
+part to measure and fix.
+
+Known limitation: the harmonic method takes the drive's sampled phasors as the circuit's
+input. A drive with sharp edges sampled without an anti-alias filter (a scope export) has
+aliased harmonics, which biases the highest orders by about (π·k·f/fs)²/3; the time-domain
+refinement, which holds the drive linear between samples, does not have this bias.
 """
 
 from __future__ import annotations
