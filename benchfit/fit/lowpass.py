@@ -25,7 +25,8 @@ part to measure and fix.
 Known limitation: the harmonic method takes the drive's sampled phasors as the circuit's
 input. A drive with sharp edges sampled without an anti-alias filter (a scope export) has
 aliased harmonics, which biases the highest orders by about (π·k·f/fs)²/3; the time-domain
-refinement, which holds the drive linear between samples, does not have this bias.
+refinement holds the drive linear between samples and so avoids most of it (what is left is
+the timing of each edge within one sample).
 """
 
 from __future__ import annotations
