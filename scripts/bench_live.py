@@ -8,8 +8,8 @@ scripts/bench_live.py`` prints them as a table (``--json`` for one JSON object).
   (harmonic fit, THD, IEEE 181 duty cycle) of one channel. Must leave headroom for ≥ 4
   updates a second (the hop is 250 ms).
 * ``record_cpu_pct`` — process CPU time / wall time of ``benchfit.record`` at 96 kHz stereo
-  for a few seconds (steady streaming; ``record_cpu_total_pct`` includes opening and closing), recording the monitor of a PulseAudio null sink while ``paplay`` plays
-  a tone into it. The script starts its own private PulseAudio daemon (as the tests do) and
+  for a few seconds (steady streaming; ``record_cpu_total_pct`` includes opening and closing),
+  recording the monitor of a PulseAudio null sink while ``paplay`` plays a tone into it. The script starts its own private PulseAudio daemon (as the tests do) and
   stops it afterwards; it is skipped, with a note, when pulseaudio is not installed.
 """
 
@@ -45,7 +45,7 @@ def _signal(seconds: float, fs: int, seed: int = 555) -> np.ndarray:
 
 
 def bench_tune(updates: int = 20) -> list[dict]:
-    from benchfit.capture.live import Windower, analyse_window
+    from benchfit.measurement.tuning import Windower, analyse_window
 
     x = _signal(1.0 + 0.25 * (updates + 1), FS)
     block = FS // 50

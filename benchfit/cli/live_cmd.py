@@ -281,8 +281,9 @@ def tune(
     updates: Optional[int] = typer.Option(None, "--updates", help="Stop after this many readings."),
 ) -> None:
     from benchfit.capture.calibration import load_profile
-    from benchfit.capture.live import LiveWindows, analyse_window
+    from benchfit.capture.live import LiveWindows
     from benchfit.errors import MeasureError
+    from benchfit.measurement.tuning import analyse_window
 
     target_hz = parse_value(target, "--target")
     if target_hz <= 0:
