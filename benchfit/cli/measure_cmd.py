@@ -238,6 +238,9 @@ def measure_command(
         if log is not None and not str(log).strip():
             fail("--log: the path is empty — give the log file, or use --log-default")
         log_path = resolve_log_path(log)
+        from benchfit.log.store import open_log
+
+        open_log(log_path).close()  # a foreign or unwritable log stops here, before any file is measured
     rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
     opts = {"channels": list(channel) if channel else None, "harmonics": harmonics, "sample_rate": rate,
             "with_capture": log_path is not None}
