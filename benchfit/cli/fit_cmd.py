@@ -69,8 +69,7 @@ def render_fit(d: dict[str, Any], console) -> None:
     units = {"ohm": "Ω"}
     if d["parameters"]:
         t = Table(title="effective parts", title_justify="left", box=None, pad_edge=False,
-                  header_style="bold", caption="± values are standard uncertainties (k = 1)",
-                  caption_justify="left")
+                  header_style="bold")
         for col, just in (("part", "left"), ("value", "right"), ("status", "left")):
             t.add_column(col, justify=just, no_wrap=True)
         for name, p in d["parameters"].items():
@@ -98,7 +97,9 @@ def render_fit(d: dict[str, Any], console) -> None:
         elif dv["stderr"] is None:
             text = f"{_fmt(dv['value'], None, unit)} (not determined)"
         elif unit == "":
-            text = f"{dv['value']:.5g} ± {dv['stderr']:.2g}"
+            u = dv["stderr"]
+            dec = max(0, 1 - int(math.floor(math.log10(u)))) if u > 0 else 4
+            text = f"{dv['value']:.{dec}f} ± {u:.{dec}f}"
         else:
             text = _fmt(dv["value"], dv["stderr"], unit)
         t.add_row(label, text)
@@ -111,6 +112,7 @@ def render_fit(d: dict[str, Any], console) -> None:
     r2 = "—" if q["r_squared"] is None else f"{q['r_squared']:.6f}"
     console.print(f"fit quality   NRMSE {nrmse}, R² {r2}, {q['n_points']} points", markup=False,
                   highlight=False)
+    console.print("± values are standard uncertainties (k = 1)", markup=False, highlight=False)
     for w in d["warnings"]:
         console.print(f"[yellow]warning:[/] {w}", markup=True, highlight=False)
 
