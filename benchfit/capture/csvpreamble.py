@@ -32,6 +32,11 @@ _RATE_BASES = ("samples/second", "samples/sec", "samples/s", "sample/s", "sa/sec
 _OTHER_UNITS = ("a", "ma", "ua", "µa", "°c", "degc", "c", "%", "db", "dbv", "dbm", "dbfs", "w", "mw",
                 "ohm", "ω", "pa", "kpa", "hz", "v^2", "v²", "a/div", "v/div", "div", "counts", "lsb", "fs")
 
+# order matters: "S/s" and "kS/s" end in the time base "s" and are rates only because "S/" and "kS/" are no
+# time prefixes
+_PREFIXED: tuple[tuple[UnitKind, tuple[str, ...], dict[str, float]], ...] = (
+    ("time", _TIME_BASES, _TIME_PREFIX), ("rate", _RATE_BASES, _RATE_PREFIX), ("volt", _VOLT_BASES, _VOLT_PREFIX))
+
 # preamble keys, normalised by _norm_key (lower case, letters and digits only)
 _INTERVAL_KEYS = {"sampleinterval", "sampleperiod", "samplinginterval", "samplingperiod", "xincrement",
                   "xinc", "timestep", "timeinterval", "dt", "deltat", "interval", "secondsperpoint",
@@ -63,21 +68,12 @@ def unit_kind(text: str) -> tuple[UnitKind, float] | None:
     for word, factor in _TIME_WORDS.items():
         if low in (word, word + "s"):
             return "time", factor
-    for base in _TIME_BASES:
-        if low.endswith(base):
-            prefix = u[: len(u) - len(base)]
-            if prefix in _TIME_PREFIX:
-                return "time", _TIME_PREFIX[prefix]
-    for base in _RATE_BASES:
-        if low.endswith(base):
-            prefix = u[: len(u) - len(base)]
-            if prefix in _RATE_PREFIX:
-                return "rate", _RATE_PREFIX[prefix]
-    for base in _VOLT_BASES:
-        if low.endswith(base):
-            prefix = u[: len(u) - len(base)]
-            if prefix in _VOLT_PREFIX:
-                return "volt", _VOLT_PREFIX[prefix]
+    for kind, bases, prefixes in _PREFIXED:
+        for base in bases:
+            if low.endswith(base):
+                prefix = u[: len(u) - len(base)]  # the prefix keeps its case: "M" is mega, "m" milli
+                if prefix in prefixes:
+                    return kind, prefixes[prefix]
     if low in _OTHER_UNITS or low.startswith(("°", "deg")):
         return "other", 1.0
     return None
