@@ -54,7 +54,7 @@ def _rate(value: float) -> int:
 @app.command(epilog="Example: benchfit devices")
 def devices(json_out: bool = typer.Option(False, "--json", help="Print one JSON object (machine output).")) -> None:
     """List audio input devices: index, name, input channels, default sample rate; * marks the default."""
-    from benchfit.capture.live import list_input_devices
+    from benchfit.capture.devices import list_input_devices
 
     devs = list_input_devices()
     if json_out:
