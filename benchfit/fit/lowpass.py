@@ -362,7 +362,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                        "non-periodic drive, or use --model ringdown")
     f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
-    hx_all = fit_harmonics(x, fs, f, kmax)
+    hx_all = noise_rescaled(fit_harmonics(x, fs, f, kmax), x, fs)
     # a periodic drive is explained by its harmonics: require 90 % of its variance
     var_x = float(np.sum((x - x.mean()) ** 2))
     if var_x <= 0 or hx_all.rss > 0.1 * var_x:
@@ -378,7 +378,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                        "drive is needed for two-channel fitting; check the drive channel")
     # both channels fitted with every order below the limit (the unused ones stay in the
     # model, so they cannot leak into the used ones), then the drive's strong orders selected
-    hy_all = fit_harmonics(y, fs, f, kmax)
+    hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
     hx = _subset(hx_all, keep)
     hy = _subset(hy_all, keep)
     if not np.any(hy.amplitudes > SIGNIFICANCE * hy.amplitudes_u):
@@ -466,6 +466,35 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
         x, y, fs, start, dict(fix), fix, sigma, curves)
     return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
                     alts)
+
+
+def noise_rescaled(h, x: np.ndarray, fs: float):
+    """The harmonic fit with its phasor covariance scaled to the noise *between* the harmonics.
+
+    The fit's own σ² = RSS/(N − p) also counts the harmonics above the highest fitted order
+    (a square drive has them up to Nyquist), which would inflate every phasor's variance. The
+    noise that matters for P_k is the one near k·f: it is taken as the median of the residual's
+    Hann-window periodogram over 0 … (K + ½)·f, divided by ln 2 (the median of an exponential
+    distribution, the law of |X|² for Gaussian noise) and by Σw², assuming a white floor there.
+    """
+    from dataclasses import replace
+
+    n = x.size
+    r = x - h.evaluate(n, fs)
+    w = 0.5 - 0.5 * np.cos(2 * math.pi * np.arange(n) / n)  # periodic Hann: no broadband leakage
+    spec = np.abs(np.fft.rfft(r * w)) ** 2
+    top = int(min(spec.size - 1, math.floor((h.orders.max() + 0.5) * h.frequency_hz * n / fs)))
+    # leave out the bins next to every harmonic (fitted or not, folded into 0…fs/2)
+    bins = np.arange(spec.size)
+    f_bin = bins * fs / n
+    harmonic = np.abs((f_bin / h.frequency_hz + 0.5) % 1.0 - 0.5) * h.frequency_hz
+    clear = (harmonic > 2.5 * fs / n) & (bins >= 2) & (bins < top)
+    band = spec[clear]
+    if band.size < 16 or h.sigma <= 0:
+        return h
+    sigma2 = float(np.median(band)) / (math.log(2.0) * float(w @ w))
+    factor = sigma2 / h.sigma ** 2
+    return replace(h, phasor_cov=h.phasor_cov * factor)
 
 
 def _subset(h, keep: np.ndarray):

@@ -27,7 +27,8 @@ import numpy as np
 from benchfit.errors import FitError
 from benchfit.fit.circuits import LowpassParts, rectangular_phasors, transfer
 from benchfit.fit.lowpass import (MAX_ORDER, SIGNIFICANCE, assemble, check_not_silent, complex_mult_cov,
-                                  quality_complex, solve, source_name, start_parts, whiten, whitening)
+                                  noise_rescaled, quality_complex, solve, source_name, start_parts, whiten,
+                                  whitening)
 from benchfit.fit.result import FitCurves
 
 __all__ = ["fit_one_channel"]
@@ -119,7 +120,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         tone = fit_tone(y, fs, n_harmonics=max(9, int(round(f / f_low)) + 3), frequency_hz=f_low)
         f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
-    hy_all = fit_harmonics(y, fs, f, kmax)
+    hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
     strong = np.nonzero(hy_all.amplitudes > SIGNIFICANCE * hy_all.amplitudes_u)[0]
     if strong.size < 2:
         raise FitError(f"{where}: only the fundamental of {name!r} stands above the noise, so its "
