@@ -64,3 +64,24 @@ def test_two_channel_stderr_matches_the_scatter():
     # the mean sits 0.02 % high: the sampled-edge bias of the harmonic method (about
     # (π·k·f/fs)²/3 per harmonic, fit.lowpass docstring), far inside the 1 % bands elsewhere
     assert abs(np.mean(c) / 33e-6 - 1) < 5e-4
+
+
+def test_ringdown_stderr_matches_the_scatter():
+    import math
+
+    from benchfit.fit.ringdown import fit_ringdown
+
+    p = LowpassParts(0.1, 1e-6, 20.0, 0.0, math.inf)  # 503 Hz tank, Q ≈ 16
+    drive = 5.0 * ((np.arange(20000) % 2000) < 1000)  # 10 Hz square, 20 rings in 1 s
+    y0 = simulate(drive, FS, p)
+    f0, uf0, q, uq = [], [], [], []
+    for seed in range(25):
+        rng = np.random.default_rng(2000 + seed)
+        r = fit_ringdown(Capture((y0 + rng.normal(0, 0.02, y0.size))[None, :], FS, ("output",), ("V",)))
+        f0.append(r.derived["resonant_frequency_hz"].value)
+        uf0.append(r.derived["resonant_frequency_hz"].stderr)
+        q.append(r.derived["q_factor"].value)
+        uq.append(r.derived["q_factor"].stderr)
+    # 25 trials: the sample std scatters by 1/√48 ≈ 14 %; band 0.6 … 1.45 is three of those
+    assert 0.6 < np.std(f0, ddof=1) / np.mean(uf0) < 1.45
+    assert 0.6 < np.std(q, ddof=1) / np.mean(uq) < 1.45
