@@ -85,3 +85,16 @@ def test_ringdown_stderr_matches_the_scatter():
     # 25 trials: the sample std scatters by 1/√48 ≈ 14 %; band 0.6 … 1.45 is three of those
     assert 0.6 < np.std(f0, ddof=1) / np.mean(uf0) < 1.45
     assert 0.6 < np.std(q, ddof=1) / np.mean(uq) < 1.45
+
+
+def test_one_channel_stderr_matches_the_scatter():
+    _, y0 = _clean()
+    f0, uf0 = [], []
+    for seed in range(25):
+        rng = np.random.default_rng(3000 + seed)
+        cap = Capture((y0 + rng.normal(0, 0.05, N))[None, :], FS, ("output",), ("V",))
+        r = fit_lowpass(cap, fix={"L": 0.3, "Rload": 10e3, "Resr": 1.5}, drive_duty=0.5)
+        f0.append(r.derived["resonant_frequency_hz"].value)
+        uf0.append(r.derived["resonant_frequency_hz"].stderr)
+    # 25 trials: band 0.6 … 1.45 as for the ring-down test
+    assert 0.6 < np.std(f0, ddof=1) / np.mean(uf0) < 1.45
