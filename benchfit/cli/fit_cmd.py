@@ -60,8 +60,8 @@ def _fmt(value: float | None, stderr: float | None, unit: str) -> str:
     return format_quantity(value, unit, 5)
 
 
-def render_fit(d: dict[str, Any], console) -> None:
-    """Print a fit result (its JSON dict) as tables."""
+def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
+    """Print a fit result (its JSON dict) as tables, with an optional note line."""
     from rich.table import Table
 
     console.print(f"[bold]{d['file']}[/]  model {d['model']}, method {d['method']}", markup=True,
@@ -113,6 +113,8 @@ def render_fit(d: dict[str, Any], console) -> None:
     console.print(f"fit quality   NRMSE {nrmse}, R² {r2}, {q['n_points']} points", markup=False,
                   highlight=False)
     console.print("± values are standard uncertainties (k = 1)", markup=False, highlight=False)
+    if note:
+        console.print(f"note: {note}", markup=False, highlight=False)
     for w in d["warnings"]:
         console.print(f"[yellow]warning:[/] {w}", markup=True, highlight=False)
 
@@ -184,6 +186,10 @@ def fit_command(
     if as_json:
         print_json(d)
     else:
-        render_fit(d, stdout)
+        note = None
+        if result.method == "one-channel":
+            note = ("the drive level is unknown, so the data fix the shape of H (resonant frequency, "
+                    "Q, ESR zero); the parts follow only from a known one")
+        render_fit(d, stdout, note)
         if plot is not None:
             stdout.print(f"figure written to {plot}", markup=False, highlight=False)
