@@ -27,6 +27,7 @@ With a fixed L (or C) the other follows from ω0 (light load and small ESR assum
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Mapping
 
 import numpy as np
@@ -39,16 +40,34 @@ __all__ = ["fit_ringdown", "RingSegment", "find_ring_starts", "fit_ring"]
 _MIN_PERIODS = 3
 
 
+@dataclass(frozen=True, eq=False)
 class RingSegment:
-    """Fit of one ring: ω_d (rad/s), α (1/s), their variances and covariance, and arrays."""
+    """Fit of one ring.
 
-    __slots__ = ("start", "omega", "alpha", "var_omega", "var_alpha", "cov_wa", "t", "data",
-                 "model", "baseline")
+    Attributes
+    ----------
+    start : int
+        Index of the first fitted sample.
+    omega, alpha : float
+        Damped angular frequency ω_d (rad/s) and decay rate α (1/s).
+    var_omega, var_alpha, cov_wa : float
+        Their variances and covariance ((rad/s)², (1/s)², rad/s²).
+    t, data, model : ndarray
+        Time from ``start`` (s), samples and fitted model (capture units).
+    baseline : float
+        Fitted baseline c (capture units).
+    """
 
-    def __init__(self, start, omega, alpha, var_omega, var_alpha, cov_wa, t, data, model, baseline):
-        self.start, self.omega, self.alpha = start, omega, alpha
-        self.var_omega, self.var_alpha, self.cov_wa = var_omega, var_alpha, cov_wa
-        self.t, self.data, self.model, self.baseline = t, data, model, baseline
+    start: int
+    omega: float
+    alpha: float
+    var_omega: float
+    var_alpha: float
+    cov_wa: float
+    t: np.ndarray
+    data: np.ndarray
+    model: np.ndarray
+    baseline: float
 
 
 def _moving_average(x: np.ndarray, width: int) -> np.ndarray:
