@@ -64,7 +64,9 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     """Print a fit result (its JSON dict) as tables, with an optional note line."""
     from rich.table import Table
 
-    console.print(f"[bold]{d['file']}[/]  model {d['model']}, method {d['method']}", markup=True,
+    from rich.markup import escape as _esc
+
+    console.print(f"[bold]{_esc(d['file'])}[/]  model {d['model']}, method {d['method']}", markup=True,
                   highlight=False)
     units = {"ohm": "Ω"}
     if d["parameters"]:
@@ -115,8 +117,10 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     console.print("± values are standard uncertainties (k = 1)", markup=False, highlight=False)
     if note:
         console.print(f"note: {note}", markup=False, highlight=False)
+    from rich.markup import escape
+
     for w in d["warnings"]:
-        console.print(f"[yellow]warning:[/] {w}", markup=True, highlight=False)
+        console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False)
 
 
 @app.command("fit", help=_HELP)
