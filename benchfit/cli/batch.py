@@ -23,7 +23,10 @@ preloaded into the server (measured on the 2-core development machine: first res
 two-worker pool after 0.31–0.50 s, against 0.66–0.77 s for plain ``forkserver`` and
 0.72 s for ``spawn``; ``fork`` is avoided because the parent may hold threads and open
 SQLite connections). Where ``forkserver`` does not exist, ``spawn`` is used.
-Worker processes ignore Ctrl-C; the parent cancels the queued jobs and exits 130.
+Worker processes ignore Ctrl-C; the parent cancels the queued jobs and exits 130. Each
+worker's BLAS/OpenMP libraries get CPU count ÷ workers threads (unless the user set
+``OPENBLAS_NUM_THREADS`` etc.): with one BLAS thread per CPU in every worker, two workers
+on two cores were 2× slower than one process.
 """
 
 from __future__ import annotations
@@ -31,12 +34,13 @@ from __future__ import annotations
 import os
 import sys
 import time
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable, Iterable, Literal, Mapping, Sequence, get_args
+from typing import Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, get_args
 
 __all__ = ["CAPTURE_SUFFIXES", "StartMethod", "JobOutcome", "collect_captures", "default_jobs",
-           "measure_job", "report_job", "unit_serial", "run_jobs", "progress_bar",
+           "measure_job", "report_job", "unit_serial", "run_jobs", "progress_bar", "prefer_one_blas_thread",
            "MEASURE_PRELOAD", "REPORT_PRELOAD"]
 
 #: extensions (lower case) of the files a folder contributes to a batch
@@ -265,6 +269,51 @@ def _worker_init() -> None:
 
 # --- running ---------------------------------------------------------------------------------
 
+#: environment variables that set the thread count of numpy's linear-algebra libraries
+_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS")
+
+
+@contextmanager
+def _thread_limits(threads: int) -> Iterator[None]:
+    """Set the BLAS/OpenMP thread variables that the user has not set, for processes started
+    inside the block, and restore the environment afterwards.
+
+    Each worker otherwise starts one BLAS thread per CPU: two workers on two cores then
+    run four busy threads, and the measured batch ran 2× slower than in one process
+    (scripts/bench_batch.py). Variables already set by the user are left as they are.
+    """
+    added = [name for name in _THREAD_VARIABLES if name not in os.environ]
+    for name in added:
+        os.environ[name] = str(threads)
+    try:
+        yield
+    finally:
+        for name in added:
+            os.environ.pop(name, None)
+
+
+def prefer_one_blas_thread() -> bool:
+    """Ask numpy's BLAS/OpenMP libraries for one thread, if numpy is not loaded yet.
+
+    Called by ``benchfit measure`` and ``benchfit report`` before anything imports numpy
+    (the thread count is read when the library loads). The measurement's matrix products
+    are small: on the 2-core development machine, with other processes running, measuring
+    10 s of 48 kHz stereo took a median 460 ms with one BLAS thread per CPU and 80–90 ms
+    with one thread; with the machine otherwise idle one thread was still ~10 % faster.
+    Variables the user has set are left alone.
+
+    Returns
+    -------
+    bool
+        True when the variables could still take effect.
+    """
+    if "numpy" in sys.modules:
+        return False
+    for name in _THREAD_VARIABLES:
+        os.environ.setdefault(name, "1")
+    return True
+
+
 def _context(method: StartMethod, preload: Sequence[str]):
     import multiprocessing
 
@@ -281,7 +330,6 @@ def _context(method: StartMethod, preload: Sequence[str]):
 def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
              kwargs: Mapping[str, Any] | None = None,
              on_outcome: Callable[[JobOutcome], None] | None = None,
-             on_start: Callable[[int], None] | None = None,
              start_method: StartMethod = "forkserver",
              preload: Sequence[str] = MEASURE_PRELOAD) -> list[JobOutcome]:
     """Run ``job(path, **kwargs)`` for every file, ``jobs`` at a time.
@@ -299,8 +347,6 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
         Keyword arguments for every job (must be picklable).
     on_outcome : callable, optional
         Called in this process with each :class:`JobOutcome` as it completes.
-    on_start : callable, optional
-        Called with the number of worker processes actually used, before the first job.
     start_method : {"forkserver", "spawn"}
         How worker processes are started.
     preload : sequence of str
@@ -318,8 +364,6 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
     done: list[JobOutcome] = []
     notify = on_outcome or (lambda outcome: None)
     workers = min(jobs, len(files))
-    if on_start is not None:
-        on_start(max(workers, 1) if files else 0)
     if workers <= 1:
         for i, path in enumerate(files):
             outcome = _guarded(i, path, job, kw)
@@ -332,7 +376,10 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(start_method, preload),
                                initializer=_worker_init)
     try:
-        pending = {pool.submit(_guarded, i, path, job, kw): (i, path) for i, path in enumerate(files)}
+        # worker processes (and the fork server) are started inside submit(): they inherit
+        # the thread limits set here, before they load numpy
+        with _thread_limits(max(1, default_jobs() // workers)):
+            pending = {pool.submit(_guarded, i, path, job, kw): (i, path) for i, path in enumerate(files)}
         while pending:
             finished, _ = wait(pending, return_when=FIRST_COMPLETED)
             for fut in finished:

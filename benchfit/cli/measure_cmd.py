@@ -225,8 +225,10 @@ def measure_command(
         help="Append each measured file to the default measurement log: $BENCHFIT_LOG when set, else "
              "benchfit/log.sqlite in the user data directory."),
 ) -> None:
-    from benchfit.cli.batch import collect_captures, default_jobs
+    from benchfit.cli.batch import collect_captures, default_jobs, prefer_one_blas_thread
     from benchfit.cli.common import fail, parse_value
+
+    prefer_one_blas_thread()  # before numpy loads: its small matrix products run faster on one thread
 
     if log is not None and log_default:
         fail("--log and --log-default: give only one — --log PATH names the log, --log-default uses "

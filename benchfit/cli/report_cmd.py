@@ -75,8 +75,11 @@ def report_command(
     as_json: bool = typer.Option(False, "--json", help="Print the paths and verdict as one JSON object "
                                                        "(with --each: one line per unit as it finishes)."),
 ) -> None:
-    from benchfit.cli.batch import collect_captures
+    from benchfit.cli.batch import collect_captures, prefer_one_blas_thread
     from benchfit.cli.common import fail, parse_assignments
+
+    prefer_one_blas_thread()  # before numpy loads: its small matrix products run faster on one thread
+
     from benchfit.log.store import resolve_log_path
     from benchfit.report.assemble import FitOptions
 
