@@ -1,0 +1,123 @@
+"""Benchmark of batch measuring: speed-up of ``--jobs 2`` over ``--jobs 1``.
+
+``run()`` returns a list of ``{"name", "value", "unit", "goal"}`` rows; run as a script it
+prints them as a table. Measured:
+
+* 200 small captures (1 s, 48 kHz, mono hum-check output: 50 Hz sine with 2nd/3rd
+  harmonics and seeded noise, a few hundredths of a hertz apart) are written to a temp
+  folder as WAV; :func:`benchfit.cli.batch.run_jobs` measures them with
+  :func:`benchfit.cli.batch.measure_job` with ``jobs=1`` (in-process) and ``jobs=2``
+  (worker pool). The wall time is that of the ``run_jobs`` call alone, timed inside a
+  fresh interpreter so neither side has numpy/scipy loaded beforehand (the import cost is
+  part of both; Python's own start-up is not). Median of the repeats. Goal: speed-up ≥ 1.8×.
+  ``jobs=1`` is timed twice: as ``benchfit measure`` runs it (one BLAS thread, see
+  :func:`benchfit.cli.batch.prefer_one_blas_thread`; each pool worker also gets one) and
+  with the BLAS library's default of one thread per CPU. The goal is judged against the
+  first, the faster and fair one (multi-threaded BLAS on these small matrices is slower,
+  and much slower when other processes load the machine).
+* Pool start-up by start method: the wall time of a two-worker ``run_jobs`` over two files,
+  in a fresh interpreter, for ``forkserver`` (with the measurement modules preloaded in
+  the server) and ``spawn``.
+
+On the shared 2-core machine the numbers move with the load of other processes.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import statistics
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+
+N_FILES = 200
+FS = 48000
+
+_CHILD = """
+import json, sys, time
+from pathlib import Path
+from benchfit.cli.batch import measure_job, prefer_one_blas_thread, run_jobs
+folder, jobs, method, limit = sys.argv[1], int(sys.argv[2]), sys.argv[3], int(sys.argv[4])
+if sys.argv[5] == "cli":
+    prefer_one_blas_thread()  # what `benchfit measure` does before numpy loads
+files = sorted(Path(folder).glob("*.wav"))[:limit]
+t0 = time.perf_counter()
+outcomes = run_jobs(measure_job, files, jobs=jobs, start_method=method)
+elapsed = time.perf_counter() - t0
+bad = [o.error for o in outcomes if not o.ok]
+print(json.dumps({"seconds": elapsed, "n": len(outcomes), "errors": bad,
+                  "worker_seconds": sum(o.seconds for o in outcomes)}))
+"""
+
+
+def write_captures(folder: Path, n: int = N_FILES, seconds: float = 1.0) -> list[Path]:
+    """``n`` mono WAVs of a hum-check output (float32, 48 kHz), seeded."""
+    import numpy as np
+    import soundfile as sf
+
+    rng = np.random.default_rng(181)
+    t = np.arange(int(seconds * FS)) / FS
+    paths = []
+    for i in range(n):
+        f = 50.0 + rng.uniform(-0.2, 0.2)
+        x = (0.35 * np.sin(2 * math.pi * f * t + rng.uniform(0, 2 * math.pi))
+             + 0.01 * np.sin(4 * math.pi * f * t) + 0.006 * np.sin(6 * math.pi * f * t)
+             + rng.normal(0.0, 2e-3, t.size))
+        p = folder / f"HC-{i + 1:03d}.wav"
+        sf.write(p, x.astype(np.float32), FS, subtype="FLOAT")
+        paths.append(p)
+    return paths
+
+
+def _timed(folder: Path, jobs: int, method: str = "forkserver", limit: int = N_FILES,
+           blas: str = "cli") -> dict:
+    """Time run_jobs in a fresh interpreter; blas="cli" sets threads as the command does,
+    "installed" leaves the library's default (one thread per CPU)."""
+    res = subprocess.run([sys.executable, "-c", _CHILD, str(folder), str(jobs), method, str(limit), blas],
+                         capture_output=True, text=True, timeout=900, check=False)
+    if res.returncode != 0:
+        raise RuntimeError(f"batch child failed: {res.stderr.strip().splitlines()[-1:]}")
+    out = json.loads(res.stdout)
+    if out["errors"]:
+        raise RuntimeError(f"{len(out['errors'])} captures failed, first: {out['errors'][0]}")
+    return out
+
+
+def run(repeats: int = 3) -> list[dict]:
+    """Rows ``{"name", "value", "unit", "goal"}`` of the batch benchmark."""
+    with tempfile.TemporaryDirectory(prefix="benchfit_batch_") as tmp:
+        folder = Path(tmp)
+        write_captures(folder)
+        one, one_st, two, per_file = [], [], [], []
+        for _ in range(repeats):
+            a = _timed(folder, 1, blas="installed")
+            a1 = _timed(folder, 1)
+            b = _timed(folder, 2)
+            one.append(a["seconds"])
+            one_st.append(a1["seconds"])
+            two.append(b["seconds"])
+            per_file.append(a1["worker_seconds"] / a1["n"])
+        starts = {m: statistics.median(_timed(folder, 2, m, limit=2)["seconds"] for _ in range(repeats))
+                  for m in ("forkserver", "spawn")}
+    t1, t1s, t2 = statistics.median(one), statistics.median(one_st), statistics.median(two)
+    return [
+        {"name": f"{N_FILES} captures, jobs 1, BLAS default threads", "value": t1, "unit": "s",
+         "goal": "—"},
+        {"name": f"{N_FILES} captures, jobs 1 (as the CLI: 1 BLAS thread)", "value": t1s, "unit": "s",
+         "goal": "—"},
+        {"name": f"{N_FILES} captures, jobs 2 (worker pool)", "value": t2, "unit": "s", "goal": "—"},
+        {"name": "speed-up jobs 2 / jobs 1, BLAS default", "value": t1 / t2, "unit": "×", "goal": "—"},
+        {"name": "speed-up jobs 2 / jobs 1 (as the CLI)", "value": t1s / t2, "unit": "×", "goal": "≥ 1.8"},
+        {"name": "measure_job per file (1 s, 48 kHz mono)", "value": 1e3 * statistics.median(per_file),
+         "unit": "ms", "goal": "—"},
+        {"name": "2 workers, 2 files: forkserver + preload", "value": starts["forkserver"], "unit": "s",
+         "goal": "—"},
+        {"name": "2 workers, 2 files: spawn", "value": starts["spawn"], "unit": "s", "goal": "—"},
+    ]
+
+
+if __name__ == "__main__":
+    for row in run():
+        print(f"{row['name']:<46} {row['value']:>9.3f} {row['unit']:<3} goal {row['goal']}")
