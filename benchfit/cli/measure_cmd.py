@@ -216,7 +216,7 @@ def measure_command(
         None, "--jobs", "-j", min=1, show_default=False,
         help="Files measured at once, each in its own worker process (default: the number of CPUs); "
              "--jobs 1 measures one after the other in this process."),
-    log: Optional[Path] = typer.Option(
+    log: Optional[str] = typer.Option(
         None, "--log", show_default=False,
         help="Append each measured file as a run (command \"measure\") to this measurement log file; "
              "created when missing. Without --log or --log-default nothing is logged."),
@@ -237,7 +237,7 @@ def measure_command(
     if log is not None or log_default:
         from benchfit.log.store import resolve_log_path
 
-        if log is not None and not str(log).strip():
+        if log is not None and not log.strip():
             fail("--log: the path is empty — give the log file, or use --log-default")
         log_path = resolve_log_path(log)
         from benchfit.log.store import open_log

@@ -126,3 +126,9 @@ def test_not_a_log_stops_with_one_line(folder, run, tmp_path):
     assert res.returncode == 2 and res.stderr.startswith("error: ")
     assert len(res.stderr.strip().splitlines()) == 1
     assert foreign.read_text() == "these are bench notes, not a database\n"  # left untouched
+
+
+def test_empty_log_path_is_bad_input(folder, run):
+    res = run("measure", str(folder / "HC-09.wav"), "--log", "")
+    assert res.returncode == 2 and res.stderr.startswith("error: --log: the path is empty")
+    assert res.stdout == ""
