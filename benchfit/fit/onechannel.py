@@ -34,6 +34,10 @@ from benchfit.fit.result import FitCurves
 __all__ = ["fit_one_channel"]
 
 _DUTY_MIN = 0.02
+#: a subharmonic candidate needs this many periods in the record ...
+_MIN_SUB_PERIODS = 8.0
+#: ... and at least this fraction of the strongest line's amplitude
+_MIN_SUB_RATIO = 0.01
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
@@ -82,14 +86,24 @@ def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
     one nearest the resonance), so the fundamental is looked for below it: the Hann-window
     spectrum at f_peak/m must exceed 30× the median level of the neighbouring bins.
     """
+    from benchfit.measurement.tone import fit_harmonics
+
     n = y.size
     spec = np.abs(np.fft.rfft((y - y.mean()) * np.hanning(n)))
+    a_peak = float(fit_harmonics(y, fs, f_peak, orders=np.array([1])).amplitudes[0])
     best = f_peak
     for m in range(2, 13):
         fm = f_peak / m
         b = fm * n / fs
-        if b < 4:
+        if b < _MIN_SUB_PERIODS:
+            # a drive fundamental shows many periods in the record; a few cycles at a very low
+            # frequency are input-coupling drift or leakage from DC, not a subharmonic
             break
+        # behind a low-pass the fundamental keeps at least ~1/(k·Q) of the strongest line
+        # (k ≤ 12, Q ≲ 30): a candidate far weaker than 1 % of it is noise or a mains spur
+        a_m = float(fit_harmonics(y, fs, fm, orders=np.array([1])).amplitudes[0])
+        if a_m < _MIN_SUB_RATIO * a_peak:
+            continue
         i = int(round(b))
         lo, hi = max(1, i - 25), min(spec.size, i + 26)
         around = np.concatenate([spec[lo:max(lo, i - 3)], spec[min(hi, i + 4):hi]])
