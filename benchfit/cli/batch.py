@@ -225,7 +225,7 @@ def unit_serial(path: str | Path) -> str:
 
 
 def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: Any = None,
-               operator: str | None = None, log_path: str | Path | None = None,
+               operator: str | None = None, with_log_entry: bool = False,
                with_figures: bool = True) -> dict[str, Any]:
     """Judge one capture as its own unit and write its report (the job of ``report --each``).
 
@@ -241,23 +241,27 @@ def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: 
         Fit options (see :func:`benchfit.report.assemble.run_unit`).
     operator : str, optional
         Who measured.
-    log_path : str or Path, optional
-        Append the run to this measurement log (None: do not log).
+    with_log_entry : bool
+        Also return what the measurement log stores about the run (the keyword arguments
+        of :func:`benchfit.log.store.append_run`); the job itself never writes the log, so
+        that a batch appends from one process.
     with_figures : bool
         Draw the report's figures.
 
     Returns
     -------
     dict
-        ``{"file", "unit", "verdict", "exit_code", "html", "json", "run_id"}``.
+        ``{"file", "unit", "verdict", "exit_code", "html", "json", "log_entry"}``
+        (``log_entry`` None unless asked for).
     """
     from benchfit.report.assemble import run_unit
 
     unit = unit_serial(path)
     res = run_unit([path], unit=unit, spec=spec, operator=operator, out_dir=out_dir, fit=fit,
-                   log_path=log_path, with_figures=with_figures)
+                   log_path=None, with_figures=with_figures, defer_log=with_log_entry)
     return {"file": str(path), "unit": unit, "verdict": res.verdict, "exit_code": res.exit_code,
-            "html": str(res.html_path), "json": str(res.json_path), "run_id": res.run_id}
+            "html": str(res.html_path), "json": str(res.json_path),
+            "log_entry": None if res.log_entry is None else dict(res.log_entry)}
 
 
 def _worker_init() -> None:

@@ -142,8 +142,8 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     """Every capture its own unit, in worker processes; a bad capture is named and skipped.
 
     The spec and fit options are checked here first, so a mistake in them is one error, not
-    one per capture. Each worker appends its own run to the log (the log takes concurrent
-    writers: one ``BEGIN IMMEDIATE`` transaction per run, with waiting and retries).
+    one per capture. Workers return each unit's log entry and this process appends it, as
+    results arrive (one writer to the SQLite log).
     """
     from benchfit.cli.batch import REPORT_PRELOAD, default_jobs, progress_bar, report_job, run_jobs
     from benchfit.cli.common import fail, print_json, stdout
@@ -153,8 +153,12 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     load_spec(spec)
     if fit is not None:
         _fit_call(fit)
+    from benchfit.log.store import append_run, open_log
+
+    if log_path is not None:
+        open_log(log_path).close()  # a foreign or unwritable log stops here, before any unit is judged
     kwargs = {"spec": str(spec), "out_dir": str(out), "fit": fit, "operator": operator,
-              "log_path": None if log_path is None else str(log_path), "with_figures": with_figures}
+              "with_log_entry": log_path is not None, "with_figures": with_figures}
     outcomes = []
     with progress_bar("reporting", len(paths)) as progress:
         task = progress.add_task("", total=len(paths))
@@ -166,8 +170,12 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
             outcomes.append(outcome)
             if not outcome.ok:
                 progress.console.print(f"error: {outcome.error}", markup=False)
-            elif as_json:
-                print_json({**outcome.result, "log": None if log_path is None else str(log_path)})
+                return
+            r = outcome.result
+            entry = r.pop("log_entry", None)
+            r["run_id"] = append_run(log_path, **entry) if log_path is not None and entry else None
+            if as_json:
+                print_json({**r, "log": None if log_path is None else str(log_path)})
 
         run_jobs(report_job, paths, jobs=jobs or default_jobs(), kwargs=kwargs, on_outcome=on_outcome,
                  preload=REPORT_PRELOAD)

@@ -92,6 +92,9 @@ class UnitRun:
     verdict: str
     exit_code: int
     run_id: int | None = None
+    #: with ``run_unit(..., defer_log=True)``: the keyword arguments of
+    #: :func:`benchfit.log.store.append_run` as plain data, for the caller to append
+    log_entry: Mapping[str, Any] | None = None
 
 
 # --- picking values ----------------------------------------------------------------------
@@ -352,7 +355,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
              as_found: Sequence[str | Path] = (), operator: str | None = None,
              out_dir: str | Path = ".", fit: FitOptions | None = None,
              log_path: str | Path | None = None, with_figures: bool = True,
-             progress: Callable[[str], None] | None = None) -> UnitRun:
+             progress: Callable[[str], None] | None = None, defer_log: bool = False) -> UnitRun:
     """Measure (and fit) one unit's captures, write its HTML report and JSON twin, log the run.
 
     Parameters
@@ -378,6 +381,9 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
         Draw the inline SVG figures.
     progress : callable, optional
         Called with a short text before each step (the command line shows it on stderr).
+    defer_log : bool
+        Do not write the log; return what would be appended as ``UnitRun.log_entry``
+        (plain, picklable data) so that a batch appends every unit from one process.
 
     Returns
     -------
@@ -417,20 +423,29 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     html_text = render_html(report, figs)
     html_path, json_path = write_report(report, html_text, out_dir)
     run_id = None
-    if log_path is not None:
+    entry = None
+    if log_path is not None or defer_log:
         from benchfit.log.store import append_run
 
         caps = [("as-found", c) for c, _ in found] + [("as-left", c) for c, _ in left]
         meas = [("as-found", m) for _, m in found] + [("as-left", m) for _, m in left]
         fits = [("as-found", f) for f in fits_found] + [("as-left", f) for f in fits_left]
+        if defer_log:  # the same content as plain data (what append_run makes of the objects)
+            caps = [(role, {"path": c.source, "sha256": c.sha256,
+                            "metadata": {**dict(c.metadata), "calibration": c.calibration.to_dict()}})
+                    for role, c in caps]
+            meas = [(role, m.to_dict(full=True)) for role, m in meas]
+            fits = [(role, f.to_dict()) for role, f in fits]
         decisions = [{"quantity": r["quantity"], "channel": r["channel"], "label": r["label"],
                       "value": r["as_left"]["value"], "expanded_u": r["as_left"]["expanded_u"],
                       "lower": r["lower"], "upper": r["upper"], "unit": r["unit"],
                       "rule": r["as_left"]["rule"], "decision": r["decision"], "note": r["as_left"]["note"]}
                      for r in report["results"]]
-        run_id = append_run(log_path, command="report", operator=operator, unit=unit, captures=caps,
-                            measurements=meas, fits=fits, decisions=decisions, verdict=report["verdict"],
-                            details={"spec": sp.path, "spec_name": sp.name, "html": str(html_path),
-                                     "json": str(json_path)})
+        entry = dict(command="report", operator=operator, unit=unit, captures=caps,
+                     measurements=meas, fits=fits, decisions=decisions, verdict=report["verdict"],
+                     details={"spec": sp.path, "spec_name": sp.name, "html": str(html_path),
+                              "json": str(json_path)})
+        if not defer_log:
+            run_id = append_run(log_path, **entry)
     return UnitRun(html_path=html_path, json_path=json_path, verdict=report["verdict"],
-                   exit_code=report["exit_code"], run_id=run_id)
+                   exit_code=report["exit_code"], run_id=run_id, log_entry=entry if defer_log else None)

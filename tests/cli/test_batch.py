@@ -318,3 +318,35 @@ def test_report_options_that_do_not_fit_together(batch, run, tmp_path):
         assert res.returncode == 2, args
         assert res.stderr.startswith("error: ") and len(res.stderr.strip().splitlines()) == 1, res.stderr
     assert list(tmp_path.glob("*.html")) == []
+
+
+def test_deferred_log_entry_stores_what_run_unit_stores(batch, tmp_path):
+    # report --each appends each unit's run in the parent from the entry its worker returns;
+    # the stored run must be the one run_unit writes itself
+    from benchfit.log.store import append_run, get_run
+    from benchfit.report.assemble import run_unit
+
+    capture = batch["dir"] / "box_c.wav"
+    direct_log, deferred_log = tmp_path / "direct.sqlite", tmp_path / "deferred.sqlite"
+    direct = run_unit([capture], unit="HC-03", spec=batch["spec"], out_dir=tmp_path / "a",
+                      log_path=direct_log, with_figures=False)
+    deferred = run_unit([capture], unit="HC-03", spec=batch["spec"], out_dir=tmp_path / "b",
+                        log_path=None, with_figures=False, defer_log=True)
+    assert direct.log_entry is None and deferred.run_id is None
+    import pickle
+
+    entry = pickle.loads(pickle.dumps(deferred.log_entry))  # it travels back from a worker
+    run_id = append_run(deferred_log, **entry)
+
+    def stored(log, rid):
+        run = get_run(log, rid)
+        strip = {"id", "run_id", "capture_id", "time_utc", "details_json", "details"}
+        return ({k: v for k, v in run.items() if k not in strip | {"captures", "results", "decisions"}},
+                [{k: v for k, v in c.items() if k not in strip} for c in run["captures"]],
+                [{k: v for k, v in r.items() if k not in strip} for r in run["results"]],
+                [{k: v for k, v in d.items() if k not in strip} for d in run["decisions"]])
+
+    a, b = stored(direct_log, direct.run_id), stored(deferred_log, run_id)
+    assert a == b
+    assert any(r["quantity"] == "frequency_hz" and r["value"] is not None for r in a[2])
+    assert [d["decision"] for d in a[3]] == ["pass", "pass", "pass"]
