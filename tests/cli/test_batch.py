@@ -297,12 +297,15 @@ def test_report_each_logs_every_unit(units, batch, run, tmp_path):
 
     log = tmp_path / "log.sqlite"
     res = run("report", str(units), "--each", "--spec", str(batch["spec"]), "--out", str(tmp_path / "r"),
-              "--log", str(log), "--no-figures", "--jobs", "2")
+              "--log", str(log), "--no-figures", "--jobs", "2", "--json")
     assert res.returncode == 1, res.stderr
     runs = list_runs(log)
     assert sorted((r["unit"], r["verdict"]) for r in runs) == [
         ("HC-01", "pass"), ("HC-02", "pass"), ("HC-03", "pass"), ("HC-04", "fail")]
     assert {r["command"] for r in runs} == {"report"}
+    printed = {o["unit"]: o["run_id"] for o in _lines(res.stdout)}
+    assert printed == {r["unit"]: r["id"] for r in runs}  # each line names the run it logged
+    assert all(o["log"] == str(log) for o in _lines(res.stdout))
 
 
 def test_report_options_that_do_not_fit_together(batch, run, tmp_path):
