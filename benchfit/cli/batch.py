@@ -18,11 +18,14 @@ Pieces:
   in the parent for each file in completion order (so output streams and the measurement
   log is written by one process only).
 
-Start method: the pool uses the ``forkserver`` context with this module's job imports
-preloaded into the server (measured on the 2-core development machine: first results of a
-two-worker pool after 0.31–0.50 s, against 0.66–0.77 s for plain ``forkserver`` and
-0.72 s for ``spawn``; ``fork`` is avoided because the parent may hold threads and open
-SQLite connections). Where ``forkserver`` does not exist, ``spawn`` is used.
+Start method: the pool uses the ``forkserver`` context with the measurement modules
+preloaded into the server: the server imports numpy/scipy once and forks the workers
+from it. Measured on the 2-core development machine (with other processes running):
+two files through a fresh two-worker pool took 0.42–0.51 s with ``forkserver`` + preload
+against 0.61–0.81 s with ``spawn`` (scripts/bench_batch.py), and the first results of a
+bare pool came after 0.31–0.50 s against 0.66–0.77 s for ``forkserver`` without preload.
+``fork`` is avoided because the parent may hold threads and open SQLite connections.
+Where ``forkserver`` does not exist, ``spawn`` is used.
 Worker processes ignore Ctrl-C; the parent cancels the queued jobs and exits 130. Each
 worker's BLAS/OpenMP libraries get CPU count ÷ workers threads (unless the user set
 ``OPENBLAS_NUM_THREADS`` etc.): with one BLAS thread per CPU in every worker, two workers
