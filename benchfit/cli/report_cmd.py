@@ -21,14 +21,18 @@ import typer
 from benchfit.cli.app import app
 
 _EXAMPLE = """
+
 Example:
 
+\b
   benchfit report hc07_left.wav --as-found hc07_found.wav --unit HC-07 \\
       --spec sample_captures/hc_spec.toml --operator "R. Okafor" --out reports/
 
 A batch of units, one report each (serial from each sidecar's "unit" key, else the file name):
 
-  benchfit report captures/ --each --spec sample_captures/hc_spec.toml --out reports/ --jobs 2
+\b
+  benchfit report captures/ --each --spec sample_captures/hc_spec.toml \\
+      --out reports/ --jobs 2
 
 Exit status 1 when a unit fails its spec; 2 when a capture could not be reported (in a
 batch the others are still reported, and 2 wins over 1).
