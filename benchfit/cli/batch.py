@@ -104,9 +104,10 @@ def collect_captures(paths: Iterable[str | os.PathLike[str]], *, recursive: bool
     files : list of Path
         Files in argument order; each folder's files sorted by their path. A file given
         twice is taken once. A named file that does not exist is kept, so that its job
-        reports it like any other bad file.
+        reports it like any other bad file. A named ``.json`` file beside a capture of
+        the same stem is that capture's sidecar and is left out.
     notes : list of str
-        One line per folder that holds no capture file.
+        One line per folder that holds no capture file and per sidecar left out.
     """
     files: list[Path] = []
     seen: set[str] = set()
@@ -121,6 +122,11 @@ def collect_captures(paths: Iterable[str | os.PathLike[str]], *, recursive: bool
     for raw in paths:
         p = Path(raw)
         if not p.is_dir():
+            partner = _sidecar_partner(p)
+            if partner is not None:  # e.g. a shell pattern HC-07.* that also matched the sidecar
+                notes.append(f"{p}: a sidecar, not a capture — skipped (it is applied when {partner.name} "
+                             "is read)")
+                continue
             add(p)
             continue
         found = p.rglob("*") if recursive else p.iterdir()
@@ -133,6 +139,17 @@ def collect_captures(paths: Iterable[str | os.PathLike[str]], *, recursive: bool
         for f in picked:
             add(f)
     return files, notes
+
+
+def _sidecar_partner(path: Path) -> Path | None:
+    """The capture a ``.json`` file is the sidecar of (same stem, audio extension), or None."""
+    if path.suffix.lower() != ".json":
+        return None
+    for suffix in CAPTURE_SUFFIXES:
+        for candidate in (path.with_suffix(suffix), path.with_suffix(suffix.upper())):
+            if candidate.is_file():
+                return candidate
+    return None
 
 
 def default_jobs() -> int:

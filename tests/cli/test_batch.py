@@ -146,6 +146,9 @@ def test_collect_captures_picks_by_extension_sorted_and_skips_sidecars(tmp_path)
     named, _ = collect_captures([tmp_path / "h.md", tmp_path / "b.wav", tmp_path, tmp_path / "gone.wav"])
     assert [f.name for f in named][:2] == ["h.md", "b.wav"]
     assert [f.name for f in named].count("b.wav") == 1 and named[-1].name == "gone.wav"
+    # a shell pattern that also matched a sidecar: the sidecar is named in a note, not measured
+    files, notes = collect_captures([tmp_path / "c.csv", tmp_path / "c.json"])
+    assert [f.name for f in files] == ["c.csv"] and len(notes) == 1 and "sidecar" in notes[0]
     empty = tmp_path / "empty"
     empty.mkdir()
     files, notes = collect_captures([empty])
