@@ -318,6 +318,8 @@ def test_report_options_that_do_not_fit_together(batch, run, tmp_path):
         ("report", str(batch["dir"]), "--each", "--unit", "HC-01", "--spec", spec, "--no-log"),
         ("report", str(batch["dir"]), "--each", "--as-found", str(batch["dir"] / "HC-01.wav"),
          "--spec", spec, "--no-log"),
+        # a missing spec is one error before any unit is judged, not one per capture
+        ("report", str(batch["dir"]), "--each", "--spec", str(tmp_path / "nospec.toml"), "--no-log"),
     ]
     for args in cases:
         res = run(*args, "--out", str(tmp_path))
