@@ -119,7 +119,7 @@ def test_several_files_one_object_per_line_and_partial_failure(wavs, run):
     res = run("measure", str(wavs["stereo"]), str(wavs["mono"]), "--json")
     assert res.returncode == 0, res.stderr
     objs = [json.loads(line) for line in res.stdout.strip().splitlines()]
-    assert [Path(o["file"]).name for o in objs] == ["HC-02_as-left.wav", "HC-02_output.wav"]
+    assert sorted(Path(o["file"]).name for o in objs) == ["HC-02_as-left.wav", "HC-02_output.wav"]
     bad = run("measure", str(wavs["mono"]), str(wavs["dir"] / "missing.wav"), "--json")
     assert bad.returncode == 2
     assert len(bad.stdout.strip().splitlines()) == 1  # the good file is still measured
