@@ -509,6 +509,15 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     fall_idx = np.flatnonzero(~e.rising)
     rise, rise_u = _mean_u((e.t90[rise_idx] - e.t10[rise_idx]) / fs)
     fall, fall_u = _mean_u((e.t10[fall_idx] - e.t90[fall_idx]) / fs)
+    # A transition within a few samples is resolved no better than the sampling grid: each
+    # 10 % and 90 % instant then carries a rectangular error of ±Ts/2 that repeats from edge
+    # to edge (so it does not average out); GUM 4.3.7 gives u = Ts/√12 per instant, √2 of it
+    # for their difference.
+    u_grid = math.sqrt(2.0) / (fs * math.sqrt(12.0))
+    if rise is not None and rise < 3.0 / fs:
+        rise_u = math.hypot(rise_u or 0.0, u_grid)
+    if fall is not None and fall < 3.0 / fs:
+        fall_u = math.hypot(fall_u or 0.0, u_grid)
     duty = duty_u = period = None
     edge_t = edge_u = None
     n_periods = 0

@@ -35,7 +35,7 @@ from benchfit.measurement.distortion import analyse_distortion, max_harmonic_ord
 from benchfit.measurement.levels import find_clipping, signal_levels
 from benchfit.measurement.pulse import pulse_parameters
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
-from benchfit.measurement.tone import fit_tone
+from benchfit.measurement.tone import fit_harmonics, fit_tone
 
 __all__ = ["measure", "measure_channel", "DEFAULT_HARMONICS"]
 
@@ -141,6 +141,9 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         u_fit = f * pulse.edge_period_u_s / pulse.edge_period_s
         u_f = math.sqrt(u_fit ** 2 + (abs(f) * float(timebase_u_ppm) * 1e-6) ** 2)
         method = "edge regression (IEEE 181 period)"
+        # the harmonic table and THD at k × the reported frequency (linear fit, same orders)
+        fit = fit_harmonics(x, fs, f, orders=fit.orders)
+        dist = analyse_distortion(x, fs, fit)
     if pulse.two_level:
         warnings.extend(pulse.warnings)
         if pulse.coupling_source == "estimated" and (pulse.droop_pct or 0.0) >= _DROOP_WARN_PCT:
