@@ -120,30 +120,34 @@ def demo_command(
     tour = _Tour(out)
 
     tour.section("benchfit demo", (
-        "Scenario (invented): a makerspace group builds 'hum-check' boxes HC-01 … HC-12, each a\n"
-        "555-style astable (12 V) whose square is divided down and filtered by an L-C low-pass\n"
-        "(two 150 mH chokes in series, a 33 µF bank) into a 50 Hz sine across 10 kΩ.\n"
+        "Scenario (invented): a makerspace group builds 'hum-check' boxes HC-01 … HC-12, each a "
+        "555-style astable (12 V) whose square is divided down and filtered by an L-C low-pass "
+        "(two 150 mH chokes in series, a 33 µF bank) into a 50 Hz sine across 10 kΩ. "
         "Spec: 50.00 Hz ± 0.25 Hz, THD ≤ 5 %, 1.0–1.6 V rms. All captures are synthetic.\n"
-        "Safety: a sound card's line-in takes about 1–2 V peak — use an attenuator and a\n"
-        "DC-blocking capacitor, never connect mains; see README 'Safety cautions'."))
+        "Safety: a sound card's line-in takes about 1–2 V peak — use an attenuator and a "
+        "DC-blocking capacitor, never connect mains; see the README's safety cautions."))
 
-    tour.section("1. Measure", "A scope CSV of HC-03's timer (European dialect: ';' and decimal comma),\n"
-                 "then the sound-card recordings of the batch (WAV/FLAC with calibration sidecars).")
+    tour.section("1. Measure", "A scope CSV of HC-03's timer (European dialect: ';' and decimal comma), "
+                 "then the sound-card recordings of the batch (WAV/FLAC with calibration sidecars), "
+                 "measured in parallel as JSON lines.")
     tour.run(["measure", s("hc03_timer_scope.csv"), "--harmonics", "10"])
+    batch_file = out / "batch_measurements.jsonl"
     tour.run(["measure", *sorted(str(p) for p in src.glob("hc0[1-7]_*.flac")), s("hc07_output.wav"),
-              "--json", *job_args], save_stdout=out / "batch_measurements.jsonl")
+              "--json", *job_args], save_stdout=batch_file)
+    _summarise_measurements(batch_file)
 
     tour.section("2. Fit the effective parts",
-                 "Two-channel (drive and output on the scope), with the chokes' inductance and the\n"
-                 "load known; then one-channel (the sound card sees only the output); then a ring-down.")
+                 "Two-channel (drive and output on the scope), with the chokes' inductance and the "
+                 "load known; then one-channel (the sound card sees only the output); then a ring-down "
+                 "of HC-05's bare tank.")
     tour.run(["fit", s("hc03_drive_output_scope.csv"), "--model", "lc-lowpass",
               "--fix", "L=300m", "--fix", "Rload=10k", "--plot", str(out / "hc03_two_channel_fit.svg")])
     tour.run(["fit", s("hc03_asleft.wav"), "--model", "lc-lowpass", "--fix", "L=300m", "--fix", "Rload=10k"])
     tour.run(["fit", s("hc05_ringdown_scope.csv"), "--model", "ringdown"])
 
     tour.section("3. Calibration reports",
-                 "HC-03 was found running at 50.40 Hz and trimmed; HC-07 has a wrong choke and fails on THD.\n"
-                 "Exit code 1 marks a failing unit, so scripts can gate on it.")
+                 "HC-03 was found running at 50.40 Hz and trimmed; HC-07 has a wrong choke and fails "
+                 "on THD. Exit code 1 marks a failing unit, so scripts can gate on it.")
     tour.run(["report", s("hc03_asleft.wav"), "--as-found", s("hc03_asfound.wav"), "--unit", "HC-03",
               "--spec", spec, "--operator", "demo", "--out", str(out / "reports"), "--log", log])
     tour.run(["report", *sorted(str(p) for p in src.glob("hc0[1-7]_*.flac")), s("hc07_output.wav"),
@@ -156,23 +160,78 @@ def demo_command(
         tour.run(["log", "stats", quantity, "--spec", spec, "--log", log])
 
     tour.section("5. Trim advice",
-                 "HC-07: fit with its capacitor bank measured (33 µF) to find the effective inductance,\n"
-                 "then ask which capacitance brings the tank back to 50 Hz. HC-03 as found: the new RB.")
+                 "HC-07: fit with its capacitor bank measured (33 µF) to find the effective inductance "
+                 "(about 198 mH against 300 mH nominal: check the chokes first), then ask which "
+                 "capacitance would bring the tank back to 50 Hz. HC-03 as found: the new RB or "
+                 "control voltage for its timer.")
     fit_json = out / "hc07_fit.json"
     tour.run(["fit", s("hc07_output.wav"), "--model", "lc-lowpass", "--fix", "C=33u", "--fix", "Rload=10k",
               "--json"], save_stdout=fit_json)
     tour.run(["design", "trim", "--fit", str(fit_json), "--target", "50", "--bank", "22u,10u,1u"])
-    tour.run(["design", "trim", "--target", "50", "--timer-frequency", "50.40", *_TIMER])
+    tour.run(["design", "trim", "--target", "50", "--timer-frequency", "50.40", "--timer-frequency-u",
+              "0.001", *_TIMER])
 
     elapsed = time.perf_counter() - started
-    reports = sorted((out / "reports").glob("*.html"))
+    index = _write_index(out / "reports")
     tour.section("Done")
-    stdout.print(f"{len(reports)} reports in {out / 'reports'} (and their JSON twins); log {log}; "
-                 f"{elapsed:.1f} s.", markup=False)
-    if reports:
-        stdout.print(f"Open them with:  python3 -m webbrowser -t {shlex.quote(reports[0].resolve().as_uri())}"
-                     if len(reports) == 1 else
-                     f"Open them with:  python3 -m http.server -d {shlex.quote(str((out / 'reports').resolve()))} "
-                     "8000   then browse http://localhost:8000/", markup=False)
+    n_reports = len(list((out / "reports").glob("*.html"))) - 1
+    stdout.print(f"{n_reports} calibration reports (HTML + JSON) in {out / 'reports'}, the log in {log}, "
+                 f"figures and fit results in {out}; {elapsed:.1f} s.", markup=False)
+    stdout.print("Open the reports with:", markup=False)
+    stdout.print(f"  python3 -m webbrowser {shlex.quote(index.resolve().as_uri())}", markup=False,
+                 highlight=False)
     if tour.failed:
         fail(f"demo: {len(tour.failed)} step(s) did not do what was expected: {'; '.join(tour.failed)}")
+
+
+def _summarise_measurements(jsonl: Path) -> None:
+    """A compact table of the batch's JSON lines (rendering only: the numbers are measure's)."""
+    import json
+
+    from rich.table import Table
+
+    from benchfit.cli.common import stdout
+    from benchfit.units import format_with_uncertainty
+
+    table = Table(title="batch summary (output channel)", title_justify="left", box=None, pad_edge=False)
+    for col in ("file", "frequency", "rms", "THD"):
+        table.add_column(col, justify="left" if col == "file" else "right")
+    lines = [json.loads(x) for x in jsonl.read_text(encoding="utf-8").splitlines() if x.strip()]
+    for d in sorted(lines, key=lambda d: d["file"]):
+        ch = d["channels"][0]
+        thd = "—" if ch["thd_pct"] is None else f"{ch['thd_pct']:.2f} %"
+        table.add_row(Path(d["file"]).name, format_with_uncertainty(ch["frequency_hz"], ch["frequency_u_hz"], "Hz"),
+                      f"{ch['vrms']:.4f} {ch['unit']}", thd)
+    stdout.print(table)
+
+
+def _write_index(reports: Path) -> Path:
+    """reports/index.html: every report in the folder with its unit and verdict (links only)."""
+    import html
+    import json
+
+    rows = []
+    for page in sorted(reports.glob("*.html")):
+        if page.name == "index.html":
+            continue
+        twin = page.with_suffix(".json")
+        unit, verdict, when = page.stem, "", ""
+        if twin.is_file():
+            try:
+                d = json.loads(twin.read_text(encoding="utf-8"))
+                unit, verdict, when = str(d.get("unit", unit)), str(d.get("verdict", "")), str(d.get("created_utc", ""))
+            except (ValueError, OSError):
+                pass
+        rows.append(f"<tr><td><a href=\"{html.escape(page.name)}\">{html.escape(unit)}</a></td>"
+                    f"<td class=\"{html.escape(verdict.replace(' ', '-'))}\">{html.escape(verdict)}</td>"
+                    f"<td>{html.escape(when)}</td></tr>")
+    index = reports / "index.html"
+    index.write_text(
+        "<!doctype html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>benchfit reports</title>"
+        "<style>body{font-family:system-ui,sans-serif;margin:2rem;color:#222}"
+        "table{border-collapse:collapse}td,th{padding:.3rem .9rem;border-bottom:1px solid #ccc;text-align:left}"
+        ".fail,.conditional-fail{color:#a00;font-weight:600}.pass{color:#064}</style></head><body>"
+        "<h1>Calibration reports</h1><p>Synthetic demo data (hum-check boxes).</p>"
+        "<table><tr><th>unit</th><th>decision</th><th>made (UTC)</th></tr>" + "".join(rows) +
+        "</table></body></html>\n", encoding="utf-8")
+    return index
