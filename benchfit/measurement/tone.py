@@ -29,7 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["HarmonicFit", "dft_frequency_seed", "fit_harmonics", "fit_tone"]
+__all__ = ["HarmonicFit", "dft_frequency_seed", "fit_harmonics", "fit_tone", "synthesize"]
 
 _SEGMENT = 4096
 
@@ -400,3 +400,17 @@ def fit_tone(x: np.ndarray, sample_rate: float, n_harmonics: int = 1,
     if seed is None or seed <= 0:
         return None
     return fit_harmonics(x, sample_rate, seed, n_harmonics, fit_frequency=True)
+
+
+def synthesize(dc: float, frequencies_hz, amplitudes, phases_deg, n_samples: int,
+               sample_rate: float) -> np.ndarray:
+    """The waveform ``dc + Σ A_k·cos(2π f_k t + φ_k)`` at t = n/fs, n = 0…n_samples−1.
+
+    Evaluates a harmonic table (e.g. ``ChannelMeasurement.harmonics``: frequency in Hz, peak
+    amplitude, phase in degrees referred to the first sample) as the model of the capture.
+    """
+    t = np.arange(int(n_samples)) / float(sample_rate)
+    y = np.full(t.size, float(dc))
+    for f, a, ph in zip(frequencies_hz, amplitudes, phases_deg):
+        y += float(a) * np.cos(2 * math.pi * float(f) * t + math.radians(float(ph)))
+    return y

@@ -337,13 +337,19 @@ def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: S
                   if r["as_left"]["file"] == measurement.file and r["as_left"]["channel"]]
         name = chosen[0] if chosen else measurement.channels[-1].name
         idx = capture.channel_index(name)
-        model = None
-        for f in fits:
-            if f.file == measurement.file and f.curves.model.size == capture.n_samples:
-                model = f.curves.model
-                break
+        ch = measurement.channels[idx]
+        model = label = None
+        if ch.harmonics:
+            # the measurement's own harmonic model (DC + orders 1…H), evaluated, not refitted
+            from benchfit.measurement.tone import synthesize
+
+            model = synthesize(ch.vdc, [h.frequency_hz for h in ch.harmonics],
+                               [h.amplitude for h in ch.harmonics], [h.phase_deg for h in ch.harmonics],
+                               capture.n_samples, capture.sample_rate)
+            label = f"harmonic model, orders 1…{len(ch.harmonics)}"
         out.append({"title": f"Waveform — {capture.source or 'capture'}, channel {name}",
-                    "svg": str(figures.waveform_svg(capture, channel=idx, model=model, periods=4))})
+                    "svg": str(figures.waveform_svg(capture, channel=idx, model=model, periods=4,
+                                                    model_label=label or "model"))})
         out.append({"title": f"Harmonic spectrum — {capture.source or 'capture'}, channel {name}",
                     "svg": str(figures.spectrum_svg(measurement.channels[idx]))})
     for f in fits:

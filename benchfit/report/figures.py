@@ -93,7 +93,7 @@ def _time_unit(span_s: float) -> tuple[float, str]:
 
 
 def waveform_svg(capture, channel: int | str = 0, model: np.ndarray | None = None,
-                 periods: int = 4) -> str:
+                 periods: int = 4, model_label: str = "model") -> str:
     """A few periods of one channel of a capture, optionally with a model overlay.
 
     Parameters
@@ -103,7 +103,10 @@ def waveform_svg(capture, channel: int | str = 0, model: np.ndarray | None = Non
     channel : int or str
         Channel index (0-based) or name.
     model : ndarray, optional
-        Model samples aligned with the capture's samples (same length), same unit.
+        Model samples aligned with the capture's first samples (same unit); it may be shorter
+        than the capture (only the overlapping part is drawn).
+    model_label : str
+        Legend text of the model curve.
     periods : int
         Number of periods of the strongest spectral component to show (the whole record
         when no period can be found or the record is shorter).
@@ -135,8 +138,9 @@ def waveform_svg(capture, channel: int | str = 0, model: np.ndarray | None = Non
         ax.plot(t * scale, x[:n_show], color=_INK, lw=1.1, label="captured")
         if model is not None:
             m = np.asarray(model, dtype=float)
-            if m.size == n:
-                ax.plot(t * scale, m[:n_show], color=_MODEL, lw=1.0, ls="--", label="model")
+            k = min(m.size, n_show)  # a model aligned with the first samples; may be shorter
+            if k:
+                ax.plot(t[:k] * scale, m[:k], color=_MODEL, lw=1.0, ls="--", label=model_label)
         ax.set_xlabel(f"time ({tu})")
         ax.set_ylabel(f"{capture.channel_names[idx]} ({unit})")
         title = capture.channel_names[idx]
