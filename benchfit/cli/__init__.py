@@ -1,7 +1,8 @@
 """benchfit's command line. ``main()`` is the console-script entry point.
 
 Errors: every :class:`~benchfit.errors.BenchfitError` becomes one line ``error: …`` on
-stderr and its exit code (2 bad input, 3 audio device unavailable); usage errors exit 2;
+stderr and its exit code (2 bad input, 3 audio device unavailable); usage errors (unknown
+option, bad option value, missing argument) are one line too, naming the option, exit 2;
 Ctrl-C exits 130. Exit code 1 is reserved for "a unit failed its spec".
 """
 
@@ -9,7 +10,7 @@ from __future__ import annotations
 
 import sys
 
-__all__ = ["main"]
+__all__ = ["main", "usage_message"]
 
 _COMMAND_MODULES = ("measure_cmd", "fit_cmd", "live_cmd", "report_cmd", "log_cmd",
                     "design_cmd", "demo_cmd")
@@ -26,16 +27,146 @@ def get_app():
     return app
 
 
+def _hint(e) -> str:
+    """The option or argument a click error is about, as the user types it (``--jobs``, ``FILES``)."""
+    hint = getattr(e, "param_hint", None)
+    param = getattr(e, "param", None)
+    if hint is None and param is not None:
+        opts = list(getattr(param, "opts", None) or [])
+        if getattr(param, "param_type_name", "") == "argument" or not opts:
+            hint = str(param.name or "").upper()
+        else:
+            longs = [o for o in opts if o.startswith("--")]
+            hint = max(longs or opts, key=len)
+    if isinstance(hint, (list, tuple)):
+        hint = " / ".join(str(h) for h in hint)
+    return str(hint or "").strip("'\"")
+
+
+def _is_argument(e) -> bool:
+    param = getattr(e, "param", None)
+    return getattr(e, "param_type", None) == "argument" or (
+        param is not None and getattr(param, "param_type_name", "") == "argument")
+
+
+def _click():
+    """The click exception classes typer raises (typer ≥ 0.20 carries its own copy of click)."""
+    try:
+        from typer._click import exceptions as ex
+    except ImportError:  # an older typer raises click's own
+        from click import exceptions as ex
+    return ex
+
+
+def _bad_value_text(e) -> str:
+    """What is wrong with a value typer could not convert: the value as typed and the rule it breaks."""
+    text = " ".join(str(e.message).split()).rstrip(".")
+    cause = e.__cause__
+    errors = getattr(cause, "errors", None)
+    if callable(errors):
+        try:
+            first = errors()[0]
+        except (IndexError, TypeError, ValueError):
+            return text
+        kind, ctx, value = first.get("type", ""), first.get("ctx") or {}, first.get("input")
+        rules = {"int_parsing": "not a whole number", "int_from_float": "not a whole number",
+                 "float_parsing": "not a number", "bool_parsing": "not true or false",
+                 "greater_than_equal": f"must be {ctx.get('ge')} or more",
+                 "greater_than": f"must be more than {ctx.get('gt')}",
+                 "less_than_equal": f"must be {ctx.get('le')} or less",
+                 "less_than": f"must be less than {ctx.get('lt')}"}
+        rule = rules.get(kind, text[:1].lower() + text[1:])
+        return f"{value!r}: {rule}"
+    return text
+
+
+def _command_path(app, argv: list[str] | None) -> str:
+    """``benchfit`` and the (sub)command names at the start of ``argv`` (for errors that carry no context)."""
+    import typer.main
+
+    words = ["benchfit"]
+    try:
+        cmd = typer.main.get_command(app)
+    except Exception:  # noqa: BLE001 - only a nicer hint is lost
+        return "benchfit"
+    for token in sys.argv[1:] if argv is None else argv:
+        sub = getattr(cmd, "commands", {}).get(token)
+        if sub is None:
+            break
+        words.append(token)
+        cmd = sub
+    return " ".join(words)
+
+
+def usage_message(e, fallback_path: str = "benchfit") -> str:
+    """One line for a click usage error: ``<option>: <what is wrong> — see 'benchfit … --help'``."""
+    click = _click()
+
+    ctx = getattr(e, "ctx", None)
+    where = ctx.command_path if ctx is not None and ctx.command_path else fallback_path
+    fix = f"see '{where} --help'"
+    if isinstance(e, click.MissingParameter):
+        hint = _hint(e)
+        return f"{hint}: missing {'argument' if _is_argument(e) else 'option'} — give it; {fix}"
+    if isinstance(e, click.BadParameter):
+        text = _bad_value_text(e)
+        sep = " " if text.startswith("'") else ": "
+        return f"{_hint(e)}{sep}{text} — {fix}"
+    if isinstance(e, click.NoSuchOption):
+        text = f"{e.option_name}: no such option for '{where}'"
+        if e.possibilities:
+            text += f" (did you mean {', '.join(e.possibilities)}?)"
+        return f"{text} — {fix}"
+    if isinstance(e, click.BadOptionUsage):
+        text = " ".join(str(e.message).split()).rstrip(".")
+        name = getattr(e, "option_name", "")
+        if "requires an argument" in text:
+            n = getattr(e, "nargs", 1) or 1
+            return f"{name}: needs {'a value' if n == 1 else f'{n} values'} — {fix}"
+        return f"{name}: {text} — {fix}" if name and name not in text else f"{text} — {fix}"
+    if "No such command" in str(e.message):
+        text = " ".join(str(e.message).split()).rstrip(".")
+        return f"{where}: {text[0].lower()}{text[1:]} — {fix}"
+    if "unexpected extra argument" in str(e.message):
+        extra = str(e.message).rpartition("(")[2].rstrip(").")
+        return f"{where}: unexpected extra argument(s) {extra} — quote a value that has spaces; {fix}"
+    text = " ".join(str(e.format_message()).split()).rstrip(".")
+    return f"{where}: {text} — {fix}"
+
+
+def _error(message: str, code: int) -> None:
+    sys.stdout.flush()
+    sys.stderr.write(f"error: {message}\n")
+    sys.stderr.flush()
+    raise SystemExit(code) from None
+
+
 def main(argv: list[str] | None = None) -> None:
+    import typer
+
     from benchfit.errors import BenchfitError
 
+    click = _click()
     app = get_app()
     try:
-        app(args=argv, prog_name="benchfit")
+        code = app(args=argv, prog_name="benchfit", standalone_mode=False)
     except BenchfitError as e:
-        sys.stderr.write(f"error: {e}\n")
-        sys.stderr.flush()
-        raise SystemExit(getattr(e, "exit_code", 2)) from None
+        _error(str(e), getattr(e, "exit_code", 2))
+    except click.NoArgsIsHelpError as e:
+        e.show()  # a group or command given no arguments prints its help (exit 2, as click does)
+        raise SystemExit(e.exit_code) from None
+    except click.UsageError as e:
+        _error(usage_message(e, _command_path(app, argv)), e.exit_code)
+    except click.ClickException as e:  # e.g. a file option typer opens itself
+        _error(" ".join(e.format_message().split()), e.exit_code)
+    except typer.Abort:
+        sys.stderr.write("aborted\n")
+        raise SystemExit(1) from None
     except KeyboardInterrupt:
         sys.stderr.write("interrupted\n")
         raise SystemExit(130) from None
+    # standalone_mode=False returns the code of click/typer Exit (0 for --help, 130 for Ctrl-C)
+    if isinstance(code, int) and not isinstance(code, bool) and code != 0:
+        if code == 130:
+            sys.stderr.write("interrupted\n")
+        raise SystemExit(code)
