@@ -147,12 +147,14 @@ def demo_command(
 
     tour.section("3. Calibration reports",
                  "HC-03 was found running at 50.40 Hz and trimmed; HC-07 has a wrong choke and fails "
-                 "on THD. Exit code 1 marks a failing unit, so scripts can gate on it.")
+                 "on THD. The batch is also fitted (capacitor banks measured at 33 µF), so each report "
+                 "shows the unit's effective parts and a suggested adjustment. Exit code 1 marks a "
+                 "failing unit, so scripts can gate on it.")
     tour.run(["report", s("hc03_asleft.wav"), "--as-found", s("hc03_asfound.wav"), "--unit", "HC-03",
               "--spec", spec, "--operator", "demo", "--out", str(out / "reports"), "--log", log])
     tour.run(["report", *sorted(str(p) for p in src.glob("hc0[1-7]_*.flac")), s("hc07_output.wav"),
               "--each", "--spec", spec, "--operator", "demo", "--out", str(out / "reports"), "--log", log,
-              *job_args], expect=(1,))
+              "--model", "lc-lowpass", "--fix", "C=33u", "--fix", "Rload=10k", *job_args], expect=(1,))
 
     tour.section("4. The log and batch statistics")
     tour.run(["log", "list", "--log", log])

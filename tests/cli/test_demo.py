@@ -1,0 +1,32 @@
+"""`benchfit demo` runs the whole job on the bundled sample captures."""
+
+import json
+import os
+import sqlite3
+import subprocess
+import sys
+
+
+def test_demo_runs_the_whole_job(tmp_path):
+    out = tmp_path / "demo"
+    env = dict(os.environ, MPLBACKEND="Agg", COLUMNS="100")
+    res = subprocess.run([sys.executable, "-m", "benchfit", "demo", "--out", str(out)], capture_output=True,
+                         text=True, env=env, timeout=300)
+    assert res.returncode == 0, res.stdout[-3000:] + res.stderr[-3000:]
+    text = res.stdout
+    for step in ("1. Measure", "2. Fit the effective parts", "3. Calibration reports",
+                 "4. The log and batch statistics", "5. Trim advice", "Open the reports with"):
+        assert step in text
+    reports = sorted(p for p in (out / "reports").glob("*.html") if p.name != "index.html")
+    assert len(reports) == 7  # HC-03 (as found and as left) plus the six units of the batch
+    verdicts = {json.loads(p.with_suffix(".json").read_text())["unit"]:
+                json.loads(p.with_suffix(".json").read_text())["verdict"] for p in reports}
+    assert verdicts["HC-07"] == "fail"  # the unit with the wrong choke (THD about 5.5 %)
+    assert all(v == "pass" for u, v in verdicts.items() if u != "HC-07")
+    assert (out / "reports" / "index.html").is_file()
+    with sqlite3.connect(out / "demo-log.sqlite") as con:
+        assert con.execute("select count(*) from runs").fetchone()[0] == 7
+    # the trim advice for HC-07 adds capacitance (tank at about 62 Hz, target 50 Hz)
+    assert "across the capacitor" in text
+    lines = (out / "batch_measurements.jsonl").read_text().splitlines()
+    assert len(lines) == 6 and all(json.loads(x)["channels"][0]["frequency_hz"] for x in lines)

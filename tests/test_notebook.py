@@ -1,0 +1,41 @@
+"""Notebook use: readable HTML summaries and DataFrames of the result objects."""
+
+import numpy as np
+
+import benchfit
+from benchfit.capture.capture import Capture
+
+
+def _capture():
+    fs = 48_000.0
+    t = np.arange(24_000) / fs
+    y = 1.2 * np.cos(2 * np.pi * 50.3 * t) + 0.05 * np.cos(2 * np.pi * 150.9 * t)
+    return Capture(y, fs, channel_names=("output",), units=("V",), source="<in memory>")
+
+
+def test_measurement_repr_html_and_dataframe():
+    m = benchfit.measure(_capture())
+    html = m._repr_html_()
+    assert "<table>" in html and "output" in html and "Hz" in html
+    df = m.to_dataframe()
+    assert list(df.index) == ["output"]
+    assert abs(df.loc["output", "frequency_hz"] - 50.3) < 1e-6  # noise-free tone, exact fit
+
+
+def test_fit_result_repr_html_and_dataframe():
+    from benchfit.fit.result import DerivedValue, FitParameter, FitQuality, FitResult
+
+    r = FitResult(file="x.wav", model="lc-lowpass", method="two-channel",
+                  parameters={"L": FitParameter(0.3, None, True, "H"), "C": FitParameter(33e-6, 1e-8, False, "F"),
+                              "Rs": FitParameter(24.0, None, False, "ohm")},
+                  derived={"resonant_frequency_hz": DerivedValue(50.5, 0.01)}, correlations={},
+                  quality=FitQuality(0.01, 0.999, 60), warnings=("Rs: not determined",))
+    html = r._repr_html_()
+    assert "not determined" in html and "fixed" in html and "<li>" in html
+    df = r.to_dataframe()
+    assert df.loc["C", "stderr"] == 1e-8 and bool(df.loc["L", "fixed"])
+
+
+def test_capture_repr_html_escapes_names():
+    c = Capture(np.zeros(10), 10.0, channel_names=("<x>",))
+    assert "&lt;x&gt;" in c._repr_html_()
