@@ -2,7 +2,8 @@
 
 Samples come out as float64 full-scale units ("FS", PCM scaled to [-1, 1)); when the
 sidecar JSON next to the file gives a gain per channel, they are multiplied by it and
-the unit becomes "V". A sidecar timebase correction scales the sample rate:
+the unit becomes "V"; the gain's relative standard uncertainty (``gain_u_rel``), when the
+sidecar gives it, goes on in :attr:`Capture.calibration` for measure's uncertainty budget. A sidecar timebase correction scales the sample rate:
 ``fs_true = fs_nominal * (1 + ppm·1e-6)``. The raw file is never rewritten.
 
 A file whose data is shorter than its header declares (a recording cut short, a copy
@@ -238,6 +239,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
             timebase_ppm=cal["timebase_ppm"],
             timebase_u_ppm=cal["timebase_u_ppm"],
             coupling_tau_s=cal["coupling_tau_s"],
+            gain_u_rel=tuple(cal["gain_u_rel"]) if cal.get("gain_u_rel") is not None else None,
         )
         for key, value in sidecar.items():  # device, start_utc, counts, recorder's extras
             if key not in ("benchfit_sidecar", "channels", "calibration", "sample_rate_hz"):

@@ -41,6 +41,12 @@ class InputCalibration:
     coupling_tau_s : float or None
         Time constant of the input's high-pass (AC coupling), in seconds; pulse
         measurements compensate the droop it causes.
+    gain_u_rel : tuple of float or None
+        Relative standard uncertainty (k = 1) of each channel's gain, e.g. 0.003 for
+        0.3 %; it combines the calibration fit with the reference meter's uncertainty.
+        Every level in volts (DC, RMS, amplitude, peak-to-peak) scales with the gain, so
+        measure adds ``value · gain_u_rel`` to their uncertainties. None: not known (old
+        profiles and sidecars), and the levels' uncertainties leave the gain out.
     """
 
     profile: str | None = None
@@ -48,15 +54,25 @@ class InputCalibration:
     timebase_ppm: float = 0.0
     timebase_u_ppm: float = 0.0
     coupling_tau_s: float | None = None
+    gain_u_rel: tuple[float, ...] | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        """The sidecar's ``calibration`` object.
+
+        ``gain_u_rel`` is written only when it is known: a sidecar without the key reads
+        back as "not known", and the five-key object that older benchfit versions write
+        and expect stays the same.
+        """
+        out: dict[str, Any] = {
             "profile": self.profile,
             "gain_v_per_fs": list(self.gain_v_per_fs) if self.gain_v_per_fs else None,
             "timebase_ppm": self.timebase_ppm,
             "timebase_u_ppm": self.timebase_u_ppm,
             "coupling_tau_s": self.coupling_tau_s,
         }
+        if self.gain_u_rel is not None:
+            out["gain_u_rel"] = list(self.gain_u_rel)
+        return out
 
 
 @dataclass(frozen=True, eq=False)
@@ -178,9 +194,12 @@ class Capture:
         """A new capture with only the chosen channels, in the given order."""
         idx = [self.channel_index(k) for k in keys]
         gains = self.calibration.gain_v_per_fs
+        gains_u = self.calibration.gain_u_rel
         cal = self.calibration
         if gains is not None:
             cal = replace(cal, gain_v_per_fs=tuple(gains[i] for i in idx))
+        if gains_u is not None:
+            cal = replace(cal, gain_u_rel=tuple(gains_u[i] for i in idx))
         return replace(
             self,
             samples=self.samples[idx],

@@ -10,8 +10,22 @@ the overflow/clip counts and the input calibration that applies to the raw sampl
      "overflow_count": 0, "clip_count": 0,
      "calibration": {"profile": "name" | null, "gain_v_per_fs": [g1, g2] | null,
                      "timebase_ppm": 0.0, "timebase_u_ppm": 0.0,
-                     "coupling_tau_s": null | float},
-     "benchfit_version": "0.1.0"}
+                     "coupling_tau_s": null | float,
+                     "gain_u_rel": [u1, u2]},
+     "benchfit_version": "0.1.0",
+     "unit": "HC-03"}
+
+Optional keys:
+
+* ``calibration.gain_u_rel`` — relative standard uncertainty (k = 1) of each channel's
+  gain, one number ≥ 0 per channel (0.003 = 0.3 %), from the calibration fit and the
+  reference meter combined. Absent or null: not known (profiles made before benchfit
+  stored it); levels in volts then carry only their noise uncertainty and measure says
+  "gain uncertainty not known".
+* ``unit`` — serial of the unit under test (a string such as ``"HC-03"``), used by
+  reports and the log.
+
+Unknown keys are kept, so files from newer writers stay readable.
 
 The raw audio file is never rewritten; the calibration is applied when the capture is
 loaded. This module only reads, validates and writes the JSON.
@@ -71,7 +85,9 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
     dict
         A copy of ``data`` in which ``calibration`` is always present with all five keys
         (missing ones take their defaults: no profile, no gain, 0 ppm, 0 ppm, no coupling
-        time constant). Unknown keys are kept, so newer writers stay readable.
+        time constant), plus ``gain_u_rel`` when the file gives it (a list of floats; a
+        missing or null key stays absent and means "not known"). Unknown keys are kept,
+        so newer writers stay readable.
 
     Raises
     ------
@@ -107,7 +123,7 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
     if not _is_number(fs) or fs <= 0:
         raise CaptureError(f"{where}: 'sample_rate_hz' must be a positive number of Hz, got {fs!r} — {fix}")
 
-    for key in ("device", "start_utc", "benchfit_version"):
+    for key in ("device", "start_utc", "benchfit_version", "unit"):
         if key in data and data[key] is not None and not isinstance(data[key], str):
             raise CaptureError(f"{where}: {key!r} must be a string, got {data[key]!r} — {fix}")
     if isinstance(data.get("start_utc"), str):
@@ -159,8 +175,32 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
             raise CaptureError(
                 f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {tau!r} — {fix}")
         cal["coupling_tau_s"] = float(tau)
+    if cal_in.get("gain_u_rel") is not None:
+        if gains is None:
+            raise CaptureError(
+                f"{where}: calibration.gain_u_rel is given but gain_v_per_fs is null (an uncertainty needs "
+                f"its gain) — {fix}")
+        cal["gain_u_rel"] = _gain_u_rel(cal_in["gain_u_rel"], len(names), where, fix)
     out["calibration"] = cal
     return out
+
+
+def _gain_u_rel(values: Any, n_channels: int, where: str, fix: str) -> list[float]:
+    """Check ``calibration.gain_u_rel``: one finite number ≥ 0 per channel."""
+    if not isinstance(values, list) or len(values) != n_channels:
+        raise CaptureError(
+            f"{where}: calibration.gain_u_rel must list one relative uncertainty per channel ({n_channels}), "
+            f"got {values!r} — {fix}")
+    for i, u in enumerate(values):
+        if not _is_number(u) or u < 0:
+            raise CaptureError(
+                f"{where}: calibration.gain_u_rel[{i}] must be a finite number ≥ 0 (0.003 = 0.3 %), "
+                f"got {u!r} — {fix}")
+        if u >= 1:
+            raise CaptureError(
+                f"{where}: calibration.gain_u_rel[{i}] = {u!r} is a relative uncertainty of 100 % or more "
+                f"(0.003 means 0.3 %) — {fix}")
+    return [float(u) for u in values]
 
 
 def read_sidecar(audio_path: str | os.PathLike[str]) -> dict[str, Any] | None:
