@@ -467,17 +467,20 @@ def list_runs(db_path: str | Path, *, unit: str | None = None, since: str | None
     sql = ("SELECT r.id, r.time_utc, r.command, u.serial AS unit, r.operator, r.verdict, "
            "r.benchfit_version, (SELECT COUNT(*) FROM captures c WHERE c.run_id = r.id) AS n_captures "
            "FROM runs r LEFT JOIN units u ON u.id = r.unit_id WHERE 1=1")
+    return _select(db_path, sql, [("u.serial = ?", unit), ("r.time_utc >= ?", since)],
+                   " ORDER BY r.time_utc, r.id")
+
+
+def _select(db_path: str | Path, sql: str, filters: list[tuple[str, Any]], order: str) -> list[dict[str, Any]]:
+    """Run ``sql`` (ending in a WHERE clause) with the filters whose value is given, as dicts."""
     args: list[Any] = []
-    if unit:
-        sql += " AND u.serial = ?"
-        args.append(unit)
-    if since:
-        sql += " AND r.time_utc >= ?"
-        args.append(since)
-    sql += " ORDER BY r.time_utc, r.id"
+    for clause, value in filters:
+        if value:
+            sql += f" AND {clause}"
+            args.append(value)
     con = _read(db_path)
     try:
-        return [dict(r) for r in con.execute(sql, args)]
+        return [dict(r) for r in con.execute(sql + order, args)]
     except sqlite3.Error as e:
         raise LogError(f"{db_path}: cannot read the log ({e}) — check the file") from e
     finally:
@@ -525,24 +528,8 @@ def results_rows(db_path: str | Path, *, quantity: str | None = None, unit: str 
            "res.unit AS value_unit, c.path AS file, c.sha256 "
            "FROM results res JOIN runs r ON r.id = res.run_id LEFT JOIN units u ON u.id = r.unit_id "
            "LEFT JOIN captures c ON c.id = res.capture_id WHERE 1=1")
-    args: list[Any] = []
-    if quantity:
-        sql += " AND res.quantity = ?"
-        args.append(quantity)
-    if unit:
-        sql += " AND u.serial = ?"
-        args.append(unit)
-    if since:
-        sql += " AND r.time_utc >= ?"
-        args.append(since)
-    sql += " ORDER BY r.time_utc, r.id, res.id"
-    con = _read(db_path)
-    try:
-        return [dict(r) for r in con.execute(sql, args)]
-    except sqlite3.Error as e:
-        raise LogError(f"{db_path}: cannot read the log ({e}) — check the file") from e
-    finally:
-        con.close()
+    return _select(db_path, sql, [("res.quantity = ?", quantity), ("u.serial = ?", unit),
+                                  ("r.time_utc >= ?", since)], " ORDER BY r.time_utc, r.id, res.id")
 
 
 def iter_quantities(rows: Iterable[Mapping[str, Any]]) -> list[str]:
