@@ -166,7 +166,6 @@ def main(argv: list[str] | None = None) -> None:
         sys.stderr.write("interrupted\n")
         raise SystemExit(130) from None
     # standalone_mode=False returns the code of click/typer Exit (0 for --help, 130 for Ctrl-C)
-    if isinstance(code, int) and not isinstance(code, bool) and code != 0:
-        if code == 130:
-            sys.stderr.write("interrupted\n")
-        raise SystemExit(code)
+    # and always ends with SystemExit, as click's standalone mode does
+    # (typer turns Ctrl-C into exit 130; a command that stops on Ctrl-C prints its own line)
+    raise SystemExit(code if isinstance(code, int) and not isinstance(code, bool) else 0)
