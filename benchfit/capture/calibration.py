@@ -6,7 +6,11 @@ A profile is a small TOML file in the user's configuration folder
 sound card (at one input-level setting) was found to do:
 
 * **gain** — volts per full-scale unit for each input channel, from a sine whose RMS the
-  user read on a meter: ``V/FS = rms_known / rms_fitted_FS``;
+  user read on a meter: ``V/FS = rms_known / rms_fitted_FS``. Its relative standard
+  uncertainty combines the fit's own (statistical) part with the meter reading's
+  (GUM, JCGM 100:2008 5.1.2, for a quotient of uncorrelated inputs):
+  ``u_rel² = (u_fit/gain)² + (u_meter/rms_known)²``. When the user gives no meter
+  uncertainty, :data:`DEFAULT_METER_HALF_WIDTH_REL` applies (see there);
 * **timebase** — the sample-clock error in ppm, from a tone whose frequency the user
   trusts. Positive ppm means the card's clock runs fast, so the true sample rate is
   ``nominal · (1 + ppm·1e-6)``. With the frequency ``f_meas`` measured on the nominal
@@ -42,6 +46,9 @@ __all__ = [
     "ENV_CONFIG_DIR",
     "PROFILE_VERSION",
     "CLIP_FS",
+    "DEFAULT_METER_HALF_WIDTH_REL",
+    "default_meter_u",
+    "combine_gain_u_rel",
     "ChannelGain",
     "TimebaseCalibration",
     "CouplingCalibration",
@@ -68,6 +75,14 @@ PROFILE_VERSION = 1
 #: a sample at or above this magnitude (−0.1 dBFS) counts as clipped
 CLIP_FS = 10.0 ** (-0.1 / 20.0)
 
+#: Half-width of the rectangular distribution assumed for a meter's AC voltage reading when
+#: the user states no uncertainty: ±0.5 % of the reading, about the AC accuracy of a
+#: 3½-digit handheld meter on its best range at 50 Hz–400 Hz (common practice, no source).
+#: As a rectangular distribution its standard uncertainty is 0.5 %/√3 ≈ 0.29 % of the
+#: reading (GUM, JCGM 100:2008 4.3.7). Give the meter's real figure whenever it is known,
+#: and mind that many handheld meters are specified only up to a few hundred hertz.
+DEFAULT_METER_HALF_WIDTH_REL = 0.005
+
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 
 
@@ -86,13 +101,20 @@ class ChannelGain:
         Volts per full-scale unit (V/FS).
     u_v_per_fs : float
         Standard uncertainty of ``v_per_fs`` from the sine fit alone (V/FS); the meter's
-        own uncertainty is not included.
+        own uncertainty is not included here (see ``gain_u_rel``).
     reference_rms_v : float
         The RMS voltage the user read on the meter (V).
     source : str
         File the gain was measured from.
     measured_utc : str
         When it was measured (ISO 8601, UTC).
+    reference_u_v : float or None
+        Standard uncertainty of the meter reading (V); None in profiles made before
+        benchfit stored it.
+    gain_u_rel : float or None
+        Relative standard uncertainty of ``v_per_fs`` with the fit and the meter combined
+        (:func:`combine_gain_u_rel`), e.g. 0.003 = 0.3 %; None when not known (old
+        profiles), and then the levels' uncertainties leave the gain out.
     """
 
     channel: int
@@ -101,6 +123,8 @@ class ChannelGain:
     reference_rms_v: float
     source: str = ""
     measured_utc: str = ""
+    reference_u_v: float | None = None
+    gain_u_rel: float | None = None
 
 
 @dataclass(frozen=True)
@@ -190,6 +214,16 @@ class CalibrationProfile:
             out.append(g.v_per_fs)
         return tuple(out)
 
+    def gain_u_rel_for(self, n_channels: int) -> tuple[float, ...] | None:
+        """Relative gain uncertainties for channels 1…n_channels, or None unless all are known."""
+        out = []
+        for ch in range(1, n_channels + 1):
+            g = self.gain_of(ch)
+            if g is None or g.gain_u_rel is None:
+                return None
+            out.append(g.gain_u_rel)
+        return tuple(out)
+
     def missing_gains(self, n_channels: int) -> list[int]:
         """Channel numbers among 1…n_channels that have no gain in this profile."""
         return [ch for ch in range(1, n_channels + 1) if self.gain_of(ch) is None]
@@ -197,9 +231,11 @@ class CalibrationProfile:
     def input_calibration(self, n_channels: int) -> InputCalibration:
         """The :class:`InputCalibration` a capture of ``n_channels`` inputs gets from this profile."""
         tb = self.timebase
+        gains = self.gains_for(n_channels)
         return InputCalibration(
             profile=self.name,
-            gain_v_per_fs=self.gains_for(n_channels),
+            gain_v_per_fs=gains,
+            gain_u_rel=self.gain_u_rel_for(n_channels) if gains is not None else None,
             timebase_ppm=tb.ppm if tb else 0.0,
             timebase_u_ppm=tb.u_ppm if tb else 0.0,
             coupling_tau_s=self.coupling.tau_s if self.coupling else None,
@@ -277,10 +313,15 @@ def _text(d: dict[str, Any], key: str) -> str:
 def _gain_from(d: Any) -> ChannelGain:
     if not isinstance(d, dict):
         raise ValueError("every [[gain]] entry must be a table")
+    # profiles written before the gain uncertainty was stored have neither optional key:
+    # they load with None ("not known"), which the recorder and measure report as such
+    ref_u = _number(d, "reference_u_v", nonneg=True) if "reference_u_v" in d else None
+    u_rel = _number(d, "gain_u_rel", nonneg=True) if "gain_u_rel" in d else None
     return ChannelGain(channel=_channel(d), v_per_fs=_number(d, "v_per_fs", positive=True),
                        u_v_per_fs=_number(d, "u_v_per_fs", nonneg=True),
                        reference_rms_v=_number(d, "reference_rms_v", positive=True),
-                       source=_text(d, "source"), measured_utc=_text(d, "measured_utc"))
+                       source=_text(d, "source"), measured_utc=_text(d, "measured_utc"),
+                       reference_u_v=ref_u, gain_u_rel=u_rel)
 
 
 def _timebase_from(d: Any) -> TimebaseCalibration:
@@ -407,6 +448,49 @@ def estimate_gain(x: np.ndarray, sample_rate: float, rms_known_v: float,
     gain = rms_known_v / rms_fs
     return GainEstimate(v_per_fs=gain, u_v_per_fs=gain * u_amp / amp, rms_fs=rms_fs,
                         frequency_hz=fit.frequency_hz, residual_pct=residual_pct)
+
+
+def default_meter_u(rms_known_v: float) -> float:
+    """Standard uncertainty (V) assumed for a meter reading of ``rms_known_v`` volts RMS.
+
+    ``rms_known_v · DEFAULT_METER_HALF_WIDTH_REL / √3``: a rectangular distribution of
+    half-width 0.5 % of the reading (GUM, JCGM 100:2008 4.3.7; the 0.5 % is common
+    practice, no source).
+    """
+    return abs(rms_known_v) * DEFAULT_METER_HALF_WIDTH_REL / math.sqrt(3.0)
+
+
+def combine_gain_u_rel(v_per_fs: float, u_v_per_fs: float, rms_known_v: float, rms_u_v: float) -> float:
+    """Relative standard uncertainty of a gain ``V/FS = rms_known / rms_fitted``.
+
+    Parameters
+    ----------
+    v_per_fs, u_v_per_fs : float
+        The gain and the standard uncertainty of its fit part (V/FS).
+    rms_known_v : float
+        The meter reading (V RMS).
+    rms_u_v : float
+        Standard uncertainty of the meter reading (V).
+
+    Returns
+    -------
+    float
+        ``√((u_fit/gain)² + (u_meter/rms_known)²)``, dimensionless. For a quotient of
+        uncorrelated inputs the relative uncertainties add in quadrature (GUM,
+        JCGM 100:2008 5.1.2 with sensitivity coefficients ±1 in relative terms).
+
+    Raises
+    ------
+    MeasureError
+        A gain or reading that is not positive, or an uncertainty that is negative or
+        not finite.
+    """
+    if not (math.isfinite(v_per_fs) and v_per_fs > 0 and math.isfinite(rms_known_v) and rms_known_v > 0):
+        raise MeasureError(f"gain: {v_per_fs!r} V/FS from {rms_known_v!r} V — both must be positive numbers")
+    for name, u in (("fit uncertainty", u_v_per_fs), ("--rms-u", rms_u_v)):
+        if not (math.isfinite(u) and u >= 0):
+            raise MeasureError(f"{name}: {u!r} must be a standard uncertainty ≥ 0 — give e.g. 0.3%")
+    return math.hypot(u_v_per_fs / v_per_fs, rms_u_v / rms_known_v)
 
 
 def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,

@@ -281,7 +281,8 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     names : sequence of str or comma-separated str, optional
         One name per channel (default ``ch1``, ``ch2``, …).
     profile : str, optional
-        Calibration profile whose gain, timebase and coupling go into the sidecar.
+        Calibration profile whose gain (with its relative uncertainty, when the profile has
+        it), timebase and coupling go into the sidecar.
     overwrite : bool, default False
         Replace an existing WAV or sidecar; otherwise either existing is an error.
     on_block : callable, optional
@@ -332,6 +333,10 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     if prof is not None and prof.gains and calibration.gain_v_per_fs is None:
         missing = ", ".join(str(c) for c in prof.missing_gains(channels))
         warnings.append(f"profile {prof.name!r} has no gain for channel(s) {missing} — samples stay in FS")
+    elif calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
+        # a profile from before the gain uncertainty was stored: the sidecar leaves gain_u_rel out
+        warnings.append(f"profile {prof.name!r}: gain uncertainty not known — levels in V will carry only their "
+                        "noise uncertainty; run 'benchfit calibrate gain' again with --rms-u")
 
     total = int(round(seconds * rate))
     blocks: queue.Queue[Any] = queue.Queue()

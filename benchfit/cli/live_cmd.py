@@ -393,6 +393,32 @@ def _pick_channels(channel: Optional[str], names: tuple[str, ...], default_all: 
     fail(f"--channel {channel!r}: no such channel — choose one of {', '.join(names)} or 1…{len(names)}")
 
 
+def _meter_u(text: Optional[str], rms_v: float) -> tuple[float, str]:
+    """Standard uncertainty (V) of the meter reading from --rms-u, and how it was obtained.
+
+    ``"0.3%"`` is a percentage of the reading, anything else a voltage with SI prefixes
+    ("2m" = 2 mV). Without the option the documented default applies
+    (:data:`benchfit.capture.calibration.DEFAULT_METER_HALF_WIDTH_REL`).
+    """
+    from benchfit.capture.calibration import DEFAULT_METER_HALF_WIDTH_REL, default_meter_u
+
+    if text is None:
+        return default_meter_u(rms_v), (f"not given: ±{100 * DEFAULT_METER_HALF_WIDTH_REL:g} % of the reading "
+                                        "taken as a rectangular half-width (÷√3)")
+    t = text.strip()
+    if t.endswith("%"):
+        pct = parse_value(t[:-1].strip(), "--rms-u", positive=True, allow_zero=True)
+        if pct >= 100:
+            fail(f"--rms-u: {text!r} is 100 % of the reading or more — give the meter's standard uncertainty, "
+                 "e.g. 0.3%")
+        return rms_v * pct / 100.0, f"{pct:g} % of the reading"
+    u = parse_value(t, "--rms-u", positive=True, allow_zero=True)
+    if u >= rms_v:
+        fail(f"--rms-u: {text!r} V is not smaller than the reading {rms_v:g} V — give the meter's standard "
+             "uncertainty in V (e.g. 2m) or in % of the reading (e.g. 0.3%)")
+    return u, f"{u:g} V"
+
+
 def _load_or_new(profile: str):
     from benchfit.capture.calibration import CalibrationProfile, check_profile_name, load_profile
 
@@ -405,11 +431,21 @@ _REC_HELP = "Record live from the sound card instead of reading FILE (needs --se
 
 @calibrate_app.command("gain", short_help="Volts per full-scale unit per channel, from a sine of known RMS.", help=(
     "Store volts per full-scale unit for each channel: feed a sine whose RMS voltage you read on a "
-    "meter, record it, and give that RMS.\n\n" + CAUTION),
-    epilog="Example: benchfit calibrate gain sine_775mV.wav --rms 0.775 --profile desk")
+    "meter, record it, and give that RMS. The stored relative standard uncertainty of the gain "
+    "combines the sine fit with the meter reading's standard uncertainty (--rms-u) in quadrature; "
+    "every level measured in volts then carries it.\n\n"
+    "--rms-u is a standard uncertainty (k = 1): for a meter specified as ±a, give a/√3 "
+    "(rectangular distribution); read a, including its digits term, from the meter's manual for "
+    "the range and frequency used. Without --rms-u, ±0.5 % of the reading is assumed as such a "
+    "half-width (0.29 % standard), about a 3½-digit handheld meter at 50–400 Hz; many handheld "
+    "meters are not specified above a few hundred hertz.\n\n" + CAUTION),
+    epilog="Example: benchfit calibrate gain sine_775mV.wav --rms 0.775 --rms-u 0.3% --profile desk")
 def calibrate_gain(
     file: Optional[Path] = typer.Argument(None, help="Recording of the reference sine (WAV/FLAC)."),
     rms: str = typer.Option(..., "--rms", help="RMS voltage of the sine from your meter, in V (e.g. 775m)."),
+    rms_u: Optional[str] = typer.Option(
+        None, "--rms-u", help="Standard uncertainty of the meter reading: V (e.g. 2m) or % of the reading "
+                              "(e.g. 0.3%); default ±0.5 % of the reading as a rectangular half-width."),
     profile: str = typer.Option(..., "--profile", help="Profile to create or update."),
     channel: Optional[str] = typer.Option(None, "--channel", help="Only this channel (name or number); default all."),
     do_record: bool = typer.Option(False, "--record", help=_REC_HELP),
@@ -419,11 +455,13 @@ def calibrate_gain(
     channels: int = typer.Option(1, "--channels", help="Channels to record with --record."),
     json_out: bool = typer.Option(False, "--json", help="Print the stored values as one JSON object."),
 ) -> None:
-    from benchfit.capture.calibration import ChannelGain, estimate_gain, save_profile, utc_now_iso
+    from benchfit.capture.calibration import (ChannelGain, combine_gain_u_rel, estimate_gain, save_profile,
+                                              utc_now_iso)
 
     rms_v = parse_value(rms, "--rms")
     if rms_v <= 0:
         fail(f"--rms: {rms!r} must be a positive voltage")
+    meter_u, meter_note = _meter_u(rms_u, rms_v)
     prof = _load_or_new(profile)
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
         (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, channels, tmp)
@@ -431,20 +469,28 @@ def calibrate_gain(
     when = utc_now_iso()
     for i in _pick_channels(channel, names, default_all=True):
         est = estimate_gain(x[i], fs, rms_v, what=f"{source} channel {i + 1} ({names[i]})")
+        u_rel = combine_gain_u_rel(est.v_per_fs, est.u_v_per_fs, rms_v, meter_u)
         prof = prof.with_gain(ChannelGain(channel=i + 1, v_per_fs=est.v_per_fs, u_v_per_fs=est.u_v_per_fs,
-                                          reference_rms_v=rms_v, source=source, measured_utc=when))
-        out.append((i, est))
+                                          reference_rms_v=rms_v, source=source, measured_utc=when,
+                                          reference_u_v=meter_u, gain_u_rel=u_rel))
+        out.append((i, est, u_rel))
     path = save_profile(prof)
     if json_out:
-        print_json({"profile": prof.name, "path": str(path), "gains": [
+        print_json({"profile": prof.name, "path": str(path), "reference_rms_v": rms_v, "reference_u_v": meter_u,
+                    "reference_u_note": meter_note, "gains": [
             {"channel": i + 1, "name": names[i], "v_per_fs": e.v_per_fs, "u_v_per_fs": e.u_v_per_fs,
-             "rms_fs": e.rms_fs, "frequency_hz": e.frequency_hz, "residual_pct": e.residual_pct} for i, e in out]})
+             "gain_u_rel": u, "rms_fs": e.rms_fs, "frequency_hz": e.frequency_hz,
+             "residual_pct": e.residual_pct} for i, e, u in out]})
         return
     from benchfit.units import format_with_uncertainty
 
-    for i, e in out:
-        stdout.print(f"channel {i + 1} ({names[i]}): {format_with_uncertainty(e.v_per_fs, e.u_v_per_fs, 'V/FS')} "
-                     f"(sine {e.rms_fs:.5f} FS rms at {e.frequency_hz:.3f} Hz, {e.residual_pct:.2f} % not sine)", soft_wrap=True, markup=False)
+    stdout.print(f"meter reading {format_with_uncertainty(rms_v, meter_u, 'V')} rms (standard uncertainty "
+                 f"{meter_note})", soft_wrap=True, markup=False)
+    for i, e, u in out:
+        stdout.print(f"channel {i + 1} ({names[i]}): {format_with_uncertainty(e.v_per_fs, u * e.v_per_fs, 'V/FS')} "
+                     f"(u = {100 * u:.3g} % with the meter; fit alone {100 * e.u_v_per_fs / e.v_per_fs:.2g} %; "
+                     f"sine {e.rms_fs:.5f} FS rms at {e.frequency_hz:.3f} Hz, {e.residual_pct:.2f} % not sine)",
+                     soft_wrap=True, markup=False)
     stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
@@ -552,8 +598,17 @@ def calibrate_show(
     for col in ("profile", "gain (V/FS)", "sample clock", "input coupling τ"):
         table.add_column(col)
     for p in profiles:
-        gains = "\n".join(f"ch{g.channel}: {format_with_uncertainty(g.v_per_fs, g.u_v_per_fs)}" for g in p.gains) or "—"
+        gains = "\n".join(_gain_text(g, format_with_uncertainty) for g in p.gains) or "—"
         tb = _ppm_text(p.timebase.ppm, p.timebase.u_ppm) if p.timebase else "—"
         cp = (f"{p.coupling.tau_s * 1e3:.4g} ms" if p.coupling else "—")
         table.add_row(escape(p.name), gains, tb, cp)
     stdout.print(table)
+
+
+def _gain_text(g, format_with_uncertainty) -> str:
+    """One profile gain for ``calibrate show``: with the combined uncertainty when it is known."""
+    if g.gain_u_rel is None:
+        return (f"ch{g.channel}: {format_with_uncertainty(g.v_per_fs, g.u_v_per_fs)} (fit only; "
+                "gain uncertainty not known — calibrate again with --rms-u)")
+    return (f"ch{g.channel}: {format_with_uncertainty(g.v_per_fs, g.gain_u_rel * g.v_per_fs)} "
+            f"(u = {100 * g.gain_u_rel:.3g} %)")
