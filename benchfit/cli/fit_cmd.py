@@ -123,6 +123,22 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
         console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False)
 
 
+def _clip_warnings(cap) -> list[str]:
+    """One line per channel that is clipped at full scale (a clipped waveform gives wrong parts)."""
+    from benchfit.measurement.levels import find_clipping
+
+    gains = cap.calibration.gain_v_per_fs
+    lines = []
+    for i, name in enumerate(cap.channel_names):
+        unit = cap.units[i]
+        full_scale = gains[i] if gains and unit == "V" else None
+        clip = find_clipping(cap.samples[i], unit, full_scale, rails=False)
+        if clip.clipped:
+            lines.append(f"{cap.source or 'capture'}: channel {name!r} is clipped ({clip.n_samples} samples at full "
+                         "scale) — the fitted parts will be wrong; lower the input level and record again")
+    return lines
+
+
 @app.command("fit", help=_HELP)
 def fit_command(
     file: Path = typer.Argument(..., help="Capture file: WAV, FLAC or CSV.", show_default=False),
@@ -168,8 +184,14 @@ def fit_command(
 
     from benchfit.capture.load import load
 
-    with stderr.status("fitting…", spinner="line"):
+    import numpy as np
+
+    from benchfit.errors import FitError
+
+    with stderr.status("fitting…", spinner="line"), np.errstate(all="ignore"):
         cap = load(file, sample_rate=rate)
+        for line in _clip_warnings(cap):
+            stderr.print(f"warning: {line}", markup=False, highlight=False, soft_wrap=True)
         if model == "ringdown":
             from benchfit.fit.ringdown import fit_ringdown
 
@@ -180,8 +202,15 @@ def fit_command(
         else:
             from benchfit.fit.lowpass import fit_lowpass
 
-            result = fit_lowpass(cap, method=method, drive=drive, response=response, fix=fixed,
-                                 guess=guessed, drive_duty=duty, time_domain=time_domain)
+            try:
+                result = fit_lowpass(cap, method=method, drive=drive, response=response, fix=fixed,
+                                     guess=guessed, drive_duty=duty, time_domain=time_domain)
+            except (np.linalg.LinAlgError, FloatingPointError, ZeroDivisionError) as e:
+                # the solver broke down: the capture holds too little of what the model needs
+                raise FitError(
+                    f"{file}: the fit cannot be solved on this capture ({e}) — a one-channel fit needs "
+                    "the output's harmonics (a square-driven filter, not a pure sine); capture the drive "
+                    "too for a two-channel fit, or fix a part with --fix") from e
     if plot is not None:
         from benchfit.report.figures import fit_svg, save_figure
 
