@@ -378,6 +378,8 @@ def load_spec(path: str | Path) -> Spec:
             data = tomllib.load(f)
     except FileNotFoundError as e:
         raise SpecError(f"{p}: spec file not found — check the path given to --spec") from e
+    except IsADirectoryError as e:
+        raise SpecError(f"{p}: is a folder, not a spec file — give the spec TOML file to --spec") from e
     except OSError as e:
         raise SpecError(f"{p}: cannot read the spec file ({e.strerror}) — check its permissions") from e
     except tomllib.TOMLDecodeError as e:
