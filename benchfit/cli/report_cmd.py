@@ -91,6 +91,11 @@ def report_command(
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:
         fit = FitOptions(model=model or "lc-lowpass", drive=drive, response=response, fix=fix_values)
+    if log is not None and not log.strip():
+        fail("--log: the path is empty — give the log file, leave --log out for the default log, "
+             "or use --no-log")
+    if log is not None and no_log:
+        fail("--log and --no-log: give only one — --log PATH names the log, --no-log logs nothing")
     log_path = None if no_log else resolve_log_path(log)
     if each:
         if unit is not None:
