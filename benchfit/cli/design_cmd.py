@@ -84,17 +84,58 @@ def _opt_value(text: Optional[str], option: str, *, allow_zero: bool = False) ->
         fail(_with_fix(str(e)))
 
 
+def _series(text: str, option: str) -> str:
+    """A resistor/capacitor series name, checked with the option named in the error."""
+    from benchfit.cli.common import fail
+    from benchfit.design.parts import check_series
+    from benchfit.errors import DesignError
+
+    try:
+        return check_series(text)
+    except DesignError as e:
+        fail(f"{option} {text!r}: unknown series — {str(e).partition(' — ')[2] or 'use E6, E12, E24, E48 or E96'}")
+
+
+class _OptionNames:
+    """Re-raise a design error whose message starts ``name:`` with the command-line option instead.
+
+    The design functions name their Python parameters (``trials: …``); at the command line the
+    user typed ``--trials``, so the message should say that.
+    """
+
+    def __init__(self, **names: str) -> None:
+        self._names = {k.replace("_", "-"): v for k, v in names.items()}
+
+    def __enter__(self) -> None:
+        return None
+
+    def __exit__(self, exc_type, exc, tb) -> bool:
+        from benchfit.errors import DesignError
+
+        if exc is None or not isinstance(exc, DesignError):
+            return False
+        head, sep, rest = str(exc).partition(":")
+        if sep and head in self._names:
+            err = DesignError(f"{self._names[head]}:{rest}")
+            raise err from exc
+        return False
+
+
 def read_stock(path: Path, kind: str) -> tuple[list[float], list[int] | None]:
     """Read a stock list: a CSV with a ``value`` column (SI prefixes allowed) and an optional
     ``qty``/``quantity``/``count`` column; a file with a single column needs no header."""
     from benchfit.cli.common import fail
 
+    if path.is_dir():
+        fail(f"{path}: is a folder, not a stock list — give the path of a CSV with a 'value' column")
     if not path.is_file():
         fail(f"{path}: stock file not found — give the path of a CSV with a 'value' column")
     try:
         with path.open(newline="", encoding="utf-8-sig") as fh:
             rows = [r for r in csv.reader(fh) if any(c.strip() for c in r)]
-    except (OSError, UnicodeDecodeError, csv.Error) as e:
+    except UnicodeDecodeError as e:
+        fail(f"{path}: not a text CSV file (byte {e.start} is not UTF-8) — save the stock list as UTF-8 CSV")
+    except (OSError, csv.Error) as e:
         fail(f"{path}: cannot read the stock list ({e}) — save it as UTF-8 CSV")
     if not rows:
         fail(f"{path}: the stock list is empty — add a 'value' column with one part per row")
@@ -171,16 +212,14 @@ def astable_command(
     yield_within: str = typer.Option("1%", "--yield-within", help="Frequency band for the yield figure."),
     distribution: str = typer.Option("uniform", "--distribution",
                                      help="Part spread: uniform over ±tolerance, or normal with tolerance = 3σ."),
-    trials: int = typer.Option(20000, "--trials", help="Number of simulated units."),
+    trials: int = typer.Option(20000, "--trials", min=100, help="Number of simulated units (100 or more)."),
     seed: int = typer.Option(0, "--seed", help="Seed of the random generator."),
     trim_pot: Optional[str] = typer.Option(None, "--trim-pot", help="Trimmer in series with RB, e.g. 10k (Ω)."),
     control_range: Optional[str] = typer.Option(None, "--control-range",
                                                 help="Control-pin trim range LOW:HIGH in volts, e.g. 6:9."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
-    from benchfit.cli.common import fail, print_json, stdout
-    from benchfit.design.astable import design_astable
-    from benchfit.units import format_quantity as fq
+    from benchfit.cli.common import fail
 
     f = _opt_value(frequency, "--frequency")
     d = None if duty is None else parse_fraction(duty, "--duty", allow_zero=False)
@@ -191,7 +230,21 @@ def astable_command(
         if not sep:
             fail(f"--control-range: {control_range!r} needs LOW:HIGH in volts, e.g. 6:9")
         cr = (_opt_value(lo, "--control-range low"), _opt_value(hi, "--control-range high"))
-    result = design_astable(
+    series = _series(series, "--series")
+    cap_series = _series(cap_series, "--cap-series")
+    with _OptionNames(duty="--duty", distribution="--distribution", trials="--trials",
+                      control_voltage="--control-voltage", frequency="--frequency",
+                      tolerance_r="--tolerance-r", range="--control-range"):
+        result = _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r,
+                          tolerance_c, yield_within, distribution, trials, seed, trim_pot, cr)
+    _show_astable(result, as_json)
+
+
+def _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r, tolerance_c,
+             yield_within, distribution, trials, seed, trim_pot, cr):
+    from benchfit.design.astable import design_astable
+
+    return design_astable(
         f, d, c1_farad=c1, series=series, c_series=cap_series, supply_v=_opt_value(supply, "--supply"),
         control_voltage_v=_opt_value(control_voltage, "--control-voltage"), diode=diode,
         tolerance_r=parse_fraction(tolerance_r, "--tolerance-r"),
@@ -199,6 +252,12 @@ def astable_command(
         yield_within=parse_fraction(yield_within, "--yield-within", allow_zero=False),
         distribution=distribution, n_trials=trials, seed=seed,
         trim_pot_ohm=_opt_value(trim_pot, "--trim-pot"), control_range_v=cr)
+
+
+def _show_astable(result, as_json: bool) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.units import format_quantity as fq
+
     if as_json:
         print_json(result.to_dict())
         return
@@ -252,7 +311,7 @@ def filter_command(
     duty: str = typer.Option("50%", "--duty", help="Drive duty (high time / period)."),
     series: str = typer.Option("E12", "--series", help="Series for the solved part."),
     amplitude: str = typer.Option("12", "--amplitude", help="Drive swing, 0 V to this (V)."),
-    harmonics: int = typer.Option(40, "--harmonics", help="Highest harmonic in the THD sum."),
+    harmonics: int = typer.Option(40, "--harmonics", min=2, help="Highest harmonic in the THD sum (2 or more)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stdout
@@ -261,12 +320,14 @@ def filter_command(
 
     if (inductance is None) == (capacitance is None):
         fail("--inductance/--capacitance: give exactly one of them — the other part is solved for")
-    result = design_filter(
-        _opt_value(frequency, "--frequency"), inductance=_opt_value(inductance, "--inductance"),
-        capacitance=_opt_value(capacitance, "--capacitance"), load_ohm=_opt_value(load, "--load"),
-        rs_ohm=_opt_value(rs, "--rs", allow_zero=True), esr_ohm=_opt_value(esr, "--esr", allow_zero=True),
-        duty=parse_fraction(duty, "--duty", allow_zero=False), series=series,
-        amplitude_v=_opt_value(amplitude, "--amplitude"), n_harmonics=harmonics)
+    series = _series(series, "--series")
+    with _OptionNames(duty="--duty", harmonics="--harmonics", frequency="--frequency"):
+        result = design_filter(
+            _opt_value(frequency, "--frequency"), inductance=_opt_value(inductance, "--inductance"),
+            capacitance=_opt_value(capacitance, "--capacitance"), load_ohm=_opt_value(load, "--load"),
+            rs_ohm=_opt_value(rs, "--rs", allow_zero=True), esr_ohm=_opt_value(esr, "--esr", allow_zero=True),
+            duty=parse_fraction(duty, "--duty", allow_zero=False), series=series,
+            amplitude_v=_opt_value(amplitude, "--amplitude"), n_harmonics=harmonics)
     if as_json:
         print_json(result.to_dict())
         return
@@ -303,21 +364,24 @@ def combine_command(
     value: str = typer.Argument(..., help="Wanted value, e.g. 29.7u, 9.2k, 300m."),
     kind: str = typer.Option(..., "--kind", help="R, C or L."),
     series: str = typer.Option("E12", "--series", help="Series to draw from: E6, E12, E24, E48 or E96."),
-    max_parts: int = typer.Option(3, "--max-parts", help="At most this many parts (1 to 3)."),
+    max_parts: int = typer.Option(3, "--max-parts", min=1, max=3, help="At most this many parts (1 to 3)."),
     stock: Optional[Path] = typer.Option(None, "--stock",
                                          help="CSV of parts on hand: a 'value' column, optional 'qty'."),
-    top: int = typer.Option(5, "--top", help="How many combinations to list."),
+    top: int = typer.Option(5, "--top", min=1, help="How many combinations to list (1 or more)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
     from benchfit.design.parts import PART_UNITS, check_kind, combine
     from benchfit.units import format_quantity as fq
 
-    k = check_kind(kind)
+    with _OptionNames(kind="--kind"):
+        k = check_kind(kind)
     target = parse_part_value(value, "VALUE", k)
+    series = _series(series, "--series")
     values, counts = (None, None) if stock is None else read_stock(stock, k)
-    result = combine(target, k, series=series, stock=values, stock_counts=counts, max_parts=max_parts,
-                     top=top, source=None if stock is None else str(stock))
+    with _OptionNames(max_parts="--max-parts", top="--top", value="VALUE", stock="--stock"):
+        result = combine(target, k, series=series, stock=values, stock_counts=counts, max_parts=max_parts,
+                         top=top, source=None if stock is None else str(stock))
     if as_json:
         print_json(result.to_dict())
         return
@@ -346,6 +410,8 @@ def _read_fit(path: Path):
     from benchfit.cli.common import fail
     from benchfit.fit.result import FitResult
 
+    if path.is_dir():
+        fail(f"{path}: is a folder, not a fit result — give the JSON saved with 'benchfit fit CAPTURE --json > FILE'")
     if not path.is_file():
         fail(f"{path}: fit file not found — save one with 'benchfit fit CAPTURE --json > FILE'")
     try:
@@ -365,7 +431,8 @@ def trim_command(
                                        "--json' (filter advice). Leave out for timer advice only."),
     target: str = typer.Option(..., "--target", help="Wanted frequency (Hz)."),
     series: str = typer.Option("E12", "--series", help="Series for capacitors to add."),
-    max_parts: int = typer.Option(2, "--max-parts", help="At most this many capacitors to add (1 to 3)."),
+    max_parts: int = typer.Option(2, "--max-parts", min=1, max=3,
+                                  help="At most this many capacitors to add (1 to 3)."),
     part_tolerance: Optional[str] = typer.Option(None, "--part-tolerance",
                                                  help="Tolerance of added capacitors (default: the series')."),
     bank: Optional[str] = typer.Option(None, "--bank", help="Nominal values of the present capacitor bank, "
@@ -390,8 +457,8 @@ def trim_command(
     from benchfit.units import format_with_uncertainty as fu
 
     if fit is None and timer_frequency is None:
-        fail("design trim: give --fit FIT.json (filter advice) and/or --timer-frequency with --ra, --rb, "
-             "--c1 (timer advice)")
+        fail("--fit / --timer-frequency: neither given — give --fit FIT.json (filter advice) and/or "
+             "--timer-frequency with --ra, --rb, --c1 (timer advice)")
     fit_result = None if fit is None else _read_fit(fit)
     timer_args = {"--ra": ra, "--rb": rb, "--c1": c1}
     if timer_frequency is not None and any(v is None for v in timer_args.values()):
@@ -402,15 +469,19 @@ def trim_command(
         bank_values = [parse_part_value(x, "--bank", "C") for x in bank.split(",") if x.strip()]
         if not bank_values:
             fail("--bank: no values — list the bank's capacitors, e.g. 22u,10u,1u")
-    advice = suggest_trim(
-        fit_result, _opt_value(target, "--target"), series=series, max_parts=max_parts,
-        part_tolerance=None if part_tolerance is None else parse_fraction(part_tolerance, "--part-tolerance"),
-        bank=bank_values, timer_frequency_hz=_opt_value(timer_frequency, "--timer-frequency"),
-        timer_frequency_u_hz=_opt_value(timer_frequency_u, "--timer-frequency-u"),
-        ra_ohm=_opt_value(ra, "--ra"), rb_ohm=_opt_value(rb, "--rb"), c1_farad=_opt_value(c1, "--c1"),
-        supply_v=_opt_value(supply, "--supply"),
-        control_voltage_v=_opt_value(control_voltage, "--control-voltage"), diode=diode,
-        resistor_series=resistor_series, resistor_tolerance=parse_fraction(tolerance_r, "--tolerance-r"))
+    series = _series(series, "--series")
+    resistor_series = _series(resistor_series, "--resistor-series")
+    with _OptionNames(part_tolerance="--part-tolerance", tolerance_r="--tolerance-r", duty="--duty",
+                      control_voltage="--control-voltage", max_parts="--max-parts", frequency="--target"):
+        advice = suggest_trim(
+            fit_result, _opt_value(target, "--target"), series=series, max_parts=max_parts,
+            part_tolerance=None if part_tolerance is None else parse_fraction(part_tolerance, "--part-tolerance"),
+            bank=bank_values, timer_frequency_hz=_opt_value(timer_frequency, "--timer-frequency"),
+            timer_frequency_u_hz=_opt_value(timer_frequency_u, "--timer-frequency-u"),
+            ra_ohm=_opt_value(ra, "--ra"), rb_ohm=_opt_value(rb, "--rb"), c1_farad=_opt_value(c1, "--c1"),
+            supply_v=_opt_value(supply, "--supply"),
+            control_voltage_v=_opt_value(control_voltage, "--control-voltage"), diode=diode,
+            resistor_series=resistor_series, resistor_tolerance=parse_fraction(tolerance_r, "--tolerance-r"))
     if as_json:
         print_json(advice.to_dict())
         return
