@@ -12,7 +12,8 @@ discretisation) at 480 kHz, then "captured" the way the group does it:
 * a USB oscilloscope samples directly (no anti-alias filter) and exports CSV;
 * the sound card's line-in (through an attenuator) low-pass filters, decimates to 48 kHz,
   AC-couples (first-order high-pass), adds noise and quantises to 16 bits; its crystal runs
-  a few tens of ppm off, and a calibration profile in the sidecar records gain and timebase.
+  a few tens of ppm off, and a calibration profile in the sidecar records gain (with its
+  0.3 % relative standard uncertainty), timebase and input coupling.
 
 Run ``python scripts/make_samples.py`` to rewrite sample_captures/ (seeded: byte-identical
 output for the same numpy/scipy/soundfile versions). Nothing here is measured data.
@@ -35,6 +36,9 @@ FS_SIM = 480_000.0  # simulation rate, Hz
 # the sound card used for the recordings (invented): 38 ppm fast, 0.1 s input time constant
 CARD_PPM = 38.0
 CARD_TAU_S = 0.1
+# gain uncertainty (invented): 0.3 % relative standard uncertainty of the card's gain, as
+# 'benchfit calibrate gain --rms-u' would store it from the fit and the meter reading combined
+CARD_GAIN_U_REL = 0.003
 PROFILE = {"profile": "makerspace-laptop", "timebase_ppm": CARD_PPM, "timebase_u_ppm": 0.5,
            "coupling_tau_s": CARD_TAU_S}
 
@@ -138,7 +142,7 @@ def write_wav(path: Path, data: np.ndarray, names: list[str], gains: list[float]
         "start_utc": start,
         "overflow_count": 0,
         "clip_count": 0,
-        "calibration": dict(PROFILE, gain_v_per_fs=gains),
+        "calibration": dict(PROFILE, gain_v_per_fs=gains, gain_u_rel=[CARD_GAIN_U_REL] * len(gains)),
         "benchfit_version": "0.1.0",
         "unit": unit,
     }
