@@ -141,12 +141,42 @@ def _error(message: str, code: int) -> None:
     raise SystemExit(code) from None
 
 
+#: options whose value is a file or folder (an empty one is "the path is empty")
+_PATH_OPTIONS = frozenset({"--log", "--out", "--spec", "--plot", "--fit", "--stock", "--as-found"})
+
+
+def _empty_argument(argv: list[str]) -> str | None:
+    """A one-line error for the first empty argument, or None.
+
+    An empty string is never a valid benchfit value, and an empty path would silently
+    become the current folder (``Path("") == Path(".")``), so it is refused up front.
+    """
+    for i, token in enumerate(argv):
+        if token == "--":
+            return None
+        if token.startswith("--") and token.endswith("=") and len(token) > 3:
+            what = "path" if token[:-1] in _PATH_OPTIONS else "value"
+            return f"{token[:-1]}: the {what} is empty — give a {what} after {token[:-1]}="
+        if token.strip():
+            continue
+        prev = argv[i - 1] if i > 0 else ""
+        if prev in _PATH_OPTIONS:
+            return f"{prev}: the path is empty — give the file or folder it names"
+        if prev.startswith("-") and "=" not in prev and len(prev) > 1:
+            return f"{prev}: the value is empty — give the value it needs"
+        return f"argument {i + 1}: an empty argument — remove it or give a file name or value"
+    return None
+
+
 def main(argv: list[str] | None = None) -> None:
     import typer
 
     from benchfit.errors import BenchfitError
 
     click = _click()
+    empty = _empty_argument(sys.argv[1:] if argv is None else list(argv))
+    if empty is not None:
+        _error(empty, 2)
     app = get_app()
     try:
         code = app(args=argv, prog_name="benchfit", standalone_mode=False)

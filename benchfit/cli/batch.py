@@ -134,8 +134,9 @@ def collect_captures(paths: Iterable[str | os.PathLike[str]], *, recursive: bool
                         key=lambda f: f.as_posix())
         if not picked:
             where = "it or its sub-folders" if recursive else "it"
-            hint = "" if recursive else "; add --recursive to look in sub-folders"
-            notes.append(f"{p}: no capture files ({' '.join(CAPTURE_SUFFIXES)}) in {where}{hint}")
+            fix = ("give a folder that holds captures, or the capture files themselves" if recursive
+                   else "give the capture files, or add --recursive to look in sub-folders")
+            notes.append(f"{p}: a folder with no capture files ({' '.join(CAPTURE_SUFFIXES)}) in {where} — {fix}")
         for f in picked:
             add(f)
     return files, notes
