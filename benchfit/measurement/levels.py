@@ -9,6 +9,11 @@ Pure functions of sample arrays; no I/O.
   so one noisy sample or a short spike does not set it. For a sine the 0.1 % tails cost only
   ``1 − cos(0.001·π) ≈ 5·10⁻⁶`` of the true value (the sine's sample distribution is the
   arcsine law); for a square the percentiles land on the flat tops.
+* The noise uncertainty of a percentile (:func:`percentile_noise_u`) follows the
+  linearisation of a sample quantile around the level it estimates (the Bahadur
+  representation of order statistics), with the *noise* as the only random part: the
+  samples are ``x_i = s_i + w_i`` with a known waveform ``s`` (the harmonic fit, or the two
+  states of a pulse wave) and white Gaussian noise of standard deviation σ.
 * Clipping: runs of at least 3 samples at or beyond ±0.999 of full scale (audio), or long
   flat runs at the channel's exact extreme value that pile up far more samples than the
   next value (rails of a recorder that saturates, not the top code of a quantised peak).
@@ -22,7 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["Levels", "ClipReport", "signal_levels", "whole_period_span", "find_clipping",
-           "VPP_PERCENTILE"]
+           "percentile_noise_u", "vpp_noise_u", "quantisation_step", "VPP_PERCENTILE"]
 
 #: lower/upper percentile used for the robust peak-to-peak value (%)
 VPP_PERCENTILE = 0.1
@@ -57,6 +62,8 @@ class Levels:
         Number of samples the DC and RMS were taken over.
     whole_periods : int
         Whole periods in that span (0 when no period was given).
+    vpp_low, vpp_high : float
+        The two percentiles (0.1th and 99.9th) whose difference is ``vpp``.
     """
 
     vdc: float
@@ -67,6 +74,8 @@ class Levels:
     vmin: float
     span_samples: int
     whole_periods: int
+    vpp_low: float = math.nan
+    vpp_high: float = math.nan
 
 
 @dataclass(frozen=True)
@@ -161,7 +170,79 @@ def signal_levels(x: np.ndarray, sample_rate: float, frequency_hz: float | None 
     vac = float(np.std(seg))
     lo, hi = _percentiles(x, VPP_PERCENTILE, 100.0 - VPP_PERCENTILE)
     return Levels(vdc=vdc, vrms=vrms, vac_rms=vac, vpp=float(hi - lo), vmax=float(x.max()),
-                  vmin=float(x.min()), span_samples=int(span), whole_periods=int(periods))
+                  vmin=float(x.min()), span_samples=int(span), whole_periods=int(periods),
+                  vpp_low=lo, vpp_high=hi)
+
+
+def percentile_noise_u(model: np.ndarray, sigma: float, level: float) -> float:
+    """Standard uncertainty, from white noise, of a sample percentile found at ``level``.
+
+    The samples are ``x_i = s_i + w_i``: a known waveform ``s`` (``model``) plus independent
+    Gaussian noise of standard deviation ``sigma``. A sample quantile q̂ moves with the
+    fraction of samples below the level, ``F_N(q) = (1/N)·Σ 1{x_i ≤ q}``, as
+    ``q̂ − q ≈ −(F_N(q) − E F_N(q)) / f(q)`` (the Bahadur linearisation of a sample
+    quantile), with ``var F_N(q) = Σ P_i(1 − P_i)/N²``, ``P_i = Φ((q − s_i)/σ)`` and the
+    density of the samples at q ``f(q) = Σ φ((q − s_i)/σ)/(N·σ)``. Only samples within a
+    few σ of the level contribute, so a noise-free record gives 0.
+
+    Parameters
+    ----------
+    model : ndarray
+        The noise-free waveform at the sample instants (sample units, V or FS).
+    sigma : float
+        Standard deviation of the noise (sample units).
+    level : float
+        Where the percentile was found (sample units).
+
+    Returns
+    -------
+    float
+        Standard uncertainty of the percentile (sample units), at most ``sigma``: an
+        extreme order statistic of noisy samples scatters less than a single sample does
+        (the spread of the largest of m normal draws falls as m grows; from memory). The
+        cap also covers a poor model that puts no sample near ``level``.
+    """
+    from scipy.special import ndtr
+
+    s = np.asarray(model, dtype=np.float64)
+    if not (sigma > 0) or s.size == 0 or not math.isfinite(level):
+        return 0.0
+    z = (level - s) / sigma
+    near = np.abs(z) < 8.0  # Φ(−8) ≈ 6e-16: samples farther away contribute nothing
+    if not near.any():
+        return float(sigma)
+    zn = z[near]
+    p = ndtr(zn)
+    var_f = float(np.sum(p * (1.0 - p))) / s.size ** 2
+    dens = float(np.sum(np.exp(-0.5 * zn * zn))) / (math.sqrt(2.0 * math.pi) * sigma * s.size)
+    if dens <= 0.0:
+        return float(sigma)
+    return float(min(math.sqrt(var_f) / dens, sigma))
+
+
+def vpp_noise_u(model: np.ndarray, sigma: float, low: float, high: float) -> float:
+    """Noise part of the standard uncertainty of the robust peak-to-peak value ``high − low``.
+
+    The two percentiles (:func:`percentile_noise_u`) are set by disjoint groups of samples
+    (those near the bottom and those near the top of the wave) when the wave is much
+    larger than the noise, so their uncertainties add in quadrature (GUM, JCGM 100:2008
+    5.1.2, uncorrelated inputs).
+
+    Parameters
+    ----------
+    model : ndarray
+        Noise-free waveform at the sample instants (sample units).
+    sigma : float
+        Noise standard deviation (sample units).
+    low, high : float
+        The 0.1th and 99.9th percentiles (:attr:`Levels.vpp_low`, :attr:`Levels.vpp_high`).
+
+    Returns
+    -------
+    float
+        Standard uncertainty (sample units).
+    """
+    return math.hypot(percentile_noise_u(model, sigma, low), percentile_noise_u(model, sigma, high))
 
 
 def _runs(mask: np.ndarray, min_run: int) -> tuple[int, int]:
@@ -228,3 +309,18 @@ def find_clipping(x: np.ndarray, unit: str, full_scale: float | None = None,
         if int(np.count_nonzero(at)) >= _RAIL_PILEUP * max(n_neighbour, 1):
             best = ClipReport(True, runs, count, level, "rail")
     return best
+
+
+def quantisation_step(x: np.ndarray) -> float:
+    """Smallest positive difference between distinct sample values (sample units).
+
+    For a quantised record (PCM audio, an 8-bit scope, a CSV printed to a few digits) this
+    is the code step q; for unquantised data it is tiny. A level read at one code then has
+    the resolution uncertainty ``q/√12`` (rectangular distribution of half-width q/2; GUM,
+    JCGM 100:2008 F.2.2.1 and 4.3.7, clause numbers from memory). Returns 0 for fewer than
+    two distinct values.
+    """
+    v = np.unique(np.asarray(x, dtype=np.float64))
+    if v.size < 2:
+        return 0.0
+    return float(np.min(np.diff(v)))

@@ -19,6 +19,19 @@ For each channel:
    duty cycle, rise/fall time, overshoot, with AC-coupling droop compensated (time constant
    from the capture's calibration, or estimated from the droop itself).
 5. **Warnings**, never exceptions, for clipping, short records, low SNR and silence.
+
+Uncertainties of the levels (standard, k = 1, in ``ChannelMeasurement.extra``):
+``amplitude_u`` and ``vdc_u`` from the fit covariance, ``vrms_u`` from the noise variance,
+``vpp_u`` from the noise's effect on the two percentiles
+(:func:`benchfit.measurement.levels.vpp_noise_u`) and the record's resolution (code step q
+as a rectangular ±q/2 at each end). A sound card's levels in volts are its
+full-scale samples times the calibrated gain, so they all scale with it: when the capture's
+calibration gives the gain's relative standard uncertainty ``gain_u_rel``, it is added in
+quadrature (GUM, JCGM 100:2008 5.1.2; the gain and the noise are uncorrelated):
+``u² = u_noise² + (value·gain_u_rel)²``, and ``extra["gain_u_rel"]`` records it (None when
+not known; a channel in V from a sound-card gain without it gets a "gain uncertainty not
+known" warning). Frequency, duty cycle, rise/fall times, THD, THD+N and SINAD are ratios
+of times or of levels of the same channel, so the gain cancels and they are unaffected.
 """
 
 from __future__ import annotations
@@ -32,7 +45,7 @@ import numpy as np
 from benchfit.capture.capture import Capture
 from benchfit.errors import MeasureError
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
-from benchfit.measurement.levels import find_clipping, signal_levels
+from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
 from benchfit.measurement.pulse import pulse_parameters
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
 from benchfit.measurement.tone import fit_harmonics, fit_tone
@@ -60,7 +73,7 @@ def _fmt(v: float, unit: str) -> str:
 def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", unit: str = "FS",
                     harmonics: int = DEFAULT_HARMONICS, timebase_ppm: float = 0.0,
                     timebase_u_ppm: float = 0.0, coupling_tau_s: float | None = None,
-                    full_scale: float | None = None,
+                    full_scale: float | None = None, gain_u_rel: float | None = None,
                     extra_warnings: tuple[str, ...] = ()) -> ChannelMeasurement:
     """Measure one channel.
 
@@ -82,6 +95,10 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         Input coupling time constant (s) for droop compensation of pulse waves.
     full_scale : float, optional
         Full scale in sample units for the clipping check (V per FS of a calibrated card).
+    gain_u_rel : float, optional
+        Relative standard uncertainty of the gain that turned the samples into volts
+        (0.003 = 0.3 %); added in quadrature to the uncertainties of amplitude, vdc, vrms
+        and vpp. None: not known or not applicable (no gain applied).
     extra_warnings : tuple of str
         Warnings to carry over (e.g. from reading the file).
 
@@ -92,9 +109,13 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     x = np.asarray(x, dtype=np.float64)
     fs = float(sample_rate)
     warnings: list[str] = list(extra_warnings)
+    if gain_u_rel is not None and not (math.isfinite(gain_u_rel) and gain_u_rel >= 0):
+        raise MeasureError(f"gain_u_rel: {gain_u_rel!r} must be a finite relative uncertainty ≥ 0 "
+                           "(0.003 = 0.3 %) — fix the calibration profile or the sidecar")
     extra: dict[str, Any] = {"harmonics_h_requested": int(harmonics),
                              "timebase_ppm": float(timebase_ppm),
-                             "timebase_u_ppm": float(timebase_u_ppm)}
+                             "timebase_u_ppm": float(timebase_u_ppm),
+                             "gain_u_rel": None if gain_u_rel is None else float(gain_u_rel)}
     n = x.size
     flat = float(np.ptp(x)) <= 1e-12 * max(1.0, float(np.max(np.abs(x))))
     fit = None if flat else fit_tone(x, fs, n_harmonics=max(int(harmonics), 1))
@@ -173,11 +194,25 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                  amplitude_u=float(au))
         for k, fk, a, ph, au in zip(dist.orders, dist.frequencies_hz, dist.amplitudes,
                                     dist.phases_deg, dist.amplitudes_u))
+    amplitude = abs(fit.phasors[0])
+    if pulse.two_level and pulse.state_low is not None and pulse.state_high is not None \
+            and pulse.noise_rms is not None:
+        # a two-level wave: its states are the noise-free levels (the harmonic fit rings at the edges)
+        mid = 0.5 * (pulse.state_low + pulse.state_high)
+        model, sigma = np.where(x >= mid, pulse.state_high, pulse.state_low), float(pulse.noise_rms)
+    else:
+        model, sigma = fit.evaluate(n, fs), float(fit.sigma)
+    # noise on the two percentiles, and the resolution of each (q/√12 per end, both ends: q/√6);
+    # a noise-free quantised plateau (a flat scope trace) keeps the resolution term
+    vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, levels.vpp_low, levels.vpp_high),
+                             quantisation_step(x) / math.sqrt(6.0))
     extra.update({
         "harmonics_h": int(dist.harmonics_h),
-        "amplitude_u": float(fit.amplitudes_u[0]),
-        "vdc_u": float(fit.dc_u),
-        "vrms_u": _vrms_u(levels.vrms, fit.rss / n, levels.span_samples),
+        "amplitude_u": _with_gain(float(fit.amplitudes_u[0]), amplitude, gain_u_rel),
+        "vdc_u": _with_gain(float(fit.dc_u), levels.vdc, gain_u_rel),
+        "vrms_u": _with_gain(_vrms_u(levels.vrms, fit.rss / n, levels.span_samples), levels.vrms, gain_u_rel),
+        "vpp_u": _with_gain(vpp_u_noise, levels.vpp, gain_u_rel),
+        "vpp_u_noise": vpp_u_noise,
         "vac_rms": levels.vac_rms,
         "vmax": levels.vmax, "vmin": levels.vmin,
         "n_periods": float(n_periods),
@@ -204,7 +239,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         })
     return ChannelMeasurement(
         name=name, unit=unit, frequency_hz=f, frequency_u_hz=_f(u_f),
-        amplitude=_f(abs(fit.phasors[0])), vdc=float(levels.vdc), vrms=float(levels.vrms),
+        amplitude=_f(amplitude), vdc=float(levels.vdc), vrms=float(levels.vrms),
         vpp=float(levels.vpp), duty_cycle_pct=_f(pulse.duty_cycle_pct),
         rise_time_s=_f(pulse.rise_time_s), fall_time_s=_f(pulse.fall_time_s),
         thd_pct=None if thd is None else _f(100.0 * thd),
@@ -217,6 +252,13 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
 def _f(v: Any) -> float | None:
     """A plain Python float (JSON-safe type) or None."""
     return None if v is None else float(v)
+
+
+def _with_gain(u_noise: float, value: float, gain_u_rel: float | None) -> float:
+    """``√(u_noise² + (value·gain_u_rel)²)``: a level's uncertainty with its gain's (GUM 5.1.2)."""
+    if gain_u_rel is None:
+        return float(u_noise)
+    return math.hypot(u_noise, abs(value) * gain_u_rel)
 
 
 def _vrms_u(vrms: float, noise_var: float, n: int) -> float:
@@ -279,15 +321,24 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         cap = cap.select(list(channels))
     cal = cap.calibration
     gains = cal.gain_v_per_fs
+    gains_u = cal.gain_u_rel
     results = []
     for i, (name, unit) in enumerate(zip(cap.channel_names, cap.units)):
         full_scale = None
+        gain_u = None
+        notes = tuple(cap.warnings)
         if unit == "V" and gains is not None and i < len(gains) and gains[i]:
             full_scale = abs(float(gains[i]))
+            if gains_u is not None and i < len(gains_u):
+                gain_u = float(gains_u[i])
+            else:
+                notes += (f"gain uncertainty not known (calibration profile {cal.profile or 'unnamed'!s} does not "
+                          "give it) — the levels' uncertainties in V hold only noise; run 'benchfit calibrate "
+                          "gain' again with --rms-u and record with the new profile",)
         results.append(measure_channel(
             cap.samples[i], cap.sample_rate, name=name, unit=unit, harmonics=int(h),
             timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm,
-            coupling_tau_s=cal.coupling_tau_s, full_scale=full_scale,
-            extra_warnings=tuple(cap.warnings)))
+            coupling_tau_s=cal.coupling_tau_s, full_scale=full_scale, gain_u_rel=gain_u,
+            extra_warnings=notes))
     return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
                        duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)
