@@ -175,6 +175,7 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
             raise CaptureError(
                 f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {tau!r} — {fix}")
         cal["coupling_tau_s"] = float(tau)
+    cal.pop("gain_u_rel", None)  # null is the same as missing: not known
     if cal_in.get("gain_u_rel") is not None:
         if gains is None:
             raise CaptureError(
