@@ -8,7 +8,7 @@ from typing import Any, NoReturn
 
 from benchfit.errors import BenchfitError
 
-__all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse_value"]
+__all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse_value", "with_fix"]
 
 
 def _console(err: bool):
@@ -54,7 +54,13 @@ def parse_value(text: str, option: str, *, positive: bool = True, allow_zero: bo
     try:
         return parse_quantity(text, option, positive=positive, allow_zero=allow_zero)
     except ValueError as e:
-        fail(str(e))
+        need = " above zero" if positive and not allow_zero else " of zero or more" if positive else ""
+        fail(with_fix(str(e), f"give a number{need} after {option}"))
+
+
+def with_fix(message: str, fix: str) -> str:
+    """``message`` as it is when it already says what to do (``… — …``), else with `` — fix``."""
+    return message if " — " in message else f"{message} — {fix}"
 
 
 def parse_assignments(items: list[str] | None, allowed: tuple[str, ...], option: str,
@@ -67,9 +73,12 @@ def parse_assignments(items: list[str] | None, allowed: tuple[str, ...], option:
         try:
             name, value = parse_assignment(item, allowed, option)
         except ValueError as e:
-            fail(str(e))
+            text = str(e)
+            if "expected NAME=VALUE" in text:
+                text = f"{option} {item!r}: not NAME=VALUE"
+            fail(with_fix(text, f"write it like {option} {allowed[0]}=1.5, NAME one of {', '.join(allowed)}"))
         if value < 0 or (value == 0 and name not in zero_ok):
             need = "zero or positive" if name in zero_ok else "positive"
-            fail(f"{option} {item!r}: {name} must be {need}")
+            fail(f"{option} {item!r}: {name} must be {need} — give the part's value, e.g. {name}=1.5")
         out[name] = value
     return out
