@@ -317,10 +317,13 @@ def quantisation_step(x: np.ndarray) -> float:
     For a quantised record (PCM audio, an 8-bit scope, a CSV printed to a few digits) this
     is the code step q; for unquantised data it is tiny. A level read at one code then has
     the resolution uncertainty ``q/√12`` (rectangular distribution of half-width q/2; GUM,
-    JCGM 100:2008 F.2.2.1 and 4.3.7, clause numbers from memory). Returns 0 for fewer than
-    two distinct values.
+    JCGM 100:2008 F.2.2.1 and 4.3.7, clause numbers from memory). Returns 0 when the record
+    shows no code grid: fewer than two distinct values, or a smallest gap above 1 % of the
+    record's span (a noise-free two-level trace has only its two levels, whose distance is
+    not a resolution).
     """
     v = np.unique(np.asarray(x, dtype=np.float64))
     if v.size < 2:
         return 0.0
-    return float(np.min(np.diff(v)))
+    q = float(np.min(np.diff(v)))
+    return q if q <= 0.01 * float(v[-1] - v[0]) else 0.0
