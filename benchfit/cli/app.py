@@ -22,10 +22,13 @@ app = typer.Typer(
 )
 
 calibrate_app = typer.Typer(help="Sound-card calibration profiles (gain, timebase, input coupling).",
+                            short_help="Sound-card calibration: gain, timebase, input coupling.",
                             no_args_is_help=True, rich_markup_mode=None)
 log_app = typer.Typer(help="The measurement log: list, show, export runs and batch statistics.",
+                      short_help="The measurement log: list, show, export, batch statistics.",
                       no_args_is_help=True, rich_markup_mode=None)
 design_app = typer.Typer(help="Design and trim advice: timer parts, filter parts, combinations, trims.",
+                         short_help="Timer and filter parts, part combinations, trim advice.",
                          no_args_is_help=True, rich_markup_mode=None)
 
 app.add_typer(calibrate_app, name="calibrate")

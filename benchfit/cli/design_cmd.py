@@ -188,34 +188,37 @@ def _print_lines(lines, style: str = "") -> None:
 # --- astable --------------------------------------------------------------------------------
 
 _ASTABLE_EXAMPLE = """
+
 Example:
 
-  benchfit design astable --frequency 50 --cap 1u --trim-pot 5k --tolerance-c 10%
+\b
+  benchfit design astable --frequency 50 --cap 1u --trim-pot 5k \\
+      --tolerance-c 10%
 """
 
 
 @design_app.command("astable", short_help="555-style astable parts, spread and trim range.", help="Choose 555-style astable parts for a frequency and duty, with the "
                     "tolerance spread and trim range." + _ASTABLE_EXAMPLE)
 def astable_command(
-    frequency: str = typer.Option(..., "--frequency", help="Wanted frequency, e.g. 50 or 1.2k (Hz)."),
-    duty: Optional[str] = typer.Option(None, "--duty", help="High time / period, e.g. 55% or 0.55. "
+    frequency: str = typer.Option(..., "--frequency", metavar="HZ", help="Wanted frequency, e.g. 50 or 1.2k (Hz)."),
+    duty: Optional[str] = typer.Option(None, "--duty", metavar="DUTY", help="High time / period, e.g. 55% or 0.55. "
                                        "Default: as near 50 % as the circuit allows."),
-    cap: Optional[str] = typer.Option(None, "--cap", help="Timing capacitor C1, e.g. 1u (F). Default: chosen."),
-    series: str = typer.Option("E24", "--series", help="Resistor series: E6, E12, E24, E48 or E96."),
-    cap_series: str = typer.Option("E6", "--cap-series", help="Series for C1 when it is chosen."),
-    supply: str = typer.Option("12", "--supply", help="Supply voltage (V)."),
-    control_voltage: Optional[str] = typer.Option(None, "--control-voltage",
+    cap: Optional[str] = typer.Option(None, "--cap", metavar="F", help="Timing capacitor C1, e.g. 1u (F). Default: chosen."),
+    series: str = typer.Option("E24", "--series", metavar="SERIES", help="Resistor series: E6, E12, E24, E48 or E96."),
+    cap_series: str = typer.Option("E6", "--cap-series", metavar="SERIES", help="Series for C1 when it is chosen."),
+    supply: str = typer.Option("12", "--supply", metavar="V", help="Supply voltage (V)."),
+    control_voltage: Optional[str] = typer.Option(None, "--control-voltage", metavar="V",
                                                   help="Voltage held on the control pin (V)."),
     diode: bool = typer.Option(False, "--diode", help="Diode across RB: allows duty below 50 %."),
-    tolerance_r: str = typer.Option("1%", "--tolerance-r", help="Resistor tolerance."),
-    tolerance_c: str = typer.Option("10%", "--tolerance-c", help="Capacitor tolerance."),
-    yield_within: str = typer.Option("1%", "--yield-within", help="Frequency band for the yield figure."),
-    distribution: str = typer.Option("uniform", "--distribution",
+    tolerance_r: str = typer.Option("1%", "--tolerance-r", metavar="TOL", help="Resistor tolerance."),
+    tolerance_c: str = typer.Option("10%", "--tolerance-c", metavar="TOL", help="Capacitor tolerance."),
+    yield_within: str = typer.Option("1%", "--yield-within", metavar="TOL", help="Frequency band for the yield figure."),
+    distribution: str = typer.Option("uniform", "--distribution", metavar="NAME",
                                      help="Part spread: uniform over ±tolerance, or normal with tolerance = 3σ."),
-    trials: int = typer.Option(20000, "--trials", min=100, help="Number of simulated units (100 or more)."),
-    seed: int = typer.Option(0, "--seed", help="Seed of the random generator."),
-    trim_pot: Optional[str] = typer.Option(None, "--trim-pot", help="Trimmer in series with RB, e.g. 10k (Ω)."),
-    control_range: Optional[str] = typer.Option(None, "--control-range",
+    trials: int = typer.Option(20000, "--trials", metavar="N", min=100, help="Number of simulated units (100 or more)."),
+    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed of the random generator."),
+    trim_pot: Optional[str] = typer.Option(None, "--trim-pot", metavar="OHM", help="Trimmer in series with RB, e.g. 10k (Ω)."),
+    control_range: Optional[str] = typer.Option(None, "--control-range", metavar="LOW:HIGH",
                                                 help="Control-pin trim range LOW:HIGH in volts, e.g. 6:9."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
@@ -228,7 +231,7 @@ def astable_command(
     if control_range is not None:
         lo, sep, hi = control_range.partition(":")
         if not sep:
-            fail(f"--control-range: {control_range!r} needs LOW:HIGH in volts, e.g. 6:9")
+            fail(f"--control-range {control_range!r}: not LOW:HIGH — write the range in volts like 6:9")
         cr = (_opt_value(lo, "--control-range low"), _opt_value(hi, "--control-range high"))
     series = _series(series, "--series")
     cap_series = _series(cap_series, "--cap-series")
@@ -293,25 +296,28 @@ def _show_astable(result, as_json: bool) -> None:
 # --- filter ---------------------------------------------------------------------------------
 
 _FILTER_EXAMPLE = """
+
 Example:
 
-  benchfit design filter --frequency 50 --inductance 300m --rs 400 --load 10k --duty 52%
+\b
+  benchfit design filter --frequency 50 --inductance 300m --rs 400 \\
+      --load 10k --duty 52%
 """
 
 
 @design_app.command("filter", short_help="Tuned L-C low-pass parts and expected output.", help="Parts of a tuned L-C low-pass for a rectangular drive, with the "
                     "expected output level and THD." + _FILTER_EXAMPLE)
 def filter_command(
-    frequency: str = typer.Option(..., "--frequency", help="Drive frequency; the resonance is put there (Hz)."),
-    inductance: Optional[str] = typer.Option(None, "--inductance", help="Known inductance, e.g. 300m (H)."),
-    capacitance: Optional[str] = typer.Option(None, "--capacitance", help="Known capacitance, e.g. 33u (F)."),
-    load: Optional[str] = typer.Option(None, "--load", help="Load across the output, e.g. 10k (Ω). Default: open."),
-    rs: str = typer.Option("0", "--rs", help="Series resistance: timer output + winding (Ω)."),
-    esr: str = typer.Option("0", "--esr", help="Capacitor ESR (Ω)."),
-    duty: str = typer.Option("50%", "--duty", help="Drive duty (high time / period)."),
-    series: str = typer.Option("E12", "--series", help="Series for the solved part."),
-    amplitude: str = typer.Option("12", "--amplitude", help="Drive swing, 0 V to this (V)."),
-    harmonics: int = typer.Option(40, "--harmonics", min=2, help="Highest harmonic in the THD sum (2 or more)."),
+    frequency: str = typer.Option(..., "--frequency", metavar="HZ", help="Drive frequency; the resonance is put there (Hz)."),
+    inductance: Optional[str] = typer.Option(None, "--inductance", metavar="H", help="Known inductance, e.g. 300m (H)."),
+    capacitance: Optional[str] = typer.Option(None, "--capacitance", metavar="F", help="Known capacitance, e.g. 33u (F)."),
+    load: Optional[str] = typer.Option(None, "--load", metavar="OHM", help="Load across the output, e.g. 10k (Ω). Default: open."),
+    rs: str = typer.Option("0", "--rs", metavar="OHM", help="Series resistance: timer output + winding (Ω)."),
+    esr: str = typer.Option("0", "--esr", metavar="OHM", help="Capacitor ESR (Ω)."),
+    duty: str = typer.Option("50%", "--duty", metavar="DUTY", help="Drive duty (high time / period)."),
+    series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series for the solved part."),
+    amplitude: str = typer.Option("12", "--amplitude", metavar="V", help="Drive swing, 0 V to this (V)."),
+    harmonics: int = typer.Option(40, "--harmonics", metavar="N", min=2, help="Highest harmonic in the THD sum (2 or more)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stdout
@@ -351,8 +357,10 @@ def filter_command(
 # --- combine --------------------------------------------------------------------------------
 
 _COMBINE_EXAMPLE = """
+
 Example:
 
+\b
   benchfit design combine 29.7u --kind C --series E12 --max-parts 3
   benchfit design combine 9.2k --kind R --stock drawer.csv
 """
@@ -361,13 +369,13 @@ Example:
 @design_app.command("combine", short_help="Series/parallel part combinations for a value.", help="Best series/parallel combinations of parts for a value, from a "
                     "series or your stock list." + _COMBINE_EXAMPLE)
 def combine_command(
-    value: str = typer.Argument(..., help="Wanted value, e.g. 29.7u, 9.2k, 300m."),
-    kind: str = typer.Option(..., "--kind", help="R, C or L."),
-    series: str = typer.Option("E12", "--series", help="Series to draw from: E6, E12, E24, E48 or E96."),
-    max_parts: int = typer.Option(3, "--max-parts", min=1, max=3, help="At most this many parts (1 to 3)."),
-    stock: Optional[Path] = typer.Option(None, "--stock",
+    value: str = typer.Argument(..., metavar="VALUE", help="Wanted value, e.g. 29.7u, 9.2k, 300m."),
+    kind: str = typer.Option(..., "--kind", metavar="KIND", help="R, C or L."),
+    series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series to draw from: E6, E12, E24, E48 or E96."),
+    max_parts: int = typer.Option(3, "--max-parts", metavar="N", min=1, max=3, help="At most this many parts (1 to 3)."),
+    stock: Optional[Path] = typer.Option(None, "--stock", metavar="FILE",
                                          help="CSV of parts on hand: a 'value' column, optional 'qty'."),
-    top: int = typer.Option(5, "--top", min=1, help="How many combinations to list (1 or more)."),
+    top: int = typer.Option(5, "--top", metavar="N", min=1, help="How many combinations to list (1 or more)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -398,11 +406,14 @@ def combine_command(
 # --- trim -----------------------------------------------------------------------------------
 
 _TRIM_EXAMPLE = """
+
 Example:
 
+\b
   benchfit fit hc07.wav --json > hc07_fit.json
   benchfit design trim --fit hc07_fit.json --target 50 --bank 22u,10u,1u
-  benchfit design trim --fit hc07_fit.json --target 50 --timer-frequency 50.61 --ra 1k --rb 9.1k --c1 1.5u --supply 12
+  benchfit design trim --fit hc07_fit.json --target 50 \\
+      --timer-frequency 50.61 --ra 1k --rb 9.1k --c1 1.5u --supply 12
 """
 
 
@@ -427,28 +438,28 @@ def _read_fit(path: Path):
 @design_app.command("trim", short_help="The part change that brings a fitted unit to target.", help="From a unit's fit, the one part change that brings it to the target "
                     "frequency, with the predicted result." + _TRIM_EXAMPLE)
 def trim_command(
-    fit: Optional[Path] = typer.Option(None, "--fit", help="JSON from 'benchfit fit --model lc-lowpass "
+    fit: Optional[Path] = typer.Option(None, "--fit", metavar="FILE", help="JSON from 'benchfit fit --model lc-lowpass "
                                        "--json' (filter advice). Leave out for timer advice only."),
-    target: str = typer.Option(..., "--target", help="Wanted frequency (Hz)."),
-    series: str = typer.Option("E12", "--series", help="Series for capacitors to add."),
-    max_parts: int = typer.Option(2, "--max-parts", min=1, max=3,
+    target: str = typer.Option(..., "--target", metavar="HZ", help="Wanted frequency (Hz)."),
+    series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series for capacitors to add."),
+    max_parts: int = typer.Option(2, "--max-parts", metavar="N", min=1, max=3,
                                   help="At most this many capacitors to add (1 to 3)."),
-    part_tolerance: Optional[str] = typer.Option(None, "--part-tolerance",
+    part_tolerance: Optional[str] = typer.Option(None, "--part-tolerance", metavar="TOL",
                                                  help="Tolerance of added capacitors (default: the series')."),
-    bank: Optional[str] = typer.Option(None, "--bank", help="Nominal values of the present capacitor bank, "
+    bank: Optional[str] = typer.Option(None, "--bank", metavar="VALUES", help="Nominal values of the present capacitor bank, "
                                        "comma-separated, e.g. 22u,10u,1u."),
-    timer_frequency: Optional[str] = typer.Option(None, "--timer-frequency", help="Measured timer frequency (Hz)."),
-    timer_frequency_u: Optional[str] = typer.Option(None, "--timer-frequency-u",
+    timer_frequency: Optional[str] = typer.Option(None, "--timer-frequency", metavar="HZ", help="Measured timer frequency (Hz)."),
+    timer_frequency_u: Optional[str] = typer.Option(None, "--timer-frequency-u", metavar="HZ",
                                                     help="Its standard uncertainty (Hz)."),
-    ra: Optional[str] = typer.Option(None, "--ra", help="Timer RA (Ω)."),
-    rb: Optional[str] = typer.Option(None, "--rb", help="Timer RB (Ω)."),
-    c1: Optional[str] = typer.Option(None, "--c1", help="Timer C1 (F)."),
-    supply: Optional[str] = typer.Option(None, "--supply", help="Supply voltage (V): enables control-pin advice."),
-    control_voltage: Optional[str] = typer.Option(None, "--control-voltage",
+    ra: Optional[str] = typer.Option(None, "--ra", metavar="OHM", help="Timer RA (Ω)."),
+    rb: Optional[str] = typer.Option(None, "--rb", metavar="OHM", help="Timer RB (Ω)."),
+    c1: Optional[str] = typer.Option(None, "--c1", metavar="F", help="Timer C1 (F)."),
+    supply: Optional[str] = typer.Option(None, "--supply", metavar="V", help="Supply voltage (V): enables control-pin advice."),
+    control_voltage: Optional[str] = typer.Option(None, "--control-voltage", metavar="V",
                                                   help="Present control-pin voltage (V), if held."),
     diode: bool = typer.Option(False, "--diode", help="The timer has a diode across RB."),
-    resistor_series: str = typer.Option("E24", "--resistor-series", help="Series for a new RB."),
-    tolerance_r: str = typer.Option("1%", "--tolerance-r", help="Tolerance of a new RB."),
+    resistor_series: str = typer.Option("E24", "--resistor-series", metavar="SERIES", help="Series for a new RB."),
+    tolerance_r: str = typer.Option("1%", "--tolerance-r", metavar="TOL", help="Tolerance of a new RB."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stdout

@@ -26,10 +26,10 @@ _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a
 
 Examples:
 
+\b
   benchfit fit HC-03_drive_output.csv --fix L=300m --fix Rload=10k
-
-  benchfit fit HC-05_output.wav --method one-channel --fix L=300m --drive-duty 0.5
-
+  benchfit fit HC-05_output.wav --method one-channel --fix L=300m \\
+      --drive-duty 0.5
   benchfit fit HC-05_ringdown.csv --model ringdown --json
 
 lc-lowpass: drive → Rs → L → output; C in series with its ESR (Resr) to ground; Rload across
@@ -139,26 +139,26 @@ def _clip_warnings(cap) -> list[str]:
     return lines
 
 
-@app.command("fit", help=_HELP)
+@app.command("fit", help=_HELP, short_help="Back-solve effective L, C, Rs, ESR and load of an L-C low-pass.")
 def fit_command(
-    file: Path = typer.Argument(..., help="Capture file: WAV, FLAC or CSV.", show_default=False),
-    model: str = typer.Option("lc-lowpass", "--model", "-m", help="lc-lowpass or ringdown."),
-    method: str = typer.Option("auto", "--method",
+    file: Path = typer.Argument(..., metavar="FILE", help="Capture file: WAV, FLAC or CSV.", show_default=False),
+    model: str = typer.Option("lc-lowpass", "--model", "-m", metavar="MODEL", help="lc-lowpass or ringdown."),
+    method: str = typer.Option("auto", "--method", metavar="METHOD",
                                help="auto, two-channel or one-channel (lc-lowpass only)."),
-    drive: Optional[str] = typer.Option(None, "--drive", help="Drive channel: name or 1-based number."),
-    response: Optional[str] = typer.Option(None, "--response",
+    drive: Optional[str] = typer.Option(None, "--drive", metavar="CH", help="Drive channel: name or 1-based number."),
+    response: Optional[str] = typer.Option(None, "--response", metavar="CH",
                                            help="Output channel: name or 1-based number."),
-    fix: Optional[List[str]] = typer.Option(None, "--fix", help="Known part NAME=VALUE (repeatable): "
+    fix: Optional[List[str]] = typer.Option(None, "--fix", metavar="NAME=VALUE", help="Known part NAME=VALUE (repeatable): "
                                             "L, C, Rs, Resr, Rload; e.g. --fix L=300m."),
-    guess: Optional[List[str]] = typer.Option(None, "--guess", help="Start value NAME=VALUE (repeatable)."),
-    drive_duty: Optional[str] = typer.Option(None, "--drive-duty", help="One-channel: the drive's duty "
+    guess: Optional[List[str]] = typer.Option(None, "--guess", metavar="NAME=VALUE", help="Start value NAME=VALUE (repeatable)."),
+    drive_duty: Optional[str] = typer.Option(None, "--drive-duty", metavar="DUTY", help="One-channel: the drive's duty "
                                              "cycle, high time / period, as 0.5 or 50%; fitted if omitted."),
     time_domain: bool = typer.Option(False, "--time-domain", help="Two-channel: refine by simulating "
                                      "the output from the drive samples (for non-periodic drives)."),
     as_json: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
-    plot: Optional[Path] = typer.Option(None, "--plot", help="Write a figure: FILE.svg or FILE.png."),
+    plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE", help="Write a figure: FILE.svg or FILE.png."),
     sample_rate: Optional[str] = typer.Option(
-        None, "--sample-rate", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
+        None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
 ) -> None:
     from benchfit.cli.common import fail, parse_assignments, parse_value, print_json, stderr, stdout
 

@@ -34,11 +34,11 @@ def _check_since(since: Optional[str]) -> Optional[str]:
     return parsed.strftime("%Y-%m-%dT%H:%M:%S")
 
 
-@log_app.command("list", help="List logged runs.\n\nExample:\n\n  benchfit log list --unit HC-07 --since 2026-12-01")
+@log_app.command("list", help="List logged runs.\n\nExample:\n\n\b\n  benchfit log list --unit HC-07 --since 2026-12-01")
 def list_command(
-    unit: Optional[str] = typer.Option(None, "--unit", help="Only runs of this unit serial."),
-    since: Optional[str] = typer.Option(None, "--since", help="Only runs at or after this UTC date/time."),
-    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+    unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL", help="Only runs of this unit serial."),
+    since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
     as_json: bool = typer.Option(False, "--json", help="Print the runs as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -59,10 +59,10 @@ def list_command(
     stdout.print(table)
 
 
-@log_app.command("show", help="Show everything logged about one run.\n\nExample:\n\n  benchfit log show 12")
+@log_app.command("show", help="Show everything logged about one run.\n\nExample:\n\n\b\n  benchfit log show 12")
 def show_command(
-    run: int = typer.Argument(..., help="Run id (see `benchfit log list`)."),
-    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+    run: int = typer.Argument(..., metavar="RUN", help="Run id (see `benchfit log list`)."),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
     as_json: bool = typer.Option(False, "--json", help="Print the run as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -100,14 +100,14 @@ def show_command(
 
 
 @log_app.command("export", help="Export the logged results as CSV or JSON (one row per result).\n\n"
-                 "Example:\n\n  benchfit log export --format csv --out batch.csv")
+                 "Example:\n\n\b\n  benchfit log export --format csv --out batch.csv")
 def export_command(
-    fmt: str = typer.Option("csv", "--format", help="csv or json."),
-    out: Optional[Path] = typer.Option(None, "--out", help="Output file (default: print to stdout)."),
+    fmt: str = typer.Option("csv", "--format", metavar="FORMAT", help="csv or json."),
+    out: Optional[Path] = typer.Option(None, "--out", metavar="FILE", help="Output file (default: print to stdout)."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --out file."),
-    unit: Optional[str] = typer.Option(None, "--unit", help="Only results of this unit serial."),
-    since: Optional[str] = typer.Option(None, "--since", help="Only runs at or after this UTC date/time."),
-    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+    unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL", help="Only results of this unit serial."),
+    since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
 ) -> None:
     import sys
 
@@ -123,16 +123,16 @@ def export_command(
 
 @log_app.command("stats", help="Batch statistics of one quantity: n, mean, std, min, max, Cp and Cpk.\n\n"
                  "One value per unit (its latest as-left result); runs without a serial count singly.\n\n"
-                 "Example:\n\n  benchfit log stats frequency_hz --spec sample_captures/hc_spec.toml --plot f.svg")
+                 "Example:\n\n\b\n  benchfit log stats frequency_hz --spec sample_captures/hc_spec.toml \\\n      --plot f.svg")
 def stats_command(
-    quantity: str = typer.Argument(..., help="Quantity name, e.g. frequency_hz, thd_pct, vrms, C."),
-    spec: Optional[Path] = typer.Option(None, "--spec", help="Spec TOML file giving the limits (for Cp, Cpk)."),
-    channel: Optional[str] = typer.Option(None, "--channel", help="Only results of this channel name."),
-    plot: Optional[Path] = typer.Option(None, "--plot", help="Write a histogram with the limits (SVG)."),
+    quantity: str = typer.Argument(..., metavar="QUANTITY", help="Quantity name, e.g. frequency_hz, thd_pct, vrms, C."),
+    spec: Optional[Path] = typer.Option(None, "--spec", metavar="FILE", help="Spec TOML file giving the limits (for Cp, Cpk)."),
+    channel: Optional[str] = typer.Option(None, "--channel", metavar="CH", help="Only results of this channel name."),
+    plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE", help="Write a histogram with the limits (SVG)."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --plot file."),
     all_runs: bool = typer.Option(False, "--all-runs", help="Use every logged value, not one per unit."),
-    since: Optional[str] = typer.Option(None, "--since", help="Only runs at or after this UTC date/time."),
-    log: Optional[str] = typer.Option(None, "--log", help=_LOG_HELP),
+    since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
     as_json: bool = typer.Option(False, "--json", help="Print the statistics as one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stderr, stdout

@@ -23,21 +23,19 @@ _EXAMPLE = """
 
 Examples:
 
-benchfit measure HC-03_as-left.wav
-
-benchfit measure HC-*.wav --channel output --json > batch.jsonl
-
-benchfit measure captures/ --recursive --jobs 2 --log-default
-
-benchfit measure scope_export.csv --sample-rate 100k --harmonics 20
+\b
+  benchfit measure HC-03_as-left.wav
+  benchfit measure HC-*.wav --channel output --json > batch.jsonl
+  benchfit measure captures/ --recursive --jobs 2 --log-default
+  benchfit measure scope_export.csv --sample-rate 100k --harmonics 20
 
 Several files or a folder: files are measured at the same time in worker processes (--jobs)
 and each result is printed as soon as its file is done, so the order can differ from the
 input (each JSON object names its "file"). A file that cannot be measured gives one
 "error: <file>: …" line on stderr and the others go on; the exit status is then 2.
 
-Logging is off unless asked for: --log PATH appends to that log file, --log-default to
-$BENCHFIT_LOG or, when that is unset, benchfit/log.sqlite in the user data directory.
+Logging is off unless asked for: --log-default appends to $BENCHFIT_LOG or, when that is
+unset, to benchfit/log.sqlite in the user data directory; --log PATH appends to that file.
 See the runs with "benchfit log list".
 
 Uncertainties are standard uncertainties (k = 1). THD is relative to the fundamental over
@@ -195,29 +193,29 @@ def _render(d: dict[str, Any], console) -> None:
 
 
 @app.command("measure", help="Measure frequency, levels, duty cycle, edges and distortion of capture files."
-             + _EXAMPLE)
+             + _EXAMPLE, short_help="Frequency, levels, duty cycle, edges and THD of capture files.")
 def measure_command(
     files: List[Path] = typer.Argument(
-        ..., show_default=False,
+        ..., metavar="FILES", show_default=False,
         help="Capture files (WAV, FLAC, OGG, AIFF or CSV) and/or folders. A folder gives its files ending in "
              ".wav .flac .csv .tsv .txt .ogg .aiff, sorted by name (sidecar .json files are not captures)."),
     channel: Optional[List[str]] = typer.Option(
-        None, "--channel", "-c", help="Channel name or 1-based number to measure (repeatable; default all)."),
+        None, "--channel", "-c", metavar="CH", help="Channel name or 1-based number to measure (repeatable; default all)."),
     as_json: bool = typer.Option(False, "--json",
                                  help="Print one JSON object per file (one line each, in the order the files "
                                       "finish) instead of tables."),
-    harmonics: int = typer.Option(10, "--harmonics", min=1,
+    harmonics: int = typer.Option(10, "--harmonics", metavar="H", min=1,
                                   help="Highest harmonic order H: THD over harmonics 2…H (default 10), "
                                        "limited to orders below Nyquist."),
     sample_rate: Optional[str] = typer.Option(
-        None, "--sample-rate", help="Sample rate for a CSV without a time column, e.g. 48000 or 100k (Hz)."),
+        None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 48000 or 100k (Hz)."),
     recursive: bool = typer.Option(False, "--recursive", "-r", help="Also take capture files from sub-folders."),
     jobs: Optional[int] = typer.Option(
-        None, "--jobs", "-j", min=1, show_default=False,
+        None, "--jobs", "-j", metavar="N", min=1, show_default=False,
         help="Files measured at once, each in its own worker process (default: the number of CPUs); "
              "--jobs 1 measures one after the other in this process."),
     log: Optional[str] = typer.Option(
-        None, "--log", show_default=False,
+        None, "--log", metavar="PATH", show_default=False,
         help="Append each measured file as a run (command \"measure\") to this measurement log file; "
              "created when missing. Without --log or --log-default nothing is logged."),
     log_default: bool = typer.Option(

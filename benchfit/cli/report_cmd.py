@@ -26,7 +26,8 @@ Example:
 
 \b
   benchfit report hc07_left.wav --as-found hc07_found.wav --unit HC-07 \\
-      --spec sample_captures/hc_spec.toml --operator "R. Okafor" --out reports/
+      --spec sample_captures/hc_spec.toml --operator "R. Okafor" \\
+      --out reports/
 
 A batch of units, one report each (serial from each sidecar's "unit" key, else the file name):
 
@@ -45,33 +46,33 @@ _FIT_NAMES = ("L", "C", "Rs", "Resr", "Rload")
              + _EXAMPLE, short_help="Judge a built unit against its spec; write an HTML + JSON calibration record.")
 def report_command(
     captures: List[Path] = typer.Argument(
-        ..., help="As-left capture files (WAV, FLAC, OGG, AIFF or CSV) and/or folders. A folder gives its "
+        ..., metavar="CAPTURES", help="As-left capture files (WAV, FLAC, OGG, AIFF or CSV) and/or folders. A folder gives its "
                   "files ending in .wav .flac .csv .tsv .txt .ogg .aiff, sorted by name."),
-    unit: Optional[str] = typer.Option(None, "--unit", help="Serial of the unit under test, e.g. HC-07 "
+    unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL", help="Serial of the unit under test, e.g. HC-07 "
                                                             "(required without --each)."),
-    spec: Path = typer.Option(..., "--spec", help="Spec TOML file (limits, conditions, decision rule)."),
+    spec: Path = typer.Option(..., "--spec", metavar="FILE", help="Spec TOML file (limits, conditions, decision rule)."),
     each: bool = typer.Option(False, "--each",
                               help="Every capture is its own unit, with its own report. The serial is the "
                                    "sidecar's \"unit\" key when present, else the file name without its "
                                    "extension (HC-07.wav → HC-07)."),
     recursive: bool = typer.Option(False, "--recursive", "-r", help="Also take capture files from sub-folders."),
     jobs: Optional[int] = typer.Option(
-        None, "--jobs", "-j", min=1, show_default=False,
+        None, "--jobs", "-j", metavar="N", min=1, show_default=False,
         help="With --each: units judged at once, each in its own worker process (default: the number of "
              "CPUs); --jobs 1 works in this process."),
-    as_found: Optional[List[Path]] = typer.Option(None, "--as-found",
+    as_found: Optional[List[Path]] = typer.Option(None, "--as-found", metavar="FILE",
                                                   help="Capture made before adjustment (repeatable; "
                                                        "not with --each)."),
-    operator: Optional[str] = typer.Option(None, "--operator", help="Who made the measurement."),
-    out: Path = typer.Option(Path("."), "--out", help="Directory for the report files."),
-    model: Optional[str] = typer.Option(None, "--model",
+    operator: Optional[str] = typer.Option(None, "--operator", metavar="NAME", help="Who made the measurement."),
+    out: Path = typer.Option(Path("."), "--out", metavar="DIR", help="Directory for the report files."),
+    model: Optional[str] = typer.Option(None, "--model", metavar="MODEL",
                                         help="Fit the captures with this model: lc-lowpass or ringdown. "
                                              "Default: lc-lowpass when the spec names a fitted quantity."),
-    drive: Optional[str] = typer.Option(None, "--drive", help="Channel holding the filter's drive (fit)."),
-    response: Optional[str] = typer.Option(None, "--response", help="Channel holding the filter output (fit)."),
-    fix: Optional[List[str]] = typer.Option(None, "--fix",
+    drive: Optional[str] = typer.Option(None, "--drive", metavar="CH", help="Channel holding the filter's drive (fit)."),
+    response: Optional[str] = typer.Option(None, "--response", metavar="CH", help="Channel holding the filter output (fit)."),
+    fix: Optional[List[str]] = typer.Option(None, "--fix", metavar="NAME=VALUE",
                                             help="Hold a fit parameter fixed, e.g. --fix Rload=10k (repeatable)."),
-    log: Optional[str] = typer.Option(None, "--log",
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH",
                                       help="Measurement log file (default: $BENCHFIT_LOG or the user data "
                                            "directory's benchfit/log.sqlite)."),
     no_log: bool = typer.Option(False, "--no-log", help="Do not append this run to the measurement log."),
