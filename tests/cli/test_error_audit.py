@@ -1,0 +1,443 @@
+"""Error-message audit of the whole command line: bad input is ONE line, with the right exit code.
+
+The contract (benchfit/errors.py, benchfit/cli/__init__.py): bad input prints exactly one
+line ``error: <file or parameter>: <what is wrong> — <what to do>`` on stderr, exits 2 (3 for
+an audio device), never shows a traceback; a unit failing its spec is exit 1; usage errors
+(unknown option, bad option value, missing argument) follow the same one-line rule.
+
+The table runs every command in-process through :func:`benchfit.cli.main` (a few cases go
+through a subprocess to cover the real entry point). The bad files are generated here
+with a seeded random generator; nothing is read from outside the test folder.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+import subprocess
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from benchfit.cli import main
+
+FS = 48000  # Hz, the sample rate of the generated captures
+SPEC_TOML = """\
+[spec]
+name = "hum-check box, 50 Hz reference tone"
+decision_rule = "guard-banded"
+
+[[limit]]
+quantity = "frequency_hz"
+nominal = 50.0
+tolerance = 0.25
+"""
+
+def _csv(path: Path, times: np.ndarray, values: list[str]) -> None:
+    rows = [f"{t:.7f},{v}" for t, v in zip(times, values)]
+    path.write_text("time,output\n" + "\n".join(rows) + "\n", encoding="utf-8")
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory) -> dict[str, Path]:
+    """Every bad (and a few good) input file the table refers to, by name."""
+    d = tmp_path_factory.mktemp("audit")
+    rng = np.random.default_rng(20261201)
+    t = np.arange(FS // 2) / FS  # 0.5 s: 25 periods of 50 Hz
+    sine = 0.5 * np.sin(2 * np.pi * 50 * t)
+    square = np.where((t * 50) % 1 < 0.5, 0.8, -0.8)
+    f: dict[str, Path] = {}
+
+    def wav(name: str, data: np.ndarray, subtype: str = "PCM_24") -> None:
+        f[name] = d / f"{name}.wav"
+        sf.write(f[name], data, FS, subtype=subtype)
+
+    wav("good", sine)
+    wav("two", np.stack([square, sine], axis=1))
+    wav("silent", np.zeros_like(t), "PCM_16")
+    wav("clipped", np.clip(3.0 * np.sin(2 * np.pi * 50 * t), -1.0, 1.0), "PCM_16")
+    wav("noise", 0.2 * rng.standard_normal(t.size))
+    wav("noise2", 0.2 * rng.standard_normal((t.size, 2)))
+    raw = f["good"].read_bytes()
+    f["header_only_wav"] = d / "header_only.wav"
+    f["header_only_wav"].write_bytes(raw[:30])  # cut inside the RIFF header: no data chunk
+    f["text_wav"] = d / "notes.wav"
+    f["text_wav"].write_text("these are bench notes, not audio\n", encoding="utf-8")
+    f["junk_csv"] = d / "junk.csv"
+    f["junk_csv"].write_bytes(rng.integers(0, 256, 3000, dtype=np.uint8).tobytes())
+    f["empty_wav"] = d / "empty.wav"
+    f["empty_wav"].write_bytes(b"")
+    f["header_csv"] = d / "header.csv"
+    f["header_csv"].write_text("time,output\n", encoding="utf-8")
+    tc = t[:2000]
+    vals = [f"{v:.5f}" for v in np.sin(2 * np.pi * 50 * tc)]
+    bad = list(vals)
+    bad[10] = "#VALUE!"  # a spreadsheet error cell on data row 11 (file line 12)
+    f["value_csv"] = d / "value.csv"
+    _csv(f["value_csv"], tc, bad)
+    nan = list(vals)
+    nan[7] = "nan"
+    f["nan_csv"] = d / "nan.csv"
+    _csv(f["nan_csv"], tc, nan)
+    back = tc.copy()
+    back[20], back[21] = back[21], back[20]  # two rows swapped: time goes backwards
+    f["unsorted_csv"] = d / "unsorted.csv"
+    _csv(f["unsorted_csv"], back, vals)
+    jitter = tc + np.where(np.arange(tc.size) % 3 == 0, 4e-6, 0.0)  # 4 µs ≈ 19 % of a step
+    f["irregular_csv"] = d / "irregular.csv"
+    _csv(f["irregular_csv"], jitter, vals)
+    f["sidecar_wav"] = d / "side.wav"
+    f["sidecar_wav"].write_bytes(raw)
+    f["sidecar_json"] = d / "side.json"
+    f["sidecar_json"].write_text("{not json", encoding="utf-8")
+    f["folder"] = d / "empty_folder"
+    f["folder"].mkdir()
+    f["folder_wav"] = d / "folder.wav"
+    f["folder_wav"].mkdir()
+    f["missing"] = d / "HC-09_nothere.wav"
+    f["new_wav"] = d / "new_recording.wav"
+    f["spec"] = d / "hc_spec.toml"
+    f["spec"].write_text(SPEC_TOML, encoding="utf-8")
+    f["spec_bad"] = d / "bad_spec.toml"
+    f["spec_bad"].write_text("this is = = not toml\n", encoding="utf-8")
+    f["fit_bad"] = d / "fit_bad.json"
+    f["fit_bad"].write_text("{not json", encoding="utf-8")
+    f["fit_wrong"] = d / "fit_wrong.json"
+    f["fit_wrong"].write_text(json.dumps({"a": 1}), encoding="utf-8")
+    f["stock_bad"] = d / "stock_bad.csv"
+    f["stock_bad"].write_text("value\n4k7\nabc\n", encoding="utf-8")
+    f["foreign_log"] = d / "notes.sqlite"
+    f["foreign_log"].write_text("these are bench notes, not a database\n", encoding="utf-8")
+    f["no_log"] = d / "never_written.sqlite"
+    f["existing"] = d / "keep_me.csv"
+    f["existing"].write_text("a file the user wants to keep\n", encoding="utf-8")
+    f["existing_wav"] = d / "HC-04_take1.wav"
+    f["existing_wav"].write_bytes(raw)  # an earlier recording the user wants to keep
+    f["out_pdf"] = d / "figure.pdf"
+    f["log"] = d / "log.sqlite"
+    with pytest.raises(SystemExit) as info:  # one real run in the log, for the log commands
+        main(["measure", str(f["good"]), "--log", str(f["log"]), "--json"])
+    assert info.value.code in (0, None)
+    return f
+
+
+@pytest.fixture(autouse=True)
+def _isolated(tmp_path, monkeypatch):
+    """No user log or calibration profile is read or written; fixed terminal width."""
+    monkeypatch.setenv("BENCHFIT_LOG", str(tmp_path / "default_log.sqlite"))
+    monkeypatch.setenv("BENCHFIT_CONFIG_DIR", str(tmp_path / "config"))
+    monkeypatch.setenv("COLUMNS", "80")
+
+
+def run_cli(argv: list[str], capsys) -> tuple[int, str, str]:
+    """Run the command line in-process; return (exit code, stdout, stderr)."""
+    capsys.readouterr()
+    with pytest.raises(SystemExit) as info:
+        main(argv)
+    out = capsys.readouterr()
+    code = info.value.code
+    return (0 if code is None else code), out.out, out.err
+
+
+@dataclass(frozen=True)
+class Case:
+    """One bad invocation: argv ({name} = a file of the fixture), exit code, the line's pattern.
+
+    ``names`` is the file key or the literal option/argument text the message must contain.
+    """
+
+    id: str
+    argv: tuple[str, ...]
+    code: int
+    pattern: str
+    names: str
+    warnings_ok: bool = False
+    extra: dict = field(default_factory=dict)
+
+
+def C(id: str, argv: str | list[str], code: int, pattern: str, names: str, **kw) -> Case:
+    return Case(id, tuple(argv.split() if isinstance(argv, str) else argv), code, pattern, names, **kw)
+
+
+HELP = r" — see 'benchfit {}--help'$"
+
+CASES = [
+    # --- usage errors (click/typer): one line naming the option -------------------------
+    C("measure-no-args", "measure", 2, r"^error: FILES: missing argument — give it; see 'benchfit measure --help'$",
+      "FILES"),
+    C("measure-harmonics-abc", "measure --harmonics abc {good}", 2,
+      r"^error: --harmonics 'abc': not a whole number" + HELP.format("measure "), "--harmonics"),
+    C("measure-jobs-negative", "measure --jobs -1 {good}", 2,
+      r"^error: --jobs '-1': must be 1 or more" + HELP.format("measure "), "--jobs"),
+    C("measure-unknown-option", "measure --hamonics 3 {good}", 2,
+      r"^error: --hamonics: no such option for 'benchfit measure' \(did you mean --harmonics\?\) — ", "--hamonics"),
+    C("record-seconds-x", "record --seconds x {new_wav}", 2,
+      r"^error: --seconds 'x': not a number" + HELP.format("record "), "--seconds"),
+    C("fit-fix-without-value", "fit {two} --fix", 2, r"^error: --fix: needs a value" + HELP.format("fit "), "--fix"),
+    C("report-no-spec", "report {good}", 2, r"^error: --spec: missing option — give it; ", "--spec"),
+    C("log-show-abc", "log show abc", 2, r"^error: RUN 'abc': not a whole number" + HELP.format("log show "), "RUN"),
+    C("log-show-extra", "log show 1 2", 2, r"^error: benchfit log show: unexpected extra argument\(s\) 2 — ",
+      "benchfit log show"),
+    C("unknown-command", "frobnicate", 2, r"^error: benchfit: no such command 'frobnicate' — see 'benchfit --help'$",
+      "frobnicate"),
+    C("design-max-parts-9", "design combine 1k --kind R --max-parts 9", 2,
+      r"^error: --max-parts '9': must be 3 or less" + HELP.format("design combine "), "--max-parts"),
+    C("design-trials-5", "design astable --frequency 50 --trials 5", 2,
+      r"^error: --trials '5': must be 100 or more" + HELP.format("design astable "), "--trials"),
+    C("tune-no-target", "tune", 2, r"^error: --target: missing option — give it; ", "--target"),
+    C("calibrate-no-profile", "calibrate gain {good} --rms 0.35", 2, r"^error: --profile: missing option — ",
+      "--profile"),
+    C("empty-channel", ["measure", "{good}", "--channel", ""], 2,
+      r"^error: --channel: the value is empty — give the value it needs$", "--channel"),
+    C("empty-file-argument", ["fit", ""], 2, r"^error: argument 2: an empty argument — ", "argument 2"),
+    C("empty-log-path", ["measure", "{good}", "--log", ""], 2, r"^error: --log: the path is empty — ", "--log"),
+    C("empty-spec-equals", ["report", "{good}", "--spec="], 2, r"^error: --spec: the path is empty — ", "--spec"),
+    # --- capture readers, through measure ---------------------------------------------------
+    C("missing-file", "measure {missing}", 2, r": no such file — check the path", "missing"),
+    C("empty-wav", "measure {empty_wav}", 2, r": the file is empty — record or export it again$", "empty_wav"),
+    C("folder-without-captures", "measure {folder}", 2,
+      r": a folder with no capture files \(.*\) in it — give the capture files, or add --recursive", "folder"),
+    C("header-only-csv", "measure {header_csv}", 2, r": holds a header or preamble but no numeric data rows — ",
+      "header_csv"),
+    C("value-cell", "measure {value_csv}", 2,
+      r": line 12, column 'output': '#VALUE!' is not a number — fix or delete that row$", "value_csv"),
+    C("nan-cell", "measure {nan_csv}", 2, r": line 9, column 'output': 'nan' is not a finite number — ", "nan_csv"),
+    C("time-not-increasing", "measure {unsorted_csv}", 2, r"column 'time': time .* does not increase .* — sort the rows",
+      "unsorted_csv"),
+    C("time-irregular", "measure {irregular_csv}", 2, r"column 'time': .*not evenly spaced", "irregular_csv"),
+    C("truncated-wav", "measure {header_only_wav}", 2, r": unreadable audio .* — the file is damaged",
+      "header_only_wav"),
+    C("text-named-wav", "measure {text_wav}", 2, r": not an audio file .* — give a WAV, FLAC or OGG recording",
+      "text_wav"),
+    C("binary-named-csv", "measure {junk_csv}", 2, r": not an audio file and not CSV text \(binary data\) — ",
+      "junk_csv"),
+    C("broken-sidecar", "measure {sidecar_wav}", 2, r"side\.json: sidecar is not valid JSON .* — fix the sidecar",
+      "sidecar_json"),
+    C("no-such-channel", "measure {good} --channel 3", 2, r": no channel '3' — choose one of ch1", "good"),
+    C("sample-rate-x", "measure {good} --sample-rate x", 2, r"^error: --sample-rate: 'x' is not a number — ",
+      "--sample-rate"),
+    # --- fit -----------------------------------------------------------------------------------
+    C("fit-folder", "fit {folder}", 2, r": is a folder, not a capture file — give a WAV, FLAC, OGG or CSV file$",
+      "folder"),
+    C("fit-silent", "fit {silent}", 2, r": response channel 'ch1' is silent \(no signal\) — check the wiring",
+      "silent"),
+    C("fit-no-periodic-content", "fit {noise}", 2, r": channel 'ch1' has no periodic content — capture a few periods",
+      "noise"),
+    C("fit-drive-no-periodic-content", "fit {noise2}", 2, r": drive channel 'ch1' has no periodic content — ",
+      "noise2"),
+    C("fit-unknown-model", "fit {two} --model bogus", 2,
+      r"^error: --model 'bogus': unknown model — use one of lc-lowpass, ringdown$", "--model"),
+    C("fit-fix-unknown-name", "fit {two} --fix Q=3", 2, r"^error: --fix 'Q=3': unknown name 'Q' — use one of L, C",
+      "--fix"),
+    C("fit-fix-not-assignment", "fit {two} --fix L", 2, r"^error: --fix 'L': not NAME=VALUE — write it like --fix L=",
+      "--fix"),
+    C("fit-fix-negative", "fit {two} --fix L=-3", 2, r"^error: --fix 'L=-3': L must be positive — ", "--fix"),
+    C("fit-duty-out-of-range", "fit {two} --drive-duty 2", 2, r"^error: --drive-duty '2': the duty cycle must lie",
+      "--drive-duty"),
+    C("fit-plot-type", "fit {two} --plot {out_pdf}", 2, r"^error: --plot '.*figure\.pdf': unknown figure type — ",
+      "--plot"),
+    # --- report --------------------------------------------------------------------------------
+    C("report-spec-missing", "report {good} --spec {missing} --unit HC-01 --no-log", 2,
+      r": spec file not found — check the path given to --spec$", "missing"),
+    C("report-spec-not-toml", "report {good} --spec {spec_bad} --unit HC-01 --no-log", 2,
+      r": not valid TOML \(.*\) — fix the syntax$", "spec_bad"),
+    C("report-spec-folder", "report {good} --spec {folder} --unit HC-01 --no-log", 2,
+      r": is a folder, not a spec file — ", "folder"),
+    C("report-no-unit", "report {good} --spec {spec} --no-log", 2, r"^error: --unit: missing — give the serial",
+      "--unit"),
+    C("report-unit-with-each", "report {good} --spec {spec} --each --unit HC-01 --no-log", 2,
+      r"^error: --unit 'HC-01': not used with --each — ", "--unit"),
+    C("report-log-and-no-log", "report {good} --spec {spec} --unit HC-01 --log {no_log} --no-log", 2,
+      r"^error: --log and --no-log: give only one — ", "--no-log"),
+    C("report-foreign-log", "report {good} --spec {spec} --unit HC-01 --log {foreign_log}", 2,
+      r": not a benchfit measurement log .* \(this file was left untouched\)$", "foreign_log"),
+    C("report-unknown-model", "report {good} --spec {spec} --unit HC-01 --no-log --model bogus", 2,
+      r"^error: --model: 'bogus' is unknown — ", "--model"),
+    # --- log -----------------------------------------------------------------------------------
+    C("log-since-not-a-date", "log list --since yesterday --log {log}", 2,
+      r"^error: --since 'yesterday': not a date — write it like 2026-12-01", "--since"),
+    C("log-missing", "log list --log {no_log}", 2, r": no log file there — ", "no_log"),
+    C("log-foreign", "log list --log {foreign_log}", 2, r": not a benchfit measurement log ", "foreign_log"),
+    C("log-show-no-run", "log show 999 --log {log}", 2, r"^error: run 999: no such run in .* — run ids go from 1",
+      "run 999"),
+    C("log-export-format", "log export --format xml --log {log}", 2,
+      r"^error: --format: 'xml' is unknown — use one of csv, json$", "--format"),
+    C("log-export-exists", "log export --out {existing} --log {log}", 2,
+      r": file exists — choose another --out or add --overwrite$", "existing"),
+    C("log-stats-plot-exists", "log stats frequency_hz --plot {existing} --log {log}", 2,
+      r": file exists — choose another --plot or add --overwrite$", "existing"),
+    # --- design ------------------------------------------------------------------------------
+    C("design-series", "design astable --frequency 50 --series E7", 2,
+      r"^error: --series 'E7': unknown series — use one of E6, E12", "--series"),
+    C("design-distribution", "design astable --frequency 50 --distribution weird", 2,
+      r"^error: --distribution: unknown 'weird' — use one of uniform, normal$", "--distribution"),
+    C("design-negative-frequency", "design astable --frequency -50", 2,
+      r"^error: --frequency: '-50' must be positive — ", "--frequency"),
+    C("design-duty-impossible", "design astable --frequency 50 --duty 30%", 2,
+      r"^error: --duty: 30 % is impossible .* — use --diode", "--duty"),
+    C("design-control-range", "design astable --frequency 50 --control-range 6", 2,
+      r"^error: --control-range '6': not LOW:HIGH — ", "--control-range"),
+    C("design-filter-neither-part", "design filter --frequency 50", 2,
+      r"^error: --inductance/--capacitance: give exactly one of them — ", "--inductance"),
+    C("design-kind", "design combine 1k --kind Z", 2, r"^error: --kind: unknown part kind 'Z' — use one of R, C, L$",
+      "--kind"),
+    C("design-stock-bad-row", "design combine 1k --kind R --stock {stock_bad}", 2,
+      r" row 3: 'abc' is not a number — ", "stock_bad"),
+    C("design-stock-binary", "design combine 1k --kind R --stock {junk_csv}", 2,
+      r": not a text CSV file \(byte \d+ is not UTF-8\) — save the stock list as UTF-8 CSV$", "junk_csv"),
+    C("design-stock-folder", "design combine 1k --kind R --stock {folder}", 2,
+      r": is a folder, not a stock list — ", "folder"),
+    C("design-trim-nothing", "design trim --target 50", 2, r"^error: --fit / --timer-frequency: neither given — ",
+      "--fit"),
+    C("design-trim-fit-not-json", "design trim --target 50 --fit {fit_bad}", 2, r": not a JSON file \(.*\) — save one",
+      "fit_bad"),
+    C("design-trim-fit-wrong", "design trim --target 50 --fit {fit_wrong}", 2, r": not a benchfit fit result ",
+      "fit_wrong"),
+    C("design-trim-timer-parts", "design trim --target 50 --timer-frequency 50.6", 2,
+      r"^error: --timer-frequency: also give --ra, --rb, --c1 — ", "--timer-frequency"),
+    # --- live capture and calibration ---------------------------------------------------------
+    C("record-existing", "record --seconds 1 {existing_wav}", 2,
+      r": already exists — choose another name or pass --overwrite$", "existing_wav"),
+    C("record-channels", "record --seconds 1 --channels 5 {new_wav}", 2,
+      r"^error: --channels: 5 is not supported — record 1 or 2 channels$", "--channels"),
+    C("record-no-such-device", "record --seconds 1 --device no-such-device-7f3 {new_wav}", 3,
+      r"^error: (--device|PortAudio)\b.* — ", "device"),
+    C("calibrate-silent", "calibrate gain {silent} --rms 0.35 --profile audit", 2,
+      r"silent\.wav channel 1 \(ch1\): no steady tone found — ", "silent"),
+    C("calibrate-clipped", "calibrate gain {clipped} --rms 0.35 --profile audit", 2,
+      r"clipped\.wav channel 1 \(ch1\): the input reaches .* \(clipped\) — lower the level", "clipped"),
+    C("calibrate-show-unknown", "calibrate show nosuchprofile", 2,
+      r"^error: --profile 'nosuchprofile': no such calibration profile .* — create it", "--profile"),
+]
+
+
+def _argv(case: Case, files: dict[str, Path]) -> list[str]:
+    return [re.sub(r"\{(\w+)\}", lambda m: str(files[m.group(1)]), a) for a in case.argv]
+
+
+def test_table_is_broad():
+    """The brief asks for at least 40 cases across all commands."""
+    assert len(CASES) >= 40
+    assert len({c.id for c in CASES}) == len(CASES)
+    commands = {c.argv[0] for c in CASES}
+    assert {"measure", "fit", "record", "tune", "report", "log", "design", "calibrate"} <= commands
+
+
+@pytest.mark.parametrize("case", CASES, ids=[c.id for c in CASES])
+def test_bad_input_is_one_line(case: Case, files, capsys):
+    code, out, err = run_cli(_argv(case, files), capsys)
+    assert "Traceback" not in err and "Traceback" not in out
+    lines = [ln for ln in err.splitlines() if ln.strip()]
+    if case.warnings_ok:
+        lines = [ln for ln in lines if not ln.startswith("warning:")]
+    assert len(lines) == 1, f"expected one stderr line, got {len(lines)}:\n{err}"
+    line = lines[0]
+    assert code == case.code, f"exit {code}, expected {case.code}: {line}"
+    assert line.startswith("error: ")
+    assert re.search(case.pattern, line), f"{line!r} does not match {case.pattern!r}"
+    named = str(files[case.names]) if case.names in files else case.names
+    assert named in line, f"the message does not name {named!r}: {line}"
+    # "<file or parameter>: <what is wrong> — <what to do>": the fix follows a dash
+    problem, dash, fix = line.partition(" — ")
+    assert dash and fix.strip(), f"no fix after ' — ': {line}"
+    assert out == "", "nothing on stdout when the command fails"
+
+
+# --- nothing the user recorded or logged is lost or overwritten ----------------------------------
+
+def test_refusals_leave_existing_files_untouched(files, capsys):
+    before = {k: files[k].read_bytes() for k in ("existing", "existing_wav", "foreign_log")}
+    log_before = files["log"].read_bytes()
+    for argv in (["record", "--seconds", "1", str(files["existing_wav"])],
+                 ["log", "export", "--out", str(files["existing"]), "--log", str(files["log"])],
+                 ["log", "stats", "frequency_hz", "--plot", str(files["existing"]), "--log", str(files["log"])],
+                 ["measure", str(files["good"]), "--log", str(files["foreign_log"])],
+                 ["report", str(files["good"]), "--spec", str(files["spec"]), "--unit", "HC-01",
+                  "--log", str(files["foreign_log"])]):
+        code, _, err = run_cli(argv, capsys)
+        assert code == 2, err
+    assert {k: files[k].read_bytes() for k in before} == before
+    assert files["log"].read_bytes() == log_before
+    assert not files["existing_wav"].with_suffix(".json").exists()  # record wrote no sidecar either
+
+
+def test_failed_report_input_writes_no_log(files, tmp_path, capsys):
+    """A capture that cannot be read leaves the log as it was (here: not created at all)."""
+    log = tmp_path / "fresh.sqlite"
+    code, _, err = run_cli(["report", str(files["text_wav"]), "--spec", str(files["spec"]), "--unit", "HC-01",
+                            "--log", str(log), "--out", str(tmp_path / "out")], capsys)
+    assert code == 2 and "not an audio file" in err
+    if log.exists():  # opened (and so created) before the capture was read: then it holds no run
+        assert _log_runs(log) == 0
+
+
+def _log_runs(log: Path) -> int:
+    import sqlite3
+
+    with sqlite3.connect(log) as db:
+        return db.execute("SELECT COUNT(*) FROM runs").fetchone()[0]
+
+
+# --- warnings that precede a result -----------------------------------------------------------
+
+def test_fit_warns_once_about_a_clipped_channel(files, capsys):
+    code, out, err = run_cli(["fit", str(files["clipped"]), "--json"], capsys)
+    warn = [ln for ln in err.splitlines() if ln.startswith("warning:")]
+    assert len(warn) == 1 and "channel 'ch1' is clipped" in warn[0] and str(files["clipped"]) in warn[0]
+    assert " — lower the input level" in warn[0]
+    assert code == 0 and json.loads(out)["model"] == "lc-lowpass"
+
+
+# --- the real entry point, help and exit codes ---------------------------------------------------
+
+def _subprocess(*args: str) -> subprocess.CompletedProcess:
+    env = dict(os.environ, COLUMNS="80", BENCHFIT_LOG=os.devnull + ".none")
+    return subprocess.run([sys.executable, "-m", "benchfit", *args], capture_output=True, text=True,
+                          timeout=60, env=env)
+
+
+def test_entry_point_usage_error_is_one_line():
+    res = _subprocess("measure", "--harmonics", "abc", "x.wav")
+    assert res.returncode == 2
+    assert res.stderr == "error: --harmonics 'abc': not a whole number — see 'benchfit measure --help'\n"
+    assert res.stdout == ""
+
+
+def test_no_arguments_still_prints_help(capsys):
+    """A group without a command shows its help; click's exit code for that (2) is kept."""
+    for argv, words in ((["log"], "list"), (["design"], "astable"), ([], "measure")):
+        code, out, err = run_cli(argv, capsys)
+        assert code == 2 and "Usage: benchfit" in out + err and words in out + err
+        assert "error:" not in out + err
+
+
+def test_help_exits_zero(capsys):
+    code, out, err = run_cli(["measure", "--help"], capsys)
+    assert code == 0 and out.startswith("Usage: benchfit measure") and err == ""
+
+
+HELP_COMMANDS = ["", "measure", "fit", "report", "log", "log list", "log show", "log export", "log stats",
+                 "design", "design astable", "design filter", "design combine", "design trim", "calibrate"]
+
+
+@pytest.mark.parametrize("command", HELP_COMMANDS, ids=[c or "top" for c in HELP_COMMANDS])
+def test_help_fits_80_columns_and_keeps_examples(command, capsys):
+    """Examples print one per line, as written (click rewraps a paragraph unless it is preceded by
+    a line holding only ``\\b`` — click documentation, "Documenting Scripts: Preventing
+    Rewrapping"); 80 columns is the terminal width to design for (common practice, no source)."""
+    code, out, _ = run_cli(command.split() + ["--help"], capsys)
+    assert code == 0
+    lines = out.splitlines()
+    assert all(len(ln) <= 80 for ln in lines), [ln for ln in lines if len(ln) > 80]
+    # no word split at a hyphen by rewrapping (e.g. "--drive-" / "duty")
+    assert not [ln for ln in lines if re.search(r"[A-Za-z]-$", ln)]
+    examples = [ln.strip() for ln in lines if ln.strip().startswith("benchfit ")]
+    for ex in examples:  # each example line is a whole command or ends in a continuation
+        assert ex.count("benchfit ") == 1, ex
+    if command and command not in ("log", "design", "calibrate"):
+        assert examples, f"'benchfit {command} --help' shows no example"
