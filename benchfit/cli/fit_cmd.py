@@ -135,7 +135,7 @@ def _clip_warnings(cap) -> list[str]:
         clip = find_clipping(cap.samples[i], unit, full_scale, rails=False)
         if clip.clipped:
             lines.append(f"{cap.source or 'capture'}: channel {name!r} is clipped ({clip.n_samples} samples at full "
-                         "scale) — the fitted parts will be wrong; lower the input level and record again")
+                         "scale), so the fitted parts are wrong — lower the input level and record again")
     return lines
 
 
