@@ -195,10 +195,12 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
     n = frames.shape[1]
     declared = wav_declared_frames(p) if fmt in ("WAV", "WAVEX", "RF64") else None
     if declared is not None and declared > n:
-        warnings.append(f"{where}: audio data truncated: header declares {declared} frames, file holds {n}")
+        warnings.append(f"{where}: audio data truncated: header declares {declared} frames, file holds {n} — "
+                        "only those are used; record or copy the file again for the full length")
     elif header_frames > n:
         warnings.append(f"{where}: audio data truncated: header declares {header_frames} frames, file holds {n}"
-                        + (" (decoding stopped at damaged data)" if failed else ""))
+                        + (" (decoding stopped at damaged data)" if failed else "")
+                        + " — only those are used; record or copy the file again for the full length")
     elif declared is not None and declared < n:
         warnings.append(f"{where}: header declares {declared} frames but the file holds {n} — "
                         "the recording was not finalised; all frames were read")

@@ -550,7 +550,7 @@ def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str) -
         r = max(r, 1)
         raise CaptureError(
             f"{where}: line {line_no[r]}, column {label!r}: time step {steps[r - 1]:.6g} s against a mean step of "
-            f"{dt:.6g} s — time stamps stray up to {100 * jitter:.3g} % of a step from a uniform grid (limit "
-            f"{100 * JITTER_LIMIT:g} %); the samples are not evenly spaced: export without gaps or resample"
+            f"{dt:.6g} s: the samples are not evenly spaced (time stamps stray up to {100 * jitter:.3g} % of a "
+            f"step from a uniform grid, limit {100 * JITTER_LIMIT:g} %) — export without gaps or resample"
         )
     return dt, jitter
