@@ -64,6 +64,8 @@ def files(tmp_path_factory) -> dict[str, Path]:
     wav("noise", 0.2 * rng.standard_normal(t.size))
     wav("noise2", 0.2 * rng.standard_normal((t.size, 2)))
     raw = f["good"].read_bytes()
+    f["cut_wav"] = d / "HC-05_cut.wav"
+    f["cut_wav"].write_bytes(raw[: 44 + 3 * (FS // 4)])  # header says 0.5 s, data holds 0.25 s (24-bit mono)
     f["header_only_wav"] = d / "header_only.wav"
     f["header_only_wav"].write_bytes(raw[:30])  # cut inside the RIFF header: no data chunk
     f["text_wav"] = d / "notes.wav"
@@ -209,7 +211,9 @@ CASES = [
     C("nan-cell", "measure {nan_csv}", 2, r": line 9, column 'output': 'nan' is not a finite number — ", "nan_csv"),
     C("time-not-increasing", "measure {unsorted_csv}", 2, r"column 'time': time .* does not increase .* — sort the rows",
       "unsorted_csv"),
-    C("time-irregular", "measure {irregular_csv}", 2, r"column 'time': .*not evenly spaced", "irregular_csv"),
+    C("time-irregular", "measure {irregular_csv}", 2,
+      r"column 'time': time step .* s: the samples are not evenly spaced \(.*\) — export without gaps or resample$",
+      "irregular_csv"),
     C("truncated-wav", "measure {header_only_wav}", 2, r": unreadable audio .* — the file is damaged",
       "header_only_wav"),
     C("text-named-wav", "measure {text_wav}", 2, r": not an audio file .* — give a WAV, FLAC or OGG recording",
@@ -391,6 +395,17 @@ def test_fit_warns_once_about_a_clipped_channel(files, capsys):
     assert len(warn) == 1 and "channel 'ch1' is clipped" in warn[0] and str(files["clipped"]) in warn[0]
     assert " — lower the input level" in warn[0]
     assert code == 0 and json.loads(out)["model"] == "lc-lowpass"
+
+
+def test_truncated_wav_is_measured_with_a_warning_naming_the_file(files, capsys):
+    """Half the data is missing: what is there is measured, and the result says the file is cut."""
+    code, out, err = run_cli(["measure", str(files["cut_wav"]), "--json"], capsys)
+    assert code == 0 and err == ""
+    d = json.loads(out)
+    assert d["duration_s"] == pytest.approx(0.25, abs=1 / FS)  # one sample: the length is counted in frames
+    (warn,) = [w for w in d["channels"][0]["warnings"] if "truncated" in w]
+    assert warn.startswith(f"{files['cut_wav']}: audio data truncated: header declares {FS // 2} frames")
+    assert " — only those are used" in warn
 
 
 # --- the real entry point, help and exit codes ---------------------------------------------------
