@@ -431,6 +431,19 @@ def test_no_arguments_still_prints_help(capsys):
         assert "error:" not in out + err
 
 
+def test_ctrl_c_exits_130_without_traceback(files, capsys, monkeypatch):
+    """Ctrl-C during a command: exit 130 (128 + SIGINT, the shell convention — POSIX XCU 2.8.2
+    "Exit Status for Commands"), no traceback."""
+    import benchfit.cli.batch as batch
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(batch, "measure_job", interrupted)
+    code, out, err = run_cli(["measure", str(files["good"])], capsys)
+    assert code == 130 and "Traceback" not in err and out == ""
+
+
 def test_help_exits_zero(capsys):
     code, out, err = run_cli(["measure", "--help"], capsys)
     assert code == 0 and out.startswith("Usage: benchfit measure") and err == ""
