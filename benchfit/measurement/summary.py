@@ -143,7 +143,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     u_tb = abs(f) * float(timebase_u_ppm) * 1e-6
     u_f = math.sqrt(u_fit ** 2 + u_tb ** 2)
     if not fit.converged:
-        warnings.append(f"the frequency fit did not settle — the frequency may be off; "
+        warnings.append("the frequency fit did not settle — the frequency may be off; "
                         "record a longer, steadier signal")
     n_periods = n * f / fs
     if n_periods < _MIN_PERIODS:
