@@ -125,6 +125,10 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
     from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.report.assemble import run_unit
 
+    if log_path is not None:
+        from benchfit.log.store import open_log
+
+        open_log(log_path).close()  # a foreign or unwritable log stops here, before any report file is written
     with stderr.status("benchfit report", spinner="line") as status:
         result = run_unit(paths, unit=unit, spec=spec, as_found=as_found, operator=operator,
                           out_dir=out, fit=fit, log_path=log_path, with_figures=with_figures,
