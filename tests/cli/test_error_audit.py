@@ -134,6 +134,7 @@ def _isolated(tmp_path, monkeypatch):
     monkeypatch.setenv("BENCHFIT_LOG", str(tmp_path / "default_log.sqlite"))
     monkeypatch.setenv("BENCHFIT_CONFIG_DIR", str(tmp_path / "config"))
     monkeypatch.setenv("COLUMNS", "80")
+    monkeypatch.chdir(tmp_path)  # a command that writes by default (report --out .) writes here
 
 
 def run_cli(argv: list[str], capsys) -> tuple[int, str, str]:
@@ -354,7 +355,8 @@ def test_bad_input_is_one_line(case: Case, files, capsys):
 
 # --- nothing the user recorded or logged is lost or overwritten ----------------------------------
 
-def test_refusals_leave_existing_files_untouched(files, capsys):
+def test_refusals_leave_existing_files_untouched(files, tmp_path, capsys):
+    out_dir = tmp_path / "reports"
     before = {k: files[k].read_bytes() for k in ("existing", "existing_wav", "foreign_log")}
     log_before = files["log"].read_bytes()
     for argv in (["record", "--seconds", "1", str(files["existing_wav"])],
@@ -362,9 +364,10 @@ def test_refusals_leave_existing_files_untouched(files, capsys):
                  ["log", "stats", "frequency_hz", "--plot", str(files["existing"]), "--log", str(files["log"])],
                  ["measure", str(files["good"]), "--log", str(files["foreign_log"])],
                  ["report", str(files["good"]), "--spec", str(files["spec"]), "--unit", "HC-01",
-                  "--log", str(files["foreign_log"])]):
+                  "--log", str(files["foreign_log"]), "--out", str(out_dir)]):
         code, _, err = run_cli(argv, capsys)
         assert code == 2, err
+    assert not out_dir.exists() or not any(out_dir.iterdir())  # no report written for a run not logged
     assert {k: files[k].read_bytes() for k in before} == before
     assert files["log"].read_bytes() == log_before
     assert not files["existing_wav"].with_suffix(".json").exists()  # record wrote no sidecar either
