@@ -18,7 +18,7 @@ the overflow/clip counts and the input calibration that applies to the raw sampl
 Optional keys:
 
 * ``calibration.gain_u_rel`` — relative standard uncertainty (k = 1) of each channel's
-  gain, one number ≥ 0 per channel (0.003 = 0.3 %), from the calibration fit and the
+  gain, one number ≥ 0 and below 1 per channel (0.003 = 0.3 %), from the calibration fit and the
   reference meter combined. Absent or null: not known (profiles made before benchfit
   stored it); levels in volts then carry only their noise uncertainty and measure says
   "gain uncertainty not known".
