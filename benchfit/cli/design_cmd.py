@@ -237,7 +237,7 @@ def astable_command(
     cap_series = _series(cap_series, "--cap-series")
     with _OptionNames(duty="--duty", distribution="--distribution", trials="--trials",
                       control_voltage="--control-voltage", frequency="--frequency",
-                      tolerance_r="--tolerance-r", range="--control-range"):
+                      tolerance_r="--tolerance-r", range="--control-range", trim="--trim-pot / --control-range"):
         result = _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r,
                           tolerance_c, yield_within, distribution, trials, seed, trim_pot, cr)
     _show_astable(result, as_json)

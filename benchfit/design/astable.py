@@ -398,7 +398,7 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
         d_t = 0.5
         duty_weight = 0.1
     if trim_pot_ohm is not None and control_range_v is not None:
-        raise DesignError("trim: give either a trimmer in series with RB or a control-pin range, not both")
+        raise DesignError("trim: both a trimmer in series with RB and a control-pin range given — give only one of them")
     period = 1.0 / f_t
     if c1_farad is not None:
         c_cands = np.array([_pos(c1_farad, "cap")])
