@@ -163,6 +163,9 @@ def stats_command(
             key = r["unit"] if r["unit"] else ("run", r["run_id"], i)
             latest[key] = r
         rows = list(latest.values())
+    if not rows and channel is not None:
+        fail(f"--channel {channel!r}: no logged as-left values of {quantity} on a channel of that name — "
+             "check the channel name with 'benchfit log export', or leave --channel out")
     units = {r["value_unit"] for r in rows}
     if len(units) > 1:
         fail(f"{quantity}: logged in several units ({', '.join(sorted(units))}) — choose one with --channel")
