@@ -102,8 +102,17 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None
         capture = read_audio(p, sha256=digest, sample_rate=sample_rate)
     elif kind is not None:
         raise CaptureError(f"{where}: holds {kind} audio but is named like a CSV — rename it to .{kind.lower()}")
-    else:
+    elif suffix in CSV_SUFFIXES:
         capture = read_csv(p, sha256=digest, sample_rate=sample_rate)
+    else:  # an unknown extension: a text export may still read as CSV
+        try:
+            capture = read_csv(p, sha256=digest, sample_rate=sample_rate)
+        except CaptureError as e:
+            if "no numeric data rows" not in str(e):  # a text export with a bad row: that message is precise
+                raise
+            raise CaptureError(
+                f"{where}: not a capture file ({suffix or 'no extension'}: neither audio nor a readable CSV "
+                "export) — give a WAV, FLAC, OGG or AIFF recording, or a CSV export") from e
 
     if channels is not None:
         keys: list[str | int]
