@@ -70,6 +70,8 @@ def files(tmp_path_factory) -> dict[str, Path]:
     f["header_only_wav"].write_bytes(raw[:30])  # cut inside the RIFF header: no data chunk
     f["text_wav"] = d / "notes.wav"
     f["text_wav"].write_text("these are bench notes, not audio\n", encoding="utf-8")
+    f["pdf"] = d / "HC-02_datasheet.pdf"
+    f["pdf"].write_text("%PDF-1.4 a document, not a capture\n", encoding="utf-8")
     f["junk_csv"] = d / "junk.csv"
     f["junk_csv"].write_bytes(rng.integers(0, 256, 3000, dtype=np.uint8).tobytes())
     f["empty_wav"] = d / "empty.wav"
@@ -221,6 +223,8 @@ CASES = [
       "text_wav"),
     C("binary-named-csv", "measure {junk_csv}", 2, r": not an audio file and not CSV text \(binary data\) — ",
       "junk_csv"),
+    C("unknown-file-type", "measure {pdf}", 2,
+      r": not a capture file \(\.pdf: neither audio nor a readable CSV export\) — give a WAV", "pdf"),
     C("broken-sidecar", "measure {sidecar_wav}", 2, r"side\.json: sidecar is not valid JSON .* — fix the sidecar",
       "sidecar_json"),
     C("no-such-channel", "measure {good} --channel 3", 2, r": no channel '3' — choose one of ch1", "good"),
