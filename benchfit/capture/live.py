@@ -310,10 +310,13 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     from benchfit.capture.sidecar import sidecar_path, write_sidecar
 
     if sample_format not in get_args(SampleFormat):
-        raise CaptureError(f"--sample-format {sample_format!r}: choose one of {', '.join(get_args(SampleFormat))}")
+        raise CaptureError(f"--sample-format {sample_format!r}: unknown sample format — choose one of "
+                           f"{', '.join(get_args(SampleFormat))}")
     if not (isinstance(seconds, (int, float)) and math.isfinite(seconds) and seconds > 0):
-        raise CaptureError(f"--seconds: must be a positive number of seconds, got {seconds!r}")
+        raise CaptureError(f"--seconds: must be a positive number of seconds, got {seconds!r} — e.g. --seconds 10")
     out = Path(path)
+    if out.is_dir():
+        raise CaptureError(f"{out}: is a folder — give a WAV file name, e.g. {out / 'take1.wav'}")
     if out.suffix.lower() != ".wav":
         raise CaptureError(f"{out}: recordings are WAV files — give a name ending in .wav")
     side = sidecar_path(out)
