@@ -312,6 +312,10 @@ CASES = [
     # --- live capture and calibration ---------------------------------------------------------
     C("record-existing", "record --seconds 1 {existing_wav}", 2,
       r": already exists — choose another name or pass --overwrite$", "existing_wav"),
+    C("record-onto-folder", "record --seconds 1 --overwrite {folder_wav}", 2,
+      r": is a folder — give a WAV file name, e.g. .*take1\.wav$", "folder_wav"),
+    C("record-sample-format", "record --seconds 1 --sample-format mp3 {new_wav}", 2,
+      r"^error: --sample-format 'mp3': unknown sample format — choose one of pcm24, float$", "--sample-format"),
     C("record-channels", "record --seconds 1 --channels 5 {new_wav}", 2,
       r"^error: --channels: 5 is not supported — record 1 or 2 channels$", "--channels"),
     C("record-no-such-device", "record --seconds 1 --device no-such-device-7f3 {new_wav}", 3,
