@@ -116,11 +116,11 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
                   highlight=False)
     console.print("± values are standard uncertainties (k = 1)", markup=False, highlight=False)
     if note:
-        console.print(f"note: {note}", markup=False, highlight=False)
+        console.print(f"note: {note}", markup=False, highlight=False, soft_wrap=True)
     from rich.markup import escape
 
     for w in d["warnings"]:
-        console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False)
+        console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False, soft_wrap=True)
 
 
 def _clip_warnings(cap) -> list[str]:

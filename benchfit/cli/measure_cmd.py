@@ -188,7 +188,7 @@ def _render(d: dict[str, Any], console) -> None:
                            _num(hm["amplitude"], ch["unit"]), rel_txt, f"{hm['phase_deg']:.1f}°")
             console.print(ht)
         for w in ch["warnings"]:
-            console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False)
+            console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False, soft_wrap=True)
         console.print()
 
 
@@ -299,13 +299,13 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
     with progress_bar("measuring", len(paths)) as progress:
         task = progress.add_task("", total=len(paths))
         for note in notes:
-            progress.console.print(f"note: {note}", markup=False)
+            progress.console.print(f"note: {note}", markup=False, soft_wrap=True)
 
         def on_outcome(outcome) -> None:
             progress.update(task, advance=1, description=outcome.path.name)
             if not outcome.ok:
                 failed.append(outcome.error)
-                progress.console.print(f"error: {outcome.error}", markup=False)
+                progress.console.print(f"error: {outcome.error}", markup=False, soft_wrap=True)
                 return
             run_id = None
             if log_path is not None:

@@ -177,13 +177,13 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     with progress_bar("reporting", len(paths)) as progress:
         task = progress.add_task("", total=len(paths))
         for note in notes:
-            progress.console.print(f"note: {note}", markup=False)
+            progress.console.print(f"note: {note}", markup=False, soft_wrap=True)
 
         def on_outcome(outcome) -> None:
             progress.update(task, advance=1, description=outcome.path.name)
             outcomes.append(outcome)
             if not outcome.ok:
-                progress.console.print(f"error: {outcome.error}", markup=False)
+                progress.console.print(f"error: {outcome.error}", markup=False, soft_wrap=True)
                 return
             r = outcome.result
             entry = r.pop("log_entry", None)
