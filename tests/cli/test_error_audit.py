@@ -398,6 +398,18 @@ def _log_runs(log: Path) -> int:
         return db.execute("SELECT COUNT(*) FROM runs").fetchone()[0]
 
 
+def test_batch_errors_are_one_line_per_file(files, capsys):
+    """Several bad files: one unwrapped error line per file (at 80 columns), then the summary line."""
+    code, out, err = run_cli(["measure", str(files["value_csv"]), str(files["text_wav"]), "--jobs", "1"], capsys)
+    lines = [ln for ln in err.splitlines() if ln.strip() and not ln.lstrip().startswith(("measuring", "━"))]
+    errors = [ln for ln in lines if ln.startswith("error: ")]
+    assert code == 2 and out == ""
+    assert len(errors) == 3, err
+    assert errors[0].startswith(f"error: {files['value_csv']}: line 12") and errors[0].endswith("fix or delete that row")
+    assert errors[1].startswith(f"error: {files['text_wav']}: not an audio file")
+    assert errors[2].startswith("error: 2 of 2 files could not be measured — ")
+
+
 # --- warnings that precede a result -----------------------------------------------------------
 
 def test_fit_warns_once_about_a_clipped_channel(files, capsys):
