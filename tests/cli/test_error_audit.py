@@ -17,7 +17,7 @@ import os
 import re
 import subprocess
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -162,7 +162,6 @@ class Case:
     pattern: str
     names: str
     warnings_ok: bool = False
-    extra: dict = field(default_factory=dict)
 
 
 def C(id: str, argv: str | list[str], code: int, pattern: str, names: str, **kw) -> Case:
@@ -239,6 +238,8 @@ CASES = [
       "noise"),
     C("fit-drive-no-periodic-content", "fit {noise2}", 2, r": drive channel 'ch1' has no periodic content — ",
       "noise2"),
+    C("fit-clipped-and-no-such-channel", "fit {clipped} --response 5", 2, r": no channel '5' — choose one of ch1",
+      "clipped", warnings_ok=True),  # the clipping warning comes first, legitimately
     C("fit-unknown-model", "fit {two} --model bogus", 2,
       r"^error: --model 'bogus': unknown model — use one of lc-lowpass, ringdown$", "--model"),
     C("fit-fix-unknown-name", "fit {two} --fix Q=3", 2, r"^error: --fix 'Q=3': unknown name 'Q' — use one of L, C",
