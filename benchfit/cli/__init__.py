@@ -9,6 +9,7 @@ Ctrl-C exits 130. Exit code 1 is reserved for "a unit failed its spec".
 from __future__ import annotations
 
 import sys
+from typing import NoReturn
 
 __all__ = ["main", "usage_message"]
 
@@ -50,7 +51,7 @@ def _is_argument(e) -> bool:
 
 
 def _click():
-    """The click exception classes typer raises (typer ≥ 0.20 carries its own copy of click)."""
+    """The click exception classes typer raises (recent typer releases carry their own copy of click)."""
     try:
         from typer._click import exceptions as ex
     except ImportError:  # an older typer raises click's own
@@ -134,7 +135,7 @@ def usage_message(e, fallback_path: str = "benchfit") -> str:
     return f"{where}: {text} — {fix}"
 
 
-def _error(message: str, code: int) -> None:
+def _error(message: str, code: int) -> NoReturn:
     sys.stdout.flush()
     sys.stderr.write(f"error: {message}\n")
     sys.stderr.flush()
