@@ -157,7 +157,6 @@ def fit_command(
                                      "the output from the drive samples (for non-periodic drives)."),
     as_json: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
     plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE", help="Write a figure: FILE.svg or FILE.png."),
-    overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --plot file."),
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
 ) -> None:
@@ -171,8 +170,6 @@ def fit_command(
         fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
     if plot is not None and plot.is_dir():
         fail(f"{plot}: is a folder — give --plot a file name ending in .svg or .png")
-    if plot is not None and plot.exists() and not overwrite:
-        fail(f"{plot}: file exists — choose another --plot or add --overwrite")
     names = ("L", "C", "Rs", "Resr", "Rload")
     fixed = parse_assignments(fix, names, "--fix", zero_ok=("Resr",))
     guessed = parse_assignments(guess, names, "--guess")
