@@ -123,8 +123,8 @@ def files(tmp_path_factory) -> dict[str, Path]:
     f["existing_wav"] = d / "HC-04_take1.wav"
     f["existing_wav"].write_bytes(raw)  # an earlier recording the user wants to keep
     f["out_pdf"] = d / "figure.pdf"
-    f["existing_svg"] = d / "HC-04_fit.svg"
-    f["existing_svg"].write_text("<svg>an earlier figure</svg>\n", encoding="utf-8")
+    f["folder_svg"] = d / "figures.svg"
+    f["folder_svg"].mkdir()
     f["log"] = d / "log.sqlite"
     with pytest.raises(SystemExit) as info:  # one real run in the log, for the log commands
         main(["measure", str(f["good"]), "--log", str(f["log"]), "--json"])
@@ -251,8 +251,8 @@ CASES = [
     C("fit-fix-negative", "fit {two} --fix L=-3", 2, r"^error: --fix 'L=-3': L must be positive — ", "--fix"),
     C("fit-duty-out-of-range", "fit {two} --drive-duty 2", 2, r"^error: --drive-duty '2': the duty cycle must lie",
       "--drive-duty"),
-    C("fit-plot-exists", "fit {two} --plot {existing_svg}", 2,
-      r": file exists — choose another --plot or add --overwrite$", "existing_svg"),
+    C("fit-plot-folder", "fit {two} --plot {folder_svg}", 2,
+      r": is a folder — give --plot a file name ending in \.svg or \.png$", "folder_svg"),
     C("fit-plot-type", "fit {two} --plot {out_pdf}", 2, r"^error: --plot '.*figure\.pdf': unknown figure type — ",
       "--plot"),
     # --- report --------------------------------------------------------------------------------
@@ -370,13 +370,12 @@ def test_bad_input_is_one_line(case: Case, files, capsys):
 
 def test_refusals_leave_existing_files_untouched(files, tmp_path, capsys):
     out_dir = tmp_path / "reports"
-    before = {k: files[k].read_bytes() for k in ("existing", "existing_wav", "existing_svg", "foreign_log")}
+    before = {k: files[k].read_bytes() for k in ("existing", "existing_wav", "foreign_log")}
     log_before = files["log"].read_bytes()
     for argv in (["record", "--seconds", "1", str(files["existing_wav"])],
                  ["log", "export", "--out", str(files["existing"]), "--log", str(files["log"])],
                  ["log", "stats", "frequency_hz", "--plot", str(files["existing"]), "--log", str(files["log"])],
                  ["measure", str(files["good"]), "--log", str(files["foreign_log"])],
-                 ["fit", str(files["two"]), "--plot", str(files["existing_svg"])],
                  ["report", str(files["good"]), "--spec", str(files["spec"]), "--unit", "HC-01",
                   "--log", str(files["foreign_log"]), "--out", str(out_dir)]):
         code, _, err = run_cli(argv, capsys)
