@@ -44,28 +44,6 @@ max = 1.6
 """
 
 
-class _Result:
-    def __init__(self, returncode: int, stdout: str, stderr: str) -> None:
-        self.returncode, self.stdout, self.stderr = returncode, stdout, stderr
-
-
-@pytest.fixture
-def run(capsys, monkeypatch):
-    """benchfit.cli.main in this process, with its exit code and captured output."""
-    from benchfit.cli import main
-
-    monkeypatch.setenv("COLUMNS", "200")
-
-    def _run(*args: str) -> _Result:
-        code = 0
-        try:
-            main(list(args))
-        except SystemExit as e:
-            code = e.code if isinstance(e.code, int) else (0 if e.code is None else 1)
-        out, err = capsys.readouterr()
-        return _Result(code, out, err)
-
-    return _run
 
 
 def write_unit(path: Path, *, freq: float, seed: int, unit: str | None = None, seconds: float = 0.5) -> Path:

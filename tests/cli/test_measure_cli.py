@@ -13,40 +13,18 @@ from pathlib import Path
 import numpy as np
 import pytest
 import soundfile as sf
+from conftest import CliResult
 
 FS = 48000
 
 
-class _Result:
-    def __init__(self, returncode: int, stdout: str, stderr: str) -> None:
-        self.returncode, self.stdout, self.stderr = returncode, stdout, stderr
-
-
-def _run_subprocess(*args: str) -> _Result:
+def _run_subprocess(*args: str) -> CliResult:
     """The installed entry point in a fresh interpreter (what a person types)."""
     env = dict(os.environ, COLUMNS="120")
     res = subprocess.run([sys.executable, "-m", "benchfit", *args], capture_output=True, text=True,
                          env=env, timeout=120)
-    return _Result(res.returncode, res.stdout, res.stderr)
+    return CliResult(res.returncode, res.stdout, res.stderr)
 
-
-@pytest.fixture
-def run(capsys, monkeypatch):
-    """benchfit.cli.main in this process (faster), with its exit code and captured output."""
-    from benchfit.cli import main
-
-    monkeypatch.setenv("COLUMNS", "120")
-
-    def _run(*args: str) -> _Result:
-        code = 0
-        try:
-            main(list(args))
-        except SystemExit as e:
-            code = e.code if isinstance(e.code, int) else (0 if e.code is None else 1)
-        out, err = capsys.readouterr()
-        return _Result(code, out, err)
-
-    return _run
 
 
 @pytest.fixture(scope="module")
