@@ -157,6 +157,7 @@ def fit_command(
                                      "the output from the drive samples (for non-periodic drives)."),
     as_json: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
     plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE", help="Write a figure: FILE.svg or FILE.png."),
+    overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --plot file."),
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
 ) -> None:
@@ -170,6 +171,8 @@ def fit_command(
         fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
     if plot is not None and plot.is_dir():
         fail(f"{plot}: is a folder — give --plot a file name ending in .svg or .png")
+    if plot is not None and plot.exists() and not overwrite:  # checked before the (slow) fit
+        fail(f"{plot}: file exists — choose another --plot or add --overwrite")
     names = ("L", "C", "Rs", "Resr", "Rload")
     fixed = parse_assignments(fix, names, "--fix", zero_ok=("Resr",))
     guessed = parse_assignments(guess, names, "--guess")
@@ -188,8 +191,6 @@ def fit_command(
 
     import numpy as np
 
-    from benchfit.errors import FitError
-
     with stderr.status("fitting…", spinner="line"), np.errstate(all="ignore"):
         cap = load(file, sample_rate=rate)
         for line in _clip_warnings(cap):
@@ -204,15 +205,8 @@ def fit_command(
         else:
             from benchfit.fit.lowpass import fit_lowpass
 
-            try:
-                result = fit_lowpass(cap, method=method, drive=drive, response=response, fix=fixed,
-                                     guess=guessed, drive_duty=duty, time_domain=time_domain)
-            except (np.linalg.LinAlgError, FloatingPointError, ZeroDivisionError) as e:
-                # the solver broke down: the capture holds too little of what the model needs
-                raise FitError(
-                    f"{file}: the fit cannot be solved on this capture ({e}) — a one-channel fit needs "
-                    "the output's harmonics (a square-driven filter, not a pure sine); capture the drive "
-                    "too for a two-channel fit, or fix a part with --fix") from e
+            result = fit_lowpass(cap, method=method, drive=drive, response=response, fix=fixed,
+                                 guess=guessed, drive_duty=duty, time_domain=time_domain)
     if plot is not None:
         from benchfit.report.figures import fit_svg, save_figure
 

@@ -38,6 +38,10 @@ _DUTY_MIN = 0.02
 _MIN_SUB_PERIODS = 8.0
 #: ... and at least this fraction of the strongest line's amplitude
 _MIN_SUB_RATIO = 0.01
+#: a harmonic weaker than this fraction of the fundamental (−100 dBc) is below the converter's own
+#: distortion and quantisation (sound-card ADCs reach about −90…−110 dB THD, from memory), so it
+#: says nothing about the filter: a capture with no harmonic above it is treated as a pure sine
+_MIN_HARMONIC_REL = 1e-5
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
@@ -135,7 +139,16 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
     hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
-    strong = np.nonzero(hy_all.amplitudes > SIGNIFICANCE * hy_all.amplitudes_u)[0]
+    above_noise = hy_all.amplitudes > SIGNIFICANCE * hy_all.amplitudes_u
+    a1 = float(hy_all.amplitudes[0])
+    real = above_noise & (hy_all.amplitudes > _MIN_HARMONIC_REL * a1) & (hy_all.orders >= 2)
+    if not np.any(real) and np.any(above_noise[1:]):
+        # a pure sine: what stands out is the converter's quantisation pattern (or nothing at
+        # all in a float file), and the solver would divide by those vanishing uncertainties
+        raise FitError(f"{where}: channel {name!r} has no harmonics above the noise, so its shape says "
+                       "nothing about the filter — capture the drive too and use --method two-channel, "
+                       "or use --model ringdown")
+    strong = np.nonzero(above_noise)[0]
     if strong.size < 2:
         raise FitError(f"{where}: only the fundamental of {name!r} stands above the noise, so its "
                        "shape says nothing about the filter — record longer, or capture the drive "
