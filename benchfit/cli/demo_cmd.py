@@ -98,7 +98,9 @@ class _Tour:
     "and trim advice. Writes everything to --out.\n\n"
     "\b\nExample:\n  benchfit demo --out benchfit-demo"))
 def demo_command(
-    out: Path = typer.Option(Path("benchfit-demo"), "--out", help="Folder for reports, log and figures."),
+    out: Path = typer.Option(Path("benchfit-demo"), "--out", show_default=False,
+                             metavar="DIR",
+                             help="Folder for the reports, log and figures (default: ./benchfit-demo)."),
     samples: Optional[Path] = typer.Option(None, "--samples", help="Folder of the sample captures "
                                            "(default: sample_captures/ of this checkout)."),
     jobs: Optional[int] = typer.Option(None, "--jobs", help="Worker processes for the batch steps "
@@ -141,7 +143,8 @@ def demo_command(
                  "load known; then one-channel (the sound card sees only the output); then a ring-down "
                  "of HC-05's bare tank.")
     tour.run(["fit", s("hc03_drive_output_scope.csv"), "--model", "lc-lowpass",
-              "--fix", "L=300m", "--fix", "Rload=10k", "--plot", str(out / "hc03_two_channel_fit.svg")])
+              "--fix", "L=300m", "--fix", "Rload=10k", "--plot", str(out / "hc03_two_channel_fit.svg"),
+              "--overwrite"])  # a rerun into the same folder replaces its own figure
     tour.run(["fit", s("hc03_asleft.wav"), "--model", "lc-lowpass", "--fix", "L=300m", "--fix", "Rload=10k"])
     tour.run(["fit", s("hc05_ringdown_scope.csv"), "--model", "ringdown"])
 

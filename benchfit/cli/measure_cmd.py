@@ -132,7 +132,8 @@ def render_channel_rows(ch: dict[str, Any]) -> list[tuple[str, str, str]]:
          "mean over whole periods"),
         ("rms level", _num(ch["vrms"], unit, ex.get("vrms_u") if ch["frequency_hz"] else None),
          "incl. DC"),
-        ("peak-to-peak", _num(ch["vpp"], unit), "0.1–99.9 % percentiles"),
+        ("peak-to-peak", _num(ch["vpp"], unit, ex.get("vpp_u") if ch["frequency_hz"] else None),
+         "0.1–99.9 % percentiles"),
     ]
     if ex.get("two_level"):
         rows += [
