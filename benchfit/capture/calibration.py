@@ -62,6 +62,7 @@ __all__ = [
     "profile_path",
     "check_profile_name",
     "list_profiles",
+    "scan_profiles",
     "load_profile",
     "save_profile",
     "read_raw_wav",
@@ -436,7 +437,8 @@ def estimate_gain(x: np.ndarray, sample_rate: float, rms_known_v: float,
         (more than 10 % of its RMS unexplained).
     """
     if not (math.isfinite(rms_known_v) and rms_known_v > 0):
-        raise MeasureError(f"--rms: must be a positive voltage, got {rms_known_v!r}")
+        raise MeasureError(f"--rms: must be a positive voltage, got {rms_known_v!r} — the meter's RMS "
+                           "reading in V, e.g. 0.775")
     fit, amp = _fit_sine(x, sample_rate, what)
     rms_fs = amp / math.sqrt(2.0)
     residual_pct = 100.0 * fit.residual_rms / rms_fs
@@ -524,7 +526,7 @@ def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
     if not (math.isfinite(reference_hz) and 0 < reference_hz < nominal_rate / 2):
         raise MeasureError(
             f"--frequency: {reference_hz!r} Hz must be positive and below half the sample rate "
-            f"({nominal_rate / 2:g} Hz)")
+            f"({nominal_rate / 2:g} Hz) — check --frequency, or record at a higher sample rate (--rate)")
     fit, _ = _fit_sine(x, nominal_rate, what)
     f_meas = float(fit.frequency_hz)
     if abs(f_meas / reference_hz - 1.0) > 0.01:
@@ -626,6 +628,27 @@ def list_profiles() -> list[CalibrationProfile]:
     if not folder.is_dir():
         return []
     return [load_profile(p.stem) for p in sorted(folder.glob("*.toml")) if _NAME_RE.match(p.stem)]
+
+
+def scan_profiles() -> tuple[list[CalibrationProfile], list[str]]:
+    """Every readable profile, sorted by name, and one message per profile file that is broken.
+
+    Unlike :func:`list_profiles` a malformed file does not stop the scan: its one-line
+    ``CaptureError`` message is returned instead, so the other profiles can still be shown.
+    """
+    folder = config_dir() / "profiles"
+    if not folder.is_dir():
+        return [], []
+    profiles: list[CalibrationProfile] = []
+    problems: list[str] = []
+    for p in sorted(folder.glob("*.toml")):
+        if not _NAME_RE.match(p.stem):
+            continue
+        try:
+            profiles.append(load_profile(p.stem))
+        except CaptureError as e:
+            problems.append(str(e))
+    return profiles, problems
 
 
 def load_profile(name: str, *, missing_ok: bool = False) -> CalibrationProfile | None:

@@ -42,6 +42,12 @@ def _device(text: Optional[str]) -> str | int | None:
     return int(text) if text.strip().isdigit() else text.strip()
 
 
+def _seconds(value: float) -> float:
+    if not (math.isfinite(value) and value > 0):
+        fail(f"--seconds: {value!r} must be a positive number of seconds — e.g. --seconds 10")
+    return value
+
+
 def _rate(value: float) -> int:
     if not (math.isfinite(value) and value > 0 and float(value).is_integer()):
         fail(f"--rate: {value!r} must be a whole positive number of Hz, e.g. 48000")
@@ -51,9 +57,12 @@ def _rate(value: float) -> int:
 # --------------------------------------------------------------------------------------
 # devices
 # --------------------------------------------------------------------------------------
-@app.command(epilog="Example: benchfit devices")
+@app.command(short_help="List the audio inputs: index, name, channels, default rate.", help=(
+    "List audio input devices: index, name, input channels, default sample rate; * marks the "
+    "default. Give the index or the name to --device of record, tune and calibrate.\n\n"
+    "Example:\n\n\b\n  benchfit devices"))
 def devices(json_out: bool = typer.Option(False, "--json", help="Print one JSON object (machine output).")) -> None:
-    """List audio input devices: index, name, input channels, default sample rate; * marks the default."""
+    """List audio input devices (see the command's help)."""
     from benchfit.capture.devices import list_input_devices
 
     devs = list_input_devices()
@@ -130,26 +139,29 @@ def _progress_recorder(out: Path, seconds: float, rate: int, channels: int, devi
 @app.command(short_help="Record a sound-card input into WAV + sidecar JSON (Ctrl-C keeps what was captured).", help=(
     "Record a sound-card input into a WAV file and write its sidecar JSON (channel names, rate, "
     "device, start time, clip and overflow counts, calibration profile). Ctrl-C stops early and "
-    "keeps everything captured so far (exit 130).\n\n" + CAUTION),
-    epilog="Example: benchfit record hc03.wav --seconds 10 --channels 2 --names drive,output --profile desk")
+    "keeps everything captured so far (exit 130).\n\n"
+    "Example:\n\n\b\n  benchfit record hc03.wav --seconds 10 --channels 2 \\\n"
+    "      --names drive,output --profile desk\n\n" + CAUTION))
 def record(
-    out: Path = typer.Argument(..., help="WAV file to write (its sidecar gets the same name with .json)."),
-    seconds: float = typer.Option(..., "--seconds", help="How long to record, in seconds."),
-    rate: float = typer.Option(48000, "--rate", help="Sample rate in Hz."),
-    channels: int = typer.Option(1, "--channels", help="Input channels to record (1 or 2)."),
-    device: Optional[str] = typer.Option(None, "--device", help="Input device index or name (see 'benchfit devices')."),
-    names: Optional[str] = typer.Option(None, "--names", help="Channel names, comma-separated, e.g. drive,output."),
-    profile: Optional[str] = typer.Option(None, "--profile", help="Calibration profile to note in the sidecar."),
+    out: Path = typer.Argument(..., metavar="FILE", show_default=False,
+                               help="WAV file to write (its sidecar gets the same name with .json)."),
+    seconds: float = typer.Option(..., "--seconds", metavar="SECONDS", help="How long to record, in seconds."),
+    rate: float = typer.Option(48000, "--rate", metavar="HZ", help="Sample rate in Hz."),
+    channels: int = typer.Option(1, "--channels", metavar="N", min=1, max=2, help="Input channels to record."),
+    device: Optional[str] = typer.Option(None, "--device", metavar="DEVICE",
+                                         help="Input device index or name (see 'benchfit devices')."),
+    names: Optional[str] = typer.Option(None, "--names", metavar="NAMES",
+                                        help="Channel names, comma-separated, e.g. drive,output."),
+    profile: Optional[str] = typer.Option(None, "--profile", metavar="PROFILE",
+                                          help="Calibration profile to note in the sidecar."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing WAV and sidecar."),
-    sample_format: str = typer.Option("pcm24", "--sample-format", help="WAV samples: pcm24 or float."),
+    sample_format: str = typer.Option("pcm24", "--sample-format", metavar="FORMAT",
+                                      help="WAV samples: pcm24 or float."),
     json_out: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
 ) -> None:
     from benchfit.capture.live import RecordingInterrupted
 
-    if channels not in (1, 2):
-        fail(f"--channels: {channels} is not supported — record 1 or 2 channels")
-    if not (math.isfinite(seconds) and seconds > 0):
-        fail(f"--seconds: {seconds!r} must be a positive number of seconds")
+    _seconds(seconds)
     r = _rate(rate)
     try:
         result = _progress_recorder(out, seconds, r, channels, _device(device), names, profile, overwrite,
@@ -265,20 +277,26 @@ def _panel(r, t: float, target: float, tolerance: float | None, n: int, dropped:
 @app.command(short_help="Live frequency/duty/THD readout for adjusting a unit to a target frequency.",
              help=("Live readout for adjusting a unit: frequency (mHz resolution, with uncertainty), "
                    "deviation from the target in Hz and ppm with a plain-words hint, duty cycle, THD "
-                   "and amplitude; several readings a second from overlapping windows.\n\n" + CAUTION),
-             epilog="Example: benchfit tune --target 50 --tolerance 0.25 --profile desk")
+                   "and amplitude; several readings a second from overlapping windows. Ctrl-C stops."
+                   "\n\nExample:\n\n\b\n  benchfit tune --target 50 --tolerance 0.25 --profile desk\n\n"
+                   + CAUTION))
 def tune(
-    target: str = typer.Option(..., "--target", help="Frequency to tune to, in Hz (SI prefixes allowed)."),
-    window: float = typer.Option(1.0, "--window", help="Analysis window in seconds (longer = finer, slower)."),
-    device: Optional[str] = typer.Option(None, "--device", help="Input device index or name."),
-    profile: Optional[str] = typer.Option(None, "--profile", help="Calibration profile (gain, timebase)."),
-    channel: int = typer.Option(1, "--channel", help="Input channel to read (1-based)."),
-    rate: float = typer.Option(48000, "--rate", help="Sample rate in Hz."),
-    tolerance: Optional[str] = typer.Option(None, "--tolerance", help="Allowed deviation in Hz, e.g. 0.25."),
-    harmonics: int = typer.Option(10, "--harmonics", help="Harmonics fitted; THD covers orders 2…N."),
+    target: str = typer.Option(..., "--target", metavar="HZ", help="Frequency to tune to, in Hz (e.g. 50)."),
+    window: float = typer.Option(1.0, "--window", metavar="SECONDS",
+                                 help="Analysis window in s; longer is finer."),
+    device: Optional[str] = typer.Option(None, "--device", metavar="DEVICE", help="Input device index or name."),
+    profile: Optional[str] = typer.Option(None, "--profile", metavar="PROFILE",
+                                          help="Calibration profile (gain, timebase)."),
+    channel: int = typer.Option(1, "--channel", metavar="CH", min=1, help="Input channel, numbered from 1."),
+    rate: float = typer.Option(48000, "--rate", metavar="HZ", help="Sample rate in Hz."),
+    tolerance: Optional[str] = typer.Option(None, "--tolerance", metavar="HZ",
+                                            help="Allowed deviation in Hz, e.g. 0.25."),
+    harmonics: int = typer.Option(10, "--harmonics", metavar="N", min=1, max=100,
+                                  help="Harmonics fitted; THD covers orders 2…N."),
     plain: bool = typer.Option(False, "--plain", help="One text line per reading instead of the live panel."),
     json_out: bool = typer.Option(False, "--json", help="One JSON object per reading (implies --plain)."),
-    updates: Optional[int] = typer.Option(None, "--updates", help="Stop after this many readings."),
+    updates: Optional[int] = typer.Option(None, "--updates", metavar="N", min=1,
+                                          help="Stop after N readings (default: run until Ctrl-C)."),
 ) -> None:
     from benchfit.capture.calibration import load_profile
     from benchfit.capture.live import LiveWindows
@@ -287,22 +305,17 @@ def tune(
 
     target_hz = parse_value(target, "--target")
     if target_hz <= 0:
-        fail(f"--target: {target!r} must be a positive frequency in Hz")
+        fail(f"--target: {target!r} must be a positive frequency in Hz — e.g. --target 50")
     tol = parse_value(tolerance, "--tolerance") if tolerance is not None else None
     if not (math.isfinite(window) and window > 0):
-        fail(f"--window: {window!r} must be a positive number of seconds")
+        fail(f"--window: {window!r} must be a positive number of seconds — e.g. --window 1")
     if window * target_hz < 2:
         fail(f"--window: {window:g} s holds fewer than 2 cycles of {target_hz:g} Hz — use at least "
              f"{2 / target_hz:.3g} s")
-    if channel < 1:
-        fail(f"--channel: {channel} must be 1 or more")
-    if updates is not None and updates < 1:
-        fail(f"--updates: {updates} must be 1 or more")
-    if not 1 <= harmonics <= 100:
-        fail(f"--harmonics: {harmonics} must be between 1 and 100")
     r = _rate(rate)
     if target_hz >= r / 2:
-        fail(f"--target: {target_hz:g} Hz is not below half the sample rate ({r / 2:g} Hz)")
+        fail(f"--target: {target_hz:g} Hz is not below half the sample rate ({r / 2:g} Hz) — raise --rate "
+             "or check --target")
     prof = load_profile(profile) if profile else None
     gain = tau = None
     ppm = u_ppm = 0.0
@@ -371,13 +384,17 @@ def _calibration_source(file: Optional[Path], do_record: bool, seconds: Optional
     if do_record:
         if seconds is None:
             fail("--seconds: give the recording length with --record, e.g. --seconds 5")
+        _seconds(seconds)
         target = file if file is not None else Path(tmp) / "calibration.wav"
-        stderr.print(CAUTION, markup=False)
-        _progress_recorder(target, seconds, _rate(rate), channels, _device(device), None, None,
-                           overwrite=False, sample_format="float")
+        from benchfit.capture.devices import check_input
+
+        r, dev = _rate(rate), _device(device)
+        check_input(dev, float(r), channels)  # a missing or refusing device: its one error line only
+        stderr.print(CAUTION, markup=False)  # then the cautions, before anything is connected and recorded
+        _progress_recorder(target, seconds, r, channels, dev, None, None, overwrite=False, sample_format="float")
         return read_raw_wav(target), str(target) if file is not None else f"live recording ({seconds:g} s)"
     if file is None:
-        fail("FILE: give a recording to calibrate from, or use --record --seconds S")
+        fail("FILE: missing — give a recording to calibrate from, or use --record --seconds S")
     return read_raw_wav(file), str(file)
 
 
@@ -438,21 +455,26 @@ _REC_HELP = "Record live from the sound card instead of reading FILE (needs --se
     "(rectangular distribution); read a, including its digits term, from the meter's manual for "
     "the range and frequency used. Without --rms-u, ±0.5 % of the reading is assumed as such a "
     "half-width (0.29 % standard), about a 3½-digit handheld meter at 50–400 Hz; many handheld "
-    "meters are not specified above a few hundred hertz.\n\n" + CAUTION),
-    epilog="Example: benchfit calibrate gain sine_775mV.wav --rms 0.775 --rms-u 0.3% --profile desk")
+    "meters are not specified above a few hundred hertz.\n\n"
+    "Example:\n\n\b\n  benchfit calibrate gain sine_775mV.wav --rms 0.775 --rms-u 0.3% \\\n"
+    "      --profile desk\n\n" + CAUTION))
 def calibrate_gain(
-    file: Optional[Path] = typer.Argument(None, help="Recording of the reference sine (WAV/FLAC)."),
-    rms: str = typer.Option(..., "--rms", help="RMS voltage of the sine from your meter, in V (e.g. 775m)."),
+    file: Optional[Path] = typer.Argument(None, metavar="FILE", show_default=False,
+                                          help="Recording of the reference sine (WAV/FLAC)."),
+    rms: str = typer.Option(..., "--rms", metavar="V", help="RMS voltage of the sine from your meter, in V "
+                            "(e.g. 775m)."),
     rms_u: Optional[str] = typer.Option(
-        None, "--rms-u", help="Standard uncertainty of the meter reading: V (e.g. 2m) or % of the reading "
+        None, "--rms-u", metavar="V|PCT", help="Standard uncertainty of the meter reading: V (e.g. 2m) or % of the reading "
                               "(e.g. 0.3%); default ±0.5 % of the reading as a rectangular half-width."),
-    profile: str = typer.Option(..., "--profile", help="Profile to create or update."),
-    channel: Optional[str] = typer.Option(None, "--channel", help="Only this channel (name or number); default all."),
+    profile: str = typer.Option(..., "--profile", metavar="PROFILE", help="Profile to create or update."),
+    channel: Optional[str] = typer.Option(None, "--channel", metavar="CH",
+                                          help="Only this channel (name or number); default all."),
     do_record: bool = typer.Option(False, "--record", help=_REC_HELP),
-    seconds: Optional[float] = typer.Option(None, "--seconds", help="Recording length with --record (s)."),
-    device: Optional[str] = typer.Option(None, "--device", help="Input device with --record."),
-    rate: float = typer.Option(48000, "--rate", help="Sample rate with --record (Hz)."),
-    channels: int = typer.Option(1, "--channels", help="Channels to record with --record."),
+    seconds: Optional[float] = typer.Option(None, "--seconds", metavar="SECONDS",
+                                            help="Recording length with --record (s)."),
+    device: Optional[str] = typer.Option(None, "--device", metavar="DEVICE", help="Input device with --record."),
+    rate: float = typer.Option(48000, "--rate", metavar="HZ", help="Sample rate with --record (Hz)."),
+    channels: int = typer.Option(1, "--channels", metavar="N", min=1, max=2, help="Channels to record with --record."),
     json_out: bool = typer.Option(False, "--json", help="Print the stored values as one JSON object."),
 ) -> None:
     from benchfit.capture.calibration import (ChannelGain, combine_gain_u_rel, estimate_gain, save_profile,
@@ -460,7 +482,7 @@ def calibrate_gain(
 
     rms_v = parse_value(rms, "--rms")
     if rms_v <= 0:
-        fail(f"--rms: {rms!r} must be a positive voltage")
+        fail(f"--rms: {rms!r} must be a positive voltage — the meter's RMS reading in V, e.g. 0.775")
     meter_u, meter_note = _meter_u(rms_u, rms_v)
     prof = _load_or_new(profile)
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
@@ -497,26 +519,29 @@ def calibrate_gain(
 @calibrate_app.command("timebase", short_help="Sample-clock error in ppm, from a tone of trusted frequency.", help=(
     "Store the sample-clock error in ppm: feed a tone whose frequency you trust (counter or "
     "disciplined generator). Positive ppm = the card's clock runs fast; every capture made with "
-    "the profile gets its sample rate and frequency uncertainty corrected at load time."),
-    epilog="Example: benchfit calibrate timebase ref_1kHz.wav --frequency 1000 --profile desk")
+    "the profile gets its sample rate and frequency uncertainty corrected at load time.""\n\nExample:\n\n\b\n  benchfit calibrate timebase ref_1kHz.wav --frequency 1000 --profile desk"
+    "\n\n" + CAUTION))
 def calibrate_timebase(
-    file: Optional[Path] = typer.Argument(None, help="Recording of the reference tone (WAV/FLAC)."),
-    frequency: str = typer.Option(..., "--frequency", help="True frequency of the tone in Hz (e.g. 1k)."),
-    profile: str = typer.Option(..., "--profile", help="Profile to create or update."),
-    frequency_u: Optional[str] = typer.Option(None, "--frequency-u",
+    file: Optional[Path] = typer.Argument(None, metavar="FILE", show_default=False,
+                                          help="Recording of the reference tone (WAV/FLAC)."),
+    frequency: str = typer.Option(..., "--frequency", metavar="HZ", help="True frequency of the tone in Hz (e.g. 1k)."),
+    profile: str = typer.Option(..., "--profile", metavar="PROFILE", help="Profile to create or update."),
+    frequency_u: Optional[str] = typer.Option(None, "--frequency-u", metavar="HZ",
                                               help="Standard uncertainty of the reference frequency, in Hz."),
-    channel: Optional[str] = typer.Option(None, "--channel", help="Channel carrying the tone; default the first."),
+    channel: Optional[str] = typer.Option(None, "--channel", metavar="CH",
+                                          help="Channel carrying the tone; default the first."),
     do_record: bool = typer.Option(False, "--record", help=_REC_HELP),
-    seconds: Optional[float] = typer.Option(None, "--seconds", help="Recording length with --record (s)."),
-    device: Optional[str] = typer.Option(None, "--device", help="Input device with --record."),
-    rate: float = typer.Option(48000, "--rate", help="Sample rate with --record (Hz)."),
+    seconds: Optional[float] = typer.Option(None, "--seconds", metavar="SECONDS",
+                                            help="Recording length with --record (s)."),
+    device: Optional[str] = typer.Option(None, "--device", metavar="DEVICE", help="Input device with --record."),
+    rate: float = typer.Option(48000, "--rate", metavar="HZ", help="Sample rate with --record (Hz)."),
     json_out: bool = typer.Option(False, "--json", help="Print the stored values as one JSON object."),
 ) -> None:
     from benchfit.capture.calibration import TimebaseCalibration, estimate_timebase, save_profile, utc_now_iso
 
     f_ref = parse_value(frequency, "--frequency")
     if f_ref <= 0:
-        fail(f"--frequency: {frequency!r} must be a positive frequency in Hz")
+        fail(f"--frequency: {frequency!r} must be a positive frequency in Hz — e.g. --frequency 1000")
     u_ref = parse_value(frequency_u, "--frequency-u") if frequency_u is not None else 0.0
     prof = _load_or_new(profile)
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
@@ -541,16 +566,18 @@ def calibrate_timebase(
 
 @calibrate_app.command("coupling", short_help="Input high-pass time constant, from a low-frequency square wave.", help=(
     "Store the time constant of the input's high-pass (AC coupling) from the droop of a "
-    "low-frequency square wave (5-20 Hz works well); pulse measurements then compensate it.\n\n" + CAUTION),
-    epilog="Example: benchfit calibrate coupling square_10Hz.wav --profile desk")
+    "low-frequency square wave (5-20 Hz works well); pulse measurements then compensate it.""\n\nExample:\n\n\b\n  benchfit calibrate coupling square_10Hz.wav --profile desk" "\n\n" + CAUTION))
 def calibrate_coupling(
-    file: Optional[Path] = typer.Argument(None, help="Recording of a low-frequency square wave (WAV/FLAC)."),
-    profile: str = typer.Option(..., "--profile", help="Profile to create or update."),
-    channel: Optional[str] = typer.Option(None, "--channel", help="Channel carrying the square; default the first."),
+    file: Optional[Path] = typer.Argument(None, metavar="FILE", show_default=False,
+                                          help="Recording of a low-frequency square wave (WAV/FLAC)."),
+    profile: str = typer.Option(..., "--profile", metavar="PROFILE", help="Profile to create or update."),
+    channel: Optional[str] = typer.Option(None, "--channel", metavar="CH",
+                                          help="Channel carrying the square; default the first."),
     do_record: bool = typer.Option(False, "--record", help=_REC_HELP),
-    seconds: Optional[float] = typer.Option(None, "--seconds", help="Recording length with --record (s)."),
-    device: Optional[str] = typer.Option(None, "--device", help="Input device with --record."),
-    rate: float = typer.Option(48000, "--rate", help="Sample rate with --record (Hz)."),
+    seconds: Optional[float] = typer.Option(None, "--seconds", metavar="SECONDS",
+                                            help="Recording length with --record (s)."),
+    device: Optional[str] = typer.Option(None, "--device", metavar="DEVICE", help="Input device with --record."),
+    rate: float = typer.Option(48000, "--rate", metavar="HZ", help="Sample rate with --record (Hz)."),
     json_out: bool = typer.Option(False, "--json", help="Print the stored value as one JSON object."),
 ) -> None:
     from benchfit.capture.calibration import CouplingCalibration, estimate_coupling, save_profile, utc_now_iso
@@ -572,18 +599,29 @@ def calibrate_coupling(
     stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
-@calibrate_app.command("show", epilog="Example: benchfit calibrate show desk")
+@calibrate_app.command("show", short_help="List calibration profiles and what each holds.", help=(
+    "List calibration profiles and what each holds (gain per channel, clock error, coupling). "
+    "A profile file that cannot be read gets one warning line; the others are still listed."
+    "\n\nExamples:\n\n\b\n  benchfit calibrate show\n  benchfit calibrate show desk"))
 def calibrate_show(
-    name: Optional[str] = typer.Argument(None, help="Show only this profile."),
+    name: Optional[str] = typer.Argument(None, metavar="PROFILE", show_default=False,
+                                         help="Show only this profile."),
     json_out: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
-    """List calibration profiles and what each holds (gain per channel, clock error, coupling)."""
-    from benchfit.capture.calibration import config_dir, list_profiles, load_profile
+    """List calibration profiles (see the command's help)."""
+    from benchfit.capture.calibration import config_dir, load_profile, scan_profiles
 
-    profiles = [load_profile(name)] if name else list_profiles()
+    profiles, problems = ([load_profile(name)], []) if name else scan_profiles()
     folder = config_dir() / "profiles"
+    for line in problems:  # a broken file does not hide the readable profiles
+        stderr.print(f"warning: {line}", markup=False, highlight=False, soft_wrap=True)
+    if problems and not profiles:
+        fail(f"{folder}: none of the {len(problems)} profile file(s) can be read — fix or delete them "
+             "(see the warnings above), or create a profile with 'benchfit calibrate gain|timebase|"
+             "coupling FILE --profile NAME'")
     if json_out:
-        print_json({"folder": str(folder), "profiles": [p.to_toml_dict() for p in profiles]})
+        print_json({"folder": str(folder), "profiles": [p.to_toml_dict() for p in profiles],
+                    "problems": problems})
         return
     if not profiles:
         stdout.print(f"no calibration profiles in {folder} — create one with 'benchfit calibrate gain|timebase|"
