@@ -174,7 +174,7 @@ def signal_levels(x: np.ndarray, sample_rate: float, frequency_hz: float | None 
                   vpp_low=lo, vpp_high=hi)
 
 
-def percentile_noise_u(model: np.ndarray, sigma: float, level: float) -> float:
+def percentile_noise_u(model: np.ndarray, sigma: float, level: float, n_total: int | None = None) -> float:
     """Standard uncertainty, from white noise, of a sample percentile found at ``level``.
 
     The samples are ``x_i = s_i + w_i``: a known waveform ``s`` (``model``) plus independent
@@ -193,6 +193,10 @@ def percentile_noise_u(model: np.ndarray, sigma: float, level: float) -> float:
         Standard deviation of the noise (sample units).
     level : float
         Where the percentile was found (sample units).
+    n_total : int, optional
+        Number of samples in the record when ``model`` is a representative subset of it (a
+        regular stride through a long record): the sums above are then taken as means over the
+        subset times ``n_total``. Default: ``model.size``.
 
     Returns
     -------
@@ -213,14 +217,16 @@ def percentile_noise_u(model: np.ndarray, sigma: float, level: float) -> float:
         return float(sigma)
     zn = z[near]
     p = ndtr(zn)
-    var_f = float(np.sum(p * (1.0 - p))) / s.size ** 2
+    n = s.size if n_total is None else int(n_total)
+    # Σ over the record ≈ (n / subset size)·Σ over the subset, so var F_N = mean(P(1−P))/n
+    var_f = float(np.sum(p * (1.0 - p))) / (s.size * n)
     dens = float(np.sum(np.exp(-0.5 * zn * zn))) / (math.sqrt(2.0 * math.pi) * sigma * s.size)
     if dens <= 0.0:
         return float(sigma)
     return float(min(math.sqrt(var_f) / dens, sigma))
 
 
-def vpp_noise_u(model: np.ndarray, sigma: float, low: float, high: float) -> float:
+def vpp_noise_u(model: np.ndarray, sigma: float, low: float, high: float, n_total: int | None = None) -> float:
     """Noise part of the standard uncertainty of the robust peak-to-peak value ``high − low``.
 
     The two percentiles (:func:`percentile_noise_u`) are set by disjoint groups of samples
@@ -236,13 +242,16 @@ def vpp_noise_u(model: np.ndarray, sigma: float, low: float, high: float) -> flo
         Noise standard deviation (sample units).
     low, high : float
         The 0.1th and 99.9th percentiles (:attr:`Levels.vpp_low`, :attr:`Levels.vpp_high`).
+    n_total : int, optional
+        Samples in the record when ``model`` is a strided subset (see :func:`percentile_noise_u`).
 
     Returns
     -------
     float
         Standard uncertainty (sample units).
     """
-    return math.hypot(percentile_noise_u(model, sigma, low), percentile_noise_u(model, sigma, high))
+    return math.hypot(percentile_noise_u(model, sigma, low, n_total),
+                      percentile_noise_u(model, sigma, high, n_total))
 
 
 def _runs(mask: np.ndarray, min_run: int) -> tuple[int, int]:
@@ -322,7 +331,9 @@ def quantisation_step(x: np.ndarray) -> float:
     record's span (a noise-free two-level trace has only its two levels, whose distance is
     not a resolution).
     """
-    v = np.unique(np.asarray(x, dtype=np.float64))
+    x = np.asarray(x, dtype=np.float64)
+    # the code grid shows in any stretch of the record: 2^16 samples keep the sort cheap
+    v = np.unique(x[: 1 << 16] if x.size > (1 << 16) else x)
     if v.size < 2:
         return 0.0
     q = float(np.min(np.diff(v)))

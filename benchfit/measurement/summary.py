@@ -46,7 +46,7 @@ from benchfit.capture.capture import Capture
 from benchfit.errors import MeasureError
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
 from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
-from benchfit.measurement.pulse import pulse_parameters
+from benchfit.measurement.pulse import PulseResult, pulse_parameters
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
 from benchfit.measurement.tone import fit_harmonics, fit_tone
 
@@ -60,6 +60,8 @@ _DETECT_RATIO = 8.0
 _LOW_SNR_DB = 10.0
 #: an estimated coupling droop above this (%) is reported as a warning
 _DROOP_WARN_PCT = 5.0
+#: below this THD_F (ratio) a wave is not analysed as two-level (IEEE 181 pulse parameters)
+_MIN_PULSE_THD = 0.05
 #: fewer whole periods than this gives a short-record warning
 _MIN_PERIODS = 3.0
 
@@ -151,7 +153,13 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                         "(10 or more for good uncertainty)")
     levels = signal_levels(x, fs, f)
     dist = analyse_distortion(x, fs, fit)
-    pulse = pulse_parameters(x, fs, coupling_tau_s)
+    if fit.orders.size >= 3 and dist.thd is not None and dist.thd < _MIN_PULSE_THD:
+        # harmonics 2…H (H ≥ 3) below 5 % of the fundamental: not a two-level wave. Even a trapezoid
+        # whose edges take the whole period (a triangle) has THD_F = 12 % (REFERENCES §5 table,
+        # H = 10: 12.05 %), so the pulse analysis (and its droop fit) is skipped.
+        pulse = PulseResult(two_level=False)
+    else:
+        pulse = pulse_parameters(x, fs, coupling_tau_s)
     method = "multi-harmonic fit"
     if pulse.two_level and pulse.edge_period_s and pulse.edge_period_u_s is not None:
         # Two-level wave: its sharp edges put harmonics far above H (and, sampled without an
@@ -195,16 +203,20 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         for k, fk, a, ph, au in zip(dist.orders, dist.frequencies_hz, dist.amplitudes,
                                     dist.phases_deg, dist.amplitudes_u))
     amplitude = abs(fit.phasors[0])
+    # the percentile noise needs the noise-free wave's distribution only: a regular stride of
+    # at most 2^16 samples through the record represents it (and keeps long records cheap)
+    stride = max(1, -(-n // (1 << 16)))
     if pulse.two_level and pulse.state_low is not None and pulse.state_high is not None \
             and pulse.noise_rms is not None:
         # a two-level wave: its states are the noise-free levels (the harmonic fit rings at the edges)
         mid = 0.5 * (pulse.state_low + pulse.state_high)
-        model, sigma = np.where(x >= mid, pulse.state_high, pulse.state_low), float(pulse.noise_rms)
+        xs = x[::stride]
+        model, sigma = np.where(xs >= mid, pulse.state_high, pulse.state_low), float(pulse.noise_rms)
     else:
-        model, sigma = fit.evaluate(n, fs), float(fit.sigma)
+        model, sigma = fit.evaluate(-(-n // stride), fs / stride), float(fit.sigma)
     # noise on the two percentiles, and the resolution of each (q/√12 per end, both ends: q/√6);
     # a noise-free quantised plateau (a flat scope trace) keeps the resolution term
-    vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, levels.vpp_low, levels.vpp_high),
+    vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, levels.vpp_low, levels.vpp_high, n_total=n),
                              quantisation_step(x) / math.sqrt(6.0))
     extra.update({
         "harmonics_h": int(dist.harmonics_h),

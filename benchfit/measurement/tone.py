@@ -122,16 +122,30 @@ class HarmonicFit:
 
     def evaluate(self, n_samples: int, sample_rate: float, orders: "np.ndarray | None" = None,
                  include_dc: bool = True) -> np.ndarray:
-        """The fitted waveform at t = n/fs, n = 0…n_samples−1 (optionally a subset of orders)."""
+        """The fitted waveform at t = n/fs, n = 0…n_samples−1 (optionally a subset of orders).
+
+        Harmonics come from the fundamental's cos/sin by the angle-addition recurrence
+        (re-anchored every 16 orders), so a long record costs two transcendental passes.
+        """
         t = np.arange(n_samples) / sample_rate
         w = 2 * math.pi * self.frequency_hz
         y = np.full(n_samples, self.dc if include_dc else 0.0)
-        for k, p in zip(self.orders, self.phasors):
-            if orders is not None and k not in orders:
-                continue
-            y += p.real * np.cos(k * w * t) - p.imag * np.sin(k * w * t)
+        wanted = {int(k): p for k, p in zip(self.orders, self.phasors)
+                  if orders is None or k in orders}
+        if not wanted:
+            return y
+        c1, s1 = np.cos(w * t), np.sin(w * t)
+        ck, sk = c1, s1
+        for k in range(1, max(wanted) + 1):
+            if k > 1:
+                if k % 16 == 0:
+                    ck, sk = np.cos(k * w * t), np.sin(k * w * t)
+                else:
+                    ck, sk = ck * c1 - sk * s1, sk * c1 + ck * s1
+            p = wanted.get(k)
+            if p is not None:
+                y += p.real * ck - p.imag * sk
         return y
-
 
 def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -> float | None:
     """Frequency of the strongest spectral peak by interpolated DFT (Hann window, Grandke's rule).
