@@ -50,7 +50,7 @@ def _seconds(value: float) -> float:
 
 def _rate(value: float) -> int:
     if not (math.isfinite(value) and value > 0 and float(value).is_integer()):
-        fail(f"--rate: {value!r} must be a whole positive number of Hz, e.g. 48000")
+        fail(f"--rate: {value!r} must be a whole positive number of Hz — e.g. --rate 48000")
     return int(value)
 
 
@@ -383,7 +383,7 @@ def _calibration_source(file: Optional[Path], do_record: bool, seconds: Optional
 
     if do_record:
         if seconds is None:
-            fail("--seconds: give the recording length with --record, e.g. --seconds 5")
+            fail("--seconds: missing — --record needs the recording length, e.g. --seconds 5")
         _seconds(seconds)
         target = file if file is not None else Path(tmp) / "calibration.wav"
         from benchfit.capture.devices import check_input

@@ -42,6 +42,10 @@ _MIN_SUB_RATIO = 0.01
 #: distortion and quantisation (sound-card ADCs reach about −90…−110 dB THD, from memory), so it
 #: says nothing about the filter: a capture with no harmonic above it is treated as a pure sine
 _MIN_HARMONIC_REL = 1e-5
+#: the smallest standard uncertainty a phasor is given, relative to the fundamental: about one
+#: code step of a 24-bit capture (2⁻²³ ≈ 1.2e-7 of full scale). A noise-free (synthetic, float)
+#: file otherwise yields zero uncertainties, and the whitened fit divides by them
+_U_FLOOR_REL = 1e-7
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
@@ -139,27 +143,24 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
     hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
-    above_noise = hy_all.amplitudes > SIGNIFICANCE * hy_all.amplitudes_u
     a1 = float(hy_all.amplitudes[0])
+    u_floor = _U_FLOOR_REL * a1
+    above_noise = hy_all.amplitudes > SIGNIFICANCE * np.maximum(hy_all.amplitudes_u, u_floor)
     real = above_noise & (hy_all.amplitudes > _MIN_HARMONIC_REL * a1) & (hy_all.orders >= 2)
-    if not np.any(real) and np.any(above_noise[1:]):
-        # a pure sine: what stands out is the converter's quantisation pattern (or nothing at
-        # all in a float file), and the solver would divide by those vanishing uncertainties
+    if not np.any(real):
+        # a pure sine (or one whose harmonics drown in the noise): at most the converter's own
+        # quantisation pattern stands out, which says nothing about the filter
         raise FitError(f"{where}: channel {name!r} has no harmonics above the noise, so its shape says "
                        "nothing about the filter — capture the drive too and use --method two-channel, "
                        "or use --model ringdown")
     strong = np.nonzero(above_noise)[0]
-    if strong.size < 2:
-        raise FitError(f"{where}: only the fundamental of {name!r} stands above the noise, so its "
-                       "shape says nothing about the filter — record longer, or capture the drive "
-                       "too and use --method two-channel")
     from benchfit.fit.lowpass import _subset
 
     keep = hy_all.orders <= int(hy_all.orders[strong[-1]])
     hy = _subset(hy_all, keep)  # orders 1…K; the fit included all orders below the limit
     orders = hy.orders
     yk = hy.phasors
-    cov = hy.phasor_cov
+    cov = hy.phasor_cov + u_floor ** 2 * np.eye(2)  # never below the resolution floor (see _U_FLOOR_REL)
     tau_c = cap.calibration.coupling_tau_s
     fk = orders * f
     if tau_c:

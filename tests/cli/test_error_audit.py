@@ -58,6 +58,7 @@ def files(tmp_path_factory) -> dict[str, Path]:
         sf.write(f[name], data, FS, subtype=subtype)
 
     wav("good", sine)
+    wav("float_sine", sine, "FLOAT")  # noise-free: its harmonics' uncertainties come out as zero
     wav("two", np.stack([square, sine], axis=1))
     wav("silent", np.zeros_like(t), "PCM_16")
     wav("clipped", np.clip(3.0 * np.sin(2 * np.pi * 50 * t), -1.0, 1.0), "PCM_16")
@@ -123,6 +124,8 @@ def files(tmp_path_factory) -> dict[str, Path]:
     f["existing_wav"] = d / "HC-04_take1.wav"
     f["existing_wav"].write_bytes(raw)  # an earlier recording the user wants to keep
     f["out_pdf"] = d / "figure.pdf"
+    f["existing_svg"] = d / "hc03_fit.svg"
+    f["existing_svg"].write_text("<svg>a figure the user wants to keep</svg>\n", encoding="utf-8")
     f["folder_svg"] = d / "figures.svg"
     f["folder_svg"].mkdir()
     f["log"] = d / "log.sqlite"
@@ -253,6 +256,14 @@ CASES = [
       "--drive-duty"),
     C("fit-plot-folder", "fit {two} --plot {folder_svg}", 2,
       r": is a folder — give --plot a file name ending in \.svg or \.png$", "folder_svg"),
+    C("fit-plot-exists", "fit {two} --plot {existing_svg}", 2,
+      r": file exists — choose another --plot or add --overwrite$", "existing_svg"),
+    # a pure sine carries no filter shape (item: the solver used to break down on it)
+    C("fit-pure-sine", "fit {good}", 2,
+      r"^error: .*good\.wav: channel 'ch1' has no harmonics above the noise, so its shape says nothing about "
+      r"the filter — capture the drive too and use --method two-channel, or use --model ringdown$", "good"),
+    C("fit-pure-sine-float", "fit {float_sine}", 2,
+      r": channel 'ch1' has no harmonics above the noise, .* or use --model ringdown$", "float_sine"),
     C("fit-plot-type", "fit {two} --plot {out_pdf}", 2, r"^error: --plot '.*figure\.pdf': unknown figure type — ",
       "--plot"),
     # --- report --------------------------------------------------------------------------------
@@ -322,7 +333,46 @@ CASES = [
     C("record-sample-format", "record --seconds 1 --sample-format mp3 {new_wav}", 2,
       r"^error: --sample-format 'mp3': unknown sample format — choose one of pcm24, float$", "--sample-format"),
     C("record-channels", "record --seconds 1 --channels 5 {new_wav}", 2,
-      r"^error: --channels: 5 is not supported — record 1 or 2 channels$", "--channels"),
+      r"^error: --channels '5': must be 2 or less" + HELP.format("record "), "--channels"),
+    C("record-seconds-negative", "record --seconds -1 {new_wav}", 2,
+      r"^error: --seconds: -1\.0 must be a positive number of seconds — e\.g\. --seconds 10$", "--seconds"),
+    C("tune-window-zero", "tune --target 50 --window 0", 2,
+      r"^error: --window: 0\.0 must be a positive number of seconds — e\.g\. --window 1$", "--window"),
+    C("tune-window-short", "tune --target 50 --window 0.01", 2,
+      r"^error: --window: 0\.01 s holds fewer than 2 cycles of 50 Hz — use at least 0\.04 s$", "--window"),
+    C("tune-target-negative", "tune --target -5", 2, r"^error: --target: '-5' must be positive — ", "--target"),
+    C("tune-target-nyquist", "tune --target 30k --rate 48000", 2,
+      r"^error: --target: 30000 Hz is not below half the sample rate \(24000 Hz\) — raise --rate or check "
+      r"--target$", "--target"),
+    C("tune-channel-0", "tune --target 50 --channel 0", 2,
+      r"^error: --channel '0': must be 1 or more" + HELP.format("tune "), "--channel"),
+    C("tune-updates-0", "tune --target 50 --updates 0", 2,
+      r"^error: --updates '0': must be 1 or more" + HELP.format("tune "), "--updates"),
+    C("tune-harmonics-101", "tune --target 50 --harmonics 101", 2,
+      r"^error: --harmonics '101': must be 100 or less" + HELP.format("tune "), "--harmonics"),
+    C("tune-rate-fraction", "tune --target 50 --rate 44100.5", 2,
+      r"^error: --rate: 44100\.5 must be a whole positive number of Hz — e\.g\. --rate 48000$", "--rate"),
+    C("calibrate-no-file", "calibrate gain --rms 0.775 --profile audit", 2,
+      r"^error: FILE: missing — give a recording to calibrate from, or use --record --seconds S$", "FILE"),
+    C("calibrate-rms-negative", "calibrate gain {good} --rms -1 --profile audit", 2,
+      r"^error: --rms: '-1' must be positive — ", "--rms"),
+    C("calibrate-rms-u-too-big", "calibrate gain {good} --rms 0.35 --rms-u 1 --profile audit", 2,
+      r"^error: --rms-u: '1' V is not smaller than the reading 0\.35 V — ", "--rms-u"),
+    C("calibrate-timebase-nyquist", "calibrate timebase {good} --frequency 30k --profile audit", 2,
+      r"^error: --frequency: 30000\.0 Hz must be positive and below half the sample rate \(24000 Hz\) — "
+      r"check --frequency, or record at a higher sample rate \(--rate\)$", "--frequency"),
+    C("calibrate-record-no-seconds", "calibrate gain --record --rms 0.35 --profile audit", 2,
+      r"^error: --seconds: missing — --record needs the recording length, e\.g\. --seconds 5$", "--seconds"),
+    C("calibrate-record-seconds-negative", "calibrate coupling --record --seconds -2 --profile audit", 2,
+      r"^error: --seconds: -2\.0 must be a positive number of seconds — e\.g\. --seconds 10$", "--seconds"),
+    C("calibrate-record-channels-3", "calibrate gain --record --seconds 1 --channels 3 --rms 0.35 --profile audit",
+      2, r"^error: --channels '3': must be 2 or less" + HELP.format("calibrate gain "), "--channels"),
+    # the safety paragraph comes only once the device is accepted: a refused device is one line
+    C("calibrate-record-no-such-device",
+      "calibrate gain --record --seconds 1 --rms 0.35 --profile audit --device no-such-device-7f3", 3,
+      r"^error: (--device|PortAudio)\b.* — ", "device"),
+    C("calibrate-bad-channel", "calibrate timebase {good} --frequency 50 --channel 4 --profile audit", 2,
+      r"^error: --channel '4': no such channel — choose one of ch1 or 1…1$", "--channel"),
     C("record-no-such-device", "record --seconds 1 --device no-such-device-7f3 {new_wav}", 3,
       r"^error: (--device|PortAudio)\b.* — ", "device"),
     C("calibrate-silent", "calibrate gain {silent} --rms 0.35 --profile audit", 2,
@@ -370,11 +420,12 @@ def test_bad_input_is_one_line(case: Case, files, capsys):
 
 def test_refusals_leave_existing_files_untouched(files, tmp_path, capsys):
     out_dir = tmp_path / "reports"
-    before = {k: files[k].read_bytes() for k in ("existing", "existing_wav", "foreign_log")}
+    before = {k: files[k].read_bytes() for k in ("existing", "existing_wav", "foreign_log", "existing_svg")}
     log_before = files["log"].read_bytes()
     for argv in (["record", "--seconds", "1", str(files["existing_wav"])],
                  ["log", "export", "--out", str(files["existing"]), "--log", str(files["log"])],
                  ["log", "stats", "frequency_hz", "--plot", str(files["existing"]), "--log", str(files["log"])],
+                 ["fit", str(files["two"]), "--plot", str(files["existing_svg"])],
                  ["measure", str(files["good"]), "--log", str(files["foreign_log"])],
                  ["report", str(files["good"]), "--spec", str(files["spec"]), "--unit", "HC-01",
                   "--log", str(files["foreign_log"]), "--out", str(out_dir)]):
@@ -478,7 +529,9 @@ def test_help_exits_zero(capsys):
 
 
 HELP_COMMANDS = ["", "measure", "fit", "report", "log", "log list", "log show", "log export", "log stats",
-                 "design", "design astable", "design filter", "design combine", "design trim", "calibrate"]
+                 "design", "design astable", "design filter", "design combine", "design trim", "calibrate",
+                 "devices", "record", "tune", "calibrate gain", "calibrate timebase", "calibrate coupling",
+                 "calibrate show", "demo"]
 
 
 @pytest.mark.parametrize("command", HELP_COMMANDS, ids=[c or "top" for c in HELP_COMMANDS])
@@ -497,3 +550,98 @@ def test_help_fits_80_columns_and_keeps_examples(command, capsys):
         assert ex.count("benchfit ") == 1, ex
     if command and command not in ("log", "design", "calibrate"):
         assert examples, f"'benchfit {command} --help' shows no example"
+
+
+def test_demo_help_keeps_its_default_folder_whole(capsys):
+    """`demo --out`'s default is said in the help text, not split by click's wrapping."""
+    code, out, _ = run_cli(["demo", "--help"], capsys)
+    assert code == 0
+    assert "(default: ./benchfit-demo)" in " ".join(out.split())
+    assert "[default: benchfit-" not in out
+
+
+# --- fit --plot keeps an existing figure unless told otherwise ------------------------------------
+
+def test_fit_plot_overwrite_replaces_the_figure(files, tmp_path, capsys):
+    fig = tmp_path / "hc03_fit.svg"
+    fig.write_text("<svg>old</svg>\n", encoding="utf-8")
+    code, _, err = run_cli(["fit", str(files["two"]), "--plot", str(fig), "--json"], capsys)
+    assert code == 2 and "file exists" in err and fig.read_text(encoding="utf-8") == "<svg>old</svg>\n"
+    code, out, err = run_cli(["fit", str(files["two"]), "--plot", str(fig), "--overwrite", "--json"], capsys)
+    assert code == 0, err
+    assert json.loads(out)["model"] == "lc-lowpass"
+    text = fig.read_text(encoding="utf-8")
+    assert text != "<svg>old</svg>\n" and "<svg" in text  # a real figure replaced the old file
+
+
+def test_demo_reruns_its_figure_step_into_the_same_folder(tmp_path, monkeypatch, capsys):
+    """The demo writes its fit figure with --overwrite, so a second run into the same folder
+    still succeeds. Only the figure steps run for real here (the whole demo is tested elsewhere)."""
+    import benchfit.cli.demo_cmd as demo
+
+    real_run = demo._Tour.run
+    plotted: list[list[str]] = []
+
+    def figure_steps_only(self, args, *, save_stdout=None, expect=(0,)):
+        if "--plot" not in args:
+            if save_stdout is not None:
+                save_stdout.write_text("", encoding="utf-8")
+            return expect[0]
+        plotted.append(list(args))
+        return real_run(self, args, save_stdout=save_stdout, expect=expect)
+
+    monkeypatch.setattr(demo._Tour, "run", figure_steps_only)
+    monkeypatch.setattr(demo, "_summarise_measurements", lambda jsonl: None)
+    out_dir = tmp_path / "demo"
+    for _ in range(2):
+        code, _, err = run_cli(["demo", "--out", str(out_dir)], capsys)
+        assert code == 0, err
+    assert len(plotted) == 2 and all("--overwrite" in a for a in plotted)
+    (fig,) = out_dir.glob("*.svg")
+    assert fig.stat().st_size > 0
+
+
+# --- calibrate show and broken profile files ----------------------------------------------------
+
+def test_calibrate_show_lists_readable_profiles_and_warns_per_broken_file(files, tmp_path, capsys):
+    code, _, err = run_cli(["calibrate", "gain", str(files["good"]), "--rms", "0.35", "--profile", "desk"], capsys)
+    assert code == 0, err
+    folder = tmp_path / "config" / "profiles"
+    (folder / "broken.toml").write_text("this is = = not toml\n", encoding="utf-8")
+    (folder / "nameless.toml").write_text('name = "other"\n', encoding="utf-8")
+    code, out, err = run_cli(["calibrate", "show"], capsys)
+    assert code == 0
+    assert "desk" in out
+    warnings = err.splitlines()
+    assert len(warnings) == 2 and all(w.startswith("warning: ") and " — " in w for w in warnings)
+    assert "broken.toml: not valid TOML" in warnings[0] and "nameless.toml" in warnings[1]
+    code, out, err = run_cli(["calibrate", "show", "--json"], capsys)
+    assert code == 0 and [p["name"] for p in json.loads(out)["profiles"]] == ["desk"]
+    assert len(json.loads(out)["problems"]) == 2
+    (folder / "desk.toml").unlink()  # now no profile can be read
+    code, out, err = run_cli(["calibrate", "show"], capsys)
+    lines = err.splitlines()
+    assert code == 2 and out == ""
+    assert [ln.split(":")[0] for ln in lines] == ["warning", "warning", "error"]
+    assert lines[-1].startswith(f"error: {folder}: none of the 2 profile file(s) can be read — ")
+
+
+def test_calibrate_show_without_profiles_is_not_an_error(capsys):
+    code, out, err = run_cli(["calibrate", "show"], capsys)
+    assert code == 0 and err == "" and out.startswith("no calibration profiles in ")
+
+
+def test_calibration_library_messages_end_in_a_fix():
+    """The calibration functions give the same one-line form when called from Python."""
+    from benchfit.capture.calibration import estimate_gain, estimate_timebase
+    from benchfit.errors import MeasureError
+
+    t = np.arange(FS // 2) / FS
+    x = 0.5 * np.sin(2 * np.pi * 50 * t)
+    with pytest.raises(MeasureError) as gain_err:
+        estimate_gain(x, FS, -1.0, what="sine")
+    assert str(gain_err.value) == "--rms: must be a positive voltage, got -1.0 — the meter's RMS reading in V, e.g. 0.775"
+    with pytest.raises(MeasureError) as tb_err:
+        estimate_timebase(x, FS, 30000.0, 0.0, what="sine")
+    assert str(tb_err.value).startswith("--frequency: 30000.0 Hz must be positive and below half the sample rate")
+    assert str(tb_err.value).endswith(" — check --frequency, or record at a higher sample rate (--rate)")
