@@ -61,30 +61,36 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
     two-pole response 1/(1 − (k/r)² + j·k/(r·Q)) with r = f0/f. G is solved in closed form at
     each grid point, for both signs.
     """
-    r = np.geomspace(0.15, 40.0, 64)
-    q = np.geomspace(0.2, 60.0, 24)
     d = np.array([duty]) if duty is not None else np.linspace(_DUTY_MIN, 0.5, 17)
     w = 1.0 / np.maximum(amp_u, 1e-300) ** 2
     rot = np.conj(yk[0]) / max(abs(yk[0]), 1e-300)
     z = yk * rot ** k
     pk = rectangular_phasors(k[None, :], d[:, None])  # (D, K)
-    kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
-    h2 = 1.0 / (1.0 - kr ** 2 + 1j * kr / q[None, :, None])  # (R, Q, K)
-    m = h2[:, :, None, :] * pk[None, None, :, :]  # (R, Q, D, K)
-    m1 = m[..., :1]
-    n = m * (np.conj(m1) / np.maximum(np.abs(m1), 1e-300)) ** k
-    best = (math.inf, 0, 0, 0)
-    for sign in (1.0, -1.0):
-        ns = n * np.where(k % 2 == 0, sign, 1.0)
-        num = np.sum(w * (np.conj(ns) * z).real, axis=-1)
-        den = np.sum(w * np.abs(ns) ** 2, axis=-1)
-        g = num / np.maximum(den, 1e-300)
-        cost = -g * num  # Σw|z|² − 2g·num + g²·den, minus the constant, at the optimal g
-        idx = np.unravel_index(int(np.argmin(cost)), cost.shape)
-        if cost[idx] < best[0]:
-            best = (float(cost[idx]), *idx)
-    _, i, j, l = best
-    return float(r[i]), float(q[j]), float(d[l])
+
+    def best_of(r: np.ndarray, q: np.ndarray) -> tuple[float, float, float, float]:
+        kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
+        h2 = 1.0 / (1.0 - kr ** 2 + 1j * kr / q[None, :, None])  # (R, Q, K)
+        m = h2[:, :, None, :] * pk[None, None, :, :]  # (R, Q, D, K)
+        m1 = m[..., :1]
+        n = m * (np.conj(m1) / np.maximum(np.abs(m1), 1e-300)) ** k
+        best = (math.inf, 0.0, 0.0, 0.0)
+        for sign in (1.0, -1.0):
+            ns = n * np.where(k % 2 == 0, sign, 1.0)
+            num = np.sum(w * (np.conj(ns) * z).real, axis=-1)
+            den = np.sum(w * np.abs(ns) ** 2, axis=-1)
+            g = num / np.maximum(den, 1e-300)
+            cost = -g * num  # Σw|z|² − 2g·num + g²·den, minus the constant, at the optimal g
+            i, j, l = np.unravel_index(int(np.argmin(cost)), cost.shape)
+            if cost[i, j, l] < best[0]:
+                best = (float(cost[i, j, l]), float(r[i]), float(q[j]), float(d[l]))
+        return best
+
+    step = (40.0 / 0.15) ** (1.0 / 63.0)
+    _, r0, _, _ = best_of(np.geomspace(0.15, 40.0, 64), np.geomspace(0.2, 60.0, 24))
+    # a resonance near a drive harmonic is narrower than the coarse steps (9 % in r): refine
+    # around the coarse point, over a wider Q range, so the solver starts in the right valley
+    _, r1, q1, d1 = best_of(np.geomspace(r0 / step ** 2, r0 * step ** 2, 41), np.geomspace(0.2, 300.0, 40))
+    return r1, q1, d1
 
 
 def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
