@@ -92,7 +92,7 @@ class _Tour:
         return code
 
 
-@app.command("demo", help=(
+@app.command("demo", short_help="Run the whole job on the bundled sample captures.", help=(
     "Run the whole job on the bundled sample captures: measure, fit (two-channel, one-channel, "
     "ring-down), a calibration report per unit (one fails), the log and its batch statistics, "
     "and trim advice. Writes everything to --out.\n\n"

@@ -136,7 +136,7 @@ def _progress_recorder(out: Path, seconds: float, rate: int, channels: int, devi
             progress.stop()
 
 
-@app.command(short_help="Record a sound-card input into WAV + sidecar JSON (Ctrl-C keeps what was captured).", help=(
+@app.command(short_help="Record a sound-card input to WAV + sidecar JSON.", help=(
     "Record a sound-card input into a WAV file and write its sidecar JSON (channel names, rate, "
     "device, start time, clip and overflow counts, calibration profile). Ctrl-C stops early and "
     "keeps everything captured so far (exit 130).\n\n"
@@ -274,7 +274,7 @@ def _panel(r, t: float, target: float, tolerance: float | None, n: int, dropped:
     return Panel(grid, title=f"tuning to {target:g} Hz{tol}", subtitle="Ctrl-C to stop", expand=False)
 
 
-@app.command(short_help="Live frequency/duty/THD readout for adjusting a unit to a target frequency.",
+@app.command(short_help="Live frequency, duty and THD readout for tuning a unit.",
              help=("Live readout for adjusting a unit: frequency (mHz resolution, with uncertainty), "
                    "deviation from the target in Hz and ppm with a plain-words hint, duty cycle, THD "
                    "and amplitude; several readings a second from overlapping windows. Ctrl-C stops."

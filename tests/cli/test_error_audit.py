@@ -645,3 +645,13 @@ def test_calibration_library_messages_end_in_a_fix():
         estimate_timebase(x, FS, 30000.0, 0.0, what="sine")
     assert str(tb_err.value).startswith("--frequency: 30000.0 Hz must be positive and below half the sample rate")
     assert str(tb_err.value).endswith(" — check --frequency, or record at a higher sample rate (--rate)")
+
+
+def test_top_help_lists_the_live_commands_and_demo_on_one_line_each(capsys):
+    """Their short help fits the command list at 80 columns: not wrapped, not cut with '...'."""
+    code, out, _ = run_cli(["--help"], capsys)
+    lines = out.splitlines()
+    for name in ("devices", "record", "tune", "demo"):
+        (i,) = [n for n, ln in enumerate(lines) if ln.split()[:1] == [name]]
+        assert not lines[i].endswith("..."), lines[i]
+        assert lines[i + 1].split()[0] not in ("", None) and not lines[i + 1].startswith(" " * 6), lines[i + 1]
