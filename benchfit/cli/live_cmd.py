@@ -303,9 +303,7 @@ def tune(
     from benchfit.errors import MeasureError
     from benchfit.measurement.tuning import analyse_window
 
-    target_hz = parse_value(target, "--target")
-    if target_hz <= 0:
-        fail(f"--target: {target!r} must be a positive frequency in Hz — e.g. --target 50")
+    target_hz = parse_value(target, "--target")  # positive: parse_value refuses zero and below
     tol = parse_value(tolerance, "--tolerance") if tolerance is not None else None
     if not (math.isfinite(window) and window > 0):
         fail(f"--window: {window!r} must be a positive number of seconds — e.g. --window 1")
@@ -481,8 +479,6 @@ def calibrate_gain(
                                               utc_now_iso)
 
     rms_v = parse_value(rms, "--rms")
-    if rms_v <= 0:
-        fail(f"--rms: {rms!r} must be a positive voltage — the meter's RMS reading in V, e.g. 0.775")
     meter_u, meter_note = _meter_u(rms_u, rms_v)
     prof = _load_or_new(profile)
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
@@ -540,8 +536,6 @@ def calibrate_timebase(
     from benchfit.capture.calibration import TimebaseCalibration, estimate_timebase, save_profile, utc_now_iso
 
     f_ref = parse_value(frequency, "--frequency")
-    if f_ref <= 0:
-        fail(f"--frequency: {frequency!r} must be a positive frequency in Hz — e.g. --frequency 1000")
     u_ref = parse_value(frequency_u, "--frequency-u") if frequency_u is not None else 0.0
     prof = _load_or_new(profile)
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:

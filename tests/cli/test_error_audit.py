@@ -358,6 +358,8 @@ CASES = [
       r"^error: --rms: '-1' must be positive — ", "--rms"),
     C("calibrate-rms-u-too-big", "calibrate gain {good} --rms 0.35 --rms-u 1 --profile audit", 2,
       r"^error: --rms-u: '1' V is not smaller than the reading 0\.35 V — ", "--rms-u"),
+    C("calibrate-timebase-frequency-zero", "calibrate timebase {good} --frequency 0 --profile audit", 2,
+      r"^error: --frequency: '0' must be positive — give a number above zero after --frequency$", "--frequency"),
     C("calibrate-timebase-nyquist", "calibrate timebase {good} --frequency 30k --profile audit", 2,
       r"^error: --frequency: 30000\.0 Hz must be positive and below half the sample rate \(24000 Hz\) — "
       r"check --frequency, or record at a higher sample rate \(--rate\)$", "--frequency"),
