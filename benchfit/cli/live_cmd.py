@@ -384,6 +384,10 @@ def _calibration_source(file: Optional[Path], do_record: bool, seconds: Optional
             fail("--seconds: missing — --record needs the recording length, e.g. --seconds 5")
         _seconds(seconds)
         target = file if file is not None else Path(tmp) / "calibration.wav"
+        if file is not None and (file.exists() or file.suffix.lower() != ".wav"):
+            # refused here rather than by the recorder, so that no caution precedes the error line
+            fail(f"{file}: {'already exists' if file.exists() else 'recordings are WAV files'} — give a new "
+                 "name ending in .wav, or leave FILE out to record into a scratch file")
         from benchfit.capture.devices import check_input
 
         r, dev = _rate(rate), _device(device)

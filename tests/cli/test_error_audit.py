@@ -369,6 +369,9 @@ CASES = [
       r"^error: --seconds: -2\.0 must be a positive number of seconds — e\.g\. --seconds 10$", "--seconds"),
     C("calibrate-record-channels-3", "calibrate gain --record --seconds 1 --channels 3 --rms 0.35 --profile audit",
       2, r"^error: --channels '3': must be 2 or less" + HELP.format("calibrate gain "), "--channels"),
+    C("calibrate-record-onto-existing", "calibrate gain {existing_wav} --record --seconds 1 --rms 0.35 --profile audit",
+      2, r": already exists — give a new name ending in \.wav, or leave FILE out to record into a scratch file$",
+      "existing_wav"),
     # the safety paragraph comes only once the device is accepted: a refused device is one line
     C("calibrate-record-no-such-device",
       "calibrate gain --record --seconds 1 --rms 0.35 --profile audit --device no-such-device-7f3", 3,
