@@ -30,6 +30,13 @@ def _load(area: str):
     return module
 
 
+def _as_the_cli() -> None:
+    """One BLAS thread, as `benchfit measure`/`report` ask for before numpy loads (see
+    benchfit.cli.batch.prefer_one_blas_thread): core times then match what the commands do."""
+    for name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS"):
+        os.environ.setdefault(name, "1")
+
+
 def main(argv: list[str]) -> int:
     areas = argv or list(AREAS)
     unknown = [a for a in areas if a not in AREAS]
@@ -50,4 +57,5 @@ def main(argv: list[str]) -> int:
 
 
 if __name__ == "__main__":
+    _as_the_cli()
     raise SystemExit(main(sys.argv[1:]))
