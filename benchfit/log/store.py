@@ -151,6 +151,37 @@ def _finite(v: Any) -> float | None:
 
 # --- opening -----------------------------------------------------------------------------
 
+class _EmptyNewLog(Exception):
+    """The file is an SQLite database with nothing in it yet: a log being created."""
+
+
+def _read_schema(path: Path, uri: str) -> int | None:
+    """Schema version of the log at ``uri`` (read-only); LogError when it is not benchfit's."""
+    try:
+        con = sqlite3.connect(uri, uri=True, timeout=_BUSY_TIMEOUT_S)
+    except sqlite3.OperationalError:
+        raise
+    except sqlite3.Error as e:
+        raise LogError(f"{path}: cannot open the log ({e}) — check the path and permissions") from e
+    try:
+        app_id = con.execute("PRAGMA application_id").fetchone()[0]
+        tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
+        if app_id == 0 and not tables:
+            # an empty database: a log another process has just created and not yet set up
+            raise _EmptyNewLog
+        if app_id != APPLICATION_ID or "benchfit_schema" not in tables:
+            raise LogError(f"{path}: not a benchfit measurement log — give another path with --log "
+                           "or BENCHFIT_LOG (this file was left untouched)")
+        return con.execute("SELECT MAX(version) FROM benchfit_schema").fetchone()[0]
+    except sqlite3.OperationalError:
+        raise
+    except sqlite3.DatabaseError as e:
+        raise LogError(f"{path}: not a benchfit measurement log ({e}) — give another path with --log "
+                       "or BENCHFIT_LOG (this file was left untouched)") from e
+    finally:
+        con.close()
+
+
 def _inspect(path: Path) -> int | None:
     """Schema version of an existing benchfit log, None for an empty new file; never writes.
 
@@ -159,25 +190,19 @@ def _inspect(path: Path) -> int | None:
     if path.stat().st_size == 0:
         return None
     uri = f"{path.resolve().as_uri()}?mode=ro"
-    try:
-        con = sqlite3.connect(uri, uri=True, timeout=_BUSY_TIMEOUT_S)
-    except sqlite3.Error as e:
-        raise LogError(f"{path}: cannot open the log ({e}) — check the path and permissions") from e
-    try:
-        app_id = con.execute("PRAGMA application_id").fetchone()[0]
-        tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
-        if app_id == 0 and not tables:
-            # an empty database: a log another process has just created and not yet set up
+    for attempt in range(_RETRIES * 4):
+        try:
+            version = _read_schema(path, uri)
+            break
+        except sqlite3.OperationalError as e:
+            # locked, busy, or caught while another process creates the log and switches it
+            # to WAL: not a verdict on the file — wait and look again
+            if attempt == _RETRIES * 4 - 1:
+                raise LogError(f"{path}: cannot read the log ({e}) — another program may hold it; "
+                               "try again") from e
+            time.sleep(0.05 * (attempt + 1))
+        except _EmptyNewLog:
             return None
-        if app_id != APPLICATION_ID or "benchfit_schema" not in tables:
-            raise LogError(f"{path}: not a benchfit measurement log — give another path with --log "
-                           "or BENCHFIT_LOG (this file was left untouched)")
-        version = con.execute("SELECT MAX(version) FROM benchfit_schema").fetchone()[0]
-    except sqlite3.DatabaseError as e:
-        raise LogError(f"{path}: not a benchfit measurement log ({e}) — give another path with --log "
-                       "or BENCHFIT_LOG (this file was left untouched)") from e
-    finally:
-        con.close()
     if version is None or version > SCHEMA_VERSION:
         raise LogError(f"{path}: log schema version {version} is newer than this benchfit understands "
                        f"({SCHEMA_VERSION}) — upgrade benchfit")
@@ -207,6 +232,24 @@ def _migrate(con: sqlite3.Connection, current: int | None) -> None:
     except BaseException:
         con.execute("ROLLBACK")
         raise
+
+
+def _set_wal(con: sqlite3.Connection) -> None:
+    """Switch the log to WAL mode (once per file), retrying while another process holds it.
+
+    Changing the journal mode needs an exclusive lock, and SQLite may answer "locked" at once
+    instead of waiting for the busy timeout while a second process creates the same log.
+    """
+    for attempt in range(_RETRIES * 4):
+        try:
+            if str(con.execute("PRAGMA journal_mode").fetchone()[0]).lower() == "wal":
+                return
+            con.execute("PRAGMA journal_mode = WAL")
+            return
+        except sqlite3.OperationalError as e:
+            if ("locked" not in str(e) and "busy" not in str(e)) or attempt == _RETRIES * 4 - 1:
+                raise
+            time.sleep(0.05 * (attempt + 1))
 
 
 def _begin(con: sqlite3.Connection) -> None:
@@ -251,7 +294,7 @@ def open_log(path: str | Path, *, create: bool = True) -> sqlite3.Connection:
             p.parent.mkdir(parents=True, exist_ok=True)
         con = sqlite3.connect(str(p), timeout=_BUSY_TIMEOUT_S, isolation_level=None)
         con.execute(f"PRAGMA busy_timeout = {int(_BUSY_TIMEOUT_S * 1000)}")
-        con.execute("PRAGMA journal_mode = WAL")
+        _set_wal(con)
         con.execute("PRAGMA foreign_keys = ON")
         _migrate(con, current)
     except sqlite3.Error as e:
