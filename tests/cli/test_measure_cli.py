@@ -7,7 +7,6 @@ import math
 import os
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import numpy as np
@@ -128,13 +127,11 @@ def test_sample_rate_option_reaches_the_csv_reader(tmp_path, run):
     assert ch["vrms"] == pytest.approx(1.5 / math.sqrt(2), rel=1e-5)  # 6-decimal printing, 40 periods
 
 
-def test_help_states_h_and_is_quick():
-    t0 = time.perf_counter()
+def test_help_states_h():
+    # (its start-up time is a speed figure: scripts/bench_measure.py measures it)
     res = _run_subprocess("measure", "--help")
-    elapsed = time.perf_counter() - t0
     assert res.returncode == 0
     assert "2…H" in res.stdout and "default 10" in res.stdout
-    assert elapsed < 10.0  # generous: a loaded 2-core CI box; scripts/bench_measure.py measures it
 
 
 def test_measure_file_is_a_picklable_top_level_job(wavs):

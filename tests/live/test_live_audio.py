@@ -169,10 +169,8 @@ def test_tune_plain_reports_the_played_frequency(rig, tmp_path):
     """`tune --plain --updates 5` prints five lines with the played frequency and the right hint."""
     player = rig.play(write_tone(tmp_path / "play.wav", 10.0, [(50.13, 0.3)]))
     try:
-        t0 = time.monotonic()
         r = rig.benchfit("tune", "--target", "50", "--plain", "--updates", "5", "--device", "pulse",
                          "--tolerance", "0.25")
-        elapsed = time.monotonic() - t0
     finally:
         stop(player)
     assert r.returncode == 0, r.stderr
@@ -190,7 +188,7 @@ def test_tune_plain_reports_the_played_frequency(rig, tmp_path):
     # stale windows, so a gap is a whole number of hops
     steps = np.diff(times) / 0.25
     assert np.all(steps >= 1 - 1e-9) and np.allclose(steps, np.round(steps), atol=1e-9)
-    assert elapsed < 10  # 1 s to fill the window + 4 hops + start-up
+    # (the update rate itself is a speed figure: scripts/bench_live.py measures it)
 
 
 def test_device_errors_exit_3_with_one_line(rig, tmp_path):

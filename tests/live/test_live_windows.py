@@ -107,21 +107,6 @@ def test_analyse_window_without_a_tone():
         analyse_window(np.zeros(4800), FS, 50.0)
 
 
-def test_analyse_window_is_fast_enough_for_four_updates_a_second():
-    """1 s at 48 kHz must analyse well inside the 0.25 s hop. Process CPU time is measured, not wall
-    time, so other jobs sharing the machine do not make the check flaky."""
-    import time
-
-    rng = np.random.default_rng(4)
-    x = 0.4 * _pulse_train(50.0, 0.45, 48000, FS, kmax=200) + 1e-3 * rng.standard_normal(48000)
-    analyse_window(x, FS, 50.0)  # warm-up (imports)
-    t0 = time.process_time()
-    for _ in range(3):
-        analyse_window(x, FS, 50.0)
-    per = (time.process_time() - t0) / 3
-    assert per < 0.2  # 0.25 s hop minus margin for the capture thread and the display
-
-
 def test_previous_reading_seed_is_used_only_when_close():
     rng = np.random.default_rng(1057)
     t = np.arange(48000) / FS
