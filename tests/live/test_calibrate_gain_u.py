@@ -19,7 +19,6 @@ import benchfit
 from benchfit.capture.calibration import (DEFAULT_METER_HALF_WIDTH_REL, CalibrationProfile, ChannelGain,
                                           combine_gain_u_rel, load_profile, profile_path, save_profile)
 from benchfit.capture.sidecar import write_sidecar
-from benchfit.cli import main
 
 FS = 48000
 RMS = 0.5 / math.sqrt(2)  # the meter reading that makes channel 1 exactly 1 V/FS
@@ -30,15 +29,7 @@ def _config(tmp_path, monkeypatch):
     monkeypatch.setenv("BENCHFIT_CONFIG_DIR", str(tmp_path / "cfg"))
 
 
-def run(args, capsys):
-    """Run the CLI in-process; return (exit code, stdout, stderr)."""
-    try:
-        main([str(a) for a in args])
-        code = 0
-    except SystemExit as e:
-        code = e.code if isinstance(e.code, int) else (0 if e.code is None else 2)
-    out = capsys.readouterr()
-    return code, out.out, out.err
+from conftest import run_cli as run  # noqa: E402  (shared in-process runner)
 
 
 def _sine_wav(path, channels=1, seed=3):

@@ -11,7 +11,6 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from benchfit.cli import main
 
 FS = 48000
 
@@ -21,15 +20,7 @@ def _config(tmp_path, monkeypatch):
     monkeypatch.setenv("BENCHFIT_CONFIG_DIR", str(tmp_path / "cfg"))
 
 
-def run(args, capsys):
-    """Run the CLI; return (exit code, stdout, stderr)."""
-    try:
-        main([str(a) for a in args])
-        code = 0
-    except SystemExit as e:
-        code = e.code if isinstance(e.code, int) else (0 if e.code is None else 2)
-    out = capsys.readouterr()
-    return code, out.out, out.err
+from conftest import run_cli as run  # noqa: E402  (shared in-process runner)
 
 
 def _sine_wav(path, f=1000.0, a=0.5, seconds=1.0, ppm=0.0, seed=1, channels=1):
