@@ -21,8 +21,9 @@ sound card (at one input-level setting) was found to do:
 Profiles act through the sidecar: ``record`` copies the profile's values into the
 sidecar, and ``load`` applies them. Raw samples are never rewritten.
 
-The module has two halves: pure estimators (arrays in, frozen dataclasses out) and the
-profile store (TOML read with :mod:`tomllib`, written with :mod:`tomli_w`, atomically).
+The pure estimators (arrays in, frozen dataclasses out) are in
+:mod:`benchfit.measurement.calibration` and re-exported here; this module is the profile
+store (TOML read with :mod:`tomllib`, written with :mod:`tomli_w`, atomically).
 """
 
 from __future__ import annotations
@@ -40,7 +41,11 @@ from typing import Any
 import numpy as np
 
 from benchfit.capture.capture import InputCalibration
-from benchfit.errors import CaptureError, MeasureError
+from benchfit.errors import CaptureError
+# the pure estimators live with the other computations; re-exported here for the CLI and tests
+from benchfit.measurement.calibration import (CLIP_FS, DEFAULT_METER_HALF_WIDTH_REL, GainEstimate,
+                                              TimebaseEstimate, combine_gain_u_rel, default_meter_u,
+                                              estimate_coupling, estimate_gain, estimate_timebase)
 
 __all__ = [
     "ENV_CONFIG_DIR",
@@ -73,16 +78,7 @@ __all__ = [
 ENV_CONFIG_DIR = "BENCHFIT_CONFIG_DIR"
 #: version number written as ``benchfit_profile`` in every profile file
 PROFILE_VERSION = 1
-#: a sample at or above this magnitude (−0.1 dBFS) counts as clipped
-CLIP_FS = 10.0 ** (-0.1 / 20.0)
 
-#: Half-width of the rectangular distribution assumed for a meter's AC voltage reading when
-#: the user states no uncertainty: ±0.5 % of the reading, about the AC accuracy of a
-#: 3½-digit handheld meter on its best range at 50 Hz–400 Hz (common practice, no source).
-#: As a rectangular distribution its standard uncertainty is 0.5 %/√3 ≈ 0.29 % of the
-#: reading (GUM, JCGM 100:2008 4.3.7). Give the meter's real figure whenever it is known,
-#: and mind that many handheld meters are specified only up to a few hundred hertz.
-DEFAULT_METER_HALF_WIDTH_REL = 0.005
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 
@@ -342,228 +338,6 @@ def _coupling_from(d: Any) -> CouplingCalibration:
         raise ValueError("[coupling] must be a table")
     return CouplingCalibration(tau_s=_number(d, "tau_s", positive=True), channel=_channel(d),
                                source=_text(d, "source"), measured_utc=_text(d, "measured_utc"))
-
-
-# --------------------------------------------------------------------------------------
-# pure estimators
-# --------------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class GainEstimate:
-    """Result of :func:`estimate_gain`.
-
-    Attributes
-    ----------
-    v_per_fs, u_v_per_fs : float
-        Gain (V/FS) and its standard uncertainty from the fit (V/FS).
-    rms_fs : float
-        RMS of the fitted fundamental in full-scale units (FS).
-    frequency_hz : float
-        Frequency of the fitted sine (Hz, on the nominal sample rate).
-    residual_pct : float
-        RMS of what the sine does not explain, relative to the sine's RMS (%).
-    """
-
-    v_per_fs: float
-    u_v_per_fs: float
-    rms_fs: float
-    frequency_hz: float
-    residual_pct: float
-
-
-@dataclass(frozen=True)
-class TimebaseEstimate:
-    """Result of :func:`estimate_timebase`.
-
-    Attributes
-    ----------
-    ppm, u_ppm : float
-        Clock error (positive = fast) and its standard uncertainty (ppm).
-    measured_hz, measured_u_hz : float
-        The tone's frequency on the nominal sample rate and its standard uncertainty (Hz).
-    """
-
-    ppm: float
-    u_ppm: float
-    measured_hz: float
-    measured_u_hz: float
-
-
-def _fit_sine(x: np.ndarray, fs: float, what: str):
-    from benchfit.measurement.tone import fit_tone
-
-    x = np.asarray(x, dtype=np.float64)
-    if x.ndim != 1 or x.size < 64:
-        raise MeasureError(f"{what}: need at least 64 samples of one channel, got shape {x.shape} — record longer")
-    peak = float(np.max(np.abs(x)))
-    if peak >= CLIP_FS:
-        raise MeasureError(
-            f"{what}: the input reaches {20 * math.log10(peak):.2f} dBFS (clipped) — "
-            "lower the level (attenuator or input gain) and record again")
-    fit = fit_tone(x, fs, n_harmonics=1)
-    if fit is None or not fit.converged or fit.frequency_u_hz is None:
-        raise MeasureError(f"{what}: no steady tone found — feed a sine and record at least a few cycles")
-    amp = float(fit.amplitudes[0])
-    if amp < 1e-4:
-        raise MeasureError(
-            f"{what}: the tone is only {20 * math.log10(max(amp, 1e-12)):.1f} dBFS — raise the level to "
-            "between −20 and −1 dBFS")
-    return fit, amp
-
-
-def estimate_gain(x: np.ndarray, sample_rate: float, rms_known_v: float,
-                  what: str = "gain") -> GainEstimate:
-    """Volts per full-scale unit from a sine of known RMS voltage.
-
-    Parameters
-    ----------
-    x : ndarray
-        Raw samples of one channel in full-scale units (FS), no gain applied.
-    sample_rate : float
-        Nominal sample rate (Hz).
-    rms_known_v : float
-        RMS voltage of the sine as read on a meter (V).
-    what : str
-        Name used in error messages (file and channel).
-
-    Returns
-    -------
-    GainEstimate
-        ``v_per_fs = rms_known_v / (A/√2)`` where A is the fitted fundamental's peak (FS).
-
-    Raises
-    ------
-    MeasureError
-        Clipped input, no tone, a tone too weak, or a waveform that is not a sine
-        (more than 10 % of its RMS unexplained).
-    """
-    if not (math.isfinite(rms_known_v) and rms_known_v > 0):
-        raise MeasureError(f"--rms: must be a positive voltage, got {rms_known_v!r} — the meter's RMS "
-                           "reading in V, e.g. 0.775")
-    fit, amp = _fit_sine(x, sample_rate, what)
-    rms_fs = amp / math.sqrt(2.0)
-    residual_pct = 100.0 * fit.residual_rms / rms_fs
-    if residual_pct > 10.0:
-        raise MeasureError(
-            f"{what}: the signal is not a clean sine ({residual_pct:.1f} % of its RMS is not the fundamental) — "
-            "feed a sine from a generator for the gain calibration")
-    u_amp = float(fit.amplitudes_u[0])
-    gain = rms_known_v / rms_fs
-    return GainEstimate(v_per_fs=gain, u_v_per_fs=gain * u_amp / amp, rms_fs=rms_fs,
-                        frequency_hz=fit.frequency_hz, residual_pct=residual_pct)
-
-
-def default_meter_u(rms_known_v: float) -> float:
-    """Standard uncertainty (V) assumed for a meter reading of ``rms_known_v`` volts RMS.
-
-    ``rms_known_v · DEFAULT_METER_HALF_WIDTH_REL / √3``: a rectangular distribution of
-    half-width 0.5 % of the reading (GUM, JCGM 100:2008 4.3.7; the 0.5 % is common
-    practice, no source).
-    """
-    return abs(rms_known_v) * DEFAULT_METER_HALF_WIDTH_REL / math.sqrt(3.0)
-
-
-def combine_gain_u_rel(v_per_fs: float, u_v_per_fs: float, rms_known_v: float, rms_u_v: float) -> float:
-    """Relative standard uncertainty of a gain ``V/FS = rms_known / rms_fitted``.
-
-    Parameters
-    ----------
-    v_per_fs, u_v_per_fs : float
-        The gain and the standard uncertainty of its fit part (V/FS).
-    rms_known_v : float
-        The meter reading (V RMS).
-    rms_u_v : float
-        Standard uncertainty of the meter reading (V).
-
-    Returns
-    -------
-    float
-        ``√((u_fit/gain)² + (u_meter/rms_known)²)``, dimensionless. For a quotient of
-        uncorrelated inputs the relative uncertainties add in quadrature (GUM,
-        JCGM 100:2008 5.1.2 with sensitivity coefficients ±1 in relative terms).
-
-    Raises
-    ------
-    MeasureError
-        A gain or reading that is not positive, or an uncertainty that is negative or
-        not finite.
-    """
-    if not (math.isfinite(v_per_fs) and v_per_fs > 0 and math.isfinite(rms_known_v) and rms_known_v > 0):
-        raise MeasureError(f"gain: {v_per_fs!r} V/FS from {rms_known_v!r} V — both must be positive numbers")
-    for name, u in (("fit uncertainty", u_v_per_fs), ("--rms-u", rms_u_v)):
-        if not (math.isfinite(u) and u >= 0):
-            raise MeasureError(f"{name}: {u!r} must be a standard uncertainty ≥ 0 — give e.g. 0.3%")
-    return math.hypot(u_v_per_fs / v_per_fs, rms_u_v / rms_known_v)
-
-
-def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
-                      reference_u_hz: float = 0.0, what: str = "timebase") -> TimebaseEstimate:
-    """Sample-clock error from a tone of trusted frequency.
-
-    Parameters
-    ----------
-    x : ndarray
-        Raw samples of one channel (any unit).
-    nominal_rate : float
-        The sample rate the card was asked for (Hz).
-    reference_hz : float
-        The tone's true frequency (Hz).
-    reference_u_hz : float
-        Standard uncertainty of ``reference_hz`` (Hz), added to the budget.
-    what : str
-        Name used in error messages.
-
-    Returns
-    -------
-    TimebaseEstimate
-        ``ppm = (reference_hz / f_meas − 1)·1e6`` with
-        ``u_ppm = 1e6·√((f_ref·u_meas/f_meas²)² + (u_ref/f_meas)²)``.
-
-    Raises
-    ------
-    MeasureError
-        No tone, or a tone more than 1 % away from the reference (wrong frequency given).
-    """
-    if not (math.isfinite(reference_hz) and 0 < reference_hz < nominal_rate / 2):
-        raise MeasureError(
-            f"--frequency: {reference_hz!r} Hz must be positive and below half the sample rate "
-            f"({nominal_rate / 2:g} Hz) — check --frequency, or record at a higher sample rate (--rate)")
-    fit, _ = _fit_sine(x, nominal_rate, what)
-    f_meas = float(fit.frequency_hz)
-    if abs(f_meas / reference_hz - 1.0) > 0.01:
-        raise MeasureError(
-            f"{what}: the tone measures {f_meas:.4f} Hz, not near the reference {reference_hz:g} Hz — "
-            "check --frequency or the generator")
-    u_meas = float(fit.frequency_u_hz)
-    ppm = (reference_hz / f_meas - 1.0) * 1e6
-    u_ppm = 1e6 * math.hypot(reference_hz * u_meas / f_meas ** 2, reference_u_hz / f_meas)
-    return TimebaseEstimate(ppm=ppm, u_ppm=u_ppm, measured_hz=f_meas, measured_u_hz=u_meas)
-
-
-def estimate_coupling(x: np.ndarray, sample_rate: float, what: str = "coupling") -> float:
-    """Time constant (s) of the input high-pass from the droop of a low-frequency square wave.
-
-    The estimator itself is :func:`benchfit.measurement.pulse.estimate_coupling_tau`; this
-    wrapper checks the input and turns "cannot tell" into a one-line MeasureError.
-    """
-    try:
-        from benchfit.measurement import pulse
-    except ImportError as e:
-        raise MeasureError(f"{what}: the pulse measurements are not available in this installation "
-                           "— reinstall benchfit") from e
-    if not hasattr(pulse, "estimate_coupling_tau"):
-        raise MeasureError(f"{what}: this benchfit cannot estimate the coupling time constant yet "
-                           "— update benchfit")
-    x = np.asarray(x, dtype=np.float64)
-    peak = float(np.max(np.abs(x))) if x.size else 0.0
-    if peak >= CLIP_FS:
-        raise MeasureError(
-            f"{what}: the input reaches {20 * math.log10(peak):.2f} dBFS (clipped) — lower the level and record again")
-    result = pulse.estimate_coupling_tau(x, sample_rate)
-    tau = getattr(result, "tau_s", result)
-    if tau is None or not (isinstance(tau, (int, float)) and math.isfinite(tau) and tau > 0):
-        raise MeasureError(
-            f"{what}: no droop could be measured — feed a square wave of 5–20 Hz and record a few seconds")
-    return float(tau)
 
 
 # --------------------------------------------------------------------------------------

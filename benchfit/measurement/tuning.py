@@ -24,7 +24,7 @@ from typing import Any
 
 import numpy as np
 
-from benchfit.capture.calibration import CLIP_FS
+from benchfit.measurement.calibration import CLIP_FS
 from benchfit.errors import MeasureError
 from benchfit.measurement.pulse import pulse_parameters
 from benchfit.measurement.tone import dft_frequency_seed, fit_harmonics

@@ -5,11 +5,7 @@ from __future__ import annotations
 import pytest
 
 
-class CliResult:
-    """Exit code and captured output of one benchfit command."""
-
-    def __init__(self, returncode: int, stdout: str, stderr: str) -> None:
-        self.returncode, self.stdout, self.stderr = returncode, stdout, stderr
+from clirun import CliResult
 
 
 @pytest.fixture

@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import soundfile as sf
-from conftest import CliResult
+from clirun import CliResult
 
 FS = 48000
 

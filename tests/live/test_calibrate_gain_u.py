@@ -29,7 +29,7 @@ def _config(tmp_path, monkeypatch):
     monkeypatch.setenv("BENCHFIT_CONFIG_DIR", str(tmp_path / "cfg"))
 
 
-from conftest import run_cli as run  # noqa: E402  (shared in-process runner)
+from livecli import run_cli as run  # noqa: E402  (shared in-process runner)
 
 
 def _sine_wav(path, channels=1, seed=3):

@@ -20,7 +20,7 @@ def _config(tmp_path, monkeypatch):
     monkeypatch.setenv("BENCHFIT_CONFIG_DIR", str(tmp_path / "cfg"))
 
 
-from conftest import run_cli as run  # noqa: E402  (shared in-process runner)
+from livecli import run_cli as run  # noqa: E402  (shared in-process runner)
 
 
 def _sine_wav(path, f=1000.0, a=0.5, seconds=1.0, ppm=0.0, seed=1, channels=1):
