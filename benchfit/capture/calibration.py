@@ -31,7 +31,6 @@ from __future__ import annotations
 import math
 import os
 import re
-import tempfile
 import tomllib
 from dataclasses import asdict, dataclass, replace
 from datetime import datetime, timezone
@@ -41,6 +40,7 @@ from typing import Any
 import numpy as np
 
 from benchfit.capture.capture import InputCalibration
+from benchfit.capture.fileio import write_text_atomic
 from benchfit.errors import CaptureError
 # the pure estimators live with the other computations; re-exported here for the CLI and tests
 from benchfit.measurement.calibration import (CLIP_FS, DEFAULT_METER_HALF_WIDTH_REL, GainEstimate,
@@ -467,26 +467,13 @@ def save_profile(profile: CalibrationProfile) -> Path:
 
     path = profile_path(profile.name)
     text = tomli_w.dumps(profile.to_toml_dict())
-    tmp: str | None = None
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{profile.name}.", suffix=".toml.tmp", dir=path.parent)
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-        tmp = None
+        write_text_atomic(path, text)
     except OSError as e:
         raise CaptureError(
             f"{path}: profile cannot be written ({e.strerror or e}) — check that the folder is writable "
             f"or set {ENV_CONFIG_DIR}") from e
-    finally:
-        if tmp is not None:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
     return path
 
 

@@ -36,11 +36,11 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from benchfit.capture.fileio import write_text_atomic
 from benchfit.errors import CaptureError
 
 __all__ = ["SIDECAR_VERSION", "sidecar_path", "read_sidecar", "write_sidecar", "validate_sidecar"]
@@ -276,24 +276,10 @@ def write_sidecar(audio_path: str | os.PathLike[str], data: dict[str, Any], over
     if path.exists() and not overwrite:
         raise CaptureError(f"{path}: sidecar already exists — choose another file name or allow overwriting")
     text = json.dumps(clean, indent=2, ensure_ascii=False) + "\n"
-    tmp_name: str | None = None
     try:
-        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".json.tmp", dir=path.parent)
-        os.chmod(tmp_name, 0o644)  # mkstemp makes 0600; a sidecar is ordinary readable data
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp_name, path)
-        tmp_name = None
+        write_text_atomic(path, text)
     except OSError as e:
         raise CaptureError(
             f"{path}: sidecar cannot be written ({e.strerror or e}) — check the folder exists and is writable"
         ) from e
-    finally:
-        if tmp_name is not None:
-            try:
-                os.unlink(tmp_name)
-            except OSError:
-                pass
     return path
