@@ -43,7 +43,7 @@ from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, get_args
 
 __all__ = ["CAPTURE_SUFFIXES", "StartMethod", "JobOutcome", "collect_captures", "default_jobs",
-           "measure_job", "report_job", "unit_serial", "run_jobs", "progress_bar", "prefer_one_blas_thread",
+           "measure_job", "report_job", "unit_serial", "run_jobs", "progress_bar", "BatchProgress", "prefer_one_blas_thread",
            "MEASURE_PRELOAD", "REPORT_PRELOAD"]
 
 #: extensions (lower case) of the files a folder contributes to a batch
@@ -423,8 +423,24 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
     return done
 
 
-def progress_bar(label: str, total: int):
-    """A rich progress bar on stderr for a batch of ``total`` files (transient, one line).
+class BatchProgress:
+    """A running batch's progress bar: :meth:`advance` after each file, :meth:`say` for a line."""
+
+    def __init__(self, progress, task) -> None:
+        self._progress, self._task = progress, task
+
+    def advance(self, name: str) -> None:
+        self._progress.update(self._task, advance=1, description=name)
+
+    def say(self, line: str) -> None:
+        """Print one line on stderr above the bar."""
+        self._progress.console.print(line, markup=False, soft_wrap=True)
+
+
+@contextmanager
+def progress_bar(label: str, total: int, notes: Sequence[str] = ()) -> Iterator[BatchProgress]:
+    """A rich progress bar on stderr for a batch of ``total`` files (transient, one line),
+    after printing each of ``notes`` as a ``note:`` line.
 
     The bar is drawn only when stderr is a terminal. stdout is redirected through the bar
     only when stdout is itself a terminal, so that piped output (``--json > batch.jsonl``)
@@ -435,6 +451,10 @@ def progress_bar(label: str, total: int):
 
     console = Console(stderr=True, highlight=False, soft_wrap=True)
     to_tty = bool(getattr(sys.stdout, "isatty", lambda: False)())
-    return Progress(TextColumn(label), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
-                    TextColumn("{task.description}"), console=console, transient=True,
-                    redirect_stdout=to_tty, redirect_stderr=False, disable=not console.is_terminal)
+    with Progress(TextColumn(label), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                  TextColumn("{task.description}"), console=console, transient=True,
+                  redirect_stdout=to_tty, redirect_stderr=False, disable=not console.is_terminal) as progress:
+        bar = BatchProgress(progress, progress.add_task("", total=total))
+        for note in notes:
+            bar.say(f"note: {note}")
+        yield bar

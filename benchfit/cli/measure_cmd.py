@@ -297,16 +297,13 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
 
     failed: list[str] = []
     run_ids: list[int] = []
-    with progress_bar("measuring", len(paths)) as progress:
-        task = progress.add_task("", total=len(paths))
-        for note in notes:
-            progress.console.print(f"note: {note}", markup=False, soft_wrap=True)
+    with progress_bar("measuring", len(paths), notes) as progress:
 
         def on_outcome(outcome) -> None:
-            progress.update(task, advance=1, description=outcome.path.name)
+            progress.advance(outcome.path.name)
             if not outcome.ok:
                 failed.append(outcome.error)
-                progress.console.print(f"error: {outcome.error}", markup=False, soft_wrap=True)
+                progress.say(f"error: {outcome.error}")
                 return
             run_id = None
             if log_path is not None:

@@ -174,16 +174,13 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     kwargs = {"spec": str(spec), "out_dir": str(out), "fit": fit, "operator": operator,
               "with_log_entry": log_path is not None, "with_figures": with_figures}
     outcomes = []
-    with progress_bar("reporting", len(paths)) as progress:
-        task = progress.add_task("", total=len(paths))
-        for note in notes:
-            progress.console.print(f"note: {note}", markup=False, soft_wrap=True)
+    with progress_bar("reporting", len(paths), notes) as progress:
 
         def on_outcome(outcome) -> None:
-            progress.update(task, advance=1, description=outcome.path.name)
+            progress.advance(outcome.path.name)
             outcomes.append(outcome)
             if not outcome.ok:
-                progress.console.print(f"error: {outcome.error}", markup=False, soft_wrap=True)
+                progress.say(f"error: {outcome.error}")
                 return
             r = outcome.result
             entry = r.pop("log_entry", None)
