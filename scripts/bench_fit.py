@@ -35,7 +35,7 @@ def _median_time(fn, repeats: int) -> tuple[float, object]:
 
 def _captures():
     from benchfit.capture.capture import Capture
-    from benchfit.fit.circuits import LowpassParts, simulate
+    from benchfit.model.filter import LowpassParts, simulate
 
     rng = np.random.default_rng(2026)
     parts = LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3)  # hum-check filter, 12 V drive
@@ -56,7 +56,7 @@ def _captures():
 
 
 def run(repeats: int = 5) -> list[dict]:
-    from benchfit.fit.circuits import second_order
+    from benchfit.model.filter import second_order
     from benchfit.fit.lowpass import fit_lowpass
     from benchfit.fit.ringdown import fit_ringdown
 

@@ -1,7 +1,7 @@
 """L-C low-pass that turns the timer's rectangular wave into a sine: parts and expected output.
 
 The circuit and its response are those of the fit's ``lc-lowpass`` model
-(:mod:`benchfit.fit.circuits`: drive → Rs → L → out; C in series with Resr to ground; Rload
+(:mod:`benchfit.model.filter`: drive → Rs → L → out; C in series with Resr to ground; Rload
 across the output); this module never writes a second copy of the model. The filter is
 usually tuned: its resonance f0 = ω0/2π, from the characteristic polynomial
 (ω0² = a0/a2, i.e. 1/(2π√(LC)) for an unloaded filter without ESR) is put at the drive
@@ -39,15 +39,15 @@ def _pos(value: float | None, name: str, *, zero_ok: bool = False) -> float:
 
 
 def _parts(L: float, C: float, rs: float, esr: float, load: float | None):
-    from benchfit.fit.circuits import LowpassParts
+    from benchfit.model.filter import LowpassParts
 
     return LowpassParts(L=L, C=C, Rs=rs, Resr=esr, Rload=math.inf if load is None else load)
 
 
 def resonant_frequency(L: float, C: float, *, rs_ohm: float = 0.0, esr_ohm: float = 0.0,
                        load_ohm: float | None = None) -> float:
-    """Resonant frequency f0 (Hz) of the lc-lowpass model, √(a0/a2)/2π (see :mod:`benchfit.fit.circuits`)."""
-    from benchfit.fit.circuits import coefficients
+    """Resonant frequency f0 (Hz) of the lc-lowpass model, √(a0/a2)/2π (see :mod:`benchfit.model.filter`)."""
+    from benchfit.model.filter import coefficients
 
     _, a = coefficients(_parts(_pos(L, "inductance"), _pos(C, "capacitance"), rs_ohm, esr_ohm, load_ohm))
     return math.sqrt(float(a[2]) / float(a[0])) / (2 * math.pi)
@@ -113,7 +113,7 @@ def rectangular_response(parts, drive_hz: float, *, duty: float = 0.5, amplitude
 
     Parameters
     ----------
-    parts : benchfit.fit.circuits.LowpassParts
+    parts : benchfit.model.filter.LowpassParts
         The filter.
     drive_hz : float
         Drive frequency (Hz).
@@ -124,7 +124,7 @@ def rectangular_response(parts, drive_hz: float, *, duty: float = 0.5, amplitude
     n_harmonics : int
         Highest harmonic K used (≥ 2).
     """
-    from benchfit.fit.circuits import rectangular_phasors, transfer
+    from benchfit.model.filter import rectangular_phasors, transfer
 
     f = _pos(drive_hz, "frequency")
     a = _pos(amplitude_v, "amplitude")
@@ -236,7 +236,7 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
         Options: the exact nominal part, the nearest series values below and above, and the
         best two-part combination, each with f0, Q and the predicted output.
     """
-    from benchfit.fit.circuits import second_order
+    from benchfit.model.filter import second_order
 
     f = _pos(frequency_hz, "frequency")
     name = check_series(series)

@@ -1,7 +1,7 @@
 """Trim advice: from a unit's fitted effective values to the one part to change.
 
 Filter (capacitor) trim. With every other part unchanged the lc-lowpass model's resonance
-goes as f0 ∝ 1/√C (ω0² = a0/a2, :mod:`benchfit.fit.circuits`), so moving f0 to the target F
+goes as f0 ∝ 1/√C (ω0² = a0/a2, :mod:`benchfit.model.filter`), so moving f0 to the target F
 needs C_new = C·(f0/F)², a change ΔC = C_new − C. After adding ΔC' (the parts actually
 fitted in) the predicted resonance is f_new = f0·√(C/(C + ΔC')).
 

@@ -27,7 +27,7 @@ from typing import Callable, Mapping
 
 import numpy as np
 
-from benchfit.fit.circuits import PARAMETER_NAMES, LowpassParts, second_order
+from benchfit.model.filter import PARAMETER_NAMES, LowpassParts, second_order
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitParameter
 
 __all__ = ["Identification", "identify", "fit_log_parameters", "numeric_jacobian",

@@ -11,7 +11,7 @@ two-channel
     whitened complex residuals. A drive whose harmonics explain less than 90 % of its
     variance is not periodic and is refused — unless ``time_domain=True``.
     ``time_domain=True`` refines the parts by simulating the output from the measured drive
-    samples (exact discretisation, :func:`benchfit.fit.circuits.simulate`) with the initial
+    samples (exact discretisation, :func:`benchfit.model.filter.simulate`) with the initial
     state and an output offset solved linearly at each step. For a drive far from periodic
     the start comes instead from the cross-spectral estimate H = P_xy/P_xx (Welch).
 one-channel
@@ -39,7 +39,7 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.fit.circuits import (PARAMETER_NAMES, LowpassParts, free_response_basis, second_order,
+from benchfit.model.filter import (PARAMETER_NAMES, LowpassParts, free_response_basis, second_order,
                                    simulate, transfer)
 from benchfit.fit.identify import (Identification, ambiguity, correlations, derived_values,
                                    parameter_table, solve, undetermined_warning)

@@ -25,7 +25,7 @@ from typing import Mapping
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.fit.circuits import LowpassParts, rectangular_phasors, transfer
+from benchfit.model.filter import LowpassParts, rectangular_phasors, transfer
 from benchfit.fit.lowpass import (MAX_ORDER, SIGNIFICANCE, assemble, check_not_silent, complex_mult_cov,
                                   noise_rescaled, quality_complex, solve, source_name, start_parts, whiten,
                                   whitening)

@@ -11,7 +11,7 @@ import pytest
 from benchfit.design.filter import (design_filter, part_for_resonance, rectangular_response,
                                     resonant_frequency)
 from benchfit.errors import DesignError
-from benchfit.fit.circuits import LowpassParts
+from benchfit.model.filter import LowpassParts
 
 
 def test_resonance_check_values():

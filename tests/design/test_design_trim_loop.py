@@ -64,7 +64,7 @@ wrdata {out.name} v(drive) v(out)
 def test_capacitor_trim_lands_in_the_predicted_interval(tmp_path):
     import benchfit
     from benchfit.design.trim import suggest_trim
-    from benchfit.fit.circuits import LowpassParts, second_order
+    from benchfit.model.filter import LowpassParts, second_order
 
     before = benchfit.fit_lowpass(simulate(tmp_path, BANK_ACTUAL, "as_found"), fix={"Rload": RLOAD})
     f0 = before.derived["resonant_frequency_hz"].value

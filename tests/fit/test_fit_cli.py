@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from benchfit.fit.circuits import LowpassParts, simulate
+from benchfit.model.filter import LowpassParts, simulate
 
 FS = 20000.0
 PARTS = LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3)

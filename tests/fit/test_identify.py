@@ -1,7 +1,7 @@
 """What the data determine, the JSON contract, and bad input to fit_lowpass.
 
 Synthetic captures are made with benchfit's own exact simulation (checked against scipy in
-test_circuits.py) plus seeded noise; these tests are about behaviour (which parts are
+tests/model/test_model_filter.py) plus seeded noise; these tests are about behaviour (which parts are
 reported as determined, which warnings appear), not about accuracy against an outside tool
 (that is test_lowpass_ngspice.py).
 """
@@ -15,7 +15,7 @@ import pytest
 
 from benchfit.capture.capture import Capture
 from benchfit.errors import FitError
-from benchfit.fit.circuits import LowpassParts, second_order, simulate
+from benchfit.model.filter import LowpassParts, second_order, simulate
 from benchfit.fit.lowpass import fit_lowpass
 from benchfit.fit.result import FitResult
 

@@ -4,7 +4,7 @@ ngspice (an independent circuit simulator) solves the square-driven Rs-L-(C+ESR)
 circuit; the tests add seeded Gaussian noise and require benchfit's fit to return the
 simulator's parts. True resonance figures come from the circuit's characteristic polynomial
 (REFERENCES §6: ω0² = a0/a2, Q = √(a0·a2)/a1), checked against the textbook in
-test_circuits.py.
+tests/model/test_model_filter.py.
 
 Noise: 5 mV rms on the 12 V drive and 2 mV rms on the output (a sound-card-like floor,
 about −70 dB re the drive). With 0.6 s records (30…72 periods) the fits' own standard
@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 
 from benchfit.capture.capture import Capture
-from benchfit.fit.circuits import LowpassParts, second_order
+from benchfit.model.filter import LowpassParts, second_order
 from benchfit.fit.lowpass import fit_lowpass
 
 from fitspice import Circuit, simulate_square

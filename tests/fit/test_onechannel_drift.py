@@ -9,7 +9,7 @@ import math
 import numpy as np
 
 from benchfit.capture.capture import Capture, InputCalibration
-from benchfit.fit.circuits import LowpassParts, rectangular_phasors, second_order, transfer
+from benchfit.model.filter import LowpassParts, rectangular_phasors, second_order, transfer
 from benchfit.fit.lowpass import fit_lowpass
 from benchfit.fit.onechannel import true_fundamental
 

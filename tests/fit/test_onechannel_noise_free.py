@@ -25,7 +25,7 @@ def _filtered_square(seconds: float = 1.0, amplitude: float = 0.4) -> np.ndarray
     Square wave: x(t) = Σ_{k odd} (4A/(kπ))·sin(kωt) (Fourier series of a square wave, any
     circuit-theory textbook). Filter: the series-shunt divider H = Z_sh/(Rs + jωL + Z_sh) with
     Z_sh = (Resr + 1/(jωC)) ∥ Rload (textbook voltage divider, written out here independently of
-    benchfit.fit.circuits).
+    benchfit.model.filter).
     """
     t = np.arange(int(seconds * FS)) / FS
     y = np.zeros_like(t)

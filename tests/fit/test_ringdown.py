@@ -16,7 +16,7 @@ import pytest
 
 from benchfit.capture.capture import Capture
 from benchfit.errors import FitError
-from benchfit.fit.circuits import LowpassParts, second_order, simulate
+from benchfit.model.filter import LowpassParts, second_order, simulate
 from benchfit.fit.ringdown import fit_ringdown
 
 from fitspice import Circuit, simulate_square

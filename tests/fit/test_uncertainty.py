@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from benchfit.capture.capture import Capture
-from benchfit.fit.circuits import LowpassParts, simulate
+from benchfit.model.filter import LowpassParts, simulate
 from benchfit.fit.lowpass import fit_lowpass, noise_rescaled
 from benchfit.measurement.tone import fit_harmonics
 

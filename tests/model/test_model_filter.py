@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from benchfit.fit.circuits import (LowpassParts, coefficients, discretize, free_response_basis,
+from benchfit.model.filter import (LowpassParts, coefficients, discretize, free_response_basis,
                                    rectangular_phasors, second_order, simulate, state_space, transfer)
 
 
