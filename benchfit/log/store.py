@@ -1,121 +1,44 @@
-"""The measurement log: an SQLite database of runs, captures, results and decisions.
+"""The measurement log: runs, captures, results and decisions, in SQLite or PostgreSQL.
 
-Layout (schema version 1)::
+This module is the log's public face; the commands and the report use only it.
 
-    benchfit_schema(version, applied_utc)          one row per applied migration
-    units(id, serial UNIQUE, first_seen_utc)
-    runs(id, unit_id → units, command, time_utc, operator, benchfit_version, verdict, details_json)
-    captures(id, run_id → runs, role, path, sha256, metadata_json)
-    results(id, run_id → runs, capture_id → captures, role, source, channel, quantity,
-            value, uncertainty, unit)               uncertainty = standard uncertainty (k = 1)
-    decisions(id, run_id → runs, quantity, channel, label, value, expanded_u, lower, upper,
-              unit, rule, decision, note)           expanded_u = U (k = 2)
+- Schema and migrations (one definition for both backends): :mod:`benchfit.log.schema`.
+- The SQL every backend shares: :mod:`benchfit.log.base`.
+- Backends: :mod:`benchfit.log.sqlite` (a file), :mod:`benchfit.log.postgres` (a server).
+- The spool for runs written while the server is away: :mod:`benchfit.log.spool`.
 
-The file carries ``PRAGMA application_id`` = :data:`APPLICATION_ID` so a foreign SQLite
-file is recognised. Before anything is written the file is inspected through a read-only
-connection: a file that is not a benchfit log gives one :class:`~benchfit.errors.LogError`
-line and is never modified (an empty file, or an SQLite database with no tables at all, is
-taken as a new log: that is also what a log just created by another process looks like).
-The journal is WAL; each run is one ``BEGIN IMMEDIATE``
-transaction, so a process killed mid-write leaves every committed run intact. Writers wait
-on a busy database (``busy_timeout``) and retry the transaction a few times.
-Structured blobs are JSON (never pickle).
+Where the log lives: ``--log PATH|URL``, else the ``BENCHFIT_LOG`` environment variable,
+else ``platformdirs.user_data_dir("benchfit")/log.sqlite`` (:func:`default_log_path`). A value
+that starts with ``postgresql:`` or ``postgres:`` names a server (:class:`LogURL`) and never
+becomes a file; any other ``scheme://`` value is refused; everything else is a file path.
 
-Where the log lives: ``--log PATH``, else the ``BENCHFIT_LOG`` environment variable, else
-``platformdirs.user_data_dir("benchfit")/log.sqlite`` (:func:`default_log_path`).
+Each run carries the name of the bench (station) that took it: :func:`use_bench` (the
+``--bench`` option), else ``BENCHFIT_BENCH``, else the host name.
 """
 
 from __future__ import annotations
 
-import datetime as _dt
-import json
-import math
 import os
-import sqlite3
-import time
+import socket
+import sys
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterable, Mapping, Sequence
 
 from benchfit.errors import LogError
-from benchfit.report.spec import uncertainty_keys
+from benchfit.log.base import LogStore
+from benchfit.log.postgres import LogURL, ServerUnavailable, is_log_url, parse_log_url
+from benchfit.log.records import make_record
+from benchfit.log.schema import SCHEMA_VERSION
+from benchfit.log.sqlite import APPLICATION_ID, SQLiteStore
 
-__all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "default_log_path", "resolve_log_path",
-           "append_run", "list_runs", "get_run", "results_rows", "open_log"]
+__all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "LogURL", "RunId", "MergeSummary", "default_log_path",
+           "resolve_log_path", "as_target", "open_store", "open_log", "append_run", "list_runs", "get_run",
+           "results_rows", "merge_log", "sync_log", "use_bench", "current_bench", "iter_quantities"]
 
-#: PRAGMA application_id of a benchfit log ("bfit" in ASCII)
-APPLICATION_ID = 0x62666974
-#: schema version this code writes
-SCHEMA_VERSION = 1
+LogTarget = Path | LogURL
 
-_BUSY_TIMEOUT_S = 15.0
-_RETRIES = 5
-
-_MIGRATIONS: dict[int, str] = {
-    1: """
-    CREATE TABLE units (
-        id INTEGER PRIMARY KEY,
-        serial TEXT NOT NULL UNIQUE,
-        first_seen_utc TEXT NOT NULL
-    );
-    CREATE TABLE runs (
-        id INTEGER PRIMARY KEY,
-        unit_id INTEGER REFERENCES units(id),
-        command TEXT NOT NULL,
-        time_utc TEXT NOT NULL,
-        operator TEXT,
-        benchfit_version TEXT NOT NULL,
-        verdict TEXT,
-        details_json TEXT NOT NULL DEFAULT '{}'
-    );
-    CREATE INDEX runs_time ON runs(time_utc);
-    CREATE INDEX runs_unit ON runs(unit_id);
-    CREATE TABLE captures (
-        id INTEGER PRIMARY KEY,
-        run_id INTEGER NOT NULL REFERENCES runs(id),
-        role TEXT NOT NULL DEFAULT '',
-        path TEXT,
-        sha256 TEXT,
-        metadata_json TEXT NOT NULL DEFAULT '{}'
-    );
-    CREATE TABLE results (
-        id INTEGER PRIMARY KEY,
-        run_id INTEGER NOT NULL REFERENCES runs(id),
-        capture_id INTEGER REFERENCES captures(id),
-        role TEXT NOT NULL DEFAULT '',
-        source TEXT NOT NULL,
-        channel TEXT,
-        quantity TEXT NOT NULL,
-        value REAL,
-        uncertainty REAL,
-        unit TEXT NOT NULL DEFAULT ''
-    );
-    CREATE INDEX results_quantity ON results(quantity);
-    CREATE TABLE decisions (
-        id INTEGER PRIMARY KEY,
-        run_id INTEGER NOT NULL REFERENCES runs(id),
-        quantity TEXT NOT NULL,
-        channel TEXT,
-        label TEXT,
-        value REAL,
-        expanded_u REAL,
-        lower REAL,
-        upper REAL,
-        unit TEXT NOT NULL DEFAULT '',
-        rule TEXT NOT NULL,
-        decision TEXT NOT NULL,
-        note TEXT NOT NULL DEFAULT ''
-    );
-    """,
-}
-
-# scalar quantities of the measure contract (DESIGN.md) and their unit ("<ch>": the channel's)
-_MEASURED: tuple[tuple[str, str], ...] = (
-    ("frequency_hz", "Hz"), ("amplitude", "<ch>"), ("vdc", "<ch>"), ("vrms", "<ch>"), ("vpp", "<ch>"),
-    ("duty_cycle_pct", "%"), ("rise_time_s", "s"), ("fall_time_s", "s"), ("thd_pct", "%"),
-    ("thd_n_pct", "%"), ("sinad_db", "dB"),
-)
-_DERIVED_UNITS = {"resonant_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
-                  "decay_rate_per_s": "1/s", "q_factor": ""}
+_bench_override: str | None = None
 
 
 def default_log_path() -> Path:
@@ -125,267 +48,134 @@ def default_log_path() -> Path:
     return Path(platformdirs.user_data_dir("benchfit")) / "log.sqlite"
 
 
-def resolve_log_path(option: str | Path | None) -> Path:
-    """The log to use: the ``--log`` value, else ``$BENCHFIT_LOG``, else :func:`default_log_path`."""
-    if option:
-        return Path(option)
-    env = os.environ.get("BENCHFIT_LOG")
-    if env:
-        return Path(env)
-    return default_log_path()
-
-
-def _utc_now() -> str:
-    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
-
-
-def _finite(v: Any) -> float | None:
-    if v is None or isinstance(v, bool):
-        return None
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return None
-    return f if math.isfinite(f) else None
-
-
-# --- opening -----------------------------------------------------------------------------
-
-class _EmptyNewLog(Exception):
-    """The file is an SQLite database with nothing in it yet: a log being created."""
-
-
-def _read_schema(path: Path, uri: str) -> int | None:
-    """Schema version of the log at ``uri`` (read-only); LogError when it is not benchfit's."""
-    try:
-        con = sqlite3.connect(uri, uri=True, timeout=_BUSY_TIMEOUT_S)
-    except sqlite3.OperationalError:
-        raise
-    except sqlite3.Error as e:
-        raise LogError(f"{path}: cannot open the log ({e}) — check the path and permissions") from e
-    try:
-        app_id = con.execute("PRAGMA application_id").fetchone()[0]
-        tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
-        if app_id == 0 and not tables:
-            # an empty database: a log another process has just created and not yet set up
-            raise _EmptyNewLog
-        if app_id != APPLICATION_ID or "benchfit_schema" not in tables:
-            raise LogError(f"{path}: not a benchfit measurement log — give another path with --log "
-                           "or BENCHFIT_LOG (this file was left untouched)")
-        return con.execute("SELECT MAX(version) FROM benchfit_schema").fetchone()[0]
-    except sqlite3.OperationalError:
-        raise
-    except sqlite3.DatabaseError as e:
-        raise LogError(f"{path}: not a benchfit measurement log ({e}) — give another path with --log "
-                       "or BENCHFIT_LOG (this file was left untouched)") from e
-    finally:
-        con.close()
-
-
-def _inspect(path: Path) -> int | None:
-    """Schema version of an existing benchfit log, None for an empty new file; never writes.
-
-    Raises LogError for anything that is not a benchfit log.
-    """
-    if path.stat().st_size == 0:
-        return None
-    uri = f"{path.resolve().as_uri()}?mode=ro"
-    for attempt in range(_RETRIES * 4):
-        try:
-            version = _read_schema(path, uri)
-            break
-        except sqlite3.OperationalError as e:
-            # locked, busy, or caught while another process creates the log and switches it
-            # to WAL: not a verdict on the file — wait and look again
-            if attempt == _RETRIES * 4 - 1:
-                raise LogError(f"{path}: cannot read the log ({e}) — another program may hold it; "
-                               "try again") from e
-            time.sleep(0.05 * (attempt + 1))
-        except _EmptyNewLog:
-            return None
-    if version is None or version > SCHEMA_VERSION:
-        raise LogError(f"{path}: log schema version {version} is newer than this benchfit understands "
-                       f"({SCHEMA_VERSION}) — upgrade benchfit")
-    return int(version)
-
-
-def _migrate(con: sqlite3.Connection, current: int | None) -> None:
-    start = 0 if current is None else current
-    if start >= SCHEMA_VERSION:
-        return
-    _begin(con)
-    try:
-        if current is None:
-            con.execute(f"PRAGMA application_id = {APPLICATION_ID}")
-            con.execute("CREATE TABLE IF NOT EXISTS benchfit_schema "
-                        "(version INTEGER PRIMARY KEY, applied_utc TEXT NOT NULL)")
-        # re-read inside the write lock: another process may have migrated meanwhile
-        row = con.execute("SELECT MAX(version) FROM benchfit_schema").fetchone()
-        have = row[0] or 0
-        for version in range(have + 1, SCHEMA_VERSION + 1):
-            for stmt in _MIGRATIONS[version].split(";"):
-                if stmt.strip():
-                    con.execute(stmt)
-            con.execute("INSERT INTO benchfit_schema(version, applied_utc) VALUES (?, ?)",
-                        (version, _utc_now()))
-        con.execute("COMMIT")
-    except BaseException:
-        con.execute("ROLLBACK")
-        raise
-
-
-def _set_wal(con: sqlite3.Connection) -> None:
-    """Switch the log to WAL mode (once per file), retrying while another process holds it.
-
-    Changing the journal mode needs an exclusive lock, and SQLite may answer "locked" at once
-    instead of waiting for the busy timeout while a second process creates the same log.
-    """
-    for attempt in range(_RETRIES * 4):
-        try:
-            if str(con.execute("PRAGMA journal_mode").fetchone()[0]).lower() == "wal":
-                return
-            con.execute("PRAGMA journal_mode = WAL")
-            return
-        except sqlite3.OperationalError as e:
-            if ("locked" not in str(e) and "busy" not in str(e)) or attempt == _RETRIES * 4 - 1:
-                raise
-            time.sleep(0.05 * (attempt + 1))
-
-
-def _begin(con: sqlite3.Connection) -> None:
-    """BEGIN IMMEDIATE with retries while another writer holds the lock."""
-    for attempt in range(_RETRIES):
-        try:
-            con.execute("BEGIN IMMEDIATE")
-            return
-        except sqlite3.OperationalError as e:
-            if "locked" not in str(e) and "busy" not in str(e):
-                raise
-            if attempt == _RETRIES - 1:
-                raise
-            time.sleep(0.05 * (attempt + 1))
-
-
-def open_log(path: str | Path, *, create: bool = True) -> sqlite3.Connection:
-    """Open (and if needed create or migrate) a benchfit log.
-
-    Parameters
-    ----------
-    path : str or Path
-        The SQLite file.
-    create : bool
-        Create the file when it does not exist; with False a missing file is an error.
+def as_target(value: str | Path | LogURL) -> LogTarget:
+    """A log named by a path or URL, checked: a :class:`LogURL` or a file :class:`Path`.
 
     Raises
     ------
     LogError
-        The file is not a benchfit log, is newer than this code, or cannot be opened.
+        An unknown URL scheme, a malformed URL, a password in the URL, or a URL that an
+        earlier step has already turned into a path (``postgresql:/…``).
     """
-    p = Path(path)
-    if p.is_dir():
-        raise LogError(f"{p}: is a directory — give a file path for the log, e.g. {p / 'log.sqlite'}")
-    exists = p.exists()
-    if not exists and not create:
-        raise LogError(f"{p}: no log file there — run a report (or measure/fit with --log) first, "
-                       "or give the right path with --log")
-    current = _inspect(p) if exists else None
-    try:
-        if not exists:
-            p.parent.mkdir(parents=True, exist_ok=True)
-        con = sqlite3.connect(str(p), timeout=_BUSY_TIMEOUT_S, isolation_level=None)
-        con.execute(f"PRAGMA busy_timeout = {int(_BUSY_TIMEOUT_S * 1000)}")
-        _set_wal(con)
-        con.execute("PRAGMA foreign_keys = ON")
-        _migrate(con, current)
-    except sqlite3.Error as e:
-        raise LogError(f"{p}: cannot use the log ({e}) — check the path, permissions and free space") from e
-    except OSError as e:
-        raise LogError(f"{p}: cannot create the log ({e.strerror}) — check the directory") from e
-    return con
+    if isinstance(value, LogURL):
+        return value
+    if isinstance(value, Path):
+        text = str(value)
+        if is_log_url(text.replace("\\", "/")):
+            raise LogError(f"{text}: a log URL was given as a file path — pass the URL text "
+                           "(postgresql://…), not a path")
+        return value
+    text = str(value)
+    if is_log_url(text):
+        return parse_log_url(text)
+    return Path(text)
 
 
-# --- normalising the inputs ----------------------------------------------------------------
+def resolve_log_path(option: str | Path | LogURL | None) -> LogTarget:
+    """The log to use: the ``--log`` value, else ``$BENCHFIT_LOG``, else :func:`default_log_path`.
 
-def _as_dict(obj: Any, **kwargs: Any) -> dict[str, Any]:
-    if isinstance(obj, Mapping):
-        return dict(obj)
-    to_dict = getattr(obj, "to_dict", None)
-    if to_dict is None:
-        raise LogError(f"append_run: cannot store a {type(obj).__name__} — pass a result object or a dict")
-    try:
-        return to_dict(**kwargs)
-    except TypeError:
-        return to_dict()
-
-
-def _capture_row(obj: Any) -> dict[str, Any]:
-    if isinstance(obj, Mapping):
-        d = dict(obj)
-        return {"role": str(d.get("role", "")), "path": d.get("path") or d.get("source") or d.get("file"),
-                "sha256": d.get("sha256"), "metadata": d.get("metadata", {})}
-    meta = dict(getattr(obj, "metadata", {}) or {})
-    cal = getattr(obj, "calibration", None)
-    if cal is not None and hasattr(cal, "to_dict"):
-        meta = {**meta, "calibration": cal.to_dict()}
-    return {"role": "", "path": getattr(obj, "source", None), "sha256": getattr(obj, "sha256", None),
-            "metadata": meta}
+    A URL gives a :class:`LogURL` (a server), anything else a :class:`Path` (an SQLite file).
+    """
+    if option:
+        return as_target(option)
+    env = os.environ.get("BENCHFIT_LOG")
+    if env:
+        return as_target(env)
+    return default_log_path()
 
 
-def _measurement_rows(m: Mapping[str, Any], role: str) -> list[dict[str, Any]]:
-    rows = []
-    for ch in m.get("channels", []):
-        extra = ch.get("extra", {}) or {}
-        for q, unit in _MEASURED:
-            if q not in ch:
-                continue
-            u = None
-            for k in uncertainty_keys(q):
-                if ch.get(k) is not None:
-                    u = ch.get(k)
-                elif extra.get(k) is not None:
-                    u = extra.get(k)
-                if u is not None:
-                    break
-            rows.append({"file": m.get("file"), "role": role, "source": "measure",
-                         "channel": ch.get("name"), "quantity": q, "value": _finite(ch.get(q)),
-                         "uncertainty": _finite(u),
-                         "unit": ch.get("unit", "") if unit == "<ch>" else unit})
-    return rows
+def use_bench(name: str | None) -> None:
+    """Name the bench for the runs this process writes (the ``--bench`` option); None: the default."""
+    global _bench_override
+    if name is not None:
+        _check_bench(name, "--bench")
+    _bench_override = name
 
 
-def _fit_rows(f: Mapping[str, Any], role: str) -> list[dict[str, Any]]:
-    rows = []
-    for name, p in (f.get("parameters") or {}).items():
-        rows.append({"file": f.get("file"), "role": role, "source": "fit", "channel": None,
-                     "quantity": name, "value": _finite(p.get("value")),
-                     "uncertainty": _finite(p.get("stderr")), "unit": p.get("unit", "")})
-    for name, d in (f.get("derived") or {}).items():
-        rows.append({"file": f.get("file"), "role": role, "source": "fit", "channel": None,
-                     "quantity": name, "value": _finite(d.get("value")),
-                     "uncertainty": _finite(d.get("stderr")), "unit": _DERIVED_UNITS.get(name, "")})
-    return rows
+def current_bench() -> str:
+    """The bench name: :func:`use_bench`, else ``$BENCHFIT_BENCH``, else the host name."""
+    if _bench_override:
+        return _bench_override
+    env = os.environ.get("BENCHFIT_BENCH")
+    if env is not None:
+        return _check_bench(env, "BENCHFIT_BENCH")
+    return socket.gethostname() or "unknown"
 
 
-def _role_of(item: Any) -> tuple[Any, str]:
-    """``(obj, role)`` from either an object or a ``(role, obj)`` pair."""
-    if isinstance(item, tuple) and len(item) == 2 and isinstance(item[0], str):
-        return item[1], item[0]
-    return item, ""
+def _check_bench(name: str, where: str) -> str:
+    if not name.strip() or len(name) > 64 or not name.isprintable():
+        raise LogError(f"{where} {name!r}: not a bench name — give 1 to 64 printable characters, e.g. bench-2")
+    return name.strip()
+
+
+def open_store(target: str | Path | LogURL, *, create: bool = True) -> LogStore:
+    """The open log at ``target``: an :class:`SQLiteStore` or a :class:`PostgresStore`."""
+    t = as_target(target)
+    if isinstance(t, LogURL):
+        from benchfit.log.postgres import PostgresStore
+
+        return PostgresStore(t, create=create)
+    return SQLiteStore(t, create=create)
+
+
+def open_log(target: str | Path | LogURL, *, create: bool = True) -> Any:
+    """Open (and if needed create or migrate) a benchfit log; something with ``close()``.
+
+    For a file this is the sqlite3 connection. For a server that cannot be reached now the
+    spool is opened instead (a run written later will be spooled), so a bench keeps working.
+
+    Raises
+    ------
+    LogError
+        Not a benchfit log, newer than this code, or it cannot be opened.
+    """
+    t = as_target(target)
+    if isinstance(t, LogURL):
+        try:
+            return open_store(t, create=create)
+        except ServerUnavailable:
+            if not create:
+                raise
+            from benchfit.log.spool import spool_path
+
+            return SQLiteStore(spool_path(t))
+    from benchfit.log.sqlite import connect
+
+    return connect(t, create=create)
+
+
+class RunId(int):
+    """A run's local id (an int) with its ``uuid``, and ``spooled`` + ``spool`` when it went to the spool."""
+
+    uuid: str
+    spooled: bool
+    spool: Path | None
+
+    def __new__(cls, value: int, uuid: str, spool: Path | None = None) -> "RunId":
+        obj = super().__new__(cls, value)
+        obj.uuid, obj.spooled, obj.spool = uuid, spool is not None, spool
+        return obj
+
+
+def _note(text: str) -> None:
+    sys.stderr.write(f"note: {text}\n")
+    sys.stderr.flush()
 
 
 # --- writing ---------------------------------------------------------------------------
 
-def append_run(db_path: str | Path, *, command: str, operator: str | None = None,
+def append_run(db_path: str | Path | LogURL, *, command: str, operator: str | None = None,
                unit: str | None = None, captures: Sequence[Any] = (),
                measurements: Sequence[Any] = (), fits: Sequence[Any] = (),
                decisions: Sequence[Any] = (), verdict: str | None = None,
-               details: Mapping[str, Any] | None = None) -> int:
+               details: Mapping[str, Any] | None = None, bench: str | None = None) -> RunId:
     """Append one run to the log in a single transaction and return its run id.
 
     Parameters
     ----------
-    db_path : str or Path
-        The log file (created when missing). Use :func:`resolve_log_path` for the default.
+    db_path : str, Path or LogURL
+        The log: a file (created when missing) or a ``postgresql://`` URL. Use
+        :func:`resolve_log_path` for the default.
     command : str
         The command that produced the run: ``"measure"``, ``"fit"``, ``"report"``, ...
     operator : str, optional
@@ -407,172 +197,143 @@ def append_run(db_path: str | Path, *, command: str, operator: str | None = None
         Overall decision of a report run.
     details : mapping, optional
         Extra JSON-serialisable information about the run (spec name, report paths, ...).
+    bench : str, optional
+        The station's name (default :func:`current_bench`).
 
     Returns
     -------
-    int
-        The new run's id.
+    RunId
+        The new run's local id (an int) with its UUID. When the log server cannot be reached
+        the run goes to the local spool (a note on stderr says so, ``spooled`` is True and
+        the id is the spool's); ``benchfit log sync`` or the next successful write pushes it.
 
     Raises
     ------
     LogError
         When the log cannot be written (not a benchfit log, disk full, still locked after retries).
     """
-    from benchfit import __version__
+    target = as_target(db_path)
+    rec = make_record(command=command, operator=operator, unit=unit,
+                      bench=_check_bench(bench, "bench") if bench else current_bench(),
+                      captures=captures, measurements=measurements, fits=fits, decisions=decisions,
+                      verdict=verdict, details=details, where=str(target))
+    uuid = rec["run"]["uuid"]
+    if not isinstance(target, LogURL):
+        with SQLiteStore(target) as store:
+            rid, _ = store.write(rec)
+        return RunId(rid, uuid)
+    from benchfit.log import spool
 
-    cap_rows = []
-    for item in captures:
-        obj, role = _role_of(item)
-        row = _capture_row(obj)
-        row["role"] = role or row["role"]
-        cap_rows.append(row)
-    res_rows: list[dict[str, Any]] = []
-    for item in measurements:
-        obj, role = _role_of(item)
-        res_rows += _measurement_rows(_as_dict(obj, full=True), role)
-    for item in fits:
-        obj, role = _role_of(item)
-        res_rows += _fit_rows(_as_dict(obj), role)
-    dec_rows = [_as_dict(d) for d in decisions]
     try:
-        details_json = json.dumps(dict(details or {}), allow_nan=False, default=str)
-        cap_json = [json.dumps(r["metadata"], allow_nan=False, default=str) for r in cap_rows]
-    except ValueError as e:
-        raise LogError(f"{db_path}: run details contain a non-finite number ({e}) — report this as a bug") from e
+        with open_store(target) as store:
+            rid, _ = store.write(rec)
+            if spool.spool_path(target).exists():
+                _push_quietly(target, store)
+        return RunId(rid, uuid)
+    except ServerUnavailable as e:
+        # the transaction may or may not have reached the server's COMMIT: spooling is safe
+        # either way, since pushing a run the server already has is a no-op (same UUID)
+        path, sid = spool.spool_run(target, rec)
+        _note(f"{str(e).split(' — ')[0]} — run spooled to {path} (uuid {uuid}); "
+              "`benchfit log sync` pushes it when the server is back")
+        return RunId(sid, uuid, spool=path)
 
-    con = open_log(db_path)
-    now = _utc_now()
+
+def _push_quietly(target: LogURL, store: LogStore) -> None:
+    from benchfit.log import spool
+
     try:
-        for attempt in range(_RETRIES):
-            try:
-                _begin(con)
-                try:
-                    unit_id = None
-                    if unit:
-                        con.execute("INSERT OR IGNORE INTO units(serial, first_seen_utc) VALUES (?, ?)",
-                                    (unit, now))
-                        unit_id = con.execute("SELECT id FROM units WHERE serial = ?", (unit,)).fetchone()[0]
-                    run_id = con.execute(
-                        "INSERT INTO runs(unit_id, command, time_utc, operator, benchfit_version, verdict,"
-                        " details_json) VALUES (?, ?, ?, ?, ?, ?, ?)",
-                        (unit_id, command, now, operator, __version__, verdict, details_json)).lastrowid
-                    cap_ids: dict[tuple[str | None, str], int] = {}
-                    for r, mj in zip(cap_rows, cap_json):
-                        cid = con.execute(
-                            "INSERT INTO captures(run_id, role, path, sha256, metadata_json) VALUES (?,?,?,?,?)",
-                            (run_id, r["role"], r["path"], r["sha256"], mj)).lastrowid
-                        cap_ids.setdefault((r["path"], r["role"]), cid)
-                        cap_ids.setdefault((r["path"], ""), cid)
-                    con.executemany(
-                        "INSERT INTO results(run_id, capture_id, role, source, channel, quantity, value,"
-                        " uncertainty, unit) VALUES (?,?,?,?,?,?,?,?,?)",
-                        [(run_id, cap_ids.get((r["file"], r["role"])), r["role"], r["source"], r["channel"],
-                          r["quantity"], r["value"], r["uncertainty"], r["unit"]) for r in res_rows])
-                    con.executemany(
-                        "INSERT INTO decisions(run_id, quantity, channel, label, value, expanded_u, lower,"
-                        " upper, unit, rule, decision, note) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
-                        [(run_id, d.get("quantity"), None if d.get("channel") is None else str(d["channel"]),
-                          d.get("label"), _finite(d.get("value")), _finite(d.get("expanded_u")),
-                          _finite(d.get("lower")), _finite(d.get("upper")), d.get("unit", ""),
-                          d.get("rule", ""), d.get("decision", ""), d.get("note", "")) for d in dec_rows])
-                    con.execute("COMMIT")
-                    return int(run_id)
-                except BaseException:
-                    if con.in_transaction:
-                        con.execute("ROLLBACK")
-                    raise
-            except sqlite3.OperationalError as e:
-                if ("locked" in str(e) or "busy" in str(e)) and attempt < _RETRIES - 1:
-                    time.sleep(0.1 * (attempt + 1))
-                    continue
-                raise LogError(f"{db_path}: cannot write the run ({e}) — another program holds the log; "
-                               "try again") from e
-            except sqlite3.Error as e:
-                raise LogError(f"{db_path}: cannot write the run ({e}) — check free space and permissions") from e
-        raise LogError(f"{db_path}: the log stayed locked — try again")
-    finally:
-        con.close()
+        new, old = spool.push(target, store)
+    except LogError as e:
+        _note(f"spooled runs not pushed yet ({e})")
+        return
+    if new or old:
+        _note(f"pushed {new} spooled run(s) to {target}")
+
+
+def sync_log(target: str | Path | LogURL) -> tuple[int, int]:
+    """Push the spooled runs of a log server: ``(newly stored, already there)``.
+
+    Raises
+    ------
+    LogError
+        ``target`` is not a server URL, or the server cannot be reached (the spool is kept).
+    """
+    t = as_target(target)
+    if not isinstance(t, LogURL):
+        raise LogError(f"{t}: a log file has no spool — `benchfit log sync` is for a server log "
+                       "(--log postgresql://… or BENCHFIT_LOG)")
+    from benchfit.log import spool
+
+    with open_store(t) as store:
+        return spool.push(t, store)
+
+
+@dataclass(frozen=True)
+class MergeSummary:
+    """What :func:`merge_log` did: runs copied, runs the target already had (same UUID)."""
+
+    new: int
+    present: int
+
+    def to_dict(self) -> dict[str, int]:
+        return {"new": self.new, "present": self.present}
+
+
+def merge_log(source: str | Path, target: str | Path | LogURL, *, bench: str | None = None) -> MergeSummary:
+    """Copy every run of the SQLite log ``source`` into ``target``; a repeat copies nothing.
+
+    ``source`` is migrated to the current schema first (in place, like any command that opens
+    it): that gives each of its runs its UUID once, so merging it again is recognised.
+    ``bench`` names the station for the runs that have no bench name (logged before schema 2).
+    """
+    src = Path(source)
+    t = as_target(target)
+    if not src.exists():
+        raise LogError(f"{src}: no log file there — give the bench's log file to merge")
+    if isinstance(t, Path) and t.exists() and t.resolve() == src.resolve():
+        raise LogError(f"{src}: is the target log itself — give another bench's log file")
+    if bench is not None:
+        _check_bench(bench, "--bench")
+    with SQLiteStore(src, create=False) as s, open_store(t) as d:
+        def records() -> Iterable[dict[str, Any]]:
+            for _, rec in s.iter_records():
+                if bench and not rec["run"].get("bench"):
+                    rec["run"]["bench"] = bench
+                yield rec
+
+        new, old = d.write_many(records())
+    return MergeSummary(new=new, present=old)
 
 
 # --- reading ---------------------------------------------------------------------------
 
-def _read(db_path: str | Path) -> sqlite3.Connection:
-    con = open_log(db_path, create=False)
-    con.row_factory = sqlite3.Row
-    return con
+def _reader(db_path: str | Path | LogURL) -> LogStore:
+    return open_store(db_path, create=False)
 
 
-def list_runs(db_path: str | Path, *, unit: str | None = None, since: str | None = None) -> list[dict[str, Any]]:
-    """Runs in time order: id, time_utc, command, unit, operator, verdict, n_captures.
+def list_runs(db_path: str | Path | LogURL, *, unit: str | None = None, since: str | None = None,
+              bench: str | None = None, last: int | None = None) -> list[dict[str, Any]]:
+    """Runs in time order: id, uuid, bench, time_utc, command, unit, operator, verdict, n_captures.
 
-    ``since`` is an ISO date or date-time (UTC); runs at or after it are listed.
+    ``since`` is an ISO date or date-time (UTC); runs at or after it are listed. ``last``
+    keeps only the latest so many runs.
     """
-    sql = ("SELECT r.id, r.time_utc, r.command, u.serial AS unit, r.operator, r.verdict, "
-           "r.benchfit_version, (SELECT COUNT(*) FROM captures c WHERE c.run_id = r.id) AS n_captures "
-           "FROM runs r LEFT JOIN units u ON u.id = r.unit_id WHERE 1=1")
-    return _select(db_path, sql, [("u.serial = ?", unit), ("r.time_utc >= ?", since)],
-                   " ORDER BY r.time_utc, r.id")
+    with _reader(db_path) as store:
+        return store.list_runs(unit=unit, since=since, bench=bench, last=last)
 
 
-def _select(db_path: str | Path, sql: str, filters: list[tuple[str, Any]], order: str) -> list[dict[str, Any]]:
-    """Run ``sql`` (ending in a WHERE clause) with the filters whose value is given, as dicts."""
-    args: list[Any] = []
-    for clause, value in filters:
-        if value:
-            sql += f" AND {clause}"
-            args.append(value)
-    con = _read(db_path)
-    try:
-        return [dict(r) for r in con.execute(sql + order, args)]
-    except sqlite3.Error as e:
-        raise LogError(f"{db_path}: cannot read the log ({e}) — check the file") from e
-    finally:
-        con.close()
-
-
-def get_run(db_path: str | Path, run_id: int) -> dict[str, Any]:
+def get_run(db_path: str | Path | LogURL, run_id: int) -> dict[str, Any]:
     """Everything stored about one run: the run row, its captures, results and decisions."""
-    con = _read(db_path)
-    try:
-        row = con.execute("SELECT r.*, u.serial AS unit FROM runs r LEFT JOIN units u ON u.id = r.unit_id "
-                          "WHERE r.id = ?", (run_id,)).fetchone()
-        if row is None:
-            last = con.execute("SELECT MAX(id) FROM runs").fetchone()[0]
-            raise LogError(f"run {run_id}: no such run in {db_path} — "
-                           + ("the log is empty" if last is None else f"run ids go from 1 to {last}; see `benchfit log list`"))
-        run = dict(row)
-        run["details"] = json.loads(run.pop("details_json") or "{}")
-        caps = []
-        for c in con.execute("SELECT id, role, path, sha256, metadata_json FROM captures WHERE run_id = ? "
-                             "ORDER BY id", (run_id,)):
-            d = dict(c)
-            d["metadata"] = json.loads(d.pop("metadata_json") or "{}")
-            caps.append(d)
-        run["captures"] = caps
-        run["results"] = [dict(r) for r in con.execute(
-            "SELECT r.role, r.source, r.channel, r.quantity, r.value, r.uncertainty, r.unit, c.path AS file "
-            "FROM results r LEFT JOIN captures c ON c.id = r.capture_id WHERE r.run_id = ? ORDER BY r.id",
-            (run_id,))]
-        run["decisions"] = [dict(r) for r in con.execute(
-            "SELECT quantity, channel, label, value, expanded_u, lower, upper, unit, rule, decision, note "
-            "FROM decisions WHERE run_id = ? ORDER BY id", (run_id,))]
-        return run
-    except sqlite3.Error as e:
-        raise LogError(f"{db_path}: cannot read run {run_id} ({e}) — check the file") from e
-    finally:
-        con.close()
+    with _reader(db_path) as store:
+        return store.get_run(run_id)
 
 
-def results_rows(db_path: str | Path, *, quantity: str | None = None, unit: str | None = None,
-                 since: str | None = None) -> list[dict[str, Any]]:
+def results_rows(db_path: str | Path | LogURL, *, quantity: str | None = None, unit: str | None = None,
+                 since: str | None = None, bench: str | None = None) -> list[dict[str, Any]]:
     """Flat rows, one per stored result, joined with their run, unit and capture (for export/stats)."""
-    sql = ("SELECT r.id AS run_id, r.time_utc, r.command, u.serial AS unit, r.operator, r.verdict, "
-           "res.role, res.source, res.channel, res.quantity, res.value, res.uncertainty, "
-           "res.unit AS value_unit, c.path AS file, c.sha256 "
-           "FROM results res JOIN runs r ON r.id = res.run_id LEFT JOIN units u ON u.id = r.unit_id "
-           "LEFT JOIN captures c ON c.id = res.capture_id WHERE 1=1")
-    return _select(db_path, sql, [("res.quantity = ?", quantity), ("u.serial = ?", unit),
-                                  ("r.time_utc >= ?", since)], " ORDER BY r.time_utc, r.id, res.id")
+    with _reader(db_path) as store:
+        return store.results_rows(quantity=quantity, unit=unit, since=since, bench=bench)
 
 
 def iter_quantities(rows: Iterable[Mapping[str, Any]]) -> list[str]:
