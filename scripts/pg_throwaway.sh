@@ -3,6 +3,8 @@
 #
 #   scripts/pg_throwaway.sh start DIR   initdb + start in DIR (created empty), print the URL
 #   scripts/pg_throwaway.sh stop DIR    stop the server and remove DIR
+#   scripts/pg_throwaway.sh pause DIR   stop the server, keep DIR (a test of "server away")
+#   scripts/pg_throwaway.sh resume DIR  start it again after pause
 #
 # PostgreSQL refuses to run as root: as root the cluster belongs to the unprivileged user
 # $BENCHFIT_PG_OSUSER (default "nobody"); as any other user it runs as that user, no sudo.
@@ -44,10 +46,20 @@ case "$cmd" in
     chmod 700 "$dir"
     as_owner "$bin/initdb" -D "$dir/data" -U postgres -A trust -E UTF8 --no-sync >"$dir/initdb.log" 2>&1 \
       || { cat "$dir/initdb.log" >&2; exit 1; }
-    as_owner "$bin/pg_ctl" -D "$dir/data" -l "$dir/server.log" -w -t 30 \
-      -o "-k $dir -p $port -c listen_addresses='' -c fsync=off -c full_page_writes=off -c max_connections=60" \
+    echo "-k $dir -p $port -c listen_addresses='' -c fsync=off -c full_page_writes=off -c max_connections=60" \
+      >"$dir/options"
+    as_owner "$bin/pg_ctl" -D "$dir/data" -l "$dir/server.log" -w -t 30 -o "$(cat "$dir/options")" \
       start >/dev/null || { cat "$dir/server.log" >&2; exit 1; }
     echo "postgresql:///postgres?host=$dir&port=$port&user=postgres"
+    ;;
+  pause)
+    bin="$(pg_bindir)"
+    as_owner "$bin/pg_ctl" -D "$dir/data" -m fast -w -t 30 stop >/dev/null
+    ;;
+  resume)
+    bin="$(pg_bindir)"
+    as_owner "$bin/pg_ctl" -D "$dir/data" -l "$dir/server.log" -w -t 30 -o "$(cat "$dir/options")" \
+      start >/dev/null || { tail -20 "$dir/server.log" >&2; exit 1; }
     ;;
   stop)
     if [ -f "$dir/data/postmaster.pid" ]; then
@@ -55,5 +67,5 @@ case "$cmd" in
     fi
     rm -rf "$dir"
     ;;
-  *) echo "usage: $0 start|stop DIR" >&2; exit 2 ;;
+  *) echo "usage: $0 start|stop|pause|resume DIR" >&2; exit 2 ;;
 esac

@@ -1,4 +1,4 @@
-"""``benchfit log list|show|export|stats``: read the measurement log."""
+"""``benchfit log list|show|export|stats|merge|sync``: read the measurement log, bring logs together."""
 
 from __future__ import annotations
 
@@ -9,10 +9,11 @@ import typer
 
 from benchfit.cli.app import log_app
 
-_LOG_HELP = "Measurement log file (default: $BENCHFIT_LOG or the user data directory's benchfit/log.sqlite)."
+_LOG_HELP = ("Measurement log: a file, or postgresql://user@host:port/dbname for a shared server log "
+             "(default: $BENCHFIT_LOG or the user data directory's benchfit/log.sqlite).")
 
 
-def _log_path(option: Optional[str]) -> Path:
+def _log_path(option: Optional[str]):
     from benchfit.log.store import resolve_log_path
 
     return resolve_log_path(option)
@@ -38,24 +39,27 @@ def _check_since(since: Optional[str]) -> Optional[str]:
 def list_command(
     unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL", help="Only runs of this unit serial."),
     since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
+    bench: Optional[str] = typer.Option(None, "--bench", metavar="NAME", help="Only runs taken at this bench."),
+    last: Optional[int] = typer.Option(None, "--last", metavar="N", min=1, help="Only the latest N runs."),
     log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
     as_json: bool = typer.Option(False, "--json", help="Print the runs as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
     from benchfit.log.store import list_runs
 
-    runs = list_runs(_log_path(log), unit=unit, since=_check_since(since))
+    target = _log_path(log)
+    runs = list_runs(target, unit=unit, since=_check_since(since), bench=bench, last=last)
     if as_json:
         print_json({"runs": runs})
         return
     from rich.table import Table
 
-    table = Table(title=f"{len(runs)} run(s) in {_log_path(log)}", title_justify="left")
-    for col in ("run", "time (UTC)", "command", "unit", "operator", "verdict", "captures"):
+    table = Table(title=f"{len(runs)} run(s) in {target}", title_justify="left")
+    for col in ("run", "time (UTC)", "bench", "command", "unit", "operator", "verdict", "captures"):
         table.add_column(col)
     for r in runs:
-        table.add_row(str(r["id"]), r["time_utc"][:19], r["command"], r["unit"] or "—", r["operator"] or "—",
-                      r["verdict"] or "—", str(r["n_captures"]))
+        table.add_row(str(r["id"]), r["time_utc"][:19], r["bench"] or "—", r["command"], r["unit"] or "—",
+                      r["operator"] or "—", r["verdict"] or "—", str(r["n_captures"]))
     stdout.print(table)
 
 
@@ -76,8 +80,10 @@ def show_command(
     from rich.table import Table
 
     stdout.print(f"run {data['id']} · {data['command']} · {data['time_utc']} · unit {data['unit'] or '—'} · "
-                 f"operator {data['operator'] or '—'} · benchfit {data['benchfit_version']}"
+                 f"operator {data['operator'] or '—'} · bench {data['bench'] or '—'} · "
+                 f"benchfit {data['benchfit_version']}"
                  + (f" · verdict {data['verdict']}" if data["verdict"] else ""), markup=False)
+    stdout.print(f"  uuid {data['uuid']}", markup=False)
     for c in data["captures"]:
         stdout.print(f"  capture {c['role'] or ''} {c['path']}  sha256 {c['sha256'] or '—'}", markup=False)
     table = Table(title="results (quantities with a value)", title_justify="left")
@@ -132,6 +138,9 @@ def stats_command(
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --plot file."),
     all_runs: bool = typer.Option(False, "--all-runs", help="Use every logged value, not one per unit."),
     since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
+    by: Optional[str] = typer.Option(None, "--by", metavar="FIELD",
+                                     help="bench: one line per bench (station), with its mean's offset from "
+                                          "the mean of all."),
     log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
     as_json: bool = typer.Option(False, "--json", help="Print the statistics as one JSON object."),
 ) -> None:
@@ -140,6 +149,8 @@ def stats_command(
     from benchfit.log.store import results_rows
     from benchfit.report.html import format_value
 
+    if by is not None and by != "bench":
+        fail(f"--by {by!r}: unknown — use --by bench")
     lower = upper = None
     if spec is not None:
         from benchfit.report.spec import load_spec
@@ -161,7 +172,7 @@ def stats_command(
         latest: dict[object, dict] = {}
         for i, r in enumerate(rows):
             key = r["unit"] if r["unit"] else ("run", r["run_id"], i)
-            latest[key] = r
+            latest[(r["bench"], key) if by else key] = r
         rows = list(latest.values())
     if not rows and channel is not None:
         fail(f"--channel {channel!r}: no logged as-left values of {quantity} on a channel of that name — "
@@ -172,6 +183,9 @@ def stats_command(
     unit = units.pop() if units else ""
     values = [r["value"] for r in rows]
     cap = capability(values, lower, upper, quantity)
+    if by:
+        _stats_by_bench(rows, cap, quantity, channel, unit, lower, upper, as_json)
+        return
     if plot is not None:
         svg = histogram_svg(values, cap, quantity, unit)
         try:
@@ -192,3 +206,76 @@ def stats_command(
 
         stdout.print(f"  limits {format_limits(lower, upper, unit)}   Cp {ratio(cap.cp)}   Cpk {ratio(cap.cpk)}",
                      markup=False)
+
+
+def _stats_by_bench(rows: list, cap, quantity: str, channel: Optional[str], unit: str,
+                    lower: Optional[float], upper: Optional[float], as_json: bool) -> None:
+    """One line per bench: n, mean, std, u(mean) = s/√n, offset of its mean from the mean of all."""
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.log.stats import by_group
+    from benchfit.report.html import format_value
+
+    groups = by_group(rows, "bench", lower, upper, quantity)
+    if as_json:
+        print_json({"quantity": quantity, "channel": channel, "unit": unit, "by": "bench", "all": cap.to_dict(),
+                    "groups": [{"bench": g.name, **g.capability.to_dict(), "u_mean": g.u_mean,
+                                "offset": g.offset} for g in groups]})
+        return
+    from rich.table import Table
+
+    ratio = lambda v: "—" if v is None else f"{v:.3f}"  # noqa: E731
+    table = Table(title=f"{quantity}{f' ({channel})' if channel else ''} by bench: n = {cap.n}, "
+                        f"mean of all {format_value(cap.mean, unit)}", title_justify="left")
+    for col in ("bench", "n", "mean", "std", "u(mean) (k=1)", "offset from all", "Cpk"):
+        table.add_column(col)
+    for g in groups:
+        c = g.capability
+        table.add_row(g.name or "—", str(c.n), format_value(c.mean, unit),
+                      "—" if c.std is None else format_value(c.std, unit, digits=3),
+                      "—" if g.u_mean is None else format_value(g.u_mean, unit, digits=2),
+                      format_value(g.offset, unit, digits=3), ratio(c.cpk))
+    stdout.print(table)
+
+
+@log_app.command("merge", help="Copy every run of another bench's SQLite log into this log.\n\n"
+                 "Runs are recognised by their UUID: merging the same file again copies nothing. The other "
+                 "file is brought to the current log schema first.\n\nExample:\n\n\b\n"
+                 "  benchfit log merge bench2.sqlite --log postgresql://lab@logserver/benchfit")
+def merge_command(
+    other: Path = typer.Argument(..., metavar="OTHER", help="The SQLite log file to copy from."),
+    bench: Optional[str] = typer.Option(None, "--bench", metavar="NAME",
+                                        help="Bench name for OTHER's runs that have none (logged before "
+                                             "bench names existed)."),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    as_json: bool = typer.Option(False, "--json", help="Print the counts as one JSON object."),
+) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.log.store import merge_log
+
+    target = _log_path(log)
+    summary = merge_log(other, target, bench=bench)
+    if as_json:
+        print_json({"from": str(other), "log": str(target), **summary.to_dict()})
+        return
+    stdout.print(f"merged {other} into {target}: {summary.new} new run(s), {summary.present} already there",
+                 markup=False)
+
+
+@log_app.command("sync", help="Push the runs spooled while the log server was away.\n\n"
+                 "Idempotent: a run the server already has (same UUID) is not written twice.\n\n"
+                 "Example:\n\n\b\n  benchfit log sync --log postgresql://lab@logserver/benchfit")
+def sync_command(
+    log: Optional[str] = typer.Option(None, "--log", metavar="URL", help=_LOG_HELP),
+    as_json: bool = typer.Option(False, "--json", help="Print the counts as one JSON object."),
+) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.log.spool import spool_path
+    from benchfit.log.store import sync_log
+
+    target = _log_path(log)
+    new, present = sync_log(target)
+    if as_json:
+        print_json({"log": str(target), "spool": str(spool_path(target)), "new": new, "present": present})
+        return
+    stdout.print(f"pushed {new + present} spooled run(s) to {target}: {new} new, {present} already there",
+                 markup=False)

@@ -219,6 +219,9 @@ def measure_command(
         None, "--log", metavar="PATH", show_default=False,
         help="Append each measured file as a run (command \"measure\") to this measurement log file; "
              "created when missing. Without --log or --log-default nothing is logged."),
+    bench: Optional[str] = typer.Option(
+        None, "--bench", metavar="NAME",
+        help="This bench's (station's) name on the logged runs (default: $BENCHFIT_BENCH or the host name)."),
     log_default: bool = typer.Option(
         False, "--log-default",
         help="Append each measured file to the default measurement log: $BENCHFIT_LOG when set, else "
@@ -232,6 +235,9 @@ def measure_command(
     if log is not None and log_default:
         fail("--log and --log-default: give only one — --log PATH names the log, --log-default uses "
              "$BENCHFIT_LOG or the user data directory")
+    from benchfit.log.store import use_bench
+
+    use_bench(bench)
     log_path = None
     if log is not None or log_default:
         from benchfit.log.store import resolve_log_path

@@ -75,6 +75,9 @@ def report_command(
     log: Optional[str] = typer.Option(None, "--log", metavar="PATH",
                                       help="Measurement log file (default: $BENCHFIT_LOG or the user data "
                                            "directory's benchfit/log.sqlite)."),
+    bench: Optional[str] = typer.Option(
+        None, "--bench", metavar="NAME",
+        help="This bench's (station's) name on the logged runs (default: $BENCHFIT_BENCH or the host name)."),
     no_log: bool = typer.Option(False, "--no-log", help="Do not append this run to the measurement log."),
     no_figures: bool = typer.Option(False, "--no-figures", help="Leave the figures out (faster)."),
     as_json: bool = typer.Option(False, "--json", help="Print the paths and verdict as one JSON object "
@@ -97,6 +100,9 @@ def report_command(
              "or use --no-log")
     if log is not None and no_log:
         fail("--log and --no-log: give only one — --log PATH names the log, --no-log logs nothing")
+    from benchfit.log.store import use_bench
+
+    use_bench(bench)
     log_path = None if no_log else resolve_log_path(log)
     if each:
         if unit is not None:

@@ -96,11 +96,18 @@ class LogStore:
         """
         run = rec["run"]
         execute = self.con.execute
+        have = execute(self.sql("SELECT id FROM runs WHERE uuid = ?"), (run["uuid"],)).fetchone()
+        if have is not None:  # already stored (checked first so that a repeat uses up no id)
+            return int(have[0]), False
         unit_id = None
         if run.get("unit"):
-            execute(self.sql("INSERT INTO units(serial, first_seen_utc) VALUES (?, {now}) "
-                             "ON CONFLICT (serial) DO NOTHING"), (run["unit"],))
-            unit_id = execute(self.sql("SELECT id FROM units WHERE serial = ?"), (run["unit"],)).fetchone()[0]
+            find = self.sql("SELECT id FROM units WHERE serial = ?")
+            row = execute(find, (run["unit"],)).fetchone()
+            if row is None:  # (looked up first: a conflicting insert would use up a PostgreSQL id)
+                execute(self.sql("INSERT INTO units(serial, first_seen_utc) VALUES (?, {now}) "
+                                 "ON CONFLICT (serial) DO NOTHING"), (run["unit"],))
+                row = execute(find, (run["unit"],)).fetchone()
+            unit_id = row[0]
         when = "?" if run.get("time_utc") else "{now}"
         args = [run["uuid"], run.get("bench"), unit_id, run["command"]]
         if run.get("time_utc"):

@@ -23,7 +23,7 @@ import numpy as np
 
 from benchfit.errors import LogError
 
-__all__ = ["Capability", "capability", "histogram_svg"]
+__all__ = ["Capability", "GroupStats", "capability", "by_group", "histogram_svg"]
 
 
 @dataclass(frozen=True)
@@ -86,6 +86,36 @@ def capability(values: Sequence[float], lower: float | None = None, upper: float
             cpk = min(sides) / (3.0 * std)
     return Capability(n=int(x.size), mean=mean, std=std, min=float(np.min(x)), max=float(np.max(x)),
                       lower=lower, upper=upper, cp=cp, cpk=cpk)
+
+
+@dataclass(frozen=True)
+class GroupStats:
+    """The batch statistics of one group (e.g. one bench) of a batch.
+
+    ``u_mean`` = s/√n is the standard uncertainty of the group's mean from its own scatter
+    (None below two values); ``offset`` = group mean − mean of all values, in the
+    quantity's unit. An offset many times ``u_mean`` points at the bench, not at the units.
+    """
+
+    name: str | None
+    capability: Capability
+    u_mean: float | None
+    offset: float
+
+
+def by_group(rows: Sequence[dict[str, Any]], key: str, lower: float | None = None,
+             upper: float | None = None, quantity: str = "values") -> list[GroupStats]:
+    """:func:`capability` of each group of ``rows`` (dicts with ``"value"``) by ``row[key]``, by name."""
+    groups: dict[Any, list[float]] = {}
+    for r in rows:
+        groups.setdefault(r.get(key), []).append(r["value"])
+    overall = capability([v for vs in groups.values() for v in vs], lower, upper, quantity)
+    out = []
+    for name in sorted(groups, key=lambda n: (n is None, str(n))):
+        c = capability(groups[name], lower, upper, quantity)
+        u = None if c.std is None else c.std / math.sqrt(c.n)
+        out.append(GroupStats(name=name, capability=c, u_mean=u, offset=c.mean - overall.mean))
+    return out
 
 
 def histogram_svg(values: Sequence[float], cap: Capability, quantity: str, unit: str = "") -> str:

@@ -326,7 +326,7 @@ def test_deferred_log_entry_stores_what_run_unit_stores(batch, tmp_path):
 
     def stored(log, rid):
         run = get_run(log, rid)
-        strip = {"id", "run_id", "capture_id", "time_utc", "details_json", "details"}
+        strip = {"id", "run_id", "capture_id", "time_utc", "stored_utc", "uuid", "details_json", "details"}
         return ({k: v for k, v in run.items() if k not in strip | {"captures", "results", "decisions"}},
                 [{k: v for k, v in c.items() if k not in strip} for c in run["captures"]],
                 [{k: v for k, v in r.items() if k not in strip} for r in run["results"]],
