@@ -134,9 +134,16 @@ class PostgresStore(LogStore):
     def _errors(self) -> tuple[type[BaseException], ...]:
         return (self._psycopg.Error,)
 
-    def _version(self) -> int | None:
-        if self.con.execute("SELECT to_regclass('benchfit_schema')").fetchone()[0] is None:
-            if self.con.execute("SELECT to_regclass('runs')").fetchone()[0] is not None:
+    def _version(self, locked: bool = False) -> int | None:
+        # a catalog query, not to_regclass(): its answer comes from the statement's snapshot,
+        # whereas to_regclass() may answer from this session's cache of an earlier lookup
+        tables = {r[0] for r in self.con.execute(
+            "SELECT tablename FROM pg_catalog.pg_tables WHERE schemaname = current_schema() "
+            "AND tablename IN ('benchfit_schema', 'runs')")}
+        if "benchfit_schema" not in tables:
+            # only under the migration lock: without it another bench may be half-way through
+            # creating the log
+            if locked and "runs" in tables:
                 raise LogError(f"{self.where}: this database holds a 'runs' table that is not a benchfit "
                                "log — give another database in the URL (the database was left untouched)")
             return None
@@ -156,7 +163,7 @@ class PostgresStore(LogStore):
                                "measure with --log) against it first, or give the right URL")
             with self.con.transaction():
                 self.con.execute("SELECT pg_advisory_xact_lock(%s)", (_LOCK_KEY,))
-                have = self._version()  # again, under the lock: another bench may have migrated
+                have = self._version(locked=True)  # again, under the lock: another bench may have migrated
                 if have is None:
                     self.con.execute(VERSION_TABLE)
                 for version in range((have or 0) + 1, SCHEMA_VERSION + 1):
