@@ -10,10 +10,11 @@
 #   sox                independent RMS/peak cross-check
 #   chromium           renders the HTML report headless
 #   poppler-utils      pdftotext, to read the printed report
+#   postgresql         a throw-away server for the shared-log tests (scripts/pg_throwaway.sh)
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
-packages="ngspice pulseaudio pulseaudio-utils libportaudio2 libasound2-plugins libsndfile1 sox chromium poppler-utils"
+packages="ngspice pulseaudio pulseaudio-utils libportaudio2 libasound2-plugins libsndfile1 sox chromium poppler-utils postgresql"
 missing=""
 if command -v dpkg >/dev/null 2>&1; then
   for p in $packages; do
@@ -29,4 +30,15 @@ if [ -n "$missing" ]; then
 fi
 
 python3 -m pip install --quiet -e '.[test]'
+
+# A throw-away PostgreSQL cluster (Unix socket only, in a temporary folder, as an unprivileged
+# user), removed on exit even when the tests fail. Without one the shared-log tests start
+# their own; under CI they fail rather than skip when no server can be started.
+pg_dir="$(mktemp -d "${TMPDIR:-/tmp}/benchfit-pg.XXXXXX")"
+trap 'bash scripts/pg_throwaway.sh stop "$pg_dir" || true' EXIT
+if pg_url="$(BENCHFIT_PG_PORT=$((50000 + RANDOM % 10000)) bash scripts/pg_throwaway.sh start "$pg_dir")"; then
+  export BENCHFIT_TEST_PG="$pg_url" BENCHFIT_TEST_PGDIR="$pg_dir"
+else
+  echo "note: no PostgreSQL server started — the shared-log tests will try to start their own" >&2
+fi
 python3 -m pytest -q "$@"
