@@ -19,7 +19,7 @@ import sys
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-AREAS = ("measure", "fit", "live", "batch")
+AREAS = ("measure", "fit", "live", "batch", "log")
 
 
 def _load(area: str):
