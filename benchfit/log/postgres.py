@@ -121,6 +121,10 @@ class PostgresStore(LogStore):
         try:
             self.con = psycopg.connect(self.target.url, **kwargs)
         except psycopg.OperationalError as e:
+            if _refused(e):
+                raise LogError(f"{self.where}: the log server refused the connection ({_first_line(e)}) — "
+                               "check the user, the database name and the password (~/.pgpass, PGPASSWORD "
+                               "or a service file)") from e
             raise ServerUnavailable(f"{self.where}: cannot reach the log server ({_first_line(e)}) — check "
                                     "that it runs and the URL") from e
         except psycopg.Error as e:
@@ -190,6 +194,16 @@ class PostgresStore(LogStore):
         except psycopg.Error as e:
             raise LogError(f"{self.where}: cannot write the run ({_first_line(e)}) — check the "
                            "database") from e
+
+
+#: server answers that mean "not now" (spool the run) rather than "not like this" (an error)
+_BUSY = ("starting up", "shutting down", "in recovery", "too many", "not yet accepting", "terminating")
+
+
+def _refused(e: BaseException) -> bool:
+    """True when the server answered and refused (unknown user or database, bad password)."""
+    text = str(e)
+    return "FATAL:" in text and not any(b in text for b in _BUSY)
 
 
 def _first_line(e: BaseException) -> str:

@@ -156,6 +156,14 @@ class RunId(int):
         obj.uuid, obj.spooled, obj.spool = uuid, spool is not None, spool
         return obj
 
+    def __str__(self) -> str:
+        # what a message like "logged as run {id} in {log}" shows: a spooled run says where it is
+        n = int(self)
+        return f"{n} (in the spool {self.spool} until `benchfit log sync`)" if self.spooled else str(n)
+
+    def __format__(self, spec: str) -> str:
+        return str(self) if not spec else format(int(self), spec)
+
 
 def _note(text: str) -> None:
     sys.stderr.write(f"note: {text}\n")

@@ -224,3 +224,16 @@ def test_schema1_bench_log_merged_into_the_shared_log(pg_url, tmp_path, capsys):
                                              "FROM decisions").fetchall(), key=repr)
     assert len(new_results) == raw["results"] == 49 and new_results == old_results
     assert len(new_decisions) == raw["decisions"] == 6 and new_decisions == old_decisions
+
+
+def test_a_refusing_server_is_an_error_not_a_spool(pg_server, tmp_path, monkeypatch):
+    # the server answered (no such database): a setup mistake to fix now, not a run to spool
+    from benchfit.errors import LogError
+    from benchfit.log.postgres import ServerUnavailable
+
+    monkeypatch.setenv("BENCHFIT_SPOOL", str(tmp_path / "spool"))
+    url = pg_server.url("no_such_database")
+    with pytest.raises(LogError, match="refused the connection .*does not exist") as info:
+        append_run(url, command="measure")
+    assert not isinstance(info.value, ServerUnavailable)
+    assert not (tmp_path / "spool").exists()
