@@ -1,7 +1,8 @@
 """Export the measurement log to CSV or JSON (pandas), one row per stored result.
 
 Columns: run_id, time_utc, command, unit, operator, verdict, role, source, channel,
-quantity, value, uncertainty (standard, k = 1), value_unit, file, sha256.
+quantity, value, uncertainty (standard, k = 1), value_unit, file, sha256, bench, run_uuid
+(the run's global id: the same run in two logs has the same run_uuid, not always the same run_id).
 An existing output file is never replaced unless ``overwrite=True``.
 """
 
@@ -11,6 +12,7 @@ from pathlib import Path
 from typing import Literal, get_args
 
 from benchfit.errors import LogError
+from benchfit.log.postgres import LogURL
 from benchfit.log.store import results_rows
 
 __all__ = ["ExportFormat", "COLUMNS", "results_frame", "export_log"]
@@ -18,10 +20,10 @@ __all__ = ["ExportFormat", "COLUMNS", "results_frame", "export_log"]
 ExportFormat = Literal["csv", "json"]
 
 COLUMNS = ("run_id", "time_utc", "command", "unit", "operator", "verdict", "role", "source",
-           "channel", "quantity", "value", "uncertainty", "value_unit", "file", "sha256")
+           "channel", "quantity", "value", "uncertainty", "value_unit", "file", "sha256", "bench", "run_uuid")
 
 
-def results_frame(db_path: str | Path, *, quantity: str | None = None, unit: str | None = None,
+def results_frame(db_path: str | Path | LogURL, *, quantity: str | None = None, unit: str | None = None,
                   since: str | None = None):
     """The log's results as a pandas DataFrame with :data:`COLUMNS`."""
     import pandas as pd
@@ -30,7 +32,7 @@ def results_frame(db_path: str | Path, *, quantity: str | None = None, unit: str
     return pd.DataFrame(rows, columns=list(COLUMNS))
 
 
-def export_log(db_path: str | Path, fmt: str, out: str | Path | None = None, *,
+def export_log(db_path: str | Path | LogURL, fmt: str, out: str | Path | None = None, *,
                overwrite: bool = False, unit: str | None = None, since: str | None = None) -> str | None:
     """Write the log as CSV or JSON (records) to ``out``, or return the text when ``out`` is None.
 

@@ -203,6 +203,8 @@ _BUSY = ("starting up", "shutting down", "in recovery", "too many", "not yet acc
 def _refused(e: BaseException) -> bool:
     """True when the server answered and refused (unknown user or database, bad password)."""
     text = str(e)
+    if "fe_sendauth" in text:  # libpq found no password to give: a setup mistake too
+        return True
     return "FATAL:" in text and not any(b in text for b in _BUSY)
 
 

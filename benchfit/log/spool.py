@@ -69,6 +69,8 @@ def push(target: LogURL, server: LogStore) -> tuple[int, int]:
 
         def records():
             for rid in ids:
+                if spool._one("SELECT COUNT(*) FROM runs WHERE id = ?", (rid,)) == 0:
+                    continue  # pushed meanwhile by another process
                 rec = spool.read_record(rid)
                 rec["_spool_id"] = rid
                 yield rec

@@ -237,3 +237,49 @@ def test_a_refusing_server_is_an_error_not_a_spool(pg_server, tmp_path, monkeypa
         append_run(url, command="measure")
     assert not isinstance(info.value, ServerUnavailable)
     assert not (tmp_path / "spool").exists()
+
+
+def test_password_comes_from_libpq_places_and_is_stored_nowhere(pg_server, tmp_path, monkeypatch):
+    # a role that must give a password (scram-sha-256 for it alone in pg_hba.conf, PostgreSQL 15
+    # documentation 21.1); the URL names no password: libpq reads PGPASSFILE or PGPASSWORD
+    import psycopg
+
+    secret = "hc-line-7f3a9c"
+    hba = pg_server.folder / "data" / "pg_hba.conf"
+    original = hba.read_text()
+    monkeypatch.setenv("BENCHFIT_SPOOL", str(tmp_path / "spool"))
+    monkeypatch.delenv("PGPASSWORD", raising=False)
+    with psycopg.connect(pg_server.admin_url, autocommit=True) as con:
+        con.execute("DROP DATABASE IF EXISTS bf_pw_db")
+        con.execute("DROP ROLE IF EXISTS bf_pw")
+        con.execute(f"CREATE ROLE bf_pw LOGIN PASSWORD '{secret}'")
+        con.execute("CREATE DATABASE bf_pw_db OWNER bf_pw")
+        hba.write_text("local all bf_pw scram-sha-256\n" + original)
+        con.execute("SELECT pg_reload_conf()")
+    url = pg_server.url("bf_pw_db").replace("user=postgres", "user=bf_pw")
+    try:
+        time.sleep(0.3)   # the postmaster re-reads pg_hba.conf on SIGHUP
+        from benchfit.errors import LogError
+
+        monkeypatch.setenv("PGPASSFILE", str(tmp_path / "none"))
+        with pytest.raises(LogError, match="refused the connection"):
+            append_run(url, command="measure")
+        passfile = tmp_path / "pgpass"
+        passfile.write_text(f"*:*:bf_pw_db:bf_pw:{secret}\n")
+        passfile.chmod(0o600)
+        monkeypatch.setenv("PGPASSFILE", str(passfile))
+        a = append_run(url, command="report", unit="HC-11", details={"spec": "hc_spec.toml"})
+        monkeypatch.setenv("PGPASSFILE", str(tmp_path / "none"))
+        monkeypatch.setenv("PGPASSWORD", secret)
+        b = append_run(url, command="measure", unit="HC-11")
+        assert not a.spooled and not b.spooled
+        with psycopg.connect(pg_server.admin_url.replace("/postgres?", "/bf_pw_db?"), autocommit=True) as con:
+            dump = repr(con.execute("SELECT r.*, u.* FROM runs r LEFT JOIN units u ON u.id = r.unit_id").fetchall())
+        assert "HC-11" in dump and secret not in dump
+        assert not (tmp_path / "spool").exists()
+    finally:
+        hba.write_text(original)
+        with psycopg.connect(pg_server.admin_url, autocommit=True) as con:
+            con.execute("SELECT pg_reload_conf()")
+            con.execute("DROP DATABASE IF EXISTS bf_pw_db WITH (FORCE)")
+            con.execute("DROP ROLE IF EXISTS bf_pw")
