@@ -46,8 +46,11 @@ To add schema 3 — say a table of drift interval series — append one entry an
 
 :data:`SCHEMA_VERSION` follows from the list. Never edit an entry that has been released:
 logs in the field have applied it. Every foreign key gets an index (a test checks this on
-both backends), and a table that belongs to a run must be copied by merge/sync: add it to
-:mod:`benchfit.log.base` (``read_record``/``insert_record``) in the same change.
+both backends). A new table whose rows belong to a run (``run_id``) must also travel with
+the run through spool, sync and merge: in the same change add it to
+:meth:`~benchfit.log.base.LogStore.read_record`, ``insert_record`` and ``delete_run``
+(the spool deletes a run after pushing it), and to the run-record description in
+:mod:`benchfit.log.records`. A table that stands alone needs only its migration.
 """
 
 from __future__ import annotations
