@@ -17,6 +17,7 @@ import json
 from typing import Any, Callable, Iterable, Iterator, Mapping, Sequence
 
 from benchfit.errors import LogError
+from benchfit.log import schema
 from benchfit.log.schema import Dialect, render
 
 __all__ = ["LogStore", "RUN_COLUMNS"]
@@ -137,6 +138,14 @@ class LogStore:
             self._many("INSERT INTO decisions(run_id, quantity, channel, label, value, expanded_u, lower, upper,"
                        " unit, rule, decision, note) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                        [(run_id, *(d.get(k) for k in _DECISION_COLS)) for d in decisions])
+        for table, rows in (rec.get("tables") or {}).items():
+            if table not in schema.RUN_TABLES:
+                raise LogError(f"{self.where}: the run carries rows of table {table!r}, which this log does "
+                               "not have — upgrade benchfit")
+            for r in rows:
+                cols = list(r)
+                self.con.execute(self.sql(f"INSERT INTO {table}(run_id{''.join(', ' + c for c in cols)}) "
+                                          f"VALUES (?{', ?' * len(cols)})"), (run_id, *(r[c] for c in cols)))
         return run_id, True
 
     def _many(self, text: str, rows: list[tuple[Any, ...]]) -> None:
@@ -186,7 +195,7 @@ class LogStore:
     def delete_run(self, run_id: int) -> None:
         """Remove one run and everything that belongs to it (used by the spool after a push)."""
         with self.transaction():
-            for table in ("results", "decisions", "captures"):
+            for table in (*schema.RUN_TABLES, "results", "decisions", "captures"):
                 self.con.execute(self.sql(f"DELETE FROM {table} WHERE run_id = ?"), (run_id,))
             self.con.execute(self.sql("DELETE FROM runs WHERE id = ?"), (run_id,))
 
@@ -213,7 +222,14 @@ class LogStore:
                 r["capture"] = None if cid is None else index.get(cid)
             decisions = self._rows(f"SELECT {', '.join(_DECISION_COLS)} FROM decisions WHERE run_id = ?"
                                    " ORDER BY id", (run_id,))
-            return {"run": rows[0], "captures": caps, "results": results, "decisions": decisions}
+            rec = {"run": rows[0], "captures": caps, "results": results, "decisions": decisions}
+            tables = {}
+            for table in schema.RUN_TABLES:
+                extra = self._rows(f"SELECT * FROM {table} WHERE run_id = ? ORDER BY id", (run_id,))
+                tables[table] = [{k: v for k, v in r.items() if k not in ("id", "run_id")} for r in extra]
+            if tables:
+                rec["tables"] = tables
+            return rec
         return self._read(go, f"run {run_id}")
 
     def iter_records(self) -> Iterator[tuple[int, dict[str, Any]]]:

@@ -25,7 +25,8 @@ from typing import Any, Iterator
 
 from benchfit.errors import LogError
 from benchfit.log.base import LogStore
-from benchfit.log.schema import SCHEMA_VERSION, VERSION_TABLE, render, statements
+from benchfit.log import schema
+from benchfit.log.schema import VERSION_TABLE, render, statements
 
 __all__ = ["LogURL", "PostgresStore", "ServerUnavailable", "is_log_url", "parse_log_url"]
 
@@ -157,10 +158,10 @@ class PostgresStore(LogStore):
         psycopg = self._psycopg
         try:
             have = self._version()
-            if have is not None and have > SCHEMA_VERSION:
+            if have is not None and have > schema.SCHEMA_VERSION:
                 raise LogError(f"{self.where}: log schema version {have} is newer than this benchfit "
-                               f"understands ({SCHEMA_VERSION}) — upgrade benchfit")
-            if have == SCHEMA_VERSION:
+                               f"understands ({schema.SCHEMA_VERSION}) — upgrade benchfit")
+            if have == schema.SCHEMA_VERSION:
                 return
             if have is None and not create:
                 raise LogError(f"{self.where}: no benchfit log in this database yet — run a report (or "
@@ -170,7 +171,7 @@ class PostgresStore(LogStore):
                 have = self._version(locked=True)  # again, under the lock: another bench may have migrated
                 if have is None:
                     self.con.execute(VERSION_TABLE)
-                for version in range((have or 0) + 1, SCHEMA_VERSION + 1):
+                for version in range((have or 0) + 1, schema.SCHEMA_VERSION + 1):
                     for stmt in statements(version, "postgresql"):
                         self.con.execute(stmt)
                     self.con.execute(render("INSERT INTO benchfit_schema(version, applied_utc) "

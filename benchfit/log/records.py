@@ -11,7 +11,9 @@ copy it between logs (merge, sync)::
      "decisions": [{"quantity", "channel", "label", "value", "expanded_u", "lower", "upper",
                     "unit", "rule", "decision", "note"}, ...]}
 
-``time_utc`` None means "now, by the clock of the database that stores it".
+``time_utc`` None means "now, by the clock of the database that stores it". A record read
+from a log whose schema has tables of run rows (:data:`benchfit.log.schema.RUN_TABLES`) also
+has ``"tables": {name: [row without id and run_id, ...]}``.
 """
 
 from __future__ import annotations

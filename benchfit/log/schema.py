@@ -33,7 +33,8 @@ backend (:func:`render`):
 
 Both backends apply the missing versions in order inside one transaction (SQLite
 ``BEGIN IMMEDIATE``, PostgreSQL an advisory lock) and record each in ``benchfit_schema``.
-To add schema 3 — say a table of drift interval series — append one entry and nothing else::
+To add schema 3 — say a table of drift interval series — append one entry (and, for a table
+of run rows, put its name in :data:`RUN_TABLES` below)::
 
     (3, '''
     CREATE TABLE drift_series (
@@ -46,18 +47,16 @@ To add schema 3 — say a table of drift interval series — append one entry an
 
 :data:`SCHEMA_VERSION` follows from the list. Never edit an entry that has been released:
 logs in the field have applied it. Every foreign key gets an index (a test checks this on
-both backends). A new table whose rows belong to a run (``run_id``) must also travel with
-the run through spool, sync and merge: in the same change add it to
-:meth:`~benchfit.log.base.LogStore.read_record`, ``insert_record`` and ``delete_run``
-(the spool deletes a run after pushing it), and to the run-record description in
-:mod:`benchfit.log.records`. A table that stands alone needs only its migration.
+both backends). A new table whose rows belong to a run (``run_id``, no other foreign key)
+also goes into :data:`RUN_TABLES`, in this file: then spool, sync and merge carry its rows with
+the run, with no other change (a test adds such a table this way on both backends).
 """
 
 from __future__ import annotations
 
 from typing import Literal
 
-__all__ = ["MIGRATIONS", "SCHEMA_VERSION", "VERSION_TABLE", "Dialect", "render", "statements"]
+__all__ = ["MIGRATIONS", "RUN_TABLES", "SCHEMA_VERSION", "VERSION_TABLE", "Dialect", "render", "statements"]
 
 Dialect = Literal["sqlite", "postgresql"]
 
@@ -140,6 +139,11 @@ MIGRATIONS: tuple[tuple[int, str], ...] = (
 
 #: schema version this code writes: the last migration's
 SCHEMA_VERSION: int = MIGRATIONS[-1][0]
+
+#: tables added by later migrations whose rows each belong to one run: a ``run_id`` column
+#: referencing runs(id), no other foreign key. Spool, sync and merge copy their rows with the
+#: run (every column but ``id`` and ``run_id``), and the spool deletes them with it.
+RUN_TABLES: tuple[str, ...] = ()
 
 _TOKENS: dict[str, dict[str, str]] = {
     "sqlite": {"pk": "INTEGER PRIMARY KEY", "float": "REAL", "uuid": "bf_uuid()", "now": "bf_now()"},

@@ -24,7 +24,8 @@ from typing import Iterator
 
 from benchfit.errors import LogError
 from benchfit.log.base import LogStore
-from benchfit.log.schema import SCHEMA_VERSION, VERSION_TABLE, statements
+from benchfit.log import schema
+from benchfit.log.schema import VERSION_TABLE, statements
 
 __all__ = ["APPLICATION_ID", "SQLiteStore", "connect"]
 
@@ -91,15 +92,15 @@ def _inspect(path: Path) -> int | None:
             time.sleep(0.05 * (attempt + 1))
         except _EmptyNewLog:
             return None
-    if version is None or version > SCHEMA_VERSION:
+    if version is None or version > schema.SCHEMA_VERSION:
         raise LogError(f"{path}: log schema version {version} is newer than this benchfit understands "
-                       f"({SCHEMA_VERSION}) — upgrade benchfit")
+                       f"({schema.SCHEMA_VERSION}) — upgrade benchfit")
     return int(version)
 
 
 def _migrate(con: sqlite3.Connection, current: int | None) -> None:
     start = 0 if current is None else current
-    if start >= SCHEMA_VERSION:
+    if start >= schema.SCHEMA_VERSION:
         return
     _begin(con)
     try:
@@ -109,7 +110,7 @@ def _migrate(con: sqlite3.Connection, current: int | None) -> None:
         # re-read inside the write lock: another process may have migrated meanwhile
         row = con.execute("SELECT MAX(version) FROM benchfit_schema").fetchone()
         have = row[0] or 0
-        for version in range(have + 1, SCHEMA_VERSION + 1):
+        for version in range(have + 1, schema.SCHEMA_VERSION + 1):
             for stmt in statements(version, "sqlite"):
                 con.execute(stmt)
             con.execute("INSERT INTO benchfit_schema(version, applied_utc) VALUES (?, ?)",

@@ -78,10 +78,10 @@ def test_schema1_file_migrates_keeping_every_row(schema1):
     assert append_run(schema1, command="measure") == 6
 
 
-def _foreign_keys_and_indexes(s: LogStore) -> tuple[set, set]:
+def _foreign_keys_and_indexes(s: LogStore, tables: tuple[str, ...] = TABLES) -> tuple[set, set]:
     fks, indexed = set(), set()
     if s.dialect == "sqlite":
-        for t in TABLES:
+        for t in tables:
             for row in s.con.execute(f"PRAGMA foreign_key_list({t})"):
                 fks.add((t, row[3]))
             for idx in s.con.execute(f"PRAGMA index_list({t})").fetchall():
@@ -103,7 +103,7 @@ def test_every_foreign_key_has_an_index(target, schema1):
     for t in stores:
         with open_store(t) as s:
             fks, indexed = _foreign_keys_and_indexes(s)
-            assert fks == {("runs", "unit_id"), ("captures", "run_id"), ("results", "run_id"),
+            assert fks >= {("runs", "unit_id"), ("captures", "run_id"), ("results", "run_id"),
                            ("results", "capture_id"), ("decisions", "run_id")}
             assert fks <= indexed, fks - indexed
             assert ("runs", "uuid") in indexed
@@ -261,3 +261,52 @@ def test_bench_name(monkeypatch, tmp_path):
     with pytest.raises(LogError, match="not a bench name"):
         use_bench("  ")
     assert store._bench_override is None
+
+
+DRIFT = (3, """
+    CREATE TABLE drift_test (
+        id {pk},
+        run_id BIGINT NOT NULL REFERENCES runs(id),
+        t_s {float} NOT NULL,
+        value {float},
+        u {float}
+    );
+    CREATE INDEX drift_test_run ON drift_test(run_id)
+    """)
+
+
+def test_a_later_migration_adding_a_run_table_is_one_entry(pg_server, pg_url, tmp_path, schema1, monkeypatch):
+    # "schema 3" exactly as the schema module's docstring says: one more MIGRATIONS entry and
+    # the table's name in RUN_TABLES; nothing else changes, on either backend
+    from benchfit.log import schema
+    from benchfit.log.spool import spool_run
+    from benchfit.log.store import sync_log
+
+    sq = tmp_path / "bench.sqlite"
+    append_run(sq, command="measure", unit="HC-08")
+    append_run(pg_url, command="measure", unit="HC-09")             # both logs at schema 2
+    monkeypatch.setattr(schema, "MIGRATIONS", schema.MIGRATIONS + (DRIFT,))
+    monkeypatch.setattr(schema, "SCHEMA_VERSION", 3)
+    monkeypatch.setattr(schema, "RUN_TABLES", ("drift_test",))
+    with open_store(sq) as s:
+        s.con.execute("INSERT INTO drift_test(run_id, t_s, value, u) VALUES (1, 0, 50.01, 0.002), (1, 60, 50.02, 0.002)")
+    list_runs(schema1)                                              # a schema-1 file goes 1 → 3 at once
+    assert merge_log(schema1, pg_url).new == 5 and merge_log(sq, pg_url).new == 1
+    for t in (sq, schema1, pg_url):
+        with open_store(t) as s:
+            assert [r[0] for r in s.con.execute("SELECT version FROM benchfit_schema ORDER BY version")] == [1, 2, 3]
+            fks, indexed = _foreign_keys_and_indexes(s, TABLES + ("drift_test",))
+            assert ("drift_test", "run_id") in fks and fks <= indexed
+    with open_store(pg_url) as d:
+        rid = {r["unit"]: r["id"] for r in d.list_runs()}["HC-08"]
+        assert d.read_record(rid)["tables"] == {"drift_test": [{"t_s": 0.0, "value": 50.01, "u": 0.002},
+                                                               {"t_s": 60.0, "value": 50.02, "u": 0.002}]}
+        rec = d.read_record(rid)
+    # through the spool and back: a fresh server log gets the rows, the spool lets go of them
+    other = pg_server.create_db()
+    path, _ = spool_run(LogURL(other), rec)
+    assert sync_log(other) == (1, 0)
+    with open_store(other) as d:
+        assert d._one("SELECT COUNT(*) FROM drift_test") == 2
+    with open_store(path) as s:
+        assert s.counts()["runs"] == 0 and s._one("SELECT COUNT(*) FROM drift_test") == 0
