@@ -34,8 +34,10 @@ python3 -m pip install --quiet -e '.[test]'
 # A throw-away PostgreSQL cluster (Unix socket only, in a temporary folder, as an unprivileged
 # user), removed on exit even when the tests fail. Without one the shared-log tests start
 # their own; under CI they fail rather than skip when no server can be started.
-pg_dir="$(mktemp -d "${TMPDIR:-/tmp}/benchfit-pg.XXXXXX")"
+pg_dir="$(mktemp -d /tmp/benchfit-pg.XXXXXX)"  # short and open to the server user (socket path limit)
 trap 'bash scripts/pg_throwaway.sh stop "$pg_dir" || true' EXIT
+trap 'exit 130' INT
+trap 'exit 143' TERM
 if pg_url="$(BENCHFIT_PG_PORT=$((50000 + RANDOM % 10000)) bash scripts/pg_throwaway.sh start "$pg_dir")"; then
   export BENCHFIT_TEST_PG="$pg_url" BENCHFIT_TEST_PGDIR="$pg_dir"
 else

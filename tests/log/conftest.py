@@ -52,7 +52,8 @@ def pg_server():
     if url and folder:
         yield PgServer(url, Path(folder))
         return
-    folder = Path(tempfile.mkdtemp(prefix="bfpg."))
+    # /tmp: short (a socket path has a length limit) and reachable by the unprivileged server user
+    folder = Path(tempfile.mkdtemp(prefix="bfpg.", dir="/tmp" if os.path.isdir("/tmp") else None))
     env = dict(os.environ, BENCHFIT_PG_PORT=str(50000 + os.getpid() % 10000))
     res = subprocess.run(["bash", str(SCRIPT), "start", str(folder)], capture_output=True, text=True,
                          timeout=120, env=env)
