@@ -223,9 +223,8 @@ def test_a_password_in_the_url_is_refused_and_not_echoed(url, tmp_path):
     assert list(tmp_path.iterdir()) == []
 
 
-def test_an_unreachable_server_spools_and_makes_no_folder(tmp_path, monkeypatch):
+def test_an_unreachable_server_spools_and_makes_no_folder(tmp_path):
     # nothing listens on port 1; the run must go to the spool and no "postgresql:" folder appear
-    monkeypatch.chdir(tmp_path / "..")
     work = tmp_path / "work"
     work.mkdir()
     env = {"BENCHFIT_SPOOL": str(tmp_path / "spool"), "PGCONNECT_TIMEOUT": "2"}
@@ -310,3 +309,23 @@ def test_a_later_migration_adding_a_run_table_is_one_entry(pg_server, pg_url, tm
         assert d._one("SELECT COUNT(*) FROM drift_test") == 2
     with open_store(path) as s:
         assert s.counts()["runs"] == 0 and s._one("SELECT COUNT(*) FROM drift_test") == 0
+
+
+def test_measure_with_a_server_url_never_makes_a_folder(tmp_path):
+    # the schema-1 code took `--log postgresql://…` for a path and logged into ./postgresql:/…
+    import os
+
+    capture = Path(__file__).resolve().parents[2] / "sample_captures" / "hc03_asleft.wav"
+    work = tmp_path / "work"
+    work.mkdir()
+    env = {**os.environ, "BENCHFIT_SPOOL": str(tmp_path / "spool"), "PGCONNECT_TIMEOUT": "2",
+           "PYTHONPATH": str(Path(__file__).resolve().parents[2]), "COLUMNS": "300"}
+    res = subprocess.run([sys.executable, "-m", "benchfit", "measure", str(capture), "--bench", "bench-5",
+                          "--log", "postgresql://lab@127.0.0.1:1/benchfit"], cwd=work, capture_output=True,
+                         text=True, timeout=120, env=env)
+    assert res.returncode == 0, res.stderr
+    assert "run spooled to" in res.stderr and "(in the spool" in res.stdout + res.stderr
+    assert list(work.iterdir()) == []
+    (spool,) = [p for p in (tmp_path / "spool").iterdir() if p.suffix == ".sqlite"]
+    (run,) = list_runs(spool)
+    assert run["bench"] == "bench-5" and run["command"] == "measure"
