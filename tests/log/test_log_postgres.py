@@ -4,10 +4,7 @@ the server going away mid-batch (spool, sync), and a schema-1 bench log merged i
 from __future__ import annotations
 
 import json
-import os
-import random
 import shutil
-import signal
 import sqlite3
 import subprocess
 import sys
@@ -16,7 +13,6 @@ from pathlib import Path
 
 import pytest
 
-from benchfit.log import base
 from benchfit.log.spool import spool_path, spool_run
 from benchfit.log.store import LogURL, append_run, list_runs, open_store
 
@@ -77,61 +73,79 @@ def test_eight_benches_append_at_once(pg_url, tmp_path):
     assert not (tmp_path / "spool").exists()
 
 
+_KILLER = r"""
+import json, os, random, signal, sys, time
+import psycopg                                  # imported once here, not in each child
+from benchfit.log import base, spool, postgres  # noqa: F401
+from benchfit.log.store import append_run
+url = sys.argv[1]
+meas = {"file": "k.wav", "channels": [{"name": "ch%d" % i, "unit": "V", "frequency_hz": 50.0 + i,
+        "frequency_u_hz": 0.01, "vrms": 1.0, "vdc": 0.0, "vpp": 2.0, "thd_pct": 3.0} for i in range(20)]}
+rng = random.Random(13)
+reported, inside = [], 0
+for k in range(50):
+    at_commit = k % 2 == 0
+    stop_at = rng.randrange(0, 3)
+    r, w = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # the writer
+        try:
+            os.close(r)
+            out = os.fdopen(w, "w", buffering=1)
+            count = [0]
+
+            def hook():
+                if count[0] == stop_at:
+                    out.write("B\n")
+                    time.sleep(30)      # killed here, inside the transaction
+                count[0] += 1
+
+            if at_commit:
+                base.BEFORE_COMMIT = hook
+            for _ in range(1000):
+                rid = append_run(url, command="measure", unit="HC-K%02d" % k, measurements=[meas],
+                                 captures=[{"path": "k.wav"}],
+                                 decisions=[{"quantity": "frequency_hz", "rule": "simple", "decision": "pass"}])
+                out.write("C %s\n" % rid.uuid)
+        finally:
+            os._exit(0)
+    os.close(w)
+    reader = os.fdopen(r)
+    lines = []
+    if at_commit:
+        while (line := reader.readline()) and line != "B\n":
+            lines.append(line)
+        inside += line == "B\n"
+    else:
+        for _ in range(stop_at + 1):
+            lines.append(reader.readline())
+        time.sleep(rng.uniform(0.0, 0.02))
+    os.kill(pid, signal.SIGKILL)
+    os.waitpid(pid, 0)
+    lines += reader.readlines()
+    reader.close()
+    reported.append((k, at_commit, stop_at, [x.split()[1] for x in lines if x.startswith("C ")]))
+print(json.dumps({"inside": inside, "reported": reported}))
+"""
+
+
 def test_sigkill_of_a_writer_mid_transaction_50_times(pg_url):
-    # each child writes runs of 20 channels × 5 quantities (100 results); half of the children are killed from
-    # inside the transaction (just before COMMIT, through the store's test seam), the others at
-    # a random moment. Every run reported committed must be there, and every stored run whole.
-    rng = random.Random(13)
-    reported, inside = [], 0
-    for k in range(50):
-        at_commit = k % 2 == 0
-        stop_at = rng.randrange(0, 3)
-        r, w = os.pipe()
-        pid = os.fork()
-        if pid == 0:  # the writer
-            try:
-                os.close(r)
-                out = os.fdopen(w, "w", buffering=1)
-                count = [0]
-
-                def hook() -> None:
-                    if count[0] == stop_at:
-                        out.write("B\n")
-                        time.sleep(30)      # killed here, inside the transaction
-                    count[0] += 1
-
-                if at_commit:
-                    base.BEFORE_COMMIT = hook
-                for _ in range(1000):
-                    rid = append_run(pg_url, command="measure", unit=f"HC-K{k:02d}", measurements=[_meas("k", 20)],
-                                     captures=[{"path": "k.wav"}],
-                                     decisions=[{"quantity": "frequency_hz", "rule": "simple", "decision": "pass"}])
-                    out.write(f"C {rid.uuid}\n")
-            finally:
-                os._exit(0)
-        os.close(w)
-        reader = os.fdopen(r)
-        lines = []
-        if at_commit:
-            while (line := reader.readline()) and line != "B\n":
-                lines.append(line)
-            assert line == "B\n"
-            inside += 1
-        else:
-            for _ in range(stop_at + 1):
-                lines.append(reader.readline())
-            time.sleep(rng.uniform(0.0, 0.02))
-        os.kill(pid, signal.SIGKILL)
-        os.waitpid(pid, 0)
-        lines += reader.readlines()
-        reader.close()
-        mine = [x.split()[1] for x in lines if x.startswith("C ")]
+    # 50 writers, one after the other, each forked from one fresh process (no pytest threads)
+    # and killed with SIGKILL. Each writes runs of 20 channels × 5 quantities (100 results);
+    # half are killed from inside the transaction (just before COMMIT, through the store's test
+    # seam), the others at a random moment. Every run reported committed must be there, and
+    # every stored run whole.
+    res = subprocess.run([sys.executable, "-c", _KILLER, pg_url], capture_output=True, text=True, timeout=300)
+    assert res.returncode == 0, res.stderr[-2000:]
+    out = json.loads(res.stdout)
+    inside = out["inside"]
+    reported = out["reported"]
+    for k, at_commit, stop_at, mine in reported:
         if at_commit:
             assert len(mine) == stop_at
-        reported.append((k, at_commit, mine))
     assert inside == 25
     results, captures, decisions, units = _db_counts(pg_url)
-    for k, at_commit, mine in reported:
+    for k, at_commit, _, mine in reported:
         assert set(mine) <= set(results)                       # every committed run present
         if at_commit:                                          # the killed transaction left nothing
             assert units.get(f"HC-K{k:02d}", 0) == len(mine)
