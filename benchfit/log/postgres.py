@@ -157,7 +157,10 @@ class PostgresStore(LogStore):
     def _migrate(self, create: bool) -> None:
         psycopg = self._psycopg
         try:
-            have = self._version()
+            try:  # the common case, one cheap query: a log that is set up
+                have = self.con.execute("SELECT MAX(version) FROM benchfit_schema").fetchone()[0]
+            except psycopg.errors.UndefinedTable:
+                have = self._version()
             if have is not None and have > schema.SCHEMA_VERSION:
                 raise LogError(f"{self.where}: log schema version {have} is newer than this benchfit "
                                f"understands ({schema.SCHEMA_VERSION}) — upgrade benchfit")
