@@ -217,7 +217,7 @@ def measure_command(
              "--jobs 1 measures one after the other in this process."),
     log: Optional[str] = typer.Option(
         None, "--log", metavar="PATH", show_default=False,
-        help="Append each measured file as a run (command \"measure\") to this measurement log file; "
+        help="Append each measured file as a run (command \"measure\") to this measurement log file (or postgresql:// URL); "
              "created when missing. Without --log or --log-default nothing is logged."),
     bench: Optional[str] = typer.Option(
         None, "--bench", metavar="NAME",

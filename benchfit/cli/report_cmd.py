@@ -73,7 +73,7 @@ def report_command(
     fix: Optional[List[str]] = typer.Option(None, "--fix", metavar="NAME=VALUE",
                                             help="Hold a fit parameter fixed, e.g. --fix Rload=10k (repeatable)."),
     log: Optional[str] = typer.Option(None, "--log", metavar="PATH",
-                                      help="Measurement log file (default: $BENCHFIT_LOG or the user data "
+                                      help="Measurement log file or postgresql:// URL (default: $BENCHFIT_LOG or the user data "
                                            "directory's benchfit/log.sqlite)."),
     bench: Optional[str] = typer.Option(
         None, "--bench", metavar="NAME",
