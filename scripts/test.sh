@@ -21,7 +21,10 @@ if command -v dpkg >/dev/null 2>&1; then
     dpkg -s "$p" >/dev/null 2>&1 || missing="$missing $p"
   done
 fi
-if [ -n "$missing" ]; then
+if [ -n "$missing" ] && [ "$(id -u)" -ne 0 ] && ! command -v sudo >/dev/null 2>&1; then
+  # a developer without root or sudo: run what can run (tests of absent programs skip outside CI)
+  echo "note: Debian packages missing:$missing — not root and no sudo, so not installed" >&2
+elif [ -n "$missing" ]; then
   sudo=""
   [ "$(id -u)" -eq 0 ] || sudo="sudo"
   echo "installing Debian packages:$missing" >&2
