@@ -272,10 +272,17 @@ def test_password_comes_from_libpq_places_and_is_stored_nowhere(pg_server, tmp_p
         con.execute("SELECT pg_reload_conf()")
     url = pg_server.url("bf_pw_db").replace("user=postgres", "user=bf_pw")
     try:
-        time.sleep(0.3)   # the postmaster re-reads pg_hba.conf on SIGHUP
         from benchfit.errors import LogError
 
         monkeypatch.setenv("PGPASSFILE", str(tmp_path / "none"))
+        deadline = time.monotonic() + 20
+        while time.monotonic() < deadline:   # the postmaster re-reads pg_hba.conf on SIGHUP, soon
+            try:
+                psycopg.connect(url).close()
+            except psycopg.OperationalError as e:
+                assert "password" in str(e)
+                break
+            time.sleep(0.05)
         with pytest.raises(LogError, match="refused the connection"):
             append_run(url, command="measure")
         passfile = tmp_path / "pgpass"
