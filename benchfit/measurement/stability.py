@@ -15,6 +15,9 @@ frozen :class:`Stability` with ``to_dict()``.
   time error σ_x = u_φ/(2π f̄). White phase noise of that size alone gives
   σ_y(τ) = √3·σ_x/τ (from the IEEE 1139 overlapping estimator, E[(x_{i+2m} − 2x_{i+m} + x_i)²]
   = 6σ_x²); it is stated beside every τ so a reader sees what the measurement can resolve.
+* **Estimator weighting.** A least-squares midpoint phase is the mean phase over its
+  interval, so for white FM the chained estimate reads σ_y(τ)·√(1 − τ0/(2τ)) (derived from the
+  second difference of interval-averaged phase): 29 % low at τ = τ0, 3 % at 8τ0.
 * **Warm-up and drift.** The phase-continuous frequencies are fitted (least squares,
   ``scipy.optimize.curve_fit``) with ``f(t) = f∞ + D·t + A·exp(−t/τw)``; when the exponential
   is not significant (|A| < 3 u(A)) or its time constant is not inside the run, the straight
