@@ -36,19 +36,30 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any, Sequence
+from types import MappingProxyType
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 
 from benchfit.errors import MeasureError
 from benchfit.measurement.drift import IntervalReading
 
-__all__ = ["AdevPoint", "Stability", "stability", "overlapping_adev", "DEFAULT_BAND_PPM"]
+__all__ = ["AdevPoint", "Stability", "stability", "overlapping_adev", "DEFAULT_BAND_PPM", "SUMMARY_QUANTITIES"]
 
 #: default warm-up band: ±100 ppm of the mean frequency (±5 mHz at 50 Hz)
 DEFAULT_BAND_PPM = 100.0
 #: averages needed before the lag-1 noise identification is tried (allantools refuses fewer)
 _NOISE_ID_MIN = 32
+#: summary quantities logged as results and limitable in a spec:
+#: quantity → (key of the value, key of its standard uncertainty or None, unit)
+SUMMARY_QUANTITIES: Mapping[str, tuple[str, str | None, str]] = MappingProxyType({
+    "drift_ppm_per_h": ("drift_ppm_per_h", "drift_u_ppm_per_h", "ppm/h"),
+    "warmup_s": ("warmup_s", "warmup_u_s", "s"),
+    "adev_1s": ("adev_1s", None, ""),
+    "level_drift_pct_per_h": ("level_drift_pct_per_h", "level_drift_u_pct_per_h", "%/h"),
+    "final_frequency_hz": ("final_frequency_hz", "final_frequency_u_hz", "Hz"),
+    "thd_max_pct": ("thd_max_pct", None, "%"),
+})
 _NOISE_NAMES = {2: "white PM", 1: "flicker PM", 0: "white FM", -1: "flicker FM", -2: "random-walk FM"}
 
 
@@ -132,17 +143,6 @@ class Stability:
         out["adev"] = [p.to_dict() for p in self.adev]
         out["warnings"] = list(self.warnings)
         return out
-
-    def results(self) -> dict[str, tuple[float | None, float | None, str]]:
-        """The summary quantities as ``{quantity: (value, standard u, unit)}`` for log and spec."""
-        return {
-            "drift_ppm_per_h": (self.drift_ppm_per_h, self.drift_u_ppm_per_h, "ppm/h"),
-            "warmup_s": (self.warmup_s, self.warmup_u_s, "s"),
-            "adev_1s": (self.adev_1s, None, ""),
-            "level_drift_pct_per_h": (self.level_drift_pct_per_h, self.level_drift_u_pct_per_h, "%/h"),
-            "final_frequency_hz": (self.final_frequency_hz, self.final_frequency_u_hz, "Hz"),
-            "thd_max_pct": (self.thd_max_pct, None, "%"),
-        }
 
 
 def overlapping_adev(x: np.ndarray, tau0_s: float, ms: Sequence[int]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -290,25 +290,23 @@ def stability(readings: Sequence[IntervalReading], *, interval_s: float,
     drift = d / fbar * 1e6 * 3600.0
     drift_u = d_u / fbar * 1e6 * 3600.0
 
-    # ---- Allan deviation over the longest segment, after the warm-up when enough is left
+    # ---- Allan deviation of the longest segment, with the fitted warm-up and drift removed:
+    # they are stated on their own, and left in they would swamp σ_y at every τ beyond a few τ0
     segs: dict[int, list[IntervalReading]] = {}
     for r in good:
         segs.setdefault(r.segment, []).append(r)
     seg = max(segs.values(), key=len)
-    span = "whole run"
-    if warm and warm > 0:
-        settled = [r for r in seg if r.t_mid_s >= warm]
-        if len(settled) >= 33:
-            seg = settled
-            span = f"after the warm-up (from {settled[0].t_mid_s:.0f} s)"
     ph = np.array([r.phase_rad for r in seg], dtype=np.float64)
     tm = np.array([r.t_mid_s for r in seg], dtype=np.float64)
     x = (ph - ph[0]) / (2.0 * math.pi * fbar) - (tm - tm[0])
+    x = x - _model_time_error(tm, fitted, (final, d), fbar, model_name)
+    span = ("whole run" if len(seg) == len(good) else f"longest unbroken segment ({len(seg)} intervals)") + \
+        (", fitted warm-up and drift removed" if model_name != "linear" else ", fitted linear drift removed")
     sigma_x = float(np.median([r.phase_u_rad for r in seg])) / (2.0 * math.pi * fbar)
     adev_points = _adev_points(x, interval_s, sigma_x)
     adev_1s = floor_1s = None
     for pnt in adev_points:
-        if abs(pnt.tau_s - 1.0) < 1e-9:
+        if abs(pnt.tau_s - 1.0) < 1e-3:  # a timebase-corrected interval of 1 s is a few ppm off
             adev_1s, floor_1s = pnt.adev, pnt.floor
     if adev_1s is None:
         warnings.append(f"adev_1s: τ = 1 s is not among the averaging times (interval {interval_s:g} s) — "
@@ -337,6 +335,20 @@ def stability(readings: Sequence[IntervalReading], *, interval_s: float,
         level_drift_u_pct_per_h=lvl_u, thd_min_pct=min(thd) if thd else None, thd_max_pct=max(thd) if thd else None,
         adev=tuple(adev_points), adev_1s=adev_1s, adev_1s_floor=floor_1s, adev_span=span,
         segments=len(segs), restarts=max(restarts, 0), warnings=tuple(warnings))
+
+
+def _model_time_error(tm: np.ndarray, fitted, line: tuple[float, float], fbar: float, model: str) -> np.ndarray:
+    """Time error (s) the fitted frequency model accumulates from tm[0] to each tm: the integral of
+    (f_model − f̄)/f̄, so that subtracting it leaves the random part of the phase."""
+    t0 = tm[0]
+    if model == "linear":
+        final, d = line
+        # f(t) = a + d·t with a = final − d·t_end; only the slope matters after the mean is removed
+        a = final - d * tm[-1]
+        return ((a - fbar) * (tm - t0) + 0.5 * d * (tm ** 2 - t0 ** 2)) / fbar
+    finf, d, amp, tau = (float(v) for v in fitted[0])
+    return ((finf - fbar) * (tm - t0) + 0.5 * d * (tm ** 2 - t0 ** 2)
+            + amp * tau * (np.exp(-t0 / tau) - np.exp(-tm / tau))) / fbar
 
 
 def _adev_points(x: np.ndarray, tau0: float, sigma_x: float) -> list[AdevPoint]:
