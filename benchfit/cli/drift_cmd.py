@@ -334,6 +334,7 @@ def _from_line_in(tau0: float, ch_key, harmonics: int, band: float, device: str 
     finally:
         readout.close()
     if interrupted:
-        run = replace(run, warnings=run.warnings + (f"stopped by Ctrl-C after {len(run.readings)} interval(s)",))
+        run = replace(run, interrupted=True,
+                      warnings=run.warnings + (f"stopped by Ctrl-C after {len(run.readings)} interval(s)",))
     # until Ctrl-C is the normal way to end an open run; an early stop of a timed run exits 130
     return run, (130 if interrupted and seconds is not None else 0)
