@@ -55,7 +55,7 @@ _NOISE_ID_MIN = 32
 SUMMARY_QUANTITIES: Mapping[str, tuple[str, str | None, str]] = MappingProxyType({
     "drift_ppm_per_h": ("drift_ppm_per_h", "drift_u_ppm_per_h", "ppm/h"),
     "warmup_s": ("warmup_s", "warmup_u_s", "s"),
-    "adev_1s": ("adev_1s", None, ""),
+    "adev_1s": ("adev_1s", "adev_1s_u", ""),
     "level_drift_pct_per_h": ("level_drift_pct_per_h", "level_drift_u_pct_per_h", "%/h"),
     "final_frequency_hz": ("final_frequency_hz", "final_frequency_u_hz", "Hz"),
     "thd_max_pct": ("thd_max_pct", None, "%"),
@@ -126,6 +126,7 @@ class Stability:
     thd_max_pct: float | None
     adev: tuple[AdevPoint, ...]
     adev_1s: float | None
+    adev_1s_u: float | None
     adev_1s_floor: float | None
     adev_span: str
     segments: int
@@ -139,7 +140,7 @@ class Stability:
             "drift_ppm_per_h", "drift_u_ppm_per_h", "model", "warmup_s", "warmup_u_s", "warmup_band_ppm",
             "warmup_tau_s", "warmup_tau_u_s", "warmup_step_ppm", "warmup_step_u_ppm", "level_mean",
             "level_unit", "level_drift_pct_per_h", "level_drift_u_pct_per_h", "thd_min_pct", "thd_max_pct",
-            "adev_1s", "adev_1s_floor", "adev_span", "segments", "restarts")}
+            "adev_1s", "adev_1s_u", "adev_1s_floor", "adev_span", "segments", "restarts")}
         out["adev"] = [p.to_dict() for p in self.adev]
         out["warnings"] = list(self.warnings)
         return out
@@ -304,10 +305,12 @@ def stability(readings: Sequence[IntervalReading], *, interval_s: float,
         (", fitted warm-up and drift removed" if model_name != "linear" else ", fitted linear drift removed")
     sigma_x = float(np.median([r.phase_u_rad for r in seg])) / (2.0 * math.pi * fbar)
     adev_points = _adev_points(x, interval_s, sigma_x)
-    adev_1s = floor_1s = None
+    adev_1s = adev_1s_u = floor_1s = None
     for pnt in adev_points:
         if abs(pnt.tau_s - 1.0) < 1e-3:  # a timebase-corrected interval of 1 s is a few ppm off
+            # u: half the 68.3 % interval (chi-squared, Greenhall–Riley edf), the estimate's own scatter
             adev_1s, floor_1s = pnt.adev, pnt.floor
+            adev_1s_u = 0.5 * (pnt.ci_high - pnt.ci_low)
     if adev_1s is None:
         warnings.append(f"adev_1s: τ = 1 s is not among the averaging times (interval {interval_s:g} s) — "
                         "use --interval 1s (or a divisor of 1 s)")
@@ -333,7 +336,7 @@ def stability(readings: Sequence[IntervalReading], *, interval_s: float,
         warmup_band_ppm=float(band_ppm), warmup_tau_s=tau_w, warmup_tau_u_s=tau_u, warmup_step_ppm=step,
         warmup_step_u_ppm=step_u, level_mean=level_mean, level_unit=good[0].unit, level_drift_pct_per_h=lvl,
         level_drift_u_pct_per_h=lvl_u, thd_min_pct=min(thd) if thd else None, thd_max_pct=max(thd) if thd else None,
-        adev=tuple(adev_points), adev_1s=adev_1s, adev_1s_floor=floor_1s, adev_span=span,
+        adev=tuple(adev_points), adev_1s=adev_1s, adev_1s_u=adev_1s_u, adev_1s_floor=floor_1s, adev_span=span,
         segments=len(segs), restarts=max(restarts, 0), warnings=tuple(warnings))
 
 
