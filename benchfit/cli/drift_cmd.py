@@ -28,10 +28,10 @@ _HELP = (
     "From a file (WAV, FLAC or CSV, read in blocks: constant memory for any length), or from the "
     "line-in without FILE (--seconds, or until Ctrl-C, which stops cleanly and keeps everything).\n\n"
     "Examples:\n\n\b\n"
-    "  benchfit drift sample_captures/HC-05_warmup.flac\n"
-    "  benchfit drift --device 2 --profile desk --seconds 3600 --keep hc05_run.wav \\\n"
-    "      --unit HC-05 --log-default\n"
-    "  benchfit drift hc05_run.wav --json > hc05_drift.json\n\n"
+    "  benchfit drift sample_captures/hc08_warmup.flac\n"
+    "  benchfit drift --device 2 --profile desk --seconds 3600 --keep hc08_run.wav \\\n"
+    "      --unit HC-08 --log-default\n"
+    "  benchfit drift hc08_run.wav --json > hc08_drift.json\n\n"
     "Safety: a line input takes about 1-2 V peak. Feed it through a resistive divider and a "
     "DC-blocking capacitor; never connect mains or anything referenced to mains; a unit left "
     "running for hours should be on a current-limited supply. Local codes and qualified practice "
@@ -105,13 +105,14 @@ class _Readout:
 
 
 def _value(v: float | None, u: float | None, unit: str, digits: int = 4) -> str:
-    from benchfit.units import format_with_uncertainty
-
+    """``v ± u unit`` with u to two significant digits and v to the same decimal place (GUM 7.2.6),
+    without SI prefixes: ppm/h, %/h and s read best as plain numbers."""
     if v is None:
         return "—"
-    if u is None or not (u > 0):
+    if u is None or not (u > 0) or not math.isfinite(u):
         return f"{v:.{digits}g} {unit}".strip()
-    return format_with_uncertainty(v, u, unit)
+    dec = max(0, 1 - int(math.floor(math.log10(u))))
+    return f"{v:.{dec}f} ± {u:.{dec}f} {unit}".strip()
 
 
 def render_summary(run: dict[str, Any], console) -> None:
@@ -119,7 +120,7 @@ def render_summary(run: dict[str, Any], console) -> None:
     st = run.get("stability")
     src = run.get("file") or run.get("device") or "input"
     console.print(f"drift run of {src}, channel {run['channel']} ({run['channel_unit']}): "
-                  f"{run['n_intervals']} intervals of {run['interval_s']:g} s = {run['duration_s']:.0f} s",
+                  f"{run['n_intervals']} intervals of {run['interval_s']:g} s = {run['duration_s']:.4g} s",
                   markup=False, highlight=False, soft_wrap=True)
     if st is None:
         for w in run["warnings"]:
@@ -127,6 +128,7 @@ def render_summary(run: dict[str, Any], console) -> None:
         return
     band = st["warmup_band_ppm"]
     warm = ("not settled by the end" if st["warmup_s"] is None else
+            "0 s (no warm-up transient found: a straight line fits)" if st["model"] == "linear" else
             _value(st["warmup_s"], st["warmup_u_s"], "s"))
     lines = [
         ("mean frequency", f"{st['mean_frequency_hz']:.6f} Hz (min {st['frequency_min_hz']:.6f}, "
@@ -161,7 +163,7 @@ def render_summary(run: dict[str, Any], console) -> None:
 
 @app.command("drift", help=_HELP, short_help="Warm-up, drift and Allan deviation of a unit over a long run.")
 def drift_command(
-    file: Optional[Path] = typer.Argument(None, metavar="[FILE]", show_default=False,
+    file: Optional[Path] = typer.Argument(None, metavar="FILE", show_default=False,
                                           help="Long capture (WAV, FLAC, CSV). Without it: the line-in."),
     interval: str = typer.Option("1s", "--interval", metavar="DURATION", help="Interval length, e.g. 1s or 500ms."),
     channel: Optional[str] = typer.Option(None, "--channel", "-c", metavar="CH",

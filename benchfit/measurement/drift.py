@@ -37,17 +37,12 @@ from typing import Any
 import numpy as np
 
 from benchfit.errors import MeasureError
+from benchfit.measurement.result import _clean
 
 __all__ = ["IntervalReading", "IntervalTracker", "midpoint_phase"]
 
 #: a prediction more than this far (rad) from the measured phase is ambiguous: restart the chain
 _CHAIN_LIMIT_RAD = 0.5 * math.pi
-
-
-def _clean(v: Any) -> Any:
-    if isinstance(v, float) and not math.isfinite(v):
-        return None
-    return v
 
 
 @dataclass(frozen=True)

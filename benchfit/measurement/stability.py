@@ -42,6 +42,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from benchfit.errors import MeasureError
+from benchfit.measurement.result import _clean
 from benchfit.measurement.drift import IntervalReading
 
 __all__ = ["AdevPoint", "Stability", "stability", "overlapping_adev", "DEFAULT_BAND_PPM", "SUMMARY_QUANTITIES"]
@@ -61,12 +62,6 @@ SUMMARY_QUANTITIES: Mapping[str, tuple[str, str | None, str]] = MappingProxyType
     "thd_max_pct": ("thd_max_pct", None, "%"),
 })
 _NOISE_NAMES = {2: "white PM", 1: "flicker PM", 0: "white FM", -1: "flicker FM", -2: "random-walk FM"}
-
-
-def _clean(v: Any) -> Any:
-    if isinstance(v, float) and not math.isfinite(v):
-        return None
-    return v
 
 
 @dataclass(frozen=True)
