@@ -95,7 +95,7 @@ class _Tour:
 @app.command("demo", short_help="Run the whole job on the bundled sample captures.", help=(
     "Run the whole job on the bundled sample captures: measure, fit (two-channel, one-channel, "
     "ring-down), a calibration report per unit (one fails), the log and its batch statistics, "
-    "trim advice, and a unit's stability over a warm-up. Writes everything to --out.\n\n"
+    "trim advice, and one unit's stability over ten minutes. Writes everything to --out.\n\n"
     "\b\nExample:\n  benchfit demo --out benchfit-demo"))
 def demo_command(
     out: Path = typer.Option(Path("benchfit-demo"), "--out", show_default=False,

@@ -29,12 +29,12 @@ _HELP = (
     "line-in without FILE (--seconds, or until Ctrl-C, which stops cleanly and keeps everything).\n\n"
     "Examples:\n\n\b\n"
     "  benchfit drift sample_captures/hc08_warmup.flac\n"
-    "  benchfit drift --device 2 --profile desk --seconds 3600 --keep hc08_run.wav \\\n"
-    "      --unit HC-08 --log-default\n"
+    "  benchfit drift --device 2 --profile desk --seconds 3600 \\\n"
+    "      --keep hc08_run.wav --unit HC-08 --log-default\n"
     "  benchfit drift hc08_run.wav --json > hc08_drift.json\n\n"
     "Safety: a line input takes about 1-2 V peak. Feed it through a resistive divider and a "
     "DC-blocking capacitor; never connect mains or anything referenced to mains; a unit left "
-    "running for hours should be on a current-limited supply. Local codes and qualified practice "
+    "running for hours belongs on a supply with a current limit. Local codes and qualified practice "
     "take precedence."
 )
 
