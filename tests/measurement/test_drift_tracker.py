@@ -88,3 +88,20 @@ def test_a_sine_switches_the_duty_search_off():
     n = int(FS)
     r = tr.push(_tone(50.0, n), 0)
     assert r.duty_cycle_pct is None and tr._duty is False
+
+
+def test_chained_frequency_uncertainty_is_honest():
+    """A steady 50.0123 Hz tone in seeded white noise: z = (f − f_true)/u over 300 chained
+    intervals has a spread of 1 (the phase u comes from the fit covariance, which reaches the
+    Cramér–Rao bound for white noise: Rife & Boorstyn 1974). Adjacent z share a phase, so the
+    effective number is about 150: 0.85…1.15 is a 3-sigma band for the sample std. The mean
+    telescopes to the two end phases, so 3/√150 is a loose bound for it."""
+    rng = np.random.default_rng(1057)
+    n = int(FS)
+    t = np.arange(300 * n) / FS
+    x = np.cos(2 * math.pi * 50.0123 * t + 0.4) + 0.05 * rng.normal(size=t.size)
+    tr = IntervalTracker(FS, n_harmonics=1)
+    rs = [tr.push(x[k * n:(k + 1) * n], k * n) for k in range(300)]
+    z = np.array([(r.chain_frequency_hz - 50.0123) / r.chain_frequency_u_hz for r in rs[1:]])
+    assert abs(z.mean()) < 3 / math.sqrt(150)
+    assert 0.85 < z.std(ddof=1) < 1.15
