@@ -245,12 +245,82 @@ def main() -> None:
               "2026-11-28T17:45:00Z", u.serial)
     info["hc07_output.wav"] = u
 
+    warmup_samples()
+
     for name, u in info.items():
         f0 = 1 / (2 * math.pi * math.sqrt(u.l_h * u.c_f))
         print(f"{name:28s} {u.serial}: timer {u.f_timer:.2f} Hz, L {u.l_h * 1e3:.0f} mH, "
               f"C {u.c_f * 1e6:.1f} µF, f0 {f0:.2f} Hz")
     total = sum(p.stat().st_size for p in OUT.iterdir() if p.is_file())
     print(f"sample_captures/: {total / 1e6:.2f} MB")
+
+
+# --- HC-08: a 10-minute warm-up run on the line-in, for 'benchfit drift' (own seed) ------------
+WARM_FS = 8000        # the card at 8 kHz: a 10-minute mono FLAC stays small
+WARM_S = 600.0
+WARM_F = 50.02        # settled frequency, Hz
+WARM_STEP = -600e-6   # fractional frequency offset at switch-on (the 555 runs slow while cold)
+WARM_TAU_S = 75.0     # warm-up time constant, s
+WARM_DRIFT = 30e-6 / 3600.0   # +30 ppm/h after warm-up (fractional per second)
+WARM_WHITE = 1e-6     # white FM: σ_y(1 s) = 1e-6
+WARM_FLICKER = 3e-7   # flicker FM floor of σ_y (about)
+WARM_AMP_V = 1.70     # output peak amplitude (1.2 V rms), settling 0.4 % lower as it warms
+WARM_H3 = 0.022       # third harmonic left by the L-C filter (THD about 2.2 %)
+
+
+def _flicker(rng, n: int) -> np.ndarray:
+    """Flicker (1/f) fractional-frequency noise by spectral shaping of white noise (seeded)."""
+    spec = np.fft.rfft(rng.normal(size=n))
+    f = np.fft.rfftfreq(n)
+    f[0] = f[1]
+    y = np.fft.irfft(spec / np.sqrt(f), n)
+    return y / np.std(y)
+
+
+def warm_law(t: np.ndarray) -> np.ndarray:
+    """The deterministic part of HC-08's fractional frequency: exponential approach plus drift."""
+    return WARM_STEP * np.exp(-t / WARM_TAU_S) + WARM_DRIFT * t
+
+
+def warmup_samples() -> None:
+    """``hc08_warmup.flac``: 10 min of HC-08 from switch-on, 8 kHz mono, with sidecar; and
+    ``hc08_output.flac``: the 1 s as-left capture at 48 kHz made right after the run."""
+    rng = np.random.default_rng(20261208)
+    rate_y = 20.0  # fractional frequency sampled at 20 Hz, phase integrated and interpolated
+    n_y = int(WARM_S * rate_y) + 1
+    ty = np.arange(n_y) / rate_y
+    # white FM of σ at 1 s: per-sample σ·√rate; flicker FM scaled so σ_y is about WARM_FLICKER
+    y = (warm_law(ty) + WARM_WHITE * math.sqrt(rate_y) * rng.normal(size=n_y)
+         + 2.6 * WARM_FLICKER * _flicker(rng, n_y))  # σ_y floor ≈ 0.38·std for 1/f over 4 decades
+    cycles = np.concatenate([[0.0], np.cumsum(WARM_F * (1 + y[:-1]) / rate_y)])
+    card = 1 + CARD_PPM * 1e-6  # the card's clock runs fast: its true rate is WARM_FS·card
+    t = np.arange(int(WARM_S * WARM_FS)) / (WARM_FS * card)
+    phase = 2 * math.pi * np.interp(t, ty, cycles)
+    amp = WARM_AMP_V * (1 - 0.004 * (1 - np.exp(-t / WARM_TAU_S)))
+    gain = 4.0
+    x = (amp * (np.cos(phase) + WARM_H3 * np.cos(3 * phase + 0.4))) / gain
+    x = x + rng.normal(0, 2e-4, x.size)
+    x = np.round(x * 32767) / 32767
+    side = {
+        "benchfit_sidecar": 1, "channels": [{"name": "output"}], "sample_rate_hz": WARM_FS,
+        "device": "line-in (USB audio adapter)", "start_utc": "2026-11-29T09:00:00Z",
+        "overflow_count": 0, "clip_count": 0,
+        "calibration": dict(PROFILE, gain_v_per_fs=[gain], gain_u_rel=[CARD_GAIN_U_REL]),
+        "benchfit_version": "0.1.0", "unit": "HC-08",
+    }
+    sf.write(str(OUT / "hc08_warmup.flac"), x, WARM_FS, subtype="PCM_16", format="FLAC")
+    (OUT / "hc08_warmup.json").write_text(json.dumps(side, indent=2) + "\n")
+    # as left, right after the run: 1 s at 48 kHz at the settled frequency
+    f_end = WARM_F * (1 + float(warm_law(np.array([WARM_S]))[0]))
+    t = np.arange(48_000) / (48_000 * card)
+    a = WARM_AMP_V * 0.996
+    x = a * (np.cos(2 * math.pi * f_end * t) + WARM_H3 * np.cos(3 * 2 * math.pi * f_end * t + 0.4)) / gain
+    x = np.round((x + rng.normal(0, 2e-4, x.size)) * 32767) / 32767
+    write_wav(OUT / "hc08_output.flac", x, ["output"], [gain], "line-in (USB audio adapter)",
+              "2026-11-29T09:10:05Z", "HC-08", subtype="PCM_16", fmt="FLAC")
+    size = (OUT / "hc08_warmup.flac").stat().st_size
+    print(f"hc08_warmup.flac             HC-08: {WARM_S:.0f} s warm-up at {WARM_FS} Hz, τ {WARM_TAU_S:g} s, "
+          f"step {WARM_STEP * 1e6:+.0f} ppm, drift {WARM_DRIFT * 3.6e9:+.0f} ppm/h, {size / 1e6:.2f} MB")
 
 
 if __name__ == "__main__":

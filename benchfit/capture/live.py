@@ -213,7 +213,8 @@ class _Stats:
         return st
 
 
-def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats, integer: bool) -> None:
+def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats, integer: bool,
+            tap: "Callable[[np.ndarray], None] | None" = None) -> None:
     """Writer thread: stream blocks from the queue into the open sound file until ``None``.
 
     For an integer file (PCM_24) samples beyond ±1 FS (possible from a float sound server)
@@ -229,6 +230,8 @@ def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats, integer: bool) -
             continue  # keep draining so the producer never blocks
         try:
             sf_file.write(np.clip(block, -1.0, 1.0) if integer else block)
+            if tap is not None:
+                tap(block)  # after the write: a tapped block is always in the file
         except Exception as e:  # disk full, file removed: report it, keep the queue moving
             with stats.lock:
                 stats.error = e
@@ -263,7 +266,8 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
            device: str | int | None = None, names: list[str] | tuple[str, ...] | str | None = None,
            profile: str | None = None, overwrite: bool = False,
            on_block: Callable[[RecordStatus], None] | None = None,
-           sample_format: SampleFormat = "pcm24") -> RecordingResult:
+           sample_format: SampleFormat = "pcm24",
+           tap: Callable[[np.ndarray], None] | None = None) -> RecordingResult:
     """Record an input device into a WAV file and write its sidecar JSON.
 
     Parameters
@@ -290,6 +294,10 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
         (progress, peak level per channel, clip and overflow counts).
     sample_format : {"pcm24", "float"}, default "pcm24"
         WAV sample format: 24-bit integer or 32-bit float.
+    tap : callable, optional
+        Called from the writer thread with each block (frames × channels, float32 FS) right
+        after it was written, so a caller can analyse the stream while it is kept
+        (``benchfit drift --keep``). It must be quick and must not raise.
 
     Returns
     -------
@@ -366,7 +374,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
                                subtype=_SUBTYPES[sample_format], format="WAV")
     except (sf.LibsndfileError, RuntimeError, OSError) as e:
         raise CaptureError(f"{out}: cannot be created ({e}) — check the folder is writable") from e
-    writer = threading.Thread(target=_writer, args=(sf_file, blocks, stats, sample_format == "pcm24"),
+    writer = threading.Thread(target=_writer, args=(sf_file, blocks, stats, sample_format == "pcm24", tap),
                               name="benchfit-writer", daemon=True)
     writer.start()
     try:

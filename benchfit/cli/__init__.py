@@ -14,7 +14,7 @@ from typing import NoReturn
 __all__ = ["main", "usage_message"]
 
 _COMMAND_MODULES = ("measure_cmd", "fit_cmd", "live_cmd", "report_cmd", "log_cmd",
-                    "design_cmd", "demo_cmd")
+                    "design_cmd", "demo_cmd", "drift_cmd")
 
 
 def get_app():

@@ -95,7 +95,7 @@ class _Tour:
 @app.command("demo", short_help="Run the whole job on the bundled sample captures.", help=(
     "Run the whole job on the bundled sample captures: measure, fit (two-channel, one-channel, "
     "ring-down), a calibration report per unit (one fails), the log and its batch statistics, "
-    "and trim advice. Writes everything to --out.\n\n"
+    "trim advice, and one unit's stability over ten minutes. Writes everything to --out.\n\n"
     "\b\nExample:\n  benchfit demo --out benchfit-demo"))
 def demo_command(
     out: Path = typer.Option(Path("benchfit-demo"), "--out", show_default=False,
@@ -175,6 +175,16 @@ def demo_command(
     tour.run(["design", "trim", "--fit", str(fit_json), "--target", "50", "--bank", "22u,10u,1u"])
     tour.run(["design", "trim", "--target", "50", "--timer-frequency", "50.40", "--timer-frequency-u",
               "0.001", *_TIMER])
+
+    tour.section("6. Stability over a warm-up",
+                 "HC-08 recorded for 10 minutes from switch-on (8 kHz, one channel): every 1 s interval "
+                 "measured with phases chained across intervals; warm-up time, drift rate and the Allan "
+                 "deviation, logged; then its calibration report with a Stability section judged against "
+                 "the stability limits.")
+    tour.run(["drift", s("hc08_warmup.flac"), "--log", log])
+    tour.run(["report", s("hc08_output.flac"), "--unit", "HC-08", "--spec", s("hc_spec_stability.toml"),
+              "--drift", s("hc08_warmup.flac"), "--operator", "demo", "--out", str(out / "reports"), "--log", log])
+    tour.run(["log", "stats", "warmup_s", "--spec", s("hc_spec_stability.toml"), "--log", log])
 
     elapsed = time.perf_counter() - started
     index = _write_index(out / "reports")

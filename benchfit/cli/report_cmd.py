@@ -80,6 +80,9 @@ def report_command(
         help="This bench's (station's) name on the logged runs (default: $BENCHFIT_BENCH or the host name)."),
     no_log: bool = typer.Option(False, "--no-log", help="Do not append this run to the measurement log."),
     no_figures: bool = typer.Option(False, "--no-figures", help="Leave the figures out (faster)."),
+    drift: Optional[Path] = typer.Option(None, "--drift", metavar="RUN",
+                                         help="A drift run of the unit for the Stability section: the JSON of "
+                                              "'benchfit drift --json', or the long capture itself (not with --each)."),
     as_json: bool = typer.Option(False, "--json", help="Print the paths and verdict as one JSON object "
                                                        "(with --each: one line per unit as it finishes)."),
 ) -> None:
@@ -111,6 +114,8 @@ def report_command(
         if as_found:
             fail("--as-found: not used with --each — report a unit with as-found captures on its own, "
                  "without --each")
+        if drift is not None:
+            fail("--drift: not used with --each — report the unit with its drift run on its own, without --each")
     elif unit is None:
         fail("--unit: missing — give the serial of the unit (e.g. --unit HC-07), or --each to make "
              "every capture its own unit")
@@ -121,12 +126,15 @@ def report_command(
         _report_each(paths, notes, spec=spec, out=out, fit=fit, operator=operator, log_path=log_path,
                      with_figures=not no_figures, as_json=as_json, jobs=jobs)
         return
+    if drift is not None and not drift.is_file():
+        fail(f"{drift}: no such file — give the JSON of 'benchfit drift --json' or the long capture")
     _report_one(paths, unit=unit, spec=spec, as_found=as_found or [], operator=operator, out=out, fit=fit,
-                log_path=log_path, with_figures=not no_figures, as_json=as_json)
+                log_path=log_path, with_figures=not no_figures, as_json=as_json, drift=drift)
 
 
 def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path], operator: str | None,
-                out: Path, fit, log_path: Path | None, with_figures: bool, as_json: bool) -> None:
+                out: Path, fit, log_path: Path | None, with_figures: bool, as_json: bool,
+                drift: Path | None = None) -> None:
     """All captures belong to one unit (in this process)."""
     from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.report.assemble import run_unit
@@ -138,7 +146,7 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
     with stderr.status("benchfit report", spinner="line") as status:
         result = run_unit(paths, unit=unit, spec=spec, as_found=as_found, operator=operator,
                           out_dir=out, fit=fit, log_path=log_path, with_figures=with_figures,
-                          progress=lambda text: status.update(text))
+                          progress=lambda text: status.update(text), drift=drift)
     if as_json:
         print_json({"unit": unit, "verdict": result.verdict, "exit_code": result.exit_code,
                     "html": str(result.html_path), "json": str(result.json_path),

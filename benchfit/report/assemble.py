@@ -157,6 +157,41 @@ def _fitted_value(limit: Limit, fits: Sequence[Mapping[str, Any]]) -> dict[str, 
             "reason": "; ".join(reasons) or "no fit made — give fit options or check the fit errors"}
 
 
+#: the method line of a report that has a Stability section
+DRIFT_METHOD = ("Stability (benchfit drift): back-to-back intervals, each fitted by least squares at the running "
+                "frequency (IEEE Std 1057 three-parameter fit, harmonics for THD); midpoint phases chained across "
+                "intervals give phase-continuous frequencies; overlapping Allan deviation of the fractional "
+                "frequency (IEEE Std 1139) by the allantools library with Greenhall–Riley equivalent degrees of "
+                "freedom, after removing the fitted warm-up and drift; warm-up f∞ + D·t + A·exp(−t/τ) by least "
+                "squares, uncertainties widened for correlated residuals.")
+
+
+def _drift_value(limit: Limit, drift: Mapping[str, Any] | None) -> dict[str, Any]:
+    """A stability quantity from a drift run (the JSON contract of ``benchfit drift``)."""
+    from benchfit.measurement.stability import SUMMARY_QUANTITIES
+
+    none = {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit}
+    if drift is None:
+        return {**none, "reason": "no drift run given — add --drift RUN.json (or the long capture) to the report"}
+    st = drift.get("stability")
+    if not st:
+        return {**none, "reason": f"{drift.get('file') or 'drift run'}: no stability statistics "
+                                  f"({'; '.join(drift.get('warnings') or []) or 'too short'})"}
+    vkey, ukey, _ = SUMMARY_QUANTITIES[limit.quantity]
+    value = st.get(vkey)
+    if value is None:
+        return {**none, "reason": f"{drift.get('file') or 'drift run'}: {limit.quantity} not determined"
+                                  + (f" ({'; '.join(st.get('warnings') or [])})" if st.get("warnings") else "")}
+    return {"value": value, "u": st.get(ukey) if ukey else None, "file": drift.get("file") or drift.get("kept"),
+            "channel": drift.get("channel"), "unit": limit.unit, "reason": ""}
+
+
+def stability_entry(drift: Mapping[str, Any]) -> dict[str, Any]:
+    """The report model's ``stability`` object: the drift run without its series (the figures
+    carry the series; the run's own JSON keeps it)."""
+    return {k: v for k, v in drift.items() if k != "series"}
+
+
 def _judge(limit: Limit, picked: dict[str, Any], rule: str) -> dict[str, Any]:
     u = picked["u"]
     expanded = None if u is None else COVERAGE_K * float(u)
@@ -214,7 +249,7 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
                  as_found: Sequence[tuple[Any, Any]] = (), fits_left: Sequence[Any] = (),
                  fits_found: Sequence[Any] = (), fit_errors: Sequence[str] = (),
                  operator: str | None = None, created_utc: str | None = None,
-                 notes: Sequence[str] = ()) -> dict[str, Any]:
+                 notes: Sequence[str] = (), drift: Mapping[str, Any] | None = None) -> dict[str, Any]:
     """The report model of one unit (JSON-ready dict).
 
     Parameters
@@ -235,6 +270,10 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
         ISO 8601 UTC time stamp; default now.
     notes : sequence of str
         Extra notes.
+    drift : mapping, optional
+        A drift run of the unit (the JSON contract of ``benchfit drift``): its stability
+        summary becomes the report's Stability section, and limits on ``warmup_s``,
+        ``drift_ppm_per_h``, ``adev_1s``, … are judged from it.
     """
     if not as_left:
         raise SpecError(f"{unit}: no as-left capture — give at least one capture to report on")
@@ -247,7 +286,10 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
     found_fits = [{"role": "as-found", "fit": f.to_dict()} for f in fits_found]
     rows = []
     for lim in spec.limits:
-        if lim.quantity in FITTED_QUANTITIES:
+        if lim.source == "drift":
+            left = _judge(lim, _drift_value(lim, drift), spec.decision_rule)
+            found = None
+        elif lim.quantity in FITTED_QUANTITIES:
             left = _judge(lim, _fitted_value(lim, left_fits), spec.decision_rule)
             found = _judge(lim, _fitted_value(lim, found_fits), spec.decision_rule) if as_found else None
         else:
@@ -289,8 +331,9 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
         "measurements": found_meas + left_meas,
         "fits": found_fits + left_fits,
         "fit_errors": list(fit_errors),
+        "stability": stability_entry(drift) if drift is not None else None,
         "trim": _trim_entry(all_fits, spec),
-        "methods": list(METHODS),
+        "methods": list(METHODS) + ([DRIFT_METHOD] if drift is not None else []),
         "warnings": warnings,
         "notes": ([spec.notes] if spec.notes else []) + list(notes),
         "safety": list(SAFETY_NOTES),
@@ -298,6 +341,29 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
 
 
 # --- one unit, end to end (I/O) ----------------------------------------------------------
+
+def load_drift(drift: str | Path | Mapping[str, Any]) -> dict[str, Any]:
+    """A drift run as the JSON contract: given as a dict, a ``benchfit drift --json`` file, or
+    the long capture (analysed at 1 s intervals with the defaults of ``benchfit drift``)."""
+    import json
+
+    if isinstance(drift, Mapping):
+        return dict(drift)
+    p = Path(drift)
+    if p.suffix.lower() == ".json" and p.is_file():
+        try:
+            d = json.loads(p.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, ValueError) as e:
+            raise SpecError(f"{p}: not a readable drift run ({e}) — give the JSON of 'benchfit drift --json' "
+                            "or the capture itself") from e
+        if not isinstance(d, dict) or d.get("benchfit_drift") != 1:
+            raise SpecError(f"{p}: not a drift run (no \"benchfit_drift\": 1) — give the JSON of "
+                            "'benchfit drift --json' or the capture itself")
+        return d
+    from benchfit.measurement.drift_run import drift_file
+
+    return drift_file(p).to_dict()
+
 
 def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
     """``benchfit.fit_lowpass`` or ``benchfit.fit_ringdown`` and the keyword options it accepts.
@@ -361,7 +427,8 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
              as_found: Sequence[str | Path] = (), operator: str | None = None,
              out_dir: str | Path = ".", fit: FitOptions | None = None,
              log_path: str | Path | None = None, with_figures: bool = True,
-             progress: Callable[[str], None] | None = None, defer_log: bool = False) -> UnitRun:
+             progress: Callable[[str], None] | None = None, defer_log: bool = False,
+             drift: str | Path | Mapping[str, Any] | None = None) -> UnitRun:
     """Measure (and fit) one unit's captures, write its HTML report and JSON twin, log the run.
 
     Parameters
@@ -390,6 +457,9 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     defer_log : bool
         Do not write the log; return what would be appended as ``UnitRun.log_entry``
         (plain, picklable data) so that a batch appends every unit from one process.
+    drift : path or mapping, optional
+        A drift run of the unit: the JSON written by ``benchfit drift --json``, or the long
+        capture itself (then analysed here at 1 s intervals), or the run as a dict.
 
     Returns
     -------
@@ -422,10 +492,22 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
                     # a capture that cannot be fitted is reported (its fitted limits become
                     # "not measured"); the other captures are still judged
                     fit_errors.append(f"{capture.source}: {e}")
+    drift_run = None
+    if drift is not None:
+        step(f"stability of {drift}" if not isinstance(drift, Mapping) else "stability")
+        drift_run = load_drift(drift)
     report = build_report(unit=unit, spec=sp, as_left=left, as_found=found, fits_left=fits_left,
-                          fits_found=fits_found, fit_errors=fit_errors, operator=operator)
+                          fits_found=fits_found, fit_errors=fit_errors, operator=operator, drift=drift_run)
     step("drawing figures and writing the report")
     figs = _figures(left, fits_left, report["results"]) if with_figures else []
+    if with_figures and drift_run is not None and drift_run.get("stability"):
+        from benchfit.report import figures
+
+        figs.append({"title": "Frequency over the run (phase-continuous, one point per interval)",
+                     "svg": str(figures.drift_frequency_svg(drift_run)), "section": "stability"})
+        figs.append({"title": "Overlapping Allan deviation with 68 % confidence intervals and the "
+                              "estimator's white-noise floor", "svg": str(figures.allan_svg(drift_run)),
+                     "section": "stability"})
     html_text = render_html(report, figs)
     html_path, json_path = write_report(report, html_text, out_dir)
     run_id = None

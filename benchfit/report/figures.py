@@ -18,6 +18,10 @@ spectrum_svg(channel_measurement)
     Harmonic amplitudes on a log scale.
 fit_svg(fit_result)
     Data and model over time, |H| and phase at the harmonics, residuals.
+drift_frequency_svg(drift_run)
+    Frequency over a drift run, as ppm from the final value, with the warm-up band.
+allan_svg(drift_run)
+    Overlapping Allan deviation (log–log) with confidence intervals and the estimator floor.
 save_figure(svg_or_fig, path)
     Write ``.svg`` or ``.png``.
 """
@@ -31,7 +35,8 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["FigureSVG", "waveform_svg", "spectrum_svg", "fit_svg", "save_figure"]
+__all__ = ["FigureSVG", "waveform_svg", "spectrum_svg", "fit_svg", "drift_frequency_svg", "allan_svg",
+           "save_figure"]
 
 # our own plain palette: ink for data, rust for models, moss for residuals, slate for grid
 _INK = "#22313f"
@@ -287,6 +292,76 @@ def fit_svg(fit_result) -> str:
             ax_r.set_xlabel("fitted point")
         ax_r.set_ylabel("residual")
         ax_r.set_title("residuals (data − model)", loc="left")
+        return _to_svg(fig)
+
+
+def drift_frequency_svg(drift_run) -> str:
+    """Frequency of every interval of a drift run (the JSON contract of ``benchfit drift``).
+
+    Plotted as the deviation from the run's final frequency in ppm, phase-continuous values
+    (with their standard uncertainty as error bars when visible), the ±band of the warm-up
+    criterion around zero and a vertical line at the warm-up time.
+    """
+    import matplotlib
+
+    st = drift_run["stability"]
+    rows = [r for r in drift_run["series"] if r.get("frequency_hz") is not None]
+    ref = st["final_frequency_hz"]
+    t = np.array([r["t_start_s"] if r.get("chain_frequency_hz") is not None else r["t_mid_s"] for r in rows])
+    ppm = np.array([(r["frequency_hz"] - ref) / ref * 1e6 for r in rows])
+    u = np.array([(r["frequency_u_hz"] or 0.0) / ref * 1e6 for r in rows])
+    scale, unit = (60.0, "min") if t.size and t[-1] > 600 else (1.0, "s")
+    if t.size and t[-1] > 3 * 3600:
+        scale, unit = 3600.0, "h"
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(6.4, 2.8)
+        ax = fig.add_subplot(1, 1, 1)
+        band = st["warmup_band_ppm"]
+        ax.axhspan(-band, band, color=_GRID, alpha=0.6, lw=0, label=f"±{band:g} ppm of the final value")
+        if u.size and np.median(u) > 0.02 * max(np.ptp(ppm), 1e-12):
+            ax.errorbar(t / scale, ppm, yerr=u, fmt="none", ecolor=_MODEL, elinewidth=0.6)
+        ax.plot(t / scale, ppm, ".", color=_INK, ms=2.0, label="phase-continuous frequency")
+        if st.get("warmup_s"):
+            ax.axvline(st["warmup_s"] / scale, color=_RESID, lw=1.0,
+                       label=f"warm-up {st['warmup_s']:.0f} s")
+        ax.set_xlabel(f"time from start ({unit})")
+        ax.set_ylabel(f"ppm from {ref:.6f} Hz")
+        ax.set_title(f"{drift_run['channel']} frequency — drift {st['drift_ppm_per_h']:.3g} ± "
+                     f"{st['drift_u_ppm_per_h']:.2g} ppm/h", loc="left")
+        ax.legend(loc="lower right")
+        return _to_svg(fig)
+
+
+def allan_svg(drift_run) -> str:
+    """Overlapping Allan deviation σ_y(τ) of a drift run on log–log axes.
+
+    Points with their 68 % confidence intervals (chi-squared with the Greenhall–Riley
+    equivalent degrees of freedom), and the estimator's white-PM floor √3·σ_x/τ dashed.
+    """
+    import matplotlib
+
+    pts = drift_run["stability"]["adev"]
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(6.4, 3.0)
+        ax = fig.add_subplot(1, 1, 1)
+        if pts:
+            tau = np.array([p["tau_s"] for p in pts])
+            dev = np.array([p["adev"] for p in pts])
+            lo = np.array([p["ci_low"] for p in pts])
+            hi = np.array([p["ci_high"] for p in pts])
+            floor = np.array([p["floor"] for p in pts])
+            ax.errorbar(tau, dev, yerr=np.vstack([dev - lo, hi - dev]), fmt="o-", color=_INK, ms=3.5, lw=1.0,
+                        ecolor=_MODEL, elinewidth=0.9, capsize=2, label="σ_y(τ), 68 % interval")
+            ax.plot(tau, floor, "--", color=_RESID, lw=1.0, label="estimator floor (white PM)")
+            ax.set_xscale("log")
+            ax.set_yscale("log")
+        else:
+            ax.text(0.5, 0.5, "run too short for an Allan deviation", ha="center", va="center",
+                    transform=ax.transAxes, color=_INK)
+        ax.set_xlabel("averaging time τ (s)")
+        ax.set_ylabel("Allan deviation σ_y(τ)")
+        ax.set_title("overlapping Allan deviation (IEEE Std 1139), drift removed", loc="left")
+        ax.legend(loc="best")
         return _to_svg(fig)
 
 

@@ -151,7 +151,8 @@ def render_html(report: Mapping[str, Any], figures: Sequence[Mapping[str, str]] 
 
     env = _environment()
     template = env.get_template("report.html")
-    figs = [{"title": f["title"], "svg": Markup(clean_svg(f["svg"]))} for f in figures]
+    figs = [{"title": f["title"], "svg": Markup(clean_svg(f["svg"])), "section": f.get("section", "")}
+            for f in figures]
     return template.render(r=report, figures=figs)
 
 

@@ -32,8 +32,10 @@ A spec is a TOML file with benchfit's own keys. Example (``sample_captures/hc_sp
 Keys of a ``[[limit]]`` table:
 
 ``quantity``
-    One of :data:`MEASURED_QUANTITIES` (from ``benchfit measure``) or
-    :data:`FITTED_QUANTITIES` (parameters and derived values of ``benchfit fit``).
+    One of :data:`MEASURED_QUANTITIES` (from ``benchfit measure``),
+    :data:`FITTED_QUANTITIES` (parameters and derived values of ``benchfit fit``) or
+    :data:`DRIFT_QUANTITIES` (the stability summary of ``benchfit drift``: ``warmup_s``,
+    ``drift_ppm_per_h``, ``adev_1s``, …; judged from the run given to ``report --drift``).
 ``channel``
     Name (case-insensitive) or 1-based number of the channel a measured quantity is taken
     from. Default: the only channel, else the channel named ``output``.
@@ -87,7 +89,7 @@ from benchfit.errors import SpecError
 
 __all__ = [
     "DecisionRule", "DecisionLabel", "Limit", "Spec", "Decision",
-    "MEASURED_QUANTITIES", "FITTED_QUANTITIES", "QUANTITY_UNITS",
+    "MEASURED_QUANTITIES", "FITTED_QUANTITIES", "DRIFT_QUANTITIES", "QUANTITY_UNITS",
     "load_spec", "parse_spec", "decide", "overall_verdict", "quantity_unit", "uncertainty_keys",
 ]
 
@@ -109,8 +111,15 @@ FITTED_QUANTITIES: Mapping[str, str] = MappingProxyType({
     "decay_rate_per_s": "1/s",
 })
 
+#: stability summary of ``benchfit drift`` (judged when the report is given a drift run) and its unit
+DRIFT_QUANTITIES: Mapping[str, str] = MappingProxyType({
+    "warmup_s": "s", "drift_ppm_per_h": "ppm/h", "adev_1s": "", "level_drift_pct_per_h": "%/h",
+    "final_frequency_hz": "Hz", "thd_max_pct": "%",
+})
+
 #: every quantity a spec may name, with its unit
-QUANTITY_UNITS: Mapping[str, str] = MappingProxyType({**MEASURED_QUANTITIES, **FITTED_QUANTITIES})
+QUANTITY_UNITS: Mapping[str, str] = MappingProxyType({**MEASURED_QUANTITIES, **FITTED_QUANTITIES,
+                                                      **DRIFT_QUANTITIES})
 
 _LIMIT_KEYS = ("quantity", "channel", "nominal", "tolerance", "tolerance_pct", "min", "max",
                "unit", "label")
@@ -171,8 +180,10 @@ class Limit:
     label: str = ""
 
     @property
-    def source(self) -> Literal["measure", "fit"]:
-        """Where the value comes from: ``"measure"`` or ``"fit"``."""
+    def source(self) -> Literal["measure", "fit", "drift"]:
+        """Where the value comes from: ``"measure"``, ``"fit"`` or ``"drift"`` (a drift run)."""
+        if self.quantity in DRIFT_QUANTITIES:
+            return "drift"
         return "fit" if self.quantity in FITTED_QUANTITIES else "measure"
 
     def to_dict(self) -> dict[str, Any]:

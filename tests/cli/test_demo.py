@@ -15,17 +15,23 @@ def test_demo_runs_the_whole_job(tmp_path):
     assert res.returncode == 0, res.stdout[-3000:] + res.stderr[-3000:]
     text = res.stdout
     for step in ("1. Measure", "2. Fit the effective parts", "3. Calibration reports",
-                 "4. The log and batch statistics", "5. Trim advice", "Open the reports with"):
+                 "4. The log and batch statistics", "5. Trim advice", "6. Stability over a warm-up",
+                 "Open the reports with"):
         assert step in text
     reports = sorted(p for p in (out / "reports").glob("*.html") if p.name != "index.html")
-    assert len(reports) == 7  # HC-03 (as found and as left) plus the six units of the batch
+    assert len(reports) == 8  # HC-03 (as found and as left), the six units of the batch, HC-08 with stability
     verdicts = {json.loads(p.with_suffix(".json").read_text())["unit"]:
                 json.loads(p.with_suffix(".json").read_text())["verdict"] for p in reports}
     assert verdicts["HC-07"] == "fail"  # the unit with the wrong choke (THD about 5.5 %)
     assert all(v == "pass" for u, v in verdicts.items() if u != "HC-07")
     assert (out / "reports" / "index.html").is_file()
     with sqlite3.connect(out / "demo-log.sqlite") as con:
-        assert con.execute("select count(*) from runs").fetchone()[0] == 7
+        assert con.execute("select count(*) from runs").fetchone()[0] == 9  # 8 reports and the drift run
+        assert con.execute("select count(*) from drift_series").fetchone()[0] == 600
+    hc08 = next(p for p in reports if p.name.startswith("HC-08"))
+    assert "<h2>Stability</h2>" in hc08.read_text()
+    rep08 = json.loads(hc08.with_suffix(".json").read_text())
+    assert {r["quantity"] for r in rep08["results"]} >= {"warmup_s", "drift_ppm_per_h", "adev_1s"}
     # the trim advice for HC-07 adds capacitance (tank at about 62 Hz, target 50 Hz)
     assert "across the capacitor" in text
     lines = (out / "batch_measurements.jsonl").read_text().splitlines()

@@ -536,7 +536,7 @@ def test_help_exits_zero(capsys):
 HELP_COMMANDS = ["", "measure", "fit", "report", "log", "log list", "log show", "log export", "log stats",
                  "design", "design astable", "design filter", "design combine", "design trim", "calibrate",
                  "devices", "record", "tune", "calibrate gain", "calibrate timebase", "calibrate coupling",
-                 "calibrate show", "demo"]
+                 "calibrate show", "demo", "drift"]
 
 
 @pytest.mark.parametrize("command", HELP_COMMANDS, ids=[c or "top" for c in HELP_COMMANDS])
