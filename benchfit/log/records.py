@@ -38,6 +38,13 @@ _DERIVED_UNITS = {"resonant_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
                   "decay_rate_per_s": "1/s", "q_factor": ""}
 
 
+def _cell(v: Any) -> Any:
+    """A value for a run table's cell: text and integers as they are, a non-finite number as NULL."""
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
+
+
 def _finite(v: Any) -> float | None:
     if v is None or isinstance(v, bool):
         return None
@@ -99,8 +106,9 @@ def _measurement_rows(m: Mapping[str, Any], role: str) -> list[dict[str, Any]]:
 
 def _fit_rows(f: Mapping[str, Any], role: str) -> list[dict[str, Any]]:
     rows = []
+    source = f.get("source") or "fit"          # a drift run's summary says "drift"
     for name, p in (f.get("parameters") or {}).items():
-        rows.append({"file": f.get("file"), "role": role, "source": "fit", "channel": None,
+        rows.append({"file": f.get("file"), "role": role, "source": source, "channel": f.get("channel"),
                      "quantity": name, "value": _finite(p.get("value")),
                      "uncertainty": _finite(p.get("stderr")), "unit": p.get("unit", "")})
     for name, d in (f.get("derived") or {}).items():
@@ -121,7 +129,7 @@ def _role_of(item: Any) -> tuple[Any, str]:
 def make_record(*, command: str, operator: str | None, unit: str | None, bench: str,
                 captures: Sequence[Any], measurements: Sequence[Any], fits: Sequence[Any],
                 decisions: Sequence[Any], verdict: str | None, details: Mapping[str, Any] | None,
-                where: str) -> dict[str, Any]:
+                where: str, tables: Mapping[str, Sequence[Mapping[str, Any]]] | None = None) -> dict[str, Any]:
     """The run record of one new run (a fresh UUID, time left to the storing database)."""
     from benchfit import __version__
 
@@ -163,4 +171,6 @@ def make_record(*, command: str, operator: str | None, unit: str | None, bench: 
                        "expanded_u": _finite(d.get("expanded_u")), "lower": _finite(d.get("lower")),
                        "upper": _finite(d.get("upper")), "unit": d.get("unit", ""), "rule": d.get("rule", ""),
                        "decision": d.get("decision", ""), "note": d.get("note", "")} for d in dec_rows],
+        **({"tables": {t: [{k: _cell(v) for k, v in r.items()} for r in rows] for t, rows in tables.items()}}
+           if tables else {}),
     }

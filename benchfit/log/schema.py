@@ -1,6 +1,6 @@
 """The measurement log's schema: one list of migrations for every backend (SQLite, PostgreSQL).
 
-Layout (schema version 2)::
+Layout (schema version 3)::
 
     benchfit_schema(version, applied_utc)          one row per applied migration
     units(id, serial UNIQUE, first_seen_utc)
@@ -11,6 +11,8 @@ Layout (schema version 2)::
             value, uncertainty, unit)               uncertainty = standard uncertainty (k = 1)
     decisions(id, run_id → runs, quantity, channel, label, value, expanded_u, lower, upper,
               unit, rule, decision, note)           expanded_u = U (k = 2)
+    drift_series(id, run_id → runs, channel, k, t_start_s, t_mid_s, frequency_hz, ...)
+                                                    one row per interval of a drift run
 
 ``id`` is the log's own integer (local to one database); ``runs.uuid`` is the run's global
 identity, made once when the run is first written and carried unchanged by spool, sync and
@@ -33,16 +35,16 @@ backend (:func:`render`):
 
 Both backends apply the missing versions in order inside one transaction (SQLite
 ``BEGIN IMMEDIATE``, PostgreSQL an advisory lock) and record each in ``benchfit_schema``.
-To add schema 3 — say a table of drift interval series — append one entry (and, for a table
+To add schema 4 — say a table of per-run figures — append one entry (and, for a table
 of run rows, put its name in :data:`RUN_TABLES` below)::
 
-    (3, '''
-    CREATE TABLE drift_series (
+    (4, '''
+    CREATE TABLE run_figures (
         id {pk},
         run_id BIGINT NOT NULL REFERENCES runs(id),
         ...
     );
-    CREATE INDEX drift_series_run ON drift_series(run_id)
+    CREATE INDEX run_figures_run ON run_figures(run_id)
     '''),
 
 :data:`SCHEMA_VERSION` follows from the list. Never edit an entry that has been released:
@@ -135,6 +137,33 @@ MIGRATIONS: tuple[tuple[int, str], ...] = (
     CREATE INDEX results_capture ON results(capture_id);
     CREATE INDEX decisions_run ON decisions(run_id)
     """),
+    # 3: the interval series of a drift run (`benchfit drift`), one row per channel and interval
+    (3, """
+    CREATE TABLE drift_series (
+        id {pk},
+        run_id BIGINT NOT NULL REFERENCES runs(id),
+        channel TEXT NOT NULL,
+        k INTEGER NOT NULL,
+        t_start_s {float},
+        t_mid_s {float},
+        frequency_hz {float},
+        frequency_u_hz {float},
+        chain_frequency_hz {float},
+        chain_frequency_u_hz {float},
+        phase_rad {float},
+        phase_u_rad {float},
+        segment INTEGER,
+        amplitude {float},
+        amplitude_u {float},
+        vrms {float},
+        thd_pct {float},
+        thd_u_pct {float},
+        duty_cycle_pct {float},
+        duty_cycle_u_pct {float},
+        unit TEXT
+    );
+    CREATE UNIQUE INDEX drift_series_run ON drift_series(run_id, channel, k)
+    """),
 )
 
 #: schema version this code writes: the last migration's
@@ -143,7 +172,7 @@ SCHEMA_VERSION: int = MIGRATIONS[-1][0]
 #: tables added by later migrations whose rows each belong to one run: a ``run_id`` column
 #: referencing runs(id), no other foreign key. Spool, sync and merge copy their rows with the
 #: run (every column but ``id`` and ``run_id``), and the spool deletes them with it.
-RUN_TABLES: tuple[str, ...] = ()
+RUN_TABLES: tuple[str, ...] = ("drift_series",)
 
 _TOKENS: dict[str, dict[str, str]] = {
     "sqlite": {"pk": "INTEGER PRIMARY KEY", "float": "REAL", "uuid": "bf_uuid()", "now": "bf_now()"},

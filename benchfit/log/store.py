@@ -176,7 +176,8 @@ def append_run(db_path: str | Path | LogURL, *, command: str, operator: str | No
                unit: str | None = None, captures: Sequence[Any] = (),
                measurements: Sequence[Any] = (), fits: Sequence[Any] = (),
                decisions: Sequence[Any] = (), verdict: str | None = None,
-               details: Mapping[str, Any] | None = None, bench: str | None = None) -> RunId:
+               details: Mapping[str, Any] | None = None, bench: str | None = None,
+               tables: Mapping[str, Sequence[Mapping[str, Any]]] | None = None) -> RunId:
     """Append one run to the log in a single transaction and return its run id.
 
     Parameters
@@ -207,6 +208,9 @@ def append_run(db_path: str | Path | LogURL, *, command: str, operator: str | No
         Extra JSON-serialisable information about the run (spec name, report paths, ...).
     bench : str, optional
         The station's name (default :func:`current_bench`).
+    tables : mapping, optional
+        Rows of the run's own tables (:data:`benchfit.log.schema.RUN_TABLES`, e.g.
+        ``{"drift_series": [{"channel": ..., "k": ..., ...}]}``), written in the same transaction.
 
     Returns
     -------
@@ -224,7 +228,7 @@ def append_run(db_path: str | Path | LogURL, *, command: str, operator: str | No
     rec = make_record(command=command, operator=operator, unit=unit,
                       bench=_check_bench(bench, "bench") if bench else current_bench(),
                       captures=captures, measurements=measurements, fits=fits, decisions=decisions,
-                      verdict=verdict, details=details, where=str(target))
+                      verdict=verdict, details=details, where=str(target), tables=tables)
     uuid = rec["run"]["uuid"]
     if not isinstance(target, LogURL):
         with SQLiteStore(target) as store:

@@ -64,7 +64,8 @@ def test_schema1_file_migrates_keeping_every_row(schema1):
     before = {t: _raw(schema1, f"SELECT * FROM {t} ORDER BY id") for t in TABLES}
     assert [len(before[t]) for t in ("runs", "results", "decisions")] == [5, 49, 6]
     runs = list_runs(schema1)                        # opening migrates
-    assert _raw(schema1, "SELECT version FROM benchfit_schema ORDER BY version") == [(1,), (2,)]
+    assert _raw(schema1, "SELECT version FROM benchfit_schema ORDER BY version") == [
+        (v,) for v in range(1, SCHEMA_VERSION + 1)]
     for t in TABLES:                                  # schema-1 columns come first, unchanged
         after = _raw(schema1, f"SELECT * FROM {t} ORDER BY id")
         width = len(before[t][0])
@@ -102,9 +103,9 @@ def test_every_foreign_key_has_an_index(target, schema1):
     stores = [target, schema1]
     for t in stores:
         with open_store(t) as s:
-            fks, indexed = _foreign_keys_and_indexes(s)
+            fks, indexed = _foreign_keys_and_indexes(s, TABLES + ("drift_series",))
             assert fks >= {("runs", "unit_id"), ("captures", "run_id"), ("results", "run_id"),
-                           ("results", "capture_id"), ("decisions", "run_id")}
+                           ("results", "capture_id"), ("decisions", "run_id"), ("drift_series", "run_id")}
             assert fks <= indexed, fks - indexed
             assert ("runs", "uuid") in indexed
 
@@ -262,7 +263,7 @@ def test_bench_name(monkeypatch, tmp_path):
     assert store._bench_override is None
 
 
-DRIFT = (3, """
+DRIFT = (SCHEMA_VERSION + 1, """
     CREATE TABLE drift_test (
         id {pk},
         run_id BIGINT NOT NULL REFERENCES runs(id),
@@ -275,7 +276,7 @@ DRIFT = (3, """
 
 
 def test_a_later_migration_adding_a_run_table_is_one_entry(pg_server, pg_url, tmp_path, schema1, monkeypatch):
-    # "schema 3" exactly as the schema module's docstring says: one more MIGRATIONS entry and
+    # one more schema exactly as the schema module's docstring says: one more MIGRATIONS entry and
     # the table's name in RUN_TABLES; nothing else changes, on either backend
     from benchfit.log import schema
     from benchfit.log.spool import spool_run
@@ -283,22 +284,22 @@ def test_a_later_migration_adding_a_run_table_is_one_entry(pg_server, pg_url, tm
 
     sq = tmp_path / "bench.sqlite"
     append_run(sq, command="measure", unit="HC-08")
-    append_run(pg_url, command="measure", unit="HC-09")             # both logs at schema 2
+    append_run(pg_url, command="measure", unit="HC-09")             # both logs at the current schema
     monkeypatch.setattr(schema, "MIGRATIONS", schema.MIGRATIONS + (DRIFT,))
-    monkeypatch.setattr(schema, "SCHEMA_VERSION", 3)
-    monkeypatch.setattr(schema, "RUN_TABLES", ("drift_test",))
+    monkeypatch.setattr(schema, "SCHEMA_VERSION", SCHEMA_VERSION + 1)
+    monkeypatch.setattr(schema, "RUN_TABLES", schema.RUN_TABLES + ("drift_test",))
     with open_store(sq) as s:
         s.con.execute("INSERT INTO drift_test(run_id, t_s, value, u) VALUES (1, 0, 50.01, 0.002), (1, 60, 50.02, 0.002)")
-    list_runs(schema1)                                              # a schema-1 file goes 1 → 3 at once
+    list_runs(schema1)                                              # a schema-1 file goes from 1 to the latest at once
     assert merge_log(schema1, pg_url).new == 5 and merge_log(sq, pg_url).new == 1
     for t in (sq, schema1, pg_url):
         with open_store(t) as s:
-            assert [r[0] for r in s.con.execute("SELECT version FROM benchfit_schema ORDER BY version")] == [1, 2, 3]
+            assert [r[0] for r in s.con.execute("SELECT version FROM benchfit_schema ORDER BY version")] == list(range(1, SCHEMA_VERSION + 2))
             fks, indexed = _foreign_keys_and_indexes(s, TABLES + ("drift_test",))
             assert ("drift_test", "run_id") in fks and fks <= indexed
     with open_store(pg_url) as d:
         rid = {r["unit"]: r["id"] for r in d.list_runs()}["HC-08"]
-        assert d.read_record(rid)["tables"] == {"drift_test": [{"t_s": 0.0, "value": 50.01, "u": 0.002},
+        assert d.read_record(rid)["tables"] == {"drift_series": [], "drift_test": [{"t_s": 0.0, "value": 50.01, "u": 0.002},
                                                                {"t_s": 60.0, "value": 50.02, "u": 0.002}]}
         rec = d.read_record(rid)
     # through the spool and back: a fresh server log gets the rows, the spool lets go of them
