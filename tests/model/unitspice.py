@@ -95,7 +95,7 @@ quit
 
 
 def simulate_astable(tmp_path: Path, *, ra: float, rb: float, c1: float, vcc: float = 12.0,
-                     r_discharge: float = 10.0, seconds: float = 0.3, name: str = "astable") -> float:
+                     r_discharge: float = 10.0, seconds: float = 0.2, name: str = "astable") -> float:
     """Frequency (Hz) of the switch-model astable from its threshold-node crossings.
 
     The frequency is the mean over the last full periods of the upward crossings of Vcc/2 at
