@@ -410,7 +410,8 @@ _TRIM_EXAMPLE = """
 Examples:
 
 \b
-  benchfit fit hc07.wav --model lc-lowpass --fix C=33u --fix Rload=10k --json > hc07_fit.json
+  benchfit fit hc07.wav --model lc-lowpass --fix C=33u \\
+      --fix Rload=10k --json > hc07_fit.json
   benchfit measure hc07.wav --json > hc07.json
   benchfit design trim --fit hc07_fit.json --measurement hc07.json \\
       --spec hc_spec.toml --nominal L=300m --json
@@ -441,7 +442,7 @@ def _read_fit(path: Path):
 @design_app.command("trim", short_help="What to change so a unit meets its spec.", help="From a unit's fit and "
                     "measurement, the changes that bring it inside every limit of its spec (or 'no change'), "
                     "each predicted on every limit with its uncertainty and probability of passing. "
-                    "Without --spec: the older resonance-only capacitor advice for --target." + _TRIM_EXAMPLE)
+                    "Without --spec: the older capacitor advice that only moves the resonance to --target." + _TRIM_EXAMPLE)
 def trim_command(
     fit: Optional[Path] = typer.Option(None, "--fit", metavar="FILE", help="JSON from 'benchfit fit --model lc-lowpass "
                                        "--json' (filter advice). Leave out for timer advice only."),
@@ -564,7 +565,7 @@ def _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, dr
 
     for q, (v, u) in advice.plan.predicted.items():
         t.add_row(f"predicted {q} (k = 1)", _fmt_pred(q, v, u).partition(" ")[2])
-    t.add_row("probability of meeting the spec", f"{advice.plan.p_pass * 100:.1f} % ({len(sp.limits)} limits, "
+    t.add_row("probability of meeting the spec", f"{advice.plan.p_pass * 100:.1f} % ({len(advice.plan.p_limits)} of {len(sp.limits)} limits, "
               f"{trials} Monte Carlo draws, seed {seed})")
     stdout.print(t)
     lines = advice.summary_lines()

@@ -717,7 +717,11 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
         base = _fit_draws(fit, n, rng, fixed_tol, notes)
     else:
         base = _State(*(np.full(n, v) for v in (1.0, 1e-6, 1e3, 0.0, math.inf, 0.0)))
-        notes.append("no fit given: only the frequency is predicted; level and THD are taken as measured")
+        others = [lim.quantity for lim in limits if lim.quantity != "frequency_hz"]
+        if others:
+            warnings.append(f"no fit given: only the frequency is predicted; {', '.join(others)} are not — "
+                            "re-measure them after the change (a 1 % frequency change moves a tuned filter's "
+                            "level and THD)")
     base.f = np.full(n, f_meas)
     nom_parts = LowpassParts(float(base.L[0]), float(base.C[0]), float(base.Rs[0]), float(base.Resr[0]),
                              float(base.Rload[0]))
@@ -738,8 +742,9 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     else:
         supply = spec.conditions.get("supply_v")
         swing = (float(supply) - 1.7) if isinstance(supply, (int, float)) else 10.0
-        warnings.append(f"drive swing taken as {swing:g} V (NE555 output high about 1.7 V below the supply, "
-                        "TI SLFS022) — give the measurement for a calibrated level")
+        if fit is not None:
+                warnings.append(f"drive swing taken as {swing:g} V (NE555 output high about 1.7 V below the "
+                            "supply, TI SLFS022) — give the measurement for a calibrated level")
     if fit is not None:
         notes.append(f"drive: rectangular, duty {d * 100:.2f} % (or its complement), swing {swing:.4g} V "
                      + ("estimated from the measured harmonics through the fitted filter" if est else "as given")
