@@ -210,6 +210,9 @@ def astable_command(
     control_voltage: Optional[str] = typer.Option(None, "--control-voltage", metavar="V",
                                                   help="Voltage held on the control pin (V)."),
     diode: bool = typer.Option(False, "--diode", help="Diode across RB: allows duty below 50 %."),
+    diode_drop: str = typer.Option("0.65", "--diode-drop", metavar="V", help="The diode's forward drop (V)."),
+    ideal_timer: bool = typer.Option(False, "--ideal-timer", help="Leave the timer's own initial error, "
+                                     "temperature and supply drift (TI SLFS022) out of the spread."),
     tolerance_r: str = typer.Option("1%", "--tolerance-r", metavar="TOL", help="Resistor tolerance."),
     tolerance_c: str = typer.Option("10%", "--tolerance-c", metavar="TOL", help="Capacitor tolerance."),
     yield_within: str = typer.Option("1%", "--yield-within", metavar="TOL", help="Frequency band for the yield figure."),
@@ -239,12 +242,13 @@ def astable_command(
                       control_voltage="--control-voltage", frequency="--frequency",
                       tolerance_r="--tolerance-r", range="--control-range", trim="--trim-pot / --control-range"):
         result = _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r,
-                          tolerance_c, yield_within, distribution, trials, seed, trim_pot, cr)
+                          tolerance_c, yield_within, distribution, trials, seed, trim_pot, cr,
+                          _opt_value(diode_drop, "--diode-drop", allow_zero=True), not ideal_timer)
     _show_astable(result, as_json)
 
 
 def _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r, tolerance_c,
-             yield_within, distribution, trials, seed, trim_pot, cr):
+             yield_within, distribution, trials, seed, trim_pot, cr, diode_drop=0.65, timer_variation=True):
     from benchfit.design.astable import design_astable
 
     return design_astable(
@@ -254,7 +258,8 @@ def _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, toler
         tolerance_c=parse_fraction(tolerance_c, "--tolerance-c"),
         yield_within=parse_fraction(yield_within, "--yield-within", allow_zero=False),
         distribution=distribution, n_trials=trials, seed=seed,
-        trim_pot_ohm=_opt_value(trim_pot, "--trim-pot"), control_range_v=cr)
+        trim_pot_ohm=_opt_value(trim_pot, "--trim-pot"), control_range_v=cr, diode_drop_v=diode_drop,
+        timer_variation=timer_variation)
 
 
 def _show_astable(result, as_json: bool) -> None:
