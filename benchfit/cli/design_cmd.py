@@ -323,14 +323,30 @@ def filter_command(
     series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series for the solved part."),
     amplitude: str = typer.Option("12", "--amplitude", metavar="V", help="Drive swing, 0 V to this (V)."),
     harmonics: int = typer.Option(40, "--harmonics", metavar="N", min=2, help="Highest harmonic in the THD sum (2 or more)."),
+    thd_max: Optional[str] = typer.Option(None, "--thd-max", metavar="PCT", help="THD target, e.g. 5%: choose "
+                                          "f0 and Q (damping) for it with --inductance."),
+    level_tolerance: str = typer.Option("10%", "--level-tolerance", metavar="TOL",
+                                        help="With --thd-max: allowed level change over part tolerances."),
+    tolerance_l: str = typer.Option("10%", "--tolerance-l", metavar="TOL", help="With --thd-max: choke tolerance."),
+    trials: int = typer.Option(400, "--trials", metavar="N", min=100, help="With --thd-max: draws per point."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stdout
     from benchfit.design.filter import design_filter
     from benchfit.units import format_quantity as fq
 
+    if inductance is not None and capacitance is not None:
+        _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, amplitude, as_json)
+        return
+    if thd_max is not None:
+        if inductance is None:
+            fail("--thd-max: give --inductance (the choke) — the capacitor and damping are chosen")
+        _damped_filter(frequency, inductance, load, rs, duty, amplitude, thd_max, level_tolerance, tolerance_l,
+                       series, trials, as_json)
+        return
     if (inductance is None) == (capacitance is None):
-        fail("--inductance/--capacitance: give exactly one of them — the other part is solved for")
+        fail("--inductance/--capacitance: neither given — give one of them (the other is solved for), or both "
+             "to evaluate that filter")
     series = _series(series, "--series")
     with _OptionNames(duty="--duty", harmonics="--harmonics", frequency="--frequency"):
         result = design_filter(
@@ -353,10 +369,75 @@ def filter_command(
                   f"{r.thd * 100:.2f} %")
     stdout.print(t)
     load_text = "open" if result.load_ohm is None else fq(result.load_ohm, "Ω")
+    for o in result.options:
+        _print_lines([f"FLAGGED ({o.label}, not recommended): {s.text}" for s in o.flagged], "yellow")
+    if result.recommended is None:
+        _print_lines(["No option is recommended: every one exceeds a rating — add damping (series resistance) "
+                      "or drive the filter through a divider; see --thd-max for a damped design"], "yellow")
     _print_lines([f"Circuit: drive 0 V…{result.amplitude_v:g} V, duty {result.duty * 100:g} % → Rs "
                   f"{fq(result.rs_ohm, 'Ω')} → L → out; C with ESR {fq(result.esr_ohm, 'Ω')} to ground; "
                   f"load {load_text}."] + list(result.notes))
     _print_lines([f"Caution: {c}" for c in result.cautions], "yellow")
+
+
+def _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, amplitude, as_json) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.design.damped import evaluate_filter
+
+    with _OptionNames(duty="--duty", frequency="--frequency", amplitude="--amplitude"):
+        pred, stress = evaluate_filter(
+            _opt_value(inductance, "--inductance"), _opt_value(capacitance, "--capacitance"),
+            _opt_value(frequency, "--frequency"), rs_ohm=_opt_value(rs, "--rs", allow_zero=True),
+            esr_ohm=_opt_value(esr, "--esr", allow_zero=True), load_ohm=_opt_value(load, "--load"),
+            duty=parse_fraction(duty, "--duty", allow_zero=False), amplitude_v=_opt_value(amplitude, "--amplitude"))
+    if as_json:
+        print_json({"prediction": pred.to_dict(), "stress": [s.to_dict() for s in stress],
+                    "flagged": [s.text for s in stress if s.flagged]})
+        return
+    t = _table(f"L = {inductance}, C = {capacitance} driven at {frequency} Hz", ("quantity", "value"), header=False)
+    t.add_row("THD (harmonics 2–10)", f"{pred.thd_pct:.3f} %")
+    t.add_row("fundamental", f"{pred.amplitude:.4g} V peak")
+    t.add_row("output RMS (with DC)", f"{pred.vrms:.4g} V")
+    t.add_row("output peak to peak", f"{pred.vpp:.4g} V")
+    t.add_row("inductor current peak / RMS", f"{pred.inductor_peak_a:.4g} A / {pred.inductor_rms_a:.4g} A")
+    t.add_row("capacitor max / min", f"{pred.capacitor_max_v:.4g} V / {pred.capacitor_min_v:.4g} V")
+    stdout.print(t)
+    _print_lines([("FLAGGED: " if s.flagged else "") + s.text for s in stress])
+    _print_lines([_CAUTION], "yellow")
+
+
+def _damped_filter(frequency, inductance, load, rs, duty, amplitude, thd_max, level_tolerance, tolerance_l,
+                   series, trials, as_json) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.design.damped import design_damped
+
+    with _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs"):
+        d = design_damped(
+            _opt_value(frequency, "--frequency"), _opt_value(inductance, "--inductance"),
+            rs_ohm=_opt_value(rs, "--rs", allow_zero=True), load_ohm=_opt_value(load, "--load"),
+            duty=parse_fraction(duty, "--duty", allow_zero=False), amplitude_v=_opt_value(amplitude, "--amplitude"),
+            thd_max_pct=100 * parse_fraction(thd_max, "--thd-max", allow_zero=False),
+            level_tolerance=parse_fraction(level_tolerance, "--level-tolerance", allow_zero=False),
+            tolerance_l=parse_fraction(tolerance_l, "--tolerance-l"), series=_series(series, "--series"),
+            n_trials=trials)
+    if as_json:
+        print_json(d.to_dict())
+        return
+    t = _table(f"Trade-off for {frequency} Hz (THD ≤ {thd_max}, level ±{level_tolerance})",
+               ("f0/F", "Q", "C", "R damp", "THD", "level", "level spread", "peaking", "yield", "stress"))
+    from benchfit.units import format_quantity as fq
+
+    for r in d.table:
+        t.add_row(f"{r.ratio:g}", f"{r.q:g}", fq(r.capacitance_f, "F", 3), fq(max(r.r_damp_ohm, 0.0), "Ω", 3),
+                  f"{r.thd_pct:.2f} %", f"{r.vrms:.3g} V", f"±{r.level_spread * 100:.1f} %", f"{r.peaking:.2f}",
+                  f"{r.yield_fraction * 100:.0f} %", "flagged" if r.flagged else "")
+    stdout.print(t)
+    p = d.prediction
+    _print_lines([f"Chosen: C = {d.capacitor.describe()}" + ("" if d.damping is None else
+                  f", damping resistor {d.damping.describe()} in series with the choke")
+                  + f" → THD {p.thd_pct:.2f} %, {p.vrms:.3g} V rms (AC), yield {d.yield_fraction * 100:.1f} %"]
+                 + list(d.notes) + [("FLAGGED: " if s.flagged else "") + s.text for s in d.stress])
+    _print_lines([f"Caution: {c}" for c in d.cautions], "yellow")
 
 
 # --- combine --------------------------------------------------------------------------------
