@@ -486,7 +486,7 @@ def _timer_actions(timer: TimerParts, f_meas: float, target: float, series: str,
     # a fresh RB from the series: its own tolerance enters in full (the measured error stays)
     rb_exact = timer.rb + dt / slope_rb
     if rb_exact > 0:
-        for combo in _snap(rb_exact, "R", series)[:1]:
+        for combo in sorted(_snap(rb_exact, "R", series), key=lambda c: abs(c.error))[:1]:
             val = combo.value
 
             def apply(s: _State, rng, val=val) -> _State:
@@ -504,6 +504,98 @@ def _timer_actions(timer: TimerParts, f_meas: float, target: float, series: str,
             out.append(_Action("timer", Change("RB", "replace", tuple(combo.parts), val,
                                                f"replace RB ({_q(timer.rb, 'Ω')}) with {combo.describe()}"),
                                combo.n_parts + 1, abs(val / timer.rb - 1), apply))
+    if not timer.diode:
+        out += _control_actions(timer, t_meas, t_nom, scale, t_need, tol)
+    out += _trimmer_actions(timer, t_meas, slope_rb, dt)
+    return out
+
+
+#: the control pin's internal feed: ⅔·Vcc behind 5 kΩ ∥ 10 kΩ (REFERENCES §7, NE555 block
+#: diagram); the absolute values are loose, taken as ±20 % (rectangular, assumed)
+CONTROL_R_INTERNAL = 5e3 * 10e3 / 15e3
+CONTROL_R_SPREAD = 0.20
+
+
+def _vc_divider(vcc, r1, r2, rint):
+    """Control-pin voltage with R1 from Vcc and R2 to ground against the internal feed (KCL)."""
+    return (vcc / r1 + (2.0 * vcc / 3.0) / rint) / (1.0 / r1 + 1.0 / r2 + 1.0 / rint)
+
+
+def _period_vc(timer: TimerParts, vc):
+    k = np.log((timer.supply_v - vc / 2.0) / (timer.supply_v - vc))
+    return k * (timer.ra + timer.rb) * timer.c1 + LN2 * timer.rb * timer.c1
+
+
+def _control_actions(timer: TimerParts, t_meas: float, t_nom: float, scale: float, t_need: float,
+                     tol: float) -> list[_Action]:
+    """A divider off the supply on the control pin (ratiometric, so supply sag cancels to first
+    order); calibrated by the measured frequency like the resistor trims."""
+    vcc = timer.supply_v
+    k_need = (t_need / scale - LN2 * timer.rb * timer.c1) / ((timer.ra + timer.rb) * timer.c1)
+    if not k_need > 0:
+        return []
+    e = math.exp(k_need)
+    vc_need = vcc * (e - 1.0) / (e - 0.5)
+    if not 0 < vc_need < vcc:
+        return []
+    from benchfit.design.parts import series_values
+
+    best = None
+    for r2 in series_values("E24", 1e3, 10e3):
+        # R1 from the node equation with the nominal internal feed
+        g = vc_need * (1.0 / r2 + 1.0 / CONTROL_R_INTERNAL) - (2.0 * vcc / 3.0) / CONTROL_R_INTERNAL
+        if g <= 0 or vc_need >= vcc:
+            continue
+        r1_exact = (vcc - vc_need) / g
+        for r1 in series_values("E24", r1_exact * 0.9, r1_exact * 1.1):
+            err = abs(_vc_divider(vcc, r1, r2, CONTROL_R_INTERNAL) - vc_need)
+            if best is None or err < best[0]:
+                best = (err, float(r1), float(r2))
+    if best is None:
+        return []
+    _, r1, r2 = best
+    vc_nom = _vc_divider(vcc, r1, r2, CONTROL_R_INTERNAL)
+
+    def apply(s: _State, rng) -> _State:
+        t = s.copy()
+        n = s.f.size
+        rint = CONTROL_R_INTERNAL * _uniform(rng, n, CONTROL_R_SPREAD)
+        vc = _vc_divider(vcc, r1 * _uniform(rng, n, tol), r2 * _uniform(rng, n, tol), rint)
+        t.f = s.f * _period_vc(timer, 2.0 * vcc / 3.0) / _period_vc(timer, vc)
+        return t
+    text = (f"set the control pin to {vc_nom:.3f} V with {_q(r1, 'Ω')} from the supply and {_q(r2, 'Ω')} to "
+            "ground (ratiometric: supply sag cancels to first order; the internal 3.3 kΩ feed is loose, ±20 %)")
+    return [_Action("timer", Change("Vc", "set from a divider", (r1, r2), vc_nom, text), 2,
+                    abs(vc_nom / (2 * vcc / 3) - 1), apply)]
+
+
+#: trimmers tried in series with RB (Ω) and the setting resolution assumed, as a fraction of the
+#: span (a 25-turn cermet trimmer set while watching the frequency; assumed)
+_TRIMMERS = (100.0, 200.0, 500.0, 1e3, 2e3, 5e3)
+TRIMMER_RESOLUTION = 0.002
+
+
+def _trimmer_actions(timer: TimerParts, t_meas: float, slope_rb: float, dt: float) -> list[_Action]:
+    """A trimmer in series with RB, set on the bench: covers the needed change with room either side."""
+    need = dt / slope_rb
+    out = []
+    for pot in _TRIMMERS:
+        # the trimmer at mid-travel adds pot/2: RB is not changed, so the need must lie in [0, pot]
+        if not 0.1 * pot <= need <= 0.9 * pot:
+            continue
+
+        def apply(s: _State, rng, pot=pot) -> _State:
+            t = s.copy()
+            n = s.f.size
+            setting = need + pot * TRIMMER_RESOLUTION * rng.uniform(-0.5, 0.5, n)
+            setting[0] = need
+            t.f = s.f * t_meas / (t_meas + slope_rb * setting)
+            return t
+        text = (f"add a {_q(pot, 'Ω')} trimmer in series with RB and set it to about {_q(need, 'Ω', 3)} while "
+                "measuring the frequency (lock it; a trimmer drifts more than a fixed resistor)")
+        out.append(_Action("timer", Change("RB", "set a trimmer", (pot,), timer.rb + need, text), 1,
+                           pot / timer.rb, apply))
+        break
     return out
 
 
@@ -511,9 +603,8 @@ def _snap(exact: float, kind: str, series: str) -> list:
     """Nearest single parts below/above and the best pair for ``exact``."""
     found = combine(exact, kind, series=series, max_parts=2, top=200).combinations
     singles = sorted((c for c in found if c.n_parts == 1), key=lambda c: abs(c.error))[:2]
-    pairs = [c for c in found if c.n_parts == 2 and c.topology in ("add2",) + (("recip2",) if kind == "R" else ())]
-    if kind == "C":
-        pairs = [c for c in found if c.n_parts == 2 and c.topology == "add2"]
+    # two resistors in series, two capacitors in parallel ("add" in both cases): plain to build
+    pairs = [c for c in found if c.n_parts == 2 and c.topology == "add2"]
     out = singles + pairs[:1]
     return out
 
@@ -793,7 +884,12 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     if timer is not None and spec.limit_for("frequency_hz") is not None:
         timer_acts = _timer_actions(timer, f_meas, target, rseries, resistor_tolerance)
         timer_acts.sort(key=lambda a: -search.nominal_margin([a]))
-        timer_acts = timer_acts[:5]
+        # the best of each kind first (series R, parallel R, fresh RB, trimmer, control pin), then the rest
+        kinds: dict[tuple[str, str], _Action] = {}
+        for a in timer_acts:
+            kinds.setdefault((a.change.part, a.change.action), a)
+        firsts = list(kinds.values())
+        timer_acts = (firsts + [a for a in timer_acts if a not in firsts])[:8]
     elif spec.limit_for("frequency_hz") is not None and keep.p_limits.get("frequency_hz", 1.0) < P_HIGH:
         warnings.append("the frequency is off and no timer parts were given (--ra, --rb, --c1): the filter "
                         "cannot move the frequency")
@@ -844,7 +940,7 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
                         "re-measure after the change")
     if far and verdict != "replace":
         warnings.insert(0, "; ".join(a.change.text for a in far))
-    alternatives = tuple(p for p in plans if p is not best)[:5]
+    alternatives = tuple(p for p in plans if p is not best)[:8]
     return Advice(verdict, best, alternatives, tuple(warnings), tuple(notes), blocking,
                   source="" if fit is None else fit.file)
 

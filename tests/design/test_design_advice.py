@@ -113,7 +113,16 @@ def test_timer_series_trim_uses_the_measured_frequency():
     # the ±0.28 Hz of rebuilding RB from a fresh 1 % part
     assert 1e-3 < u < 5e-3
     rebuild = [a for a in adv.alternatives if a.changes and a.changes[0].action == "replace"]
-    assert all(a.predicted["frequency_hz"][1] > 10 * u for a in rebuild)
+    assert rebuild and all(a.predicted["frequency_hz"][1] > 50 * u for a in rebuild)
+    # a fresh 1 % RB: u ≈ 50 Hz·(2RB/(RA + 2RB))·1 %/√3 ≈ 0.28 Hz (REFERENCES §7 sensitivity,
+    # GUM 4.3.7), wider than the ±0.25 Hz spec
+    assert rebuild[0].predicted["frequency_hz"][1] == pytest.approx(
+        50.0 * 2 * 13.8e3 / (1e3 + 2 * 13.8e3) * 0.01 / math.sqrt(3), rel=0.15)
+    # the control pin from a divider: ratiometric, but the internal 3.3 kΩ feed (±20 %) makes it
+    # far less certain than a series resistor (sensitivity about −7 Hz/V at 8 V)
+    ctrl = [a for a in adv.alternatives if a.changes and a.changes[0].part == "Vc"]
+    assert ctrl and ctrl[0].predicted["frequency_hz"][1] > 10 * u
+    assert ctrl[0].changes[0].action == "set from a divider" and len(ctrl[0].changes[0].values) == 2
 
 
 def test_monte_carlo_is_seeded():
