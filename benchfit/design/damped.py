@@ -16,7 +16,7 @@ flag designs that exceed the timer's output rating; flagged points are not recom
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
