@@ -45,6 +45,9 @@ class TimerParts:
     supply_v: float = 12.0
     diode: bool = False
     diode_drop_v: float = 0.65
+    #: tolerance of the present RA and RB (fraction, rectangular): what is left uncertain once the
+    #: measured frequency has calibrated C1 and the timer's own error
+    tolerance_r: float = 0.01
 
     def period(self, ra: Any = None, rb: Any = None) -> Any:
         """Nominal period (s) from the charging law (REFERENCES §7; §11 for the diode's drop)."""
@@ -171,24 +174,21 @@ def _replace(part: str, nominal: float, fitted: float, tol: float) -> _Action:
 
 
 def _timer_actions(timer: TimerParts, f_meas: float, target: float, series: str, tol: float) -> list[_Action]:
-    """Series/parallel additions to RB or RA, and a fresh RB, calibrated by the measured frequency."""
+    """Series/parallel additions to RB or RA, a fresh RB, a trimmer and the control pin.
+
+    Calibration by the measured frequency: the period is proportional to C1 at fixed thresholds,
+    so f_after = f_meas·T(ra, rb)/T(ra', rb') with C1 cancelling; ra and rb are the *present*
+    resistors, drawn within their tolerance (``timer.tolerance_r``, rectangular), and ra', rb'
+    the same draws after the change. C1's own error and the timer's initial error drop out.
+    """
     t_meas = 1.0 / f_meas
     t_nom = timer.period()
     scale = t_meas / t_nom          # actual / nominal period
     t_need = 1.0 / target
     out: list[_Action] = []
 
-    def period_after(ra_new: Any, rb_new: Any, w: np.ndarray) -> np.ndarray:
-        # deviation attributed to C1 (w = 1: every period scales) or to the resistors (w = 0: an
-        # offset δ in RB that the new part leaves alone); the truth lies between (rectangular)
-        ra_new = timer.ra if ra_new is None else ra_new
-        rb_new = timer.rb if rb_new is None else rb_new
-        a = scale * timer.period(ra_new, rb_new)
-        # offset in RB that explains t_meas: dT/dRB = (k + ln2)·C1 (or ln2·C1 with the diode)
-        slope = (LN2 if timer.diode else high_time_factor() + LN2) * timer.c1
-        delta = (t_meas - t_nom) / slope
-        b = timer.period(ra_new, rb_new + delta)
-        return w * a + (1 - w) * b
+    def present(rng, n: int) -> tuple[np.ndarray, np.ndarray]:
+        return timer.ra * _uniform(rng, n, timer.tolerance_r), timer.rb * _uniform(rng, n, timer.tolerance_r)
 
     def make(part: str, how: str, exact: float) -> None:
         if not exact > 0 or not math.isfinite(exact):
@@ -199,18 +199,17 @@ def _timer_actions(timer: TimerParts, f_meas: float, target: float, series: str,
             def apply(s: _State, rng, val=val, part=part, how=how) -> _State:
                 t = s.copy()
                 n = s.f.size
+                ra, rb = present(rng, n)
                 r = val * _uniform(rng, n, tol)
-                w = rng.uniform(0, 1, n)
-                w[0] = 1.0
-                base = timer.rb if part == "RB" else timer.ra
+                base = rb if part == "RB" else ra
                 new = base + r if how == "series" else base * r / (base + r)
-                args = (None, new) if part == "RB" else (new, None)
-                before = period_after(None, None, w)
-                t.f = s.f * before / period_after(*args, w)
+                after = timer.period(ra, new) if part == "RB" else timer.period(new, rb)
+                t.f = s.f * timer.period(ra, rb) / after
                 return t
-            text = (f"add {combo.describe().removesuffix(' in series')} in series with {part} ({_q(getattr(timer, part.lower()), 'Ω')})"
-                    if how == "series" else
-                    f"add {combo.describe().removesuffix(' in series')} in parallel with {part} ({_q(getattr(timer, part.lower()), 'Ω')})")
+            desc = combo.describe().removesuffix(' in series')
+            text = (f"add {desc} in series with {part} ({_q(getattr(timer, part.lower()), 'Ω')})" if how == "series"
+                    else f"add {desc if combo.n_parts == 1 else f'({desc})'} in parallel with {part} "
+                         f"({_q(getattr(timer, part.lower()), 'Ω')})")
             base = getattr(timer, part.lower())
             newv = base + val if how == "series" else base * val / (base + val)
             out.append(_Action("timer", Change(part, f"add in {how}", tuple(combo.parts), newv, text),
@@ -238,20 +237,15 @@ def _timer_actions(timer: TimerParts, f_meas: float, target: float, series: str,
             def apply(s: _State, rng, val=val) -> _State:
                 t = s.copy()
                 n = s.f.size
-                w = rng.uniform(0, 1, n)
-                w[0] = 1.0
-                rb_true_old = timer.rb + (1 - w) * (t_meas - t_nom) / ((LN2 if timer.diode else high_time_factor()
-                                                                       + LN2) * timer.c1)
-                c_scale = w * scale + (1 - w)
+                ra, rb = present(rng, n)
                 rb_new = val * _uniform(rng, n, tol)
-                old = c_scale * timer.period(None, rb_true_old)
-                t.f = s.f * old / (c_scale * timer.period(None, rb_new))
+                t.f = s.f * timer.period(ra, rb) / timer.period(ra, rb_new)
                 return t
             out.append(_Action("timer", Change("RB", "replace", tuple(combo.parts), val,
                                                f"replace RB ({_q(timer.rb, 'Ω')}) with {combo.describe()}"),
                                combo.n_parts + 1, abs(val / timer.rb - 1), apply))
     if not timer.diode:
-        out += _control_actions(timer, t_meas, t_nom, scale, t_need, tol)
+        out += _control_actions(timer, scale, t_need, tol, present)
     out += _trimmer_actions(timer, t_meas, slope_rb, dt)
     return out
 
@@ -267,13 +261,15 @@ def _vc_divider(vcc, r1, r2, rint):
     return (vcc / r1 + (2.0 * vcc / 3.0) / rint) / (1.0 / r1 + 1.0 / r2 + 1.0 / rint)
 
 
-def _period_vc(timer: TimerParts, vc):
+def _period_vc(timer: TimerParts, vc, ra=None, rb=None):
+    """Period (s) with the control pin at ``vc`` (REFERENCES §7: t_H = (RA + RB)·C·ln((Vcc − Vc/2)/(Vcc − Vc)))."""
+    ra = timer.ra if ra is None else ra
+    rb = timer.rb if rb is None else rb
     k = np.log((timer.supply_v - vc / 2.0) / (timer.supply_v - vc))
-    return k * (timer.ra + timer.rb) * timer.c1 + LN2 * timer.rb * timer.c1
+    return k * (ra + rb) * timer.c1 + LN2 * rb * timer.c1
 
 
-def _control_actions(timer: TimerParts, t_meas: float, t_nom: float, scale: float, t_need: float,
-                     tol: float) -> list[_Action]:
+def _control_actions(timer: TimerParts, scale: float, t_need: float, tol: float, present) -> list[_Action]:
     """A divider off the supply on the control pin (ratiometric, so supply sag cancels to first
     order); calibrated by the measured frequency like the resistor trims."""
     vcc = timer.supply_v
@@ -290,7 +286,7 @@ def _control_actions(timer: TimerParts, t_meas: float, t_nom: float, scale: floa
     for r2 in series_values("E24", 1e3, 10e3):
         # R1 from the node equation with the nominal internal feed
         g = vc_need * (1.0 / r2 + 1.0 / CONTROL_R_INTERNAL) - (2.0 * vcc / 3.0) / CONTROL_R_INTERNAL
-        if g <= 0 or vc_need >= vcc:
+        if g <= 0:
             continue
         r1_exact = (vcc - vc_need) / g
         for r1 in series_values("E24", r1_exact * 0.9, r1_exact * 1.1):
@@ -305,9 +301,10 @@ def _control_actions(timer: TimerParts, t_meas: float, t_nom: float, scale: floa
     def apply(s: _State, rng) -> _State:
         t = s.copy()
         n = s.f.size
+        ra, rb = present(rng, n)
         rint = CONTROL_R_INTERNAL * _uniform(rng, n, CONTROL_R_SPREAD)
         vc = _vc_divider(vcc, r1 * _uniform(rng, n, tol), r2 * _uniform(rng, n, tol), rint)
-        t.f = s.f * _period_vc(timer, 2.0 * vcc / 3.0) / _period_vc(timer, vc)
+        t.f = s.f * _period_vc(timer, 2.0 * vcc / 3.0, ra, rb) / _period_vc(timer, vc, ra, rb)
         return t
     text = (f"set the control pin to {vc_nom:.3f} V with {_q(r1, 'Ω')} from the supply and {_q(r2, 'Ω')} to "
             "ground (ratiometric: supply sag cancels to first order; the internal 3.3 kΩ feed is loose, ±20 %)")
