@@ -4,11 +4,11 @@ Used by :mod:`benchfit.design.advice`. An action knows the change in words and n
 (:class:`Change`, the issue 10 JSON) and how it alters a draw of the unit (:class:`_State`):
 added parts are drawn rectangular within their tolerance (GUM 4.3.7).
 
-Timer actions are calibrated by the measured frequency: the present period is
-T_meas = s·T_nom(RA, RB, C1) (charging law, REFERENCES §7; the diode's drop, §11). Whether the
-present error sits in C1 (every period scales by s) or in the resistors (an offset δ in RB that
-a new part leaves alone) is not known; each draw takes a weight w uniform in [0, 1] between the
-two, which is the attribution part of the prediction's uncertainty. The control pin is set from
+Timer actions are calibrated by the measured frequency: at fixed thresholds the period is
+proportional to C1 (charging law, REFERENCES §7; the diode's drop, §11), so after a change
+f = f_meas·T(ra, rb)/T(ra', rb') with C1, its error and the timer's initial error cancelling;
+the present ra, rb are drawn within their tolerance and ra', rb' are the same draws after the
+change. The control pin is set from
 a divider off the supply against its internal ⅔·Vcc feed through 5 kΩ ∥ 10 kΩ (NE555 block
 diagram, REFERENCES §7), whose loose absolute value (±20 %, assumed) enters in full.
 """

@@ -14,9 +14,9 @@ times the model's ratio, q_after = q_meas · m(after)/m(before), both m computed
 Monte Carlo draw of the fitted parts. The capture chain's calibration, and most of the model's
 own error, cancel in the ratio. Frequency: the measured one, or after a timer change the
 measured one scaled by the ratio of the timer's periods (the measurement calibrates the
-existing parts: adding 110 Ω to RB moves the frequency by the same fraction whatever the
-timer's initial error, so only the added part's tolerance and the attribution of the present
-error to C1 or to the resistors enter the uncertainty).
+existing parts: the period is proportional to C1, so C1's error and the timer's initial error
+cancel in the ratio, and only the added part's tolerance and the present resistors' tolerance
+enter the uncertainty; :mod:`benchfit.design.actions`).
 
 Uncertainty (JCGM 101:2008, propagation of distributions by Monte Carlo; seeded): the fitted
 parameters are drawn from a normal with the fit's standard errors and correlations; parts
