@@ -127,7 +127,7 @@ def _c_parallel(combo, tol: float) -> _Action:
         t.C = s.C + val * _uniform(rng, s.C.size, tol)
         return t
     return _Action("filter", Change("C", "add in parallel", tuple(combo.parts), 0.0,
-                                    f"add {desc} in parallel with the capacitor bank"),
+                                    f"add {desc} (±{tol * 100:g} %) in parallel with the capacitor bank"),
                    combo.n_parts, 0.0, apply)
 
 
@@ -141,7 +141,7 @@ def _c_series(combo, tol: float) -> _Action:
         t.C = s.C * cs / (s.C + cs)
         return t
     return _Action("filter", Change("C", "add in series", tuple(combo.parts), 0.0,
-                                    f"put {desc} in series with the capacitor bank (non-polar or film)"),
+                                    f"put {desc} (±{tol * 100:g} %) in series with the capacitor bank (non-polar or film)"),
                    combo.n_parts, 0.0, apply)
 
 
@@ -153,7 +153,7 @@ def _r_damp(combo, tol: float) -> _Action:
         t.Rs = s.Rs + val * _uniform(rng, s.Rs.size, tol)
         return t
     return _Action("filter", Change("Rdamp", "add in series", tuple(combo.parts), val,
-                                    f"add a damping resistor of {combo.describe()} in series with the choke"),
+                                    f"add a damping resistor of {combo.describe()} (±{tol * 100:g} %) in series with the choke"),
                    combo.n_parts, 0.0, apply)
 
 
@@ -207,8 +207,9 @@ def _timer_actions(timer: TimerParts, f_meas: float, target: float, series: str,
                 t.f = s.f * timer.period(ra, rb) / after
                 return t
             desc = combo.describe().removesuffix(' in series')
+            desc = f"{desc} (±{tol * 100:g} %)"
             text = (f"add {desc} in series with {part} ({_q(getattr(timer, part.lower()), 'Ω')})" if how == "series"
-                    else f"add {desc if combo.n_parts == 1 else f'({desc})'} in parallel with {part} "
+                    else f"add {desc} in parallel with {part} "
                          f"({_q(getattr(timer, part.lower()), 'Ω')})")
             base = getattr(timer, part.lower())
             newv = base + val if how == "series" else base * val / (base + val)

@@ -88,9 +88,11 @@ def stress_checks(pred, ratings: Ratings | None = None) -> tuple[StressCheck, ..
     non-polar/film note.
     """
     r = ratings or Ratings()
+    what = ("timer output current peak" if pred.divider_known else
+            "timer output current peak (the filter's input current; a divider between timer and filter adds its own)")
     checks = [
         _check("timer_output_peak_a", pred.source_peak_a, "A", r.timer_output_a,
-               "timer output current peak", "NE555 recommended output current (TI SLFS022)"),
+               what, "NE555 recommended output current (TI SLFS022)"),
         _check("inductor_peak_a", pred.inductor_peak_a, "A", r.inductor_peak_a,
                "inductor current peak", "choke rating"),
         _check("inductor_rms_a", pred.inductor_rms_a, "A", r.inductor_rms_a,

@@ -190,6 +190,7 @@ class UnitPrediction:
     source_rms_a: float
     chain: CaptureChain = field(default_factory=CaptureChain)
     notes: tuple[str, ...] = ()
+    divider_known: bool = False
 
     @property
     def thd_pct(self) -> float:
@@ -270,7 +271,8 @@ def predict(unit: UnitModel, chain: CaptureChain | None = None) -> UnitPredictio
         inductor_peak_a=float(np.max(np.abs(il))), inductor_rms_a=il_rms,
         series_loss_w=il_rms ** 2 * p.Rs,
         capacitor_max_v=float(vc.max()), capacitor_min_v=float(vc.min()),
-        source_peak_a=src[0], source_rms_a=src[1], chain=chain, notes=tuple(notes))
+        source_peak_a=src[0], source_rms_a=src[1], chain=chain, notes=tuple(notes),
+        divider_known=d.divider is not None)
 
 
 def _source_current(unit: UnitModel, i_l: np.ndarray, i0: float) -> tuple[float, float]:
