@@ -655,7 +655,7 @@ def _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, dr
               f"{trials} Monte Carlo draws, seed {seed})")
     stdout.print(t)
     lines = advice.summary_lines()
-    _print_lines([x for x in lines if x.startswith(("no change", "alternative", "no action"))])
+    _print_lines([x for x in lines if x.startswith(("no change:", "alternative", "no action"))])
     _print_lines(list(advice.warnings) + list(advice.plan.warnings) + list(advice.notes))
     _print_lines([f"stress: {s.text}" for s in advice.plan.stress], "")
     _print_lines([f"Caution: {c}" for c in advice.cautions], "yellow")

@@ -136,6 +136,7 @@ class Advice:
                          f"probability of meeting the spec {self.plan.p_pass * 100:.1f} %")
         lines += [f"stress: {s.text}" for s in self.plan.flagged]
         lines += list(self.warnings) + list(self.plan.warnings)
+        lines += [f"basis: {n}" for n in self.notes]
         for a in self.alternatives[:3]:
             what = "; ".join(c.text for c in a.changes) or "no change"
             lines.append(f"alternative: {what} — probability of meeting the spec {a.p_pass * 100:.1f} %"
