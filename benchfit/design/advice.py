@@ -526,6 +526,8 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     search = _Search(spec, limits_eval, ev, base, meas, meas_u, n, seed, ratings)
     if fit is None:
         search.has_filter = False
+    notes.append(f"probabilities from {n} Monte Carlo draws (seed {seed}, JCGM 101 propagation); their own "
+                 f"standard error is at most {50.0 / math.sqrt(n):.1f} percentage points")
     # far-off parts
     far: list[_Action] = []
     if fit is not None:
