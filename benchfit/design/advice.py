@@ -605,6 +605,14 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
         best, verdict = replace_plans[0], "replace"
     elif not plans or best.p_pass < P_MIN or best.flagged:
         verdict = "cannot meet spec"
+    if verdict != "cannot meet spec" and best.p_pass <= keep.p_pass + 0.01:
+        # no action makes conformity more likely than leaving the unit alone
+        if keep.p_pass >= P_MIN:
+            warnings.append(f"the unit is within its uncertainty of a limit and conforms with probability "
+                            f"{keep.p_pass * 100:.1f} %; no action found raises that — leave it and re-measure")
+            best, verdict = keep, "no change"
+        else:
+            verdict = "cannot meet spec"
     blocking = None
     if verdict == "cannot meet spec":
         cand = best if plans else keep
@@ -613,7 +621,7 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
         warnings.append(f"no action reaches the spec: the best plan meets it with probability "
                         f"{cand.p_pass * 100:.1f} %; {blocking} blocks it")
         best = keep
-    elif best.p_pass < P_HIGH:
+    elif best.p_pass < P_HIGH and verdict != "no change":
         warnings.append(f"the best plan meets the spec with probability {best.p_pass * 100:.1f} % only — "
                         "re-measure after the change")
     if far and verdict != "replace":

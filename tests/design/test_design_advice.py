@@ -197,3 +197,18 @@ def test_timer_trim_uncertainty_is_honest_over_seeded_units():
         z.append((f_after - v) / u)
     assert len(z) >= 80
     assert 0.75 <= np.std(z) <= 1.3 and abs(np.mean(z)) <= 0.4
+
+
+def test_unit_near_a_limit_that_no_action_improves_gets_no_change():
+    # 50.245 Hz ± 3 mHz against 50.25 Hz: a conditional pass (ILAC-G8 4.2.3, w = U = 6 mHz);
+    # without timer parts nothing moves the frequency, so any filter change would be pointless
+    fit = _fit(L=0.300, Rs=68.6)
+    m = _measurement(fit, f=50.02)
+    m["channels"][0].update(frequency_hz=50.245, frequency_u_hz=0.003)
+    adv = advise(SPEC, fit=fit, measurement=m, n_trials=400)
+    assert adv.verdict == "no change" and adv.plan.changes == ()
+    # P(f ≤ 50.25 Hz) for a normal with u = 3 mHz: Φ(5/3) = 0.952 (seeded draws, 400 of them:
+    # standard error 0.011)
+    assert adv.plan.p_pass == pytest.approx(0.952, abs=0.035)
+    assert any("no action found raises that" in w for w in adv.warnings)
+    assert any("no timer parts were given" in w for w in adv.warnings)
