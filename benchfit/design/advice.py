@@ -225,8 +225,8 @@ def _fit_draws(fit, n: int, rng, fixed_tol: Mapping[str, float], notes: list[str
             draws["Resr"] = draws["Resr"] * s
             if tol:
                 notes.append(f"{k} was fixed in the fit at {_q(vals[k], 'H' if k == 'L' else 'F')}: taken as "
-                             f"±{tol * 100:g} % (rectangular, assumed meter reading); the fitted L, Rs and ESR "
-                             "scale with it")
+                             f"±{tol * 100:g} % (rectangular, assumed meter reading); the fitted {other}, Rs and "
+                             "ESR scale with it")
     if fit.parameters.get("Rload") is not None and fit.parameters["Rload"].fixed and math.isfinite(vals["Rload"]):
         tol = fixed_tol.get("Rload", 0.0)
         a = 1.0 + tol * rng.uniform(-1, 1, n)
@@ -482,6 +482,10 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
             raise DesignError(f"{fit.file}: model {fit.model!r} — trim advice needs an lc-lowpass fit "
                               "(benchfit fit CAPTURE --model lc-lowpass)")
         base = _fit_draws(fit, n, rng, fixed_tol, notes)
+        if fit.method == "two-channel":
+            warnings.append("two-channel fit: its Rs excludes the source's own resistance (the drive was measured "
+                            "at the filter input), so predictions after a change take that drive as stiff — a "
+                            "one-channel fit of the output includes the source and predicts level changes better")
     else:
         base = _State(*(np.full(n, v) for v in (1.0, 1e-6, 1e3, 0.0, math.inf, 0.0)))
         others = [lim.quantity for lim in limits if lim.quantity != "frequency_hz"]
