@@ -165,15 +165,23 @@ def demo_command(
         tour.run(["log", "stats", quantity, "--spec", spec, "--log", log])
 
     tour.section("5. Trim advice",
-                 "HC-07: fit with its capacitor bank measured (33 µF) to find the effective inductance "
-                 "(about 198 mH against 300 mH nominal: check the chokes first), then ask which "
-                 "capacitance would bring the tank back to 50 Hz. HC-03 as found: the new RB or "
-                 "control voltage for its timer.")
+                 "Advice judged on every limit of the spec, with the probability of passing. HC-07: fit "
+                 "with its capacitor bank measured (33 µF) and measure its output; the fitted inductance "
+                 "(about 198 mH against 300 mH nominal) names the choke to replace. HC-04 passes with "
+                 "margin: no change. HC-03 as found: a small resistor in series with RB, calibrated by "
+                 "the measured frequency.")
     fit_json = out / "hc07_fit.json"
+    meas_json = out / "hc07_measurement.json"
     tour.run(["fit", s("hc07_output.wav"), "--model", "lc-lowpass", "--fix", "C=33u", "--fix", "Rload=10k",
               "--json"], save_stdout=fit_json)
-    tour.run(["design", "trim", "--fit", str(fit_json), "--target", "50", "--bank", "22u,10u,1u"])
-    tour.run(["design", "trim", "--target", "50", "--timer-frequency", "50.40", "--timer-frequency-u",
+    tour.run(["measure", s("hc07_output.wav"), "--json"], save_stdout=meas_json)
+    tour.run(["design", "trim", "--fit", str(fit_json), "--measurement", str(meas_json), "--spec", spec])
+    fit04, meas04 = out / "hc04_fit.json", out / "hc04_measurement.json"
+    tour.run(["fit", s("hc04_output.flac"), "--model", "lc-lowpass", "--fix", "C=33u", "--fix", "Rload=10k",
+              "--json"], save_stdout=fit04)
+    tour.run(["measure", s("hc04_output.flac"), "--json"], save_stdout=meas04)
+    tour.run(["design", "trim", "--fit", str(fit04), "--measurement", str(meas04), "--spec", spec])
+    tour.run(["design", "trim", "--spec", spec, "--timer-frequency", "50.40", "--timer-frequency-u",
               "0.001", *_TIMER])
 
     tour.section("6. Stability over a warm-up",

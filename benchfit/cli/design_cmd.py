@@ -210,6 +210,9 @@ def astable_command(
     control_voltage: Optional[str] = typer.Option(None, "--control-voltage", metavar="V",
                                                   help="Voltage held on the control pin (V)."),
     diode: bool = typer.Option(False, "--diode", help="Diode across RB: allows duty below 50 %."),
+    diode_drop: str = typer.Option("0.65", "--diode-drop", metavar="V", help="The diode's forward drop (V)."),
+    ideal_timer: bool = typer.Option(False, "--ideal-timer", help="Leave the timer's own initial error, "
+                                     "temperature and supply drift (TI SLFS022) out of the spread."),
     tolerance_r: str = typer.Option("1%", "--tolerance-r", metavar="TOL", help="Resistor tolerance."),
     tolerance_c: str = typer.Option("10%", "--tolerance-c", metavar="TOL", help="Capacitor tolerance."),
     yield_within: str = typer.Option("1%", "--yield-within", metavar="TOL", help="Frequency band for the yield figure."),
@@ -239,12 +242,13 @@ def astable_command(
                       control_voltage="--control-voltage", frequency="--frequency",
                       tolerance_r="--tolerance-r", range="--control-range", trim="--trim-pot / --control-range"):
         result = _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r,
-                          tolerance_c, yield_within, distribution, trials, seed, trim_pot, cr)
+                          tolerance_c, yield_within, distribution, trials, seed, trim_pot, cr,
+                          _opt_value(diode_drop, "--diode-drop", allow_zero=True), not ideal_timer)
     _show_astable(result, as_json)
 
 
 def _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r, tolerance_c,
-             yield_within, distribution, trials, seed, trim_pot, cr):
+             yield_within, distribution, trials, seed, trim_pot, cr, diode_drop=0.65, timer_variation=True):
     from benchfit.design.astable import design_astable
 
     return design_astable(
@@ -254,7 +258,8 @@ def _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, toler
         tolerance_c=parse_fraction(tolerance_c, "--tolerance-c"),
         yield_within=parse_fraction(yield_within, "--yield-within", allow_zero=False),
         distribution=distribution, n_trials=trials, seed=seed,
-        trim_pot_ohm=_opt_value(trim_pot, "--trim-pot"), control_range_v=cr)
+        trim_pot_ohm=_opt_value(trim_pot, "--trim-pot"), control_range_v=cr, diode_drop_v=diode_drop,
+        timer_variation=timer_variation)
 
 
 def _show_astable(result, as_json: bool) -> None:
@@ -318,14 +323,30 @@ def filter_command(
     series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series for the solved part."),
     amplitude: str = typer.Option("12", "--amplitude", metavar="V", help="Drive swing, 0 V to this (V)."),
     harmonics: int = typer.Option(40, "--harmonics", metavar="N", min=2, help="Highest harmonic in the THD sum (2 or more)."),
+    thd_max: Optional[str] = typer.Option(None, "--thd-max", metavar="PCT", help="THD target, e.g. 5%: choose "
+                                          "f0 and Q (damping) for it with --inductance."),
+    level_tolerance: str = typer.Option("10%", "--level-tolerance", metavar="TOL",
+                                        help="With --thd-max: allowed level change over part tolerances."),
+    tolerance_l: str = typer.Option("10%", "--tolerance-l", metavar="TOL", help="With --thd-max: choke tolerance."),
+    trials: int = typer.Option(400, "--trials", metavar="N", min=100, help="With --thd-max: draws per point."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stdout
     from benchfit.design.filter import design_filter
     from benchfit.units import format_quantity as fq
 
+    if inductance is not None and capacitance is not None:
+        _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, amplitude, as_json)
+        return
+    if thd_max is not None:
+        if inductance is None:
+            fail("--thd-max: give --inductance (the choke) — the capacitor and damping are chosen")
+        _damped_filter(frequency, inductance, load, rs, duty, amplitude, thd_max, level_tolerance, tolerance_l,
+                       series, trials, as_json)
+        return
     if (inductance is None) == (capacitance is None):
-        fail("--inductance/--capacitance: give exactly one of them — the other part is solved for")
+        fail("--inductance/--capacitance: neither given — give one of them (the other is solved for), or both "
+             "to evaluate that filter")
     series = _series(series, "--series")
     with _OptionNames(duty="--duty", harmonics="--harmonics", frequency="--frequency"):
         result = design_filter(
@@ -348,10 +369,75 @@ def filter_command(
                   f"{r.thd * 100:.2f} %")
     stdout.print(t)
     load_text = "open" if result.load_ohm is None else fq(result.load_ohm, "Ω")
+    for o in result.options:
+        _print_lines([f"FLAGGED ({o.label}, not recommended): {s.text}" for s in o.flagged], "yellow")
+    if result.recommended is None:
+        _print_lines(["No option is recommended: every one exceeds a rating — add damping (series resistance) "
+                      "or drive the filter through a divider; see --thd-max for a damped design"], "yellow")
     _print_lines([f"Circuit: drive 0 V…{result.amplitude_v:g} V, duty {result.duty * 100:g} % → Rs "
                   f"{fq(result.rs_ohm, 'Ω')} → L → out; C with ESR {fq(result.esr_ohm, 'Ω')} to ground; "
                   f"load {load_text}."] + list(result.notes))
     _print_lines([f"Caution: {c}" for c in result.cautions], "yellow")
+
+
+def _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, amplitude, as_json) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.design.damped import evaluate_filter
+
+    with _OptionNames(duty="--duty", frequency="--frequency", amplitude="--amplitude"):
+        pred, stress = evaluate_filter(
+            _opt_value(inductance, "--inductance"), _opt_value(capacitance, "--capacitance"),
+            _opt_value(frequency, "--frequency"), rs_ohm=_opt_value(rs, "--rs", allow_zero=True),
+            esr_ohm=_opt_value(esr, "--esr", allow_zero=True), load_ohm=_opt_value(load, "--load"),
+            duty=parse_fraction(duty, "--duty", allow_zero=False), amplitude_v=_opt_value(amplitude, "--amplitude"))
+    if as_json:
+        print_json({"prediction": pred.to_dict(), "stress": [s.to_dict() for s in stress],
+                    "flagged": [s.text for s in stress if s.flagged]})
+        return
+    t = _table(f"L = {inductance}, C = {capacitance} driven at {frequency} Hz", ("quantity", "value"), header=False)
+    t.add_row("THD (harmonics 2–10)", f"{pred.thd_pct:.3f} %")
+    t.add_row("fundamental", f"{pred.amplitude:.4g} V peak")
+    t.add_row("output RMS (with DC)", f"{pred.vrms:.4g} V")
+    t.add_row("output peak to peak", f"{pred.vpp:.4g} V")
+    t.add_row("inductor current peak / RMS", f"{pred.inductor_peak_a:.4g} A / {pred.inductor_rms_a:.4g} A")
+    t.add_row("capacitor max / min", f"{pred.capacitor_max_v:.4g} V / {pred.capacitor_min_v:.4g} V")
+    stdout.print(t)
+    _print_lines([("FLAGGED: " if s.flagged else "") + s.text for s in stress])
+    _print_lines([_CAUTION], "yellow")
+
+
+def _damped_filter(frequency, inductance, load, rs, duty, amplitude, thd_max, level_tolerance, tolerance_l,
+                   series, trials, as_json) -> None:
+    from benchfit.cli.common import print_json, stdout
+    from benchfit.design.damped import design_damped
+
+    with _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs"):
+        d = design_damped(
+            _opt_value(frequency, "--frequency"), _opt_value(inductance, "--inductance"),
+            rs_ohm=_opt_value(rs, "--rs", allow_zero=True), load_ohm=_opt_value(load, "--load"),
+            duty=parse_fraction(duty, "--duty", allow_zero=False), amplitude_v=_opt_value(amplitude, "--amplitude"),
+            thd_max_pct=100 * parse_fraction(thd_max, "--thd-max", allow_zero=False),
+            level_tolerance=parse_fraction(level_tolerance, "--level-tolerance", allow_zero=False),
+            tolerance_l=parse_fraction(tolerance_l, "--tolerance-l"), series=_series(series, "--series"),
+            n_trials=trials)
+    if as_json:
+        print_json(d.to_dict())
+        return
+    t = _table(f"Trade-off for {frequency} Hz (THD ≤ {thd_max}, level ±{level_tolerance})",
+               ("f0/F", "Q", "C", "R damp", "THD", "level", "level spread", "peaking", "yield", "stress"))
+    from benchfit.units import format_quantity as fq
+
+    for r in d.table:
+        t.add_row(f"{r.ratio:g}", f"{r.q:g}", fq(r.capacitance_f, "F", 3), fq(max(r.r_damp_ohm, 0.0), "Ω", 3),
+                  f"{r.thd_pct:.2f} %", f"{r.vrms:.3g} V", f"±{r.level_spread * 100:.1f} %", f"{r.peaking:.2f}",
+                  f"{r.yield_fraction * 100:.0f} %", "flagged" if r.flagged else "")
+    stdout.print(t)
+    p = d.prediction
+    _print_lines([f"Chosen: C = {d.capacitor.describe()}" + ("" if d.damping is None else
+                  f", damping resistor {d.damping.describe()} in series with the choke")
+                  + f" → THD {p.thd_pct:.2f} %, {p.vrms:.3g} V rms (AC), yield {d.yield_fraction * 100:.1f} %"]
+                 + list(d.notes) + [("FLAGGED: " if s.flagged else "") + s.text for s in d.stress])
+    _print_lines([f"Caution: {c}" for c in d.cautions], "yellow")
 
 
 # --- combine --------------------------------------------------------------------------------
@@ -407,13 +493,17 @@ def combine_command(
 
 _TRIM_EXAMPLE = """
 
-Example:
+Examples:
 
 \b
-  benchfit fit hc07.wav --json > hc07_fit.json
+  benchfit fit hc07.wav --model lc-lowpass --fix C=33u \\
+      --fix Rload=10k --json > hc07_fit.json
+  benchfit measure hc07.wav --json > hc07.json
+  benchfit design trim --fit hc07_fit.json --measurement hc07.json \\
+      --spec hc_spec.toml --nominal L=300m --json
+  benchfit design trim --spec hc_spec.toml --timer-frequency 50.40 \\
+      --timer-frequency-u 0.001 --ra 1k --rb 13.7k --c1 1u --supply 12
   benchfit design trim --fit hc07_fit.json --target 50 --bank 22u,10u,1u
-  benchfit design trim --fit hc07_fit.json --target 50 \\
-      --timer-frequency 50.61 --ra 1k --rb 9.1k --c1 1.5u --supply 12
 """
 
 
@@ -435,33 +525,144 @@ def _read_fit(path: Path):
         fail(f"{path}: not a benchfit fit result (missing or bad {e}) — use the output of 'benchfit fit --json'")
 
 
-@design_app.command("trim", short_help="The part change that brings a fitted unit to target.", help="From a unit's fit, the one part change that brings it to the target "
-                    "frequency, with the predicted result." + _TRIM_EXAMPLE)
+@design_app.command("trim", short_help="What to change so a unit meets its spec.", help="From a unit's fit and "
+                    "measurement, the changes that bring it inside every limit of its spec (or 'no change'), "
+                    "each predicted on every limit with its uncertainty and probability of passing. "
+                    "Without --spec: the older capacitor advice that only moves the resonance to --target." + _TRIM_EXAMPLE)
 def trim_command(
     fit: Optional[Path] = typer.Option(None, "--fit", metavar="FILE", help="JSON from 'benchfit fit --model lc-lowpass "
                                        "--json' (filter advice). Leave out for timer advice only."),
-    target: str = typer.Option(..., "--target", metavar="HZ", help="Wanted frequency (Hz)."),
+    spec: Optional[Path] = typer.Option(None, "--spec", metavar="FILE", help="Spec TOML: the advice is judged on "
+                                        "every limit (recommended)."),
+    measurement: Optional[Path] = typer.Option(None, "--measurement", metavar="FILE",
+                                               help="JSON from 'benchfit measure --json' of the output (calibrates "
+                                               "the drive, the level and the frequency)."),
+    nominal: list[str] = typer.Option([], "--nominal", metavar="PART=VALUE", help="Nominal part value, e.g. "
+                                      "L=300m or C=33u (repeatable); a fitted part far from it is replaced."),
+    target: Optional[str] = typer.Option(None, "--target", metavar="HZ", help="Without --spec: wanted resonance (Hz)."),
     series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series for capacitors to add."),
     max_parts: int = typer.Option(2, "--max-parts", metavar="N", min=1, max=3,
-                                  help="At most this many capacitors to add (1 to 3)."),
+                                  help="Without --spec: at most this many capacitors to add (1 to 3)."),
     part_tolerance: Optional[str] = typer.Option(None, "--part-tolerance", metavar="TOL",
                                                  help="Tolerance of added capacitors (default: the series')."),
-    bank: Optional[str] = typer.Option(None, "--bank", metavar="VALUES", help="Nominal values of the present capacitor bank, "
-                                       "comma-separated, e.g. 22u,10u,1u."),
+    bank: Optional[str] = typer.Option(None, "--bank", metavar="VALUES", help="Without --spec: nominal values of the "
+                                       "present capacitor bank, comma-separated, e.g. 22u,10u,1u."),
+    duty: Optional[str] = typer.Option(None, "--duty", metavar="DUTY", help="Drive duty when no measurement is given."),
+    drive_swing: Optional[str] = typer.Option(None, "--drive-swing", metavar="V",
+                                              help="Drive swing at the filter (V) when no measurement is given."),
+    trials: int = typer.Option(1000, "--trials", metavar="N", min=200, help="Monte Carlo draws (200 or more)."),
+    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed of the random generator."),
     timer_frequency: Optional[str] = typer.Option(None, "--timer-frequency", metavar="HZ", help="Measured timer frequency (Hz)."),
     timer_frequency_u: Optional[str] = typer.Option(None, "--timer-frequency-u", metavar="HZ",
                                                     help="Its standard uncertainty (Hz)."),
     ra: Optional[str] = typer.Option(None, "--ra", metavar="OHM", help="Timer RA (Ω)."),
     rb: Optional[str] = typer.Option(None, "--rb", metavar="OHM", help="Timer RB (Ω)."),
     c1: Optional[str] = typer.Option(None, "--c1", metavar="F", help="Timer C1 (F)."),
-    supply: Optional[str] = typer.Option(None, "--supply", metavar="V", help="Supply voltage (V): enables control-pin advice."),
+    supply: Optional[str] = typer.Option(None, "--supply", metavar="V", help="Supply voltage (V)."),
     control_voltage: Optional[str] = typer.Option(None, "--control-voltage", metavar="V",
-                                                  help="Present control-pin voltage (V), if held."),
+                                                  help="Without --spec: present control-pin voltage (V), if held."),
     diode: bool = typer.Option(False, "--diode", help="The timer has a diode across RB."),
-    resistor_series: str = typer.Option("E24", "--resistor-series", metavar="SERIES", help="Series for a new RB."),
-    tolerance_r: str = typer.Option("1%", "--tolerance-r", metavar="TOL", help="Tolerance of a new RB."),
+    resistor_series: str = typer.Option("E24", "--resistor-series", metavar="SERIES", help="Series for a new resistor."),
+    tolerance_r: str = typer.Option("1%", "--tolerance-r", metavar="TOL", help="Tolerance of a new resistor."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
+    from benchfit.cli.common import fail
+
+    if spec is None:
+        if target is None:
+            fail("--spec / --target: neither given — give --spec SPEC.toml (advice judged on every limit) "
+                 "or --target HZ (resonance-only capacitor advice)")
+        _legacy_trim(fit, target, series, max_parts, part_tolerance, bank, timer_frequency, timer_frequency_u,
+                     ra, rb, c1, supply, control_voltage, diode, resistor_series, tolerance_r, as_json)
+        return
+    _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, drive_swing, trials, seed,
+               timer_frequency, timer_frequency_u, ra, rb, c1, supply, diode, resistor_series, tolerance_r,
+               as_json)
+
+
+def _read_json(path: Path, what: str, how: str):
+    from benchfit.cli.common import fail
+
+    if path.is_dir() or not path.is_file():
+        fail(f"{path}: {'is a folder, not' if path.is_dir() else 'not found:'} {what} — {how}")
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as e:
+        fail(f"{path}: not a JSON file ({e}) — {how}")
+
+
+def _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, drive_swing, trials, seed,
+               timer_frequency, timer_frequency_u, ra, rb, c1, supply, diode, resistor_series, tolerance_r,
+               as_json) -> None:
+    from benchfit.cli.common import fail, print_json, stdout
+    from benchfit.design.advice import TimerParts, advise
+    from benchfit.report.spec import load_spec
+
+    sp = load_spec(spec)
+    fit_result = None if fit is None else _read_fit(fit)
+    meas = None
+    if measurement is not None:
+        meas = _read_json(measurement, "a measurement", "save one with 'benchfit measure CAPTURE --json > FILE'")
+        if not isinstance(meas, dict) or not isinstance(meas.get("channels"), list):
+            fail(f"{measurement}: not a benchfit measurement (no 'channels') — use the output of "
+                 "'benchfit measure --json'")
+    if fit_result is None and meas is None and timer_frequency is None:
+        fail("--fit / --measurement / --timer-frequency: none given — give the unit's fit and measurement, "
+             "or the measured timer frequency with --ra, --rb, --c1")
+    timer = None
+    timer_args = {"--ra": ra, "--rb": rb, "--c1": c1}
+    if any(v is not None for v in timer_args.values()):
+        missing = ", ".join(k for k, v in timer_args.items() if v is None)
+        if missing:
+            fail(f"--ra/--rb/--c1: also give {missing} — the timer's nominal parts")
+        vcc = _opt_value(supply, "--supply")
+        if vcc is None:
+            vcc = sp.conditions.get("supply_v") if isinstance(sp.conditions.get("supply_v"), (int, float)) else 12.0
+        timer = TimerParts(_opt_value(ra, "--ra"), _opt_value(rb, "--rb"), _opt_value(c1, "--c1"), float(vcc), diode)
+    nom = {}
+    for key, unit in (("L", "h"), ("C", "f")):
+        v = sp.conditions.get(f"nominal_{key}_{unit}")
+        if isinstance(v, (int, float)) and not isinstance(v, bool):
+            nom[key] = float(v)
+    for item in nominal:
+        part, sep, value = item.partition("=")
+        part = part.strip()
+        if not sep or part not in ("L", "C"):
+            fail(f"--nominal {item!r}: not PART=VALUE with PART L or C — write e.g. --nominal L=300m")
+        nom[part] = parse_part_value(value, f"--nominal {part}", "L" if part == "L" else "C")
+    with _OptionNames(trials="--trials", duty="--duty"):
+        advice = advise(
+            sp, fit=fit_result, measurement=meas, timer=timer,
+            timer_frequency_hz=_opt_value(timer_frequency, "--timer-frequency"),
+            timer_frequency_u_hz=_opt_value(timer_frequency_u, "--timer-frequency-u"), nominal=nom,
+            duty=None if duty is None else parse_fraction(duty, "--duty", allow_zero=False),
+            drive_swing_v=_opt_value(drive_swing, "--drive-swing"), cap_series=_series(series, "--series"),
+            resistor_series=_series(resistor_series, "--resistor-series"),
+            part_tolerance=None if part_tolerance is None else parse_fraction(part_tolerance, "--part-tolerance"),
+            resistor_tolerance=parse_fraction(tolerance_r, "--tolerance-r"), n_trials=trials, seed=seed)
+    if as_json:
+        print_json(advice.to_dict())
+        return
+    t = _table(f"Trim advice for {advice.source or 'the unit'} against {sp.name or spec}", ("", ""), header=False)
+    t.add_row("verdict", advice.verdict)
+    for i, c in enumerate(advice.plan.changes, start=1):
+        t.add_row(f"change {i}", c.text)
+    from benchfit.design.advice import _fmt_pred
+
+    for q, (v, u) in advice.plan.predicted.items():
+        t.add_row(f"predicted {q} (k = 1)", _fmt_pred(q, v, u).partition(" ")[2])
+    t.add_row("probability of meeting the spec", f"{advice.plan.p_pass * 100:.1f} % ({len(advice.plan.p_limits)} of {len(sp.limits)} limits, "
+              f"{trials} Monte Carlo draws, seed {seed})")
+    stdout.print(t)
+    lines = advice.summary_lines()
+    _print_lines([x for x in lines if x.startswith(("no change:", "alternative", "no action"))])
+    _print_lines(list(advice.warnings) + list(advice.plan.warnings) + list(advice.notes))
+    _print_lines([f"stress: {s.text}" for s in advice.plan.stress], "")
+    _print_lines([f"Caution: {c}" for c in advice.cautions], "yellow")
+
+
+def _legacy_trim(fit, target, series, max_parts, part_tolerance, bank, timer_frequency, timer_frequency_u,
+                 ra, rb, c1, supply, control_voltage, diode, resistor_series, tolerance_r, as_json) -> None:
     from benchfit.cli.common import fail, print_json, stdout
     from benchfit.design.trim import suggest_trim
     from benchfit.units import format_quantity as fq
@@ -509,5 +710,6 @@ def trim_command(
         t.add_row(f"{what} after (k = 1)", fu(c.predicted_hz, c.predicted_u_hz, "Hz"))
         t.add_row("95 % interval (k = 2)", "—" if iv is None else f"{iv[0]:.3f} Hz to {iv[1]:.3f} Hz")
         stdout.print(t)
-    _print_lines(list(advice.notes))
+    _print_lines(["resonance-only advice (the filter's f0 moved to --target): it does not check THD or level — "
+                  "give --spec for advice judged on every limit"] + list(advice.notes))
     _print_lines([f"Caution: {c}" for c in advice.cautions] + [_CAUTION], "yellow")

@@ -9,10 +9,14 @@ and with a voltage Vc forced on the control pin the thresholds move to Vc and Vc
 
     t_H = (RA + RB)·C·ln((Vcc − Vc/2)/(Vcc − Vc)),   t_L = RB·C·ln2   (independent of Vc).
 
-The diode variant (a steering diode across RB, so C charges through RA alone) gives
-t_H = k_H·RA·C, t_L = ln2·RB·C with the diode's forward drop neglected. Duty is high time over
-period (REFERENCES §4: duty = pulse duration / period); some datasheets quote t_L/T instead.
-Comparator delays, output levels, discharge saturation and threshold currents are neglected.
+The diode variant (a steering diode across RB, so C charges through RA alone) charges C toward
+Vcc − Vd instead of Vcc, so t_H = k_H·RA·C with k_H = ln((Vcc − Vd − Vc/2)/(Vcc − Vd − Vc))
+(the charging law; REFERENCES §11: 0.786 at Vcc = 12 V, Vd = 0.65 V, not ln 2), and
+t_L = ln2·RB·C. Duty is high time over period (REFERENCES §4: duty = pulse duration / period);
+some datasheets quote t_L/T instead. Comparator delays, output levels, discharge saturation and
+threshold currents are neglected in the equations; the timer's own initial error, temperature
+coefficient and supply sensitivity (TI SLFS022 astable figures, REFERENCES §11) enter the
+Monte Carlo spread of :func:`design_astable`.
 
 All functions are pure. Randomness (the tolerance spread) comes from a seeded generator.
 """
@@ -45,6 +49,19 @@ C_MIN_F = 1e-9
 C_MAX_F = 100e-6
 #: end-to-end tolerance assumed for a trimming potentiometer (common practice, no source)
 POT_TOLERANCE = 0.20
+#: forward drop of a small-signal silicon steering diode, V (REFERENCES §11 uses 0.65 V)
+DIODE_DROP_V = 0.65
+#: NE555 astable figures (TI SLFS022, RA = 1 kΩ to 100 kΩ, C = 0.1 µF; REFERENCES §11): initial
+#: error of the timing interval 2.25 % typ, temperature coefficient 150 ppm/°C typ, supply
+#: sensitivity 0.3 %/V typ. A "typ" figure is not a bound; the spread takes it as one standard
+#: deviation (normal) — an interpretation, stated in the design notes.
+NE555_INITIAL_ERROR = 0.0225
+NE555_TEMPCO_PER_C = 150e-6
+NE555_SUPPLY_PER_V = 0.003
+#: operating ranges assumed for the spread: ±10 °C around the calibration temperature and
+#: ±0.5 V of supply (assumptions, stated in the notes)
+TEMPERATURE_SPAN_C = 10.0
+SUPPLY_SPAN_V = 0.5
 
 
 def _pos(value: float | None, name: str) -> float:
@@ -63,24 +80,34 @@ def _fraction(value: float, name: str, *, upper_open: bool = True) -> float:
     return v
 
 
-def high_time_factor(supply_v: float | None = None, control_voltage_v: float | None = None) -> float:
-    """k_H in t_H = k_H·R·C: ln2 with the internal divider, ln((Vcc − Vc/2)/(Vcc − Vc)) with Vc forced.
+def high_time_factor(supply_v: float | None = None, control_voltage_v: float | None = None,
+                     diode_drop_v: float = 0.0) -> float:
+    """k_H in t_H = k_H·R·C: ln((Vcc − Vd − Vc/2)/(Vcc − Vd − Vc)), Vc = ⅔·Vcc unless forced.
+
+    With Vd = 0 and the internal divider this is ln 2.
 
     Parameters
     ----------
     supply_v : float, optional
-        Supply voltage Vcc (V); needed only with ``control_voltage_v``.
+        Supply voltage Vcc (V); needed with ``control_voltage_v`` or a diode drop.
     control_voltage_v : float, optional
         Voltage on the control pin (V), 0 < Vc < Vcc. None: the internal ⅔·Vcc.
+    diode_drop_v : float
+        Forward drop (V) of a steering diode in the charge path (diode variant), else 0.
     """
-    if control_voltage_v is None:
+    if control_voltage_v is None and not diode_drop_v:
         return LN2
+    if supply_v is None:
+        raise DesignError("supply: missing — the diode's drop and a forced control voltage change the "
+                          "charge factor with the supply; give the supply voltage (--supply)")
     vcc = _pos(supply_v, "supply")
-    vc = _pos(control_voltage_v, "control-voltage")
-    if vc >= vcc:
-        raise DesignError(f"control-voltage: {vc:g} V must be below the supply {vcc:g} V — "
-                          "the upper threshold cannot reach the supply")
-    return math.log((vcc - vc / 2.0) / (vcc - vc))
+    vc = 2.0 * vcc / 3.0 if control_voltage_v is None else _pos(control_voltage_v, "control-voltage")
+    top = vcc - float(diode_drop_v)
+    if vc >= top:
+        raise DesignError(f"control-voltage: {vc:g} V must be below the supply {vcc:g} V"
+                          f"{f' less the diode drop {diode_drop_v:g} V' if diode_drop_v else ''} — "
+                          "the upper threshold cannot reach it")
+    return math.log((top - vc / 2.0) / (top - vc))
 
 
 def control_voltage_for_factor(k_high: float, supply_v: float) -> float:
@@ -118,7 +145,7 @@ def _times(ra, rb, c, k_high: float, diode: bool):
 
 def astable_timing(ra_ohm: float, rb_ohm: float, c_farad: float, *, supply_v: float | None = None,
                    control_voltage_v: float | None = None, diode: bool = False,
-                   form: TimingForm = "exact") -> AstableTiming:
+                   form: TimingForm = "exact", diode_drop_v: float = DIODE_DROP_V) -> AstableTiming:
     """High time, low time, frequency and duty of a 555-style astable.
 
     Parameters
@@ -132,7 +159,9 @@ def astable_timing(ra_ohm: float, rb_ohm: float, c_farad: float, *, supply_v: fl
     control_voltage_v : float, optional
         Voltage forced on the control pin (V); None leaves the internal ⅔·Vcc.
     diode : bool
-        Diode variant (C charges through RA only).
+        Diode variant (C charges through RA and the diode only; needs ``supply_v``).
+    diode_drop_v : float
+        The steering diode's forward drop (V), default 0.65 V (REFERENCES §11).
     form : {"exact", "datasheet"}
         ``"exact"`` uses ln 2; ``"datasheet"`` the rounded 0.693 for the times and
         f = 1.44/((RA + 2RB)·C) for the frequency, as printed in NE555 datasheets (basic
@@ -148,7 +177,7 @@ def astable_timing(ra_ohm: float, rb_ohm: float, c_farad: float, *, supply_v: fl
         t_high, t_low = 0.693 * (ra + rb) * c, 0.693 * rb * c
         f = 1.44 / ((ra + 2 * rb) * c)
         return AstableTiming(t_high, t_low, t_high + t_low, f, t_high / (t_high + t_low))
-    k = high_time_factor(supply_v, control_voltage_v)
+    k = high_time_factor(supply_v, control_voltage_v, diode_drop_v if diode else 0.0)
     t_high, t_low = _times(ra, rb, c, k, diode)
     period = t_high + t_low
     return AstableTiming(t_high, t_low, period, 1.0 / period, t_high / period)
@@ -287,6 +316,7 @@ def tolerance_spread(ra_ohm: float, rb_ohm: float, c_farad: float, target_hz: fl
                      yield_within: float = 0.01, distribution: Distribution = "uniform",
                      n_trials: int = 20000, seed: int = 0, supply_v: float | None = None,
                      control_voltage_v: float | None = None, diode: bool = False,
+                     diode_drop_v: float = DIODE_DROP_V, timer_variation: bool = False,
                      _samples: bool = False):
     """Seeded Monte Carlo of frequency and duty over part tolerances (see :class:`ToleranceSpread`).
 
@@ -306,6 +336,11 @@ def tolerance_spread(ra_ohm: float, rb_ohm: float, c_farad: float, target_hz: fl
         Number of simulated units.
     seed : int
         Seed of the random generator (numpy PCG64).
+    diode_drop_v : float
+        Steering diode's forward drop (V) in the diode variant.
+    timer_variation : bool
+        Add the timer's own variation (TI SLFS022 astable figures, REFERENCES §11): initial error
+        2.25 % (taken as 1σ, normal), 150 ppm/°C over ±10 °C and 0.3 %/V over ±0.5 V (uniform).
     """
     if distribution not in get_args(Distribution):
         raise DesignError(f"distribution: unknown {distribution!r} — use one of "
@@ -319,8 +354,13 @@ def tolerance_spread(ra_ohm: float, rb_ohm: float, c_farad: float, target_hz: fl
     ra = _draw(rng, ra_ohm, tr, n, distribution)
     rb = _draw(rng, rb_ohm, tr, n, distribution)
     c = _draw(rng, c_farad, tc, n, distribution)
-    k = high_time_factor(supply_v, control_voltage_v)
+    k = high_time_factor(supply_v, control_voltage_v, diode_drop_v if diode else 0.0)
     th, tl = _times(ra, rb, c, k, diode)
+    if timer_variation:
+        scale = (1.0 + rng.normal(0.0, NE555_INITIAL_ERROR, n)
+                 + NE555_TEMPCO_PER_C * rng.uniform(-TEMPERATURE_SPAN_C, TEMPERATURE_SPAN_C, n)
+                 + NE555_SUPPLY_PER_V * rng.uniform(-SUPPLY_SPAN_V, SUPPLY_SPAN_V, n))
+        th, tl = th * scale, tl * scale
     f = 1.0 / (th + tl)
     d = th / (th + tl)
     inside = np.abs(f / target_hz - 1.0) <= yw
@@ -333,6 +373,12 @@ def tolerance_spread(ra_ohm: float, rb_ohm: float, c_farad: float, target_hz: fl
     if _samples:
         return spread, (ra, rb, c, rng)
     return spread
+
+
+def _vc_for_factor(k_high: float, supply_v: float, diode_drop_v: float) -> float:
+    """Control voltage giving ``k_high`` with a diode drop: from ln((V' − Vc/2)/(V' − Vc)) = k,
+    V' = Vcc − Vd: Vc = V'·(e − 1)/(e − ½), e = exp(k)."""
+    return control_voltage_for_factor(k_high, supply_v - diode_drop_v)
 
 
 def _score(f: np.ndarray, d: np.ndarray, target_f: float, target_d: float, duty_weight: float,
@@ -349,7 +395,8 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
                    tolerance_r: float = 0.01, tolerance_c: float = 0.10, yield_within: float = 0.01,
                    distribution: Distribution = "uniform", n_trials: int = 20000, seed: int = 0,
                    trim_pot_ohm: float | None = None,
-                   control_range_v: tuple[float, float] | None = None) -> AstableDesign:
+                   control_range_v: tuple[float, float] | None = None,
+                   diode_drop_v: float = DIODE_DROP_V, timer_variation: bool = True) -> AstableDesign:
     """Choose RA, RB (and C1 when not given) from an IEC 60063 series for a frequency and duty.
 
     Parameters
@@ -378,11 +425,16 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
         sits near mid-travel.
     control_range_v : (float, float), optional
         Range (V) over which the control-pin voltage can be set, for a control-pin trim.
+    diode_drop_v : float
+        Steering diode's forward drop (V), diode variant only.
+    timer_variation : bool
+        Include the timer's own initial error, temperature and supply sensitivity (TI SLFS022)
+        in the spread (default); False for the parts' tolerances alone.
     """
     f_t = _pos(frequency_hz, "frequency")
     vcc = _pos(supply_v, "supply")
     name = check_series(series)
-    k = high_time_factor(vcc, control_voltage_v)
+    k = high_time_factor(vcc, control_voltage_v, diode_drop_v if diode else 0.0)
     d_min = k / (k + LN2)
     if duty is not None:
         d_t = float(duty)
@@ -453,20 +505,24 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
     if pot is not None:
         notes.append("untrimmed figures are for the trimmer at mid-travel")
     rb_mid = rb if pot is None else rb + pot / 2
-    timing = astable_timing(ra, rb_mid, c, supply_v=vcc, control_voltage_v=control_voltage_v, diode=diode)
+    timing = astable_timing(ra, rb_mid, c, supply_v=vcc, control_voltage_v=control_voltage_v, diode=diode,
+                            diode_drop_v=diode_drop_v)
     spread, (ra_s, rb_s, c_s, rng) = tolerance_spread(
         ra, rb_mid, c, f_t, tolerance_r=tolerance_r, tolerance_c=tolerance_c, yield_within=yield_within,
         distribution=distribution, n_trials=n_trials, seed=seed, supply_v=vcc,
-        control_voltage_v=control_voltage_v, diode=diode, _samples=True)
+        control_voltage_v=control_voltage_v, diode=diode, diode_drop_v=diode_drop_v,
+        timer_variation=timer_variation, _samples=True)
     if pot is not None:
         rb_s = rb_s * (rb / rb_mid)  # the fixed resistor's share of the drawn values
-        t_fast = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=control_voltage_v, diode=diode)
-        t_slow = astable_timing(ra, rb + pot, c, supply_v=vcc, control_voltage_v=control_voltage_v, diode=diode)
+        t_fast = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=control_voltage_v, diode=diode,
+                                diode_drop_v=diode_drop_v)
+        t_slow = astable_timing(ra, rb + pot, c, supply_v=vcc, control_voltage_v=control_voltage_v, diode=diode,
+                                diode_drop_v=diode_drop_v)
         need = ((period / c - k * ra) / (k + LN2)) if not diode else (period - k * ra * c) / (LN2 * c)
         setting = need - rb
         setting_ok = 0 <= setting <= pot
         d_at = (astable_timing(ra, rb + setting, c, supply_v=vcc, control_voltage_v=control_voltage_v,
-                               diode=diode).duty if setting_ok else None)
+                               diode=diode, diode_drop_v=diode_drop_v).duty if setting_ok else None)
         pot_s = _draw(rng, pot, POT_TOLERANCE, len(ra_s), distribution)
         f_hi = 1.0 / sum(_times(ra_s, rb_s, c_s, k, diode))
         f_lo = 1.0 / sum(_times(ra_s, rb_s + pot_s, c_s, k, diode))
@@ -478,16 +534,18 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
     elif control_range_v is not None:
         v_lo, v_hi = sorted(float(v) for v in control_range_v)
         _pos(v_lo, "control-range low")
-        k_lo, k_hi = high_time_factor(vcc, v_lo), high_time_factor(vcc, v_hi)
-        f_fast = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=v_lo, diode=diode)
-        f_slow = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=v_hi, diode=diode)
+        vd = diode_drop_v if diode else 0.0
+        k_lo, k_hi = high_time_factor(vcc, v_lo, vd), high_time_factor(vcc, v_hi, vd)
+        f_fast = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=v_lo, diode=diode, diode_drop_v=vd)
+        f_slow = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=v_hi, diode=diode, diode_drop_v=vd)
         r_high = ra if diode else ra + rb
         k_need = (period / c - LN2 * rb) / r_high
         setting = None
         d_at = None
         if k_lo <= k_need <= k_hi:
-            setting = control_voltage_for_factor(k_need, vcc)
-            d_at = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=setting, diode=diode).duty
+            setting = control_voltage_for_factor(k_need, vcc) if not diode else _vc_for_factor(k_need, vcc, vd)
+            d_at = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=setting, diode=diode,
+                                  diode_drop_v=vd).duty
         r_high_s = ra_s if diode else ra_s + rb_s
         k_need_s = (1.0 / f_t - LN2 * rb_s * c_s) / (r_high_s * c_s)
         frac = float(np.mean((k_lo <= k_need_s) & (k_need_s <= k_hi)))
@@ -500,7 +558,16 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
         notes.append(f"control pin held at {control_voltage_v:g} V: thresholds {control_voltage_v:g} V and "
                      f"{control_voltage_v / 2:g} V")
     if diode:
-        notes.append("diode variant: the diode's forward drop is neglected; it lengthens the high time a little")
+        notes.append(f"diode variant: C charges through RA and the diode toward Vcc − {diode_drop_v:g} V, so the "
+                     f"high-time factor is {k:.3f}, not ln 2 = {LN2:.3f} (charging law, REFERENCES §11)")
+    if timer_variation:
+        notes.append("spread includes the NE555's own variation (TI SLFS022 astable figures): initial error "
+                     "2.25 % typ taken as 1σ, 150 ppm/°C over ±10 °C, 0.3 %/V over ±0.5 V (assumed ranges); "
+                     "trim after building")
+    if duty is not None and abs(d_t - 0.5) < 0.02:
+        notes.append("for a true 50 % square (no even harmonics): a CMOS 555 with one resistor from its output "
+                     "to the timing capacitor, or run the timer at twice the frequency and divide by two with a "
+                     "flip-flop")
     if duty is None and not diode:
         notes.append("no duty given: RA kept small so the duty stays as close to 50 % as the basic astable allows")
     notes.append("equations neglect comparator delay, output levels and threshold currents; "

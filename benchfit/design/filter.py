@@ -157,10 +157,18 @@ class FilterOption:
     resonant_frequency_hz: float
     q_factor: float
     response: DriveResponse
+    stress: tuple = ()
+
+    @property
+    def flagged(self) -> tuple:
+        """Stresses that exceed their rating (:mod:`benchfit.model.stress`): not recommended."""
+        return tuple(s for s in self.stress if s.flagged)
 
     def to_dict(self) -> dict:
-        d = {k: v for k, v in self.__dict__.items() if k != "response"}
+        d = {k: v for k, v in self.__dict__.items() if k not in ("response", "stress")}
         d["response"] = self.response.to_dict()
+        d["stress"] = [s.to_dict() for s in self.stress]
+        d["flagged"] = [s.text for s in self.flagged]
         return d
 
 
@@ -187,8 +195,15 @@ class FilterDesign:
                 "given_value": self.given_value, "nominal_value": self.nominal_value,
                 "rs_ohm": self.rs_ohm, "esr_ohm": self.esr_ohm, "load_ohm": self.load_ohm,
                 "duty": self.duty, "amplitude_v": self.amplitude_v, "series": self.series,
-                "options": [o.to_dict() for o in self.options], "notes": list(self.notes),
+                "options": [o.to_dict() for o in self.options],
+                "recommended": None if self.recommended is None else self.recommended.label,
+                "notes": list(self.notes),
                 "cautions": list(self.cautions)}
+
+    @property
+    def recommended(self) -> FilterOption | None:
+        """The first option whose stresses are all within their ratings (None: every option is flagged)."""
+        return next((o for o in self.options if not o.flagged), None)
 
     def summary_lines(self) -> list[str]:
         from benchfit.units import format_quantity as fq
@@ -199,7 +214,20 @@ class FilterDesign:
             r = o.response
             lines.append(f"{o.label}: {o.description} → f0 {o.resonant_frequency_hz:.3f} Hz, Q {o.q_factor:.3g}, "
                          f"output {r.fundamental_rms_v:.3g} V rms fundamental, THD {r.thd * 100:.2f} %")
+            lines += [f"  flagged, not recommended: {st.text}" for st in o.flagged]
+        if self.recommended is None:
+            lines.append("every option exceeds a rating: none is recommended — add damping (series resistance) "
+                         "or drive the filter through a divider or buffer")
         return lines + list(self.notes) + [f"caution: {c}" for c in self.cautions]
+
+
+def _stress(parts, f: float, duty: float, amplitude_v: float) -> tuple:
+    """Stress checks of the filter driven by a 0…A rectangular wave straight from the timer
+    (:func:`benchfit.model.unit.predict`, :func:`benchfit.model.stress.stress_checks`)."""
+    from benchfit.model.stress import stress_checks
+    from benchfit.model.unit import Drive, UnitModel, predict
+
+    return stress_checks(predict(UnitModel(Drive(f, float(duty), float(amplitude_v)), parts)))
 
 
 def design_filter(frequency_hz: float, *, inductance: float | None = None,
@@ -273,7 +301,8 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
         p = _parts(L, C, rs, esr, load)
         so = second_order(p)
         resp = rectangular_response(p, f, duty=duty, amplitude_v=amplitude_v, n_harmonics=n_harmonics)
-        options.append(FilterOption(label, L, C, desc, so["resonant_frequency_hz"], so["q_factor"], resp))
+        options.append(FilterOption(label, L, C, desc, so["resonant_frequency_hz"], so["q_factor"], resp,
+                                    _stress(p, f, duty, amplitude_v)))
     tol = SERIES_TOLERANCE[name]
     notes = [f"f0 moves by about ∓{tol / 2 * 100:g} % for a ±{tol * 100:g} % {solved} ({name}); "
              "a tuned filter's output changes fast near f0, so measure and trim (benchfit design trim)",

@@ -7,4 +7,6 @@ Modules
 -------
 filter
     The "lc-lowpass" filter: transfer function, second-order figures, state-space simulation.
+unit
+    The whole unit: rectangular drive + filter → every spec quantity and the electrical stresses.
 """

@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable, Literal, Mapping, Sequence
 
-from benchfit.errors import FitError, SpecError
+from benchfit.errors import BenchfitError, FitError, SpecError
 from benchfit.report.spec import (FITTED_QUANTITIES, MEASURED_QUANTITIES, Decision, Limit, Spec,
                                   decide, load_spec, overall_verdict, quantity_unit, uncertainty_keys)
 
@@ -222,27 +222,31 @@ def _measurement_entry(measurement: Any, role: Role) -> dict[str, Any]:
             "channel_extra": [c.get("extra", {}) for c in full["channels"]]}
 
 
-def _trim_entry(fits: Sequence[Any], spec: Spec) -> dict[str, Any] | None:
-    """Suggested capacitor trim from the design helper, when that helper is installed."""
-    if importlib.util.find_spec("benchfit.design.trim") is None:
+def _trim_entry(fits: Sequence[Any], spec: Spec, measurements: Sequence[Any] = ()) -> dict[str, Any] | None:
+    """Suggested adjustment: the advice of :func:`benchfit.design.advice.advise`, judged on every
+    limit of the spec (the same verdict as ``benchfit design trim --spec``), or None when the
+    design package is not installed or no lc-lowpass fit was made."""
+    if importlib.util.find_spec("benchfit.design.advice") is None:
         return None
-    trim = importlib.import_module("benchfit.design.trim")
-    fn = getattr(trim, "suggest_capacitor_trim", None)
-    if not callable(fn) or len(inspect.signature(fn).parameters) < 2:
+    advice_mod = importlib.import_module("benchfit.design.advice")
+    lowpass = [f for f in fits if f.model == "lc-lowpass" and "C" in f.parameters]
+    if not lowpass:
         return None
     lim = spec.limit_for("frequency_hz") or spec.limit_for("resonant_frequency_hz")
     target = None if lim is None else lim.nominal
-    lowpass = [f for f in fits if f.model == "lc-lowpass" and "C" in f.parameters]
-    if target is None or not lowpass:
-        return None
-    advice = fn(lowpass[0], target)
-    if advice is None:
-        return {"target_hz": target, "from_fit": lowpass[0].file, "advice": None,
-                "lines": ["no change suggested: the fitted resonance is already at the target "
-                          "within its uncertainty, or no capacitor trim applies"]}
-    body = advice.to_dict() if hasattr(advice, "to_dict") else {"advice": str(advice)}
-    lines = list(advice.summary_lines()) if hasattr(advice, "summary_lines") else [str(advice)]
-    return {"target_hz": target, "from_fit": lowpass[0].file, "advice": body, "lines": lines}
+    nominal = {k: float(spec.conditions[f"nominal_{k}_{u}"]) for k, u in (("L", "h"), ("C", "f"))
+               if isinstance(spec.conditions.get(f"nominal_{k}_{u}"), (int, float))}
+    meas = None
+    if measurements:
+        full = measurements[0].to_dict(full=True)
+        meas = dict(full)
+    try:
+        advice = advice_mod.advise(spec, fit=lowpass[0], measurement=meas, nominal=nominal)
+    except BenchfitError as e:  # advice is optional in a report: say why there is none
+        return {"target_hz": target, "from_fit": lowpass[0].file, "verdict": None, "advice": None,
+                "lines": [f"no advice: {e}"]}
+    return {"target_hz": target, "from_fit": lowpass[0].file, "verdict": advice.verdict,
+            "advice": advice.to_dict(), "lines": advice.summary_lines()}
 
 
 def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
@@ -332,7 +336,7 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
         "fits": found_fits + left_fits,
         "fit_errors": list(fit_errors),
         "stability": stability_entry(drift) if drift is not None else None,
-        "trim": _trim_entry(all_fits, spec),
+        "trim": _trim_entry(all_fits, spec, [m for _, m in as_left]),
         "methods": list(METHODS) + ([DRIFT_METHOD] if drift is not None else []),
         "warnings": warnings,
         "notes": ([spec.notes] if spec.notes else []) + list(notes),

@@ -32,7 +32,16 @@ def test_demo_runs_the_whole_job(tmp_path):
     assert "<h2>Stability</h2>" in hc08.read_text()
     rep08 = json.loads(hc08.with_suffix(".json").read_text())
     assert {r["quantity"] for r in rep08["results"]} >= {"warmup_s", "drift_ppm_per_h", "adev_1s"}
-    # the trim advice for HC-07 adds capacitance (tank at about 62 Hz, target 50 Hz)
-    assert "across the capacitor" in text
+    # the trim advice is judged on the whole spec (issue 10): HC-07's wrong choke is named,
+    # the passing HC-04 gets "no change", HC-03's fast timer gets a resistor in series with RB
+    assert "replace: L is 19" in text and "nominal 300 mH" in text
+    assert "no change" in text
+    assert "in series with RB" in text
+    twin07 = json.loads(next(p for p in reports if "HC-07" in p.name or "hc07" in p.name)
+                        .with_suffix(".json").read_text())
+    assert twin07["trim"]["verdict"] == "replace"
+    twin04 = json.loads(next(p for p in reports if "HC-04" in p.name or "hc04" in p.name)
+                        .with_suffix(".json").read_text())
+    assert twin04["trim"]["verdict"] == "no change"
     lines = (out / "batch_measurements.jsonl").read_text().splitlines()
     assert len(lines) == 6 and all(json.loads(x)["channels"][0]["frequency_hz"] for x in lines)

@@ -308,7 +308,7 @@ CASES = [
     C("design-control-range", "design astable --frequency 50 --control-range 6", 2,
       r"^error: --control-range '6': not LOW:HIGH — ", "--control-range"),
     C("design-filter-neither-part", "design filter --frequency 50", 2,
-      r"^error: --inductance/--capacitance: give exactly one of them — ", "--inductance"),
+      r"^error: --inductance/--capacitance: neither given — ", "--inductance"),
     C("design-kind", "design combine 1k --kind Z", 2, r"^error: --kind: unknown part kind 'Z' — use one of R, C, L$",
       "--kind"),
     C("design-stock-bad-row", "design combine 1k --kind R --stock {stock_bad}", 2,

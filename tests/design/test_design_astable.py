@@ -73,11 +73,40 @@ def test_equations_against_an_event_driven_rc_simulation():
     t = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=vc)
     assert t.t_high_s == pytest.approx(up.t_events[0][0], rel=1e-7)
     assert t.t_low_s == pytest.approx(down.t_events[0][0], rel=1e-7)
-    # diode variant: C charges through RA alone
-    up_d = solve_ivp(lambda t, v: [(vcc - v[0]) / (ra * c)], (0, 1), [vc / 2], events=cross(vc),
+    # diode variant: C charges through RA and the diode, toward Vcc − Vd (0.65 V, REFERENCES §11)
+    up_d = solve_ivp(lambda t, v: [(vcc - 0.65 - v[0]) / (ra * c)], (0, 1), [vc / 2], events=cross(vc),
                      rtol=1e-11, atol=1e-13)
     td = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=vc, diode=True)
     assert td.t_high_s == pytest.approx(up_d.t_events[0][0], rel=1e-7)
+
+
+def test_diode_drop_charge_factor():
+    # REFERENCES §11 (charging law): Vcc = 12 V, Vd = 0.65 V → ln(7.35/3.35) = 0.786, not ln 2
+    assert high_time_factor(12.0, None, 0.65) == pytest.approx(math.log(7.35 / 3.35), rel=1e-12)
+    assert round(high_time_factor(12.0, None, 0.65), 3) == 0.786
+    # a "50 %" diode design built with equal RA = RB runs slow and long-high, as the issue found
+    t = astable_timing(10e3, 10e3, 1e-6, supply_v=12.0, diode=True)
+    assert t.duty == pytest.approx(0.786 / (0.786 + LN2), abs=1e-3) and t.duty > 0.52
+    d = design_astable(50.0, 0.50, diode=True, n_trials=2000)
+    assert d.timing.duty == pytest.approx(0.50, abs=0.01)          # RA chosen for the real factor
+    assert d.timing.frequency_hz == pytest.approx(50.0, rel=0.01)
+    assert any("0.786" in n for n in d.notes) and any("divide by two" in n for n in d.notes)
+
+
+def test_timer_variation_widens_the_spread():
+    # TI SLFS022 initial error 2.25 % (as 1σ): the frequency spread of a design with 1 % resistors
+    # and a 1 % capacitor is then dominated by the timer itself
+    a = design_astable(50.0, 0.55, tolerance_c=0.01, n_trials=4000, timer_variation=False)
+    b = design_astable(50.0, 0.55, tolerance_c=0.01, n_trials=4000)
+    # independent terms add in quadrature (GUM 5.1.2): initial error 2.25 % (1σ), 150 ppm/°C and
+    # 0.3 %/V uniform over ±10 °C and ±0.5 V (u = half-width/√3, GUM 4.3.7); 5 % covers the
+    # Monte Carlo error of a standard deviation from 4000 draws (1/√(2·4000) ≈ 1.1 %) and the
+    # period-to-frequency non-linearity
+    rel_timer = math.sqrt(0.0225 ** 2 + (150e-6 * 10 / math.sqrt(3)) ** 2 + (0.003 * 0.5 / math.sqrt(3)) ** 2)
+    f = a.timing.frequency_hz
+    expect = math.hypot(a.spread.frequency_std_hz, rel_timer * f)
+    assert b.spread.frequency_std_hz == pytest.approx(expect, rel=0.05)
+    assert b.spread.yield_fraction < a.spread.yield_fraction
 
 
 def test_control_voltage_inverse():

@@ -112,3 +112,46 @@ def test_bad_filter_requests(kwargs):
     with pytest.raises(DesignError) as e:
         design_filter(**kwargs)
     assert "\n" not in str(e.value)
+
+
+# --- damped design, evaluation of a given L and C, stress (issue 10) -----------------------
+
+def test_evaluate_given_lc_off_resonance():
+    from benchfit.design.damped import evaluate_filter
+
+    # 288 mH with 10 µF at 60 Hz, 0…12 V square, 10 Ω: THD 7.47 % — the unit model's harmonic
+    # sum, which tests/model/test_model_unit.py checks against ngspice
+    pred, stress = evaluate_filter(0.288, 10e-6, 60.0, rs_ohm=10.0)
+    assert pred.thd_pct == pytest.approx(7.47, abs=0.02)
+    assert pred.capacitor_min_v < 0 and any("non-polar" in s.text for s in stress)
+
+
+def test_high_q_tuned_design_is_flagged_and_not_recommended():
+    # Q ≈ 9.4 at 50 Hz from a 12 V square through 10 Ω: the fundamental alone is
+    # (2/π)·12 V·Q ≈ 72 V peak, and the tank current ωC·72 V ≈ 0.76 A is far above the NE555's ±200 mA
+    # (TI SLFS022 recommended output current; ngspice check in test_design_advice_ngspice.py)
+    d = design_filter(50.0, inductance=0.3, rs_ohm=10.0, amplitude_v=12.0)
+    assert all(o.flagged for o in d.options)
+    assert d.recommended is None
+    assert d.to_dict()["recommended"] is None
+    assert any("not recommended" in line for line in d.summary_lines())
+
+
+def test_damped_design_meets_thd_and_level_tolerance():
+    from benchfit.design.damped import design_damped
+    from benchfit.model.filter import LowpassParts
+    from benchfit.model.unit import CaptureChain, Drive, UnitModel, predict_quantities
+
+    d = design_damped(50.0, 0.3, rs_ohm=62.0, load_ohm=1e4, duty=0.477, amplitude_v=2.134,
+                      thd_max_pct=5.0, level_tolerance=0.10, n_trials=200)
+    assert d.prediction.thd_pct <= 5.0 and not [s for s in d.stress if s.flagged]
+    assert d.capacitor.topology in ("single", "add2")                 # parallel before series
+    # the chosen parts, rebuilt with the model: same figures (no hidden second calculation)
+    r = 62.0 + (0.0 if d.damping is None else d.damping.value)
+    q = predict_quantities(UnitModel(Drive(50.0, 0.477, 2.134), LowpassParts(0.3, d.capacitor.value, r, 0.0, 1e4)),
+                           CaptureChain(ac_coupled=True))
+    assert q["thd_pct"] == pytest.approx(d.prediction.thd_pct, rel=1e-9)
+    # the table holds f0 = F points; tuned Q = 0.5 is overdamped: level low and THD high
+    tuned = {(row.ratio, row.q): row for row in d.table}
+    assert tuned[(1.0, 0.5)].thd_pct > tuned[(1.0, 1.5)].thd_pct
+    assert d.yield_fraction >= max(row.yield_fraction for row in d.table if not row.flagged) - 0.1
