@@ -75,11 +75,11 @@ class _Tour:
         except SystemExit as e:  # typer.Exit inside a command
             code = int(e.code or 0)
         except Exception as e:  # a click usage error or a bug: report it, keep touring
-            import click
+            from benchfit.cli import _is_a
 
-            if isinstance(e, click.exceptions.Exit):
+            if _is_a(e, "Exit"):
                 code = e.exit_code
-            elif isinstance(e, click.ClickException):
+            elif _is_a(e, "ClickException"):
                 stderr.print(f"error: {e.format_message()}", markup=False)
                 code = e.exit_code
             else:
