@@ -122,8 +122,11 @@ def _rule(text: str, param, value: str) -> str | None:
         return "not a number"
     if "valid boolean" in low:
         return "not true or false"
-    lo, hi = getattr(param, "min", None), getattr(param, "max", None)
-    lo_open, hi_open = getattr(param, "min_open", False), getattr(param, "max_open", False)
+    # the limits: on the option (typer 0.29) or on its click range type (typer 0.26-0.28)
+    limits = param if getattr(param, "min", None) is not None or getattr(param, "max", None) is not None \
+        else getattr(param, "type", None)
+    lo, hi = getattr(limits, "min", None), getattr(limits, "max", None)
+    lo_open, hi_open = getattr(limits, "min_open", False), getattr(limits, "max_open", False)
     if "greater than" in low or "less than" in low:  # e.g. "Input should be greater than or equal to 1"
         below = "greater than" in low
         strict = "or equal" not in low
