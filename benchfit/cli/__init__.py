@@ -8,6 +8,7 @@ Ctrl-C exits 130. Exit code 1 is reserved for "a unit failed its spec".
 
 from __future__ import annotations
 
+import re
 import sys
 from typing import NoReturn
 
@@ -122,6 +123,9 @@ def _rule(text: str, param, value: str) -> str | None:
         return "not a number"
     if "valid boolean" in low:
         return "not true or false"
+    if "is not one of" in low:  # a choice: "'x' is not one of 'csv', 'json'"
+        choices = re.findall(r"'([^']*)'", text[low.index("is not one of"):])
+        return f"not one of {', '.join(choices)}" if choices else None
     # the limits: on the option (typer 0.29) or on its click range type (typer 0.26-0.28)
     limits = param if getattr(param, "min", None) is not None or getattr(param, "max", None) is not None \
         else getattr(param, "type", None)

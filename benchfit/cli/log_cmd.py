@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
+import enum
 from pathlib import Path
 from typing import Optional
 
 import typer
 
 from benchfit.cli.app import log_app
+
+#: the formats of ``log export`` (those of benchfit.log.export, named here so that help lists them)
+FormatOption = enum.Enum("FormatOption", {"csv": "csv", "json": "json"}, type=str)
 
 _LOG_HELP = "Measurement log file (default: $BENCHFIT_LOG or the user data directory's benchfit/log.sqlite)."
 
@@ -38,7 +42,7 @@ def _check_since(since: Optional[str]) -> Optional[str]:
 def list_command(
     unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL", help="Only runs of this unit serial."),
     since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the runs as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -62,7 +66,7 @@ def list_command(
 @log_app.command("show", help="Show everything logged about one run.\n\nExample:\n\n\b\n  benchfit log show 12")
 def show_command(
     run: int = typer.Argument(..., metavar="RUN", help="Run id (see `benchfit log list`)."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the run as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -102,19 +106,19 @@ def show_command(
 @log_app.command("export", help="Export the logged results as CSV or JSON (one row per result).\n\n"
                  "Example:\n\n\b\n  benchfit log export --format csv --out batch.csv")
 def export_command(
-    fmt: str = typer.Option("csv", "--format", metavar="FORMAT", help="csv or json."),
+    fmt: FormatOption = typer.Option(FormatOption("csv"), "--format", help="CSV (one row per result) or JSON records."),
     out: Optional[Path] = typer.Option(None, "--out", metavar="FILE", help="Output file (default: print to stdout)."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --out file."),
     unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL", help="Only results of this unit serial."),
     since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
 ) -> None:
     import sys
 
     from benchfit.cli.common import stderr
     from benchfit.log.export import export_log
 
-    text = export_log(_log_path(log), fmt, out, overwrite=overwrite, unit=unit, since=_check_since(since))
+    text = export_log(_log_path(log), FormatOption(fmt).value, out, overwrite=overwrite, unit=unit, since=_check_since(since))
     if text is not None:
         sys.stdout.write(text if text.endswith("\n") else text + "\n")
     else:
@@ -132,7 +136,7 @@ def stats_command(
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --plot file."),
     all_runs: bool = typer.Option(False, "--all-runs", help="Use every logged value, not one per unit."),
     since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the statistics as one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stderr, stdout
