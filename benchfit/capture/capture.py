@@ -42,8 +42,9 @@ def channel_keys(channels: ChannelSpec, param: str = "channels") -> list[str | i
     elif isinstance(channels, (int, np.integer)) and not isinstance(channels, bool):
         keys = [operator.index(channels)]
     else:
+        sequence: Any = channels  # any iterable of keys; a wrong type is the error below
         try:
-            keys = list(channels)
+            keys = list(sequence)
         except TypeError:
             raise CaptureError(f"{param}: {channels!r} is not a channel — give a name, a 0-based index, "
                                "or a list of them") from None

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import re
 import sys
-from typing import NoReturn
+from typing import Any, NoReturn
 
 __all__ = ["main", "usage_message"]
 
@@ -273,14 +273,15 @@ def main(argv: list[str] | None = None) -> None:
     except KeyboardInterrupt:
         sys.stderr.write("interrupted\n")
         raise SystemExit(130) from None
-    except Exception as e:  # click's exceptions, recognised by name (see _is_a)
-        if _is_a(e, "NoArgsIsHelpError"):
-            e.show()  # a group or command given no arguments prints its help (exit 2, as click does)
-            raise SystemExit(e.exit_code) from None
-        if _is_a(e, "UsageError"):
-            _error(usage_message(e, _command_path(app, argv), argv), e.exit_code)
-        if _is_a(e, "ClickException"):  # e.g. a file option typer opens itself
-            _error(" ".join(e.format_message().split()), e.exit_code)
+    except Exception as exc:  # click's exceptions, recognised by name (see _is_a)
+        err: Any = exc
+        if _is_a(err, "NoArgsIsHelpError"):
+            err.show()  # a group or command given no arguments prints its help (exit 2, as click does)
+            raise SystemExit(err.exit_code) from None
+        if _is_a(err, "UsageError"):
+            _error(usage_message(err, _command_path(app, argv), argv), err.exit_code)
+        if _is_a(err, "ClickException"):  # e.g. a file option typer opens itself
+            _error(" ".join(err.format_message().split()), err.exit_code)
         raise
     # standalone_mode=False returns the code of click/typer Exit (0 for --help, 130 for Ctrl-C)
     # and always ends with SystemExit, as click's standalone mode does
