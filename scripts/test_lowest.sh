@@ -6,6 +6,6 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 venv="${BENCHFIT_LOWEST_VENV:-$(mktemp -d)/lowest}"
 [ -x "$venv/bin/python" ] || python3 -m venv "$venv"
-"$venv/bin/python" -m pip install --quiet --only-binary=:all: -c constraints-lowest.txt '.[test]'
+"$venv/bin/python" -m pip install --quiet --prefer-binary -c constraints-lowest.txt '.[test]'
 # the checkout, not the installed copy, is what runs
 PYTHONPATH="$PWD" "$venv/bin/python" -m pytest -q -p no:cacheprovider "$@"

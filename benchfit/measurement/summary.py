@@ -48,6 +48,7 @@ from benchfit.measurement.distortion import analyse_distortion, max_harmonic_ord
 from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
 from benchfit.measurement.pulse import PulseResult, pulse_parameters
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
+from benchfit.measurement.threads import one_blas_thread
 from benchfit.measurement.tone import fit_harmonics, fit_tone
 
 __all__ = ["measure", "measure_channel", "DEFAULT_HARMONICS"]
@@ -72,6 +73,7 @@ def _fmt(v: float, unit: str) -> str:
     return format_quantity(v, unit, 4)
 
 
+@one_blas_thread  # the result does not depend on the caller's BLAS threads, nor its speed much
 def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", unit: str = "FS",
                     harmonics: int = DEFAULT_HARMONICS, timebase_ppm: float = 0.0,
                     timebase_u_ppm: float = 0.0, coupling_tau_s: float | None = None,
