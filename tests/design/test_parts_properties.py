@@ -11,7 +11,7 @@ import math
 
 import eseries
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from benchfit.design.parts import E_SERIES, SERIES_TOLERANCE, combination_value, combine, series_values
@@ -65,12 +65,14 @@ def test_add_and_recip_ignore_the_order_of_parts(parts, order):
 
 
 @settings(max_examples=40, deadline=None)
+@example(2.0, "R", "E6", 3)  # found: 2 Ω exactly and 2 Ω + 2e-16 tie at the ranking's 12 decimals
 @given(st.floats(min_value=1.0, max_value=1e6), st.sampled_from(["R", "C", "L"]),
        st.sampled_from(["E6", "E12", "E24"]), st.integers(min_value=1, max_value=3))
 def test_combine_reports_what_its_parts_give_and_ranks_by_error(target, kind, series, max_parts):
     result = combine(target, kind, series=series, max_parts=max_parts, top=5)
     errors = [abs(c.error) for c in result.combinations]
-    assert errors == sorted(errors)  # ranked by |relative error| (ties by part count)
+    # ranked by |relative error| to 12 decimals (below that a tie, broken by part count)
+    assert all(a <= b + 1e-12 for a, b in zip(errors, errors[1:])), errors
     pool = set(series_values(series, target / 100, target * 100))
     for c in result.combinations:
         assert c.n_parts <= max_parts == result.max_parts
@@ -79,6 +81,6 @@ def test_combine_reports_what_its_parts_give_and_ranks_by_error(target, kind, se
         assert all(p in pool for p in c.parts)
     # one part is never beaten by adding none: the best is at least as good as rounding to the series
     best_single = min(abs(v / target - 1) for v in pool)
-    assert errors[0] <= best_single * (1 + 1e-12)
+    assert errors[0] <= best_single + 1e-12  # (the ranking rounds to 12 decimals)
     if max_parts >= 2:  # more parts never make the best worse
-        assert errors[0] <= abs(combine(target, kind, series=series, max_parts=1).best.error) * (1 + 1e-12)
+        assert errors[0] <= abs(combine(target, kind, series=series, max_parts=1).best.error) + 1e-12
