@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import sys
 from typing import Any, Callable, TypeVar
 
 __all__ = ["one_blas_thread"]
@@ -19,14 +20,20 @@ __all__ = ["one_blas_thread"]
 F = TypeVar("F", bound=Callable[..., Any])
 
 
-@functools.cache
-def _controller() -> Any:
-    """threadpoolctl's view of the loaded BLAS libraries (built once: it scans them, ~2 ms)."""
+@functools.lru_cache(maxsize=1)
+def _controller_for(n_modules: int) -> Any:
+    """threadpoolctl's view of the loaded BLAS libraries (a scan, ~2 ms)."""
     try:
         from threadpoolctl import ThreadpoolController
     except ImportError:  # pragma: no cover - a declared dependency; without it nothing is limited
         return None
     return ThreadpoolController()
+
+
+def _controller() -> Any:
+    """The controller, scanned again whenever modules were imported since the last scan: an
+    import (scipy's, say) can load a BLAS library of its own, which must be limited too."""
+    return _controller_for(len(sys.modules))
 
 
 def one_blas_thread(fn: F) -> F:

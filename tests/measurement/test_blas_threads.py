@@ -6,6 +6,7 @@ API: threadpool_info, threadpool_limits). Common practice, no other source.
 
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
@@ -18,6 +19,31 @@ from benchfit.measurement.threads import one_blas_thread
 
 def _blas_threads() -> list[int]:
     return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+
+
+def test_a_blas_library_loaded_later_is_limited_too():
+    """scipy carries a BLAS of its own; loaded after the first call, it is limited all the same.
+
+    In a fresh interpreter, so that scipy is not loaded yet when the first call scans."""
+    import subprocess
+    import sys
+
+    code = (
+        "import numpy\n"
+        "from threadpoolctl import threadpool_info, threadpool_limits\n"
+        "from benchfit.measurement.threads import one_blas_thread\n"
+        "probe = one_blas_thread(lambda: [i['num_threads'] for i in threadpool_info() if i['user_api'] == 'blas'])\n"
+        "first = probe()\n"
+        "import scipy.linalg\n"
+        "with threadpool_limits(2, user_api='blas'):\n"
+        "    later = probe()\n"
+        "import json; print(json.dumps({'first': first, 'later': later}))\n"
+    )
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert res.returncode == 0, res.stderr[-2000:]
+    seen = json.loads(res.stdout)
+    assert set(seen["later"]) == {1}, seen  # every BLAS library, the late one included, on one thread
+    assert len(seen["later"]) >= len(seen["first"])
 
 
 def test_the_limit_holds_inside_and_is_undone_after():
