@@ -12,13 +12,75 @@ import html
 import math
 from dataclasses import dataclass, field, replace
 from types import MappingProxyType
-from typing import Any, Mapping
+import operator
+from typing import Any, Mapping, Sequence, Union
 
 import numpy as np
 
 from benchfit.errors import CaptureError
 
-__all__ = ["Capture", "InputCalibration"]
+__all__ = ["Capture", "InputCalibration", "ChannelSpec", "channel_keys", "resolve_channel"]
+
+#: what every channel-choosing parameter accepts (``load(channels=)``, ``measure(channels=)``,
+#: ``Capture.select``; one key for ``fit_lowpass(drive=, response=)``, ``fit_ringdown(channel=)``)
+ChannelSpec = Union[str, int, Sequence[Union[str, int]]]
+
+
+def channel_keys(channels: ChannelSpec, param: str = "channels") -> list[str | int]:
+    """The channel keys of a selection, in order — the one rule of every channel parameter.
+
+    * a **string** is one channel, or several separated by commas (``"drive,output"``); it is
+      never read character by character;
+    * an **int** (or numpy integer) is one channel;
+    * a sequence holds strings and ints, one channel each.
+
+    Each key then resolves by :func:`resolve_channel`. An empty selection is an error that
+    names ``param``.
+    """
+    if isinstance(channels, str):
+        keys: list[str | int] = [k.strip() for k in channels.split(",") if k.strip()]
+    elif isinstance(channels, (int, np.integer)) and not isinstance(channels, bool):
+        keys = [operator.index(channels)]
+    else:
+        sequence: Any = channels  # any iterable of keys; a wrong type is the error below
+        try:
+            keys = list(sequence)
+        except TypeError:
+            raise CaptureError(f"{param}: {channels!r} is not a channel — give a name, a 0-based index, "
+                               "or a list of them") from None
+    if not keys:
+        raise CaptureError(f"{param}: {channels!r} selects nothing — name at least one channel")
+    return keys
+
+
+def resolve_channel(key: str | int, names: Sequence[str], where: str = "capture") -> int:
+    """The 0-based index of one channel among ``names``.
+
+    The rule (the same for the Python API and the command line, which passes text):
+
+    * an **int** counts from 0, as Python does (``0`` is the first channel);
+    * a **string** is a channel name, case-insensitive;
+    * a string of digits that is no channel's name is a channel *number* counting from 1, as a
+      scope's CH1, CH2 and the command line's ``--drive 2`` do (``"2"`` is the second channel).
+
+    Raises :class:`~benchfit.errors.CaptureError` for an unknown channel, naming the choices.
+    """
+    n = len(names)
+    if isinstance(key, (int, np.integer)) and not isinstance(key, bool):
+        index = operator.index(key)
+        if 0 <= index < n:
+            return index
+        raise CaptureError(f"{where}: no channel {index} — it has {n} (0…{n - 1})")
+    if not isinstance(key, str):
+        raise CaptureError(f"{where}: {key!r} is not a channel — give a name or a 0-based index")
+    lowered = [name.lower() for name in names]
+    if key.strip().lower() in lowered:
+        return lowered.index(key.strip().lower())
+    if key.strip().isdigit():
+        number = int(key)
+        if 1 <= number <= n:
+            return number - 1
+    raise CaptureError(f"{where}: no channel {key!r} — choose one of {', '.join(names)} or a number 1…{n}")
 
 
 @dataclass(frozen=True)
@@ -165,34 +227,16 @@ class Capture:
 
     # --- channel selection ----------------------------------------------
     def channel_index(self, key: str | int) -> int:
-        """Index of a channel given by name (case-insensitive) or by 0-based index.
-
-        A string of digits is read as a 1-based channel number only when no channel has
-        that name, so ``"2"`` picks the second channel.
-        """
-        where = self.source or "capture"
-        if isinstance(key, int):
-            if 0 <= key < self.n_channels:
-                return key
-            raise CaptureError(f"{where}: no channel {key} — it has {self.n_channels} (0…{self.n_channels - 1})")
-        lowered = [n.lower() for n in self.channel_names]
-        if key.lower() in lowered:
-            return lowered.index(key.lower())
-        if key.strip().isdigit():
-            number = int(key)
-            if 1 <= number <= self.n_channels:
-                return number - 1
-        raise CaptureError(
-            f"{where}: no channel {key!r} — choose one of {', '.join(self.channel_names)} or a number 1…{self.n_channels}"
-        )
+        """Index of one channel, by the rule of :func:`channel_keys` (names, 0-based ints, "1"-based text)."""
+        return resolve_channel(key, self.channel_names, self.source or "capture")
 
     def channel(self, key: str | int) -> np.ndarray:
         """Samples of one channel (read-only view)."""
         return self.samples[self.channel_index(key)]
 
-    def select(self, keys: list[str | int]) -> "Capture":
-        """A new capture with only the chosen channels, in the given order."""
-        idx = [self.channel_index(k) for k in keys]
+    def select(self, keys: "ChannelSpec") -> "Capture":
+        """A new capture with only the chosen channels, in the given order (see :func:`channel_keys`)."""
+        idx = [self.channel_index(k) for k in channel_keys(keys)]
         gains = self.calibration.gain_v_per_fs
         gains_u = self.calibration.gain_u_rel
         cal = self.calibration

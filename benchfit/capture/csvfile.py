@@ -127,6 +127,8 @@ def _sniff_layout(lines: list[str], where: str) -> _Layout:
     chosen: str | None = None
     modal = 1
     for d in ("\t", ";", ",", " "):
+        if d == "," and sum(1 for ln in tail if any(re.search(r"\S\s+\S", c) for c in _split(ln, d))) > 0.5 * len(tail):
+            continue  # cells with spaces inside: space-delimited columns with decimal commas
         counts = [len(_split(ln, d)) for ln in tail]
         values, freq = np.unique(counts, return_counts=True)
         k = int(values[np.argmax(freq)])

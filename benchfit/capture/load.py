@@ -11,10 +11,9 @@ from __future__ import annotations
 import hashlib
 import os
 from pathlib import Path
-from typing import Sequence
 
 from benchfit.capture.audiofile import AUDIO_SUFFIXES, read_audio, sniff_audio
-from benchfit.capture.capture import Capture
+from benchfit.capture.capture import Capture, ChannelSpec, channel_keys
 from benchfit.capture.csvfile import read_csv
 from benchfit.errors import CaptureError
 from benchfit.units import parse_quantity
@@ -35,7 +34,7 @@ def file_sha256(path: str | os.PathLike[str]) -> str:
 
 
 def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None,
-         channels: str | int | Sequence[str | int] | None = None) -> Capture:
+         channels: ChannelSpec | None = None) -> Capture:
     """Read a capture file (WAV, FLAC, OGG or CSV export) into a :class:`Capture`.
 
     Parameters
@@ -48,8 +47,9 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None
         interval in its preamble (``48000``, ``"100k"``, ``"50 kHz"``). Not used when the
         file gives its own rate.
     channels : str, int or sequence of them, optional
-        Keep only these channels, in this order: names (case-insensitive), 1-based
-        numbers as strings (``"2"``), 0-based ints, or one string ``"drive,output"``.
+        Keep only these channels, in this order (the rule of
+        :func:`~benchfit.capture.capture.channel_keys`): names (case-insensitive), 0-based
+        ints, 1-based numbers as text (``"2"``), or one string ``"drive,output"``.
 
     Returns
     -------
@@ -115,14 +115,5 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None
                 "export) — give a WAV, FLAC, OGG or AIFF recording, or a CSV export") from e
 
     if channels is not None:
-        keys: list[str | int]
-        if isinstance(channels, str):
-            keys = [k.strip() for k in channels.split(",") if k.strip()]
-        elif isinstance(channels, int):
-            keys = [channels]
-        else:
-            keys = list(channels)
-        if not keys:
-            raise CaptureError(f"channels: {channels!r} selects nothing — name at least one channel")
-        capture = capture.select(keys)
+        capture = capture.select(channel_keys(channels))
     return capture

@@ -8,8 +8,9 @@ Ctrl-C exits 130. Exit code 1 is reserved for "a unit failed its spec".
 
 from __future__ import annotations
 
+import re
 import sys
-from typing import NoReturn
+from typing import Any, NoReturn
 
 __all__ = ["main", "usage_message"]
 
@@ -50,35 +51,117 @@ def _is_argument(e) -> bool:
         param is not None and getattr(param, "param_type_name", "") == "argument")
 
 
-def _click():
-    """The click exception classes typer raises (recent typer releases carry their own copy of click)."""
-    try:
-        from typer._click import exceptions as ex
-    except ImportError:  # an older typer raises click's own
-        from click import exceptions as ex
-    return ex
+def _is_a(e: BaseException, name: str) -> bool:
+    """Whether ``e`` is one of click's exception classes called ``name`` (or a subclass of it).
+
+    typer ≥ 0.26 carries its own copy of click and exposes only ``BadParameter``, ``Exit`` and
+    ``Abort`` publicly; matching the class by name along the MRO recognises that copy and click
+    itself alike, without importing a private module (typer's own error display does the same).
+    """
+    return any(c.__name__ == name for c in type(e).__mro__)
 
 
-def _bad_value_text(e) -> str:
+def _option_takes_value(param) -> bool:
+    return not (getattr(param, "is_flag", False) or getattr(param, "count", False))
+
+
+def _typed_value(e, argv: list[str]) -> str | None:
+    """The value the user typed for the option or argument a usage error is about, or None."""
+    param = getattr(e, "param", None)
+    if param is None:
+        return None
+    if getattr(param, "param_type_name", "") == "option":
+        names = [*getattr(param, "opts", ()), *getattr(param, "secondary_opts", ())]
+        for i, token in enumerate(argv):
+            if token == "--":
+                break
+            if token in names and i + 1 < len(argv):
+                return argv[i + 1]
+            for name in names:
+                if name.startswith("--") and token.startswith(name + "="):
+                    return token[len(name) + 1:]
+        return None
+    # an argument: the n-th positional word after the command path (one value per argument)
+    ctx = getattr(e, "ctx", None)
+    command = getattr(ctx, "command", None)
+    if command is None:
+        return None
+    params = list(getattr(command, "params", ()))
+    arguments = [p for p in params if getattr(p, "param_type_name", "") == "argument"]
+    if param not in arguments or any(getattr(p, "nargs", 1) != 1 for p in arguments):
+        return None
+    takes_value = {o for p in params if getattr(p, "param_type_name", "") == "option"
+                   and _option_takes_value(p) for o in getattr(p, "opts", ())}
+    words = str(getattr(ctx, "command_path", "")).split()[1:]
+    rest = list(argv)
+    for w in words:  # skip the (sub)command names
+        if w in rest:
+            rest = rest[rest.index(w) + 1:]
+    positional: list[str] = []
+    skip = False
+    for i, token in enumerate(rest):
+        if skip:
+            skip = False
+            continue
+        if token == "--":
+            positional.extend(rest[i + 1:])
+            break
+        if token.startswith("-") and len(token) > 1:
+            skip = token in takes_value
+            continue
+        positional.append(token)
+    index = arguments.index(param)
+    return positional[index] if index < len(positional) else None
+
+
+def _rule(text: str, param, value: str) -> str | None:
+    """The rule a rejected value breaks, in benchfit's words, from the message and the option's limits."""
+    low = text.lower()
+    if "valid integer" in low:
+        return "not a whole number"
+    if "valid number" in low or "valid float" in low:
+        return "not a number"
+    if "valid boolean" in low:
+        return "not true or false"
+    if "is not one of" in low:  # a choice: "'x' is not one of 'csv', 'json'"
+        choices = re.findall(r"'([^']*)'", text[low.index("is not one of"):])
+        return f"not one of {', '.join(choices)}" if choices else None
+    # the limits: on the option (typer 0.29) or on its click range type (typer 0.26-0.28)
+    limits = param if getattr(param, "min", None) is not None or getattr(param, "max", None) is not None \
+        else getattr(param, "type", None)
+    lo, hi = getattr(limits, "min", None), getattr(limits, "max", None)
+    lo_open, hi_open = getattr(limits, "min_open", False), getattr(limits, "max_open", False)
+    if "greater than" in low or "less than" in low:  # e.g. "Input should be greater than or equal to 1"
+        below = "greater than" in low
+        strict = "or equal" not in low
+    elif "not in the range" in low:  # e.g. "0 is not in the range x>=1."
+        try:
+            number = float(value)
+        except ValueError:
+            return None
+        below = lo is not None and (number < lo or (bool(lo_open) and number == lo))
+        strict = bool(lo_open) if below else bool(hi_open)
+    else:
+        return None
+    if below and lo is not None:
+        return f"must be more than {lo}" if strict else f"must be {lo} or more"
+    if not below and hi is not None:
+        return f"must be less than {hi}" if strict else f"must be {hi} or less"
+    return None
+
+
+def _bad_value_text(e, argv: list[str]) -> str:
     """What is wrong with a value typer could not convert: the value as typed and the rule it breaks."""
     text = " ".join(str(e.message).split()).rstrip(".")
-    cause = e.__cause__
-    errors = getattr(cause, "errors", None)
-    if callable(errors):
-        try:
-            first = errors()[0]
-        except (IndexError, TypeError, ValueError):
+    value = _typed_value(e, argv)
+    if value is None:
+        return text
+    rule = _rule(text, getattr(e, "param", None), value)
+    if rule is None:
+        if repr(value) in text or value in text:
             return text
-        kind, ctx, value = first.get("type", ""), first.get("ctx") or {}, first.get("input")
-        rules = {"int_parsing": "not a whole number", "int_from_float": "not a whole number",
-                 "float_parsing": "not a number", "bool_parsing": "not true or false",
-                 "greater_than_equal": f"must be {ctx.get('ge')} or more",
-                 "greater_than": f"must be more than {ctx.get('gt')}",
-                 "less_than_equal": f"must be {ctx.get('le')} or less",
-                 "less_than": f"must be less than {ctx.get('lt')}"}
-        rule = rules.get(kind, text[:1].lower() + text[1:])
-        return f"{value!r}: {rule}"
-    return text
+        rule = text[:1].lower() + text[1:]
+    return f"{value!r}: {rule}"
 
 
 def _command_path(app, argv: list[str] | None) -> str:
@@ -99,26 +182,28 @@ def _command_path(app, argv: list[str] | None) -> str:
     return " ".join(words)
 
 
-def usage_message(e, fallback_path: str = "benchfit") -> str:
-    """One line for a click usage error: ``<option>: <what is wrong> — see 'benchfit … --help'``."""
-    click = _click()
+def usage_message(e, fallback_path: str = "benchfit", argv: list[str] | None = None) -> str:
+    """One line for a click usage error: ``<option>: <what is wrong> — see 'benchfit … --help'``.
 
+    ``argv`` is the command line (default ``sys.argv[1:]``); the value a bad-value error quotes
+    is read from it.
+    """
     ctx = getattr(e, "ctx", None)
     where = ctx.command_path if ctx is not None and ctx.command_path else fallback_path
     fix = f"see '{where} --help'"
-    if isinstance(e, click.MissingParameter):
+    if _is_a(e, "MissingParameter"):
         hint = _hint(e)
         return f"{hint}: missing {'argument' if _is_argument(e) else 'option'} — give it; {fix}"
-    if isinstance(e, click.BadParameter):
-        text = _bad_value_text(e)
+    if _is_a(e, "BadParameter"):
+        text = _bad_value_text(e, sys.argv[1:] if argv is None else list(argv))
         sep = " " if text.startswith("'") else ": "
         return f"{_hint(e)}{sep}{text} — {fix}"
-    if isinstance(e, click.NoSuchOption):
+    if _is_a(e, "NoSuchOption"):
         text = f"{e.option_name}: no such option for '{where}'"
         if e.possibilities:
             text += f" (did you mean {', '.join(e.possibilities)}?)"
         return f"{text} — {fix}"
-    if isinstance(e, click.BadOptionUsage):
+    if _is_a(e, "BadOptionUsage"):
         text = " ".join(str(e.message).split()).rstrip(".")
         name = getattr(e, "option_name", "")
         if "requires an argument" in text:
@@ -174,7 +259,6 @@ def main(argv: list[str] | None = None) -> None:
 
     from benchfit.errors import BenchfitError
 
-    click = _click()
     empty = _empty_argument(sys.argv[1:] if argv is None else list(argv))
     if empty is not None:
         _error(empty, 2)
@@ -183,19 +267,22 @@ def main(argv: list[str] | None = None) -> None:
         code = app(args=argv, prog_name="benchfit", standalone_mode=False)
     except BenchfitError as e:
         _error(str(e), getattr(e, "exit_code", 2))
-    except click.NoArgsIsHelpError as e:
-        e.show()  # a group or command given no arguments prints its help (exit 2, as click does)
-        raise SystemExit(e.exit_code) from None
-    except click.UsageError as e:
-        _error(usage_message(e, _command_path(app, argv)), e.exit_code)
-    except click.ClickException as e:  # e.g. a file option typer opens itself
-        _error(" ".join(e.format_message().split()), e.exit_code)
     except typer.Abort:
         sys.stderr.write("aborted\n")
         raise SystemExit(1) from None
     except KeyboardInterrupt:
         sys.stderr.write("interrupted\n")
         raise SystemExit(130) from None
+    except Exception as exc:  # click's exceptions, recognised by name (see _is_a)
+        err: Any = exc
+        if _is_a(err, "NoArgsIsHelpError"):
+            err.show()  # a group or command given no arguments prints its help (exit 2, as click does)
+            raise SystemExit(err.exit_code) from None
+        if _is_a(err, "UsageError"):
+            _error(usage_message(err, _command_path(app, argv), argv), err.exit_code)
+        if _is_a(err, "ClickException"):  # e.g. a file option typer opens itself
+            _error(" ".join(err.format_message().split()), err.exit_code)
+        raise
     # standalone_mode=False returns the code of click/typer Exit (0 for --help, 130 for Ctrl-C)
     # and always ends with SystemExit, as click's standalone mode does
     # (typer turns Ctrl-C into exit 130; a command that stops on Ctrl-C prints its own line)

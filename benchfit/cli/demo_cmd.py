@@ -30,10 +30,13 @@ def _samples_dir(option: Optional[Path]) -> Path:
     else:
         import benchfit
 
-        where = Path(benchfit.__file__).resolve().parent.parent / "sample_captures"
+        # package data (benchfit/sample_captures: a copy in a wheel, a link in a checkout)
+        where = Path(benchfit.__file__).resolve().parent / "sample_captures"
+        if not (where / "hc_spec.toml").is_file():  # a checkout whose link was not kept
+            where = Path(benchfit.__file__).resolve().parent.parent / "sample_captures"
     if not (where / "hc_spec.toml").is_file():
-        fail(f"{where}: the sample captures are not there — run the demo from a benchfit checkout "
-             "(pip install -e .) or pass --samples DIR")
+        fail(f"{where}: the sample captures are not there — reinstall benchfit (its wheel carries "
+             "them) or pass --samples DIR")
     return where
 
 
@@ -75,11 +78,11 @@ class _Tour:
         except SystemExit as e:  # typer.Exit inside a command
             code = int(e.code or 0)
         except Exception as e:  # a click usage error or a bug: report it, keep touring
-            import click
+            from benchfit.cli import _is_a
 
-            if isinstance(e, click.exceptions.Exit):
+            if _is_a(e, "Exit"):
                 code = e.exit_code
-            elif isinstance(e, click.ClickException):
+            elif _is_a(e, "ClickException"):
                 stderr.print(f"error: {e.format_message()}", markup=False)
                 code = e.exit_code
             else:
@@ -102,7 +105,7 @@ def demo_command(
                              metavar="DIR",
                              help="Folder for the reports, log and figures (default: ./benchfit-demo)."),
     samples: Optional[Path] = typer.Option(None, "--samples", help="Folder of the sample captures "
-                                           "(default: sample_captures/ of this checkout)."),
+                                           "(default: the ones installed with benchfit)."),
     jobs: Optional[int] = typer.Option(None, "--jobs", help="Worker processes for the batch steps "
                                        "(default: the CPU count)."),
 ) -> None:

@@ -6,6 +6,7 @@ matplotlib load inside the command.
 
 from __future__ import annotations
 
+import enum
 import math
 from pathlib import Path
 from typing import Any, List, Literal, Optional, get_args
@@ -21,6 +22,10 @@ Model = Literal["lc-lowpass", "ringdown"]
 MethodChoice = Literal["auto", "two-channel", "one-channel"]
 _MODELS = get_args(Model)
 _METHODS = get_args(MethodChoice)
+
+#: the choices as enums, so typer checks them and the help lists them
+ModelOption = enum.Enum("ModelOption", {m.replace("-", "_"): m for m in _MODELS}, type=str)
+MethodOption = enum.Enum("MethodOption", {m.replace("-", "_"): m for m in _METHODS}, type=str)
 
 _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a capture.
 
@@ -142,9 +147,10 @@ def _clip_warnings(cap) -> list[str]:
 @app.command("fit", help=_HELP, short_help="Back-solve effective L, C, Rs, ESR and load of an L-C low-pass.")
 def fit_command(
     file: Path = typer.Argument(..., metavar="FILE", help="Capture file: WAV, FLAC or CSV.", show_default=False),
-    model: str = typer.Option("lc-lowpass", "--model", "-m", metavar="MODEL", help="lc-lowpass or ringdown."),
-    method: str = typer.Option("auto", "--method", metavar="METHOD",
-                               help="auto, two-channel or one-channel (lc-lowpass only)."),
+    model: ModelOption = typer.Option(ModelOption("lc-lowpass"), "--model", "-m", show_default=False,
+                                      help="The circuit model; the default is the L-C low-pass."),
+    method: MethodOption = typer.Option(MethodOption("auto"), "--method", help="What an lc-lowpass fit uses: "
+                                        "both channels, the output only, or auto (what the capture has)."),
     drive: Optional[str] = typer.Option(None, "--drive", metavar="CH", help="Drive channel: name or 1-based number."),
     response: Optional[str] = typer.Option(None, "--response", metavar="CH",
                                            help="Output channel: name or 1-based number."),
@@ -163,10 +169,7 @@ def fit_command(
 ) -> None:
     from benchfit.cli.common import fail, parse_assignments, parse_value, print_json, stderr, stdout
 
-    if model not in _MODELS:
-        fail(f"--model {model!r}: unknown model — use one of {', '.join(_MODELS)}")
-    if method not in _METHODS:
-        fail(f"--method {method!r}: unknown method — use one of {', '.join(_METHODS)}")
+    model, method = ModelOption(model).value, MethodOption(method).value
     if plot is not None and plot.suffix.lower() not in (".svg", ".png"):
         fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
     if plot is not None and plot.is_dir():

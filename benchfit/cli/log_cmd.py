@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
+import enum
 from pathlib import Path
 from typing import Optional
 
 import typer
 
 from benchfit.cli.app import log_app
+
+#: the formats of ``log export`` (those of benchfit.log.export, named here so that help lists them)
+FormatOption = enum.Enum("FormatOption", {"csv": "csv", "json": "json"}, type=str)
 
 _LOG_HELP = ("Measurement log: a file, or postgresql://user@host:port/dbname for a shared server log "
              "(default: $BENCHFIT_LOG or the user data directory's benchfit/log.sqlite).")
@@ -41,7 +45,7 @@ def list_command(
     since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
     bench: Optional[str] = typer.Option(None, "--bench", metavar="NAME", help="Only runs taken at this bench."),
     last: Optional[int] = typer.Option(None, "--last", metavar="N", min=1, help="Only the latest N runs."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the runs as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -66,7 +70,7 @@ def list_command(
 @log_app.command("show", help="Show everything logged about one run.\n\nExample:\n\n\b\n  benchfit log show 12")
 def show_command(
     run: int = typer.Argument(..., metavar="RUN", help="Run id (see `benchfit log list`)."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the run as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -108,19 +112,19 @@ def show_command(
 @log_app.command("export", help="Export the logged results as CSV or JSON (one row per result).\n\n"
                  "Example:\n\n\b\n  benchfit log export --format csv --out batch.csv")
 def export_command(
-    fmt: str = typer.Option("csv", "--format", metavar="FORMAT", help="csv or json."),
+    fmt: FormatOption = typer.Option(FormatOption("csv"), "--format", help="CSV (one row per result) or JSON records."),
     out: Optional[Path] = typer.Option(None, "--out", metavar="FILE", help="Output file (default: print to stdout)."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --out file."),
     unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL", help="Only results of this unit serial."),
     since: Optional[str] = typer.Option(None, "--since", metavar="DATE", help="Only runs at or after this UTC date/time."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
 ) -> None:
     import sys
 
     from benchfit.cli.common import stderr
     from benchfit.log.export import export_log
 
-    text = export_log(_log_path(log), fmt, out, overwrite=overwrite, unit=unit, since=_check_since(since))
+    text = export_log(_log_path(log), FormatOption(fmt).value, out, overwrite=overwrite, unit=unit, since=_check_since(since))
     if text is not None:
         sys.stdout.write(text if text.endswith("\n") else text + "\n")
     else:
@@ -141,7 +145,7 @@ def stats_command(
     by: Optional[str] = typer.Option(None, "--by", metavar="FIELD",
                                      help="bench: one line per bench (station), with its mean's offset from "
                                           "the mean of all."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the statistics as one JSON object."),
 ) -> None:
     from benchfit.cli.common import fail, print_json, stderr, stdout
@@ -246,7 +250,7 @@ def merge_command(
     bench: Optional[str] = typer.Option(None, "--bench", metavar="NAME",
                                         help="Bench name for OTHER's runs that have none (logged before "
                                              "bench names existed)."),
-    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the counts as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout
@@ -265,7 +269,7 @@ def merge_command(
                  "Idempotent: a run the server already has (same UUID) is not written twice.\n\n"
                  "Example:\n\n\b\n  benchfit log sync --log postgresql://lab@logserver/benchfit")
 def sync_command(
-    log: Optional[str] = typer.Option(None, "--log", metavar="URL", help=_LOG_HELP),
+    log: Optional[str] = typer.Option(None, "--log", metavar="URL", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the counts as one JSON object."),
 ) -> None:
     from benchfit.cli.common import print_json, stdout

@@ -13,12 +13,14 @@ could not be reported (it wins over 1).
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 from typing import List, Optional
 
 import typer
 
 from benchfit.cli.app import app
+from benchfit.cli.fit_cmd import ModelOption
 
 _EXAMPLE = """
 
@@ -65,14 +67,15 @@ def report_command(
                                                        "not with --each)."),
     operator: Optional[str] = typer.Option(None, "--operator", metavar="NAME", help="Who made the measurement."),
     out: Path = typer.Option(Path("."), "--out", metavar="DIR", help="Directory for the report files."),
-    model: Optional[str] = typer.Option(None, "--model", metavar="MODEL",
-                                        help="Fit the captures with this model: lc-lowpass or ringdown. "
-                                             "Default: lc-lowpass when the spec names a fitted quantity."),
+    model: Optional[ModelOption] = typer.Option(None, "--model", show_default=False,
+                                                help="Fit the captures with this model. Default: lc-lowpass "
+                                                     "when the spec names a fitted quantity."),
     drive: Optional[str] = typer.Option(None, "--drive", metavar="CH", help="Channel holding the filter's drive (fit)."),
     response: Optional[str] = typer.Option(None, "--response", metavar="CH", help="Channel holding the filter output (fit)."),
     fix: Optional[List[str]] = typer.Option(None, "--fix", metavar="NAME=VALUE",
                                             help="Hold a fit parameter fixed, e.g. --fix Rload=10k (repeatable)."),
     log: Optional[str] = typer.Option(None, "--log", metavar="PATH",
+                                      envvar="BENCHFIT_LOG",
                                       help="Measurement log file or postgresql:// URL (default: $BENCHFIT_LOG or the user data "
                                            "directory's benchfit/log.sqlite)."),
     bench: Optional[str] = typer.Option(
@@ -94,6 +97,9 @@ def report_command(
     from benchfit.log.store import resolve_log_path
     from benchfit.report.assemble import FitOptions
 
+    model = None if model is None else ModelOption(model).value
+    if log is not None and log == os.environ.get("BENCHFIT_LOG") and no_log:
+        log = None  # typer filled --log from $BENCHFIT_LOG: --no-log wins over the environment
     fix_values = parse_assignments(fix, _FIT_NAMES, "--fix", zero_ok=("Resr", "Rs"))
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:

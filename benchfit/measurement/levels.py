@@ -129,16 +129,57 @@ def whole_period_span(n_samples: int, sample_rate: float, frequency_hz: float | 
     return max(2, min(span, n_samples)), periods
 
 
+#: records at least this long take their tail percentiles from the tails alone (see _tail_order_stats)
+_TAIL_MIN_SAMPLES = 8192
+
+
+def _tail_order_stats(x: np.ndarray, ranks: np.ndarray, low: bool) -> np.ndarray | None:
+    """The order statistics of ``x`` at ``ranks`` (0-based, ascending), all in one tail.
+
+    A strided subset gives a threshold a little beyond the deepest rank; the samples on the
+    tail's side of it are exactly the smallest (or largest) ones of the record, so the
+    ranks are found by a partial sort of that small set alone. None when the threshold
+    turns out not to reach the ranks (then the caller sorts the whole record).
+    """
+    n = x.size
+    sub = x[:: max(1, n // 4096)]
+    m = sub.size
+    if low:
+        deepest = int(ranks.max())
+        k = min(m - 1, int(math.ceil(2.0 * (deepest + 1) * m / n)) + 8)
+        threshold = np.partition(sub, k)[k]
+        tail = x[x <= threshold]
+        if tail.size <= deepest:
+            return None
+        offset = 0
+    else:
+        deepest = int(n - 1 - ranks.min())  # distance of the shallowest rank from the top
+        k = max(0, m - 1 - (int(math.ceil(2.0 * (deepest + 1) * m / n)) + 8))
+        threshold = np.partition(sub, k)[k]
+        tail = x[x >= threshold]
+        offset = n - tail.size
+        if offset > int(ranks.min()):
+            return None
+    return np.partition(tail, np.unique(ranks - offset))[ranks - offset]
+
+
 def _percentiles(x: np.ndarray, p_lo: float, p_hi: float) -> tuple[float, float]:
     """Two percentiles (%), linear interpolation between order statistics (numpy's default
-    method), with one partial sort of one copy."""
+    method). A long record with both in the tails (e.g. 0.1 % and 99.9 %) partially sorts only
+    its two tails; otherwise one partial sort of one copy. Same values either way."""
     n = x.size
     pos = np.array([p_lo, p_hi]) / 100.0 * (n - 1)
     lo_i = np.floor(pos).astype(np.int64)
     hi_i = np.minimum(lo_i + 1, n - 1)
+    frac = pos - lo_i
+    if n >= _TAIL_MIN_SAMPLES and p_lo <= 5.0 and p_hi >= 95.0:
+        low = _tail_order_stats(x, np.array([lo_i[0], hi_i[0]]), low=True)
+        high = _tail_order_stats(x, np.array([lo_i[1], hi_i[1]]), low=False)
+        if low is not None and high is not None:
+            return (float(low[0] + frac[0] * (low[1] - low[0])),
+                    float(high[0] + frac[1] * (high[1] - high[0])))
     kth = np.unique(np.concatenate([lo_i, hi_i]))
     part = np.partition(x, kth)
-    frac = pos - lo_i
     vals = part[lo_i] + frac * (part[hi_i] - part[lo_i])
     return float(vals[0]), float(vals[1])
 

@@ -1,9 +1,10 @@
 """Result objects of :func:`benchfit.measure`: frozen dataclasses with the JSON contract.
 
 ``Measurement.to_dict()`` returns exactly the object ``benchfit measure --json`` prints
-(DESIGN.md, "JSON contracts"). Extra detail that is not part of the contract (uncertainties
-of levels, overshoot, the analysis settings) is kept in ``ChannelMeasurement.extra`` and
-appears with ``to_dict(full=True)``.
+(DESIGN.md, "JSON contracts", plus the keys added since: the levels' and pulse parameters'
+standard uncertainties ``vrms_u`` … and each harmonic's ``amplitude_u``). Extra detail that is
+not part of the contract (overshoot, the analysis settings) is kept in
+``ChannelMeasurement.extra`` and appears with ``to_dict(full=True)``.
 """
 
 from __future__ import annotations
@@ -14,7 +15,16 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any, Mapping
 
-__all__ = ["Harmonic", "ChannelMeasurement", "Measurement"]
+__all__ = ["Harmonic", "ChannelMeasurement", "Measurement", "UNCERTAINTY_FIELDS"]
+
+#: the standard uncertainties that are fields of :class:`ChannelMeasurement` (and JSON keys):
+#: ``<quantity>_u`` or ``<quantity>_u_<unit>``, the names benchfit.report.spec.uncertainty_keys reads
+UNCERTAINTY_FIELDS = ("amplitude_u", "vdc_u", "vrms_u", "vpp_u", "thd_u_pct", "duty_cycle_u_pct",
+                      "rise_time_u_s", "fall_time_u_s")
+
+#: the scalar float columns of Measurement.to_dataframe() (None becomes NaN)
+_FLOAT_COLUMNS = ("frequency_hz", "frequency_u_hz", "amplitude", "vdc", "vrms", "vpp", "duty_cycle_pct",
+                  "rise_time_s", "fall_time_s", "thd_pct", "thd_n_pct", "sinad_db") + UNCERTAINTY_FIELDS
 
 
 def _clean(v: Any) -> Any:
@@ -36,7 +46,8 @@ class Harmonic:
 
     def to_dict(self) -> dict[str, Any]:
         return {"order": self.order, "frequency_hz": self.frequency_hz,
-                "amplitude": self.amplitude, "phase_deg": self.phase_deg}
+                "amplitude": self.amplitude, "phase_deg": self.phase_deg,
+                "amplitude_u": _clean(self.amplitude_u)}
 
 
 @dataclass(frozen=True)
@@ -60,13 +71,26 @@ class ChannelMeasurement:
     harmonics: tuple[Harmonic, ...] = ()
     clipped: bool = False
     warnings: tuple[str, ...] = ()
-    #: extra results and settings outside the JSON contract (uncertainties, overshoot, H, …)
+    #: extra results and settings outside the JSON contract (overshoot, H, the method, …)
     extra: Mapping[str, Any] = field(default_factory=dict)
+    #: standard uncertainties (k = 1) of the levels and pulse parameters, same unit as the value;
+    #: None when not measured. Taken from ``extra`` when not given (measure_channel puts them there).
+    amplitude_u: float | None = None
+    vdc_u: float | None = None
+    vrms_u: float | None = None
+    vpp_u: float | None = None
+    thd_u_pct: float | None = None
+    duty_cycle_u_pct: float | None = None
+    rise_time_u_s: float | None = None
+    fall_time_u_s: float | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "harmonics", tuple(self.harmonics))
         object.__setattr__(self, "warnings", tuple(self.warnings))
         object.__setattr__(self, "extra", MappingProxyType(dict(self.extra)))
+        for name in UNCERTAINTY_FIELDS:
+            if getattr(self, name) is None and self.extra.get(name) is not None:
+                object.__setattr__(self, name, float(self.extra[name]))
 
     def to_dict(self, full: bool = False) -> dict[str, Any]:
         d = {
@@ -78,6 +102,7 @@ class ChannelMeasurement:
             "rise_time_s": _clean(self.rise_time_s), "fall_time_s": _clean(self.fall_time_s),
             "thd_pct": _clean(self.thd_pct), "thd_n_pct": _clean(self.thd_n_pct),
             "sinad_db": _clean(self.sinad_db),
+            **{name: _clean(getattr(self, name)) for name in UNCERTAINTY_FIELDS},
             "harmonics": [h.to_dict() for h in self.harmonics],
             "clipped": bool(self.clipped), "warnings": list(self.warnings),
         }
@@ -100,13 +125,15 @@ class Measurement:
         object.__setattr__(self, "channels", tuple(self.channels))
 
     def channel(self, key: str | int) -> ChannelMeasurement:
-        """A channel's results by name (case-insensitive) or 0-based index."""
-        if isinstance(key, int):
-            return self.channels[key]
-        for ch in self.channels:
-            if ch.name.lower() == key.lower():
-                return ch
-        raise KeyError(f"no channel {key!r}; channels are {[c.name for c in self.channels]}")
+        """A channel's results by the rule of :func:`~benchfit.capture.capture.resolve_channel`:
+        a name (case-insensitive), a 0-based int, or a 1-based number as text. KeyError if none."""
+        from benchfit.capture.capture import resolve_channel
+        from benchfit.errors import CaptureError
+
+        try:
+            return self.channels[resolve_channel(key, [c.name for c in self.channels], self.file or "measurement")]
+        except CaptureError as e:
+            raise KeyError(str(e)) from None
 
     def to_dict(self, full: bool = False) -> dict[str, Any]:
         """The ``benchfit measure --json`` object (DESIGN.md contract)."""
@@ -115,7 +142,11 @@ class Measurement:
                 "channels": [c.to_dict(full=full) for c in self.channels]}
 
     def to_dataframe(self):
-        """One row per channel, one column per scalar result (pandas DataFrame)."""
+        """One row per channel, one column per scalar result and its uncertainty (pandas DataFrame).
+
+        Index ``name``; value and uncertainty columns are floats, NaN where not measured
+        (e.g. ``duty_cycle_pct`` and ``duty_cycle_u_pct`` of a sine).
+        """
         import pandas as pd
 
         rows = []
@@ -124,7 +155,27 @@ class Measurement:
             d.pop("harmonics")
             d["warnings"] = "; ".join(d["warnings"])
             rows.append(d)
-        return pd.DataFrame(rows).set_index("name")
+        df = pd.DataFrame(rows)
+        for col in _FLOAT_COLUMNS:
+            df[col] = pd.to_numeric(df[col], errors="coerce").astype(float)
+        return df.set_index("name")
+
+    def harmonics_dataframe(self):
+        """The harmonic tables, one row per (channel, order) (pandas DataFrame).
+
+        Columns ``frequency_hz``, ``amplitude`` (peak, the channel's unit), ``amplitude_u``
+        (standard uncertainty, NaN when not known), ``phase_deg`` (cosine reference) and
+        ``unit``; index ``(channel, order)``. Empty (same columns) when no channel has a table.
+        """
+        import pandas as pd
+
+        rows = [{"channel": c.name, "order": h.order, "frequency_hz": float(h.frequency_hz),
+                 "amplitude": float(h.amplitude),
+                 "amplitude_u": float("nan") if h.amplitude_u is None else float(h.amplitude_u),
+                 "phase_deg": float(h.phase_deg), "unit": c.unit}
+                for c in self.channels for h in c.harmonics]
+        columns = ["channel", "order", "frequency_hz", "amplitude", "amplitude_u", "phase_deg", "unit"]
+        return pd.DataFrame(rows, columns=columns).set_index(["channel", "order"])
 
     def _repr_html_(self) -> str:
         keys = [("frequency_hz", "frequency", "Hz"), ("amplitude", "amplitude", ""),

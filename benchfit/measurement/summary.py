@@ -42,12 +42,13 @@ from typing import Any
 
 import numpy as np
 
-from benchfit.capture.capture import Capture
+from benchfit.capture.capture import Capture, ChannelSpec
 from benchfit.errors import MeasureError
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
 from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
 from benchfit.measurement.pulse import PulseResult, pulse_parameters
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
+from benchfit.measurement.threads import one_blas_thread
 from benchfit.measurement.tone import fit_harmonics, fit_tone
 
 __all__ = ["measure", "measure_channel", "DEFAULT_HARMONICS"]
@@ -72,6 +73,7 @@ def _fmt(v: float, unit: str) -> str:
     return format_quantity(v, unit, 4)
 
 
+@one_blas_thread  # the result does not depend on the caller's BLAS threads, nor its speed much
 def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", unit: str = "FS",
                     harmonics: int = DEFAULT_HARMONICS, timebase_ppm: float = 0.0,
                     timebase_u_ppm: float = 0.0, coupling_tau_s: float | None = None,
@@ -294,7 +296,7 @@ def _clip_warning(clip) -> str:
 
 
 def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None = None,
-            channels: list[str | int] | None = None) -> Measurement:
+            channels: ChannelSpec | None = None) -> Measurement:
     """Measure every (or the chosen) channel of a capture.
 
     Parameters
@@ -304,8 +306,10 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         :func:`benchfit.capture.load.load` reads (CSV, WAV, FLAC; a sidecar JSON applies).
     harmonics : int, optional
         Highest harmonic order H, ≥ 1 (default 10: THD over harmonics 2…10, or up to Nyquist).
-    channels : list of str or int, optional
-        Channel names or 0-based indices to measure (default: all), in that order.
+    channels : str, int or sequence of them, optional
+        The channels to measure (default: all), in that order, by the rule of
+        :func:`~benchfit.capture.capture.channel_keys` — the same as :func:`benchfit.load`:
+        names (case-insensitive), 0-based ints, 1-based numbers as text, ``"drive,output"``.
 
     Returns
     -------
@@ -329,8 +333,8 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         from benchfit.capture.load import load
 
         cap = load(capture_or_path)
-    if channels:
-        cap = cap.select(list(channels))
+    if channels is not None and not (isinstance(channels, (list, tuple)) and not channels):
+        cap = cap.select(channels)  # (an empty list measures every channel, as it always has)
     cal = cap.calibration
     gains = cal.gain_v_per_fs
     gains_u = cal.gain_u_rel

@@ -246,7 +246,7 @@ CASES = [
     C("fit-clipped-and-no-such-channel", "fit {clipped} --response 5", 2, r": no channel '5' — choose one of ch1",
       "clipped", warnings_ok=True),  # the clipping warning comes first, legitimately
     C("fit-unknown-model", "fit {two} --model bogus", 2,
-      r"^error: --model 'bogus': unknown model — use one of lc-lowpass, ringdown$", "--model"),
+      r"^error: --model 'bogus': not one of lc-lowpass, ringdown" + HELP.format("fit "), "--model"),
     C("fit-fix-unknown-name", "fit {two} --fix Q=3", 2, r"^error: --fix 'Q=3': unknown name 'Q' — use one of L, C",
       "--fix"),
     C("fit-fix-not-assignment", "fit {two} --fix L", 2, r"^error: --fix 'L': not NAME=VALUE — write it like --fix L=",
@@ -282,7 +282,7 @@ CASES = [
     C("report-foreign-log", "report {good} --spec {spec} --unit HC-01 --log {foreign_log}", 2,
       r": not a benchfit measurement log .* \(this file was left untouched\)$", "foreign_log"),
     C("report-unknown-model", "report {good} --spec {spec} --unit HC-01 --no-log --model bogus", 2,
-      r"^error: --model: 'bogus' is unknown — ", "--model"),
+      r"^error: --model 'bogus': not one of lc-lowpass, ringdown" + HELP.format("report "), "--model"),
     # --- log -----------------------------------------------------------------------------------
     C("log-since-not-a-date", "log list --since yesterday --log {log}", 2,
       r"^error: --since 'yesterday': not a date — write it like 2026-12-01", "--since"),
@@ -291,7 +291,7 @@ CASES = [
     C("log-show-no-run", "log show 999 --log {log}", 2, r"^error: run 999: no such run in .* — run ids go from 1",
       "run 999"),
     C("log-export-format", "log export --format xml --log {log}", 2,
-      r"^error: --format: 'xml' is unknown — use one of csv, json$", "--format"),
+      r"^error: --format 'xml': not one of csv, json" + HELP.format("log export "), "--format"),
     C("log-export-exists", "log export --out {existing} --log {log}", 2,
       r": file exists — choose another --out or add --overwrite$", "existing"),
     C("log-stats-plot-exists", "log stats frequency_hz --plot {existing} --log {log}", 2,

@@ -24,8 +24,13 @@ CHANNEL_TYPES = {
     "fall_time_s": (float, type(None)),
     "thd_pct": (float, type(None)), "thd_n_pct": (float, type(None)), "sinad_db": (float, type(None)),
     "harmonics": (list,), "clipped": (bool,), "warnings": (list,),
+    # added to the contract (backward compatible): the standard uncertainties (k = 1)
+    "amplitude_u": (float, type(None)), "vdc_u": (float, type(None)), "vrms_u": (float, type(None)),
+    "vpp_u": (float, type(None)), "thd_u_pct": (float, type(None)), "duty_cycle_u_pct": (float, type(None)),
+    "rise_time_u_s": (float, type(None)), "fall_time_u_s": (float, type(None)),
 }
-HARMONIC_TYPES = {"order": int, "frequency_hz": float, "amplitude": float, "phase_deg": float}
+HARMONIC_TYPES = {"order": (int,), "frequency_hz": (float,), "amplitude": (float,), "phase_deg": (float,),
+                  "amplitude_u": (float, type(None))}
 
 
 def _hum_check_capture():
@@ -55,7 +60,7 @@ def test_contract_keys_and_types_exactly():
         for h in c["harmonics"]:
             assert set(h) == set(HARMONIC_TYPES)
             for key, typ in HARMONIC_TYPES.items():
-                assert type(h[key]) is typ, (key, type(h[key]))
+                assert type(h[key]) in typ, (key, type(h[key]))
         assert all(isinstance(w, str) for w in c["warnings"])
     # strict JSON: no NaN or infinity anywhere (the CLI prints with allow_nan=False)
     json.dumps(d, allow_nan=False)

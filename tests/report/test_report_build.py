@@ -6,7 +6,6 @@ import json
 import re
 from pathlib import Path
 
-import pytest
 
 from benchfit.report.assemble import build_report
 from benchfit.report.spec import uncertainty_keys
