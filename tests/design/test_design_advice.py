@@ -180,7 +180,7 @@ def test_timer_trim_uncertainty_is_honest_over_seeded_units():
     for _ in range(120):
         ra, rb = 1e3 * (1 + 0.01 * rng.uniform(-1, 1)), 13.7e3 * (1 + 0.01 * rng.uniform(-1, 1))
         c1 = 1e-6 * (1 + 0.03 * rng.uniform(-1, 1))
-        period = lambda a, b: math.log(2) * (a + 2 * b) * c1  # noqa: E731
+        period = lambda a, b, c1=c1: math.log(2) * (a + 2 * b) * c1  # noqa: E731
         f_meas = 1 / period(ra, rb) + 0.001 * rng.standard_normal()
         adv = advise(SPEC, timer=TimerParts(1e3, 13.7e3, 1e-6, 12.0), timer_frequency_hz=f_meas,
                      timer_frequency_u_hz=0.001, n_trials=400, seed=int(rng.integers(1 << 30)))
