@@ -62,11 +62,14 @@ class ChannelMeasurement:
     warnings: tuple[str, ...] = ()
     #: extra results and settings outside the JSON contract (uncertainties, overshoot, H, …)
     extra: Mapping[str, Any] = field(default_factory=dict)
+    #: GUM budget per reported quantity (benchfit.uncertainty.Budget), e.g. "frequency_hz"
+    budget: Mapping[str, Any] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "harmonics", tuple(self.harmonics))
         object.__setattr__(self, "warnings", tuple(self.warnings))
         object.__setattr__(self, "extra", MappingProxyType(dict(self.extra)))
+        object.__setattr__(self, "budget", MappingProxyType(dict(self.budget)))
 
     def to_dict(self, full: bool = False) -> dict[str, Any]:
         d = {
@@ -80,6 +83,8 @@ class ChannelMeasurement:
             "sinad_db": _clean(self.sinad_db),
             "harmonics": [h.to_dict() for h in self.harmonics],
             "clipped": bool(self.clipped), "warnings": list(self.warnings),
+            # added to the DESIGN.md contract: the GUM budget of each quantity that has a u
+            "budget": {k: b.to_dict() for k, b in self.budget.items()},
         }
         if full:
             d["extra"] = {k: _clean(v) for k, v in self.extra.items()}
@@ -122,6 +127,7 @@ class Measurement:
         for c in self.channels:
             d = c.to_dict()
             d.pop("harmonics")
+            d.pop("budget")
             d["warnings"] = "; ".join(d["warnings"])
             rows.append(d)
         return pd.DataFrame(rows).set_index("name")

@@ -24,6 +24,7 @@ CHANNEL_TYPES = {
     "fall_time_s": (float, type(None)),
     "thd_pct": (float, type(None)), "thd_n_pct": (float, type(None)), "sinad_db": (float, type(None)),
     "harmonics": (list,), "clipped": (bool,), "warnings": (list,),
+    "budget": (dict,),  # added by issue 11: GUM budget per quantity (benchfit.uncertainty.Budget.to_dict)
 }
 HARMONIC_TYPES = {"order": int, "frequency_hz": float, "amplitude": float, "phase_deg": float}
 
