@@ -324,6 +324,11 @@ def tune(
             ppm, u_ppm = prof.timebase.ppm, prof.timebase.u_ppm
         if prof.coupling is not None:
             tau = prof.coupling.tau_s
+    if u_ppm <= 0:  # no timebase calibration: the stated default, and say so (issue 11)
+        from benchfit.uncertainty import DEFAULT_TIMEBASE_NOTE, DEFAULT_TIMEBASE_U_PPM
+
+        u_ppm = DEFAULT_TIMEBASE_U_PPM
+        stderr.print(f"note: {DEFAULT_TIMEBASE_NOTE}", markup=False, highlight=False, soft_wrap=True)
     fs_true = r * (1.0 + ppm * 1e-6)
     hop = min(window / 4.0, 0.25)
     plain = plain or json_out
@@ -540,7 +545,16 @@ def calibrate_timebase(
     from benchfit.capture.calibration import TimebaseCalibration, estimate_timebase, save_profile, utc_now_iso
 
     f_ref = parse_value(frequency, "--frequency")
-    u_ref = parse_value(frequency_u, "--frequency-u") if frequency_u is not None else 0.0
+    ref_note = None
+    if frequency_u is not None:
+        u_ref = parse_value(frequency_u, "--frequency-u")
+    else:  # a reference is never perfect: without its stated u, the same crystal default applies
+        from benchfit.uncertainty import DEFAULT_REFERENCE_HALF_WIDTH_PPM, standard_from_half_width
+
+        u_ref = f_ref * 1e-6 * standard_from_half_width(DEFAULT_REFERENCE_HALF_WIDTH_PPM, "rectangular")
+        ref_note = (f"--frequency-u not given: the reference is taken as ± {DEFAULT_REFERENCE_HALF_WIDTH_PPM:g} ppm "
+                    f"(rectangular, u = {u_ref:.3g} Hz; an unspecified crystal, common practice, no source) — "
+                    "give the counter's or generator's stated standard uncertainty with --frequency-u")
     prof = _load_or_new(profile)
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
         (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
@@ -550,10 +564,12 @@ def calibrate_timebase(
                                                       nominal_rate_hz=fs, source=source,
                                                       measured_utc=utc_now_iso()))
     path = save_profile(prof)
+    if ref_note:
+        stderr.print(f"note: {ref_note}", markup=False, highlight=False, soft_wrap=True)
     if json_out:
         print_json({"profile": prof.name, "path": str(path), "ppm": est.ppm, "u_ppm": est.u_ppm,
                     "measured_hz": est.measured_hz, "measured_u_hz": est.measured_u_hz,
-                    "reference_hz": f_ref, "nominal_rate_hz": fs})
+                    "reference_hz": f_ref, "reference_u_hz": u_ref, "nominal_rate_hz": fs})
         return
     speed = "fast" if est.ppm > 0 else "slow"
     stdout.print(f"tone measured {_freq_text(est.measured_hz, est.measured_u_hz)} on the nominal {fs:g} Hz; "
