@@ -34,8 +34,8 @@ __all__ = ["Identification", "identify", "fit_log_parameters", "numeric_jacobian
            "parameter_table", "derived_values", "correlations", "undetermined_warning", "DERIVED_NAMES",
            "solve", "ambiguity", "display_unit"]
 
-DERIVED_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "q_factor", "damped_frequency_hz",
-                                  "decay_rate_per_s")
+DERIVED_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "natural_frequency_hz", "q_factor",
+                                  "damped_frequency_hz", "decay_rate_per_s")
 
 #: a direction whose log-parameter standard deviation exceeds this is undetermined: 0.5 is
 #: a factor e^0.5 ≈ 1.65 either way (over 50 % relative), where the linearised error bar
@@ -313,15 +313,26 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
         ident = identify(jac, names, chi2)
         only_scale = {"L", "C"} <= set(ident.undetermined)
         if "Resr" in ident.undetermined and "Resr" not in fixed and not only_scale:
+            # marginalised, not silently zeroed: the best fit has the ESR at (nearly) 0, and the
+            # data bound it only from above. It is held at 0 and its plausible range 0…a is
+            # propagated into every other part (fit/propagate.py) as u = a/√3: the rms distance
+            # from 0 of a value spread evenly over 0…a, so the budget covers the bias of
+            # holding it at 0. a is the smaller of the total series loss Rs + Resr and twice
+            # the data's own absolute uncertainty of Resr
+            total = values["Rs"] + values["Resr"]
+            upper = min(total, 2.0 * _linear_u(jac, names, "Resr", values["Resr"], chi2))
             fixed["Resr"] = 0.0
+            fixed["Resr_bound"] = upper
             folded.append("Resr")
             start = dict(values)
-            start["Rs"] = values["Rs"] + values["Resr"]
+            start["Rs"] = total
             if extra:
                 extra = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-            warnings.append("Resr: the capacitor's ESR is not separated from Rs by these data, so it "
-                            "was set to 0 and Rs holds Rs + ESR — measure the ESR and pass --fix Resr=… "
-                            "to split them")
+            warnings.append(f"Resr: the capacitor's ESR is not separated from Rs by these data, so Rs holds "
+                            f"Rs + ESR (also given as series_loss_ohm); the ESR may be anywhere in 0…{upper:.3g} Ω "
+                            "(the smaller of Rs + ESR and twice the data's own bound) and that range is included "
+                            "in the other parts' uncertainties — an ESR meter on the capacitor would split them "
+                            "(then --fix Resr=…)")
             continue
         break
     alternatives: list[dict[str, float]] = []
@@ -346,6 +357,25 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
                 alternatives.append(v2)
         alternatives = [a for a in alternatives if _distinct(a, values, ident)]
     return values, ident, fixed, folded, warnings, ok, msg, alternatives
+
+
+def _linear_u(jac: np.ndarray, names: tuple[str, ...], name: str, value: float, chi2_red: float) -> float:
+    """Standard uncertainty of one part in its own unit (not log), the others profiled out.
+
+    A part near zero is undetermined in relative (log) terms yet bounded in absolute terms:
+    with j = ∂r/∂x (the log column divided by x) and the other columns O, the information
+    left for x is |j − O·O⁺j|², so u(x) = √(max(χ²_red, 1)/that).
+    """
+    if name not in names or value <= 0:
+        return math.inf
+    k = names.index(name)
+    col = jac[:, k] / value
+    others = np.delete(jac, k, axis=1)
+    if others.size:
+        coef, *_ = np.linalg.lstsq(others, col, rcond=1e-10)
+        col = col - others @ coef
+    info = float(col @ col)
+    return math.sqrt(max(chi2_red, 1.0) / info) if info > 0 else math.inf
 
 
 def _unpinned_jacobian(residual, values, pin, names, extra):

@@ -41,8 +41,14 @@ import numpy as np
 from benchfit.errors import FitError
 from benchfit.model.filter import (PARAMETER_NAMES, LowpassParts, free_response_basis, second_order,
                                    simulate, transfer)
-from benchfit.fit.identify import (Identification, ambiguity, correlations, derived_values,
-                                   parameter_table, solve, undetermined_warning)
+from benchfit.fit.identify import (DERIVED_NAMES, Identification, ambiguity, correlations, derived_values,
+                                   display_unit, numeric_jacobian, parameter_table, solve,
+                                   undetermined_warning)
+from benchfit.fit.propagate import InputSpec, derived_budget, input_sensitivities, part_budget, total_log_covariance
+from benchfit.fit.tolerance import FixedValue, as_fixed
+from benchfit.uncertainty import (DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL, DEFAULT_CHANNEL_RATIO_NOTE, Budget,
+                                  Contribution)
+from benchfit.units import format_quantity
 from benchfit.fit.result import (PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality,
                                 FitResult)
 
@@ -160,18 +166,73 @@ def start_parts(w0: float, q: float, dc_gain: float | None, fix: Mapping[str, fl
     return out
 
 
+def input_specs(fix_specs: Mapping[str, FixedValue], fixed: Mapping[str, float], folded: list[str],
+                gain_ratio: FixedValue | None = None) -> dict[str, InputSpec]:
+    """The inputs a fit held fixed: the user's parts, the marginalised ones, the channel gain ratio."""
+    out: dict[str, InputSpec] = {}
+    for n, fv in fix_specs.items():
+        unit = display_unit(n)
+        tol = f" ({fv.text}, {fv.distribution})" if fv.u is not None else " (no tolerance given)"
+        out[n] = InputSpec(n, fv, PARAMETER_UNITS[n], f"fixed {n}{tol}", "fixed")
+        del unit
+    for n in folded:
+        a = float(fixed.get(f"{n}_bound", 0.0))
+        # held at 0, spread evenly over 0…a: rms distance from 0 is a/√3 (as a rectangular of half-width a)
+        fv = FixedValue(float(fixed[n]), a, "rectangular", f"0…{a:.3g} {display_unit(n)}",
+                        "range the data allow: not determined, bounded by the total series loss and the "
+                        "data's own bound")
+        out[n] = InputSpec(n, fv, PARAMETER_UNITS[n], f"undetermined {n} (0…{a:.3g} {display_unit(n)}, held at 0)",
+                           "prior")
+    if gain_ratio is not None:
+        out["gain_ratio"] = InputSpec("gain_ratio", gain_ratio, "1",
+                                      f"channel gain ratio ({gain_ratio.text}, {gain_ratio.distribution})",
+                                      "gain ratio")
+    return out
+
+
+def propagate(residual, values: Mapping[str, float], ident: Identification,
+              specs: Mapping[str, InputSpec]) -> dict[str, np.ndarray]:
+    """Sensitivities of the free log-parameters to every input (see :mod:`benchfit.fit.propagate`)."""
+    z0 = math.sqrt(values["L"] / values["C"])
+    return input_sensitivities(residual, values, ident, specs, {n: z0 for n in specs})
+
+
 def assemble(cap, method: str, values: dict[str, float], ident: Identification,
              user_fix: Mapping[str, float], folded: list[str], warnings: list[str],
              curves: FitCurves, quality: FitQuality, success: bool, message: str,
-             alternatives: list[dict[str, float]] | None = None) -> FitResult:
-    """Build the FitResult: parameter table, derived values, correlations and warnings."""
+             alternatives: list[dict[str, float]] | None = None,
+             specs: Mapping[str, InputSpec] | None = None,
+             sens: Mapping[str, np.ndarray] | None = None) -> FitResult:
+    """Build the FitResult: parameter table with budgets, derived values, correlations and warnings."""
     from dataclasses import replace
 
+    specs = dict(specs or {})
+    for n, v in user_fix.items():  # a caller that gave plain floats: inputs without tolerance
+        if n not in specs:
+            specs[n] = InputSpec(n, FixedValue(float(v)), PARAMETER_UNITS[n], f"fixed {n} (no tolerance given)")
+    sens = dict(sens or {})
     cov_local = ident.cov_log
     ident, amb_warn = ambiguity(values, ident, alternatives or [])
     params = parameter_table(values, ident, {**user_fix, **{n: 0.0 for n in folded}})
-    for n in folded:
-        params[n] = FitParameter(0.0, None, False, PARAMETER_UNITS[n])
+    dof = max(quality.n_points - len(ident.names), 1)
+    cond = tuple(n for n, sp in specs.items() if sp.u is None)
+    for name, p in list(params.items()):
+        spec = specs.get(name)
+        if name in folded:
+            b = Budget(name, float(values[name]), p.unit,
+                       (Contribution(spec.label, "B", "rectangular", float(spec.u), p.unit, 1.0, math.inf,
+                                     spec.fixed.source),))
+            params[name] = FitParameter(0.0, None, False, p.unit, None, b)
+        elif p.fixed:
+            b = None if spec is None or spec.u is None else Budget(
+                name, float(p.value), p.unit, (Contribution(spec.label, "B", spec.fixed.distribution, float(spec.u),
+                                                            p.unit, 1.0, math.inf, spec.fixed.source),))
+            params[name] = FitParameter(p.value, None if b is None else b.u, True, p.unit, None, b,
+                                        (name,) if b is None else ())
+        elif p.stderr is not None and name in ident.names:
+            j = ident.names.index(name)
+            b = part_budget(name, float(p.value), p.unit, j, p.stderr, ident, specs, sens, dof)
+            params[name] = FitParameter(p.value, b.u, False, p.unit, p.stderr, b, b.conditional_on)
     z0 = math.sqrt(values["L"] / values["C"])
     high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
     named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
@@ -189,10 +250,15 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
     # derived values use the local covariance; the spread between equally good solutions is
     # checked on the derived values themselves below (it widens only the parts' own errors)
     derived = derived_values(values, replace(ident, cov_log=cov_local))
+    if "Resr" in folded and "Rs" not in user_fix:
+        derived["series_loss_ohm"] = _series_loss(values, ident, cov_local, specs, sens, dof)
+    derived = _derived_budgets(values, derived, replace(ident, cov_log=cov_local), specs, sens, dof)
     for name, dv in list(derived.items()):  # a derived value that differs between solutions
         if dv.value is None or dv.stderr is None:
             continue
         for alt in alternatives or []:
+            if name not in DERIVED_NAMES:
+                continue
             other = second_order(_parts(alt))[name]
             if not math.isfinite(other):
                 continue
@@ -200,11 +266,95 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
             if diff > 0.05 * abs(dv.value):
                 derived[name] = DerivedValue(dv.value, None)
             elif diff > 3 * dv.stderr:  # small but significant: widen by half the spread
-                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2))
+                b = dv.budget.with_rows(Contribution("other equally good solution (half the spread)", "B",
+                                                     "rectangular", diff / 2, dv.budget.unit, 1.0)) \
+                    if dv.budget is not None else None
+                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, b,
+                                             dv.conditional_on)
+    if cond:
+        shown = ", ".join(f"{n} = {format_quantity(specs[n].fixed.value, display_unit(n), 4)}"
+                          for n in cond if n in PARAMETER_UNITS)
+        warn.append(f"{', '.join(cond)}: fixed without a tolerance ({shown}), so every fitted part and derived "
+                    f"value is conditional on it — give the tolerance, e.g. --fix {cond[0]}=…±10%, to include it")
+    if ident.chi2_red > _chi2_limit(dof):
+        warn.append(f"fit: the residuals are {math.sqrt(ident.chi2_red):.2g}× the noise (χ²ᵣ = {ident.chi2_red:.3g} "
+                    f"on {dof} degrees of freedom), so the model does not describe these data fully; every fit "
+                    "uncertainty is scaled by that factor (Birge ratio) — check for losses the model lacks "
+                    "(core loss, an uneven drive) and read the values with care")
+    total = replace(ident, cov_log=total_log_covariance(ident, specs, sens))
+    inputs = {n: {**sp.fixed.to_dict(), "role": sp.role, "unit": sp.unit} for n, sp in specs.items()}
+    adequacy = {"chi2_red": ident.chi2_red, "dof": dof, "birge_ratio": math.sqrt(max(ident.chi2_red, 0.0)),
+                "chi2_red_limit": _chi2_limit(dof)}
     return FitResult(file=source_name(cap), model=MODEL_NAME, method=method, parameters=params,
-                     derived=derived, correlations=correlations(ident),
+                     derived=derived, correlations=correlations(total),
                      quality=quality, warnings=tuple(warn), curves=curves, success=success,
-                     message=message)
+                     message=message, inputs=inputs, conditional_on=cond, adequacy=adequacy)
+
+
+def _chi2_limit(dof: int) -> float:
+    """χ²_red above which residual structure beyond noise is declared: the 99.9 % point of χ²/ν."""
+    from scipy.stats import chi2
+
+    return float(chi2.ppf(0.999, dof) / dof)
+
+
+def _figure_function(values: Mapping[str, float], names: tuple[str, ...], keys: tuple[str, ...]):
+    def figures(z: np.ndarray, over: Mapping[str, float] | None = None) -> np.ndarray:
+        v = {n: values[n] for n in PARAMETER_NAMES}
+        v.update({n: float(math.exp(x)) for n, x in zip(names, z) if n in PARAMETER_NAMES})
+        if over:
+            v.update({k: x for k, x in over.items() if k in PARAMETER_NAMES})
+        fig = second_order(LowpassParts(**v))
+        fig["series_loss_ohm"] = v["Rs"] + v["Resr"]
+        return np.array([fig[k] for k in keys])
+    return figures
+
+
+def _derived_budgets(values, derived, ident, specs, sens, dof):
+    """Add the inputs' rows to every derived value that has a fit uncertainty."""
+    keys = tuple(derived)
+    names = ident.names
+    x = np.array([math.log(values[n]) if n in PARAMETER_NAMES else float(values[n]) for n in names])
+    figures = _figure_function(values, names, keys)
+    base = figures(x)
+    grad = numeric_jacobian(figures, x, step=1e-6) if x.size else np.zeros((len(keys), 0))
+    direct: dict[str, np.ndarray] = {}
+    for key, spec in specs.items():
+        if key not in PARAMETER_NAMES or spec.u is None:
+            continue
+        phi = float(values.get(key, spec.fixed.value))
+        h = 1e-6 * (abs(phi) if phi else math.sqrt(values["L"] / values["C"]))
+        lo = max(phi - h, 0.0) if phi - h <= 0 else phi - h
+        direct[key] = (figures(x, {key: phi + h}) - figures(x, {key: lo})) / (phi + h - lo)
+    out = {}
+    for i, name in enumerate(keys):
+        dv = derived[name]
+        if dv.stderr is None or dv.value is None:
+            out[name] = dv
+            continue
+        g = grad[:, :][i] if grad.size else np.zeros(0)
+        unit = _DERIVED_UNITS.get(name, "")
+        b = derived_budget(name, float(base[i]), unit, dv.stderr, g, {k: float(v[i]) for k, v in direct.items()},
+                           ident, specs, sens, dof)
+        out[name] = DerivedValue(dv.value, b.u, dv.stderr, b, b.conditional_on)
+    return out
+
+
+_DERIVED_UNITS = {"resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "q_factor": "1",
+                  "damped_frequency_hz": "Hz", "decay_rate_per_s": "1/s", "series_loss_ohm": "ohm"}
+
+
+def _series_loss(values, ident, cov_local, specs, sens, dof) -> DerivedValue:
+    """Rs + Resr, the total series loss that the data do determine when they cannot split it."""
+    names = ident.names
+    total = values["Rs"] + values["Resr"]
+    g = np.zeros(len(names))
+    if "Rs" in names:
+        g[names.index("Rs")] = values["Rs"]
+    if "Resr" in names:
+        g[names.index("Resr")] = values["Resr"]
+    var = float(g @ cov_local @ g) if g.size else 0.0
+    return DerivedValue(total, math.sqrt(max(var, 0.0)))
 
 
 def quality_complex(measured: np.ndarray, model: np.ndarray) -> FitQuality:
@@ -315,7 +465,9 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
     where = source_name(cap)
     if method not in get_args(MethodOption):
         raise FitError(f"method {method!r}: unknown — use one of {', '.join(get_args(MethodOption))}")
-    fix_d, guess_d = check_parts(fix, guess, where)
+    fix_specs = {n: as_fixed(v) for n, v in (fix or {}).items()}
+    fix_d, guess_d = check_parts({n: fv.value for n, fv in fix_specs.items()}, guess, where)
+    fix_specs = {n: fix_specs[n] for n in fix_d}
     if drive_duty is not None and not (0.0 < float(drive_duty) < 1.0):
         raise FitError(f"--drive-duty {drive_duty!r}: the duty cycle must be between 0 and 1 "
                        "(high time / period) — pass e.g. --drive-duty 0.5")
@@ -326,7 +478,7 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
             raise FitError(f"{where}: two-channel fitting needs the drive and the output, but the "
                            "capture has one channel — use --method one-channel")
         di, ri = pick_channels(cap, drive, response)
-        return _two_channel(cap, di, ri, fix_d, guess_d, time_domain)
+        return _two_channel(cap, di, ri, fix_d, guess_d, time_domain, fix_specs)
     from benchfit.fit.onechannel import fit_one_channel
 
     if response is not None:
@@ -340,11 +492,30 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
         ri = 0
     else:
         ri = pick_channels(cap, drive, None)[1]
-    return fit_one_channel(cap, ri, fix_d, guess_d, drive_duty)
+    return fit_one_channel(cap, ri, fix_d, guess_d, drive_duty, fix_specs)
+
+
+def channel_gain_ratio(cap, di: int, ri: int) -> tuple[FixedValue, str | None]:
+    """The output/drive gain ratio of the two inputs: 1 with its uncertainty, and a note.
+
+    Both channels calibrated in volts with a stated gain uncertainty: u = √(u_d² + u_o²)
+    (normal). Otherwise the stated default (±3 % rectangular,
+    :data:`benchfit.uncertainty.DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL`).
+    """
+    cal = cap.calibration
+    gu = cal.gain_u_rel
+    if (cal.gain_v_per_fs is not None and gu is not None and max(di, ri) < len(gu)
+            and cap.units[di] == cap.units[ri] == "V"):
+        u = math.hypot(gu[di], gu[ri])
+        return FixedValue(1.0, u, "normal", f"u = {100 * u:.2g} %",
+                          f"calibration profile {cal.profile or 'unnamed'}"), None
+    half = DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL
+    return FixedValue(1.0, half, "rectangular", f"±{100 * half:g} %",
+                      "stated default for unmatched inputs (from memory)"), DEFAULT_CHANNEL_RATIO_NOTE
 
 
 def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, float],
-                 time_domain: bool) -> FitResult:
+                 time_domain: bool, fix_specs: Mapping[str, FixedValue] | None = None) -> FitResult:
     from benchfit.measurement.tone import fit_harmonics, fit_tone
 
     where = source_name(cap)
@@ -395,16 +566,22 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                                0.0))
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return whiten(w, hk - transfer(fk, _parts(v)))
+        return whiten(w, hk - v.get("gain_ratio", 1.0) * transfer(fk, _parts(v)))
 
+    ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
     start = start_parts(w0, q, b0, fix, guess)
-    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix)
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, {**fix, "gain_ratio": 1.0})
+    fixed.pop("gain_ratio", None)
     if cap.units[di] != cap.units[ri] or "FS" in (cap.units[di], cap.units[ri]):
         warnings = list(warnings) + [
             f"{cap.channel_names[ri]}: drive and output are not both calibrated in volts "
             f"({cap.units[di]}, {cap.units[ri]}), so a gain difference between the inputs looks like "
             "loss in the load — calibrate the inputs, or fix Rload (--fix Rload=…)"]
+    if ratio_note:
+        warnings = list(warnings) + [ratio_note]
+    specs = input_specs(fix_specs or {}, fixed, folded, ratio)
+    sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
     h_model = transfer(fk, _parts(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs
@@ -415,12 +592,14 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                        residual=np.concatenate([(hk - h_model).real, (hk - h_model).imag]))
     quality = quality_complex(hk, h_model)
     if time_domain:
-        values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality = _time_domain(
+        values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality, td_res = _time_domain(
             x, y, fs, values, fixed, fix, hy.sigma, curves)
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
+        specs = input_specs(fix_specs or {}, fixed, folded, ratio)
+        sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
     return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                    alts)
+                    alts, specs, sens)
 
 
 def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],
@@ -462,10 +641,15 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
     start, _, fixed0, _, _, _, _, _ = solve(residual, start, fix)
     curves = FitCurves(harmonic_hz=fk, h_measured=h, h_measured_u=u)
     sigma = 1e-3 * float(np.std(y))  # scales χ² only; the covariance is rescaled by χ²_red
-    values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality = _time_domain(
+    values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality, td_res = _time_domain(
         x, y, fs, start, dict(fix), fix, sigma, curves)
+    ratio, ratio_note = channel_gain_ratio(cap, di, cap.n_channels - 1 - di if cap.n_channels == 2 else di)
+    if ratio_note:
+        warnings = list(warnings) + [ratio_note]
+    specs = input_specs({}, fixed, folded, ratio)
+    sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
     return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                    alts)
+                    alts, specs, sens)
 
 
 def noise_rescaled(h, x: np.ndarray, fs: float):
@@ -525,7 +709,7 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
 
     def model(v: dict[str, float]) -> np.ndarray:
         p = _parts(v)
-        sim = simulate(x, fs, p)
+        sim = v.get("gain_ratio", 1.0) * simulate(x, fs, p)
         basis = free_response_basis(p, fs, n)
         design = np.stack([np.ones(n), basis[0], basis[1]], axis=1)
         coef, *_ = np.linalg.lstsq(design, y - sim, rcond=None)
@@ -542,5 +726,5 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
                        harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
                        h_model=transfer(curves.harmonic_hz, _parts(values)),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
-    folded = [k for k in fixed if k not in user_fix and fixed[k] == 0.0]
-    return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym)
+    folded = [k for k in fixed if k not in user_fix and k in PARAMETER_NAMES]  # undetermined, held at 0
+    return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual

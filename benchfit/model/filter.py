@@ -92,9 +92,12 @@ def second_order(p: LowpassParts) -> dict[str, float]:
     Returns
     -------
     dict
-        ``resonant_frequency_hz`` (√(a0/a2)/2π), ``q_factor`` (√(a0·a2)/a1),
-        ``decay_rate_per_s`` (α = a1/(2·a2), in 1/s) and ``damped_frequency_hz``
-        (√(ω0² − α²)/2π, NaN when the circuit is not underdamped, Q ≤ 0.5).
+        ``resonant_frequency_hz`` (1/(2π√(LC)), the L-C resonance as DESIGN.md defines it),
+        ``natural_frequency_hz`` (√(a0/a2)/2π, the loaded circuit's undamped natural
+        frequency: higher than the L-C resonance by √((1 + Rs/Rload)/(1 + Resr/Rload))),
+        ``q_factor`` (√(a0·a2)/a1), ``decay_rate_per_s`` (α = a1/(2·a2), in 1/s) and
+        ``damped_frequency_hz`` (√(ω0² − α²)/2π with ω0 the natural frequency, NaN when the
+        circuit is not underdamped, Q ≤ 0.5).
     """
     _, a = coefficients(p)
     a2, a1, a0 = (float(v) for v in a)
@@ -102,7 +105,8 @@ def second_order(p: LowpassParts) -> dict[str, float]:
     alpha = a1 / (2.0 * a2)
     wd2 = w0 * w0 - alpha * alpha
     return {
-        "resonant_frequency_hz": w0 / (2 * math.pi),
+        "resonant_frequency_hz": 1.0 / (2 * math.pi * math.sqrt(p.L * p.C)),
+        "natural_frequency_hz": w0 / (2 * math.pi),
         "q_factor": math.sqrt(a0 * a2) / a1,
         "damped_frequency_hz": math.sqrt(wd2) / (2 * math.pi) if wd2 > 0 else math.nan,
         "decay_rate_per_s": alpha,
