@@ -138,9 +138,10 @@ def _measured_value(limit: Limit, measured: Sequence[Mapping[str, Any]]) -> dict
             if u is not None:
                 break
         return {"value": value, "u": u, "file": m["file"], "channel": ch["name"],
-                "unit": quantity_unit(limit.quantity, ch["unit"]), "reason": ""}
+                "unit": quantity_unit(limit.quantity, ch["unit"]), "reason": "",
+                "budget": (ch.get("budget") or {}).get(limit.quantity)}
     return {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit,
-            "reason": "; ".join(reasons) or "no capture measured"}
+            "reason": "; ".join(reasons) or "no capture measured", "budget": None}
 
 
 def _fitted_value(limit: Limit, fits: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
@@ -152,9 +153,10 @@ def _fitted_value(limit: Limit, fits: Sequence[Mapping[str, Any]]) -> dict[str, 
             reasons.append(f"{f['file']}: {limit.quantity} not given by the {f['model']} fit")
             continue
         return {"value": item["value"], "u": item.get("stderr"), "file": f["file"], "channel": None,
-                "unit": limit.unit, "reason": ""}
+                "unit": limit.unit, "reason": "", "budget": item.get("budget")}
     return {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit,
-            "reason": "; ".join(reasons) or "no fit made — give fit options or check the fit errors"}
+            "reason": "; ".join(reasons) or "no fit made — give fit options or check the fit errors",
+            "budget": None}
 
 
 def _judge(limit: Limit, picked: dict[str, Any], rule: str) -> dict[str, Any]:
