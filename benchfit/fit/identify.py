@@ -27,7 +27,7 @@ from typing import Callable, Mapping
 
 import numpy as np
 
-from benchfit.model.filter import PARAMETER_NAMES, LowpassParts, second_order
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, LowpassParts, second_order
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitParameter
 
 __all__ = ["Identification", "identify", "fit_log_parameters", "numeric_jacobian",
@@ -187,7 +187,7 @@ def parameter_table(values: Mapping[str, float], ident: Identification,
                     fixed: Mapping[str, float]) -> dict[str, FitParameter]:
     """FitParameter for every model part: fixed, fitted (with stderr), or not determined."""
     out: dict[str, FitParameter] = {}
-    for name in PARAMETER_NAMES:
+    for name in PARAMETER_NAMES + (("Rp",) if "Rp" in values or "Rp" in fixed else ()):
         unit = PARAMETER_UNITS[name]
         if name in fixed:
             out[name] = FitParameter(float(fixed[name]), None, True, unit)
@@ -211,7 +211,7 @@ def correlations(ident: Identification) -> dict[str, float]:
         for j in range(i + 1, len(names)):
             if names[i] in ident.undetermined or names[j] in ident.undetermined:
                 continue
-            if names[i] not in PARAMETER_NAMES or names[j] not in PARAMETER_NAMES:
+            if names[i] not in PART_NAMES or names[j] not in PART_NAMES:
                 continue
             if d[i] > 0 and d[j] > 0:
                 out[f"{names[i]},{names[j]}"] = float(ident.cov_log[i, j] / (d[i] * d[j]))
@@ -222,14 +222,14 @@ def derived_values(values: Mapping[str, float], ident: Identification) -> dict[s
     """Resonance figures with delta-method uncertainties (None when not determined)."""
 
     def figures(z: np.ndarray) -> np.ndarray:
-        v = {n: values[n] for n in PARAMETER_NAMES}
-        v.update({n: float(math.exp(x)) for n, x in zip(ident.names, z) if n in PARAMETER_NAMES})
+        v = {n: values[n] for n in PART_NAMES if n in values}
+        v.update({n: float(math.exp(x)) for n, x in zip(ident.names, z) if n in PART_NAMES})
         fig = second_order(LowpassParts(**v))
         return np.array([fig[k] for k in DERIVED_NAMES])
 
     # parts enter as logarithms, extras (duty, phase) as themselves; the latter do not move
     # the resonance figures
-    x = np.array([math.log(values[n]) if n in PARAMETER_NAMES else float(values[n])
+    x = np.array([math.log(values[n]) if n in PART_NAMES else float(values[n])
                   for n in ident.names])
     base = figures(x)
     grad = numeric_jacobian(figures, x, step=1e-6) if x.size else np.zeros((base.size, 0))
@@ -263,7 +263,7 @@ def derived_values(values: Mapping[str, float], ident: Identification) -> dict[s
 
 def undetermined_warning(undetermined: tuple[str, ...], high_impedance: bool) -> list[str]:
     """One-line warnings that say which part to measure and fix."""
-    und = [n for n in PARAMETER_NAMES if n in set(undetermined)]
+    und = [n for n in PART_NAMES if n in set(undetermined)]
     msgs: list[str] = []
     if "L" in und and "C" in und:
         combos = "L·C, Rs·C and Resr·C" if high_impedance else "L·C and the resistances relative to √(L/C)"
@@ -285,7 +285,8 @@ def display_unit(name: str) -> str:
 
 
 def solve(residual, start: dict[str, float], fix: Mapping[str, float],
-          extra: Mapping[str, tuple[float, float, float]] | None = None):
+          extra: Mapping[str, tuple[float, float, float]] | None = None,
+          parts: tuple[str, ...] = PARAMETER_NAMES):
     """Fit the free parts (and extras); fold an undetermined ESR into Rs and refit; look for a
     second, equally good solution.
 
@@ -302,7 +303,7 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
     scale_known = bool({"L", "C", "Rs", "Rload"} & set(fix)) or fix.get("Resr", 0.0) > 0.0
     pin = "L" if not scale_known else None
     while True:
-        free = tuple(n for n in PARAMETER_NAMES if n not in fixed and n != pin)
+        free = tuple(n for n in parts if n not in fixed and n != pin)
         pinned = {**fixed, pin: start[pin]} if pin else fixed
         values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, pinned, extra)
         if pin:
@@ -396,7 +397,7 @@ def _unpinned_jacobian(residual, values, pin, names, extra):
 def _distinct(a: Mapping[str, float], b: Mapping[str, float], ident: Identification) -> bool:
     """True when two solutions differ by more than 3 standard errors (or 5 %) in some part."""
     for j, n in enumerate(ident.names):
-        if n not in PARAMETER_NAMES:
+        if n not in PART_NAMES:
             continue
         sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
         if abs(math.log(a[n]) - math.log(b[n])) > max(3 * sd, 0.05):
@@ -416,7 +417,7 @@ def ambiguity(values: Mapping[str, float], ident: Identification,
     bad: list[str] = []
     cov = ident.cov_log.copy()
     for j, n in enumerate(ident.names):
-        if n not in PARAMETER_NAMES:
+        if n not in PART_NAMES:
             continue
         sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
         spread = max(abs(math.log(a[n]) - math.log(values[n])) for a in alternatives)

@@ -39,7 +39,7 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import (PARAMETER_NAMES, LowpassParts, free_response_basis, second_order,
+from benchfit.model.filter import (PARAMETER_NAMES, PART_NAMES, LowpassParts, free_response_basis, second_order,
                                    simulate, transfer)
 from benchfit.fit.identify import (DERIVED_NAMES, Identification, ambiguity, correlations, derived_values,
                                    display_unit, numeric_jacobian, parameter_table, solve,
@@ -88,7 +88,7 @@ def check_parts(fix: Mapping[str, float] | None, guess: Mapping[str, float] | No
     for option, parts in (("--fix", fix), ("--guess", guess)):
         clean: dict[str, float] = {}
         for name, value in (parts or {}).items():
-            if name not in PARAMETER_NAMES:
+            if name not in PART_NAMES:
                 raise FitError(f"{option} {name}: unknown part {name!r} — use one of "
                                f"{', '.join(PARAMETER_NAMES)}")
             v = float(value)
@@ -236,7 +236,7 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
     z0 = math.sqrt(values["L"] / values["C"])
     high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
     named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
-    und_plain = tuple(n for n in ident.undetermined if n not in named and n in PARAMETER_NAMES)
+    und_plain = tuple(n for n in ident.undetermined if n not in named and n in PART_NAMES)
     if amb_warn and und_plain and not {"L", "C"} <= set(und_plain):
         # these move together with the parts of the other solution: fixing the load settles them
         amb_warn.append(f"{', '.join(und_plain)}: not determined by these data either (they shift "
@@ -300,10 +300,10 @@ def _chi2_limit(dof: int) -> float:
 
 def _figure_function(values: Mapping[str, float], names: tuple[str, ...], keys: tuple[str, ...]):
     def figures(z: np.ndarray, over: Mapping[str, float] | None = None) -> np.ndarray:
-        v = {n: values[n] for n in PARAMETER_NAMES}
-        v.update({n: float(math.exp(x)) for n, x in zip(names, z) if n in PARAMETER_NAMES})
+        v = {n: values[n] for n in PART_NAMES if n in values}
+        v.update({n: float(math.exp(x)) for n, x in zip(names, z) if n in PART_NAMES})
         if over:
-            v.update({k: x for k, x in over.items() if k in PARAMETER_NAMES})
+            v.update({k: x for k, x in over.items() if k in PART_NAMES})
         fig = second_order(LowpassParts(**v))
         fig["series_loss_ohm"] = v["Rs"] + v["Resr"]
         return np.array([fig[k] for k in keys])
@@ -314,13 +314,13 @@ def _derived_budgets(values, derived, ident, specs, sens, dof):
     """Add the inputs' rows to every derived value that has a fit uncertainty."""
     keys = tuple(derived)
     names = ident.names
-    x = np.array([math.log(values[n]) if n in PARAMETER_NAMES else float(values[n]) for n in names])
+    x = np.array([math.log(values[n]) if n in PART_NAMES else float(values[n]) for n in names])
     figures = _figure_function(values, names, keys)
     base = figures(x)
     grad = numeric_jacobian(figures, x, step=1e-6) if x.size else np.zeros((len(keys), 0))
     direct: dict[str, np.ndarray] = {}
     for key, spec in specs.items():
-        if key not in PARAMETER_NAMES or spec.u is None:
+        if key not in PART_NAMES or spec.u is None:
             continue
         phi = float(values.get(key, spec.fixed.value))
         h = 1e-6 * (abs(phi) if phi else math.sqrt(values["L"] / values["C"]))
@@ -571,7 +571,14 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
     start = start_parts(w0, q, b0, fix, guess)
-    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, {**fix, "gain_ratio": 1.0})
+    fix_g = {**fix, "gain_ratio": 1.0}
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix_g)
+    comparison = None
+    if "Rp" not in fix:
+        comparison, chosen = compare_core_loss(residual, values, ident, fixed, fix_g)
+        if chosen is not None:
+            values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, chosen, fix_g, parts=PART_NAMES)
+            warnings = list(warnings) + [comparison["note"]]
     fixed.pop("gain_ratio", None)
     if cap.units[di] != cap.units[ri] or "FS" in (cap.units[di], cap.units[ri]):
         warnings = list(warnings) + [
@@ -598,8 +605,69 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         warnings = warnings + [m for m in warn2 if m not in warnings]
         specs = input_specs(fix_specs or {}, fixed, folded, ratio)
         sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
-    return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                    alts, specs, sens)
+    result = assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
+                      alts, specs, sens)
+    if comparison is not None:
+        from dataclasses import replace
+
+        result = replace(result, adequacy={**result.adequacy,
+                                           "model_comparison": {k: v for k, v in comparison.items() if k != "note"}})
+    return result
+
+
+def compare_core_loss(residual, values: Mapping[str, float], ident: Identification,
+                      fixed: Mapping[str, float], fix: Mapping[str, float]):
+    """Does a core loss (Rp across L) explain the data better? F-test and AIC/BIC.
+
+    The base fit (no Rp) and fits with Rp free from two starts (Rp = 10 and 100 × ω0·L)
+    are compared on their χ² (whitened residuals): F = (χ²₀ − χ²₁)/(χ²₁/(n − p₁)) with one
+    extra parameter (plus the ESR when the base fit had to hold it), p from F(Δp, n − p₁)
+    (the extra-sum-of-squares F-test, e.g. Bates & Watts, *Nonlinear Regression Analysis*,
+    from memory); AIC = χ² + 2p and BIC = χ² + p·ln n on the same χ². The core-loss model is
+    chosen when p < 0.001 and its Rp is a finite, positive value.
+
+    Returns (summary dict, start values of the chosen core-loss model or None).
+    """
+    from scipy.stats import f as f_dist
+
+    from benchfit.fit.identify import fit_log_parameters
+
+    r0 = residual(dict(values))
+    n = r0.size
+    chi0 = float(r0 @ r0)
+    p0 = len(ident.names)
+    base_fixed = {k: v for k, v in fixed.items() if k in fix or k == "gain_ratio"}
+    free = tuple(k for k in PART_NAMES if k not in base_fixed and k in values or k == "Rp")
+    free = tuple(k for k in free if k not in base_fixed)
+    w0l = values["L"] / math.sqrt(values["L"] * values["C"])
+    best = None
+    for m in (10.0, 100.0):
+        st = {k: (v if v > 0 else 1e-3 * math.sqrt(values["L"] / values["C"])) for k, v in values.items()}
+        st["Rp"] = m * w0l
+        try:
+            v1, names1, _, chi2r1, ok1, _ = fit_log_parameters(residual, st, free, base_fixed, None, max_nfev=1500)
+        except Exception:  # a start that fails to converge is skipped, others remain
+            continue
+        chi1 = chi2r1 * max(n - len(names1), 1)
+        if best is None or chi1 < best[0]:
+            best = (chi1, v1, len(names1))
+    if best is None:
+        return None, None
+    chi1, v1, p1 = best
+    dp = max(p1 - p0, 1)
+    dof1 = max(n - p1, 1)
+    fstat = max(chi0 - chi1, 0.0) / dp / max(chi1 / dof1, 1e-300)
+    pval = float(f_dist.sf(fstat, dp, dof1))
+    summary = {"models": ["lc-lowpass", "lc-lowpass + core loss Rp"], "chi2": [chi0, chi1], "n_params": [p0, p1],
+               "n_points": n, "aic": [chi0 + 2 * p0, chi1 + 2 * p1],
+               "bic": [chi0 + p0 * math.log(n), chi1 + p1 * math.log(n)], "f_statistic": fstat, "p_value": pval}
+    rp = v1.get("Rp", math.inf)
+    chosen = pval < 1e-3 and math.isfinite(rp) and rp > 0
+    summary["chosen"] = summary["models"][1 if chosen else 0]
+    summary["note"] = (f"core loss: the data support a resistance across L (F-test p = {pval:.2g}, ΔAIC = "
+                       f"{summary['aic'][1] - summary['aic'][0]:.3g}, ΔBIC = {summary['bic'][1] - summary['bic'][0]:.3g}); "
+                       "Rp is fitted — the choke's core loss, which a plain model would have called ESR")
+    return summary, (dict(v1) if chosen else None)
 
 
 def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],
@@ -699,7 +767,7 @@ def _subset(h, keep: np.ndarray):
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"])
+    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
 
 
 def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
@@ -726,5 +794,5 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
                        harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
                        h_model=transfer(curves.harmonic_hz, _parts(values)),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
-    folded = [k for k in fixed if k not in user_fix and k in PARAMETER_NAMES]  # undetermined, held at 0
+    folded = [k for k in fixed if k not in user_fix and k in PART_NAMES]  # undetermined, held at 0
     return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual

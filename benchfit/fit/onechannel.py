@@ -49,7 +49,7 @@ _U_FLOOR_REL = 1e-7
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"])
+    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
 
 
 def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,

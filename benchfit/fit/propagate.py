@@ -31,7 +31,7 @@ import numpy as np
 
 from benchfit.fit.identify import Identification, numeric_jacobian
 from benchfit.fit.tolerance import FixedValue
-from benchfit.model.filter import PARAMETER_NAMES
+from benchfit.model.filter import PART_NAMES
 from benchfit.uncertainty import Budget, Contribution
 
 __all__ = ["InputSpec", "input_sensitivities", "total_log_covariance", "part_budget", "derived_budget",
@@ -56,7 +56,7 @@ class InputSpec:
 def _values_with(values: Mapping[str, float], names: tuple[str, ...], z: np.ndarray) -> dict[str, float]:
     v = dict(values)
     for n, x in zip(names, z):
-        v[n] = float(math.exp(x)) if n in PARAMETER_NAMES else float(x)
+        v[n] = float(math.exp(x)) if n in PART_NAMES else float(x)
     return v
 
 
@@ -71,7 +71,7 @@ def input_sensitivities(residual: Callable[[dict[str, float]], np.ndarray], valu
     names = ident.names
     if not names or not inputs:
         return {k: np.zeros(len(names)) for k in inputs}
-    x = np.array([math.log(values[n]) if n in PARAMETER_NAMES else float(values[n]) for n in names])
+    x = np.array([math.log(values[n]) if n in PART_NAMES else float(values[n]) for n in names])
     jac = numeric_jacobian(lambda z: residual(_values_with(values, names, z)), x)
     pinv = ident.cov_log / max(ident.chi2_red, 1e-300)
     out: dict[str, np.ndarray] = {}
@@ -80,7 +80,7 @@ def input_sensitivities(residual: Callable[[dict[str, float]], np.ndarray], valu
         h = 1e-6 * (abs(phi) if phi != 0 else float(scale.get(key, 1.0)))
         lo, hi = dict(values), dict(values)
         lo[key], hi[key] = phi - h, phi + h
-        if key in PARAMETER_NAMES and phi - h <= 0:  # a part at (or near) zero: one-sided difference
+        if key in PART_NAMES and phi - h <= 0:  # a part at (or near) zero: one-sided difference
             lo[key] = phi
             dr = (residual(hi) - residual(lo)) / h
         else:

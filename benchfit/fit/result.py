@@ -22,7 +22,7 @@ Method = Literal["two-channel", "one-channel", "ringdown"]
 
 #: units of the lc-lowpass model's parameters
 PARAMETER_UNITS: Mapping[str, str] = MappingProxyType(
-    {"L": "H", "C": "F", "Rs": "ohm", "Resr": "ohm", "Rload": "ohm"})
+    {"L": "H", "C": "F", "Rs": "ohm", "Resr": "ohm", "Rload": "ohm", "Rp": "ohm"})
 
 
 def _budget_from(d):
