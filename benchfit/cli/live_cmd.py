@@ -691,14 +691,15 @@ def calibrate_show(
     from benchfit.units import format_with_uncertainty
 
     table = Table(title=escape(f"calibration profiles ({folder})"), title_justify="left", box=None, pad_edge=False)
-    for col in ("profile", "gain (V/FS)", "sample clock", "input coupling τ", "THD floor"):
+    with_dist = any(p.distortion for p in profiles)  # the column only when some profile has it
+    for col in ("profile", "gain (V/FS)", "sample clock", "input coupling τ") + (("THD floor",) if with_dist else ()):
         table.add_column(col)
     for p in profiles:
         gains = "\n".join(_gain_text(g, format_with_uncertainty) for g in p.gains) or "—"
         tb = _ppm_text(p.timebase.ppm, p.timebase.u_ppm) if p.timebase else "—"
         cp = (f"{p.coupling.tau_s * 1e3:.4g} ms" if p.coupling else "—")
-        dist = f"{p.distortion.floor_pct:.3g} %" if p.distortion else "—"
-        table.add_row(escape(p.name), gains, tb, cp, dist)
+        dist = (f"{p.distortion.floor_pct:.3g} %" if p.distortion else "—",) if with_dist else ()
+        table.add_row(escape(p.name), gains, tb, cp, *dist)
     stdout.print(table)
 
 
