@@ -325,11 +325,12 @@ def tune(
             ppm, u_ppm = prof.timebase.ppm, prof.timebase.u_ppm
         if prof.coupling is not None:
             tau = prof.coupling.tau_s
+    tb_note = None
     if u_ppm <= 0:  # no timebase calibration: the stated default, and say so (issue 11)
         from benchfit.uncertainty import DEFAULT_TIMEBASE_NOTE, DEFAULT_TIMEBASE_U_PPM
 
         u_ppm = DEFAULT_TIMEBASE_U_PPM
-        stderr.print(f"note: {DEFAULT_TIMEBASE_NOTE}", markup=False, highlight=False, soft_wrap=True)
+        tb_note = DEFAULT_TIMEBASE_NOTE
     fs_true = r * (1.0 + ppm * 1e-6)
     hop = min(window / 4.0, 0.25)
     plain = plain or json_out
@@ -338,6 +339,8 @@ def tune(
     live_display = None
     try:
         with LiveWindows(rate=r, channels=channel, window_s=window, hop_s=hop, device=_device(device)) as src:
+            if tb_note:  # once the device is open, so a device error stays one line
+                stderr.print(f"note: {tb_note}", markup=False, highlight=False, soft_wrap=True)
             if not plain:
                 from rich.live import Live
 
