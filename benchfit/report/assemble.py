@@ -301,6 +301,31 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
 
 # --- one unit, end to end (I/O) ----------------------------------------------------------
 
+def _with_spec_fixes(options: FitOptions, spec: Spec) -> FitOptions:
+    """Parts the spec's [conditions] hold fixed (``fix_L = "300m±10%"``) unless --fix gave them.
+
+    The value may carry a tolerance (``±10%`` or an absolute ``±5m``, read as rectangular), which
+    the fit propagates into every fitted value; without one the results are conditional on it.
+    """
+    from dataclasses import replace
+
+    from benchfit.fit.tolerance import FixedValue, parse_fixed
+
+    extra: dict[str, Any] = {}
+    for key, value in spec.conditions.items():
+        if not key.startswith("fix_"):
+            continue
+        name = key[4:]
+        if name in options.fix:
+            continue
+        try:
+            fv = parse_fixed(str(value), f"conditions.{key}")
+        except ValueError as e:
+            raise SpecError(f"{spec.path or 'spec'}: {e}") from e
+        extra[name] = FixedValue(fv.value, fv.half_width, fv.distribution, fv.text, f"spec [conditions] {key}")
+    return replace(options, fix={**options.fix, **extra}) if extra else options
+
+
 def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
     """``benchfit.fit_lowpass`` or ``benchfit.fit_ringdown`` and the keyword options it accepts.
 
@@ -406,6 +431,8 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     if not unit or not unit.strip():
         raise SpecError("--unit: the serial is empty — give the unit's serial, e.g. --unit HC-07")
     fit_opts = fit if fit is not None else (FitOptions() if sp.needs_fit else None)
+    if fit_opts is not None:
+        fit_opts = _with_spec_fixes(fit_opts, sp)
     fit_fn, fit_kwargs = _fit_call(fit_opts) if fit_opts is not None else (None, {})
     left, found = [], []
     for paths, group in ((captures, left), (as_found, found)):

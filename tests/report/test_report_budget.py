@@ -32,3 +32,20 @@ def test_budget_rows_follow_the_results_and_name_the_uncalibrated_clock():
     assert html.count('class="budget-row"') >= 1
     assert "timebase (not calibrated: stated default)" in html
     assert any("timebase not calibrated" in w for w in rep["warnings"])
+
+
+def test_spec_conditions_fix_parts_with_their_tolerance(monkeypatch):
+    # [conditions] fix_L = "300m±10%" reaches the fit as a FixedValue; --fix wins over the spec
+    from benchfit.fit.tolerance import FixedValue
+    from benchfit.report.assemble import FitOptions, _with_spec_fixes
+    from benchfit.report.spec import parse_spec
+
+    import tomllib
+
+    sp = parse_spec(tomllib.loads('[spec]\nname = "t"\n[conditions]\nfix_L = "300m±10%"\nfix_Rload = "10k"\n'
+                                  '[[limit]]\nquantity = "resonant_frequency_hz"\nnominal = 50.0\n'
+                                  'tolerance = 1.0\n'), "t.toml")
+    opts = _with_spec_fixes(FitOptions(fix={"Rload": FixedValue(9.9e3, 99.0)}), sp)
+    assert opts.fix["L"].value == pytest.approx(0.3) and opts.fix["L"].half_width == pytest.approx(0.03)
+    assert "spec [conditions]" in opts.fix["L"].source
+    assert opts.fix["Rload"].value == 9.9e3  # the command line's value is kept
