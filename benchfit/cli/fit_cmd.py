@@ -134,7 +134,18 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     r2 = "—" if q["r_squared"] is None else f"{q['r_squared']:.6f}"
     console.print(f"fit quality   NRMSE {nrmse}, R² {r2}, {q['n_points']} points", markup=False,
                   highlight=False)
-    console.print("± values are standard uncertainties (k = 1)", markup=False, highlight=False)
+    adq = d.get("adequacy") or {}
+    if adq.get("chi2_red") is not None:
+        line = (f"model check   χ²ᵣ = {adq['chi2_red']:.3g} on {adq.get('dof')} degrees of freedom "
+                f"(fit uncertainties scaled by √χ²ᵣ; above {adq.get('chi2_red_limit', 0):.3g} the residuals show "
+                "structure beyond noise)")
+        mc = adq.get("model_comparison")
+        if mc:
+            line += (f"; core loss Rp: F-test p = {mc['p_value']:.2g}, ΔAIC = {mc['aic'][1] - mc['aic'][0]:.3g} "
+                     f"→ {mc['chosen']}")
+        console.print(line, markup=False, highlight=False, soft_wrap=True)
+    console.print("± values are combined standard uncertainties (k = 1); budget rows in --json",
+                  markup=False, highlight=False)
     if note:
         console.print(f"note: {note}", markup=False, highlight=False, soft_wrap=True)
     from rich.markup import escape
@@ -222,7 +233,7 @@ def fit_command(
         fail(f"{plot}: is a folder — give --plot a file name ending in .svg or .png")
     if plot is not None and plot.exists() and not overwrite:  # checked before the (slow) fit
         fail(f"{plot}: file exists — choose another --plot or add --overwrite")
-    names = ("L", "C", "Rs", "Resr", "Rload")
+    names = ("L", "C", "Rs", "Resr", "Rload", "Rp")
     fixed = parse_fix_options(fix, names)
     guessed = parse_assignments(guess, names, "--guess")
     duty = None
