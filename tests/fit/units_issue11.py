@@ -15,6 +15,8 @@ Cases (issue 11):
   channel's gain 2.5 % low (the scope's per-channel gain error).
 * ``sound-card`` — output only, through an AC-coupled input (τ = 50 ms, known from the
   profile), 16-bit full scale, FS units; L ± 10 %, drive duty given.
+* ``asymmetric-output-only`` — the asymmetric timer of ``asymmetric-drive`` captured like
+  ``sound-card`` (output only): the one-channel model's ideal rectangular drive is wrong here.
 """
 
 from __future__ import annotations
@@ -47,6 +49,7 @@ CASES = {
     "asymmetric-drive": Case("asymmetric-drive", Unit(r_high=25.0, r_low=8.0, Resr=1.5)),
     "scope-8bit": Case("scope-8bit", Unit()),
     "sound-card": Case("sound-card", Unit(), edge=2e-6),
+    "asymmetric-output-only": Case("asymmetric-output-only", Unit(r_high=25.0, r_low=8.0, Resr=1.5), edge=2e-6),
 }
 
 
@@ -54,11 +57,14 @@ def simulate(tmp_path, case: Case):
     return simulate_unit(tmp_path, case.unit, edge=case.edge, keep=KEEP, tag=case.name)
 
 
-def truth(u: Unit) -> dict[str, float]:
-    p = LowpassParts(u.L, u.C, u.Rs, u.Resr, u.Rload, u.Rp if u.Rp is not None else math.inf)
-    out = {"L": u.L, "C": u.C, "Rs": u.Rs, "Resr": u.Resr, "Rload": u.Rload,
+def truth(u: Unit, output_only: bool = False, duty: float = 0.52) -> dict[str, float]:
+    """The true parts and figures. With the drive not measured (output only), Rs holds the timer's
+    output resistance too (DESIGN.md, model "lc-lowpass"): its time average D·R_high + (1 − D)·R_low."""
+    rs = u.Rs + (duty * u.r_high + (1 - duty) * u.r_low if output_only else 0.0)
+    p = LowpassParts(u.L, u.C, rs, u.Resr, u.Rload, u.Rp if u.Rp is not None else math.inf)
+    out = {"L": u.L, "C": u.C, "Rs": rs, "Resr": u.Resr, "Rload": u.Rload,
            "Rp": u.Rp if u.Rp is not None else math.inf, **second_order(p)}
-    out["series_loss_ohm"] = u.Rs + u.Resr
+    out["series_loss_ohm"] = rs + u.Resr
     return out
 
 
@@ -66,7 +72,7 @@ def capture_and_fix(case: Case, drive: np.ndarray, out: np.ndarray, seed: int):
     """A noisy capture of the simulated unit and the fit options a user would give."""
     rng = np.random.default_rng(seed)
     u = case.unit
-    if case.name == "sound-card":
+    if case.name in ("sound-card", "asymmetric-output-only"):
         from scipy.signal import bilinear, lfilter
 
         tau = 0.05
@@ -119,7 +125,7 @@ def zscores(result, t: dict[str, float]) -> tuple[dict[str, float], list[str]]:
 def run_case(tmp_path, name: str, seeds: range):
     case = CASES[name]
     drive, out = simulate(tmp_path, case)
-    t = truth(case.unit)
+    t = truth(case.unit, output_only=name in ("sound-card", "asymmetric-output-only"))
     rows = []
     for seed in seeds:
         cap, fix, duty = capture_and_fix(case, drive, out, seed)
