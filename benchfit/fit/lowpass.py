@@ -39,7 +39,7 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import PART_NAMES, LowpassParts, free_response_basis, simulate, transfer
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, LowpassParts, free_response_basis, simulate, transfer
 from benchfit.fit.identify import solve
 from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, compare_core_loss,  # noqa: F401
                                   input_specs, propagate, source_name)
