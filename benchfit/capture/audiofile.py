@@ -242,6 +242,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
             timebase_u_ppm=cal["timebase_u_ppm"],
             coupling_tau_s=cal["coupling_tau_s"],
             gain_u_rel=tuple(cal["gain_u_rel"]) if cal.get("gain_u_rel") is not None else None,
+            distortion_floor_pct=cal.get("distortion_floor_pct"),
         )
         for key, value in sidecar.items():  # device, start_utc, counts, recorder's extras
             if key not in ("benchfit_sidecar", "channels", "calibration", "sample_rate_hz"):

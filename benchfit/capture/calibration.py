@@ -57,6 +57,7 @@ __all__ = [
     "ChannelGain",
     "TimebaseCalibration",
     "CouplingCalibration",
+    "DistortionCalibration",
     "CalibrationProfile",
     "GainEstimate",
     "TimebaseEstimate",
@@ -171,6 +172,37 @@ class CouplingCalibration:
 
 
 @dataclass(frozen=True)
+class DistortionCalibration:
+    """The card's own distortion floor: THD_F of a clean loop (output to input) or reference sine.
+
+    Attributes
+    ----------
+    floor_pct : float
+        THD_F (%) of the recording over harmonics 2…``harmonics``; measure budgets every
+        THD with it (± floor, rectangular) instead of treating the card as perfect.
+    u_pct : float
+        Standard uncertainty of ``floor_pct`` from the recording's noise (%).
+    frequency_hz, level_fs : float
+        Test tone frequency (Hz) and its peak level (FS): the floor holds near them.
+    harmonics : int
+        Highest harmonic order used.
+    channel : int
+        Channel it was measured on (1-based).
+    source, measured_utc : str
+        Where and when it was measured.
+    """
+
+    floor_pct: float
+    u_pct: float
+    frequency_hz: float
+    level_fs: float
+    harmonics: int = 10
+    channel: int = 1
+    source: str = ""
+    measured_utc: str = ""
+
+
+@dataclass(frozen=True)
 class CalibrationProfile:
     """A named set of sound-card calibrations; any part may be missing.
 
@@ -188,6 +220,7 @@ class CalibrationProfile:
     gains: tuple[ChannelGain, ...] = ()
     timebase: TimebaseCalibration | None = None
     coupling: CouplingCalibration | None = None
+    distortion: DistortionCalibration | None = None
 
     def gain_of(self, channel: int) -> ChannelGain | None:
         """The gain entry for a 1-based channel number, or None."""
@@ -236,6 +269,7 @@ class CalibrationProfile:
             timebase_ppm=tb.ppm if tb else 0.0,
             timebase_u_ppm=tb.u_ppm if tb else 0.0,
             coupling_tau_s=self.coupling.tau_s if self.coupling else None,
+            distortion_floor_pct=self.distortion.floor_pct if self.distortion else None,
         )
 
     def sidecar_calibration(self, n_channels: int) -> dict[str, Any]:
@@ -250,6 +284,8 @@ class CalibrationProfile:
             out["timebase"] = _drop_empty(asdict(self.timebase))
         if self.coupling is not None:
             out["coupling"] = _drop_empty(asdict(self.coupling))
+        if self.distortion is not None:
+            out["distortion"] = _drop_empty(asdict(self.distortion))
         if self.gains:
             out["gain"] = [_drop_empty(asdict(g)) for g in self.gains]
         return out
@@ -269,11 +305,12 @@ class CalibrationProfile:
             gains = tuple(sorted((_gain_from(d) for d in data.get("gain", [])), key=lambda g: g.channel))
             tb = _timebase_from(data["timebase"]) if "timebase" in data else None
             cp = _coupling_from(data["coupling"]) if "coupling" in data else None
+            dist = _distortion_from(data["distortion"]) if "distortion" in data else None
         except (TypeError, ValueError, KeyError) as e:
             raise CaptureError(f"{where}: {e} — {fix}") from e
         if len({g.channel for g in gains}) != len(gains):
             raise CaptureError(f"{where}: a channel has two [[gain]] entries — {fix}")
-        return cls(name=name, gains=gains, timebase=tb, coupling=cp)
+        return cls(name=name, gains=gains, timebase=tb, coupling=cp, distortion=dist)
 
 
 def _drop_empty(d: dict[str, Any]) -> dict[str, Any]:
@@ -331,6 +368,22 @@ def _timebase_from(d: Any) -> TimebaseCalibration:
                                reference_hz=_number(d, "reference_hz", positive=True),
                                nominal_rate_hz=_number(d, "nominal_rate_hz", positive=True),
                                source=_text(d, "source"), measured_utc=_text(d, "measured_utc"))
+
+
+def _distortion_from(d: Any) -> DistortionCalibration:
+    if not isinstance(d, dict):
+        raise ValueError("[distortion] must be a table")
+    floor = _number(d, "floor_pct", nonneg=True)
+    if floor >= 100:
+        raise ValueError(f"'floor_pct' {floor!r} is implausible (≥ 100 %)")
+    h = d.get("harmonics", 10)
+    if isinstance(h, bool) or not isinstance(h, int) or h < 2:
+        raise ValueError(f"'harmonics' must be a whole number ≥ 2, got {h!r}")
+    return DistortionCalibration(floor_pct=floor, u_pct=_number(d, "u_pct", nonneg=True),
+                                 frequency_hz=_number(d, "frequency_hz", positive=True),
+                                 level_fs=_number(d, "level_fs", positive=True), harmonics=h,
+                                 channel=_channel(d), source=_text(d, "source"),
+                                 measured_utc=_text(d, "measured_utc"))
 
 
 def _coupling_from(d: Any) -> CouplingCalibration:

@@ -108,7 +108,15 @@ class InputCalibration:
         0.3 %; it combines the calibration fit with the reference meter's uncertainty.
         Every level in volts (DC, RMS, amplitude, peak-to-peak) scales with the gain, so
         measure adds ``value · gain_u_rel`` to their uncertainties. None: not known (old
-        profiles and sidecars), and the levels' uncertainties leave the gain out.
+        profiles and sidecars); measure then applies the stated default
+        (:data:`benchfit.uncertainty.DEFAULT_GAIN_U_REL`) and says so.
+    distortion_floor_pct : float or None
+        THD (%) the card itself adds (its own distortion floor, from ``calibrate
+        distortion``); measure budgets it in every THD. None: not measured.
+
+    A timebase with ``timebase_u_ppm == 0`` counts as *not calibrated* (a calibration always
+    has an uncertainty): measure then uses the stated default
+    :data:`benchfit.uncertainty.DEFAULT_TIMEBASE_U_PPM` and warns.
     """
 
     profile: str | None = None
@@ -117,6 +125,19 @@ class InputCalibration:
     timebase_u_ppm: float = 0.0
     coupling_tau_s: float | None = None
     gain_u_rel: tuple[float, ...] | None = None
+    distortion_floor_pct: float | None = None
+
+    @property
+    def timebase_calibrated(self) -> bool:
+        """True when a timebase calibration (with its uncertainty) applies."""
+        return self.timebase_u_ppm > 0.0
+
+    @property
+    def timebase_u_ppm_effective(self) -> float:
+        """The calibration's u (ppm), or the stated default for an uncalibrated clock."""
+        from benchfit.uncertainty import DEFAULT_TIMEBASE_U_PPM
+
+        return self.timebase_u_ppm if self.timebase_calibrated else DEFAULT_TIMEBASE_U_PPM
 
     def to_dict(self) -> dict[str, Any]:
         """The sidecar's ``calibration`` object.
@@ -134,6 +155,8 @@ class InputCalibration:
         }
         if self.gain_u_rel is not None:
             out["gain_u_rel"] = list(self.gain_u_rel)
+        if self.distortion_floor_pct is not None:
+            out["distortion_floor_pct"] = self.distortion_floor_pct
         return out
 
 

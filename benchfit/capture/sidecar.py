@@ -22,6 +22,9 @@ Optional keys:
   reference meter combined. Absent or null: not known (profiles made before benchfit
   stored it); levels in volts then carry only their noise uncertainty and measure says
   "gain uncertainty not known".
+* ``calibration.distortion_floor_pct`` — THD (%) of the card's own loop (output to input,
+  or a clean reference sine), from ``benchfit calibrate distortion``; measure budgets it in
+  every THD. Absent or null: not measured.
 * ``unit`` — serial of the unit under test (a string such as ``"HC-03"``), used by
   reports and the log.
 
@@ -175,6 +178,12 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
             raise CaptureError(
                 f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {tau!r} — {fix}")
         cal["coupling_tau_s"] = float(tau)
+    floor = cal.pop("distortion_floor_pct", None)
+    if floor is not None:
+        if not _is_number(floor) or floor < 0 or floor >= 100:
+            raise CaptureError(f"{where}: calibration.distortion_floor_pct must be a number of % in [0, 100) "
+                               f"or null, got {floor!r} — {fix}")
+        cal["distortion_floor_pct"] = float(floor)
     cal.pop("gain_u_rel", None)  # null is the same as missing: not known
     if cal_in.get("gain_u_rel") is not None:
         if gains is None:

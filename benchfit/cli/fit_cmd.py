@@ -32,7 +32,7 @@ _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a
 Examples:
 
 \b
-  benchfit fit HC-03_drive_output.csv --fix L=300m --fix Rload=10k
+  benchfit fit HC-03_drive_output.csv --fix L=300m±10% --fix Rload=10k±1%
   benchfit fit HC-05_output.wav --method one-channel --fix L=300m \\
       --drive-duty 0.5
   benchfit fit HC-05_ringdown.csv --model ringdown --json
@@ -43,8 +43,9 @@ drive's harmonics; one-channel fits the output's harmonics against a rectangular
 unknown level and timing, which fixes only the shape of H (f0, Q): pass one known part,
 usually --fix L=…. ringdown fits the free ringing after the edges of a slow square drive.
 Parts the data cannot determine are shown as "not determined" with the part to measure.
-Values are SI with prefixes (300m = 0.3, 33u = 33e-6, 10k = 10 000). ± values are standard
-uncertainties (k = 1).
+Values are SI with prefixes (300m = 0.3, 33u = 33e-6, 10k = 10 000). A fixed part may carry its
+tolerance (L=300m±10%, read as rectangular); without one, every result is conditional on it.
+± values in the output are combined standard uncertainties (k = 1) of the budget shown with --json.
 
 Safety: a sound-card input takes about 1 V at most. Bring the drive and output to it through
 a resistive divider and a series capacitor; an inductor that is switched off kicks back a
@@ -81,15 +82,19 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
             t.add_column(col, justify=just, no_wrap=True)
         for name, p in d["parameters"].items():
             unit = units.get(p["unit"], p["unit"])
-            if p["fixed"]:
-                t.add_row(name, _fmt(p["value"], None, unit), "fixed (given)")
+            if p["fixed"] and p.get("stderr") is not None:
+                t.add_row(name, _fmt(p["value"], p["stderr"], unit), "fixed (given, with its tolerance)")
+            elif p["fixed"]:
+                t.add_row(name, _fmt(p["value"], None, unit), "fixed (given, no tolerance)")
             elif p["stderr"] is None:
                 shown = "—" if p["value"] is None else f"({_fmt(p['value'], None, unit)})"
                 t.add_row(name, shown, "[yellow]not determined[/]")
             else:
                 t.add_row(name, _fmt(p["value"], p["stderr"], unit), "fitted")
         console.print(t)
-    labels = {"resonant_frequency_hz": ("resonant frequency f0", "Hz"),
+    labels = {"resonant_frequency_hz": ("resonant frequency f0 = 1/(2π√(LC))", "Hz"),
+              "natural_frequency_hz": ("natural frequency (loaded)", "Hz"),
+              "series_loss_ohm": ("series loss Rs + ESR", "Ω"),
               "q_factor": ("Q", ""), "damped_frequency_hz": ("damped frequency", "Hz"),
               "decay_rate_per_s": ("decay rate α", "1/s")}
     t = Table(title="resonance", title_justify="left", box=None, pad_edge=False, header_style="bold")
@@ -111,6 +116,21 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
             text = _fmt(dv["value"], dv["stderr"], unit)
         t.add_row(label, text)
     console.print(t)
+    rows = []
+    for group in ("parameters", "derived"):
+        for name, v in d[group].items():
+            b = v.get("budget")
+            if not b or len(b["contributions"]) < 2 or not b.get("value"):
+                continue
+            parts = ", ".join(f"{c['name']} {100 * c['contribution'] / abs(b['value']):.2g} %"
+                              for c in sorted(b["contributions"], key=lambda c: -(c["contribution"] or 0))
+                              if c["contribution"])
+            rows.append(f"  {name}: {parts}")
+    if rows:
+        console.print("uncertainty budget (contributions relative to the value, k = 1):", markup=False,
+                      highlight=False)
+        for line in rows:
+            console.print(line, markup=False, highlight=False, soft_wrap=True)
     if d["correlations"]:
         pairs = ", ".join(f"{k}: {v:+.3f}" for k, v in d["correlations"].items() if v is not None)
         console.print(f"correlations  {pairs}", markup=False, highlight=False)
@@ -119,13 +139,52 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     r2 = "—" if q["r_squared"] is None else f"{q['r_squared']:.6f}"
     console.print(f"fit quality   NRMSE {nrmse}, R² {r2}, {q['n_points']} points", markup=False,
                   highlight=False)
-    console.print("± values are standard uncertainties (k = 1)", markup=False, highlight=False)
+    adq = d.get("adequacy") or {}
+    if adq.get("chi2_red") is not None:
+        line = (f"model check   χ²ᵣ = {adq['chi2_red']:.3g} on {adq.get('dof')} degrees of freedom "
+                f"(fit uncertainties scaled by √χ²ᵣ; above {adq.get('chi2_red_limit', 0):.3g} the residuals show "
+                "structure beyond noise)")
+        mc = adq.get("model_comparison")
+        if mc:
+            line += (f"; core loss Rp: F-test p = {mc['p_value']:.2g}, ΔAIC = {mc['aic'][1] - mc['aic'][0]:.3g} "
+                     f"→ {mc['chosen']}")
+        console.print(line, markup=False, highlight=False, soft_wrap=True)
+    console.print("± values are combined standard uncertainties (k = 1); budget rows in --json",
+                  markup=False, highlight=False)
     if note:
         console.print(f"note: {note}", markup=False, highlight=False, soft_wrap=True)
     from rich.markup import escape
 
     for w in d["warnings"]:
         console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False, soft_wrap=True)
+
+
+def parse_fix_options(items: list[str] | None, names: tuple[str, ...]) -> dict[str, Any]:
+    """``--fix NAME=VALUE[±TOL]`` options (TOL as ``10%`` or an absolute value; ``+-`` also works).
+
+    Returns name → :class:`benchfit.fit.tolerance.FixedValue`; fails with one line on bad text.
+    """
+    from benchfit.cli.common import fail, with_fix
+    from benchfit.fit.tolerance import parse_fixed
+
+    out: dict[str, Any] = {}
+    for item in items or []:
+        name, sep, text = item.partition("=")
+        name = name.strip()
+        if not sep or not name or not text.strip():
+            fail(f"--fix {item!r}: not NAME=VALUE — write it like --fix L=300m or --fix L=300m±10%, NAME one "
+                 f"of {', '.join(names)}")
+        if name not in names:
+            fail(f"--fix {item!r}: unknown name {name!r} — use one of {', '.join(names)}")
+        try:
+            fv = parse_fixed(text, f"--fix {name}")
+        except ValueError as e:
+            fail(with_fix(str(e), "write it like --fix L=300m±10% or --fix L=300m±5m"))
+        if not math.isfinite(fv.value) or fv.value < 0 or (fv.value == 0 and name != "Resr"):
+            need = "zero or positive" if name == "Resr" else "positive"
+            fail(f"--fix {item!r}: {name} must be {need} — give the part's value, e.g. {name}=1.5")
+        out[name] = fv
+    return out
 
 
 def _clip_warnings(cap) -> list[str]:
@@ -154,8 +213,9 @@ def fit_command(
     drive: Optional[str] = typer.Option(None, "--drive", metavar="CH", help="Drive channel: name or 1-based number."),
     response: Optional[str] = typer.Option(None, "--response", metavar="CH",
                                            help="Output channel: name or 1-based number."),
-    fix: Optional[List[str]] = typer.Option(None, "--fix", metavar="NAME=VALUE", help="Known part NAME=VALUE (repeatable): "
-                                            "L, C, Rs, Resr, Rload; e.g. --fix L=300m."),
+    fix: Optional[List[str]] = typer.Option(None, "--fix", metavar="NAME=VALUE", help="Known part NAME=VALUE[±TOL] "
+                                            "(repeatable): L, C, Rs, Resr, Rload; e.g. --fix L=300m±10% (or ±5m); "
+                                            "the tolerance (rectangular) is propagated into every result."),
     guess: Optional[List[str]] = typer.Option(None, "--guess", metavar="NAME=VALUE", help="Start value NAME=VALUE (repeatable)."),
     drive_duty: Optional[str] = typer.Option(None, "--drive-duty", metavar="DUTY", help="One-channel: the drive's duty "
                                              "cycle, high time / period, as 0.5 or 50%; fitted if omitted."),
@@ -176,8 +236,8 @@ def fit_command(
         fail(f"{plot}: is a folder — give --plot a file name ending in .svg or .png")
     if plot is not None and plot.exists() and not overwrite:  # checked before the (slow) fit
         fail(f"{plot}: file exists — choose another --plot or add --overwrite")
-    names = ("L", "C", "Rs", "Resr", "Rload")
-    fixed = parse_assignments(fix, names, "--fix", zero_ok=("Resr",))
+    names = ("L", "C", "Rs", "Resr", "Rload", "Rp")
+    fixed = parse_fix_options(fix, names)
     guessed = parse_assignments(guess, names, "--guess")
     duty = None
     if drive_duty is not None:

@@ -18,6 +18,7 @@ from benchfit.cli.app import app, calibrate_app
 from benchfit.cli.common import fail, parse_value, print_json, stderr, stdout
 
 __all__ = ["devices", "record", "tune", "calibrate_gain", "calibrate_timebase", "calibrate_coupling",
+           "calibrate_distortion",
            "calibrate_show"]
 
 CAUTION = (
@@ -324,6 +325,12 @@ def tune(
             ppm, u_ppm = prof.timebase.ppm, prof.timebase.u_ppm
         if prof.coupling is not None:
             tau = prof.coupling.tau_s
+    tb_note = None
+    if u_ppm <= 0:  # no timebase calibration: the stated default, and say so (issue 11)
+        from benchfit.uncertainty import DEFAULT_TIMEBASE_NOTE, DEFAULT_TIMEBASE_U_PPM
+
+        u_ppm = DEFAULT_TIMEBASE_U_PPM
+        tb_note = DEFAULT_TIMEBASE_NOTE
     fs_true = r * (1.0 + ppm * 1e-6)
     hop = min(window / 4.0, 0.25)
     plain = plain or json_out
@@ -332,6 +339,8 @@ def tune(
     live_display = None
     try:
         with LiveWindows(rate=r, channels=channel, window_s=window, hop_s=hop, device=_device(device)) as src:
+            if tb_note:  # once the device is open, so a device error stays one line
+                stderr.print(f"note: {tb_note}", markup=False, highlight=False, soft_wrap=True)
             if not plain:
                 from rich.live import Live
 
@@ -540,7 +549,16 @@ def calibrate_timebase(
     from benchfit.capture.calibration import TimebaseCalibration, estimate_timebase, save_profile, utc_now_iso
 
     f_ref = parse_value(frequency, "--frequency")
-    u_ref = parse_value(frequency_u, "--frequency-u") if frequency_u is not None else 0.0
+    ref_note = None
+    if frequency_u is not None:
+        u_ref = parse_value(frequency_u, "--frequency-u")
+    else:  # a reference is never perfect: without its stated u, the same crystal default applies
+        from benchfit.uncertainty import DEFAULT_REFERENCE_HALF_WIDTH_PPM, standard_from_half_width
+
+        u_ref = f_ref * 1e-6 * standard_from_half_width(DEFAULT_REFERENCE_HALF_WIDTH_PPM, "rectangular")
+        ref_note = (f"--frequency-u not given: the reference is taken as ± {DEFAULT_REFERENCE_HALF_WIDTH_PPM:g} ppm "
+                    f"(rectangular, u = {u_ref:.3g} Hz; an unspecified crystal, common practice, no source) — "
+                    "give the counter's or generator's stated standard uncertainty with --frequency-u")
     prof = _load_or_new(profile)
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
         (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
@@ -550,10 +568,12 @@ def calibrate_timebase(
                                                       nominal_rate_hz=fs, source=source,
                                                       measured_utc=utc_now_iso()))
     path = save_profile(prof)
+    if ref_note:
+        stderr.print(f"note: {ref_note}", markup=False, highlight=False, soft_wrap=True)
     if json_out:
         print_json({"profile": prof.name, "path": str(path), "ppm": est.ppm, "u_ppm": est.u_ppm,
                     "measured_hz": est.measured_hz, "measured_u_hz": est.measured_u_hz,
-                    "reference_hz": f_ref, "nominal_rate_hz": fs})
+                    "reference_hz": f_ref, "reference_u_hz": u_ref, "nominal_rate_hz": fs})
         return
     speed = "fast" if est.ppm > 0 else "slow"
     stdout.print(f"tone measured {_freq_text(est.measured_hz, est.measured_u_hz)} on the nominal {fs:g} Hz; "
@@ -597,6 +617,49 @@ def calibrate_coupling(
     stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
+@calibrate_app.command("distortion", short_help="The card's own THD floor, from a loop or a clean sine.", help=(
+    "Store the card's own distortion floor: loop the card's output to its input (or record a "
+    "reference sine known to be much cleaner than the units) at about the level and frequency "
+    "the units produce. Every THD measured with the profile then carries the floor as a "
+    "budget row (± floor, rectangular) instead of treating the card as perfect."
+    "\n\nExample:\n\n\b\n  benchfit calibrate distortion loop_50Hz.wav --profile desk" "\n\n" + CAUTION))
+def calibrate_distortion(
+    file: Optional[Path] = typer.Argument(None, metavar="FILE", show_default=False,
+                                          help="Recording of the loop or reference sine (WAV/FLAC)."),
+    profile: str = typer.Option(..., "--profile", metavar="PROFILE", help="Profile to create or update."),
+    channel: Optional[str] = typer.Option(None, "--channel", metavar="CH",
+                                          help="Channel carrying the sine; default the first."),
+    harmonics: int = typer.Option(10, "--harmonics", metavar="H", min=2, max=100,
+                                  help="Highest harmonic order (THD over 2…H)."),
+    do_record: bool = typer.Option(False, "--record", help=_REC_HELP),
+    seconds: Optional[float] = typer.Option(None, "--seconds", metavar="SECONDS",
+                                            help="Recording length with --record (s)."),
+    device: Optional[str] = typer.Option(None, "--device", metavar="DEVICE", help="Input device with --record."),
+    rate: float = typer.Option(48000, "--rate", metavar="HZ", help="Sample rate with --record (Hz)."),
+    json_out: bool = typer.Option(False, "--json", help="Print the stored value as one JSON object."),
+) -> None:
+    from benchfit.capture.calibration import DistortionCalibration, save_profile, utc_now_iso
+    from benchfit.measurement.calibration import estimate_distortion_floor
+
+    prof = _load_or_new(profile)
+    with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
+        (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
+    i = _pick_channels(channel, names, default_all=False)[0]
+    est = estimate_distortion_floor(x[i], fs, harmonics, what=f"{source} channel {i + 1} ({names[i]})")
+    prof = replace(prof, distortion=DistortionCalibration(
+        floor_pct=est.floor_pct, u_pct=est.u_pct, frequency_hz=est.frequency_hz, level_fs=est.level_fs,
+        harmonics=harmonics, channel=i + 1, source=source, measured_utc=utc_now_iso()))
+    path = save_profile(prof)
+    if json_out:
+        print_json({"profile": prof.name, "path": str(path), "floor_pct": est.floor_pct, "u_pct": est.u_pct,
+                    "frequency_hz": est.frequency_hz, "level_fs": est.level_fs, "harmonics": harmonics})
+        return
+    stdout.print(f"card distortion floor THD {est.floor_pct:.3g} % ± {est.u_pct:.2g} % (harmonics 2…{harmonics}) at "
+                 f"{est.frequency_hz:.5g} Hz, {est.level_fs:.3g} FS peak, channel {i + 1} ({names[i]})",
+                 soft_wrap=True, markup=False)
+    stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
+
+
 @calibrate_app.command("show", short_help="List calibration profiles and what each holds.", help=(
     "List calibration profiles and what each holds (gain per channel, clock error, coupling). "
     "A profile file that cannot be read gets one warning line; the others are still listed."
@@ -631,13 +694,15 @@ def calibrate_show(
     from benchfit.units import format_with_uncertainty
 
     table = Table(title=escape(f"calibration profiles ({folder})"), title_justify="left", box=None, pad_edge=False)
-    for col in ("profile", "gain (V/FS)", "sample clock", "input coupling τ"):
+    with_dist = any(p.distortion for p in profiles)  # the column only when some profile has it
+    for col in ("profile", "gain (V/FS)", "sample clock", "input coupling τ") + (("THD floor",) if with_dist else ()):
         table.add_column(col)
     for p in profiles:
         gains = "\n".join(_gain_text(g, format_with_uncertainty) for g in p.gains) or "—"
         tb = _ppm_text(p.timebase.ppm, p.timebase.u_ppm) if p.timebase else "—"
         cp = (f"{p.coupling.tau_s * 1e3:.4g} ms" if p.coupling else "—")
-        table.add_row(escape(p.name), gains, tb, cp)
+        dist = (f"{p.distortion.floor_pct:.3g} %" if p.distortion else "—",) if with_dist else ()
+        table.add_row(escape(p.name), gains, tb, cp, *dist)
     stdout.print(table)
 
 

@@ -73,7 +73,8 @@ def report_command(
     drive: Optional[str] = typer.Option(None, "--drive", metavar="CH", help="Channel holding the filter's drive (fit)."),
     response: Optional[str] = typer.Option(None, "--response", metavar="CH", help="Channel holding the filter output (fit)."),
     fix: Optional[List[str]] = typer.Option(None, "--fix", metavar="NAME=VALUE",
-                                            help="Hold a fit parameter fixed, e.g. --fix Rload=10k (repeatable)."),
+                                            help="Hold a fit parameter fixed, e.g. --fix Rload=10k±1% (repeatable; the "
+                                                 "tolerance, rectangular, is propagated)."),
     log: Optional[str] = typer.Option(None, "--log", metavar="PATH",
                                       envvar="BENCHFIT_LOG",
                                       help="Measurement log file or postgresql:// URL (default: $BENCHFIT_LOG or the user data "
@@ -100,7 +101,11 @@ def report_command(
     model = None if model is None else ModelOption(model).value
     if log is not None and log == os.environ.get("BENCHFIT_LOG") and no_log:
         log = None  # typer filled --log from $BENCHFIT_LOG: --no-log wins over the environment
-    fix_values = parse_assignments(fix, _FIT_NAMES, "--fix", zero_ok=("Resr", "Rs"))
+    from benchfit.cli.fit_cmd import parse_fix_options
+
+    # NAME=VALUE[±TOL] (issue 11): a tolerance is propagated into the fitted values' uncertainties
+    fix_values = {k: (v.value if v.half_width is None else v)  # a plain value stays a plain float
+                  for k, v in parse_fix_options(fix, tuple(_FIT_NAMES)).items()}
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:
         fit = FitOptions(model=model or "lc-lowpass", drive=drive, response=response, fix=fix_values)

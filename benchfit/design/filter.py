@@ -301,7 +301,7 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
         p = _parts(L, C, rs, esr, load)
         so = second_order(p)
         resp = rectangular_response(p, f, duty=duty, amplitude_v=amplitude_v, n_harmonics=n_harmonics)
-        options.append(FilterOption(label, L, C, desc, so["resonant_frequency_hz"], so["q_factor"], resp,
+        options.append(FilterOption(label, L, C, desc, so["natural_frequency_hz"], so["q_factor"], resp,
                                     _stress(p, f, duty, amplitude_v)))
     tol = SERIES_TOLERANCE[name]
     notes = [f"f0 moves by about ∓{tol / 2 * 100:g} % for a ±{tol * 100:g} % {solved} ({name}); "

@@ -224,7 +224,9 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
         cv = None
     if lv is not None and not lv > 0:
         lv = None
-    d = fit.derived.get("resonant_frequency_hz")
+    # the loaded natural frequency √(a0/a2)/2π is what the data fix (issue 11 named it apart from
+    # the L-C resonance 1/(2π√(LC)) of resonant_frequency_hz); older results have only the latter
+    d = fit.derived.get("natural_frequency_hz") or fit.derived.get("resonant_frequency_hz")
     f0 = None if d is None else d.value
     f0u = None if d is None else d.stderr
     if f0 is None and lv is not None and cv is not None:
@@ -504,7 +506,7 @@ def suggest_capacitor_trim(fit_result, target_hz: float) -> TrimAdvice | None:
     """
     if fit_result is None or getattr(fit_result, "model", None) not in ("lc-lowpass", "ringdown"):
         return None
-    d = fit_result.derived.get("resonant_frequency_hz")
+    d = fit_result.derived.get("natural_frequency_hz") or fit_result.derived.get("resonant_frequency_hz")
     if d is not None and d.value is not None and d.stderr is not None:
         if abs(d.value - float(target_hz)) <= 2.0 * d.stderr:
             return None

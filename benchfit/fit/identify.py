@@ -27,15 +27,15 @@ from typing import Callable, Mapping
 
 import numpy as np
 
-from benchfit.model.filter import PARAMETER_NAMES, LowpassParts, second_order
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, LowpassParts, second_order
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitParameter
 
 __all__ = ["Identification", "identify", "fit_log_parameters", "numeric_jacobian",
            "parameter_table", "derived_values", "correlations", "undetermined_warning", "DERIVED_NAMES",
            "solve", "ambiguity", "display_unit"]
 
-DERIVED_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "q_factor", "damped_frequency_hz",
-                                  "decay_rate_per_s")
+DERIVED_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "natural_frequency_hz", "q_factor",
+                                  "damped_frequency_hz", "decay_rate_per_s")
 
 #: a direction whose log-parameter standard deviation exceeds this is undetermined: 0.5 is
 #: a factor e^0.5 ≈ 1.65 either way (over 50 % relative), where the linearised error bar
@@ -187,7 +187,7 @@ def parameter_table(values: Mapping[str, float], ident: Identification,
                     fixed: Mapping[str, float]) -> dict[str, FitParameter]:
     """FitParameter for every model part: fixed, fitted (with stderr), or not determined."""
     out: dict[str, FitParameter] = {}
-    for name in PARAMETER_NAMES:
+    for name in PARAMETER_NAMES + (("Rp",) if "Rp" in values or "Rp" in fixed else ()):
         unit = PARAMETER_UNITS[name]
         if name in fixed:
             out[name] = FitParameter(float(fixed[name]), None, True, unit)
@@ -211,7 +211,7 @@ def correlations(ident: Identification) -> dict[str, float]:
         for j in range(i + 1, len(names)):
             if names[i] in ident.undetermined or names[j] in ident.undetermined:
                 continue
-            if names[i] not in PARAMETER_NAMES or names[j] not in PARAMETER_NAMES:
+            if names[i] not in PART_NAMES or names[j] not in PART_NAMES:
                 continue
             if d[i] > 0 and d[j] > 0:
                 out[f"{names[i]},{names[j]}"] = float(ident.cov_log[i, j] / (d[i] * d[j]))
@@ -222,14 +222,14 @@ def derived_values(values: Mapping[str, float], ident: Identification) -> dict[s
     """Resonance figures with delta-method uncertainties (None when not determined)."""
 
     def figures(z: np.ndarray) -> np.ndarray:
-        v = {n: values[n] for n in PARAMETER_NAMES}
-        v.update({n: float(math.exp(x)) for n, x in zip(ident.names, z) if n in PARAMETER_NAMES})
+        v = {n: values[n] for n in PART_NAMES if n in values}
+        v.update({n: float(math.exp(x)) for n, x in zip(ident.names, z) if n in PART_NAMES})
         fig = second_order(LowpassParts(**v))
         return np.array([fig[k] for k in DERIVED_NAMES])
 
     # parts enter as logarithms, extras (duty, phase) as themselves; the latter do not move
     # the resonance figures
-    x = np.array([math.log(values[n]) if n in PARAMETER_NAMES else float(values[n])
+    x = np.array([math.log(values[n]) if n in PART_NAMES else float(values[n])
                   for n in ident.names])
     base = figures(x)
     grad = numeric_jacobian(figures, x, step=1e-6) if x.size else np.zeros((base.size, 0))
@@ -263,7 +263,7 @@ def derived_values(values: Mapping[str, float], ident: Identification) -> dict[s
 
 def undetermined_warning(undetermined: tuple[str, ...], high_impedance: bool) -> list[str]:
     """One-line warnings that say which part to measure and fix."""
-    und = [n for n in PARAMETER_NAMES if n in set(undetermined)]
+    und = [n for n in PART_NAMES if n in set(undetermined)]
     msgs: list[str] = []
     if "L" in und and "C" in und:
         combos = "L·C, Rs·C and Resr·C" if high_impedance else "L·C and the resistances relative to √(L/C)"
@@ -285,7 +285,8 @@ def display_unit(name: str) -> str:
 
 
 def solve(residual, start: dict[str, float], fix: Mapping[str, float],
-          extra: Mapping[str, tuple[float, float, float]] | None = None):
+          extra: Mapping[str, tuple[float, float, float]] | None = None,
+          parts: tuple[str, ...] = PARAMETER_NAMES):
     """Fit the free parts (and extras); fold an undetermined ESR into Rs and refit; look for a
     second, equally good solution.
 
@@ -302,7 +303,7 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
     scale_known = bool({"L", "C", "Rs", "Rload"} & set(fix)) or fix.get("Resr", 0.0) > 0.0
     pin = "L" if not scale_known else None
     while True:
-        free = tuple(n for n in PARAMETER_NAMES if n not in fixed and n != pin)
+        free = tuple(n for n in parts if n not in fixed and n != pin)
         pinned = {**fixed, pin: start[pin]} if pin else fixed
         values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, pinned, extra)
         if pin:
@@ -313,15 +314,26 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
         ident = identify(jac, names, chi2)
         only_scale = {"L", "C"} <= set(ident.undetermined)
         if "Resr" in ident.undetermined and "Resr" not in fixed and not only_scale:
+            # marginalised, not silently zeroed: the best fit has the ESR at (nearly) 0, and the
+            # data bound it only from above. It is held at 0 and its plausible range 0…a is
+            # propagated into every other part (fit/propagate.py) as u = a/√3: the rms distance
+            # from 0 of a value spread evenly over 0…a, so the budget covers the bias of
+            # holding it at 0. a is the smaller of the total series loss Rs + Resr and twice
+            # the data's own absolute uncertainty of Resr
+            total = values["Rs"] + values["Resr"]
+            upper = min(total, 2.0 * _linear_u(jac, names, "Resr", values["Resr"], chi2))
             fixed["Resr"] = 0.0
+            fixed["Resr_bound"] = upper
             folded.append("Resr")
             start = dict(values)
-            start["Rs"] = values["Rs"] + values["Resr"]
+            start["Rs"] = total
             if extra:
                 extra = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-            warnings.append("Resr: the capacitor's ESR is not separated from Rs by these data, so it "
-                            "was set to 0 and Rs holds Rs + ESR — measure the ESR and pass --fix Resr=… "
-                            "to split them")
+            warnings.append(f"Resr: the capacitor's ESR is not separated from Rs by these data, so Rs holds "
+                            f"Rs + ESR (also given as series_loss_ohm); the ESR may be anywhere in 0…{upper:.3g} Ω "
+                            "(the smaller of Rs + ESR and twice the data's own bound) and that range is included "
+                            "in the other parts' uncertainties — an ESR meter on the capacitor would split them "
+                            "(then --fix Resr=…)")
             continue
         break
     alternatives: list[dict[str, float]] = []
@@ -348,6 +360,25 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
     return values, ident, fixed, folded, warnings, ok, msg, alternatives
 
 
+def _linear_u(jac: np.ndarray, names: tuple[str, ...], name: str, value: float, chi2_red: float) -> float:
+    """Standard uncertainty of one part in its own unit (not log), the others profiled out.
+
+    A part near zero is undetermined in relative (log) terms yet bounded in absolute terms:
+    with j = ∂r/∂x (the log column divided by x) and the other columns O, the information
+    left for x is |j − O·O⁺j|², so u(x) = √(max(χ²_red, 1)/that).
+    """
+    if name not in names or value <= 0:
+        return math.inf
+    k = names.index(name)
+    col = jac[:, k] / value
+    others = np.delete(jac, k, axis=1)
+    if others.size:
+        coef, *_ = np.linalg.lstsq(others, col, rcond=1e-10)
+        col = col - others @ coef
+    info = float(col @ col)
+    return math.sqrt(max(chi2_red, 1.0) / info) if info > 0 else math.inf
+
+
 def _unpinned_jacobian(residual, values, pin, names, extra):
     """Jacobian in (pin, names…) at the solution: log-parts, raw extras."""
     all_names = (pin,) + tuple(names)
@@ -366,7 +397,7 @@ def _unpinned_jacobian(residual, values, pin, names, extra):
 def _distinct(a: Mapping[str, float], b: Mapping[str, float], ident: Identification) -> bool:
     """True when two solutions differ by more than 3 standard errors (or 5 %) in some part."""
     for j, n in enumerate(ident.names):
-        if n not in PARAMETER_NAMES:
+        if n not in PART_NAMES:
             continue
         sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
         if abs(math.log(a[n]) - math.log(b[n])) > max(3 * sd, 0.05):
@@ -386,7 +417,7 @@ def ambiguity(values: Mapping[str, float], ident: Identification,
     bad: list[str] = []
     cov = ident.cov_log.copy()
     for j, n in enumerate(ident.names):
-        if n not in PARAMETER_NAMES:
+        if n not in PART_NAMES:
             continue
         sd = math.sqrt(max(float(ident.cov_log[j, j]), 0.0))
         spread = max(abs(math.log(a[n]) - math.log(values[n])) for a in alternatives)

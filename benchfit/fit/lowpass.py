@@ -39,17 +39,16 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import (PARAMETER_NAMES, LowpassParts, free_response_basis, second_order,
-                                   simulate, transfer)
-from benchfit.fit.identify import (Identification, ambiguity, correlations, derived_values,
-                                   parameter_table, solve, undetermined_warning)
-from benchfit.fit.result import (PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality,
-                                FitResult)
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, LowpassParts, free_response_basis, simulate, transfer
+from benchfit.fit.identify import solve
+from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, compare_core_loss,  # noqa: F401
+                                  input_specs, propagate, source_name)
+from benchfit.fit.tolerance import FixedValue, as_fixed
+from benchfit.fit.result import PARAMETER_UNITS, FitCurves, FitQuality, FitResult
 
 __all__ = ["fit_lowpass", "MethodOption", "MODEL_NAME"]
 
 MethodOption = Literal["auto", "two-channel", "one-channel"]
-MODEL_NAME = "lc-lowpass"
 
 #: a harmonic is used when its amplitude exceeds this many standard uncertainties
 SIGNIFICANCE = 10.0
@@ -71,9 +70,6 @@ def as_capture(capture):
     return capture
 
 
-def source_name(cap) -> str:
-    return cap.source or "capture"
-
 
 def check_parts(fix: Mapping[str, float] | None, guess: Mapping[str, float] | None,
                 where: str) -> tuple[dict[str, float], dict[str, float]]:
@@ -82,7 +78,7 @@ def check_parts(fix: Mapping[str, float] | None, guess: Mapping[str, float] | No
     for option, parts in (("--fix", fix), ("--guess", guess)):
         clean: dict[str, float] = {}
         for name, value in (parts or {}).items():
-            if name not in PARAMETER_NAMES:
+            if name not in PART_NAMES:
                 raise FitError(f"{option} {name}: unknown part {name!r} — use one of "
                                f"{', '.join(PARAMETER_NAMES)}")
             v = float(value)
@@ -158,53 +154,6 @@ def start_parts(w0: float, q: float, dc_gain: float | None, fix: Mapping[str, fl
     out = {"L": L, "C": C, "Rs": rs, "Resr": resr, "Rload": rl}
     out.update(fix)
     return out
-
-
-def assemble(cap, method: str, values: dict[str, float], ident: Identification,
-             user_fix: Mapping[str, float], folded: list[str], warnings: list[str],
-             curves: FitCurves, quality: FitQuality, success: bool, message: str,
-             alternatives: list[dict[str, float]] | None = None) -> FitResult:
-    """Build the FitResult: parameter table, derived values, correlations and warnings."""
-    from dataclasses import replace
-
-    cov_local = ident.cov_log
-    ident, amb_warn = ambiguity(values, ident, alternatives or [])
-    params = parameter_table(values, ident, {**user_fix, **{n: 0.0 for n in folded}})
-    for n in folded:
-        params[n] = FitParameter(0.0, None, False, PARAMETER_UNITS[n])
-    z0 = math.sqrt(values["L"] / values["C"])
-    high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
-    named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
-    und_plain = tuple(n for n in ident.undetermined if n not in named and n in PARAMETER_NAMES)
-    if amb_warn and und_plain and not {"L", "C"} <= set(und_plain):
-        # these move together with the parts of the other solution: fixing the load settles them
-        amb_warn.append(f"{', '.join(und_plain)}: not determined by these data either (they shift "
-                        "with the other solution above) — fixing Rload usually settles them; otherwise "
-                        f"measure {und_plain[0]} and pass --fix {und_plain[0]}=…")
-        und_plain = ()
-    warn = list(warnings) + amb_warn + undetermined_warning(und_plain, high_z)
-    if not success:
-        warn.append(f"fit: the optimiser did not report convergence ({message}) — check the "
-                    "capture and try --guess with approximate part values")
-    # derived values use the local covariance; the spread between equally good solutions is
-    # checked on the derived values themselves below (it widens only the parts' own errors)
-    derived = derived_values(values, replace(ident, cov_log=cov_local))
-    for name, dv in list(derived.items()):  # a derived value that differs between solutions
-        if dv.value is None or dv.stderr is None:
-            continue
-        for alt in alternatives or []:
-            other = second_order(_parts(alt))[name]
-            if not math.isfinite(other):
-                continue
-            diff = abs(other - dv.value)
-            if diff > 0.05 * abs(dv.value):
-                derived[name] = DerivedValue(dv.value, None)
-            elif diff > 3 * dv.stderr:  # small but significant: widen by half the spread
-                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2))
-    return FitResult(file=source_name(cap), model=MODEL_NAME, method=method, parameters=params,
-                     derived=derived, correlations=correlations(ident),
-                     quality=quality, warnings=tuple(warn), curves=curves, success=success,
-                     message=message)
 
 
 def quality_complex(measured: np.ndarray, model: np.ndarray) -> FitQuality:
@@ -315,7 +264,9 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
     where = source_name(cap)
     if method not in get_args(MethodOption):
         raise FitError(f"method {method!r}: unknown — use one of {', '.join(get_args(MethodOption))}")
-    fix_d, guess_d = check_parts(fix, guess, where)
+    fix_specs = {n: as_fixed(v) for n, v in (fix or {}).items()}
+    fix_d, guess_d = check_parts({n: fv.value for n, fv in fix_specs.items()}, guess, where)
+    fix_specs = {n: fix_specs[n] for n in fix_d}
     if drive_duty is not None and not (0.0 < float(drive_duty) < 1.0):
         raise FitError(f"--drive-duty {drive_duty!r}: the duty cycle must be between 0 and 1 "
                        "(high time / period) — pass e.g. --drive-duty 0.5")
@@ -326,7 +277,7 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
             raise FitError(f"{where}: two-channel fitting needs the drive and the output, but the "
                            "capture has one channel — use --method one-channel")
         di, ri = pick_channels(cap, drive, response)
-        return _two_channel(cap, di, ri, fix_d, guess_d, time_domain)
+        return _two_channel(cap, di, ri, fix_d, guess_d, time_domain, fix_specs)
     from benchfit.fit.onechannel import fit_one_channel
 
     if response is not None:
@@ -340,11 +291,11 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
         ri = 0
     else:
         ri = pick_channels(cap, drive, None)[1]
-    return fit_one_channel(cap, ri, fix_d, guess_d, drive_duty)
+    return fit_one_channel(cap, ri, fix_d, guess_d, drive_duty, fix_specs)
 
 
 def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, float],
-                 time_domain: bool) -> FitResult:
+                 time_domain: bool, fix_specs: Mapping[str, FixedValue] | None = None) -> FitResult:
     from benchfit.measurement.tone import fit_harmonics, fit_tone
 
     where = source_name(cap)
@@ -395,16 +346,29 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                                0.0))
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return whiten(w, hk - transfer(fk, _parts(v)))
+        return whiten(w, hk - v.get("gain_ratio", 1.0) * transfer(fk, _parts(v)))
 
+    ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
     start = start_parts(w0, q, b0, fix, guess)
-    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix)
+    fix_g = {**fix, "gain_ratio": 1.0}
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix_g)
+    comparison = None
+    if "Rp" not in fix:
+        comparison, chosen = compare_core_loss(residual, values, ident, fixed, fix_g)
+        if chosen is not None:
+            values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, chosen, fix_g, parts=PART_NAMES)
+            warnings = list(warnings) + [comparison["note"]]
+    fixed.pop("gain_ratio", None)
     if cap.units[di] != cap.units[ri] or "FS" in (cap.units[di], cap.units[ri]):
         warnings = list(warnings) + [
             f"{cap.channel_names[ri]}: drive and output are not both calibrated in volts "
             f"({cap.units[di]}, {cap.units[ri]}), so a gain difference between the inputs looks like "
             "loss in the load — calibrate the inputs, or fix Rload (--fix Rload=…)"]
+    if ratio_note:
+        warnings = list(warnings) + [ratio_note]
+    specs = input_specs(fix_specs or {}, fixed, folded, ratio)
+    sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
     h_model = transfer(fk, _parts(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs
@@ -415,12 +379,20 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                        residual=np.concatenate([(hk - h_model).real, (hk - h_model).imag]))
     quality = quality_complex(hk, h_model)
     if time_domain:
-        values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality = _time_domain(
+        values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality, td_res = _time_domain(
             x, y, fs, values, fixed, fix, hy.sigma, curves)
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
-    return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                    alts)
+        specs = input_specs(fix_specs or {}, fixed, folded, ratio)
+        sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
+    result = assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
+                      alts, specs, sens)
+    if comparison is not None:
+        from dataclasses import replace
+
+        result = replace(result, adequacy={**result.adequacy,
+                                           "model_comparison": {k: v for k, v in comparison.items() if k != "note"}})
+    return result
 
 
 def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],
@@ -462,10 +434,15 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
     start, _, fixed0, _, _, _, _, _ = solve(residual, start, fix)
     curves = FitCurves(harmonic_hz=fk, h_measured=h, h_measured_u=u)
     sigma = 1e-3 * float(np.std(y))  # scales χ² only; the covariance is rescaled by χ²_red
-    values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality = _time_domain(
+    values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality, td_res = _time_domain(
         x, y, fs, start, dict(fix), fix, sigma, curves)
+    ratio, ratio_note = channel_gain_ratio(cap, di, cap.n_channels - 1 - di if cap.n_channels == 2 else di)
+    if ratio_note:
+        warnings = list(warnings) + [ratio_note]
+    specs = input_specs({}, fixed, folded, ratio)
+    sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
     return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                    alts)
+                    alts, specs, sens)
 
 
 def noise_rescaled(h, x: np.ndarray, fs: float):
@@ -515,7 +492,7 @@ def _subset(h, keep: np.ndarray):
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"])
+    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
 
 
 def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
@@ -525,7 +502,7 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
 
     def model(v: dict[str, float]) -> np.ndarray:
         p = _parts(v)
-        sim = simulate(x, fs, p)
+        sim = v.get("gain_ratio", 1.0) * simulate(x, fs, p)
         basis = free_response_basis(p, fs, n)
         design = np.stack([np.ones(n), basis[0], basis[1]], axis=1)
         coef, *_ = np.linalg.lstsq(design, y - sim, rcond=None)
@@ -542,5 +519,5 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
                        harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
                        h_model=transfer(curves.harmonic_hz, _parts(values)),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
-    folded = [k for k in fixed if k not in user_fix and fixed[k] == 0.0]
-    return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym)
+    folded = [k for k in fixed if k not in user_fix and k in PART_NAMES]  # undetermined, held at 0
+    return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual

@@ -27,8 +27,8 @@ import numpy as np
 from benchfit.errors import FitError
 from benchfit.model.filter import LowpassParts, rectangular_phasors, transfer
 from benchfit.fit.lowpass import (MAX_ORDER, SIGNIFICANCE, assemble, check_not_silent, complex_mult_cov,
-                                  noise_rescaled, quality_complex, solve, source_name, start_parts, whiten,
-                                  whitening)
+                                  input_specs, noise_rescaled, propagate, quality_complex, solve, source_name,
+                                  start_parts, whiten, whitening)
 from benchfit.fit.result import FitCurves
 
 __all__ = ["fit_one_channel"]
@@ -49,7 +49,7 @@ _U_FLOOR_REL = 1e-7
 
 
 def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"])
+    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
 
 
 def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
@@ -129,7 +129,7 @@ def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
 
 
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],
-                    drive_duty: float | None):
+                    drive_duty: float | None, fix_specs=None):
     """Fit the lc-lowpass model to the output channel ``ri`` alone (see the module docstring)."""
     from benchfit.measurement.tone import fit_harmonics, fit_tone
 
@@ -231,5 +231,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                        residual=np.concatenate([(yk - y_model_k).real, (yk - y_model_k).imag]))
     msg = (f"{msg}; one-channel: the drive level is unknown, so the data fix the shape of H "
            "(resonant frequency, Q, ESR zero) and the parts only once one of them is known")
+    specs = input_specs(fix_specs or {}, fixed, folded)
+    sens = propagate(residual, values, ident, specs)
     return assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
-                    quality_complex(yk, y_model_k), ok, msg, alts)
+                    quality_complex(yk, y_model_k), ok, msg, alts, specs, sens)

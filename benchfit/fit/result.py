@@ -22,7 +22,15 @@ Method = Literal["two-channel", "one-channel", "ringdown"]
 
 #: units of the lc-lowpass model's parameters
 PARAMETER_UNITS: Mapping[str, str] = MappingProxyType(
-    {"L": "H", "C": "F", "Rs": "ohm", "Resr": "ohm", "Rload": "ohm"})
+    {"L": "H", "C": "F", "Rs": "ohm", "Resr": "ohm", "Rload": "ohm", "Rp": "ohm"})
+
+
+def _budget_from(d):
+    if not d:
+        return None
+    from benchfit.uncertainty import Budget
+
+    return Budget.from_dict(d)
 
 
 def _num(v: float | None) -> float | None:
@@ -32,29 +40,53 @@ def _num(v: float | None) -> float | None:
     return v if math.isfinite(v) else None
 
 
+def _budget_dict(b) -> dict[str, Any] | None:
+    return None if b is None else b.to_dict()
+
+
 @dataclass(frozen=True)
 class FitParameter:
-    """A model parameter: value, standard error (None when the data do not determine it)."""
+    """A model parameter: value and standard uncertainty (None when the data do not determine it).
+
+    ``stderr`` is the *combined* standard uncertainty (k = 1) of everything in ``budget``:
+    the fit's own (noise, Birge-scaled by √χ²_red when the residuals exceed the noise) and
+    the tolerances of fixed inputs propagated into it. ``u_fit`` is the fit's part alone.
+    A fixed part's ``stderr`` is its tolerance's standard uncertainty (None: no tolerance).
+    ``conditional_on`` names fixed inputs without a tolerance: the value holds only if they do.
+    """
 
     value: float | None
     stderr: float | None
     fixed: bool
     unit: str
+    u_fit: float | None = None
+    budget: Any = None  # benchfit.uncertainty.Budget or None
+    conditional_on: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         return {"value": _num(self.value), "stderr": _num(self.stderr),
-                "fixed": bool(self.fixed), "unit": self.unit}
+                "fixed": bool(self.fixed), "unit": self.unit,
+                "u_fit": _num(self.u_fit), "budget": _budget_dict(self.budget),
+                "conditional_on": list(self.conditional_on)}
 
 
 @dataclass(frozen=True)
 class DerivedValue:
-    """A quantity computed from the parameters, with propagated standard uncertainty."""
+    """A quantity computed from the parameters, with propagated standard uncertainty.
+
+    ``stderr`` is the combined standard uncertainty (see :class:`FitParameter`), ``u_fit``
+    the fit's part alone, ``budget`` the rows.
+    """
 
     value: float | None
     stderr: float | None
+    u_fit: float | None = None
+    budget: Any = None
+    conditional_on: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
-        return {"value": _num(self.value), "stderr": _num(self.stderr)}
+        return {"value": _num(self.value), "stderr": _num(self.stderr), "u_fit": _num(self.u_fit),
+                "budget": _budget_dict(self.budget), "conditional_on": list(self.conditional_on)}
 
 
 @dataclass(frozen=True)
@@ -106,8 +138,17 @@ class FitResult:
     curves: FitCurves = field(default_factory=FitCurves)
     success: bool = True
     message: str = ""
+    #: inputs held fixed during the fit (name → FixedValue.to_dict() plus "role"), and the
+    #: names among them without a tolerance (every result is conditional on those)
+    inputs: Mapping[str, Any] = field(default_factory=dict)
+    conditional_on: tuple[str, ...] = ()
+    #: model comparison and adequacy (χ²_red, Birge ratio, alternatives tried), JSON-safe
+    adequacy: Mapping[str, Any] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
+        object.__setattr__(self, "inputs", MappingProxyType(dict(self.inputs)))
+        object.__setattr__(self, "conditional_on", tuple(self.conditional_on))
+        object.__setattr__(self, "adequacy", MappingProxyType(dict(self.adequacy)))
         object.__setattr__(self, "parameters", MappingProxyType(dict(self.parameters)))
         object.__setattr__(self, "derived", MappingProxyType(dict(self.derived)))
         object.__setattr__(self, "correlations", MappingProxyType(dict(self.correlations)))
@@ -122,6 +163,10 @@ class FitResult:
             "correlations": {k: _num(v) for k, v in self.correlations.items()},
             "quality": self.quality.to_dict(),
             "warnings": list(self.warnings),
+            # added by issue 11 (uncertainty budgets); the keys above are unchanged
+            "inputs": {k: dict(v) for k, v in self.inputs.items()},
+            "conditional_on": list(self.conditional_on),
+            "adequacy": dict(self.adequacy),
         }
 
     @classmethod
@@ -130,8 +175,14 @@ class FitResult:
         return cls(
             file=str(d["file"]), model=str(d["model"]), method=d["method"],
             parameters={k: FitParameter(v.get("value"), v.get("stderr"), bool(v.get("fixed", False)),
-                                        v.get("unit", "")) for k, v in d.get("parameters", {}).items()},
-            derived={k: DerivedValue(v.get("value"), v.get("stderr")) for k, v in d.get("derived", {}).items()},
+                                        v.get("unit", ""), v.get("u_fit"), _budget_from(v.get("budget")),
+                                        tuple(v.get("conditional_on", ())))
+                        for k, v in d.get("parameters", {}).items()},
+            derived={k: DerivedValue(v.get("value"), v.get("stderr"), v.get("u_fit"), _budget_from(v.get("budget")),
+                                     tuple(v.get("conditional_on", ())))
+                     for k, v in d.get("derived", {}).items()},
+            inputs=dict(d.get("inputs", {})), conditional_on=tuple(d.get("conditional_on", ())),
+            adequacy=dict(d.get("adequacy", {})),
             correlations=dict(d.get("correlations", {})),
             quality=FitQuality(**d["quality"]) if "quality" in d else FitQuality(float("nan"), float("nan"), 0),
             warnings=tuple(d.get("warnings", ())),

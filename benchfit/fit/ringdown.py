@@ -206,7 +206,10 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
 
     cap = as_capture(capture)
     where = source_name(cap)
-    fix_d, _ = check_parts(fix, None, where)
+    from benchfit.fit.tolerance import as_fixed
+
+    fix_specs = {n: as_fixed(v) for n, v in (fix or {}).items()}
+    fix_d, _ = check_parts({n: fv.value for n, fv in fix_specs.items()}, None, where)
     unknown = [k for k in fix_d if k not in ("L", "C")]
     if unknown or len(fix_d) > 1:
         raise FitError(f"--fix {', '.join(fix_d)}: a ring-down fit can use one known part, L or C — "
@@ -267,7 +270,10 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
     u_q = math.sqrt((dq[0] * u_wd) ** 2 + (dq[1] * u_al) ** 2)
     two_pi = 2 * math.pi
     derived = {
+        # the ring shows the loaded circuit's natural frequency; without the parts it stands in
+        # for the L-C resonance 1/(2π√(LC)), which it equals when Rs ≪ Rload and Resr ≪ Rload
         "resonant_frequency_hz": DerivedValue(w0 / two_pi, u_w0 / two_pi),
+        "natural_frequency_hz": DerivedValue(w0 / two_pi, u_w0 / two_pi),
         "q_factor": DerivedValue(q, u_q),
         "damped_frequency_hz": DerivedValue(wd / two_pi, u_wd / two_pi),
         "decay_rate_per_s": DerivedValue(al, u_al),
@@ -280,11 +286,27 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
     if fix_d:
         (known, value), = fix_d.items()
         other = "C" if known == "L" else "L"
+        from benchfit.uncertainty import Budget, Contribution
+
         val = 1.0 / (w0 * w0 * value)
-        params[known] = FitParameter(value, None, True, PARAMETER_UNITS[known])
-        params[other] = FitParameter(val, 2 * val * u_w0 / w0, False, PARAMETER_UNITS[other])
+        spec = fix_specs[known]
+        unit = PARAMETER_UNITS[known]
+        u_fit = 2 * val * u_w0 / w0
+        rows = [Contribution("noise (ring fit)", "A", "normal", u_w0 / two_pi, "Hz", -2 * val / (w0 / two_pi))]
+        if spec.u is not None:  # other = 1/(ω0²·known): ∂other/∂known = −other/known
+            rows.append(Contribution(f"fixed {known} ({spec.text}, {spec.distribution})", "B", spec.distribution,
+                                     spec.u, unit, -val / value, math.inf, spec.source))
+        b = Budget(other, val, PARAMETER_UNITS[other], tuple(rows),
+                   conditional_on=() if spec.u is not None else (known,))
+        fixed_b = None if spec.u is None else Budget(known, value, unit, (rows[-1].__class__(
+            rows[-1].name, "B", spec.distribution, spec.u, unit, 1.0, math.inf, spec.source),))
+        params[known] = FitParameter(value, spec.u, True, unit, None, fixed_b, () if spec.u else (known,))
+        params[other] = FitParameter(val, b.u, False, PARAMETER_UNITS[other], u_fit, b, b.conditional_on)
         warnings.append(f"{other}: computed from the resonant frequency and the fixed {known}, "
                         "assuming a light load and a small ESR")
+        if spec.u is None:
+            warnings.append(f"{known}: fixed without a tolerance, so {other} is conditional on it — give the "
+                            f"tolerance, e.g. --fix {known}=…±10%, to include it")
     data = np.concatenate([s.data - s.baseline for s in segments])
     model = np.concatenate([s.model - s.baseline for s in segments])
     res = data - model

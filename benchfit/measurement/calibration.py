@@ -22,6 +22,7 @@ from benchfit.errors import MeasureError
 
 __all__ = ["CLIP_FS", "DEFAULT_METER_HALF_WIDTH_REL", "GainEstimate", "TimebaseEstimate",
            "estimate_gain", "default_meter_u", "combine_gain_u_rel", "estimate_timebase",
+           "estimate_distortion_floor", "DistortionFloorEstimate",
            "estimate_coupling"]
 
 #: a sample at or above this magnitude (−0.1 dBFS) counts as clipped
@@ -253,3 +254,32 @@ def estimate_coupling(x: np.ndarray, sample_rate: float, what: str = "coupling")
         raise MeasureError(
             f"{what}: no droop could be measured — feed a square wave of 5–20 Hz and record a few seconds")
     return float(tau)
+
+
+@dataclass(frozen=True)
+class DistortionFloorEstimate:
+    """Result of :func:`estimate_distortion_floor`: THD_F (%) of a clean loop, its u, tone, level."""
+
+    floor_pct: float
+    u_pct: float
+    frequency_hz: float
+    level_fs: float
+
+
+def estimate_distortion_floor(x: np.ndarray, sample_rate: float, harmonics: int = 10,
+                              what: str = "distortion") -> DistortionFloorEstimate:
+    """The card's own THD_F from a loop-back (or clean reference sine) recording.
+
+    THD_F over harmonics 2…H with its noise uncertainty (IEEE 1241 definition, REFERENCES §1,
+    as :func:`benchfit.measurement.summary.measure_channel` computes it); the peak level of
+    the fundamental in the file's units (FS).
+    """
+    from benchfit.measurement.summary import measure_channel
+
+    ch = measure_channel(np.asarray(x, dtype=float), float(sample_rate), unit="FS", harmonics=int(harmonics))
+    if ch.frequency_hz is None or ch.thd_pct is None:
+        raise MeasureError(f"{what}: no sine with harmonics below Nyquist found — record the card's output looped "
+                           "to its input (or a clean reference sine) at the level the units produce")
+    u = ch.extra.get("thd_u_pct")
+    return DistortionFloorEstimate(float(ch.thd_pct), float(u) if u is not None else 0.0,
+                                   float(ch.frequency_hz), float(ch.amplitude or 0.0))

@@ -83,6 +83,8 @@ class ChannelMeasurement:
     duty_cycle_u_pct: float | None = None
     rise_time_u_s: float | None = None
     fall_time_u_s: float | None = None
+    #: GUM budget per reported quantity (benchfit.uncertainty.Budget), e.g. "frequency_hz"
+    budget: Mapping[str, Any] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "harmonics", tuple(self.harmonics))
@@ -91,6 +93,7 @@ class ChannelMeasurement:
         for name in UNCERTAINTY_FIELDS:
             if getattr(self, name) is None and self.extra.get(name) is not None:
                 object.__setattr__(self, name, float(self.extra[name]))
+        object.__setattr__(self, "budget", MappingProxyType(dict(self.budget)))
 
     def to_dict(self, full: bool = False) -> dict[str, Any]:
         d = {
@@ -105,6 +108,8 @@ class ChannelMeasurement:
             **{name: _clean(getattr(self, name)) for name in UNCERTAINTY_FIELDS},
             "harmonics": [h.to_dict() for h in self.harmonics],
             "clipped": bool(self.clipped), "warnings": list(self.warnings),
+            # added to the DESIGN.md contract: the GUM budget of each quantity that has a u
+            "budget": {k: b.to_dict() for k, b in self.budget.items()},
         }
         if full:
             d["extra"] = {k: _clean(v) for k, v in self.extra.items()}
@@ -153,6 +158,7 @@ class Measurement:
         for c in self.channels:
             d = c.to_dict()
             d.pop("harmonics")
+            d.pop("budget")
             d["warnings"] = "; ".join(d["warnings"])
             rows.append(d)
         df = pd.DataFrame(rows)

@@ -44,6 +44,7 @@ import numpy as np
 
 from benchfit.capture.capture import Capture, ChannelSpec
 from benchfit.errors import MeasureError
+from benchfit.measurement.budgets import channel_budgets
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
 from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
 from benchfit.measurement.pulse import PulseResult, pulse_parameters
@@ -78,7 +79,9 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                     harmonics: int = DEFAULT_HARMONICS, timebase_ppm: float = 0.0,
                     timebase_u_ppm: float = 0.0, coupling_tau_s: float | None = None,
                     full_scale: float | None = None, gain_u_rel: float | None = None,
-                    extra_warnings: tuple[str, ...] = ()) -> ChannelMeasurement:
+                    extra_warnings: tuple[str, ...] = (), timebase_calibrated: bool = True,
+                    timebase_source: str = "", gain_source: str = "calibration profile",
+                    distortion_floor_pct: float | None = None) -> ChannelMeasurement:
     """Measure one channel.
 
     Parameters
@@ -105,6 +108,16 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         and vpp. None: not known or not applicable (no gain applied).
     extra_warnings : tuple of str
         Warnings to carry over (e.g. from reading the file).
+    timebase_calibrated : bool
+        False when ``timebase_u_ppm`` is a stated default rather than a calibration (the
+        budget row then says so and is rectangular).
+    timebase_source, gain_source : str
+        Provenance of the timebase and gain figures, for the budget rows.
+    distortion_floor_pct : float, optional
+        THD (%) the card itself adds (calibrate distortion): budgeted in ``thd_pct``.
+
+    The GUM budget of every quantity with an uncertainty is in ``ChannelMeasurement.budget``
+    (:mod:`benchfit.measurement.budgets`).
 
     Returns
     -------
@@ -146,6 +159,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     u_fit = float(fit.frequency_u_hz) if fit.frequency_u_hz is not None else math.nan
     u_tb = abs(f) * float(timebase_u_ppm) * 1e-6
     u_f = math.sqrt(u_fit ** 2 + u_tb ** 2)
+    level_noise: dict[str, float] = {}
     if not fit.converged:
         warnings.append("the frequency fit did not settle — the frequency may be off; "
                         "record a longer, steadier signal")
@@ -233,7 +247,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         "whole_periods_used": levels.whole_periods,
         "frequency_u_fit_hz": u_fit,
         "frequency_method": method,
-        "frequency_u_timebase_hz": u_tb,
+        "frequency_u_timebase_hz": abs(f) * float(timebase_u_ppm) * 1e-6,
+        "timebase_calibrated": bool(timebase_calibrated),
         "fit_iterations": int(fit.iterations),
         "thd_u_pct": None if thd is None or dist.thd_u is None else 100.0 * dist.thd_u,
         "snr_db": snr,
@@ -251,7 +266,24 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             "coupling_source": pulse.coupling_source,
             "droop_pct": pulse.droop_pct,
         })
+    thd_floor = None if distortion_floor_pct is None else float(distortion_floor_pct)
+    if thd_floor is not None and thd is not None:
+        extra["distortion_floor_pct"] = thd_floor
+    budget = channel_budgets(
+        unit=unit, frequency_hz=f, frequency_u_noise_hz=u_fit, frequency_method=method,
+        timebase_u_ppm=float(timebase_u_ppm), timebase_calibrated=timebase_calibrated,
+        timebase_source=timebase_source,
+        levels={"amplitude": (amplitude, float(fit.amplitudes_u[0])), "vdc": (levels.vdc, float(fit.dc_u)),
+                "vrms": (levels.vrms, _vrms_u(levels.vrms, fit.rss / n, levels.span_samples)),
+                "vpp": (levels.vpp, vpp_u_noise)},
+        gain_u_rel=gain_u_rel, gain_source=gain_source,
+        thd_pct=None if thd is None else 100.0 * thd, thd_u_noise_pct=extra["thd_u_pct"],
+        distortion_floor_pct=thd_floor,
+        duty=(pulse.duty_cycle_pct, pulse.duty_cycle_u_pct) if pulse.two_level else (None, None),
+        times={"rise_time_s": (pulse.rise_time_s, pulse.rise_time_u_s),
+               "fall_time_s": (pulse.fall_time_s, pulse.fall_time_u_s)} if pulse.two_level else None)
     return ChannelMeasurement(
+        budget=budget,
         name=name, unit=unit, frequency_hz=f, frequency_u_hz=_f(u_f),
         amplitude=_f(amplitude), vdc=float(levels.vdc), vrms=float(levels.vrms),
         vpp=float(levels.vpp), duty_cycle_pct=_f(pulse.duty_cycle_pct),
@@ -335,26 +367,37 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         cap = load(capture_or_path)
     if channels is not None and not (isinstance(channels, (list, tuple)) and not channels):
         cap = cap.select(channels)  # (an empty list measures every channel, as it always has)
+    from benchfit.uncertainty import DEFAULT_GAIN_NOTE, DEFAULT_GAIN_U_REL, DEFAULT_TIMEBASE_NOTE
+
     cal = cap.calibration
     gains = cal.gain_v_per_fs
     gains_u = cal.gain_u_rel
+    tb_cal = cal.timebase_calibrated
+    tb_source = (f"calibration profile {cal.profile or 'unnamed'}" if tb_cal else
+                 "stated default for an uncalibrated crystal clock (common practice, no source)")
     results = []
     for i, (name, unit) in enumerate(zip(cap.channel_names, cap.units)):
         full_scale = None
         gain_u = None
+        gain_source = f"calibration profile {cal.profile or 'unnamed'}"
         notes = tuple(cap.warnings)
+        if not tb_cal:
+            notes += (DEFAULT_TIMEBASE_NOTE,)
         if unit == "V" and gains is not None and i < len(gains) and gains[i]:
             full_scale = abs(float(gains[i]))
             if gains_u is not None and i < len(gains_u):
                 gain_u = float(gains_u[i])
             else:
-                notes += (f"gain uncertainty not known (calibration profile {cal.profile or 'unnamed'!s} does not "
-                          "give it) — the levels' uncertainties in V hold only noise; run 'benchfit calibrate "
-                          "gain' again with --rms-u and record with the new profile",)
+                gain_u = DEFAULT_GAIN_U_REL
+                gain_source = "stated default (calibration gives no uncertainty)"
+                notes += (f"{DEFAULT_GAIN_NOTE}: calibration profile {cal.profile or 'unnamed'!s} does not "
+                          "state it — run 'benchfit calibrate gain' again with --rms-u and record with the "
+                          "new profile",)
         results.append(measure_channel(
             cap.samples[i], cap.sample_rate, name=name, unit=unit, harmonics=int(h),
-            timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm,
+            timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm_effective,
             coupling_tau_s=cal.coupling_tau_s, full_scale=full_scale, gain_u_rel=gain_u,
-            extra_warnings=notes))
+            extra_warnings=notes, timebase_calibrated=tb_cal, timebase_source=tb_source,
+            gain_source=gain_source, distortion_floor_pct=cal.distortion_floor_pct))
     return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
                        duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)

@@ -26,11 +26,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["PARAMETER_NAMES", "LowpassParts", "coefficients", "transfer", "second_order",
+__all__ = ["PARAMETER_NAMES", "PART_NAMES", "LowpassParts", "coefficients", "coefficients_full", "feedthrough",
+           "transfer", "second_order",
            "state_space", "discretize", "simulate", "free_response_basis", "rectangular_phasors"]
 
 #: the parameters of the lc-lowpass model, in the order used everywhere
 PARAMETER_NAMES: tuple[str, ...] = ("L", "C", "Rs", "Resr", "Rload")
+#: every part the model knows, with the optional core loss Rp (fitted only when the data call for it)
+PART_NAMES: tuple[str, ...] = PARAMETER_NAMES + ("Rp",)
 
 
 @dataclass(frozen=True)
@@ -49,6 +52,10 @@ class LowpassParts:
         Capacitor equivalent series resistance in ohm (may be 0).
     Rload : float
         Load across the output in ohm (``math.inf`` for an open output).
+    Rp : float
+        Core loss of the choke as a resistance across L, in ohm (``math.inf``: none, the
+        default). At angular frequency ω it acts like a series resistance (ωL)²/Rp for
+        Rp ≫ ωL (REFERENCES §11), a loss rising as f², unlike Rs or the ESR.
     """
 
     L: float
@@ -56,34 +63,60 @@ class LowpassParts:
     Rs: float
     Resr: float = 0.0
     Rload: float = math.inf
+    Rp: float = math.inf
 
     @property
     def g(self) -> float:
         """Load conductance 1/Rload in siemens (0 for an open output)."""
         return 0.0 if math.isinf(self.Rload) else 1.0 / self.Rload
 
+    @property
+    def gp(self) -> float:
+        """Core-loss conductance 1/Rp in siemens (0 without core loss)."""
+        return 0.0 if math.isinf(self.Rp) else 1.0 / self.Rp
+
     def as_dict(self) -> dict[str, float]:
-        return {"L": self.L, "C": self.C, "Rs": self.Rs, "Resr": self.Resr, "Rload": self.Rload}
+        out = {"L": self.L, "C": self.C, "Rs": self.Rs, "Resr": self.Resr, "Rload": self.Rload}
+        if not math.isinf(self.Rp):
+            out["Rp"] = self.Rp
+        return out
 
 
 def coefficients(p: LowpassParts) -> tuple[np.ndarray, np.ndarray]:
     """Numerator ``[b1, b0]`` and denominator ``[a2, a1, a0]`` of H(s), highest power first.
 
     Both are the textbook polynomials divided by Rload, so they stay finite for an open output.
+    With core loss (finite Rp) the numerator has a second-order term: use
+    :func:`coefficients_full`, which this function then refuses to truncate.
     """
-    g = p.g
-    b = np.array([p.Resr * p.C, 1.0])
-    a = np.array([p.L * p.C * (1.0 + p.Resr * g),
-                  p.L * g + p.C * (p.Rs * (1.0 + p.Resr * g) + p.Resr),
-                  1.0 + p.Rs * g])
+    if not math.isinf(p.Rp):
+        raise ValueError("coefficients: the part has core loss (finite Rp) — use coefficients_full")
+    b, a = coefficients_full(p)
+    return b[1:], a
+
+
+def coefficients_full(p: LowpassParts) -> tuple[np.ndarray, np.ndarray]:
+    """Numerator ``[b2, b1, b0]`` and denominator ``[a2, a1, a0]`` of H(s) including core loss.
+
+    With Z1 = Rs + (sL ∥ Rp) and Y2 = g + sC/(1 + sC·Resr), H = 1/(1 + Z1·Y2); multiplied
+    through by (1 + sL·γ)(1 + sC·Resr) with γ = 1/Rp (so Rp = ∞ gives γ = 0 and the
+    second-order form of the module docstring):
+    N(s) = (1 + sLγ)(1 + sC·Resr),
+    D(s) = N(s) + (sL(1 + Rs·γ) + Rs)·(g + sC(1 + g·Resr)).
+    """
+    g, gp, L, C, rs, rc = p.g, p.gp, p.L, p.C, p.Rs, p.Resr
+    b = np.array([L * gp * C * rc, L * gp + C * rc, 1.0])
+    a = np.array([b[0] + L * (1.0 + rs * gp) * C * (1.0 + g * rc),
+                  b[1] + L * (1.0 + rs * gp) * g + rs * C * (1.0 + g * rc),
+                  1.0 + rs * g])
     return b, a
 
 
 def transfer(frequency_hz: np.ndarray | float, p: LowpassParts) -> np.ndarray:
     """Complex response H(j·2πf) (output / drive, dimensionless) at the given frequencies in Hz."""
     s = 2j * math.pi * np.asarray(frequency_hz, dtype=float)
-    b, a = coefficients(p)
-    return (b[0] * s + b[1]) / ((a[0] * s + a[1]) * s + a[2])
+    b, a = coefficients_full(p)
+    return ((b[0] * s + b[1]) * s + b[2]) / ((a[0] * s + a[1]) * s + a[2])
 
 
 def second_order(p: LowpassParts) -> dict[str, float]:
@@ -92,17 +125,21 @@ def second_order(p: LowpassParts) -> dict[str, float]:
     Returns
     -------
     dict
-        ``resonant_frequency_hz`` (√(a0/a2)/2π), ``q_factor`` (√(a0·a2)/a1),
-        ``decay_rate_per_s`` (α = a1/(2·a2), in 1/s) and ``damped_frequency_hz``
-        (√(ω0² − α²)/2π, NaN when the circuit is not underdamped, Q ≤ 0.5).
+        ``resonant_frequency_hz`` (1/(2π√(LC)), the L-C resonance as DESIGN.md defines it),
+        ``natural_frequency_hz`` (√(a0/a2)/2π, the loaded circuit's undamped natural
+        frequency: higher than the L-C resonance by √((1 + Rs/Rload)/(1 + Resr/Rload))),
+        ``q_factor`` (√(a0·a2)/a1), ``decay_rate_per_s`` (α = a1/(2·a2), in 1/s) and
+        ``damped_frequency_hz`` (√(ω0² − α²)/2π with ω0 the natural frequency, NaN when the
+        circuit is not underdamped, Q ≤ 0.5).
     """
-    _, a = coefficients(p)
+    _, a = coefficients_full(p)
     a2, a1, a0 = (float(v) for v in a)
     w0 = math.sqrt(a0 / a2)
     alpha = a1 / (2.0 * a2)
     wd2 = w0 * w0 - alpha * alpha
     return {
-        "resonant_frequency_hz": w0 / (2 * math.pi),
+        "resonant_frequency_hz": 1.0 / (2 * math.pi * math.sqrt(p.L * p.C)),
+        "natural_frequency_hz": w0 / (2 * math.pi),
         "q_factor": math.sqrt(a0 * a2) / a1,
         "damped_frequency_hz": math.sqrt(wd2) / (2 * math.pi) if wd2 > 0 else math.nan,
         "decay_rate_per_s": alpha,
@@ -112,16 +149,34 @@ def second_order(p: LowpassParts) -> dict[str, float]:
 def state_space(p: LowpassParts) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Continuous state-space matrices (A, B, C_out) for states x = [i_L (A), v_C (V)].
 
-    From Kirchhoff's laws: v_out = (v_C + Resr·i_L)/(1 + Resr·g);
-    L·di_L/dt = u − Rs·i_L − v_out; C·dv_C/dt = i_L − g·v_out.
+    From Kirchhoff's laws, with the series current i = i_L + γ·v_L through L ∥ Rp (γ = 1/Rp):
+    v_out = k·(v_C + Resr·i), k = 1/(1 + Resr·g); v_L = u − (Rs + k·Resr)·i − k·v_C;
+    L·di_L/dt = v_L; C·dv_C/dt = i − g·v_out. Without core loss i = i_L. With it the
+    output also follows the drive directly: see :func:`feedthrough`.
     """
-    g, rc = p.g, p.Resr
-    k = 1.0 / (1.0 + rc * g)
-    a = np.array([[-(p.Rs + rc * k) / p.L, -k / p.L],
-                  [k / p.C, -g * k / p.C]])
-    b = np.array([1.0 / p.L, 0.0])
-    c = np.array([rc * k, k])
+    a, b, c, _ = _state_space_d(p)
     return a, b, c
+
+
+def feedthrough(p: LowpassParts) -> float:
+    """The direct term D of v_out = C·x + D·u (0 without core loss)."""
+    return _state_space_d(p)[3]
+
+
+def _state_space_d(p: LowpassParts):
+    g, rc, gp = p.g, p.Resr, p.gp
+    k = 1.0 / (1.0 + rc * g)
+    r = p.Rs + k * rc
+    m = 1.0 + gp * r
+    # i, v_out and v_L as rows over (i_L, v_C, u)
+    i = np.array([1.0, -gp * k, gp]) / m
+    v_out = k * (np.array([0.0, 1.0, 0.0]) + rc * i)
+    v_l = np.array([0.0, -k, 1.0]) - r * i
+    dil = v_l / p.L
+    dvc = (i - g * v_out) / p.C
+    a = np.array([dil[:2], dvc[:2]])
+    b = np.array([dil[2], dvc[2]])
+    return a, b, v_out[:2].copy(), float(v_out[2])
 
 
 def _foh(p: LowpassParts, sample_rate: float):
@@ -151,7 +206,7 @@ def discretize(p: LowpassParts, sample_rate: float) -> tuple[np.ndarray, np.ndar
 
     phi, gam0, gam1, c = _foh(p, sample_rate)
     bd = phi @ gam1 + gam0 - gam1
-    dd = float(c @ gam1)
+    dd = float(c @ gam1) + feedthrough(p)
     num, den = ss2tf(phi, bd[:, None], c[None, :], np.array([[dd]]))
     return np.asarray(num[0], dtype=float), np.asarray(den, dtype=float)
 

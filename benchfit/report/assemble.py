@@ -138,9 +138,10 @@ def _measured_value(limit: Limit, measured: Sequence[Mapping[str, Any]]) -> dict
             if u is not None:
                 break
         return {"value": value, "u": u, "file": m["file"], "channel": ch["name"],
-                "unit": quantity_unit(limit.quantity, ch["unit"]), "reason": ""}
+                "unit": quantity_unit(limit.quantity, ch["unit"]), "reason": "",
+                "budget": (ch.get("budget") or {}).get(limit.quantity)}
     return {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit,
-            "reason": "; ".join(reasons) or "no capture measured"}
+            "reason": "; ".join(reasons) or "no capture measured", "budget": None}
 
 
 def _fitted_value(limit: Limit, fits: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
@@ -152,9 +153,10 @@ def _fitted_value(limit: Limit, fits: Sequence[Mapping[str, Any]]) -> dict[str, 
             reasons.append(f"{f['file']}: {limit.quantity} not given by the {f['model']} fit")
             continue
         return {"value": item["value"], "u": item.get("stderr"), "file": f["file"], "channel": None,
-                "unit": limit.unit, "reason": ""}
+                "unit": limit.unit, "reason": "", "budget": item.get("budget")}
     return {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit,
-            "reason": "; ".join(reasons) or "no fit made — give fit options or check the fit errors"}
+            "reason": "; ".join(reasons) or "no fit made — give fit options or check the fit errors",
+            "budget": None}
 
 
 #: the method line of a report that has a Stability section
@@ -369,6 +371,31 @@ def load_drift(drift: str | Path | Mapping[str, Any]) -> dict[str, Any]:
     return drift_file(p).to_dict()
 
 
+def _with_spec_fixes(options: FitOptions, spec: Spec) -> FitOptions:
+    """Parts the spec's [conditions] hold fixed (``fix_L = "300m±10%"``) unless --fix gave them.
+
+    The value may carry a tolerance (``±10%`` or an absolute ``±5m``, read as rectangular), which
+    the fit propagates into every fitted value; without one the results are conditional on it.
+    """
+    from dataclasses import replace
+
+    from benchfit.fit.tolerance import FixedValue, parse_fixed
+
+    extra: dict[str, Any] = {}
+    for key, value in spec.conditions.items():
+        if not key.startswith("fix_"):
+            continue
+        name = key[4:]
+        if name in options.fix:
+            continue
+        try:
+            fv = parse_fixed(str(value), f"conditions.{key}")
+        except ValueError as e:
+            raise SpecError(f"{spec.path or 'spec'}: {e}") from e
+        extra[name] = FixedValue(fv.value, fv.half_width, fv.distribution, fv.text, f"spec [conditions] {key}")
+    return replace(options, fix={**options.fix, **extra}) if extra else options
+
+
 def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
     """``benchfit.fit_lowpass`` or ``benchfit.fit_ringdown`` and the keyword options it accepts.
 
@@ -478,6 +505,8 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     if not unit or not unit.strip():
         raise SpecError("--unit: the serial is empty — give the unit's serial, e.g. --unit HC-07")
     fit_opts = fit if fit is not None else (FitOptions() if sp.needs_fit else None)
+    if fit_opts is not None:
+        fit_opts = _with_spec_fixes(fit_opts, sp)
     fit_fn, fit_kwargs = _fit_call(fit_opts) if fit_opts is not None else (None, {})
     left, found = [], []
     for paths, group in ((captures, left), (as_found, found)):

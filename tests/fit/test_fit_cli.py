@@ -63,7 +63,11 @@ def test_json_output_follows_the_contract(tmp_path, run):
     d = json.loads(out)
     assert d["model"] == "lc-lowpass" and d["method"] == "two-channel"
     assert d["file"].endswith("hc03_drive_output.csv")
-    assert d["parameters"]["L"] == {"value": 0.3, "stderr": None, "fixed": True, "unit": "H"}
+    # the DESIGN.md keys unchanged; issue 11 adds u_fit, budget, conditional_on
+    assert {k: d["parameters"]["L"][k] for k in ("value", "stderr", "fixed", "unit")} == {
+        "value": 0.3, "stderr": None, "fixed": True, "unit": "H"}
+    assert d["parameters"]["L"]["conditional_on"] == ["L"] and "L" in d["conditional_on"]
+    assert any(w.startswith("L, Rload: fixed without a tolerance") for w in d["warnings"])
     # 2 mV noise on the output: C within 1 % (stderr ≈ 0.01 %)
     assert d["parameters"]["C"]["value"] == pytest.approx(33e-6, rel=0.01)
     assert d["parameters"]["C"]["stderr"] > 0

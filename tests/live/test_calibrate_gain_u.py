@@ -149,8 +149,11 @@ def test_old_profile_without_the_key_still_loads(tmp_path, capsys):
     write_sidecar(wav, {"benchfit_sidecar": 1, "channels": [{"name": "output"}], "sample_rate_hz": FS,
                         "calibration": prof.sidecar_calibration(1)})
     ch = benchfit.measure(wav).channels[0]
-    assert ch.unit == "V" and ch.extra["gain_u_rel"] is None
-    assert any("gain uncertainty not known" in w for w in ch.warnings)
+    # issue 11: measure applies the stated default (±1 % rectangular) and says so, never "exact"
+    from benchfit.uncertainty import DEFAULT_GAIN_U_REL
+
+    assert ch.unit == "V" and ch.extra["gain_u_rel"] == DEFAULT_GAIN_U_REL
+    assert any("gain uncertainty not stated" in w for w in ch.warnings)
     # calibrating the gain again adds the uncertainty and keeps the timebase
     _sine = _sine_wav(tmp_path / "sine.wav")
     code, out, err = run(["calibrate", "gain", _sine, "--rms", "353.553m", "--rms-u", "0.3%",

@@ -76,8 +76,9 @@ def test_recorded_tone_frequency_and_timebase_profile(rig, tmp_path):
         # pretend a counter says the ref tone is 997.1495 Hz: the card then runs +149.95 ppm fast
         f_ref = 997.1495
         ppm_expected = (f_ref / 997.0 - 1) * 1e6
-        r = rig.benchfit("calibrate", "timebase", str(a), "--frequency", str(f_ref), "--channel", "ref",
-                         "--profile", "card", "--json")
+        # the counter's stated u (1 µHz here, so the fit's own u shows); without it a stated default applies
+        r = rig.benchfit("calibrate", "timebase", str(a), "--frequency", str(f_ref), "--frequency-u", "1u",
+                         "--channel", "ref", "--profile", "card", "--json")
         assert r.returncode == 0, r.stderr
         tb = json.loads(r.stdout)
         assert abs(tb["ppm"] - ppm_expected) < 0.5  # 1 ppm path bound, halved for margin

@@ -28,6 +28,7 @@ CHANNEL_TYPES = {
     "amplitude_u": (float, type(None)), "vdc_u": (float, type(None)), "vrms_u": (float, type(None)),
     "vpp_u": (float, type(None)), "thd_u_pct": (float, type(None)), "duty_cycle_u_pct": (float, type(None)),
     "rise_time_u_s": (float, type(None)), "fall_time_u_s": (float, type(None)),
+    "budget": (dict,),  # added by issue 11: GUM budget per quantity (benchfit.uncertainty.Budget.to_dict)
 }
 HARMONIC_TYPES = {"order": (int,), "frequency_hz": (float,), "amplitude": (float,), "phase_deg": (float,),
                   "amplitude_u": (float, type(None))}

@@ -15,6 +15,8 @@ import pytest
 
 import benchfit
 from benchfit.capture.capture import Capture, InputCalibration
+from benchfit.measurement.summary import measure_channel
+from benchfit.uncertainty import DEFAULT_GAIN_U_REL
 from benchfit.measurement.levels import percentile_noise_u, quantisation_step, signal_levels, vpp_noise_u
 
 FS = 48000.0
@@ -47,9 +49,14 @@ def _value(ch, name):
 
 def test_level_uncertainties_are_the_quadrature_sum():
     x = _hum_sine()
-    without = benchfit.measure(_capture(x, None)).channels[0]
+    # the noise-only figures: the channel measured with no gain term at all
+    without = measure_channel(x, FS, name="output", unit="V", full_scale=4.0)
     with_gain = benchfit.measure(_capture(x, (0.003,))).channels[0]
     assert with_gain.extra["gain_u_rel"] == 0.003 and without.extra["gain_u_rel"] is None
+    # the budget shows the two rows: noise (Type A) and gain (Type B), combined as below
+    rows = {r.name: r for r in with_gain.budget["vrms"].contributions}
+    assert set(rows) == {"noise", "gain"} and rows["gain"].type == "B"
+    assert with_gain.budget["vrms"].u == pytest.approx(with_gain.extra["vrms_u"], rel=1e-12)
     for name in LEVELS:
         # the values themselves do not move: the same samples, the same arithmetic
         assert _value(with_gain, name) == _value(without, name)
@@ -81,7 +88,7 @@ def test_ratios_are_unaffected_by_the_gain_uncertainty():
     # each channel got its own gain uncertainty
     assert [c.extra["gain_u_rel"] for c in b.channels] == [0.003, 0.005]
     assert b.channels[0].extra["vpp_u"] == pytest.approx(
-        math.hypot(a.channels[0].extra["vpp_u"], 0.003 * a.channels[0].vpp), rel=1e-12)  # GUM 5.1.2
+        math.hypot(a.channels[0].extra["vpp_u_noise"], 0.003 * a.channels[0].vpp), rel=1e-12)  # GUM 5.1.2
 
 
 def test_measure_channels_picks_the_right_gain_uncertainty():
@@ -90,13 +97,18 @@ def test_measure_channels_picks_the_right_gain_uncertainty():
     assert m.channels[0].name == "ch2" and m.channels[0].extra["gain_u_rel"] == 0.02
 
 
-def test_unknown_gain_uncertainty_is_said_and_not_invented():
+def test_unknown_gain_uncertainty_gets_the_stated_default_and_says_so():
+    # issue 11: a gain without a stated uncertainty is not exact; the stated default
+    # (rectangular ±1 %, benchfit.uncertainty, "from memory") enters the budget, and a note says so
     x = _hum_sine()
     ch = benchfit.measure(_capture(x, None)).channels[0]
-    notes = [w for w in ch.warnings if "gain uncertainty not known" in w]
+    notes = [w for w in ch.warnings if "gain uncertainty not stated" in w]
     assert len(notes) == 1 and "--rms-u" in notes[0] and "\n" not in notes[0]
-    # the noise-only uncertainty stays as it was: tiny, from the fit
-    assert ch.extra["vrms_u"] < 1e-4
+    assert ch.extra["gain_u_rel"] == DEFAULT_GAIN_U_REL
+    gain_row = [r for r in ch.budget["vrms"].contributions if r.name == "gain"][0]
+    assert gain_row.distribution == "rectangular" and "default" in gain_row.source
+    # at 1.3 V rms the default gain term dominates the µV of noise: u ≈ 0.577 % of the reading
+    assert ch.extra["vrms_u"] == pytest.approx(DEFAULT_GAIN_U_REL * ch.vrms, rel=1e-3)
     # volts without a sound-card gain (a scope's CSV) and FS have nothing to warn about
     for cap in (Capture(x, FS, ("output",), ("V",)), Capture(x / 4.0, FS, ("output",), ("FS",))):
         c = benchfit.measure(cap).channels[0]

@@ -35,7 +35,10 @@ def test_loaded_check_values():
     # DC gain 0.952381, |H| = 0.985205 (1 kHz), 2.03616 (5 kHz), 0.0670297 (20 kHz)
     p = LowpassParts(100e-6, 10e-6, 0.5, 0.05, 10.0)
     fig = second_order(p)
-    assert fig["resonant_frequency_hz"] == pytest.approx(5144.365, abs=5e-4)
+    # REFERENCES §6's f0 = √(a0/a2)/2π is the loaded natural frequency (issue 11 names it apart);
+    # resonant_frequency_hz is the L-C resonance 1/(2π√(LC)) of DESIGN.md (textbook, Nilsson & Riedel)
+    assert fig["natural_frequency_hz"] == pytest.approx(5144.365, abs=5e-4)
+    assert fig["resonant_frequency_hz"] == pytest.approx(1 / (2 * math.pi * math.sqrt(100e-6 * 10e-6)), rel=1e-12)
     assert fig["q_factor"] == pytest.approx(2.09241, abs=5e-6)
     assert abs(transfer(0.0, p)) == pytest.approx(0.952381, abs=5e-7)
     mags = np.abs(transfer(np.array([1e3, 5e3, 20e3]), p))

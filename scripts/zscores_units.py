@@ -1,0 +1,41 @@
+"""Print z-score spreads per simulated unit (issue 11): python3 scripts/zscores_units.py [SEEDS].
+
+For each case of tests/fit/units_issue11.py (ngspice-simulated, seeded noise) and each reported
+value: max |z|, sd and mean of z = (reported − true)/u over the seeds, and what was reported as
+not determined. Needs ngspice.
+"""
+
+from __future__ import annotations
+
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "tests" / "fit"))
+
+from units_issue11 import CASES, run_case  # noqa: E402
+
+
+def main() -> None:
+    n = int(sys.argv[1]) if len(sys.argv) > 1 else 10
+    with tempfile.TemporaryDirectory(prefix="benchfit-z-") as tmp:
+        for name in CASES:
+            rows = run_case(Path(tmp), name, range(n))
+            zs: dict[str, list[float]] = {}
+            for _, z, _ in rows:
+                for k, v in z.items():
+                    zs.setdefault(k, []).append(v)
+            und = sorted({u for _, _, us in rows for u in us})
+            print(f"{name} ({n} seeds); not determined in some seed: {', '.join(und) or 'none'}")
+            for k, v in zs.items():
+                a = np.asarray(v)
+                print(f"  {k:22s} max|z| {np.max(np.abs(a)):5.2f}   sd {np.std(a, ddof=1) if a.size > 1 else 0:5.2f}"
+                      f"   mean {np.mean(a):+5.2f}   (n = {a.size})")
+
+
+if __name__ == "__main__":
+    main()
