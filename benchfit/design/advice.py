@@ -272,13 +272,14 @@ def _fit_duty(fit) -> float | None:
 # --- the model over draws ----------------------------------------------------------------
 
 class _Evaluator:
-    def __init__(self, duty: float, swing: float, v_low: float, chain: CaptureChain):
+    def __init__(self, duty: float, swing: float, v_low: float, chain: CaptureChain, rp: float = math.inf):
         self.duty, self.swing, self.v_low, self.chain = duty, swing, v_low, chain
+        self.rp = rp  # the choke's fitted core loss (a resistance across L), inf when none was fitted
 
     def unit(self, s: _State, i: int) -> UnitModel:
         return UnitModel(Drive(float(s.f[i]), self.duty, self.v_low + self.swing, self.v_low),
                          LowpassParts(float(s.L[i]), float(s.C[i]), float(s.Rs[i]), float(s.Resr[i]),
-                                      float(s.Rload[i])))
+                                      float(s.Rload[i]), self.rp))
 
     def quantities(self, s: _State) -> dict[str, np.ndarray]:
         rows = [predict_quantities(self.unit(s, i), self.chain) for i in range(s.L.size)]
@@ -494,8 +495,13 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
                             "re-measure them after the change (a 1 % frequency change moves a tuned filter's "
                             "level and THD)")
     base.f = np.full(n, f_meas)
+    rp_param = None if fit is None else fit.parameters.get("Rp")
+    rp = math.inf if rp_param is None or rp_param.value is None else float(rp_param.value)
+    if math.isfinite(rp):
+        notes.append(f"the fitted core loss Rp = {_q(rp, 'Ω')} (a resistance across L) is kept in every plan; "
+                     "a replacement choke's own core loss is not known")
     nom_parts = LowpassParts(float(base.L[0]), float(base.C[0]), float(base.Rs[0]), float(base.Resr[0]),
-                             float(base.Rload[0]))
+                             float(base.Rload[0]), rp)
     ac = ch is not None and abs(float(ch.get("vdc") or 0.0)) < 0.1 * float(ch.get("vrms") or 1.0)
     chain = CaptureChain(ac_coupled=bool(ac))
     est = None if (ch is None or fit is None) else _estimate_drive(ch, nom_parts, f_meas, chain)
@@ -520,7 +526,7 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
         notes.append(f"drive: rectangular, duty {d * 100:.2f} % (or its complement), swing {swing:.4g} V "
                      + ("estimated from the measured harmonics through the fitted filter" if est else "as given")
                      + "; the source resistance is inside the fitted Rs")
-    ev = _Evaluator(d, swing, 0.0, chain)
+    ev = _Evaluator(d, swing, 0.0, chain, rp)
     if fit is None:
         limits_eval = [lim for lim in limits if lim.quantity == "frequency_hz"]
     else:
