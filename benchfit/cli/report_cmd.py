@@ -91,7 +91,7 @@ def report_command(
                                                        "(with --each: one line per unit as it finishes)."),
 ) -> None:
     from benchfit.cli.batch import collect_captures, prefer_one_blas_thread
-    from benchfit.cli.common import fail, parse_assignments
+    from benchfit.cli.common import fail
 
     prefer_one_blas_thread()  # before numpy loads: its small matrix products run faster on one thread
 

@@ -159,7 +159,6 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     u_fit = float(fit.frequency_u_hz) if fit.frequency_u_hz is not None else math.nan
     u_tb = abs(f) * float(timebase_u_ppm) * 1e-6
     u_f = math.sqrt(u_fit ** 2 + u_tb ** 2)
-    level_noise: dict[str, float] = {}
     if not fit.converged:
         warnings.append("the frequency fit did not settle — the frequency may be off; "
                         "record a longer, steadier signal")

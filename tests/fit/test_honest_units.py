@@ -16,10 +16,9 @@ coupling and without quantisation), so ESR lands up to 5 u from the truth.
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
 
-from units_issue11 import CASES, run_case
+from units_issue11 import run_case
 
 pytestmark = pytest.mark.ngspice
 
