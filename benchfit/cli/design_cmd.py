@@ -93,7 +93,7 @@ def _series(text: str, option: str) -> str:
     try:
         return check_series(text)
     except DesignError as e:
-        fail(f"{option} {text!r}: unknown series — {str(e).partition(' — ')[2] or 'use E6, E12, E24, E48 or E96'}")
+        fail(f"{option} {text!r}: unknown series — {str(e).partition(' — ')[2] or 'use E6, E12, E24, E48, E96 or E192'}")
 
 
 class _OptionNames:
@@ -204,7 +204,7 @@ def astable_command(
     duty: Optional[str] = typer.Option(None, "--duty", metavar="DUTY", help="High time / period, e.g. 55% or 0.55. "
                                        "Default: as near 50 % as the circuit allows."),
     cap: Optional[str] = typer.Option(None, "--cap", metavar="F", help="Timing capacitor C1, e.g. 1u (F). Default: chosen."),
-    series: str = typer.Option("E24", "--series", metavar="SERIES", help="Resistor series: E6, E12, E24, E48 or E96."),
+    series: str = typer.Option("E24", "--series", metavar="SERIES", help="Resistor series: E6, E12, E24, E48, E96 or E192."),
     cap_series: str = typer.Option("E6", "--cap-series", metavar="SERIES", help="Series for C1 when it is chosen."),
     supply: str = typer.Option("12", "--supply", metavar="V", help="Supply voltage (V)."),
     control_voltage: Optional[str] = typer.Option(None, "--control-voltage", metavar="V",
@@ -457,7 +457,7 @@ Example:
 def combine_command(
     value: str = typer.Argument(..., metavar="VALUE", help="Wanted value, e.g. 29.7u, 9.2k, 300m."),
     kind: str = typer.Option(..., "--kind", metavar="KIND", help="R, C or L."),
-    series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series to draw from: E6, E12, E24, E48 or E96."),
+    series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series to draw from: E6, E12, E24, E48, E96 or E192."),
     max_parts: int = typer.Option(3, "--max-parts", metavar="N", min=1, max=3, help="At most this many parts (1 to 3)."),
     stock: Optional[Path] = typer.Option(None, "--stock", metavar="FILE",
                                          help="CSV of parts on hand: a 'value' column, optional 'qty'."),

@@ -409,7 +409,7 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
     c1_farad : float, optional
         Timing capacitor (F). None: chosen from ``c_series`` between 1 nF and 100 µF.
     series : str
-        Resistor series (E6, E12, E24, E48, E96).
+        Resistor series (E6, E12, E24, E48, E96, E192).
     c_series : str
         Capacitor series used when ``c1_farad`` is None.
     supply_v : float

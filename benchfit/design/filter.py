@@ -252,7 +252,7 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
     duty : float
         Drive duty (high time / period).
     series : str
-        Series for the solved part (E6 … E96).
+        Series for the solved part (E6 … E192).
     amplitude_v : float
         Drive swing (V), 0 V to A.
     n_harmonics : int

@@ -31,7 +31,7 @@ __all__ = ["SeriesName", "PartKind", "E_SERIES", "SERIES_TOLERANCE", "PART_UNITS
            "check_series", "check_kind", "series_values", "nearest_values", "round_to_series",
            "Combination", "CombinationSet", "combine", "combination_value"]
 
-SeriesName = Literal["E6", "E12", "E24", "E48", "E96"]
+SeriesName = Literal["E6", "E12", "E24", "E48", "E96", "E192"]
 PartKind = Literal["R", "C", "L"]
 
 # IEC 60063:2015 Table 1 (two significant digits). These are the published tables; note that
@@ -42,8 +42,8 @@ _E24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0,
         3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1)
 # IEC 60063:2015 Table 2 (three significant digits) — from memory, not checked against the
 # standard's text. For E96 (and E48, every second E96 value) round(100·10**(i/96)) reproduces
-# every value listed here; the known exception of the three-digit tables (9.19 instead of
-# 9.20) belongs to E192, which benchfit does not use.
+# every value listed here; E192 is round(100·10**(i/192)) except one value, where the table has
+# 9.20 and the formula gives 9.19. The tests compare all of them with the eseries package.
 _E96 = tuple(v / 100 for v in (
     100, 102, 105, 107, 110, 113, 115, 118, 121, 124, 127, 130, 133, 137, 140, 143,
     147, 150, 154, 158, 162, 165, 169, 174, 178, 182, 187, 191, 196, 200, 205, 210,
@@ -52,15 +52,28 @@ _E96 = tuple(v / 100 for v in (
     464, 475, 487, 499, 511, 523, 536, 549, 562, 576, 590, 604, 619, 634, 649, 665,
     681, 698, 715, 732, 750, 768, 787, 806, 825, 845, 866, 887, 909, 931, 953, 976))
 _E48 = _E96[::2]
+_E192 = tuple(v / 100 for v in (
+    100, 101, 102, 104, 105, 106, 107, 109, 110, 111, 113, 114, 115, 117, 118, 120,
+    121, 123, 124, 126, 127, 129, 130, 132, 133, 135, 137, 138, 140, 142, 143, 145,
+    147, 149, 150, 152, 154, 156, 158, 160, 162, 164, 165, 167, 169, 172, 174, 176,
+    178, 180, 182, 184, 187, 189, 191, 193, 196, 198, 200, 203, 205, 208, 210, 213,
+    215, 218, 221, 223, 226, 229, 232, 234, 237, 240, 243, 246, 249, 252, 255, 258,
+    261, 264, 267, 271, 274, 277, 280, 284, 287, 291, 294, 298, 301, 305, 309, 312,
+    316, 320, 324, 328, 332, 336, 340, 344, 348, 352, 357, 361, 365, 370, 374, 379,
+    383, 388, 392, 397, 402, 407, 412, 417, 422, 427, 432, 437, 442, 448, 453, 459,
+    464, 470, 475, 481, 487, 493, 499, 505, 511, 517, 523, 530, 536, 542, 549, 556,
+    562, 569, 576, 583, 590, 597, 604, 612, 619, 626, 634, 642, 649, 657, 665, 673,
+    681, 690, 698, 706, 715, 723, 732, 741, 750, 759, 768, 777, 787, 796, 806, 816,
+    825, 835, 845, 856, 866, 876, 887, 898, 909, 920, 931, 942, 953, 965, 976, 988))
 
 #: mantissas (1 ≤ m < 10) of each series
 E_SERIES: Mapping[str, tuple[float, ...]] = MappingProxyType(
-    {"E6": _E6, "E12": _E12, "E24": _E24, "E48": _E48, "E96": _E96})
+    {"E6": _E6, "E12": _E12, "E24": _E24, "E48": _E48, "E96": _E96, "E192": _E192})
 
 #: conventional tolerance of each series (fraction), as usually paired with it; the 2015
 #: edition of IEC 60063 loosened this pairing, so read it as convention.
 SERIES_TOLERANCE: Mapping[str, float] = MappingProxyType(
-    {"E6": 0.20, "E12": 0.10, "E24": 0.05, "E48": 0.02, "E96": 0.01})
+    {"E6": 0.20, "E12": 0.10, "E24": 0.05, "E48": 0.02, "E96": 0.01, "E192": 0.005})
 
 #: SI unit of each kind of part (for messages and tables)
 PART_UNITS: Mapping[str, str] = MappingProxyType({"R": "Ω", "C": "F", "L": "H"})
@@ -95,7 +108,7 @@ def series_values(series: str, low: float, high: float) -> np.ndarray:
 
     Parameters
     ----------
-    series : {"E6", "E12", "E24", "E48", "E96"}
+    series : {"E6", "E12", "E24", "E48", "E96", "E192"}
         IEC 60063 series.
     low, high : float
         Range (any unit; the series is scale-free). Must be positive, ``low <= high``.
@@ -325,7 +338,7 @@ def combine(target: float, kind: str, *, series: str = "E12", stock: Sequence[fl
         Wanted value in SI units (Ω, F or H).
     kind : {"R", "C", "L"}
         Kind of part; decides which topology is "series" and which is "parallel".
-    series : {"E6", "E12", "E24", "E48", "E96"}
+    series : {"E6", "E12", "E24", "E48", "E96", "E192"}
         Series to draw parts from (decades from target/100 to target·100) when no ``stock``.
     stock : sequence of float, optional
         The values on hand (SI units); replaces the series.

@@ -197,7 +197,7 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
     target_hz : float
         Wanted resonance (Hz).
     series : str
-        Series for the parts to add (E6 … E96).
+        Series for the parts to add (E6 … E192).
     max_parts : int
         At most this many parts in the suggested group (1 to 3).
     part_tolerance : float, optional

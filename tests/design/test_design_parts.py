@@ -37,12 +37,17 @@ def test_e24_is_not_the_rounded_geometric_series(iec):
 
 def test_e96_and_e48_follow_the_geometric_rule():
     # E96 is hard-coded from memory (IEC 60063:2015 Table 2); the three-digit tables follow
-    # round(100·10^(i/n)) except at 9.19 in E192, which is not used — an independent check
+    # round(100·10^(i/n)) except one E192 value, where the table has 9.20 and the rule 9.19
+    # (from memory; the eseries package agrees, test_parts_properties.py) — an independent check
     e96 = [round(100 * 10 ** (i / 96)) / 100 for i in range(96)]
     e48 = [round(100 * 10 ** (i / 48)) / 100 for i in range(48)]
+    e192 = [round(100 * 10 ** (i / 192)) / 100 for i in range(192)]
     assert list(E_SERIES["E96"]) == e96
     assert list(E_SERIES["E48"]) == e48
     assert list(E_SERIES["E48"]) == list(E_SERIES["E96"][::2])
+    assert list(E_SERIES["E192"][::2]) == list(E_SERIES["E96"])
+    differ = [(a, b) for a, b in zip(E_SERIES["E192"], e192) if a != b]
+    assert differ == [(9.20, 9.19)]
 
 
 def test_series_shapes_and_tolerances(iec):

@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 from benchfit.design.parts import E_SERIES, SERIES_TOLERANCE, combination_value, combine, series_values
 
 
-@pytest.mark.parametrize("name", ["E6", "E12", "E24", "E48", "E96"])
+@pytest.mark.parametrize("name", ["E6", "E12", "E24", "E48", "E96", "E192"])
 def test_e_series_tables_match_the_eseries_package(name):
     oracle = getattr(eseries, name)
     digits = 2 if name in ("E6", "E12", "E24") else 3
@@ -26,7 +26,7 @@ def test_e_series_tables_match_the_eseries_package(name):
     assert SERIES_TOLERANCE[name] == eseries.tolerance(oracle)
 
 
-@pytest.mark.parametrize("name", ["E12", "E96"])
+@pytest.mark.parametrize("name", ["E12", "E96", "E192"])
 def test_series_values_over_decades_match_the_eseries_package(name):
     oracle = getattr(eseries, name)
     ours = series_values(name, 1e3, 1e6)
