@@ -38,12 +38,13 @@ def test_uncertainties_are_fields_and_json_keys():
     # pulse parameters exist for the two-level wave only
     assert sq.duty_cycle_u_pct is not None and sq.rise_time_u_s is not None and sq.fall_time_u_s is not None
     assert sine.duty_cycle_u_pct is None and sine.to_dict()["duty_cycle_u_pct"] is None
-    # the JSON contract keeps every key it had (DESIGN.md) and adds the uncertainties
+    # the JSON contract keeps every key it had (DESIGN.md) and adds the uncertainties and the
+    # GUM budget of each quantity
     old_keys = {"name", "unit", "frequency_hz", "frequency_u_hz", "amplitude", "vdc", "vrms", "vpp",
                 "duty_cycle_pct", "rise_time_s", "fall_time_s", "thd_pct", "thd_n_pct", "sinad_db",
                 "harmonics", "clipped", "warnings"}
     d = json.loads(json.dumps(m.to_dict()))
-    assert set(d["channels"][0]) == old_keys | set(UNCERTAINTY_FIELDS)
+    assert set(d["channels"][0]) == old_keys | set(UNCERTAINTY_FIELDS) | {"budget"}
     assert {"order", "frequency_hz", "amplitude", "phase_deg"} <= set(d["channels"][0]["harmonics"][0])
 
 
