@@ -21,6 +21,16 @@ from benchfit.errors import CaptureError
 __all__ = ["Capture", "InputCalibration"]
 
 
+#: plausibility bounds of a capture (common practice, no source): a data logger taking one sample
+#: an hour is 2.8e-4 Hz, the fastest bench digitisers sample near 1e11 Hz; outside these bounds the
+#: number is a unit mistake or a damaged file, and the analysis would overflow (1/fs², fs²)
+MIN_SAMPLE_RATE_HZ = 1e-4
+MAX_SAMPLE_RATE_HZ = 1e12
+#: no instrument's reading (in V, A or full scale) comes near this; a larger sample is an error cell, and
+#: its square would overflow the power sums of the analysis
+MAX_SAMPLE_MAGNITUDE = 1e15
+
+
 @dataclass(frozen=True)
 class InputCalibration:
     """Sound-card calibration that applies to a capture (from its sidecar).
@@ -125,10 +135,27 @@ class Capture:
             raise CaptureError(f"{where}: a capture needs at least 2 samples per channel, got {data.shape[1]}")
         if not np.all(np.isfinite(data)):
             ch, idx = np.argwhere(~np.isfinite(data))[0]
-            raise CaptureError(f"{where}: sample {idx} of channel {ch + 1} is NaN or infinite")
-        fs = float(self.sample_rate)
+            raise CaptureError(f"{where}: sample {idx} of channel {ch + 1} is NaN or infinite — the recorder or "
+                               "export wrote a bad value there; export again, or cut the record before it")
+        big = np.abs(data) > MAX_SAMPLE_MAGNITUDE
+        if np.any(big):
+            ch, idx = np.argwhere(big)[0]
+            raise CaptureError(
+                f"{where}: sample {idx} of channel {ch + 1} is {data[ch, idx]:.3g}, beyond any reading an "
+                f"instrument gives (|value| > {MAX_SAMPLE_MAGNITUDE:.0e}) — an overflow or error cell in the "
+                "export; fix or delete that sample")
+        try:
+            fs = float(self.sample_rate)
+        except (TypeError, ValueError, OverflowError):
+            fs = math.nan
         if not math.isfinite(fs) or fs <= 0:
-            raise CaptureError(f"{where}: sample rate must be a positive number of Hz, got {self.sample_rate!r}")
+            raise CaptureError(f"{where}: sample rate must be a positive number of Hz, got {self.sample_rate!r} — "
+                               "check the file's sample rate, or give --sample-rate")
+        if not MIN_SAMPLE_RATE_HZ <= fs <= MAX_SAMPLE_RATE_HZ:
+            raise CaptureError(
+                f"{where}: sample rate {fs:.3g} Hz is outside what any recorder uses "
+                f"({MIN_SAMPLE_RATE_HZ:g} Hz … {MAX_SAMPLE_RATE_HZ:.0e} Hz) — check the time column or "
+                "the file's sample rate, or give the right --sample-rate")
         data.setflags(write=False)
         n_ch = data.shape[0]
         names = tuple(self.channel_names) or tuple(f"ch{i + 1}" for i in range(n_ch))
