@@ -64,6 +64,25 @@ _DROOP_WARN_PCT = 5.0
 _MIN_PULSE_THD = 0.05
 #: fewer whole periods than this gives a short-record warning
 _MIN_PERIODS = 3.0
+#: fewest samples a period for a pulse analysis: with fewer, harmonic 3 lies above Nyquist and a sine
+#: cannot be told from a square (a sine at fs/4 samples as a two- or three-level wave)
+_MIN_PULSE_SAMPLES_PER_PERIOD = 6.0
+
+
+def _middle_crossings(x: np.ndarray) -> int:
+    """How often the wave crosses its middle level, with hysteresis.
+
+    The middle lies halfway between the 1st and 99th percentiles (a spike does not move it); a
+    crossing counts when the wave goes from below the lower to above the upper hysteresis level
+    (±25 % of the half-range) or back. Any wave holding one whole period crosses at least twice.
+    """
+    lo, hi = np.percentile(x, [1.0, 99.0])
+    mid, band = 0.5 * (lo + hi), 0.25 * 0.5 * (hi - lo)
+    state = np.zeros(x.size, dtype=np.int8)
+    state[x > mid + band] = 1
+    state[x < mid - band] = -1
+    seen = state[state != 0]
+    return int(np.count_nonzero(np.diff(seen))) if seen.size else 0
 
 
 def _fmt(v: float, unit: str) -> str:
@@ -127,11 +146,21 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         amp = float(fit.amplitudes[0])
         periodic = amp > 0 and (amp_u == 0 or amp >= _DETECT_RATIO * amp_u)
     clip = find_clipping(x, unit, full_scale, rails=True)
+    short = not flat and _middle_crossings(x) < 2
+    if short:
+        # the fit always finds some sine in a slope; without two crossings of the middle level the
+        # record holds less than one period, and its frequency would be an artefact of the length
+        periodic = False
     if not periodic:
         levels = signal_levels(x, fs, None)
-        what = "silence: all samples equal" if flat else "no periodic signal found"
-        warnings.append(f"{what} — frequency, distortion and pulse values are not given; "
-                        "check the connection and the input level")
+        if short:
+            warnings.append(f"the record ({_fmt(n / fs, 's')}) holds less than one period of the signal (it "
+                            "crosses its middle level fewer than twice) — frequency, distortion and pulse "
+                            "values are not given; record at least 3 periods")
+        else:
+            what = "silence: all samples equal" if flat else "no periodic signal found"
+            warnings.append(f"{what} — frequency, distortion and pulse values are not given; "
+                            "check the connection and the input level")
         if clip.clipped:
             warnings.append(_clip_warning(clip))
         return ChannelMeasurement(
@@ -158,6 +187,11 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         # whose edges take the whole period (a triangle) has THD_F = 12 % (REFERENCES §5 table,
         # H = 10: 12.05 %), so the pulse analysis (and its droop fit) is skipped.
         pulse = PulseResult(two_level=False)
+    elif fs / f < _MIN_PULSE_SAMPLES_PER_PERIOD:
+        pulse = PulseResult(two_level=False)
+        warnings.append(f"duty cycle and edge times are not given: {fs / f:.2g} samples a period are too few "
+                        f"to tell a pulse from a sine (at least {_MIN_PULSE_SAMPLES_PER_PERIOD:g} are needed) — "
+                        "record at a higher sample rate")
     else:
         pulse = pulse_parameters(x, fs, coupling_tau_s)
     method = "multi-harmonic fit"

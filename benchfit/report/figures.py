@@ -57,6 +57,8 @@ _RC = {
     "axes.titleweight": "bold",
     "legend.frameon": False,
     "legend.fontsize": 7.5,
+    # user text (channel names, file names, serials) is plain text: "$x^$" must not be read as mathtext
+    "text.parse_math": False,
 }
 
 

@@ -13,6 +13,7 @@ place of its uncertainty, JCGM 100:2008 7.2.6); the JSON twin keeps the full val
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 import re
@@ -155,9 +156,16 @@ def render_html(report: Mapping[str, Any], figures: Sequence[Mapping[str, str]] 
     return template.render(r=report, figures=figs)
 
 
+#: longest serial kept whole in a report's file name (the report itself always shows the whole serial)
+_MAX_SERIAL_IN_NAME = 80
+
+
 def report_stem(unit: str, created_utc: str) -> str:
     """File stem ``<serial>_<YYYYmmddTHHMMSSZ>`` with characters unsafe in file names replaced."""
     safe = re.sub(r"[^A-Za-z0-9._-]+", "_", unit).strip("._") or "unit"
+    if len(safe) > _MAX_SERIAL_IN_NAME:  # file systems allow 255 bytes a name: cut, keep it unique by a hash
+        digest = hashlib.sha256(unit.encode("utf-8")).hexdigest()[:10]
+        safe = f"{safe[:_MAX_SERIAL_IN_NAME]}-{digest}"
     stamp = re.sub(r"[^0-9TZ]", "", created_utc)
     return f"{safe}_{stamp}"
 

@@ -92,3 +92,15 @@ def test_fit_svg_of_a_result_read_back_from_json():
          "derived": {}, "correlations": {}, "quality": {"nrmse": None, "r_squared": None, "n_points": 0},
          "warnings": []}
     _self_contained(fit_svg(FitResult.from_dict(d)))
+
+
+def test_user_text_with_dollar_signs_is_plain_text():
+    """A channel named like TeX ('$x^$', unbalanced, unknown command) used to crash the figure in
+    matplotlib's mathtext parser; every text of a figure is plain text now."""
+    name = r"out $x^$ $\nosuch$"
+    t = np.arange(4800) / 48000
+    cap = Capture(np.sin(2 * np.pi * 50 * t), 48000, channel_names=(name,), source="$HC-07$.wav")
+    svg = waveform_svg(cap)
+    texts = [tx for tx in svg.figure.findobj(lambda o: hasattr(o, "get_text")) if "$" in tx.get_text()]
+    assert texts and not any(tx.get_parse_math() for tx in texts)
+    assert name in {tx.get_text().split(" (")[0] for tx in texts}

@@ -1,0 +1,57 @@
+"""Records too short for one period, and waves too fast for a pulse analysis, are flagged, not guessed.
+
+Both signals are exact sines generated here (seeded noise where noise is added); the expected
+behaviour follows from the definitions: a frequency needs at least one whole period in the record
+(common practice, no source), and telling a two-level wave from a sine needs harmonic 3 below
+Nyquist, i.e. at least 6 samples a period (Nyquist–Shannon: order k needs k·f < fs/2).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from benchfit.measurement.summary import measure_channel
+
+FS = 48000.0
+
+
+@pytest.mark.parametrize("f, seconds", [(0.1, 1.0), (0.5, 1.0), (20.0, 0.03)])
+def test_less_than_one_period_gives_no_frequency(f, seconds):
+    """A 0.1 Hz sine in 1 s used to be reported as 1.99 Hz with "only 2 periods recorded"."""
+    t = np.arange(int(FS * seconds)) / FS
+    x = 0.5 * np.sin(2 * np.pi * f * t + 0.3) + 1e-4 * np.random.default_rng(5).standard_normal(t.size)
+    m = measure_channel(x, FS)
+    assert m.frequency_hz is None and m.thd_pct is None and m.duty_cycle_pct is None
+    (w,) = m.warnings
+    assert "holds less than one period" in w and "record at least 3 periods" in w
+    assert "check the connection" not in w  # the wiring is fine, the record is short
+    assert m.vrms is not None  # the levels are still given
+
+
+@pytest.mark.parametrize("periods", [1.5, 2.5, 4.0])
+def test_a_period_or_more_is_still_measured(periods):
+    f = 50.0
+    t = np.arange(int(FS * periods / f)) / FS
+    x = 0.5 * np.sin(2 * np.pi * f * t + 0.3) + 1e-4 * np.random.default_rng(6).standard_normal(t.size)
+    m = measure_channel(x, FS)
+    # the fit's own uncertainty bounds the error; 5 u allows for the short record's non-white residual
+    assert m.frequency_hz == pytest.approx(f, abs=5 * m.frequency_u_hz + 1e-9)
+
+
+@pytest.mark.parametrize("phase", [0.0, np.pi / 4, 1.0])
+def test_a_sine_at_a_quarter_of_the_sample_rate_is_not_a_pulse(phase):
+    """At fs/4 a sine samples as [0, a, 0, -a] or [a, a, -a, -a]: it used to get a 75 % or 50 % duty."""
+    t = np.arange(24000) / FS
+    m = measure_channel(0.5 * np.sin(2 * np.pi * FS / 4 * t + phase), FS)
+    assert m.frequency_hz == pytest.approx(FS / 4, rel=1e-9)
+    assert m.duty_cycle_pct is None and m.rise_time_s is None and m.fall_time_s is None
+    assert any("4 samples a period are too few to tell a pulse from a sine" in w for w in m.warnings)
+
+
+def test_a_square_with_enough_samples_a_period_keeps_its_duty():
+    t = np.arange(24000) / FS
+    f = FS / 64  # 64 samples a period
+    x = np.where((t * f) % 1 < 0.3, 0.8, -0.8)
+    m = measure_channel(x, FS)
+    assert m.duty_cycle_pct == pytest.approx(30.0, abs=100 / 64)  # one sample of 64 in the period
