@@ -42,6 +42,7 @@ import numpy as np
 
 from benchfit.capture.calibration import CLIP_FS, CalibrationProfile, load_profile
 from benchfit.capture.capture import InputCalibration
+from benchfit.capture.fileio import create_new
 from benchfit.capture.devices import InputDevice, check_input, list_input_devices, resolve_input_device
 from benchfit.capture.devices import quiet_native_stderr as _quiet_native_stderr
 from benchfit.capture.devices import sounddevice_module as _sounddevice
@@ -259,6 +260,36 @@ def _sigint_deferred():
         signal.signal(signal.SIGINT, previous)
 
 
+def _write_recording_sidecar(out: Path, sidecar: dict[str, Any], overwrite: bool, warnings: list[str]) -> Path:
+    """Write a finished recording's sidecar; one that appeared during the recording is kept.
+
+    Without ``overwrite`` the sidecar is created exclusively. If a file took its name while
+    recording, this recording's sidecar goes beside it as ``<stem>.recorded.json`` (then
+    ``.recorded-2.json`` …) and a warning says so: neither the other file nor this
+    recording's metadata is lost.
+    """
+    from benchfit.capture.sidecar import sidecar_path, write_sidecar
+
+    try:
+        return write_sidecar(out, sidecar, overwrite=overwrite)
+    except CaptureError:
+        if overwrite or not sidecar_path(out).exists():
+            raise
+    for n in range(1, 100):
+        alt = out.with_name(f"{out.stem}.recorded{'' if n == 1 else f'-{n}'}.wav")
+        try:
+            side = write_sidecar(alt, sidecar, overwrite=False)
+        except CaptureError:
+            if sidecar_path(alt).exists():
+                continue
+            raise
+        warnings.append(f"{sidecar_path(out)}: a file appeared there during the recording and was kept — this "
+                        f"recording's sidecar is {side}; check both, then rename it to {sidecar_path(out).name}")
+        return side
+    raise CaptureError(f"{sidecar_path(out)}: exists, and so do 99 alternative sidecar names — "
+                       "move them away and record again")
+
+
 def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, channels: int = 1,
            device: str | int | None = None, names: list[str] | tuple[str, ...] | str | None = None,
            profile: str | None = None, overwrite: bool = False,
@@ -361,10 +392,20 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
 
     interrupted = False
     start_utc = _utc_now()
+    if not overwrite:  # claim the name now: a file made after the check above is never replaced
+        try:
+            create_new(out)
+        except FileExistsError as e:
+            raise CaptureError(f"{out}: already exists — choose another name or pass --overwrite") from e
+        except OSError as e:
+            raise CaptureError(f"{out}: cannot be created ({e.strerror or e}) — check the folder is writable") from e
     try:
         sf_file = sf.SoundFile(str(out), mode="w", samplerate=int(rate), channels=channels,
                                subtype=_SUBTYPES[sample_format], format="WAV")
     except (sf.LibsndfileError, RuntimeError, OSError) as e:
+        if not overwrite:
+            with contextlib.suppress(OSError):
+                out.unlink()  # the empty file claimed above
         raise CaptureError(f"{out}: cannot be created ({e}) — check the folder is writable") from e
     writer = threading.Thread(target=_writer, args=(sf_file, blocks, stats, sample_format == "pcm24"),
                               name="benchfit-writer", daemon=True)
@@ -438,7 +479,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
                 "sample_format": sample_format,
                 "peak_dbfs": [round(p, 3) for p in peak_all],
             }
-            side = write_sidecar(out, sidecar, overwrite=True)
+            side = _write_recording_sidecar(out, sidecar, overwrite, warnings)
     result = RecordingResult(path=out, sidecar_path=side, frames=frames, sample_rate=float(rate),
                              channel_names=chan_names, device=dev.name, start_utc=start_utc,
                              overflow_count=overflows, clip_count=clips, peak_dbfs=peak_all,

@@ -40,7 +40,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from benchfit.capture.fileio import write_text_atomic
+from benchfit.capture.fileio import write_bytes_new, write_text_atomic
 from benchfit.errors import CaptureError
 
 __all__ = ["SIDECAR_VERSION", "sidecar_path", "read_sidecar", "write_sidecar", "validate_sidecar"]
@@ -298,7 +298,12 @@ def write_sidecar(audio_path: str | os.PathLike[str], data: dict[str, Any], over
         raise CaptureError(f"{path}: sidecar already exists — choose another file name or allow overwriting")
     text = json.dumps(clean, indent=2, ensure_ascii=False) + "\n"
     try:
-        write_text_atomic(path, text)
+        if overwrite:
+            write_text_atomic(path, text)
+        else:  # created exclusively: a sidecar that appeared after the check above is kept
+            write_bytes_new(path, text.encode("utf-8"))
+    except FileExistsError as e:
+        raise CaptureError(f"{path}: sidecar already exists — choose another file name or allow overwriting") from e
     except OSError as e:
         raise CaptureError(
             f"{path}: sidecar cannot be written ({e.strerror or e}) — check the folder exists and is writable"

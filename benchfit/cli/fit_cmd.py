@@ -210,7 +210,7 @@ def fit_command(
     if plot is not None:
         from benchfit.report.figures import fit_svg, save_figure
 
-        save_figure(fit_svg(result), plot)
+        save_figure(fit_svg(result), plot, overwrite=overwrite)
     d = result.to_dict()
     if as_json:
         print_json(d)

@@ -292,7 +292,7 @@ def fit_svg(fit_result) -> str:
         return _to_svg(fig)
 
 
-def save_figure(svg_or_fig, path: str | Path) -> Path:
+def save_figure(svg_or_fig, path: str | Path, *, overwrite: bool = True) -> Path:
     """Write a figure to ``path`` as SVG or PNG, chosen by the suffix.
 
     Parameters
@@ -302,6 +302,9 @@ def save_figure(svg_or_fig, path: str | Path) -> Path:
         without a figure can only be written as ``.svg``.
     path : str or Path
         Target file; suffix ``.svg`` or ``.png``.
+    overwrite : bool, default True
+        False: never replace a file, even one made while the figure was drawn (the file is
+        created exclusively at the moment of writing).
 
     Returns
     -------
@@ -317,16 +320,24 @@ def save_figure(svg_or_fig, path: str | Path) -> Path:
     if suffix not in (".svg", ".png"):
         raise BenchfitError(f"{p}: unknown figure type {p.suffix!r} — use a .svg or .png file name")
     fig = getattr(svg_or_fig, "figure", None) if isinstance(svg_or_fig, str) else svg_or_fig
+    from benchfit.capture.fileio import write_bytes_new
+
     try:
         if suffix == ".svg":
             text = str(svg_or_fig) if isinstance(svg_or_fig, str) else str(_to_svg(fig))
-            p.write_text(text, encoding="utf-8")
+            data = text.encode("utf-8")
         else:
             if fig is None:
                 raise BenchfitError(f"{p}: this SVG text carries no figure to render as PNG — "
                                     "save it as .svg, or pass the figure function's result unchanged")
+            buf = io.BytesIO()
             with matplotlib.rc_context(_RC):
-                fig.savefig(p, format="png", dpi=150, metadata={"Software": "benchfit"})
+                fig.savefig(buf, format="png", dpi=150, metadata={"Software": "benchfit"})
+            data = buf.getvalue()
+        write_bytes_new(p, data, overwrite=overwrite)
+    except FileExistsError as e:
+        raise BenchfitError(f"{p}: file exists (it appeared while the figure was drawn) — choose another "
+                            "--plot or add --overwrite") from e
     except OSError as e:
         raise BenchfitError(f"{p}: cannot write the figure ({e.strerror}) — check the folder exists "
                             "and is writable") from e

@@ -1,0 +1,61 @@
+"""A recording never replaces a file that appears under its names while it records.
+
+Real audio path (the private PulseAudio daemon of conftest.py); the race is made on purpose by
+the progress callback, which creates the sidecar (and, in the second test, the WAV) mid-recording.
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+from test_live_audio import stop, write_tone
+
+_SNIPPET = """
+import json, sys
+from pathlib import Path
+import benchfit
+out = Path(sys.argv[1])
+made = []
+def on_block(st):
+    if not made and st.frames_done > 0:
+        out.with_suffix(".json").write_text("a sidecar another program wrote\\n", encoding="utf-8")
+        made.append(1)
+res = benchfit.record(out, 0.5, rate=48000, channels=2, device="pulse", on_block=on_block)
+print(json.dumps({"sidecar": str(res.sidecar_path), "warnings": list(res.warnings)}))
+"""
+
+
+def test_a_sidecar_that_appears_during_recording_is_kept(rig, tmp_path):
+    player = rig.play(write_tone(tmp_path / "play.wav", 6.0, [(300.0, 0.5), (300.0, 0.5)]))
+    out = tmp_path / "HC-04_take1.wav"
+    try:
+        r = subprocess.run([sys.executable, "-c", _SNIPPET, str(out)], env=rig.env, capture_output=True,
+                           text=True, timeout=60)
+    finally:
+        stop(player)
+    assert r.returncode == 0, r.stderr
+    res = json.loads(r.stdout)
+    assert (tmp_path / "HC-04_take1.json").read_text(encoding="utf-8") == "a sidecar another program wrote\n"
+    assert res["sidecar"] == str(tmp_path / "HC-04_take1.recorded.json")
+    assert json.loads((tmp_path / "HC-04_take1.recorded.json").read_text())["sample_rate_hz"] == 48000
+    (warn,) = [w for w in res["warnings"] if "appeared there during the recording" in w]
+    assert " — this recording's sidecar is " in warn
+
+
+def test_record_claims_the_wav_name_before_recording(tmp_path):
+    """The WAV is created with O_EXCL before the stream opens (POSIX open(2)): a name taken in
+    between is refused, never truncated."""
+    from benchfit.capture.fileio import create_new
+
+    p = tmp_path / "HC-04_take2.wav"
+    create_new(p)
+    p.write_bytes(b"earlier take")
+    try:
+        create_new(p)
+    except FileExistsError:
+        pass
+    else:
+        raise AssertionError("create_new replaced an existing file")
+    assert p.read_bytes() == b"earlier take"
