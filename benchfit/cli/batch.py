@@ -37,7 +37,7 @@ from __future__ import annotations
 import os
 import sys
 import time
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, get_args
@@ -417,6 +417,16 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
                 done.append(outcome)
                 notify(outcome)
     except BaseException:
+        # Ctrl-C (or an error in on_outcome): stop now. The workers ignore SIGINT, so the jobs
+        # they are running would otherwise finish (and write their files) long after the parent
+        # gave up on them; terminate them (SIGTERM) and drop what is still queued.
+        procs = list((getattr(pool, "_processes", None) or {}).values())
+        for proc in procs:
+            with suppress(Exception):
+                proc.terminate()
+        for proc in procs:  # gone before the caller cleans up after them
+            with suppress(Exception):
+                proc.join(timeout=5)
         pool.shutdown(wait=False, cancel_futures=True)
         raise
     pool.shutdown(wait=True)

@@ -18,6 +18,22 @@ def _log_path(option: Optional[str]) -> Path:
     return resolve_log_path(option)
 
 
+def _read_log(option: Optional[str], fn, *args, **kwargs):
+    """``fn(log, ...)`` on the log, or on a snapshot copy when it cannot be written (read-only);
+    an error names the log, not the copy."""
+    from benchfit.cli.logsafe import readable_log_path
+    from benchfit.errors import BenchfitError
+
+    path = _log_path(option)
+    readable = readable_log_path(path)
+    try:
+        return fn(readable, *args, **kwargs)
+    except BenchfitError as e:
+        if readable == path:
+            raise
+        raise type(e)(str(e).replace(str(readable), str(path))) from e
+
+
 def _check_since(since: Optional[str]) -> Optional[str]:
     if since is None:
         return None
@@ -44,7 +60,7 @@ def list_command(
     from benchfit.cli.common import print_json, stdout
     from benchfit.log.store import list_runs
 
-    runs = list_runs(_log_path(log), unit=unit, since=_check_since(since))
+    runs = _read_log(log, list_runs, unit=unit, since=_check_since(since))
     if as_json:
         print_json({"runs": runs})
         return
@@ -69,7 +85,7 @@ def show_command(
     from benchfit.log.store import get_run
     from benchfit.report.html import format_limits, format_u, format_value
 
-    data = get_run(_log_path(log), run)
+    data = _read_log(log, get_run, run)
     if as_json:
         print_json(data)
         return
@@ -114,7 +130,7 @@ def export_command(
     from benchfit.cli.common import stderr
     from benchfit.log.export import export_log
 
-    text = export_log(_log_path(log), fmt, out, overwrite=overwrite, unit=unit, since=_check_since(since))
+    text = _read_log(log, export_log, fmt, out, overwrite=overwrite, unit=unit, since=_check_since(since))
     if text is not None:
         sys.stdout.write(text if text.endswith("\n") else text + "\n")
     else:
@@ -154,7 +170,7 @@ def stats_command(
             channel = lim.channel
     if plot is not None and plot.exists() and not overwrite:
         fail(f"{plot}: file exists — choose another --plot or add --overwrite")
-    rows = [r for r in results_rows(_log_path(log), quantity=quantity, since=_check_since(since))
+    rows = [r for r in _read_log(log, results_rows, quantity=quantity, since=_check_since(since))
             if r["role"] in ("as-left", "") and r["value"] is not None
             and (channel is None or (r["channel"] or "").lower() == channel.lower())]
     if not all_runs:

@@ -13,6 +13,11 @@ could not be reported (it wins over 1).
 
 from __future__ import annotations
 
+import contextlib
+import os
+import shutil
+import tempfile
+from dataclasses import replace
 from pathlib import Path
 from typing import List, Optional
 
@@ -126,13 +131,18 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
     from benchfit.report.assemble import run_unit
 
     if log_path is not None:
+        from benchfit.cli.logsafe import check_log_writable
         from benchfit.log.store import open_log
 
-        open_log(log_path).close()  # a foreign or unwritable log stops here, before any report file is written
+        check_log_writable(log_path)  # a read-only log stops here, before any report file is written
+        open_log(log_path).close()  # so does a foreign one
     with stderr.status("benchfit report", spinner="line") as status:
         result = run_unit(paths, unit=unit, spec=spec, as_found=as_found, operator=operator,
-                          out_dir=out, fit=fit, log_path=log_path, with_figures=with_figures,
-                          progress=lambda text: status.update(text))
+                          out_dir=out, fit=fit, log_path=None, defer_log=log_path is not None,
+                          with_figures=with_figures, progress=lambda text: status.update(text))
+    if log_path is not None:
+        result = replace(result, run_id=_log_or_roll_back(log_path, result.log_entry,
+                                                          [result.html_path, result.json_path]))
     if as_json:
         print_json({"unit": unit, "verdict": result.verdict, "exit_code": result.exit_code,
                     "html": str(result.html_path), "json": str(result.json_path),
@@ -145,6 +155,78 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
             stdout.print(f"logged  run {result.run_id} in {log_path}", markup=False)
     if result.exit_code:
         raise typer.Exit(code=result.exit_code)
+
+
+def _log_or_roll_back(log_path: Path, entry: dict, files: list[Path]) -> int:
+    """Append a unit's run; if the log refuses it, remove the report files just made for it.
+
+    A report that is not in the log would be a record nobody can find again: the files (created
+    exclusively for this run a moment ago) go, and the error says so.
+    """
+    from benchfit.cli.logsafe import append_run_explained
+    from benchfit.errors import LogError
+
+    try:
+        return append_run_explained(log_path, **entry)
+    except (LogError, KeyboardInterrupt) as e:
+        for f in files:
+            with contextlib.suppress(OSError):
+                Path(f).unlink()
+        if isinstance(e, KeyboardInterrupt):
+            raise
+        raise LogError(f"{e} (its report files were removed: {', '.join(Path(f).name for f in files)})") from e
+
+
+@contextlib.contextmanager
+def _sigint_held():
+    """Hold a Ctrl-C until the block is done, then raise it (main thread only)."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    caught: list[int] = []
+    previous = signal.signal(signal.SIGINT, lambda signum, frame: caught.append(signum))
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+    if caught:
+        raise KeyboardInterrupt
+
+
+def _publish(html: Path, js: Path, out: Path) -> tuple[Path, Path]:
+    """Move a staged report pair into ``out`` under the first free ``<stem>[-n]`` name.
+
+    Each file is hard-linked into place (link(2) fails if the name exists, so nothing is
+    replaced) and then unlinked from the staging folder.
+    """
+    for n in range(1, 1000):
+        name = html.stem if n == 1 else f"{html.stem}-{n}"
+        targets = (out / f"{name}.html", out / f"{name}.json")
+        linked: list[Path] = []
+        try:
+            for src, dst in zip((html, js), targets):
+                try:
+                    os.link(src, dst)
+                except FileExistsError:
+                    raise
+                except OSError:  # no hard links on this file system: copy, after a check
+                    if dst.exists():
+                        raise FileExistsError(dst) from None
+                    shutil.copyfile(src, dst)
+                linked.append(dst)
+        except FileExistsError:
+            for dst in linked:
+                dst.unlink()
+            continue
+        for src in (html, js):
+            src.unlink()
+        return targets
+    from benchfit.errors import BenchfitError
+
+    raise BenchfitError(f"{out}: 999 reports named {html.stem} already exist — choose another --out")
 
 
 def _style(verdict: str) -> str:
@@ -167,14 +249,26 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     load_spec(spec)
     if fit is not None:
         _fit_call(fit)
-    from benchfit.log.store import append_run, open_log
+    from benchfit.cli.logsafe import check_log_writable
+    from benchfit.log.store import open_log
 
     if log_path is not None:
-        open_log(log_path).close()  # a foreign or unwritable log stops here, before any unit is judged
-    kwargs = {"spec": str(spec), "out_dir": str(out), "fit": fit, "operator": operator,
+        check_log_writable(log_path)  # a read-only log stops here, before any unit is judged
+        open_log(log_path).close()  # so does a foreign one
+    # Workers write into a hidden staging folder inside --out; a unit's files move into --out only
+    # when this process logs the unit. Ctrl-C (or a killed worker) leaves no report that is not
+    # in the log: the staging folder is removed on the way out.
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        staging = Path(tempfile.mkdtemp(prefix=".benchfit-staging-", dir=out))
+    except OSError as e:
+        fail(f"{out}: cannot create the output directory ({e.strerror}) — check --out")
+    kwargs = {"spec": str(spec), "out_dir": str(staging), "fit": fit, "operator": operator,
               "with_log_entry": log_path is not None, "with_figures": with_figures}
     outcomes = []
-    with progress_bar("reporting", len(paths), notes) as progress:
+    with contextlib.ExitStack() as cleanup:
+        cleanup.callback(shutil.rmtree, staging, ignore_errors=True)
+        progress = cleanup.enter_context(progress_bar("reporting", len(paths), notes))
 
         def on_outcome(outcome) -> None:
             progress.advance(outcome.path.name)
@@ -184,9 +278,15 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
                 return
             r = outcome.result
             entry = r.pop("log_entry", None)
-            r["run_id"] = append_run(log_path, **entry) if log_path is not None and entry else None
-            if as_json:
-                print_json({**r, "log": None if log_path is None else str(log_path)})
+            with _sigint_held():  # files moved, run logged and line printed: all three or none
+                html, js = _publish(Path(r["html"]), Path(r["json"]), out)
+                r["html"], r["json"] = str(html), str(js)
+                if entry:
+                    entry["details"] = {**entry.get("details", {}), "html": str(html), "json": str(js)}
+                r["run_id"] = (_log_or_roll_back(log_path, entry, [html, js])
+                               if log_path is not None and entry else None)
+                if as_json:
+                    print_json({**r, "log": None if log_path is None else str(log_path)})
 
         run_jobs(report_job, paths, jobs=jobs or default_jobs(), kwargs=kwargs, on_outcome=on_outcome,
                  preload=REPORT_PRELOAD)
