@@ -9,16 +9,17 @@ be written can still be read (through a snapshot copy).
 
 from __future__ import annotations
 
+import contextlib
 import errno
 import os
 import shutil
 import tempfile
 from pathlib import Path
-from typing import Any
+from typing import Any, Iterator
 
 from benchfit.errors import LogError
 
-__all__ = ["log_write_problem", "check_log_writable", "append_run_explained", "readable_log_path"]
+__all__ = ["log_write_problem", "check_log_writable", "append_run_explained", "readable_log_path", "sigint_held"]
 
 _FIX = "make the log and its folder writable, give another --log, or use --no-log"
 _snapshots: list[tempfile.TemporaryDirectory] = []  # removed when the process ends
@@ -101,3 +102,22 @@ def readable_log_path(path: str | os.PathLike[str]) -> Path:
     except OSError as e:
         raise LogError(f"{p}: cannot read the log ({e.strerror or e}) — check its permissions") from e
     return copy
+
+
+@contextlib.contextmanager
+def sigint_held() -> Iterator[None]:
+    """Hold a Ctrl-C until the block is done, then raise it (main thread only)."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    caught: list[int] = []
+    previous = signal.signal(signal.SIGINT, lambda signum, frame: caught.append(signum))
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+    if caught:
+        raise KeyboardInterrupt

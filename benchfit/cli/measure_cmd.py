@@ -10,6 +10,7 @@ module level.
 from __future__ import annotations
 
 import math
+import sys
 from pathlib import Path
 from typing import Any, List, Optional
 
@@ -239,8 +240,10 @@ def measure_command(
         if log is not None and not log.strip():
             fail("--log: the path is empty — give the log file, or use --log-default")
         log_path = resolve_log_path(log)
+        from benchfit.cli.logsafe import check_log_writable
         from benchfit.log.store import open_log
 
+        check_log_writable(log_path)  # a read-only log stops here too
         open_log(log_path).close()  # a foreign or unwritable log stops here, before any file is measured
     rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
     opts = {"channels": list(channel) if channel else None, "harmonics": harmonics, "sample_rate": rate,
@@ -257,10 +260,10 @@ def measure_command(
 
 def _log_measurement(log_path: Path, out: dict[str, Any]) -> int:
     """Append one measured file to the log as a ``measure`` run; returns the run id."""
-    from benchfit.log.store import append_run
+    from benchfit.cli.logsafe import append_run_explained
 
     cap, d = out["capture"], out["measurement"]
-    return append_run(log_path, command="measure", unit=cap.get("unit"),
+    return append_run_explained(log_path, command="measure", unit=cap.get("unit"),
                       captures=[{"path": cap["path"], "sha256": cap["sha256"], "metadata": cap["metadata"]}],
                       measurements=[d], details={"file": d["file"]})
 
@@ -277,14 +280,32 @@ def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: Path
         stdout.print()
 
 
+def _show_then_log(out: dict[str, Any], as_json: bool, log_path: Path | None) -> int | None:
+    """Print a result, then log it: the log holds only what was shown (a broken pipe or a failed
+    rendering logs nothing). Ctrl-C is held from the first printed line until the run is logged."""
+    from benchfit.cli.common import stdout
+    from benchfit.cli.logsafe import sigint_held
+
+    if log_path is None:
+        _show(out, as_json, None, None)
+        return None
+    with sigint_held():
+        _show(out, as_json, None, log_path)
+        sys.stdout.flush()  # a closed pipe fails here, before the run is logged
+        run_id = _log_measurement(log_path, out)
+    if not as_json:
+        stdout.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)
+        stdout.print()
+    return run_id
+
+
 def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: Path | None) -> None:
     """One file, in this process: a failure is the command's one-line error (exit 2)."""
     from benchfit.cli.batch import measure_job
     from benchfit.cli.common import stderr
 
     out = measure_job(path, **opts)
-    run_id = _log_measurement(log_path, out) if log_path is not None else None
-    _show(out, as_json, run_id, log_path)
+    run_id = _show_then_log(out, as_json, log_path)
     if as_json and run_id is not None:
         stderr.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)
 
@@ -305,11 +326,9 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
                 failed.append(outcome.error)
                 progress.say(f"error: {outcome.error}")
                 return
-            run_id = None
-            if log_path is not None:
-                run_id = _log_measurement(log_path, outcome.result)
+            run_id = _show_then_log(outcome.result, as_json, log_path)
+            if run_id is not None:
                 run_ids.append(run_id)
-            _show(outcome.result, as_json, run_id, log_path)
 
         run_jobs(measure_job, paths, jobs=jobs, kwargs=opts, on_outcome=on_outcome)
     if log_path is not None and as_json and run_ids:

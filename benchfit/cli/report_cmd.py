@@ -177,25 +177,6 @@ def _log_or_roll_back(log_path: Path, entry: dict, files: list[Path]) -> int:
         raise LogError(f"{e} (its report files were removed: {', '.join(Path(f).name for f in files)})") from e
 
 
-@contextlib.contextmanager
-def _sigint_held():
-    """Hold a Ctrl-C until the block is done, then raise it (main thread only)."""
-    import signal
-    import threading
-
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
-    caught: list[int] = []
-    previous = signal.signal(signal.SIGINT, lambda signum, frame: caught.append(signum))
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGINT, previous)
-    if caught:
-        raise KeyboardInterrupt
-
-
 def _publish(html: Path, js: Path, out: Path) -> tuple[Path, Path]:
     """Move a staged report pair into ``out`` under the first free ``<stem>[-n]`` name.
 
@@ -249,7 +230,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     load_spec(spec)
     if fit is not None:
         _fit_call(fit)
-    from benchfit.cli.logsafe import check_log_writable
+    from benchfit.cli.logsafe import check_log_writable, sigint_held
     from benchfit.log.store import open_log
 
     if log_path is not None:
@@ -278,7 +259,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
                 return
             r = outcome.result
             entry = r.pop("log_entry", None)
-            with _sigint_held():  # files moved, run logged and line printed: all three or none
+            with sigint_held():  # files moved, run logged and line printed: all three or none
                 html, js = _publish(Path(r["html"]), Path(r["json"]), out)
                 r["html"], r["json"] = str(html), str(js)
                 if entry:

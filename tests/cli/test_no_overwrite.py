@@ -223,3 +223,24 @@ def test_ctrl_c_during_a_report_batch_stops_at_once_and_keeps_log_and_files_cons
     files = sorted(p.name for p in out.iterdir())  # no staging folder left, no unlogged report
     assert files == sorted([os.path.basename(h) for h in logged] + [os.path.basename(h)[:-5] + ".json"
                                                                     for h in logged])
+
+
+def test_measure_logs_only_what_it_printed(unit_files, tmp_path):
+    """The reader of stdout goes away (a closed pipe, EPIPE): the result was never shown, so it is not
+    logged either; with the pipe open the same command logs one run."""
+    import os
+    import subprocess
+    import sys
+
+    wav, _ = unit_files
+    log = tmp_path / "log.sqlite"
+    env = dict(os.environ, BENCHFIT_LOG=str(tmp_path / "unused.sqlite"), COLUMNS="200")
+    cmd = [sys.executable, "-m", "benchfit", "measure", str(wav), "--log", str(log)]
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
+    proc.stdout.close()  # nobody reads the result
+    err = proc.stderr.read().decode()
+    proc.wait(timeout=60)
+    assert proc.returncode != 0 and "Traceback" not in err, err
+    assert not log.exists() or _runs(log) == 0
+    res = subprocess.run(cmd, capture_output=True, text=True, env=env, timeout=60)
+    assert res.returncode == 0 and f"logged as run 1 in {log}" in res.stdout and _runs(log) == 1
