@@ -55,7 +55,7 @@ SAFETY_NOTES: tuple[str, ...] = (
     "A computer's audio input tolerates about 1–2 V peak and shares its ground with the computer "
     "and, through it, often with mains earth. Use an attenuator or isolation transformer and "
     "check the level before connecting; never connect mains-derived circuits directly.",
-    "Chokes store energy: breaking the current through the 150 mH inductors produces an inductive "
+    "Chokes store energy: breaking the current through an inductor produces an inductive "
     "voltage spike. Switch the supply off and let the circuit settle before changing parts.",
     "Use a current-limited bench supply at the stated voltage, and check electrolytic capacitor "
     "polarity and voltage rating before power-up.",
@@ -293,8 +293,26 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
         "methods": list(METHODS),
         "warnings": warnings,
         "notes": ([spec.notes] if spec.notes else []) + list(notes),
-        "safety": list(SAFETY_NOTES),
+        "safety": _safety_notes(left_fits + found_fits, spec),
     }
+
+
+def _safety_notes(fits: Sequence[Mapping[str, Any]], spec: Spec) -> list[str]:
+    """The cautions, with this unit's own inductance and supply where the fit and spec give them.
+
+    Nothing is assumed about the unit: without a fitted L the choke note stays general, and the
+    supply is named only when the spec's conditions state it (``supply_v``).
+    """
+    notes = list(SAFETY_NOTES)
+    inductances = sorted({float(f["fit"]["parameters"]["L"]["value"]) for f in fits
+                          if (f["fit"].get("parameters") or {}).get("L", {}).get("value")})
+    if inductances:
+        shown = " and ".join(f"{v * 1e3:.3g} mH" for v in inductances[:2])
+        notes[1] = notes[1].replace("through an inductor", f"through the inductor (fitted L = {shown})")
+    supply = spec.conditions.get("supply_v")
+    if isinstance(supply, (int, float)) and not isinstance(supply, bool):
+        notes[2] = notes[2].replace("at the stated voltage", f"at the stated {supply:g} V")
+    return notes
 
 
 # --- one unit, end to end (I/O) ----------------------------------------------------------

@@ -18,3 +18,24 @@ def test_a_240_character_serial_gives_a_file_name_the_file_system_takes(tmp_path
     assert html_path.exists() and json_path.exists()
     assert serial in json_path.read_text(encoding="utf-8")  # the report keeps the whole serial
     assert report_stem("HC-07", "2026-12-01T21:00:00Z") == "HC-07_20261201T210000Z"  # short ones unchanged
+
+
+def test_safety_box_speaks_of_this_unit_not_of_a_fixed_one():
+    """The choke caution used to say "150 mH inductors" for every unit; it now names the fitted L when
+    there is one, stays general when there is none, and names the supply only from the spec."""
+    from report_builders import make_capture, make_fit, make_measurement
+
+    from benchfit.report.assemble import build_report
+    from benchfit.report.spec import parse_spec
+
+    limits = [{"quantity": "frequency_hz", "nominal": 50.0, "tolerance": 0.25}]
+    plain = parse_spec({"limit": limits})
+    with_supply = parse_spec({"conditions": {"supply_v": 9.0}, "limit": limits})
+    left = [(make_capture(), make_measurement())]
+    no_fit = build_report(unit="HC-05", spec=plain, as_left=left)["safety"]
+    assert not any("150 mH" in s or "mH" in s for s in no_fit)
+    assert any("through an inductor produces" in s for s in no_fit)
+    assert any("at the stated voltage" in s for s in no_fit)
+    fitted = build_report(unit="HC-07", spec=with_supply, as_left=left, fits_left=[make_fit()])["safety"]
+    assert any("through the inductor (fitted L = 300 mH)" in s for s in fitted)  # make_fit's L = 0.3 H
+    assert any("at the stated 9 V" in s for s in fitted)
