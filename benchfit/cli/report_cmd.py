@@ -81,6 +81,10 @@ def report_command(
                                       help="Measurement log file (default: $BENCHFIT_LOG or the user data "
                                            "directory's benchfit/log.sqlite)."),
     no_log: bool = typer.Option(False, "--no-log", help="Do not append this run to the measurement log."),
+    channel: Optional[List[str]] = typer.Option(None, "--channel", metavar="NAME=CH",
+                                                help="Take the spec's channel NAME from capture channel CH (a "
+                                                     "name or 1-based number), e.g. --channel output=2 "
+                                                     "(repeatable)."),
     no_figures: bool = typer.Option(False, "--no-figures", help="Leave the figures out (faster)."),
     as_json: bool = typer.Option(False, "--json", help="Print the paths and verdict as one JSON object "
                                                        "(with --each: one line per unit as it finishes)."),
@@ -94,6 +98,7 @@ def report_command(
     from benchfit.report.assemble import FitOptions
 
     fix_values = parse_assignments(fix, _FIT_NAMES, "--fix", zero_ok=("Resr", "Rs"))
+    channel_map = _channel_map(channel)
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:
         fit = FitOptions(model=model or "lc-lowpass", drive=drive, response=response, fix=fix_values)
@@ -118,14 +123,31 @@ def report_command(
         fail("; ".join(notes))
     if each:
         _report_each(paths, notes, spec=spec, out=out, fit=fit, operator=operator, log_path=log_path,
-                     with_figures=not no_figures, as_json=as_json, jobs=jobs)
+                     with_figures=not no_figures, as_json=as_json, jobs=jobs, channel_map=channel_map)
         return
     _report_one(paths, unit=unit, spec=spec, as_found=as_found or [], operator=operator, out=out, fit=fit,
-                log_path=log_path, with_figures=not no_figures, as_json=as_json)
+                log_path=log_path, with_figures=not no_figures, as_json=as_json, channel_map=channel_map)
+
+
+def _channel_map(items: Optional[List[str]]) -> dict[str, str]:
+    """``--channel NAME=CH`` options as ``{NAME: CH}``."""
+    from benchfit.cli.common import fail
+
+    out: dict[str, str] = {}
+    for item in items or []:
+        name, eq, ch = item.partition("=")
+        if not eq or not name.strip() or not ch.strip():
+            fail(f"--channel {item!r}: not NAME=CH — write it like --channel output=2 (the spec's channel "
+                 "name = the capture's channel name or 1-based number)")
+        if name.strip().lower() in {k.lower() for k in out}:
+            fail(f"--channel {item!r}: {name.strip()!r} is mapped twice — give each spec channel once")
+        out[name.strip()] = ch.strip()
+    return out
 
 
 def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path], operator: str | None,
-                out: Path, fit, log_path: Path | None, with_figures: bool, as_json: bool) -> None:
+                out: Path, fit, log_path: Path | None, with_figures: bool, as_json: bool,
+                channel_map: dict[str, str] | None = None) -> None:
     """All captures belong to one unit (in this process)."""
     from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.report.assemble import run_unit
@@ -139,6 +161,7 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
     with stderr.status("benchfit report", spinner="line") as status:
         result = run_unit(paths, unit=unit, spec=spec, as_found=as_found, operator=operator,
                           out_dir=out, fit=fit, log_path=None, defer_log=log_path is not None,
+                          channel_map=channel_map,
                           with_figures=with_figures, progress=lambda text: status.update(text))
     if log_path is not None:
         result = replace(result, run_id=_log_or_roll_back(log_path, result.log_entry,
@@ -215,7 +238,8 @@ def _style(verdict: str) -> str:
 
 
 def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, fit, operator: str | None,
-                 log_path: Path | None, with_figures: bool, as_json: bool, jobs: int | None) -> None:
+                 log_path: Path | None, with_figures: bool, as_json: bool, jobs: int | None,
+                 channel_map: dict[str, str] | None = None) -> None:
     """Every capture its own unit, in worker processes; a bad capture is named and skipped.
 
     The spec and fit options are checked here first, so a mistake in them is one error, not
@@ -245,7 +269,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     except OSError as e:
         fail(f"{out}: cannot create the output directory ({e.strerror}) — check --out")
     kwargs = {"spec": str(spec), "out_dir": str(staging), "fit": fit, "operator": operator,
-              "with_log_entry": log_path is not None, "with_figures": with_figures}
+              "with_log_entry": log_path is not None, "with_figures": with_figures, "channel_map": channel_map}
     outcomes = []
     with contextlib.ExitStack() as cleanup:
         cleanup.callback(shutil.rmtree, staging, ignore_errors=True)

@@ -375,11 +375,47 @@ def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: S
     return out
 
 
+def _map_channels(capture: Any, channel_map: Mapping[str, str]) -> Any:
+    """The capture with channels renamed as ``channel_map`` says (spec name → capture channel)."""
+    from dataclasses import replace
+
+    if not channel_map:
+        return capture
+    names = list(capture.channel_names)
+    for spec_name, key in channel_map.items():
+        idx = capture.channel_index(key)
+        clash = [n for i, n in enumerate(names) if i != idx and n.lower() == spec_name.lower()]
+        if clash:
+            raise SpecError(f"--channel {spec_name}={key}: {capture.source} already has a channel named "
+                            f"{clash[0]!r} — map another name, or leave --channel out")
+        names[idx] = spec_name
+    return replace(capture, channel_names=tuple(names))
+
+
+def _check_channels(capture: Any, spec: Spec) -> Any:
+    """Refuse a capture that lacks a channel the spec's measured limits are taken from."""
+    channels = [{"name": n} for n in capture.channel_names]
+    for lim in spec.limits:
+        if lim.quantity in FITTED_QUANTITIES or _channel_index(lim, channels) is not None:
+            continue
+        if isinstance(lim.channel, int):
+            raise SpecError(f"{capture.source}: the spec takes {lim.quantity} from channel {lim.channel + 1}, but "
+                            f"the capture has {capture.n_channels} ({', '.join(capture.channel_names)}) — "
+                            "correct channel in the spec")
+        wanted = "output" if lim.channel is None else lim.channel
+        raise SpecError(
+            f"{capture.source}: no channel {wanted!r} for the spec's {lim.quantity} limit (the capture has "
+            f"{', '.join(capture.channel_names)}) — map one with --channel {wanted}=CH (a name or 1-based "
+            f"number, e.g. --channel {wanted}={capture.n_channels}), or set channel in the spec")
+    return capture
+
+
 def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Spec,
              as_found: Sequence[str | Path] = (), operator: str | None = None,
              out_dir: str | Path = ".", fit: FitOptions | None = None,
              log_path: str | Path | None = None, with_figures: bool = True,
-             progress: Callable[[str], None] | None = None, defer_log: bool = False) -> UnitRun:
+             progress: Callable[[str], None] | None = None, defer_log: bool = False,
+             channel_map: Mapping[str, str] | None = None) -> UnitRun:
     """Measure (and fit) one unit's captures, write its HTML report and JSON twin, log the run.
 
     Parameters
@@ -408,6 +444,15 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     defer_log : bool
         Do not write the log; return what would be appended as ``UnitRun.log_entry``
         (plain, picklable data) so that a batch appends every unit from one process.
+    channel_map : mapping of str to str, optional
+        ``{spec channel name: capture channel}`` (a name or a 1-based number): the capture's
+        channel is renamed to the spec's name before it is measured (``--channel output=2``).
+
+    Raises
+    ------
+    SpecError
+        A capture lacks a channel the spec's limits need (a setup mistake, not a failed unit):
+        the message names the capture's channels and the ``--channel`` mapping that fixes it.
 
     Returns
     -------
@@ -427,7 +472,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     for paths, group in ((captures, left), (as_found, found)):
         for p in paths:
             step(f"measuring {p}")
-            capture = benchfit.load(p)
+            capture = _check_channels(_map_channels(benchfit.load(p), channel_map or {}), sp)
             group.append((capture, benchfit.measure(capture)))
     fits_left, fits_found, fit_errors = [], [], []
     if fit_fn is not None:

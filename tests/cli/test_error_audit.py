@@ -434,6 +434,13 @@ CASES = [
       r": limit 1\.quantity: unknown quantity \['frequency_hz'\] — use one of ", "spec_list"),
     C("report-spec-inf", "report {good} --spec {spec_inf} --unit HC-01 --no-log", 2,
       r"\(frequency_hz\): tolerance = inf is not finite — give a finite number$", "spec_inf"),
+    C("report-no-output-channel", "report {two} --spec {spec} --unit HC-03 --no-log", 2,
+      r"two\.wav: no channel 'output' for the spec's frequency_hz limit \(the capture has ch1, ch2\) — map one "
+      r"with --channel output=CH", "two"),
+    C("report-channel-not-assignment", "report {two} --spec {spec} --unit HC-03 --no-log --channel output", 2,
+      r"^error: --channel 'output': not NAME=CH — write it like --channel output=2", "--channel"),
+    C("report-channel-no-such", "report {two} --spec {spec} --unit HC-03 --no-log --channel output=7", 2,
+      r"two\.wav: no channel '7' — choose one of ch1, ch2 or a number 1…2$", "two"),
     C("report-spec-400-digits", "report {good} --spec {spec_digits} --unit HC-01 --no-log", 2,
       r"\(frequency_hz\): nominal = 1000+\.\.\. is not finite — ", "spec_digits"),
 ]

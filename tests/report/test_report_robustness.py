@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import pytest
+
 from benchfit.report.html import report_stem, write_report
 
 
@@ -39,3 +41,33 @@ def test_safety_box_speaks_of_this_unit_not_of_a_fixed_one():
     fitted = build_report(unit="HC-07", spec=with_supply, as_left=left, fits_left=[make_fit()])["safety"]
     assert any("through the inductor (fitted L = 300 mH)" in s for s in fitted)  # make_fit's L = 0.3 H
     assert any("at the stated 9 V" in s for s in fitted)
+
+
+def test_report_channel_maps_the_spec_channel_onto_a_capture_channel(tmp_path):
+    """A stereo capture with channels ch1/ch2 and a spec that takes frequency from "output": without a
+    mapping it is a setup error (exit 2, not a failed unit); --channel output=2 judges channel 2."""
+    import json
+
+    import numpy as np
+    import soundfile as sf
+
+    from benchfit.cli import main
+
+    fs = 48000
+    t = np.arange(fs // 2) / fs
+    wav = tmp_path / "HC-03.wav"
+    sf.write(wav, np.stack([np.where((t * 50) % 1 < 0.5, 0.8, -0.8), 0.5 * np.sin(2 * np.pi * 49.0 * t)], axis=1),
+             fs, subtype="PCM_24")
+    spec = tmp_path / "spec.toml"
+    spec.write_text('[[limit]]\nquantity = "frequency_hz"\nnominal = 49.0\ntolerance = 0.25\n', encoding="utf-8")
+    args = ["report", str(wav), "--spec", str(spec), "--unit", "HC-03", "--no-log", "--out", str(tmp_path / "r"),
+            "--no-figures", "--json"]
+    for extra, code in (([], 2), (["--channel", "output=2"], 0)):
+        try:
+            main(args + extra)
+        except SystemExit as e:
+            assert (e.code or 0) == code
+    (twin,) = (tmp_path / "r").glob("*.json")
+    rep = json.loads(twin.read_text(encoding="utf-8"))
+    (row,) = rep["results"]
+    assert row["channel"] == "output" and row["as_left"]["value"] == pytest.approx(49.0, abs=1e-3)
