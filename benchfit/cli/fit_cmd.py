@@ -210,7 +210,8 @@ def fit_command(
     if plot is not None:
         from benchfit.report.figures import fit_svg, save_figure
 
-        save_figure(fit_svg(result), plot, overwrite=overwrite)
+        units = set(cap.units)
+        save_figure(fit_svg(result, unit=units.pop() if len(units) == 1 else None), plot, overwrite=overwrite)
     d = result.to_dict()
     if as_json:
         print_json(d)

@@ -371,7 +371,9 @@ def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: S
         out.append({"title": f"Harmonic spectrum — {capture.source or 'capture'}, channel {name}",
                     "svg": str(figures.spectrum_svg(measurement.channels[idx]))})
     for f in fits:
-        out.append({"title": f"Fit of the {f.model} model — {f.file}", "svg": str(figures.fit_svg(f))})
+        units = {u for capture, _ in as_left if capture.source == f.file for u in capture.units}
+        out.append({"title": f"Fit of the {f.model} model — {f.file}",
+                    "svg": str(figures.fit_svg(f, unit=units.pop() if len(units) == 1 else None))})
     return out
 
 

@@ -203,7 +203,7 @@ def spectrum_svg(channel_measurement) -> str:
         return _to_svg(fig)
 
 
-def fit_svg(fit_result) -> str:
+def fit_svg(fit_result, unit: str | None = None) -> str:
     """Figure of a fit: data and model over time, |H| and phase at the harmonics, residuals.
 
     Parameters
@@ -211,6 +211,9 @@ def fit_svg(fit_result) -> str:
     fit_result : FitResult
         Uses ``fit_result.curves`` (time in s; complex responses at the harmonic
         frequencies in Hz; residuals on the points actually fitted).
+    unit : str, optional
+        Unit of the captured samples (``"V"`` or ``"FS"``), shown on the waveform and residual
+        axes; None when not known (the axes then say "capture unit").
 
     Returns
     -------
@@ -221,6 +224,7 @@ def fit_svg(fit_result) -> str:
 
     c = fit_result.curves
     has_h = c.harmonic_hz.size > 0
+    su = unit or "capture unit"  # the samples' unit; H of a two-channel fit is V/V
     rows = 3 if has_h else 2
     with matplotlib.rc_context(_RC):
         fig = _new_figure(7.0, 2.3 * rows)
@@ -236,7 +240,7 @@ def fit_svg(fit_result) -> str:
                 ax_t.plot(c.time_s * scale, c.model, color=_MODEL, lw=1.0, ls="--", label="model")
             ax_t.set_xlabel(f"time ({tu})")
             ax_t.legend(loc="upper right")
-        ax_t.set_ylabel("ring (baseline included)" if fit_result.method == "ringdown" else "output")
+        ax_t.set_ylabel(f"ring, baseline included ({su})" if fit_result.method == "ringdown" else f"output ({su})")
         nrmse = fit_result.quality.nrmse
         quality = (f" — NRMSE {100 * nrmse:.3g} %" if isinstance(nrmse, (int, float)) and math.isfinite(nrmse)
                    else "")
@@ -252,12 +256,10 @@ def fit_svg(fit_result) -> str:
             else:
                 ax_m.plot(f, hm, "o", color=_INK, ms=3.5, label="measured")
             has_model = c.h_model.size == f.size
+            # phases wrapped to (−180°, 180°], the range a phase meter shows; both series the same way
+            ph_meas = np.degrees(np.angle(c.h_measured))
             if has_model:
-                # unwrap the model's phase; show each measured phase in the turn nearest it
-                ph_model = np.degrees(np.unwrap(np.angle(c.h_model)))
-                ph_meas = ph_model + np.degrees(np.angle(c.h_measured / c.h_model))
-            else:
-                ph_meas = np.degrees(np.unwrap(np.angle(c.h_measured)))
+                ph_model = np.degrees(np.angle(c.h_model))
             ax_p.plot(f, ph_meas, "o", color=_INK, ms=3.5, label="measured")
             if has_model:
                 ax_m.plot(f, np.abs(c.h_model), "s", mfc="none", color=_MODEL, ms=5, label="model")
@@ -267,11 +269,11 @@ def fit_svg(fit_result) -> str:
                 ax.set_xscale("log")
                 ax.set_xlabel("frequency (Hz)")
             if fit_result.method == "one-channel":  # output phasors: the drive level is unknown
-                ax_m.set_ylabel("output |Y_k| (peak)")
+                ax_m.set_ylabel(f"output |Y_k| ({su} peak)")
                 ax_m.set_title("output harmonics", loc="left")
                 ax_p.set_title("output phase", loc="left")
             else:
-                ax_m.set_ylabel("|H|")
+                ax_m.set_ylabel("|H| (V/V)")
                 ax_m.set_title("magnitude at the harmonics", loc="left")
                 ax_p.set_title("phase at the harmonics", loc="left")
             ax_p.set_ylabel("phase (°)")
@@ -287,7 +289,8 @@ def fit_svg(fit_result) -> str:
             ax_r.set_xlabel("fitted point (real parts at the harmonics, then imaginary parts)")
         else:
             ax_r.set_xlabel("fitted point")
-        ax_r.set_ylabel("residual")
+        in_h = has_h and r.size == 2 * c.harmonic_hz.size and fit_result.method != "one-channel"
+        ax_r.set_ylabel("residual (V/V)" if in_h else f"residual ({su})")
         ax_r.set_title("residuals (data − model)", loc="left")
         return _to_svg(fig)
 

@@ -92,29 +92,61 @@ def format_u(u: float | None, unit: str = "") -> str:
 
 def format_limits(lower: float | None, upper: float | None, unit: str) -> str:
     """"a … b unit", "≤ b unit" or "≥ a unit"."""
+    # a limit is shown exactly as the spec gives it (up to 12 digits): 2.00001 must not read as 2
     if lower is not None and upper is not None:
-        return f"{format_value(lower, unit)} … {format_value(upper, unit)}"
+        return f"{format_value(lower, unit, digits=12)} … {format_value(upper, unit, digits=12)}"
     if upper is not None:
-        return f"≤ {format_value(upper, unit)}"
+        return f"≤ {format_value(upper, unit, digits=12)}"
     if lower is not None:
-        return f"≥ {format_value(lower, unit)}"
+        return f"≥ {format_value(lower, unit, digits=12)}"
     return "—"
 
 
-_CONDITION_UNITS = (("_ohm", "ohm"), ("_v", "V"), ("_a", "A"), ("_hz", "Hz"), ("_s", "s"), ("_f", "F"),
-                    ("_h", "H"), ("_pct", "%"), ("_c", "°C"))
+_CONDITION_UNITS = (("_ohm", "ohm", "resistance"), ("_v", "V", "voltage"), ("_a", "A", "current"),
+                    ("_hz", "Hz", "frequency"), ("_s", "s", "time"), ("_f", "F", "capacitance"),
+                    ("_h", "H", "inductance"), ("_pct", "%", "percentage"), ("_c", "°C", "temperature"))
 
 
 def format_condition(key: str, value: Any) -> tuple[str, str]:
-    """(label, text) of a test condition; a number whose key ends in a unit (``load_ohm``) gets it."""
+    """(label, text) of a test condition; a number whose key ends in a unit (``load_ohm``) gets it,
+    and its label names the quantity instead of the unit ("load resistance", not "load ohm")."""
     label = key.replace("_", " ")
     if isinstance(value, (int, float)) and not isinstance(value, bool):
-        for suffix, unit in _CONDITION_UNITS:
-            if key.lower().endswith(suffix):
+        for suffix, unit, quantity in _CONDITION_UNITS:
+            if key.lower().endswith(suffix) and len(key) > len(suffix):
+                label = f"{key[:-len(suffix)].replace('_', ' ')} {quantity}"
                 if unit == "°C":
                     return label, f"{value:g} °C"
-                return label, format_value(float(value), unit)
+                return label, format_value(float(value), unit, digits=12)
     return label, str(value)
+
+
+def path_breaks(path: Any) -> Any:
+    """A file path as HTML that may wrap only after a separator (``/``, ``\\``, ``_``, ``-``, ``.``).
+
+    The text is escaped, then a ``<wbr>`` follows each separator, so a long path breaks between its
+    parts instead of in the middle of a word (with ``overflow-wrap: break-word`` as the last resort).
+    """
+    import html as _html
+
+    from markupsafe import Markup
+
+    text = _html.escape(str(path))
+    return Markup(re.sub(r"([/\\_\-.])", r"\1<wbr>", text))
+
+
+#: names a technician reads in the parts table, for the fit's parameter and derived-value keys
+_PART_LABELS = {
+    "L": "L, inductance", "C": "C, capacitance", "Rs": "Rs, series resistance (source and choke)",
+    "Resr": "ESR of the capacitor", "Rload": "Rload, load resistance",
+    "resonant_frequency_hz": "resonant frequency f₀", "q_factor": "Q factor",
+    "damped_frequency_hz": "damped (ringing) frequency", "decay_rate_per_s": "decay rate α",
+}
+
+
+def part_label(key: str) -> str:
+    """The parts table's name for a fit key (``q_factor`` → "Q factor"); unknown keys keep their name."""
+    return _PART_LABELS.get(key, str(key).replace("_", " "))
 
 
 _PROLOG = re.compile(r"<\?xml[^>]*\?>\s*", re.S)
@@ -139,6 +171,8 @@ def _environment():
     env.filters["limits"] = format_limits
     env.globals["condition"] = format_condition
     env.filters["unit"] = lambda unit: _unit_text("", unit)
+    env.filters["part_label"] = part_label
+    env.filters["path"] = path_breaks
     env.filters["slug"] = lambda text: re.sub(r"[^a-z]+", "-", str(text).lower()).strip("-")
     return env
 

@@ -71,3 +71,51 @@ def test_report_channel_maps_the_spec_channel_onto_a_capture_channel(tmp_path):
     rep = json.loads(twin.read_text(encoding="utf-8"))
     (row,) = rep["results"]
     assert row["channel"] == "output" and row["as_left"]["value"] == pytest.approx(49.0, abs=1e-3)
+
+
+def test_report_labels_read_as_a_technician_writes_them():
+    """Human names in the parts table, NRMSE once (in %), conditions by quantity, limits exactly as
+    the spec gives them, paths that wrap between their parts."""
+    import re
+
+    from report_builders import make_capture, make_fit, make_measurement
+
+    from benchfit.report.assemble import build_report
+    from benchfit.report.html import render_html
+    from benchfit.report.spec import parse_spec
+
+    spec = parse_spec({"conditions": {"load_ohm": 10000, "supply_v": 12.0},
+                       "limit": [{"quantity": "thd_pct", "max": 2.00001},
+                                 {"quantity": "frequency_hz", "nominal": 50.0, "tolerance": 0.25}]})
+    rep = build_report(unit="HC-07", spec=spec, as_left=[(make_capture(source="/bench/runs/hc07_left.wav"),
+                                                          make_measurement())], fits_left=[make_fit()])
+    page = render_html(rep, [])
+    text = re.sub(r"<[^>]+>", "", page)
+    for raw in ("resonant frequency hz", "q factor", "decay rate per s", "load ohm", "supply v"):
+        assert not re.search(rf"\b{raw}\b", text), raw  # the raw keys, case as the template writes them
+    assert "Q factor" in text and "resonant frequency f₀" in text and "decay rate α" in text
+    assert "load resistance" in text and "supply voltage" in text
+    assert "≤ 2.00001%" in text  # not "≤ 2%": the limit the unit was judged against
+    assert "NRMSE 1%" in text and "NRMSE 0.01" not in text  # make_fit's NRMSE is 0.01 = 1 %
+    assert "/<wbr>bench/<wbr>runs/<wbr>hc07_<wbr>left.<wbr>wav" in page
+
+
+def test_fit_figure_axes_carry_units_and_phases_are_wrapped():
+    from dataclasses import replace
+
+    import numpy as np
+    from report_builders import make_fit
+
+    from benchfit.report.figures import fit_svg
+
+    f = make_fit()
+    k = np.arange(1, 8)
+    h = np.exp(-1j * 1.4 * k)  # phase runs to −9.8 rad: unwrapped it would reach −561°
+    f = replace(f, curves=replace(f.curves, harmonic_hz=50.0 * k, h_measured=h, h_model=h * 1.01,
+                                  h_measured_u=np.full(k.size, 0.01), residual=np.zeros(2 * k.size)))
+    fig = fit_svg(f, unit="V").figure
+    labels = [ax.get_ylabel() for ax in fig.axes]
+    assert "output (V)" in labels and "|H| (V/V)" in labels and "residual (V/V)" in labels
+    phase_ax = [ax for ax in fig.axes if ax.get_ylabel() == "phase (°)"][0]
+    ys = np.concatenate([ln.get_ydata() for ln in phase_ax.get_lines()])
+    assert ys.min() >= -180 and ys.max() <= 180
