@@ -260,6 +260,11 @@ def _sigint_deferred():
         signal.signal(signal.SIGINT, previous)
 
 
+#: a recording whose loudest sample stays below this is silence (a line-level source reaches −20 dBFS
+#: or more; −60 dBFS is near the noise floor of a 16-bit card's input — common practice, no source)
+_SILENT_DBFS = -60.0
+
+
 def _write_recording_sidecar(out: Path, sidecar: dict[str, Any], overwrite: bool, warnings: list[str]) -> Path:
     """Write a finished recording's sidecar; one that appeared during the recording is kept.
 
@@ -464,6 +469,10 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
                 warnings.append(f"PortAudio reported {overflows} input overflow(s): samples were lost")
             if clips:
                 warnings.append(f"{clips} sample(s) at or above −0.1 dBFS: the input clipped")
+            if frames and peak_all and max(peak_all) < _SILENT_DBFS:
+                warnings.append(f"every channel stayed below {_SILENT_DBFS:g} dBFS (loudest {max(peak_all):.1f} dBFS): "
+                                "the recording is silent — check the input selection, the cable and the "
+                                "source, then record again")
             sidecar = {
                 "benchfit_sidecar": 1,
                 "channels": [{"name": n} for n in chan_names],

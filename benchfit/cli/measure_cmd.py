@@ -152,6 +152,8 @@ def render_channel_rows(ch: dict[str, Any]) -> list[tuple[str, str, str]]:
             note = f"droop {droop:.2g} % compensated" if droop else "droop compensated"
             rows.append(("input coupling τ", _num(ex["coupling_tau_s"], "s"),
                          f"{ex.get('coupling_source')}; {note}"))
+    elif ex.get("pulse_not_given"):
+        rows.append(("duty cycle, edges", "—", ex["pulse_not_given"]))
     if ch["frequency_hz"] is not None:
         rows += [
             ("THD", _pct(ch["thd_pct"], ex.get("thd_u_pct")), f"harmonics 2…{h}"),

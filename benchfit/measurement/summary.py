@@ -46,7 +46,7 @@ from benchfit.capture.capture import Capture
 from benchfit.errors import MeasureError
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
 from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
-from benchfit.measurement.pulse import PulseResult, pulse_parameters
+from benchfit.measurement.pulse import PulseResult, pulse_parameters, state_levels
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
 from benchfit.measurement.tone import fit_harmonics, fit_tone
 
@@ -194,6 +194,13 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                         "record at a higher sample rate")
     else:
         pulse = pulse_parameters(x, fs, coupling_tau_s)
+        if not pulse.two_level:
+            # rich in harmonics but not two-level: the result says why duty and edges are missing
+            # (in extra, shown by measure beside the missing values; not a warning, since a distorted
+            # sine is not a mistake)
+            frac = state_levels(x).fraction_in_states
+            extra["pulse_not_given"] = (f"not a two-level wave: {100 * frac:.0f} % of the samples lie near two "
+                                        "levels, 75 % are needed (slow edges, or not a pulse)")
     method = "multi-harmonic fit"
     if pulse.two_level and pulse.edge_period_s and pulse.edge_period_u_s is not None:
         # Two-level wave: its sharp edges put harmonics far above H (and, sampled without an
@@ -276,7 +283,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             "state_low": pulse.state_low, "state_high": pulse.state_high,
             "duty_cycle_u_pct": pulse.duty_cycle_u_pct,
             "rise_time_u_s": pulse.rise_time_u_s, "fall_time_u_s": pulse.fall_time_u_s,
-            "overshoot_pct": pulse.overshoot_pct, "undershoot_pct": pulse.undershoot_pct,
+            "overshoot_pct": _beyond_one_step(pulse.overshoot_pct, x, pulse),
+            "undershoot_pct": _beyond_one_step(pulse.undershoot_pct, x, pulse),
             "pulse_periods": pulse.n_periods,
             "pulse_period_s": pulse.period_s,
             "coupling_tau_s": pulse.coupling_tau_s,
@@ -293,6 +301,21 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         sinad_db=_f(dist.sinad_db) if math.isfinite(dist.sinad_db) else None,
         harmonics=table, clipped=bool(clip.clipped), warnings=tuple(warnings),
         extra={k: (_f(v) if isinstance(v, (float, np.floating)) else v) for k, v in extra.items()})
+
+
+def _beyond_one_step(pct: float | None, x: np.ndarray, pulse: PulseResult) -> float | None:
+    """An overshoot (or undershoot) in %, or 0 when it is no more than one quantisation step.
+
+    One code above the high state is the recorder's resolution, not a ring of the source (IEEE 181
+    overshoot is an aberration of the waveform; a step of the grid cannot show one).
+    """
+    if pct is None or pulse.state_low is None or pulse.state_high is None:
+        return pct
+    amplitude = pulse.state_high - pulse.state_low
+    q = quantisation_step(x)
+    if amplitude > 0 and q > 0 and pct * amplitude / 100.0 <= q * (1.0 + 1e-9):
+        return 0.0
+    return pct
 
 
 def _f(v: Any) -> float | None:

@@ -59,3 +59,23 @@ def test_record_claims_the_wav_name_before_recording(tmp_path):
     else:
         raise AssertionError("create_new replaced an existing file")
     assert p.read_bytes() == b"earlier take"
+
+
+_SILENT_SNIPPET = """
+import json, sys
+import benchfit
+res = benchfit.record(sys.argv[1], 0.5, rate=48000, channels=2, device="pulse")
+print(json.dumps({"warnings": list(res.warnings), "peaks": list(res.peak_dbfs)}))
+"""
+
+
+def test_a_silent_recording_says_so(rig, tmp_path):
+    """Nothing plays into the null sink: its monitor delivers digital silence, and the recording
+    says it is silent instead of passing without a word."""
+    r = subprocess.run([sys.executable, "-c", _SILENT_SNIPPET, str(tmp_path / "HC-06_silent.wav")], env=rig.env,
+                       capture_output=True, text=True, timeout=60)
+    assert r.returncode == 0, r.stderr
+    res = json.loads(r.stdout)
+    assert max(res["peaks"]) < -60
+    (warn,) = [w for w in res["warnings"] if "the recording is silent" in w]
+    assert warn.startswith("every channel stayed below -60 dBFS") and " — check the input selection" in warn

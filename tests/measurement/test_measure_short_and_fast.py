@@ -55,3 +55,36 @@ def test_a_square_with_enough_samples_a_period_keeps_its_duty():
     x = np.where((t * f) % 1 < 0.3, 0.8, -0.8)
     m = measure_channel(x, FS)
     assert m.duty_cycle_pct == pytest.approx(30.0, abs=100 / 64)  # one sample of 64 in the period
+
+
+def test_missing_duty_and_edges_say_why():
+    """A square smoothed over 1/6 of its period (slow edges) has no two-level histogram (IEEE 181-2011
+    5.2: state levels from the histogram modes); the result says so instead of dropping the values."""
+    t = np.arange(24000) / FS
+    square = np.where((t * 50) % 1 < 0.5, 0.8, -0.8)
+    slow = np.convolve(square, np.ones(160) / 160, mode="same")  # 3.3 ms ramps in a 20 ms period
+    m = measure_channel(slow, FS)
+    assert m.duty_cycle_pct is None and m.rise_time_s is None
+    assert m.extra["pulse_not_given"].startswith("not a two-level wave: ")
+    assert "75 % are needed" in m.extra["pulse_not_given"]
+    fast = measure_channel(square, FS)
+    assert fast.duty_cycle_pct is not None and "pulse_not_given" not in fast.extra
+
+
+def test_one_quantisation_step_is_not_an_overshoot():
+    """An 8-bit scope trace (step = span/255) whose first sample after each rising edge sits one code
+    above the high state: that is the grid, not a ring — overshoot 0; two codes still count."""
+    t = np.arange(24000) / FS
+    square = np.where((t * 50) % 1 < 0.5, 1.0, -1.0)
+    step = 2.0 / 255
+    rising = np.flatnonzero(np.diff(square) > 0) + 1
+    low = square < 0
+    dither = np.random.default_rng(8).integers(-1, 2, int(low.sum())) * step  # ±1 code on the low state
+    for codes, expect_zero in ((1, True), (3, False)):
+        x = square.copy()
+        x[low] += dither  # the code grid shows in the record (quantisation_step finds it)
+        x[rising] += codes * step
+        m = measure_channel(x, FS)
+        assert (m.extra["overshoot_pct"] == 0.0) == expect_zero, m.extra["overshoot_pct"]
+        if not expect_zero:  # 3 codes of the 2 V amplitude: 3 · (2/255) / 2 = 1.18 %
+            assert m.extra["overshoot_pct"] == pytest.approx(100 * 3 * step / 2.0, rel=0.05)
