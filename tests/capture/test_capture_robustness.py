@@ -220,3 +220,39 @@ def test_sidecar_mutants_give_a_capture_or_one_error_line(tmp_path):
         except Exception as e:  # noqa: BLE001 - the point of the test
             pytest.fail(f"mutant {n} raised {type(e).__name__}: {e}\n{text[:300]!r}")
     assert outcomes["capture"] > 100 and outcomes["error"] > 200, outcomes
+
+
+# --- CSV time columns as exports write them --------------------------------------------------------
+
+def _us_rounded_csv(tmp_path, scale=1.0, decimals=6, name="HC-08_us.csv"):
+    t = np.arange(4800) / FS
+    path = tmp_path / name
+    path.write_text("time,output\n" + "\n".join(f"{a * scale:.{decimals}f},{np.sin(2 * np.pi * 50 * a):.5f}"
+                                              for a in t) + "\n", encoding="utf-8")
+    return path
+
+
+def test_time_column_rounded_to_1us_at_48khz_is_read(tmp_path):
+    """48 kHz printed to 1 µs: steps of 20 and 21 µs, stamps up to 0.5 µs (2.4 % of a step) off the grid.
+    That is rounding, not irregular sampling: accepted with a warning, the step fitted over all rows
+    (its error is ~ (q/√12)/√(Σk²) ≈ 0.14 ppm here — a least-squares slope, from memory)."""
+    path = _us_rounded_csv(tmp_path)
+    cap = load(path)
+    assert cap.sample_rate == pytest.approx(FS, rel=1e-6)
+    assert any("time stamps are rounded to 1e-06 s" in w for w in cap.warnings)
+    given = load(path, sample_rate=48000.0)  # the caller's rate agrees: it is used exactly
+    assert given.sample_rate == 48000.0
+    assert any("the given sample rate 48000 Hz is used" in w for w in given.warnings)
+
+
+def test_time_column_rounded_too_coarsely_is_still_refused(tmp_path):
+    """Printed to 10 µs (half a step): rounding that coarse could hide real irregular sampling, so only a
+    grid up to a tenth of a step is taken as rounding (common practice, no source); the error stands."""
+    with pytest.raises(CaptureError, match="the samples are not evenly spaced"):
+        load(_us_rounded_csv(tmp_path, decimals=5))
+
+
+def test_unitless_microsecond_column_gets_a_plausibility_warning(tmp_path):
+    cap = load(_us_rounded_csv(tmp_path, scale=1e6, decimals=3, name="HC-08_us_col.csv"))
+    (w,) = [w for w in cap.warnings if "has no unit" in w and "time" in w]
+    assert "which gives 0.048 Hz; read as µs it would be 48000 Hz" in w and "'time (us)'" in w
