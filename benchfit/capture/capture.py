@@ -205,6 +205,9 @@ class Capture:
         lowered = [n.lower() for n in self.channel_names]
         if key.lower() in lowered:
             return lowered.index(key.lower())
+        headers = [str(h).lower() for h in self.metadata.get("channel_headers") or ()]
+        if len(headers) == self.n_channels and key.strip().lower() in headers:  # "drive_V" as written in a CSV
+            return headers.index(key.strip().lower())
         if key.strip().isdigit():
             number = int(key)
             if 1 <= number <= self.n_channels:
@@ -227,8 +230,13 @@ class Capture:
             cal = replace(cal, gain_v_per_fs=tuple(gains[i] for i in idx))
         if gains_u is not None:
             cal = replace(cal, gain_u_rel=tuple(gains_u[i] for i in idx))
+        meta = dict(self.metadata)
+        headers = meta.get("channel_headers")
+        if headers is not None and len(headers) == self.n_channels:
+            meta["channel_headers"] = [headers[i] for i in idx]
         return replace(
             self,
+            metadata=meta,
             samples=self.samples[idx],
             channel_names=tuple(self.channel_names[i] for i in idx),
             units=tuple(self.units[i] for i in idx),

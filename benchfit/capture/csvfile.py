@@ -464,6 +464,8 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
         meta["dropped_columns"] = dropped
     if names is not None:
         meta["columns"] = list(names)
+        # each channel's header as written ("drive_V" for the channel named "drive"): accepted as its name too
+        meta["channel_headers"] = [labels[i].strip() for i in ch_idx]
     samples = values[:, ch_idx].T * np.asarray(scales)[:, np.newaxis]
     return Capture(samples=samples, sample_rate=fs, channel_names=tuple(ch_names), units=("V",) * len(ch_idx),
                    source=where, sha256=sha256, metadata=meta, warnings=tuple(warnings), t0=t0)

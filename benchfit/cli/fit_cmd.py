@@ -152,7 +152,7 @@ def fit_command(
                                             "L, C, Rs, Resr, Rload; e.g. --fix L=300m."),
     guess: Optional[List[str]] = typer.Option(None, "--guess", metavar="NAME=VALUE", help="Start value NAME=VALUE (repeatable)."),
     drive_duty: Optional[str] = typer.Option(None, "--drive-duty", metavar="DUTY", help="One-channel: the drive's duty "
-                                             "cycle, high time / period, as 0.5 or 50%; fitted if omitted."),
+                                             "cycle, high time / period, as 0.5, 50 or 50%; fitted if omitted."),
     time_domain: bool = typer.Option(False, "--time-domain", help="Two-channel: refine by simulating "
                                      "the output from the drive samples (for non-periodic drives)."),
     as_json: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
@@ -181,7 +181,9 @@ def fit_command(
         text = drive_duty.strip()
         pct = text.endswith("%")
         duty = parse_value(text.rstrip("%").strip(), "--drive-duty")
-        duty = duty / 100.0 if pct else duty
+        # a bare number from 1 to 99 is a percentage ("--drive-duty 50"): a fraction is below 1, and
+        # 1 itself (100 %) is no pulse; exactly 1.0 stays refused below
+        duty = duty / 100.0 if pct or 1.0 < duty < 100.0 else duty
         if not 0.0 < duty < 1.0:
             fail(f"--drive-duty {drive_duty!r}: the duty cycle must lie between 0 and 1 (or 0 % and "
                  "100 %) — e.g. --drive-duty 0.5")

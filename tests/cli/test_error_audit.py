@@ -282,7 +282,8 @@ CASES = [
     C("fit-fix-not-assignment", "fit {two} --fix L", 2, r"^error: --fix 'L': not NAME=VALUE — write it like --fix L=",
       "--fix"),
     C("fit-fix-negative", "fit {two} --fix L=-3", 2, r"^error: --fix 'L=-3': L must be positive — ", "--fix"),
-    C("fit-duty-out-of-range", "fit {two} --drive-duty 2", 2, r"^error: --drive-duty '2': the duty cycle must lie",
+    # a bare 1…100 is a percentage (--drive-duty 50 = 50 %), so the out-of-range value is 150
+    C("fit-duty-out-of-range", "fit {two} --drive-duty 150", 2, r"^error: --drive-duty '150': the duty cycle must lie",
       "--drive-duty"),
     C("fit-plot-folder", "fit {two} --plot {folder_svg}", 2,
       r": is a folder — give --plot a file name ending in \.svg or \.png$", "folder_svg"),
