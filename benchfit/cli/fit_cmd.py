@@ -161,7 +161,8 @@ def fit_command(
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
 ) -> None:
-    from benchfit.cli.common import fail, parse_assignments, parse_value, print_json, stderr, stdout
+    from benchfit.cli.common import (check_parts_plausible, fail, parse_assignments, parse_value, print_json,
+                                     stderr, stdout)
 
     if model not in _MODELS:
         fail(f"--model {model!r}: unknown model — use one of {', '.join(_MODELS)}")
@@ -176,6 +177,8 @@ def fit_command(
     names = ("L", "C", "Rs", "Resr", "Rload")
     fixed = parse_assignments(fix, names, "--fix", zero_ok=("Resr",))
     guessed = parse_assignments(guess, names, "--guess")
+    check_parts_plausible(fixed, "--fix")
+    check_parts_plausible(guessed, "--guess")
     duty = None
     if drive_duty is not None:
         text = drive_duty.strip()

@@ -90,7 +90,7 @@ def report_command(
                                                        "(with --each: one line per unit as it finishes)."),
 ) -> None:
     from benchfit.cli.batch import collect_captures, prefer_one_blas_thread
-    from benchfit.cli.common import fail, parse_assignments
+    from benchfit.cli.common import check_parts_plausible, fail, parse_assignments
 
     prefer_one_blas_thread()  # before numpy loads: its small matrix products run faster on one thread
 
@@ -98,6 +98,7 @@ def report_command(
     from benchfit.report.assemble import FitOptions
 
     fix_values = parse_assignments(fix, _FIT_NAMES, "--fix", zero_ok=("Resr", "Rs"))
+    check_parts_plausible(fix_values, "--fix")
     channel_map = _channel_map(channel)
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:

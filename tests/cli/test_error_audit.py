@@ -442,6 +442,11 @@ CASES = [
       r"^error: --channel 'output': not NAME=CH — write it like --channel output=2", "--channel"),
     C("report-channel-no-such", "report {two} --spec {spec} --unit HC-03 --no-log --channel output=7", 2,
       r"two\.wav: no channel '7' — choose one of ch1, ch2 or a number 1…2$", "two"),
+    C("fit-fix-megahenry", "fit {two} --fix L=300M", 2,
+      r"^error: --fix L=3e\+08 H: outside any bench part \(1e-09…100 H\) — check the SI prefix \(M mega, .*\), "
+      r"e\.g\. --fix L=300m$", "--fix"),
+    C("fit-fix-farad", "fit {two} --fix C=33", 2, r"^error: --fix C=33 F: outside any bench part .* --fix C=33u$",
+      "--fix"),
     C("report-spec-400-digits", "report {good} --spec {spec_digits} --unit HC-01 --no-log", 2,
       r"\(frequency_hz\): nominal = 1000+\.\.\. is not finite — ", "spec_digits"),
 ]
