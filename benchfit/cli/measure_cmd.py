@@ -226,6 +226,9 @@ def measure_command(
         False, "--log-default",
         help="Append each measured file to the default measurement log: $BENCHFIT_LOG when set, else "
              "benchfit/log.sqlite in the user data directory."),
+    plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE",
+                                        help="One file only: write its waveform and harmonics to FILE.svg or "
+                                             "FILE.png (an existing file is kept)."),
 ) -> None:
     from benchfit.cli.batch import collect_captures, default_jobs, prefer_one_blas_thread
     from benchfit.cli.common import fail, parse_value
@@ -254,10 +257,34 @@ def measure_command(
     if not paths:
         fail(notes[0] if len(notes) == 1 else "; ".join(notes))
     single = len(files) == 1 and not files[0].is_dir()
+    if plot is not None:
+        if not single:
+            fail(f"--plot {str(plot)!r}: draws one capture — give one file, or leave --plot out")
+        if plot.suffix.lower() not in (".svg", ".png"):
+            fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
+        if plot.exists():
+            fail(f"{plot}: file exists — choose another --plot")
     if single:
         _measure_single(paths[0], opts, as_json, log_path)
+        if plot is not None:
+            _plot(paths[0], opts, plot, as_json)
         return
     _measure_batch(paths, notes, opts, as_json, log_path, jobs or default_jobs())
+
+
+def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
+    """Draw the waveform and harmonics of one capture (measured again here: the figure needs the objects)."""
+    from benchfit.capture.load import load
+    from benchfit.cli.common import stderr, stdout
+    from benchfit.measurement.summary import measure
+    from benchfit.report.figures import measurement_svg, save_figure
+
+    cap = load(path, sample_rate=opts.get("sample_rate"))
+    m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"))
+    if opts.get("channels"):
+        cap = cap.select(list(opts["channels"]))
+    save_figure(measurement_svg(cap, m), plot, overwrite=False)
+    (stderr if as_json else stdout).print(f"figure written to {plot}", markup=False, highlight=False)
 
 
 def _log_measurement(log_path: Path, out: dict[str, Any]) -> int:

@@ -31,7 +31,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["FigureSVG", "waveform_svg", "spectrum_svg", "fit_svg", "save_figure"]
+__all__ = ["FigureSVG", "waveform_svg", "spectrum_svg", "measurement_svg", "fit_svg", "save_figure"]
 
 # our own plain palette: ink for data, rust for models, moss for residuals, slate for grid
 _INK = "#22313f"
@@ -57,8 +57,6 @@ _RC = {
     "axes.titleweight": "bold",
     "legend.frameon": False,
     "legend.fontsize": 7.5,
-    # user text (channel names, file names, serials) is plain text: "$x^$" must not be read as mathtext
-    "text.parse_math": False,
 }
 
 
@@ -74,10 +72,29 @@ def _new_figure(width_in: float, height_in: float):
     return Figure(figsize=(width_in, height_in), dpi=100, layout="constrained")
 
 
+def _plain_text(fig) -> None:
+    """Titles, axis labels, legends and notes are plain text: a channel named "$x^$" is not mathtext.
+
+    Only the tick labels keep mathtext (the log axes write their decades as 10^n with it); they
+    are made by the axis formatters, never from user text.
+    """
+    from matplotlib.text import Text
+
+    ticks = set()
+    for ax in fig.axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            ticks.update(axis.get_ticklabels(which="both"))
+            ticks.add(axis.get_offset_text())
+    for text in fig.findobj(Text):
+        if text not in ticks:
+            text.set_parse_math(False)
+
+
 def _to_svg(fig) -> FigureSVG:
     import matplotlib
 
     buf = io.StringIO()
+    _plain_text(fig)
     with matplotlib.rc_context(_RC):
         fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "benchfit"})
     out = FigureSVG(buf.getvalue())
@@ -200,6 +217,61 @@ def spectrum_svg(channel_measurement) -> str:
         if cm.thd_pct is not None:
             title += f" — THD {cm.thd_pct:.3g} %"
         ax.set_title(title, loc="left")
+        return _to_svg(fig)
+
+
+def measurement_svg(capture, measurement, periods: int = 4) -> str:
+    """One figure for ``measure --plot``: per channel, a few periods of the waveform and its harmonics.
+
+    Parameters
+    ----------
+    capture : Capture
+        The samples that were measured.
+    measurement : Measurement
+        Its result (harmonic amplitudes in the channel's unit, fundamental frequency in Hz).
+    periods : int
+        Periods of the fundamental shown (the whole record when there is no frequency).
+
+    Returns
+    -------
+    str
+        Self-contained SVG text (a :class:`FigureSVG`; PNG through :func:`save_figure`).
+    """
+    import matplotlib
+
+    channels = list(measurement.channels)
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(9.0, 2.6 * len(channels))
+        grid = fig.add_gridspec(len(channels), 2, width_ratios=(3, 2))
+        for row, ch in enumerate(channels):
+            idx = capture.channel_index(ch.name)
+            x = np.asarray(capture.samples[idx], dtype=float)
+            fs = capture.sample_rate
+            f = ch.frequency_hz
+            n_show = min(x.size, max(16, int(math.ceil(periods * fs / f)))) if f else x.size
+            scale, tu = _time_unit(n_show / fs)
+            ax = fig.add_subplot(grid[row, 0])
+            ax.plot((capture.t0 + np.arange(n_show) / fs) * scale, x[:n_show], color=_INK, lw=1.1)
+            ax.set_xlabel(f"time ({tu})")
+            ax.set_ylabel(f"{ch.name} ({ch.unit})")
+            ax.set_title(ch.name + (f" — {periods} periods of {f:.6g} Hz" if f else " — no period found"), loc="left")
+            ax_h = fig.add_subplot(grid[row, 1])
+            hs = list(ch.harmonics)
+            if hs:
+                orders = np.array([h.order for h in hs])
+                amp = np.array([max(h.amplitude, 1e-300) for h in hs])
+                ax_h.vlines(orders, amp.min() * 0.3, amp, color=_INK, lw=2.2)
+                ax_h.plot(orders, amp, "o", color=_INK, ms=3.5)
+                ax_h.set_yscale("log")
+                ax_h.set_ylim(amp.min() * 0.3, amp.max() * 3)
+                ax_h.set_xticks(orders)
+            else:
+                ax_h.text(0.5, 0.5, "no harmonics measured", ha="center", va="center", transform=ax_h.transAxes,
+                          color=_INK)
+            ax_h.set_xlabel("harmonic order")
+            ax_h.set_ylabel(f"peak amplitude ({ch.unit})")
+            ax_h.set_title("harmonics" + (f" — THD {ch.thd_pct:.3g} %" if ch.thd_pct is not None else ""),
+                           loc="left")
         return _to_svg(fig)
 
 

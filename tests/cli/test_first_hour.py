@@ -54,3 +54,23 @@ def test_a_bare_drive_duty_of_50_is_percent(run, scope_csv):
     assert outs[0] == outs[1] == outs[2]  # the same duty (0.5) each time
     r = run("fit", str(scope_csv), "--method", "one-channel", "--drive-duty", "100")
     assert r.returncode == 2 and "the duty cycle must lie between 0 and 1" in r.stderr
+
+
+def test_measure_plot_writes_waveform_and_harmonics(run, scope_csv, tmp_path):
+    svg = tmp_path / "HC-03_measure.svg"
+    r = run("measure", str(scope_csv), "--plot", str(svg))
+    assert r.returncode == 0, r.stderr
+    assert f"figure written to {svg}" in r.stdout
+    text = svg.read_text(encoding="utf-8")
+    assert text.startswith("<?xml") and "<svg" in text and "<script" not in text
+    png = tmp_path / "HC-03_measure.png"
+    r = run("measure", str(scope_csv), "--channel", "output", "--plot", str(png), "--json")
+    assert r.returncode == 0, r.stderr
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948, 5.2)
+    assert json.loads(r.stdout)["channels"][0]["name"] == "output"
+    before = svg.read_bytes()
+    r = run("measure", str(scope_csv), "--plot", str(svg))  # never over an existing file
+    assert r.returncode == 2 and r.stderr.strip() == f"error: {svg}: file exists — choose another --plot"
+    assert svg.read_bytes() == before
+    r = run("measure", str(scope_csv), str(scope_csv), "--plot", str(tmp_path / "two.svg"))
+    assert r.returncode == 2 and "draws one capture" in r.stderr
