@@ -167,6 +167,7 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
     if log_path is not None:
         result = replace(result, run_id=_log_or_roll_back(log_path, result.log_entry,
                                                           [result.html_path, result.json_path]))
+    index = _update_index(out)
     if as_json:
         print_json({"unit": unit, "verdict": result.verdict, "exit_code": result.exit_code,
                     "html": str(result.html_path), "json": str(result.json_path),
@@ -177,8 +178,23 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
         stdout.print(f"json    {result.json_path}", markup=False)
         if result.run_id is not None:
             stdout.print(f"logged  run {result.run_id} in {log_path}", markup=False)
+        if index is not None:
+            stdout.print(f"index   {index}", markup=False)
     if result.exit_code:
         raise typer.Exit(code=result.exit_code)
+
+
+def _update_index(out: Path) -> Path | None:
+    """Rewrite ``out/index.html`` (every report there); a failure is a warning, the reports stand."""
+    from benchfit.cli.common import stderr
+    from benchfit.report.index import write_index
+
+    try:
+        return write_index(out)
+    except OSError as e:
+        stderr.print(f"warning: {out / 'index.html'}: the report index cannot be written ({e.strerror or e}) — "
+                     "the reports themselves are written; check the folder", markup=False, highlight=False)
+        return None
 
 
 def _log_or_roll_back(log_path: Path, entry: dict, files: list[Path]) -> int:
@@ -296,6 +312,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
 
         run_jobs(report_job, paths, jobs=jobs or default_jobs(), kwargs=kwargs, on_outcome=on_outcome,
                  preload=REPORT_PRELOAD)
+    index = _update_index(out) if any(o.ok for o in outcomes) else None
     outcomes.sort(key=lambda o: o.index)
     failed = [o for o in outcomes if not o.ok]
     if not as_json:
@@ -318,6 +335,8 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
         stdout.print(table)
         if log_path is not None:
             stdout.print(f"logged in {log_path}", markup=False)
+        if index is not None:
+            stdout.print(f"index  {index}", markup=False)
     if failed:
         fail(f"{len(failed)} of {len(paths)} captures could not be reported — see the lines above; "
              "the others were")

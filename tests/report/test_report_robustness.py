@@ -119,3 +119,35 @@ def test_fit_figure_axes_carry_units_and_phases_are_wrapped():
     phase_ax = [ax for ax in fig.axes if ax.get_ylabel() == "phase (°)"][0]
     ys = np.concatenate([ln.get_ydata() for ln in phase_ax.get_lines()])
     assert ys.min() >= -180 and ys.max() <= 180
+
+
+def test_report_keeps_an_index_of_its_folder(tmp_path):
+    """Every report run rewrites out/index.html from the JSON twins there, newest first; another
+    program's JSON in the folder is not listed and not touched."""
+    import re
+
+    import numpy as np
+    import soundfile as sf
+
+    from benchfit.cli import main
+
+    fs = 48000
+    t = np.arange(fs // 4) / fs
+    spec = tmp_path / "spec.toml"
+    spec.write_text('[[limit]]\nquantity = "frequency_hz"\nnominal = 50.0\ntolerance = 0.25\n', encoding="utf-8")
+    out = tmp_path / "reports"
+    out.mkdir()
+    (out / "notes.json").write_text('{"mine": true}\n', encoding="utf-8")
+    for serial, f in (("HC-01", 50.0), ("HC-02", 53.0)):
+        wav = tmp_path / f"{serial}.wav"
+        sf.write(wav, 0.5 * np.sin(2 * np.pi * f * t), fs, subtype="PCM_24")
+        try:
+            main(["report", str(wav), "--spec", str(spec), "--unit", serial, "--no-log", "--no-figures",
+                  "--out", str(out)])
+        except SystemExit:
+            pass
+    page = (out / "index.html").read_text(encoding="utf-8")
+    units = re.findall(r'<a href="(HC-0\d_[0-9TZ]+\.html)">(HC-0\d)</a></td><td class="([a-z-]+)"', page)
+    assert [(u, v) for _, u, v in units] == [("HC-02", "fail"), ("HC-01", "pass")]  # newest first
+    assert all((out / name).is_file() for name, _, _ in units)
+    assert "notes" not in page and (out / "notes.json").read_text(encoding="utf-8") == '{"mine": true}\n'
