@@ -33,9 +33,9 @@ def test_fit_plot_keeps_a_file_made_while_the_fit_ran(run, two_channel, tmp_path
     fig = tmp_path / "hc03_fit.svg"
     real = figures.fit_svg
 
-    def racing_fit_svg(result):
+    def racing_fit_svg(result, **kwargs):
         fig.write_text("<svg>another program's figure</svg>\n", encoding="utf-8")
-        return real(result)
+        return real(result, **kwargs)
 
     monkeypatch.setattr(figures, "fit_svg", racing_fit_svg)
     r = run("fit", str(two_channel), "--plot", str(fig), "--json")
