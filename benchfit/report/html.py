@@ -121,6 +121,23 @@ def format_condition(key: str, value: Any) -> tuple[str, str]:
     return label, str(value)
 
 
+def css_string(text: Any) -> Any:
+    """Text for the inside of a double-quoted CSS string in a <style> element (CSS Syntax 3, 4.3.5).
+
+    Every character outside letters, digits, space and a few safe marks becomes a CSS escape
+    (``\\3C `` for ``<``), so a serial can neither end the string nor the style element.
+    """
+    from markupsafe import Markup
+
+    out = []
+    for ch in str(text):
+        if ch.isalnum() or ch in " -_.:·,+()":
+            out.append(ch)
+        else:
+            out.append(f"\\{ord(ch):X} ")
+    return Markup("".join(out))
+
+
 def path_breaks(path: Any) -> Any:
     """A file path as HTML that may wrap only after a separator (``/``, ``\\``, ``_``, ``-``, ``.``).
 
@@ -173,6 +190,7 @@ def _environment():
     env.filters["unit"] = lambda unit: _unit_text("", unit)
     env.filters["part_label"] = part_label
     env.filters["path"] = path_breaks
+    env.filters["css_string"] = css_string
     env.filters["slug"] = lambda text: re.sub(r"[^a-z]+", "-", str(text).lower()).strip("-")
     return env
 

@@ -151,3 +151,19 @@ def test_report_keeps_an_index_of_its_folder(tmp_path):
     assert [(u, v) for _, u, v in units] == [("HC-02", "fail"), ("HC-01", "pass")]  # newest first
     assert all((out / name).is_file() for name, _, _ in units)
     assert "notes" not in page and (out / "notes.json").read_text(encoding="utf-8") == '{"mine": true}\n'
+
+
+def test_print_header_escapes_the_serial_for_css():
+    """The serial goes into a CSS string of the print header: quotes, '<' and '\\' are CSS escapes
+    (CSS Syntax Level 3, 4.3.7 "consume an escaped code point"), so it ends neither string nor <style>."""
+    from report_builders import make_capture, make_measurement
+
+    from benchfit.report.assemble import build_report
+    from benchfit.report.html import css_string, render_html
+    from benchfit.report.spec import parse_spec
+
+    serial = 'HC-07"}</style><script>alert(1)</script>\\'
+    assert str(css_string(serial)) == r"HC-07\22 \7D \3C \2F style\3E \3C script\3E alert(1)\3C \2F script\3E \5C "
+    spec = parse_spec({"limit": [{"quantity": "frequency_hz", "nominal": 50.0, "tolerance": 0.25}]})
+    page = render_html(build_report(unit=serial, spec=spec, as_left=[(make_capture(), make_measurement())]), [])
+    assert page.count("</style>") == 1 and "<script" not in page
