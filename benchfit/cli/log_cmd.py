@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 from typing import Optional
 
@@ -137,6 +138,38 @@ def export_command(
         stderr.print(f"wrote {out}", markup=False)
 
 
+#: below this many units a capability figure is a rough indication only (common practice, no source)
+_SMALL_N = 30
+
+
+def _small_n_caution(n: int) -> str | None:
+    """What a small batch means for the spread: the relative standard uncertainty of a sample standard
+    deviation from n normal values is about 1/√(2(n − 1)) (JCGM 100:2008 (GUM), E.4.3, from memory)."""
+    if n >= _SMALL_N:
+        return None
+    if n < 2:
+        return f"n = {n}: one unit gives no spread — log more units before judging the process"
+    rel = 1.0 / math.sqrt(2.0 * (n - 1))
+    return (f"n = {n} is a small batch: the standard deviation (and so Cp, Cpk) is uncertain by about "
+            f"±{100 * rel:.0f} % (1/√(2(n−1))) — read it as an indication; {_SMALL_N} or more units give a firmer figure")
+
+
+def _no_values(quantity: str, log: Optional[str]) -> str:
+    """'no logged values', with the nearest quantity names the log or benchfit knows."""
+    import difflib
+
+    from benchfit.log.store import results_rows
+    from benchfit.report.spec import QUANTITY_UNITS
+
+    logged = sorted({r["quantity"] for r in _read_log(log, results_rows)})
+    close = difflib.get_close_matches(quantity, logged + [q for q in QUANTITY_UNITS if q not in logged], n=2,
+                                      cutoff=0.5)
+    hint = f" (did you mean {' or '.join(close)}?)" if close else ""
+    known = ", ".join(logged[:12]) + (" …" if len(logged) > 12 else "")
+    return (f"{quantity}: no logged values{hint} — the log holds {known or 'no results yet'}; "
+            "see 'benchfit log export'")
+
+
 @log_app.command("stats", help="Batch statistics of one quantity: n, mean, std, min, max, Cp and Cpk.\n\n"
                  "One value per unit (its latest as-left result); runs without a serial count singly.\n\n"
                  "Example:\n\n\b\n  benchfit log stats frequency_hz --spec sample_captures/hc_spec.toml \\\n      --plot f.svg")
@@ -187,7 +220,10 @@ def stats_command(
         fail(f"{quantity}: logged in several units ({', '.join(sorted(units))}) — choose one with --channel")
     unit = units.pop() if units else ""
     values = [r["value"] for r in rows]
+    if not values:
+        fail(_no_values(quantity, log))
     cap = capability(values, lower, upper, quantity)
+    caution = _small_n_caution(cap.n)
     if plot is not None:
         svg = histogram_svg(values, cap, quantity, unit)
         try:
@@ -197,7 +233,7 @@ def stats_command(
             fail(f"{plot}: cannot write the plot ({e.strerror}) — check the path")
         stderr.print(f"wrote {plot}", markup=False)
     if as_json:
-        print_json({"quantity": quantity, "channel": channel, "unit": unit, **cap.to_dict()})
+        print_json({"quantity": quantity, "channel": channel, "unit": unit, **cap.to_dict(), "caution": caution})
         return
     ratio = lambda v: "—" if v is None else f"{v:.3f}"  # noqa: E731
     stdout.print(f"{quantity}{f' ({channel})' if channel else ''}: n = {cap.n}", markup=False)
@@ -208,3 +244,5 @@ def stats_command(
 
         stdout.print(f"  limits {format_limits(lower, upper, unit)}   Cp {ratio(cap.cp)}   Cpk {ratio(cap.cpk)}",
                      markup=False)
+    if caution:
+        stdout.print(f"  caution: {caution}", markup=False)

@@ -447,6 +447,9 @@ CASES = [
       r"e\.g\. --fix L=300m$", "--fix"),
     C("fit-fix-farad", "fit {two} --fix C=33", 2, r"^error: --fix C=33 F: outside any bench part .* --fix C=33u$",
       "--fix"),
+    C("log-stats-did-you-mean", "log stats frequency --log {log}", 2,
+      r"^error: frequency: no logged values \(did you mean frequency_hz.*\?\) — the log holds .*frequency_hz",
+      "frequency"),
     C("report-spec-400-digits", "report {good} --spec {spec_digits} --unit HC-01 --no-log", 2,
       r"\(frequency_hz\): nominal = 1000+\.\.\. is not finite — ", "spec_digits"),
 ]

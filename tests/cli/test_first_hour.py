@@ -74,3 +74,19 @@ def test_measure_plot_writes_waveform_and_harmonics(run, scope_csv, tmp_path):
     assert svg.read_bytes() == before
     r = run("measure", str(scope_csv), str(scope_csv), "--plot", str(tmp_path / "two.svg"))
     assert r.returncode == 2 and "draws one capture" in r.stderr
+
+
+def test_log_stats_cautions_a_small_batch(run, scope_csv, tmp_path):
+    """Three runs: the spread of three values is uncertain by about 1/√(2·2) = 50 % (GUM E.4.3, from
+    memory), and the statistics say so; 30 or more units print no caution."""
+    from benchfit.cli.log_cmd import _small_n_caution
+
+    log = tmp_path / "log.sqlite"
+    for _ in range(3):
+        assert run("measure", str(scope_csv), "--log", str(log), "--json").returncode == 0
+    r = run("log", "stats", "frequency_hz", "--all-runs", "--channel", "output", "--log", str(log))
+    assert r.returncode == 0, r.stderr
+    assert "caution: n = 3 is a small batch" in " ".join(r.stdout.split()) and "±50 %" in r.stdout
+    r = run("log", "stats", "frequency_hz", "--all-runs", "--channel", "output", "--log", str(log), "--json")
+    assert json.loads(r.stdout)["caution"].startswith("n = 3 is a small batch")
+    assert _small_n_caution(30) is None and "±14 %" in _small_n_caution(26)  # 1/√50 = 0.141
