@@ -121,6 +121,22 @@ def format_condition(key: str, value: Any) -> tuple[str, str]:
     return label, str(value)
 
 
+def format_change(row: Mapping[str, Any]) -> str:
+    """As-found → as-left change of a results row: the difference, signed, and its expanded uncertainty
+    (the two U combined in quadrature: separate measurements, taken as uncorrelated — GUM 5.1.2)."""
+    found, left = row.get("as_found") or {}, row.get("as_left") or {}
+    a, b = found.get("value"), left.get("value")
+    if not all(isinstance(v, (int, float)) and math.isfinite(v) for v in (a, b)):
+        return "—"
+    unit = row.get("unit") or ""
+    d = float(b) - float(a)
+    ua, ub = found.get("expanded_u"), left.get("expanded_u")
+    u = math.hypot(ua, ub) if isinstance(ua, (int, float)) and isinstance(ub, (int, float)) else None
+    sign = "+" if d > 0 else ("−" if d < 0 else "±")
+    text = f"{sign}{format_value(abs(d), unit, u)}"
+    return f"{text} (U {format_u(u, unit)})" if u is not None else text
+
+
 def css_string(text: Any) -> Any:
     """Text for the inside of a double-quoted CSS string in a <style> element (CSS Syntax 3, 4.3.5).
 
@@ -191,6 +207,7 @@ def _environment():
     env.filters["part_label"] = part_label
     env.filters["path"] = path_breaks
     env.filters["css_string"] = css_string
+    env.filters["change"] = format_change
     env.filters["slug"] = lambda text: re.sub(r"[^a-z]+", "-", str(text).lower()).strip("-")
     return env
 

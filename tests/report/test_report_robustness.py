@@ -167,3 +167,29 @@ def test_print_header_escapes_the_serial_for_css():
     spec = parse_spec({"limit": [{"quantity": "frequency_hz", "nominal": 50.0, "tolerance": 0.25}]})
     page = render_html(build_report(unit=serial, spec=spec, as_left=[(make_capture(), make_measurement())]), [])
     assert page.count("</style>") == 1 and "<script" not in page
+
+
+def test_as_found_to_as_left_change_column():
+    """With as-found captures the results table shows the change, as-left minus as-found, with the two
+    expanded uncertainties combined in quadrature (independent measurements, JCGM 100:2008 5.1.2)."""
+    import math
+    import re
+
+    from report_builders import make_capture, make_measurement
+
+    from benchfit.report.assemble import build_report
+    from benchfit.report.html import format_change, render_html
+    from benchfit.report.spec import parse_spec
+
+    spec = parse_spec({"limit": [{"quantity": "frequency_hz", "nominal": 50.0, "tolerance": 0.25}]})
+    left = [(make_capture(), make_measurement(f=50.02, f_u=0.004))]
+    found = [(make_capture(source="hc07_found.wav"), make_measurement(file="hc07_found.wav", f=50.61, f_u=0.003))]
+    rep = build_report(unit="HC-07", spec=spec, as_left=left, as_found=found)
+    (row,) = rep["results"]
+    u = math.hypot(row["as_found"]["expanded_u"], row["as_left"]["expanded_u"])  # 2·√(0.003² + 0.004²) = 0.01
+    assert u == pytest.approx(0.010, rel=1e-9)
+    assert format_change(row) == "−590 mHz (U 10 mHz)"
+    text = re.sub(r"<[^>]+>", " ", render_html(rep, []))
+    assert "Change" in text and "−590 mHz (U 10 mHz)" in text
+    alone = build_report(unit="HC-07", spec=spec, as_left=left)
+    assert ">Change<" not in render_html(alone, [])  # no as-found: no column
