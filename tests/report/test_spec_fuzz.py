@@ -1,6 +1,6 @@
 """Seeded mutation fuzzing of the spec reader: every mutant gives a spec or one SpecError line.
 
-A few thousand mutants of a valid spec (tokens swapped for hostile TOML values — dates,
+Two thousand mutants of a valid spec (tokens swapped for hostile TOML values — dates,
 inf, nan, 1e308, 400-digit integers, arrays and inline tables where text belongs — lines
 dropped or doubled, bytes flipped, non-UTF-8 bytes). The contract (benchfit/errors.py):
 the reader returns a :class:`~benchfit.report.spec.Spec` whose ``to_dict()`` is strict
@@ -94,7 +94,7 @@ def test_every_mutant_gives_a_spec_or_one_error_line(tmp_path):
     rng = random.Random(20261201)
     path = tmp_path / "hc_spec.toml"
     outcomes = {"spec": 0, "error": 0}
-    for n in range(3000):
+    for n in range(2000):
         raw = _mutate(SPEC, rng)
         path.write_bytes(raw)
         try:
@@ -110,7 +110,7 @@ def test_every_mutant_gives_a_spec_or_one_error_line(tmp_path):
             decide(1.0, 0.01, lim.lower, lim.upper, spec.decision_rule)
         outcomes["spec"] += 1
     # the mutants exercise both paths (a fuzzer that only ever errors tests nothing)
-    assert outcomes["spec"] > 200 and outcomes["error"] > 200, outcomes
+    assert outcomes["spec"] > 100 and outcomes["error"] > 200, outcomes
 
 
 # --- the named cases of the issue, each with the line it gives ------------------------------------
