@@ -232,8 +232,15 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     else:
         snr = dist.snr_fit_db
     if snr < _LOW_SNR_DB:
-        warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
-                        "raise the signal level or shorten the leads")
+        # the fit's residual holds every harmonic above H too: on a square that is not noise
+        snr_noise = _snr_without_harmonics(x, fs, f, fit.orders)
+        if snr_noise >= _LOW_SNR_DB:
+            warnings.append(f"harmonics above H = {int(fit.orders.max())} carry most of what the fit leaves "
+                            f"(signal to residual {snr:.1f} dB; to noise alone {snr_noise:.0f} dB), so the "
+                            "uncertainties are wide — raise --harmonics for tighter ones")
+        else:
+            warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
+                            "raise the signal level or shorten the leads")
     h_eff = max_harmonic_order(f, fs, harmonics)
     if harmonics >= 2 and h_eff < 2:
         warnings.append(f"no harmonic lies below Nyquist ({_fmt(fs / 2, 'Hz')}) — THD not given")
@@ -301,6 +308,30 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         sinad_db=_f(dist.sinad_db) if math.isfinite(dist.sinad_db) else None,
         harmonics=table, clipped=bool(clip.clipped), warnings=tuple(warnings),
         extra={k: (_f(v) if isinstance(v, (float, np.floating)) else v) for k, v in extra.items()})
+
+
+def _snr_without_harmonics(x: np.ndarray, fs: float, f: float, orders: np.ndarray) -> float:
+    """Fitted-orders power over broadband noise (dB), the noise read from the spectrum away from every
+    harmonic of ``f`` up to Nyquist (Hann window; ±3 bins around each harmonic hold its main lobe).
+
+    Cheap (one FFT of at most 2^18 samples) and used only to tell real noise from harmonics above H.
+    """
+    seg = np.asarray(x[: 1 << 18], dtype=float)
+    n = seg.size
+    if n < 64 or not f or f <= 0:
+        return -math.inf
+    spec = np.abs(np.fft.rfft((seg - seg.mean()) * np.hanning(n))) ** 2
+    freqs = np.fft.rfftfreq(n, 1.0 / fs)
+    k = np.round(freqs / f)
+    near = np.abs(freqs - k * f) <= 3.0 * fs / n
+    noise_bins = spec[~near & (k >= 1)]
+    if noise_bins.size < 8:
+        return -math.inf
+    noise = float(np.mean(noise_bins)) * spec.size
+    sig = float(np.sum(spec[near & np.isin(k, orders)]))
+    if noise <= 0:
+        return math.inf
+    return 10.0 * math.log10(sig / noise) if sig > 0 else -math.inf
 
 
 def _beyond_one_step(pct: float | None, x: np.ndarray, pulse: PulseResult) -> float | None:

@@ -88,3 +88,20 @@ def test_one_quantisation_step_is_not_an_overshoot():
         assert (m.extra["overshoot_pct"] == 0.0) == expect_zero, m.extra["overshoot_pct"]
         if not expect_zero:  # 3 codes of the 2 V amplitude: 3 · (2/255) / 2 = 1.18 %
             assert m.extra["overshoot_pct"] == pytest.approx(100 * 3 * step / 2.0, rel=0.05)
+
+
+def test_harmonics_above_h_are_not_called_low_snr():
+    """A drooped square (AC coupling τ = 10 ms, scipy.signal.bilinear of s·τ/(1 + s·τ)) analysed with
+    H = 3: the residual is the square's harmonics 4…, not noise (the seeded noise is 80 dB down) —
+    the warning says so; a sine buried in noise still gets the low-SNR warning."""
+    import scipy.signal as ss
+
+    t = np.arange(48000) / FS
+    rng = np.random.default_rng(3)
+    square = np.where((t * 50) % 1 < 0.5, 0.8, -0.8)
+    b, a = ss.bilinear([0.01, 0.0], [0.01, 1.0], FS)
+    m = measure_channel(ss.lfilter(b, a, square) + 1e-4 * rng.standard_normal(t.size), FS, harmonics=3)
+    assert not any(w.startswith("low signal-to-noise") for w in m.warnings)
+    assert any(w.startswith("harmonics above H = 3 carry most of what the fit leaves") for w in m.warnings)
+    noisy = measure_channel(0.002 * np.sin(2 * np.pi * 50 * t) + 0.01 * rng.standard_normal(t.size), FS)
+    assert any(w.startswith("low signal-to-noise ratio") for w in noisy.warnings)
