@@ -253,17 +253,32 @@ def write_report(report: Mapping[str, Any], html_text: str, out_dir: str | Path)
         html_path, json_path = out / f"{name}.html", out / f"{name}.json"
         if html_path.exists() or json_path.exists():
             continue
+        created = False
         try:
             with html_path.open("x", encoding="utf-8") as f:
+                created = True
                 f.write(html_text)
         except FileExistsError:
             continue
         except OSError as e:
-            raise BenchfitError(f"{html_path}: cannot write the report ({e.strerror}) — check --out") from e
+            if created:  # made by the open above (then the disk filled): no half page stays behind
+                try:
+                    html_path.unlink()
+                except OSError:
+                    pass
+            raise BenchfitError(f"{html_path}: cannot write the report ({e.strerror}) — check --out and its "
+                                "free space") from e
         try:
             with json_path.open("x", encoding="utf-8") as f:
                 f.write(json_text + "\n")
         except OSError as e:
-            raise BenchfitError(f"{json_path}: cannot write the JSON twin ({e}) — check --out") from e
+            # a report without its twin is half a record: the HTML made a moment ago goes too
+            for half in (json_path, html_path):
+                try:
+                    half.unlink()
+                except OSError:
+                    pass
+            raise BenchfitError(f"{json_path}: cannot write the JSON twin ({e.strerror or e}; the HTML was "
+                                "removed too) — check --out and its free space") from e
         return html_path, json_path
     raise BenchfitError(f"{out}: 999 reports named {stem} already exist — choose another --out")

@@ -193,3 +193,26 @@ def test_as_found_to_as_left_change_column():
     assert "Change" in text and "−590 mHz (U 10 mHz)" in text
     alone = build_report(unit="HC-07", spec=spec, as_left=left)
     assert ">Change<" not in render_html(alone, [])  # no as-found: no column
+
+
+def test_a_full_disk_leaves_no_half_report(tmp_path, monkeypatch):
+    """ENOSPC while the JSON twin is written: the HTML written a moment ago is removed, and the error
+    names the cause (os.strerror(ENOSPC), POSIX)."""
+    import errno
+    import os
+    from pathlib import Path
+
+    from benchfit.errors import BenchfitError
+
+    real_open = Path.open
+
+    def full_disk_open(self, mode="r", *args, **kwargs):
+        if self.suffix == ".json" and "x" in mode:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(self))
+        return real_open(self, mode, *args, **kwargs)
+
+    monkeypatch.setattr(Path, "open", full_disk_open)
+    with pytest.raises(BenchfitError) as info:
+        write_report({"unit": "HC-09", "created_utc": "2026-12-01T21:00:00Z"}, "<html></html>", tmp_path)
+    assert "No space left on device" in str(info.value) and "the HTML was removed too" in str(info.value)
+    assert list(tmp_path.iterdir()) == []
