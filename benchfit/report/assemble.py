@@ -344,8 +344,39 @@ def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
     return fn, kwargs
 
 
-def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: Sequence[Mapping[str, Any]]
-             ) -> list[dict[str, str]]:
+def _as_found_overlay(capture: Any, idx: int, f: float | None, as_found: Sequence[tuple[Any, Any]],
+                      name: str) -> tuple[Any, Any] | None:
+    """The as-found samples of the same channel, shifted to line up with the as-left wave.
+
+    The shift is the lag (within one period of the as-left frequency) of the largest correlation
+    over the first four periods; without a frequency, or a matching as-found channel, no overlay.
+    """
+    import numpy as np
+
+    if not f or f <= 0:
+        return None
+    for found, _ in as_found:
+        try:
+            j = found.channel_index(name)
+        except Exception:  # noqa: BLE001 - no such channel: nothing to overlay
+            continue
+        if found.units[j] != capture.units[idx] or found.sample_rate != capture.sample_rate:
+            continue
+        period = int(round(capture.sample_rate / f))
+        window = min(4 * period, capture.n_samples, found.n_samples - period)
+        if period < 2 or window < period:
+            continue
+        a = np.asarray(capture.samples[idx][:window], dtype=float)
+        b = np.asarray(found.samples[j], dtype=float)
+        a = a - a.mean()
+        lags = [float(np.dot(a, b[d:d + window] - b[d:d + window].mean())) for d in range(period)]
+        d = int(np.argmax(lags))
+        return found, b[d:]
+    return None
+
+
+def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: Sequence[Mapping[str, Any]],
+             as_found: Sequence[tuple[Any, Any]] = ()) -> list[dict[str, str]]:
     """Inline SVG figures: waveform (with fitted model), harmonic spectrum, fit residuals."""
     from benchfit.report import figures
 
@@ -370,6 +401,13 @@ def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: S
                                                     model_label=label or "model"))})
         out.append({"title": f"Harmonic spectrum — {capture.source or 'capture'}, channel {name}",
                     "svg": str(figures.spectrum_svg(measurement.channels[idx]))})
+        overlay = _as_found_overlay(capture, idx, ch.frequency_hz, as_found, name)
+        if overlay is not None:
+            found_capture, shifted = overlay
+            out.append({"title": f"As found ({found_capture.source or 'capture'}) and as left, channel {name}, "
+                                 "aligned on the first period",
+                        "svg": str(figures.waveform_svg(capture, channel=idx, model=shifted, periods=4,
+                                                        model_label="as found"))})
     for f in fits:
         units = {u for capture, _ in as_left if capture.source == f.file for u in capture.units}
         out.append({"title": f"Fit of the {f.model} model — {f.file}",
@@ -490,7 +528,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     report = build_report(unit=unit, spec=sp, as_left=left, as_found=found, fits_left=fits_left,
                           fits_found=fits_found, fit_errors=fit_errors, operator=operator)
     step("drawing figures and writing the report")
-    figs = _figures(left, fits_left, report["results"]) if with_figures else []
+    figs = _figures(left, fits_left, report["results"], as_found=found) if with_figures else []
     html_text = render_html(report, figs)
     html_path, json_path = write_report(report, html_text, out_dir)
     run_id = None

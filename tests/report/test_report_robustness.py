@@ -216,3 +216,24 @@ def test_a_full_disk_leaves_no_half_report(tmp_path, monkeypatch):
         write_report({"unit": "HC-09", "created_utc": "2026-12-01T21:00:00Z"}, "<html></html>", tmp_path)
     assert "No space left on device" in str(info.value) and "the HTML was removed too" in str(info.value)
     assert list(tmp_path.iterdir()) == []
+
+
+def test_as_found_overlay_is_aligned_on_the_as_left_wave():
+    """The as-found wave, drawn over the as-left one, is shifted by the lag of the largest correlation
+    within one period: a copy delayed by 137 samples comes back sample for sample."""
+    import numpy as np
+
+    from benchfit.capture.capture import Capture
+    from benchfit.report.assemble import _as_found_overlay
+
+    fs, f = 48000.0, 50.0
+    t = np.arange(24000) / fs
+    wave = np.sin(2 * np.pi * f * t) + 0.2 * np.sin(2 * np.pi * 3 * f * t)
+    left = Capture(wave, fs, ("output",), ("V",), source="left.wav")
+    found = Capture(np.concatenate([np.zeros(137), wave])[: t.size] * 1.1, fs, ("output",), ("V",),
+                    source="found.wav")
+    got, shifted = _as_found_overlay(left, 0, f, [(found, None)], "output")
+    assert got is found
+    np.testing.assert_allclose(shifted[:3840], 1.1 * wave[:3840], atol=1e-12)
+    other = Capture(wave, fs, ("drive",), ("V",), source="other.wav")
+    assert _as_found_overlay(left, 0, f, [(other, None)], "output") is None  # no such channel: no overlay
