@@ -158,6 +158,9 @@ def files(tmp_path_factory) -> dict[str, Path]:
     f["spec_inf"].write_text(SPEC_TOML.replace("tolerance = 0.25", "tolerance = inf"), encoding="utf-8")
     f["spec_digits"] = d / "digits_spec.toml"
     f["spec_digits"].write_text(SPEC_TOML.replace("nominal = 50.0", "nominal = 1" + "0" * 400), encoding="utf-8")
+    f["notes_folder"] = d / "projects"
+    f["notes_folder"].mkdir()
+    (f["notes_folder"] / "notes.txt").write_text("my notes\n", encoding="utf-8")
     f["log"] = d / "log.sqlite"
     with pytest.raises(SystemExit) as info:  # one real run in the log, for the log commands
         main(["measure", str(f["good"]), "--log", str(f["log"]), "--json"])
@@ -450,6 +453,14 @@ CASES = [
     C("log-stats-did-you-mean", "log stats frequency --log {log}", 2,
       r"^error: frequency: no logged values \(did you mean frequency_hz.*\?\) — the log holds .*frequency_hz",
       "frequency"),
+    C("measure-plot-two-files", "measure {good} {float_sine} --plot out.svg", 2,
+      r"^error: --plot 'out\.svg': draws one capture — give one file, or leave --plot out$", "--plot"),
+    C("measure-plot-type", "measure {good} --plot {out_pdf}", 2, r"^error: --plot '.*figure\.pdf': unknown figure type — ",
+      "--plot"),
+    C("measure-plot-exists", "measure {good} --plot {existing_svg}", 2, r": file exists — choose another --plot$",
+      "existing_svg"),
+    C("demo-foreign-folder", "demo --out {notes_folder}", 2,
+      r": the folder holds files the demo did not make — give --out a new or empty folder$", "notes_folder"),
     C("report-spec-400-digits", "report {good} --spec {spec_digits} --unit HC-01 --no-log", 2,
       r"\(frequency_hz\): nominal = 1000+\.\.\. is not finite — ", "spec_digits"),
 ]
