@@ -185,7 +185,8 @@ def _guarded(index: int, path: Path, fn: Callable[..., Any], kwargs: Mapping[str
 
 
 def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harmonics: int = 10,
-                sample_rate: float | None = None, with_capture: bool = False) -> dict[str, Any]:
+                sample_rate: float | None = None, with_capture: bool = False,
+                force_pulse: bool = False) -> dict[str, Any]:
     """Load one capture file and measure it (the job of ``benchfit measure``).
 
     Parameters
@@ -200,6 +201,8 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
         Sample rate (Hz) for a CSV without a time column.
     with_capture : bool
         Also return what the measurement log stores about the file.
+    force_pulse : bool
+        Duty cycle and edges even for a wave that is not two-level (``measure --pulse``).
 
     Returns
     -------
@@ -212,7 +215,8 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
     from benchfit.measurement.summary import measure
 
     cap = load(path, sample_rate=sample_rate)
-    result = measure(cap, harmonics=harmonics, channels=list(channels) if channels else None)
+    result = measure(cap, harmonics=harmonics, channels=list(channels) if channels else None,
+                     force_pulse=force_pulse)
     capture = None
     if with_capture:
         meta = dict(cap.metadata)

@@ -226,6 +226,8 @@ def measure_command(
         False, "--log-default",
         help="Append each measured file to the default measurement log: $BENCHFIT_LOG when set, else "
              "benchfit/log.sqlite in the user data directory."),
+    pulse: bool = typer.Option(False, "--pulse", help="Give duty cycle and edge times even when the wave is "
+                               "not two-level (slow edges), as indications."),
     plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE",
                                         help="One file only: write its waveform and harmonics to FILE.svg or "
                                              "FILE.png (an existing file is kept)."),
@@ -252,7 +254,7 @@ def measure_command(
         open_log(log_path).close()  # a foreign or unwritable log stops here, before any file is measured
     rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
     opts = {"channels": list(channel) if channel else None, "harmonics": harmonics, "sample_rate": rate,
-            "with_capture": log_path is not None}
+            "with_capture": log_path is not None, "force_pulse": pulse}
     paths, notes = collect_captures(files, recursive=recursive)
     if not paths:
         fail(notes[0] if len(notes) == 1 else "; ".join(notes))
@@ -280,7 +282,8 @@ def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
     from benchfit.report.figures import measurement_svg, save_figure
 
     cap = load(path, sample_rate=opts.get("sample_rate"))
-    m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"))
+    m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"),
+                force_pulse=opts.get("force_pulse", False))
     if opts.get("channels"):
         cap = cap.select(list(opts["channels"]))
     save_figure(measurement_svg(cap, m), plot, overwrite=False)

@@ -95,7 +95,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                     harmonics: int = DEFAULT_HARMONICS, timebase_ppm: float = 0.0,
                     timebase_u_ppm: float = 0.0, coupling_tau_s: float | None = None,
                     full_scale: float | None = None, gain_u_rel: float | None = None,
-                    extra_warnings: tuple[str, ...] = ()) -> ChannelMeasurement:
+                    extra_warnings: tuple[str, ...] = (), force_pulse: bool = False) -> ChannelMeasurement:
     """Measure one channel.
 
     Parameters
@@ -122,6 +122,9 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         and vpp. None: not known or not applicable (no gain applied).
     extra_warnings : tuple of str
         Warnings to carry over (e.g. from reading the file).
+    force_pulse : bool
+        Give duty cycle and edge times even for a wave that is not two-level (slow edges), with a
+        warning; never below 6 samples a period.
 
     Returns
     -------
@@ -182,7 +185,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                         "(10 or more for good uncertainty)")
     levels = signal_levels(x, fs, f)
     dist = analyse_distortion(x, fs, fit)
-    if fit.orders.size >= 3 and dist.thd is not None and dist.thd < _MIN_PULSE_THD:
+    if not force_pulse and fit.orders.size >= 3 and dist.thd is not None and dist.thd < _MIN_PULSE_THD:
         # harmonics 2…H (H ≥ 3) below 5 % of the fundamental: not a two-level wave. Even a trapezoid
         # whose edges take the whole period (a triangle) has THD_F = 12 % (REFERENCES §5 table,
         # H = 10: 12.05 %), so the pulse analysis (and its droop fit) is skipped.
@@ -193,14 +196,17 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                         f"to tell a pulse from a sine (at least {_MIN_PULSE_SAMPLES_PER_PERIOD:g} are needed) — "
                         "record at a higher sample rate")
     else:
-        pulse = pulse_parameters(x, fs, coupling_tau_s)
+        pulse = pulse_parameters(x, fs, coupling_tau_s, force=force_pulse)
+        if force_pulse and pulse.two_level and not state_levels(x).two_level:
+            warnings.append("pulse analysis forced: the wave is not two-level, so duty cycle and edge times "
+                            "use its histogram's low and high modes as states — read them as indications")
         if not pulse.two_level:
             # rich in harmonics but not two-level: the result says why duty and edges are missing
             # (in extra, shown by measure beside the missing values; not a warning, since a distorted
             # sine is not a mistake)
             frac = state_levels(x).fraction_in_states
             extra["pulse_not_given"] = (f"not a two-level wave: {100 * frac:.0f} % of the samples lie near two "
-                                        "levels, 75 % are needed (slow edges, or not a pulse)")
+                                        "levels, 75 % are needed (slow edges, or not a pulse; --pulse gives them anyway)")
     method = "multi-harmonic fit"
     if pulse.two_level and pulse.edge_period_s and pulse.edge_period_u_s is not None:
         # Two-level wave: its sharp edges put harmonics far above H (and, sampled without an
@@ -382,7 +388,7 @@ def _clip_warning(clip) -> str:
 
 
 def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None = None,
-            channels: list[str | int] | None = None) -> Measurement:
+            channels: list[str | int] | None = None, force_pulse: bool = False) -> Measurement:
     """Measure every (or the chosen) channel of a capture.
 
     Parameters
@@ -394,6 +400,8 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         Highest harmonic order H, ≥ 1 (default 10: THD over harmonics 2…10, or up to Nyquist).
     channels : list of str or int, optional
         Channel names or 0-based indices to measure (default: all), in that order.
+    force_pulse : bool
+        Analyse every channel as a pulse even when it is not two-level (see :func:`measure_channel`).
 
     Returns
     -------
@@ -439,6 +447,6 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
             cap.samples[i], cap.sample_rate, name=name, unit=unit, harmonics=int(h),
             timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm,
             coupling_tau_s=cal.coupling_tau_s, full_scale=full_scale, gain_u_rel=gain_u,
-            extra_warnings=notes))
+            extra_warnings=notes, force_pulse=force_pulse))
     return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
                        duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)

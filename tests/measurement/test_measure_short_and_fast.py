@@ -105,3 +105,19 @@ def test_harmonics_above_h_are_not_called_low_snr():
     assert any(w.startswith("harmonics above H = 3 carry most of what the fit leaves") for w in m.warnings)
     noisy = measure_channel(0.002 * np.sin(2 * np.pi * 50 * t) + 0.01 * rng.standard_normal(t.size), FS)
     assert any(w.startswith("low signal-to-noise ratio") for w in noisy.warnings)
+
+
+def test_pulse_analysis_can_be_forced_on_slow_edges():
+    """A square through a 400-sample moving average (8.33 ms linear ramps): forced, the 10–90 % rise
+    is 0.8 × 8.33 ms = 6.67 ms (IEEE 181 reference levels on a linear ramp) and the duty 50 %."""
+    t = np.arange(24000) / FS
+    square = np.where((t * 50) % 1 < 0.5, 0.8, -0.8)
+    slow = np.convolve(square, np.ones(400) / 400, mode="same")
+    plain = measure_channel(slow, FS)
+    assert plain.duty_cycle_pct is None and "--pulse gives them anyway" in plain.extra["pulse_not_given"]
+    forced = measure_channel(slow, FS, force_pulse=True)
+    assert forced.rise_time_s == pytest.approx(0.8 * 400 / FS, rel=0.01)
+    assert forced.duty_cycle_pct == pytest.approx(50.0, abs=0.1)
+    assert any(w.startswith("pulse analysis forced") for w in forced.warnings)
+    fs4 = measure_channel(0.5 * np.sin(2 * np.pi * FS / 4 * t), FS, force_pulse=True)
+    assert fs4.duty_cycle_pct is None  # still never below 6 samples a period
