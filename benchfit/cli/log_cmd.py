@@ -151,7 +151,8 @@ def _small_n_caution(n: int) -> str | None:
         return f"n = {n}: one unit gives no spread — log more units before judging the process"
     rel = 1.0 / math.sqrt(2.0 * (n - 1))
     return (f"n = {n} is a small batch: the standard deviation (and so Cp, Cpk) is uncertain by about "
-            f"±{100 * rel:.0f} % (1/√(2(n−1))) — read it as an indication; {_SMALL_N} or more units give a firmer figure")
+            f"±{100 * rel:.0f} % (1/√(2(n−1))) — read it as an indication; {_SMALL_N} or more units give "
+            "a firmer figure")
 
 
 def _no_values(quantity: str, log: Optional[str]) -> str:

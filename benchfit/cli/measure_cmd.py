@@ -295,9 +295,10 @@ def _log_measurement(log_path: Path, out: dict[str, Any]) -> int:
     from benchfit.cli.logsafe import append_run_explained
 
     cap, d = out["capture"], out["measurement"]
-    return append_run_explained(log_path, command="measure", unit=cap.get("unit"),
-                      captures=[{"path": cap["path"], "sha256": cap["sha256"], "metadata": cap["metadata"]}],
-                      measurements=[d], details={"file": d["file"]})
+    return append_run_explained(
+        log_path, command="measure", unit=cap.get("unit"),
+        captures=[{"path": cap["path"], "sha256": cap["sha256"], "metadata": cap["metadata"]}],
+        measurements=[d], details={"file": d["file"]})
 
 
 def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: Path | None) -> None:

@@ -206,7 +206,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             # sine is not a mistake)
             frac = state_levels(x).fraction_in_states
             extra["pulse_not_given"] = (f"not a two-level wave: {100 * frac:.0f} % of the samples lie near two "
-                                        "levels, 75 % are needed (slow edges, or not a pulse; --pulse gives them anyway)")
+                                        "levels, 75 % are needed (slow edges, or not a pulse; --pulse gives "
+                                        "them anyway)")
     method = "multi-harmonic fit"
     if pulse.two_level and pulse.edge_period_s and pulse.edge_period_u_s is not None:
         # Two-level wave: its sharp edges put harmonics far above H (and, sampled without an

@@ -254,7 +254,8 @@ def measurement_svg(capture, measurement, periods: int = 4) -> str:
             ax.plot((capture.t0 + np.arange(n_show) / fs) * scale, x[:n_show], color=_INK, lw=1.1)
             ax.set_xlabel(f"time ({tu})")
             ax.set_ylabel(f"{ch.name} ({ch.unit})")
-            ax.set_title(ch.name + (f" — {periods} periods of {f:.6g} Hz" if f else " — no period found"), loc="left")
+            ax.set_title(ch.name + (f" — {periods} periods of {f:.6g} Hz" if f else " — no period found"),
+                         loc="left")
             ax_h = fig.add_subplot(grid[row, 1])
             hs = list(ch.harmonics)
             if hs:
