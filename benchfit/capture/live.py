@@ -369,10 +369,12 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
 
     warnings: list[str] = []
     calibration = prof.input_calibration(channels) if prof else InputCalibration()
-    if prof is not None and prof.gains and calibration.gain_v_per_fs is None:
-        missing = ", ".join(str(c) for c in prof.missing_gains(channels))
-        warnings.append(f"profile {prof.name!r} has no gain for channel(s) {missing} — samples stay in FS")
-    elif calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
+    missing = prof.missing_gains(channels) if prof is not None and prof.gains else []
+    if missing:
+        shown = ", ".join(str(c) for c in missing)
+        warnings.append(f"profile {prof.name!r} has no gain for channel(s) {shown} — those stay in FS (the "
+                        "others are in V); calibrate them with 'benchfit calibrate gain' to read volts")
+    if calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
         # a profile from before the gain uncertainty was stored: the sidecar leaves gain_u_rel out
         warnings.append(f"profile {prof.name!r}: gain uncertainty not known — levels in V will carry only their "
                         "noise uncertainty; run 'benchfit calibrate gain' again with --rms-u")

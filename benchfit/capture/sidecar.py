@@ -15,6 +15,10 @@ the overflow/clip counts and the input calibration that applies to the raw sampl
      "benchfit_version": "0.1.0",
      "unit": "HC-03"}
 
+A ``null`` entry in ``gain_v_per_fs`` (``[2.0, null]``) is a channel the calibration profile has
+no gain for: that channel stays in FS while the others are read in V (its ``gain_u_rel`` entry is
+``null`` too).
+
 Optional keys:
 
 * ``calibration.gain_u_rel`` — relative standard uncertainty (k = 1) of each channel's
@@ -168,11 +172,13 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
                 f"got {_r(gains)} — {fix}"
             )
         for i, g in enumerate(gains):
-            if not _is_number(g) or g <= 0:
+            if g is not None and (not _is_number(g) or g <= 0):  # null: that channel stays in FS
                 raise CaptureError(
-                    f"{where}: calibration.gain_v_per_fs[{i}] must be a positive number of V/FS, got {_r(g)} — {fix}"
-                )
-        cal["gain_v_per_fs"] = [float(g) for g in gains]
+                    f"{where}: calibration.gain_v_per_fs[{i}] must be a positive number of V/FS or null, "
+                    f"got {_r(g)} — {fix}")
+        cal["gain_v_per_fs"] = None if all(g is None for g in gains) else [
+            None if g is None else float(g) for g in gains]
+        gains = cal["gain_v_per_fs"]
     for key in ("timebase_ppm", "timebase_u_ppm"):
         if not _is_number(cal[key]):
             raise CaptureError(f"{where}: calibration.{key} must be a number of ppm, got {_r(cal[key])} — {fix}")
@@ -196,18 +202,21 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
             raise CaptureError(
                 f"{where}: calibration.gain_u_rel is given but gain_v_per_fs is null (an uncertainty needs "
                 f"its gain) — {fix}")
-        cal["gain_u_rel"] = _gain_u_rel(cal_in["gain_u_rel"], len(names), where, fix)
+        cal["gain_u_rel"] = _gain_u_rel(cal_in["gain_u_rel"], len(names), where, fix, gains)
     out["calibration"] = cal
     return out
 
 
-def _gain_u_rel(values: Any, n_channels: int, where: str, fix: str) -> list[float]:
-    """Check ``calibration.gain_u_rel``: one finite number ≥ 0 per channel."""
+def _gain_u_rel(values: Any, n_channels: int, where: str, fix: str,
+                gains: list[float | None] | None = None) -> list[float | None]:
+    """Check ``calibration.gain_u_rel``: one finite number ≥ 0 per channel (null where the gain is null)."""
     if not isinstance(values, list) or len(values) != n_channels:
         raise CaptureError(
             f"{where}: calibration.gain_u_rel must list one relative uncertainty per channel ({n_channels}), "
             f"got {_r(values)} — {fix}")
     for i, u in enumerate(values):
+        if u is None and gains is not None and gains[i] is None:
+            continue  # no gain on this channel, so no gain uncertainty either
         if not _is_number(u) or u < 0:
             raise CaptureError(
                 f"{where}: calibration.gain_u_rel[{i}] must be a finite number ≥ 0 (0.003 = 0.3 %), "
@@ -216,7 +225,7 @@ def _gain_u_rel(values: Any, n_channels: int, where: str, fix: str) -> list[floa
             raise CaptureError(
                 f"{where}: calibration.gain_u_rel[{i}] = {_r(u)} is a relative uncertainty of 100 % or more "
                 f"(0.003 means 0.3 %) — {fix}")
-    return [float(u) for u in values]
+    return [None if u is None else float(u) for u in values]
 
 
 def read_sidecar(audio_path: str | os.PathLike[str]) -> dict[str, Any] | None:

@@ -438,7 +438,7 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         notes = tuple(cap.warnings)
         if unit == "V" and gains is not None and i < len(gains) and gains[i]:
             full_scale = abs(float(gains[i]))
-            if gains_u is not None and i < len(gains_u):
+            if gains_u is not None and i < len(gains_u) and gains_u[i] is not None:
                 gain_u = float(gains_u[i])
             else:
                 notes += (f"gain uncertainty not known (calibration profile {cal.profile or 'unnamed'!s} does not "

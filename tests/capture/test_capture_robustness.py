@@ -256,3 +256,27 @@ def test_unitless_microsecond_column_gets_a_plausibility_warning(tmp_path):
     cap = load(_us_rounded_csv(tmp_path, scale=1e6, decimals=3, name="HC-08_us_col.csv"))
     (w,) = [w for w in cap.warnings if "has no unit" in w and "time" in w]
     assert "which gives 0.048 Hz; read as µs it would be 48000 Hz" in w and "'time (us)'" in w
+
+
+def test_a_one_channel_gain_profile_calibrates_channel_1_of_a_stereo_recording(tmp_path):
+    """The profile knows channel 1 only: channel 1 is read in V, channel 2 stays in FS (it used to
+    leave both in FS); the sidecar writes null for the missing gain and reads back the same."""
+    from benchfit.capture.calibration import CalibrationProfile, ChannelGain
+    from benchfit.capture.sidecar import write_sidecar
+
+    g1 = ChannelGain(channel=1, v_per_fs=2.0, u_v_per_fs=0.002, reference_rms_v=0.775, source="ref_sine.wav",
+                     measured_utc="2026-12-01T17:00:00Z", reference_u_v=0.002, gain_u_rel=0.003)
+    prof = CalibrationProfile(name="desk", gains=(g1,))
+    cal = prof.input_calibration(2)
+    assert cal.gain_v_per_fs == (2.0, None) and cal.gain_u_rel == (0.003, None)
+    wav = tmp_path / "HC-03.wav"
+    x = 0.25 * np.sin(2 * np.pi * 50 * np.arange(4800) / FS)
+    sf.write(wav, np.stack([x, x], axis=1), FS, subtype="FLOAT")
+    write_sidecar(wav, {"benchfit_sidecar": 1, "channels": [{"name": "drive"}, {"name": "output"}],
+                        "sample_rate_hz": FS, "calibration": cal.to_dict()})
+    cap = load(wav)
+    assert cap.units == ("V", "FS")
+    np.testing.assert_allclose(cap.samples[0], 2.0 * cap.samples[1], rtol=1e-6)  # float WAV: exact to 1e-7
+    m = measure(cap)
+    assert [c.unit for c in m.channels] == ["V", "FS"]
+    assert m.channels[0].extra["gain_u_rel"] == 0.003 and m.channels[1].extra["gain_u_rel"] is None
