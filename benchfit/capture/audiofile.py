@@ -231,9 +231,10 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
                             "the header's rate is used")
         cal = sidecar["calibration"]
         gains = cal["gain_v_per_fs"]
-        if gains is not None:
-            samples = samples * np.asarray(gains, dtype=np.float64)[:, np.newaxis]
-            units = ("V",) * n_ch
+        if gains is not None:  # a null gain leaves its channel in FS
+            scale = np.asarray([1.0 if g is None else g for g in gains], dtype=np.float64)
+            samples = samples * scale[:, np.newaxis]
+            units = tuple("FS" if g is None else "V" for g in gains)
         fs = fs * (1.0 + cal["timebase_ppm"] * 1e-6)
         calibration = InputCalibration(
             profile=cal["profile"],

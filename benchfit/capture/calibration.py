@@ -234,25 +234,23 @@ class CalibrationProfile:
         kept = [g for g in self.gains if g.channel != gain.channel]
         return replace(self, gains=tuple(sorted(kept + [gain], key=lambda g: g.channel)))
 
-    def gains_for(self, n_channels: int) -> tuple[float, ...] | None:
-        """V/FS for input channels 1…n_channels, or None unless every one of them is known."""
-        out = []
-        for ch in range(1, n_channels + 1):
-            g = self.gain_of(ch)
-            if g is None:
-                return None
-            out.append(g.v_per_fs)
-        return tuple(out)
+    def gains_for(self, n_channels: int) -> tuple[float | None, ...] | None:
+        """V/FS for input channels 1…n_channels (None for a channel the profile has no gain for), or
+        None when it knows none of them. A one-channel profile on a stereo recording calibrates
+        channel 1 and leaves channel 2 in FS."""
+        out = [None if self.gain_of(ch) is None else self.gain_of(ch).v_per_fs for ch in range(1, n_channels + 1)]
+        return None if all(g is None for g in out) else tuple(out)
 
-    def gain_u_rel_for(self, n_channels: int) -> tuple[float, ...] | None:
-        """Relative gain uncertainties for channels 1…n_channels, or None unless all are known."""
-        out = []
+    def gain_u_rel_for(self, n_channels: int) -> tuple[float | None, ...] | None:
+        """Relative gain uncertainties for channels 1…n_channels (None where the profile has no gain),
+        or None unless every known gain has its uncertainty."""
+        out: list[float | None] = []
         for ch in range(1, n_channels + 1):
             g = self.gain_of(ch)
-            if g is None or g.gain_u_rel is None:
+            if g is not None and g.gain_u_rel is None:
                 return None
-            out.append(g.gain_u_rel)
-        return tuple(out)
+            out.append(None if g is None else g.gain_u_rel)
+        return None if all(u is None for u in out) else tuple(out)
 
     def missing_gains(self, n_channels: int) -> list[int]:
         """Channel numbers among 1…n_channels that have no gain in this profile."""

@@ -83,6 +83,16 @@ def resolve_channel(key: str | int, names: Sequence[str], where: str = "capture"
     raise CaptureError(f"{where}: no channel {key!r} — choose one of {', '.join(names)} or a number 1…{n}")
 
 
+#: plausibility bounds of a capture (common practice, no source): a data logger taking one sample
+#: an hour is 2.8e-4 Hz, the fastest bench digitisers sample near 1e11 Hz; outside these bounds the
+#: number is a unit mistake or a damaged file, and the analysis would overflow (1/fs², fs²)
+MIN_SAMPLE_RATE_HZ = 1e-4
+MAX_SAMPLE_RATE_HZ = 1e12
+#: no instrument's reading (in V, A or full scale) comes near this; a larger sample is an error cell, and
+#: its square would overflow the power sums of the analysis
+MAX_SAMPLE_MAGNITUDE = 1e15
+
+
 @dataclass(frozen=True)
 class InputCalibration:
     """Sound-card calibration that applies to a capture (from its sidecar).
@@ -210,10 +220,27 @@ class Capture:
             raise CaptureError(f"{where}: a capture needs at least 2 samples per channel, got {data.shape[1]}")
         if not np.all(np.isfinite(data)):
             ch, idx = np.argwhere(~np.isfinite(data))[0]
-            raise CaptureError(f"{where}: sample {idx} of channel {ch + 1} is NaN or infinite")
-        fs = float(self.sample_rate)
+            raise CaptureError(f"{where}: sample {idx} of channel {ch + 1} is NaN or infinite — the recorder or "
+                               "export wrote a bad value there; export again, or cut the record before it")
+        big = np.abs(data) > MAX_SAMPLE_MAGNITUDE
+        if np.any(big):
+            ch, idx = np.argwhere(big)[0]
+            raise CaptureError(
+                f"{where}: sample {idx} of channel {ch + 1} is {data[ch, idx]:.3g}, beyond any reading an "
+                f"instrument gives (|value| > {MAX_SAMPLE_MAGNITUDE:.0e}) — an overflow or error cell in the "
+                "export; fix or delete that sample")
+        try:
+            fs = float(self.sample_rate)
+        except (TypeError, ValueError, OverflowError):
+            fs = math.nan
         if not math.isfinite(fs) or fs <= 0:
-            raise CaptureError(f"{where}: sample rate must be a positive number of Hz, got {self.sample_rate!r}")
+            raise CaptureError(f"{where}: sample rate must be a positive number of Hz, got {self.sample_rate!r} — "
+                               "check the file's sample rate, or give --sample-rate")
+        if not MIN_SAMPLE_RATE_HZ <= fs <= MAX_SAMPLE_RATE_HZ:
+            raise CaptureError(
+                f"{where}: sample rate {fs:.3g} Hz is outside what any recorder uses "
+                f"({MIN_SAMPLE_RATE_HZ:g} Hz … {MAX_SAMPLE_RATE_HZ:.0e} Hz) — check the time column or "
+                "the file's sample rate, or give the right --sample-rate")
         data.setflags(write=False)
         n_ch = data.shape[0]
         names = tuple(self.channel_names) or tuple(f"ch{i + 1}" for i in range(n_ch))
@@ -250,8 +277,19 @@ class Capture:
 
     # --- channel selection ----------------------------------------------
     def channel_index(self, key: str | int) -> int:
-        """Index of one channel, by the rule of :func:`channel_keys` (names, 0-based ints, "1"-based text)."""
-        return resolve_channel(key, self.channel_names, self.source or "capture")
+        """Index of one channel, by the rule of :func:`channel_keys` (names, 0-based ints, "1"-based text).
+
+        A name that is no channel's may also be the column header as written in a CSV
+        (``"drive_V"`` for the channel named ``drive``).
+        """
+        where = self.source or "capture"
+        if isinstance(key, str):
+            text = key.strip().lower()
+            names = [n.lower() for n in self.channel_names]
+            headers = [str(h).lower() for h in self.metadata.get("channel_headers") or ()]
+            if text not in names and len(headers) == self.n_channels and text in headers:
+                return headers.index(text)
+        return resolve_channel(key, self.channel_names, where)
 
     def channel(self, key: str | int) -> np.ndarray:
         """Samples of one channel (read-only view)."""
@@ -267,8 +305,13 @@ class Capture:
             cal = replace(cal, gain_v_per_fs=tuple(gains[i] for i in idx))
         if gains_u is not None:
             cal = replace(cal, gain_u_rel=tuple(gains_u[i] for i in idx))
+        meta = dict(self.metadata)
+        headers = meta.get("channel_headers")
+        if headers is not None and len(headers) == self.n_channels:
+            meta["channel_headers"] = [headers[i] for i in idx]
         return replace(
             self,
+            metadata=meta,
             samples=self.samples[idx],
             channel_names=tuple(self.channel_names[i] for i in idx),
             units=tuple(self.units[i] for i in idx),

@@ -466,6 +466,8 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
         meta["dropped_columns"] = dropped
     if names is not None:
         meta["columns"] = list(names)
+        # each channel's header as written ("drive_V" for the channel named "drive"): accepted as its name too
+        meta["channel_headers"] = [labels[i].strip() for i in ch_idx]
     samples = values[:, ch_idx].T * np.asarray(scales)[:, np.newaxis]
     return Capture(samples=samples, sample_rate=fs, channel_names=tuple(ch_names), units=("V",) * len(ch_idx),
                    source=where, sha256=sha256, metadata=meta, warnings=tuple(warnings), t0=t0)
@@ -500,11 +502,19 @@ def _time_axis(values: np.ndarray, line_no: Sequence[int], time_col: int | None,
     if time_col is not None:
         unit = units[time_col]
         factor = unit[1] if unit else (hints.time_unit[1] if hints.time_unit else 1.0)
-        if unit is None and hints.time_unit is None:
-            warnings.append(f"{where}: time column {labels[time_col]!r} has no unit — read as seconds")
         t = values[:, time_col] * factor
-        dt, jitter = _check_time(t, line_no, labels[time_col], where)
+        n_warn = len(warnings)
+        dt, jitter = _check_time(t, line_no, labels[time_col], where, warnings)
         fs, t0, source = 1.0 / dt, float(t[0]), f"time column {labels[time_col]!r}"
+        rounded = len(warnings) > n_warn  # the stamps are rounded: a rate the caller gives may be better
+        if rounded and sample_rate is not None and abs(float(sample_rate) / fs - 1) <= JITTER_LIMIT:
+            fs, source = float(sample_rate), "sample rate given by the caller (the rounded time column agrees)"
+            warnings[-1] = (warnings[-1].split(" — ")[0] + f" — the given sample rate {fs:g} Hz is used; it "
+                            "agrees with the time column")
+            sample_rate = None
+        if unit is None and hints.time_unit is None:
+            warnings.append(f"{where}: time column {labels[time_col]!r} has no unit — read as seconds"
+                            + _time_unit_hint(fs, labels[time_col]))
         meta["time_jitter_max_rel"] = jitter
         if interval is not None and abs(interval[0] / dt - 1) > JITTER_LIMIT:
             warnings.append(f"{where}: preamble {interval[1]!r} gives a step of {interval[0]:.6g} s but the time "
@@ -527,10 +537,39 @@ def _time_axis(values: np.ndarray, line_no: Sequence[int], time_col: int | None,
     return fs, t0
 
 
-def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str) -> tuple[float, float]:
+def _time_unit_hint(fs: float, label: str) -> str:
+    """For a unitless time column: the reading in ms/µs/ns when seconds give an implausibly slow rate."""
+    if fs >= 1.0:
+        return ""
+    for prefix, factor in (("ms", 1e-3), ("µs", 1e-6), ("ns", 1e-9)):
+        if 1e3 <= fs / factor <= 1e11:  # a rate a sound card or scope samples at (common practice, no source)
+            return (f", which gives {fs:.3g} Hz; read as {prefix} it would be {fs / factor:.6g} Hz — name the "
+                    f"unit in the header, e.g. '{label} ({prefix.replace('µ', 'u')})'")
+    return f", which gives {fs:.3g} Hz — name the unit in the header if that is wrong"
+
+
+def _print_resolution(t: np.ndarray) -> float:
+    """The decimal grid the time stamps were printed on (1e-6 for "0.000021"), or 0 if none is found."""
+    span = float(np.max(np.abs(t))) or 1.0
+    for k in range(-12, 4):
+        r = 10.0 ** k
+        if span / r < 1e15 and np.max(np.abs(t / r - np.round(t / r))) < 1e-3:
+            # the finest grid that holds every value is the print resolution only if no coarser one does
+            coarser = 10.0 * r
+            if not np.max(np.abs(t / coarser - np.round(t / coarser))) < 1e-3:
+                return r
+    return 0.0
+
+
+def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str,
+                warnings: list[str] | None = None) -> tuple[float, float]:
     """Mean step (s) and jitter: the largest distance of a time stamp from the least-squares uniform
     grid, as a fraction of the step. Errors name the line: the first decreasing time, the largest gap
     (a step off by more than half), or the first time stamp straying more than :data:`JITTER_LIMIT`.
+
+    Time stamps printed on a coarse decimal grid (48 kHz written to 1 µs: steps of 20 and 21 µs)
+    stray by up to half that grid; that rounding is accepted (and said in ``warnings``), and the
+    step is the least-squares slope over all rows.
     """
     steps = np.diff(t)
     bad = np.flatnonzero(~(steps > 0))
@@ -546,6 +585,17 @@ def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str) -
     slope = float(np.dot(k, t - t.mean()) / np.dot(k, k))
     deviation = np.abs(t - t.mean() - slope * k) / dt
     jitter = float(deviation.max())
+    if jitter > JITTER_LIMIT:
+        r = _print_resolution(t)
+        # rounding strays up to r/2 from the true grid; the fitted grid itself may sit off it by the
+        # ordinary limit (a least-squares line through rounded stamps)
+        # a grid coarser than a tenth of a step would hide real irregular sampling: refused as before
+        if 0 < r <= 0.1 * dt and jitter * dt <= 0.5 * r + JITTER_LIMIT * dt:
+            if warnings is not None:
+                warnings.append(f"{where}: column {label!r}: time stamps are rounded to {r:.3g} s "
+                                f"({100 * r / slope:.2g} % of a step) — the step {slope:.9g} s is fitted over all "
+                                f"{n} rows; export more decimals to check it")
+            return slope, jitter
     if jitter > JITTER_LIMIT:
         off = np.abs(steps - dt)
         r = int(np.argmax(off)) + 1 if off.max() > 0.5 * dt else int(np.argmax(deviation > JITTER_LIMIT))

@@ -93,14 +93,16 @@ def parse_header_unit(header: str) -> tuple[str, str | None]:
     a unit alone (``"V"``, ``"Second"``) gives an empty name.
     """
     h = header.strip()
-    for pattern in (r"^(.*?)\s*\[([^\[\]]*)\]\s*$", r"^(.*?)\s*\(([^()]*)\)\s*$"):
-        m = re.match(pattern, h)
-        if m:
-            inner = m.group(2).strip()
+    for opening, closing in (("[", "]"), ("(", ")")):
+        # "name [unit]": plain string search, linear in the header's length (a regex with a lazy
+        # group before a run of spaces took minutes on a header cell padded with 100k spaces)
+        start = h.rfind(opening)
+        if h.endswith(closing) and start >= 0 and closing not in h[start + 1:-1]:
+            name, inner = h[:start].strip(), h[start + 1:-1].strip()
             if not inner or inner in ("-", "1") or unit_kind(inner) is not None:
-                return m.group(1).strip(), inner or None
+                return name, inner or None
             if re.fullmatch(r"[^\s]{1,6}", inner) and not inner.isalnum():
-                return m.group(1).strip(), inner  # e.g. "°C", "%" — an unknown unit, kept
+                return name, inner  # e.g. "°C", "%" — an unknown unit, kept
             return h, None
     m = re.match(r"^(.*\S)\s*/\s*([^\s/]+)$", h)
     if m and unit_kind(m.group(2)) is not None and unit_kind(m.group(2))[0] in ("time", "volt"):

@@ -42,6 +42,7 @@ import numpy as np
 
 from benchfit.capture.calibration import CLIP_FS, CalibrationProfile, load_profile
 from benchfit.capture.capture import InputCalibration
+from benchfit.capture.fileio import create_new
 from benchfit.capture.devices import InputDevice, check_input, list_input_devices, resolve_input_device
 from benchfit.capture.devices import quiet_native_stderr as _quiet_native_stderr
 from benchfit.capture.devices import sounddevice_module as _sounddevice
@@ -262,6 +263,41 @@ def _sigint_deferred():
         signal.signal(signal.SIGINT, previous)
 
 
+#: a recording whose loudest sample stays below this is silence (a line-level source reaches −20 dBFS
+#: or more; −60 dBFS is near the noise floor of a 16-bit card's input — common practice, no source)
+_SILENT_DBFS = -60.0
+
+
+def _write_recording_sidecar(out: Path, sidecar: dict[str, Any], overwrite: bool, warnings: list[str]) -> Path:
+    """Write a finished recording's sidecar; one that appeared during the recording is kept.
+
+    Without ``overwrite`` the sidecar is created exclusively. If a file took its name while
+    recording, this recording's sidecar goes beside it as ``<stem>.recorded.json`` (then
+    ``.recorded-2.json`` …) and a warning says so: neither the other file nor this
+    recording's metadata is lost.
+    """
+    from benchfit.capture.sidecar import sidecar_path, write_sidecar
+
+    try:
+        return write_sidecar(out, sidecar, overwrite=overwrite)
+    except CaptureError:
+        if overwrite or not sidecar_path(out).exists():
+            raise
+    for n in range(1, 100):
+        alt = out.with_name(f"{out.stem}.recorded{'' if n == 1 else f'-{n}'}.wav")
+        try:
+            side = write_sidecar(alt, sidecar, overwrite=False)
+        except CaptureError:
+            if sidecar_path(alt).exists():
+                continue
+            raise
+        warnings.append(f"{sidecar_path(out)}: a file appeared there during the recording and was kept — this "
+                        f"recording's sidecar is {side}; check both, then rename it to {sidecar_path(out).name}")
+        return side
+    raise CaptureError(f"{sidecar_path(out)}: exists, and so do 99 alternative sidecar names — "
+                       "move them away and record again")
+
+
 def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, channels: int = 1,
            device: str | int | None = None, names: list[str] | tuple[str, ...] | str | None = None,
            profile: str | None = None, overwrite: bool = False,
@@ -315,7 +351,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     import soundfile as sf
 
     from benchfit import __version__
-    from benchfit.capture.sidecar import sidecar_path, write_sidecar
+    from benchfit.capture.sidecar import sidecar_path
 
     if sample_format not in get_args(SampleFormat):
         raise CaptureError(f"--sample-format {sample_format!r}: unknown sample format — choose one of "
@@ -341,10 +377,12 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
 
     warnings: list[str] = []
     calibration = prof.input_calibration(channels) if prof else InputCalibration()
-    if prof is not None and prof.gains and calibration.gain_v_per_fs is None:
-        missing = ", ".join(str(c) for c in prof.missing_gains(channels))
-        warnings.append(f"profile {prof.name!r} has no gain for channel(s) {missing} — samples stay in FS")
-    elif calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
+    missing = prof.missing_gains(channels) if prof is not None and prof.gains else []
+    if missing:
+        shown = ", ".join(str(c) for c in missing)
+        warnings.append(f"profile {prof.name!r} has no gain for channel(s) {shown} — those stay in FS (the "
+                        "others are in V); calibrate them with 'benchfit calibrate gain' to read volts")
+    if calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
         # a profile from before the gain uncertainty was stored: the sidecar leaves gain_u_rel out
         warnings.append(f"profile {prof.name!r}: gain uncertainty not known — levels in V will carry only their "
                         "noise uncertainty; run 'benchfit calibrate gain' again with --rms-u")
@@ -369,10 +407,20 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
 
     interrupted = False
     start_utc = _utc_now()
+    if not overwrite:  # claim the name now: a file made after the check above is never replaced
+        try:
+            create_new(out)
+        except FileExistsError as e:
+            raise CaptureError(f"{out}: already exists — choose another name or pass --overwrite") from e
+        except OSError as e:
+            raise CaptureError(f"{out}: cannot be created ({e.strerror or e}) — check the folder is writable") from e
     try:
         sf_file = sf.SoundFile(str(out), mode="w", samplerate=int(rate), channels=channels,
                                subtype=_SUBTYPES[sample_format], format="WAV")
     except (sf.LibsndfileError, RuntimeError, OSError) as e:
+        if not overwrite:
+            with contextlib.suppress(OSError):
+                out.unlink()  # the empty file claimed above
         raise CaptureError(f"{out}: cannot be created ({e}) — check the folder is writable") from e
     writer = threading.Thread(target=_writer, args=(sf_file, blocks, stats, sample_format == "pcm24", tap),
                               name="benchfit-writer", daemon=True)
@@ -431,6 +479,10 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
                 warnings.append(f"PortAudio reported {overflows} input overflow(s): samples were lost")
             if clips:
                 warnings.append(f"{clips} sample(s) at or above −0.1 dBFS: the input clipped")
+            if frames and peak_all and max(peak_all) < _SILENT_DBFS:
+                warnings.append(f"every channel stayed below {_SILENT_DBFS:g} dBFS (loudest {max(peak_all):.1f} dBFS): "
+                                "the recording is silent — check the input selection, the cable and the "
+                                "source, then record again")
             sidecar = {
                 "benchfit_sidecar": 1,
                 "channels": [{"name": n} for n in chan_names],
@@ -446,7 +498,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
                 "sample_format": sample_format,
                 "peak_dbfs": [round(p, 3) for p in peak_all],
             }
-            side = write_sidecar(out, sidecar, overwrite=True)
+            side = _write_recording_sidecar(out, sidecar, overwrite, warnings)
     result = RecordingResult(path=out, sidecar_path=side, frames=frames, sample_rate=float(rate),
                              channel_names=chan_names, device=dev.name, start_utc=start_utc,
                              overflow_count=overflows, clip_count=clips, peak_dbfs=peak_all,

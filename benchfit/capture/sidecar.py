@@ -15,6 +15,10 @@ the overflow/clip counts and the input calibration that applies to the raw sampl
      "benchfit_version": "0.1.0",
      "unit": "HC-03"}
 
+A ``null`` entry in ``gain_v_per_fs`` (``[2.0, null]``) is a channel the calibration profile has
+no gain for: that channel stays in FS while the others are read in V (its ``gain_u_rel`` entry is
+``null`` too).
+
 Optional keys:
 
 * ``calibration.gain_u_rel`` — relative standard uncertainty (k = 1) of each channel's
@@ -43,7 +47,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from benchfit.capture.fileio import write_text_atomic
+from benchfit.capture.fileio import write_bytes_new, write_text_atomic
 from benchfit.errors import CaptureError
 
 __all__ = ["SIDECAR_VERSION", "sidecar_path", "read_sidecar", "write_sidecar", "validate_sidecar"]
@@ -66,7 +70,22 @@ def sidecar_path(audio_path: str | os.PathLike[str]) -> Path:
 
 
 def _is_number(value: Any) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+    if not isinstance(value, (int, float)) or isinstance(value, bool):
+        return False
+    try:
+        return math.isfinite(value)
+    except OverflowError:  # an integer too large for a float ("1" and 400 zeros)
+        return False
+
+
+def _r(value: Any) -> str:
+    """``repr`` of a value for a one-line message, cut to 40 characters."""
+    text = repr(value)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def _reject_constant(name: str) -> float:
+    raise ValueError(f"{name} is not a JSON number")
 
 
 def _is_count(value: Any) -> bool:
@@ -105,7 +124,7 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
         raise CaptureError(f"{where}: not a benchfit sidecar (no 'benchfit_sidecar' key) — {fix}")
     if version != SIDECAR_VERSION or isinstance(version, bool):
         raise CaptureError(
-            f"{where}: sidecar version {version!r} is not supported (this benchfit reads version "
+            f"{where}: sidecar version {_r(version)} is not supported (this benchfit reads version "
             f"{SIDECAR_VERSION}) — update benchfit or rewrite the sidecar"
         )
     out = dict(data)
@@ -119,25 +138,25 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
             raise CaptureError(f"{where}: channels[{i}] needs a non-empty string 'name' — {fix}")
         names.append(ch["name"])
     if len({n.lower() for n in names}) != len(names):
-        raise CaptureError(f"{where}: channel names {names!r} are not unique — {fix}")
+        raise CaptureError(f"{where}: channel names {_r(names)} are not unique — {fix}")
     out["channels"] = [dict(ch) for ch in channels]
 
     fs = data.get("sample_rate_hz")
     if not _is_number(fs) or fs <= 0:
-        raise CaptureError(f"{where}: 'sample_rate_hz' must be a positive number of Hz, got {fs!r} — {fix}")
+        raise CaptureError(f"{where}: 'sample_rate_hz' must be a positive number of Hz, got {_r(fs)} — {fix}")
 
     for key in ("device", "start_utc", "benchfit_version", "unit"):
         if key in data and data[key] is not None and not isinstance(data[key], str):
-            raise CaptureError(f"{where}: {key!r} must be a string, got {data[key]!r} — {fix}")
+            raise CaptureError(f"{where}: {_r(key)} must be a string, got {_r(data[key])} — {fix}")
     if isinstance(data.get("start_utc"), str):
         try:
             datetime.fromisoformat(data["start_utc"].replace("Z", "+00:00"))
         except ValueError as e:
-            raise CaptureError(f"{where}: 'start_utc' {data['start_utc']!r} is not an ISO 8601 time such as "
+            raise CaptureError(f"{where}: 'start_utc' {_r(data['start_utc'])} is not an ISO 8601 time such as "
                                f"2026-12-01T17:00:00Z — {fix}") from e
     for key in ("overflow_count", "clip_count"):
         if key in data and not _is_count(data[key]):
-            raise CaptureError(f"{where}: {key!r} must be a whole number ≥ 0, got {data[key]!r} — {fix}")
+            raise CaptureError(f"{where}: {_r(key)} must be a whole number ≥ 0, got {_r(data[key])} — {fix}")
 
     cal_in = data.get("calibration")
     if cal_in is None:
@@ -147,36 +166,38 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
     cal = dict(_CAL_DEFAULTS)
     cal.update(cal_in)
     if cal["profile"] is not None and not isinstance(cal["profile"], str):
-        raise CaptureError(f"{where}: calibration.profile must be a string or null, got {cal['profile']!r} — {fix}")
+        raise CaptureError(f"{where}: calibration.profile must be a string or null, got {_r(cal['profile'])} — {fix}")
     gains = cal["gain_v_per_fs"]
     if gains is not None:
         if not isinstance(gains, list) or len(gains) != len(names):
             raise CaptureError(
                 f"{where}: calibration.gain_v_per_fs must list one gain per channel ({len(names)}), "
-                f"got {gains!r} — {fix}"
+                f"got {_r(gains)} — {fix}"
             )
         for i, g in enumerate(gains):
-            if not _is_number(g) or g <= 0:
+            if g is not None and (not _is_number(g) or g <= 0):  # null: that channel stays in FS
                 raise CaptureError(
-                    f"{where}: calibration.gain_v_per_fs[{i}] must be a positive number of V/FS, got {g!r} — {fix}"
-                )
-        cal["gain_v_per_fs"] = [float(g) for g in gains]
+                    f"{where}: calibration.gain_v_per_fs[{i}] must be a positive number of V/FS or null, "
+                    f"got {_r(g)} — {fix}")
+        cal["gain_v_per_fs"] = None if all(g is None for g in gains) else [
+            None if g is None else float(g) for g in gains]
+        gains = cal["gain_v_per_fs"]
     for key in ("timebase_ppm", "timebase_u_ppm"):
         if not _is_number(cal[key]):
-            raise CaptureError(f"{where}: calibration.{key} must be a number of ppm, got {cal[key]!r} — {fix}")
+            raise CaptureError(f"{where}: calibration.{key} must be a number of ppm, got {_r(cal[key])} — {fix}")
         cal[key] = float(cal[key])
     if cal["timebase_u_ppm"] < 0:
         raise CaptureError(
-            f"{where}: calibration.timebase_u_ppm must be ≥ 0, got {cal['timebase_u_ppm']!r} — {fix}")
+            f"{where}: calibration.timebase_u_ppm must be ≥ 0, got {_r(cal['timebase_u_ppm'])} — {fix}")
     if abs(cal["timebase_ppm"]) >= 1e5:
         raise CaptureError(
-            f"{where}: calibration.timebase_ppm {cal['timebase_ppm']!r} is implausible (|ppm| ≥ 1e5) — {fix}"
+            f"{where}: calibration.timebase_ppm {_r(cal['timebase_ppm'])} is implausible (|ppm| ≥ 1e5) — {fix}"
         )
     tau = cal["coupling_tau_s"]
     if tau is not None:
         if not _is_number(tau) or tau <= 0:
             raise CaptureError(
-                f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {tau!r} — {fix}")
+                f"{where}: calibration.coupling_tau_s must be a positive number of s or null, got {_r(tau)} — {fix}")
         cal["coupling_tau_s"] = float(tau)
     floor = cal.pop("distortion_floor_pct", None)
     if floor is not None:
@@ -190,27 +211,30 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
             raise CaptureError(
                 f"{where}: calibration.gain_u_rel is given but gain_v_per_fs is null (an uncertainty needs "
                 f"its gain) — {fix}")
-        cal["gain_u_rel"] = _gain_u_rel(cal_in["gain_u_rel"], len(names), where, fix)
+        cal["gain_u_rel"] = _gain_u_rel(cal_in["gain_u_rel"], len(names), where, fix, gains)
     out["calibration"] = cal
     return out
 
 
-def _gain_u_rel(values: Any, n_channels: int, where: str, fix: str) -> list[float]:
-    """Check ``calibration.gain_u_rel``: one finite number ≥ 0 per channel."""
+def _gain_u_rel(values: Any, n_channels: int, where: str, fix: str,
+                gains: list[float | None] | None = None) -> list[float | None]:
+    """Check ``calibration.gain_u_rel``: one finite number ≥ 0 per channel (null where the gain is null)."""
     if not isinstance(values, list) or len(values) != n_channels:
         raise CaptureError(
             f"{where}: calibration.gain_u_rel must list one relative uncertainty per channel ({n_channels}), "
-            f"got {values!r} — {fix}")
+            f"got {_r(values)} — {fix}")
     for i, u in enumerate(values):
+        if u is None and gains is not None and gains[i] is None:
+            continue  # no gain on this channel, so no gain uncertainty either
         if not _is_number(u) or u < 0:
             raise CaptureError(
                 f"{where}: calibration.gain_u_rel[{i}] must be a finite number ≥ 0 (0.003 = 0.3 %), "
-                f"got {u!r} — {fix}")
+                f"got {_r(u)} — {fix}")
         if u >= 1:
             raise CaptureError(
-                f"{where}: calibration.gain_u_rel[{i}] = {u!r} is a relative uncertainty of 100 % or more "
+                f"{where}: calibration.gain_u_rel[{i}] = {_r(u)} is a relative uncertainty of 100 % or more "
                 f"(0.003 means 0.3 %) — {fix}")
-    return [float(u) for u in values]
+    return [None if u is None else float(u) for u in values]
 
 
 def read_sidecar(audio_path: str | os.PathLike[str]) -> dict[str, Any] | None:
@@ -238,14 +262,20 @@ def read_sidecar(audio_path: str | os.PathLike[str]) -> dict[str, Any] | None:
         return None
     try:
         with open(path, "r", encoding="utf-8") as fh:
-            data = json.load(fh)
+            data = json.load(fh, parse_constant=_reject_constant)
     except json.JSONDecodeError as e:
         raise CaptureError(
             f"{path}: sidecar is not valid JSON (line {e.lineno}, column {e.colno}: {e.msg}) — "
             "fix the sidecar, or delete it to read the audio without it"
         ) from e
+    except RecursionError as e:
+        raise CaptureError(f"{path}: sidecar is nested too deeply to be a benchfit sidecar — "
+                           "fix the sidecar, or delete it to read the audio without it") from e
     except UnicodeDecodeError as e:
         raise CaptureError(f"{path}: sidecar is not UTF-8 text — fix or delete the sidecar") from e
+    except ValueError as e:  # NaN/Infinity, or an integer with more digits than Python converts
+        raise CaptureError(f"{path}: sidecar holds a number JSON or benchfit cannot use ({str(e)[:60]}) — "
+                           "fix the sidecar, or delete it to read the audio without it") from e
     except OSError as e:
         raise CaptureError(f"{path}: sidecar cannot be read ({e.strerror or e}) — check its permissions") from e
     return validate_sidecar(data, str(path))
@@ -286,7 +316,12 @@ def write_sidecar(audio_path: str | os.PathLike[str], data: dict[str, Any], over
         raise CaptureError(f"{path}: sidecar already exists — choose another file name or allow overwriting")
     text = json.dumps(clean, indent=2, ensure_ascii=False) + "\n"
     try:
-        write_text_atomic(path, text)
+        if overwrite:
+            write_text_atomic(path, text)
+        else:  # created exclusively: a sidecar that appeared after the check above is kept
+            write_bytes_new(path, text.encode("utf-8"))
+    except FileExistsError as e:
+        raise CaptureError(f"{path}: sidecar already exists — choose another file name or allow overwriting") from e
     except OSError as e:
         raise CaptureError(
             f"{path}: sidecar cannot be written ({e.strerror or e}) — check the folder exists and is writable"

@@ -37,7 +37,7 @@ from __future__ import annotations
 import os
 import sys
 import time
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, get_args
@@ -185,7 +185,8 @@ def _guarded(index: int, path: Path, fn: Callable[..., Any], kwargs: Mapping[str
 
 
 def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harmonics: int = 10,
-                sample_rate: float | None = None, with_capture: bool = False) -> dict[str, Any]:
+                sample_rate: float | None = None, with_capture: bool = False,
+                force_pulse: bool = False) -> dict[str, Any]:
     """Load one capture file and measure it (the job of ``benchfit measure``).
 
     Parameters
@@ -200,6 +201,8 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
         Sample rate (Hz) for a CSV without a time column.
     with_capture : bool
         Also return what the measurement log stores about the file.
+    force_pulse : bool
+        Duty cycle and edges even for a wave that is not two-level (``measure --pulse``).
 
     Returns
     -------
@@ -212,7 +215,8 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
     from benchfit.measurement.summary import measure
 
     cap = load(path, sample_rate=sample_rate)
-    result = measure(cap, harmonics=harmonics, channels=list(channels) if channels else None)
+    result = measure(cap, harmonics=harmonics, channels=list(channels) if channels else None,
+                     force_pulse=force_pulse)
     capture = None
     if with_capture:
         meta = dict(cap.metadata)
@@ -247,7 +251,7 @@ def unit_serial(path: str | Path) -> str:
 
 def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: Any = None,
                operator: str | None = None, with_log_entry: bool = False,
-               with_figures: bool = True) -> dict[str, Any]:
+               with_figures: bool = True, channel_map: Mapping[str, str] | None = None) -> dict[str, Any]:
     """Judge one capture as its own unit and write its report (the job of ``report --each``).
 
     Parameters
@@ -268,6 +272,8 @@ def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: 
         that a batch appends from one process.
     with_figures : bool
         Draw the report's figures.
+    channel_map : mapping, optional
+        Spec channel name → capture channel (``report --channel output=2``).
 
     Returns
     -------
@@ -279,7 +285,8 @@ def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: 
 
     unit = unit_serial(path)
     res = run_unit([path], unit=unit, spec=spec, operator=operator, out_dir=out_dir, fit=fit,
-                   log_path=None, with_figures=with_figures, defer_log=with_log_entry)
+                   log_path=None, with_figures=with_figures, defer_log=with_log_entry,
+                   channel_map=channel_map)
     return {"file": str(path), "unit": unit, "verdict": res.verdict, "exit_code": res.exit_code,
             "html": str(res.html_path), "json": str(res.json_path),
             "log_entry": None if res.log_entry is None else dict(res.log_entry)}
@@ -417,6 +424,16 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
                 done.append(outcome)
                 notify(outcome)
     except BaseException:
+        # Ctrl-C (or an error in on_outcome): stop now. The workers ignore SIGINT, so the jobs
+        # they are running would otherwise finish (and write their files) long after the parent
+        # gave up on them; terminate them (SIGTERM) and drop what is still queued.
+        procs = list((getattr(pool, "_processes", None) or {}).values())
+        for proc in procs:
+            with suppress(Exception):
+                proc.terminate()
+        for proc in procs:  # gone before the caller cleans up after them
+            with suppress(Exception):
+                proc.join(timeout=5)
         pool.shutdown(wait=False, cancel_futures=True)
         raise
     pool.shutdown(wait=True)

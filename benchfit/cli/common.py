@@ -82,3 +82,22 @@ def parse_assignments(items: list[str] | None, allowed: tuple[str, ...], option:
             fail(f"{option} {item!r}: {name} must be {need} — give the part's value, e.g. {name}=1.5")
         out[name] = value
     return out
+
+
+#: part values no bench filter of this kind comes near (common practice, no source): outside them the
+#: number is a prefix mistake (M for mega where m, milli, was meant; a missing u for micro) rather than a
+#: part; each with an example value as the option is written
+_PLAUSIBLE_PARTS = {"L": (1e-9, 100.0, "H", "300m"), "C": (1e-13, 1.0, "F", "33u"), "Rs": (0.0, 1e7, "Ω", "12"),
+                    "Resr": (0.0, 1e7, "Ω", "0.4"), "Rload": (1e-3, 1e10, "Ω", "10k")}
+
+
+def check_parts_plausible(values: dict[str, float], option: str) -> None:
+    """Refuse a part value far outside any bench part (``--fix L=300M``: 300 MH), naming the prefix rule."""
+    for name, value in values.items():
+        if name not in _PLAUSIBLE_PARTS:
+            continue
+        low, high, unit, example = _PLAUSIBLE_PARTS[name]
+        if low <= value <= high:
+            continue
+        fail(f"{option} {name}={value:.4g} {unit}: outside any bench part ({low:g}…{high:g} {unit}) — check the "
+             f"SI prefix (M mega, k kilo, m milli, u or µ micro, n nano, p pico), e.g. {option} {name}={example}")

@@ -95,6 +95,10 @@ class _Tour:
         return code
 
 
+#: file that marks a folder as the demo's own (so that a rerun may replace the demo's files there)
+_DEMO_MARKER = ".benchfit-demo"
+
+
 @app.command("demo", short_help="Run the whole job on the bundled sample captures.", help=(
     "Run the whole job on the bundled sample captures: measure, fit (two-channel, one-channel, "
     "ring-down), a calibration report per unit (one fails), the log and its batch statistics, "
@@ -113,9 +117,20 @@ def demo_command(
 
     started = time.perf_counter()
     src = _samples_dir(samples)
+    marker = out / _DEMO_MARKER
+    if out.exists() and not out.is_dir():
+        fail(f"{out}: is a file, not a folder — give --out a new folder name")
+    try:
+        foreign = out.is_dir() and not marker.exists() and any(out.iterdir())
+    except OSError as e:
+        fail(f"{out}: cannot read the folder ({e.strerror}) — choose another --out")
+    if foreign:  # a rerun replaces the demo's own files; nobody else's
+        fail(f"{out}: the folder holds files the demo did not make — give --out a new or empty folder")
     try:
         out.mkdir(parents=True, exist_ok=True)
         (out / "reports").mkdir(exist_ok=True)
+        marker.write_text("folder made by 'benchfit demo'; a rerun replaces the demo's files here\n",
+                          encoding="utf-8")
     except OSError as e:
         fail(f"{out}: cannot create the demo folder ({e.strerror}) — choose another --out")
     log = str(out / "demo-log.sqlite")

@@ -218,7 +218,7 @@ def fit_command(
                                             "the tolerance (rectangular) is propagated into every result."),
     guess: Optional[List[str]] = typer.Option(None, "--guess", metavar="NAME=VALUE", help="Start value NAME=VALUE (repeatable)."),
     drive_duty: Optional[str] = typer.Option(None, "--drive-duty", metavar="DUTY", help="One-channel: the drive's duty "
-                                             "cycle, high time / period, as 0.5 or 50%; fitted if omitted."),
+                                             "cycle, high time / period, as 0.5, 50 or 50%; fitted if omitted."),
     time_domain: bool = typer.Option(False, "--time-domain", help="Two-channel: refine by simulating "
                                      "the output from the drive samples (for non-periodic drives)."),
     as_json: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
@@ -227,7 +227,8 @@ def fit_command(
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
 ) -> None:
-    from benchfit.cli.common import fail, parse_assignments, parse_value, print_json, stderr, stdout
+    from benchfit.cli.common import (check_parts_plausible, fail, parse_assignments, parse_value, print_json,
+                                     stderr, stdout)
 
     model, method = ModelOption(model).value, MethodOption(method).value
     if plot is not None and plot.suffix.lower() not in (".svg", ".png"):
@@ -239,12 +240,16 @@ def fit_command(
     names = ("L", "C", "Rs", "Resr", "Rload", "Rp")
     fixed = parse_fix_options(fix, names)
     guessed = parse_assignments(guess, names, "--guess")
+    check_parts_plausible(fixed, "--fix")
+    check_parts_plausible(guessed, "--guess")
     duty = None
     if drive_duty is not None:
         text = drive_duty.strip()
         pct = text.endswith("%")
         duty = parse_value(text.rstrip("%").strip(), "--drive-duty")
-        duty = duty / 100.0 if pct else duty
+        # a bare number from 1 to 99 is a percentage ("--drive-duty 50"): a fraction is below 1, and
+        # 1 itself (100 %) is no pulse; exactly 1.0 stays refused below
+        duty = duty / 100.0 if pct or 1.0 < duty < 100.0 else duty
         if not 0.0 < duty < 1.0:
             fail(f"--drive-duty {drive_duty!r}: the duty cycle must lie between 0 and 1 (or 0 % and "
                  "100 %) — e.g. --drive-duty 0.5")
@@ -273,7 +278,8 @@ def fit_command(
     if plot is not None:
         from benchfit.report.figures import fit_svg, save_figure
 
-        save_figure(fit_svg(result), plot)
+        units = set(cap.units)
+        save_figure(fit_svg(result, unit=units.pop() if len(units) == 1 else None), plot, overwrite=overwrite)
     d = result.to_dict()
     if as_json:
         print_json(d)

@@ -275,6 +275,13 @@ def _panel(r, t: float, target: float, tolerance: float | None, n: int, dropped:
     return Panel(grid, title=f"tuning to {target:g} Hz{tol}", subtitle="Ctrl-C to stop", expand=False)
 
 
+def _tune_channels(channel: int, device) -> int:
+    """Channels ``tune`` opens: all of the device's inputs up to two, and at least ``channel``."""
+    from benchfit.capture.devices import resolve_input_device
+
+    return max(channel, min(2, resolve_input_device(device).input_channels))
+
+
 @app.command(short_help="Live frequency, duty and THD readout for tuning a unit.",
              help=("Live readout for adjusting a unit: frequency (mHz resolution, with uncertainty), "
                    "deviation from the target in Hz and ppm with a plain-words hint, duty cycle, THD "
@@ -338,7 +345,10 @@ def tune(
     previous = None
     live_display = None
     try:
-        with LiveWindows(rate=r, channels=channel, window_s=window, hop_s=hop, device=_device(device)) as src:
+        # open every input (up to stereo) and analyse the one asked for: a one-channel stream would
+        # have the sound server mix both inputs into it, and --channel 1 would hear channel 2 as well
+        n_open = _tune_channels(channel, _device(device))
+        with LiveWindows(rate=r, channels=n_open, window_s=window, hop_s=hop, device=_device(device)) as src:
             if tb_note:  # once the device is open, so a device error stays one line
                 stderr.print(f"note: {tb_note}", markup=False, highlight=False, soft_wrap=True)
             if not plain:

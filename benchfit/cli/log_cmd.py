@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import enum
+import math
 from pathlib import Path
 from typing import Optional
 
@@ -21,6 +22,22 @@ def _log_path(option: Optional[str]):
     from benchfit.log.store import resolve_log_path
 
     return resolve_log_path(option)
+
+
+def _read_log(option: Optional[str], fn, *args, **kwargs):
+    """``fn(log, ...)`` on the log, or on a snapshot copy when it cannot be written (read-only);
+    an error names the log, not the copy."""
+    from benchfit.cli.logsafe import readable_log_path
+    from benchfit.errors import BenchfitError
+
+    path = _log_path(option)
+    readable = readable_log_path(path)
+    try:
+        return fn(readable, *args, **kwargs)
+    except BenchfitError as e:
+        if readable == path:
+            raise
+        raise type(e)(str(e).replace(str(readable), str(path))) from e
 
 
 def _check_since(since: Optional[str]) -> Optional[str]:
@@ -51,14 +68,13 @@ def list_command(
     from benchfit.cli.common import print_json, stdout
     from benchfit.log.store import list_runs
 
-    target = _log_path(log)
-    runs = list_runs(target, unit=unit, since=_check_since(since), bench=bench, last=last)
+    runs = _read_log(log, list_runs, unit=unit, since=_check_since(since), bench=bench, last=last)
     if as_json:
         print_json({"runs": runs})
         return
     from rich.table import Table
 
-    table = Table(title=f"{len(runs)} run(s) in {target}", title_justify="left")
+    table = Table(title=f"{len(runs)} run(s) in {_log_path(log)}", title_justify="left")
     for col in ("run", "time (UTC)", "bench", "command", "unit", "operator", "verdict", "captures"):
         table.add_column(col)
     for r in runs:
@@ -77,7 +93,7 @@ def show_command(
     from benchfit.log.store import get_run
     from benchfit.report.html import format_limits, format_u, format_value
 
-    data = get_run(_log_path(log), run)
+    data = _read_log(log, get_run, run)
     if as_json:
         print_json(data)
         return
@@ -124,11 +140,45 @@ def export_command(
     from benchfit.cli.common import stderr
     from benchfit.log.export import export_log
 
-    text = export_log(_log_path(log), FormatOption(fmt).value, out, overwrite=overwrite, unit=unit, since=_check_since(since))
+    text = _read_log(log, export_log, FormatOption(fmt).value, out, overwrite=overwrite, unit=unit,
+                     since=_check_since(since))
     if text is not None:
         sys.stdout.write(text if text.endswith("\n") else text + "\n")
     else:
         stderr.print(f"wrote {out}", markup=False)
+
+
+#: below this many units a capability figure is a rough indication only (common practice, no source)
+_SMALL_N = 30
+
+
+def _small_n_caution(n: int) -> str | None:
+    """What a small batch means for the spread: the relative standard uncertainty of a sample standard
+    deviation from n normal values is about 1/√(2(n − 1)) (JCGM 100:2008 (GUM), E.4.3, from memory)."""
+    if n >= _SMALL_N:
+        return None
+    if n < 2:
+        return f"n = {n}: one unit gives no spread — log more units before judging the process"
+    rel = 1.0 / math.sqrt(2.0 * (n - 1))
+    return (f"n = {n} is a small batch: the standard deviation (and so Cp, Cpk) is uncertain by about "
+            f"±{100 * rel:.0f} % (1/√(2(n−1))) — read it as an indication; {_SMALL_N} or more units give "
+            "a firmer figure")
+
+
+def _no_values(quantity: str, log: Optional[str]) -> str:
+    """'no logged values', with the nearest quantity names the log or benchfit knows."""
+    import difflib
+
+    from benchfit.log.store import results_rows
+    from benchfit.report.spec import QUANTITY_UNITS
+
+    logged = sorted({r["quantity"] for r in _read_log(log, results_rows)})
+    close = difflib.get_close_matches(quantity, logged + [q for q in QUANTITY_UNITS if q not in logged], n=2,
+                                      cutoff=0.5)
+    hint = f" (did you mean {' or '.join(close)}?)" if close else ""
+    known = ", ".join(logged[:12]) + (" …" if len(logged) > 12 else "")
+    return (f"{quantity}: no logged values{hint} — the log holds {known or 'no results yet'}; "
+            "see 'benchfit log export'")
 
 
 @log_app.command("stats", help="Batch statistics of one quantity: n, mean, std, min, max, Cp and Cpk.\n\n"
@@ -169,7 +219,7 @@ def stats_command(
             channel = lim.channel
     if plot is not None and plot.exists() and not overwrite:
         fail(f"{plot}: file exists — choose another --plot or add --overwrite")
-    rows = [r for r in results_rows(_log_path(log), quantity=quantity, since=_check_since(since))
+    rows = [r for r in _read_log(log, results_rows, quantity=quantity, since=_check_since(since))
             if r["role"] in ("as-left", "") and r["value"] is not None
             and (channel is None or (r["channel"] or "").lower() == channel.lower())]
     if not all_runs:
@@ -186,7 +236,10 @@ def stats_command(
         fail(f"{quantity}: logged in several units ({', '.join(sorted(units))}) — choose one with --channel")
     unit = units.pop() if units else ""
     values = [r["value"] for r in rows]
+    if not values:
+        fail(_no_values(quantity, log))
     cap = capability(values, lower, upper, quantity)
+    caution = _small_n_caution(cap.n)
     if by:
         _stats_by_bench(rows, cap, quantity, channel, unit, lower, upper, as_json)
         return
@@ -199,7 +252,7 @@ def stats_command(
             fail(f"{plot}: cannot write the plot ({e.strerror}) — check the path")
         stderr.print(f"wrote {plot}", markup=False)
     if as_json:
-        print_json({"quantity": quantity, "channel": channel, "unit": unit, **cap.to_dict()})
+        print_json({"quantity": quantity, "channel": channel, "unit": unit, **cap.to_dict(), "caution": caution})
         return
     ratio = lambda v: "—" if v is None else f"{v:.3f}"  # noqa: E731
     stdout.print(f"{quantity}{f' ({channel})' if channel else ''}: n = {cap.n}", markup=False)
@@ -210,6 +263,8 @@ def stats_command(
 
         stdout.print(f"  limits {format_limits(lower, upper, unit)}   Cp {ratio(cap.cp)}   Cpk {ratio(cap.cpk)}",
                      markup=False)
+    if caution:
+        stdout.print(f"  caution: {caution}", markup=False)
 
 
 def _stats_by_bench(rows: list, cap, quantity: str, channel: Optional[str], unit: str,

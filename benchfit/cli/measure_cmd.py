@@ -10,6 +10,7 @@ module level.
 from __future__ import annotations
 
 import math
+import sys
 from pathlib import Path
 from typing import Any, List, Optional
 
@@ -151,6 +152,8 @@ def render_channel_rows(ch: dict[str, Any]) -> list[tuple[str, str, str]]:
             note = f"droop {droop:.2g} % compensated" if droop else "droop compensated"
             rows.append(("input coupling τ", _num(ex["coupling_tau_s"], "s"),
                          f"{ex.get('coupling_source')}; {note}"))
+    elif ex.get("pulse_not_given"):
+        rows.append(("duty cycle, edges", "—", ex["pulse_not_given"]))
     if ch["frequency_hz"] is not None:
         rows += [
             ("THD", _pct(ch["thd_pct"], ex.get("thd_u_pct")), f"harmonics 2…{h}"),
@@ -226,6 +229,11 @@ def measure_command(
         False, "--log-default",
         help="Append each measured file to the default measurement log: $BENCHFIT_LOG when set, else "
              "benchfit/log.sqlite in the user data directory."),
+    pulse: bool = typer.Option(False, "--pulse", help="Give duty cycle and edge times even when the wave is "
+                               "not two-level (slow edges), as indications."),
+    plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE",
+                                        help="One file only: write its waveform and harmonics to FILE.svg or "
+                                             "FILE.png (an existing file is kept)."),
 ) -> None:
     from benchfit.cli.batch import collect_captures, default_jobs, prefer_one_blas_thread
     from benchfit.cli.common import fail, parse_value
@@ -245,30 +253,58 @@ def measure_command(
         if log is not None and not log.strip():
             fail("--log: the path is empty — give the log file, or use --log-default")
         log_path = resolve_log_path(log)
+        from benchfit.cli.logsafe import check_log_writable
         from benchfit.log.store import open_log
 
+        check_log_writable(log_path)  # a read-only log stops here too
         open_log(log_path).close()  # a foreign or unwritable log stops here, before any file is measured
     rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
     opts = {"channels": list(channel) if channel else None, "harmonics": harmonics, "sample_rate": rate,
-            "with_capture": log_path is not None}
+            "with_capture": log_path is not None, "force_pulse": pulse}
     paths, notes = collect_captures(files, recursive=recursive)
     if not paths:
         fail(notes[0] if len(notes) == 1 else "; ".join(notes))
     single = len(files) == 1 and not files[0].is_dir()
+    if plot is not None:
+        if not single:
+            fail(f"--plot {str(plot)!r}: draws one capture — give one file, or leave --plot out")
+        if plot.suffix.lower() not in (".svg", ".png"):
+            fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
+        if plot.exists():
+            fail(f"{plot}: file exists — choose another --plot")
     if single:
         _measure_single(paths[0], opts, as_json, log_path)
+        if plot is not None:
+            _plot(paths[0], opts, plot, as_json)
         return
     _measure_batch(paths, notes, opts, as_json, log_path, jobs or default_jobs())
 
 
+def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
+    """Draw the waveform and harmonics of one capture (measured again here: the figure needs the objects)."""
+    from benchfit.capture.load import load
+    from benchfit.cli.common import stderr, stdout
+    from benchfit.measurement.summary import measure
+    from benchfit.report.figures import measurement_svg, save_figure
+
+    cap = load(path, sample_rate=opts.get("sample_rate"))
+    m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"),
+                force_pulse=opts.get("force_pulse", False))
+    if opts.get("channels"):
+        cap = cap.select(list(opts["channels"]))
+    save_figure(measurement_svg(cap, m), plot, overwrite=False)
+    (stderr if as_json else stdout).print(f"figure written to {plot}", markup=False, highlight=False)
+
+
 def _log_measurement(log_path: Path, out: dict[str, Any]) -> int:
     """Append one measured file to the log as a ``measure`` run; returns the run id."""
-    from benchfit.log.store import append_run
+    from benchfit.cli.logsafe import append_run_explained
 
     cap, d = out["capture"], out["measurement"]
-    return append_run(log_path, command="measure", unit=cap.get("unit"),
-                      captures=[{"path": cap["path"], "sha256": cap["sha256"], "metadata": cap["metadata"]}],
-                      measurements=[d], details={"file": d["file"]})
+    return append_run_explained(
+        log_path, command="measure", unit=cap.get("unit"),
+        captures=[{"path": cap["path"], "sha256": cap["sha256"], "metadata": cap["metadata"]}],
+        measurements=[d], details={"file": d["file"]})
 
 
 def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: Path | None) -> None:
@@ -283,14 +319,32 @@ def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: Path
         stdout.print()
 
 
+def _show_then_log(out: dict[str, Any], as_json: bool, log_path: Path | None) -> int | None:
+    """Print a result, then log it: the log holds only what was shown (a broken pipe or a failed
+    rendering logs nothing). Ctrl-C is held from the first printed line until the run is logged."""
+    from benchfit.cli.common import stdout
+    from benchfit.cli.logsafe import sigint_held
+
+    if log_path is None:
+        _show(out, as_json, None, None)
+        return None
+    with sigint_held():
+        _show(out, as_json, None, log_path)
+        sys.stdout.flush()  # a closed pipe fails here, before the run is logged
+        run_id = _log_measurement(log_path, out)
+    if not as_json:
+        stdout.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)
+        stdout.print()
+    return run_id
+
+
 def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: Path | None) -> None:
     """One file, in this process: a failure is the command's one-line error (exit 2)."""
     from benchfit.cli.batch import measure_job
     from benchfit.cli.common import stderr
 
     out = measure_job(path, **opts)
-    run_id = _log_measurement(log_path, out) if log_path is not None else None
-    _show(out, as_json, run_id, log_path)
+    run_id = _show_then_log(out, as_json, log_path)
     if as_json and run_id is not None:
         stderr.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)
 
@@ -311,11 +365,9 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
                 failed.append(outcome.error)
                 progress.say(f"error: {outcome.error}")
                 return
-            run_id = None
-            if log_path is not None:
-                run_id = _log_measurement(log_path, outcome.result)
+            run_id = _show_then_log(outcome.result, as_json, log_path)
+            if run_id is not None:
                 run_ids.append(run_id)
-            _show(outcome.result, as_json, run_id, log_path)
 
         run_jobs(measure_job, paths, jobs=jobs, kwargs=opts, on_outcome=on_outcome)
     if log_path is not None and as_json and run_ids:

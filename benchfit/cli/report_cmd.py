@@ -13,7 +13,11 @@ could not be reported (it wins over 1).
 
 from __future__ import annotations
 
+import contextlib
 import os
+import shutil
+import tempfile
+from dataclasses import replace
 from pathlib import Path
 from typing import List, Optional
 
@@ -83,6 +87,10 @@ def report_command(
         None, "--bench", metavar="NAME",
         help="This bench's (station's) name on the logged runs (default: $BENCHFIT_BENCH or the host name)."),
     no_log: bool = typer.Option(False, "--no-log", help="Do not append this run to the measurement log."),
+    channel: Optional[List[str]] = typer.Option(None, "--channel", metavar="NAME=CH",
+                                                help="Take the spec's channel NAME from capture channel CH (a "
+                                                     "name or 1-based number), e.g. --channel output=2 "
+                                                     "(repeatable)."),
     no_figures: bool = typer.Option(False, "--no-figures", help="Leave the figures out (faster)."),
     drift: Optional[Path] = typer.Option(None, "--drift", metavar="RUN",
                                          help="A drift run of the unit for the Stability section: the JSON of "
@@ -91,7 +99,7 @@ def report_command(
                                                        "(with --each: one line per unit as it finishes)."),
 ) -> None:
     from benchfit.cli.batch import collect_captures, prefer_one_blas_thread
-    from benchfit.cli.common import fail
+    from benchfit.cli.common import check_parts_plausible, fail
 
     prefer_one_blas_thread()  # before numpy loads: its small matrix products run faster on one thread
 
@@ -106,6 +114,8 @@ def report_command(
     # NAME=VALUE[±TOL] (issue 11): a tolerance is propagated into the fitted values' uncertainties
     fix_values = {k: (v.value if v.half_width is None else v)  # a plain value stays a plain float
                   for k, v in parse_fix_options(fix, tuple(_FIT_NAMES)).items()}
+    check_parts_plausible({k: getattr(v, "value", v) for k, v in fix_values.items()}, "--fix")
+    channel_map = _channel_map(channel)
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:
         fit = FitOptions(model=model or "lc-lowpass", drive=drive, response=response, fix=fix_values)
@@ -135,29 +145,53 @@ def report_command(
         fail("; ".join(notes))
     if each:
         _report_each(paths, notes, spec=spec, out=out, fit=fit, operator=operator, log_path=log_path,
-                     with_figures=not no_figures, as_json=as_json, jobs=jobs)
+                     with_figures=not no_figures, as_json=as_json, jobs=jobs, channel_map=channel_map)
         return
     if drift is not None and not drift.is_file():
         fail(f"{drift}: no such file — give the JSON of 'benchfit drift --json' or the long capture")
     _report_one(paths, unit=unit, spec=spec, as_found=as_found or [], operator=operator, out=out, fit=fit,
-                log_path=log_path, with_figures=not no_figures, as_json=as_json, drift=drift)
+                log_path=log_path, with_figures=not no_figures, as_json=as_json, drift=drift,
+                channel_map=channel_map)
+
+
+def _channel_map(items: Optional[List[str]]) -> dict[str, str]:
+    """``--channel NAME=CH`` options as ``{NAME: CH}``."""
+    from benchfit.cli.common import fail
+
+    out: dict[str, str] = {}
+    for item in items or []:
+        name, eq, ch = item.partition("=")
+        if not eq or not name.strip() or not ch.strip():
+            fail(f"--channel {item!r}: not NAME=CH — write it like --channel output=2 (the spec's channel "
+                 "name = the capture's channel name or 1-based number)")
+        if name.strip().lower() in {k.lower() for k in out}:
+            fail(f"--channel {item!r}: {name.strip()!r} is mapped twice — give each spec channel once")
+        out[name.strip()] = ch.strip()
+    return out
 
 
 def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path], operator: str | None,
                 out: Path, fit, log_path: Path | None, with_figures: bool, as_json: bool,
-                drift: Path | None = None) -> None:
+                drift: Path | None = None, channel_map: dict[str, str] | None = None) -> None:
     """All captures belong to one unit (in this process)."""
     from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.report.assemble import run_unit
 
     if log_path is not None:
+        from benchfit.cli.logsafe import check_log_writable
         from benchfit.log.store import open_log
 
-        open_log(log_path).close()  # a foreign or unwritable log stops here, before any report file is written
+        check_log_writable(log_path)  # a read-only log stops here, before any report file is written
+        open_log(log_path).close()  # so does a foreign one
     with stderr.status("benchfit report", spinner="line") as status:
         result = run_unit(paths, unit=unit, spec=spec, as_found=as_found, operator=operator,
-                          out_dir=out, fit=fit, log_path=log_path, with_figures=with_figures,
-                          progress=lambda text: status.update(text), drift=drift)
+                          out_dir=out, fit=fit, log_path=None, defer_log=log_path is not None,
+                          channel_map=channel_map, drift=drift,
+                          with_figures=with_figures, progress=lambda text: status.update(text))
+    if log_path is not None:
+        result = replace(result, run_id=_log_or_roll_back(log_path, result.log_entry,
+                                                          [result.html_path, result.json_path]))
+    index = _update_index(out)
     if as_json:
         print_json({"unit": unit, "verdict": result.verdict, "exit_code": result.exit_code,
                     "html": str(result.html_path), "json": str(result.json_path),
@@ -168,8 +202,76 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
         stdout.print(f"json    {result.json_path}", markup=False)
         if result.run_id is not None:
             stdout.print(f"logged  run {result.run_id} in {log_path}", markup=False)
+        if index is not None:
+            stdout.print(f"index   {index}", markup=False)
     if result.exit_code:
         raise typer.Exit(code=result.exit_code)
+
+
+def _update_index(out: Path) -> Path | None:
+    """Rewrite ``out/index.html`` (every report there); a failure is a warning, the reports stand."""
+    from benchfit.cli.common import stderr
+    from benchfit.report.index import write_index
+
+    try:
+        return write_index(out)
+    except OSError as e:
+        stderr.print(f"warning: {out / 'index.html'}: the report index cannot be written ({e.strerror or e}) — "
+                     "the reports themselves are written; check the folder", markup=False, highlight=False)
+        return None
+
+
+def _log_or_roll_back(log_path: Path, entry: dict, files: list[Path]) -> int:
+    """Append a unit's run; if the log refuses it, remove the report files just made for it.
+
+    A report that is not in the log would be a record nobody can find again: the files (created
+    exclusively for this run a moment ago) go, and the error says so.
+    """
+    from benchfit.cli.logsafe import append_run_explained
+    from benchfit.errors import LogError
+
+    try:
+        return append_run_explained(log_path, **entry)
+    except (LogError, KeyboardInterrupt) as e:
+        for f in files:
+            with contextlib.suppress(OSError):
+                Path(f).unlink()
+        if isinstance(e, KeyboardInterrupt):
+            raise
+        raise LogError(f"{e} (its report files were removed: {', '.join(Path(f).name for f in files)})") from e
+
+
+def _publish(html: Path, js: Path, out: Path) -> tuple[Path, Path]:
+    """Move a staged report pair into ``out`` under the first free ``<stem>[-n]`` name.
+
+    Each file is hard-linked into place (link(2) fails if the name exists, so nothing is
+    replaced) and then unlinked from the staging folder.
+    """
+    for n in range(1, 1000):
+        name = html.stem if n == 1 else f"{html.stem}-{n}"
+        targets = (out / f"{name}.html", out / f"{name}.json")
+        linked: list[Path] = []
+        try:
+            for src, dst in zip((html, js), targets):
+                try:
+                    os.link(src, dst)
+                except FileExistsError:
+                    raise
+                except OSError:  # no hard links on this file system: copy, after a check
+                    if dst.exists():
+                        raise FileExistsError(dst) from None
+                    shutil.copyfile(src, dst)
+                linked.append(dst)
+        except FileExistsError:
+            for dst in linked:
+                dst.unlink()
+            continue
+        for src in (html, js):
+            src.unlink()
+        return targets
+    from benchfit.errors import BenchfitError
+
+    raise BenchfitError(f"{out}: 999 reports named {html.stem} already exist — choose another --out")
 
 
 def _style(verdict: str) -> str:
@@ -177,7 +279,8 @@ def _style(verdict: str) -> str:
 
 
 def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, fit, operator: str | None,
-                 log_path: Path | None, with_figures: bool, as_json: bool, jobs: int | None) -> None:
+                 log_path: Path | None, with_figures: bool, as_json: bool, jobs: int | None,
+                 channel_map: dict[str, str] | None = None) -> None:
     """Every capture its own unit, in worker processes; a bad capture is named and skipped.
 
     The spec and fit options are checked here first, so a mistake in them is one error, not
@@ -192,14 +295,26 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     load_spec(spec)
     if fit is not None:
         _fit_call(fit)
-    from benchfit.log.store import append_run, open_log
+    from benchfit.cli.logsafe import check_log_writable, sigint_held
+    from benchfit.log.store import open_log
 
     if log_path is not None:
-        open_log(log_path).close()  # a foreign or unwritable log stops here, before any unit is judged
-    kwargs = {"spec": str(spec), "out_dir": str(out), "fit": fit, "operator": operator,
-              "with_log_entry": log_path is not None, "with_figures": with_figures}
+        check_log_writable(log_path)  # a read-only log stops here, before any unit is judged
+        open_log(log_path).close()  # so does a foreign one
+    # Workers write into a hidden staging folder inside --out; a unit's files move into --out only
+    # when this process logs the unit. Ctrl-C (or a killed worker) leaves no report that is not
+    # in the log: the staging folder is removed on the way out.
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        staging = Path(tempfile.mkdtemp(prefix=".benchfit-staging-", dir=out))
+    except OSError as e:
+        fail(f"{out}: cannot create the output directory ({e.strerror}) — check --out")
+    kwargs = {"spec": str(spec), "out_dir": str(staging), "fit": fit, "operator": operator,
+              "with_log_entry": log_path is not None, "with_figures": with_figures, "channel_map": channel_map}
     outcomes = []
-    with progress_bar("reporting", len(paths), notes) as progress:
+    with contextlib.ExitStack() as cleanup:
+        cleanup.callback(shutil.rmtree, staging, ignore_errors=True)
+        progress = cleanup.enter_context(progress_bar("reporting", len(paths), notes))
 
         def on_outcome(outcome) -> None:
             progress.advance(outcome.path.name)
@@ -209,12 +324,19 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
                 return
             r = outcome.result
             entry = r.pop("log_entry", None)
-            r["run_id"] = append_run(log_path, **entry) if log_path is not None and entry else None
-            if as_json:
-                print_json({**r, "log": None if log_path is None else str(log_path)})
+            with sigint_held():  # files moved, run logged and line printed: all three or none
+                html, js = _publish(Path(r["html"]), Path(r["json"]), out)
+                r["html"], r["json"] = str(html), str(js)
+                if entry:
+                    entry["details"] = {**entry.get("details", {}), "html": str(html), "json": str(js)}
+                r["run_id"] = (_log_or_roll_back(log_path, entry, [html, js])
+                               if log_path is not None and entry else None)
+                if as_json:
+                    print_json({**r, "log": None if log_path is None else str(log_path)})
 
         run_jobs(report_job, paths, jobs=jobs or default_jobs(), kwargs=kwargs, on_outcome=on_outcome,
                  preload=REPORT_PRELOAD)
+    index = _update_index(out) if any(o.ok for o in outcomes) else None
     outcomes.sort(key=lambda o: o.index)
     failed = [o for o in outcomes if not o.ok]
     if not as_json:
@@ -237,6 +359,8 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
         stdout.print(table)
         if log_path is not None:
             stdout.print(f"logged in {log_path}", markup=False)
+        if index is not None:
+            stdout.print(f"index  {index}", markup=False)
     if failed:
         fail(f"{len(failed)} of {len(paths)} captures could not be reported — see the lines above; "
              "the others were")

@@ -458,7 +458,7 @@ def edge_period(rising: np.ndarray, falling: np.ndarray) -> tuple[float, float] 
 
 
 def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | None = None,
-                     compensate: bool = True) -> PulseResult:
+                     compensate: bool = True, force: bool = False) -> PulseResult:
     """IEEE 181 pulse parameters of a two-level wave, compensating AC-coupling droop.
 
     Parameters
@@ -473,6 +473,9 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
         when significant.
     compensate : bool
         Set False to analyse the samples as recorded.
+    force : bool
+        Analyse the wave as a pulse even when its histogram is not two-level (slow edges): the
+        states are still the histogram's low and high modes (IEEE 181), read with that caveat.
 
     Returns
     -------
@@ -500,7 +503,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
         span = _whole_period_span(raw_edges, x.size) if raw_edges is not None else x.size
         z = compensate_coupling(x, fs, tau, span)
     s = state_levels(z) if tau is not None else raw
-    if not s.two_level:
+    if not s.two_level and not (force and s.amplitude > 0):
         return PulseResult(two_level=False, coupling_tau_s=tau, coupling_source=source,
                            droop_pct=droop)
     e = raw_edges if (tau is None and raw_edges is not None) else _find_edges(z, s)

@@ -47,7 +47,7 @@ from benchfit.errors import MeasureError
 from benchfit.measurement.budgets import channel_budgets
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
 from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
-from benchfit.measurement.pulse import PulseResult, pulse_parameters
+from benchfit.measurement.pulse import PulseResult, pulse_parameters, state_levels
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
 from benchfit.measurement.threads import one_blas_thread
 from benchfit.measurement.tone import fit_harmonics, fit_tone
@@ -66,6 +66,25 @@ _DROOP_WARN_PCT = 5.0
 _MIN_PULSE_THD = 0.05
 #: fewer whole periods than this gives a short-record warning
 _MIN_PERIODS = 3.0
+#: fewest samples a period for a pulse analysis: with fewer, harmonic 3 lies above Nyquist and a sine
+#: cannot be told from a square (a sine at fs/4 samples as a two- or three-level wave)
+_MIN_PULSE_SAMPLES_PER_PERIOD = 6.0
+
+
+def _middle_crossings(x: np.ndarray) -> int:
+    """How often the wave crosses its middle level, with hysteresis.
+
+    The middle lies halfway between the 1st and 99th percentiles (a spike does not move it); a
+    crossing counts when the wave goes from below the lower to above the upper hysteresis level
+    (±25 % of the half-range) or back. Any wave holding one whole period crosses at least twice.
+    """
+    lo, hi = np.percentile(x, [1.0, 99.0])
+    mid, band = 0.5 * (lo + hi), 0.25 * 0.5 * (hi - lo)
+    state = np.zeros(x.size, dtype=np.int8)
+    state[x > mid + band] = 1
+    state[x < mid - band] = -1
+    seen = state[state != 0]
+    return int(np.count_nonzero(np.diff(seen))) if seen.size else 0
 
 
 def _fmt(v: float, unit: str) -> str:
@@ -81,7 +100,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                     full_scale: float | None = None, gain_u_rel: float | None = None,
                     extra_warnings: tuple[str, ...] = (), timebase_calibrated: bool = True,
                     timebase_source: str = "", gain_source: str = "calibration profile",
-                    distortion_floor_pct: float | None = None) -> ChannelMeasurement:
+                    distortion_floor_pct: float | None = None, force_pulse: bool = False) -> ChannelMeasurement:
     """Measure one channel.
 
     Parameters
@@ -115,6 +134,9 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         Provenance of the timebase and gain figures, for the budget rows.
     distortion_floor_pct : float, optional
         THD (%) the card itself adds (calibrate distortion): budgeted in ``thd_pct``.
+    force_pulse : bool
+        Give duty cycle and edge times even for a wave that is not two-level (slow edges), with a
+        warning; never below 6 samples a period.
 
     The GUM budget of every quantity with an uncertainty is in ``ChannelMeasurement.budget``
     (:mod:`benchfit.measurement.budgets`).
@@ -142,11 +164,21 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         amp = float(fit.amplitudes[0])
         periodic = amp > 0 and (amp_u == 0 or amp >= _DETECT_RATIO * amp_u)
     clip = find_clipping(x, unit, full_scale, rails=True)
+    short = not flat and _middle_crossings(x) < 2
+    if short:
+        # the fit always finds some sine in a slope; without two crossings of the middle level the
+        # record holds less than one period, and its frequency would be an artefact of the length
+        periodic = False
     if not periodic:
         levels = signal_levels(x, fs, None)
-        what = "silence: all samples equal" if flat else "no periodic signal found"
-        warnings.append(f"{what} — frequency, distortion and pulse values are not given; "
-                        "check the connection and the input level")
+        if short:
+            warnings.append(f"the record ({_fmt(n / fs, 's')}) holds less than one period of the signal (it "
+                            "crosses its middle level fewer than twice) — frequency, distortion and pulse "
+                            "values are not given; record at least 3 periods")
+        else:
+            what = "silence: all samples equal" if flat else "no periodic signal found"
+            warnings.append(f"{what} — frequency, distortion and pulse values are not given; "
+                            "check the connection and the input level")
         if clip.clipped:
             warnings.append(_clip_warning(clip))
         return ChannelMeasurement(
@@ -168,13 +200,29 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                         "(10 or more for good uncertainty)")
     levels = signal_levels(x, fs, f)
     dist = analyse_distortion(x, fs, fit)
-    if fit.orders.size >= 3 and dist.thd is not None and dist.thd < _MIN_PULSE_THD:
+    if not force_pulse and fit.orders.size >= 3 and dist.thd is not None and dist.thd < _MIN_PULSE_THD:
         # harmonics 2…H (H ≥ 3) below 5 % of the fundamental: not a two-level wave. Even a trapezoid
         # whose edges take the whole period (a triangle) has THD_F = 12 % (REFERENCES §5 table,
         # H = 10: 12.05 %), so the pulse analysis (and its droop fit) is skipped.
         pulse = PulseResult(two_level=False)
+    elif fs / f < _MIN_PULSE_SAMPLES_PER_PERIOD:
+        pulse = PulseResult(two_level=False)
+        warnings.append(f"duty cycle and edge times are not given: {fs / f:.2g} samples a period are too few "
+                        f"to tell a pulse from a sine (at least {_MIN_PULSE_SAMPLES_PER_PERIOD:g} are needed) — "
+                        "record at a higher sample rate")
     else:
-        pulse = pulse_parameters(x, fs, coupling_tau_s)
+        pulse = pulse_parameters(x, fs, coupling_tau_s, force=force_pulse)
+        if force_pulse and pulse.two_level and not state_levels(x).two_level:
+            warnings.append("pulse analysis forced: the wave is not two-level, so duty cycle and edge times "
+                            "use its histogram's low and high modes as states — read them as indications")
+        if not pulse.two_level:
+            # rich in harmonics but not two-level: the result says why duty and edges are missing
+            # (in extra, shown by measure beside the missing values; not a warning, since a distorted
+            # sine is not a mistake)
+            frac = state_levels(x).fraction_in_states
+            extra["pulse_not_given"] = (f"not a two-level wave: {100 * frac:.0f} % of the samples lie near two "
+                                        "levels, 75 % are needed (slow edges, or not a pulse; --pulse gives "
+                                        "them anyway)")
     method = "multi-harmonic fit"
     if pulse.two_level and pulse.edge_period_s and pulse.edge_period_u_s is not None:
         # Two-level wave: its sharp edges put harmonics far above H (and, sampled without an
@@ -206,8 +254,15 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     else:
         snr = dist.snr_fit_db
     if snr < _LOW_SNR_DB:
-        warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
-                        "raise the signal level or shorten the leads")
+        # the fit's residual holds every harmonic above H too: on a square that is not noise
+        snr_noise = _snr_without_harmonics(x, fs, f, fit.orders)
+        if snr_noise >= _LOW_SNR_DB:
+            warnings.append(f"harmonics above H = {int(fit.orders.max())} carry most of what the fit leaves "
+                            f"(signal to residual {snr:.1f} dB; to noise alone {snr_noise:.0f} dB), so the "
+                            "uncertainties are wide — raise --harmonics for tighter ones")
+        else:
+            warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
+                            "raise the signal level or shorten the leads")
     h_eff = max_harmonic_order(f, fs, harmonics)
     if harmonics >= 2 and h_eff < 2:
         warnings.append(f"no harmonic lies below Nyquist ({_fmt(fs / 2, 'Hz')}) — THD not given")
@@ -258,7 +313,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             "state_low": pulse.state_low, "state_high": pulse.state_high,
             "duty_cycle_u_pct": pulse.duty_cycle_u_pct,
             "rise_time_u_s": pulse.rise_time_u_s, "fall_time_u_s": pulse.fall_time_u_s,
-            "overshoot_pct": pulse.overshoot_pct, "undershoot_pct": pulse.undershoot_pct,
+            "overshoot_pct": _beyond_one_step(pulse.overshoot_pct, x, pulse),
+            "undershoot_pct": _beyond_one_step(pulse.undershoot_pct, x, pulse),
             "pulse_periods": pulse.n_periods,
             "pulse_period_s": pulse.period_s,
             "coupling_tau_s": pulse.coupling_tau_s,
@@ -294,6 +350,45 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         extra={k: (_f(v) if isinstance(v, (float, np.floating)) else v) for k, v in extra.items()})
 
 
+def _snr_without_harmonics(x: np.ndarray, fs: float, f: float, orders: np.ndarray) -> float:
+    """Fitted-orders power over broadband noise (dB), the noise read from the spectrum away from every
+    harmonic of ``f`` up to Nyquist (Hann window; ±3 bins around each harmonic hold its main lobe).
+
+    Cheap (one FFT of at most 2^18 samples) and used only to tell real noise from harmonics above H.
+    """
+    seg = np.asarray(x[: 1 << 18], dtype=float)
+    n = seg.size
+    if n < 64 or not f or f <= 0:
+        return -math.inf
+    spec = np.abs(np.fft.rfft((seg - seg.mean()) * np.hanning(n))) ** 2
+    freqs = np.fft.rfftfreq(n, 1.0 / fs)
+    k = np.round(freqs / f)
+    near = np.abs(freqs - k * f) <= 3.0 * fs / n
+    noise_bins = spec[~near & (k >= 1)]
+    if noise_bins.size < 8:
+        return -math.inf
+    noise = float(np.mean(noise_bins)) * spec.size
+    sig = float(np.sum(spec[near & np.isin(k, orders)]))
+    if noise <= 0:
+        return math.inf
+    return 10.0 * math.log10(sig / noise) if sig > 0 else -math.inf
+
+
+def _beyond_one_step(pct: float | None, x: np.ndarray, pulse: PulseResult) -> float | None:
+    """An overshoot (or undershoot) in %, or 0 when it is no more than one quantisation step.
+
+    One code above the high state is the recorder's resolution, not a ring of the source (IEEE 181
+    overshoot is an aberration of the waveform; a step of the grid cannot show one).
+    """
+    if pct is None or pulse.state_low is None or pulse.state_high is None:
+        return pct
+    amplitude = pulse.state_high - pulse.state_low
+    q = quantisation_step(x)
+    if amplitude > 0 and q > 0 and pct * amplitude / 100.0 <= q * (1.0 + 1e-9):
+        return 0.0
+    return pct
+
+
 def _f(v: Any) -> float | None:
     """A plain Python float (JSON-safe type) or None."""
     return None if v is None else float(v)
@@ -327,7 +422,7 @@ def _clip_warning(clip) -> str:
 
 
 def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None = None,
-            channels: ChannelSpec | None = None) -> Measurement:
+            channels: ChannelSpec | None = None, force_pulse: bool = False) -> Measurement:
     """Measure every (or the chosen) channel of a capture.
 
     Parameters
@@ -341,6 +436,8 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         The channels to measure (default: all), in that order, by the rule of
         :func:`~benchfit.capture.capture.channel_keys` — the same as :func:`benchfit.load`:
         names (case-insensitive), 0-based ints, 1-based numbers as text, ``"drive,output"``.
+    force_pulse : bool
+        Analyse every channel as a pulse even when it is not two-level (see :func:`measure_channel`).
 
     Returns
     -------
@@ -384,7 +481,7 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
             notes += (DEFAULT_TIMEBASE_NOTE,)
         if unit == "V" and gains is not None and i < len(gains) and gains[i]:
             full_scale = abs(float(gains[i]))
-            if gains_u is not None and i < len(gains_u):
+            if gains_u is not None and i < len(gains_u) and gains_u[i] is not None:
                 gain_u = float(gains_u[i])
             else:
                 gain_u = DEFAULT_GAIN_U_REL
@@ -397,6 +494,6 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
             timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm_effective,
             coupling_tau_s=cal.coupling_tau_s, full_scale=full_scale, gain_u_rel=gain_u,
             extra_warnings=notes, timebase_calibrated=tb_cal, timebase_source=tb_source,
-            gain_source=gain_source, distortion_floor_pct=cal.distortion_floor_pct))
+            gain_source=gain_source, distortion_floor_pct=cal.distortion_floor_pct, force_pulse=force_pulse))
     return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
                        duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)

@@ -55,7 +55,7 @@ SAFETY_NOTES: tuple[str, ...] = (
     "A computer's audio input tolerates about 1–2 V peak and shares its ground with the computer "
     "and, through it, often with mains earth. Use an attenuator or isolation transformer and "
     "check the level before connecting; never connect mains-derived circuits directly.",
-    "Chokes store energy: breaking the current through the 150 mH inductors produces an inductive "
+    "Chokes store energy: breaking the current through an inductor produces an inductive "
     "voltage spike. Switch the supply off and let the circuit settle before changing parts.",
     "Use a current-limited bench supply at the stated voltage, and check electrolytic capacitor "
     "polarity and voltage rating before power-up.",
@@ -342,8 +342,26 @@ def build_report(*, unit: str, spec: Spec, as_left: Sequence[tuple[Any, Any]],
         "methods": list(METHODS) + ([DRIFT_METHOD] if drift is not None else []),
         "warnings": warnings,
         "notes": ([spec.notes] if spec.notes else []) + list(notes),
-        "safety": list(SAFETY_NOTES),
+        "safety": _safety_notes(left_fits + found_fits, spec),
     }
+
+
+def _safety_notes(fits: Sequence[Mapping[str, Any]], spec: Spec) -> list[str]:
+    """The cautions, with this unit's own inductance and supply where the fit and spec give them.
+
+    Nothing is assumed about the unit: without a fitted L the choke note stays general, and the
+    supply is named only when the spec's conditions state it (``supply_v``).
+    """
+    notes = list(SAFETY_NOTES)
+    inductances = sorted({float(f["fit"]["parameters"]["L"]["value"]) for f in fits
+                          if (f["fit"].get("parameters") or {}).get("L", {}).get("value")})
+    if inductances:
+        shown = " and ".join(f"{v * 1e3:.3g} mH" for v in inductances[:2])
+        notes[1] = notes[1].replace("through an inductor", f"through the inductor (fitted L = {shown})")
+    supply = spec.conditions.get("supply_v")
+    if isinstance(supply, (int, float)) and not isinstance(supply, bool):
+        notes[2] = notes[2].replace("at the stated voltage", f"at the stated {supply:g} V")
+    return notes
 
 
 # --- one unit, end to end (I/O) ----------------------------------------------------------
@@ -423,8 +441,39 @@ def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
     return fn, kwargs
 
 
-def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: Sequence[Mapping[str, Any]]
-             ) -> list[dict[str, str]]:
+def _as_found_overlay(capture: Any, idx: int, f: float | None, as_found: Sequence[tuple[Any, Any]],
+                      name: str) -> tuple[Any, Any] | None:
+    """The as-found samples of the same channel, shifted to line up with the as-left wave.
+
+    The shift is the lag (within one period of the as-left frequency) of the largest correlation
+    over the first four periods; without a frequency, or a matching as-found channel, no overlay.
+    """
+    import numpy as np
+
+    if not f or f <= 0:
+        return None
+    for found, _ in as_found:
+        try:
+            j = found.channel_index(name)
+        except Exception:  # noqa: BLE001 - no such channel: nothing to overlay
+            continue
+        if found.units[j] != capture.units[idx] or found.sample_rate != capture.sample_rate:
+            continue
+        period = int(round(capture.sample_rate / f))
+        window = min(4 * period, capture.n_samples, found.n_samples - period)
+        if period < 2 or window < period:
+            continue
+        a = np.asarray(capture.samples[idx][:window], dtype=float)
+        b = np.asarray(found.samples[j], dtype=float)
+        a = a - a.mean()
+        lags = [float(np.dot(a, b[d:d + window] - b[d:d + window].mean())) for d in range(period)]
+        d = int(np.argmax(lags))
+        return found, b[d:]
+    return None
+
+
+def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: Sequence[Mapping[str, Any]],
+             as_found: Sequence[tuple[Any, Any]] = ()) -> list[dict[str, str]]:
     """Inline SVG figures: waveform (with fitted model), harmonic spectrum, fit residuals."""
     from benchfit.report import figures
 
@@ -449,9 +498,53 @@ def _figures(as_left: Sequence[tuple[Any, Any]], fits: Sequence[Any], results: S
                                                     model_label=label or "model"))})
         out.append({"title": f"Harmonic spectrum — {capture.source or 'capture'}, channel {name}",
                     "svg": str(figures.spectrum_svg(measurement.channels[idx]))})
+        overlay = _as_found_overlay(capture, idx, ch.frequency_hz, as_found, name)
+        if overlay is not None:
+            found_capture, shifted = overlay
+            out.append({"title": f"As found ({found_capture.source or 'capture'}) and as left, channel {name}, "
+                                 "aligned on the first period",
+                        "svg": str(figures.waveform_svg(capture, channel=idx, model=shifted, periods=4,
+                                                        model_label="as found"))})
     for f in fits:
-        out.append({"title": f"Fit of the {f.model} model — {f.file}", "svg": str(figures.fit_svg(f))})
+        units = {u for capture, _ in as_left if capture.source == f.file for u in capture.units}
+        out.append({"title": f"Fit of the {f.model} model — {f.file}",
+                    "svg": str(figures.fit_svg(f, unit=units.pop() if len(units) == 1 else None))})
     return out
+
+
+def _map_channels(capture: Any, channel_map: Mapping[str, str]) -> Any:
+    """The capture with channels renamed as ``channel_map`` says (spec name → capture channel)."""
+    from dataclasses import replace
+
+    if not channel_map:
+        return capture
+    names = list(capture.channel_names)
+    for spec_name, key in channel_map.items():
+        idx = capture.channel_index(key)
+        clash = [n for i, n in enumerate(names) if i != idx and n.lower() == spec_name.lower()]
+        if clash:
+            raise SpecError(f"--channel {spec_name}={key}: {capture.source} already has a channel named "
+                            f"{clash[0]!r} — map another name, or leave --channel out")
+        names[idx] = spec_name
+    return replace(capture, channel_names=tuple(names))
+
+
+def _check_channels(capture: Any, spec: Spec) -> Any:
+    """Refuse a capture that lacks a channel the spec's measured limits are taken from."""
+    channels = [{"name": n} for n in capture.channel_names]
+    for lim in spec.limits:
+        if lim.quantity in FITTED_QUANTITIES or _channel_index(lim, channels) is not None:
+            continue
+        if isinstance(lim.channel, int):
+            raise SpecError(f"{capture.source}: the spec takes {lim.quantity} from channel {lim.channel + 1}, but "
+                            f"the capture has {capture.n_channels} ({', '.join(capture.channel_names)}) — "
+                            "correct channel in the spec")
+        wanted = "output" if lim.channel is None else lim.channel
+        raise SpecError(
+            f"{capture.source}: no channel {wanted!r} for the spec's {lim.quantity} limit (the capture has "
+            f"{', '.join(capture.channel_names)}) — map one with --channel {wanted}=CH (a name or 1-based "
+            f"number, e.g. --channel {wanted}={capture.n_channels}), or set channel in the spec")
+    return capture
 
 
 def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Spec,
@@ -459,7 +552,8 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
              out_dir: str | Path = ".", fit: FitOptions | None = None,
              log_path: str | Path | None = None, with_figures: bool = True,
              progress: Callable[[str], None] | None = None, defer_log: bool = False,
-             drift: str | Path | Mapping[str, Any] | None = None) -> UnitRun:
+             drift: str | Path | Mapping[str, Any] | None = None,
+             channel_map: Mapping[str, str] | None = None) -> UnitRun:
     """Measure (and fit) one unit's captures, write its HTML report and JSON twin, log the run.
 
     Parameters
@@ -491,6 +585,15 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     drift : path or mapping, optional
         A drift run of the unit: the JSON written by ``benchfit drift --json``, or the long
         capture itself (then analysed here at 1 s intervals), or the run as a dict.
+    channel_map : mapping of str to str, optional
+        ``{spec channel name: capture channel}`` (a name or a 1-based number): the capture's
+        channel is renamed to the spec's name before it is measured (``--channel output=2``).
+
+    Raises
+    ------
+    SpecError
+        A capture lacks a channel the spec's limits need (a setup mistake, not a failed unit):
+        the message names the capture's channels and the ``--channel`` mapping that fixes it.
 
     Returns
     -------
@@ -512,7 +615,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     for paths, group in ((captures, left), (as_found, found)):
         for p in paths:
             step(f"measuring {p}")
-            capture = benchfit.load(p)
+            capture = _check_channels(_map_channels(benchfit.load(p), channel_map or {}), sp)
             group.append((capture, benchfit.measure(capture)))
     fits_left, fits_found, fit_errors = [], [], []
     if fit_fn is not None:
@@ -532,7 +635,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     report = build_report(unit=unit, spec=sp, as_left=left, as_found=found, fits_left=fits_left,
                           fits_found=fits_found, fit_errors=fit_errors, operator=operator, drift=drift_run)
     step("drawing figures and writing the report")
-    figs = _figures(left, fits_left, report["results"]) if with_figures else []
+    figs = _figures(left, fits_left, report["results"], as_found=found) if with_figures else []
     if with_figures and drift_run is not None and drift_run.get("stability"):
         from benchfit.report import figures
 

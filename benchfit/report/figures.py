@@ -35,8 +35,8 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["FigureSVG", "waveform_svg", "spectrum_svg", "fit_svg", "drift_frequency_svg", "allan_svg",
-           "save_figure"]
+__all__ = ["FigureSVG", "waveform_svg", "spectrum_svg", "measurement_svg", "fit_svg", "drift_frequency_svg",
+           "allan_svg", "save_figure"]
 
 # our own plain palette: ink for data, rust for models, moss for residuals, slate for grid
 _INK = "#22313f"
@@ -77,10 +77,29 @@ def _new_figure(width_in: float, height_in: float):
     return Figure(figsize=(width_in, height_in), dpi=100, layout="constrained")
 
 
+def _plain_text(fig) -> None:
+    """Titles, axis labels, legends and notes are plain text: a channel named "$x^$" is not mathtext.
+
+    Only the tick labels keep mathtext (the log axes write their decades as 10^n with it); they
+    are made by the axis formatters, never from user text.
+    """
+    from matplotlib.text import Text
+
+    ticks = set()
+    for ax in fig.axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            ticks.update(axis.get_ticklabels(which="both"))
+            ticks.add(axis.get_offset_text())
+    for text in fig.findobj(Text):
+        if text not in ticks:
+            text.set_parse_math(False)
+
+
 def _to_svg(fig) -> FigureSVG:
     import matplotlib
 
     buf = io.StringIO()
+    _plain_text(fig)
     with matplotlib.rc_context(_RC):
         fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "benchfit"})
     out = FigureSVG(buf.getvalue())
@@ -206,7 +225,63 @@ def spectrum_svg(channel_measurement) -> str:
         return _to_svg(fig)
 
 
-def fit_svg(fit_result) -> str:
+def measurement_svg(capture, measurement, periods: int = 4) -> str:
+    """One figure for ``measure --plot``: per channel, a few periods of the waveform and its harmonics.
+
+    Parameters
+    ----------
+    capture : Capture
+        The samples that were measured.
+    measurement : Measurement
+        Its result (harmonic amplitudes in the channel's unit, fundamental frequency in Hz).
+    periods : int
+        Periods of the fundamental shown (the whole record when there is no frequency).
+
+    Returns
+    -------
+    str
+        Self-contained SVG text (a :class:`FigureSVG`; PNG through :func:`save_figure`).
+    """
+    import matplotlib
+
+    channels = list(measurement.channels)
+    with matplotlib.rc_context(_RC):
+        fig = _new_figure(9.0, 2.6 * len(channels))
+        grid = fig.add_gridspec(len(channels), 2, width_ratios=(3, 2))
+        for row, ch in enumerate(channels):
+            idx = capture.channel_index(ch.name)
+            x = np.asarray(capture.samples[idx], dtype=float)
+            fs = capture.sample_rate
+            f = ch.frequency_hz
+            n_show = min(x.size, max(16, int(math.ceil(periods * fs / f)))) if f else x.size
+            scale, tu = _time_unit(n_show / fs)
+            ax = fig.add_subplot(grid[row, 0])
+            ax.plot((capture.t0 + np.arange(n_show) / fs) * scale, x[:n_show], color=_INK, lw=1.1)
+            ax.set_xlabel(f"time ({tu})")
+            ax.set_ylabel(f"{ch.name} ({ch.unit})")
+            ax.set_title(ch.name + (f" — {periods} periods of {f:.6g} Hz" if f else " — no period found"),
+                         loc="left")
+            ax_h = fig.add_subplot(grid[row, 1])
+            hs = list(ch.harmonics)
+            if hs:
+                orders = np.array([h.order for h in hs])
+                amp = np.array([max(h.amplitude, 1e-300) for h in hs])
+                ax_h.vlines(orders, amp.min() * 0.3, amp, color=_INK, lw=2.2)
+                ax_h.plot(orders, amp, "o", color=_INK, ms=3.5)
+                ax_h.set_yscale("log")
+                ax_h.set_ylim(amp.min() * 0.3, amp.max() * 3)
+                ax_h.set_xticks(orders)
+            else:
+                ax_h.text(0.5, 0.5, "no harmonics measured", ha="center", va="center", transform=ax_h.transAxes,
+                          color=_INK)
+            ax_h.set_xlabel("harmonic order")
+            ax_h.set_ylabel(f"peak amplitude ({ch.unit})")
+            ax_h.set_title("harmonics" + (f" — THD {ch.thd_pct:.3g} %" if ch.thd_pct is not None else ""),
+                           loc="left")
+        return _to_svg(fig)
+
+
+def fit_svg(fit_result, unit: str | None = None) -> str:
     """Figure of a fit: data and model over time, |H| and phase at the harmonics, residuals.
 
     Parameters
@@ -214,6 +289,9 @@ def fit_svg(fit_result) -> str:
     fit_result : FitResult
         Uses ``fit_result.curves`` (time in s; complex responses at the harmonic
         frequencies in Hz; residuals on the points actually fitted).
+    unit : str, optional
+        Unit of the captured samples (``"V"`` or ``"FS"``), shown on the waveform and residual
+        axes; None when not known (the axes then say "capture unit").
 
     Returns
     -------
@@ -224,6 +302,7 @@ def fit_svg(fit_result) -> str:
 
     c = fit_result.curves
     has_h = c.harmonic_hz.size > 0
+    su = unit or "capture unit"  # the samples' unit; H of a two-channel fit is V/V
     rows = 3 if has_h else 2
     with matplotlib.rc_context(_RC):
         fig = _new_figure(7.0, 2.3 * rows)
@@ -239,7 +318,7 @@ def fit_svg(fit_result) -> str:
                 ax_t.plot(c.time_s * scale, c.model, color=_MODEL, lw=1.0, ls="--", label="model")
             ax_t.set_xlabel(f"time ({tu})")
             ax_t.legend(loc="upper right")
-        ax_t.set_ylabel("ring (baseline included)" if fit_result.method == "ringdown" else "output")
+        ax_t.set_ylabel(f"ring, baseline included ({su})" if fit_result.method == "ringdown" else f"output ({su})")
         nrmse = fit_result.quality.nrmse
         quality = (f" — NRMSE {100 * nrmse:.3g} %" if isinstance(nrmse, (int, float)) and math.isfinite(nrmse)
                    else "")
@@ -255,12 +334,10 @@ def fit_svg(fit_result) -> str:
             else:
                 ax_m.plot(f, hm, "o", color=_INK, ms=3.5, label="measured")
             has_model = c.h_model.size == f.size
+            # phases wrapped to (−180°, 180°], the range a phase meter shows; both series the same way
+            ph_meas = np.degrees(np.angle(c.h_measured))
             if has_model:
-                # unwrap the model's phase; show each measured phase in the turn nearest it
-                ph_model = np.degrees(np.unwrap(np.angle(c.h_model)))
-                ph_meas = ph_model + np.degrees(np.angle(c.h_measured / c.h_model))
-            else:
-                ph_meas = np.degrees(np.unwrap(np.angle(c.h_measured)))
+                ph_model = np.degrees(np.angle(c.h_model))
             ax_p.plot(f, ph_meas, "o", color=_INK, ms=3.5, label="measured")
             if has_model:
                 ax_m.plot(f, np.abs(c.h_model), "s", mfc="none", color=_MODEL, ms=5, label="model")
@@ -270,11 +347,11 @@ def fit_svg(fit_result) -> str:
                 ax.set_xscale("log")
                 ax.set_xlabel("frequency (Hz)")
             if fit_result.method == "one-channel":  # output phasors: the drive level is unknown
-                ax_m.set_ylabel("output |Y_k| (peak)")
+                ax_m.set_ylabel(f"output |Y_k| ({su} peak)")
                 ax_m.set_title("output harmonics", loc="left")
                 ax_p.set_title("output phase", loc="left")
             else:
-                ax_m.set_ylabel("|H|")
+                ax_m.set_ylabel("|H| (V/V)")
                 ax_m.set_title("magnitude at the harmonics", loc="left")
                 ax_p.set_title("phase at the harmonics", loc="left")
             ax_p.set_ylabel("phase (°)")
@@ -290,7 +367,8 @@ def fit_svg(fit_result) -> str:
             ax_r.set_xlabel("fitted point (real parts at the harmonics, then imaginary parts)")
         else:
             ax_r.set_xlabel("fitted point")
-        ax_r.set_ylabel("residual")
+        in_h = has_h and r.size == 2 * c.harmonic_hz.size and fit_result.method != "one-channel"
+        ax_r.set_ylabel("residual (V/V)" if in_h else f"residual ({su})")
         ax_r.set_title("residuals (data − model)", loc="left")
         return _to_svg(fig)
 
@@ -365,7 +443,7 @@ def allan_svg(drift_run) -> str:
         return _to_svg(fig)
 
 
-def save_figure(svg_or_fig, path: str | Path) -> Path:
+def save_figure(svg_or_fig, path: str | Path, *, overwrite: bool = True) -> Path:
     """Write a figure to ``path`` as SVG or PNG, chosen by the suffix.
 
     Parameters
@@ -375,6 +453,9 @@ def save_figure(svg_or_fig, path: str | Path) -> Path:
         without a figure can only be written as ``.svg``.
     path : str or Path
         Target file; suffix ``.svg`` or ``.png``.
+    overwrite : bool, default True
+        False: never replace a file, even one made while the figure was drawn (the file is
+        created exclusively at the moment of writing).
 
     Returns
     -------
@@ -390,16 +471,24 @@ def save_figure(svg_or_fig, path: str | Path) -> Path:
     if suffix not in (".svg", ".png"):
         raise BenchfitError(f"{p}: unknown figure type {p.suffix!r} — use a .svg or .png file name")
     fig = getattr(svg_or_fig, "figure", None) if isinstance(svg_or_fig, str) else svg_or_fig
+    from benchfit.capture.fileio import write_bytes_new
+
     try:
         if suffix == ".svg":
             text = str(svg_or_fig) if isinstance(svg_or_fig, str) else str(_to_svg(fig))
-            p.write_text(text, encoding="utf-8")
+            data = text.encode("utf-8")
         else:
             if fig is None:
                 raise BenchfitError(f"{p}: this SVG text carries no figure to render as PNG — "
                                     "save it as .svg, or pass the figure function's result unchanged")
+            buf = io.BytesIO()
             with matplotlib.rc_context(_RC):
-                fig.savefig(p, format="png", dpi=150, metadata={"Software": "benchfit"})
+                fig.savefig(buf, format="png", dpi=150, metadata={"Software": "benchfit"})
+            data = buf.getvalue()
+        write_bytes_new(p, data, overwrite=overwrite)
+    except FileExistsError as e:
+        raise BenchfitError(f"{p}: file exists (it appeared while the figure was drawn) — choose another "
+                            "--plot or add --overwrite") from e
     except OSError as e:
         raise BenchfitError(f"{p}: cannot write the figure ({e.strerror}) — check the folder exists "
                             "and is writable") from e

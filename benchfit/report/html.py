@@ -13,6 +13,7 @@ place of its uncertainty, JCGM 100:2008 7.2.6); the JSON twin keeps the full val
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 import re
@@ -91,29 +92,94 @@ def format_u(u: float | None, unit: str = "") -> str:
 
 def format_limits(lower: float | None, upper: float | None, unit: str) -> str:
     """"a … b unit", "≤ b unit" or "≥ a unit"."""
+    # a limit is shown exactly as the spec gives it (up to 12 digits): 2.00001 must not read as 2
     if lower is not None and upper is not None:
-        return f"{format_value(lower, unit)} … {format_value(upper, unit)}"
+        return f"{format_value(lower, unit, digits=12)} … {format_value(upper, unit, digits=12)}"
     if upper is not None:
-        return f"≤ {format_value(upper, unit)}"
+        return f"≤ {format_value(upper, unit, digits=12)}"
     if lower is not None:
-        return f"≥ {format_value(lower, unit)}"
+        return f"≥ {format_value(lower, unit, digits=12)}"
     return "—"
 
 
-_CONDITION_UNITS = (("_ohm", "ohm"), ("_v", "V"), ("_a", "A"), ("_hz", "Hz"), ("_s", "s"), ("_f", "F"),
-                    ("_h", "H"), ("_pct", "%"), ("_c", "°C"))
+_CONDITION_UNITS = (("_ohm", "ohm", "resistance"), ("_v", "V", "voltage"), ("_a", "A", "current"),
+                    ("_hz", "Hz", "frequency"), ("_s", "s", "time"), ("_f", "F", "capacitance"),
+                    ("_h", "H", "inductance"), ("_pct", "%", "percentage"), ("_c", "°C", "temperature"))
 
 
 def format_condition(key: str, value: Any) -> tuple[str, str]:
-    """(label, text) of a test condition; a number whose key ends in a unit (``load_ohm``) gets it."""
+    """(label, text) of a test condition; a number whose key ends in a unit (``load_ohm``) gets it,
+    and its label names the quantity instead of the unit ("load resistance", not "load ohm")."""
     label = key.replace("_", " ")
     if isinstance(value, (int, float)) and not isinstance(value, bool):
-        for suffix, unit in _CONDITION_UNITS:
-            if key.lower().endswith(suffix):
+        for suffix, unit, quantity in _CONDITION_UNITS:
+            if key.lower().endswith(suffix) and len(key) > len(suffix):
+                label = f"{key[:-len(suffix)].replace('_', ' ')} {quantity}"
                 if unit == "°C":
                     return label, f"{value:g} °C"
-                return label, format_value(float(value), unit)
+                return label, format_value(float(value), unit, digits=12)
     return label, str(value)
+
+
+def format_change(row: Mapping[str, Any]) -> str:
+    """As-found → as-left change of a results row: the difference, signed, and its expanded uncertainty
+    (the two U combined in quadrature: separate measurements, taken as uncorrelated — GUM 5.1.2)."""
+    found, left = row.get("as_found") or {}, row.get("as_left") or {}
+    a, b = found.get("value"), left.get("value")
+    if not all(isinstance(v, (int, float)) and math.isfinite(v) for v in (a, b)):
+        return "—"
+    unit = row.get("unit") or ""
+    d = float(b) - float(a)
+    ua, ub = found.get("expanded_u"), left.get("expanded_u")
+    u = math.hypot(ua, ub) if isinstance(ua, (int, float)) and isinstance(ub, (int, float)) else None
+    sign = "+" if d > 0 else ("−" if d < 0 else "±")
+    text = f"{sign}{format_value(abs(d), unit, u)}"
+    return f"{text} (U {format_u(u, unit)})" if u is not None else text
+
+
+def css_string(text: Any) -> Any:
+    """Text for the inside of a double-quoted CSS string in a <style> element (CSS Syntax 3, 4.3.5).
+
+    Every character outside letters, digits, space and a few safe marks becomes a CSS escape
+    (``\\3C `` for ``<``), so a serial can neither end the string nor the style element.
+    """
+    from markupsafe import Markup
+
+    out = []
+    for ch in str(text):
+        if ch.isalnum() or ch in " -_.:·,+()":
+            out.append(ch)
+        else:
+            out.append(f"\\{ord(ch):X} ")
+    return Markup("".join(out))
+
+
+def path_breaks(path: Any) -> Any:
+    """A file path as HTML that may wrap only after a separator (``/``, ``\\``, ``_``, ``-``, ``.``).
+
+    The text is escaped, then a ``<wbr>`` follows each separator, so a long path breaks between its
+    parts instead of in the middle of a word (with ``overflow-wrap: break-word`` as the last resort).
+    """
+    import html as _html
+
+    from markupsafe import Markup
+
+    text = _html.escape(str(path))
+    return Markup(re.sub(r"([/\\_\-.])", r"\1<wbr>", text))
+
+
+#: names a technician reads in the parts table, for the fit's parameter and derived-value keys
+_PART_LABELS = {
+    "L": "L, inductance", "C": "C, capacitance", "Rs": "Rs, series resistance (source and choke)",
+    "Resr": "ESR of the capacitor", "Rload": "Rload, load resistance",
+    "resonant_frequency_hz": "resonant frequency f₀", "q_factor": "Q factor",
+    "damped_frequency_hz": "damped (ringing) frequency", "decay_rate_per_s": "decay rate α",
+}
+
+
+def part_label(key: str) -> str:
+    """The parts table's name for a fit key (``q_factor`` → "Q factor"); unknown keys keep their name."""
+    return _PART_LABELS.get(key, str(key).replace("_", " "))
 
 
 _PROLOG = re.compile(r"<\?xml[^>]*\?>\s*", re.S)
@@ -138,6 +204,10 @@ def _environment():
     env.filters["limits"] = format_limits
     env.globals["condition"] = format_condition
     env.filters["unit"] = lambda unit: _unit_text("", unit)
+    env.filters["part_label"] = part_label
+    env.filters["path"] = path_breaks
+    env.filters["css_string"] = css_string
+    env.filters["change"] = format_change
     env.filters["slug"] = lambda text: re.sub(r"[^a-z]+", "-", str(text).lower()).strip("-")
     return env
 
@@ -156,9 +226,16 @@ def render_html(report: Mapping[str, Any], figures: Sequence[Mapping[str, str]] 
     return template.render(r=report, figures=figs)
 
 
+#: longest serial kept whole in a report's file name (the report itself always shows the whole serial)
+_MAX_SERIAL_IN_NAME = 80
+
+
 def report_stem(unit: str, created_utc: str) -> str:
     """File stem ``<serial>_<YYYYmmddTHHMMSSZ>`` with characters unsafe in file names replaced."""
     safe = re.sub(r"[^A-Za-z0-9._-]+", "_", unit).strip("._") or "unit"
+    if len(safe) > _MAX_SERIAL_IN_NAME:  # file systems allow 255 bytes a name: cut, keep it unique by a hash
+        digest = hashlib.sha256(unit.encode("utf-8")).hexdigest()[:10]
+        safe = f"{safe[:_MAX_SERIAL_IN_NAME]}-{digest}"
     stamp = re.sub(r"[^0-9TZ]", "", created_utc)
     return f"{safe}_{stamp}"
 
@@ -177,17 +254,32 @@ def write_report(report: Mapping[str, Any], html_text: str, out_dir: str | Path)
         html_path, json_path = out / f"{name}.html", out / f"{name}.json"
         if html_path.exists() or json_path.exists():
             continue
+        created = False
         try:
             with html_path.open("x", encoding="utf-8") as f:
+                created = True
                 f.write(html_text)
         except FileExistsError:
             continue
         except OSError as e:
-            raise BenchfitError(f"{html_path}: cannot write the report ({e.strerror}) — check --out") from e
+            if created:  # made by the open above (then the disk filled): no half page stays behind
+                try:
+                    html_path.unlink()
+                except OSError:
+                    pass
+            raise BenchfitError(f"{html_path}: cannot write the report ({e.strerror}) — check --out and its "
+                                "free space") from e
         try:
             with json_path.open("x", encoding="utf-8") as f:
                 f.write(json_text + "\n")
         except OSError as e:
-            raise BenchfitError(f"{json_path}: cannot write the JSON twin ({e}) — check --out") from e
+            # a report without its twin is half a record: the HTML made a moment ago goes too
+            for half in (json_path, html_path):
+                try:
+                    half.unlink()
+                except OSError:
+                    pass
+            raise BenchfitError(f"{json_path}: cannot write the JSON twin ({e.strerror or e}; the HTML was "
+                                "removed too) — check --out and its free space") from e
         return html_path, json_path
     raise BenchfitError(f"{out}: 999 reports named {stem} already exist — choose another --out")

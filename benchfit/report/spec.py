@@ -78,6 +78,7 @@ conditional pass exits 0).
 
 from __future__ import annotations
 
+import datetime
 import math
 import tomllib
 from dataclasses import dataclass, field
@@ -262,12 +263,30 @@ class Decision:
 
 # --- parsing ---------------------------------------------------------------------------
 
+#: no limit of this tool's quantities comes near this magnitude (1e15 Hz, F, Ω …); a larger number is a
+#: typing mistake, and sums such as nominal + tolerance would overflow (common practice, no source)
+_MAX_MAGNITUDE = 1e15
+
+
+def _shown(raw: Any) -> str:
+    """``repr`` of a spec value for a one-line message, cut to 40 characters."""
+    text = repr(raw)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
 def _number(where: str, key: str, raw: Any) -> float:
     if isinstance(raw, bool) or not isinstance(raw, (int, float)):
-        raise SpecError(f"{where}: {key} = {raw!r} is not a number — write a plain number in SI units, e.g. {key} = 0.25")
-    value = float(raw)
+        raise SpecError(f"{where}: {key} = {_shown(raw)} is not a number — write a plain number in SI units, "
+                        f"e.g. {key} = 0.25")
+    try:
+        value = float(raw)
+    except OverflowError:  # an integer with hundreds of digits
+        value = math.inf
     if not math.isfinite(value):
-        raise SpecError(f"{where}: {key} = {raw!r} is not finite — give a finite number")
+        raise SpecError(f"{where}: {key} = {_shown(raw)} is not finite — give a finite number")
+    if abs(value) > _MAX_MAGNITUDE:
+        raise SpecError(f"{where}: {key} = {_shown(raw)} is beyond any limit of this tool (|value| > "
+                        f"{_MAX_MAGNITUDE:.0e}) — check the number and its SI unit")
     return value
 
 
@@ -280,8 +299,9 @@ def _parse_limit(where: str, raw: Any) -> Limit:
     quantity = raw.get("quantity")
     if quantity is None:
         raise SpecError(f"{where}.quantity: missing — name what is checked, e.g. quantity = \"frequency_hz\"")
-    if quantity not in QUANTITY_UNITS:
-        raise SpecError(f"{where}.quantity: unknown quantity {quantity!r} — use one of {', '.join(QUANTITY_UNITS)}")
+    if not isinstance(quantity, str) or quantity not in QUANTITY_UNITS:
+        raise SpecError(f"{where}.quantity: unknown quantity {_shown(quantity)} — use one of "
+                        f"{', '.join(QUANTITY_UNITS)}")
     where_q = f"{where} ({quantity})"
     nums = {k: _number(where_q, k, raw[k]) for k in ("nominal", "tolerance", "tolerance_pct", "min", "max")
             if k in raw}
@@ -311,7 +331,7 @@ def _parse_limit(where: str, raw: Any) -> Limit:
     channel = raw.get("channel")
     if channel is not None:
         if isinstance(channel, bool) or not isinstance(channel, (str, int)):
-            raise SpecError(f"{where_q}.channel: {channel!r} — give a channel name or a 1-based number")
+            raise SpecError(f"{where_q}.channel: {_shown(channel)} — give a channel name or a 1-based number")
         if isinstance(channel, int):
             if channel < 1:
                 raise SpecError(f"{where_q}.channel: {channel} — channel numbers start at 1")
@@ -324,11 +344,11 @@ def _parse_limit(where: str, raw: Any) -> Limit:
             raise SpecError(f"{where_q}.unit: only level quantities (amplitude, vdc, vrms, vpp) take a unit "
                             f"— {quantity} is always in {unit or 'no unit'}; remove the key")
         if raw["unit"] not in ("V", "FS"):
-            raise SpecError(f"{where_q}.unit: {raw['unit']!r} — use \"V\" or \"FS\"")
+            raise SpecError(f"{where_q}.unit: {_shown(raw['unit'])} — use \"V\" or \"FS\"")
         unit = raw["unit"]
     label = raw.get("label", "")
     if not isinstance(label, str):
-        raise SpecError(f"{where_q}.label: {label!r} — give text")
+        raise SpecError(f"{where_q}.label: {_shown(label)} — give text")
     return Limit(quantity=quantity, lower=lower, upper=upper, nominal=nominal, channel=channel,
                  unit=unit, label=label or quantity)
 
@@ -337,7 +357,7 @@ def parse_spec(data: Mapping[str, Any], where: str = "spec") -> Spec:
     """Build a :class:`Spec` from the parsed TOML mapping; ``where`` names the file in errors."""
     for key in data:
         if key not in _TOP_KEYS:
-            raise SpecError(f"{where}: unknown table {key!r} — use [spec], [conditions] and [[limit]]")
+            raise SpecError(f"{where}: unknown table {_shown(key)} — use [spec], [conditions] and [[limit]]")
     head = data.get("spec", {})
     if not isinstance(head, dict):
         raise SpecError(f"{where}: spec must be a table — write it as [spec]")
@@ -346,17 +366,22 @@ def parse_spec(data: Mapping[str, Any], where: str = "spec") -> Spec:
             raise SpecError(f"{where}: spec.{key} is an unknown key — use one of {', '.join(_SPEC_KEYS)}")
     rule = head.get("decision_rule", "simple")
     if rule not in get_args(DecisionRule):
-        raise SpecError(f"{where}: spec.decision_rule = {rule!r} is unknown — use one of "
+        raise SpecError(f"{where}: spec.decision_rule = {_shown(rule)} is unknown — use one of "
                         f"{', '.join(get_args(DecisionRule))}")
     for key in ("name", "revision", "notes"):
         if key in head and not isinstance(head[key], str):
-            raise SpecError(f"{where}: spec.{key} = {head[key]!r} — give text in quotes")
+            raise SpecError(f"{where}: spec.{key} = {_shown(head[key])} — give text in quotes")
     conditions = data.get("conditions", {})
     if not isinstance(conditions, dict):
         raise SpecError(f"{where}: conditions must be a table — write it as [conditions]")
+    conditions = dict(conditions)
     for key, value in conditions.items():
         if isinstance(value, (dict, list)):
             raise SpecError(f"{where}: conditions.{key} must be text or a number — nested tables are not allowed")
+        if isinstance(value, (datetime.date, datetime.time)):  # a TOML date or time: kept as its ISO text
+            conditions[key] = value.isoformat()
+        elif isinstance(value, (int, float)) and not isinstance(value, bool):
+            _number(f"{where}: conditions", key, value)
     raw_limits = data.get("limit")
     if raw_limits is None:
         raise SpecError(f"{where}: no [[limit]] tables — add at least one limit")
@@ -368,7 +393,7 @@ def parse_spec(data: Mapping[str, Any], where: str = "spec") -> Spec:
         key = (lim.quantity, lim.channel)
         if key in seen:
             raise SpecError(f"{where}: two limits on {lim.quantity}"
-                            f"{'' if lim.channel is None else f' (channel {lim.channel!r})'} — keep one")
+                            f"{'' if lim.channel is None else f' (channel {_shown(lim.channel)})'} — keep one")
         seen.add(key)
     return Spec(name=head.get("name", ""), revision=head.get("revision", ""), decision_rule=rule,
                 limits=limits, conditions=conditions, notes=head.get("notes", ""),
@@ -395,6 +420,8 @@ def load_spec(path: str | Path) -> Spec:
         raise SpecError(f"{p}: cannot read the spec file ({e.strerror}) — check its permissions") from e
     except tomllib.TOMLDecodeError as e:
         raise SpecError(f"{p}: not valid TOML ({e}) — fix the syntax") from e
+    except UnicodeDecodeError as e:
+        raise SpecError(f"{p}: not UTF-8 text (byte {e.start} is not UTF-8) — save the spec as UTF-8") from e
     return parse_spec(data, str(p))
 
 

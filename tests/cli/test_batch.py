@@ -251,8 +251,9 @@ def test_report_each_one_report_per_unit_and_exit_1(units, batch, run, tmp_path)
     res = run("report", str(units), "--each", "--spec", str(batch["spec"]), "--out", str(out),
               "--no-log", "--no-figures", "--jobs", "2")
     assert res.returncode == 1, res.stderr  # HC-04 fails its frequency limit, nothing errored
-    htmls = sorted(p.name.split("_")[0] for p in out.glob("*.html"))
+    htmls = sorted(p.name.split("_")[0] for p in out.glob("*.html") if p.name != "index.html")
     assert htmls == ["HC-01", "HC-02", "HC-03", "HC-04"]  # box_c.wav is HC-03 by its sidecar
+    assert (out / "index.html").is_file()  # the folder's index of reports
     assert len(list(out.glob("*.json"))) == 4
     rows = {line.split()[0]: line.split()[1] for line in res.stdout.splitlines() if line.startswith("HC-")}
     assert rows == {"HC-01": "pass", "HC-02": "pass", "HC-03": "pass", "HC-04": "fail"}

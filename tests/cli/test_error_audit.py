@@ -128,6 +128,39 @@ def files(tmp_path_factory) -> dict[str, Path]:
     f["existing_svg"].write_text("<svg>a figure the user wants to keep</svg>\n", encoding="utf-8")
     f["folder_svg"] = d / "figures.svg"
     f["folder_svg"].mkdir()
+    # --- robustness sweep (issue 12): hostile numbers, nesting, encodings --------------------------
+    f["huge_side_wav"] = d / "HC-10_huge.wav"
+    f["huge_side_wav"].write_bytes(raw)
+    f["huge_side_json"] = d / "HC-10_huge.json"
+    f["huge_side_json"].write_text('{"benchfit_sidecar": 1, "channels": [{"name": "output"}], "sample_rate_hz": 1'
+                                   + "0" * 400 + "}", encoding="utf-8")
+    f["deep_side_wav"] = d / "HC-10_deep.wav"
+    f["deep_side_wav"].write_bytes(raw)
+    f["deep_side_json"] = d / "HC-10_deep.json"
+    f["deep_side_json"].write_text('{"benchfit_sidecar": 1, "x": ' + "[" * 100000 + "]" * 100000 + "}",
+                                   encoding="utf-8")
+    f["no_time_csv"] = d / "no_time.csv"
+    f["no_time_csv"].write_text("output\n" + "\n".join(vals) + "\n", encoding="utf-8")
+    huge = list(vals)
+    huge[100] = "1e308"
+    f["huge_csv"] = d / "huge_sample.csv"
+    _csv(f["huge_csv"], tc, huge)
+    f["nan_wav"] = d / "nan_sample.wav"
+    nan_data = sine.astype(np.float32)
+    nan_data[100] = np.nan
+    sf.write(f["nan_wav"], nan_data, FS, subtype="FLOAT")
+    f["spec_latin1"] = d / "latin1_spec.toml"
+    f["spec_latin1"].write_bytes(SPEC_TOML.replace("hum-check box", "hum-check box \u00b5").encode("latin-1"))
+    f["spec_list"] = d / "list_spec.toml"
+    f["spec_list"].write_text(SPEC_TOML.replace('quantity = "frequency_hz"', 'quantity = ["frequency_hz"]'),
+                              encoding="utf-8")
+    f["spec_inf"] = d / "inf_spec.toml"
+    f["spec_inf"].write_text(SPEC_TOML.replace("tolerance = 0.25", "tolerance = inf"), encoding="utf-8")
+    f["spec_digits"] = d / "digits_spec.toml"
+    f["spec_digits"].write_text(SPEC_TOML.replace("nominal = 50.0", "nominal = 1" + "0" * 400), encoding="utf-8")
+    f["notes_folder"] = d / "projects"
+    f["notes_folder"].mkdir()
+    (f["notes_folder"] / "notes.txt").write_text("my notes\n", encoding="utf-8")
     f["log"] = d / "log.sqlite"
     with pytest.raises(SystemExit) as info:  # one real run in the log, for the log commands
         main(["measure", str(f["good"]), "--log", str(f["log"]), "--json"])
@@ -252,7 +285,8 @@ CASES = [
     C("fit-fix-not-assignment", "fit {two} --fix L", 2, r"^error: --fix 'L': not NAME=VALUE — write it like --fix L=",
       "--fix"),
     C("fit-fix-negative", "fit {two} --fix L=-3", 2, r"^error: --fix 'L=-3': L must be positive — ", "--fix"),
-    C("fit-duty-out-of-range", "fit {two} --drive-duty 2", 2, r"^error: --drive-duty '2': the duty cycle must lie",
+    # a bare 1…100 is a percentage (--drive-duty 50 = 50 %), so the out-of-range value is 150
+    C("fit-duty-out-of-range", "fit {two} --drive-duty 150", 2, r"^error: --drive-duty '150': the duty cycle must lie",
       "--drive-duty"),
     C("fit-plot-folder", "fit {two} --plot {folder_svg}", 2,
       r": is a folder — give --plot a file name ending in \.svg or \.png$", "folder_svg"),
@@ -386,6 +420,49 @@ CASES = [
       r"clipped\.wav channel 1 \(ch1\): the input reaches .* \(clipped\) — lower the level", "clipped"),
     C("calibrate-show-unknown", "calibrate show nosuchprofile", 2,
       r"^error: --profile 'nosuchprofile': no such calibration profile .* — create it", "--profile"),
+    # --- robustness sweep (issue 12) ----------------------------------------------------------------
+    C("sidecar-huge-number", "measure {huge_side_wav}", 2,
+      r"HC-10_huge\.json: 'sample_rate_hz' must be a positive number of Hz, got 1000+\.\.\. — fix the sidecar",
+      "huge_side_json"),
+    C("sidecar-deep-nesting", "measure {deep_side_wav}", 2,
+      r"HC-10_deep\.json: sidecar is nested too deeply to be a benchfit sidecar — ", "deep_side_json"),
+    C("sample-rate-1e-300", "measure {no_time_csv} --sample-rate 1e-300", 2,
+      r": sample rate 1e-300 Hz is outside what any recorder uses \(.*\) — check the time column", "no_time_csv"),
+    C("sample-1e308", "measure {huge_csv}", 2,
+      r": sample 100 of channel 1 is 1e\+308, beyond any reading .* — an overflow or error cell in the export; "
+      r"fix or delete that sample$", "huge_csv"),
+    C("nan-sample-wav", "measure {nan_wav}", 2, r": sample 100 of channel 1 is NaN or infinite — ", "nan_wav"),
+    C("report-spec-not-utf8", "report {good} --spec {spec_latin1} --unit HC-01 --no-log", 2,
+      r": not UTF-8 text \(byte \d+ is not UTF-8\) — save the spec as UTF-8$", "spec_latin1"),
+    C("report-spec-quantity-list", "report {good} --spec {spec_list} --unit HC-01 --no-log", 2,
+      r": limit 1\.quantity: unknown quantity \['frequency_hz'\] — use one of ", "spec_list"),
+    C("report-spec-inf", "report {good} --spec {spec_inf} --unit HC-01 --no-log", 2,
+      r"\(frequency_hz\): tolerance = inf is not finite — give a finite number$", "spec_inf"),
+    C("report-no-output-channel", "report {two} --spec {spec} --unit HC-03 --no-log", 2,
+      r"two\.wav: no channel 'output' for the spec's frequency_hz limit \(the capture has ch1, ch2\) — map one "
+      r"with --channel output=CH", "two"),
+    C("report-channel-not-assignment", "report {two} --spec {spec} --unit HC-03 --no-log --channel output", 2,
+      r"^error: --channel 'output': not NAME=CH — write it like --channel output=2", "--channel"),
+    C("report-channel-no-such", "report {two} --spec {spec} --unit HC-03 --no-log --channel output=7", 2,
+      r"two\.wav: no channel '7' — choose one of ch1, ch2 or a number 1…2$", "two"),
+    C("fit-fix-megahenry", "fit {two} --fix L=300M", 2,
+      r"^error: --fix L=3e\+08 H: outside any bench part \(1e-09…100 H\) — check the SI prefix \(M mega, .*\), "
+      r"e\.g\. --fix L=300m$", "--fix"),
+    C("fit-fix-farad", "fit {two} --fix C=33", 2, r"^error: --fix C=33 F: outside any bench part .* --fix C=33u$",
+      "--fix"),
+    C("log-stats-did-you-mean", "log stats frequency --log {log}", 2,
+      r"^error: frequency: no logged values \(did you mean frequency_hz.*\?\) — the log holds .*frequency_hz",
+      "frequency"),
+    C("measure-plot-two-files", "measure {good} {float_sine} --plot out.svg", 2,
+      r"^error: --plot 'out\.svg': draws one capture — give one file, or leave --plot out$", "--plot"),
+    C("measure-plot-type", "measure {good} --plot {out_pdf}", 2,
+      r"^error: --plot '.*figure\.pdf': unknown figure type — ", "--plot"),
+    C("measure-plot-exists", "measure {good} --plot {existing_svg}", 2, r": file exists — choose another --plot$",
+      "existing_svg"),
+    C("demo-foreign-folder", "demo --out {notes_folder}", 2,
+      r": the folder holds files the demo did not make — give --out a new or empty folder$", "notes_folder"),
+    C("report-spec-400-digits", "report {good} --spec {spec_digits} --unit HC-01 --no-log", 2,
+      r"\(frequency_hz\): nominal = 1000+\.\.\. is not finite — ", "spec_digits"),
 ]
 
 

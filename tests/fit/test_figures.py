@@ -92,3 +92,30 @@ def test_fit_svg_of_a_result_read_back_from_json():
          "derived": {}, "correlations": {}, "quality": {"nrmse": None, "r_squared": None, "n_points": 0},
          "warnings": []}
     _self_contained(fit_svg(FitResult.from_dict(d)))
+
+
+def test_user_text_with_dollar_signs_is_plain_text():
+    """A channel named like TeX ('$x^$', unbalanced, unknown command) used to crash the figure in
+    matplotlib's mathtext parser; every text of a figure is plain text now."""
+    name = r"out $x^$ $\nosuch$"
+    t = np.arange(4800) / 48000
+    cap = Capture(np.sin(2 * np.pi * 50 * t), 48000, channel_names=(name,), source="$HC-07$.wav")
+    svg = waveform_svg(cap)
+    texts = [tx for tx in svg.figure.findobj(lambda o: hasattr(o, "get_text")) if "$" in tx.get_text()]
+    assert texts and not any(tx.get_parse_math() for tx in texts)
+    assert name in {tx.get_text().split(" (")[0] for tx in texts}
+
+
+def test_log_axis_decades_keep_their_mathtext():
+    """Plain text for user strings must not turn the log axis' 10^n tick labels into raw
+    '$\\mathdefault{10^{0}}$' strings (matplotlib writes decades with mathtext)."""
+    ch = ChannelMeasurement(name="$out$", unit="FS", frequency_hz=50.0, frequency_u_hz=1e-4, amplitude=0.5,
+                            vdc=0.0, vrms=0.35, vpp=1.0, duty_cycle_pct=None, rise_time_s=None,
+                            fall_time_s=None, thd_pct=1.0, thd_n_pct=1.1, sinad_db=39.0,
+                            harmonics=(Harmonic(1, 50.0, 0.5, 0.0), Harmonic(2, 100.0, 0.005, 0.0),
+                                       Harmonic(3, 150.0, 0.0001, 0.0)))
+    fig = spectrum_svg(ch).figure
+    (ax,) = fig.axes
+    decades = [t for t in ax.yaxis.get_ticklabels() if "10^" in t.get_text()]
+    assert decades and all(t.get_parse_math() for t in decades)
+    assert not ax.title.get_parse_math() and not ax.yaxis.label.get_parse_math()

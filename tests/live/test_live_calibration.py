@@ -168,7 +168,9 @@ def test_profile_to_input_calibration():
     assert cal.gain_v_per_fs == (1.25, 2.5) and cal.timebase_ppm == -23.4
     assert cal.timebase_u_ppm == 0.05 and cal.coupling_tau_s == 0.047 and cal.profile == "desk-card"
     three = prof.input_calibration(3)
-    assert three.gain_v_per_fs is None  # channel 3 unknown: no partial gains
+    # channel 3 unknown: it stays in FS, channels 1 and 2 keep their gains (issue 12: a partial profile
+    # used to leave every channel in FS)
+    assert three.gain_v_per_fs == (1.25, 2.5, None)
     assert prof.missing_gains(3) == [3]
     only_tb = CalibrationProfile(name="x", timebase=prof.timebase)
     assert only_tb.sidecar_calibration(1) == {"profile": "x", "gain_v_per_fs": None, "timebase_ppm": -23.4,

@@ -114,3 +114,13 @@ def test_print_to_pdf_and_screenshot(report_file, tmp_path):
     first = subprocess.run(["pdftotext", "-f", "1", "-l", "1", str(pdf), "-"], capture_output=True,
                            text=True, timeout=30).stdout
     assert "HC-11" in first and "Results" in first and "FAIL" in first.upper()
+    # every printed page carries the unit, its page number and the program version (page-margin boxes)
+    import benchfit
+
+    pages = subprocess.run(["pdftotext", str(pdf), "-"], capture_output=True, text=True,
+                           timeout=30).stdout.split("\f")
+    pages = [p for p in pages if p.strip()]
+    assert len(pages) >= 2
+    for n, page in enumerate(pages, start=1):
+        assert "Unit HC-11 · calibration record 2026-12-01T18:00:00Z" in page, (n, page[:300])
+        assert f"page {n} of {len(pages)}" in page and f"benchfit {benchfit.__version__}" in page

@@ -63,7 +63,7 @@ def test_report_pass_numbers_equal_measure_json_and_log(bench, capsys):
     assert info["verdict"] == "pass" and info["run_id"] == 1
     twin = json.loads(Path(info["json"]).read_text(encoding="utf-8"))
     html = Path(info["html"]).read_text(encoding="utf-8")
-    assert html.count("<svg") == 2                       # waveform + spectrum (no fit requested)
+    assert html.count("<svg") == 3                       # waveform, spectrum, as-found overlay (no fit)
     # one source of truth: the report holds exactly what `benchfit measure --json` prints
     code, out, err = run(["measure", str(bench["good"]), "--json"], capsys)
     assert code == 0, err
