@@ -91,11 +91,15 @@ _PLAUSIBLE_PARTS = {"L": (1e-9, 100.0, "H", "300m"), "C": (1e-13, 1.0, "F", "33u
                     "Resr": (0.0, 1e7, "Ω", "0.4"), "Rload": (1e-3, 1e10, "Ω", "10k")}
 
 
-def check_parts_plausible(values: dict[str, float], option: str) -> None:
-    """Refuse a part value far outside any bench part (``--fix L=300M``: 300 MH), naming the prefix rule."""
-    for name, value in values.items():
+def check_parts_plausible(values: dict[str, Any], option: str) -> None:
+    """Refuse a part value far outside any bench part (``--fix L=300M``: 300 MH), naming the prefix rule.
+
+    A value may be a plain number or a fixed value with a tolerance (its ``value`` is checked).
+    """
+    for name, item in values.items():
         if name not in _PLAUSIBLE_PARTS:
             continue
+        value = float(getattr(item, "value", item))
         low, high, unit, example = _PLAUSIBLE_PARTS[name]
         if low <= value <= high:
             continue

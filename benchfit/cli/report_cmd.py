@@ -114,7 +114,7 @@ def report_command(
     # NAME=VALUE[±TOL] (issue 11): a tolerance is propagated into the fitted values' uncertainties
     fix_values = {k: (v.value if v.half_width is None else v)  # a plain value stays a plain float
                   for k, v in parse_fix_options(fix, tuple(_FIT_NAMES)).items()}
-    check_parts_plausible({k: getattr(v, "value", v) for k, v in fix_values.items()}, "--fix")
+    check_parts_plausible(fix_values, "--fix")
     channel_map = _channel_map(channel)
     fit = None
     if model is not None or drive is not None or response is not None or fix_values:

@@ -448,6 +448,8 @@ CASES = [
     C("fit-fix-megahenry", "fit {two} --fix L=300M", 2,
       r"^error: --fix L=3e\+08 H: outside any bench part \(1e-09…100 H\) — check the SI prefix \(M mega, .*\), "
       r"e\.g\. --fix L=300m$", "--fix"),
+    C("fit-fix-megahenry-with-tolerance", "fit {two} --fix L=300M±10%", 2,
+      r"^error: --fix L=3e\+08 H: outside any bench part \(1e-09…100 H\) — check the SI prefix", "--fix"),
     C("fit-fix-farad", "fit {two} --fix C=33", 2, r"^error: --fix C=33 F: outside any bench part .* --fix C=33u$",
       "--fix"),
     C("log-stats-did-you-mean", "log stats frequency --log {log}", 2,
