@@ -78,7 +78,7 @@ def _report(tmp_path, run, warm_max, figures=True):
         code = 0
     except SystemExit as e:
         code = e.code
-    (page,) = out.glob("*.html")
+    (page,) = [p for p in out.glob("*.html") if p.name != "index.html"]  # (the folder's index beside it)
     return code, page.read_text(), json.loads(page.with_suffix(".json").read_text())
 
 
