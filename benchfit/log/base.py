@@ -13,6 +13,8 @@ A reader therefore never sees half a run, and a writer killed mid-transaction le
 
 from __future__ import annotations
 
+import abc
+
 import json
 from typing import Any, Callable, Iterable, Iterator, Mapping, Sequence
 
@@ -35,7 +37,7 @@ _DECISION_COLS = ("quantity", "channel", "label", "value", "expanded_u", "lower"
                   "rule", "decision", "note")
 
 
-class LogStore:
+class LogStore(abc.ABC):
     """One open log. Subclasses set :attr:`dialect`, :attr:`con` and :meth:`transaction`.
 
     ``where`` is how messages name the log (a file path, or a URL without password).
@@ -47,12 +49,13 @@ class LogStore:
 
     # --- backend hooks ---------------------------------------------------------------
 
-    def transaction(self):  # pragma: no cover - overridden
+    @abc.abstractmethod
+    def transaction(self) -> Any:
         """A context manager: one write transaction, committed on success, rolled back otherwise."""
-        raise NotImplementedError
 
-    def _errors(self) -> tuple[type[BaseException], ...]:  # pragma: no cover - overridden
-        raise NotImplementedError
+    @abc.abstractmethod
+    def _errors(self) -> tuple[type[BaseException], ...]:
+        """The backend's own exception classes that mean "the log could not be read or written"."""
 
     def close(self) -> None:
         try:
