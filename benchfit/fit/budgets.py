@@ -27,6 +27,11 @@ __all__ = ["input_specs", "propagate", "assemble", "channel_gain_ratio", "compar
 MODEL_NAME = "lc-lowpass"
 
 
+#: below this Q the two poles of the low-pass are 100× apart or more: no resonance to speak of, and
+#: the data look like a first-order R-C low-pass (common practice, no source)
+_NO_RESONANCE_Q = 0.1
+
+
 def source_name(cap) -> str:
     return cap.source or "capture"
 
@@ -138,6 +143,11 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
                     if dv.budget is not None else None
                 derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, b,
                                              dv.conditional_on)
+    q = derived.get("q_factor")
+    if q is not None and q.value is not None and 0 < q.value < _NO_RESONANCE_Q:
+        warn.append(f"no resonance: Q = {q.value:.2g}, so the response is a first-order (RC-like) low-pass with "
+                    f"its second pole about {1 / q.value ** 2:.0f}× higher, and L rests on that fast pole alone — "
+                    "check that the circuit is an L-C filter (an R-C low-pass also fits this model closely)")
     if cond:
         shown = ", ".join(f"{n} = {format_quantity(specs[n].fixed.value, display_unit(n), 4)}"
                           for n in cond if n in PARAMETER_UNITS)
