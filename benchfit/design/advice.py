@@ -183,6 +183,26 @@ def _u(ch: Mapping[str, Any], q: str) -> float | None:
     return None
 
 
+def _stated_tolerance(fit, name: str, value: float) -> float | None:
+    """Relative half-width of a fixed part's tolerance as the fit was given it, or None."""
+    spec = (getattr(fit, "inputs", None) or {}).get(name) or {}
+    hw = spec.get("half_width")
+    if spec.get("role") != "fixed" or hw is None or not value or not math.isfinite(value):
+        return None
+    return abs(float(hw)) / abs(value)
+
+
+def _u_without(param, prefixes: Sequence[str]) -> float:
+    """A fitted part's standard uncertainty less the budget rows named by ``prefixes`` (in quadrature)."""
+    u = float(param.stderr)
+    budget = getattr(param, "budget", None)
+    if budget is None or not prefixes:
+        return u
+    drop = sum(float(c.contribution) ** 2 for c in budget.contributions
+               if any(c.name.startswith(p) for p in prefixes))
+    return math.sqrt(max(u * u - drop, 0.0))
+
+
 def _fit_draws(fit, n: int, rng, fixed_tol: Mapping[str, float], notes: list[str]) -> _State:
     names = ("L", "C", "Rs", "Resr", "Rload")
     vals = {}
@@ -194,8 +214,14 @@ def _fit_draws(fit, n: int, rng, fixed_tol: Mapping[str, float], notes: list[str
         vals[k] = float(v) if v is not None else (math.inf if k == "Rload" else 0.0)
     free = [k for k in names if fit.parameters.get(k) is not None and not fit.parameters[k].fixed
             and fit.parameters[k].stderr is not None and math.isfinite(vals[k])]
+    # a fixed part whose tolerance the fit stated (--fix C=33u±10%) is drawn within that tolerance
+    # below, coherently with the parts it moves; its row is taken out of their fitted u so that it
+    # is not counted twice
+    stated = {k: _stated_tolerance(fit, k, vals[k]) for k in ("L", "C", "Rload")}
+    fixed_tol = {**fixed_tol, **{k: t for k, t in stated.items() if t is not None}}
     mean = np.array([vals[k] for k in free])
-    sd = np.array([float(fit.parameters[k].stderr) for k in free])
+    sd = np.array([_u_without(fit.parameters[k], [f"fixed {x} " for x, t in stated.items() if t is not None])
+                   for k in free])
     corr = np.eye(len(free))
     for i, a in enumerate(free):
         for j, b in enumerate(free):
@@ -224,8 +250,10 @@ def _fit_draws(fit, n: int, rng, fixed_tol: Mapping[str, float], notes: list[str
             draws["Rs"] = draws["Rs"] * s
             draws["Resr"] = draws["Resr"] * s
             if tol:
+                how = ("as stated in the fit" if stated.get(k) is not None
+                       else "assumed meter reading")
                 notes.append(f"{k} was fixed in the fit at {_q(vals[k], 'H' if k == 'L' else 'F')}: taken as "
-                             f"±{tol * 100:g} % (rectangular, assumed meter reading); the fitted {other}, Rs and "
+                             f"±{tol * 100:g} % (rectangular, {how}); the fitted {other}, Rs and "
                              "ESR scale with it")
     if fit.parameters.get("Rload") is not None and fit.parameters["Rload"].fixed and math.isfinite(vals["Rload"]):
         tol = fixed_tol.get("Rload", 0.0)

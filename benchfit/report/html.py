@@ -174,6 +174,8 @@ _PART_LABELS = {
     "Resr": "ESR of the capacitor", "Rload": "Rload, load resistance",
     "resonant_frequency_hz": "resonant frequency f₀", "q_factor": "Q factor",
     "damped_frequency_hz": "damped (ringing) frequency", "decay_rate_per_s": "decay rate α",
+    "natural_frequency_hz": "natural frequency (loaded circuit)",
+    "series_loss_ohm": "series loss, Rs + ESR (not split by the data)", "Rp": "Rp, core loss across L",
 }
 
 
