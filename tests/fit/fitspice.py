@@ -63,13 +63,20 @@ def simulate_square(tmp_path: Path, c: Circuit, *, freq: float, duty: float, hig
                     edge: float = 50e-6, fs: float = 20000.0, settle: float = 0.4,
                     keep: float = 0.6) -> tuple[np.ndarray, np.ndarray]:
     """Drive and output (V) on a uniform grid at ``fs`` over the last ``keep`` seconds."""
+    out = tmp_path / f"sim_{freq:g}_{duty:g}.txt"
+    return _run_deck(tmp_path, f"deck_{freq:g}_{duty:g}",
+                     _deck(c, freq=freq, duty=duty, high=high, edge=edge, fs=fs, tstop=settle + keep, out=out),
+                     out, fs=fs, settle=settle, keep=keep, timeout=60)
+
+
+def _run_deck(tmp_path: Path, name: str, deck_text: str, out: Path, *, fs: float, settle: float, keep: float,
+              timeout: float) -> tuple[np.ndarray, np.ndarray]:
+    """Run one deck in batch mode; drive and output (V) on a uniform grid over the last ``keep`` s."""
     if NGSPICE is None:
         _no_ngspice()
-    out = tmp_path / f"sim_{freq:g}_{duty:g}.txt"
-    deck = tmp_path / f"deck_{freq:g}_{duty:g}.cir"
-    deck.write_text(_deck(c, freq=freq, duty=duty, high=high, edge=edge, fs=fs,
-                          tstop=settle + keep, out=out))
-    proc = subprocess.run([NGSPICE, "-b", str(deck)], capture_output=True, text=True, timeout=60,
+    deck = tmp_path / f"{name}.cir"
+    deck.write_text(deck_text)
+    proc = subprocess.run([NGSPICE, "-b", str(deck)], capture_output=True, text=True, timeout=timeout,
                           cwd=tmp_path)
     if not out.exists():
         raise AssertionError(f"ngspice wrote no output:\n{proc.stdout[-2000:]}\n{proc.stderr[-2000:]}")
@@ -140,18 +147,7 @@ def simulate_unit(tmp_path: Path, u: Unit, *, freq: float = 50.0, duty: float = 
                   edge: float = 50e-6, fs: float = 20000.0, settle: float = 0.4,
                   keep: float = 0.5, tag: str = "unit") -> tuple[np.ndarray, np.ndarray]:
     """Drive (at the timer pin) and output (V) on a uniform grid over the last ``keep`` seconds."""
-    if NGSPICE is None:
-        _no_ngspice()
     out = tmp_path / f"{tag}.txt"
-    deck = tmp_path / f"{tag}.cir"
-    deck.write_text(_unit_deck(u, freq=freq, duty=duty, high=high, edge=edge, fs=fs, tstop=settle + keep,
-                               out=out))
-    proc = subprocess.run([NGSPICE, "-b", str(deck)], capture_output=True, text=True, timeout=120,
-                          cwd=tmp_path)
-    if not out.exists():
-        raise AssertionError(f"ngspice wrote no output:\n{proc.stdout[-2000:]}\n{proc.stderr[-2000:]}")
-    data = np.loadtxt(out)
-    t, drive, vout = data[:, 0], data[:, 1], data[:, 3]
-    n = int(round(keep * fs))
-    grid = settle + np.arange(n) / fs
-    return np.interp(grid, t, drive), np.interp(grid, t, vout)
+    return _run_deck(tmp_path, tag, _unit_deck(u, freq=freq, duty=duty, high=high, edge=edge, fs=fs,
+                                               tstop=settle + keep, out=out),
+                     out, fs=fs, settle=settle, keep=keep, timeout=120)
