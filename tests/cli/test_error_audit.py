@@ -222,7 +222,9 @@ CASES = [
       r"^error: --seconds 'x': not a number" + HELP.format("record "), "--seconds"),
     C("fit-fix-without-value", "fit {two} --fix", 2, r"^error: --fix: needs a value" + HELP.format("fit "), "--fix"),
     C("report-no-spec", "report {good}", 2, r"^error: --spec: missing option — give it; ", "--spec"),
-    C("log-show-abc", "log show abc", 2, r"^error: RUN 'abc': not a whole number" + HELP.format("log show "), "RUN"),
+    # RUN that is not a whole number is a unit serial (its latest run): an unknown one is one line
+    C("log-show-abc", "log show abc --log {log}", 2,
+      r"^error: log show abc: no run id and no logged unit with this serial — .*see `benchfit log list`", "abc"),
     C("log-show-extra", "log show 1 2", 2, r"^error: benchfit log show: unexpected extra argument\(s\) 2 — ",
       "benchfit log show"),
     C("unknown-command", "frobnicate", 2, r"^error: benchfit: no such command 'frobnicate' — see 'benchfit --help'$",
