@@ -74,8 +74,9 @@ def gain_term(unit: str, index: int, *, gains: tuple[float | None, ...] | None,
         return GainTerm(None, "")
     prof = f"calibration profile {profile or 'unnamed'}"
     own = gains_u[index] if gains_u is not None and index < len(gains_u) else None
-    if gains is not None and index < len(gains) and gains[index]:
-        full_scale = abs(float(gains[index]))
+    gain = gains[index] if gains is not None and index < len(gains) else None
+    if gain:
+        full_scale = abs(float(gain))
         if own is not None:
             return GainTerm(float(own), prof, full_scale)
         if stated_u_rel is not None:
