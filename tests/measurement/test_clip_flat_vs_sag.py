@@ -97,3 +97,11 @@ def test_timebase_from_an_ac_coupled_square_peaking_near_full_scale():
     x = _ac_square(fs * (1 + ppm * 1e-6), 10 ** (-0.05 / 20), seconds=1.0, bits=16, sigma=2e-3, seed=3)
     est = estimate_timebase(x, fs, 50.0)
     assert abs(est.ppm - ppm) < 3 * est.u_ppm, est
+
+
+def test_tune_calls_the_sagging_square_hot_not_clipped():
+    from benchfit.measurement.tuning import analyse_window
+
+    r = analyse_window(_ac_square(48000.0, 0.998, bits=16), 48000.0, 50.0)
+    assert not r.clipped and r.peak_dbfs > -0.1
+    assert any("near full scale" in w for w in r.warnings) and not any("input clipped" in w for w in r.warnings)
