@@ -30,7 +30,8 @@ calibration gives the gain's relative standard uncertainty ``gain_u_rel``, it is
 quadrature (GUM, JCGM 100:2008 5.1.2; the gain and the noise are uncorrelated):
 ``u² = u_noise² + (value·gain_u_rel)²``, and ``extra["gain_u_rel"]`` records it (None when
 not known; a channel in V from a sound-card gain without it gets a "gain uncertainty not
-known" warning). Frequency, duty cycle, rise/fall times, THD, THD+N and SINAD are ratios
+known" warning, and volts a scope wrote itself get the stated vertical-gain default with a
+"vertical gain not calibrated" note: :func:`benchfit.measurement.budgets.gain_term`). Frequency, duty cycle, rise/fall times, THD, THD+N and SINAD are ratios
 of times or of levels of the same channel, so the gain cancels and they are unaffected.
 """
 
