@@ -266,7 +266,8 @@ def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
     ch = measure_channel(x, float(nominal_rate), unit="FS", timebase_u_ppm=0.0)
     if ch.frequency_hz is None or ch.frequency_u_hz is None or ch.amplitude is None:
         raise MeasureError(f"{what}: no steady tone found — feed a sine or square and record at least a few cycles")
-    if any("did not settle" in w for w in ch.warnings):
+    method = str(ch.extra.get("frequency_method", ""))
+    if method == "multi-harmonic fit" and any("did not settle" in w for w in ch.warnings):
         raise MeasureError(f"{what}: no steady tone found (the frequency fit did not settle) — feed a steady "
                            "sine or square and record at least a few cycles")
     amp = float(ch.amplitude)
@@ -282,8 +283,7 @@ def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
     u_meas = float(ch.frequency_u_hz)
     ppm = (reference_hz / f_meas - 1.0) * 1e6
     u_ppm = 1e6 * math.hypot(reference_hz * u_meas / f_meas ** 2, reference_u_hz / f_meas)
-    return TimebaseEstimate(ppm=ppm, u_ppm=u_ppm, measured_hz=f_meas, measured_u_hz=u_meas,
-                            method=str(ch.extra.get("frequency_method", "")))
+    return TimebaseEstimate(ppm=ppm, u_ppm=u_ppm, measured_hz=f_meas, measured_u_hz=u_meas, method=method)
 
 
 def estimate_coupling(x: np.ndarray, sample_rate: float, what: str = "coupling") -> float:
