@@ -1,6 +1,6 @@
 """``benchfit fit``: back-solve the effective L, C and losses of an L-C low-pass.
 
-Only typer and the standard library are imported at module level; numpy, scipy, lmfit and
+Only typer and the standard library are imported at module level; numpy, scipy and
 matplotlib load inside the command.
 """
 
