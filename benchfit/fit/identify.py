@@ -154,7 +154,7 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
         from benchfit.errors import FitError
 
         raise FitError(f"fit: the data give only {n_res} numbers for {len(names)} unknowns "
-                       f"({', '.join(names)}) — fix known parts with --fix, or capture a drive "
+                       f"({', '.join(names)}) — give the known parts in fix={{'L': …}}, or capture a drive "
                        "whose harmonics reach further above the noise")
     if names:
         # trust-region reflective least squares: the log-parts may move e^25 either way (a

@@ -256,8 +256,8 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
     fix_d, _ = check_parts({n: fv.value for n, fv in fix_specs.items()}, None, where)
     unknown = [k for k in fix_d if k not in ("L", "C")]
     if unknown or len(fix_d) > 1:
-        raise FitError(f"--fix {', '.join(fix_d)}: a ring-down fit can use one known part, L or C — "
-                       "pass only --fix L=… or --fix C=…")
+        raise FitError(f"fix: a ring-down fit can use one known part, L or C, not {', '.join(fix_d)} — "
+                       "pass only fix={'L': …} or fix={'C': …}")
     try:
         if channel is not None:
             ci = cap.channel_index(channel)
