@@ -39,7 +39,6 @@ class MethodOption(str, enum.Enum):
 #: the fit functions' parameters and the options that carry them
 _FLAGS = {"fix": "--fix", "guess": "--guess", "drive": "--drive", "response": "--response",
           "drive_duty": "--drive-duty", "method": "--method"}
-_NAMES = "|".join(_FLAGS)
 
 
 def flag_wording(message: str) -> str:
@@ -52,14 +51,12 @@ def flag_wording(message: str) -> str:
     """
     import re
 
-    flag = _FLAGS.__getitem__
-    out = re.sub(r"\b(fix|guess)=\{'(\w+)': …\}", lambda m: f"{flag(m[1])} {m[2]}=…", message)
+    from benchfit.cli.common import flag_words
+
+    out = re.sub(r"\b(fix|guess)=\{'(\w+)': …\}", lambda m: f"{_FLAGS[m[1]]} {m[2]}=…", message)
     out = re.sub(r"\btime_domain=True\b", "--time-domain", out)
     out = re.sub(r"\bfit_ringdown\(\)", "--model ringdown", out)
-    out = re.sub(rf"\b({_NAMES})='([^']*)'", lambda m: f"{flag(m[1])} {m[2]}", out)
-    out = re.sub(rf"\b({_NAMES})=(?=[\d.])", lambda m: f"{flag(m[1])} ", out)
-    out = re.sub(rf"\b({_NAMES})=", lambda m: flag(m[1]), out)
-    return re.sub(rf"^({_NAMES}):", lambda m: f"{flag(m[1])}:", out)
+    return flag_words(out, _FLAGS)
 
 
 _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a capture.
