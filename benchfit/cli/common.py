@@ -66,14 +66,15 @@ def flag_words(message: str, flags: dict[str, str]) -> str:
     drive_duty=0.5``, ``use method='one-channel'``); ``flags`` maps each name to its option.
     A name followed by ``:`` at the start, by ``=`` or (for names with an underscore, which
     cannot be ordinary words) standing alone is replaced: ``name='x'`` and ``name=0.5`` become
-    ``--option x`` and ``--option 0.5``, a bare ``name=`` becomes ``--option``.
+    ``--option x`` and ``--option 0.5``, ``name=True`` and a bare ``name=`` become ``--option``.
     """
     import re
 
     if not flags:
         return message
     names = "|".join(sorted(map(re.escape, flags), key=len, reverse=True))
-    out = re.sub(rf"\b({names})='([^']*)'", lambda m: f"{flags[m[1]]} {m[2]}", message)
+    out = re.sub(rf"\b({names})=True\b", lambda m: flags[m[1]], message)
+    out = re.sub(rf"\b({names})='([^']*)'", lambda m: f"{flags[m[1]]} {m[2]}", out)
     out = re.sub(rf"\b({names})=(?=[\d.])", lambda m: f"{flags[m[1]]} ", out)
     out = re.sub(rf"\b({names})=", lambda m: flags[m[1]], out)
     out = re.sub(rf"^({names}):", lambda m: f"{flags[m[1]]}:", out)

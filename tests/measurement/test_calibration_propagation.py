@@ -84,3 +84,4 @@ def test_drift_and_stability_errors_name_parameters():
         stability([], interval_s=1.0, band_ppm=-5.0)
     assert flag_words(str(err.value), {"band_ppm": "--band"}) == (
         "--band: -5.0 must be a positive number of ppm — e.g. --band 100")
+
