@@ -1,7 +1,7 @@
 """The typer application object and its command groups.
 
 Command modules (``benchfit/cli/*_cmd.py``) register their commands on these objects.
-They import only typer and the standard library at module level; numpy, scipy, lmfit,
+They import only typer and the standard library at module level; numpy, scipy,
 matplotlib and sounddevice are imported inside the command functions so that
 ``benchfit --help`` stays fast and works without PortAudio.
 """

@@ -8,7 +8,8 @@ from typing import Any, NoReturn
 
 from benchfit.errors import BenchfitError
 
-__all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse_value", "with_fix"]
+__all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse_value", "with_fix",
+           "flag_words"]
 
 
 def _console(err: bool):
@@ -56,6 +57,29 @@ def parse_value(text: str, option: str, *, positive: bool = True, allow_zero: bo
     except ValueError as e:
         need = " above zero" if positive and not allow_zero else " of zero or more" if positive else ""
         fail(with_fix(str(e), f"give a number{need} after {option}"))
+
+
+def flag_words(message: str, flags: dict[str, str]) -> str:
+    """A library message with its Python parameter names said as the command's options.
+
+    The computing packages name their parameters (``interval_s: 0 must be …``, ``pass
+    drive_duty=0.5``, ``use method='one-channel'``); ``flags`` maps each name to its option.
+    A name followed by ``:`` at the start, by ``=`` or (for names with an underscore, which
+    cannot be ordinary words) standing alone is replaced: ``name='x'`` and ``name=0.5`` become
+    ``--option x`` and ``--option 0.5``, ``name=True`` and a bare ``name=`` become ``--option``.
+    """
+    import re
+
+    if not flags:
+        return message
+    names = "|".join(sorted(map(re.escape, flags), key=len, reverse=True))
+    out = re.sub(rf"\b({names})=True\b", lambda m: flags[m[1]], message)
+    out = re.sub(rf"\b({names})='([^']*)'", lambda m: f"{flags[m[1]]} {m[2]}", out)
+    out = re.sub(rf"\b({names})=(?=[\d.])", lambda m: f"{flags[m[1]]} ", out)
+    out = re.sub(rf"\b({names})=", lambda m: flags[m[1]], out)
+    out = re.sub(rf"^({names}):", lambda m: f"{flags[m[1]]}:", out)
+    bare = "|".join(re.escape(n) for n in flags if "_" in n)
+    return re.sub(rf"\b({bare})\b", lambda m: flags[m[1]], out) if bare else out
 
 
 def with_fix(message: str, fix: str) -> str:

@@ -99,11 +99,13 @@ def _series(text: str, option: str) -> str:
 class _OptionNames:
     """Re-raise a design error whose message starts ``name:`` with the command-line option instead.
 
-    The design functions name their Python parameters (``trials: …``); at the command line the
-    user typed ``--trials``, so the message should say that.
+    The design functions name their Python parameters (``trials: …``, ``give rs_ohm=``,
+    ``use diode=True``, ``fit_lowpass()``); at the command line the user typed ``--trials``,
+    ``--rs`` and ``--diode`` and fits with ``benchfit fit``, so the message should say that.
     """
 
     def __init__(self, **names: str) -> None:
+        self._flags = dict(names)
         self._names = {k.replace("_", "-"): v for k, v in names.items()}
 
     def __enter__(self) -> None:
@@ -114,10 +116,21 @@ class _OptionNames:
 
         if exc is None or not isinstance(exc, DesignError):
             return False
-        head, sep, rest = str(exc).partition(":")
+        import re
+
+        from benchfit.cli.common import flag_words
+
+        text = str(exc)
+        head, sep, rest = text.partition(":")
         if sep and head in self._names:
-            err = DesignError(f"{self._names[head]}:{rest}")
-            raise err from exc
+            text = f"{self._names[head]}:{rest}"
+        text = re.sub(r"\bfit_(lowpass|ringdown)\(\)",
+                      lambda m: f"benchfit fit CAPTURE --model {'lc-lowpass' if m[1] == 'lowpass' else 'ringdown'}", text)
+        if "bank" in self._flags:
+            text = text.replace("bank=[22e-6, 10e-6, 1e-6]", f"{self._flags['bank']} 22u,10u,1u")
+        text = flag_words(text, self._flags)
+        if text != str(exc):
+            raise DesignError(text) from exc
         return False
 
 
@@ -240,7 +253,8 @@ def astable_command(
     cap_series = _series(cap_series, "--cap-series")
     with _OptionNames(duty="--duty", distribution="--distribution", trials="--trials",
                       control_voltage="--control-voltage", frequency="--frequency",
-                      tolerance_r="--tolerance-r", range="--control-range", trim="--trim-pot / --control-range"):
+                      tolerance_r="--tolerance-r", range="--control-range", trim="--trim-pot / --control-range",
+                      supply_v="--supply", diode="--diode", c1_farad="--cap"):
         result = _astable(f, d, c1, series, cap_series, supply, control_voltage, diode, tolerance_r,
                           tolerance_c, yield_within, distribution, trials, seed, trim_pot, cr,
                           _opt_value(diode_drop, "--diode-drop", allow_zero=True), not ideal_timer)
@@ -348,7 +362,8 @@ def filter_command(
         fail("--inductance/--capacitance: neither given — give one of them (the other is solved for), or both "
              "to evaluate that filter")
     series = _series(series, "--series")
-    with _OptionNames(duty="--duty", harmonics="--harmonics", frequency="--frequency"):
+    with _OptionNames(duty="--duty", harmonics="--harmonics", frequency="--frequency",
+                      inductance="--inductance", capacitance="--capacitance", rs_ohm="--rs", esr_ohm="--esr", load_ohm="--load"):
         result = design_filter(
             _opt_value(frequency, "--frequency"), inductance=_opt_value(inductance, "--inductance"),
             capacitance=_opt_value(capacitance, "--capacitance"), load_ohm=_opt_value(load, "--load"),
@@ -384,7 +399,8 @@ def _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, am
     from benchfit.cli.common import print_json, stdout
     from benchfit.design.damped import evaluate_filter
 
-    with _OptionNames(duty="--duty", frequency="--frequency", amplitude="--amplitude"):
+    with _OptionNames(duty="--duty", frequency="--frequency", amplitude="--amplitude",
+                      inductance="--inductance", capacitance="--capacitance", rs_ohm="--rs", esr_ohm="--esr", load_ohm="--load"):
         pred, stress = evaluate_filter(
             _opt_value(inductance, "--inductance"), _opt_value(capacitance, "--capacitance"),
             _opt_value(frequency, "--frequency"), rs_ohm=_opt_value(rs, "--rs", allow_zero=True),
@@ -411,7 +427,8 @@ def _damped_filter(frequency, inductance, load, rs, duty, amplitude, thd_max, le
     from benchfit.cli.common import print_json, stdout
     from benchfit.design.damped import design_damped
 
-    with _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs"):
+    with _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs", frequency_hz="--frequency",
+                      inductance="--inductance", capacitance="--capacitance", rs_ohm="--rs", esr_ohm="--esr", load_ohm="--load"):
         d = design_damped(
             _opt_value(frequency, "--frequency"), _opt_value(inductance, "--inductance"),
             rs_ohm=_opt_value(rs, "--rs", allow_zero=True), load_ohm=_opt_value(load, "--load"),
@@ -630,7 +647,8 @@ def _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, dr
         if not sep or part not in ("L", "C"):
             fail(f"--nominal {item!r}: not PART=VALUE with PART L or C — write e.g. --nominal L=300m")
         nom[part] = parse_part_value(value, f"--nominal {part}", "L" if part == "L" else "C")
-    with _OptionNames(trials="--trials", duty="--duty"):
+    with _OptionNames(trials="--trials", duty="--duty", measurement="--measurement",
+                      timer_frequency_hz="--timer-frequency", supply_v="--supply", diode="--diode"):
         advice = advise(
             sp, fit=fit_result, measurement=meas, timer=timer,
             timer_frequency_hz=_opt_value(timer_frequency, "--timer-frequency"),
@@ -684,7 +702,9 @@ def _legacy_trim(fit, target, series, max_parts, part_tolerance, bank, timer_fre
     series = _series(series, "--series")
     resistor_series = _series(resistor_series, "--resistor-series")
     with _OptionNames(part_tolerance="--part-tolerance", tolerance_r="--tolerance-r", duty="--duty",
-                      control_voltage="--control-voltage", max_parts="--max-parts", frequency="--target"):
+                      control_voltage="--control-voltage", max_parts="--max-parts", frequency="--target",
+                      bank="--bank", supply_v="--supply", c1_farad="--c1", diode="--diode",
+                      timer_frequency_hz="--timer-frequency"):
         advice = suggest_trim(
             fit_result, _opt_value(target, "--target"), series=series, max_parts=max_parts,
             part_tolerance=None if part_tolerance is None else parse_fraction(part_tolerance, "--part-tolerance"),

@@ -10,12 +10,15 @@ import math
 import sys
 import time
 from pathlib import Path
-from typing import Any, Optional
+from typing import TYPE_CHECKING, Any, Optional
 
 import typer
 
 from benchfit.cli.app import app
-from benchfit.cli.common import fail, print_json, stderr, stdout
+from benchfit.cli.common import fail, flag_words, print_json, stderr, stdout
+
+if TYPE_CHECKING:
+    from benchfit.log.store import LogTarget
 
 __all__ = ["drift_command", "render_summary"]
 
@@ -211,12 +214,18 @@ def drift_command(
         if live_only:
             fail(f"{live_only[0]}: only for a live run — leave FILE out to measure the line-in, or leave "
                  f"{live_only[0]} out to measure {file}")
-        run, code = _from_file(file, tau0, ch_key, harmonics, band, sample_rate, quiet or as_json), 0
-    else:
-        if sample_rate is not None:
-            fail("--sample-rate: only for a CSV file — the live rate is --rate")
-        run, code = _from_line_in(tau0, ch_key, harmonics, band, device, channels, names, rate, profile, seconds,
-                                  keep, overwrite, quiet)
+    from benchfit.errors import MeasureError
+
+    try:
+        if file is not None:
+            run, code = _from_file(file, tau0, ch_key, harmonics, band, sample_rate, quiet or as_json), 0
+        else:
+            if sample_rate is not None:
+                fail("--sample-rate: only for a CSV file — the live rate is --rate")
+            run, code = _from_line_in(tau0, ch_key, harmonics, band, device, channels, names, rate, profile,
+                                      seconds, keep, overwrite, quiet)
+    except MeasureError as e:  # the library names its parameters; say the options
+        raise MeasureError(flag_words(str(e), {"interval_s": "--interval", "band_ppm": "--band"})) from None
     d = run.to_dict()
     if unit is not None:
         d["unit"] = unit
@@ -243,7 +252,7 @@ def drift_command(
         raise typer.Exit(code)
 
 
-def _log_path(log: str | None, log_default: bool) -> Path | None:
+def _log_path(log: str | None, log_default: bool) -> "LogTarget | None":
     if log is not None and log_default:
         fail("--log and --log-default: give only one — --log PATH names the log, --log-default uses "
              "$BENCHFIT_LOG or the user data directory")
@@ -326,13 +335,13 @@ def _from_line_in(tau0: float, ch_key, harmonics: int, band: float, device: str 
                 return run_drift(blocks, interval_s=tau0, channel=ch_key, n_harmonics=harmonics, band_ppm=band,
                                  on_reading=readout, start_utc=start)
 
-            result, run, interrupted = record_blocks(consume, path=str(keep), rate=int(rate), channels=channels,
-                                                     interval_s=tau0, device=dev, profile=profile, names=chan_names,
-                                                     seconds=seconds, overwrite=overwrite)
-            if run is None:
+            result, kept_run, interrupted = record_blocks(consume, path=str(keep), rate=int(rate), channels=channels,
+                                                          interval_s=tau0, device=dev, profile=profile,
+                                                          names=chan_names, seconds=seconds, overwrite=overwrite)
+            if kept_run is None:
                 fail(f"{keep}: nothing was measured — the recording ended before the first interval")
-            run = replace(run, device=result.device, kept=str(result.path), start_utc=result.start_utc,
-                          warnings=tuple(result.warnings) + run.warnings)
+            run = replace(kept_run, device=result.device, kept=str(result.path), start_utc=result.start_utc,
+                          warnings=tuple(result.warnings) + kept_run.warnings)
     finally:
         readout.close()
     if interrupted:

@@ -1,6 +1,6 @@
 """``benchfit fit``: back-solve the effective L, C and losses of an L-C low-pass.
 
-Only typer and the standard library are imported at module level; numpy, scipy, lmfit and
+Only typer and the standard library are imported at module level; numpy, scipy and
 matplotlib load inside the command.
 """
 
@@ -9,23 +9,55 @@ from __future__ import annotations
 import enum
 import math
 from pathlib import Path
-from typing import Any, List, Literal, Optional, get_args
+from typing import Any, List, Literal, Optional, cast
 
 import typer
 
 from benchfit.cli.app import app
 
-__all__ = ["fit_command", "render_fit"]
+__all__ = ["fit_command", "render_fit", "flag_wording"]
 
 Model = Literal["lc-lowpass", "ringdown"]
 #: the same options as benchfit.fit.lowpass.MethodOption (not imported: it would load numpy)
 MethodChoice = Literal["auto", "two-channel", "one-channel"]
-_MODELS = get_args(Model)
-_METHODS = get_args(MethodChoice)
 
 #: the choices as enums, so typer checks them and the help lists them
-ModelOption = enum.Enum("ModelOption", {m.replace("-", "_"): m for m in _MODELS}, type=str)
-MethodOption = enum.Enum("MethodOption", {m.replace("-", "_"): m for m in _METHODS}, type=str)
+class ModelOption(str, enum.Enum):
+    """``--model`` choices (the values of :data:`Model`)."""
+
+    lc_lowpass = "lc-lowpass"
+    ringdown = "ringdown"
+
+
+class MethodOption(str, enum.Enum):
+    """``--method`` choices (the values of :data:`MethodChoice`)."""
+
+    auto = "auto"
+    two_channel = "two-channel"
+    one_channel = "one-channel"
+
+#: the fit functions' parameters and the options that carry them
+_FLAGS = {"fix": "--fix", "guess": "--guess", "drive": "--drive", "response": "--response",
+          "drive_duty": "--drive-duty", "method": "--method"}
+
+
+def flag_wording(message: str) -> str:
+    """A fit library message in the command line's words.
+
+    The library names its parameters as Python spells them (``fix: unknown part 'l'``,
+    ``pass fix={'L': …}``, ``use method='one-channel'``, ``time_domain=True``,
+    ``fit_ringdown()``); the command line says ``--fix``, ``--fix L=…``,
+    ``--method one-channel``, ``--time-domain`` and ``--model ringdown``.
+    """
+    import re
+
+    from benchfit.cli.common import flag_words
+
+    out = re.sub(r"\b(fix|guess)=\{'(\w+)': …\}", lambda m: f"{_FLAGS[m[1]]} {m[2]}=…", message)
+    out = re.sub(r"\btime_domain=True\b", "--time-domain", out)
+    out = re.sub(r"\bfit_ringdown\(\)", "--model ringdown", out)
+    return flag_words(out, _FLAGS)
+
 
 _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a capture.
 
@@ -78,8 +110,9 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     if d["parameters"]:
         t = Table(title="effective parts", title_justify="left", box=None, pad_edge=False,
                   header_style="bold")
-        for col, just in (("part", "left"), ("value", "right"), ("status", "left")):
-            t.add_column(col, justify=just, no_wrap=True)
+        t.add_column("part", justify="left", no_wrap=True)
+        t.add_column("value", justify="right", no_wrap=True)
+        t.add_column("status", justify="left", no_wrap=True)
         for name, p in d["parameters"].items():
             unit = units.get(p["unit"], p["unit"])
             if p["fixed"] and p.get("stderr") is not None:
@@ -230,7 +263,8 @@ def fit_command(
     from benchfit.cli.common import (check_parts_plausible, fail, parse_assignments, parse_value, print_json,
                                      stderr, stdout)
 
-    model, method = ModelOption(model).value, MethodOption(method).value
+    model_name = ModelOption(model).value
+    method_name = cast(MethodChoice, MethodOption(method).value)
     if plot is not None and plot.suffix.lower() not in (".svg", ".png"):
         fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
     if plot is not None and plot.is_dir():
@@ -263,18 +297,27 @@ def fit_command(
         cap = load(file, sample_rate=rate)
         for line in _clip_warnings(cap):
             stderr.print(f"warning: {line}", markup=False, highlight=False, soft_wrap=True)
-        if model == "ringdown":
+        if model_name == "ringdown":
             from benchfit.fit.ringdown import fit_ringdown
 
             if guessed or duty is not None or time_domain or drive is not None:
                 fail("--guess, --drive, --drive-duty and --time-domain apply to --model lc-lowpass only "
                      "— remove them for a ring-down fit")
-            result = fit_ringdown(cap, channel=response, fix=fixed or None)
+            from benchfit.errors import FitError
+
+            try:
+                result = fit_ringdown(cap, channel=response, fix=fixed or None)
+            except FitError as e:
+                raise FitError(flag_wording(str(e))) from None
         else:
+            from benchfit.errors import FitError
             from benchfit.fit.lowpass import fit_lowpass
 
-            result = fit_lowpass(cap, method=method, drive=drive, response=response, fix=fixed,
-                                 guess=guessed, drive_duty=duty, time_domain=time_domain)
+            try:
+                result = fit_lowpass(cap, method=method_name, drive=drive, response=response, fix=fixed,
+                                     guess=guessed, drive_duty=duty, time_domain=time_domain)
+            except FitError as e:
+                raise FitError(flag_wording(str(e))) from None
     if plot is not None:
         from benchfit.report.figures import fit_svg, save_figure
 

@@ -15,7 +15,8 @@ from typing import Optional
 import typer
 
 from benchfit.cli.app import app, calibrate_app
-from benchfit.cli.common import fail, parse_value, print_json, stderr, stdout
+from benchfit.cli.common import fail, flag_words, parse_value, print_json, stderr, stdout
+from benchfit.errors import MeasureError
 
 __all__ = ["devices", "record", "tune", "calibrate_gain", "calibrate_timebase", "calibrate_coupling",
            "calibrate_distortion",
@@ -509,8 +510,11 @@ def calibrate_gain(
     out = []
     when = utc_now_iso()
     for i in _pick_channels(channel, names, default_all=True):
-        est = estimate_gain(x[i], fs, rms_v, what=f"{source} channel {i + 1} ({names[i]})")
-        u_rel = combine_gain_u_rel(est.v_per_fs, est.u_v_per_fs, rms_v, meter_u)
+        try:
+            est = estimate_gain(x[i], fs, rms_v, what=f"{source} channel {i + 1} ({names[i]})")
+            u_rel = combine_gain_u_rel(est.v_per_fs, est.u_v_per_fs, rms_v, meter_u)
+        except MeasureError as err:  # the library names its parameters; say the options
+            raise MeasureError(flag_words(str(err), {"rms_known_v": "--rms", "rms_u_v": "--rms-u"})) from None
         prof = prof.with_gain(ChannelGain(channel=i + 1, v_per_fs=est.v_per_fs, u_v_per_fs=est.u_v_per_fs,
                                           reference_rms_v=rms_v, source=source, measured_utc=when,
                                           reference_u_v=meter_u, gain_u_rel=u_rel))
@@ -573,7 +577,10 @@ def calibrate_timebase(
     with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
         (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
     i = _pick_channels(channel, names, default_all=False)[0]
-    est = estimate_timebase(x[i], fs, f_ref, u_ref, what=f"{source} channel {i + 1} ({names[i]})")
+    try:
+        est = estimate_timebase(x[i], fs, f_ref, u_ref, what=f"{source} channel {i + 1} ({names[i]})")
+    except MeasureError as e:  # the library names its parameters; say the options
+        raise MeasureError(flag_words(str(e), {"reference_hz": "--frequency", "reference_u_hz": "--frequency-u", "nominal_rate": "--rate"})) from None
     prof = replace(prof, timebase=TimebaseCalibration(ppm=est.ppm, u_ppm=est.u_ppm, reference_hz=f_ref,
                                                       nominal_rate_hz=fs, source=source,
                                                       measured_utc=utc_now_iso()))

@@ -210,7 +210,7 @@ def _fit_draws(fit, n: int, rng, fixed_tol: Mapping[str, float], notes: list[str
         p = fit.parameters.get(k)
         v = None if p is None else p.value
         if k in ("L", "C") and (v is None or not v > 0):
-            raise DesignError(f"{fit.file}: the fit has no {k} — fit with --model lc-lowpass (fix one part)")
+            raise DesignError(f"{fit.file}: the fit has no {k} — fit with fit_lowpass() (fix one part)")
         vals[k] = float(v) if v is not None else (math.inf if k == "Rload" else 0.0)
     free = [k for k in names if fit.parameters.get(k) is not None and not fit.parameters[k].fixed
             and fit.parameters[k].stderr is not None and math.isfinite(vals[k])]
@@ -487,8 +487,8 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     if f_meas is None:
         lim = spec.limit_for("frequency_hz")
         if lim is None or lim.nominal is None:
-            raise DesignError("trim: the unit's frequency is unknown — give the measurement (--measurement) or "
-                              "--timer-frequency")
+            raise DesignError("trim: the unit's frequency is unknown — give the measurement (measurement=) or "
+                              "timer_frequency_hz=")
         f_meas, f_u = float(lim.nominal), None
         warnings.append(f"the drive frequency is taken as the spec's nominal {f_meas:g} Hz (not measured)")
     f_meas = float(f_meas)
@@ -509,7 +509,7 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     if fit is not None:
         if fit.model != "lc-lowpass":
             raise DesignError(f"{fit.file}: model {fit.model!r} — trim advice needs an lc-lowpass fit "
-                              "(benchfit fit CAPTURE --model lc-lowpass)")
+                              "(fit_lowpass())")
         base = _fit_draws(fit, n, rng, fixed_tol, notes)
         if fit.method == "two-channel":
             warnings.append("two-channel fit: its Rs excludes the source's own resistance (the drive was measured "

@@ -99,7 +99,7 @@ def high_time_factor(supply_v: float | None = None, control_voltage_v: float | N
         return LN2
     if supply_v is None:
         raise DesignError("supply: missing — the diode's drop and a forced control voltage change the "
-                          "charge factor with the supply; give the supply voltage (--supply)")
+                          "charge factor with the supply; give the supply voltage (supply_v=)")
     vcc = _pos(supply_v, "supply")
     vc = 2.0 * vcc / 3.0 if control_voltage_v is None else _pos(control_voltage_v, "control-voltage")
     top = vcc - float(diode_drop_v)
@@ -443,7 +443,7 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
         if not diode and d_t <= d_min:
             raise DesignError(
                 f"duty: {d_t * 100:.4g} % is impossible with the basic astable, whose high time always "
-                f"exceeds its low time (duty above {d_min * 100:.2f} % here) — use --diode (diode across RB)"
+                f"exceeds its low time (duty above {d_min * 100:.2f} % here) — use diode=True (diode across RB)"
                 " or a lower control voltage")
         duty_weight = 1.0
     else:
@@ -495,7 +495,7 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
         slow = 1.0 / sum(_times(R_MAX_OHM, R_MAX_OHM, float(c_cands.max()), k, diode))
         fast = 1.0 / sum(_times(R_MIN_OHM, R_MIN_OHM, float(c_cands.min()), k, diode))
         hint = ("use a trimmer well below 2 × RB" if pot is not None and slow <= f_t <= fast
-                else "choose another --cap" if c1_farad is not None else "ask for a frequency in that range")
+                else "choose another c1_farad" if c1_farad is not None else "ask for a frequency in that range")
         raise DesignError(f"frequency: {f_t:g} Hz cannot be reached with resistors from 1 kΩ to 1 MΩ "
                           f"(about {slow:.3g} Hz to {fast:.3g} Hz with this timing capacitor range) — {hint}")
     _, ra, rb, c = best

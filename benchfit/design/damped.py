@@ -147,8 +147,8 @@ def design_damped(frequency_hz: float, inductance: float, *, rs_ohm: float, load
     f = float(frequency_hz)
     L = float(inductance)
     if not (math.isfinite(f) and f > 0 and math.isfinite(L) and L > 0):
-        raise DesignError("filter: frequency and inductance must be positive — give e.g. --frequency 50 "
-                          "--inductance 300m")
+        raise DesignError("filter: frequency and inductance must be positive — give e.g. frequency_hz=50, "
+                          "inductance=0.3")
     if n_trials < 100:
         raise DesignError(f"trials: {n_trials!r} is too few — use at least 100")
     name = check_series(series)

@@ -65,7 +65,7 @@ def part_for_resonance(frequency_hz: float, *, inductance: float | None = None,
     g = 0.0 if load_ohm is None else 1.0 / load_ohm
     ratio = (1.0 + rs_ohm * g) / (1.0 + esr_ohm * g)
     if (inductance is None) == (capacitance is None):
-        raise DesignError("filter: give exactly one of --inductance and --capacitance")
+        raise DesignError("filter: give exactly one of inductance= and capacitance=")
     known = inductance if inductance is not None else capacitance
     return ratio / (w * w * float(known))  # type: ignore[arg-type]
 
@@ -136,7 +136,7 @@ def rectangular_response(parts, drive_hz: float, *, duty: float = 0.5, amplitude
     h = transfer(k * f, parts)
     if not np.all(np.isfinite(h)):
         raise DesignError("filter: the response is unbounded at a drive harmonic (no loss in the circuit) — "
-                          "give --rs, --esr or --load")
+                          "give rs_ohm=, esr_ohm= or load_ohm=")
     out = a * np.abs(rectangular_phasors(k, duty) * h)
     h0 = float(np.real(transfer(0.0, parts)))
     dc = a * duty * h0
@@ -269,7 +269,7 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
     f = _pos(frequency_hz, "frequency")
     name = check_series(series)
     if (inductance is None) == (capacitance is None):
-        raise DesignError("filter: give exactly one of --inductance and --capacitance — the other is solved for")
+        raise DesignError("filter: give exactly one of inductance= and capacitance= — the other is solved for")
     rs = _pos(rs_ohm, "rs", zero_ok=True)
     esr = _pos(esr_ohm, "esr", zero_ok=True)
     load = None if load_ohm is None else _pos(load_ohm, "load")
@@ -277,8 +277,8 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
     if not 0 < float(duty) < 1:
         raise DesignError(f"duty: {duty!r} must be between 0 and 1 — write e.g. 0.5 for 50 %")
     if rs == 0 and esr == 0 and load is None:
-        raise DesignError("filter: with no --rs, --esr or --load the circuit has no loss and its response at "
-                          "f0 is unbounded — give at least --rs (timer output and winding resistance)")
+        raise DesignError("filter: with no rs_ohm, esr_ohm or load_ohm the circuit has no loss and its response "
+                          "at f0 is unbounded — give at least rs_ohm= (timer output and winding resistance)")
     solved = "C" if inductance is not None else "L"
     given = _pos(inductance if inductance is not None else capacitance, "inductance" if solved == "C"
                  else "capacitance")

@@ -217,7 +217,7 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
     target = _pos(target_hz, "target")
     if fit.model not in ("lc-lowpass", "ringdown"):
         raise DesignError(f"{fit.file}: model {fit.model!r} has no filter resonance — "
-                          "fit with --model lc-lowpass or ringdown")
+                          "fit with fit_lowpass() or fit_ringdown()")
     cv, cu, cfixed = _param(fit, "C")
     lv, lu, lfixed = _param(fit, "L")
     if cv is not None and not cv > 0:
@@ -277,7 +277,7 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
                          "prediction — give the bank's make-up (--bank) or fix C in the fit")
         else:
             raise DesignError(f"{fit.file}: the fit gives the resonance but no capacitance — give the "
-                              "capacitor bank's values (--bank 22u,10u,1u) or fix C or L in the fit")
+                              "capacitor bank's values (bank=[22e-6, 10e-6, 1e-6]) or fix C or L in the fit")
     c_new = c_ref * (f0 / target) ** 2
     delta = c_new - c_ref
     # standard uncertainty of the needed total C: C_new = (a0/a2 ratio)/(ω²L) in the LC case,

@@ -1,7 +1,7 @@
 """Fitting engine shared by the lc-lowpass methods, and the identifiability analysis.
 
 The free parts are fitted as natural logarithms (so they stay positive and the Jacobian
-is in relative units) with lmfit's Levenberg–Marquardt on a vector of *whitened*
+is in relative units) with scipy's trust-region least squares on a vector of *whitened*
 residuals (each residual divided by its standard uncertainty, or multiplied by the
 inverse Cholesky factor of its covariance), so χ² has its usual meaning.
 
@@ -117,7 +117,7 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
                        fixed: Mapping[str, float],
                        extra: Mapping[str, tuple[float, float, float]] | None = None,
                        max_nfev: int = 4000):
-    """Least-squares fit of ``residual(values)`` over the log of the ``free`` parts (lmfit).
+    """Least-squares fit of ``residual(values)`` over the log of the ``free`` parts.
 
     Parameters
     ----------
@@ -135,9 +135,9 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
     -------
     (values, names, jac, chi2_red, success, message)
         Fitted values (all, SI), the fitted names (parts then extras), the whitened Jacobian
-        (log-parts, raw extras) at the solution, reduced χ², lmfit's success flag and message.
+        (log-parts, raw extras) at the solution, reduced χ², the optimiser's success flag and message.
     """
-    import lmfit
+    from scipy.optimize import least_squares
 
     extra = dict(extra or {})
     names = tuple(free) + tuple(extra)
@@ -154,25 +154,21 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
         from benchfit.errors import FitError
 
         raise FitError(f"fit: the data give only {n_res} numbers for {len(names)} unknowns "
-                       f"({', '.join(names)}) — fix known parts with --fix, or capture a drive "
+                       f"({', '.join(names)}) — give the known parts in fix={{'L': …}}, or capture a drive "
                        "whose harmonics reach further above the noise")
     if names:
-        params = lmfit.Parameters()
-        for n in free:
-            v = math.log(start[n])
-            params.add(f"log_{n}", value=v, min=v - 25.0, max=v + 25.0)
-        for n, (v, lo, hi) in extra.items():
-            params.add(f"x_{n}", value=float(v), min=lo, max=hi)
-        keys = [f"log_{n}" for n in free] + [f"x_{n}" for n in extra]
+        # trust-region reflective least squares: the log-parts may move e^25 either way (a
+        # guard, never reached by a sane fit), the extras keep their own bounds
+        lo = np.array([v - 25.0 for v in x0[:len(free)]] + [extra[n][1] for n in extra])
+        hi = np.array([v + 25.0 for v in x0[:len(free)]] + [extra[n][2] for n in extra])
 
-        def fcn(pars):
-            z = np.array([pars[k].value for k in keys])
+        def fcn(z: np.ndarray) -> np.ndarray:
             r = residual(values_from(z))
             return np.where(np.isfinite(r), r, 1e150)
 
-        out = lmfit.minimize(fcn, params, method="leastsq", max_nfev=max_nfev,
-                             xtol=1e-12, ftol=1e-12)
-        xs = np.array([out.params[k].value for k in keys])
+        out = least_squares(fcn, np.clip(x0, lo, hi), bounds=(lo, hi), method="trf", x_scale="jac",
+                            max_nfev=max_nfev, xtol=1e-12, ftol=1e-12, gtol=1e-12)
+        xs = np.asarray(out.x, dtype=float)
         success, message = bool(out.success), str(out.message)
     else:
         xs, success, message = x0, True, "no free parameters"

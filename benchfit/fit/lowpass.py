@@ -75,18 +75,18 @@ def check_parts(fix: Mapping[str, float] | None, guess: Mapping[str, float] | No
                 where: str) -> tuple[dict[str, float], dict[str, float]]:
     """Validate ``fix`` and ``guess``: known names, finite, positive (Resr may be fixed at 0)."""
     out = []
-    for option, parts in (("--fix", fix), ("--guess", guess)):
+    for option, parts in (("fix", fix), ("guess", guess)):
         clean: dict[str, float] = {}
         for name, value in (parts or {}).items():
             if name not in PART_NAMES:
-                raise FitError(f"{option} {name}: unknown part {name!r} — use one of "
+                raise FitError(f"{option}: unknown part {name!r} — use one of "
                                f"{', '.join(PARAMETER_NAMES)}")
             v = float(value)
-            zero_ok = name == "Resr" and option == "--fix"
+            zero_ok = name == "Resr" and option == "fix"
             if not math.isfinite(v) or v < 0 or (v == 0 and not zero_ok):
                 need = "zero or positive" if zero_ok else "positive"
-                raise FitError(f"{option} {name}={value!r}: {name} must be a finite, {need} value "
-                               f"in {PARAMETER_UNITS[name]} — correct the value")
+                raise FitError(f"{option}: {name} must be a finite, {need} value in "
+                               f"{PARAMETER_UNITS[name]}, not {value!r} — correct the value")
             clean[name] = v
         out.append(clean)
     return out[0], out[1]
@@ -110,7 +110,7 @@ def pick_channels(cap, drive: str | int | None, response: str | int | None) -> t
         ri = hits[0] if hits else next(i for i in range(cap.n_channels) if i != di)
     if di == ri:
         raise FitError(f"{source_name(cap)}: drive and response are the same channel "
-                       f"({names[di]!r}) — pass different --drive and --response channels")
+                       f"({names[di]!r}) — pass different channels as drive= and response=")
     return di, ri
 
 
@@ -268,14 +268,14 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
     fix_d, guess_d = check_parts({n: fv.value for n, fv in fix_specs.items()}, guess, where)
     fix_specs = {n: fix_specs[n] for n in fix_d}
     if drive_duty is not None and not (0.0 < float(drive_duty) < 1.0):
-        raise FitError(f"--drive-duty {drive_duty!r}: the duty cycle must be between 0 and 1 "
-                       "(high time / period) — pass e.g. --drive-duty 0.5")
+        raise FitError(f"drive_duty: {drive_duty!r} is not between 0 and 1 (the duty cycle is high "
+                       "time / period) — pass e.g. drive_duty=0.5")
     if method == "auto":
         method = "two-channel" if cap.n_channels >= 2 else "one-channel"
     if method == "two-channel":
         if cap.n_channels < 2:
             raise FitError(f"{where}: two-channel fitting needs the drive and the output, but the "
-                           "capture has one channel — use --method one-channel")
+                           "capture has one channel — use method='one-channel'")
         di, ri = pick_channels(cap, drive, response)
         return _two_channel(cap, di, ri, fix_d, guess_d, time_domain, fix_specs)
     from benchfit.fit.onechannel import fit_one_channel
@@ -309,8 +309,8 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         if time_domain:  # any drive will do: start from the cross-spectral estimate of H
             return _aperiodic(cap, x, y, di, fix, guess)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} has no periodic content — "
-                       "capture at least a few periods of the drive, use --time-domain for a "
-                       "non-periodic drive, or use --model ringdown")
+                       "capture at least a few periods of the drive, use time_domain=True for a "
+                       "non-periodic drive, or use fit_ringdown()")
     f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
     hx_all = noise_rescaled(fit_harmonics(x, fs, f, kmax), x, fs)
@@ -321,7 +321,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
             return _aperiodic(cap, x, y, di, fix, guess)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} is not periodic (its harmonics "
                        f"at {f:.4g} Hz explain {100 * max(0.0, 1 - hx_all.rss / var_x):.0f} % of it) — "
-                       "use --time-domain for a non-periodic drive, or check the drive channel")
+                       "use time_domain=True for a non-periodic drive, or check the drive channel")
     keep = hx_all.amplitudes > SIGNIFICANCE * hx_all.amplitudes_u
     orders = hx_all.orders[keep]
     if orders.size < 2:
@@ -334,7 +334,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     hy = _subset(hy_all, keep)
     if not np.any(hy.amplitudes > SIGNIFICANCE * hy.amplitudes_u):
         raise FitError(f"{where}: response channel {cap.channel_names[ri]!r} shows no response at the "
-                       "drive's harmonics — check the wiring, or choose the channel with --response")
+                       "drive's harmonics — check the wiring, or choose the channel with response=")
     xk, yk = hx.phasors, hy.phasors
     hk = yk / xk
     cov = complex_mult_cov(1.0 / xk, hy.phasor_cov) + complex_mult_cov(-yk / xk ** 2, hx.phasor_cov)

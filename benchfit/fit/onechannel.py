@@ -141,7 +141,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     tone = fit_tone(y, fs, n_harmonics=9)
     if tone is None or tone.amplitudes[0] <= SIGNIFICANCE * tone.amplitudes_u[0]:
         raise FitError(f"{where}: channel {name!r} has no periodic content — capture a few periods of "
-                       "the filter's output while the drive runs, or use --model ringdown")
+                       "the filter's output while the drive runs, or use fit_ringdown()")
     f = tone.frequency_hz
     f_low = true_fundamental(y, fs, f)
     if f_low != f:
@@ -157,8 +157,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         # a pure sine (or one whose harmonics drown in the noise): at most the converter's own
         # quantisation pattern stands out, which says nothing about the filter
         raise FitError(f"{where}: channel {name!r} has no harmonics above the noise, so its shape says "
-                       "nothing about the filter — capture the drive too and use --method two-channel, "
-                       "or use --model ringdown")
+                       "nothing about the filter — capture the drive too and use method='two-channel', "
+                       "or use fit_ringdown()")
     strong = np.nonzero(above_noise)[0]
     from benchfit.fit.lowpass import _subset
 

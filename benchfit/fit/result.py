@@ -1,6 +1,6 @@
 """Result of a model fit: :class:`FitResult`, a frozen dataclass with the JSON contract.
 
-Converted from lmfit at the boundary (``fit/lowpass.py``, ``fit/ringdown.py``) so that
+Built by the fits (``fit/budgets.py``, ``fit/ringdown.py``) from their own arrays so that
 report, log and design code get a stable schema. ``to_dict()`` returns exactly the object
 ``benchfit fit --json`` prints (DESIGN.md, "JSON contracts").
 """

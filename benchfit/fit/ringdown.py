@@ -19,7 +19,8 @@ its damped frequency and the ring decays. This module
 4. combines the segments by inverse-variance weighted means, the uncertainty scaled up by
    the Birge ratio √(χ²/(n−1)) when the segments scatter more than their own errors say;
 5. reports ω0 = √(ω_d² + α²) (the characteristic polynomial's roots are −α ± jω_d),
-   f0 = ω0/2π, f_d = ω_d/2π, α, and Q = ω0/(2α), with delta-method uncertainties.
+   f0 = ω0/2π, f_d = ω_d/2π, α, and Q = ω0/(2α), with first-order (GUM 5.2.2) uncertainties
+   that carry the ω_d–α covariance (:func:`ring_figures`, by the ``uncertainties`` package).
 
 With a fixed L (or C) the other follows from ω0 (light load and small ESR assumed).
 """
@@ -35,7 +36,7 @@ import numpy as np
 from benchfit.errors import FitError
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult
 
-__all__ = ["fit_ringdown", "RingSegment", "find_ring_starts", "fit_ring"]
+__all__ = ["fit_ringdown", "RingSegment", "find_ring_starts", "fit_ring", "combine_rings", "ring_figures"]
 
 _MIN_PERIODS = 3
 
@@ -115,8 +116,8 @@ def find_ring_starts(y: np.ndarray, sample_rate: float) -> tuple[list[int], floa
     # crossing to where it left the floor (10 % of the peak)
     low = np.nonzero(env < floor + 0.1 * (peak - floor))[0]
     starts = []
-    for r in crossings:
-        before = low[low < r]
+    for c in crossings:
+        before = low[low < c]
         starts.append(int(before[-1]) if before.size else 0)
     return starts, f_ring
 
@@ -182,6 +183,49 @@ def _weighted(values: np.ndarray, variances: np.ndarray) -> tuple[float, float]:
     return mean, u
 
 
+def combine_rings(omegas: np.ndarray, alphas: np.ndarray, var_omega: np.ndarray, var_alpha: np.ndarray,
+                  cov_wa: np.ndarray) -> tuple[float, float, np.ndarray]:
+    """Weighted means of ω_d and α over independent rings, and their 2×2 covariance.
+
+    Each mean is the inverse-variance weighted mean of :func:`_weighted` (u widened by its own
+    Birge ratio). With weights w_i = 1/u²(ω_i) and v_i = 1/u²(α_i) and independent rings,
+    cov(ω̄, ᾱ) = Σ w_i v_i cov_i / (Σ w_i · Σ v_i) (GUM 5.2.2 applied to the two sums); its
+    correlation coefficient is kept when the Birge ratios widen the two uncertainties.
+    """
+    wd, u_wd = _weighted(omegas, var_omega)
+    al, u_al = _weighted(alphas, var_alpha)
+    w = 1.0 / np.maximum(var_omega, 1e-300)
+    v = 1.0 / np.maximum(var_alpha, 1e-300)
+    cov = float(np.sum(w * v * cov_wa)) / (float(np.sum(w)) * float(np.sum(v)))
+    rho = cov * math.sqrt(float(np.sum(w)) * float(np.sum(v)))  # cov / (u_ω u_α) before widening
+    rho = min(1.0, max(-1.0, rho))
+    return wd, al, np.array([[u_wd * u_wd, rho * u_wd * u_al], [rho * u_wd * u_al, u_al * u_al]])
+
+
+def ring_figures(omega_d: float, alpha: float, cov: np.ndarray) -> dict[str, DerivedValue]:
+    """f0, f_d, α and Q from ω_d and α with their covariance (2×2, (rad/s)², rad/s², (1/s)²).
+
+    ω0 = √(ω_d² + α²), Q = ω0/(2α); the uncertainties are first order (GUM, JCGM 100:2008
+    5.2.2, with the covariance term), propagated by the ``uncertainties`` package.
+    """
+    from uncertainties import correlated_values, umath
+
+    wd, al = correlated_values([float(omega_d), float(alpha)], np.asarray(cov, dtype=float))
+    w0 = umath.sqrt(wd * wd + al * al)
+    q = w0 / (2 * al)
+    two_pi = 2 * math.pi
+    f0 = DerivedValue(w0.nominal_value / two_pi, w0.std_dev / two_pi)
+    return {
+        # the ring shows the loaded circuit's natural frequency; without the parts it stands in
+        # for the L-C resonance 1/(2π√(LC)), which it equals when Rs ≪ Rload and Resr ≪ Rload
+        "resonant_frequency_hz": f0,
+        "natural_frequency_hz": f0,
+        "q_factor": DerivedValue(q.nominal_value, q.std_dev),
+        "damped_frequency_hz": DerivedValue(wd.nominal_value / two_pi, wd.std_dev / two_pi),
+        "decay_rate_per_s": DerivedValue(al.nominal_value, al.std_dev),
+    }
+
+
 def fit_ringdown(capture, *, channel: str | int | None = None,
                  fix: Mapping[str, float] | None = None) -> FitResult:
     """Fit the free ringing after the edges of a slow square drive.
@@ -212,8 +256,8 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
     fix_d, _ = check_parts({n: fv.value for n, fv in fix_specs.items()}, None, where)
     unknown = [k for k in fix_d if k not in ("L", "C")]
     if unknown or len(fix_d) > 1:
-        raise FitError(f"--fix {', '.join(fix_d)}: a ring-down fit can use one known part, L or C — "
-                       "pass only --fix L=… or --fix C=…")
+        raise FitError(f"fix: a ring-down fit can use one known part, L or C, not {', '.join(fix_d)} — "
+                       "pass only fix={'L': …} or fix={'C': …}")
     try:
         if channel is not None:
             ci = cap.channel_index(channel)
@@ -259,25 +303,12 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
         raise FitError(f"{where}: no decaying ring found in {name!r} (each ring needs at least "
                        f"{_MIN_PERIODS} periods and one decay time before the next edge) — drive the "
                        "filter with a slower square wave and capture its output")
-    wd, u_wd = _weighted(np.array([s.omega for s in segments]), np.array([s.var_omega for s in segments]))
-    al, u_al = _weighted(np.array([s.alpha for s in segments]), np.array([s.var_alpha for s in segments]))
-    w0 = math.sqrt(wd * wd + al * al)
-    # delta method, ω_d and α treated as independent after averaging
-    dw0 = np.array([wd / w0, al / w0])
-    u_w0 = math.sqrt((dw0[0] * u_wd) ** 2 + (dw0[1] * u_al) ** 2)
-    q = w0 / (2 * al)
-    dq = np.array([wd / (2 * al * w0), al / (2 * al * w0) - w0 / (2 * al * al)])
-    u_q = math.sqrt((dq[0] * u_wd) ** 2 + (dq[1] * u_al) ** 2)
+    wd, al, cov_wa = combine_rings(*(np.array([getattr(s, k) for s in segments])
+                                     for k in ("omega", "alpha", "var_omega", "var_alpha", "cov_wa")))
+    derived = ring_figures(wd, al, cov_wa)
     two_pi = 2 * math.pi
-    derived = {
-        # the ring shows the loaded circuit's natural frequency; without the parts it stands in
-        # for the L-C resonance 1/(2π√(LC)), which it equals when Rs ≪ Rload and Resr ≪ Rload
-        "resonant_frequency_hz": DerivedValue(w0 / two_pi, u_w0 / two_pi),
-        "natural_frequency_hz": DerivedValue(w0 / two_pi, u_w0 / two_pi),
-        "q_factor": DerivedValue(q, u_q),
-        "damped_frequency_hz": DerivedValue(wd / two_pi, u_wd / two_pi),
-        "decay_rate_per_s": DerivedValue(al, u_al),
-    }
+    w0 = two_pi * float(derived["natural_frequency_hz"].value or 0.0)
+    u_w0 = two_pi * float(derived["natural_frequency_hz"].stderr or 0.0)
     warnings: list[str] = []
     if len(segments) < 2:
         warnings.append(f"{name}: only one ring could be fitted, so the spread between rings is not "
@@ -296,12 +327,12 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
         if spec.u is not None:  # other = 1/(ω0²·known): ∂other/∂known = −other/known
             rows.append(Contribution(f"fixed {known} ({spec.text}, {spec.distribution})", "B", spec.distribution,
                                      spec.u, unit, -val / value, math.inf, spec.source))
-        b = Budget(other, val, PARAMETER_UNITS[other], tuple(rows),
+        budget = Budget(other, val, PARAMETER_UNITS[other], tuple(rows),
                    conditional_on=() if spec.u is not None else (known,))
         fixed_b = None if spec.u is None else Budget(known, value, unit, (rows[-1].__class__(
             rows[-1].name, "B", spec.distribution, spec.u, unit, 1.0, math.inf, spec.source),))
         params[known] = FitParameter(value, spec.u, True, unit, None, fixed_b, () if spec.u else (known,))
-        params[other] = FitParameter(val, b.u, False, PARAMETER_UNITS[other], u_fit, b, b.conditional_on)
+        params[other] = FitParameter(val, budget.u, False, PARAMETER_UNITS[other], u_fit, budget, budget.conditional_on)
         warnings.append(f"{other}: computed from the resonant frequency and the fixed {known}, "
                         "assuming a light load and a small ESR")
         if spec.u is None:

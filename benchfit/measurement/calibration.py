@@ -158,7 +158,7 @@ def estimate_gain(x: np.ndarray, sample_rate: float, rms_known_v: float,
         (more than 10 % of its RMS unexplained).
     """
     if not (math.isfinite(rms_known_v) and rms_known_v > 0):
-        raise MeasureError(f"--rms: must be a positive voltage, got {rms_known_v!r} — the meter's RMS "
+        raise MeasureError(f"rms_known_v: must be a positive voltage, got {rms_known_v!r} — the meter's RMS "
                            "reading in V, e.g. 0.775")
     fit, amp = _fit_sine(x, sample_rate, what)
     rms_fs = amp / math.sqrt(2.0)
@@ -210,7 +210,7 @@ def combine_gain_u_rel(v_per_fs: float, u_v_per_fs: float, rms_known_v: float, r
     """
     if not (math.isfinite(v_per_fs) and v_per_fs > 0 and math.isfinite(rms_known_v) and rms_known_v > 0):
         raise MeasureError(f"gain: {v_per_fs!r} V/FS from {rms_known_v!r} V — both must be positive numbers")
-    for name, u in (("fit uncertainty", u_v_per_fs), ("--rms-u", rms_u_v)):
+    for name, u in (("u_v_per_fs", u_v_per_fs), ("rms_u_v", rms_u_v)):
         if not (math.isfinite(u) and u >= 0):
             raise MeasureError(f"{name}: {u!r} must be a standard uncertainty ≥ 0 — give e.g. 0.3%")
     return math.hypot(u_v_per_fs / v_per_fs, rms_u_v / rms_known_v)
@@ -257,10 +257,10 @@ def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
 
     if not (math.isfinite(reference_hz) and 0 < reference_hz < nominal_rate / 2):
         raise MeasureError(
-            f"--frequency: {reference_hz!r} Hz must be positive and below half the sample rate "
-            f"({nominal_rate / 2:g} Hz) — check --frequency, or record at a higher sample rate (--rate)")
+            f"reference_hz: {reference_hz!r} Hz must be positive and below half the sample rate "
+            f"({nominal_rate / 2:g} Hz) — check reference_hz, or record at a higher sample rate (nominal_rate)")
     if not (math.isfinite(reference_u_hz) and reference_u_hz >= 0):
-        raise MeasureError(f"--frequency-u: {reference_u_hz!r} Hz must be a standard uncertainty ≥ 0 — "
+        raise MeasureError(f"reference_u_hz: {reference_u_hz!r} Hz must be a standard uncertainty ≥ 0 — "
                            "give the reference's stated standard uncertainty in Hz")
     x = _checked_samples(x, what)
     ch = measure_channel(x, float(nominal_rate), unit="FS", timebase_u_ppm=0.0)
@@ -279,7 +279,7 @@ def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
     if abs(f_meas / reference_hz - 1.0) > 0.01:
         raise MeasureError(
             f"{what}: the tone measures {f_meas:.4f} Hz, not near the reference {reference_hz:g} Hz — "
-            "check --frequency or the generator")
+            "check reference_hz or the generator")
     u_meas = float(ch.frequency_u_hz)
     ppm = (reference_hz / f_meas - 1.0) * 1e6
     u_ppm = 1e6 * math.hypot(reference_hz * u_meas / f_meas ** 2, reference_u_hz / f_meas)

@@ -106,7 +106,7 @@ def run_drift(blocks: Iterable[Any], *, interval_s: float, channel: str | int | 
         No complete interval in the stream.
     """
     if not (math.isfinite(interval_s) and interval_s > 0):
-        raise MeasureError(f"--interval: {interval_s!r} must be a positive number of seconds — e.g. --interval 1s")
+        raise MeasureError(f"interval_s: {interval_s!r} must be a positive number of seconds — e.g. interval_s=1.0")
     tracker: IntervalTracker | None = None
     readings: list[IntervalReading] = []
     frames = None
@@ -130,6 +130,7 @@ def run_drift(blocks: Iterable[Any], *, interval_s: float, channel: str | int | 
                              "were not measured")
                 break
             start = int(round(block.t0 * block.sample_rate)) - int(round(first.t0 * first.sample_rate))
+            assert tracker is not None  # made at the first block
             r = tracker.push(block.samples[idx], start)
             readings.append(r)
             if on_reading is not None:
@@ -139,7 +140,7 @@ def run_drift(blocks: Iterable[Any], *, interval_s: float, channel: str | int | 
         interrupted = True
     if first is None or not readings:
         raise MeasureError(f"{info.get('file') or 'input'}: no complete interval of {interval_s:g} s — "
-                           "record longer or give a shorter --interval")
+                           "record longer or give a shorter interval_s")
     cal = first.calibration
     st = None
     try:

@@ -236,13 +236,13 @@ def stability(readings: Sequence[IntervalReading], *, interval_s: float,
         Fewer than 8 phase-continuous frequencies (too short a run for any statistic).
     """
     if not (math.isfinite(band_ppm) and band_ppm > 0):
-        raise MeasureError(f"--band: {band_ppm!r} must be a positive number of ppm — e.g. --band 100")
+        raise MeasureError(f"band_ppm: {band_ppm!r} must be a positive number of ppm — e.g. band_ppm=100")
     warnings: list[str] = []
     good = [r for r in readings if r.phase_rad is not None]
     chained = [r for r in good if r.chain_frequency_hz is not None]
     if len(chained) < 8:
         raise MeasureError(f"run: only {len(chained)} phase-continuous interval(s) — at least 8 are needed; "
-                           "record longer or use a shorter --interval")
+                           "record longer or use a shorter interval_s")
     missing = len(readings) - len(good)
     if missing:
         warnings.append(f"{missing} interval(s) without a tone were left out")

@@ -729,11 +729,13 @@ def test_calibration_library_messages_end_in_a_fix():
     x = 0.5 * np.sin(2 * np.pi * 50 * t)
     with pytest.raises(MeasureError) as gain_err:
         estimate_gain(x, FS, -1.0, what="sine")
-    assert str(gain_err.value) == "--rms: must be a positive voltage, got -1.0 — the meter's RMS reading in V, e.g. 0.775"
+    # from Python the parameter is named (the command line says --rms: see the audit cases)
+    assert str(gain_err.value) == ("rms_known_v: must be a positive voltage, got -1.0 — the meter's RMS reading "
+                                   "in V, e.g. 0.775")
     with pytest.raises(MeasureError) as tb_err:
         estimate_timebase(x, FS, 30000.0, 0.0, what="sine")
-    assert str(tb_err.value).startswith("--frequency: 30000.0 Hz must be positive and below half the sample rate")
-    assert str(tb_err.value).endswith(" — check --frequency, or record at a higher sample rate (--rate)")
+    assert str(tb_err.value).startswith("reference_hz: 30000.0 Hz must be positive and below half the sample rate")
+    assert str(tb_err.value).endswith(" — check reference_hz, or record at a higher sample rate (nominal_rate)")
 
 
 def test_top_help_lists_the_live_commands_and_demo_on_one_line_each(capsys):

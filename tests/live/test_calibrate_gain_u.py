@@ -96,7 +96,7 @@ def test_combine_refuses_nonsense():
     from benchfit.errors import MeasureError
 
     assert combine_gain_u_rel(2.0, 0.006, 1.0, 0.004) == pytest.approx(math.hypot(0.003, 0.004), rel=1e-15)
-    with pytest.raises(MeasureError, match="--rms-u"):
+    with pytest.raises(MeasureError, match="rms_u_v"):  # the parameter's name (the CLI says --rms-u)
         combine_gain_u_rel(2.0, 0.0, 1.0, -1e-3)
     with pytest.raises(MeasureError, match="must be positive"):
         combine_gain_u_rel(0.0, 0.0, 1.0, 1e-3)
