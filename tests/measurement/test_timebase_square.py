@@ -93,5 +93,5 @@ def test_a_sine_reference_still_uses_the_harmonic_fit():
 
 def test_bad_reference_uncertainty_is_one_line():
     x = _square(0.0, 0.5, 1, tau_s=None, sigma=1e-3)
-    with pytest.raises(MeasureError, match=r"^--frequency-u: .* — give the reference's stated"):
+    with pytest.raises(MeasureError, match=r"^reference_u_hz: .* — give the reference's stated"):
         estimate_timebase(x, FS, 50.0, reference_u_hz=-1.0)
