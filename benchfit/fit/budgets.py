@@ -12,6 +12,7 @@ from typing import Mapping
 
 import numpy as np
 
+from benchfit.fit.common import parts_of, source_name
 from benchfit.fit.identify import (DERIVED_NAMES, Identification, ambiguity, correlations, derived_values,
                                    display_unit, numeric_jacobian, parameter_table, undetermined_warning)
 from benchfit.fit.propagate import InputSpec, derived_budget, input_sensitivities, part_budget, total_log_covariance
@@ -30,14 +31,6 @@ MODEL_NAME = "lc-lowpass"
 #: below this Q the two poles of the low-pass are 100× apart or more: no resonance to speak of, and
 #: the data look like a first-order R-C low-pass (common practice, no source)
 _NO_RESONANCE_Q = 0.1
-
-
-def source_name(cap) -> str:
-    return cap.source or "capture"
-
-
-def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
 
 
 def input_specs(fix_specs: Mapping[str, FixedValue], fixed: Mapping[str, float], folded: list[str],
@@ -131,7 +124,7 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
         for alt in alternatives or []:
             if name not in DERIVED_NAMES:
                 continue
-            other = second_order(_parts(alt))[name]
+            other = second_order(parts_of(alt))[name]
             if not math.isfinite(other):
                 continue
             diff = abs(other - dv.value)

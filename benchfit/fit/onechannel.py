@@ -25,10 +25,11 @@ from typing import Mapping
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import LowpassParts, rectangular_phasors, transfer
-from benchfit.fit.lowpass import (MAX_ORDER, SIGNIFICANCE, assemble, check_not_silent, complex_mult_cov,
-                                  input_specs, noise_rescaled, propagate, quality_complex, solve, source_name,
-                                  start_parts, whiten, whitening)
+from benchfit.model.filter import rectangular_phasors, transfer
+from benchfit.fit.budgets import assemble, input_specs, propagate, source_name
+from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov, noise_rescaled,
+                                 parts_of, quality_complex, start_parts, subset, whiten, whitening)
+from benchfit.fit.identify import solve
 from benchfit.fit.result import FitCurves
 
 __all__ = ["fit_one_channel"]
@@ -46,10 +47,6 @@ _MIN_HARMONIC_REL = 1e-5
 #: code step of a 24-bit capture (2⁻²³ ≈ 1.2e-7 of full scale). A noise-free (synthetic, float)
 #: file otherwise yields zero uncertainties, and the whitened fit divides by them
 _U_FLOOR_REL = 1e-7
-
-
-def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
 
 
 def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
@@ -160,10 +157,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                        "nothing about the filter — capture the drive too and use --method two-channel, "
                        "or use --model ringdown")
     strong = np.nonzero(above_noise)[0]
-    from benchfit.fit.lowpass import _subset
-
     keep = hy_all.orders <= int(hy_all.orders[strong[-1]])
-    hy = _subset(hy_all, keep)  # orders 1…K; the fit included all orders below the limit
+    hy = subset(hy_all, keep)  # orders 1…K; the fit included all orders below the limit
     orders = hy.orders
     yk = hy.phasors
     cov = hy.phasor_cov + u_floor ** 2 * np.eye(2)  # never below the resolution floor (see _U_FLOOR_REL)
@@ -180,7 +175,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
 
     def model_phasors(v: Mapping[str, float]) -> np.ndarray:
         duty = v["duty"] if "duty" in v else drive_duty
-        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, _parts(v))
+        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, parts_of(v))
 
     def gain(wm: np.ndarray) -> float:
         return float(wm @ wy) / max(float(wm @ wm), 1e-300)
