@@ -25,11 +25,13 @@ from typing import Mapping
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import rectangular_phasors, transfer
+from benchfit.model.filter import PARAMETER_NAMES, rectangular_phasors, transfer
 from benchfit.fit.budgets import assemble, input_specs, propagate, source_name
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov, noise_rescaled,
                                  parts_of, quality_complex, start_parts, subset, whiten, whitening)
-from benchfit.fit.identify import solve
+from benchfit.fit.identify import fit_log_parameters, identify, solve
+from benchfit.fit.marginal import Nuisance, figures_of, marginalise
+from benchfit.fit.marginal import apply as apply_marginal
 from benchfit.fit.result import FitCurves
 
 __all__ = ["fit_one_channel"]
@@ -213,6 +215,18 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                 else f"{100 * min(d, 1 - d):.1f} % (not determined)")
         warnings.insert(0, f"duty: the drive's duty cycle was fitted as {text} "
                            "(or its complement; the output alone cannot tell which)")
+    nuis = _nuisances(values, fix, ident)
+    marg = None
+    if nuis:
+        ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
+        marg = marginalise(residual, values, fix, nuis, ex_now, PARAMETER_NAMES)
+        held = {q.name: marg.best[q.name] for q in nuis}
+        free = tuple(n for n in PARAMETER_NAMES if n not in fix and n not in held)
+        ex_now = {n: (marg.best[n], lo, hi) for n, (_, lo, hi) in extra.items()}
+        values, names, jac, chi2_red, ok, msg = fit_log_parameters(residual, marg.best, free, {**fix, **held}, ex_now)
+        ident = identify(jac, names, chi2_red)
+        fixed, folded, alts = dict(fix), [], []
+        warnings = [m for m in warnings if not m.startswith("Resr:")]  # the fold is replaced by the marginal
     mk = model_phasors(values)
     g = gain(whiten(w, mk))
     y_model_k = g * mk
@@ -228,5 +242,36 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
            "(resonant frequency, Q, ESR zero) and the parts only once one of them is known")
     specs = input_specs(fix_specs or {}, fixed, folded)
     sens = propagate(residual, values, ident, specs)
-    return assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
-                    quality_complex(yk, y_model_k), ok, msg, alts, specs, sens)
+    result = assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
+                      quality_complex(yk, y_model_k), ok, msg, alts, specs, sens)
+    return result if marg is None else apply_marginal(result, marg)
+
+
+def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> tuple[Nuisance, ...]:
+    """The parts an output-only capture cannot pin, with their stated plausible ranges.
+
+    With the drive level unknown the output's shape fixes ω0, Q and the ESR zero: three numbers
+    for C, Rs, ESR and Rload once L (or C) is known. So the ESR shows only through the magnitude of
+    its zero (information ∝ ESR², a linearised error is meaningless near 0) and Rs and the load
+    share the damping along a direction the data do not see. Both are integrated out
+    (:mod:`benchfit.fit.marginal`) unless given; the scale (L or C) must be known.
+    """
+    if not ({"L", "C"} & set(fix)) or {"L", "C"} <= set(ident.undetermined):
+        return ()
+    total = figures_of(values)["total_loss_ohm"]
+    if not (math.isfinite(total) and total > 0):
+        return ()
+    out = []
+    if "Resr" not in fix:
+        out.append(Nuisance("Resr", 0.0, total, "value", f"0…{total:.3g} Ω (rectangular)",
+                            "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
+                            "an ESR meter on the capacitor would pin it (then --fix Resr=…)"))
+    if "Rload" not in fix and "Rs" not in fix:
+        l_over_c = float(values["L"]) / float(values["C"])
+        g_max = total / l_over_c
+        out.append(Nuisance("Rload", 0.0, g_max, "conductance",
+                            f"{l_over_c / total:.3g} Ω … open (1/Rload rectangular on 0…{g_max:.3g} S)",
+                            "the data's own bound: the load takes anywhere from none to all of the damping "
+                            "the response shows", "measuring the load resistance (then --fix Rload=…) "
+                            "would split Rs from it"))
+    return tuple(out)
