@@ -247,7 +247,8 @@ def channel_gain_ratio(cap, di: int, ri: int) -> tuple[FixedValue, str | None]:
 
 
 def compare_core_loss(residual, values: Mapping[str, float], ident: Identification,
-                      fixed: Mapping[str, float], fix: Mapping[str, float]):
+                      fixed: Mapping[str, float], fix: Mapping[str, float],
+                      extra: Mapping[str, tuple[float, float, float]] | None = None):
     """Does a core loss (Rp across L) explain the data better? F-test and AIC/BIC.
 
     The base fit (no Rp) and fits with Rp free from two starts (Rp = 10 and 100 × ω0·L)
@@ -256,6 +257,9 @@ def compare_core_loss(residual, values: Mapping[str, float], ident: Identificati
     (the extra-sum-of-squares F-test, e.g. Bates & Watts, *Nonlinear Regression Analysis*,
     from memory); AIC = χ² + 2p and BIC = χ² + p·ln n on the same χ². The core-loss model is
     chosen when p < 0.001 and its Rp is a finite, positive value.
+
+    ``extra`` are the further parameters of the residual (a one-channel fit's timing phase and
+    duty: name → (start, min, max)); they are refitted in the core-loss model too.
 
     Returns (summary dict, start values of the chosen core-loss model or None).
     """
@@ -275,8 +279,9 @@ def compare_core_loss(residual, values: Mapping[str, float], ident: Identificati
     for m in (10.0, 100.0):
         st = {k: (v if v > 0 else 1e-3 * math.sqrt(values["L"] / values["C"])) for k, v in values.items()}
         st["Rp"] = m * w0l
+        ex = {k: (float(values[k]), lo, hi) for k, (_, lo, hi) in (extra or {}).items()} or None
         try:
-            v1, names1, _, chi2r1, ok1, _ = fit_log_parameters(residual, st, free, base_fixed, None, max_nfev=1500)
+            v1, names1, _, chi2r1, ok1, _ = fit_log_parameters(residual, st, free, base_fixed, ex, max_nfev=1500)
         except Exception:  # a start that fails to converge is skipped, others remain
             continue
         chi1 = chi2r1 * max(n - len(names1), 1)

@@ -36,6 +36,8 @@ __all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "FIGURE_NAMES"]
 
 #: grid points per nuisance axis (a second pass refines an axis whose posterior is narrow)
 _POINTS = {1: 15, 2: 7}
+#: grid passes at most (each later one refines the axes whose posterior is narrower than its steps)
+_ROUNDS = 3
 #: the figures reported from a marginalised fit besides the parts
 FIGURE_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "natural_frequency_hz", "q_factor",
                                  "damped_frequency_hz", "decay_rate_per_s", "total_loss_ohm")
@@ -56,6 +58,10 @@ class Nuisance:
     range_text: str
     source: str
     measure: str
+    #: False: never reported as a value even where its posterior is narrow (another loss it cannot be
+    #: told from is not in the model, e.g. an ESR versus a choke's core loss seen from the output alone)
+    reportable: bool = True
+    why: str = ""
 
     def part(self, x: float) -> float:
         if self.variable == "conductance":
@@ -153,14 +159,15 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
     free = tuple(n for n in part_names if n not in fixed and n not in {q.name for q in nuis})
     keys = tuple(free) + tuple(q.name for q in nuis) + FIGURE_NAMES
     spans = [(q.lo, q.hi) for q in nuis]
-    rows: list[tuple[np.ndarray, float, dict[str, float], dict[str, float], dict[str, float], int]] = []
+    rows: list[tuple] = []  # (point, χ², values, estimates, fit u, dof, prior mass of its cell)
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items() if k in free}
     ex = dict(extra or {})
-    for rnd in range(2):
-        pts = _grid(nuis, spans)
-        prev = dict(start)
-        prev_ex = dict(ex)
-        for pt in pts:
+    n_axis = _POINTS[len(nuis)]
+    for _ in range(_ROUNDS):
+        cell = float(np.prod([(hi - lo) / (n_axis - 1) for lo, hi in spans]))
+        prev, prev_ex = dict(start), dict(ex)
+        fresh = []
+        for pt in _grid(nuis, spans):
             fx = dict(fixed)
             fx.update({q.name: q.part(float(x)) for q, x in zip(nuis, pt)})
             try:
@@ -176,42 +183,30 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
             est, uest = _quantities(v, names, jac, 1.0, keys)
             if not all(math.isfinite(x) for x in est.values()):
                 continue
-            rows.append((pt, chi2, v, est, uest, n_res - len(names)))
-        if rnd == 1:
-            break
-        # refine an axis whose posterior is narrower than two grid steps
-        chi = np.array([r[1] for r in rows])
-        best = int(np.argmin(chi))
-        s = max(1.0, chi[best] / max(rows[best][5], 1))
-        w = np.exp(-(chi - chi[best]) / (2 * s))
-        w /= w.sum()
-        pts_done = np.array([r[0] for r in rows])
-        new_spans = []
-        refine = False
+            fresh.append((pt, chi2, v, est, uest, n_res - len(names), cell))
+        # the new points replace the earlier (coarser) ones inside their spans
+        rows = [r for r in rows if not all(lo <= x <= hi for x, (lo, hi) in zip(r[0], spans))] + fresh
+        if not rows:
+            raise ValueError("no grid point could be fitted")
+        w = _weights(rows)
+        pts = np.array([r[0] for r in rows])
+        best = rows[int(np.argmax(w))]
+        new_spans, refine = [], False
         for a, (lo, hi) in enumerate(spans):
-            m = float(w @ pts_done[:, a])
-            sd = math.sqrt(max(float(w @ (pts_done[:, a] - m) ** 2), 0.0))
-            step = (hi - lo) / (_POINTS[len(nuis)] - 1)
-            if sd < 2 * step:
+            m = float(w @ pts[:, a])
+            sd = math.sqrt(max(float(w @ (pts[:, a] - m) ** 2), 0.0))
+            step = (hi - lo) / (n_axis - 1)
+            if sd < 2 * step and step > 1e-9 * max(abs(m), 1e-300):  # narrower than the grid: refine
                 refine = True
                 half = max(5 * sd, 1.5 * step)
-                new_spans.append((max(lo, m - half), min(hi, m + half)))
+                new_spans.append((max(nuis[a].lo, m - half), min(nuis[a].hi, m + half)))
             else:
                 new_spans.append((lo, hi))
         if not refine:
             break
-        # the refined grid replaces the coarse one on the refined axes; coarse points outside
-        # the new spans keep their (negligible) weight through the uniform prior density
         spans = new_spans
-        start = {k: rows[best][2][k] for k in free}
-        ex = {k: (rows[best][2][k], lo, hi) for k, (_, lo, hi) in ex.items()}
-        coarse = rows
-        rows = []
-    else:
-        coarse = []
-    if not rows:
-        raise ValueError("no grid point could be fitted")
-    rows = _with_density(rows, coarse, nuis, spans)
+        start = {k: best[2][k] for k in free}
+        ex = {k: (best[2][k], lo, hi) for k, (_, lo, hi) in ex.items()}
     chi = np.array([r[1] for r in rows])
     dens = np.array([r[6] for r in rows])
     best = int(np.argmin(chi))
@@ -234,21 +229,14 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
                     chi2_red, dof)
 
 
-def _with_density(rows, coarse, nuis, spans):
-    """Attach each point's prior mass (grid cell volume): refined points carry smaller cells."""
-    out = []
-    n = _POINTS[len(nuis)]
-    fine_cell = float(np.prod([(hi - lo) / (n - 1) for lo, hi in spans]))
-    for r in rows:
-        out.append((*r, fine_cell))
-    if coarse:
-        c_spans = [(q.lo, q.hi) for q in nuis]
-        c_cell = float(np.prod([(hi - lo) / (n - 1) for lo, hi in c_spans]))
-        for r in coarse:
-            inside = all(lo <= x <= hi for x, (lo, hi) in zip(r[0], spans))
-            if not inside:
-                out.append((*r, c_cell))
-    return out
+def _weights(rows) -> np.ndarray:
+    """Posterior weights: likelihood (Birge-scaled Δχ², module docstring) times the prior mass of each cell."""
+    chi = np.array([r[1] for r in rows])
+    dens = np.array([r[6] for r in rows])
+    b = int(np.argmin(chi))
+    s = max(1.0, float(chi[b]) / max(rows[b][5], 1))
+    w = dens * np.exp(-(chi - chi[b]) / (2 * s))
+    return w / w.sum()
 
 
 _UNITS = {"resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "q_factor": "1", "damped_frequency_hz": "Hz",
@@ -308,7 +296,7 @@ def apply(result, marg: Marginal):
         b = Budget(q.name, float(value) if math.isfinite(value) else 0.0, unit,
                    (Contribution(f"posterior of {q.name} over {q.range_text}", "B", "posterior over the stated range",
                                  float(u) if math.isfinite(u) else 0.0, unit, 1.0, math.inf, q.source),))
-        if pinned and math.isfinite(u) and u < _REL_LIMIT * abs(value):
+        if q.reportable and pinned and math.isfinite(u) and u < _REL_LIMIT * abs(value):
             params[q.name] = FitParameter(float(value), float(u), False, unit, float(u), b)
         else:
             params[q.name] = FitParameter(float(value) if math.isfinite(value) else None, None, False, unit, None, b)
@@ -335,7 +323,8 @@ def apply(result, marg: Marginal):
             derived[name] = DerivedValue(float(value), b.u, marg.u_fit[name], b, b.conditional_on)
     derived.pop("series_loss_ohm", None)
     for q in notes:
-        warn.append(f"{q.name}: not determined by these data; it is marginalised over {q.range_text} ({q.source}) "
+        why = q.why or "not determined by these data"
+        warn.append(f"{q.name}: {why}; it is marginalised over {q.range_text} ({q.source}) "
                     f"into the other values' uncertainties — {q.measure}")
     if undetermined:
         tl = derived["total_loss_ohm"]

@@ -25,8 +25,8 @@ from typing import Mapping
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import PARAMETER_NAMES, rectangular_phasors, transfer
-from benchfit.fit.budgets import assemble, input_specs, propagate, source_name
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, rectangular_phasors, transfer
+from benchfit.fit.budgets import assemble, compare_core_loss, input_specs, propagate, source_name
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov, noise_rescaled,
                                  parts_of, quality_complex, start_parts, subset, whiten, whitening)
 from benchfit.fit.identify import fit_log_parameters, identify, solve
@@ -203,6 +203,24 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     if drive_duty is None:
         extra["duty"] = (d0, _DUTY_MIN * 0.5, 1.0 - _DUTY_MIN * 0.5)
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix, extra)
+    comparison, parts = None, PARAMETER_NAMES
+    if "Rp" not in fix:  # a core loss (Rp across L): its loss rises as f², a shape the output shows
+        comparison, chosen = compare_core_loss(residual, values, ident, fixed, fix,
+                                               {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()})
+        if chosen is not None and comparison is not None:
+            refit = solve(residual, chosen, fix, {n: (chosen[n], lo, hi) for n, (_, lo, hi) in extra.items()},
+                          parts=PART_NAMES)
+            if "Rp" in refit[1].undetermined:
+                comparison["chosen"] = comparison["models"][0]
+                comparison["note"] = (f"core loss: the data call for a loss rising with frequency (F-test p = "
+                                      f"{comparison['p_value']:.2g}) but do not separate Rp from the other losses, "
+                                      "so the plain model is kept, its uncertainties Birge-scaled, and the total "
+                                      "loss is what to read — measure the choke's loss (or Q) on its own to split it")
+                warnings = list(warnings) + [comparison["note"]]
+            else:
+                values, ident, fixed, folded, warnings, ok, msg, alts = refit
+                warnings = list(warnings) + [comparison["note"]]
+                parts = PART_NAMES
     if drive_duty is None:
         warnings = list(warnings)
         d = values["duty"]
@@ -219,9 +237,9 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     marg = None
     if nuis:
         ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-        marg = marginalise(residual, values, fix, nuis, ex_now, PARAMETER_NAMES)
+        marg = marginalise(residual, values, fix, nuis, ex_now, parts)
         held = {q.name: marg.best[q.name] for q in nuis}
-        free = tuple(n for n in PARAMETER_NAMES if n not in fix and n not in held)
+        free = tuple(n for n in parts if n not in fix and n not in held)
         ex_now = {n: (marg.best[n], lo, hi) for n, (_, lo, hi) in extra.items()}
         values, names, jac, chi2_red, ok, msg = fit_log_parameters(residual, marg.best, free, {**fix, **held}, ex_now)
         ident = identify(jac, names, chi2_red)
@@ -244,6 +262,11 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     sens = propagate(residual, values, ident, specs)
     result = assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
                       quality_complex(yk, y_model_k), ok, msg, alts, specs, sens)
+    if comparison is not None:
+        from dataclasses import replace
+
+        result = replace(result, adequacy={**result.adequacy,
+                                           "model_comparison": {k: v for k, v in comparison.items() if k != "note"}})
     return result if marg is None else apply_marginal(result, marg)
 
 
@@ -265,7 +288,11 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> 
     if "Resr" not in fix:
         out.append(Nuisance("Resr", 0.0, total, "value", f"0…{total:.3g} Ω (rectangular)",
                             "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
-                            "an ESR meter on the capacitor would pin it (then --fix Resr=…)"))
+                            "an ESR meter on the capacitor would pin it (then --fix Resr=…)",
+                            reportable="Rp" in fix or "Rp" in values,
+                            why="not separated by an output-only capture: a core loss in the choke also turns "
+                                "the roll-off above resonance from 1/f² towards 1/f, as the ESR does"
+                                if "Rp" not in fix and "Rp" not in values else ""))
     if "Rload" not in fix and "Rs" not in fix:
         l_over_c = float(values["L"]) / float(values["C"])
         g_max = total / l_over_c
