@@ -16,7 +16,7 @@ from benchfit.fit.common import parts_of, source_name
 from benchfit.fit.identify import (DERIVED_NAMES, Identification, ambiguity, correlations, derived_values,
                                    display_unit, numeric_jacobian, parameter_table, undetermined_warning)
 from benchfit.fit.propagate import InputSpec, derived_budget, input_sensitivities, part_budget, total_log_covariance
-from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult
+from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult, Method
 from benchfit.fit.tolerance import FixedValue
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
 from benchfit.uncertainty import (DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL, DEFAULT_CHANNEL_RATIO_NOTE, Budget,
@@ -62,7 +62,7 @@ def propagate(residual, values: Mapping[str, float], ident: Identification,
     return input_sensitivities(residual, values, ident, specs, {n: z0 for n in specs})
 
 
-def assemble(cap, method: str, values: dict[str, float], ident: Identification,
+def assemble(cap, method: Method, values: dict[str, float], ident: Identification,
              user_fix: Mapping[str, float], folded: list[str], warnings: list[str],
              curves: FitCurves, quality: FitQuality, success: bool, message: str,
              alternatives: list[dict[str, float]] | None = None,
@@ -83,21 +83,22 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
     cond = tuple(n for n, sp in specs.items() if sp.u is None)
     for name, p in list(params.items()):
         spec = specs.get(name)
-        if name in folded:
+        b: Budget | None
+        if name in folded and spec is not None and spec.u is not None:
             b = Budget(name, float(values[name]), p.unit,
                        (Contribution(spec.label, "B", "rectangular", float(spec.u), p.unit, 1.0, math.inf,
                                      spec.fixed.source),))
             params[name] = FitParameter(0.0, None, False, p.unit, None, b)
         elif p.fixed:
-            b = None if spec is None or spec.u is None else Budget(
+            b = None if spec is None or spec.u is None or p.value is None else Budget(
                 name, float(p.value), p.unit, (Contribution(spec.label, "B", spec.fixed.distribution, float(spec.u),
                                                             p.unit, 1.0, math.inf, spec.fixed.source),))
             params[name] = FitParameter(p.value, None if b is None else b.u, True, p.unit, None, b,
                                         (name,) if b is None else ())
-        elif p.stderr is not None and name in ident.names:
+        elif p.stderr is not None and p.value is not None and name in ident.names:
             j = ident.names.index(name)
-            b = part_budget(name, float(p.value), p.unit, j, p.stderr, ident, specs, sens, dof)
-            params[name] = FitParameter(p.value, b.u, False, p.unit, p.stderr, b, b.conditional_on)
+            pb = part_budget(name, float(p.value), p.unit, j, p.stderr, ident, specs, sens, dof)
+            params[name] = FitParameter(p.value, pb.u, False, p.unit, p.stderr, pb, pb.conditional_on)
     z0 = math.sqrt(values["L"] / values["C"])
     high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
     named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
@@ -131,10 +132,10 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
             if diff > 0.05 * abs(dv.value):
                 derived[name] = DerivedValue(dv.value, None)
             elif diff > 3 * dv.stderr:  # small but significant: widen by half the spread
-                b = dv.budget.with_rows(Contribution("other equally good solution (half the spread)", "B",
-                                                     "rectangular", diff / 2, dv.budget.unit, 1.0)) \
+                wb = dv.budget.with_rows(Contribution("other equally good solution (half the spread)", "B",
+                                                      "rectangular", diff / 2, dv.budget.unit, 1.0)) \
                     if dv.budget is not None else None
-                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, b,
+                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, wb,
                                              dv.conditional_on)
     q = derived.get("q_factor")
     if q is not None and q.value is not None and 0 < q.value < _NO_RESONANCE_Q:

@@ -190,7 +190,7 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
             raise ValueError("no grid point could be fitted")
         w = _weights(rows)
         pts = np.array([r[0] for r in rows])
-        best = rows[int(np.argmax(w))]
+        best: tuple = rows[int(np.argmax(w))]
         new_spans, refine = [], False
         for a, (lo, hi) in enumerate(spans):
             m = float(w @ pts[:, a])
@@ -208,14 +208,14 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         start = {k: best[2][k] for k in free}
         ex = {k: (best[2][k], lo, hi) for k, (_, lo, hi) in ex.items()}
     chi = np.array([r[1] for r in rows])
-    dens = np.array([r[6] for r in rows])
-    best = int(np.argmin(chi))
-    dof = max(rows[best][5], 1)
-    chi2_red = float(chi[best] / dof)
+    ib = int(np.argmin(chi))
+    dof = max(int(rows[ib][5]), 1)
+    chi2_red = float(chi[ib] / dof)
     s = max(1.0, chi2_red)
-    w = dens * np.exp(-(chi - chi[best]) / (2 * s))
-    w = w / w.sum()
-    mean, u_fit, u_spread = {}, {}, {}
+    w = _weights(rows)
+    mean: dict[str, float] = {}
+    u_fit: dict[str, float] = {}
+    u_spread: dict[str, float] = {}
     for k in keys:
         q = np.array([r[3][k] for r in rows])
         uq = np.array([r[4][k] for r in rows])
@@ -225,7 +225,7 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         u_fit[k] = math.sqrt(float(w @ np.nan_to_num(uq, nan=0.0) ** 2)) if np.all(np.isfinite(uq)) else math.nan
     # the fit covariance above is unscaled (noise known from the phasors): Birge-scale it here
     u_fit = {k: v * math.sqrt(s) for k, v in u_fit.items()}
-    return Marginal(nuis, np.array([r[0] for r in rows]), w, chi, dict(rows[best][2]), mean, u_fit, u_spread,
+    return Marginal(nuis, np.array([r[0] for r in rows]), w, chi, dict(rows[ib][2]), mean, u_fit, u_spread,
                     chi2_red, dof)
 
 
@@ -257,7 +257,10 @@ def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, lab
                          "grid marginalisation over the stated prior range (fit.marginal)")]
     cond: tuple[str, ...] = ()
     if base_budget is not None:
-        rows += [c for c in base_budget.contributions if c.name.startswith("fixed ")]
+        # the inputs the fit held (fixed parts' tolerances, a channel gain ratio) keep their rows; the fit's
+        # own row and any linearised prior are replaced by the two rows above
+        rows += [c for c in base_budget.contributions
+                 if not (c.name.startswith("noise") or c.name.startswith("undetermined"))]
         cond = base_budget.conditional_on
     return Budget(name, float(value), unit, tuple(rows), conditional_on=cond)
 

@@ -15,6 +15,14 @@ the shape of H — resonant frequency, Q and the ESR zero — but not the impeda
 its inverse of duty 1 − D differ only in sign and timing, so D is reported as the smaller
 of the two. When the capture's input coupling time constant is known
 (``Capture.calibration.coupling_tau_s``) the phasors are corrected for that high-pass first.
+
+With L (or C) known the shape still leaves two parts open: Rs and the load share the damping
+along a direction the output does not see, and the ESR shows only through the magnitude of its
+zero (information ∝ ESR²), where a core loss in the choke looks the same. Both are integrated
+out over stated ranges (:mod:`benchfit.fit.marginal`) unless given with ``fix``: Rs, the ESR and
+the load are then reported as not separated, and ``total_loss_ohm`` (Rs + ESR + L/(C·Rload)) is
+the loss the data do determine. The core-loss comparison (F-test, AIC/BIC) runs as in the
+two-channel fit; Rp is added only when the data support it and determine it.
 """
 
 from __future__ import annotations
@@ -64,7 +72,7 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
     w = 1.0 / np.maximum(amp_u, 1e-300) ** 2
     rot = np.conj(yk[0]) / max(abs(yk[0]), 1e-300)
     z = yk * rot ** k
-    pk = rectangular_phasors(k[None, :], d[:, None])  # (D, K)
+    pk = rectangular_phasors(k[None, :], d[:, None])  # type: ignore[arg-type]  # broadcasts: (D, K)
 
     def best_of(r: np.ndarray, q: np.ndarray) -> tuple[float, float, float, float]:
         kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
@@ -144,8 +152,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     f = tone.frequency_hz
     f_low = true_fundamental(y, fs, f)
     if f_low != f:
-        tone = fit_tone(y, fs, n_harmonics=max(9, int(round(f / f_low)) + 3), frequency_hz=f_low)
-        f = tone.frequency_hz
+        refit = fit_tone(y, fs, n_harmonics=max(9, int(round(f / f_low)) + 3), frequency_hz=f_low)
+        f = refit.frequency_hz if refit is not None else f_low
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
     hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
     a1 = float(hy_all.amplitudes[0])
@@ -176,7 +184,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     k = orders.astype(float)
 
     def model_phasors(v: Mapping[str, float]) -> np.ndarray:
-        duty = v["duty"] if "duty" in v else drive_duty
+        duty = float(v["duty"] if "duty" in v else drive_duty)  # type: ignore[arg-type]  # given when not fitted
         return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, parts_of(v))
 
     def gain(wm: np.ndarray) -> float:
