@@ -46,7 +46,8 @@ def main() -> None:
                       f"   mean {np.mean(a):+5.2f}   (n = {a.size})")
             band = [math.sqrt(chi2.ppf(p, n - 1) / (n - 1)) for p in (0.0005, 0.9995)] if n > 1 else [0.0, 0.0]
             print(f"  => max|z| {worst[0]:.2f} ({worst[1]}); sd(z) {min(sds, default=0):.2f}…{max(sds, default=0):.2f}"
-                  f" (99.9 % band of an honest sd for {n} seeds: {band[0]:.2f}…{band[1]:.2f})")
+                  f" (99.9 % band of an honest sd for {n} seeds: {band[0]:.2f}…{band[1]:.2f}; an sd below it is"
+                  " expected where a Type B term constant over the seeds, e.g. a fixed part's tolerance, dominates u)")
 
 
 if __name__ == "__main__":
