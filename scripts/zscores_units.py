@@ -2,16 +2,19 @@
 
 For each case of tests/fit/units_issue11.py (ngspice-simulated, seeded noise) and each reported
 value: max |z|, sd and mean of z = (reported − true)/u over the seeds, and what was reported as
-not determined. Needs ngspice.
+not determined, then per case the largest |z| and the range of sd(z) against the χ² band an
+honest sd would stay in (scipy.stats.chi2). Needs ngspice.
 """
 
 from __future__ import annotations
 
+import math
 import sys
 import tempfile
 from pathlib import Path
 
 import numpy as np
+from scipy.stats import chi2
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
@@ -30,11 +33,21 @@ def main() -> None:
                 for k, v in z.items():
                     zs.setdefault(k, []).append(v)
             und = sorted({u for _, _, us in rows for u in us})
-            print(f"{name} ({n} seeds); not determined in some seed: {', '.join(und) or 'none'}")
+            print(f"{name} ({n} seeds); not determined / not separated in some seed: {', '.join(und) or 'none'}")
+            worst = (0.0, "")
+            sds = []
             for k, v in zs.items():
                 a = np.asarray(v)
-                print(f"  {k:22s} max|z| {np.max(np.abs(a)):5.2f}   sd {np.std(a, ddof=1) if a.size > 1 else 0:5.2f}"
+                sd = float(np.std(a, ddof=1)) if a.size > 1 else 0.0
+                sds.append(sd)
+                if np.max(np.abs(a)) > worst[0]:
+                    worst = (float(np.max(np.abs(a))), k)
+                print(f"  {k:22s} max|z| {np.max(np.abs(a)):5.2f}   sd {sd:5.2f}"
                       f"   mean {np.mean(a):+5.2f}   (n = {a.size})")
+            band = [math.sqrt(chi2.ppf(p, n - 1) / (n - 1)) for p in (0.0005, 0.9995)] if n > 1 else [0.0, 0.0]
+            print(f"  => max|z| {worst[0]:.2f} ({worst[1]}); sd(z) {min(sds, default=0):.2f}…{max(sds, default=0):.2f}"
+                  f" (99.9 % band of an honest sd for {n} seeds: {band[0]:.2f}…{band[1]:.2f}; an sd below it is"
+                  " expected where a Type B term constant over the seeds, e.g. a fixed part's tolerance, dominates u)")
 
 
 if __name__ == "__main__":

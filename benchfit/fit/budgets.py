@@ -12,10 +12,11 @@ from typing import Mapping
 
 import numpy as np
 
+from benchfit.fit.common import parts_of, source_name
 from benchfit.fit.identify import (DERIVED_NAMES, Identification, ambiguity, correlations, derived_values,
                                    display_unit, numeric_jacobian, parameter_table, undetermined_warning)
 from benchfit.fit.propagate import InputSpec, derived_budget, input_sensitivities, part_budget, total_log_covariance
-from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult
+from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult, Method
 from benchfit.fit.tolerance import FixedValue
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
 from benchfit.uncertainty import (DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL, DEFAULT_CHANNEL_RATIO_NOTE, Budget,
@@ -30,14 +31,6 @@ MODEL_NAME = "lc-lowpass"
 #: below this Q the two poles of the low-pass are 100× apart or more: no resonance to speak of, and
 #: the data look like a first-order R-C low-pass (common practice, no source)
 _NO_RESONANCE_Q = 0.1
-
-
-def source_name(cap) -> str:
-    return cap.source or "capture"
-
-
-def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
 
 
 def input_specs(fix_specs: Mapping[str, FixedValue], fixed: Mapping[str, float], folded: list[str],
@@ -69,7 +62,7 @@ def propagate(residual, values: Mapping[str, float], ident: Identification,
     return input_sensitivities(residual, values, ident, specs, {n: z0 for n in specs})
 
 
-def assemble(cap, method: str, values: dict[str, float], ident: Identification,
+def assemble(cap, method: Method, values: dict[str, float], ident: Identification,
              user_fix: Mapping[str, float], folded: list[str], warnings: list[str],
              curves: FitCurves, quality: FitQuality, success: bool, message: str,
              alternatives: list[dict[str, float]] | None = None,
@@ -90,21 +83,22 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
     cond = tuple(n for n, sp in specs.items() if sp.u is None)
     for name, p in list(params.items()):
         spec = specs.get(name)
-        if name in folded:
+        b: Budget | None
+        if name in folded and spec is not None and spec.u is not None:
             b = Budget(name, float(values[name]), p.unit,
                        (Contribution(spec.label, "B", "rectangular", float(spec.u), p.unit, 1.0, math.inf,
                                      spec.fixed.source),))
             params[name] = FitParameter(0.0, None, False, p.unit, None, b)
         elif p.fixed:
-            b = None if spec is None or spec.u is None else Budget(
+            b = None if spec is None or spec.u is None or p.value is None else Budget(
                 name, float(p.value), p.unit, (Contribution(spec.label, "B", spec.fixed.distribution, float(spec.u),
                                                             p.unit, 1.0, math.inf, spec.fixed.source),))
             params[name] = FitParameter(p.value, None if b is None else b.u, True, p.unit, None, b,
                                         (name,) if b is None else ())
-        elif p.stderr is not None and name in ident.names:
+        elif p.stderr is not None and p.value is not None and name in ident.names:
             j = ident.names.index(name)
-            b = part_budget(name, float(p.value), p.unit, j, p.stderr, ident, specs, sens, dof)
-            params[name] = FitParameter(p.value, b.u, False, p.unit, p.stderr, b, b.conditional_on)
+            pb = part_budget(name, float(p.value), p.unit, j, p.stderr, ident, specs, sens, dof)
+            params[name] = FitParameter(p.value, pb.u, False, p.unit, p.stderr, pb, pb.conditional_on)
     z0 = math.sqrt(values["L"] / values["C"])
     high_z = values["Rload"] > 30.0 * z0 or "Rload" in ident.undetermined
     named = {n.strip() for w in amb_warn for n in w.split(":")[0].split(",")}
@@ -131,17 +125,17 @@ def assemble(cap, method: str, values: dict[str, float], ident: Identification,
         for alt in alternatives or []:
             if name not in DERIVED_NAMES:
                 continue
-            other = second_order(_parts(alt))[name]
+            other = second_order(parts_of(alt))[name]
             if not math.isfinite(other):
                 continue
             diff = abs(other - dv.value)
             if diff > 0.05 * abs(dv.value):
                 derived[name] = DerivedValue(dv.value, None)
             elif diff > 3 * dv.stderr:  # small but significant: widen by half the spread
-                b = dv.budget.with_rows(Contribution("other equally good solution (half the spread)", "B",
-                                                     "rectangular", diff / 2, dv.budget.unit, 1.0)) \
+                wb = dv.budget.with_rows(Contribution("other equally good solution (half the spread)", "B",
+                                                      "rectangular", diff / 2, dv.budget.unit, 1.0)) \
                     if dv.budget is not None else None
-                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, b,
+                derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, wb,
                                              dv.conditional_on)
     q = derived.get("q_factor")
     if q is not None and q.value is not None and 0 < q.value < _NO_RESONANCE_Q:
@@ -254,7 +248,8 @@ def channel_gain_ratio(cap, di: int, ri: int) -> tuple[FixedValue, str | None]:
 
 
 def compare_core_loss(residual, values: Mapping[str, float], ident: Identification,
-                      fixed: Mapping[str, float], fix: Mapping[str, float]):
+                      fixed: Mapping[str, float], fix: Mapping[str, float],
+                      extra: Mapping[str, tuple[float, float, float]] | None = None):
     """Does a core loss (Rp across L) explain the data better? F-test and AIC/BIC.
 
     The base fit (no Rp) and fits with Rp free from two starts (Rp = 10 and 100 × ω0·L)
@@ -263,6 +258,9 @@ def compare_core_loss(residual, values: Mapping[str, float], ident: Identificati
     (the extra-sum-of-squares F-test, e.g. Bates & Watts, *Nonlinear Regression Analysis*,
     from memory); AIC = χ² + 2p and BIC = χ² + p·ln n on the same χ². The core-loss model is
     chosen when p < 0.001 and its Rp is a finite, positive value.
+
+    ``extra`` are the further parameters of the residual (a one-channel fit's timing phase and
+    duty: name → (start, min, max)); they are refitted in the core-loss model too.
 
     Returns (summary dict, start values of the chosen core-loss model or None).
     """
@@ -282,8 +280,9 @@ def compare_core_loss(residual, values: Mapping[str, float], ident: Identificati
     for m in (10.0, 100.0):
         st = {k: (v if v > 0 else 1e-3 * math.sqrt(values["L"] / values["C"])) for k, v in values.items()}
         st["Rp"] = m * w0l
+        ex = {k: (float(values[k]), lo, hi) for k, (_, lo, hi) in (extra or {}).items()} or None
         try:
-            v1, names1, _, chi2r1, ok1, _ = fit_log_parameters(residual, st, free, base_fixed, None, max_nfev=1500)
+            v1, names1, _, chi2r1, ok1, _ = fit_log_parameters(residual, st, free, base_fixed, ex, max_nfev=1500)
         except Exception:  # a start that fails to converge is skipped, others remain
             continue
         chi1 = chi2r1 * max(n - len(names1), 1)

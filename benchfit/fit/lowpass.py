@@ -39,21 +39,20 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, LowpassParts, free_response_basis, simulate, transfer
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, free_response_basis, simulate, transfer
 from benchfit.fit.identify import solve
 from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, compare_core_loss,  # noqa: F401
                                   input_specs, propagate, source_name)
+from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov,  # noqa: F401
+                                 noise_rescaled, parts_of, quality_complex, quality_real, start_parts, subset,
+                                 whiten, whitening)
+from benchfit.fit.onechannel import fit_one_channel
 from benchfit.fit.tolerance import FixedValue, as_fixed
-from benchfit.fit.result import PARAMETER_UNITS, FitCurves, FitQuality, FitResult
+from benchfit.fit.result import PARAMETER_UNITS, FitCurves, FitResult
 
 __all__ = ["fit_lowpass", "MethodOption", "MODEL_NAME"]
 
 MethodOption = Literal["auto", "two-channel", "one-channel"]
-
-#: a harmonic is used when its amplitude exceeds this many standard uncertainties
-SIGNIFICANCE = 10.0
-#: highest harmonic order considered
-MAX_ORDER = 49
 
 _DRIVE_NAMES = re.compile(r"^(drive|in|input|source|src|v_?in|vin)\b", re.I)
 _RESPONSE_NAMES = re.compile(r"^(out|output|response|resp|v_?out|vout)\b", re.I)
@@ -114,96 +113,7 @@ def pick_channels(cap, drive: str | int | None, response: str | int | None) -> t
     return di, ri
 
 
-def check_not_silent(x: np.ndarray, cap, index: int, role: str) -> None:
-    """Reject a channel that is flat (all samples equal, or only rounding noise)."""
-    span = float(np.max(x) - np.min(x))
-    level = max(float(np.max(np.abs(x))), 1e-30)
-    if span <= 1e-9 * level or span == 0.0 or float(np.std(x)) < 1e-12:
-        raise FitError(f"{source_name(cap)}: {role} channel {cap.channel_names[index]!r} is silent "
-                       f"(no signal) — check the wiring, or choose another channel with --{role}")
-
-
 # --- shared fitting steps ----------------------------------------------------------------
-
-def start_parts(w0: float, q: float, dc_gain: float | None, fix: Mapping[str, float],
-                guess: Mapping[str, float]) -> dict[str, float]:
-    """Start values of all parts from a resonance estimate (ω0 in rad/s, Q) and given parts."""
-    known = {**guess, **fix}
-    w0 = w0 if math.isfinite(w0) and w0 > 0 else 1.0
-    q = min(max(q if math.isfinite(q) and q > 0 else 1.0, 0.05), 500.0)
-    if "L" in known:
-        L = known["L"]
-        C = known.get("C", 1.0 / (w0 * w0 * L))
-    elif "C" in known:
-        C = known["C"]
-        L = 1.0 / (w0 * w0 * C)
-    else:  # no scale known: take a characteristic impedance of 100 ohm
-        L, C = 100.0 / w0, 1.0 / (100.0 * w0)
-    z0 = math.sqrt(L / C)
-    r_total = z0 / q
-    rs = known.get("Rs", max(0.9 * r_total, 1e-6 * z0))
-    resr = known.get("Resr", max(0.1 * r_total, 1e-4 * z0))
-    if resr == 0.0:
-        resr = 1e-4 * z0  # only a start value; a fixed 0 is applied by the caller
-    if "Rload" in known:
-        rl = known["Rload"]
-    elif dc_gain is not None and 0.05 < dc_gain < 0.97:
-        rl = rs * dc_gain / (1.0 - dc_gain)
-    else:
-        rl = 300.0 * z0
-    out = {"L": L, "C": C, "Rs": rs, "Resr": resr, "Rload": rl}
-    out.update(fix)
-    return out
-
-
-def quality_complex(measured: np.ndarray, model: np.ndarray) -> FitQuality:
-    """NRMSE (rms(data − model)/rms(data)) and R² of complex points (2 real numbers each)."""
-    d = measured - model
-    ss_res = float(np.sum(np.abs(d) ** 2))
-    ss_tot = float(np.sum(np.abs(measured - measured.mean()) ** 2))
-    rms = float(np.sqrt(np.mean(np.abs(measured) ** 2)))
-    nrmse = math.sqrt(ss_res / measured.size) / rms if rms > 0 else math.nan
-    r2 = 1.0 - ss_res / ss_tot if ss_tot > 0 else math.nan
-    return FitQuality(nrmse, r2, int(2 * measured.size))
-
-
-def quality_real(data: np.ndarray, model: np.ndarray) -> FitQuality:
-    d = data - model
-    ss_res = float(d @ d)
-    ss_tot = float(np.sum((data - data.mean()) ** 2))
-    rms = float(np.sqrt(np.mean(data ** 2)))
-    return FitQuality(math.sqrt(ss_res / data.size) / rms if rms > 0 else math.nan,
-                      1.0 - ss_res / ss_tot if ss_tot > 0 else math.nan, int(data.size))
-
-
-def whitening(cov: np.ndarray) -> np.ndarray:
-    """Per-point 2×2 matrices W with W·cov·Wᵀ = I (inverse Cholesky factors), shape (K, 2, 2)."""
-    out = np.empty_like(cov)
-    for i, c in enumerate(cov):
-        c = 0.5 * (c + c.T)
-        tr = max(float(np.trace(c)), 1e-300)
-        try:
-            chol = np.linalg.cholesky(c + 1e-12 * tr * np.eye(2))
-        except np.linalg.LinAlgError:
-            chol = np.eye(2) * math.sqrt(tr / 2)
-        out[i] = np.linalg.inv(chol)
-    return out
-
-
-def whiten(w: np.ndarray, z: np.ndarray) -> np.ndarray:
-    """Whitened (Re, Im) residual vector of complex points z with matrices w."""
-    return np.einsum("kij,kj->ki", w, np.stack([z.real, z.imag], axis=1)).ravel()
-
-
-def complex_mult_cov(factor: np.ndarray, cov: np.ndarray) -> np.ndarray:
-    """Covariance of (Re, Im) of factor·z given that of z (factor complex, per point)."""
-    m = np.empty((factor.size, 2, 2))
-    m[:, 0, 0] = factor.real
-    m[:, 0, 1] = -factor.imag
-    m[:, 1, 0] = factor.imag
-    m[:, 1, 1] = factor.real
-    return np.einsum("kij,kjl,kml->kim", m, cov, m)
-
 
 def grid_start(f_hz: np.ndarray, h: np.ndarray, u: np.ndarray) -> tuple[float, float, float | None]:
     """ω0 (rad/s), Q and DC gain of the best two-pole response b0/(1 − (f/f0)² + j f/(f0·Q)).
@@ -278,8 +188,6 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
                            "capture has one channel — use method='one-channel'")
         di, ri = pick_channels(cap, drive, response)
         return _two_channel(cap, di, ri, fix_d, guess_d, time_domain, fix_specs)
-    from benchfit.fit.onechannel import fit_one_channel
-
     if response is not None:
         from benchfit.errors import CaptureError
 
@@ -330,8 +238,8 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     # both channels fitted with every order below the limit (the unused ones stay in the
     # model, so they cannot leak into the used ones), then the drive's strong orders selected
     hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
-    hx = _subset(hx_all, keep)
-    hy = _subset(hy_all, keep)
+    hx = subset(hx_all, keep)
+    hy = subset(hy_all, keep)
     if not np.any(hy.amplitudes > SIGNIFICANCE * hy.amplitudes_u):
         raise FitError(f"{where}: response channel {cap.channel_names[ri]!r} shows no response at the "
                        "drive's harmonics — check the wiring, or choose the channel with response=")
@@ -346,7 +254,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                                0.0))
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return whiten(w, hk - v.get("gain_ratio", 1.0) * transfer(fk, _parts(v)))
+        return whiten(w, hk - v.get("gain_ratio", 1.0) * transfer(fk, parts_of(v)))
 
     ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
@@ -369,7 +277,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         warnings = list(warnings) + [ratio_note]
     specs = input_specs(fix_specs or {}, fixed, folded, ratio)
     sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
-    h_model = transfer(fk, _parts(values))
+    h_model = transfer(fk, parts_of(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs
     y_model = hy.dc + sum((xk[i] * h_model[i] * np.exp(1j * orders[i] * 2 * math.pi * f * t)).real
@@ -428,7 +336,7 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
     uu = np.maximum(u, 1e-300)
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        d = (h - transfer(fk, _parts(v))) / uu
+        d = (h - transfer(fk, parts_of(v))) / uu
         return np.concatenate([d.real, d.imag])
 
     start, _, fixed0, _, _, _, _, _ = solve(residual, start, fix)
@@ -445,63 +353,13 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
                     alts, specs, sens)
 
 
-def noise_rescaled(h, x: np.ndarray, fs: float):
-    """The harmonic fit with its phasor covariance scaled to the noise *between* the harmonics.
-
-    The fit's own σ² = RSS/(N − p) also counts the harmonics above the highest fitted order
-    (a square drive has them up to Nyquist), which would inflate every phasor's variance. The
-    noise that matters for P_k is the one near k·f: it is taken as the median of the residual's
-    Hann-window periodogram over 0 … (K + ½)·f, divided by ln 2 (the median of an exponential
-    distribution, the law of |X|² for Gaussian noise) and by Σw², assuming a white floor there.
-    """
-    from dataclasses import replace
-
-    n = x.size
-    # the fitted waveform by powers of e^{jωt} (one complex product per order; rounding grows
-    # by about one ulp per order, 1e-14 at order 49)
-    z = np.exp(2j * math.pi * h.frequency_hz * np.arange(n) / fs)
-    zk = np.ones(n, dtype=complex)
-    model = np.zeros(n, dtype=complex)
-    phasor = dict(zip(h.orders.tolist(), h.phasors))
-    for k in range(1, int(h.orders.max()) + 1):
-        zk *= z
-        if k in phasor:
-            model += phasor[k] * zk
-    r = x - h.dc - model.real
-    w = 0.5 - 0.5 * np.cos(2 * math.pi * np.arange(n) / n)  # periodic Hann: no broadband leakage
-    spec = np.abs(np.fft.rfft(r * w)) ** 2
-    top = int(min(spec.size - 1, math.floor((h.orders.max() + 0.5) * h.frequency_hz * n / fs)))
-    # leave out the bins next to every harmonic (fitted or not, folded into 0…fs/2)
-    bins = np.arange(spec.size)
-    f_bin = bins * fs / n
-    harmonic = np.abs((f_bin / h.frequency_hz + 0.5) % 1.0 - 0.5) * h.frequency_hz
-    clear = (harmonic > 2.5 * fs / n) & (bins >= 2) & (bins < top)
-    band = spec[clear]
-    if band.size < 16 or h.sigma <= 0:
-        return h
-    sigma2 = float(np.median(band)) / (math.log(2.0) * float(w @ w))
-    factor = sigma2 / h.sigma ** 2
-    return replace(h, phasor_cov=h.phasor_cov * factor)
-
-
-def _subset(h, keep: np.ndarray):
-    """A HarmonicFit restricted to the orders where ``keep`` is true (other fields unchanged)."""
-    from dataclasses import replace
-
-    return replace(h, orders=h.orders[keep], phasors=h.phasors[keep], phasor_cov=h.phasor_cov[keep])
-
-
-def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
-
-
 def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
     """Refine by fitting the exactly discretised simulation of the measured drive to the output."""
     n = y.size
     sigma = max(float(sigma), 1e-12 * max(float(np.max(np.abs(y))), 1e-30))
 
     def model(v: dict[str, float]) -> np.ndarray:
-        p = _parts(v)
+        p = parts_of(v)
         sim = v.get("gain_ratio", 1.0) * simulate(x, fs, p)
         basis = free_response_basis(p, fs, n)
         design = np.stack([np.ones(n), basis[0], basis[1]], axis=1)
@@ -517,7 +375,7 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
     ym = model(values)
     curves = FitCurves(time_s=np.arange(n) / fs, data=y.copy(), model=ym,
                        harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
-                       h_model=transfer(curves.harmonic_hz, _parts(values)),
+                       h_model=transfer(curves.harmonic_hz, parts_of(values)),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
     folded = [k for k in fixed if k not in user_fix and k in PART_NAMES]  # undetermined, held at 0
     return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual

@@ -15,6 +15,14 @@ the shape of H — resonant frequency, Q and the ESR zero — but not the impeda
 its inverse of duty 1 − D differ only in sign and timing, so D is reported as the smaller
 of the two. When the capture's input coupling time constant is known
 (``Capture.calibration.coupling_tau_s``) the phasors are corrected for that high-pass first.
+
+With L (or C) known the shape still leaves two parts open: Rs and the load share the damping
+along a direction the output does not see, and the ESR shows only through the magnitude of its
+zero (information ∝ ESR²), where a core loss in the choke looks the same. Both are integrated
+out over stated ranges (:mod:`benchfit.fit.marginal`) unless given with ``fix``: Rs, the ESR and
+the load are then reported as not separated, and ``total_loss_ohm`` (Rs + ESR + L/(C·Rload)) is
+the loss the data do determine. The core-loss comparison (F-test, AIC/BIC) runs as in the
+two-channel fit; Rp is added only when the data support it and determine it.
 """
 
 from __future__ import annotations
@@ -25,10 +33,13 @@ from typing import Mapping
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import LowpassParts, rectangular_phasors, transfer
-from benchfit.fit.lowpass import (MAX_ORDER, SIGNIFICANCE, assemble, check_not_silent, complex_mult_cov,
-                                  input_specs, noise_rescaled, propagate, quality_complex, solve, source_name,
-                                  start_parts, whiten, whitening)
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, rectangular_phasors, transfer
+from benchfit.fit.budgets import assemble, compare_core_loss, input_specs, propagate, source_name
+from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov, noise_rescaled,
+                                 parts_of, quality_complex, start_parts, subset, whiten, whitening)
+from benchfit.fit.identify import fit_log_parameters, identify, solve
+from benchfit.fit.marginal import Nuisance, figures_of, marginalise
+from benchfit.fit.marginal import apply as apply_marginal
 from benchfit.fit.result import FitCurves
 
 __all__ = ["fit_one_channel"]
@@ -48,10 +59,6 @@ _MIN_HARMONIC_REL = 1e-5
 _U_FLOOR_REL = 1e-7
 
 
-def _parts(v: Mapping[str, float]) -> LowpassParts:
-    return LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
-
-
 def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
                 duty: float | None) -> tuple[float, float, float]:
     """Coarse start (f0/f, Q, D) from the output phasors, independent of gain and timing.
@@ -65,7 +72,7 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
     w = 1.0 / np.maximum(amp_u, 1e-300) ** 2
     rot = np.conj(yk[0]) / max(abs(yk[0]), 1e-300)
     z = yk * rot ** k
-    pk = rectangular_phasors(k[None, :], d[:, None])  # (D, K)
+    pk = rectangular_phasors(k[None, :], d[:, None])  # type: ignore[arg-type]  # broadcasts: (D, K)
 
     def best_of(r: np.ndarray, q: np.ndarray) -> tuple[float, float, float, float]:
         kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
@@ -145,8 +152,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     f = tone.frequency_hz
     f_low = true_fundamental(y, fs, f)
     if f_low != f:
-        tone = fit_tone(y, fs, n_harmonics=max(9, int(round(f / f_low)) + 3), frequency_hz=f_low)
-        f = tone.frequency_hz
+        refit = fit_tone(y, fs, n_harmonics=max(9, int(round(f / f_low)) + 3), frequency_hz=f_low)
+        f = refit.frequency_hz if refit is not None else f_low
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
     hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
     a1 = float(hy_all.amplitudes[0])
@@ -160,10 +167,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                        "nothing about the filter — capture the drive too and use method='two-channel', "
                        "or use fit_ringdown()")
     strong = np.nonzero(above_noise)[0]
-    from benchfit.fit.lowpass import _subset
-
     keep = hy_all.orders <= int(hy_all.orders[strong[-1]])
-    hy = _subset(hy_all, keep)  # orders 1…K; the fit included all orders below the limit
+    hy = subset(hy_all, keep)  # orders 1…K; the fit included all orders below the limit
     orders = hy.orders
     yk = hy.phasors
     cov = hy.phasor_cov + u_floor ** 2 * np.eye(2)  # never below the resolution floor (see _U_FLOOR_REL)
@@ -179,8 +184,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     k = orders.astype(float)
 
     def model_phasors(v: Mapping[str, float]) -> np.ndarray:
-        duty = v["duty"] if "duty" in v else drive_duty
-        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, _parts(v))
+        duty = float(v["duty"] if "duty" in v else drive_duty)  # type: ignore[arg-type]  # given when not fitted
+        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, parts_of(v))
 
     def gain(wm: np.ndarray) -> float:
         return float(wm @ wy) / max(float(wm @ wm), 1e-300)
@@ -206,6 +211,24 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     if drive_duty is None:
         extra["duty"] = (d0, _DUTY_MIN * 0.5, 1.0 - _DUTY_MIN * 0.5)
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix, extra)
+    comparison, parts = None, PARAMETER_NAMES
+    if "Rp" not in fix:  # a core loss (Rp across L): its loss rises as f², a shape the output shows
+        comparison, chosen = compare_core_loss(residual, values, ident, fixed, fix,
+                                               {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()})
+        if chosen is not None and comparison is not None:
+            refit = solve(residual, chosen, fix, {n: (chosen[n], lo, hi) for n, (_, lo, hi) in extra.items()},
+                          parts=PART_NAMES)
+            if "Rp" in refit[1].undetermined:
+                comparison["chosen"] = comparison["models"][0]
+                comparison["note"] = (f"core loss: the data call for a loss rising with frequency (F-test p = "
+                                      f"{comparison['p_value']:.2g}) but do not separate Rp from the other losses, "
+                                      "so the plain model is kept, its uncertainties Birge-scaled, and the total "
+                                      "loss is what to read — measure the choke's loss (or Q) on its own to split it")
+                warnings = list(warnings) + [comparison["note"]]
+            else:
+                values, ident, fixed, folded, warnings, ok, msg, alts = refit
+                warnings = list(warnings) + [comparison["note"]]
+                parts = PART_NAMES
     if drive_duty is None:
         warnings = list(warnings)
         d = values["duty"]
@@ -218,6 +241,18 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                 else f"{100 * min(d, 1 - d):.1f} % (not determined)")
         warnings.insert(0, f"duty: the drive's duty cycle was fitted as {text} "
                            "(or its complement; the output alone cannot tell which)")
+    nuis = _nuisances(values, fix, ident)
+    marg = None
+    if nuis:
+        ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
+        marg = marginalise(residual, values, fix, nuis, ex_now, parts)
+        held = {q.name: marg.best[q.name] for q in nuis}
+        free = tuple(n for n in parts if n not in fix and n not in held)
+        ex_now = {n: (marg.best[n], lo, hi) for n, (_, lo, hi) in extra.items()}
+        values, names, jac, chi2_red, ok, msg = fit_log_parameters(residual, marg.best, free, {**fix, **held}, ex_now)
+        ident = identify(jac, names, chi2_red)
+        fixed, folded, alts = dict(fix), [], []
+        warnings = [m for m in warnings if not m.startswith("Resr:")]  # the fold is replaced by the marginal
     mk = model_phasors(values)
     g = gain(whiten(w, mk))
     y_model_k = g * mk
@@ -233,5 +268,45 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
            "(resonant frequency, Q, ESR zero) and the parts only once one of them is known")
     specs = input_specs(fix_specs or {}, fixed, folded)
     sens = propagate(residual, values, ident, specs)
-    return assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
-                    quality_complex(yk, y_model_k), ok, msg, alts, specs, sens)
+    result = assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
+                      quality_complex(yk, y_model_k), ok, msg, alts, specs, sens)
+    if comparison is not None:
+        from dataclasses import replace
+
+        result = replace(result, adequacy={**result.adequacy,
+                                           "model_comparison": {k: v for k, v in comparison.items() if k != "note"}})
+    return result if marg is None else apply_marginal(result, marg)
+
+
+def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> tuple[Nuisance, ...]:
+    """The parts an output-only capture cannot pin, with their stated plausible ranges.
+
+    With the drive level unknown the output's shape fixes ω0, Q and the ESR zero: three numbers
+    for C, Rs, ESR and Rload once L (or C) is known. So the ESR shows only through the magnitude of
+    its zero (information ∝ ESR², a linearised error is meaningless near 0) and Rs and the load
+    share the damping along a direction the data do not see. Both are integrated out
+    (:mod:`benchfit.fit.marginal`) unless given; the scale (L or C) must be known.
+    """
+    if not ({"L", "C"} & set(fix)) or {"L", "C"} <= set(ident.undetermined):
+        return ()
+    total = figures_of(values)["total_loss_ohm"]
+    if not (math.isfinite(total) and total > 0):
+        return ()
+    out = []
+    if "Resr" not in fix:
+        out.append(Nuisance("Resr", 0.0, total, "value", f"0…{total:.3g} Ω (rectangular)",
+                            "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
+                            "an ESR meter on the capacitor would pin it (then --fix Resr=…)",
+                            reportable="Rp" in fix or "Rp" in values,
+                            why="not separated by an output-only capture: a core loss in the choke also turns "
+                                "the roll-off above resonance from 1/f² towards 1/f, as the ESR does"
+                                if "Rp" not in fix and "Rp" not in values else ""))
+    if "Rload" not in fix and "Rs" not in fix:
+        l_over_c = float(values["L"]) / float(values["C"])
+        g_max = total / l_over_c
+        out.append(Nuisance("Rload", 0.0, g_max, "conductance",
+                            f"{l_over_c / total:.3g} Ω … open (1/Rload rectangular on 0…{g_max:.3g} S)",
+                            "the data's own bound: the load takes anywhere from none to all of the damping "
+                            "the response shows", "measuring the load resistance (then --fix Rload=…) "
+                            "would split Rs from it"))
+    return tuple(out)

@@ -9,9 +9,13 @@ the seeds, so their z barely move), or be reported as not determined (stderr Non
 warning that names it. Rp (core loss) is compared as a conductance 1/Rp, whose truth is 0 for
 the units without core loss.
 
-Known gap (kept visible as a strict xfail): the one-channel (sound-card) fit understates the
-scatter of ESR and Q by about 1.8× (sd of z ≈ 1.7–1.9 over seeds, also without input
-coupling and without quantisation), so ESR lands up to 5 u from the truth.
+The output-only (sound-card) case: the output's shape cannot split Rs from the load, nor the ESR
+from a core loss, so those are integrated out over stated ranges (benchfit.fit.marginal) and
+reported as not separated, with their total loss. Its remaining gap is kept visible as a strict
+xfail: with seeds 0–9, seed 0's noise is a 3.7σ draw along the direction the ESR moves (checked
+on exact-model data with the same noise: the profile estimate of ESR² has |z| > 3 in 1 of 200
+seeds, sd 1.06, so the likelihood is honest), and Q, which the data tie to the ESR, inherits it
+(|z| ≈ 3.9). The spread over the seeds is checked instead against the χ² band.
 """
 
 from __future__ import annotations
@@ -56,6 +60,43 @@ def test_two_channel_units_are_within_three_u_or_not_determined(tmp_path, name):
         assert r0.parameters["L"].value == pytest.approx(0.465, rel=0.01)
 
 
-@pytest.mark.xfail(strict=True, reason="one-channel fit understates ESR and Q scatter ~1.8× (issue 11, open)")
-def test_sound_card_unit_is_within_three_u_or_not_determined(tmp_path):
-    _check(run_case(tmp_path, "sound-card", SEEDS))
+@pytest.fixture(scope="module")
+def sound_card_rows(tmp_path_factory):
+    return run_case(tmp_path_factory.mktemp("sound-card"), "sound-card", SEEDS)
+
+
+@pytest.mark.xfail(strict=True, reason="seed 0 is a 3.7σ noise draw along the ESR direction; Q inherits "
+                                       "|z| ≈ 3.9 (issue 11, see the module docstring)")
+def test_sound_card_unit_is_within_three_u_or_not_determined(sound_card_rows):
+    _check(sound_card_rows)
+
+
+def test_sound_card_z_spread_is_honest_and_the_losses_are_not_split(sound_card_rows):
+    import math
+
+    import numpy as np
+    from scipy.stats import chi2
+
+    r0 = sound_card_rows[0][0]
+    # the output alone cannot split Rs from the load or the ESR: not determined, each named in a warning
+    # with the measurement that would pin it; the total loss they make together is determined
+    for name in ("Rs", "Resr", "Rload"):
+        assert r0.parameters[name].stderr is None
+        assert any(w.startswith(f"{name}:") for w in r0.warnings), name
+    assert any("ESR meter" in w for w in r0.warnings) and any("measuring the load" in w for w in r0.warnings)
+    # sd of z over n seeds scatters as √(χ²_{n−1}/(n−1)): 99.9 % band (scipy.stats.chi2); the mean of z
+    # within the normal 99.9 % point 3.3/√n. C and 1/(2π√(LC)) are dominated by the load's prior
+    # (constant over the seeds), whose rectangular spread keeps |z| within √3 of any truth in its range
+    n = len(SEEDS)
+    lo, hi = (math.sqrt(chi2.ppf(p, n - 1) / (n - 1)) for p in (0.0005, 0.9995))
+    zs: dict[str, list[float]] = {}
+    for _, z, _ in sound_card_rows:
+        for k, v in z.items():
+            zs.setdefault(k, []).append(v)
+    for name in ("q_factor", "natural_frequency_hz", "damped_frequency_hz", "decay_rate_per_s", "total_loss_ohm"):
+        z = np.asarray(zs[name])
+        assert z.size == n and lo < np.std(z, ddof=1) < hi and abs(np.mean(z)) < 3.3 / math.sqrt(n), \
+            (name, np.round(z, 2))
+    for name in ("C", "resonant_frequency_hz"):
+        z = np.asarray(zs[name])
+        assert z.size == n and np.max(np.abs(z)) < math.sqrt(3.0) + 0.5, (name, np.round(z, 2))

@@ -28,6 +28,7 @@ import numpy as np
 
 from benchfit.capture.capture import Capture, InputCalibration
 from benchfit.fit.lowpass import fit_lowpass
+from benchfit.fit.marginal import figures_of
 from benchfit.model.filter import LowpassParts, second_order
 
 from fitspice import Unit, simulate_unit
@@ -65,6 +66,7 @@ def truth(u: Unit, output_only: bool = False, duty: float = 0.52) -> dict[str, f
     out = {"L": u.L, "C": u.C, "Rs": rs, "Resr": u.Resr, "Rload": u.Rload,
            "Rp": u.Rp if u.Rp is not None else math.inf, **second_order(p)}
     out["series_loss_ohm"] = rs + u.Resr
+    out["total_loss_ohm"] = figures_of(out)["total_loss_ohm"]  # Rs + ESR + L/(C·Rload), the damping as one R
     return out
 
 

@@ -1,0 +1,341 @@
+"""Parts the data cannot determine, marginalised over a stated plausible range.
+
+A part that the data do not determine (or determine only through second-order effects, so
+that its linearised standard error is meaningless) must not be held at one value as if it
+were known: the other parts and every derived value depend on it. Instead it is treated as
+a nuisance parameter with a stated prior range (rectangular) and integrated out:
+
+* on a grid over the range(s) the other parameters are refitted with the nuisance parts held
+  at each grid point (a profile); each point i gives χ²_i, estimates q_i and their fit
+  covariance (from the whitened Jacobian);
+* the points are weighted by the likelihood, w_i ∝ exp(−(χ²_i − χ²_min)/(2·s)), s = max(1, χ²ᵣ)
+  of the best point (the Birge ratio, so an imperfect model does not make the weights overconfident),
+  times the rectangular prior (uniform on the grid variable);
+* every quantity is reported as the mixture mean q̄ = Σ w_i q_i with variance
+  Σ w_i u_i² + Σ w_i (q_i − q̄)²: the fit's own part and the spread the nuisance causes.
+
+This is the usual marginal posterior of a linear-Gaussian model mixed over a low-dimensional
+nuisance (e.g. Gelman et al., *Bayesian Data Analysis*, ch. 3, from memory), evaluated on a grid
+instead of linearised, because the ESR's information grows as ESR² (it shows mainly through the
+magnitude of the zero 1 + jωC·ESR) and the linearised error is far too small wherever the
+estimate lands high.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable, Mapping
+
+import numpy as np
+
+from benchfit.fit.identify import fit_log_parameters, numeric_jacobian
+from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
+
+__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "FIGURE_NAMES"]
+
+#: grid points per nuisance axis (a second pass refines an axis whose posterior is narrow)
+_POINTS = {1: 15, 2: 7}
+#: grid passes at most (each later one refines the axes whose posterior is narrower than its steps)
+_ROUNDS = 3
+#: the figures reported from a marginalised fit besides the parts
+FIGURE_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "natural_frequency_hz", "q_factor",
+                                 "damped_frequency_hz", "decay_rate_per_s", "total_loss_ohm")
+
+
+@dataclass(frozen=True)
+class Nuisance:
+    """A part integrated out over a rectangular prior on ``lo … hi`` of its grid variable.
+
+    ``variable`` is "value" (the part in its own unit, e.g. ESR in ohm) or "conductance"
+    (1/part in siemens, for a load whose plausible range includes "no load", 1/Rload = 0).
+    """
+
+    name: str
+    lo: float
+    hi: float
+    variable: str
+    range_text: str
+    source: str
+    measure: str
+    #: False: never reported as a value even where its posterior is narrow (another loss it cannot be
+    #: told from is not in the model, e.g. an ESR versus a choke's core loss seen from the output alone)
+    reportable: bool = True
+    why: str = ""
+
+    def part(self, x: float) -> float:
+        if self.variable == "conductance":
+            return math.inf if x <= 0 else 1.0 / x
+        return float(x)
+
+    def coordinate(self, part_value: float) -> float:
+        if self.variable == "conductance":
+            return 0.0 if math.isinf(part_value) else 1.0 / part_value
+        return float(part_value)
+
+
+def figures_of(v: Mapping[str, float]) -> dict[str, float]:
+    """Resonance figures of a set of parts, and the total loss as a series resistance.
+
+    ``total_loss_ohm`` = Rs + ESR + L/(C·Rload) is the series resistance that would damp the
+    resonance as much as all the losses together (the load's L/(C·Rload) is the series
+    equivalent of a parallel resistance at resonance, for Rload ≫ √(L/C): common practice,
+    no source); it is what an output-only capture determines when it cannot split the losses.
+    """
+    p = LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
+    fig = dict(second_order(p))
+    fig["total_loss_ohm"] = p.Rs + p.Resr + p.L * p.g / p.C + (p.L / p.C) * p.gp
+    return fig
+
+
+@dataclass(frozen=True, eq=False)
+class Marginal:
+    """The grid, its weights and the mixture moments of every quantity."""
+
+    nuisances: tuple[Nuisance, ...]
+    points: np.ndarray  # (n, m) grid coordinates
+    weights: np.ndarray  # (n,)
+    chi2: np.ndarray  # (n,) χ² of each point
+    best: dict[str, float]  # values at the most likely point
+    mean: dict[str, float]  # mixture mean of every part and figure
+    u_fit: dict[str, float]  # √Σ w u_i²: the fit's own part (nan: not available at some points)
+    u_spread: dict[str, float]  # √Σ w (q_i − q̄)²: what the nuisances add
+    chi2_red: float  # of the best point
+    dof: int
+
+    def u(self, name: str) -> float:
+        return math.hypot(self.u_fit.get(name, 0.0), self.u_spread.get(name, 0.0))
+
+
+def _fit_point(residual, start, free, fixed, extra):
+    values, names, jac, chi2_red, ok, _ = fit_log_parameters(residual, start, free, fixed, extra, max_nfev=600)
+    r = residual(values)
+    return values, names, jac, float(r @ r), r.size
+
+
+def _quantities(values: dict[str, float], names: tuple[str, ...], jac: np.ndarray, scale: float,
+                keys: tuple[str, ...]) -> tuple[dict[str, float], dict[str, float]]:
+    """Estimates and their fit standard uncertainties (delta method on the full inverse JᵀJ)."""
+    info = jac.T @ jac
+    try:
+        cov = np.linalg.pinv(info, rcond=1e-12) * scale
+    except np.linalg.LinAlgError:
+        cov = np.full_like(info, np.nan)
+    is_log = np.array([n in PART_NAMES for n in names])
+    x0 = np.array([math.log(values[n]) if lg else float(values[n]) for n, lg in zip(names, is_log)])
+
+    def all_of(z: np.ndarray) -> np.ndarray:
+        v = dict(values)
+        for n, lg, x in zip(names, is_log, z):
+            v[n] = float(math.exp(x)) if lg else float(x)
+        fig = figures_of(v)
+        return np.array([v[k] if k in v and k not in fig else fig[k] for k in keys])
+
+    base = all_of(x0)
+    grad = numeric_jacobian(all_of, x0, step=1e-6) if x0.size else np.zeros((len(keys), 0))
+    var = np.einsum("ij,jk,ik->i", grad, cov, grad) if x0.size else np.zeros(len(keys))
+    return ({k: float(b) for k, b in zip(keys, base)},
+            {k: float(math.sqrt(max(s, 0.0))) if math.isfinite(s) else math.nan for k, s in zip(keys, var)})
+
+
+def _grid(nuis: tuple[Nuisance, ...], spans: list[tuple[float, float]]) -> np.ndarray:
+    n = _POINTS[len(nuis)]
+    axes = [np.linspace(lo, hi, n) for lo, hi in spans]
+    mesh = np.meshgrid(*axes, indexing="ij")
+    pts = np.stack([m.ravel() for m in mesh], axis=1)
+    if len(nuis) == 2:  # serpentine order: each fit starts next to the previous one
+        pts = pts.reshape(n, n, 2)
+        pts[1::2] = pts[1::2, ::-1]
+        pts = pts.reshape(-1, 2)
+    return pts
+
+
+def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapping[str, float],
+                fixed: Mapping[str, float], nuisances: tuple[Nuisance, ...],
+                extra: Mapping[str, tuple[float, float, float]] | None, part_names: tuple[str, ...]) -> Marginal:
+    """Integrate the ``nuisances`` out (module docstring); the other parts of ``part_names`` are fitted."""
+    nuis = tuple(nuisances)
+    fixed = {k: v for k, v in fixed.items() if k not in {n.name for n in nuis}}
+    free = tuple(n for n in part_names if n not in fixed and n not in {q.name for q in nuis})
+    keys = tuple(free) + tuple(q.name for q in nuis) + FIGURE_NAMES
+    spans = [(q.lo, q.hi) for q in nuis]
+    rows: list[tuple] = []  # (point, χ², values, estimates, fit u, dof, prior mass of its cell)
+    start = {k: (v if v > 0 else 1e-3) for k, v in values.items() if k in free}
+    ex = dict(extra or {})
+    n_axis = _POINTS[len(nuis)]
+    for _ in range(_ROUNDS):
+        cell = float(np.prod([(hi - lo) / (n_axis - 1) for lo, hi in spans]))
+        prev, prev_ex = dict(start), dict(ex)
+        fresh = []
+        for pt in _grid(nuis, spans):
+            fx = dict(fixed)
+            fx.update({q.name: q.part(float(x)) for q, x in zip(nuis, pt)})
+            try:
+                v, names, jac, chi2, n_res = _fit_point(residual, {**values, **prev}, free, fx, prev_ex)
+            except Exception:  # a point where the fit fails carries no weight
+                continue
+            if not math.isfinite(chi2):
+                continue
+            # the next start: this point's values, but never far below the first fit's (a part driven
+            # to its lower bound here would otherwise stay stuck there, its log bounds being relative)
+            prev = {k: max(v[k], 1e-2 * float(values[k])) for k in free}
+            prev_ex = {k: (v[k], lo, hi) for k, (_, lo, hi) in ex.items()}
+            est, uest = _quantities(v, names, jac, 1.0, keys)
+            if not all(math.isfinite(x) for x in est.values()):
+                continue
+            fresh.append((pt, chi2, v, est, uest, n_res - len(names), cell))
+        # the new points replace the earlier (coarser) ones inside their spans
+        rows = [r for r in rows if not all(lo <= x <= hi for x, (lo, hi) in zip(r[0], spans))] + fresh
+        if not rows:
+            raise ValueError("no grid point could be fitted")
+        w = _weights(rows)
+        pts = np.array([r[0] for r in rows])
+        best: tuple = rows[int(np.argmax(w))]
+        new_spans, refine = [], False
+        for a, (lo, hi) in enumerate(spans):
+            m = float(w @ pts[:, a])
+            sd = math.sqrt(max(float(w @ (pts[:, a] - m) ** 2), 0.0))
+            step = (hi - lo) / (n_axis - 1)
+            if sd < 2 * step and step > 1e-9 * max(abs(m), 1e-300):  # narrower than the grid: refine
+                refine = True
+                half = max(5 * sd, 1.5 * step)
+                new_spans.append((max(nuis[a].lo, m - half), min(nuis[a].hi, m + half)))
+            else:
+                new_spans.append((lo, hi))
+        if not refine:
+            break
+        spans = new_spans
+        start = {k: best[2][k] for k in free}
+        ex = {k: (best[2][k], lo, hi) for k, (_, lo, hi) in ex.items()}
+    chi = np.array([r[1] for r in rows])
+    ib = int(np.argmin(chi))
+    dof = max(int(rows[ib][5]), 1)
+    chi2_red = float(chi[ib] / dof)
+    s = max(1.0, chi2_red)
+    w = _weights(rows)
+    mean: dict[str, float] = {}
+    u_fit: dict[str, float] = {}
+    u_spread: dict[str, float] = {}
+    for k in keys:
+        q = np.array([r[3][k] for r in rows])
+        uq = np.array([r[4][k] for r in rows])
+        m = float(w @ q)
+        mean[k] = m
+        u_spread[k] = math.sqrt(max(float(w @ (q - m) ** 2), 0.0))
+        u_fit[k] = math.sqrt(float(w @ np.nan_to_num(uq, nan=0.0) ** 2)) if np.all(np.isfinite(uq)) else math.nan
+    # the fit covariance above is unscaled (noise known from the phasors): Birge-scale it here
+    u_fit = {k: v * math.sqrt(s) for k, v in u_fit.items()}
+    return Marginal(nuis, np.array([r[0] for r in rows]), w, chi, dict(rows[ib][2]), mean, u_fit, u_spread,
+                    chi2_red, dof)
+
+
+def _weights(rows) -> np.ndarray:
+    """Posterior weights: likelihood (Birge-scaled Δχ², module docstring) times the prior mass of each cell."""
+    chi = np.array([r[1] for r in rows])
+    dens = np.array([r[6] for r in rows])
+    b = int(np.argmin(chi))
+    s = max(1.0, float(chi[b]) / max(rows[b][5], 1))
+    w = dens * np.exp(-(chi - chi[b]) / (2 * s))
+    return w / w.sum()
+
+
+_UNITS = {"resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "q_factor": "1", "damped_frequency_hz": "Hz",
+          "decay_rate_per_s": "1/s", "total_loss_ohm": "ohm"}
+#: a part (or figure) whose marginal standard uncertainty exceeds this fraction of its value is not
+#: determined: the same 50 % limit as the identifiability analysis (fit.identify._SIGMA_LIMIT)
+_REL_LIMIT = 0.5
+#: a nuisance counts as pinned by the data when its posterior sd is below this fraction of its prior sd
+_PINNED = 0.5
+
+
+def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, label: str):
+    from benchfit.fit.propagate import fit_row
+    from benchfit.uncertainty import Budget, Contribution
+
+    rows = [fit_row(marg.u_fit[name], unit, marg.chi2_red, marg.dof),
+            Contribution(label, "B", "posterior over the stated range", marg.u_spread[name], unit, 1.0, math.inf,
+                         "grid marginalisation over the stated prior range (fit.marginal)")]
+    cond: tuple[str, ...] = ()
+    if base_budget is not None:
+        # the inputs the fit held (fixed parts' tolerances, a channel gain ratio) keep their rows; the fit's
+        # own row and any linearised prior are replaced by the two rows above
+        rows += [c for c in base_budget.contributions
+                 if not (c.name.startswith("noise") or c.name.startswith("undetermined"))]
+        cond = base_budget.conditional_on
+    return Budget(name, float(value), unit, tuple(rows), conditional_on=cond)
+
+
+def apply(result, marg: Marginal):
+    """The FitResult with every part and figure replaced by its marginal value and uncertainty."""
+    from dataclasses import replace
+
+    from benchfit.fit.identify import display_unit
+    from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitParameter
+    from benchfit.units import format_quantity
+
+    handled = {q.name for q in marg.nuisances} | set(marg.mean)
+    names = ", ".join(q.name for q in marg.nuisances)
+    label = f"undetermined {names}, marginalised over the stated range (spread over the posterior)"
+    params = dict(result.parameters)
+    # the base fit's own "not determined" lines are replaced by the marginal's
+    warn = [w for w in result.warnings
+            if not (w.split(":")[0].strip() in handled and "not determined by these data" in w)]
+    notes = []
+    for q in marg.nuisances:
+        m, sd = marg.mean[q.name], marg.u_spread[q.name]
+        coord = np.array([float(x) for x in marg.points[:, marg.nuisances.index(q)]])
+        cm = float(marg.weights @ coord)
+        csd = math.sqrt(max(float(marg.weights @ (coord - cm) ** 2), 0.0))
+        prior_sd = (q.hi - q.lo) / math.sqrt(12.0)
+        unit = PARAMETER_UNITS[q.name]
+        pinned = csd < _PINNED * prior_sd and (q.variable != "conductance" or cm > 2 * csd)
+        if q.variable == "conductance":
+            value = q.part(cm)
+            u = csd / cm ** 2 if cm > 0 else math.inf
+        else:
+            value, u = m, sd
+        from benchfit.uncertainty import Budget, Contribution
+
+        b = Budget(q.name, float(value) if math.isfinite(value) else 0.0, unit,
+                   (Contribution(f"posterior of {q.name} over {q.range_text}", "B", "posterior over the stated range",
+                                 float(u) if math.isfinite(u) else 0.0, unit, 1.0, math.inf, q.source),))
+        if q.reportable and pinned and math.isfinite(u) and u < _REL_LIMIT * abs(value):
+            params[q.name] = FitParameter(float(value), float(u), False, unit, float(u), b)
+        else:
+            params[q.name] = FitParameter(float(value) if math.isfinite(value) else None, None, False, unit, None, b)
+            notes.append(q)
+    undetermined = []
+    for name, p in list(params.items()):
+        if p.fixed or name in {q.name for q in marg.nuisances} or name not in marg.mean:
+            continue
+        value = marg.mean[name]
+        b = _budget(name, value, p.unit, marg, p.budget, label)
+        if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
+            params[name] = FitParameter(float(value), None, False, p.unit, None, b)
+            undetermined.append(name)
+        else:
+            params[name] = FitParameter(float(value), b.u, False, p.unit, marg.u_fit[name], b, b.conditional_on)
+    derived = dict(result.derived)
+    for name in FIGURE_NAMES:
+        value = marg.mean[name]
+        base = derived.get(name)
+        b = _budget(name, value, _UNITS[name], marg, None if base is None else base.budget, label)
+        if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
+            derived[name] = DerivedValue(float(value), None, None, b)
+        else:
+            derived[name] = DerivedValue(float(value), b.u, marg.u_fit[name], b, b.conditional_on)
+    derived.pop("series_loss_ohm", None)
+    for q in notes:
+        why = q.why or "not determined by these data"
+        warn.append(f"{q.name}: {why}; it is marginalised over {q.range_text} ({q.source}) "
+                    f"into the other values' uncertainties — {q.measure}")
+    if undetermined:
+        tl = derived["total_loss_ohm"]
+        shown = format_quantity(tl.value, display_unit("Rs"), 3) if tl.value is not None else "—"
+        warn.append(f"{', '.join(undetermined)}: not separated from {', '.join(q.name for q in notes) or 'the others'} "
+                    f"by these data; the total loss they make together is determined: total_loss_ohm = {shown} "
+                    f"(Rs + ESR + L/(C·Rload)) — {notes[0].measure if notes else 'measure one of them'}")
+    info = {q.name: {"range": [q.lo, q.hi], "variable": q.variable, "range_text": q.range_text, "source": q.source,
+                     "points": int(marg.points.shape[0])} for q in marg.nuisances}
+    return replace(result, parameters=params, derived=derived, warnings=tuple(warn),
+                   adequacy={**result.adequacy, "marginalised": info})
