@@ -458,7 +458,8 @@ def edge_period(rising: np.ndarray, falling: np.ndarray) -> tuple[float, float] 
 
 
 def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | None = None,
-                     compensate: bool = True, force: bool = False) -> PulseResult:
+                     compensate: bool = True, force: bool = False,
+                     levels: StateLevels | None = None) -> PulseResult:
     """IEEE 181 pulse parameters of a two-level wave, compensating AC-coupling droop.
 
     Parameters
@@ -476,6 +477,8 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     force : bool
         Analyse the wave as a pulse even when its histogram is not two-level (slow edges): the
         states are still the histogram's low and high modes (IEEE 181), read with that caveat.
+    levels : StateLevels, optional
+        ``state_levels(x)`` when the caller has it already (it is not computed again).
 
     Returns
     -------
@@ -485,7 +488,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     x = np.asarray(x, dtype=np.float64)
     fs = float(sample_rate)
     warnings: list[str] = []
-    raw = state_levels(x)
+    raw = state_levels(x) if levels is None else levels
     # a drooped square is smeared: test bimodality loosely before deciding to compensate
     tau, source, droop = None, None, None
     raw_edges = None

@@ -168,22 +168,30 @@ def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -
     n = x.size
     if n < 8:
         return None
-    # periodic Hann window applied in the frequency domain: X_w[k] = X[k]/2 − (X[k−1] + X[k+1])/4
-    raw = np.fft.rfft(x - x.mean())
-    spec = np.empty(raw.size)
-    spec[1:-1] = np.abs(0.5 * raw[1:-1] - 0.25 * (raw[:-2] + raw[2:]))
-    spec[0] = spec[-1] = 0.0
+    # periodic Hann window applied in the frequency domain: X_w[k] = X[k]/2 − (X[k−1] + X[k+1])/4;
+    # the mean only sets bin 0, so it is cleared there instead of subtracted from every sample
+    raw = np.fft.rfft(x)
+    raw[0] = 0.0
     lo = max(2, int(math.ceil(min_hz * n / sample_rate)))
-    if lo >= spec.size - 1:
+    if lo >= raw.size - 1:
         return None
-    k = lo + int(np.argmax(spec[lo:-1]))
-    if spec[k] <= 0:
+    win = 0.5 * raw[1:-1]
+    win -= 0.25 * raw[:-2]
+    win -= 0.25 * raw[2:]
+    power = win.real * win.real
+    power += win.imag * win.imag  # |X_w|², whose peak is that of |X_w|
+    k = lo + int(np.argmax(power[lo - 1:]))
+    if power[k - 1] <= 0:
         return None
-    left, right = spec[k - 1], spec[k + 1]
+
+    def spec(i: int) -> float:  # |X_w[i]|, bins 0 and N/2 taken as 0 as before
+        return math.sqrt(float(power[i - 1])) if 1 <= i <= power.size else 0.0
+
+    left, right, peak = spec(k - 1), spec(k + 1), spec(k)
     if right >= left:
-        alpha, sign = right / spec[k], 1.0
+        alpha, sign = right / peak, 1.0
     else:
-        alpha, sign = left / spec[k], -1.0
+        alpha, sign = left / peak, -1.0
     delta = sign * (2 * alpha - 1) / (alpha + 1)
     delta = min(max(delta, -0.5), 0.5)
     return (k + delta) * sample_rate / n
@@ -259,7 +267,13 @@ def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
     for start, seg_len, count in pieces:
         u = _template(seg_len, fs, omega, orders)
         y = x[start:start + seg_len * count].reshape(count, seg_len)
-        a = y @ u  # (count, p) template projections
+        if with_w:
+            tau = np.arange(seg_len) / fs
+            ut = u * tau[:, None]
+            ab = y @ np.hstack([u, ut])  # one pass over the data for both projections
+            a, b = ab[:, :p], ab[:, p:]
+        else:
+            a = y @ u  # (count, p) template projections
         t_starts = (start + seg_len * np.arange(count)) / fs - t_mid
         rot = _rotations(t_starts, omega, orders)
         g0 = u.T @ u
@@ -267,9 +281,6 @@ def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
         g[:p, :p] += (rot_t @ g0 @ rot).sum(axis=0)
         r[:p] += (rot_t @ a[:, :, None]).sum(axis=0)[:, 0]
         if with_w:
-            tau = np.arange(seg_len) / fs
-            ut = u * tau[:, None]
-            b = y @ ut
             g1 = u.T @ ut
             g2 = ut.T @ ut
             w = rot @ v  # (count, p): dw column = t_m·U w + (τU) w
@@ -366,12 +377,15 @@ def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harm
             if abs(d_omega) <= rtol * omega:
                 converged = True
                 break
-        # final linear solve at the converged frequency (the iteration's coefficients lag one step)
-        g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, beta[1:], t_scale)
-        beta_w, ginv_w, rss = _solve(g, r, yy)
-        beta = beta_w[:-1]
-        ginv = ginv_w[:-1, :-1]
-        omega_var = ginv_w[-1, -1] / t_scale ** 2
+        if not converged:
+            # final solve at the last frequency (the iteration's coefficients lag one step). After a
+            # converged step (|Δω| ≤ rtol·ω) that solve is not needed: the step's own solution is the
+            # linearised fit at the new frequency, with differences of order Δω², far below rounding
+            g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, beta[1:], t_scale)
+            beta_w, ginv_w, rss = _solve(g, r, yy)
+            beta = beta_w[:-1]
+            ginv = ginv_w[:-1, :-1]
+            omega_var = ginv_w[-1, -1] / t_scale ** 2
         # RSS of the model without the (near-zero) frequency step
         g_lin = g[:-1, :-1]
         r_lin = r[:-1]
