@@ -165,14 +165,22 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     seed = None if flat else dft_frequency_seed(x, fs)
     h_req = max(int(harmonics), 1)
     # A two-level wave takes its frequency from its edges (below), so the iterative sine fit would
-    # be computed only to be replaced: its raw state levels (a cheap histogram of a subset) say so
-    # first, and a linear fit at the DFT seed serves for the detection and the two-level gate.
-    # When the edges give no period after all, the iterative fit is made then.
-    raw_states = state_levels(x) if seed is not None and seed > 0 else None
-    edges_first = raw_states is not None and raw_states.two_level
+    # be computed only to be replaced. The linear fit at the DFT seed (where the iteration starts)
+    # tells a wave rich in harmonics; its raw state levels (a histogram of a subset) then tell a
+    # two-level one, for which that linear fit serves the detection and the gate below. When the
+    # edges give no period after all, the iteration is made then.
     fit: HarmonicFit | None = None
+    raw_states: StateLevels | None = None
+    edges_first = False
     if seed is not None and seed > 0:
-        fit = fit_harmonics(x, fs, seed, h_req, fit_frequency=not edges_first)
+        fit = fit_harmonics(x, fs, seed, h_req)
+        gate = _thd_with_u(fit)[0]
+        rich = force_pulse or not (fit.orders.size >= 3 and gate is not None and gate < _MIN_PULSE_THD)
+        if rich and fs / seed >= _MIN_PULSE_SAMPLES_PER_PERIOD:
+            raw_states = state_levels(x)
+            edges_first = raw_states.two_level
+        if not edges_first:
+            fit = fit_harmonics(x, fs, seed, h_req, fit_frequency=True, start=fit)
     periodic = False
     if fit is not None and fit.phasors.size:
         amp_u = float(fit.amplitudes_u[0])
@@ -242,8 +250,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         # the harmonic table and THD at k × the reported frequency (linear fit, same orders)
         fit = fit_harmonics(x, fs, f, orders=fit.orders)
     else:
-        if edges_first:  # the edges gave no period: the frequency comes from the iterative fit
-            fit = fit_harmonics(x, fs, seed, h_req, fit_frequency=True)
+        if edges_first and seed is not None:  # the edges gave no period: the iterative fit gives it
+            fit = fit_harmonics(x, fs, seed, h_req, fit_frequency=True, start=fit)
             f = float(fit.frequency_hz)
         u_fit = float(fit.frequency_u_hz) if fit.frequency_u_hz is not None else math.nan
         if not fit.converged:
@@ -299,15 +307,20 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     if pulse.two_level and pulse.state_low is not None and pulse.state_high is not None \
             and pulse.noise_rms is not None:
         # a two-level wave: its states are the noise-free levels (the harmonic fit rings at the edges)
+        # (two values, so the model is the pair with their sample counts)
         mid = 0.5 * (pulse.state_low + pulse.state_high)
         xs = x[::stride]
-        model, sigma = np.where(xs >= mid, pulse.state_high, pulse.state_low), float(pulse.noise_rms)
+        n_high = int(np.count_nonzero(xs >= mid))
+        model, sigma = np.array([pulse.state_high, pulse.state_low]), float(pulse.noise_rms)
+        weights: np.ndarray | None = np.array([n_high, xs.size - n_high], dtype=np.float64)
     else:
         model, sigma = fit.evaluate(-(-n // stride), fs / stride), float(fit.sigma)
+        weights = None
     # noise on the two percentiles, and the resolution of each (q/√12 per end, both ends: q/√6);
     # a noise-free quantised plateau (a flat scope trace) keeps the resolution term
     q_step = quantisation_step(x)
-    vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, levels.vpp_low, levels.vpp_high, n_total=n),
+    vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, levels.vpp_low, levels.vpp_high, n_total=n,
+                                         weights=weights),
                              q_step / math.sqrt(6.0))
     extra.update({
         "harmonics_h": int(dist.harmonics_h),
