@@ -183,11 +183,11 @@ def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -
     lo = max(2, int(math.ceil(min_hz * n / sample_rate)))
     if lo >= raw.size - 1:
         return None
-    win = 0.5 * raw[1:-1]
-    win -= 0.25 * raw[:-2]
-    win -= 0.25 * raw[2:]
+    win = raw[:-2] + raw[2:]  # 2·X_w = X[k] − (X[k−1] + X[k+1])/2: the factor 2 cancels below
+    win *= -0.5
+    win += raw[1:-1]
     power = win.real * win.real
-    power += win.imag * win.imag  # |X_w|², whose peak is that of |X_w|
+    power += np.square(win.imag)  # |X_w|², whose peak is that of |X_w|
     k = lo + int(np.argmax(power[lo - 1:]))
     if power[k - 1] <= 0:
         return None
