@@ -266,7 +266,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     dist = analyse_distortion(x, fs, fit)
     if pulse.two_level:
         warnings.extend(pulse.warnings)
-        if pulse.coupling_source == "estimated" and (pulse.droop_pct or 0.0) >= _DROOP_WARN_PCT:
+        if pulse.coupling_source == "estimated" and (pulse.droop_pct or 0.0) >= _DROOP_WARN_PCT \
+                and pulse.coupling_tau_s is not None:
             warnings.append(
                 f"flat tops droop {pulse.droop_pct:.0f} % (input AC coupling, τ ≈ "
                 f"{_fmt(pulse.coupling_tau_s, 's')} estimated): pulse values are compensated, levels "
@@ -276,7 +277,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         clip = find_clipping(x, unit, full_scale, rails=False)
     if clip.clipped:
         warnings.append(_clip_warning(clip))
-    if pulse.two_level and pulse.noise_rms is not None:
+    if pulse.two_level and pulse.noise_rms is not None and pulse.state_high is not None \
+            and pulse.state_low is not None:
         amp_half = 0.5 * (pulse.state_high - pulse.state_low)
         snr = 20.0 * math.log10(amp_half / pulse.noise_rms) if pulse.noise_rms > 0 else math.inf
     else:
