@@ -284,6 +284,11 @@ def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
         v[2::2] = -orders * coef_ab[0::2] / t_scale  # coefficient of sin: −k·a_k
     # one template [U, τU] for every piece: the remainder's is the first rows of the full one
     ext = _template(length, fs, omega, orders, with_tau=with_w)
+    # [U, τU]ᵀ[U, τU] over the first `rem` rows and over the rest: the remainder's Gram and the full
+    # template's (their sum) from one pass over the template
+    head = ext[:rem].T @ ext[:rem] if rem else None
+    tail = ext[rem:].T @ ext[rem:]
+    grams = {length: tail if head is None else head + tail, rem: head}
     for start, seg_len, count in pieces:
         u = ext[:seg_len, :p]
         y = x[start:start + seg_len * count].reshape(count, seg_len)
@@ -294,7 +299,8 @@ def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
             a = y @ u  # (count, p) template projections
         t_starts = (start + seg_len * np.arange(count)) / fs - t_mid
         rot = _rotations(t_starts, omega, orders)
-        gram = ext[:seg_len].T @ ext[:seg_len]  # [U, τU]ᵀ[U, τU] in one product
+        gram = grams[seg_len]
+        assert gram is not None
         g0 = gram[:p, :p]
         rot_t = rot.transpose(0, 2, 1)
         g[:p, :p] += (rot_t @ g0 @ rot).sum(axis=0)
