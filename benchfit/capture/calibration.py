@@ -43,7 +43,7 @@ from benchfit.capture.capture import InputCalibration
 from benchfit.capture.fileio import write_text_atomic
 from benchfit.errors import CaptureError
 # the pure estimators live with the other computations; re-exported here for the CLI and tests
-from benchfit.measurement.calibration import (CLIP_FS, DEFAULT_METER_HALF_WIDTH_REL, GainEstimate,
+from benchfit.measurement.calibration import (CLIP_FS, DEFAULT_METER_HALF_WIDTH_REL, GainEstimate, clipped_samples,
                                               TimebaseEstimate, combine_gain_u_rel, default_meter_u,
                                               estimate_coupling, estimate_gain, estimate_timebase)
 
@@ -51,6 +51,7 @@ __all__ = [
     "ENV_CONFIG_DIR",
     "PROFILE_VERSION",
     "CLIP_FS",
+    "clipped_samples",
     "DEFAULT_METER_HALF_WIDTH_REL",
     "default_meter_u",
     "combine_gain_u_rel",

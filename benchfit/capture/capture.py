@@ -123,6 +123,12 @@ class InputCalibration:
     distortion_floor_pct : float or None
         THD (%) the card itself adds (its own distortion floor, from ``calibrate
         distortion``); measure budgets it in every THD. None: not measured.
+    instrument_volts : bool
+        True when the samples are volts as an instrument wrote them (a scope's or logger's
+        CSV export): the instrument applied its own vertical gain, which benchfit did not
+        calibrate. measure then budgets a stated default vertical-gain term
+        (:data:`benchfit.measurement.budgets.DEFAULT_SCOPE_GAIN_U_REL`) for every level,
+        unless ``gain_u_rel`` states the channel's figure.
 
     A timebase with ``timebase_u_ppm == 0`` counts as *not calibrated* (a calibration always
     has an uncertainty): measure then uses the stated default
@@ -136,6 +142,7 @@ class InputCalibration:
     coupling_tau_s: float | None = None
     gain_u_rel: tuple[float, ...] | None = None
     distortion_floor_pct: float | None = None
+    instrument_volts: bool = False
 
     @property
     def timebase_calibrated(self) -> bool:

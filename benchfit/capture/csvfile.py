@@ -38,7 +38,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from benchfit.capture.capture import Capture
+from benchfit.capture.capture import Capture, InputCalibration
 from benchfit.capture.csvpreamble import PreambleHints, UnitKind, parse_header_unit, read_hints, unit_kind
 from benchfit.errors import CaptureError
 
@@ -317,7 +317,7 @@ def _data(lines: list[str], start: int, lay: _Layout, labels: list[str],
         block.pop()
     joined = "\n".join(block) if d in (",", ";", "\t") and not lay.strip_trailing else ""
     if d is not None and joined and '"' not in joined and not re.search(r"^[ \t]*(#|//|;|$)", joined, re.M):
-        # fast path: plain rows without quotes, comments or blank lines
+        # fast path: plain rows without quotes, comments or blank lines (joined only with a set delimiter)
         counts = [ln.count(d) for ln in block]
         if counts.count(K - 1) != len(counts):
             r = next(i for i, c in enumerate(counts) if c != K - 1)
@@ -473,8 +473,10 @@ def _build(values: np.ndarray, line_no: Sequence[int], names: list[str] | None, 
         # each channel's header as written ("drive_V" for the channel named "drive"): accepted as its name too
         meta["channel_headers"] = [labels[i].strip() for i in ch_idx]
     samples = values[:, ch_idx].T * np.asarray(scales)[:, np.newaxis]
+    # volts as the scope wrote them: its own vertical gain applies, uncalibrated (measure budgets a default)
     return Capture(samples=samples, sample_rate=fs, channel_names=tuple(ch_names), units=("V",) * len(ch_idx),
-                   source=where, sha256=sha256, metadata=meta, warnings=tuple(warnings), t0=t0)
+                   source=where, sha256=sha256, metadata=meta, warnings=tuple(warnings), t0=t0,
+                   calibration=InputCalibration(instrument_volts=True))
 
 
 def _column_roles(values: np.ndarray, names: list[str] | None, kinds: list[tuple[str, str | None]],
@@ -556,7 +558,7 @@ def _print_resolution(t: np.ndarray) -> float:
     """The decimal grid the time stamps were printed on (1e-6 for "0.000021"), or 0 if none is found."""
     span = float(np.max(np.abs(t))) or 1.0
     for k in range(-12, 4):
-        r = 10.0 ** k
+        r = 10.0 ** float(k)
         if span / r < 1e15 and np.max(np.abs(t / r - np.round(t / r))) < 1e-3:
             # the finest grid that holds every value is the print resolution only if no coarser one does
             coarser = 10.0 * r
@@ -590,14 +592,14 @@ def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str,
     deviation = np.abs(t - t.mean() - slope * k) / dt
     jitter = float(deviation.max())
     if jitter > JITTER_LIMIT:
-        grid = _print_resolution(t)
-        # rounding strays up to r/2 from the true grid; the fitted grid itself may sit off it by the
+        res = _print_resolution(t)
+        # rounding strays up to res/2 from the true grid; the fitted grid itself may sit off it by the
         # ordinary limit (a least-squares line through rounded stamps)
         # a grid coarser than a tenth of a step would hide real irregular sampling: refused as before
-        if 0 < grid <= 0.1 * dt and jitter * dt <= 0.5 * grid + JITTER_LIMIT * dt:
+        if 0 < res <= 0.1 * dt and jitter * dt <= 0.5 * res + JITTER_LIMIT * dt:
             if warnings is not None:
-                warnings.append(f"{where}: column {label!r}: time stamps are rounded to {grid:.3g} s "
-                                f"({100 * grid / slope:.2g} % of a step) — the step {slope:.9g} s is fitted over all "
+                warnings.append(f"{where}: column {label!r}: time stamps are rounded to {res:.3g} s "
+                                f"({100 * res / slope:.2g} % of a step) — the step {slope:.9g} s is fitted over all "
                                 f"{n} rows; export more decimals to check it")
             return slope, jitter
     if jitter > JITTER_LIMIT:

@@ -40,7 +40,7 @@ from typing import Any, Literal, get_args
 
 import numpy as np
 
-from benchfit.capture.calibration import CLIP_FS, CalibrationProfile, load_profile
+from benchfit.capture.calibration import CalibrationProfile, clipped_samples, load_profile
 from benchfit.capture.capture import InputCalibration
 from benchfit.capture.fileio import create_new
 from benchfit.capture.devices import InputDevice, check_input, list_input_devices, resolve_input_device
@@ -95,7 +95,8 @@ class RecordStatus:
     peak_dbfs : tuple of float
         Per-channel peak level (dBFS) since the previous status.
     new_clips : int
-        Samples at or above −0.1 dBFS since the previous status.
+        Clipped samples since the previous status: stuck flat at −0.1 dBFS or above (≥ 3 identical
+        samples), or beyond full scale.
     new_overflows : int
         Input overflows PortAudio reported since the previous status.
     clip_count, overflow_count : int
@@ -130,7 +131,8 @@ class RecordingResult:
     start_utc : str
         Start of the recording (ISO 8601, UTC).
     overflow_count, clip_count : int
-        Input overflows reported by PortAudio, and samples at or above −0.1 dBFS.
+        Input overflows reported by PortAudio, and clipped samples (stuck flat at −0.1 dBFS or
+        above, or beyond full scale).
     peak_dbfs : tuple of float
         Per-channel peak over the whole recording (dBFS).
     interrupted : bool
@@ -240,7 +242,7 @@ def _writer(sf_file, blocks: "queue.Queue[Any]", stats: _Stats, integer: bool,
             continue
         mag = np.abs(block)
         peaks = mag.max(axis=0) if block.shape[0] else np.zeros(block.shape[1])
-        clips = int(np.count_nonzero(mag >= CLIP_FS))
+        clips = clipped_samples(block)  # stuck at full scale or beyond it: not a sagging top near it
         with stats.lock:
             stats.frames += block.shape[0]
             np.maximum(stats.peak_recent, peaks, out=stats.peak_recent)
@@ -478,7 +480,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
             if overflows:
                 warnings.append(f"PortAudio reported {overflows} input overflow(s): samples were lost")
             if clips:
-                warnings.append(f"{clips} sample(s) at or above −0.1 dBFS: the input clipped")
+                warnings.append(f"{clips} sample(s) stuck flat at full scale (−0.1 dBFS or above): the input clipped")
             if frames and peak_all and max(peak_all) < _SILENT_DBFS:
                 warnings.append(f"every channel stayed below {_SILENT_DBFS:g} dBFS (loudest {max(peak_all):.1f} dBFS): "
                                 "the recording is silent — check the input selection, the cable and the "

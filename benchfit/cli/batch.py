@@ -205,7 +205,7 @@ def _guarded(index: int, path: Path, fn: Callable[..., Any], kwargs: Mapping[str
 
 def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harmonics: int = 10,
                 sample_rate: float | None = None, with_capture: bool = False,
-                force_pulse: bool = False) -> dict[str, Any]:
+                force_pulse: bool = False, gain_u_rel: float | None = None) -> dict[str, Any]:
     """Load one capture file and measure it (the job of ``benchfit measure``).
 
     Parameters
@@ -222,6 +222,8 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
         Also return what the measurement log stores about the file.
     force_pulse : bool
         Duty cycle and edges even for a wave that is not two-level (``measure --pulse``).
+    gain_u_rel : float, optional
+        Gain uncertainty for levels in V whose calibration states none (``measure --gain-u``).
 
     Returns
     -------
@@ -235,7 +237,7 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
 
     cap = load(path, sample_rate=sample_rate)
     result = measure(cap, harmonics=harmonics, channels=list(channels) if channels else None,
-                     force_pulse=force_pulse)
+                     force_pulse=force_pulse, gain_u_rel=gain_u_rel)
     capture = None
     if with_capture:
         meta = dict(cap.metadata)

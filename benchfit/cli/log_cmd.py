@@ -83,17 +83,49 @@ def list_command(
     stdout.print(table)
 
 
-@log_app.command("show", help="Show everything logged about one run.\n\nExample:\n\n\b\n  benchfit log show 12")
+def _resolve_run(log: Optional[str], run: str) -> tuple[int, Optional[str]]:
+    """(run id, note) for ``log show RUN``: a whole number is a run id; any other text is a unit
+    serial, whose latest run is shown (the note says so and how to see the others)."""
+    from benchfit.cli.common import fail
+    from benchfit.log.store import list_runs
+
+    text = run.strip()
+    if not text:
+        fail("log show: RUN is empty — give a run id (e.g. 12) or a unit serial (e.g. HC-03); "
+             "see `benchfit log list`")
+    if text.isdigit():
+        return int(text), None
+    runs = _read_log(log, list_runs, unit=text)
+    if not runs:
+        serials = sorted({r["unit"] for r in _read_log(log, list_runs) if r["unit"]})
+        near = [s for s in serials if s.lower() == text.lower()]
+        hint = (f"did you mean {near[0]!r}?" if near else
+                f"logged serials: {', '.join(serials[:8])}{' …' if len(serials) > 8 else ''}" if serials
+                else "the log holds no runs with a unit serial")
+        fail(f"log show {text}: no run id and no logged unit with this serial — {hint} "
+             "(see `benchfit log list`)")
+    latest = runs[-1]  # list_runs is in time order
+    note = (f"{text} has {len(runs)} logged run(s); showing the latest, run {latest['id']} "
+            f"({latest['time_utc'][:19]} UTC) — `benchfit log list --unit {text}` lists them all")
+    return int(latest["id"]), note
+
+
+@log_app.command("show", help="Show everything logged about one run: by run id, or the latest run of a unit "
+                 "serial.\n\nExample:\n\n\b\n  benchfit log show 12\n  benchfit log show HC-03")
 def show_command(
-    run: int = typer.Argument(..., metavar="RUN", help="Run id (see `benchfit log list`)."),
+    run: str = typer.Argument(..., metavar="RUN", help="Run id (see `benchfit log list`), or a unit serial "
+                              "for its latest run."),
     log: Optional[str] = typer.Option(None, "--log", metavar="PATH", help=_LOG_HELP, envvar="BENCHFIT_LOG"),
     as_json: bool = typer.Option(False, "--json", help="Print the run as one JSON object."),
 ) -> None:
-    from benchfit.cli.common import print_json, stdout
+    from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.log.store import get_run
     from benchfit.report.html import format_limits, format_u, format_value
 
-    data = _read_log(log, get_run, run)
+    run_id, note = _resolve_run(log, run)
+    data = _read_log(log, get_run, run_id)
+    if note:  # on stderr, so --json stays one object on stdout
+        stderr.print(f"note: {note}", markup=False, highlight=False, soft_wrap=True)
     if as_json:
         print_json(data)
         return

@@ -234,6 +234,11 @@ def measure_command(
     plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE",
                                         help="One file only: write its waveform and harmonics to FILE.svg or "
                                              "FILE.png (an existing file is kept)."),
+    gain_u: Optional[str] = typer.Option(
+        None, "--gain-u", metavar="U",
+        help="Standard uncertainty (k = 1) of the gain of levels in V whose calibration states none, e.g. 1% or "
+             "0.01: a scope channel's vertical gain (default ±3 % rectangular, not calibrated) or a sound-card "
+             "profile without one (default ±1 %)."),
 ) -> None:
     from benchfit.cli.batch import collect_captures, default_jobs, prefer_one_blas_thread
     from benchfit.cli.common import fail, parse_value
@@ -261,6 +266,8 @@ def measure_command(
     rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
     opts = {"channels": list(channel) if channel else None, "harmonics": harmonics, "sample_rate": rate,
             "with_capture": log_path is not None, "force_pulse": pulse}
+    if gain_u is not None:
+        opts["gain_u_rel"] = _relative_u(gain_u, "--gain-u")
     paths, notes = collect_captures(files, recursive=recursive)
     if not paths:
         fail(notes[0] if len(notes) == 1 else "; ".join(notes))
@@ -280,6 +287,19 @@ def measure_command(
     _measure_batch(paths, notes, opts, as_json, log_path, jobs or default_jobs())
 
 
+def _relative_u(text: str, option: str) -> float:
+    """A relative standard uncertainty from ``"1.5%"`` or ``"0.015"`` (a bare number must be below 1)."""
+    from benchfit.cli.common import fail, parse_value
+
+    t = text.strip()
+    value = (parse_value(t[:-1].strip(), option, allow_zero=True) / 100.0 if t.endswith("%")
+             else parse_value(t, option, allow_zero=True))
+    if not value < 1.0:
+        fail(f"{option} {text!r}: a relative uncertainty of 100 % or more — give it as a percentage (1.5%) "
+             "or a fraction below 1 (0.015)")
+    return value
+
+
 def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
     """Draw the waveform and harmonics of one capture (measured again here: the figure needs the objects)."""
     from benchfit.capture.load import load
@@ -289,7 +309,7 @@ def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
 
     cap = load(path, sample_rate=opts.get("sample_rate"))
     m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"),
-                force_pulse=opts.get("force_pulse", False))
+                force_pulse=opts.get("force_pulse", False), gain_u_rel=opts.get("gain_u_rel"))
     if opts.get("channels"):
         cap = cap.select(list(opts["channels"]))
     save_figure(measurement_svg(cap, m), plot, overwrite=False)

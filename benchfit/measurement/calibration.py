@@ -6,8 +6,8 @@ store that keeps their results lives in :mod:`benchfit.capture.calibration`.
 * gain — volts per full-scale unit from a sine whose RMS was read on a meter:
   ``V/FS = rms_known / rms_fitted_FS``, with a relative standard uncertainty that combines the
   fit's own part and the meter reading's (GUM, JCGM 100:2008 5.1.2);
-* timebase — the sample-clock error in ppm from a trusted tone: ``ppm = (f_ref/f_meas − 1)·1e6``
-  (positive: the card's clock runs fast);
+* timebase — the sample-clock error in ppm from a trusted tone (sine or square, measured as
+  ``measure`` measures it): ``ppm = (f_ref/f_meas − 1)·1e6`` (positive: the card's clock runs fast);
 * coupling — the input high-pass time constant from the droop of a low-frequency square.
 """
 
@@ -20,13 +20,21 @@ import numpy as np
 
 from benchfit.errors import MeasureError
 
-__all__ = ["CLIP_FS", "DEFAULT_METER_HALF_WIDTH_REL", "GainEstimate", "TimebaseEstimate",
+__all__ = ["CLIP_FS", "clipped_samples", "DEFAULT_METER_HALF_WIDTH_REL", "GainEstimate", "TimebaseEstimate",
            "estimate_gain", "default_meter_u", "combine_gain_u_rel", "estimate_timebase",
            "estimate_distortion_floor", "DistortionFloorEstimate",
            "estimate_coupling"]
 
 #: a sample at or above this magnitude (−0.1 dBFS) counts as clipped
 CLIP_FS = 10.0 ** (-0.1 / 20.0)
+
+def clipped_samples(block: np.ndarray) -> int:
+    """Samples of a recorded block (frames × channels, FS) that clipped: stuck at −0.1 dBFS or above
+    for ≥ 3 identical samples, or beyond full scale (:func:`benchfit.measurement.levels.clipped_sample_count`)."""
+    from benchfit.measurement.levels import clipped_sample_count
+
+    return clipped_sample_count(block, CLIP_FS)
+
 
 #: Half-width of the rectangular distribution assumed for a meter's AC voltage reading when
 #: the user states no uncertainty: ±0.5 % of the reading, about the AC accuracy of a
@@ -70,25 +78,48 @@ class TimebaseEstimate:
         Clock error (positive = fast) and its standard uncertainty (ppm).
     measured_hz, measured_u_hz : float
         The tone's frequency on the nominal sample rate and its standard uncertainty (Hz).
+    method : str
+        How the frequency was measured (edge regression for a square, harmonic fit otherwise).
     """
 
     ppm: float
     u_ppm: float
     measured_hz: float
     measured_u_hz: float
+    method: str = ""
 
 
-def _fit_sine(x: np.ndarray, fs: float, what: str):
-    from benchfit.measurement.tone import fit_tone
+def _checked_samples(x: np.ndarray, what: str, headroom: bool = False) -> np.ndarray:
+    """One channel of ≥ 64 samples in FS that is not clipped.
+
+    ``headroom``: refuse any peak at or above :data:`CLIP_FS` (−0.1 dBFS) — a gain calibration
+    needs the sine's crest clear of full scale. Otherwise only a flat-topped clip is refused:
+    samples stuck at full scale (:func:`benchfit.measurement.levels.find_clipping`), so that a
+    square whose AC-coupled tops sag from a peak near full scale (a coupling or timebase
+    reference) is accepted.
+    """
+    from benchfit.measurement.levels import find_clipping
 
     x = np.asarray(x, dtype=np.float64)
     if x.ndim != 1 or x.size < 64:
         raise MeasureError(f"{what}: need at least 64 samples of one channel, got shape {x.shape} — record longer")
     peak = float(np.max(np.abs(x)))
-    if peak >= CLIP_FS:
+    if headroom and peak >= CLIP_FS:
         raise MeasureError(
             f"{what}: the input reaches {20 * math.log10(peak):.2f} dBFS (clipped) — "
             "lower the level (attenuator or input gain) and record again")
+    clip = find_clipping(x, "FS")
+    if clip.clipped:
+        raise MeasureError(
+            f"{what}: the input reaches {20 * math.log10(peak):.2f} dBFS and {clip.n_samples} samples sit flat "
+            f"at full scale (clipped) — lower the level (attenuator or input gain) and record again")
+    return x
+
+
+def _fit_sine(x: np.ndarray, fs: float, what: str):
+    from benchfit.measurement.tone import fit_tone
+
+    x = _checked_samples(x, what, headroom=True)
     fit = fit_tone(x, fs, n_harmonics=1)
     if fit is None or not fit.converged or fit.frequency_u_hz is None:
         raise MeasureError(f"{what}: no steady tone found — feed a sine and record at least a few cycles")
@@ -187,12 +218,19 @@ def combine_gain_u_rel(v_per_fs: float, u_v_per_fs: float, rms_known_v: float, r
 
 def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
                       reference_u_hz: float = 0.0, what: str = "timebase") -> TimebaseEstimate:
-    """Sample-clock error from a tone of trusted frequency.
+    """Sample-clock error from a tone of trusted frequency (a sine or a square).
+
+    The tone's frequency is measured the way ``measure`` measures it
+    (:func:`benchfit.measurement.summary.measure_channel`, with no timebase term, since the
+    clock is what is being calibrated): a two-level wave (a square from a counter's or
+    generator's reference output) by the IEEE 181 period from every 50 % crossing, anything
+    else by the multi-harmonic least-squares fit (IEEE 1057 generalised to harmonics 2…10).
+    A one-sine fit to a square would be biased by the harmonics it leaves in its residual.
 
     Parameters
     ----------
     x : ndarray
-        Raw samples of one channel (any unit).
+        Raw samples of one channel in full-scale units (FS).
     nominal_rate : float
         The sample rate the card was asked for (Hz).
     reference_hz : float
@@ -206,27 +244,46 @@ def estimate_timebase(x: np.ndarray, nominal_rate: float, reference_hz: float,
     -------
     TimebaseEstimate
         ``ppm = (reference_hz / f_meas − 1)·1e6`` with
-        ``u_ppm = 1e6·√((f_ref·u_meas/f_meas²)² + (u_ref/f_meas)²)``.
+        ``u_ppm = 1e6·√((f_ref·u_meas/f_meas²)² + (u_ref/f_meas)²)``; ``method`` names the
+        frequency method used.
 
     Raises
     ------
     MeasureError
-        No tone, or a tone more than 1 % away from the reference (wrong frequency given).
+        Clipped input, no tone, a tone too weak, or one more than 1 % away from the
+        reference (wrong frequency given).
     """
+    from benchfit.measurement.summary import measure_channel
+
     if not (math.isfinite(reference_hz) and 0 < reference_hz < nominal_rate / 2):
         raise MeasureError(
             f"--frequency: {reference_hz!r} Hz must be positive and below half the sample rate "
             f"({nominal_rate / 2:g} Hz) — check --frequency, or record at a higher sample rate (--rate)")
-    fit, _ = _fit_sine(x, nominal_rate, what)
-    f_meas = float(fit.frequency_hz)
+    if not (math.isfinite(reference_u_hz) and reference_u_hz >= 0):
+        raise MeasureError(f"--frequency-u: {reference_u_hz!r} Hz must be a standard uncertainty ≥ 0 — "
+                           "give the reference's stated standard uncertainty in Hz")
+    x = _checked_samples(x, what)
+    ch = measure_channel(x, float(nominal_rate), unit="FS", timebase_u_ppm=0.0)
+    if ch.frequency_hz is None or ch.frequency_u_hz is None or ch.amplitude is None:
+        raise MeasureError(f"{what}: no steady tone found — feed a sine or square and record at least a few cycles")
+    method = str(ch.extra.get("frequency_method", ""))
+    if method == "multi-harmonic fit" and any("did not settle" in w for w in ch.warnings):
+        raise MeasureError(f"{what}: no steady tone found (the frequency fit did not settle) — feed a steady "
+                           "sine or square and record at least a few cycles")
+    amp = float(ch.amplitude)
+    if amp < 1e-4:
+        raise MeasureError(
+            f"{what}: the tone is only {20 * math.log10(max(amp, 1e-12)):.1f} dBFS — raise the level to "
+            "between −20 and −1 dBFS")
+    f_meas = float(ch.frequency_hz)
     if abs(f_meas / reference_hz - 1.0) > 0.01:
         raise MeasureError(
             f"{what}: the tone measures {f_meas:.4f} Hz, not near the reference {reference_hz:g} Hz — "
             "check --frequency or the generator")
-    u_meas = float(fit.frequency_u_hz)
+    u_meas = float(ch.frequency_u_hz)
     ppm = (reference_hz / f_meas - 1.0) * 1e6
     u_ppm = 1e6 * math.hypot(reference_hz * u_meas / f_meas ** 2, reference_u_hz / f_meas)
-    return TimebaseEstimate(ppm=ppm, u_ppm=u_ppm, measured_hz=f_meas, measured_u_hz=u_meas)
+    return TimebaseEstimate(ppm=ppm, u_ppm=u_ppm, measured_hz=f_meas, measured_u_hz=u_meas, method=method)
 
 
 def estimate_coupling(x: np.ndarray, sample_rate: float, what: str = "coupling") -> float:
@@ -243,11 +300,7 @@ def estimate_coupling(x: np.ndarray, sample_rate: float, what: str = "coupling")
     if not hasattr(pulse, "estimate_coupling_tau"):
         raise MeasureError(f"{what}: this benchfit cannot estimate the coupling time constant yet "
                            "— update benchfit")
-    x = np.asarray(x, dtype=np.float64)
-    peak = float(np.max(np.abs(x))) if x.size else 0.0
-    if peak >= CLIP_FS:
-        raise MeasureError(
-            f"{what}: the input reaches {20 * math.log10(peak):.2f} dBFS (clipped) — lower the level and record again")
+    x = _checked_samples(x, what)  # a sagging top that peaks near full scale is the droop itself, not a clip
     result = pulse.estimate_coupling_tau(x, sample_rate)
     tau = getattr(result, "tau_s", result)
     if tau is None or not (isinstance(tau, (int, float)) and math.isfinite(tau) and tau > 0):

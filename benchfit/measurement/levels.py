@@ -26,7 +26,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Levels", "ClipReport", "signal_levels", "whole_period_span", "find_clipping",
+__all__ = ["Levels", "ClipReport", "signal_levels", "whole_period_span", "find_clipping", "stuck_runs",
+           "clipped_sample_count",
            "percentile_noise_u", "vpp_noise_u", "quantisation_step", "VPP_PERCENTILE"]
 
 #: lower/upper percentile used for the robust peak-to-peak value (%)
@@ -331,9 +332,43 @@ def _runs(mask: np.ndarray, min_run: int) -> tuple[int, int]:
     return int(long_runs.size), int(long_runs.sum())
 
 
+def stuck_runs(x: np.ndarray, threshold: float, min_run: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Runs of ≥ ``min_run`` consecutive *identical* samples with ``|x| ≥ threshold``.
+
+    A converter driven past its range returns its end code again and again (IEEE 1241 and
+    IEEE 1057 treat samples at the ADC's range limits as clipped; clause numbers from memory):
+    the samples are stuck at one value. A wave that only comes near full scale — the sagging
+    top of an AC-coupled square, a hot sine's crest — passes through the top codes without
+    repeating them. Returns (first index, length, value) of each run, as arrays.
+    """
+    x = np.asarray(x, dtype=np.float64).ravel()
+    idx = np.flatnonzero(np.abs(x) >= threshold)
+    if idx.size < max(min_run, 1):
+        empty = np.zeros(0, dtype=np.int64)
+        return empty, empty, np.zeros(0)
+    xs = x[idx]
+    brk = np.flatnonzero((np.diff(idx) != 1) | (np.diff(xs) != 0)) + 1
+    starts = np.concatenate(([0], brk))
+    lengths = np.diff(np.concatenate((starts, [idx.size])))
+    keep = lengths >= min_run
+    return idx[starts[keep]], lengths[keep], xs[starts[keep]]
+
+
+def _piles_up(x: np.ndarray, level: float) -> bool:
+    """True when ``level`` holds at least :data:`_RAIL_PILEUP` times as many samples as the next
+    value inside it: a rail or an end code piles samples up, while a quantised peak (the crest of
+    a slow sine, ≤ 2.4× by the arcsine law) or a sagging top spreads over neighbouring codes."""
+    n_at = int(np.count_nonzero(x == level))
+    inside = x[x < level] if level > 0 else x[x > level]
+    if inside.size == 0:
+        return n_at >= _RAIL_PILEUP
+    neighbour = inside.max() if level > 0 else inside.min()
+    return n_at >= _RAIL_PILEUP * max(int(np.count_nonzero(inside == neighbour)), 1)
+
+
 def find_clipping(x: np.ndarray, unit: str, full_scale: float | None = None,
                   rails: bool = True) -> ClipReport:
-    """Look for clipping: flat runs at full scale (audio) or at the channel's rails.
+    """Look for clipping: samples stuck flat at full scale (audio) or at the channel's rails.
 
     Parameters
     ----------
@@ -343,7 +378,10 @@ def find_clipping(x: np.ndarray, unit: str, full_scale: float | None = None,
         ``"FS"`` for uncalibrated audio (full scale is 1.0) or ``"V"``.
     full_scale : float, optional
         Full scale in sample units when known (for volts from a calibrated sound card:
-        the gain in V per FS). Runs of ≥ 3 samples with ``|x| ≥ 0.999·full_scale`` count.
+        the gain in V per FS). Runs of ≥ 3 identical samples with ``|x| ≥ 0.999·full_scale``
+        count (:func:`stuck_runs`), provided that value piles samples up against the next one
+        inside it (see below): nearing full scale without sticking there (the sag of an
+        AC-coupled square, a crest at −0.01 dBFS) is not clipping.
     rails : bool
         When no full scale is known, count runs of ≥ 5 samples that equal the channel's
         exact maximum or minimum (a saturating recorder repeats its last code), provided
@@ -358,11 +396,12 @@ def find_clipping(x: np.ndarray, unit: str, full_scale: float | None = None,
     x = np.asarray(x, dtype=np.float64)
     fs_level = 1.0 if unit == "FS" else full_scale
     if fs_level is not None and fs_level > 0:
-        mask = np.abs(x) >= _FS_LEVEL * fs_level
-        runs, count = _runs(mask, _FS_MIN_RUN)
-        if runs:
-            peak = float(np.max(np.abs(x[mask])))
-            return ClipReport(True, runs, count, peak, "full-scale")
+        _, lengths, values = stuck_runs(x, _FS_LEVEL * fs_level, _FS_MIN_RUN)
+        piled = {float(v) for v in np.unique(values) if _piles_up(x, float(v))}
+        sel = np.asarray([float(v) in piled for v in values], dtype=bool)
+        if sel.any():
+            return ClipReport(True, int(sel.sum()), int(lengths[sel].sum()),
+                              float(np.max(np.abs(values[sel]))), "full-scale")
         return ClipReport(False)
     if not rails:
         return ClipReport(False)
@@ -370,19 +409,29 @@ def find_clipping(x: np.ndarray, unit: str, full_scale: float | None = None,
     if vmax == vmin:
         return ClipReport(False)
     best = ClipReport(False)
-    for level, beyond in ((vmax, x < vmax), (vmin, x > vmin)):
-        at = x == level
-        runs, count = _runs(at, _RAIL_MIN_RUN)
-        if not runs or count <= best.n_samples:
-            continue
-        # a quantised smooth peak also repeats its top code, but the next code down holds a
-        # comparable count (≤ 2.4× fewer for a sine); a rail piles samples up at one value
-        rest = x[beyond]
-        neighbour = rest.max() if level == vmax else rest.min()
-        n_neighbour = int(np.count_nonzero(rest == neighbour))
-        if int(np.count_nonzero(at)) >= _RAIL_PILEUP * max(n_neighbour, 1):
+    for level in (vmax, vmin):
+        runs, count = _runs(x == level, _RAIL_MIN_RUN)
+        if runs and count > best.n_samples and _piles_up(x, level):
             best = ClipReport(True, runs, count, level, "rail")
     return best
+
+
+def clipped_sample_count(block: np.ndarray, threshold: float, full_scale: float = 1.0) -> int:
+    """Samples of a recorded block (frames × channels, or one channel) that clipped: those stuck
+    in runs of ≥ 3 identical values at ``|x| ≥ threshold`` (:func:`stuck_runs`), and any beyond
+    ``full_scale`` (a float stream's overshoot, limited to full scale when written as integers).
+    A live count, block by block: the record-wide pile-up test of :func:`find_clipping` is not
+    applied."""
+    b = np.asarray(block, dtype=np.float64)
+    cols = b.T if b.ndim == 2 else b[np.newaxis, :]
+    total = 0
+    for col in cols:
+        mask = np.abs(col) > full_scale
+        starts, lengths, _ = stuck_runs(col, threshold, _FS_MIN_RUN)
+        for s0, n0 in zip(starts, lengths):
+            mask[s0:s0 + n0] = True
+        total += int(np.count_nonzero(mask))
+    return total
 
 
 def quantisation_step(x: np.ndarray) -> float:

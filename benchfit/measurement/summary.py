@@ -30,7 +30,8 @@ calibration gives the gain's relative standard uncertainty ``gain_u_rel``, it is
 quadrature (GUM, JCGM 100:2008 5.1.2; the gain and the noise are uncorrelated):
 ``u² = u_noise² + (value·gain_u_rel)²``, and ``extra["gain_u_rel"]`` records it (None when
 not known; a channel in V from a sound-card gain without it gets a "gain uncertainty not
-known" warning). Frequency, duty cycle, rise/fall times, THD, THD+N and SINAD are ratios
+known" warning, and volts a scope wrote itself get the stated vertical-gain default with a
+"vertical gain not calibrated" note: :func:`benchfit.measurement.budgets.gain_term`). Frequency, duty cycle, rise/fall times, THD, THD+N and SINAD are ratios
 of times or of levels of the same channel, so the gain cancels and they are unaffected.
 """
 
@@ -44,7 +45,7 @@ import numpy as np
 
 from benchfit.capture.capture import Capture, ChannelSpec
 from benchfit.errors import MeasureError
-from benchfit.measurement.budgets import channel_budgets
+from benchfit.measurement.budgets import channel_budgets, gain_term
 from benchfit.measurement.distortion import _thd_with_u, analyse_distortion, max_harmonic_order
 from benchfit.measurement.levels import _percentiles, find_clipping, quantisation_step, signal_levels, vpp_noise_u
 from benchfit.measurement.pulse import PulseResult, StateLevels, pulse_parameters, state_levels
@@ -105,7 +106,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                     full_scale: float | None = None, gain_u_rel: float | None = None,
                     extra_warnings: tuple[str, ...] = (), timebase_calibrated: bool = True,
                     timebase_source: str = "", gain_source: str = "calibration profile",
-                    distortion_floor_pct: float | None = None, force_pulse: bool = False) -> ChannelMeasurement:
+                    distortion_floor_pct: float | None = None, force_pulse: bool = False,
+                    gain_name: str = "gain") -> ChannelMeasurement:
     """Measure one channel.
 
     Parameters
@@ -137,6 +139,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         budget row then says so and is rectangular).
     timebase_source, gain_source : str
         Provenance of the timebase and gain figures, for the budget rows.
+    gain_name : str
+        Name of the gain row ("gain", or "vertical gain …" for a scope channel).
     distortion_floor_pct : float, optional
         THD (%) the card itself adds (calibrate distortion): budgeted in ``thd_pct``.
     force_pulse : bool
@@ -367,7 +371,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         levels={"amplitude": (amplitude, float(fit.amplitudes_u[0])), "vdc": (levels.vdc, float(fit.dc_u)),
                 "vrms": (levels.vrms, _vrms_u(levels.vrms, fit.rss / n, levels.span_samples)),
                 "vpp": (levels.vpp, vpp_u_noise)},
-        gain_u_rel=gain_u_rel, gain_source=gain_source,
+        gain_u_rel=gain_u_rel, gain_source=gain_source, gain_name=gain_name,
         thd_pct=None if thd is None else 100.0 * thd, thd_u_noise_pct=extra["thd_u_pct"],
         distortion_floor_pct=thd_floor,
         duty=(pulse.duty_cycle_pct, pulse.duty_cycle_u_pct) if pulse.two_level else (None, None),
@@ -457,7 +461,8 @@ def _clip_warning(clip) -> str:
 
 
 def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None = None,
-            channels: ChannelSpec | None = None, force_pulse: bool = False) -> Measurement:
+            channels: ChannelSpec | None = None, force_pulse: bool = False,
+            gain_u_rel: float | None = None) -> Measurement:
     """Measure every (or the chosen) channel of a capture.
 
     Parameters
@@ -473,6 +478,11 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         names (case-insensitive), 0-based ints, 1-based numbers as text, ``"drive,output"``.
     force_pulse : bool
         Analyse every channel as a pulse even when it is not two-level (see :func:`measure_channel`).
+    gain_u_rel : float, optional
+        Relative standard uncertainty (k = 1) of the gain of every channel in V whose calibration
+        states none: a scope channel's vertical gain (instead of the stated ±3 % default,
+        :data:`benchfit.measurement.budgets.DEFAULT_SCOPE_GAIN_U_REL`) or a sound-card profile
+        without a gain u (instead of ±1 %). A calibration that states its own u keeps it.
 
     Returns
     -------
@@ -490,6 +500,10 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
     if isinstance(h, bool) or not isinstance(h, (int, np.integer)) or h < 1:
         raise MeasureError(f"harmonics: {h!r} is not a whole number ≥ 1 — give e.g. 10 "
                            "(THD over harmonics 2…10)")
+    if gain_u_rel is not None and not (isinstance(gain_u_rel, (int, float)) and math.isfinite(gain_u_rel)
+                                       and 0 <= gain_u_rel < 1):
+        raise MeasureError(f"gain_u_rel: {gain_u_rel!r} must be a relative standard uncertainty in [0, 1) "
+                           "(0.01 = 1 %) — give the channel's stated or calibrated gain uncertainty")
     if isinstance(capture_or_path, Capture):
         cap = capture_or_path
     else:
@@ -498,37 +512,24 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
         cap = load(capture_or_path)
     if channels is not None and not (isinstance(channels, (list, tuple)) and not channels):
         cap = cap.select(channels)  # (an empty list measures every channel, as it always has)
-    from benchfit.uncertainty import DEFAULT_GAIN_NOTE, DEFAULT_GAIN_U_REL, DEFAULT_TIMEBASE_NOTE
+    from benchfit.uncertainty import DEFAULT_TIMEBASE_NOTE
 
     cal = cap.calibration
-    gains = cal.gain_v_per_fs
-    gains_u = cal.gain_u_rel
     tb_cal = cal.timebase_calibrated
     tb_source = (f"calibration profile {cal.profile or 'unnamed'}" if tb_cal else
                  "stated default for an uncalibrated crystal clock (common practice, no source)")
     results = []
     for i, (name, unit) in enumerate(zip(cap.channel_names, cap.units)):
-        full_scale = None
-        gain_u = None
-        gain_source = f"calibration profile {cal.profile or 'unnamed'}"
-        notes = tuple(cap.warnings)
-        if not tb_cal:
-            notes += (DEFAULT_TIMEBASE_NOTE,)
-        if unit == "V" and gains is not None and i < len(gains) and gains[i]:
-            full_scale = abs(float(gains[i]))
-            if gains_u is not None and i < len(gains_u) and gains_u[i] is not None:
-                gain_u = float(gains_u[i])
-            else:
-                gain_u = DEFAULT_GAIN_U_REL
-                gain_source = "stated default (calibration gives no uncertainty)"
-                notes += (f"{DEFAULT_GAIN_NOTE}: calibration profile {cal.profile or 'unnamed'!s} does not "
-                          "state it — run 'benchfit calibrate gain' again with --rms-u and record with the "
-                          "new profile",)
+        g = gain_term(unit, i, gains=cal.gain_v_per_fs, gains_u=cal.gain_u_rel,
+                      instrument_volts=cal.instrument_volts, profile=cal.profile, stated_u_rel=gain_u_rel)
+        notes = tuple(cap.warnings) + ((DEFAULT_TIMEBASE_NOTE,) if not tb_cal else ()) + \
+            ((g.note,) if g.note else ())
         results.append(measure_channel(
             cap.samples[i], cap.sample_rate, name=name, unit=unit, harmonics=int(h),
             timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm_effective,
-            coupling_tau_s=cal.coupling_tau_s, full_scale=full_scale, gain_u_rel=gain_u,
+            coupling_tau_s=cal.coupling_tau_s, full_scale=g.full_scale, gain_u_rel=g.u_rel,
             extra_warnings=notes, timebase_calibrated=tb_cal, timebase_source=tb_source,
-            gain_source=gain_source, distortion_floor_pct=cal.distortion_floor_pct, force_pulse=force_pulse))
+            gain_source=g.source, gain_name=g.name, distortion_floor_pct=cal.distortion_floor_pct,
+            force_pulse=force_pulse))
     return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
                        duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)

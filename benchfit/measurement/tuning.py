@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 
 from benchfit.measurement.calibration import CLIP_FS
+from benchfit.measurement.levels import find_clipping
 from benchfit.errors import MeasureError
 from benchfit.measurement.pulse import pulse_parameters
 from benchfit.measurement.tone import dft_frequency_seed, fit_harmonics
@@ -162,7 +163,8 @@ class TuneReading:
     peak_dbfs : float
         Largest raw sample (dBFS).
     clipped : bool
-        A raw sample reached −0.1 dBFS.
+        Samples stuck flat at full scale (:func:`benchfit.measurement.levels.find_clipping`);
+        a peak at −0.1 dBFS or above that does not stick there gives a headroom warning only.
     hint : str
         Plain-words direction: how far off and which way to turn.
     status : {"on-target", "within-tolerance", "off-target"}
@@ -290,9 +292,15 @@ def analyse_window(x: np.ndarray, sample_rate: float, target_hz: float, *,
     if not fit.converged:
         warnings.append("frequency fit did not settle — the tone may be drifting or noisy")
     duty, duty_u = _duty_cycle(x, sample_rate, coupling_tau_s)
-    clipped = peak >= CLIP_FS
+    # clipped: samples stuck flat at the top codes (levels.find_clipping, the IEEE 1241 notion of
+    # clipping at the converter's range); a crest or a sagging AC-coupled top that only comes near
+    # full scale is a headroom warning, not a clip
+    clipped = bool(find_clipping(x, "FS").clipped)
     if clipped:
-        warnings.append("input clipped (≥ −0.1 dBFS) — lower the level")
+        warnings.append("input clipped (samples stuck flat at full scale) — lower the level")
+    elif peak >= CLIP_FS:
+        warnings.append(f"input near full scale (peak {to_dbfs(peak):.2f} dBFS, ≥ −0.1 dBFS) but not clipped — "
+                        "lower the level a little to keep headroom")
     return TuneReading(frequency_hz=f, frequency_u_hz=u, target_hz=target_hz, deviation_hz=dev,
                        deviation_ppm=dev / target_hz * 1e6, amplitude=a1 * g,
                        rms=float(np.std(x)) * g, unit="V" if gain_v_per_fs is not None else "FS",

@@ -75,13 +75,17 @@ def test_iter_windows_end_times_are_in_seconds_and_carry_no_stream_counts():
     assert all(w.overflow_count == 0 and w.dropped == 0 for w in wins)
 
 
-def test_clipping_is_flagged_from_minus_0_1_dbfs():
+def test_clipping_is_samples_stuck_at_full_scale():
     # a 50 Hz sine sampled at 48 kHz has a sample within 5.4e-6 (relative) of its crest: 1 − cos(π·50/48000)
     hot = analyse_window(_sine(50.0, 1.001 * CLIP_FS), FS, 50.0)
-    assert hot.clipped and any("clipped" in w for w in hot.warnings)
     assert hot.peak_dbfs == pytest.approx(to_dbfs(1.001 * CLIP_FS), abs=1e-4)  # crest missed by ≤ 5.4e-6 = 4.7e-5 dB
+    # its crest passes above −0.1 dBFS without sticking there: a headroom warning, not a clip
+    assert not hot.clipped and any("near full scale" in w and "not clipped" in w for w in hot.warnings)
     cool = analyse_window(_sine(50.0, 0.999 * CLIP_FS), FS, 50.0)
-    assert not cool.clipped and not any("clipped" in w for w in cool.warnings)
+    assert not cool.clipped and not any("clipped" in w or "full scale" in w for w in cool.warnings)
+    # driven past full scale, the samples stick at the end codes (IEEE 1241 clipping at the range)
+    cut = analyse_window(np.clip(_sine(50.0, 1.5), -1.0, 1.0), FS, 50.0)
+    assert cut.clipped and any(w.startswith("input clipped (samples stuck flat") for w in cut.warnings)
 
 
 def test_timebase_uncertainty_adds_in_quadrature():
