@@ -180,13 +180,13 @@ def coverage_factor(dof: float = math.inf, probability: float = 0.9545) -> float
     if not math.isfinite(dof):
         if abs(probability - 0.9545) < 1e-9:
             return 2.0
-        from scipy.stats import norm
+        from scipy.special import ndtri  # (scipy.special: the quantiles without loading scipy.stats)
 
-        return float(norm.ppf(0.5 + probability / 2))
-    from scipy.stats import t
+        return float(ndtri(0.5 + probability / 2))
+    from scipy.special import stdtrit
 
     # GUM G.4.1: truncate ν_eff to the next lower integer
-    return float(t.ppf(0.5 + probability / 2, max(1, int(math.floor(dof)))))
+    return float(stdtrit(max(1, int(math.floor(dof))), 0.5 + probability / 2))
 
 
 @dataclass(frozen=True)

@@ -199,8 +199,6 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
     CaptureError
         One line naming the file and, for data problems, the line and column.
     """
-    import pandas as pd
-
     p = Path(path)
     where = str(p)
     if raw is None:
@@ -215,7 +213,7 @@ def read_csv(path: str | os.PathLike[str], *, sha256: str | None = None, sample_
     start = _data_start(lines, lay, where)
     names, unit_row, header_at = _header(lines, start, lay)
     preamble = _preamble(lines[: start if header_at is None else header_at], lay)
-    values, line_no = _data(lines, start, lay, _column_labels(names, unit_row, lay.n_fields), where, pd)
+    values, line_no = _data(lines, start, lay, _column_labels(names, unit_row, lay.n_fields), where)
     return _build(values, line_no, names, unit_row, preamble, lay, where, sha256, sample_rate,
                   None if header_at is None else header_at + 1)
 
@@ -310,8 +308,8 @@ def _preamble(lines: list[str], lay: _Layout) -> dict[str, str]:
     return out
 
 
-def _data(lines: list[str], start: int, lay: _Layout, labels: list[str], where: str,
-          pd: Any) -> tuple[np.ndarray, Sequence[int]]:
+def _data(lines: list[str], start: int, lay: _Layout, labels: list[str],
+          where: str) -> tuple[np.ndarray, Sequence[int]]:
     """Parse the data rows (rows × columns, float64) and their 1-based line numbers."""
     K, d = lay.n_fields, lay.delim
     block = lines[start:]
@@ -326,7 +324,7 @@ def _data(lines: list[str], start: int, lay: _Layout, labels: list[str], where: 
             raise CaptureError(f"{where}: line {start + r + 1} has {counts[r] + 1} cell(s) but the data rows have "
                                f"{K} — fix or delete that line")
         line_no: Sequence[int] = range(start + 1, start + 1 + len(block))
-        return _parse_numbers(block, line_no, lay, labels, where, pd, sep=d, joined=joined), line_no
+        return _parse_numbers(block, line_no, lay, labels, where, sep=d, joined=joined), line_no
     # general path: rows re-joined with the unit separator \x1f so quoted cells cannot split
     numbers: list[int] = []
     texts: list[str] = []
@@ -342,7 +340,7 @@ def _data(lines: list[str], start: int, lay: _Layout, labels: list[str], where: 
             )
         numbers.append(i + 1)
         texts.append("\x1f".join(cells))
-    return _parse_numbers(texts, numbers, lay, labels, where, pd), numbers
+    return _parse_numbers(texts, numbers, lay, labels, where), numbers
 
 
 def _column_labels(names: list[str] | None, unit_row: list[str] | None, K: int) -> list[str]:
@@ -375,20 +373,26 @@ def _cell_problem(cell: str) -> str:
 
 
 def _parse_numbers(texts: list[str], line_no: Sequence[int], lay: _Layout, labels: list[str], where: str,
-                   pd: Any, sep: str = "\x1f", joined: str | None = None) -> np.ndarray:
-    """Parse the data rows to a float64 array (rows × columns) with pinpointed errors."""
+                   sep: str = "\x1f", joined: str | None = None) -> np.ndarray:
+    """Parse the data rows to a float64 array (rows × columns) with pinpointed errors.
+
+    numpy's C reader takes the rows when every cell is a plain number (a decimal comma is turned
+    into a point first, unless the comma also separates the cells); anything it cannot read goes
+    to the Python reader below, which names the first bad cell.
+    """
     if not texts:
         return np.empty((0, lay.n_fields))
-    try:
-        source = io.StringIO(joined if joined is not None else "\n".join(texts))
-        frame = pd.read_csv(source, sep=sep, header=None, decimal=lay.decimal, dtype=np.float64, engine="c",
-                            skip_blank_lines=False, skipinitialspace=True, names=list(range(lay.n_fields)),
-                            index_col=False)
-        values = frame.to_numpy(dtype=np.float64)
-        if values.shape != (len(texts), lay.n_fields):
-            raise ValueError("shape mismatch")
-    except (ValueError, pd.errors.ParserError):
-        values = None
+    text = joined if joined is not None else "\n".join(texts)
+    values: np.ndarray | None = None
+    if lay.decimal != "," or sep != ",":
+        if lay.decimal == ",":
+            text = text.replace(",", ".")
+        try:
+            values = np.loadtxt(io.StringIO(text), delimiter=sep, dtype=np.float64, comments=None, ndmin=2)
+        except ValueError:
+            values = None
+        if values is not None and values.shape != (len(texts), lay.n_fields):
+            values = None
     if values is not None and np.all(np.isfinite(values)):
         return values
     if values is not None:

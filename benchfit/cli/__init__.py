@@ -262,6 +262,12 @@ def main(argv: list[str] | None = None) -> None:
     empty = _empty_argument(sys.argv[1:] if argv is None else list(argv))
     if empty is not None:
         _error(empty, 2)
+    args = sys.argv[1:] if argv is None else list(argv)
+    from benchfit.cli.fasthelp import is_top_help, run_top_help
+
+    fast = run_top_help(args) if is_top_help(args) else None  # (see fasthelp: no command module loads)
+    if fast is not None:
+        raise SystemExit(fast if isinstance(fast, int) and not isinstance(fast, bool) else 0)
     app = get_app()
     try:
         code = app(args=argv, prog_name="benchfit", standalone_mode=False)

@@ -43,7 +43,7 @@ from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, get_args
 
 __all__ = ["CAPTURE_SUFFIXES", "StartMethod", "JobOutcome", "collect_captures", "default_jobs",
-           "measure_job", "report_job", "unit_serial", "run_jobs", "progress_bar", "BatchProgress", "prefer_one_blas_thread",
+           "measure_job", "report_job", "unit_serial", "run_jobs", "jobs_for_load", "progress_bar", "BatchProgress", "prefer_one_blas_thread",
            "MEASURE_PRELOAD", "REPORT_PRELOAD"]
 
 #: extensions (lower case) of the files a folder contributes to a batch
@@ -156,6 +156,25 @@ def _sidecar_partner(path: Path) -> Path | None:
 def default_jobs() -> int:
     """Number of worker processes by default: the CPU count (1 when unknown)."""
     return os.cpu_count() or 1
+
+
+def jobs_for_load(jobs: int, load: float | None = None) -> int:
+    """Workers to start for ``jobs`` asked for, given the machine's load (``--jobs`` is a ceiling).
+
+    When the 1-minute load average (``os.getloadavg``; ``load`` overrides it) shows every CPU
+    busy already, the batch runs in this process: a pool's start-up and hand-overs then cost
+    more than the extra workers win (scripts/bench_batch.py measured ``--jobs 2`` at 0.86–0.98×
+    ``--jobs 1`` at load 3 on 2 cores), and one process is never slower than itself. The same
+    rule as make's ``--load-average``; where the load is not known, ``jobs`` is kept.
+    """
+    if jobs <= 1:
+        return max(1, jobs)
+    if load is None:
+        try:
+            load = os.getloadavg()[0]
+        except (OSError, AttributeError):  # not available on this platform
+            return jobs
+    return 1 if load >= default_jobs() else jobs
 
 
 # --- the per-file jobs (run in workers) ----------------------------------------------------
@@ -365,7 +384,7 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
              kwargs: Mapping[str, Any] | None = None,
              on_outcome: Callable[[JobOutcome], None] | None = None,
              start_method: StartMethod = "forkserver",
-             preload: Sequence[str] = MEASURE_PRELOAD) -> list[JobOutcome]:
+             preload: Sequence[str] = MEASURE_PRELOAD, adapt_to_load: bool = False) -> list[JobOutcome]:
     """Run ``job(path, **kwargs)`` for every file, ``jobs`` at a time.
 
     Parameters
@@ -386,6 +405,9 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
     preload : sequence of str
         Modules the fork server imports before forking workers (only the first pool of a
         process starts the server; a module that fails to import is skipped by it).
+    adapt_to_load : bool
+        Take ``jobs`` as a ceiling and start fewer workers when the machine is busy
+        (:func:`jobs_for_load`); the command line does.
 
     Returns
     -------
@@ -397,7 +419,7 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
     kw = dict(kwargs or {})
     done: list[JobOutcome] = []
     notify = on_outcome or (lambda outcome: None)
-    workers = min(jobs, len(files))
+    workers = min(jobs_for_load(jobs) if adapt_to_load else jobs, len(files))
     if workers <= 1:
         for i, path in enumerate(files):
             outcome = _guarded(i, path, job, kw)

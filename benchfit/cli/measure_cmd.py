@@ -389,7 +389,7 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
             if run_id is not None:
                 run_ids.append(run_id)
 
-        run_jobs(measure_job, paths, jobs=jobs, kwargs=opts, on_outcome=on_outcome)
+        run_jobs(measure_job, paths, jobs=jobs, kwargs=opts, on_outcome=on_outcome, adapt_to_load=True)
     if log_path is not None and as_json and run_ids:
         from benchfit.cli.common import stderr
 

@@ -335,7 +335,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
                     print_json({**r, "log": None if log_path is None else str(log_path)})
 
         run_jobs(report_job, paths, jobs=jobs or default_jobs(), kwargs=kwargs, on_outcome=on_outcome,
-                 preload=REPORT_PRELOAD)
+                 preload=REPORT_PRELOAD, adapt_to_load=True)
     index = _update_index(out) if any(o.ok for o in outcomes) else None
     outcomes.sort(key=lambda o: o.index)
     failed = [o for o in outcomes if not o.ok]

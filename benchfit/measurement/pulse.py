@@ -242,15 +242,30 @@ def _find_edges(z: np.ndarray, s: StateLevels) -> _Edges:
     """Transitions by a 30/70 % Schmitt trigger and their 10/50/90 % instants."""
     empty = np.zeros(0)
     lo_thr, hi_thr = s.level(100 * _SCHMITT_LO), s.level(100 * _SCHMITT_HI)
-    hi = z > hi_thr
-    definite = np.flatnonzero(hi | (z < lo_thr))
-    if definite.size < 2:
+    # the runs of samples above the upper and below the lower threshold, merged in time order; the
+    # trigger changes state where a run of one kind follows one of the other (runs of the same kind
+    # with only in-between samples between them are one stay in that state)
+    starts, ends, kinds = [], [], []
+    for kind, mask in ((True, z > hi_thr), (False, z < lo_thr)):
+        step = np.diff(mask.view(np.int8))
+        first = np.flatnonzero(step == 1) + 1
+        last = np.flatnonzero(step == -1)
+        if mask[0]:
+            first = np.concatenate(([0], first))
+        if mask[-1]:
+            last = np.concatenate((last, [z.size - 1]))
+        starts.append(first)
+        ends.append(last)
+        kinds.append(np.full(first.size, kind))
+    run_start, run_end, run_kind = np.concatenate(starts), np.concatenate(ends), np.concatenate(kinds)
+    order = np.argsort(run_start, kind="stable")
+    run_start, run_end, run_kind = run_start[order], run_end[order], run_kind[order]
+    if run_start.size == 0 or (run_start.size == 1 and run_start[0] == run_end[0]):
         return _Edges(empty, np.zeros(0, bool), empty, empty, np.zeros(0, int))
-    state = hi[definite]
-    change = np.flatnonzero(state[1:] != state[:-1])
-    enter = definite[change + 1]  # first sample in the new state
-    leave = definite[change]  # last sample in the old state
-    rising = state[change + 1]
+    change = np.flatnonzero(run_kind[1:] != run_kind[:-1])
+    enter = run_start[change + 1]  # first sample in the new state
+    leave = run_end[change]  # last sample in the old state
+    rising = run_kind[change + 1]
     y50 = s.level(50)
     c50 = _crossings(z, y50)
     pos = np.searchsorted(c50, enter, side="left") - 1
@@ -375,8 +390,6 @@ def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingF
     span = _whole_period_span(edges, x.size)
     first = int(edges.k50[edges.rising][0]) + 1 if np.any(edges.rising) else 0
     m = float(np.mean(x[first:first + span])) if span < x.size else float(np.mean(x))
-    y = x - m
-    integral = _integral(y, sample_rate)
     # work on a regular subset of the flats' samples (enough for 1/τ; keeps long records fast)
     step = max(1, int(math.ceil(float(np.sum(b - a)) / _COUPLING_SAMPLES)))
     a_d = -(-a // step)  # first multiple of step at or after a
@@ -390,7 +403,10 @@ def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingF
     lab = np.repeat(np.arange(a_d.size), lengths)
     offsets = np.arange(lab.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
     idx = (a_d[lab] + offsets) * step
-    ys, ss = y[idx], integral[idx]
+    # ∫(x − m) dt (trapezoidal, 0 at the first sample; see _integral) at those samples only: one
+    # running sum of the record, the mean and the trapezoid's half end-samples taken out at idx
+    ys = x[idx] - m
+    ss = (np.cumsum(x)[idx] - m * (idx + 1) - 0.5 * (ys + (x[0] - m))) / sample_rate
     ym = np.bincount(lab, ys) / lengths
     sm = np.bincount(lab, ss) / lengths
     yt = ys - ym[lab]
@@ -458,7 +474,8 @@ def edge_period(rising: np.ndarray, falling: np.ndarray) -> tuple[float, float] 
 
 
 def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | None = None,
-                     compensate: bool = True, force: bool = False) -> PulseResult:
+                     compensate: bool = True, force: bool = False,
+                     levels: StateLevels | None = None) -> PulseResult:
     """IEEE 181 pulse parameters of a two-level wave, compensating AC-coupling droop.
 
     Parameters
@@ -476,6 +493,8 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     force : bool
         Analyse the wave as a pulse even when its histogram is not two-level (slow edges): the
         states are still the histogram's low and high modes (IEEE 181), read with that caveat.
+    levels : StateLevels, optional
+        ``state_levels(x)`` when the caller has it already (it is not computed again).
 
     Returns
     -------
@@ -485,7 +504,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
     x = np.asarray(x, dtype=np.float64)
     fs = float(sample_rate)
     warnings: list[str] = []
-    raw = state_levels(x)
+    raw = state_levels(x) if levels is None else levels
     # a drooped square is smeared: test bimodality loosely before deciding to compensate
     tau, source, droop = None, None, None
     raw_edges = None

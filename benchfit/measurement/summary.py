@@ -46,12 +46,12 @@ import numpy as np
 from benchfit.capture.capture import Capture, ChannelSpec
 from benchfit.errors import MeasureError
 from benchfit.measurement.budgets import channel_budgets, gain_term
-from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
-from benchfit.measurement.levels import find_clipping, quantisation_step, signal_levels, vpp_noise_u
-from benchfit.measurement.pulse import PulseResult, pulse_parameters, state_levels
+from benchfit.measurement.distortion import _thd_with_u, analyse_distortion, max_harmonic_order
+from benchfit.measurement.levels import _percentiles, find_clipping, quantisation_step, signal_levels, vpp_noise_u
+from benchfit.measurement.pulse import PulseResult, StateLevels, pulse_parameters, state_levels
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
 from benchfit.measurement.threads import one_blas_thread
-from benchfit.measurement.tone import fit_harmonics, fit_tone
+from benchfit.measurement.tone import HarmonicFit, dft_frequency_seed, fit_harmonics
 
 __all__ = ["measure", "measure_channel", "DEFAULT_HARMONICS"]
 
@@ -72,20 +72,25 @@ _MIN_PERIODS = 3.0
 _MIN_PULSE_SAMPLES_PER_PERIOD = 6.0
 
 
-def _middle_crossings(x: np.ndarray) -> int:
-    """How often the wave crosses its middle level, with hysteresis.
+def _crosses_middle_twice(x: np.ndarray) -> bool:
+    """Whether the wave crosses its middle level at least twice, with hysteresis.
 
     The middle lies halfway between the 1st and 99th percentiles (a spike does not move it); a
     crossing counts when the wave goes from below the lower to above the upper hysteresis level
-    (±25 % of the half-range) or back. Any wave holding one whole period crosses at least twice.
+    (±25 % of the half-range) or back. Any wave holding one whole period crosses at least twice:
+    it does when, after the first sample beyond one hysteresis level, the wave goes beyond the
+    other and then back beyond the first.
     """
-    lo, hi = np.percentile(x, [1.0, 99.0])
+    lo, hi = _percentiles(x, 1.0, 99.0)
     mid, band = 0.5 * (lo + hi), 0.25 * 0.5 * (hi - lo)
-    state = np.zeros(x.size, dtype=np.int8)
-    state[x > mid + band] = 1
-    state[x < mid - band] = -1
-    seen = state[state != 0]
-    return int(np.count_nonzero(np.diff(seen))) if seen.size else 0
+    above = x > mid + band
+    below = x < mid - band
+    if not (above.any() and below.any()):
+        return False
+    first_above, first_below = int(np.argmax(above)), int(np.argmax(below))
+    if first_above < first_below:
+        return bool(above[first_below:].any())
+    return bool(below[first_above:].any())
 
 
 def _fmt(v: float, unit: str) -> str:
@@ -161,19 +166,37 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                              "gain_u_rel": None if gain_u_rel is None else float(gain_u_rel)}
     n = x.size
     flat = float(np.ptp(x)) <= 1e-12 * max(1.0, float(np.max(np.abs(x))))
-    fit = None if flat else fit_tone(x, fs, n_harmonics=max(int(harmonics), 1))
+    seed = None if flat else dft_frequency_seed(x, fs)
+    h_req = max(int(harmonics), 1)
+    # A two-level wave takes its frequency from its edges (below), so the iterative sine fit would
+    # be computed only to be replaced. The linear fit at the DFT seed (where the iteration starts)
+    # tells a wave rich in harmonics; its raw state levels (a histogram of a subset) then tell a
+    # two-level one, for which that linear fit serves the detection and the gate below. When the
+    # edges give no period after all, the iteration is made then.
+    fit: HarmonicFit | None = None
+    raw_states: StateLevels | None = None
+    edges_first = False
+    if seed is not None and seed > 0:
+        fit = fit_harmonics(x, fs, seed, h_req)
+        gate = _thd_with_u(fit)[0]
+        rich = force_pulse or not (fit.orders.size >= 3 and gate is not None and gate < _MIN_PULSE_THD)
+        if rich and fs / seed >= _MIN_PULSE_SAMPLES_PER_PERIOD:
+            raw_states = state_levels(x)
+            edges_first = raw_states.two_level
+        if not edges_first:
+            fit = fit_harmonics(x, fs, seed, h_req, fit_frequency=True, start=fit)
     periodic = False
     if fit is not None and fit.phasors.size:
         amp_u = float(fit.amplitudes_u[0])
         amp = float(fit.amplitudes[0])
         periodic = amp > 0 and (amp_u == 0 or amp >= _DETECT_RATIO * amp_u)
     clip = find_clipping(x, unit, full_scale, rails=True)
-    short = not flat and _middle_crossings(x) < 2
+    short = not flat and not _crosses_middle_twice(x)
     if short:
         # the fit always finds some sine in a slope; without two crossings of the middle level the
         # record holds less than one period, and its frequency would be an artefact of the length
         periodic = False
-    if not periodic:
+    if not periodic or fit is None:
         levels = signal_levels(x, fs, None)
         if short:
             warnings.append(f"the record ({_fmt(n / fs, 's')}) holds less than one period of the signal (it "
@@ -191,20 +214,12 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             rise_time_s=None, fall_time_s=None, thd_pct=None, thd_n_pct=None, sinad_db=None,
             harmonics=(), clipped=bool(clip.clipped), warnings=tuple(warnings), extra=extra)
 
+    def states() -> StateLevels:
+        return raw_states if raw_states is not None else state_levels(x)
+
     f = float(fit.frequency_hz)
-    u_fit = float(fit.frequency_u_hz) if fit.frequency_u_hz is not None else math.nan
-    u_tb = abs(f) * float(timebase_u_ppm) * 1e-6
-    u_f = math.sqrt(u_fit ** 2 + u_tb ** 2)
-    if not fit.converged:
-        warnings.append("the frequency fit did not settle — the frequency may be off; "
-                        "record a longer, steadier signal")
-    n_periods = n * f / fs
-    if n_periods < _MIN_PERIODS:
-        warnings.append(f"only {n_periods:.2g} periods recorded — record at least 3 "
-                        "(10 or more for good uncertainty)")
-    levels = signal_levels(x, fs, f)
-    dist = analyse_distortion(x, fs, fit)
-    if not force_pulse and fit.orders.size >= 3 and dist.thd is not None and dist.thd < _MIN_PULSE_THD:
+    thd_gate = _thd_with_u(fit)[0]
+    if not force_pulse and fit.orders.size >= 3 and thd_gate is not None and thd_gate < _MIN_PULSE_THD:
         # harmonics 2…H (H ≥ 3) below 5 % of the fundamental: not a two-level wave. Even a trapezoid
         # whose edges take the whole period (a triangle) has THD_F = 12 % (REFERENCES §5 table,
         # H = 10: 12.05 %), so the pulse analysis (and its droop fit) is skipped.
@@ -215,15 +230,15 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                         f"to tell a pulse from a sine (at least {_MIN_PULSE_SAMPLES_PER_PERIOD:g} are needed) — "
                         "record at a higher sample rate")
     else:
-        pulse = pulse_parameters(x, fs, coupling_tau_s, force=force_pulse)
-        if force_pulse and pulse.two_level and not state_levels(x).two_level:
+        pulse = pulse_parameters(x, fs, coupling_tau_s, force=force_pulse, levels=raw_states)
+        if force_pulse and pulse.two_level and not states().two_level:
             warnings.append("pulse analysis forced: the wave is not two-level, so duty cycle and edge times "
                             "use its histogram's low and high modes as states — read them as indications")
         if not pulse.two_level:
             # rich in harmonics but not two-level: the result says why duty and edges are missing
             # (in extra, shown by measure beside the missing values; not a warning, since a distorted
             # sine is not a mistake)
-            frac = state_levels(x).fraction_in_states
+            frac = states().fraction_in_states
             extra["pulse_not_given"] = (f"not a two-level wave: {100 * frac:.0f} % of the samples lie near two "
                                         "levels, 75 % are needed (slow edges, or not a pulse; --pulse gives "
                                         "them anyway)")
@@ -235,14 +250,28 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         # carries that jitter in its own scatter: report it instead.
         f = 1.0 / pulse.edge_period_s
         u_fit = f * pulse.edge_period_u_s / pulse.edge_period_s
-        u_f = math.sqrt(u_fit ** 2 + (abs(f) * float(timebase_u_ppm) * 1e-6) ** 2)
         method = "edge regression (IEEE 181 period)"
         # the harmonic table and THD at k × the reported frequency (linear fit, same orders)
         fit = fit_harmonics(x, fs, f, orders=fit.orders)
-        dist = analyse_distortion(x, fs, fit)
+    else:
+        if edges_first and seed is not None:  # the edges gave no period: the iterative fit gives it
+            fit = fit_harmonics(x, fs, seed, h_req, fit_frequency=True, start=fit)
+            f = float(fit.frequency_hz)
+        u_fit = float(fit.frequency_u_hz) if fit.frequency_u_hz is not None else math.nan
+        if not fit.converged:
+            warnings.append("the frequency fit did not settle — the frequency may be off; "
+                            "record a longer, steadier signal")
+    u_f = math.sqrt(u_fit ** 2 + (abs(f) * float(timebase_u_ppm) * 1e-6) ** 2)
+    n_periods = n * f / fs
+    if n_periods < _MIN_PERIODS:
+        warnings.append(f"only {n_periods:.2g} periods recorded — record at least 3 "
+                        "(10 or more for good uncertainty)")
+    levels = signal_levels(x, fs, f)
+    dist = analyse_distortion(x, fs, fit)
     if pulse.two_level:
         warnings.extend(pulse.warnings)
-        if pulse.coupling_source == "estimated" and (pulse.droop_pct or 0.0) >= _DROOP_WARN_PCT:
+        if pulse.coupling_source == "estimated" and (pulse.droop_pct or 0.0) >= _DROOP_WARN_PCT \
+                and pulse.coupling_tau_s is not None:
             warnings.append(
                 f"flat tops droop {pulse.droop_pct:.0f} % (input AC coupling, τ ≈ "
                 f"{_fmt(pulse.coupling_tau_s, 's')} estimated): pulse values are compensated, levels "
@@ -252,7 +281,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         clip = find_clipping(x, unit, full_scale, rails=False)
     if clip.clipped:
         warnings.append(_clip_warning(clip))
-    if pulse.two_level and pulse.noise_rms is not None:
+    if pulse.two_level and pulse.noise_rms is not None and pulse.state_high is not None \
+            and pulse.state_low is not None:
         amp_half = 0.5 * (pulse.state_high - pulse.state_low)
         snr = 20.0 * math.log10(amp_half / pulse.noise_rms) if pulse.noise_rms > 0 else math.inf
     else:
@@ -283,15 +313,21 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
     if pulse.two_level and pulse.state_low is not None and pulse.state_high is not None \
             and pulse.noise_rms is not None:
         # a two-level wave: its states are the noise-free levels (the harmonic fit rings at the edges)
+        # (two values, so the model is the pair with their sample counts)
         mid = 0.5 * (pulse.state_low + pulse.state_high)
         xs = x[::stride]
-        model, sigma = np.where(xs >= mid, pulse.state_high, pulse.state_low), float(pulse.noise_rms)
+        n_high = int(np.count_nonzero(xs >= mid))
+        model, sigma = np.array([pulse.state_high, pulse.state_low]), float(pulse.noise_rms)
+        weights: np.ndarray | None = np.array([n_high, xs.size - n_high], dtype=np.float64)
     else:
         model, sigma = fit.evaluate(-(-n // stride), fs / stride), float(fit.sigma)
+        weights = None
     # noise on the two percentiles, and the resolution of each (q/√12 per end, both ends: q/√6);
     # a noise-free quantised plateau (a flat scope trace) keeps the resolution term
-    vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, levels.vpp_low, levels.vpp_high, n_total=n),
-                             quantisation_step(x) / math.sqrt(6.0))
+    q_step = quantisation_step(x)
+    vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, levels.vpp_low, levels.vpp_high, n_total=n,
+                                         weights=weights),
+                             q_step / math.sqrt(6.0))
     extra.update({
         "harmonics_h": int(dist.harmonics_h),
         "amplitude_u": _with_gain(float(fit.amplitudes_u[0]), amplitude, gain_u_rel),
@@ -317,8 +353,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             "state_low": pulse.state_low, "state_high": pulse.state_high,
             "duty_cycle_u_pct": pulse.duty_cycle_u_pct,
             "rise_time_u_s": pulse.rise_time_u_s, "fall_time_u_s": pulse.fall_time_u_s,
-            "overshoot_pct": _beyond_one_step(pulse.overshoot_pct, x, pulse),
-            "undershoot_pct": _beyond_one_step(pulse.undershoot_pct, x, pulse),
+            "overshoot_pct": _beyond_one_step(pulse.overshoot_pct, q_step, pulse),
+            "undershoot_pct": _beyond_one_step(pulse.undershoot_pct, q_step, pulse),
             "pulse_periods": pulse.n_periods,
             "pulse_period_s": pulse.period_s,
             "coupling_tau_s": pulse.coupling_tau_s,
@@ -378,7 +414,7 @@ def _snr_without_harmonics(x: np.ndarray, fs: float, f: float, orders: np.ndarra
     return 10.0 * math.log10(sig / noise) if sig > 0 else -math.inf
 
 
-def _beyond_one_step(pct: float | None, x: np.ndarray, pulse: PulseResult) -> float | None:
+def _beyond_one_step(pct: float | None, q: float, pulse: PulseResult) -> float | None:
     """An overshoot (or undershoot) in %, or 0 when it is no more than one quantisation step.
 
     One code above the high state is the recorder's resolution, not a ring of the source (IEEE 181
@@ -387,7 +423,6 @@ def _beyond_one_step(pct: float | None, x: np.ndarray, pulse: PulseResult) -> fl
     if pct is None or pulse.state_low is None or pulse.state_high is None:
         return pct
     amplitude = pulse.state_high - pulse.state_low
-    q = quantisation_step(x)
     if amplitude > 0 and q > 0 and pct * amplitude / 100.0 <= q * (1.0 + 1e-9):
         return 0.0
     return pct

@@ -25,7 +25,7 @@ returned referred to the first sample. Standard uncertainties come from the cova
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -78,6 +78,9 @@ class HarmonicFit:
     n_params: int
     iterations: int = 0
     converged: bool = True
+    #: the linear solution in the fit's own basis (time centred on the record), so that an
+    #: iterative fit can start from this one without solving it again
+    start_beta: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def amplitudes(self) -> np.ndarray:
@@ -124,28 +127,33 @@ class HarmonicFit:
                  include_dc: bool = True) -> np.ndarray:
         """The fitted waveform at t = n/fs, n = 0…n_samples−1 (optionally a subset of orders).
 
-        Harmonics come from the fundamental's cos/sin by the angle-addition recurrence
-        (re-anchored every 16 orders), so a long record costs two transcendental passes.
+        The record is cut into segments of one template length: each segment is the template
+        [1, cos kωτ, sin kωτ] (angle-addition recurrence, re-anchored every 16 orders) times
+        that segment's coefficients (the phasors rotated to its start), so a long record costs
+        one matrix product and a few transcendentals.
         """
-        t = np.arange(n_samples) / sample_rate
+        n = int(n_samples)
         w = 2 * math.pi * self.frequency_hz
-        y = np.full(n_samples, self.dc if include_dc else 0.0)
-        wanted = {int(k): p for k, p in zip(self.orders, self.phasors)
-                  if orders is None or k in orders}
-        if not wanted:
-            return y
-        c1, s1 = np.cos(w * t), np.sin(w * t)
-        ck, sk = c1, s1
-        for k in range(1, max(wanted) + 1):
-            if k > 1:
-                if k % 16 == 0:
-                    ck, sk = np.cos(k * w * t), np.sin(k * w * t)
-                else:
-                    ck, sk = ck * c1 - sk * s1, sk * c1 + ck * s1
-            p = wanted.get(k)
-            if p is not None:
-                y += p.real * ck - p.imag * sk
-        return y
+        keep = np.array([orders is None or int(k) in orders for k in self.orders], dtype=bool)
+        if n <= 0:
+            return np.zeros(0)
+        if not keep.any():
+            return np.full(n, self.dc if include_dc else 0.0)
+        ks = self.orders[keep]
+        ph = self.phasors[keep]
+        length, m, rem = _segments(n)
+        u = _template(length, float(sample_rate), w, ks)
+        seg = np.arange(m + (1 if rem else 0))
+        # a_k cos kω(t_s+τ) + b_k sin kω(t_s+τ) with P_k = a_k − j b_k rotated to the segment start t_s
+        rotated = ph[None, :] * np.exp(1j * np.outer(seg * (length / float(sample_rate)), ks * w))
+        coef = np.empty((seg.size, u.shape[1]))
+        coef[:, 0] = self.dc if include_dc else 0.0
+        coef[:, 1::2] = rotated.real
+        coef[:, 2::2] = -rotated.imag
+        y = np.empty(seg.size * length)
+        y.reshape(seg.size, length)[:] = coef @ u.T
+        return y[:n]
+
 
 def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -> float | None:
     """Frequency of the strongest spectral peak by interpolated DFT (Hann window, Grandke's rule).
@@ -168,22 +176,30 @@ def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -
     n = x.size
     if n < 8:
         return None
-    # periodic Hann window applied in the frequency domain: X_w[k] = X[k]/2 − (X[k−1] + X[k+1])/4
-    raw = np.fft.rfft(x - x.mean())
-    spec = np.empty(raw.size)
-    spec[1:-1] = np.abs(0.5 * raw[1:-1] - 0.25 * (raw[:-2] + raw[2:]))
-    spec[0] = spec[-1] = 0.0
+    # periodic Hann window applied in the frequency domain: X_w[k] = X[k]/2 − (X[k−1] + X[k+1])/4;
+    # the mean only sets bin 0, so it is cleared there instead of subtracted from every sample
+    raw = np.fft.rfft(x)
+    raw[0] = 0.0
     lo = max(2, int(math.ceil(min_hz * n / sample_rate)))
-    if lo >= spec.size - 1:
+    if lo >= raw.size - 1:
         return None
-    k = lo + int(np.argmax(spec[lo:-1]))
-    if spec[k] <= 0:
+    win = raw[:-2] + raw[2:]  # 2·X_w = X[k] − (X[k−1] + X[k+1])/2: the factor 2 cancels below
+    win *= -0.5
+    win += raw[1:-1]
+    power = win.real * win.real
+    power += np.square(win.imag)  # |X_w|², whose peak is that of |X_w|
+    k = lo + int(np.argmax(power[lo - 1:]))
+    if power[k - 1] <= 0:
         return None
-    left, right = spec[k - 1], spec[k + 1]
+
+    def spec(i: int) -> float:  # |X_w[i]|, bins 0 and N/2 taken as 0 as before
+        return math.sqrt(float(power[i - 1])) if 1 <= i <= power.size else 0.0
+
+    left, right, peak = spec(k - 1), spec(k + 1), spec(k)
     if right >= left:
-        alpha, sign = right / spec[k], 1.0
+        alpha, sign = right / peak, 1.0
     else:
-        alpha, sign = left / spec[k], -1.0
+        alpha, sign = left / peak, -1.0
     delta = sign * (2 * alpha - 1) / (alpha + 1)
     delta = min(max(delta, -0.5), 0.5)
     return (k + delta) * sample_rate / n
@@ -196,25 +212,35 @@ def _segments(n: int) -> tuple[int, int, int]:
     return length, m, n - m * length
 
 
-def _template(length: int, fs: float, omega: float, orders: np.ndarray) -> np.ndarray:
-    """U = [1, cos k ωτ, sin k ωτ, …] for τ = j/fs, j = 0…length−1 (angle-addition recurrence)."""
+def _template(length: int, fs: float, omega: float, orders: np.ndarray, with_tau: bool = False) -> np.ndarray:
+    """U = [1, cos k ωτ, sin k ωτ, …] for τ = j/fs, j = 0…length−1 (angle-addition recurrence);
+    with ``with_tau`` the columns τ·U follow, in the same array."""
     tau = np.arange(length) / fs
-    u = np.empty((length, 1 + 2 * orders.size))
-    u[:, 0] = 1.0
+    p = 1 + 2 * orders.size
+    ut = np.empty((2 * p if with_tau else p, length))  # built column by column: stored transposed
+    ut[0] = 1.0
     kmax = int(orders.max())
     c1, s1 = np.cos(omega * tau), np.sin(omega * tau)
-    ck, sk = c1.copy(), s1.copy()
+    ck, sk = c1, s1
     col = {int(k): i for i, k in enumerate(orders)}
+    tmp = np.empty(length)
     for k in range(1, kmax + 1):
         if k > 1:
-            ck, sk = ck * c1 - sk * s1, sk * c1 + ck * s1
             if k % 16 == 0:  # re-anchor the recurrence to keep rounding at the 1e-15 level
                 ck, sk = np.cos(k * omega * tau), np.sin(k * omega * tau)
+            else:
+                c_new = ck * c1
+                c_new -= np.multiply(sk, s1, out=tmp)
+                s_new = sk * c1
+                s_new += np.multiply(ck, s1, out=tmp)
+                ck, sk = c_new, s_new
         i = col.get(k)
         if i is not None:
-            u[:, 1 + 2 * i] = ck
-            u[:, 2 + 2 * i] = sk
-    return u
+            ut[1 + 2 * i] = ck
+            ut[2 + 2 * i] = sk
+    if with_tau:
+        np.multiply(ut[:p], tau, out=ut[p:])
+    return ut.T
 
 
 def _rotations(t_starts: np.ndarray, omega: float, orders: np.ndarray) -> np.ndarray:
@@ -256,22 +282,32 @@ def _normal_equations(x, fs, t_mid, omega, orders, coef_ab, t_scale):
         v = np.zeros(p)
         v[1::2] = orders * coef_ab[1::2] / t_scale  # coefficient of cos: k·b_k
         v[2::2] = -orders * coef_ab[0::2] / t_scale  # coefficient of sin: −k·a_k
+    # one template [U, τU] for every piece: the remainder's is the first rows of the full one
+    ext = _template(length, fs, omega, orders, with_tau=with_w)
+    # [U, τU]ᵀ[U, τU] over the first `rem` rows and over the rest: the remainder's Gram and the full
+    # template's (their sum) from one pass over the template
+    head = ext[:rem].T @ ext[:rem] if rem else None
+    tail = ext[rem:].T @ ext[rem:]
+    grams = {length: tail if head is None else head + tail, rem: head}
     for start, seg_len, count in pieces:
-        u = _template(seg_len, fs, omega, orders)
+        u = ext[:seg_len, :p]
         y = x[start:start + seg_len * count].reshape(count, seg_len)
-        a = y @ u  # (count, p) template projections
+        if with_w:
+            ab = y @ ext[:seg_len]  # one pass over the data for both projections
+            a, b = ab[:, :p], ab[:, p:]
+        else:
+            a = y @ u  # (count, p) template projections
         t_starts = (start + seg_len * np.arange(count)) / fs - t_mid
         rot = _rotations(t_starts, omega, orders)
-        g0 = u.T @ u
+        gram = grams[seg_len]
+        assert gram is not None
+        g0 = gram[:p, :p]
         rot_t = rot.transpose(0, 2, 1)
         g[:p, :p] += (rot_t @ g0 @ rot).sum(axis=0)
         r[:p] += (rot_t @ a[:, :, None]).sum(axis=0)[:, 0]
         if with_w:
-            tau = np.arange(seg_len) / fs
-            ut = u * tau[:, None]
-            b = y @ ut
-            g1 = u.T @ ut
-            g2 = ut.T @ ut
+            g1 = gram[:p, p:]  # Uᵀ(τU)
+            g2 = gram[p:, p:]  # (τU)ᵀ(τU)
             w = rot @ v  # (count, p): dw column = t_m·U w + (τU) w
             g0w = w @ g0  # (count, p)
             g1w = w @ g1.T
@@ -302,7 +338,7 @@ def _solve(g: np.ndarray, r: np.ndarray, yy: float) -> tuple[np.ndarray, np.ndar
 
 def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harmonics: int = 1,
                   *, fit_frequency: bool = False, orders: "np.ndarray | None" = None,
-                  max_iter: int = 30, rtol: float = 1e-12) -> HarmonicFit:
+                  max_iter: int = 30, rtol: float = 1e-12, start: HarmonicFit | None = None) -> HarmonicFit:
     """Least-squares fit of a DC term and harmonics k·f of a fundamental.
 
     Parameters
@@ -325,6 +361,9 @@ def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harm
         Iteration limit for the frequency fit.
     rtol : float
         Stop when |Δω|/ω falls below this.
+    start : HarmonicFit, optional
+        A linear fit (``fit_frequency=False``) of the same samples at ``frequency_hz`` with the
+        same orders: the iteration starts from its solution instead of solving it again.
 
     Returns
     -------
@@ -344,8 +383,14 @@ def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harm
     omega = 2 * math.pi * float(frequency_hz)
 
     # linear fit at the start frequency (the three-parameter fit when K = 1)
-    g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, None, t_scale)
-    beta, ginv, rss = _solve(g, r, yy)
+    if (fit_frequency and start is not None and start.start_beta is not None and start.n_samples == n
+            and math.isclose(start.frequency_hz, float(frequency_hz), rel_tol=1e-14, abs_tol=0.0)
+            and np.array_equal(start.orders, orders)):
+        beta = start.start_beta  # (ginv and rss are set by the first iteration or the final solve)
+    else:
+        g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, None, t_scale)
+        beta, ginv, rss = _solve(g, r, yy)
+    linear_beta = None if fit_frequency else beta
     iterations = 0
     converged = True
     omega_var = None
@@ -366,12 +411,15 @@ def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harm
             if abs(d_omega) <= rtol * omega:
                 converged = True
                 break
-        # final linear solve at the converged frequency (the iteration's coefficients lag one step)
-        g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, beta[1:], t_scale)
-        beta_w, ginv_w, rss = _solve(g, r, yy)
-        beta = beta_w[:-1]
-        ginv = ginv_w[:-1, :-1]
-        omega_var = ginv_w[-1, -1] / t_scale ** 2
+        if not converged:
+            # final solve at the last frequency (the iteration's coefficients lag one step). After a
+            # converged step (|Δω| ≤ rtol·ω) that solve is not needed: the step's own solution is the
+            # linearised fit at the new frequency, with differences of order Δω², far below rounding
+            g, r, yy = _normal_equations(x, fs, t_mid, omega, orders, beta[1:], t_scale)
+            beta_w, ginv_w, rss = _solve(g, r, yy)
+            beta = beta_w[:-1]
+            ginv = ginv_w[:-1, :-1]
+            omega_var = ginv_w[-1, -1] / t_scale ** 2
         # RSS of the model without the (near-zero) frequency step
         g_lin = g[:-1, :-1]
         r_lin = r[:-1]
@@ -401,6 +449,7 @@ def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harm
         frequency_hz=omega / (2 * math.pi), frequency_u_hz=f_u, dc=float(beta[0]),
         orders=orders, phasors=phasors, phasor_cov=pcov, dc_u=math.sqrt(max(cov[0, 0], 0.0)),
         rss=rss, n_samples=n, n_params=n_params, iterations=iterations, converged=converged,
+        start_beta=linear_beta,
     )
 
 
