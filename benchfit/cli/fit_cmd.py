@@ -60,8 +60,6 @@ def _fmt(value: float | None, stderr: float | None, unit: str) -> str:
     if value is None or not math.isfinite(value):
         return "—"
     if stderr is not None and math.isfinite(stderr) and stderr > 0:
-        if stderr < 1e-7 * abs(value):
-            return f"{format_quantity(value, unit, 8)} ± {format_quantity(stderr, unit, 2)}"
         return format_with_uncertainty(value, stderr, unit)
     return format_quantity(value, unit, 5)
 
@@ -108,10 +106,6 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
             text = "—"
         elif dv["stderr"] is None:
             text = f"{_fmt(dv['value'], None, unit)} (not determined)"
-        elif unit == "":
-            u = dv["stderr"]
-            dec = max(0, 1 - int(math.floor(math.log10(u)))) if u > 0 else 4
-            text = f"{dv['value']:.{dec}f} ± {u:.{dec}f}"
         else:
             text = _fmt(dv["value"], dv["stderr"], unit)
         t.add_row(label, text)

@@ -90,6 +90,18 @@ def format_u(u: float | None, unit: str = "") -> str:
     return format_value(u, unit, digits=2, strip=False)
 
 
+def format_pm(value: float | None, u: float | None, unit: str = "") -> str:
+    """``value ± u unit`` as everywhere in benchfit (:func:`benchfit.units.format_with_uncertainty`),
+    with the page's unit symbols (Ω, s⁻¹)."""
+    from benchfit.units import format_with_uncertainty
+
+    text = format_with_uncertainty(value, u, unit)
+    shown = _DISPLAY_UNIT.get(unit)
+    if shown is not None and text.endswith(unit):
+        text = text[: len(text) - len(unit)] + shown
+    return text
+
+
 def format_limits(lower: float | None, upper: float | None, unit: str) -> str:
     """"a … b unit", "≤ b unit" or "≥ a unit"."""
     # a limit is shown exactly as the spec gives it (up to 12 digits): 2.00001 must not read as 2
@@ -203,6 +215,7 @@ def _environment():
                       undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True)
     env.filters["value"] = format_value
     env.filters["u"] = format_u
+    env.filters["pm"] = format_pm
     env.filters["limits"] = format_limits
     env.globals["condition"] = format_condition
     env.filters["unit"] = lambda unit: _unit_text("", unit)
