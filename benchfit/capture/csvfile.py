@@ -318,7 +318,7 @@ def _data(lines: list[str], start: int, lay: _Layout, labels: list[str], where: 
     while block and not block[-1].strip():
         block.pop()
     joined = "\n".join(block) if d in (",", ";", "\t") and not lay.strip_trailing else ""
-    if joined and '"' not in joined and not re.search(r"^[ \t]*(#|//|;|$)", joined, re.M):
+    if joined and d is not None and '"' not in joined and not re.search(r"^[ \t]*(#|//|;|$)", joined, re.M):
         # fast path: plain rows without quotes, comments or blank lines
         counts = [ln.count(d) for ln in block]
         if counts.count(K - 1) != len(counts):
@@ -586,14 +586,14 @@ def _check_time(t: np.ndarray, line_no: Sequence[int], label: str, where: str,
     deviation = np.abs(t - t.mean() - slope * k) / dt
     jitter = float(deviation.max())
     if jitter > JITTER_LIMIT:
-        r = _print_resolution(t)
-        # rounding strays up to r/2 from the true grid; the fitted grid itself may sit off it by the
+        resolution = _print_resolution(t)
+        # rounding strays up to resolution/2 from the true grid; the fitted grid itself may sit off it by the
         # ordinary limit (a least-squares line through rounded stamps)
         # a grid coarser than a tenth of a step would hide real irregular sampling: refused as before
-        if 0 < r <= 0.1 * dt and jitter * dt <= 0.5 * r + JITTER_LIMIT * dt:
+        if 0 < resolution <= 0.1 * dt and jitter * dt <= 0.5 * resolution + JITTER_LIMIT * dt:
             if warnings is not None:
-                warnings.append(f"{where}: column {label!r}: time stamps are rounded to {r:.3g} s "
-                                f"({100 * r / slope:.2g} % of a step) — the step {slope:.9g} s is fitted over all "
+                warnings.append(f"{where}: column {label!r}: time stamps are rounded to {resolution:.3g} s "
+                                f"({100 * resolution / slope:.2g} % of a step) — the step {slope:.9g} s is fitted over all "
                                 f"{n} rows; export more decimals to check it")
             return slope, jitter
     if jitter > JITTER_LIMIT:

@@ -6,6 +6,8 @@ load inside the command.
 
 from __future__ import annotations
 
+from typing import Literal
+
 import typer
 
 from benchfit.cli.app import app
@@ -33,8 +35,10 @@ def devices(json_out: bool = typer.Option(False, "--json", help="Print one JSON 
     from rich.table import Table
 
     table = Table(title="audio inputs", title_justify="left", box=None, pad_edge=False)
-    for col, just in (("", "left"), ("index", "right"), ("name", "left"), ("host API", "left"),
-                      ("inputs", "right"), ("default rate", "right")):
+    columns: tuple[tuple[str, Literal["left", "right"]], ...] = (
+        ("", "left"), ("index", "right"), ("name", "left"), ("host API", "left"), ("inputs", "right"),
+        ("default rate", "right"))
+    for col, just in columns:
         table.add_column(col, justify=just)
     for d in devs:
         table.add_row("*" if d.is_default else "", str(d.index), escape(d.name), escape(d.hostapi), str(d.input_channels),

@@ -10,12 +10,15 @@ import math
 import sys
 import time
 from pathlib import Path
-from typing import Any, Optional
+from typing import TYPE_CHECKING, Any, Optional
 
 import typer
 
 from benchfit.cli.app import app
 from benchfit.cli.common import fail, print_json, stderr, stdout
+
+if TYPE_CHECKING:
+    from benchfit.log.postgres import LogURL
 
 __all__ = ["drift_command", "render_summary"]
 
@@ -243,7 +246,7 @@ def drift_command(
         raise typer.Exit(code)
 
 
-def _log_path(log: str | None, log_default: bool) -> Path | None:
+def _log_path(log: str | None, log_default: bool) -> Path | LogURL | None:
     if log is not None and log_default:
         fail("--log and --log-default: give only one — --log PATH names the log, --log-default uses "
              "$BENCHFIT_LOG or the user data directory")
@@ -326,13 +329,14 @@ def _from_line_in(tau0: float, ch_key, harmonics: int, band: float, device: str 
                 return run_drift(blocks, interval_s=tau0, channel=ch_key, n_harmonics=harmonics, band_ppm=band,
                                  on_reading=readout, start_utc=start)
 
-            result, run, interrupted = record_blocks(consume, path=str(keep), rate=int(rate), channels=channels,
-                                                     interval_s=tau0, device=dev, profile=profile, names=chan_names,
-                                                     seconds=seconds, overwrite=overwrite)
-            if run is None:
+            result, recorded, interrupted = record_blocks(consume, path=str(keep), rate=int(rate),
+                                                          channels=channels, interval_s=tau0, device=dev,
+                                                          profile=profile, names=chan_names, seconds=seconds,
+                                                          overwrite=overwrite)
+            if recorded is None:
                 fail(f"{keep}: nothing was measured — the recording ended before the first interval")
-            run = replace(run, device=result.device, kept=str(result.path), start_utc=result.start_utc,
-                          warnings=tuple(result.warnings) + run.warnings)
+            run = replace(recorded, device=result.device, kept=str(result.path), start_utc=result.start_utc,
+                          warnings=tuple(result.warnings) + recorded.warnings)
     finally:
         readout.close()
     if interrupted:

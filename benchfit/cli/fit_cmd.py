@@ -9,7 +9,7 @@ from __future__ import annotations
 import enum
 import math
 from pathlib import Path
-from typing import Any, List, Literal, Optional, get_args
+from typing import Any, List, Literal, Optional, cast
 
 import typer
 
@@ -20,12 +20,22 @@ __all__ = ["fit_command", "render_fit"]
 Model = Literal["lc-lowpass", "ringdown"]
 #: the same options as benchfit.fit.lowpass.MethodOption (not imported: it would load numpy)
 MethodChoice = Literal["auto", "two-channel", "one-channel"]
-_MODELS = get_args(Model)
-_METHODS = get_args(MethodChoice)
 
-#: the choices as enums, so typer checks them and the help lists them
-ModelOption = enum.Enum("ModelOption", {m.replace("-", "_"): m for m in _MODELS}, type=str)
-MethodOption = enum.Enum("MethodOption", {m.replace("-", "_"): m for m in _METHODS}, type=str)
+
+class ModelOption(str, enum.Enum):
+    """The choices of --model as an enum, so typer checks them and the help lists them (= Model)."""
+
+    lc_lowpass = "lc-lowpass"
+    ringdown = "ringdown"
+
+
+class MethodOption(str, enum.Enum):
+    """The choices of --method (= MethodChoice)."""
+
+    auto = "auto"
+    two_channel = "two-channel"
+    one_channel = "one-channel"
+
 
 _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a capture.
 
@@ -76,7 +86,9 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     if d["parameters"]:
         t = Table(title="effective parts", title_justify="left", box=None, pad_edge=False,
                   header_style="bold")
-        for col, just in (("part", "left"), ("value", "right"), ("status", "left")):
+        columns: tuple[tuple[str, Literal["left", "right"]], ...] = (("part", "left"), ("value", "right"),
+                                                                      ("status", "left"))
+        for col, just in columns:
             t.add_column(col, justify=just, no_wrap=True)
         for name, p in d["parameters"].items():
             unit = units.get(p["unit"], p["unit"])
@@ -224,7 +236,8 @@ def fit_command(
     from benchfit.cli.common import (check_parts_plausible, fail, parse_assignments, parse_value, print_json,
                                      stderr, stdout)
 
-    model, method = ModelOption(model).value, MethodOption(method).value
+    model_name = ModelOption(model).value
+    method_name = cast(MethodChoice, MethodOption(method).value)  # the enum's values are MethodChoice's
     if plot is not None and plot.suffix.lower() not in (".svg", ".png"):
         fail(f"--plot {str(plot)!r}: unknown figure type — use a file name ending in .svg or .png")
     if plot is not None and plot.is_dir():
@@ -257,7 +270,7 @@ def fit_command(
         cap = load(file, sample_rate=rate)
         for line in _clip_warnings(cap):
             stderr.print(f"warning: {line}", markup=False, highlight=False, soft_wrap=True)
-        if model == "ringdown":
+        if model_name == "ringdown":
             from benchfit.fit.ringdown import fit_ringdown
 
             if guessed or duty is not None or time_domain or drive is not None:
@@ -267,7 +280,7 @@ def fit_command(
         else:
             from benchfit.fit.lowpass import fit_lowpass
 
-            result = fit_lowpass(cap, method=method, drive=drive, response=response, fix=fixed,
+            result = fit_lowpass(cap, method=method_name, drive=drive, response=response, fix=fixed,
                                  guess=guessed, drive_duty=duty, time_domain=time_domain)
     if plot is not None:
         from benchfit.report.figures import fit_svg, save_figure

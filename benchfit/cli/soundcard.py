@@ -9,9 +9,12 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Optional
+from typing import TYPE_CHECKING, Optional, cast
 
 from benchfit.cli.common import fail
+
+if TYPE_CHECKING:
+    from benchfit.capture.live import SampleFormat
 
 __all__ = ["CAUTION", "live_console", "device_arg", "positive_seconds", "whole_rate", "progress_recorder",
            "freq_text", "ppm_text"]
@@ -92,7 +95,9 @@ def progress_recorder(out: Path, seconds: float, rate: int, channels: int, devic
 
     try:
         return do_record(out, seconds, rate=rate, channels=channels, device=device, names=names,
-                         profile=profile, overwrite=overwrite, on_block=on_block, sample_format=sample_format)
+                         profile=profile, overwrite=overwrite, on_block=on_block,
+                         # the user's text: record() refuses one that is not a SampleFormat, naming the option
+                         sample_format=cast("SampleFormat", sample_format))
     finally:
         if started:
             progress.stop()

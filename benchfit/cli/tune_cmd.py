@@ -7,7 +7,7 @@ and rich load inside the command.
 from __future__ import annotations
 
 import math
-from typing import Optional
+from typing import Any, Optional
 
 import typer
 
@@ -177,14 +177,15 @@ def tune(
                     error = str(e)
                     previous = None
                 if json_out:
-                    rec = {"update": count, "time_s": t, "overflow_count": win.overflow_count,
-                           "skipped": win.dropped}
+                    rec: dict[str, Any] = {"update": count, "time_s": t, "overflow_count": win.overflow_count,
+                                           "skipped": win.dropped}
                     rec.update(reading.to_dict() if reading else {"error": error})
                     print_json(rec)
                 elif plain:
                     line = _plain_line(t, reading) if reading else f"t={t:8.2f} s  {error}"
                     stdout.print(line, markup=False, highlight=False, soft_wrap=True)
                 else:
+                    assert live_display is not None  # started above unless --plain
                     live_display.update(_panel(reading, t, target_hz, tol, count, win.dropped,
                                                win.overflow_count, window, hop, error))
                 if updates is not None and count >= updates:

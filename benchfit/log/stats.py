@@ -130,7 +130,7 @@ def histogram_svg(values: Sequence[float], cap: Capability, quantity: str, unit:
     from matplotlib.figure import Figure
 
     x = np.asarray([v for v in values if v is not None and math.isfinite(v)], dtype=float)
-    rc = {"svg.fonttype": "path", "svg.hashsalt": "benchfit-log", "font.size": 8.5,
+    rc: dict[Any, Any] = {"svg.fonttype": "path", "svg.hashsalt": "benchfit-log", "font.size": 8.5,
           "axes.grid": True, "grid.color": "#d5dbe0", "axes.edgecolor": "#7a8793"}
     with matplotlib.rc_context(rc):
         fig = Figure(figsize=(6.0, 3.0), dpi=100, layout="constrained")

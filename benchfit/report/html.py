@@ -138,7 +138,7 @@ def format_change(row: Mapping[str, Any]) -> str:
     (the two U combined in quadrature: separate measurements, taken as uncorrelated — GUM 5.1.2)."""
     found, left = row.get("as_found") or {}, row.get("as_left") or {}
     a, b = found.get("value"), left.get("value")
-    if not all(isinstance(v, (int, float)) and math.isfinite(v) for v in (a, b)):
+    if not (isinstance(a, (int, float)) and isinstance(b, (int, float)) and math.isfinite(a) and math.isfinite(b)):
         return "—"
     unit = row.get("unit") or ""
     d = float(b) - float(a)

@@ -143,7 +143,11 @@ def test_help_has_example_and_safety_note():
 def test_cli_method_choices_match_the_library():
     from typing import get_args
 
-    from benchfit.cli.fit_cmd import MethodChoice
+    from benchfit.cli.fit_cmd import MethodChoice, Model, ModelOption
+    from benchfit.cli.fit_cmd import MethodOption as CliMethodOption
     from benchfit.fit.lowpass import MethodOption
 
     assert get_args(MethodChoice) == get_args(MethodOption)
+    # the enums typer shows are the same choices, in the same order
+    assert tuple(m.value for m in CliMethodOption) == get_args(MethodChoice)
+    assert tuple(m.value for m in ModelOption) == get_args(Model)
