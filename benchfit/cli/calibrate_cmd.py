@@ -12,7 +12,7 @@ import math
 import tempfile
 from dataclasses import replace
 from pathlib import Path
-from typing import Optional
+from typing import Any, NamedTuple, Optional
 
 import typer
 
@@ -60,6 +60,30 @@ def _pick_channels(channel: Optional[str], names: tuple[str, ...], default_all: 
     if channel.strip().isdigit() and 1 <= int(channel) <= len(names):
         return [int(channel) - 1]
     fail(f"--channel {channel!r}: no such channel — choose one of {', '.join(names)} or 1…{len(names)}")
+
+
+class _OneChannel(NamedTuple):
+    """The channel a one-channel calibration (timebase, coupling, distortion) works from."""
+
+    samples: Any
+    fs: float
+    channel: int  # 1-based
+    source: str  # the file, or "live recording (S s)"
+    label: str  # "channel N (name)"
+
+    @property
+    def what(self) -> str:
+        """What the estimators' error lines name: "<source> channel N (name)"."""
+        return f"{self.source} {self.label}"
+
+
+def _one_channel(file: Optional[Path], do_record: bool, seconds: Optional[float], device: Optional[str],
+                 rate: float, channel: Optional[str]) -> _OneChannel:
+    """The samples of the channel --channel names (default the first), from FILE or a live recording."""
+    with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
+        (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
+    i = _pick_channels(channel, names, default_all=False)[0]
+    return _OneChannel(x[i], fs, i + 1, source, f"channel {i + 1} ({names[i]})")
 
 
 def _meter_u(text: Optional[str], rms_v: float) -> tuple[float, str]:
@@ -206,12 +230,10 @@ def calibrate_timebase(
                     f"(rectangular, u = {u_ref:.3g} Hz; an unspecified crystal, common practice, no source) — "
                     "give the counter's or generator's stated standard uncertainty with --frequency-u")
     prof = _load_or_new(profile)
-    with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
-        (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
-    i = _pick_channels(channel, names, default_all=False)[0]
-    est = estimate_timebase(x[i], fs, f_ref, u_ref, what=f"{source} channel {i + 1} ({names[i]})")
+    src = _one_channel(file, do_record, seconds, device, rate, channel)
+    est = estimate_timebase(src.samples, src.fs, f_ref, u_ref, what=src.what)
     prof = replace(prof, timebase=TimebaseCalibration(ppm=est.ppm, u_ppm=est.u_ppm, reference_hz=f_ref,
-                                                      nominal_rate_hz=fs, source=source,
+                                                      nominal_rate_hz=src.fs, source=src.source,
                                                       measured_utc=utc_now_iso()))
     path = save_profile(prof)
     if ref_note:
@@ -219,12 +241,12 @@ def calibrate_timebase(
     if json_out:
         print_json({"profile": prof.name, "path": str(path), "ppm": est.ppm, "u_ppm": est.u_ppm,
                     "measured_hz": est.measured_hz, "measured_u_hz": est.measured_u_hz,
-                    "reference_hz": f_ref, "reference_u_hz": u_ref, "nominal_rate_hz": fs})
+                    "reference_hz": f_ref, "reference_u_hz": u_ref, "nominal_rate_hz": src.fs})
         return
     speed = "fast" if est.ppm > 0 else "slow"
-    stdout.print(f"tone measured {freq_text(est.measured_hz, est.measured_u_hz)} on the nominal {fs:g} Hz; "
+    stdout.print(f"tone measured {freq_text(est.measured_hz, est.measured_u_hz)} on the nominal {src.fs:g} Hz; "
                  f"sample clock error {ppm_text(est.ppm, est.u_ppm)} (runs {speed}); "
-                 f"true rate {fs * (1 + est.ppm * 1e-6):.4f} Hz", soft_wrap=True, markup=False)
+                 f"true rate {src.fs * (1 + est.ppm * 1e-6):.4f} Hz", soft_wrap=True, markup=False)
     stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
@@ -246,11 +268,9 @@ def calibrate_coupling(
     from benchfit.capture.calibration import CouplingCalibration, estimate_coupling, save_profile, utc_now_iso
 
     prof = _load_or_new(profile)
-    with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
-        (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
-    i = _pick_channels(channel, names, default_all=False)[0]
-    tau = estimate_coupling(x[i], fs, what=f"{source} channel {i + 1} ({names[i]})")
-    prof = replace(prof, coupling=CouplingCalibration(tau_s=tau, channel=i + 1, source=source,
+    src = _one_channel(file, do_record, seconds, device, rate, channel)
+    tau = estimate_coupling(src.samples, src.fs, what=src.what)
+    prof = replace(prof, coupling=CouplingCalibration(tau_s=tau, channel=src.channel, source=src.source,
                                                       measured_utc=utc_now_iso()))
     path = save_profile(prof)
     if json_out:
@@ -258,7 +278,7 @@ def calibrate_coupling(
                     "corner_hz": 1.0 / (2 * math.pi * tau)})
         return
     stdout.print(f"input coupling time constant {tau * 1e3:.4g} ms (high-pass corner "
-                 f"{1.0 / (2 * math.pi * tau):.4g} Hz) on channel {i + 1} ({names[i]})", soft_wrap=True, markup=False)
+                 f"{1.0 / (2 * math.pi * tau):.4g} Hz) on {src.label}", soft_wrap=True, markup=False)
     stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
 
@@ -286,20 +306,18 @@ def calibrate_distortion(
     from benchfit.measurement.calibration import estimate_distortion_floor
 
     prof = _load_or_new(profile)
-    with tempfile.TemporaryDirectory(prefix="benchfit-cal-") as tmp:
-        (x, fs, names), source = _calibration_source(file, do_record, seconds, device, rate, 1, tmp)
-    i = _pick_channels(channel, names, default_all=False)[0]
-    est = estimate_distortion_floor(x[i], fs, harmonics, what=f"{source} channel {i + 1} ({names[i]})")
+    src = _one_channel(file, do_record, seconds, device, rate, channel)
+    est = estimate_distortion_floor(src.samples, src.fs, harmonics, what=src.what)
     prof = replace(prof, distortion=DistortionCalibration(
         floor_pct=est.floor_pct, u_pct=est.u_pct, frequency_hz=est.frequency_hz, level_fs=est.level_fs,
-        harmonics=harmonics, channel=i + 1, source=source, measured_utc=utc_now_iso()))
+        harmonics=harmonics, channel=src.channel, source=src.source, measured_utc=utc_now_iso()))
     path = save_profile(prof)
     if json_out:
         print_json({"profile": prof.name, "path": str(path), "floor_pct": est.floor_pct, "u_pct": est.u_pct,
                     "frequency_hz": est.frequency_hz, "level_fs": est.level_fs, "harmonics": harmonics})
         return
     stdout.print(f"card distortion floor THD {est.floor_pct:.3g} % ± {est.u_pct:.2g} % (harmonics 2…{harmonics}) at "
-                 f"{est.frequency_hz:.5g} Hz, {est.level_fs:.3g} FS peak, channel {i + 1} ({names[i]})",
+                 f"{est.frequency_hz:.5g} Hz, {est.level_fs:.3g} FS peak, {src.label}",
                  soft_wrap=True, markup=False)
     stdout.print(f"saved to profile {prof.name!r} ({path})", soft_wrap=True, markup=False)
 
