@@ -75,32 +75,71 @@ _PREFIXES = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "
 
 
 def format_quantity(value: float | None, unit: str = "", digits: int = 4) -> str:
-    """Format with an SI prefix: ``format_quantity(0.0221, "F") == "22.1 mF"``; ``None`` → ``"—"``."""
+    """Format with an SI prefix: ``format_quantity(0.0221, "F") == "22.1 mF"``; ``None`` → ``"—"``.
+
+    ``digits`` significant digits in positional notation (trailing zeros dropped); a mantissa
+    that rounds up to 1000 takes the next prefix (0.99999 to 4 digits is "1", not "1e+03 m").
+    """
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return "—"
     if value == 0 or not math.isfinite(value):
         return f"{value:g} {unit}".strip()
     exp3 = min(max(3 * math.floor(math.log10(abs(value)) / 3), -15), 12)
-    mant = value / 10.0 ** exp3
-    text = f"{mant:.{digits}g}"
+    mant = _round_sig(value / 10.0 ** exp3, digits)
+    if abs(mant) >= 1000 and exp3 < 12:
+        exp3 += 3
+        mant = _round_sig(value / 10.0 ** exp3, digits)
+    decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(mant)))))
+    text = f"{mant:.{decimals}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
     return f"{text} {_PREFIXES[exp3]}{unit}".strip()
+
+
+def _round_sig(x: float, digits: int) -> float:
+    """``x`` rounded to ``digits`` significant digits (0.0996 → 0.10 at two)."""
+    return float(f"{x:.{digits - 1}e}")
+
+
+#: units shown without an SI prefix in "value ± u": not SI units, or ratios a prefix would obscure
+_UNPREFIXED = frozenset({"", "%", "FS", "dB", "dBFS", "dBV", "ppm", "ppm/h", "%/h", "1/s", "°C"})
+
+#: below this u/|value| the value would need more digits than any bench instrument resolves:
+#: it is shown to 8 significant digits and u apart (common practice, no source)
+_TINY_RELATIVE_U = 1e-7
 
 
 def format_with_uncertainty(value: float | None, u: float | None, unit: str = "",
                             digits: int = 2) -> str:
-    """Format ``value ± u unit`` with the uncertainty to ``digits`` significant digits.
+    """``value ± u unit``: the one way benchfit writes a value with its standard uncertainty.
 
-    The value is rounded to the same decimal place as the uncertainty, as the GUM
-    (JCGM 100:2008, 7.2.6) recommends. ``u=None`` gives the value alone to 5 digits.
+    The uncertainty is rounded to ``digits`` (2) significant digits and the value to the
+    same decimal place, with one SI prefix chosen for both from the larger of |value| and u,
+    as in JCGM 100:2008 (GUM) 7.2.2 and 7.2.6: ``"50.0123 ± 0.0012 Hz"``,
+    ``"33.20 ± 0.41 µF"``. Units that take no SI prefix (``%``, ``FS``, ``dB``, ``ppm``, ``1/s``,
+    none) keep their value unscaled. ``u`` None, zero or not finite gives the value alone to 5
+    significant digits; a u below 1e-7 of the value gives the value to 8 significant digits
+    and u with its own prefix (``"1.0000000 kHz ± 12 pHz"``). None or a non-finite value is "—".
     """
     if value is None or not math.isfinite(value):
         return "—"
+    prefixed = unit not in _UNPREFIXED
     if u is None or not math.isfinite(u) or u <= 0:
-        return format_quantity(value, unit, 5)
-    exp3 = 3 * math.floor(math.log10(abs(value)) / 3) if value != 0 else 0
-    exp3 = min(max(exp3, -15), 12)
-    prefix = _PREFIXES[exp3]
+        return format_quantity(value, unit, 5) if prefixed else f"{value:.5g} {unit}".strip()
+    if u < _TINY_RELATIVE_U * abs(value):
+        if not prefixed:
+            return f"{value:.8g} {unit} ± {u:.2g} {unit}".strip()
+        return f"{format_quantity(value, unit, 8)} ± {format_quantity(u, unit, 2)}"
+    exp3 = 0
+    if prefixed:
+        exp3 = min(max(3 * math.floor(math.log10(max(abs(value), u)) / 3), -15), 12)
     scale = 10.0 ** exp3
-    v, du = value / scale, u / scale
-    decimals = max(0, digits - 1 - int(math.floor(math.log10(abs(du)))))
-    return f"{v:.{decimals}f} ± {du:.{decimals}f} {prefix}{unit}".strip()
+    du = _round_sig(u / scale, digits)
+    place = int(math.floor(math.log10(du))) - (digits - 1)  # the decade of u's last digit shown
+    v = round(value / scale, -place)
+    decimals = max(0, -place)
+    v_text = f"{v:.{decimals}f}"
+    if v_text.lstrip("-").strip("0.") == "":  # a value that rounds to zero is shown unsigned
+        v_text = v_text.lstrip("-")
+    prefix = _PREFIXES[exp3] if prefixed else ""
+    return f"{v_text} ± {du:.{decimals}f} {prefix}{unit}".strip()

@@ -35,7 +35,7 @@ import tomllib
 from dataclasses import asdict, dataclass, replace
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal, overload
 
 import numpy as np
 
@@ -239,7 +239,8 @@ class CalibrationProfile:
         """V/FS for input channels 1…n_channels (None for a channel the profile has no gain for), or
         None when it knows none of them. A one-channel profile on a stereo recording calibrates
         channel 1 and leaves channel 2 in FS."""
-        out = [None if self.gain_of(ch) is None else self.gain_of(ch).v_per_fs for ch in range(1, n_channels + 1)]
+        gains = [self.gain_of(ch) for ch in range(1, n_channels + 1)]
+        out = [None if g is None else g.v_per_fs for g in gains]
         return None if all(g is None for g in out) else tuple(out)
 
     def gain_u_rel_for(self, n_channels: int) -> tuple[float | None, ...] | None:
@@ -477,6 +478,10 @@ def scan_profiles() -> tuple[list[CalibrationProfile], list[str]]:
     return profiles, problems
 
 
+@overload
+def load_profile(name: str, *, missing_ok: Literal[False] = False) -> CalibrationProfile: ...
+@overload
+def load_profile(name: str, *, missing_ok: bool) -> CalibrationProfile | None: ...
 def load_profile(name: str, *, missing_ok: bool = False) -> CalibrationProfile | None:
     """Read profile ``name``.
 

@@ -102,7 +102,8 @@ class InputCalibration:
     profile : str or None
         Name of the calibration profile the values came from.
     gain_v_per_fs : tuple of float or None
-        Volts per full-scale unit, one per channel; already applied to the samples.
+        Volts per full-scale unit, one per channel (None for a channel the profile has no gain
+        for: it stays in FS); already applied to the samples.
     timebase_ppm : float
         Sample-clock error in parts per million (positive: the card's clock runs fast,
         so the true sample rate is ``nominal * (1 + ppm·1e-6)``); already applied to
@@ -136,11 +137,11 @@ class InputCalibration:
     """
 
     profile: str | None = None
-    gain_v_per_fs: tuple[float, ...] | None = None
+    gain_v_per_fs: tuple[float | None, ...] | None = None
     timebase_ppm: float = 0.0
     timebase_u_ppm: float = 0.0
     coupling_tau_s: float | None = None
-    gain_u_rel: tuple[float, ...] | None = None
+    gain_u_rel: tuple[float | None, ...] | None = None
     distortion_floor_pct: float | None = None
     instrument_volts: bool = False
 

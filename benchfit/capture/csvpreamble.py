@@ -105,12 +105,14 @@ def parse_header_unit(header: str) -> tuple[str, str | None]:
                 return name, inner  # e.g. "°C", "%" — an unknown unit, kept
             return h, None
     m = re.match(r"^(.*\S)\s*/\s*([^\s/]+)$", h)
-    if m and unit_kind(m.group(2)) is not None and unit_kind(m.group(2))[0] in ("time", "volt"):
+    kind = unit_kind(m.group(2)) if m else None
+    if m and kind is not None and kind[0] in ("time", "volt"):
         return m.group(1).strip(), m.group(2)
     m = re.match(r"^(.*?[^\s_\-])[\s_\-]+([A-Za-zµμ]+)$", h)
     if m and unit_kind(m.group(2)) in _SUFFIX_UNITS:
         return m.group(1).strip(), m.group(2)
-    if unit_kind(h) is not None and unit_kind(h)[0] in ("time", "volt"):
+    kind = unit_kind(h)
+    if kind is not None and kind[0] in ("time", "volt"):
         return "", h
     return h, None
 

@@ -380,11 +380,11 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     warnings: list[str] = []
     calibration = prof.input_calibration(channels) if prof else InputCalibration()
     missing = prof.missing_gains(channels) if prof is not None and prof.gains else []
-    if missing:
+    if missing and prof is not None:
         shown = ", ".join(str(c) for c in missing)
         warnings.append(f"profile {prof.name!r} has no gain for channel(s) {shown} — those stay in FS (the "
                         "others are in V); calibrate them with 'benchfit calibrate gain' to read volts")
-    if calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
+    if prof is not None and calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
         # a profile from before the gain uncertainty was stored: the sidecar leaves gain_u_rel out
         warnings.append(f"profile {prof.name!r}: gain uncertainty not known — levels in V will carry only their "
                         "noise uncertainty; run 'benchfit calibrate gain' again with --rms-u")
@@ -563,11 +563,11 @@ class LiveWindows:
 
         try:
             with _quiet_native_stderr():
-                self._stream = sd.InputStream(device=self.device_info.index, channels=self.channels,
-                                              samplerate=self.rate, dtype="float32",
-                                              blocksize=max(256, int(self.rate) // 50), latency="high",
-                                              callback=callback)
-                self._stream.start()
+                self._stream = stream = sd.InputStream(device=self.device_info.index, channels=self.channels,
+                                                       samplerate=self.rate, dtype="float32",
+                                                       blocksize=max(256, int(self.rate) // 50), latency="high",
+                                                       callback=callback)
+                stream.start()
         except sd.PortAudioError as e:
             raise DeviceError(f"--device {self.device_info.name!r}: cannot open the input stream ({e}) — "
                               "check the device is free and supports the settings") from e

@@ -142,7 +142,7 @@ def validate_sidecar(data: Any, where: str) -> dict[str, Any]:
     out["channels"] = [dict(ch) for ch in channels]
 
     fs = data.get("sample_rate_hz")
-    if not _is_number(fs) or fs <= 0:
+    if not isinstance(fs, (int, float)) or not _is_number(fs) or fs <= 0:
         raise CaptureError(f"{where}: 'sample_rate_hz' must be a positive number of Hz, got {_r(fs)} — {fix}")
 
     for key in ("device", "start_utc", "benchfit_version", "unit"):

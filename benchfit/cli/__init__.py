@@ -14,7 +14,9 @@ from typing import Any, NoReturn
 
 __all__ = ["main", "usage_message"]
 
-_COMMAND_MODULES = ("measure_cmd", "fit_cmd", "live_cmd", "report_cmd", "log_cmd",
+_COMMAND_MODULES = ("measure_cmd", "fit_cmd",
+                    "devices_cmd", "record_cmd", "tune_cmd", "calibrate_cmd",
+                    "report_cmd", "log_cmd",
                     "design_cmd", "demo_cmd", "drift_cmd")
 
 

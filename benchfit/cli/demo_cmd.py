@@ -12,7 +12,7 @@ import io
 import shlex
 import time
 from pathlib import Path
-from typing import Optional
+from typing import Any, Optional
 
 import typer
 
@@ -77,14 +77,15 @@ class _Tour:
             code = e.exit_code
         except SystemExit as e:  # typer.Exit inside a command
             code = int(e.code or 0)
-        except Exception as e:  # a click usage error or a bug: report it, keep touring
+        except Exception as exc:  # a click usage error or a bug: report it, keep touring
             from benchfit.cli import _is_a
 
-            if _is_a(e, "Exit"):
-                code = e.exit_code
-            elif _is_a(e, "ClickException"):
-                stderr.print(f"error: {e.format_message()}", markup=False)
-                code = e.exit_code
+            err: Any = exc  # click's exceptions, recognised by name (see benchfit.cli._is_a)
+            if _is_a(err, "Exit"):
+                code = err.exit_code
+            elif _is_a(err, "ClickException"):
+                stderr.print(f"error: {err.format_message()}", markup=False)
+                code = err.exit_code
             else:
                 raise
         if save_stdout is not None:

@@ -13,7 +13,7 @@ import json
 import math
 import re
 from pathlib import Path
-from typing import Optional
+from typing import Literal, Optional, overload
 
 import typer
 
@@ -72,7 +72,14 @@ def _with_fix(message: str) -> str:
     return message if "—" in message else f"{message} — give a value above zero, e.g. 4.7k or 33u"
 
 
+@overload
+def _opt_value(text: str, option: str, *, allow_zero: bool = False) -> float: ...
+@overload
+def _opt_value(text: None, option: str, *, allow_zero: bool = False) -> None: ...
+@overload
+def _opt_value(text: Optional[str], option: str, *, allow_zero: bool = False) -> Optional[float]: ...
 def _opt_value(text: Optional[str], option: str, *, allow_zero: bool = False) -> Optional[float]:
+    """The number an option gives (SI prefixes allowed), None for an option not given."""
     from benchfit.cli.common import fail
     from benchfit.units import parse_quantity
 
@@ -111,7 +118,7 @@ class _OptionNames:
     def __enter__(self) -> None:
         return None
 
-    def __exit__(self, exc_type, exc, tb) -> bool:
+    def __exit__(self, exc_type, exc, tb) -> Literal[False]:  # never swallows: re-raises renamed
         from benchfit.errors import DesignError
 
         if exc is None or not isinstance(exc, DesignError):

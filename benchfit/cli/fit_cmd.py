@@ -92,8 +92,6 @@ def _fmt(value: float | None, stderr: float | None, unit: str) -> str:
     if value is None or not math.isfinite(value):
         return "—"
     if stderr is not None and math.isfinite(stderr) and stderr > 0:
-        if stderr < 1e-7 * abs(value):
-            return f"{format_quantity(value, unit, 8)} ± {format_quantity(stderr, unit, 2)}"
         return format_with_uncertainty(value, stderr, unit)
     return format_quantity(value, unit, 5)
 
@@ -110,9 +108,10 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     if d["parameters"]:
         t = Table(title="effective parts", title_justify="left", box=None, pad_edge=False,
                   header_style="bold")
-        t.add_column("part", justify="left", no_wrap=True)
-        t.add_column("value", justify="right", no_wrap=True)
-        t.add_column("status", justify="left", no_wrap=True)
+        columns: tuple[tuple[str, Literal["left", "right"]], ...] = (("part", "left"), ("value", "right"),
+                                                                      ("status", "left"))
+        for col, just in columns:
+            t.add_column(col, justify=just, no_wrap=True)
         for name, p in d["parameters"].items():
             unit = units.get(p["unit"], p["unit"])
             if p["fixed"] and p.get("stderr") is not None:
@@ -142,10 +141,6 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
             text = "—"
         elif dv["stderr"] is None:
             text = f"{_fmt(dv['value'], None, unit)} (not determined)"
-        elif unit == "":
-            u = dv["stderr"]
-            dec = max(0, 1 - int(math.floor(math.log10(u)))) if u > 0 else 4
-            text = f"{dv['value']:.{dec}f} ± {u:.{dec}f}"
         else:
             text = _fmt(dv["value"], dv["stderr"], unit)
         t.add_row(label, text)

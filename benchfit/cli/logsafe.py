@@ -15,9 +15,12 @@ import os
 import shutil
 import tempfile
 from pathlib import Path
-from typing import Any, Iterator
+from typing import TYPE_CHECKING, Any, Iterator
 
 from benchfit.errors import LogError
+
+if TYPE_CHECKING:
+    from benchfit.log.postgres import LogURL
 
 __all__ = ["log_write_problem", "check_log_writable", "append_run_explained", "readable_log_path", "sigint_held"]
 
@@ -61,14 +64,14 @@ def log_write_problem(path: Any) -> str | None:
     return None
 
 
-def check_log_writable(path: str | os.PathLike[str]) -> None:
+def check_log_writable(path: str | Path | LogURL) -> None:
     """LogError (one line with the fix) when the log cannot be written; call it before any file is made."""
     problem = log_write_problem(path)
     if problem:
         raise LogError(f"{path}: {problem} — {_FIX}; nothing was written")
 
 
-def append_run_explained(log_path: str | os.PathLike[str], **entry: Any) -> int:
+def append_run_explained(log_path: str | Path | LogURL, **entry: Any) -> int:
     """:func:`benchfit.log.store.append_run`, with a full disk or a read-only log named as such."""
     from benchfit.log.store import append_run
 

@@ -86,30 +86,14 @@ def _contract(d: dict[str, Any]) -> dict[str, Any]:
 
 # --- human output ------------------------------------------------------------------------
 
-def _with_u(value: float, u: float, unit: str) -> str:
-    """``value ± u unit`` rounded to u's second significant digit, or compact when u is tiny."""
-    from benchfit.units import format_quantity, format_with_uncertainty
-
-    dec = 1 - int(math.floor(math.log10(u)))
-    if u < 1e-7 * abs(value) or (unit in ("FS", "%") and dec > 6):
-        # more digits than anyone can use: the value to 8 digits, the uncertainty apart
-        if unit in ("FS", "%"):
-            return f"{value:.8g} {unit} ± {u:.2g} {unit}"
-        return f"{format_quantity(value, unit, 8)} ± {format_quantity(u, unit, 2)}"
-    if unit in ("FS", "%"):
-        dec = max(0, dec)
-        return f"{value:.{dec}f} ± {u:.{dec}f} {unit}"
-    return format_with_uncertainty(value, u, unit)
-
-
 def _num(value: float | None, unit: str, u: float | None = None) -> str:
     """A value with its unit and, when given, its standard uncertainty."""
-    from benchfit.units import format_quantity
+    from benchfit.units import format_quantity, format_with_uncertainty
 
     if value is None or not math.isfinite(value):
         return "—"
     if u is not None and math.isfinite(u) and u > 0:
-        return _with_u(value, u, unit)
+        return format_with_uncertainty(value, u, unit)
     if unit in ("FS", "%"):  # full-scale units and percentages read best without SI prefixes
         return f"{value:.5g} {unit}"
     return format_quantity(value, unit, 5)

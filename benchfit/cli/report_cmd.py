@@ -19,12 +19,15 @@ import shutil
 import tempfile
 from dataclasses import replace
 from pathlib import Path
-from typing import List, Optional
+from typing import TYPE_CHECKING, Any, List, Mapping, Optional
 
 import typer
 
 from benchfit.cli.app import app
 from benchfit.cli.fit_cmd import ModelOption
+
+if TYPE_CHECKING:
+    from benchfit.log.postgres import LogURL
 
 _EXAMPLE = """
 
@@ -106,7 +109,7 @@ def report_command(
     from benchfit.log.store import resolve_log_path
     from benchfit.report.assemble import FitOptions
 
-    model = None if model is None else ModelOption(model).value
+    model_name = None if model is None else ModelOption(model).value
     if log is not None and log == os.environ.get("BENCHFIT_LOG") and no_log:
         log = None  # typer filled --log from $BENCHFIT_LOG: --no-log wins over the environment
     from benchfit.cli.fit_cmd import parse_fix_options
@@ -117,8 +120,8 @@ def report_command(
     check_parts_plausible(fix_values, "--fix")
     channel_map = _channel_map(channel)
     fit = None
-    if model is not None or drive is not None or response is not None or fix_values:
-        fit = FitOptions(model=model or "lc-lowpass", drive=drive, response=response, fix=fix_values)
+    if model_name is not None or drive is not None or response is not None or fix_values:
+        fit = FitOptions(model=model_name or "lc-lowpass", drive=drive, response=response, fix=fix_values)
     if log is not None and not log.strip():
         fail("--log: the path is empty — give the log file, leave --log out for the default log, "
              "or use --no-log")
@@ -149,6 +152,7 @@ def report_command(
         return
     if drift is not None and not drift.is_file():
         fail(f"{drift}: no such file — give the JSON of 'benchfit drift --json' or the long capture")
+    assert unit is not None  # refused above unless --each
     _report_one(paths, unit=unit, spec=spec, as_found=as_found or [], operator=operator, out=out, fit=fit,
                 log_path=log_path, with_figures=not no_figures, as_json=as_json, drift=drift,
                 channel_map=channel_map)
@@ -171,7 +175,7 @@ def _channel_map(items: Optional[List[str]]) -> dict[str, str]:
 
 
 def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path], operator: str | None,
-                out: Path, fit, log_path: Path | None, with_figures: bool, as_json: bool,
+                out: Path, fit, log_path: Path | LogURL | None, with_figures: bool, as_json: bool,
                 drift: Path | None = None, channel_map: dict[str, str] | None = None) -> None:
     """All captures belong to one unit (in this process)."""
     from benchfit.cli.common import print_json, stderr, stdout
@@ -189,6 +193,7 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
                           channel_map=channel_map, drift=drift,
                           with_figures=with_figures, progress=lambda text: status.update(text))
     if log_path is not None:
+        assert result.log_entry is not None  # run_unit returns the entry it deferred
         result = replace(result, run_id=_log_or_roll_back(log_path, result.log_entry,
                                                           [result.html_path, result.json_path]))
     index = _update_index(out)
@@ -221,7 +226,7 @@ def _update_index(out: Path) -> Path | None:
         return None
 
 
-def _log_or_roll_back(log_path: Path, entry: dict, files: list[Path]) -> int:
+def _log_or_roll_back(log_path: Path | LogURL, entry: Mapping[str, Any], files: list[Path]) -> int:
     """Append a unit's run; if the log refuses it, remove the report files just made for it.
 
     A report that is not in the log would be a record nobody can find again: the files (created
@@ -279,7 +284,7 @@ def _style(verdict: str) -> str:
 
 
 def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, fit, operator: str | None,
-                 log_path: Path | None, with_figures: bool, as_json: bool, jobs: int | None,
+                 log_path: Path | LogURL | None, with_figures: bool, as_json: bool, jobs: int | None,
                  channel_map: dict[str, str] | None = None) -> None:
     """Every capture its own unit, in worker processes; a bad capture is named and skipped.
 

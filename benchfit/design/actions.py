@@ -92,8 +92,11 @@ class _State:
                       self.f.copy(), dict(self.extra))
 
     def nominal(self) -> "_State":
-        return _State(*(np.array([getattr(self, k)[0]]) for k in ("L", "C", "Rs", "Resr", "Rload", "f")),
-                      {k: np.array([v[0]]) for k, v in self.extra.items()})
+        def first(a: np.ndarray) -> np.ndarray:
+            return np.array([a[0]])
+
+        return _State(first(self.L), first(self.C), first(self.Rs), first(self.Resr), first(self.Rload),
+                      first(self.f), {k: first(v) for k, v in self.extra.items()})
 
 
 @dataclass(frozen=True)

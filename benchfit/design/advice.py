@@ -516,7 +516,8 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
                             "at the filter input), so predictions after a change take that drive as stiff — a "
                             "one-channel fit of the output includes the source and predicts level changes better")
     else:
-        base = _State(*(np.full(n, v) for v in (1.0, 1e-6, 1e3, 0.0, math.inf, 0.0)))
+        base = _State(np.full(n, 1.0), np.full(n, 1e-6), np.full(n, 1e3), np.full(n, 0.0), np.full(n, math.inf),
+                      np.full(n, 0.0))
         others = [lim.quantity for lim in limits if lim.quantity != "frequency_hz"]
         if others:
             warnings.append(f"no fit given: only the frequency is predicted; {', '.join(others)} are not — "
@@ -538,8 +539,8 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     elif est is not None:
         d = est[0]
     else:
-        d = _fit_duty(fit) if fit is not None else None
-        d = 0.5 if d is None else d
+        fitted_duty = _fit_duty(fit) if fit is not None else None
+        d = 0.5 if fitted_duty is None else fitted_duty
     if drive_swing_v is not None:
         swing = float(drive_swing_v)
     elif est is not None:
@@ -611,8 +612,9 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
                         "cannot move the frequency")
     plans: list[Plan] = []
     combos: list[list[_Action]] = []
-    for first in [[]] + [[a] for a in far]:
-        for t in [[]] + [[a] for a in timer_acts]:
+    nothing: list[_Action] = []
+    for first in [nothing] + [[a] for a in far]:
+        for t in [nothing] + [[a] for a in timer_acts]:
             pre = first + t
             if fit is not None:
                 for fa in _filter_actions(search, pre, cseries, ctol, resistor_tolerance, rseries):
@@ -655,7 +657,7 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     if verdict == "cannot meet spec":
         cand = best if plans else keep
         if cand.p_limits:
-            blocking = min(cand.p_limits, key=cand.p_limits.get)
+            blocking = min(cand.p_limits, key=lambda q: cand.p_limits[q])
         warnings.append(f"no action reaches the spec: the best plan meets it with probability "
                         f"{cand.p_pass * 100:.1f} %; {blocking} blocks it")
         best = keep

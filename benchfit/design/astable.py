@@ -480,17 +480,17 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
             continue
         idx_a = np.unique(np.clip(np.searchsorted(r_vals, [ra_ideal, ra_ideal]) + [-1, 0], 0, len(r_vals) - 1))
         idx_b = np.unique(np.clip(np.searchsorted(r_vals, [rb_ideal, rb_ideal]) + [-1, 0], 0, len(r_vals) - 1))
-        ra, rb = np.meshgrid(r_vals[idx_a], r_vals[idx_b])
-        ra, rb = ra.ravel(), rb.ravel()
-        rb_eff = rb if pot is None else rb + pot / 2
-        th, tl = _times(ra, rb_eff, c, k, diode)
+        ra_grid, rb_grid = np.meshgrid(r_vals[idx_a], r_vals[idx_b])
+        ras, rbs = ra_grid.ravel(), rb_grid.ravel()  # every pair of candidate values
+        rb_eff = rbs if pot is None else rbs + pot / 2
+        th, tl = _times(ras, rb_eff, c, k, diode)
         f, d = 1.0 / (th + tl), th / (th + tl)
-        sc = _score(f, d, f_t, d_t, duty_weight, rb)
+        sc = _score(f, d, f_t, d_t, duty_weight, rbs)
         if c_pot is not None and c1_farad is None:
             sc = sc + 0.05 * abs(math.log10(c / c_pot))
         i = int(np.argmin(sc))
         if best is None or sc[i] < best[0]:
-            best = (float(sc[i]), float(ra[i]), float(rb[i]), float(c))
+            best = (float(sc[i]), float(ras[i]), float(rbs[i]), float(c))
     if best is None:
         slow = 1.0 / sum(_times(R_MAX_OHM, R_MAX_OHM, float(c_cands.max()), k, diode))
         fast = 1.0 / sum(_times(R_MIN_OHM, R_MIN_OHM, float(c_cands.min()), k, diode))

@@ -250,8 +250,9 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
     rc_known = True
     c_ref = cv
     if separate:
+        assert cv is not None and cu is not None and lv is not None  # what "separate" requires
         route = "LC"
-        rl, rc = (0.0 if lfixed else lu / lv), cu / cv
+        rl, rc = (0.0 if lfixed or lu is None else lu / lv), cu / cv
         notes.append("L fixed and C from the resonance" if lfixed else
                      f"L and C determined separately by the fit (correlation {rho:+.4f}); their "
                      "uncertainties and correlation are propagated")
@@ -278,6 +279,7 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
         else:
             raise DesignError(f"{fit.file}: the fit gives the resonance but no capacitance — give the "
                               "capacitor bank's values (bank=[22e-6, 10e-6, 1e-6]) or fix C or L in the fit")
+    assert c_ref is not None  # every route above sets it or raises
     c_new = c_ref * (f0 / target) ** 2
     delta = c_new - c_ref
     # standard uncertainty of the needed total C: C_new = (a0/a2 ratio)/(ω²L) in the LC case,
@@ -287,6 +289,7 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
     else:
         rf = 0.0 if f0u is None else f0u / f0
         needed_u = c_new * math.hypot(2 * rf, rc)
+    combo: Combination | None
     if delta >= 0:
         combo = _parallel_only(delta, name, max_parts)
         what = combo.describe().removesuffix(" in parallel")
@@ -343,17 +346,17 @@ def _decrease(cv: float, c_new: float, need_less: float, series: str, bank: Sequ
                 combo = _parallel_only(c_new - rest, series, max_parts)
                 what = combo.describe().removesuffix(" in parallel")
                 options.append((f"swap the {fq(v, 'F')} capacitor for {what}", combo.value, combo))
-            for text, new, combo in options:
+            for text, new, option in options:
                 after = rest + new
                 err = abs(after / c_new - 1.0)
                 if after > 0 and (best is None or err < best[0]):
-                    best = (err, text, rest, new, combo)
+                    best = (err, text, rest, new, option)
         if best is not None:
             return best[4], best[1], best[2], best[3]
-    combo = _parallel_only(c_new, series, max_parts)
+    rebuilt = _parallel_only(c_new, series, max_parts)
     notes.append(f"the bank must lose {fq(need_less, 'F', 4)}; without the bank's make-up (--bank) the "
                  "suggestion is to rebuild it from new parts taken at their nominal values")
-    return combo, f"reduce the capacitance: rebuild the bank as {combo.describe()}", 0.0, combo.value
+    return rebuilt, f"reduce the capacitance: rebuild the bank as {rebuilt.describe()}", 0.0, rebuilt.value
 
 
 # --- timer -------------------------------------------------------------------------------
@@ -429,10 +432,10 @@ def timer_trim(timer_hz: float, target_hz: float, *, ra_ohm: float, rb_ohm: floa
         if vc is not None and 0 < vc < vcc:
             f_after = astable_timing(ra, rb, c, supply_v=vcc, control_voltage_v=vc,
                                      diode=diode).frequency_hz / scale
-            u = None if rel_u is None else f_after * rel_u
+            vc_u = None if rel_u is None else f_after * rel_u
             now = control_voltage_v if control_voltage_v is not None else 2.0 * vcc / 3.0
             changes.append(TrimChange("timer-control", f"set the control pin to {vc:.3f} V", "Vc", "V", now,
-                                      vc, None, vc, None, f_after, u, f_meas))
+                                      vc, None, vc, None, f_after, vc_u, f_meas))
             notes.append("the control pin is fed internally through about 3.3 kΩ: set it from a stiff divider")
         else:
             notes.append("no control-pin voltage below the supply reaches the target — change RB")
@@ -484,6 +487,7 @@ def suggest_trim(fit_result, target_hz: float, *, series: str = "E12", max_parts
         if missing:
             raise DesignError(f"timer: {', '.join(missing)} missing — give the timer's nominal RA, RB and C1 "
                               "with the measured timer frequency")
+        assert ra_ohm is not None and rb_ohm is not None and c1_farad is not None  # none is missing
         tc, tn = timer_trim(timer_frequency_hz, target, ra_ohm=ra_ohm, rb_ohm=rb_ohm, c1_farad=c1_farad,
                             timer_u_hz=timer_frequency_u_hz, supply_v=supply_v,
                             control_voltage_v=control_voltage_v, diode=diode, series=resistor_series,

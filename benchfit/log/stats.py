@@ -130,8 +130,8 @@ def histogram_svg(values: Sequence[float], cap: Capability, quantity: str, unit:
     from matplotlib.figure import Figure
 
     x = np.asarray([v for v in values if v is not None and math.isfinite(v)], dtype=float)
-    rc = {"svg.fonttype": "path", "svg.hashsalt": "benchfit-log", "font.size": 8.5,
-          "axes.grid": True, "grid.color": "#d5dbe0", "axes.edgecolor": "#7a8793"}
+    rc: dict[Any, Any] = {"svg.fonttype": "path", "svg.hashsalt": "benchfit-log", "font.size": 8.5,
+                          "axes.grid": True, "grid.color": "#d5dbe0", "axes.edgecolor": "#7a8793"}
     with matplotlib.rc_context(rc):
         fig = Figure(figsize=(6.0, 3.0), dpi=100, layout="constrained")
         ax = fig.add_subplot(1, 1, 1)
@@ -140,7 +140,8 @@ def histogram_svg(values: Sequence[float], cap: Capability, quantity: str, unit:
         for lim, name in ((cap.lower, "LSL"), (cap.upper, "USL")):
             if lim is not None:
                 ax.axvline(lim, color="#b5523b", lw=1.4, ls="--")
-                ax.annotate(name, (lim, 1.0), xycoords=("data", "axes fraction"), ha="center",
+                # x in data, y in axes fraction (the blended transform of ("data", "axes fraction"))
+                ax.annotate(name, (lim, 1.0), xycoords=ax.get_xaxis_transform(), ha="center",
                             va="bottom", color="#b5523b", fontsize=8)
         ax.axvline(cap.mean, color="#22313f", lw=1.0, label="mean")
         ax.set_xlabel(f"{quantity} ({unit})" if unit else quantity)

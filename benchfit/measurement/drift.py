@@ -216,6 +216,7 @@ class IntervalTracker:
                                    amplitude_u=None, vrms=vrms, thd_pct=None, thd_u_pct=None,
                                    duty_cycle_pct=None, duty_cycle_u_pct=None, unit=self.unit,
                                    warnings=tuple(warnings))
+        assert fit is not None  # "ok" requires a fit
         f = float(fit.frequency_hz)
         if acquired:
             self._prev = None  # a fresh acquisition starts a new segment
@@ -223,6 +224,9 @@ class IntervalTracker:
         chain_f = chain_u = None
         chain_start = True
         phase = psi
+        reported_phase: float | None = None
+        f_own: float | None
+        f_own_u: float | None
         if self._prev is not None:
             t0, ph0, u0, f0 = self._prev
             dt = t_mid - t0
@@ -241,20 +245,22 @@ class IntervalTracker:
             # the chain broke on a known-frequency fit: this interval gives no frequency, and
             # the next one is re-acquired with the four-parameter fit
             f_own = f_own_u = None
-            phase = None
             chain_start = False
             self._prev = None
             self._last_f = None
         else:
             if chain_start:
                 self._segment += 1
-            if chain_f is not None:
+            if chain_f is not None and chain_u is not None:  # set together by a continued chain
                 f_own, f_own_u = chain_f, chain_u
             else:
+                # no chain here means a fresh acquisition, and "ok" requires its frequency uncertainty
+                assert fit.frequency_u_hz is not None
                 f_own, f_own_u = f, float(fit.frequency_u_hz)
             f_own_u = math.hypot(f_own_u, f_own * self.timebase_u_ppm * 1e-6)
             self._last_f = chain_f if chain_f is not None else f
             self._prev = (t_mid, phase, psi_u, f)
+            reported_phase = phase
         dist = analyse_distortion(x, fs, fit)
         thd = 100.0 * dist.thd if dist.thd is not None else None
         thd_u = 100.0 * dist.thd_u if dist.thd_u is not None else None
@@ -263,8 +269,8 @@ class IntervalTracker:
             duty, duty_u = self._duty_cycle(x)
         return IntervalReading(
             index=index, start_frame=int(start_frame), n_frames=n, t_start_s=t_start, t_mid_s=t_mid,
-            frequency_hz=f_own, frequency_u_hz=f_own_u, phase_rad=phase,
-            phase_u_rad=psi_u if phase is not None else None, chain_frequency_hz=chain_f,
+            frequency_hz=f_own, frequency_u_hz=f_own_u, phase_rad=reported_phase,
+            phase_u_rad=psi_u if reported_phase is not None else None, chain_frequency_hz=chain_f,
             chain_frequency_u_hz=chain_u, segment=self._segment, chain_start=chain_start,
             amplitude=float(fit.amplitudes[0]), amplitude_u=float(fit.amplitudes_u[0]), vrms=vrms,
             thd_pct=thd, thd_u_pct=thd_u, duty_cycle_pct=duty, duty_cycle_u_pct=duty_u, unit=self.unit,

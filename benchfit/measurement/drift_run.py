@@ -129,6 +129,7 @@ def run_drift(blocks: Iterable[Any], *, interval_s: float, channel: str | int | 
                 notes.append(f"the last {block.n_samples / block.sample_rate:.3g} s (less than one interval) "
                              "were not measured")
                 break
+            assert tracker is not None and first is not None  # both set by the first block
             start = int(round(block.t0 * block.sample_rate)) - int(round(first.t0 * first.sample_rate))
             assert tracker is not None  # made at the first block
             r = tracker.push(block.samples[idx], start)

@@ -19,9 +19,14 @@ import importlib.util
 import inspect
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Literal, Mapping, Sequence
+from typing import TYPE_CHECKING, Any, Callable, Literal, Mapping, Sequence
 
 from benchfit.errors import BenchfitError, FitError, SpecError
+
+if TYPE_CHECKING:
+    from benchfit.capture.capture import Capture
+    from benchfit.fit.result import FitResult
+    from benchfit.measurement.result import Measurement
 from benchfit.report.spec import (FITTED_QUANTITIES, MEASURED_QUANTITIES, Decision, Limit, Spec,
                                   decide, load_spec, overall_verdict, quantity_unit, uncertainty_keys)
 
@@ -611,13 +616,16 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     if fit_opts is not None:
         fit_opts = _with_spec_fixes(fit_opts, sp)
     fit_fn, fit_kwargs = _fit_call(fit_opts) if fit_opts is not None else (None, {})
-    left, found = [], []
+    left: list[tuple[Capture, Measurement]] = []
+    found: list[tuple[Capture, Measurement]] = []
     for paths, group in ((captures, left), (as_found, found)):
         for p in paths:
             step(f"measuring {p}")
             capture = _check_channels(_map_channels(benchfit.load(p), channel_map or {}), sp)
             group.append((capture, benchfit.measure(capture)))
-    fits_left, fits_found, fit_errors = [], [], []
+    fits_left: list[FitResult] = []
+    fits_found: list[FitResult] = []
+    fit_errors: list[str] = []
     if fit_fn is not None:
         for group, target in ((left, fits_left), (found, fits_found)):
             for capture, _ in group:
@@ -651,9 +659,10 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     if log_path is not None or defer_log:
         from benchfit.log.store import append_run
 
-        caps = [("as-found", c) for c, _ in found] + [("as-left", c) for c, _ in left]
-        meas = [("as-found", m) for _, m in found] + [("as-left", m) for _, m in left]
-        fits = [("as-found", f) for f in fits_found] + [("as-left", f) for f in fits_left]
+        # the objects themselves, or (deferred) their plain-data form
+        caps: list[tuple[str, Any]] = [("as-found", c) for c, _ in found] + [("as-left", c) for c, _ in left]
+        meas: list[tuple[str, Any]] = [("as-found", m) for _, m in found] + [("as-left", m) for _, m in left]
+        fits: list[tuple[str, Any]] = [("as-found", f) for f in fits_found] + [("as-left", f) for f in fits_left]
         if defer_log:  # the same content as plain data (what append_run makes of the objects)
             caps = [(role, {"path": c.source, "sha256": c.sha256,
                             "metadata": {**dict(c.metadata), "calibration": c.calibration.to_dict()}})
@@ -670,6 +679,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
                      details={"spec": sp.path, "spec_name": sp.name, "html": str(html_path),
                               "json": str(json_path)})
         if not defer_log:
+            assert log_path is not None  # logging now needs the log
             run_id = append_run(log_path, **entry)
     return UnitRun(html_path=html_path, json_path=json_path, verdict=report["verdict"],
                    exit_code=report["exit_code"], run_id=run_id, log_entry=entry if defer_log else None)

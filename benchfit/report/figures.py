@@ -44,7 +44,7 @@ _MODEL = "#b5523b"
 _RESID = "#5b7f3a"
 _GRID = "#d5dbe0"
 _FACE = "#ffffff"
-_RC = {
+_RC: dict[Any, Any] = {  # matplotlib types the keys as a Literal of every rc name
     "svg.fonttype": "path",
     "svg.hashsalt": "benchfit",
     "font.size": 8.5,

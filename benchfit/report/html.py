@@ -90,6 +90,18 @@ def format_u(u: float | None, unit: str = "") -> str:
     return format_value(u, unit, digits=2, strip=False)
 
 
+def format_pm(value: float | None, u: float | None, unit: str = "") -> str:
+    """``value ± u unit`` as everywhere in benchfit (:func:`benchfit.units.format_with_uncertainty`),
+    with the page's unit symbols (Ω, s⁻¹)."""
+    from benchfit.units import format_with_uncertainty
+
+    text = format_with_uncertainty(value, u, unit)
+    shown = _DISPLAY_UNIT.get(unit)
+    if shown is not None and text.endswith(unit):
+        text = text[: len(text) - len(unit)] + shown
+    return text
+
+
 def format_limits(lower: float | None, upper: float | None, unit: str) -> str:
     """"a … b unit", "≤ b unit" or "≥ a unit"."""
     # a limit is shown exactly as the spec gives it (up to 12 digits): 2.00001 must not read as 2
@@ -126,7 +138,7 @@ def format_change(row: Mapping[str, Any]) -> str:
     (the two U combined in quadrature: separate measurements, taken as uncorrelated — GUM 5.1.2)."""
     found, left = row.get("as_found") or {}, row.get("as_left") or {}
     a, b = found.get("value"), left.get("value")
-    if not all(isinstance(v, (int, float)) and math.isfinite(v) for v in (a, b)):
+    if not (isinstance(a, (int, float)) and isinstance(b, (int, float)) and math.isfinite(a) and math.isfinite(b)):
         return "—"
     unit = row.get("unit") or ""
     d = float(b) - float(a)
@@ -204,6 +216,7 @@ def _environment():
                       undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True)
     env.filters["value"] = format_value
     env.filters["u"] = format_u
+    env.filters["pm"] = format_pm
     env.filters["limits"] = format_limits
     env.globals["condition"] = format_condition
     env.filters["unit"] = lambda unit: _unit_text("", unit)

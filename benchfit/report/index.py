@@ -35,7 +35,9 @@ def _entries(folder: Path) -> list[dict[str, str]]:
             continue
         if not isinstance(d, dict) or "benchfit_report" not in d:
             continue  # not a report twin (another program's JSON)
-        spec = d.get("spec") if isinstance(d.get("spec"), dict) else {}
+        spec = d.get("spec")
+        if not isinstance(spec, dict):
+            spec = {}
         rows.append({"page": page.name, "unit": str(d.get("unit", page.stem)), "verdict": str(d.get("verdict", "")),
                      "found": str(d.get("as_found_verdict") or ""), "when": str(d.get("created_utc", "")),
                      "spec": str(spec.get("name") or ""), "operator": str(d.get("operator") or "")})

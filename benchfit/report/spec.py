@@ -315,6 +315,8 @@ def _parse_limit(where: str, raw: Any) -> Limit:
     if not has_tol and not has_abs:
         raise SpecError(f"{where_q}: no limits — add tolerance, tolerance_pct, min or max")
     nominal = nums.get("nominal")
+    lower: float | None
+    upper: float | None
     if has_tol:
         key = has_tol[0]
         if nominal is None:
@@ -390,11 +392,11 @@ def parse_spec(data: Mapping[str, Any], where: str = "spec") -> Spec:
     limits = tuple(_parse_limit(f"{where}: limit {i + 1}", item) for i, item in enumerate(raw_limits))
     seen: set[tuple[str, Any]] = set()
     for lim in limits:
-        key = (lim.quantity, lim.channel)
-        if key in seen:
+        pair = (lim.quantity, lim.channel)
+        if pair in seen:
             raise SpecError(f"{where}: two limits on {lim.quantity}"
                             f"{'' if lim.channel is None else f' (channel {_shown(lim.channel)})'} — keep one")
-        seen.add(key)
+        seen.add(pair)
     return Spec(name=head.get("name", ""), revision=head.get("revision", ""), decision_rule=rule,
                 limits=limits, conditions=conditions, notes=head.get("notes", ""),
                 path=None if where == "spec" else where)

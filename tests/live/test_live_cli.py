@@ -129,7 +129,8 @@ def test_tune_screen_and_plain_line_show_units_and_uncertainty():
     from rich.console import Console
 
     from benchfit.capture.live import analyse_window
-    from benchfit.cli.live_cmd import _freq_text, _panel, _plain_line
+    from benchfit.cli.soundcard import freq_text as _freq_text
+    from benchfit.cli.tune_cmd import _panel, _plain_line
 
     rng = np.random.default_rng(9)
     t = np.arange(FS) / FS
