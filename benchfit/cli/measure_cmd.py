@@ -340,10 +340,11 @@ def _show_then_log(out: dict[str, Any], as_json: bool, log_path: Path | None) ->
 
 def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: Path | None) -> None:
     """One file, in this process: a failure is the command's one-line error (exit 2)."""
-    from benchfit.cli.batch import measure_job
+    from benchfit.cli.batch import block_progress, measure_job
     from benchfit.cli.common import stderr
 
-    out = measure_job(path, **opts)
+    with block_progress(path) as on_block:  # a long file is read in blocks, with a progress bar
+        out = measure_job(path, on_block=on_block, **opts)
     run_id = _show_then_log(out, as_json, log_path)
     if as_json and run_id is not None:
         stderr.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)

@@ -458,11 +458,25 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
     if isinstance(capture_or_path, Capture):
         cap = capture_or_path
     else:
+        from benchfit.measurement.long_record import is_long_file, measure_long_file
+
+        if is_long_file(capture_or_path):  # more samples than are held at once: in blocks
+            return measure_long_file(capture_or_path, harmonics=int(h), channels=channels, force_pulse=force_pulse)
         from benchfit.capture.load import load
 
         cap = load(capture_or_path)
     if channels is not None and not (isinstance(channels, (list, tuple)) and not channels):
         cap = cap.select(channels)  # (an empty list measures every channel, as it always has)
+    results = [measure_channel(cap.samples[i], cap.sample_rate, harmonics=int(h), force_pulse=force_pulse, **kw)
+               for i, kw in enumerate(channel_options(cap))]
+    return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
+                       duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)
+
+
+def channel_options(cap: Capture) -> list[dict[str, Any]]:
+    """The keyword arguments of :func:`measure_channel` that each channel's calibration gives:
+    name, unit, timebase and gain with their sources, coupling, full scale, distortion floor and
+    the notes (the capture's warnings, stated defaults). Shared by the block measurement of long files."""
     from benchfit.uncertainty import DEFAULT_GAIN_NOTE, DEFAULT_GAIN_U_REL, DEFAULT_TIMEBASE_NOTE
 
     cal = cap.calibration
@@ -471,7 +485,7 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
     tb_cal = cal.timebase_calibrated
     tb_source = (f"calibration profile {cal.profile or 'unnamed'}" if tb_cal else
                  "stated default for an uncalibrated crystal clock (common practice, no source)")
-    results = []
+    out = []
     for i, (name, unit) in enumerate(zip(cap.channel_names, cap.units)):
         full_scale = None
         gain_u = None
@@ -489,11 +503,9 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
                 notes += (f"{DEFAULT_GAIN_NOTE}: calibration profile {cal.profile or 'unnamed'!s} does not "
                           "state it — run 'benchfit calibrate gain' again with --rms-u and record with the "
                           "new profile",)
-        results.append(measure_channel(
-            cap.samples[i], cap.sample_rate, name=name, unit=unit, harmonics=int(h),
-            timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm_effective,
-            coupling_tau_s=cal.coupling_tau_s, full_scale=full_scale, gain_u_rel=gain_u,
-            extra_warnings=notes, timebase_calibrated=tb_cal, timebase_source=tb_source,
-            gain_source=gain_source, distortion_floor_pct=cal.distortion_floor_pct, force_pulse=force_pulse))
-    return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
-                       duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)
+        out.append({"name": name, "unit": unit, "timebase_ppm": cal.timebase_ppm,
+                    "timebase_u_ppm": cal.timebase_u_ppm_effective, "coupling_tau_s": cal.coupling_tau_s,
+                    "full_scale": full_scale, "gain_u_rel": gain_u, "extra_warnings": notes,
+                    "timebase_calibrated": tb_cal, "timebase_source": tb_source, "gain_source": gain_source,
+                    "distortion_floor_pct": cal.distortion_floor_pct})
+    return out
