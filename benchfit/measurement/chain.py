@@ -112,9 +112,9 @@ def birge_factor(chi2: float, dof: int) -> float:
     """√(χ²/ν) when χ² exceeds the 99th percentile of the χ²(ν) distribution, else 1."""
     if dof < 1 or not math.isfinite(chi2):
         return 1.0
-    from scipy.stats import chi2 as chi2_dist
+    from scipy.special import chdtri  # inverse survival function of χ²: chdtri(ν, 0.01) = 99th percentile
 
-    if chi2 > float(chi2_dist.ppf(0.99, dof)):
+    if chi2 > float(chdtri(dof, 0.01)):
         return math.sqrt(chi2 / dof)
     return 1.0
 
