@@ -44,8 +44,6 @@ BLOCK_THRESHOLD_SAMPLES = 1 << 24
 THRESHOLD_ENV = "BENCHFIT_BLOCK_SAMPLES"
 #: a text export's bytes per sample, at least (a digit and a separator): bounds its sample count
 _CSV_MIN_BYTES_PER_SAMPLE = 2
-#: a text export's bytes per sample as usually written ("0.012345," — 8 or more): estimates it
-_CSV_TYPICAL_BYTES_PER_SAMPLE = 8
 
 #: CSV rows read for the template (layout, units, time step) before the first block is cut
 _CSV_HEAD_ROWS = 4096
@@ -298,8 +296,54 @@ class BlockReader:
         head = read_csv(self.path, raw=raw, sample_rate=self._given_rate)
         self._csv_time_column = str(head.metadata.get("time_source", "")).startswith("time column")
         meta = dict(head.metadata)
-        return _Template(sample_rate=head.sample_rate, channel_names=head.channel_names, units=head.units,
+        rate = head.sample_rate
+        if self._csv_time_column:
+            rate = self._csv_end_rate(rate, head.t0, start)
+            meta["time_step_s"] = 1.0 / rate
+        return _Template(sample_rate=rate, channel_names=head.channel_names, units=head.units,
                          calibration=head.calibration, metadata=meta, warnings=head.warnings, t0=head.t0)
+
+    def _csv_end_rate(self, head_rate: float, t0: float, data_start: int) -> float:
+        """The time column's rate over the whole file: (rows before the last few) / (their time − t0).
+
+        The first rows' rate is good to the time stamps' rounding over a few thousand steps (a
+        column printed to 0.1 µs at 48 kHz gives ~10⁻⁶), which would put a sample of a long file
+        whole steps off the grid; the span of the whole file is as long as it gets. Counting the
+        rows costs one pass over the bytes (newlines only). Falls back to ``head_rate`` when the
+        tail cannot be read or does not agree within 0.1 %.
+        """
+        from benchfit.capture.csvfile import read_csv
+
+        if getattr(self._text, "encoding", "").lower().startswith("utf-16"):
+            return head_rate
+        try:
+            newlines = 0
+            with open(self.path, "rb") as fh:
+                for chunk in iter(lambda: fh.read(1 << 22), b""):
+                    newlines += chunk.count(b"\n")
+                size = fh.tell()
+                fh.seek(max(0, size - (1 << 16)))
+                tail = fh.read().decode(self._text.encoding, errors="replace")
+            ends_with_newline = tail.endswith("\n")
+            lines = tail.splitlines()
+            total_lines = newlines + (0 if ends_with_newline else 1)
+            blank_end = 0
+            while lines and not lines[-1].strip():
+                lines.pop()
+                blank_end += 1
+            rows = [ln for ln in lines[-16:] if ln.strip()]
+            if len(rows) < 2 or len(lines) < 17:
+                return head_rate
+            data_rows = total_lines - blank_end - data_start
+            first_tail = data_rows - len(rows)
+            cap = read_csv(self.path, raw=(self._csv_prefix + "\n".join(rows)).encode("utf-8"))
+        except (OSError, CaptureError, UnicodeError, LookupError):
+            return head_rate
+        span = cap.t0 - t0
+        if first_tail <= 0 or not span > 0:
+            return head_rate
+        rate = first_tail / span
+        return rate if abs(rate / head_rate - 1.0) < 1e-3 else head_rate
 
     def _csv_blocks(self, frames: int) -> Iterator[tuple[int, np.ndarray, float]]:
         from benchfit.capture.csvfile import read_csv
@@ -395,7 +439,7 @@ def block_frames(channels: int, threshold: int | None = None) -> int:
 
 def estimated_samples(path: str | os.PathLike[str]) -> int | None:
     """Samples (frames × channels) in a capture file without reading it: the audio header's count,
-    or for a text export its size over a typical 8 bytes a sample. None when it cannot be told
+    or for a text export its upper bound (size over 2 bytes a sample). None when it cannot be told
     (missing file, unreadable header: the reader then gives its own error)."""
     p = Path(path)
     try:
@@ -412,4 +456,7 @@ def estimated_samples(path: str | os.PathLike[str]) -> int | None:
         except Exception:  # noqa: BLE001 - any decoder failure: the reader reports it properly
             return None
         return int(info.frames) * int(info.channels)
-    return size // _CSV_TYPICAL_BYTES_PER_SAMPLE
+    # a text export costs its reader about 12 bytes of memory a byte of text (measured: 68 MiB of CSV,
+    # 0.86 GiB peak), so it is counted at its upper bound of samples (2 bytes each): held whole only
+    # below 2^25 bytes (32 MiB, about 0.4 GiB to read)
+    return size // _CSV_MIN_BYTES_PER_SAMPLE
