@@ -287,9 +287,19 @@ def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
     from benchfit.measurement.summary import measure
     from benchfit.report.figures import measurement_svg, save_figure
 
-    cap = load(path, sample_rate=opts.get("sample_rate"))
-    m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"),
-                force_pulse=opts.get("force_pulse", False))
+    from benchfit.measurement.long_record import is_long_file, measure_long_file
+
+    if is_long_file(path):  # in blocks; the figure's waveform is the first block's start
+        from benchfit.capture.blocks import BlockReader, block_frames
+
+        m = measure_long_file(path, harmonics=opts["harmonics"], channels=opts.get("channels"),
+                              force_pulse=opts.get("force_pulse", False), sample_rate=opts.get("sample_rate"))
+        with BlockReader(path, sample_rate=opts.get("sample_rate")) as reader:
+            cap = next(iter(reader.blocks(block_frames(len(reader.channel_names)))))
+    else:
+        cap = load(path, sample_rate=opts.get("sample_rate"))
+        m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"),
+                    force_pulse=opts.get("force_pulse", False))
     if opts.get("channels"):
         cap = cap.select(list(opts["channels"]))
     save_figure(measurement_svg(cap, m), plot, overwrite=False)

@@ -652,11 +652,15 @@ def is_long_file(path: str | os.PathLike[str], threshold: int | None = None) -> 
 def measure_long_file(path: str | os.PathLike[str], *, harmonics: int = 10,
                       channels: Any = None, force_pulse: bool = False, sample_rate: float | None = None,
                       block_frames: int | None = None, on_block: Callable[[int, int | None], None] | None = None,
-                      threshold: int | None = None) -> Measurement:
+                      threshold: int | None = None, map_block: Callable[[Any], Any] | None = None,
+                      on_first: Callable[[Any], None] | None = None, reason: str = "") -> Measurement:
     """Measure a capture file in blocks (:func:`measure_blocks` on a :class:`BlockReader`).
 
     ``block_frames`` defaults to :func:`benchfit.capture.blocks.block_frames` for the file's
-    channels; ``on_block(frames_done, frames_total)`` reports progress.
+    channels; ``on_block(frames_done, frames_total)`` reports progress. ``map_block`` turns every
+    block into the one measured (e.g. channels renamed); ``on_first`` gets the first (mapped)
+    block with the file's source, SHA-256 and metadata (what a report draws and fits);
+    ``reason`` is added to the note.
     """
     from benchfit.capture.blocks import BlockReader, block_frames as default_frames, block_threshold
     from benchfit.capture.load import file_sha256
@@ -671,6 +675,18 @@ def measure_long_file(path: str | os.PathLike[str], *, harmonics: int = 10,
             frames = max(1024, frames // 4)  # parsing text costs ~12 bytes a byte: shorter blocks
         digest = file_sha256(path)
         progress = None if on_block is None else (lambda done: on_block(done, total))
-        return measure_blocks(reader.blocks(frames), n_max=n_max, harmonics=harmonics, force_pulse=force_pulse,
+
+        def blocks() -> Iterable[Any]:
+            from dataclasses import replace
+
+            for i, block in enumerate(reader.blocks(frames)):
+                block = map_block(block) if map_block is not None else block
+                if i == 0 and on_first is not None:
+                    on_first(replace(block, source=str(path), sha256=digest,
+                                     metadata={**reader.metadata, "measured_in_blocks": True}))
+                yield block
+
+        return measure_blocks(blocks(), n_max=n_max, harmonics=harmonics, force_pulse=force_pulse,
                               source=str(path), sha256=digest, notes=lambda: reader.warnings, on_block=progress,
-                              reason=f" (the file holds more than {thr:,} samples, more than are measured at once)")
+                              reason=f" (the file holds more than {thr:,} samples, more than are measured at once"
+                                     f"{reason})")

@@ -45,3 +45,11 @@ def test_a_bad_threshold_is_one_line(wav, run, monkeypatch):
     assert res.returncode == 2
     line = res.stderr.strip()
     assert line.startswith("error: BENCHFIT_BLOCK_SAMPLES: 12 is below 1024 samples — ") and "\n" not in line
+
+
+def test_plot_of_a_long_file_draws_from_its_first_block(wav, run, monkeypatch, tmp_path):
+    monkeypatch.setenv("BENCHFIT_BLOCK_SAMPLES", "16384")
+    fig = tmp_path / "long.svg"
+    res = run("measure", str(wav), "--plot", str(fig))
+    assert res.returncode == 0, res.stderr
+    assert fig.stat().st_size > 1000 and "<svg" in fig.read_text()[:400]
