@@ -350,8 +350,8 @@ class BlockChannel:
                          lo_pct: float, hi_pct: float, vpp: float) -> ChannelMeasurement:
         from benchfit.measurement.budgets import channel_budgets
         from benchfit.measurement.levels import ClipReport
-        from benchfit.measurement.summary import (_DROOP_WARN_PCT, _LOW_SNR_DB, _clip_warning, _f, _fmt, _vrms_u,
-                                                  _with_gain)
+        from benchfit.measurement.summary import (_DROOP_WARN_PCT, _LOW_SNR_DB, _clip_warning, _f, _fmt,
+                                                  _snr_warning, _vrms_u, _with_gain)
 
         fs = self.fs
         opts = self.opts
@@ -512,13 +512,7 @@ class BlockChannel:
             snr = 10.0 * math.log10(sig / noise_p) if noise_p > 0 and sig > 0 else (math.inf if sig > 0 else -math.inf)
         if snr < _LOW_SNR_DB:
             snr_noise = self._snr_noise if self._snr_noise is not None else -math.inf
-            if snr_noise >= _LOW_SNR_DB:
-                warnings.append(f"harmonics above H = {int(orders.max())} carry most of what the fit leaves "
-                                f"(signal to residual {snr:.1f} dB; to noise alone {snr_noise:.0f} dB), so the "
-                                "uncertainties are wide — raise --harmonics for tighter ones")
-            else:
-                warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
-                                "raise the signal level or shorten the leads")
+            warnings.append(_snr_warning(snr, snr_noise, int(orders.max())))
         # the peak-to-peak's noise, on the record's strided samples as measure takes them
         xs = np.concatenate(self._strided)
         if two_level and pooled["low"] is not None and pooled["high"] is not None and pooled["noise"] is not None:
@@ -688,5 +682,16 @@ def measure_long_file(path: str | os.PathLike[str], *, harmonics: int = 10,
 
         return measure_blocks(blocks(), n_max=n_max, harmonics=harmonics, force_pulse=force_pulse,
                               source=str(path), sha256=digest, notes=lambda: reader.warnings, on_block=progress,
-                              reason=f" (the file holds more than {thr:,} samples, more than are measured at once"
-                                     f"{reason})")
+                              reason=_why(path, reader.kind, thr) + reason + ")")
+
+
+def _why(path: str | os.PathLike[str], kind: str, threshold: int) -> str:
+    """The note's reason: the file's sample count (or a text export's size) against the threshold."""
+    from benchfit.capture.blocks import estimated_samples
+
+    n = estimated_samples(path) or 0
+    if kind == "csv":
+        size = os.path.getsize(path) / 2 ** 20
+        return (f" (a text export of {size:.3g} MiB, up to {n:,} samples, more than the {threshold:,} "
+                "measured at once")
+    return f" (the file holds {n:,} samples, more than the {threshold:,} measured at once"

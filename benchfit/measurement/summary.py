@@ -255,14 +255,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         snr = dist.snr_fit_db
     if snr < _LOW_SNR_DB:
         # the fit's residual holds every harmonic above H too: on a square that is not noise
-        snr_noise = _snr_without_harmonics(x, fs, f, fit.orders)
-        if snr_noise >= _LOW_SNR_DB:
-            warnings.append(f"harmonics above H = {int(fit.orders.max())} carry most of what the fit leaves "
-                            f"(signal to residual {snr:.1f} dB; to noise alone {snr_noise:.0f} dB), so the "
-                            "uncertainties are wide — raise --harmonics for tighter ones")
-        else:
-            warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
-                            "raise the signal level or shorten the leads")
+        warnings.append(_snr_warning(snr, _snr_without_harmonics(x, fs, f, fit.orders), int(fit.orders.max())))
     h_eff = max_harmonic_order(f, fs, harmonics)
     if harmonics >= 2 and h_eff < 2:
         warnings.append(f"no harmonic lies below Nyquist ({_fmt(fs / 2, 'Hz')}) — THD not given")
@@ -372,6 +365,16 @@ def _snr_without_harmonics(x: np.ndarray, fs: float, f: float, orders: np.ndarra
     if noise <= 0:
         return math.inf
     return 10.0 * math.log10(sig / noise) if sig > 0 else -math.inf
+
+
+def _snr_warning(snr: float, snr_noise: float, h: int) -> str:
+    """The warning for a signal-to-residual ratio below 10 dB: harmonics above H, or real noise."""
+    if snr_noise >= _LOW_SNR_DB:
+        return (f"harmonics above H = {h} carry most of what the fit leaves (signal to residual {snr:.1f} dB; "
+                f"to noise alone {snr_noise:.0f} dB), so the uncertainties are wide — raise --harmonics for "
+                "tighter ones")
+    return (f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
+            "raise the signal level or shorten the leads")
 
 
 def _beyond_one_step(pct: float | None, x: np.ndarray, pulse: PulseResult) -> float | None:
