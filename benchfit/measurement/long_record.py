@@ -611,6 +611,14 @@ def measure_blocks(blocks: Iterable[Any], *, n_max: int, harmonics: int = 10, fo
     first = None
     fs = math.nan
     done = 0
+    held: tuple[int, np.ndarray] | None = None  # one block is held back: a short last piece joins it
+
+    def push(start: int, samples: np.ndarray) -> None:
+        for ch, x in zip(chans, samples):
+            ch.push(x, start)
+        if on_block is not None:
+            on_block(start + samples.shape[1])
+
     for block in blocks:
         if first is None:
             first = block
@@ -618,11 +626,17 @@ def measure_blocks(blocks: Iterable[Any], *, n_max: int, harmonics: int = 10, fo
             chans = [BlockChannel(fs, n_max, kw, harmonics=harmonics, force_pulse=force_pulse)
                      for kw in channel_options(block)]
         start = int(block.metadata.get("start_frame", round(block.t0 * fs)))
-        for ch, x in zip(chans, block.samples):
-            ch.push(x, start)
         done = start + block.n_samples
-        if on_block is not None:
-            on_block(done)
+        if held is not None and 2 * block.n_samples < held[1].shape[1]:
+            # shorter than half a block (the file's end): measured with the block before it, so a
+            # tail of less than a period is not counted as a block without a signal
+            held = (held[0], np.concatenate([held[1], block.samples], axis=1))
+            continue
+        if held is not None:
+            push(*held)
+        held = (start, block.samples)
+    if held is not None:
+        push(*held)
     if first is None:
         raise MeasureError(f"{source or 'input'}: no samples to measure — record or export it again")
     late = tuple(notes()) if notes is not None else ()

@@ -230,3 +230,15 @@ def test_a_long_csv_with_rounded_time_stamps_keeps_its_grid(tmp_path, monkeypatc
     w, b = whole.channels[0], blocks.channels[0]
     # the frequency scales with the rate: within the fit's u plus that bound
     assert abs(b.frequency_hz - w.frequency_hz) < w.extra["frequency_u_fit_hz"] + w.frequency_hz * rate_rel
+
+
+def test_a_short_last_piece_joins_the_block_before_it():
+    n, frames = 40_300, 4000  # the last 300 samples hold less than two periods
+    t = np.arange(n) / FS
+    x = 0.5 * np.cos(2 * math.pi * F0 * t) + np.random.default_rng(2).normal(0, 1e-3, n)
+    m = measure_blocks(_blocks(x[None, :], frames, names=("output",)), n_max=n, harmonics=3)
+    ch = m.channels[0]
+    assert ch.extra["blocks"] == 10 and not any("no periodic signal" in w for w in ch.warnings)
+    assert m.duration_s == pytest.approx(n / FS)
+    whole = measure(Capture(samples=x, sample_rate=FS, channel_names=("output",))).channels[0]
+    assert ch.vrms == pytest.approx(whole.vrms, rel=1e-12)  # the same whole periods of the same samples
