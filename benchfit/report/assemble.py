@@ -626,12 +626,15 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     if fit_opts is not None:
         fit_opts = _with_spec_fixes(fit_opts, sp)
     fit_fn, fit_kwargs = _fit_call(fit_opts) if fit_opts is not None else (None, {})
-    left, found = [], []
+    left: list[tuple[Any, Any]] = []
+    found: list[tuple[Any, Any]] = []
     for paths, group in ((captures, left), (as_found, found)):
         for p in paths:
             step(f"measuring {p}")
             group.append(_load_and_measure(p, channel_map or {}, sp))
-    fits_left, fits_found, fit_errors = [], [], []
+    fits_left: list[Any] = []
+    fits_found: list[Any] = []
+    fit_errors: list[str] = []
     if fit_fn is not None:
         for group, target in ((left, fits_left), (found, fits_found)):
             for capture, _ in group:
@@ -683,7 +686,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
                      measurements=meas, fits=fits, decisions=decisions, verdict=report["verdict"],
                      details={"spec": sp.path, "spec_name": sp.name, "html": str(html_path),
                               "json": str(json_path)})
-        if not defer_log:
+        if not defer_log and log_path is not None:
             run_id = append_run(log_path, **entry)
     return UnitRun(html_path=html_path, json_path=json_path, verdict=report["verdict"],
                    exit_code=report["exit_code"], run_id=run_id, log_entry=entry if defer_log else None)
