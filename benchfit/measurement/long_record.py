@@ -40,10 +40,11 @@ from typing import Any, Sequence
 import numpy as np
 
 from benchfit.errors import MeasureError
-from benchfit.measurement.chain import birge_factor, chain_points, fit_chained_line
+from benchfit.measurement.chain import chain_points, fit_chained_line
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
 from benchfit.measurement.drift import midpoint_phase
-from benchfit.measurement.levels import VPP_PERCENTILE, find_clipping, quantisation_step, vpp_noise_u, whole_period_span
+from benchfit.measurement.levels import find_clipping, quantisation_step, vpp_noise_u, whole_period_span
+from benchfit.measurement.pooling import ExactTails, pool_pulses, weighted_mean
 from benchfit.measurement.pulse import PulseResult, pulse_parameters, state_levels
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
 from benchfit.measurement.threads import one_blas_thread
@@ -53,26 +54,6 @@ __all__ = ["BlockChannel", "measure_blocks", "measure_long_file", "is_long_file"
 
 #: samples of the record kept (at a regular stride) for the peak-to-peak's noise model, as measure does
 _MODEL_SAMPLES = 1 << 16
-
-
-def _weighted(values: Sequence[float], us: Sequence[float | None], weights: Sequence[float]) -> tuple[float, float | None]:
-    """Weighted mean and its u: the stated u combined (Σw²u²)^½/Σw, widened by the Birge ratio
-    when the values scatter significantly more than their u say."""
-    v = np.asarray(values, dtype=np.float64)
-    w = np.asarray(weights, dtype=np.float64)
-    mean = float(np.sum(w * v) / np.sum(w))
-    uu = np.array([math.nan if u is None else float(u) for u in us])
-    if v.size == 0 or not np.all(np.isfinite(uu)):
-        if v.size >= 2:  # no stated u: the scatter alone
-            return mean, float(np.std(v, ddof=1) / math.sqrt(v.size))
-        return mean, None
-    u = float(math.sqrt(np.sum((w * uu) ** 2)) / np.sum(w))
-    if v.size >= 2 and np.all(uu > 0):
-        wi = 1.0 / uu ** 2
-        m_opt = float(np.sum(wi * v) / np.sum(wi))
-        chi2 = float(np.sum(wi * (v - m_opt) ** 2))
-        u *= birge_factor(chi2, v.size - 1)
-    return mean, u
 
 
 @dataclass
@@ -130,15 +111,13 @@ class BlockChannel:
         self.harmonics = max(1, int(harmonics))
         self.force_pulse = force_pulse
         self.n_max = max(int(n_max), 2)
-        self._k_tail = int(math.ceil(VPP_PERCENTILE / 100.0 * self.n_max)) + 3
         self._stride = max(1, -(-self.n_max // _MODEL_SAMPLES))
         self.n = 0
         self.n_blocks = 0
         self.block_frames = 0
         self._sums: list[tuple[int, int, float, float]] = []
         self._recent: deque[tuple[int, np.ndarray]] = deque(maxlen=2)
-        self._low = np.empty(0)
-        self._high = np.empty(0)
+        self._tails = ExactTails(self.n_max)
         self._strided: list[np.ndarray] = []
         self.vmin, self.vmax = math.inf, -math.inf
         self._crossings = 0
@@ -170,7 +149,7 @@ class BlockChannel:
         self._sums.append((start, n, float(np.sum(x)), float(x @ x)))
         self._recent.append((start, x))
         self.vmin, self.vmax = min(self.vmin, float(x.min())), max(self.vmax, float(x.max()))
-        self._tails(x)
+        self._tails.push(x)
         first = (-start) % self._stride
         self._strided.append(x[first::self._stride].copy())
         if self._q_step is None:
@@ -247,36 +226,7 @@ class BlockChannel:
             dc_u=float(fit.dc_u), rss=float(fit.rss), n_params=int(fit.n_params), thd=dist.thd, thd_u=dist.thd_u,
             rest_power=rest, iterations=int(fit.iterations), converged=bool(fit.converged), pulse=pulse))
 
-    def _tails(self, x: np.ndarray) -> None:
-        k = self._k_tail
-        lo = x if self._low.size < k else x[x < self._low.max()]
-        if lo.size:
-            both = np.concatenate([self._low, lo])
-            self._low = np.partition(both, k - 1)[:k] if both.size > k else both
-        hi = x if self._high.size < k else x[x > self._high.min()]
-        if hi.size:
-            both = np.concatenate([self._high, hi])
-            self._high = np.partition(both, both.size - k)[both.size - k:] if both.size > k else both
-
     # --- results ------------------------------------------------------------------------------
-    def _percentiles(self) -> tuple[float, float]:
-        """The whole record's 0.1th and 99.9th percentiles (numpy's linear rule) from the kept tails."""
-        n = self.n
-        low, high = np.sort(self._low), np.sort(self._high)
-        out = []
-        for p in (VPP_PERCENTILE, 100.0 - VPP_PERCENTILE):
-            pos = p / 100.0 * (n - 1)
-            i = int(math.floor(pos))
-            j = min(i + 1, n - 1)
-            frac = pos - i
-            if p < 50:
-                a, b = low[min(i, low.size - 1)], low[min(j, low.size - 1)]
-            else:
-                off = n - high.size
-                a, b = high[max(i - off, 0)], high[max(j - off, 0)]
-            out.append(float(a + frac * (b - a)))
-        return out[0], out[1]
-
     def _span_sums(self, span: int) -> tuple[float, float] | None:
         """Σx and Σx² over the first ``span`` samples (None when those samples are no longer held)."""
         s1 = s2 = 0.0
@@ -310,7 +260,7 @@ class BlockChannel:
         if self.n < 2:
             raise MeasureError("the record holds no samples — record or export it again")
         warnings = list(self.opts.get("extra_warnings", ())) + list(late_warnings) + [block_note]
-        lo_pct, hi_pct = self._percentiles()
+        lo_pct, hi_pct = self._tails.percentiles(self.n)
         vpp = hi_pct - lo_pct
         extra: dict[str, Any] = {"harmonics_h_requested": self.harmonics,
                                  "timebase_ppm": float(self.opts.get("timebase_ppm", 0.0)),
@@ -417,7 +367,7 @@ class BlockChannel:
         amps = np.abs(q_mean)
         amps_u = []
         for k in range(orders.size):
-            _, uk = _weighted(np.abs(qs[:, k]).tolist(), [float(b.amps_u[k]) for b in same], w.tolist())
+            _, uk = weighted_mean(np.abs(qs[:, k]).tolist(), [float(b.amps_u[k]) for b in same], w.tolist())
             amps_u.append(uk if uk is not None else math.nan)
         first = same[0]
         p1_rec = first.p1_start * np.exp(-2j * math.pi * f * first.start / fs)  # fundamental at the record start
@@ -427,7 +377,7 @@ class BlockChannel:
         rss = float(sum(b.rss for b in blocks))
         n_all = sum(b.n for b in blocks)
         dof = max(n_all - sum(b.n_params for b in blocks), 1)
-        _, dc_u = _weighted([0.0] * len(blocks), [b.dc_u for b in blocks], [b.n for b in blocks])
+        _, dc_u = weighted_mean([0.0] * len(blocks), [b.dc_u for b in blocks], [b.n for b in blocks])
         dc_u = float(dc_u or 0.0)
         h_eff = max_harmonic_order(f, fs, self.harmonics)
         thd = thd_u = None
@@ -435,7 +385,7 @@ class BlockChannel:
             thd = float(math.sqrt(float(np.sum(amps[1:] ** 2))) / amplitude)
             tb = [b for b in same if b.thd is not None]
             if tb:
-                _, thd_u = _weighted([float(b.thd or 0.0) for b in tb], [b.thd_u for b in tb], [b.n for b in tb])
+                _, thd_u = weighted_mean([float(b.thd or 0.0) for b in tb], [b.thd_u for b in tb], [b.n for b in tb])
         if self.harmonics >= 2 and h_eff < 2:
             warnings.append(f"no harmonic lies below Nyquist ({_fmt(fs / 2, 'Hz')}) — THD not given")
         rest = [b for b in blocks if math.isfinite(b.rest_power)]
@@ -448,47 +398,7 @@ class BlockChannel:
         pooled: dict[str, Any] = {}
         if two_level:
             pp = [b.pulse for b in pulses if b.pulse is not None]
-            pw = [max(p.n_periods, 1) for p in pp]
-
-            def pool(values: list[float | None], us: list[float | None]) -> tuple[float | None, float | None]:
-                pick = [(v, u, wt) for v, u, wt in zip(values, us, pw) if v is not None]
-                if not pick:
-                    return None, None
-                return _weighted([v for v, _, _ in pick], [u for _, u, _ in pick], [wt for _, _, wt in pick])
-
-            pooled["duty"] = pool([p.duty_cycle_pct for p in pp], [p.duty_cycle_u_pct for p in pp])
-            # an edge within 3 samples carries the grid's ±Ts/2 at its 10 % and 90 % instants in every
-            # block alike (pulse_parameters adds √2·Ts/√12): only the rest averages over the blocks
-            u_grid = math.sqrt(2.0) / (fs * math.sqrt(12.0))
-            for key, vals, us in (("rise", [p.rise_time_s for p in pp], [p.rise_time_u_s for p in pp]),
-                                  ("fall", [p.fall_time_s for p in pp], [p.fall_time_u_s for p in pp])):
-                sharp = [v is not None and v < 3.0 / fs for v in vals]
-                rand = [None if u is None else (math.sqrt(max(u * u - u_grid * u_grid, 0.0)) if sh else u)
-                        for u, sh in zip(us, sharp)]
-                value, u_pooled = pool(vals, rand)
-                if value is not None and value < 3.0 / fs:
-                    u_pooled = math.hypot(u_pooled or 0.0, u_grid)
-                pooled[key] = (value, u_pooled)
-            pooled["low"] = pool([p.state_low for p in pp], [None] * len(pp))[0]
-            pooled["high"] = pool([p.state_high for p in pp], [None] * len(pp))[0]
-            noise = [p.noise_rms for p in pp if p.noise_rms is not None]
-            pooled["noise"] = math.sqrt(float(np.mean(np.square(noise)))) if noise else None
-            pooled["period"] = pool([p.period_s for p in pp], [None] * len(pp))[0]
-            pooled["periods"] = int(sum(p.n_periods for p in pp))
-            pooled["tau"] = pool([p.coupling_tau_s for p in pp], [None] * len(pp))[0]
-            pooled["droop"] = pool([p.droop_pct for p in pp], [None] * len(pp))[0]
-            pooled["source"] = pp[0].coupling_source
-            q_step = self._q_step or 0.0
-            over: list[float] = []
-            under: list[float] = []
-            for p in pp:
-                amp_p = (p.state_high or 0.0) - (p.state_low or 0.0)
-                for pct, into in ((p.overshoot_pct, over), (p.undershoot_pct, under)):
-                    if pct is not None:
-                        into.append(0.0 if amp_p > 0 and q_step > 0 and pct * amp_p / 100 <= q_step * (1 + 1e-9)
-                                    else pct)
-            pooled["over"] = float(np.mean(over)) if over else None
-            pooled["under"] = float(np.mean(under)) if under else None
+            pooled = pool_pulses(pp, fs, self._q_step or 0.0)
             warnings.extend(pp[0].warnings)
             if pooled["source"] == "estimated" and (pooled["droop"] or 0.0) >= _DROOP_WARN_PCT:
                 warnings.append(
