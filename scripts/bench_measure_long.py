@@ -44,7 +44,10 @@ def write_hum_check(path: Path, seconds: float, seed: int = 2026, chunk: int = 1
 
     rng = np.random.default_rng(seed)
     n = int(round(seconds * FS))
-    with sf.SoundFile(str(path), "w", samplerate=FS, channels=2, subtype="PCM_16") as fh:
+    # a plain WAV's header counts at most 4 GiB of data (libsndfile then reads only 2^30 frames of a
+    # 10-hour file): RF64, the WAV with 64-bit sizes, beyond that
+    fmt = "RF64" if n * 2 * 2 >= 2 ** 32 else "WAV"
+    with sf.SoundFile(str(path), "w", samplerate=FS, channels=2, format=fmt, subtype="PCM_16") as fh:
         for start in range(0, n, chunk):
             m = min(chunk, n - start)
             k = np.arange(start, start + m, dtype=np.float64)
@@ -97,6 +100,10 @@ def main() -> None:
             for label, env in runs:
                 r = run_measure(path, env)
                 chans = r["result"]["channels"]
+                duration = r["result"]["duration_s"]
+                if abs(duration - hours * 3600.0) > 1.0:
+                    raise SystemExit(f"{path}: measured {duration:.1f} s of {hours * 3600:.0f} s — the file was not "
+                                     "read whole")
                 line = {"hours": hours, "path": label, "file_mib": size / 2 ** 20, "generate_s": t_gen,
                         "seconds": r["seconds"], "peak_gib": r["peak_gib"]}
                 for ch in chans:
