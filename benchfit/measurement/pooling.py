@@ -54,11 +54,12 @@ class ExactTails:
         lo = x if self._low.size < k else x[x < self._low.max()]
         if lo.size:
             both = np.concatenate([self._low, lo])
-            self._low = np.partition(both, k - 1)[:k] if both.size > k else both
+            # a copy: the slice of the partitioned array would keep all of it alive
+            self._low = np.partition(both, k - 1)[:k].copy() if both.size > k else both
         hi = x if self._high.size < k else x[x > self._high.min()]
         if hi.size:
             both = np.concatenate([self._high, hi])
-            self._high = np.partition(both, both.size - k)[both.size - k:] if both.size > k else both
+            self._high = np.partition(both, both.size - k)[both.size - k:].copy() if both.size > k else both
 
     def percentiles(self, n: int) -> tuple[float, float]:
         """The whole record's 0.1th and 99.9th percentiles (numpy's linear rule) from the kept tails."""
