@@ -34,7 +34,16 @@ from benchfit.capture.audiofile import AUDIO_SUFFIXES, sniff_audio
 from benchfit.capture.capture import Capture, InputCalibration
 from benchfit.errors import CaptureError
 
-__all__ = ["BlockReader"]
+__all__ = ["BlockReader", "BLOCK_THRESHOLD_SAMPLES", "block_threshold", "block_frames", "estimated_samples"]
+
+#: a file with more samples than this (frames × channels) is measured in blocks. 2^24 samples
+#: held whole cost about 0.4 GiB at the whole-file path's ~24 bytes a sample (measured: a 1-hour
+#: 48 kHz stereo WAV, 3.5·10^8 samples, took 7.8 GiB), so no file measured whole passes ~0.5 GiB
+BLOCK_THRESHOLD_SAMPLES = 1 << 24
+#: environment variable that lowers (or raises) the threshold, e.g. for tests
+THRESHOLD_ENV = "BENCHFIT_BLOCK_SAMPLES"
+#: a text export's bytes per sample, at least (a digit and a separator): bounds its sample count
+_CSV_MIN_BYTES_PER_SAMPLE = 2
 
 #: CSV rows read for the template (layout, units, time step) before the first block is cut
 _CSV_HEAD_ROWS = 4096
@@ -100,8 +109,9 @@ class BlockReader:
             raise CaptureError(f"{p}: the file is empty — record or export it again")
         self._keys = _channel_keys(channels)
         self._given_rate = sample_rate
-        self._sf = None
-        self._text = None
+        self._sf: Any = None
+        self._text: Any = None
+        self._n_frames: int | None = None
         self.warnings: list[str] = []
         self.kind = "audio" if (p.suffix.lower() in AUDIO_SUFFIXES or sniff_audio(head) is not None) else "csv"
         if self.kind == "audio":
@@ -140,6 +150,14 @@ class BlockReader:
     @property
     def n_frames(self) -> int | None:
         return self._n_frames
+
+    @property
+    def max_frames(self) -> int:
+        """An upper bound of the frames: the header's count (audio), or for a text export its size
+        over 2 bytes (each sample needs at least a digit and a separator)."""
+        if self._n_frames:
+            return int(self._n_frames)
+        return max(2, self.path.stat().st_size // _CSV_MIN_BYTES_PER_SAMPLE)
 
     def frames_for(self, seconds: float) -> int:
         """Whole frames in ``seconds`` at this file's rate (at least 2)."""
@@ -278,8 +296,54 @@ class BlockReader:
         head = read_csv(self.path, raw=raw, sample_rate=self._given_rate)
         self._csv_time_column = str(head.metadata.get("time_source", "")).startswith("time column")
         meta = dict(head.metadata)
-        return _Template(sample_rate=head.sample_rate, channel_names=head.channel_names, units=head.units,
+        rate = head.sample_rate
+        if self._csv_time_column:
+            rate = self._csv_end_rate(rate, head.t0, start)
+            meta["time_step_s"] = 1.0 / rate
+        return _Template(sample_rate=rate, channel_names=head.channel_names, units=head.units,
                          calibration=head.calibration, metadata=meta, warnings=head.warnings, t0=head.t0)
+
+    def _csv_end_rate(self, head_rate: float, t0: float, data_start: int) -> float:
+        """The time column's rate over the whole file: (rows before the last few) / (their time − t0).
+
+        The first rows' rate is good to the time stamps' rounding over a few thousand steps (a
+        column printed to 0.1 µs at 48 kHz gives ~10⁻⁶), which would put a sample of a long file
+        whole steps off the grid; the span of the whole file is as long as it gets. Counting the
+        rows costs one pass over the bytes (newlines only). Falls back to ``head_rate`` when the
+        tail cannot be read or does not agree within 0.1 %.
+        """
+        from benchfit.capture.csvfile import read_csv
+
+        if getattr(self._text, "encoding", "").lower().startswith("utf-16"):
+            return head_rate
+        try:
+            newlines = 0
+            with open(self.path, "rb") as fh:
+                for chunk in iter(lambda: fh.read(1 << 22), b""):
+                    newlines += chunk.count(b"\n")
+                size = fh.tell()
+                fh.seek(max(0, size - (1 << 16)))
+                tail = fh.read().decode(self._text.encoding, errors="replace")
+            ends_with_newline = tail.endswith("\n")
+            lines = tail.splitlines()
+            total_lines = newlines + (0 if ends_with_newline else 1)
+            blank_end = 0
+            while lines and not lines[-1].strip():
+                lines.pop()
+                blank_end += 1
+            rows = [ln for ln in lines[-16:] if ln.strip()]
+            if len(rows) < 2 or len(lines) < 17:
+                return head_rate
+            data_rows = total_lines - blank_end - data_start
+            first_tail = data_rows - len(rows)
+            cap = read_csv(self.path, raw=(self._csv_prefix + "\n".join(rows)).encode("utf-8"))
+        except (OSError, CaptureError, UnicodeError, LookupError):
+            return head_rate
+        span = cap.t0 - t0
+        if first_tail <= 0 or not span > 0:
+            return head_rate
+        rate = first_tail / span
+        return rate if abs(rate / head_rate - 1.0) < 1e-3 else head_rate
 
     def _csv_blocks(self, frames: int) -> Iterator[tuple[int, np.ndarray, float]]:
         from benchfit.capture.csvfile import read_csv
@@ -348,3 +412,51 @@ def _shift_line(message: str, offset: int) -> str:
     import re
 
     return re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}", message, count=1)
+
+
+def block_threshold() -> int:
+    """Samples (frames × channels) above which a file is measured in blocks: $BENCHFIT_BLOCK_SAMPLES
+    when it is set to a whole number ≥ 1024, else :data:`BLOCK_THRESHOLD_SAMPLES`."""
+    raw = os.environ.get(THRESHOLD_ENV, "").strip()
+    if raw:
+        try:
+            value = int(raw)
+        except ValueError:
+            raise CaptureError(f"{THRESHOLD_ENV}: {raw!r} is not a whole number of samples — unset it or give "
+                               "e.g. 16777216") from None
+        if value < 1024:
+            raise CaptureError(f"{THRESHOLD_ENV}: {value} is below 1024 samples — unset it or give e.g. 16777216")
+        return value
+    return BLOCK_THRESHOLD_SAMPLES
+
+
+def block_frames(channels: int, threshold: int | None = None) -> int:
+    """Frames in one block: an eighth of the threshold's samples shared by the channels (2^20 frames
+    of stereo at the default: 21.8 s at 48 kHz, 16 MiB of float64), at least 1024."""
+    thr = block_threshold() if threshold is None else threshold
+    return max(1024, thr // (8 * max(1, channels)))
+
+
+def estimated_samples(path: str | os.PathLike[str]) -> int | None:
+    """Samples (frames × channels) in a capture file without reading it: the audio header's count,
+    or for a text export its upper bound (size over 2 bytes a sample). None when it cannot be told
+    (missing file, unreadable header: the reader then gives its own error)."""
+    p = Path(path)
+    try:
+        size = p.stat().st_size
+        with open(p, "rb") as fh:
+            head = fh.read(64)
+    except OSError:
+        return None
+    if p.suffix.lower() in AUDIO_SUFFIXES or sniff_audio(head) is not None:
+        try:
+            import soundfile as sf
+
+            info = sf.info(str(p))
+        except Exception:  # noqa: BLE001 - any decoder failure: the reader reports it properly
+            return None
+        return int(info.frames) * int(info.channels)
+    # a text export costs its reader about 12 bytes of memory a byte of text (measured: 68 MiB of CSV,
+    # 0.86 GiB peak), so it is counted at its upper bound of samples (2 bytes each): held whole only
+    # below 2^25 bytes (32 MiB, about 0.4 GiB to read)
+    return size // _CSV_MIN_BYTES_PER_SAMPLE

@@ -205,7 +205,8 @@ def _guarded(index: int, path: Path, fn: Callable[..., Any], kwargs: Mapping[str
 
 def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harmonics: int = 10,
                 sample_rate: float | None = None, with_capture: bool = False,
-                force_pulse: bool = False, gain_u_rel: float | None = None) -> dict[str, Any]:
+                force_pulse: bool = False, gain_u_rel: float | None = None,
+                on_block: Any = None) -> dict[str, Any]:
     """Load one capture file and measure it (the job of ``benchfit measure``).
 
     Parameters
@@ -224,6 +225,10 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
         Duty cycle and edges even for a wave that is not two-level (``measure --pulse``).
     gain_u_rel : float, optional
         Gain uncertainty for levels in V whose calibration states none (``measure --gain-u``).
+    on_block : callable, optional
+        For a file measured in blocks (more samples than
+        :func:`benchfit.capture.blocks.block_threshold`): called as ``on_block(frames_done,
+        frames_total or None)`` after each block.
 
     Returns
     -------
@@ -232,6 +237,12 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
         ``capture`` holds ``path``, ``sha256``, ``unit`` (the sidecar's ``"unit"`` key or
         None) and ``metadata`` (the capture's metadata with its input calibration).
     """
+    from benchfit.measurement.long_record import is_long_file
+
+    if is_long_file(path):
+        return _measure_job_in_blocks(path, channels=channels, harmonics=harmonics, sample_rate=sample_rate,
+                                      with_capture=with_capture, force_pulse=force_pulse, on_block=on_block,
+                                      gain_u_rel=gain_u_rel)
     from benchfit.capture.load import load
     from benchfit.measurement.summary import measure
 
@@ -244,6 +255,28 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
         meta["calibration"] = cap.calibration.to_dict()
         unit = meta.get("unit")
         capture = {"path": cap.source, "sha256": cap.sha256, "metadata": meta,
+                   "unit": unit.strip() if isinstance(unit, str) and unit.strip() else None}
+    return {"measurement": result.to_dict(full=True), "capture": capture}
+
+
+def _measure_job_in_blocks(path: str | Path, *, channels: Sequence[str] | None, harmonics: int,
+                           sample_rate: float | None, with_capture: bool, force_pulse: bool,
+                           on_block: Any, gain_u_rel: float | None = None) -> dict[str, Any]:
+    """:func:`measure_job` for a file too long to hold: read and measured block by block."""
+    from benchfit.capture.blocks import BlockReader
+    from benchfit.measurement.long_record import measure_long_file
+
+    result = measure_long_file(path, harmonics=harmonics, channels=list(channels) if channels else None,
+                               force_pulse=force_pulse, sample_rate=sample_rate, on_block=on_block,
+                               gain_u_rel=gain_u_rel)
+    capture = None
+    if with_capture:
+        with BlockReader(path, sample_rate=sample_rate) as reader:
+            meta = dict(reader.metadata)
+            meta["calibration"] = reader.calibration.to_dict()
+        meta["measured_in_blocks"] = True
+        unit = meta.get("unit")
+        capture = {"path": str(path), "sha256": result.sha256, "metadata": meta,
                    "unit": unit.strip() if isinstance(unit, str) and unit.strip() else None}
     return {"measurement": result.to_dict(full=True), "capture": capture}
 
@@ -499,3 +532,27 @@ def progress_bar(label: str, total: int, notes: Sequence[str] = ()) -> Iterator[
         for note in notes:
             bar.say(f"note: {note}")
         yield bar
+
+@contextmanager
+def block_progress(path: str | Path) -> Iterator[Callable[[int, int | None], None] | None]:
+    """A rich progress bar on stderr (transient) for one file measured in blocks; yields the
+    ``on_block(frames_done, frames_total)`` callback for :func:`measure_job`, or None when the
+    file is measured whole. Drawn only when stderr is a terminal."""
+    from benchfit.measurement.long_record import is_long_file
+
+    if not is_long_file(path):
+        yield None
+        return
+    from rich.console import Console
+    from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn, TimeRemainingColumn
+
+    console = Console(stderr=True, highlight=False, soft_wrap=True)
+    with Progress(TextColumn("measuring in blocks"), BarColumn(), TaskProgressColumn(), TimeRemainingColumn(),
+                  TextColumn("{task.description}"), console=console, transient=True, redirect_stdout=False,
+                  redirect_stderr=False, disable=not console.is_terminal) as progress:
+        task = progress.add_task(Path(path).name, total=None)
+
+        def on_block(done: int, total: int | None) -> None:
+            progress.update(task, completed=done, total=total)
+
+        yield on_block

@@ -291,9 +291,20 @@ def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
     from benchfit.measurement.summary import measure
     from benchfit.report.figures import measurement_svg, save_figure
 
-    cap = load(path, sample_rate=opts.get("sample_rate"))
-    m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"),
-                force_pulse=opts.get("force_pulse", False), gain_u_rel=opts.get("gain_u_rel"))
+    from benchfit.measurement.long_record import is_long_file, measure_long_file
+
+    if is_long_file(path):  # in blocks; the figure's waveform is the first block's start
+        from benchfit.capture.blocks import BlockReader, block_frames
+
+        m = measure_long_file(path, harmonics=opts["harmonics"], channels=opts.get("channels"),
+                              force_pulse=opts.get("force_pulse", False), sample_rate=opts.get("sample_rate"),
+                              gain_u_rel=opts.get("gain_u_rel"))
+        with BlockReader(path, sample_rate=opts.get("sample_rate")) as reader:
+            cap = next(iter(reader.blocks(block_frames(len(reader.channel_names)))))
+    else:
+        cap = load(path, sample_rate=opts.get("sample_rate"))
+        m = measure(cap, harmonics=opts["harmonics"], channels=opts.get("channels"),
+                    force_pulse=opts.get("force_pulse", False), gain_u_rel=opts.get("gain_u_rel"))
     if opts.get("channels"):
         cap = cap.select(list(opts["channels"]))
     save_figure(measurement_svg(cap, m), plot, overwrite=False)
@@ -344,10 +355,11 @@ def _show_then_log(out: dict[str, Any], as_json: bool, log_path: Path | None) ->
 
 def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: Path | None) -> None:
     """One file, in this process: a failure is the command's one-line error (exit 2)."""
-    from benchfit.cli.batch import measure_job
+    from benchfit.cli.batch import block_progress, measure_job
     from benchfit.cli.common import stderr
 
-    out = measure_job(path, **opts)
+    with block_progress(path) as on_block:  # a long file is read in blocks, with a progress bar
+        out = measure_job(path, on_block=on_block, **opts)
     run_id = _show_then_log(out, as_json, log_path)
     if as_json and run_id is not None:
         stderr.print(f"logged as run {run_id} in {log_path}", markup=False, highlight=False)

@@ -149,6 +149,11 @@ class PulseResult:
     #: fewer than two whole periods
     edge_period_s: float | None = None
     edge_period_u_s: float | None = None
+    #: the edge line's centre (:func:`edge_line`): time of rising edge number ``edge_center_cycle``
+    #: (counted from the first rising instant) from the record's first sample, and its u (s)
+    edge_center_s: float | None = None
+    edge_center_u_s: float | None = None
+    edge_center_cycle: float | None = None
     n_rising: int = 0
     n_falling: int = 0
     noise_rms: float | None = None
@@ -446,14 +451,23 @@ def _mean_u(v: np.ndarray) -> tuple[float | None, float | None]:
 
 
 def edge_period(rising: np.ndarray, falling: np.ndarray) -> tuple[float, float] | None:
+    """(T, u(T)) of :func:`edge_line` (in samples), or None."""
+    line = edge_line(rising, falling)
+    return None if line is None else (line[0], line[1])
+
+
+def edge_line(rising: np.ndarray, falling: np.ndarray) -> tuple[float, float, float, float, float] | None:
     """Period from the 50 % instants of a two-level wave, with its standard uncertainty.
 
     Fits ``t = a_rise·[rising] + a_fall·[falling] + T·j`` by least squares, j being the cycle
     index of each instant: the IEEE 181 period (interval between same-polarity 50 % instants)
     estimated from every edge at once. The uncertainty comes from the residual scatter, so it
     includes edge jitter and the sampling grid's quantisation of sharp edges, which a harmonic
-    model of a square cannot see. Instants in samples; returns (T, u(T)) in samples, or None
-    with fewer than 2 rising and 2 falling instants (no residual degree of freedom).
+    model of a square cannot see. Instants in samples; returns (T, u(T), c, u(c), j_c) in
+    samples, or None with fewer than 2 rising and 2 falling instants (no residual degree of
+    freedom). ``c`` is the fitted time of rising edge number ``j_c`` (a fractional cycle index
+    counted from the first rising instant), chosen so that ``c`` and ``T`` are uncorrelated:
+    j_c = −cov(a_rise, T)/var(T). A long record measured in blocks chains these centres.
     """
     rising = np.asarray(rising, dtype=float)
     falling = np.asarray(falling, dtype=float)
@@ -470,7 +484,11 @@ def edge_period(rising: np.ndarray, falling: np.ndarray) -> tuple[float, float] 
     dof = t.size - 3
     s2 = float(resid @ resid) / dof
     cov = s2 * np.linalg.inv(d.T @ d)
-    return float(beta[2]), math.sqrt(max(float(cov[2, 2]), 0.0))
+    var_t = max(float(cov[2, 2]), 0.0)
+    j_c = -float(cov[0, 2]) / var_t if var_t > 0 else 0.5 * (rising.size - 1)
+    c = float(beta[0]) + float(beta[2]) * j_c
+    var_c = float(cov[0, 0]) + 2.0 * j_c * float(cov[0, 2]) + j_c * j_c * var_t
+    return float(beta[2]), math.sqrt(var_t), c, math.sqrt(max(var_c, 0.0)), j_c
 
 
 def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | None = None,
@@ -542,6 +560,7 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
         fall_u = math.hypot(fall_u or 0.0, u_grid)
     duty = duty_u = period = None
     edge_t = edge_u = None
+    centre: tuple[float | None, float | None, float | None] = (None, None, None)
     n_periods = 0
     if rise_idx.size and rise_idx[0] + 2 < e.t50.size:
         seq = e.t50[rise_idx[0]:]
@@ -555,9 +574,10 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
                 duty_u = 100.0 * float(np.std(high / per, ddof=1) / math.sqrt(n_periods))
             period = float(np.sum(per)) / n_periods / fs
         if n_periods >= 2:
-            ep = edge_period(r, f)
+            ep = edge_line(r, f)
             if ep is not None:
                 edge_t, edge_u = ep[0] / fs, ep[1] / fs
+                centre = (ep[2] / fs, ep[3] / fs, ep[4])
                 edges_s = [v for v in (rise, fall) if v is not None]
                 if edges_s and min(edges_s) < 2.0 / fs:
                     # Edges within two samples: each 50 % instant is quantised by up to ±Ts/2
@@ -586,7 +606,8 @@ def pulse_parameters(x: np.ndarray, sample_rate: float, coupling_tau_s: float | 
         two_level=True, state_low=s.low, state_high=s.high, duty_cycle_pct=duty,
         duty_cycle_u_pct=duty_u, rise_time_s=rise, rise_time_u_s=rise_u, fall_time_s=fall,
         fall_time_u_s=fall_u, overshoot_pct=over, undershoot_pct=under, period_s=period,
-        edge_period_s=edge_t, edge_period_u_s=edge_u, n_periods=int(n_periods), n_rising=int(rise_idx.size), n_falling=int(fall_idx.size),
+        edge_period_s=edge_t, edge_period_u_s=edge_u, edge_center_s=centre[0], edge_center_u_s=centre[1],
+        edge_center_cycle=centre[2], n_periods=int(n_periods), n_rising=int(rise_idx.size), n_falling=int(fall_idx.size),
         noise_rms=s.noise_rms, coupling_tau_s=tau, coupling_source=source, droop_pct=droop,
         warnings=tuple(warnings),
     )

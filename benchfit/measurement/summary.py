@@ -93,6 +93,18 @@ def _crosses_middle_twice(x: np.ndarray) -> bool:
     return bool(below[first_above:].any())
 
 
+def _middle_crossings(x: np.ndarray) -> int:
+    """How often the wave crosses its middle level, with the hysteresis of
+    :func:`_crosses_middle_twice` (the count, for the blocks of a long record, whose crossings add up)."""
+    lo, hi = _percentiles(x, 1.0, 99.0)
+    mid, band = 0.5 * (lo + hi), 0.25 * 0.5 * (hi - lo)
+    state = np.zeros(x.size, dtype=np.int8)
+    state[x > mid + band] = 1
+    state[x < mid - band] = -1
+    seen = state[state != 0]
+    return int(np.count_nonzero(np.diff(seen))) if seen.size else 0
+
+
 def _fmt(v: float, unit: str) -> str:
     from benchfit.units import format_quantity
 
@@ -289,14 +301,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
         snr = dist.snr_fit_db
     if snr < _LOW_SNR_DB:
         # the fit's residual holds every harmonic above H too: on a square that is not noise
-        snr_noise = _snr_without_harmonics(x, fs, f, fit.orders)
-        if snr_noise >= _LOW_SNR_DB:
-            warnings.append(f"harmonics above H = {int(fit.orders.max())} carry most of what the fit leaves "
-                            f"(signal to residual {snr:.1f} dB; to noise alone {snr_noise:.0f} dB), so the "
-                            "uncertainties are wide — raise --harmonics for tighter ones")
-        else:
-            warnings.append(f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
-                            "raise the signal level or shorten the leads")
+        warnings.append(_snr_warning(snr, _snr_without_harmonics(x, fs, f, fit.orders), int(fit.orders.max())))
     h_eff = max_harmonic_order(f, fs, harmonics)
     if harmonics >= 2 and h_eff < 2:
         warnings.append(f"no harmonic lies below Nyquist ({_fmt(fs / 2, 'Hz')}) — THD not given")
@@ -414,6 +419,16 @@ def _snr_without_harmonics(x: np.ndarray, fs: float, f: float, orders: np.ndarra
     return 10.0 * math.log10(sig / noise) if sig > 0 else -math.inf
 
 
+def _snr_warning(snr: float, snr_noise: float, h: int) -> str:
+    """The warning for a signal-to-residual ratio below 10 dB: harmonics above H, or real noise."""
+    if snr_noise >= _LOW_SNR_DB:
+        return (f"harmonics above H = {h} carry most of what the fit leaves (signal to residual {snr:.1f} dB; "
+                f"to noise alone {snr_noise:.0f} dB), so the uncertainties are wide — raise --harmonics for "
+                "tighter ones")
+    return (f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
+            "raise the signal level or shorten the leads")
+
+
 def _beyond_one_step(pct: float | None, q: float, pulse: PulseResult) -> float | None:
     """An overshoot (or undershoot) in %, or 0 when it is no more than one quantisation step.
 
@@ -507,29 +522,42 @@ def measure(capture_or_path: Capture | str | PathLike, *, harmonics: int | None 
     if isinstance(capture_or_path, Capture):
         cap = capture_or_path
     else:
+        from benchfit.measurement.long_record import is_long_file, measure_long_file
+
+        if is_long_file(capture_or_path):  # more samples than are held at once: in blocks
+            return measure_long_file(capture_or_path, harmonics=int(h), channels=channels, force_pulse=force_pulse,
+                                     gain_u_rel=gain_u_rel)
         from benchfit.capture.load import load
 
         cap = load(capture_or_path)
     if channels is not None and not (isinstance(channels, (list, tuple)) and not channels):
         cap = cap.select(channels)  # (an empty list measures every channel, as it always has)
+    results = [measure_channel(cap.samples[i], cap.sample_rate, harmonics=int(h), force_pulse=force_pulse, **kw)
+               for i, kw in enumerate(channel_options(cap, gain_u_rel=gain_u_rel))]
+    return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
+                       duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)
+
+
+def channel_options(cap: Capture, gain_u_rel: float | None = None) -> list[dict[str, Any]]:
+    """The keyword arguments of :func:`measure_channel` that each channel's calibration gives:
+    name, unit, timebase and gain with their sources, coupling, full scale, distortion floor and
+    the notes (the capture's warnings, stated defaults). ``gain_u_rel`` is the caller's stated gain
+    u (see :func:`measure`). Shared by the block measurement of long files."""
     from benchfit.uncertainty import DEFAULT_TIMEBASE_NOTE
 
     cal = cap.calibration
     tb_cal = cal.timebase_calibrated
     tb_source = (f"calibration profile {cal.profile or 'unnamed'}" if tb_cal else
                  "stated default for an uncalibrated crystal clock (common practice, no source)")
-    results = []
+    out = []
     for i, (name, unit) in enumerate(zip(cap.channel_names, cap.units)):
         g = gain_term(unit, i, gains=cal.gain_v_per_fs, gains_u=cal.gain_u_rel,
                       instrument_volts=cal.instrument_volts, profile=cal.profile, stated_u_rel=gain_u_rel)
         notes = tuple(cap.warnings) + ((DEFAULT_TIMEBASE_NOTE,) if not tb_cal else ()) + \
             ((g.note,) if g.note else ())
-        results.append(measure_channel(
-            cap.samples[i], cap.sample_rate, name=name, unit=unit, harmonics=int(h),
-            timebase_ppm=cal.timebase_ppm, timebase_u_ppm=cal.timebase_u_ppm_effective,
-            coupling_tau_s=cal.coupling_tau_s, full_scale=g.full_scale, gain_u_rel=g.u_rel,
-            extra_warnings=notes, timebase_calibrated=tb_cal, timebase_source=tb_source,
-            gain_source=g.source, gain_name=g.name, distortion_floor_pct=cal.distortion_floor_pct,
-            force_pulse=force_pulse))
-    return Measurement(file=cap.source or "", sample_rate_hz=float(cap.sample_rate),
-                       duration_s=float(cap.duration_s), channels=tuple(results), sha256=cap.sha256)
+        out.append({"name": name, "unit": unit, "timebase_ppm": cal.timebase_ppm,
+                    "timebase_u_ppm": cal.timebase_u_ppm_effective, "coupling_tau_s": cal.coupling_tau_s,
+                    "full_scale": g.full_scale, "gain_u_rel": g.u_rel, "extra_warnings": notes,
+                    "timebase_calibrated": tb_cal, "timebase_source": tb_source, "gain_source": g.source,
+                    "gain_name": g.name, "distortion_floor_pct": cal.distortion_floor_pct})
+    return out

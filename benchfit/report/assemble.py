@@ -534,6 +534,22 @@ def _map_channels(capture: Any, channel_map: Mapping[str, str]) -> Any:
     return replace(capture, channel_names=tuple(names))
 
 
+def _load_and_measure(path: str | Path, channel_map: Mapping[str, str], spec: Spec) -> tuple[Capture, Measurement]:
+    """(capture, measurement) of one file; a file too long to hold is measured in blocks, and its
+    first block (with the file's source and SHA-256) is the capture that is fitted and drawn."""
+    import benchfit
+    from benchfit.measurement.long_record import is_long_file, measure_long_file
+
+    if not is_long_file(path):
+        capture = _check_channels(_map_channels(benchfit.load(path), channel_map), spec)
+        return capture, benchfit.measure(capture)
+    first: list[Any] = []
+    m = measure_long_file(path, map_block=lambda b: _map_channels(b, channel_map),
+                          on_first=lambda b: first.append(_check_channels(b, spec)),
+                          reason="; the fit and the waveform figures use its first block")
+    return first[0], m
+
+
 def _check_channels(capture: Any, spec: Spec) -> Any:
     """Refuse a capture that lacks a channel the spec's measured limits are taken from."""
     channels = [{"name": n} for n in capture.channel_names]
@@ -604,7 +620,6 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     -------
     UnitRun
     """
-    import benchfit
     from benchfit.errors import BenchfitError
     from benchfit.report.html import render_html, write_report
 
@@ -621,8 +636,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     for paths, group in ((captures, left), (as_found, found)):
         for p in paths:
             step(f"measuring {p}")
-            capture = _check_channels(_map_channels(benchfit.load(p), channel_map or {}), sp)
-            group.append((capture, benchfit.measure(capture)))
+            group.append(_load_and_measure(p, channel_map or {}, sp))
     fits_left: list[FitResult] = []
     fits_found: list[FitResult] = []
     fit_errors: list[str] = []
@@ -678,8 +692,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
                      measurements=meas, fits=fits, decisions=decisions, verdict=report["verdict"],
                      details={"spec": sp.path, "spec_name": sp.name, "html": str(html_path),
                               "json": str(json_path)})
-        if not defer_log:
-            assert log_path is not None  # logging now needs the log
+        if not defer_log and log_path is not None:
             run_id = append_run(log_path, **entry)
     return UnitRun(html_path=html_path, json_path=json_path, verdict=report["verdict"],
                    exit_code=report["exit_code"], run_id=run_id, log_entry=entry if defer_log else None)
