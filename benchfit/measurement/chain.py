@@ -123,10 +123,18 @@ def fit_chained_line(x: np.ndarray, y: np.ndarray, y_u: np.ndarray, segment: np.
                      slopes: np.ndarray, slopes_u: np.ndarray) -> ChainedLine:
     """Weighted least squares: ``y_i = c_seg(i) + s·x_i`` (weights 1/u²) and ``slopes_i = s``.
 
-    Points or slopes with a non-finite or non-positive u are left out.
+    Points or slopes with a non-finite or negative u are left out; a u of exactly 0 (a block
+    without noise, e.g. a synthetic file) is taken as the rounding floor of the value, so such
+    points weigh equally and most.
     """
     x = np.asarray(x, dtype=np.float64)
     y = np.asarray(y, dtype=np.float64)
+    eps = np.finfo(np.float64).eps
+    y_u = np.asarray(y_u, dtype=np.float64)
+    slopes = np.asarray(slopes, dtype=np.float64)
+    slopes_u = np.asarray(slopes_u, dtype=np.float64)
+    y_u = np.where(y_u == 0, eps * np.maximum(np.abs(y), 1.0), y_u)
+    slopes_u = np.where(slopes_u == 0, eps * np.maximum(np.abs(slopes), 1.0), slopes_u)
     segs = np.unique(segment)
     n_seg = segs.size
     index = {int(s): j for j, s in enumerate(segs)}
