@@ -1,5 +1,5 @@
 """The quality gates run with the suite: ruff's rule set (pyproject [tool.ruff]) over the code and
-the tests, and mypy over the modules listed in pyproject [tool.mypy] files."""
+the tests, and mypy over the whole package (pyproject [tool.mypy] files)."""
 
 from __future__ import annotations
 

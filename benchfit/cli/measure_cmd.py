@@ -12,11 +12,14 @@ from __future__ import annotations
 import math
 import sys
 from pathlib import Path
-from typing import Any, List, Optional
+from typing import TYPE_CHECKING, Any, List, Optional
 
 import typer
 
 from benchfit.cli.app import app
+
+if TYPE_CHECKING:
+    from benchfit.log.store import LogTarget
 
 __all__ = ["measure_file", "measure_command", "render_channel_rows"]
 
@@ -311,7 +314,7 @@ def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
     (stderr if as_json else stdout).print(f"figure written to {plot}", markup=False, highlight=False)
 
 
-def _log_measurement(log_path: Path, out: dict[str, Any]) -> int:
+def _log_measurement(log_path: LogTarget, out: dict[str, Any]) -> int:
     """Append one measured file to the log as a ``measure`` run; returns the run id."""
     from benchfit.cli.logsafe import append_run_explained
 
@@ -322,7 +325,7 @@ def _log_measurement(log_path: Path, out: dict[str, Any]) -> int:
         measurements=[d], details={"file": d["file"]})
 
 
-def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: Path | None) -> None:
+def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: LogTarget | None) -> None:
     from benchfit.cli.common import print_json, stdout
 
     if as_json:
@@ -334,7 +337,7 @@ def _show(out: dict[str, Any], as_json: bool, run_id: int | None, log_path: Path
         stdout.print()
 
 
-def _show_then_log(out: dict[str, Any], as_json: bool, log_path: Path | None) -> int | None:
+def _show_then_log(out: dict[str, Any], as_json: bool, log_path: LogTarget | None) -> int | None:
     """Print a result, then log it: the log holds only what was shown (a broken pipe or a failed
     rendering logs nothing). Ctrl-C is held from the first printed line until the run is logged."""
     from benchfit.cli.common import stdout
@@ -353,7 +356,7 @@ def _show_then_log(out: dict[str, Any], as_json: bool, log_path: Path | None) ->
     return run_id
 
 
-def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: Path | None) -> None:
+def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: LogTarget | None) -> None:
     """One file, in this process: a failure is the command's one-line error (exit 2)."""
     from benchfit.cli.batch import block_progress, measure_job
     from benchfit.cli.common import stderr
@@ -366,7 +369,7 @@ def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: P
 
 
 def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as_json: bool,
-                   log_path: Path | None, jobs: int) -> None:
+                   log_path: LogTarget | None, jobs: int) -> None:
     """Many files in worker processes; results and error lines stream out as files finish."""
     from benchfit.cli.batch import measure_job, progress_bar, run_jobs
     from benchfit.cli.common import fail

@@ -112,6 +112,9 @@ def fit_row(u_fit: float, unit: str, chi2_red: float, dof: float) -> Contributio
 
 
 def _input_row(spec: InputSpec, sensitivity: float) -> Contribution:
+    """The Type B row of a fixed part with a stated tolerance (callers skip those without one)."""
+    if spec.u is None:
+        raise ValueError(f"{spec.label}: no stated uncertainty to propagate")
     return Contribution(spec.label, "B", spec.fixed.distribution, float(spec.u), spec.unit, float(sensitivity),
                         math.inf, spec.fixed.source)
 
