@@ -15,7 +15,10 @@ and every channel keeps a small accumulator (:class:`BlockChannel`). What each r
 * **levels** — exact: DC and RMS from sums and sums of squares over the whole periods of the
   whole record, vmin/vmax from the extremes, and the robust peak-to-peak from the exact 0.1th
   and 99.9th percentiles of all samples (each tail's smallest/largest ⌈0.001·N⌉ + 3 samples are
-  kept across blocks, so the order statistics are the whole record's);
+  kept across blocks, so the order statistics are the whole record's). Past
+  :data:`~benchfit.measurement.pooling.TAIL_CAP` samples a tail (about 1e9 samples a channel)
+  a fixed histogram takes their place, so memory does not grow with length; its percentiles lie
+  within one bin (a quarter-millionth of the range) and the bin enters the peak-to-peak's u;
 * **fundamental amplitude, harmonic table, THD** — coherent averages over the blocks: each
   block's harmonic phasors are referred to its own fundamental's phase
   (``Q_k = P_k·(P̄_1/|P_1|)^k``, which does not depend on where the block starts), averaged
@@ -44,7 +47,7 @@ from benchfit.measurement.chain import chain_points, fit_chained_line
 from benchfit.measurement.distortion import analyse_distortion, max_harmonic_order
 from benchfit.measurement.drift import midpoint_phase
 from benchfit.measurement.levels import find_clipping, quantisation_step, vpp_noise_u, whole_period_span
-from benchfit.measurement.pooling import ExactTails, pool_pulses, weighted_mean
+from benchfit.measurement.pooling import percentile_tails, pool_pulses, weighted_mean
 from benchfit.measurement.pulse import PulseResult, pulse_parameters, state_levels
 from benchfit.measurement.result import ChannelMeasurement, Harmonic, Measurement
 from benchfit.measurement.threads import one_blas_thread
@@ -117,7 +120,7 @@ class BlockChannel:
         self.block_frames = 0
         self._sums: list[tuple[int, int, float, float]] = []
         self._recent: deque[tuple[int, np.ndarray]] = deque(maxlen=2)
-        self._tails = ExactTails(self.n_max)
+        self._tails = percentile_tails(self.n_max)
         self._strided: list[np.ndarray] = []
         self.vmin, self.vmax = math.inf, -math.inf
         self._crossings = 0
@@ -431,8 +434,10 @@ class BlockChannel:
         else:
             model = synthesize(vdc, orders * f, amps, phases, xs.size, fs / self._stride)
             sigma = math.sqrt(rss / dof)
+        # a histogram's percentiles lie within one bin of the exact ones: each a rectangular
+        # half-width of half a bin (GUM 4.3.7), two of them in the difference
         vpp_u_noise = math.hypot(vpp_noise_u(model, sigma, lo_pct, hi_pct, n_total=self.n),
-                                 (self._q_step or 0.0) / math.sqrt(6.0))
+                                 (self._q_step or 0.0) / math.sqrt(6.0), self._tails.resolution / math.sqrt(6.0))
         vrms_u_noise = _vrms_u(vrms, rss / n_all, span)
         thd_u_pct = None if thd is None or thd_u is None else 100.0 * thd_u
         extra.update({

@@ -12,7 +12,13 @@ from benchfit.measurement.chain import birge_factor
 from benchfit.measurement.levels import VPP_PERCENTILE
 from benchfit.measurement.pulse import PulseResult
 
-__all__ = ["weighted_mean", "ExactTails", "pool_pulses"]
+__all__ = ["weighted_mean", "ExactTails", "HistogramTails", "percentile_tails", "TAIL_CAP", "pool_pulses"]
+
+#: samples kept per tail for exact percentiles; a longer record (more than about 1e9 samples a
+#: channel, ~6 h at 48 kHz) uses a fixed histogram instead, so memory does not grow with length
+TAIL_CAP = 2 ** 20
+#: bins of that histogram (2 MiB a channel): finer than a 16-bit code over the signal's range
+HISTOGRAM_BINS = 2 ** 18
 
 
 def weighted_mean(values: Sequence[float], us: Sequence[float | None], weights: Sequence[float]) -> tuple[float, float | None]:
@@ -60,6 +66,9 @@ class ExactTails:
         if hi.size:
             both = np.concatenate([self._high, hi])
             self._high = np.partition(both, both.size - k)[both.size - k:].copy() if both.size > k else both
+
+    #: the percentiles are exact (no resolution term in the peak-to-peak's u)
+    resolution = 0.0
 
     def percentiles(self, n: int) -> tuple[float, float]:
         """The whole record's 0.1th and 99.9th percentiles (numpy's linear rule) from the kept tails."""
@@ -125,3 +134,76 @@ def pool_pulses(pp: Sequence[PulseResult], fs: float, q_step: float) -> dict[str
     pooled["over"] = float(np.mean(over)) if over else None
     pooled["under"] = float(np.mean(under)) if under else None
     return pooled
+
+
+class HistogramTails:
+    """The 0.1th and 99.9th percentiles of a record too long to keep its tails, from a histogram
+    of fixed size (:data:`HISTOGRAM_BINS` bins), so memory stays the same for any length.
+
+    The bins span the first block's range widened by that range on each side; a later sample
+    outside doubles the span on its side and merges neighbouring bins in pairs, so the bin edges
+    stay aligned and no count is lost. A percentile is interpolated within its bin (numpy's
+    linear rule on the ranks, samples spread evenly in the bin) and lies within one bin width
+    (:attr:`resolution`) of the exact value.
+    """
+
+    def __init__(self, bins: int = HISTOGRAM_BINS) -> None:
+        if bins < 2 or bins % 2:
+            raise ValueError(f"bins: {bins!r} must be an even number ≥ 2")
+        self.bins = int(bins)
+        self.counts = np.zeros(self.bins, dtype=np.int64)
+        self.lo = math.nan
+        self.width = math.nan
+
+    @property
+    def resolution(self) -> float:
+        """The bin width: the percentiles' largest error."""
+        return 0.0 if not math.isfinite(self.width) else float(self.width)
+
+    def _grow(self, lo: float, hi: float) -> None:
+        """Double the span towards ``lo``/``hi`` until both lie inside, merging bins in pairs."""
+        while lo < self.lo or hi >= self.lo + self.bins * self.width:
+            pairs = self.counts.reshape(-1, 2).sum(axis=1)
+            merged = np.zeros(self.bins, dtype=np.int64)
+            if lo < self.lo:  # the old span becomes the upper half
+                merged[self.bins // 2:] = pairs
+                self.lo -= self.bins * self.width
+            else:             # the old span becomes the lower half
+                merged[: self.bins // 2] = pairs
+            self.counts = merged
+            self.width *= 2.0
+
+    def push(self, x: np.ndarray) -> None:
+        """Count the samples of ``x``."""
+        x = np.asarray(x, dtype=np.float64)
+        if x.size == 0:
+            return
+        lo, hi = float(x.min()), float(x.max())
+        if not math.isfinite(self.lo):
+            span = max(hi - lo, abs(hi) * 1e-9, 1e-300)
+            self.lo = lo - span
+            self.width = 3.0 * span / self.bins
+        self._grow(lo, hi)
+        idx = np.floor((x - self.lo) / self.width).astype(np.int64)
+        np.clip(idx, 0, self.bins - 1, out=idx)
+        self.counts += np.bincount(idx, minlength=self.bins)
+
+    def percentiles(self, n: int) -> tuple[float, float]:
+        """The record's 0.1th and 99.9th percentiles, each within :attr:`resolution`."""
+        cum = np.cumsum(self.counts)
+        total = int(cum[-1])
+        out = []
+        for p in (VPP_PERCENTILE, 100.0 - VPP_PERCENTILE):
+            pos = p / 100.0 * (total - 1)  # 0-based rank, numpy's linear rule
+            b = int(np.searchsorted(cum, pos, side="right"))
+            before = int(cum[b - 1]) if b > 0 else 0
+            inside = max(int(self.counts[b]), 1)
+            out.append(float(self.lo + (b + (pos - before + 0.5) / inside) * self.width))
+        return out[0], out[1]
+
+
+def percentile_tails(n_max: int, cap: int | None = None) -> ExactTails | HistogramTails:
+    """Exact tails when they hold at most ``cap`` (default :data:`TAIL_CAP`) samples each, else a
+    fixed histogram."""
+    exact = ExactTails(n_max)
+    return exact if exact.k <= (TAIL_CAP if cap is None else cap) else HistogramTails()
