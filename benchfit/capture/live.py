@@ -74,6 +74,17 @@ __all__ = [
 
 SampleFormat = Literal["pcm24", "float"]
 _SUBTYPES: dict[str, str] = {"pcm24": "PCM_24", "float": "FLOAT"}
+_BYTES_PER_SAMPLE: dict[str, int] = {"pcm24": 3, "float": 4}
+#: a plain WAV's chunk sizes are 32-bit: past this many data bytes (4 GiB less a margin for the
+#: header) libsndfile reads such a file back as only part of its length, so longer recordings
+#: are written as RF64 (EBU Tech 3306), the 64-bit WAV that the readers here open the same way
+_WAV_DATA_LIMIT = 2 ** 32 - 2 ** 20
+
+
+def wav_container(frames: int, channels: int, sample_format: str) -> str:
+    """"WAV", or "RF64" when ``frames`` of ``channels`` would pass a plain WAV's 4 GiB limit."""
+    size = int(frames) * int(channels) * _BYTES_PER_SAMPLE[sample_format]
+    return "RF64" if size > _WAV_DATA_LIMIT else "WAV"
 
 #: no block for this long (s) after the stream started means the device is stuck
 _STALL_S = 5.0
@@ -418,7 +429,8 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
             raise CaptureError(f"{out}: cannot be created ({e.strerror or e}) — check the folder is writable") from e
     try:
         sf_file = sf.SoundFile(str(out), mode="w", samplerate=int(rate), channels=channels,
-                               subtype=_SUBTYPES[sample_format], format="WAV")
+                               subtype=_SUBTYPES[sample_format],
+                               format=wav_container(total, channels, sample_format))
     except (sf.LibsndfileError, RuntimeError, OSError) as e:
         if not overwrite:
             with contextlib.suppress(OSError):
