@@ -6,7 +6,9 @@ allantools load inside the command.
 
 from __future__ import annotations
 
+import io
 import math
+import os
 import sys
 import time
 from pathlib import Path
@@ -84,6 +86,20 @@ class _Readout:
         self.interval_s = interval_s
         self.last = 0.0
         self.wrote = False
+        # the readout's own handle on stderr: while the recorder opens or closes the sound device
+        # it points file descriptor 2 at a scratch file (to hide the C libraries' chatter), and a
+        # line the analysis thread wrote through sys.stderr in that moment went there instead
+        self.out: Any = sys.stderr
+        self._own = False
+        if self.enabled:
+            try:
+                fd = os.dup(sys.stderr.fileno())
+            except (AttributeError, OSError, ValueError, io.UnsupportedOperation):
+                pass  # no real file behind sys.stderr (a test runner's buffer): write to it directly
+            else:
+                self.out = os.fdopen(fd, "w", buffering=1, encoding=getattr(sys.stderr, "encoding", None) or "utf-8",
+                                     errors="replace")
+                self._own = True
 
     def __call__(self, reading) -> None:
         if not self.enabled:
@@ -95,16 +111,20 @@ class _Readout:
                                          (reading.index + 1) * self.interval_s < self.total_s - 1e-9):
                 return
             self.last = now
-            sys.stderr.write("\r\x1b[2K" + line)
+            self.out.write("\r\x1b[2K" + line)
             self.wrote = True
         else:
-            sys.stderr.write(line + "\n")
-        sys.stderr.flush()
+            self.out.write(line + "\n")
+        self.out.flush()
 
     def close(self) -> None:
         if self.wrote:
-            sys.stderr.write("\n")
-            sys.stderr.flush()
+            self.out.write("\n")
+            self.out.flush()
+        if self._own:
+            self._own = False
+            self.out.close()
+            self.out = sys.stderr
 
 
 def _value(v: float | None, u: float | None, unit: str, digits: int = 4) -> str:

@@ -51,7 +51,7 @@ def test_twenty_seconds_kept_and_logged(rig, tmp_path):
     assert d["n_intervals"] == 20 and len(d["series"]) == 20
     assert d["kept"] == str(keep) and d["unit"] == "HC-10"
     # the live readout: one line per interval on stderr when it is not a terminal
-    assert len([ln for ln in r.stderr.splitlines() if ln.startswith("#")]) == 20
+    assert len([ln for ln in r.stderr.splitlines() if ln.startswith("#")]) == 20, r.stderr
     freqs = [row["frequency_hz"] for row in d["series"] if row["frequency_hz"] is not None]
     assert len(freqs) >= 15
     # one clock for player and recorder: the tone's 50 Hz to well within 1 mHz (fit noise ~µHz)
