@@ -32,6 +32,7 @@ import numpy as np
 
 from benchfit.capture.audiofile import AUDIO_SUFFIXES, sniff_audio
 from benchfit.capture.capture import Capture, InputCalibration
+from benchfit.capture.load import file_head
 from benchfit.errors import CaptureError
 
 __all__ = ["BlockReader", "BLOCK_THRESHOLD_SAMPLES", "block_threshold", "block_frames", "estimated_samples"]
@@ -95,18 +96,7 @@ class BlockReader:
         p = Path(path)
         self.path = p
         self.where = str(p)
-        if not p.exists():
-            raise CaptureError(f"{p}: no such file — check the path and the spelling")
-        if p.is_dir():
-            raise CaptureError(f"{p}: is a folder, not a capture file — give a WAV, FLAC or CSV file")
-        try:
-            size = p.stat().st_size
-            with open(p, "rb") as fh:
-                head = fh.read(64)
-        except OSError as e:
-            raise CaptureError(f"{p}: cannot read the file ({e.strerror or e}) — check its permissions") from e
-        if size == 0:
-            raise CaptureError(f"{p}: the file is empty — record or export it again")
+        head = file_head(p)
         self._keys = _channel_keys(channels)
         self._given_rate = sample_rate
         self._sf: Any = None

@@ -33,6 +33,25 @@ def file_sha256(path: str | os.PathLike[str]) -> str:
     return digest.hexdigest()
 
 
+
+def file_head(p: Path) -> bytes:
+    """The first 64 bytes of a capture file (to tell its format), after the one-line errors for a
+    missing path, a folder, an unreadable file and an empty one. Shared by :func:`load` and
+    :class:`benchfit.capture.blocks.BlockReader`."""
+    if not p.exists():
+        raise CaptureError(f"{p}: no such file — check the path and the spelling")
+    if p.is_dir():
+        raise CaptureError(f"{p}: is a folder, not a capture file — give a WAV, FLAC, OGG or CSV file")
+    try:
+        size = p.stat().st_size
+        with open(p, "rb") as fh:
+            head = fh.read(64)
+    except OSError as e:
+        raise CaptureError(f"{p}: cannot read the file ({e.strerror or e}) — check its permissions") from e
+    if size == 0:
+        raise CaptureError(f"{p}: the file is empty — record or export it again")
+    return head
+
 def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None,
          channels: ChannelSpec | None = None) -> Capture:
     """Read a capture file (WAV, FLAC, OGG or CSV export) into a :class:`Capture`.
@@ -82,19 +101,11 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None
         if not (rate > 0 and rate < float("inf")):
             raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — e.g. 48000")
         sample_rate = rate
-    if not p.exists():
-        raise CaptureError(f"{where}: no such file — check the path and the spelling")
-    if p.is_dir():
-        raise CaptureError(f"{where}: is a folder, not a capture file — give a WAV, FLAC, OGG or CSV file")
+    head = file_head(p)
     try:
-        size = p.stat().st_size
-        with open(p, "rb") as fh:
-            head = fh.read(64)
         digest = file_sha256(p)
     except OSError as e:
         raise CaptureError(f"{where}: cannot read the file ({e.strerror or e}) — check its permissions") from e
-    if size == 0:
-        raise CaptureError(f"{where}: the file is empty — record or export it again")
 
     suffix = p.suffix.lower()
     kind = sniff_audio(head)
