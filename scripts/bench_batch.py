@@ -18,6 +18,11 @@ prints them as a table. Measured:
   with the BLAS library's default of one thread per CPU. The goal is judged against the
   first, the faster and fair one (multi-threaded BLAS on these small matrices is slower,
   and much slower when other processes load the machine).
+* The machine's bound for two processes: two fresh interpreters at once, each measuring
+  every other file in one process; ``jobs 1`` over the longer of the two. A pool cannot beat
+  it (its workers pay the same imports and share the same two cores, caches and memory);
+  on the development VM it came out 1.44–1.71× over three runs of this script, and the
+  pool 1.31–1.46× in the same runs (it also waits for the fork server's interpreter start).
 * Pool start-up by start method: the wall time of a two-worker ``run_jobs`` over two files,
   in a fresh interpreter, for ``forkserver`` (with the measurement modules preloaded in
   the server) and ``spawn``.
@@ -47,6 +52,9 @@ folder, jobs, method, limit = sys.argv[1], int(sys.argv[2]), sys.argv[3], int(sy
 if sys.argv[5] in ("cli", "cli-load"):
     prefer_one_blas_thread()  # what `benchfit measure` does before numpy loads
 files = sorted(Path(folder).glob("*.wav"))[:limit]
+if len(sys.argv) > 6:  # "k/n": every n-th file from the k-th (one of n independent processes)
+    k, n = map(int, sys.argv[6].split("/"))
+    files = files[k::n]
 t0 = time.perf_counter()
 outcomes = run_jobs(measure_job, files, jobs=jobs, start_method=method, adapt_to_load=sys.argv[5] == "cli-load")
 elapsed = time.perf_counter() - t0
@@ -81,6 +89,24 @@ def _timed(folder: Path, jobs: int, method: str = "forkserver", limit: int = N_F
     "installed" leaves the library's default (one thread per CPU)."""
     res = subprocess.run([sys.executable, "-c", _CHILD, str(folder), str(jobs), method, str(limit), blas],
                          capture_output=True, text=True, timeout=900, check=False)
+    return _result(res)
+
+
+def _halves(folder: Path) -> float:
+    """The machine's own bound for two processes: two fresh interpreters started together, each
+    measuring every other file in one process (each pays its imports, nothing is handed over);
+    the longer of their ``run_jobs`` times (timed as in :func:`_timed`)."""
+    procs = [subprocess.Popen([sys.executable, "-c", _CHILD, str(folder), "1", "forkserver", str(N_FILES), "cli",
+                               f"{k}/2"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+             for k in range(2)]
+    seconds = []
+    for proc in procs:
+        out, err = proc.communicate(timeout=900)
+        seconds.append(_result(subprocess.CompletedProcess(proc.args, proc.returncode, out, err))["seconds"])
+    return max(seconds)
+
+
+def _result(res: subprocess.CompletedProcess) -> dict:
     if res.returncode != 0:
         raise RuntimeError(f"batch child failed: {res.stderr.strip().splitlines()[-1:]}")
     out = json.loads(res.stdout)
@@ -95,7 +121,7 @@ def run(repeats: int = 3) -> list[dict]:
         folder = Path(tmp)
         write_captures(folder)
         one, one_st, two, two_cli, ratios, ratios_cli, loads = [], [], [], [], [], [], []
-        per_file, per_file_pool = [], []
+        per_file, per_file_pool, bound = [], [], []
         for _ in range(repeats):
             loads.append(os.getloadavg()[0])
             a = _timed(folder, 1, blas="installed")
@@ -110,6 +136,7 @@ def run(repeats: int = 3) -> list[dict]:
             ratios_cli.append(a1["seconds"] / c["seconds"])
             per_file.append(a1["worker_seconds"] / a1["n"])
             per_file_pool.append(b["worker_seconds"] / b["n"])
+            bound.append(a1["seconds"] / _halves(folder))
         starts = {m: statistics.median(_timed(folder, 2, m, limit=2)["seconds"] for _ in range(repeats))
                   for m in ("forkserver", "spawn")}
     t1, t1s, t2 = statistics.median(one), statistics.median(one_st), statistics.median(two)
@@ -124,6 +151,8 @@ def run(repeats: int = 3) -> list[dict]:
         {"name": "speed-up jobs 2 / jobs 1, BLAS default", "value": t1 / t2, "unit": "×", "goal": "—"},
         {"name": "speed-up jobs 2 / jobs 1, 1 BLAS thread (median of repeats)", "value": statistics.median(ratios),
          "unit": "×", "goal": "≥ 1.7 idle"},
+        {"name": "bound: jobs 1 / two independent processes on half each (median)",
+         "value": statistics.median(bound), "unit": "×", "goal": "—"},
         {"name": f"{N_FILES} captures, jobs 2 with the load rule (as measure --jobs 2)",
          "value": statistics.median(two_cli), "unit": "s", "goal": "—"},
         {"name": "speed-up of that over jobs 1 (median of repeats)", "value": statistics.median(ratios_cli),
