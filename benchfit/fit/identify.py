@@ -74,13 +74,18 @@ class Identification:
 
 def numeric_jacobian(fun: Callable[[np.ndarray], np.ndarray], x: np.ndarray,
                      step: float = 1e-6) -> np.ndarray:
-    """Central-difference Jacobian of ``fun`` at ``x`` (columns = parameters)."""
+    """Central-difference Jacobian of ``fun`` at ``x`` (columns = parameters).
+
+    An output that comes out the same on both sides has derivative 0, also where it is
+    infinite (a load held at "no load", Rload = ∞, does not move with the fitted parts).
+    """
     x = np.asarray(x, dtype=float)
     cols = []
     for i in range(x.size):
         dx = np.zeros_like(x)
         dx[i] = step
-        cols.append((fun(x + dx) - fun(x - dx)) / (2 * step))
+        hi, lo = np.asarray(fun(x + dx), dtype=float), np.asarray(fun(x - dx), dtype=float)
+        cols.append(np.subtract(hi, lo, out=np.zeros_like(hi), where=hi != lo) / (2 * step))
     return np.stack(cols, axis=1) if cols else np.zeros((fun(x).size, 0))
 
 

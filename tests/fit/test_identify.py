@@ -9,6 +9,7 @@ reported as determined, which warnings appear), not about accuracy against an ou
 from __future__ import annotations
 
 import json
+import math
 
 import numpy as np
 import pytest
@@ -232,3 +233,17 @@ def test_scale_from_known_resistances():
     # 2 mV noise: both within 0.5 % (stderr about 0.02 %)
     assert r.parameters["L"].value == pytest.approx(0.3, rel=5e-3)
     assert r.parameters["C"].value == pytest.approx(33e-6, rel=5e-3)
+
+
+def test_numeric_jacobian_of_an_output_held_at_infinity_is_zero():
+    # a part held at "no load" (Rload = ∞) is an output that does not move with the fitted
+    # parameters: its derivative is 0, not ∞ − ∞ (central differences, exact for a linear term)
+    import warnings
+
+    from benchfit.fit.identify import numeric_jacobian
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        jac = numeric_jacobian(lambda x: np.array([3.0 * x[0] - x[1], math.inf, -math.inf]), np.array([1.0, 2.0]))
+    assert jac[0] == pytest.approx([3.0, -1.0], rel=1e-6)
+    assert np.array_equal(jac[1:], np.zeros((2, 2)))
