@@ -34,6 +34,22 @@ def test_fit_result_repr_html_and_dataframe():
     assert "not determined" in html and "fixed" in html and "<li>" in html
     df = r.to_dataframe()
     assert df.loc["C", "stderr"] == 1e-8 and bool(df.loc["L", "fixed"])
+    assert df.loc["resonant_frequency_hz", "unit"] == "Hz" and "50.5 Hz" in html
+
+
+def test_every_derived_value_carries_its_unit_into_the_log():
+    from benchfit.fit.result import DERIVED_UNITS, DerivedValue, FitQuality, FitResult
+    from benchfit.log.records import _fit_rows
+
+    names = ("resonant_frequency_hz", "natural_frequency_hz", "damped_frequency_hz", "decay_rate_per_s",
+             "q_factor", "series_loss_ohm", "total_loss_ohm")
+    assert set(names) == set(DERIVED_UNITS)
+    r = FitResult(file="x.wav", model="lc-lowpass", method="one-channel", parameters={},
+                  derived={n: DerivedValue(1.0, 0.1) for n in names}, correlations={},
+                  quality=FitQuality(0.01, 0.999, 60), warnings=())
+    units = {row["quantity"]: row["unit"] for row in _fit_rows(r.to_dict(), "fit")}
+    assert units == {"resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
+                     "decay_rate_per_s": "1/s", "q_factor": "", "series_loss_ohm": "ohm", "total_loss_ohm": "ohm"}
 
 
 def test_capture_repr_html_escapes_names():

@@ -16,7 +16,7 @@ from benchfit.fit.common import parts_of, source_name
 from benchfit.fit.identify import (DERIVED_NAMES, Identification, ambiguity, correlations, derived_values,
                                    display_unit, numeric_jacobian, parameter_table, undetermined_warning)
 from benchfit.fit.propagate import InputSpec, derived_budget, input_sensitivities, part_budget, total_log_covariance
-from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult, Method
+from benchfit.fit.result import DERIVED_UNITS, PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult, Method
 from benchfit.fit.tolerance import FixedValue
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
 from benchfit.uncertainty import (DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL, DEFAULT_CHANNEL_RATIO_NOTE, Budget,
@@ -204,15 +204,12 @@ def _derived_budgets(values, derived, ident, specs, sens, dof):
             out[name] = dv
             continue
         g = grad[:, :][i] if grad.size else np.zeros(0)
-        unit = _DERIVED_UNITS.get(name, "")
+        unit = DERIVED_UNITS.get(name, "")
         b = derived_budget(name, float(base[i]), unit, dv.stderr, g, {k: float(v[i]) for k, v in direct.items()},
                            ident, specs, sens, dof)
         out[name] = DerivedValue(dv.value, b.u, dv.stderr, b, b.conditional_on)
     return out
 
-
-_DERIVED_UNITS = {"resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "q_factor": "1",
-                  "damped_frequency_hz": "Hz", "decay_rate_per_s": "1/s", "series_loss_ohm": "ohm"}
 
 
 def _series_loss(values, ident, cov_local, specs, sens, dof) -> DerivedValue:

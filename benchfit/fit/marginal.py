@@ -239,8 +239,6 @@ def _weights(rows) -> np.ndarray:
     return w / w.sum()
 
 
-_UNITS = {"resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "q_factor": "1", "damped_frequency_hz": "Hz",
-          "decay_rate_per_s": "1/s", "total_loss_ohm": "ohm"}
 #: a part (or figure) whose marginal standard uncertainty exceeds this fraction of its value is not
 #: determined: the same 50 % limit as the identifiability analysis (fit.identify._SIGMA_LIMIT)
 _REL_LIMIT = 0.5
@@ -270,7 +268,7 @@ def apply(result, marg: Marginal):
     from dataclasses import replace
 
     from benchfit.fit.identify import display_unit
-    from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitParameter
+    from benchfit.fit.result import DERIVED_UNITS, PARAMETER_UNITS, DerivedValue, FitParameter
     from benchfit.units import format_quantity
 
     handled = {q.name for q in marg.nuisances} | set(marg.mean)
@@ -319,7 +317,7 @@ def apply(result, marg: Marginal):
     for name in FIGURE_NAMES:
         value = marg.mean[name]
         base = derived.get(name)
-        b = _budget(name, value, _UNITS[name], marg, None if base is None else base.budget, label)
+        b = _budget(name, value, DERIVED_UNITS[name], marg, None if base is None else base.budget, label)
         if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
             derived[name] = DerivedValue(float(value), None, None, b)
         else:

@@ -16,7 +16,7 @@ from typing import Any, Literal, Mapping
 import numpy as np
 
 __all__ = ["FitParameter", "DerivedValue", "FitQuality", "FitCurves", "FitResult",
-           "PARAMETER_UNITS", "Method"]
+           "PARAMETER_UNITS", "DERIVED_UNITS", "Method"]
 
 Method = Literal["two-channel", "one-channel", "ringdown"]
 
@@ -68,6 +68,13 @@ class FitParameter:
                 "fixed": bool(self.fixed), "unit": self.unit,
                 "u_fit": _num(self.u_fit), "budget": _budget_dict(self.budget),
                 "conditional_on": list(self.conditional_on)}
+
+
+#: the unit of every derived value a fit reports (the JSON contract's spelling: "ohm", "1" for
+#: a ratio); the budgets, the DataFrame and the measurement log take units from here
+DERIVED_UNITS: Mapping[str, str] = MappingProxyType({
+    "resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
+    "decay_rate_per_s": "1/s", "q_factor": "1", "series_loss_ohm": "ohm", "total_loss_ohm": "ohm"})
 
 
 @dataclass(frozen=True)
@@ -194,7 +201,7 @@ class FitResult:
 
         rows = [{"name": k, "value": p.value, "stderr": p.stderr, "unit": p.unit, "fixed": p.fixed}
                 for k, p in self.parameters.items()]
-        rows += [{"name": k, "value": v.value, "stderr": v.stderr, "unit": "", "fixed": False}
+        rows += [{"name": k, "value": v.value, "stderr": v.stderr, "unit": DERIVED_UNITS.get(k, ""), "fixed": False}
                  for k, v in self.derived.items()]
         return pd.DataFrame(rows).set_index("name")
 
@@ -207,7 +214,8 @@ class FitResult:
         for k, v in self.derived.items():
             val = "—" if v.value is None else f"{v.value:.6g}"
             err = "" if v.stderr is None else f"± {v.stderr:.3g}"
-            rows += f"<tr><td>{html.escape(k)}</td><td>{val}</td><td>{err}</td></tr>"
+            unit = DERIVED_UNITS.get(k, "")
+            rows += f"<tr><td>{html.escape(k)}</td><td>{val} {'' if unit == '1' else unit}</td><td>{err}</td></tr>"
         warn = "".join(f"<li>{html.escape(w)}</li>" for w in self.warnings)
         return (f"<div><b>Fit</b> {html.escape(self.model)} ({html.escape(self.method)}) of "
                 f"{html.escape(self.file)}<table>{rows}</table>"

@@ -34,8 +34,14 @@ _MEASURED: tuple[tuple[str, str], ...] = (
     ("duty_cycle_pct", "%"), ("rise_time_s", "s"), ("fall_time_s", "s"), ("thd_pct", "%"),
     ("thd_n_pct", "%"), ("sinad_db", "dB"),
 )
-_DERIVED_UNITS = {"resonant_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
-                  "decay_rate_per_s": "1/s", "q_factor": ""}
+
+
+def _derived_unit(name: str) -> str:
+    """A derived value's unit as the log stores it (a ratio such as Q has none)."""
+    from benchfit.fit.result import DERIVED_UNITS
+
+    unit = DERIVED_UNITS.get(name, "")
+    return "" if unit == "1" else unit
 
 
 def _cell(v: Any) -> Any:
@@ -114,7 +120,7 @@ def _fit_rows(f: Mapping[str, Any], role: str) -> list[dict[str, Any]]:
     for name, d in (f.get("derived") or {}).items():
         rows.append({"file": f.get("file"), "role": role, "source": "fit", "channel": None,
                      "quantity": name, "value": _finite(d.get("value")),
-                     "uncertainty": _finite(d.get("stderr")), "unit": _DERIVED_UNITS.get(name, "")})
+                     "uncertainty": _finite(d.get("stderr")), "unit": _derived_unit(name)})
     return rows
 
 
