@@ -67,6 +67,8 @@ def truth(u: Unit, output_only: bool = False, duty: float = 0.52) -> dict[str, f
            "Rp": u.Rp if u.Rp is not None else math.inf, **second_order(p)}
     out["series_loss_ohm"] = rs + u.Resr
     out["total_loss_ohm"] = figures_of(out)["total_loss_ohm"]  # Rs + ESR + L/(C·Rload), the damping as one R
+    if output_only:  # the switched source's asymmetry (the drive probe of a two-channel fit sits after it)
+        out["drive_asymmetry_ohm"] = u.r_high - u.r_low
     return out
 
 
