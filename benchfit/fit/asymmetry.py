@@ -180,11 +180,12 @@ def with_asymmetry(result, summary: Mapping, values: Mapping[str, float], ident,
         return replace(result, adequacy=adequacy)
     dv = asymmetry_value(values, ident, specs, sens, int(result.adequacy.get("dof", 1)))
     warnings = list(result.warnings)
-    if dv.stderr is None or dv.stderr > _REL_LIMIT * abs(dv.value):
+    dr = asymmetry_ohm(values)
+    if dv.stderr is None or dv.stderr > _REL_LIMIT * abs(dr):
         from benchfit.fit.result import DerivedValue
 
-        dv = DerivedValue(dv.value, None, None, dv.budget)
-        warnings.append(_undetermined_note(float(dv.value)))
+        dv = DerivedValue(dr, None, None, dv.budget)
+        warnings.append(_undetermined_note(dr))
     return replace(result, derived={**result.derived, FIGURE: dv}, adequacy=adequacy, warnings=tuple(warnings))
 
 

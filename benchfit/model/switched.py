@@ -27,6 +27,7 @@ sinh(sh)/s·(A − tI)), t = tr(A)/2, s² = t² − det A), so one call costs a 
 
 from __future__ import annotations
 
+import cmath
 import math
 from dataclasses import replace
 
@@ -39,17 +40,33 @@ __all__ = ["source_parts", "steady_state", "switched_phasors", "switched_wavefor
 
 def _expm2(a: np.ndarray, h: float) -> np.ndarray:
     """e^{A·h} of a real 2 × 2 matrix (Cayley–Hamilton form, module docstring)."""
-    t = 0.5 * (a[0, 0] + a[1, 1])
-    det = a[0, 0] * a[1, 1] - a[0, 1] * a[1, 0]
-    s = complex(t * t - det) ** 0.5
-    m = a - t * np.eye(2)
+    a00, a01, a10, a11 = _expm2_scalar(float(a[0, 0]), float(a[0, 1]), float(a[1, 0]), float(a[1, 1]), h)
+    return np.array([[a00, a01], [a10, a11]])
+
+
+def _expm2_scalar(a00: float, a01: float, a10: float, a11: float, h: float) -> tuple[float, float, float, float]:
+    t = 0.5 * (a00 + a11)
+    det = a00 * a11 - a01 * a10
+    s2 = t * t - det
+    s = complex(s2) ** 0.5
     sh = s * h
     if abs(sh) < 1e-6:  # sinh(sh)/s → h (series to second order; the error is below 1e-13 relative)
-        c0, c1 = 1.0 + sh * sh / 2.0, h * (1.0 + sh * sh / 6.0)
+        e = math.exp(t * h)
+        c0, c1 = e * (1.0 + s2 * h * h / 2.0), e * h * (1.0 + s2 * h * h / 6.0)
     else:
-        ep, em = np.exp((t + s) * h), np.exp((t - s) * h)
-        return ((0.5 * (ep + em)) * np.eye(2) + (0.5 * (ep - em) / s) * m).real
-    return (math.exp(t * h) * (c0 * np.eye(2) + c1 * m)).real
+        ep, em = cmath.exp((t + s) * h), cmath.exp((t - s) * h)
+        c0, c1 = (0.5 * (ep + em)).real, (0.5 * (ep - em) / s).real
+    return c0 + c1 * (a00 - t), c1 * a01, c1 * a10, c0 + c1 * (a11 - t)
+
+
+def _phase_scalars(p: LowpassParts, u: float, h: float):
+    """(A, C, D, u, h, x̄, Φ) of one phase as plain floats (2 × 2 work is faster without numpy)."""
+    a, b, c, d = _state_space_d(p)
+    a00, a01, a10, a11 = (float(x) for x in a.ravel())
+    det = a00 * a11 - a01 * a10
+    b0, b1 = float(b[0]) * u, float(b[1]) * u
+    xeq = (-(a11 * b0 - a01 * b1) / det, -(-a10 * b0 + a00 * b1) / det)  # −A⁻¹·B·u
+    return (a00, a01, a10, a11), (float(c[0]), float(c[1])), float(d), u, h, xeq, _expm2_scalar(a00, a01, a10, a11, h)
 
 
 def source_parts(p: LowpassParts, r_high: float, r_low: float) -> tuple[LowpassParts, LowpassParts]:
@@ -98,31 +115,51 @@ def switched_phasors(orders: np.ndarray, frequency_hz: float, duty: float, high:
     """
     k = np.asarray(orders, dtype=float)
     period = 1.0 / frequency_hz
-    w = 2.0 * math.pi * frequency_hz
-    ph_h, ph_l = _phases(duty, period, high, low, u_high, u_low)
-    rhs = (np.eye(2) - ph_l[6]) @ ph_l[5] + ph_l[6] @ ((np.eye(2) - ph_h[6]) @ ph_h[5])
-    x0 = np.linalg.solve(np.eye(2) - ph_l[6] @ ph_h[6], rhs)
-    x1 = ph_h[5] + ph_h[6] @ (x0 - ph_h[5])
-    jkw = 1j * k * w
-    total = np.zeros(k.shape, dtype=complex)
-    t_start = 0.0
-    for (a, c, d, u, h, xeq, phi), xs in zip((ph_h, ph_l), (x0, x1)):
-        z = xs - xeq
-        rot = np.exp(-jkw * h)
-        y_eq = float(c @ xeq) + d * u
-        part = y_eq * (1.0 - rot) / jkw
-        # c·(A − jkωI)⁻¹·(Φ·z·e^{−jkωh} − z), with the 2 × 2 inverse written out per order
-        fz = phi @ z
-        v0 = fz[0] * rot - z[0]
-        v1 = fz[1] * rot - z[1]
-        m00, m11 = a[0, 0] - jkw, a[1, 1] - jkw
-        det = m00 * m11 - a[0, 1] * a[1, 0]
-        s0 = (m11 * v0 - a[0, 1] * v1) / det
-        s1 = (-a[1, 0] * v0 + m00 * v1) / det
-        part = part + c[0] * s0 + c[1] * s1
-        total = total + np.exp(-jkw * t_start) * part
-        t_start += h
-    return (2.0 / period) * total
+    if not 0.0 < duty < 1.0:
+        raise ValueError(f"switched source: duty must lie strictly between 0 and 1, not {duty!r}")
+    ph = (_phase_scalars(high, u_high, duty * period), _phase_scalars(low, u_low, (1.0 - duty) * period))
+    (x0, x1) = _fixed_point(ph)
+    # both phases at once: rows 0 (high, from t = 0) and 1 (low, from t = D·T)
+    h = np.array([[ph[0][4]], [ph[1][4]]])
+    jkw = (2j * math.pi * frequency_hz) * k[None, :]
+    rot = np.exp(-jkw * h)
+    coef = np.empty((2, 7))
+    ca = np.empty((2, 4))
+    for i, (((a00, a01, a10, a11), (c0, c1), d, u, _, xeq, phi), xs) in enumerate(zip(ph, (x0, x1))):
+        z0, z1 = xs[0] - xeq[0], xs[1] - xeq[1]
+        coef[i] = (c0 * xeq[0] + c1 * xeq[1] + d * u, phi[0] * z0 + phi[1] * z1, phi[2] * z0 + phi[3] * z1,
+                   z0, z1, a00, a11)
+        ca[i] = (a01, a10, c0, c1)
+    col = [coef[:, j:j + 1] for j in range(7)]
+    y_eq, fz0, fz1, z0, z1, a00, a11 = col
+    a01, a10, c0, c1 = (ca[:, j:j + 1] for j in range(4))
+    # c·(A − jkωI)⁻¹·(Φ·z·e^{−jkωh} − z), with the 2 × 2 inverse written out per order
+    v0 = fz0 * rot - z0
+    v1 = fz1 * rot - z1
+    m00, m11 = a00 - jkw, a11 - jkw
+    part = y_eq * (1.0 - rot) / jkw + ((c0 * m11 - c1 * a10) * v0 + (c1 * m00 - c0 * a01) * v1) / (
+        m00 * m11 - a01 * a10)
+    return (2.0 / period) * (part[0] + rot[0] * part[1])  # the low phase starts at D·T: e^{−jkωD·T}
+
+
+def _fixed_point(ph) -> tuple[tuple[float, float], tuple[float, float]]:
+    """x(0) and x(D·T) of the periodic steady state from the two phases' scalars."""
+    (_, _, _, _, _, xh, (p00, p01, p10, p11)), (_, _, _, _, _, xl, (q00, q01, q10, q11)) = ph
+    # rhs = (I − Φ_l)·x̄_l + Φ_l·(I − Φ_h)·x̄_h
+    w0 = xh[0] - (p00 * xh[0] + p01 * xh[1])
+    w1 = xh[1] - (p10 * xh[0] + p11 * xh[1])
+    r0 = xl[0] - (q00 * xl[0] + q01 * xl[1]) + q00 * w0 + q01 * w1
+    r1 = xl[1] - (q10 * xl[0] + q11 * xl[1]) + q10 * w0 + q11 * w1
+    # M = I − Φ_l·Φ_h
+    m00 = 1.0 - (q00 * p00 + q01 * p10)
+    m01 = -(q00 * p01 + q01 * p11)
+    m10 = -(q10 * p00 + q11 * p10)
+    m11 = 1.0 - (q10 * p01 + q11 * p11)
+    det = m00 * m11 - m01 * m10
+    x0 = ((m11 * r0 - m01 * r1) / det, (-m10 * r0 + m00 * r1) / det)
+    z0, z1 = x0[0] - xh[0], x0[1] - xh[1]
+    x1 = (xh[0] + p00 * z0 + p01 * z1, xh[1] + p10 * z0 + p11 * z1)
+    return x0, x1
 
 
 def source_phasors(orders: np.ndarray, frequency_hz: float, duty: float, p: LowpassParts,
