@@ -16,6 +16,14 @@ its inverse of duty 1 − D differ only in sign and timing, so D is reported as 
 of the two. When the capture's input coupling time constant is known
 (``Capture.calibration.coupling_tau_s``) the phasors are corrected for that high-pass first.
 
+A timer whose output resistance differs high and low (r_high ≠ r_low) is a switched, time-varying
+source, whose output is not G·P_k(D)·H(jkω): the fit compares the model above with the exact
+periodic steady state of the switched source (:mod:`benchfit.fit.asymmetry`,
+:mod:`benchfit.model.switched`; F-test) and, when the data call for it, fits the asymmetry
+r_high − r_low (reported as ``drive_asymmetry_ohm``) while Rs keeps the time average. The switched
+circuit's output can then also tell Rs from the load; where the identifiability analysis finds
+them apart they are fitted instead of integrated out (below).
+
 With L (or C) known the shape still leaves two parts open: Rs and the load share the damping
 along a direction the output does not see, and the ESR shows only through the magnitude of its
 zero (information ∝ ESR²), where a core loss in the choke looks the same. Both are integrated
@@ -313,8 +321,8 @@ def _drive_asymmetry(residual, values, ident, fix, extra, parts, duty_fitted: bo
     chosen = {n: (v if n not in PART_NAMES or n in fix or v > 0 else 1e-3 * z0) for n, v in chosen.items()}
     refit = solve(residual, chosen, fix, {**ex_now, ASYMMETRY: (chosen[ASYMMETRY], -ASYMMETRY_BOUND,
                                                                  ASYMMETRY_BOUND)}, parts=parts)
-    sign = (" (its sign follows which phase is taken as high, and the output alone cannot tell which)"
-            if duty_fitted else "")
+    sign = (f", the phase lasting {100 * refit[0]['duty']:.3g} % of the period taken as high (the output alone "
+            "cannot tell which phase is high, so the sign is open)" if duty_fitted else "")
     summary["note"] = (f"{ASYMMETRY_FIGURE}: the data call for a drive whose source resistance differs between "
                        f"high and low (F-test p = {summary['p_value']:.2g}, ΔAIC = "
                        f"{summary['aic'][1] - summary['aic'][0]:.3g}); the fit uses the exact switched-source "

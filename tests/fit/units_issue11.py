@@ -16,7 +16,8 @@ Cases (issue 11):
 * ``sound-card`` — output only, through an AC-coupled input (τ = 50 ms, known from the
   profile), 16-bit full scale, FS units; L ± 10 %, drive duty given.
 * ``asymmetric-output-only`` — the asymmetric timer of ``asymmetric-drive`` captured like
-  ``sound-card`` (output only): the one-channel model's ideal rectangular drive is wrong here.
+  ``sound-card`` (output only): the one-channel model's ideal rectangular drive is wrong here, and
+  the fit must find the switched source (benchfit.fit.asymmetry); its truth r_high − r_low = 17 Ω.
 """
 
 from __future__ import annotations
