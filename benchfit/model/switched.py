@@ -35,7 +35,7 @@ import numpy as np
 
 from benchfit.model.filter import LowpassParts, _state_space_d
 
-__all__ = ["source_parts", "steady_state", "switched_phasors", "switched_waveform", "source_phasors"]
+__all__ = ["source_parts", "steady_state", "switched_phasors", "switched_rows", "switched_waveform", "source_phasors"]
 
 
 def _expm2(a: np.ndarray, h: float) -> np.ndarray:
@@ -190,4 +190,41 @@ def switched_waveform(time_s: np.ndarray, frequency_hz: float, duty: float, high
             (a, c, d, u, _, xeq, _), xs, s = ph_l, x1, ti - duty * period
         x = xeq + _expm2(a, s) @ (xs - xeq)
         out[idx] = float(c @ x) + d * u
+    return out
+
+
+def switched_rows(orders: np.ndarray, frequency_hz: float, duty: float, high: LowpassParts, low: LowpassParts,
+                  rows, u_high: float = 1.0, u_low: float = 0.0) -> list[tuple[float, np.ndarray]]:
+    """Mean and phasors of any quantities linear in the state and the source level, phase by phase.
+
+    ``rows`` lists, per quantity, ((c_high, d_high), (c_low, d_low)): the quantity is c·x + d·u
+    in each phase (c a 2-vector over [i_L, v_C], u the phase's level). ``None`` in place of a
+    row means the circuit's output v_out. Returns (mean over the period, phasors at ``orders``)
+    per quantity, with the conventions of :func:`switched_phasors` (this is its general form,
+    with plain numpy algebra: for predictions and checks, not for fitting).
+    """
+    k = np.asarray(orders, dtype=float)
+    period = 1.0 / frequency_hz
+    w = 2.0 * math.pi * frequency_hz
+    phases = _phases(duty, period, high, low, u_high, u_low)
+    x0, x1 = steady_state(frequency_hz, duty, high, low, u_high, u_low)
+    out = []
+    for row in rows:
+        total = np.zeros(k.shape, dtype=complex)
+        mean = 0.0
+        t_start = 0.0
+        for i, ((a, c_out, d_out, u, h, xeq, phi), xs) in enumerate(zip(phases, (x0, x1))):
+            c, d = (c_out, d_out) if row is None else (np.asarray(row[i][0], dtype=float), float(row[i][1]))
+            z = xs - xeq
+            q_eq = float(c @ xeq) + d * u
+            # mean: ∫₀ʰ (q̄ + c·e^{As}·z) ds = q̄·h + c·A⁻¹(Φ − I)·z
+            mean += q_eq * h + float(c @ np.linalg.solve(a, (phi - np.eye(2)) @ z))
+            jkw = 1j * k * w
+            rot = np.exp(-jkw * h)
+            m = a[None, :, :] - jkw[:, None, None] * np.eye(2)[None, :, :]
+            v = (phi @ z)[None, :] * rot[:, None] - z[None, :]
+            s = np.linalg.solve(m, v[:, :, None])[:, :, 0]
+            total = total + np.exp(-jkw * t_start) * (q_eq * (1.0 - rot) / jkw + s @ c)
+            t_start += h
+        out.append((mean / period, (2.0 / period) * total))
     return out
