@@ -128,6 +128,7 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
               "natural_frequency_hz": ("natural frequency (loaded)", "Hz"),
               "series_loss_ohm": ("series loss Rs + ESR", "Ω"),
               "total_loss_ohm": ("total loss Rs + ESR + L/(C·Rload)", "Ω"),
+              "drive_asymmetry_ohm": ("drive source r_high − r_low", "Ω"),
               "q_factor": ("Q", ""), "damped_frequency_hz": ("damped frequency", "Hz"),
               "decay_rate_per_s": ("decay rate α", "1/s")}
     t = Table(title="resonance", title_justify="left", box=None, pad_edge=False, header_style="bold")
@@ -177,6 +178,9 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
         if mc:
             line += (f"; core loss Rp: F-test p = {mc['p_value']:.2g}, ΔAIC = {mc['aic'][1] - mc['aic'][0]:.3g} "
                      f"→ {mc['chosen']}")
+        da = adq.get("drive_asymmetry")
+        if da:
+            line += f"; drive r_high ≠ r_low: F-test p = {da['p_value']:.2g} → {da['chosen']}"
         console.print(line, markup=False, highlight=False, soft_wrap=True)
     console.print("± values are combined standard uncertainties (k = 1); budget rows in --json",
                   markup=False, highlight=False)

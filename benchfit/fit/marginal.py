@@ -114,7 +114,8 @@ def _fit_point(residual, start, free, fixed, extra):
 
 
 def _quantities(values: dict[str, float], names: tuple[str, ...], jac: np.ndarray, scale: float,
-                keys: tuple[str, ...]) -> tuple[dict[str, float], dict[str, float]]:
+                keys: tuple[str, ...], more: Mapping[str, Callable[[Mapping[str, float]], float]] | None = None
+                ) -> tuple[dict[str, float], dict[str, float]]:
     """Estimates and their fit standard uncertainties (delta method on the full inverse JᵀJ)."""
     info = jac.T @ jac
     try:
@@ -129,6 +130,7 @@ def _quantities(values: dict[str, float], names: tuple[str, ...], jac: np.ndarra
         for n, lg, x in zip(names, is_log, z):
             v[n] = float(math.exp(x)) if lg else float(x)
         fig = figures_of(v)
+        fig.update({k: f(v) for k, f in (more or {}).items()})
         return np.array([v[k] if k in v and k not in fig else fig[k] for k in keys])
 
     base = all_of(x0)
@@ -152,12 +154,16 @@ def _grid(nuis: tuple[Nuisance, ...], spans: list[tuple[float, float]]) -> np.nd
 
 def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapping[str, float],
                 fixed: Mapping[str, float], nuisances: tuple[Nuisance, ...],
-                extra: Mapping[str, tuple[float, float, float]] | None, part_names: tuple[str, ...]) -> Marginal:
-    """Integrate the ``nuisances`` out (module docstring); the other parts of ``part_names`` are fitted."""
+                extra: Mapping[str, tuple[float, float, float]] | None, part_names: tuple[str, ...],
+                more: Mapping[str, Callable[[Mapping[str, float]], float]] | None = None) -> Marginal:
+    """Integrate the ``nuisances`` out (module docstring); the other parts of ``part_names`` are fitted.
+
+    ``more`` are further figures (name → function of the fitted values) to mix like the others.
+    """
     nuis = tuple(nuisances)
     fixed = {k: v for k, v in fixed.items() if k not in {n.name for n in nuis}}
     free = tuple(n for n in part_names if n not in fixed and n not in {q.name for q in nuis})
-    keys = tuple(free) + tuple(q.name for q in nuis) + FIGURE_NAMES
+    keys = tuple(free) + tuple(q.name for q in nuis) + FIGURE_NAMES + tuple(more or {})
     spans = [(q.lo, q.hi) for q in nuis]
     rows: list[tuple] = []  # (point, χ², values, estimates, fit u, dof, prior mass of its cell)
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items() if k in free}
@@ -180,7 +186,7 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
             # to its lower bound here would otherwise stay stuck there, its log bounds being relative)
             prev = {k: max(v[k], 1e-2 * float(values[k])) for k in free}
             prev_ex = {k: (v[k], lo, hi) for k, (_, lo, hi) in ex.items()}
-            est, uest = _quantities(v, names, jac, 1.0, keys)
+            est, uest = _quantities(v, names, jac, 1.0, keys, more)
             if not all(math.isfinite(x) for x in est.values()):
                 continue
             fresh.append((pt, chi2, v, est, uest, n_res - len(names), cell))

@@ -16,6 +16,14 @@ its inverse of duty 1 − D differ only in sign and timing, so D is reported as 
 of the two. When the capture's input coupling time constant is known
 (``Capture.calibration.coupling_tau_s``) the phasors are corrected for that high-pass first.
 
+A timer whose output resistance differs high and low (r_high ≠ r_low) is a switched, time-varying
+source, whose output is not G·P_k(D)·H(jkω): the fit compares the model above with the exact
+periodic steady state of the switched source (:mod:`benchfit.fit.asymmetry`,
+:mod:`benchfit.model.switched`; F-test) and, when the data call for it, fits the asymmetry
+r_high − r_low (reported as ``drive_asymmetry_ohm``) while Rs keeps the time average. The switched
+circuit's output can then also tell Rs from the load; where the identifiability analysis finds
+them apart they are fitted instead of integrated out (below).
+
 With L (or C) known the shape still leaves two parts open: Rs and the load share the damping
 along a direction the output does not see, and the ESR shows only through the magnitude of its
 zero (information ∝ ESR²), where a core loss in the choke looks the same. Both are integrated
@@ -34,9 +42,14 @@ import numpy as np
 
 from benchfit.errors import FitError
 from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, rectangular_phasors, transfer
+from benchfit.fit.asymmetry import NAME as ASYMMETRY
 from benchfit.fit.budgets import assemble, compare_core_loss, input_specs, propagate, source_name
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov, noise_rescaled,
                                  parts_of, quality_complex, start_parts, subset, whiten, whitening)
+from benchfit.fit.asymmetry import BOUND as ASYMMETRY_BOUND
+from benchfit.fit.asymmetry import FIGURE as ASYMMETRY_FIGURE
+from benchfit.fit.asymmetry import asymmetric_phasors, asymmetry_ohm, compare_drive_asymmetry, marginal_asymmetry, \
+    with_asymmetry
 from benchfit.fit.identify import fit_log_parameters, identify, solve
 from benchfit.fit.marginal import Nuisance, figures_of, marginalise
 from benchfit.fit.marginal import apply as apply_marginal
@@ -185,6 +198,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
 
     def model_phasors(v: Mapping[str, float]) -> np.ndarray:
         duty = float(v["duty"] if "duty" in v else drive_duty)  # type: ignore[arg-type]  # given when not fitted
+        if ASYMMETRY in v:  # a switched source, r_high ≠ r_low (benchfit.fit.asymmetry)
+            return asymmetric_phasors(k, f, duty, parts_of(v), v[ASYMMETRY]) * np.exp(-1j * k * v["phase"])
         return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, parts_of(v))
 
     def gain(wm: np.ndarray) -> float:
@@ -229,6 +244,11 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                 values, ident, fixed, folded, warnings, ok, msg, alts = refit
                 warnings = list(warnings) + [comparison["note"]]
                 parts = PART_NAMES
+    asym = _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty is None)
+    if asym is not None and asym[1] is not None:
+        values, ident, fixed, folded, warnings, ok, msg, alts = asym[1]
+        extra[ASYMMETRY] = (values[ASYMMETRY], -ASYMMETRY_BOUND, ASYMMETRY_BOUND)
+        warnings = list(warnings) + [asym[0]["note"]]
     if drive_duty is None:
         warnings = list(warnings)
         d = values["duty"]
@@ -245,7 +265,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     marg = None
     if nuis:
         ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-        marg = marginalise(residual, values, fix, nuis, ex_now, parts)
+        marg = marginalise(residual, values, fix, nuis, ex_now, parts,
+                           {ASYMMETRY_FIGURE: asymmetry_ohm} if ASYMMETRY in extra else None)
         held = {q.name: marg.best[q.name] for q in nuis}
         free = tuple(n for n in parts if n not in fix and n not in held)
         ex_now = {n: (marg.best[n], lo, hi) for n, (_, lo, hi) in extra.items()}
@@ -275,7 +296,39 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
 
         result = replace(result, adequacy={**result.adequacy,
                                            "model_comparison": {k: v for k, v in comparison.items() if k != "note"}})
-    return result if marg is None else apply_marginal(result, marg)
+    if asym is not None:
+        result = with_asymmetry(result, asym[0], values, ident, specs, sens)
+    result = result if marg is None else apply_marginal(result, marg)
+    return result if marg is None or ASYMMETRY not in extra else marginal_asymmetry(result, marg)
+
+
+def _drive_asymmetry(residual, values, ident, fix, extra, parts, duty_fitted: bool):
+    """Compare the ideal drive with a switched one (r_high ≠ r_low, :mod:`benchfit.fit.asymmetry`).
+
+    Returns None when not compared (the asymmetry given as 0 with ``fix``), else (summary with a
+    note, the refit's :func:`solve` tuple when the data support the asymmetry, else None).
+    """
+    if ASYMMETRY in fix or {"L", "C"} <= set(ident.undetermined):
+        return None
+    ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
+    summary, chosen = compare_drive_asymmetry(residual, values, ident.names, ex_now)
+    if summary is None:
+        return None
+    if chosen is None:
+        summary["note"] = ""
+        return summary, None
+    z0 = math.sqrt(chosen["L"] / chosen["C"])
+    chosen = {n: (v if n not in PART_NAMES or n in fix or v > 0 else 1e-3 * z0) for n, v in chosen.items()}
+    refit = solve(residual, chosen, fix, {**ex_now, ASYMMETRY: (chosen[ASYMMETRY], -ASYMMETRY_BOUND,
+                                                                 ASYMMETRY_BOUND)}, parts=parts)
+    sign = (f", the phase lasting {100 * refit[0]['duty']:.3g} % of the period taken as high (the output alone "
+            "cannot tell which phase is high, so the sign is open)" if duty_fitted else "")
+    summary["note"] = (f"{ASYMMETRY_FIGURE}: the data call for a drive whose source resistance differs between "
+                       f"high and low (F-test p = {summary['p_value']:.2g}, ΔAIC = "
+                       f"{summary['aic'][1] - summary['aic'][0]:.3g}); the fit uses the exact switched-source "
+                       "model, Rs holds the time-averaged resistance D·r_high + (1 − D)·r_low and "
+                       f"{ASYMMETRY_FIGURE} = r_high − r_low{sign}")
+    return summary, refit
 
 
 def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> tuple[Nuisance, ...]:
@@ -301,7 +354,10 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> 
                             why="not separated by an output-only capture: a core loss in the choke also turns "
                                 "the roll-off above resonance from 1/f² towards 1/f, as the ESR does"
                                 if "Rp" not in fix and "Rp" not in values else ""))
-    if "Rload" not in fix and "Rs" not in fix:
+    # with a switched source (r_high ≠ r_low) the output is no longer a time-invariant response, and the
+    # identifiability analysis may find Rs and the load apart: then they are fitted, not integrated out
+    split = ASYMMETRY in values and not {"Rs", "Rload"} & set(ident.undetermined)
+    if "Rload" not in fix and "Rs" not in fix and not split:
         l_over_c = float(values["L"]) / float(values["C"])
         g_max = total / l_over_c
         out.append(Nuisance("Rload", 0.0, g_max, "conductance",

@@ -10,11 +10,15 @@ period (duty = high time / period, REFERENCES §4), between the levels ``v_low``
 P_k = (2/(kπ))·sin(kπD)·e^{−jkπD} (:func:`benchfit.model.filter.rectangular_phasors`).
 
 Source resistance. A real timer output has a different resistance high and low (TI SLFS022
-output-voltage tables, REFERENCES §11). The model is linear, so it uses the time-averaged
-resistance D·r_high + (1 − D)·r_low in series with ``Rs``. This is an approximation: the
-exact circuit is switched, and the error grows with the difference r_high − r_low; it is
-stated here and in the prediction's notes. A one-channel fit already holds the source
-resistance in its ``Rs`` (DESIGN.md), so then r_high = r_low = 0.
+output-voltage tables, REFERENCES §11). With r_high = r_low the circuit is linear and
+time-invariant (the formulas below). With r_high ≠ r_low it is switched: the output, the
+inductor current, the capacitor voltage and the source current then come from the exact
+periodic steady state of :mod:`benchfit.model.switched` (each phase with its own Thévenin
+level and resistance, divider included), stated in the prediction's notes. The fast path
+:func:`predict_quantities` does the same for the output. Only ``effective_filter`` (and the
+series loss, i_rms²·Rs) keeps the time-averaged resistance D·r_high + (1 − D)·r_low. A
+one-channel fit already holds the source resistance in its ``Rs`` (DESIGN.md), so then
+r_high = r_low = 0.
 
 Output (REFERENCES §6, "square-wave drive"): harmonic k of the output is
 Y_k = S·P_k·H(jkω) and its DC is (v_low + S·D)·H(0). The inductor current is
@@ -223,6 +227,33 @@ def _phasors(unit: UnitModel, orders: np.ndarray):
     return x, y, i_l, v_c, x0, y0, float(i0)
 
 
+def _switched(unit: UnitModel, orders: np.ndarray, with_states: bool = True):
+    """Exact steady state of a switched source (r_high ≠ r_low): means and phasors of the output,
+    i_L, v_C and the timer's current, each phase with its own Thévenin source."""
+    from benchfit.model.switched import switched_rows
+
+    d = unit.drive
+    phases = []
+    for level, r in ((d.v_high, d.r_high), (d.v_low, d.r_low)):
+        if d.divider is None:
+            # the timer current is the inductor's: row [1, 0], no direct term
+            phases.append((level, r, (np.array([1.0, 0.0]), 0.0)))
+            continue
+        top, bottom = d.divider
+        top = top + r
+        kk = bottom / (top + bottom)
+        par = top * bottom / (top + bottom)
+        # i_timer = v_t·(1 − par/top)/top + i_L·par/top (see _source_current) with v_t = level = u/kk
+        phases.append((level * kk, par, (np.array([par / top, 0.0]), (1.0 - par / top) / top / kk)))
+    high = dataclasses.replace(unit.filter, Rs=unit.filter.Rs + phases[0][1])
+    low = dataclasses.replace(unit.filter, Rs=unit.filter.Rs + phases[1][1])
+    rows: list = [None]
+    if with_states:
+        rows += [((np.array([1.0, 0.0]), 0.0),) * 2, ((np.array([0.0, 1.0]), 0.0),) * 2,
+                 (phases[0][2], phases[1][2])]
+    return switched_rows(orders, d.frequency_hz, d.duty, high, low, rows, phases[0][0], phases[1][0])
+
+
 def _wave(dc: float, ph: np.ndarray, points: int) -> np.ndarray:
     """One period of dc + Σ Re(ph_k e^{jkωt}) on ``points`` samples (harmonic k = index + 1)."""
     spec = np.zeros(points // 2 + 1, dtype=complex)
@@ -245,7 +276,12 @@ def predict(unit: UnitModel, chain: CaptureChain | None = None) -> UnitPredictio
     chain = chain or CaptureChain()
     k = np.arange(1, _WAVE_HARMONICS + 1, dtype=float)
     f = unit.drive.frequency_hz
-    x, y, i_l, v_c, x0, y0, i0 = _phasors(unit, k)
+    d = unit.drive
+    if d.r_high != d.r_low:
+        (y0, y), (i0, i_l), (vc0, v_c), (it0, i_t) = _switched(unit, k)
+    else:
+        _, y, i_l, v_c, _, y0, i0 = _phasors(unit, k)
+        vc0 = y0
     seen = y * chain.response(k * f)
     dc_seen = 0.0 if chain.ac_coupled else y0
     h = max(2, int(chain.n_harmonics))
@@ -254,16 +290,18 @@ def predict(unit: UnitModel, chain: CaptureChain | None = None) -> UnitPredictio
     out_seen = _wave(dc_seen, seen, _WAVE_POINTS)
     out = _wave(y0, y, _WAVE_POINTS)
     il = _wave(i0, i_l, _WAVE_POINTS)
-    vc = _wave(y0, v_c, _WAVE_POINTS)
+    vc = _wave(vc0, v_c, _WAVE_POINTS)
     vrms = math.sqrt(dc_seen ** 2 + float(np.sum(a ** 2)) / 2.0)
     il_rms = math.sqrt(i0 ** 2 + float(np.sum(np.abs(i_l) ** 2)) / 2.0)
     p = unit.effective_filter()
     notes = []
-    d = unit.drive
     if d.r_high != d.r_low:
-        notes.append(f"source resistance {d.r_high:g} Ω high / {d.r_low:g} Ω low taken as its time "
-                     f"average {d.r_average:.4g} Ω (linear model)")
-    src = _source_current(unit, i_l, i0)
+        notes.append(f"source resistance {d.r_high:g} Ω high / {d.r_low:g} Ω low: exact switched-source "
+                     f"steady state (the series loss uses its time average {d.r_average:.4g} Ω)")
+        wave = _wave(it0, i_t, _WAVE_POINTS)
+        src = (float(np.max(np.abs(wave))), float(np.sqrt(np.mean(wave ** 2))))
+    else:
+        src = _source_current(unit, i_l, i0)
     return UnitPrediction(
         frequency_hz=f, amplitude=float(a[0]), vdc=float(dc_seen), vrms=vrms,
         vpp=float(out_seen.max() - out_seen.min()), thd=thd, n_harmonics=h,
@@ -312,10 +350,15 @@ def predict_quantities(unit: UnitModel, chain: CaptureChain | None = None) -> di
     p = unit.effective_filter()
     lo, hi, _ = unit.drive.thevenin()
     f = unit.drive.frequency_hz
-    y = (hi - lo) * rectangular_phasors(k, unit.drive.duty) * transfer(k * f, p) * chain.response(k * f)
+    if unit.drive.r_high != unit.drive.r_low:
+        ((y0, y),) = _switched(unit, k, with_states=False)
+        y = y * chain.response(k * f)
+    else:
+        y = (hi - lo) * rectangular_phasors(k, unit.drive.duty) * transfer(k * f, p) * chain.response(k * f)
+        y0 = float(np.real(transfer(0.0, p))) * (lo + (hi - lo) * unit.drive.duty)
     a = np.abs(y)
     h = max(2, int(chain.n_harmonics))
-    dc = 0.0 if chain.ac_coupled else float(np.real(transfer(0.0, p))) * (lo + (hi - lo) * unit.drive.duty)
+    dc = 0.0 if chain.ac_coupled else y0
     so = second_order(unit.filter)
     out = {"frequency_hz": f, "amplitude": float(a[0]), "vdc": dc,
            "vrms": math.sqrt(dc * dc + float(np.sum(a * a)) / 2.0),

@@ -189,6 +189,7 @@ _PART_LABELS = {
     "natural_frequency_hz": "natural frequency (loaded circuit)",
     "series_loss_ohm": "series loss, Rs + ESR (not split by the data)", "Rp": "Rp, core loss across L",
     "total_loss_ohm": "total loss, Rs + ESR + L/(C·Rload) (not split by the data)",
+    "drive_asymmetry_ohm": "drive source resistance, high minus low (r_high − r_low)",
 }
 
 

@@ -16,7 +16,8 @@ Cases (issue 11):
 * ``sound-card`` — output only, through an AC-coupled input (τ = 50 ms, known from the
   profile), 16-bit full scale, FS units; L ± 10 %, drive duty given.
 * ``asymmetric-output-only`` — the asymmetric timer of ``asymmetric-drive`` captured like
-  ``sound-card`` (output only): the one-channel model's ideal rectangular drive is wrong here.
+  ``sound-card`` (output only): the one-channel model's ideal rectangular drive is wrong here, and
+  the fit must find the switched source (benchfit.fit.asymmetry); its truth r_high − r_low = 17 Ω.
 """
 
 from __future__ import annotations
@@ -67,6 +68,8 @@ def truth(u: Unit, output_only: bool = False, duty: float = 0.52) -> dict[str, f
            "Rp": u.Rp if u.Rp is not None else math.inf, **second_order(p)}
     out["series_loss_ohm"] = rs + u.Resr
     out["total_loss_ohm"] = figures_of(out)["total_loss_ohm"]  # Rs + ESR + L/(C·Rload), the damping as one R
+    if output_only:  # the switched source's asymmetry (the drive probe of a two-channel fit sits after it)
+        out["drive_asymmetry_ohm"] = u.r_high - u.r_low
     return out
 
 
