@@ -42,14 +42,15 @@ def test_every_derived_value_carries_its_unit_into_the_log():
     from benchfit.log.records import _fit_rows
 
     names = ("resonant_frequency_hz", "natural_frequency_hz", "damped_frequency_hz", "decay_rate_per_s",
-             "q_factor", "series_loss_ohm", "total_loss_ohm")
+             "q_factor", "series_loss_ohm", "total_loss_ohm", "drive_asymmetry_ohm")
     assert set(names) == set(DERIVED_UNITS)
     r = FitResult(file="x.wav", model="lc-lowpass", method="one-channel", parameters={},
                   derived={n: DerivedValue(1.0, 0.1) for n in names}, correlations={},
                   quality=FitQuality(0.01, 0.999, 60), warnings=())
     units = {row["quantity"]: row["unit"] for row in _fit_rows(r.to_dict(), "fit")}
     assert units == {"resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
-                     "decay_rate_per_s": "1/s", "q_factor": "", "series_loss_ohm": "ohm", "total_loss_ohm": "ohm"}
+                     "decay_rate_per_s": "1/s", "q_factor": "", "series_loss_ohm": "ohm", "total_loss_ohm": "ohm",
+                     "drive_asymmetry_ohm": "ohm"}
 
 
 def test_capture_repr_html_escapes_names():

@@ -74,7 +74,8 @@ class FitParameter:
 #: a ratio); the budgets, the DataFrame and the measurement log take units from here
 DERIVED_UNITS: Mapping[str, str] = MappingProxyType({
     "resonant_frequency_hz": "Hz", "natural_frequency_hz": "Hz", "damped_frequency_hz": "Hz",
-    "decay_rate_per_s": "1/s", "q_factor": "1", "series_loss_ohm": "ohm", "total_loss_ohm": "ohm"})
+    "decay_rate_per_s": "1/s", "q_factor": "1", "series_loss_ohm": "ohm", "total_loss_ohm": "ohm",
+    "drive_asymmetry_ohm": "ohm"})
 
 
 @dataclass(frozen=True)
