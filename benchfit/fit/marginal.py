@@ -371,8 +371,9 @@ def apply(result, marg: Marginal):
         elif q.variable == "share":  # the part at the posterior mean of its conductance
             gq = np.array([1.0 / point_parts(marg.nuisances, p)[q.name] for p in marg.points])
             gm = float(marg.weights @ gq)
-            value = 1.0 / gm if gm > 0 else math.inf
-            u = math.sqrt(max(float(marg.weights @ (gq - gm) ** 2), 0.0)) / gm ** 2 if gm > 0 else math.inf
+            value = 1.0 / gm if gm > 1e-300 else math.inf
+            sdg = math.sqrt(max(float(marg.weights @ (gq - gm) ** 2), 0.0))
+            u = value * (sdg / gm) if math.isfinite(value) else math.inf
             pinned = False  # θ says how the loss is split, not how well the part is known
         else:
             value, u = m, sd
