@@ -127,7 +127,7 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     labels = {"resonant_frequency_hz": ("resonant frequency f0 = 1/(2π√(LC))", "Hz"),
               "natural_frequency_hz": ("natural frequency (loaded)", "Hz"),
               "series_loss_ohm": ("series loss Rs + ESR", "Ω"),
-              "total_loss_ohm": ("total loss Rs + ESR + L/(C·Rload)", "Ω"),
+              "total_loss_ohm": ("total loss 2·L·α: Rs + ESR + L/(C·Rload) (+ core loss)", "Ω"),
               "drive_asymmetry_ohm": ("drive source r_high − r_low", "Ω"),
               "q_factor": ("Q", ""), "damped_frequency_hz": ("damped frequency", "Hz"),
               "decay_rate_per_s": ("decay rate α", "1/s")}

@@ -526,7 +526,12 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     base.f = np.full(n, f_meas)
     rp_param = None if fit is None else fit.parameters.get("Rp")
     rp = math.inf if rp_param is None or rp_param.value is None else float(rp_param.value)
-    if math.isfinite(rp):
+    if math.isfinite(rp) and rp_param is not None and rp_param.stderr is None:
+        # an output-only fit integrates a core loss out with the ESR: Rp is its posterior value, not a measurement
+        notes.append(f"the core loss Rp ≈ {_q(rp, 'Ω')} (a resistance across L; not separated from the ESR by the "
+                     "fit, which integrated it out with it) is kept in every plan with the fit's ESR; a replacement "
+                     "choke's own core loss is not known")
+    elif math.isfinite(rp):
         notes.append(f"the fitted core loss Rp = {_q(rp, 'Ω')} (a resistance across L) is kept in every plan; "
                      "a replacement choke's own core loss is not known")
     nom_parts = LowpassParts(float(base.L[0]), float(base.C[0]), float(base.Rs[0]), float(base.Resr[0]),

@@ -32,10 +32,11 @@ import numpy as np
 from benchfit.fit.identify import fit_log_parameters, numeric_jacobian
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
 
-__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "FIGURE_NAMES"]
+__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "point_parts", "FIGURE_NAMES"]
 
-#: grid points per nuisance axis (a second pass refines an axis whose posterior is narrow)
-_POINTS = {1: 15, 2: 7}
+#: grid points per nuisance axis (a second pass refines an axis whose posterior is narrow); a
+#: nuisance may set its own count (``Nuisance.points``, e.g. a share the data hardly see)
+_POINTS = {1: 15, 2: 7, 3: 7}
 #: grid passes at most (each later one refines the axes whose posterior is narrower than its steps)
 _ROUNDS = 3
 #: the figures reported from a marginalised fit besides the parts
@@ -48,7 +49,12 @@ class Nuisance:
     """A part integrated out over a rectangular prior on ``lo … hi`` of its grid variable.
 
     ``variable`` is "value" (the part in its own unit, e.g. ESR in ohm) or "conductance"
-    (1/part in siemens, for a load whose plausible range includes "no load", 1/Rload = 0).
+    (1/part in siemens, for a load whose plausible range includes "no load", 1/Rload = 0), or
+    "share": the grid variable θ (0…1) splits the axis of the nuisance named ``share_of`` (a
+    loss x in ohm) between that part, which gets (1 − θ)·x, and this one, a conductance
+    θ·x·``scale`` (for a core loss, scale = C/L: its series equivalent at the L-C resonance,
+    (L/C)/Rp, is the share θ·x). Two losses the data see only through one combination are
+    so gridded along and across the direction the data do see, not diagonally.
     """
 
     name: str
@@ -62,6 +68,11 @@ class Nuisance:
     #: told from is not in the model, e.g. an ESR versus a choke's core loss seen from the output alone)
     reportable: bool = True
     why: str = ""
+    share_of: str = ""
+    scale: float = 0.0
+    #: grid points on this axis (0: the default for the number of nuisances, _POINTS); a "share"
+    #: axis uses the cells' midpoints, so θ = 0 (a conductance 0, an infinite part) is never a point
+    points: int = 0
 
     def part(self, x: float) -> float:
         if self.variable == "conductance":
@@ -74,17 +85,37 @@ class Nuisance:
         return float(part_value)
 
 
+def point_parts(nuis: tuple[Nuisance, ...], pt) -> dict[str, float]:
+    """The nuisance parts' values at one grid point (see :class:`Nuisance` for "share")."""
+    x = {q.name: float(v) for q, v in zip(nuis, pt)}
+    out = {q.name: q.part(x[q.name]) for q in nuis if q.variable != "share"}
+    for q in nuis:
+        if q.variable == "share":
+            loss, theta = x[q.share_of], x[q.name]
+            out[q.share_of] = (1.0 - theta) * loss
+            g = theta * loss * q.scale
+            out[q.name] = math.inf if g <= 0 else 1.0 / g
+    return out
+
+
 def figures_of(v: Mapping[str, float]) -> dict[str, float]:
     """Resonance figures of a set of parts, and the total loss as a series resistance.
 
-    ``total_loss_ohm`` = Rs + ESR + L/(C·Rload) is the series resistance that would damp the
-    resonance as much as all the losses together (the load's L/(C·Rload) is the series
-    equivalent of a parallel resistance at resonance, for Rload ≫ √(L/C): common practice,
-    no source); it is what an output-only capture determines when it cannot split the losses.
+    ``total_loss_ohm`` = 2·L·α = L·a1/a2 (α the decay rate, a1, a2 the characteristic polynomial's
+    coefficients, :func:`benchfit.model.filter.coefficients_full`) is the one series resistance
+    that, with the same L, damps the resonance at the same rate as all the losses together. Without
+    a core loss it is Rs + ESR + L/(C·Rload) divided by 1 + ESR/Rload (a parallel loss counts as its
+    series equivalent at ω = 1/√(LC), (ωL)²/R = L/(C·R), for R ≫ ωL: common practice, no source).
+    A core loss Rp across L adds its own series equivalent L/(C·Rp), but the current through Rp
+    also flows through Rs, so the losses no longer add: to first order the total is
+    (Rs + ESR + L/(C·Rp))/(1 + Rs/Rp) + L/(C·Rload) — about 0.3 % below the plain sum for
+    Rs = 12 Ω and Rp = 2 kΩ, several standard uncertainties of an output-only fit. The decay rate
+    is what the response shows, so this is what an output-only capture determines when it cannot
+    split the losses (α and the natural frequency are functions of a1/a2 and a0/a2 alone).
     """
     p = LowpassParts(v["L"], v["C"], v["Rs"], v["Resr"], v["Rload"], v.get("Rp", math.inf))
     fig = dict(second_order(p))
-    fig["total_loss_ohm"] = p.Rs + p.Resr + p.L * p.g / p.C + (p.L / p.C) * p.gp
+    fig["total_loss_ohm"] = 2.0 * p.L * fig["decay_rate_per_s"]
     return fig
 
 
@@ -134,22 +165,41 @@ def _quantities(values: dict[str, float], names: tuple[str, ...], jac: np.ndarra
         return np.array([v[k] if k in v and k not in fig else fig[k] for k in keys])
 
     base = all_of(x0)
-    grad = numeric_jacobian(all_of, x0, step=1e-6) if x0.size else np.zeros((len(keys), 0))
-    var = np.einsum("ij,jk,ik->i", grad, cov, grad) if x0.size else np.zeros(len(keys))
+    with np.errstate(invalid="ignore"):  # a held infinite part (no load) has no derivative: nan, unused
+        grad = numeric_jacobian(all_of, x0, step=1e-6) if x0.size else np.zeros((len(keys), 0))
+        var = np.einsum("ij,jk,ik->i", grad, cov, grad) if x0.size else np.zeros(len(keys))
     return ({k: float(b) for k, b in zip(keys, base)},
             {k: float(math.sqrt(max(s, 0.0))) if math.isfinite(s) else math.nan for k, s in zip(keys, var)})
 
 
+def _count(q: Nuisance, n_nuis: int) -> int:
+    return q.points or _POINTS[n_nuis]
+
+
+def _step(q: Nuisance, n_nuis: int, lo: float, hi: float) -> float:
+    n = _count(q, n_nuis)
+    return (hi - lo) / (n if q.variable == "share" else n - 1)
+
+
+def _axis(q: Nuisance, n_nuis: int, lo: float, hi: float) -> np.ndarray:
+    n = _count(q, n_nuis)
+    if q.variable == "share":  # the cells' midpoints (see Nuisance.points)
+        return lo + (np.arange(n) + 0.5) * (hi - lo) / n
+    return np.linspace(lo, hi, n)
+
+
 def _grid(nuis: tuple[Nuisance, ...], spans: list[tuple[float, float]]) -> np.ndarray:
-    n = _POINTS[len(nuis)]
-    axes = [np.linspace(lo, hi, n) for lo, hi in spans]
-    mesh = np.meshgrid(*axes, indexing="ij")
-    pts = np.stack([m.ravel() for m in mesh], axis=1)
-    if len(nuis) == 2:  # serpentine order: each fit starts next to the previous one
-        pts = pts.reshape(n, n, 2)
-        pts[1::2] = pts[1::2, ::-1]
-        pts = pts.reshape(-1, 2)
-    return pts
+    axes = [_axis(q, len(nuis), lo, hi) for q, (lo, hi) in zip(nuis, spans)]
+    # serpentine order (the last axis runs back and forth, then the one before it, ...): each fit
+    # starts next to the previous one
+    pts = [np.zeros(0)]
+    for ax in axes:
+        nxt = []
+        for i, p in enumerate(pts):
+            for x in (ax if i % 2 == 0 else ax[::-1]):
+                nxt.append(np.append(p, x))
+        pts = nxt
+    return np.array(pts)
 
 
 def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapping[str, float],
@@ -164,18 +214,18 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
     fixed = {k: v for k, v in fixed.items() if k not in {n.name for n in nuis}}
     free = tuple(n for n in part_names if n not in fixed and n not in {q.name for q in nuis})
     keys = tuple(free) + tuple(q.name for q in nuis) + FIGURE_NAMES + tuple(more or {})
+    held_names = {q.name for q in nuis}
     spans = [(q.lo, q.hi) for q in nuis]
     rows: list[tuple] = []  # (point, χ², values, estimates, fit u, dof, prior mass of its cell)
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items() if k in free}
     ex = dict(extra or {})
-    n_axis = _POINTS[len(nuis)]
     for _ in range(_ROUNDS):
-        cell = float(np.prod([(hi - lo) / (n_axis - 1) for lo, hi in spans]))
+        cell = float(np.prod([_step(q, len(nuis), lo, hi) for q, (lo, hi) in zip(nuis, spans)]))
         prev, prev_ex = dict(start), dict(ex)
         fresh = []
         for pt in _grid(nuis, spans):
             fx = dict(fixed)
-            fx.update({q.name: q.part(float(x)) for q, x in zip(nuis, pt)})
+            fx.update(point_parts(nuis, pt))
             try:
                 v, names, jac, chi2, n_res = _fit_point(residual, {**values, **prev}, free, fx, prev_ex)
             except Exception:  # a point where the fit fails carries no weight
@@ -187,7 +237,9 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
             prev = {k: max(v[k], 1e-2 * float(values[k])) for k in free}
             prev_ex = {k: (v[k], lo, hi) for k, (_, lo, hi) in ex.items()}
             est, uest = _quantities(v, names, jac, 1.0, keys, more)
-            if not all(math.isfinite(x) for x in est.values()):
+            # a nuisance held at conductance 0 is an infinite part (no load, no core loss): a valid point,
+            # whose own value is never averaged (apply reads the grid coordinates for those)
+            if not all(math.isfinite(x) for k, x in est.items() if k not in held_names):
                 continue
             fresh.append((pt, chi2, v, est, uest, n_res - len(names), cell))
         # the new points replace the earlier (coarser) ones inside their spans
@@ -201,7 +253,7 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         for a, (lo, hi) in enumerate(spans):
             m = float(w @ pts[:, a])
             sd = math.sqrt(max(float(w @ (pts[:, a] - m) ** 2), 0.0))
-            step = (hi - lo) / (n_axis - 1)
+            step = _step(nuis[a], len(nuis), lo, hi)
             if sd < 2 * step and step > 1e-9 * max(abs(m), 1e-300):  # narrower than the grid: refine
                 refine = True
                 half = max(5 * sd, 1.5 * step)
@@ -225,6 +277,9 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
     for k in keys:
         q = np.array([r[3][k] for r in rows])
         uq = np.array([r[4][k] for r in rows])
+        if not np.all(np.isfinite(q)):  # a held part that is infinite at some points: apply uses its coordinate
+            mean[k], u_fit[k], u_spread[k] = math.nan, math.nan, math.nan
+            continue
         m = float(w @ q)
         mean[k] = m
         u_spread[k] = math.sqrt(max(float(w @ (q - m) ** 2), 0.0))
@@ -269,6 +324,27 @@ def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, lab
     return Budget(name, float(value), unit, tuple(rows), conditional_on=cond)
 
 
+def _total_loss_inputs(marg: Marginal, decay):
+    """The held inputs' rows of total_loss_ohm = 2·L·α, from those of the decay rate α.
+
+    Each input x moves the total by 2L·∂α/∂x, and a fixed L also directly by 2α: the output's shape
+    gives α, but turning it into ohms takes the impedance scale, so L's tolerance carries over in full.
+    """
+    from dataclasses import replace
+
+    if decay is None or decay.budget is None:
+        return None
+    big_l, alpha = marg.mean["L"] if "L" in marg.mean else marg.best["L"], decay.budget.value
+    rows = []
+    for c in decay.budget.contributions:
+        s = 2.0 * big_l * c.sensitivity
+        if c.name.startswith("fixed L ") and c.input_unit == "H":
+            s += 2.0 * alpha
+        rows.append(replace(c, sensitivity=s))
+    return replace(decay.budget, quantity="total_loss_ohm", value=2.0 * big_l * alpha, unit="ohm",
+                   contributions=tuple(rows))
+
+
 def apply(result, marg: Marginal):
     """The FitResult with every part and figure replaced by its marginal value and uncertainty."""
     from dataclasses import replace
@@ -296,6 +372,13 @@ def apply(result, marg: Marginal):
         if q.variable == "conductance":
             value = q.part(cm)
             u = csd / cm ** 2 if cm > 0 else math.inf
+        elif q.variable == "share":  # the part at the posterior mean of its conductance
+            gq = np.array([1.0 / point_parts(marg.nuisances, p)[q.name] for p in marg.points])
+            gm = float(marg.weights @ gq)
+            value = 1.0 / gm if gm > 1e-300 else math.inf
+            sdg = math.sqrt(max(float(marg.weights @ (gq - gm) ** 2), 0.0))
+            u = value * (sdg / gm) if math.isfinite(value) else math.inf
+            pinned = False  # θ says how the loss is split, not how well the part is known
         else:
             value, u = m, sd
         from benchfit.uncertainty import Budget, Contribution
@@ -323,7 +406,10 @@ def apply(result, marg: Marginal):
     for name in FIGURE_NAMES:
         value = marg.mean[name]
         base = derived.get(name)
-        b = _budget(name, value, DERIVED_UNITS[name], marg, None if base is None else base.budget, label)
+        base_budget = None if base is None else base.budget
+        if name == "total_loss_ohm" and base_budget is None:
+            base_budget = _total_loss_inputs(marg, derived.get("decay_rate_per_s"))
+        b = _budget(name, value, DERIVED_UNITS[name], marg, base_budget, label)
         if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
             derived[name] = DerivedValue(float(value), None, None, b)
         else:
@@ -336,9 +422,11 @@ def apply(result, marg: Marginal):
     if undetermined:
         tl = derived["total_loss_ohm"]
         shown = format_quantity(tl.value, display_unit("Rs"), 3) if tl.value is not None else "—"
+        terms = ("2·L·α, the series resistance of the same damping: Rs + ESR + L/(C·Rload)"
+                 + (" with the core loss's L/(C·Rp)" if any(q.name == "Rp" for q in marg.nuisances) else ""))
         warn.append(f"{', '.join(undetermined)}: not separated from {', '.join(q.name for q in notes) or 'the others'} "
                     f"by these data; the total loss they make together is determined: total_loss_ohm = {shown} "
-                    f"(Rs + ESR + L/(C·Rload)) — {notes[0].measure if notes else 'measure one of them'}")
+                    f"({terms}) — {notes[0].measure if notes else 'measure one of them'}")
     info = {q.name: {"range": [q.lo, q.hi], "variable": q.variable, "range_text": q.range_text, "source": q.source,
                      "points": int(marg.points.shape[0])} for q in marg.nuisances}
     return replace(result, parameters=params, derived=derived, warnings=tuple(warn),

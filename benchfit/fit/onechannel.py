@@ -28,9 +28,12 @@ With L (or C) known the shape still leaves two parts open: Rs and the load share
 along a direction the output does not see, and the ESR shows only through the magnitude of its
 zero (information ∝ ESR²), where a core loss in the choke looks the same. Both are integrated
 out over stated ranges (:mod:`benchfit.fit.marginal`) unless given with ``fix``: Rs, the ESR and
-the load are then reported as not separated, and ``total_loss_ohm`` (Rs + ESR + L/(C·Rload)) is
-the loss the data do determine. The core-loss comparison (F-test, AIC/BIC) runs as in the
-two-channel fit; Rp is added only when the data support it and determine it.
+the load are then reported as not separated, and ``total_loss_ohm`` (2·L·α, the series resistance
+of the same damping: Rs + ESR + L/(C·Rload), with a core loss's L/(C·Rp)) is the loss the data do
+determine. The core-loss comparison (F-test, AIC/BIC) runs as in the two-channel fit; Rp is
+fitted only when the data support it and determine it. Otherwise a core loss is integrated out
+too, as a share of ESR + L/(C·Rp), which is all the output shows of the two to first order
+(:func:`_core_loss_nuisances`), and Rp is reported as not separated from the ESR.
 """
 
 from __future__ import annotations
@@ -237,8 +240,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                 comparison["chosen"] = comparison["models"][0]
                 comparison["note"] = (f"core loss: the data call for a loss rising with frequency (F-test p = "
                                       f"{comparison['p_value']:.2g}) but do not separate Rp from the other losses, "
-                                      "so the plain model is kept, its uncertainties Birge-scaled, and the total "
-                                      "loss is what to read — measure the choke's loss (or Q) on its own to split it")
+                                      "so Rp is integrated out with them and the total loss is what to read — "
+                                      "measure the choke's loss (or Q) on its own to split it")
                 warnings = list(warnings) + [comparison["note"]]
             else:
                 values, ident, fixed, folded, warnings, ok, msg, alts = refit
@@ -261,7 +264,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                 else f"{100 * min(d, 1 - d):.1f} % (not determined)")
         warnings.insert(0, f"duty: the drive's duty cycle was fitted as {text} "
                            "(or its complement; the output alone cannot tell which)")
-    nuis = _nuisances(values, fix, ident)
+    nuis = _core_loss_nuisances(_nuisances(values, fix, ident), values, fix, comparison)
     marg = None
     if nuis:
         ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
@@ -366,3 +369,55 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> 
                             "the response shows", "measuring the load resistance (then --fix Rload=…) "
                             "would split Rs from it"))
     return tuple(out)
+
+
+#: grid points across the ESR / core-loss split (its share θ): the output hardly sees θ (see
+#: _core_loss_nuisances), so a few cells suffice for its rectangular prior
+_SHARE_POINTS = 3
+
+
+def _core_loss_nuisances(nuis: tuple[Nuisance, ...], values: Mapping[str, float], fix: Mapping[str, float],
+                         comparison) -> tuple[Nuisance, ...]:
+    """Add a core loss (Rp across L) the data did not determine as a nuisance, split from the ESR.
+
+    With the drive level unknown the output shows H only up to a scale: its two zeros and two
+    poles. By :func:`benchfit.model.filter.coefficients_full` the core-loss conductance γ = 1/Rp and
+    the ESR enter the numerator as (1 + sLγ)(1 + sC·ESR) and the damping a1 through L·γ + C·ESR;
+    what else they change (the factor 1 + Rs·γ of a2 and of the load's term) C and the load absorb.
+    So to first order the output sees only C·ESR + L·γ — the ESR plus the core loss's series
+    equivalent at resonance, (L/C)/Rp — and the two zeros' product, a second-order effect far above
+    resonance, is all that tells them apart (even exchanging them leaves the sum). Unless Rp is
+    given or the model comparison found it determined, the ESR axis of the grid becomes that sum
+    x = ESR + (L/C)/Rp (0 … the total loss, the data's own bound) and a share θ of it, uniform on
+    0 … 1, is the core loss: both are reported as not separated, the total loss is determined.
+    """
+    if "Rp" in fix or "Rp" in values or not nuis:
+        return nuis
+    total = figures_of(values)["total_loss_ohm"]
+    l_over_c = float(values["L"]) / float(values["C"])
+    p_text = ("" if comparison is None else
+              f" (the core-loss model comparison, F-test p = {comparison['p_value']:.2g}, neither calls for it "
+              "nor rules it out)")
+    measure = ("an LCR meter on the choke at the operating frequency (its Q or parallel loss resistance), "
+               "an ESR meter on the capacitor, or a two-channel capture (drive and output) would split them "
+               "(then --fix Rp=… or --fix Resr=…)")
+    out = [q for q in nuis if q.name != "Resr"]
+    if "Resr" in fix:  # the ESR known: the core loss alone over the data's own bound, as a conductance
+        g_max = total / l_over_c
+        return tuple(out) + (Nuisance("Rp", 0.0, g_max, "conductance",
+                                      f"{l_over_c / total:.3g} Ω … none (1/Rp rectangular on 0…{g_max:.3g} S)",
+                                      "the data's own bound: the core loss's series equivalent at resonance, "
+                                      "L/(C·Rp), cannot exceed the total loss that damps the resonance",
+                                      "an LCR meter on the choke at the operating frequency would pin it "
+                                      "(then --fix Rp=…)", why="not determined by these data" + p_text),)
+    why = ("not separated by an output-only capture from a core loss in the choke (Rp across L): to first "
+           "order both enter the response only through C·ESR + L/Rp" + p_text)
+    esr_and_core = Nuisance(
+        "Resr", 0.0, total, "value", f"0…{total:.3g} Ω for ESR + L/(C·Rp) together (rectangular)",
+        "the data's own bound: the ESR and the core loss together cannot exceed the total loss that damps "
+        "the resonance", measure, reportable=False, why=why)
+    core = Nuisance(
+        "Rp", 0.0, 1.0, "share", f"a share of that sum uniform on 0…1 (Rp from {l_over_c / total:.3g} Ω to none)",
+        "stated prior: the output alone does not tell the ESR from the core loss", measure, reportable=False,
+        why=why, share_of="Resr", scale=1.0 / l_over_c, points=_SHARE_POINTS)
+    return (esr_and_core,) + tuple(out) + (core,)

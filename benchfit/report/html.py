@@ -188,7 +188,7 @@ _PART_LABELS = {
     "damped_frequency_hz": "damped (ringing) frequency", "decay_rate_per_s": "decay rate α",
     "natural_frequency_hz": "natural frequency (loaded circuit)",
     "series_loss_ohm": "series loss, Rs + ESR (not split by the data)", "Rp": "Rp, core loss across L",
-    "total_loss_ohm": "total loss, Rs + ESR + L/(C·Rload) (not split by the data)",
+    "total_loss_ohm": "total loss, 2·L·α: Rs + ESR + L/(C·Rload) (+ core loss) (not split by the data)",
     "drive_asymmetry_ohm": "drive source resistance, high minus low (r_high − r_low)",
 }
 

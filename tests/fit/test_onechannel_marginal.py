@@ -56,7 +56,8 @@ def fits():
 def test_rs_and_load_are_reported_not_separated_with_the_total_loss(fits):
     r = fits[0]
     assert r.parameters["Rs"].stderr is None and r.parameters["Rload"].stderr is None
-    assert set(r.adequacy["marginalised"]) == {"Resr", "Rload"}
+    # the ESR and a core loss (Rp, seen with it only as C·ESR + L/Rp) and the load
+    assert set(r.adequacy["marginalised"]) == {"Resr", "Rload", "Rp"}
     # every marginalised part has a warning naming its range, its source and the measurement that pins it
     load = next(w for w in r.warnings if w.startswith("Rload:"))
     assert "marginalised over" in load and "measuring the load" in load
@@ -65,7 +66,7 @@ def test_rs_and_load_are_reported_not_separated_with_the_total_loss(fits):
     assert tl.stderr is not None and tl.stderr < 0.01 * tl.value
     # the budget of C carries the marginal's row (the unknown load moves C by its (1 + Rs/Rload) factor)
     names = [c.name for c in r.parameters["C"].budget.contributions]
-    assert any(n.startswith("undetermined Resr, Rload, marginalised") for n in names)
+    assert any(n.startswith("undetermined Resr, Rload, Rp, marginalised") for n in names)
 
 
 def test_z_scores_of_every_reported_value_are_honest(fits):
@@ -89,7 +90,7 @@ def test_z_scores_of_every_reported_value_are_honest(fits):
         z = np.asarray(zs[name])
         assert z.size == n and np.max(np.abs(z)) < math.sqrt(3.0) + 0.5, (name, np.round(z, 2))
     b = fits[0].parameters["C"].budget
-    assert b.largest().name.startswith("undetermined Resr, Rload, marginalised")
+    assert b.largest().name.startswith("undetermined Resr, Rload, Rp, marginalised")
 
 
 def test_core_loss_is_compared_but_not_told_from_the_esr_by_the_output_alone():
