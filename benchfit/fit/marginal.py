@@ -152,8 +152,13 @@ def _grid(nuis: tuple[Nuisance, ...], spans: list[tuple[float, float]]) -> np.nd
 
 def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapping[str, float],
                 fixed: Mapping[str, float], nuisances: tuple[Nuisance, ...],
-                extra: Mapping[str, tuple[float, float, float]] | None, part_names: tuple[str, ...]) -> Marginal:
-    """Integrate the ``nuisances`` out (module docstring); the other parts of ``part_names`` are fitted."""
+                extra: Mapping[str, tuple[float, float, float]] | None, part_names: tuple[str, ...],
+                start_for: Callable[[Mapping[str, float]], Mapping[str, float]] | None = None) -> Marginal:
+    """Integrate the ``nuisances`` out (module docstring); the other parts of ``part_names`` are fitted.
+
+    ``start_for`` (optional) maps a grid point's held parts to start values of some free parts, for a
+    valley the previous point's solution does not lead into (it overrides those parts' start).
+    """
     nuis = tuple(nuisances)
     fixed = {k: v for k, v in fixed.items() if k not in {n.name for n in nuis}}
     free = tuple(n for n in part_names if n not in fixed and n not in {q.name for q in nuis})
@@ -170,8 +175,11 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         for pt in _grid(nuis, spans):
             fx = dict(fixed)
             fx.update({q.name: q.part(float(x)) for q, x in zip(nuis, pt)})
+            st = {**values, **prev}
+            if start_for is not None:
+                st.update({k: x for k, x in start_for(fx).items() if k in free and math.isfinite(x) and x > 0})
             try:
-                v, names, jac, chi2, n_res = _fit_point(residual, {**values, **prev}, free, fx, prev_ex)
+                v, names, jac, chi2, n_res = _fit_point(residual, st, free, fx, prev_ex)
             except Exception:  # a point where the fit fails carries no weight
                 continue
             if not math.isfinite(chi2):
