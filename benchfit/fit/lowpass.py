@@ -289,16 +289,25 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
             "loss in the load — calibrate the inputs, or fix Rload (--fix Rload=…)"]
     if ratio_note:
         warnings = list(warnings) + [ratio_note]
-    marg, alts_base = None, []
+    marg, alts_base, gain_fitted = None, [], False
     nuis = () if time_domain else _nuisances(values, fix, ident, folded, alts)
     residual_m = _with_gain_prior(residual, ratio)
-    if nuis:
+    # with the load free, whether the data determine it is decided with the gain ratio fitted (held at 1,
+    # the DC level alone seems to pin a light load)
+    load_free = not time_domain and "Rload" not in fix and bool({"L", "C"} & set(fix)) \
+        and all(math.isfinite(v) for v in figures_of(values).values())
+    if nuis or load_free:
         # a light load shows in H at parts in 10⁴, so f is refined first with every order used: a square
         # drive's harmonics above the ninth, left out of the tone model, pull its estimate (135 ppm on a
         # 15-period record: H_k off by parts in 10³ near a sharp resonance, and χ²ᵣ ≈ 6 on a unit that
         # the model describes exactly). The base fit above keeps its f: refined there, it moves the core-loss
         # F-test of exact-model captures with sharp edges across its p < 0.001 threshold (left for later)
-        fine = fit_tone(x, fs, n_harmonics=kmax, frequency_hz=f) if kmax > 9 else None
+        # On the output: behind the low-pass it has almost no harmonics left to pull the estimate (the
+        # drive's with all 49 orders is still 8 ppm off, which biases Q by 2–3 of its u), and its
+        # fundamental is the strongest line in the capture; the drive when the output is weak
+        fine = fit_tone(y, fs, n_harmonics=min(kmax, 15), frequency_hz=f)
+        if fine is None or not fine.amplitudes[0] > SIGNIFICANCE * fine.amplitudes_u[0]:
+            fine = fit_tone(x, fs, n_harmonics=kmax, frequency_hz=f) if kmax > 9 else None
         if fine is not None and abs(fine.frequency_hz - f) < 1e-3 * f:
             f = fine.frequency_hz
             f_spec = _frequency_spec(f, fine.frequency_u_hz)
@@ -310,8 +319,10 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
             # what the data leave open is decided again at this f (an ESR folded at the coarse f may not be)
             z0 = math.sqrt(values["L"] / values["C"])
             st = {k: (v if v > 0 else 1e-3 * z0) for k, v in values.items() if k in parts}
-            values, ident, fixed, folded, warnings2, ok, msg, alts = solve(residual, st, fix_g, parts=parts)
-            fixed.pop("gain_ratio", None)
+            # with the gain ratio fitted under its prior, so its ±3 % counts in what the data determine
+            values, ident, fixed, folded, warnings2, ok, msg, alts = solve(
+                residual_m, st, fix, {"gain_ratio": (1.0, 0.5, 2.0)}, parts=parts)
+            gain_fitted = True
             warnings = [m for m in warnings if not m.startswith("Resr:")] + [m for m in warnings2 if m not in warnings]
             nuis = _nuisances(values, fix, ident, folded, alts)
     if nuis:
@@ -331,6 +342,9 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         fixed, folded, alts = dict(fix), [], []
         warnings = [m for m in warnings if not m.startswith("Resr:")]  # the fold is replaced by the marginal
         specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec}  # the gain ratio is inside the fit now
+        sens = propagate(residual_m, values, ident, specs)
+    elif gain_fitted:  # refined, and the data determine everything at the refined f
+        specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec}
         sens = propagate(residual_m, values, ident, specs)
     else:
         specs = {**input_specs(fix_specs or {}, fixed, folded, ratio), **f_spec}
@@ -433,18 +447,22 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident, fol
     """
     if not ({"L", "C"} & set(fix)) or {"L", "C"} <= set(ident.undetermined):
         return ()
-    total = figures_of(values)["total_loss_ohm"]
-    if not (math.isfinite(total) and total > 0):
-        return ()
+    figs = figures_of(values)
+    total = figs["total_loss_ohm"]
+    if not (math.isfinite(total) and total > 0) or not all(math.isfinite(v) for v in figs.values()):
+        return ()  # no resonance (the damped frequency is undefined): the grid has nothing to weigh
     und = set(ident.undetermined) | set(folded)
     if alternatives:  # two equally good solutions: the losses between Rs and the load
         und |= {"Rs", "Rload"}
     out = []
-    if "Resr" not in fix and "Resr" in und:
+    load = "Rload" not in fix and bool({"Rload", "Rs"} & und)
+    # the ESR only where the load is settled: with the load open too, the ESR is flagged with it (it has a
+    # share of the same near-null direction) and is refitted at every grid point of the load instead
+    if "Resr" not in fix and "Resr" in und and not load:
         out.append(Nuisance("Resr", 0.0, total, "value", f"0…{total:.3g} Ω (rectangular)",
                             "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
                             "an ESR meter on the capacitor would pin it (then --fix Resr=…)"))
-    if "Rload" not in fix and {"Rload", "Rs"} & und:
+    if load:
         l_over_c = float(values["L"]) / float(values["C"])
         g_max = total / l_over_c
         out.append(Nuisance("Rload", 0.0, g_max, "conductance",
