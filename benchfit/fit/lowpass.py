@@ -22,6 +22,14 @@ found from the Jacobian and from a search for a second, equally good solution
 (:mod:`benchfit.fit.identify`) and reported with ``stderr=None`` and a warning naming the
 part to measure and fix.
 
+Undetermined parts are integrated out, not held (two-channel, harmonic method). With the load free
+and L or C known, the drive frequency is refined (on the output, whose few harmonics cannot pull it)
+and the parts are fitted again with the channel gain ratio free under its stated prior; a load the
+data then leave unseparated from Rs (or an ESR folded at 0, with the load known) is marginalised over
+the same stated ranges as in the output-only fit (:mod:`benchfit.fit.marginal`), and reported as not
+determined, with the range, its source and the measurement that would pin it. A load the data
+determine stays fitted.
+
 Known limitation: the harmonic method takes the drive's sampled phasors as the circuit's
 input. A drive with sharp edges sampled without an anti-alias filter (a scope export) has
 aliased harmonics, which biases the highest orders by about (π·k·f/fs)²/3; the time-domain
@@ -321,7 +329,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
             st = {k: (v if v > 0 else 1e-3 * z0) for k, v in values.items() if k in parts}
             # with the gain ratio fitted under its prior, so its ±3 % counts in what the data determine
             values, ident, fixed, folded, warnings2, ok, msg, alts = solve(
-                residual_m, st, fix, {"gain_ratio": (1.0, 0.5, 2.0)}, parts=parts)
+                residual_m, st, fix, {"gain_ratio": (1.0, 0.5, 2.0)}, parts=parts, max_nfev=600)
             gain_fitted = True
             warnings = [m for m in warnings if not m.startswith("Resr:")] + [m for m in warnings2 if m not in warnings]
             nuis = _nuisances(values, fix, ident, folded, alts)

@@ -65,7 +65,10 @@ def _rows(sims, name: str, seeds) -> list:
 
 @pytest.fixture(scope="module")
 def rows(sims):
-    return {name: _rows(sims, name, SEEDS) for name in ("default", "asymmetric", "open")}
+    # the open unit differs from the default only at the end of the load's range: 5 seeds keep the module
+    # near 40 s (its 10-seed table is in the commit message: max |z| 2.5)
+    return {"default": _rows(sims, "default", SEEDS), "asymmetric": _rows(sims, "asymmetric", SEEDS),
+            "open": _rows(sims, "open", range(5))}
 
 
 @pytest.mark.parametrize("name", ["default", "open"])
