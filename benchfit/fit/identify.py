@@ -287,7 +287,7 @@ def display_unit(name: str) -> str:
 
 def solve(residual, start: dict[str, float], fix: Mapping[str, float],
           extra: Mapping[str, tuple[float, float, float]] | None = None,
-          parts: tuple[str, ...] = PARAMETER_NAMES):
+          parts: tuple[str, ...] = PARAMETER_NAMES, max_nfev: int = 4000):
     """Fit the free parts (and extras); fold an undetermined ESR into Rs and refit; look for a
     second, equally good solution.
 
@@ -306,7 +306,7 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
     while True:
         free = tuple(n for n in parts if n not in fixed and n != pin)
         pinned = {**fixed, pin: start[pin]} if pin else fixed
-        values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, pinned, extra)
+        values, names, jac, chi2, ok, msg = fit_log_parameters(residual, start, free, pinned, extra, max_nfev)
         if pin:
             names, jac = _unpinned_jacobian(residual, values, pin, names, extra)
             dof = max(residual(values).size - len(names), 1)
@@ -350,7 +350,7 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
             rs = values["Rs"] + z2 * (1.0 / values["Rload"] - 1.0 / st["Rload"])
             st["Rs"] = max(rs, 1e-3 * math.sqrt(z2))
             ex = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()} if extra else None
-            v2, n2, j2, c2, ok2, msg2 = fit_log_parameters(residual, st, free, fixed, ex)
+            v2, n2, j2, c2, ok2, msg2 = fit_log_parameters(residual, st, free, fixed, ex, max_nfev)
             total2 = c2 * dof
             if total2 < best_total - 1e-6 * max(best_total, 1.0):
                 alternatives.append(values)

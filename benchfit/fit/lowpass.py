@@ -22,6 +22,14 @@ found from the Jacobian and from a search for a second, equally good solution
 (:mod:`benchfit.fit.identify`) and reported with ``stderr=None`` and a warning naming the
 part to measure and fix.
 
+Undetermined parts are integrated out, not held (two-channel, harmonic method). With the load free
+and L or C known, the drive frequency is refined (on the output, whose few harmonics cannot pull it)
+and the parts are fitted again with the channel gain ratio free under its stated prior; a load the
+data then leave unseparated from Rs (or an ESR folded at 0, with the load known) is marginalised over
+the same stated ranges as in the output-only fit (:mod:`benchfit.fit.marginal`), and reported as not
+determined, with the range, its source and the measurement that would pin it. A load the data
+determine stays fitted.
+
 Known limitation: the harmonic method takes the drive's sampled phasors as the circuit's
 input. A drive with sharp edges sampled without an anti-alias filter (a scope export) has
 aliased harmonics, which biases the highest orders by about (π·k·f/fs)²/3; the time-domain
@@ -40,15 +48,18 @@ import numpy as np
 
 from benchfit.errors import FitError
 from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, free_response_basis, simulate, transfer
-from benchfit.fit.identify import solve
+from benchfit.fit.identify import fit_log_parameters, identify, solve
+from benchfit.fit.marginal import Nuisance, figures_of, marginalise
+from benchfit.fit.marginal import apply as apply_marginal
 from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, compare_core_loss,  # noqa: F401
                                   input_specs, propagate, source_name)
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov,  # noqa: F401
                                  noise_rescaled, parts_of, quality_complex, quality_real, start_parts, subset,
                                  whiten, whitening)
 from benchfit.fit.onechannel import fit_one_channel
+from benchfit.fit.propagate import InputSpec
 from benchfit.fit.tolerance import FixedValue, as_fixed
-from benchfit.fit.result import PARAMETER_UNITS, FitCurves, FitResult
+from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitResult
 
 __all__ = ["fit_lowpass", "MethodOption", "MODEL_NAME"]
 
@@ -221,6 +232,8 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                        "non-periodic drive, or use fit_ringdown()")
     f = tone.frequency_hz
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
+    # the estimate's own noise moves every k·f the model is evaluated at: an input of the budget
+    f_spec = _frequency_spec(f, tone.frequency_u_hz)
     hx_all = noise_rescaled(fit_harmonics(x, fs, f, kmax), x, fs)
     # a periodic drive is explained by its harmonics: require 90 % of its variance
     var_x = float(np.sum((x - x.mean()) ** 2))
@@ -246,27 +259,36 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     xk, yk = hx.phasors, hy.phasors
     hk = yk / xk
     cov = complex_mult_cov(1.0 / xk, hy.phasor_cov) + complex_mult_cov(-yk / xk ** 2, hx.phasor_cov)
-    w = whitening(cov)
     fk = orders * f
-    u_abs = np.sqrt(np.maximum(np.einsum("ki,kij,kj->k",
-                                         np.stack([hk.real, hk.imag], 1) / np.abs(hk)[:, None],
-                                         cov, np.stack([hk.real, hk.imag], 1) / np.abs(hk)[:, None]),
-                               0.0))
+    w = whitening(cov)
+    u_abs = _abs_u(hk, cov)
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return whiten(w, hk - v.get("gain_ratio", 1.0) * transfer(fk, parts_of(v)))
+        return whiten(w, hk - v.get("gain_ratio", 1.0) * transfer(fk * v.get("f_scale", 1.0), parts_of(v)))
 
     ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
     start = start_parts(w0, q, b0, fix, guess)
     fix_g = {**fix, "gain_ratio": 1.0}
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix_g)
-    comparison = None
+    comparison, parts = None, PARAMETER_NAMES
     if "Rp" not in fix:
         comparison, chosen = compare_core_loss(residual, values, ident, fixed, fix_g)
-        if chosen is not None:
-            values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, chosen, fix_g, parts=PART_NAMES)
-            warnings = list(warnings) + [comparison["note"]]
+        if chosen is not None and comparison is not None:
+            refit = solve(residual, chosen, fix_g, parts=PART_NAMES)
+            if "Rp" in refit[1].undetermined and not {"L", "C"} <= set(refit[1].undetermined):
+                # as in the one-channel fit: a core loss the data call for but cannot separate from the
+                # other losses (typically with the load unknown) is not reported; the plain model is kept
+                comparison["chosen"] = comparison["models"][0]
+                comparison["note"] = (f"core loss: the data call for a loss rising with frequency (F-test p = "
+                                      f"{comparison['p_value']:.2g}) but do not separate Rp from the other losses, "
+                                      "so the plain model is kept, its uncertainties Birge-scaled — measure the "
+                                      "choke's loss (or Q) on its own, or fix Rload, to split it")
+                warnings = list(warnings) + [comparison["note"]]
+            else:
+                values, ident, fixed, folded, warnings, ok, msg, alts = refit
+                warnings = list(warnings) + [comparison["note"]]
+                parts = PART_NAMES
     fixed.pop("gain_ratio", None)
     if cap.units[di] != cap.units[ri] or "FS" in (cap.units[di], cap.units[ri]):
         warnings = list(warnings) + [
@@ -275,9 +297,67 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
             "loss in the load — calibrate the inputs, or fix Rload (--fix Rload=…)"]
     if ratio_note:
         warnings = list(warnings) + [ratio_note]
-    specs = input_specs(fix_specs or {}, fixed, folded, ratio)
-    sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
-    h_model = transfer(fk, parts_of(values))
+    marg, alts_base, gain_fitted = None, [], False
+    nuis = () if time_domain else _nuisances(values, fix, ident, folded, alts)
+    residual_m = _with_gain_prior(residual, ratio)
+    # with the load free, whether the data determine it is decided with the gain ratio fitted (held at 1,
+    # the DC level alone seems to pin a light load)
+    load_free = not time_domain and "Rload" not in fix and bool({"L", "C"} & set(fix)) \
+        and all(math.isfinite(v) for v in figures_of(values).values())
+    if nuis or load_free:
+        # a light load shows in H at parts in 10⁴, so f is refined first with every order used: a square
+        # drive's harmonics above the ninth, left out of the tone model, pull its estimate (135 ppm on a
+        # 15-period record: H_k off by parts in 10³ near a sharp resonance, and χ²ᵣ ≈ 6 on a unit that
+        # the model describes exactly). The base fit above keeps its f: refined there, it moves the core-loss
+        # F-test of exact-model captures with sharp edges across its p < 0.001 threshold (left for later)
+        # On the output: behind the low-pass it has almost no harmonics left to pull the estimate (the
+        # drive's with all 49 orders is still 8 ppm off, which biases Q by 2–3 of its u), and its
+        # fundamental is the strongest line in the capture; the drive when the output is weak
+        fine = fit_tone(y, fs, n_harmonics=min(kmax, 15), frequency_hz=f)
+        if fine is None or not fine.amplitudes[0] > SIGNIFICANCE * fine.amplitudes_u[0]:
+            fine = fit_tone(x, fs, n_harmonics=kmax, frequency_hz=f) if kmax > 9 else None
+        if fine is not None and abs(fine.frequency_hz - f) < 1e-3 * f:
+            f = fine.frequency_hz
+            f_spec = _frequency_spec(f, fine.frequency_u_hz)
+            hx, hy, hk, cov = _harmonic_h(x, y, fs, f, kmax, keep)
+            xk, fk = hx.phasors, orders * f
+            w = whitening(cov)
+            u_abs = _abs_u(hk, cov)
+            residual_m = _with_gain_prior(residual, ratio)  # residual reads hk, w, fk from this scope
+            # what the data leave open is decided again at this f (an ESR folded at the coarse f may not be)
+            z0 = math.sqrt(values["L"] / values["C"])
+            st = {k: (v if v > 0 else 1e-3 * z0) for k, v in values.items() if k in parts}
+            # with the gain ratio fitted under its prior, so its ±3 % counts in what the data determine
+            values, ident, fixed, folded, warnings2, ok, msg, alts = solve(
+                residual_m, st, fix, {"gain_ratio": (1.0, 0.5, 2.0)}, parts=parts, max_nfev=600)
+            gain_fitted = True
+            warnings = [m for m in warnings if not m.startswith("Resr:")] + [m for m in warnings2 if m not in warnings]
+            nuis = _nuisances(values, fix, ident, folded, alts)
+    if nuis:
+        # integrated out over stated ranges (fit.marginal), the channel gain ratio fitted with a prior
+        try:
+            marg = marginalise(residual_m, values, fix, nuis, {"gain_ratio": (1.0, 0.5, 2.0)}, parts,
+                               start_for=_valley_start(values))
+        except ValueError:  # no grid point has finite figures (no resonance: the damped frequency is
+            marg = None     # undefined); the base fit's linearised treatment stays
+    if marg is not None:
+        alts_base = list(alts)  # the base fit's equally good solutions, checked against the posterior
+        held = {q.name: marg.best[q.name] for q in nuis}
+        free = tuple(n for n in parts if n not in fix and n not in held)
+        values, names, jac, chi2_red, ok, msg = fit_log_parameters(
+            residual_m, marg.best, free, {**fix, **held}, {"gain_ratio": (marg.best["gain_ratio"], 0.5, 2.0)})
+        ident = identify(jac, names, chi2_red)
+        fixed, folded, alts = dict(fix), [], []
+        warnings = [m for m in warnings if not m.startswith("Resr:")]  # the fold is replaced by the marginal
+        specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec}  # the gain ratio is inside the fit now
+        sens = propagate(residual_m, values, ident, specs)
+    elif gain_fitted:  # refined, and the data determine everything at the refined f
+        specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec}
+        sens = propagate(residual_m, values, ident, specs)
+    else:
+        specs = {**input_specs(fix_specs or {}, fixed, folded, ratio), **f_spec}
+        sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
+    h_model = values.get("gain_ratio", 1.0) * transfer(fk, parts_of(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs
     y_model = hy.dc + sum((xk[i] * h_model[i] * np.exp(1j * orders[i] * 2 * math.pi * f * t)).real
@@ -300,7 +380,192 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
 
         result = replace(result, adequacy={**result.adequacy,
                                            "model_comparison": {k: v for k, v in comparison.items() if k != "note"}})
-    return result
+    if marg is None:
+        return result
+    result = apply_marginal(result, marg)
+    return _other_modes(result, residual_m, alts_base, marg, fix, parts)
+
+
+def _other_modes(result: FitResult, residual_m, alternatives: list, marg, fix: Mapping[str, float],
+                 parts: tuple[str, ...]) -> FitResult:
+    """Say so where an equally good solution lies outside the grid's posterior (a missed mode).
+
+    The grid over the load range has 15 points per pass and refines around the posterior's bulk, so a
+    second, narrow minimum (a heavy load trades places with Rs: 12 Ω with 220 Ω or 41 Ω with 725 Ω fit
+    equally well) can fall between its points. Each equally good solution the base fit found
+    (:func:`benchfit.fit.identify.solve`) is refitted with the gain prior; one within Δχ² = 4·s (s the
+    Birge factor, the same Δχ² < 4 as that search) whose load differs from the reported value makes the
+    load and Rs not determined, and every figure that differs between the two gets half the spread as
+    a rectangular row (or is not determined beyond a 5 % difference, as for the base fit's solutions).
+    """
+    from dataclasses import replace
+
+    from benchfit.uncertainty import Contribution
+
+    s = max(1.0, marg.chi2_red)
+    best = float(np.min(marg.chi2))
+    free = tuple(n for n in parts if n not in fix)
+    modes = []
+    for alt in alternatives:
+        try:
+            v, *_ = fit_log_parameters(residual_m, alt, free, dict(fix),
+                                       {"gain_ratio": (marg.best["gain_ratio"], 0.5, 2.0)}, max_nfev=600)
+        except Exception:  # a start that does not converge says nothing about a second mode
+            continue
+        r = residual_m(v)
+        rl = result.parameters["Rload"].value
+        if float(r @ r) - best < 4.0 * s and (rl is None or abs(v["Rload"] - rl) > 0.1 * rl):
+            modes.append(v)
+    if not modes:
+        return result
+    params = dict(result.parameters)
+    for name in ("Rs", "Rload"):
+        p = params[name]
+        if not p.fixed:
+            params[name] = replace(p, stderr=None, u_fit=None)
+    derived = dict(result.derived)
+    for name, dv in list(derived.items()):
+        if dv.value is None or dv.stderr is None:
+            continue
+        other = [figures_of(m).get(name) for m in modes]
+        diff = max((abs(o - dv.value) for o in other if o is not None and math.isfinite(o)), default=0.0)
+        if diff > 0.05 * abs(dv.value):
+            derived[name] = DerivedValue(dv.value, None, None, dv.budget)
+        elif diff > dv.stderr:
+            b = dv.budget.with_rows(Contribution("other equally good solution (half the spread)", "B", "rectangular",
+                                                 diff / 2, dv.budget.unit, 1.0)) if dv.budget is not None else None
+            derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, b, dv.conditional_on)
+    shown = "; or ".join(f"Rs = {m['Rs']:.3g} Ω, Rload = {m['Rload']:.3g} Ω" for m in modes)
+    note = (f"Rs, Rload: another solution fits these data as well ({shown}) — they are not determined; "
+            "measuring the load resistance (then --fix Rload=…) would pick one")
+    return replace(result, parameters=params, derived=derived, warnings=tuple(result.warnings) + (note,))
+
+
+def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident, folded: list[str],
+               alternatives: list) -> tuple[Nuisance, ...]:
+    """The parts a two-channel capture did not pin, with their stated plausible ranges.
+
+    With the drive measured the data determine H itself, so a load is usually seen — through the DC
+    gain only as far as the channels' gain ratio is known (±3 % unless calibrated, while a 10 kΩ load
+    behind 12 Ω takes 0.1 %), and through the damping it adds, Z0²/Rload beside Rs. A light load is
+    therefore often traded against Rs (undetermined, or two equally good solutions), and the ESR shows
+    only through the magnitude of its zero (its information ∝ ESR², so it is folded at 0 when small).
+    Those are integrated out (:mod:`benchfit.fit.marginal`) over the same ranges as in the
+    output-only fit; a part the data determine stays fitted. The scale (L or C) must be known.
+    """
+    if not ({"L", "C"} & set(fix)) or {"L", "C"} <= set(ident.undetermined):
+        return ()
+    figs = figures_of(values)
+    total = figs["total_loss_ohm"]
+    if not (math.isfinite(total) and total > 0) or not all(math.isfinite(v) for v in figs.values()):
+        return ()  # no resonance (the damped frequency is undefined): the grid has nothing to weigh
+    und = set(ident.undetermined) | set(folded)
+    if alternatives:  # two equally good solutions: the losses between Rs and the load
+        und |= {"Rs", "Rload"}
+    out = []
+    load = "Rload" not in fix and bool({"Rload", "Rs"} & und)
+    # the ESR only where the load is settled: with the load open too, the ESR is flagged with it (it has a
+    # share of the same near-null direction) and is refitted at every grid point of the load instead
+    if "Resr" not in fix and "Resr" in und and not load:
+        out.append(Nuisance("Resr", 0.0, total, "value", f"0…{total:.3g} Ω (rectangular)",
+                            "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
+                            "an ESR meter on the capacitor would pin it (then --fix Resr=…)"))
+    if load:
+        l_over_c = float(values["L"]) / float(values["C"])
+        g_max = total / l_over_c
+        out.append(Nuisance("Rload", 0.0, g_max, "conductance",
+                            f"{l_over_c / total:.3g} Ω … open (1/Rload rectangular on 0…{g_max:.3g} S)",
+                            "the data's own bound: the load takes anywhere from none to all of the damping "
+                            "the response shows", "measuring the load resistance (then --fix Rload=…) "
+                            "would split Rs from it"))
+    return tuple(out)
+
+
+def _frequency_spec(f: float, f_u: float | None) -> dict[str, InputSpec]:
+    """The fundamental's estimate as an input of the budget (its u moves every k·f of the model)."""
+    if not f_u:
+        return {}
+    ppm = 1e6 * float(f_u) / f
+    return {"f_scale": InputSpec("f_scale", FixedValue(1.0, float(f_u) / f, "normal", f"u = {ppm:.2g} ppm",
+                                                       "the fundamental's least-squares fit (benchfit.measurement.tone)"),
+                                 "1", f"fundamental frequency estimate (u = {ppm:.2g} ppm, normal)", "frequency")}
+
+
+def _harmonic_h(x: np.ndarray, y: np.ndarray, fs: float, f: float, kmax: int, keep: np.ndarray):
+    """Both channels' harmonic fits at f (all orders below kmax), the kept orders' H_k and its covariance."""
+    from benchfit.measurement.tone import fit_harmonics
+
+    hx = subset(noise_rescaled(fit_harmonics(x, fs, f, kmax), x, fs), keep)
+    hy = subset(noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs), keep)
+    xk, yk = hx.phasors, hy.phasors
+    hk = yk / xk
+    cov = complex_mult_cov(1.0 / xk, hy.phasor_cov) + complex_mult_cov(-yk / xk ** 2, hx.phasor_cov)
+    return hx, hy, hk, cov
+
+
+def _abs_u(hk: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    """Standard uncertainty of |H_k| from the (Re, Im) covariance."""
+    d = np.stack([hk.real, hk.imag], 1) / np.abs(hk)[:, None]
+    return np.sqrt(np.maximum(np.einsum("ki,kij,kj->k", d, cov, d), 0.0))
+
+
+def _valley_start(values: Mapping[str, float]):
+    """Start values of Rs and C for a grid point's load (and ESR) that keep the fitted resonance.
+
+    The response's denominator, normalised to 1 at DC, is 1 + a1·s + a2·s² with (Rload = 1/g)
+    a1 = (L·g + C·(1 + g·(Rs + ESR)) ... ) — exactly: a1 = [g·L + C·(Rs + ESR + g·Rs·ESR)]/(1 + g·Rs),
+    a2 = L·C·(1 + g·ESR)/(1 + g·Rs). Holding the base fit's a1 and a2 and solving for Rs and C gives the
+    start on the valley of equally good fits; the load can trade places with Rs far beyond the reach of
+    the previous grid point's solution (a heavy load: two solutions, e.g. 12 Ω with 220 Ω or 41 Ω with
+    725 Ω, differ by Δχ² < 1).
+    """
+    L0 = float(values["L"])
+
+    def coeffs(rs: float, c: float, e: float, g: float) -> tuple[float, float]:
+        d = 1.0 + g * rs
+        return (g * L0 + c * (rs + e + g * rs * e)) / d, L0 * c * (1.0 + g * e) / d
+
+    g0 = 0.0 if math.isinf(values["Rload"]) else 1.0 / float(values["Rload"])
+    a1, a2 = coeffs(float(values["Rs"]), float(values["C"]), float(values["Resr"]), g0)
+
+    def start(fx: Mapping[str, float]) -> dict[str, float]:
+        r = float(fx.get("Rload", values["Rload"]))
+        g = 0.0 if math.isinf(r) else 1.0 / r
+        e = float(fx.get("Resr", values["Resr"]))
+        # from a2: C = a2·(1 + g·Rs)/(L·(1 + g·e)); into a1, linear in Rs:
+        # a1·(1 + g·Rs)·L·(1 + g·e) = g·L²·(1 + g·e) + a2·(1 + g·Rs)·(Rs + e + g·Rs·e) — quadratic in Rs
+        k = a2 / (L0 * (1.0 + g * e))
+        # k·(1 + g·Rs)·(Rs·(1 + g·e) + e) − a1·(1 + g·Rs) + g·L0 = 0
+        qa = k * g * (1.0 + g * e)
+        qb = k * (1.0 + g * e) + k * g * e - a1 * g
+        qc = k * e - a1 + g * L0
+        if abs(qa) < 1e-300:
+            rs = -qc / qb if qb != 0 else math.nan
+        else:
+            disc = qb * qb - 4 * qa * qc
+            rs = (-qb + math.sqrt(disc)) / (2 * qa) if disc >= 0 else math.nan
+        if not (math.isfinite(rs) and rs > 0):
+            return {}
+        return {"Rs": rs, "C": k * (1.0 + g * rs)}
+
+    return start
+
+
+def _with_gain_prior(residual, ratio: FixedValue):
+    """The residual with the channel gain ratio as a fitted parameter and its prior as one more point.
+
+    The ratio's stated uncertainty (a rectangular ±3 % unless the inputs are calibrated) enters as a
+    normal prior of the same standard uncertainty, (g − 1)/u: the usual Gaussian stand-in for a Type B
+    input whose only known moment is its standard uncertainty (GUM 4.3.7; the approximation is that of a
+    fit with a prior term, common practice, no source). Held at 1 instead, the DC gain would read a
+    light load to 0.1 % although the channels agree only to a few per cent.
+    """
+    u = float(ratio.u) if ratio.u else 0.03 / math.sqrt(3.0)
+
+    def residual_m(v: dict[str, float]) -> np.ndarray:
+        return np.append(residual(v), (v.get("gain_ratio", 1.0) - ratio.value) / u)
+
+    return residual_m
 
 
 def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],

@@ -205,10 +205,13 @@ def _grid(nuis: tuple[Nuisance, ...], spans: list[tuple[float, float]]) -> np.nd
 def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapping[str, float],
                 fixed: Mapping[str, float], nuisances: tuple[Nuisance, ...],
                 extra: Mapping[str, tuple[float, float, float]] | None, part_names: tuple[str, ...],
-                more: Mapping[str, Callable[[Mapping[str, float]], float]] | None = None) -> Marginal:
+                more: Mapping[str, Callable[[Mapping[str, float]], float]] | None = None,
+                start_for: Callable[[Mapping[str, float]], Mapping[str, float]] | None = None) -> Marginal:
     """Integrate the ``nuisances`` out (module docstring); the other parts of ``part_names`` are fitted.
 
     ``more`` are further figures (name → function of the fitted values) to mix like the others.
+    ``start_for`` (optional) maps a grid point's held parts to start values of some free parts, for a
+    valley the previous point's solution does not lead into (it overrides those parts' start).
     """
     nuis = tuple(nuisances)
     fixed = {k: v for k, v in fixed.items() if k not in {n.name for n in nuis}}
@@ -226,8 +229,11 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         for pt in _grid(nuis, spans):
             fx = dict(fixed)
             fx.update(point_parts(nuis, pt))
+            st = {**values, **prev}
+            if start_for is not None:
+                st.update({k: x for k, x in start_for(fx).items() if k in free and math.isfinite(x) and x > 0})
             try:
-                v, names, jac, chi2, n_res = _fit_point(residual, {**values, **prev}, free, fx, prev_ex)
+                v, names, jac, chi2, n_res = _fit_point(residual, st, free, fx, prev_ex)
             except Exception:  # a point where the fit fails carries no weight
                 continue
             if not math.isfinite(chi2):

@@ -148,14 +148,18 @@ def test_second_equally_good_solution_is_reported():
     # with L fixed and a 10 kΩ load free, losses in Rs and in Rload trade off: the normalised
     # coefficients of H(s) (REFERENCES §6) admit two part sets with the same response here
     r = fit_lowpass(_two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=7), fix={"L": 0.3})
-    amb = [w for w in r.warnings if "fit these data equally well" in w]
-    assert amb and "--fix Rload=" in amb[0]
+    # reported as two solutions, or (issue 11) as a load integrated out over its stated range; either way
+    # a warning names the load and the measurement that settles it
+    amb = [w for w in r.warnings if "Rload" in w.split(":")[0] and "--fix Rload=" in w]
+    assert amb
     assert r.parameters["Rs"].stderr is None and r.parameters["Rload"].stderr is None
-    # the resonance figures are the same for both solutions and stay determined
+    # the load is integrated out over its stated range (issue 11): C, and with it 1/(2π√(LC)), shifts a
+    # little with it, which the marginal's spread covers; the figure stays determined (u ≪ 50 %) and within
+    # 3 u of the truth (a k = 3 interval)
     f0 = r.derived["resonant_frequency_hz"]
-    assert f0.stderr is not None
-    assert f0.value == pytest.approx(second_order(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3))
-                                     ["resonant_frequency_hz"], rel=1e-3)  # 2 mV noise
+    assert f0.stderr is not None and f0.stderr < 0.01 * f0.value
+    truth = second_order(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3))["resonant_frequency_hz"]
+    assert abs(f0.value - truth) < 3 * f0.stderr
 
 
 def test_one_channel_undoes_a_known_input_coupling(tmp_path):
