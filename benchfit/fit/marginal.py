@@ -273,6 +273,7 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         ex = {k: (best[2][k], lo, hi) for k, (_, lo, hi) in ex.items()}
     chi = np.array([r[1] for r in rows])
     ib = int(np.argmin(chi))
+    unresolved = _unresolved_axes(rows, nuis, spans)
     dof = max(int(rows[ib][5]), 1)
     chi2_red = float(chi[ib] / dof)
     s = max(1.0, chi2_red)
@@ -288,12 +289,48 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
             continue
         m = float(w @ q)
         mean[k] = m
-        u_spread[k] = math.sqrt(max(float(w @ (q - m) ** 2), 0.0))
+        u_spread[k] = math.sqrt(max(float(w @ (q - m) ** 2), 0.0) + _resolution_var(rows, unresolved, ib, k))
         u_fit[k] = math.sqrt(float(w @ np.nan_to_num(uq, nan=0.0) ** 2)) if np.all(np.isfinite(uq)) else math.nan
     # the fit covariance above is unscaled (noise known from the phasors): Birge-scale it here
     u_fit = {k: v * math.sqrt(s) for k, v in u_fit.items()}
     return Marginal(nuis, np.array([r[0] for r in rows]), w, chi, dict(rows[ib][2]), mean, u_fit, u_spread,
                     chi2_red, dof)
+
+
+def _unresolved_axes(rows, nuis: tuple[Nuisance, ...], spans: list[tuple[float, float]]) -> list[int]:
+    """Axes whose posterior still sits on about one grid point (sd < half a step) after every round."""
+    w = _weights(rows)
+    pts = np.array([r[0] for r in rows])
+    out = []
+    for a, (lo, hi) in enumerate(spans):
+        m = float(w @ pts[:, a])
+        sd = math.sqrt(max(float(w @ (pts[:, a] - m) ** 2), 0.0))
+        if sd < 0.5 * _step(nuis[a], len(nuis), lo, hi):
+            out.append(a)
+    return out
+
+
+def _resolution_var(rows, axes: list[int], ib: int, key: str) -> float:
+    """Variance the grid cannot resolve along ``axes`` where the posterior sits on one point: the
+    quantity is taken as anywhere between its values at the best point's neighbours on that axis
+    (rectangular, half-width half their difference; GUM 4.3.7). Before this, a part the data pin
+    far more tightly than the grid came out ± 0 (a load of 10 kΩ ± 0.0 Ω)."""
+    var = 0.0
+    best = rows[ib]
+    for a in axes:
+        others = [i for i in range(len(best[0])) if i != a]
+        line = [r for r in rows if all(math.isclose(float(r[0][i]), float(best[0][i]), rel_tol=1e-9, abs_tol=1e-300)
+                                       for i in others)]
+        x0 = float(best[0][a])
+        lower = [r for r in line if float(r[0][a]) < x0]
+        upper = [r for r in line if float(r[0][a]) > x0]
+        near = [max(lower, key=lambda r: float(r[0][a]))] if lower else []
+        near += [min(upper, key=lambda r: float(r[0][a]))] if upper else []
+        vals = [float(r[3][key]) for r in near if math.isfinite(float(r[3][key]))]
+        if vals:
+            half = 0.5 * (max(vals + [float(best[3][key])]) - min(vals + [float(best[3][key])]))
+            var += half ** 2 / 3.0
+    return var
 
 
 def _weights(rows) -> np.ndarray:
@@ -378,6 +415,8 @@ def apply(result, marg: Marginal):
         if q.variable == "conductance":
             value = q.part(cm)
             u = csd / cm ** 2 if cm > 0 else math.inf
+            floor = marg.u_spread.get(q.name, math.nan)  # with the grid's resolution (_resolution_var)
+            u = max(u, floor) if math.isfinite(floor) else u
         elif q.variable == "share":  # the part at the posterior mean of its conductance
             gq = np.array([1.0 / point_parts(marg.nuisances, p)[q.name] for p in marg.points])
             gm = float(marg.weights @ gq)
