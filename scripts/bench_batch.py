@@ -20,9 +20,10 @@ prints them as a table. Measured:
   and much slower when other processes load the machine).
 * The machine's bound for two processes: two fresh interpreters at once, each measuring
   every other file in one process; ``jobs 1`` over the longer of the two. A pool cannot beat
-  it (its workers pay the same imports and share the same two cores, caches and memory);
-  on the development VM it came out 1.44–1.71× over three runs of this script, and the
-  pool 1.31–1.46× in the same runs (it also waits for the fork server's interpreter start).
+  it (its workers pay the same imports and share the same two cores, caches and memory).
+  On the idle development VM it came out 1.80× and 1.98× in two runs of this script, the
+  pool 1.46× and 1.51× in the same runs: the gap is the pool's own start (the fork server's
+  interpreter and imports, ~0.35 s, before the first worker runs), not the two cores.
 * Pool start-up by start method: the wall time of a two-worker ``run_jobs`` over two files,
   in a fresh interpreter, for ``forkserver`` (with the measurement modules preloaded in
   the server) and ``spawn``.
