@@ -128,9 +128,8 @@ def compare_drive_asymmetry(residual, values: Mapping[str, float], names: tuple[
 
 def asymmetry_value(values: Mapping[str, float], ident, specs, sens, dof: int):
     """Δr with its budget (delta method over a, ln L, ln C; the inputs' rows from their sensitivities)."""
-    from benchfit.fit.propagate import fit_row
-    from benchfit.fit.result import DerivedValue
-    from benchfit.uncertainty import Budget, Contribution
+    from benchfit.fit.propagate import derived_budget
+    from benchfit.fit.result import DERIVED_UNITS, DerivedValue
 
     names = ident.names
     dr = asymmetry_ohm(values)
@@ -139,21 +138,11 @@ def asymmetry_value(values: Mapping[str, float], ident, specs, sens, dof: int):
         if n in names:
             g[names.index(n)] = d
     und = NAME in ident.undetermined
-    var = float(g @ ident.cov_log @ g)
-    u_fit = math.sqrt(max(var, 0.0))
-    rows = [fit_row(u_fit, "ohm", ident.chi2_red, dof)]
-    cond: list[str] = []
-    for key, spec in specs.items():
-        if spec.u is None:
-            cond.append(key)
-            continue
-        s = sens.get(key)
-        direct = {"L": 0.5 * dr / float(values["L"]), "C": -0.5 * dr / float(values["C"])}.get(key, 0.0) \
-            if key not in names else 0.0
-        sens_k = (float(g @ s) if s is not None else 0.0) + direct
-        rows.append(Contribution(spec.label, "B", spec.fixed.distribution, float(spec.u), spec.unit, sens_k, math.inf,
-                                 spec.fixed.source))
-    b = Budget(FIGURE, dr, "ohm", tuple(rows), conditional_on=tuple(cond))
+    u_fit = math.sqrt(max(float(g @ ident.cov_log @ g), 0.0))
+    # a fixed L or C enters Δr = a·√(L/C) directly as well
+    direct = {k: d for k, d in (("L", 0.5 * dr / float(values["L"])), ("C", -0.5 * dr / float(values["C"])))
+              if k not in names}
+    b = derived_budget(FIGURE, dr, DERIVED_UNITS[FIGURE], u_fit, g, direct, ident, specs, sens, dof)
     if und or not math.isfinite(b.u):
         return DerivedValue(dr, None, None, b)
     return DerivedValue(dr, b.u, u_fit, b, b.conditional_on)
@@ -194,12 +183,12 @@ def marginal_asymmetry(result, marg):
     from dataclasses import replace
 
     from benchfit.fit.marginal import _budget
-    from benchfit.fit.result import DerivedValue
+    from benchfit.fit.result import DERIVED_UNITS, DerivedValue
 
     base = result.derived.get(FIGURE)
     value = float(marg.mean[FIGURE])
     names = ", ".join(q.name for q in marg.nuisances)
-    b = _budget(FIGURE, value, "ohm", marg, None if base is None else base.budget,
+    b = _budget(FIGURE, value, DERIVED_UNITS[FIGURE], marg, None if base is None else base.budget,
                 f"undetermined {names}, marginalised over the stated range (spread over the posterior)")
     warnings = [w for w in result.warnings if not w.startswith(f"{FIGURE}: the data call for an uneven drive but")]
     if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
