@@ -23,7 +23,8 @@ from benchfit.uncertainty import (DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL, DEFAULT_
                                   Contribution)
 from benchfit.units import format_quantity
 
-__all__ = ["input_specs", "propagate", "assemble", "channel_gain_ratio", "compare_core_loss"]
+__all__ = ["input_specs", "propagate", "assemble", "channel_gain_ratio", "compare_core_loss",
+           "core_loss_not_separated"]
 
 MODEL_NAME = "lc-lowpass"
 
@@ -242,6 +243,17 @@ def channel_gain_ratio(cap, di: int, ri: int) -> tuple[FixedValue, str | None]:
     half = DEFAULT_CHANNEL_RATIO_HALF_WIDTH_REL
     return FixedValue(1.0, half, "rectangular", f"±{100 * half:g} %",
                       "stated default for unmatched inputs (from memory)"), DEFAULT_CHANNEL_RATIO_NOTE
+
+
+def core_loss_not_separated(comparison: dict, warnings, kept: str, split: str) -> list[str]:
+    """The comparison called for a core loss, but the refit with Rp cannot separate it: the plain
+    model stays chosen, and a note says so (``kept``: what the fit does instead; ``split``: the
+    measurement that would separate it). Returns the warnings with the note added."""
+    comparison["chosen"] = comparison["models"][0]
+    comparison["note"] = (f"core loss: the data call for a loss rising with frequency (F-test p = "
+                          f"{comparison['p_value']:.2g}) but do not separate Rp from the other losses, "
+                          f"so {kept} — {split}")
+    return list(warnings) + [comparison["note"]]
 
 
 def compare_core_loss(residual, values: Mapping[str, float], ident: Identification,

@@ -52,7 +52,7 @@ from benchfit.fit.identify import fit_log_parameters, identify, solve
 from benchfit.fit.marginal import Nuisance, figures_of, marginalise
 from benchfit.fit.marginal import apply as apply_marginal
 from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, compare_core_loss,  # noqa: F401
-                                  input_specs, propagate, source_name)
+                                  core_loss_not_separated, input_specs, propagate, source_name)
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov,  # noqa: F401
                                  noise_rescaled, parts_of, quality_complex, quality_real, start_parts, subset,
                                  whiten, whitening)
@@ -256,9 +256,8 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     if not np.any(hy.amplitudes > SIGNIFICANCE * hy.amplitudes_u):
         raise FitError(f"{where}: response channel {cap.channel_names[ri]!r} shows no response at the "
                        "drive's harmonics — check the wiring, or choose the channel with response=")
-    xk, yk = hx.phasors, hy.phasors
-    hk = yk / xk
-    cov = complex_mult_cov(1.0 / xk, hy.phasor_cov) + complex_mult_cov(-yk / xk ** 2, hx.phasor_cov)
+    xk = hx.phasors
+    hk, cov = _ratio(hx, hy)
     fk = orders * f
     w = whitening(cov)
     u_abs = _abs_u(hk, cov)
@@ -279,12 +278,10 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
             if "Rp" in refit[1].undetermined and not {"L", "C"} <= set(refit[1].undetermined):
                 # as in the one-channel fit: a core loss the data call for but cannot separate from the
                 # other losses (typically with the load unknown) is not reported; the plain model is kept
-                comparison["chosen"] = comparison["models"][0]
-                comparison["note"] = (f"core loss: the data call for a loss rising with frequency (F-test p = "
-                                      f"{comparison['p_value']:.2g}) but do not separate Rp from the other losses, "
-                                      "so the plain model is kept, its uncertainties Birge-scaled — measure the "
-                                      "choke's loss (or Q) on its own, or fix Rload, to split it")
-                warnings = list(warnings) + [comparison["note"]]
+                warnings = core_loss_not_separated(comparison, warnings,
+                                                   "the plain model is kept, its uncertainties Birge-scaled",
+                                                   "measure the choke's loss (or Q) on its own, or fix Rload, "
+                                                   "to split it")
             else:
                 values, ident, fixed, folded, warnings, ok, msg, alts = refit
                 warnings = list(warnings) + [comparison["note"]]
@@ -497,10 +494,14 @@ def _harmonic_h(x: np.ndarray, y: np.ndarray, fs: float, f: float, kmax: int, ke
 
     hx = subset(noise_rescaled(fit_harmonics(x, fs, f, kmax), x, fs), keep)
     hy = subset(noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs), keep)
+    return (hx, hy) + _ratio(hx, hy)
+
+
+def _ratio(hx, hy) -> tuple[np.ndarray, np.ndarray]:
+    """H_k = Y_k/X_k of the kept orders and its (Re, Im) covariance (first order in both channels' noise)."""
     xk, yk = hx.phasors, hy.phasors
-    hk = yk / xk
     cov = complex_mult_cov(1.0 / xk, hy.phasor_cov) + complex_mult_cov(-yk / xk ** 2, hx.phasor_cov)
-    return hx, hy, hk, cov
+    return yk / xk, cov
 
 
 def _abs_u(hk: np.ndarray, cov: np.ndarray) -> np.ndarray:

@@ -46,7 +46,8 @@ import numpy as np
 from benchfit.errors import FitError
 from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, rectangular_phasors, transfer
 from benchfit.fit.asymmetry import NAME as ASYMMETRY
-from benchfit.fit.budgets import assemble, compare_core_loss, input_specs, propagate, source_name
+from benchfit.fit.budgets import (assemble, compare_core_loss, core_loss_not_separated, input_specs, propagate,
+                                  source_name)
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov, noise_rescaled,
                                  parts_of, quality_complex, start_parts, subset, whiten, whitening)
 from benchfit.fit.asymmetry import BOUND as ASYMMETRY_BOUND
@@ -237,12 +238,9 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
             refit = solve(residual, chosen, fix, {n: (chosen[n], lo, hi) for n, (_, lo, hi) in extra.items()},
                           parts=PART_NAMES)
             if "Rp" in refit[1].undetermined:
-                comparison["chosen"] = comparison["models"][0]
-                comparison["note"] = (f"core loss: the data call for a loss rising with frequency (F-test p = "
-                                      f"{comparison['p_value']:.2g}) but do not separate Rp from the other losses, "
-                                      "so Rp is integrated out with them and the total loss is what to read — "
-                                      "measure the choke's loss (or Q) on its own to split it")
-                warnings = list(warnings) + [comparison["note"]]
+                warnings = core_loss_not_separated(
+                    comparison, warnings, "Rp is integrated out with them and the total loss is what to read",
+                    "measure the choke's loss (or Q) on its own to split it")
             else:
                 values, ident, fixed, folded, warnings, ok, msg, alts = refit
                 warnings = list(warnings) + [comparison["note"]]
