@@ -165,9 +165,9 @@ def _quantities(values: dict[str, float], names: tuple[str, ...], jac: np.ndarra
         return np.array([v[k] if k in v and k not in fig else fig[k] for k in keys])
 
     base = all_of(x0)
-    with np.errstate(invalid="ignore"):  # a held infinite part (no load) has no derivative: nan, unused
-        grad = numeric_jacobian(all_of, x0, step=1e-6) if x0.size else np.zeros((len(keys), 0))
-        var = np.einsum("ij,jk,ik->i", grad, cov, grad) if x0.size else np.zeros(len(keys))
+    # a held infinite part (no load) does not move with the fitted ones: numeric_jacobian gives it 0
+    grad = numeric_jacobian(all_of, x0, step=1e-6) if x0.size else np.zeros((len(keys), 0))
+    var = np.einsum("ij,jk,ik->i", grad, cov, grad) if x0.size else np.zeros(len(keys))
     return ({k: float(b) for k, b in zip(keys, base)},
             {k: float(math.sqrt(max(s, 0.0))) if math.isfinite(s) else math.nan for k, s in zip(keys, var)})
 
