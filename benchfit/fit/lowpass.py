@@ -49,7 +49,7 @@ import numpy as np
 from benchfit.errors import FitError
 from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, free_response_basis, simulate, transfer
 from benchfit.fit.identify import fit_log_parameters, identify, solve
-from benchfit.fit.marginal import Nuisance, figures_of, marginalise
+from benchfit.fit.marginal import Nuisance, figures_of, load_nuisance, marginalise
 from benchfit.fit.marginal import apply as apply_marginal
 from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, compare_core_loss,  # noqa: F401
                                   core_loss_not_separated, input_specs, propagate, source_name)
@@ -468,13 +468,7 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident, fol
                             "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
                             "an ESR meter on the capacitor would pin it (then --fix Resr=…)"))
     if load:
-        l_over_c = float(values["L"]) / float(values["C"])
-        g_max = total / l_over_c
-        out.append(Nuisance("Rload", 0.0, g_max, "conductance",
-                            f"{l_over_c / total:.3g} Ω … open (1/Rload rectangular on 0…{g_max:.3g} S)",
-                            "the data's own bound: the load takes anywhere from none to all of the damping "
-                            "the response shows", "measuring the load resistance (then --fix Rload=…) "
-                            "would split Rs from it"))
+        out.append(load_nuisance(values, total))
     return tuple(out)
 
 

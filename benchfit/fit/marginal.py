@@ -32,7 +32,7 @@ import numpy as np
 from benchfit.fit.identify import fit_log_parameters, numeric_jacobian
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
 
-__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "point_parts", "FIGURE_NAMES"]
+__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "point_parts", "load_nuisance", "FIGURE_NAMES"]
 
 #: grid points per nuisance axis (a second pass refines an axis whose posterior is narrow); a
 #: nuisance may set its own count (``Nuisance.points``, e.g. a share the data hardly see)
@@ -83,6 +83,18 @@ class Nuisance:
         if self.variable == "conductance":
             return 0.0 if math.isinf(part_value) else 1.0 / part_value
         return float(part_value)
+
+
+def load_nuisance(values: Mapping[str, float], total: float) -> Nuisance:
+    """The load as a nuisance over the data's own bound: from none (open) to all of the damping the
+    response shows, ``total`` ohm of series loss (as a conductance 1/Rload, rectangular)."""
+    l_over_c = float(values["L"]) / float(values["C"])
+    g_max = total / l_over_c
+    return Nuisance("Rload", 0.0, g_max, "conductance",
+                    f"{l_over_c / total:.3g} Ω … open (1/Rload rectangular on 0…{g_max:.3g} S)",
+                    "the data's own bound: the load takes anywhere from none to all of the damping "
+                    "the response shows", "measuring the load resistance (then --fix Rload=…) "
+                    "would split Rs from it")
 
 
 def point_parts(nuis: tuple[Nuisance, ...], pt) -> dict[str, float]:

@@ -55,7 +55,7 @@ from benchfit.fit.asymmetry import FIGURE as ASYMMETRY_FIGURE
 from benchfit.fit.asymmetry import asymmetric_phasors, asymmetry_ohm, compare_drive_asymmetry, marginal_asymmetry, \
     with_asymmetry
 from benchfit.fit.identify import fit_log_parameters, identify, solve
-from benchfit.fit.marginal import Nuisance, figures_of, marginalise
+from benchfit.fit.marginal import Nuisance, figures_of, load_nuisance, marginalise
 from benchfit.fit.marginal import apply as apply_marginal
 from benchfit.fit.result import FitCurves
 
@@ -382,13 +382,7 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> 
     # identifiability analysis may find Rs and the load apart: then they are fitted, not integrated out
     split = ASYMMETRY in values and not {"Rs", "Rload"} & set(ident.undetermined)
     if "Rload" not in fix and "Rs" not in fix and not split:
-        l_over_c = float(values["L"]) / float(values["C"])
-        g_max = total / l_over_c
-        out.append(Nuisance("Rload", 0.0, g_max, "conductance",
-                            f"{l_over_c / total:.3g} Ω … open (1/Rload rectangular on 0…{g_max:.3g} S)",
-                            "the data's own bound: the load takes anywhere from none to all of the damping "
-                            "the response shows", "measuring the load resistance (then --fix Rload=…) "
-                            "would split Rs from it"))
+        out.append(load_nuisance(values, total))
     return tuple(out)
 
 
