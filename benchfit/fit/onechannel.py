@@ -22,7 +22,10 @@ periodic steady state of the switched source (:mod:`benchfit.fit.asymmetry`,
 :mod:`benchfit.model.switched`; F-test) and, when the data call for it, fits the asymmetry
 r_high − r_low (reported as ``drive_asymmetry_ohm``) while Rs keeps the time average. The switched
 circuit's output can then also tell Rs from the load; where the identifiability analysis finds
-them apart they are fitted instead of integrated out (below).
+them apart they are fitted instead of integrated out (below). The drive's levels need no model:
+a timer's low level above ground and high level below the supply (a bipolar stage's VOL, VOH)
+only scale the harmonics, switched source or not (:mod:`benchfit.model.switched`), and G takes
+that scale.
 
 With L (or C) known the shape still leaves two parts open: Rs and the load share the damping
 along a direction the output does not see, and the ESR shows only through the magnitude of its

@@ -24,6 +24,9 @@ Cases (issue 11):
   rails: low 0.15 V, high 1.6 V below the 12 V supply (a bipolar timer's VOL and VOH, NE555
   datasheet), two-channel (drive probed at the timer pin) and output only;
   ``offset-levels-symmetric-output-only`` — the same levels behind 15 Ω high and low, output only.
+  No fit models the levels (they only scale the output's harmonics, benchfit.model.switched); the
+  symmetric unit is a time-invariant one like ``sound-card`` and, with the same capture noise,
+  meets the same seed-0 draw on Q (tests/fit/test_honest_units.py's xfail).
 """
 
 from __future__ import annotations
