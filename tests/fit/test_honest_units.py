@@ -1,7 +1,7 @@
 """Done-when check of issue 11: simulated units with real losses, z-scores of every reported value.
 
 Source of truth: ngspice (an independent circuit simulator) solves each unit once
-(tests/fit/units_issue11.py describes the six cases); ten noise seeds per case are added here.
+(tests/fit/units_issue11.py describes the cases); ten noise seeds per case are added here.
 For every seed, every fitted part and derived value must either lie within 3 combined standard
 uncertainties of the simulator's truth (|z| < 3: a k = 3 interval, which a normal error leaves
 with probability 0.27 %; most rows here are dominated by Type B terms that are constant over
