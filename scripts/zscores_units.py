@@ -1,8 +1,8 @@
-"""Print z-score spreads per simulated unit (issue 11): python3 scripts/zscores_units.py [SEEDS].
+"""Print z-score spreads per simulated unit (issue 11): python3 scripts/zscores_units.py [SEEDS [CASE ...]].
 
 For each case of tests/fit/units_issue11.py (ngspice-simulated, seeded noise) and each reported
 value: max |z|, sd and mean of z = (reported − true)/u over the seeds, and what was reported as
-not determined, then per case the largest |z| and the range of sd(z) against the χ² band an
+not determined, then per case the largest |z|, the mean fit time per seed and the range of sd(z) against the χ² band an
 honest sd would stay in (scipy.stats.chi2). Needs ngspice.
 """
 
@@ -25,9 +25,12 @@ from units_issue11 import CASES, run_case  # noqa: E402
 
 def main() -> None:
     n = int(sys.argv[1]) if len(sys.argv) > 1 else 10
+    names = sys.argv[2:] or list(CASES)
     with tempfile.TemporaryDirectory(prefix="benchfit-z-") as tmp:
-        for name in CASES:
-            rows = run_case(Path(tmp), name, range(n))
+        for name in names:
+            times: list[float] = []
+            rows = run_case(Path(tmp), name, range(n), times)
+            per_fit = float(np.mean(times)) if times else math.nan
             zs: dict[str, list[float]] = {}
             for _, z, _ in rows:
                 for k, v in z.items():
@@ -47,7 +50,8 @@ def main() -> None:
             band = [math.sqrt(chi2.ppf(p, n - 1) / (n - 1)) for p in (0.0005, 0.9995)] if n > 1 else [0.0, 0.0]
             print(f"  => max|z| {worst[0]:.2f} ({worst[1]}); sd(z) {min(sds, default=0):.2f}…{max(sds, default=0):.2f}"
                   f" (99.9 % band of an honest sd for {n} seeds: {band[0]:.2f}…{band[1]:.2f}; an sd below it is"
-                  " expected where a Type B term constant over the seeds, e.g. a fixed part's tolerance, dominates u)")
+                  " expected where a Type B term constant over the seeds, e.g. a fixed part's tolerance, dominates u);"
+                  f" fit {per_fit:.2f} s per seed")
 
 
 if __name__ == "__main__":

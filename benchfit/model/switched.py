@@ -19,6 +19,22 @@ convention of :func:`benchfit.model.filter.rectangular_phasors`) follow in close
 phase, from ∫₀ʰ e^{A s}e^{−jkωs}ds = (A − jkωI)⁻¹(e^{A h}e^{−jkωh} − I): no time grid, no FFT.
 With Rs_h = Rs_l the result is P_k(D)·H(jkω) to rounding (tested).
 
+Levels off the rails (a bipolar timer's low level sits 0.1–0.2 V above ground and its high level
+about 1.7 V below the supply: NE555 datasheet, TI SLFS022A, VOL and VOH) change only the scale of
+the output's harmonics, exactly. At DC the choke is a short and the capacitor open, so both phases'
+equilibria per volt lie along one vector: x̄_i = [1, R_L]/(Rs_i + R_L), so x̄_l = ρ·x̄_h with
+ρ = (Rs_h + R_L)/(Rs_l + R_L). With x̃ = x − u_l·x̄_l the low phase is unforced (A_l·x̄_l = −B_l) and
+the high phase is forced by A_h·x̄_l·u_l + B_h·u_h = B_h·(u_h − ρ·u_l) (A_h·x̄_h = −B_h): the 1 V / 0 V
+drive scaled by u_h − ρ·u_l. What x̃ leaves out of the output, u_l·(C_i·x̄_l + D_i) in the low phase
+and u_l·C_h·x̄_l + ρ·u_l·D_h in the high one, is the same constant u_l·R_L/(Rs_l + R_L) in both. So
+for every order k ≥ 1
+
+    Y_k(u_high, u_low) = (u_high − u_low·(Rs_h + R_L)/(Rs_l + R_L))·Y_k(1, 0),
+
+with a core loss and an ESR too (neither carries DC); an open load gives the factor u_high − u_low. A
+fit whose drive gain is free (an output-only capture) therefore needs no levels, and one that
+measures the drive after the source sees a time-invariant filter.
+
 The 2 × 2 matrix exponentials are written out (Cayley–Hamilton: e^{Ah} = e^{th}(cosh(sh)·I +
 sinh(sh)/s·(A − tI)), t = tr(A)/2, s² = t² − det A), so one call costs a few tens of µs for
 50 harmonics, cheap enough to sit inside a least-squares fit. The edges are instantaneous

@@ -110,6 +110,10 @@ class Unit:
     Rp: float | None = None
     r_high: float = 0.0
     r_low: float = 0.0
+    #: the timer's output levels with no current drawn: ``v_low`` above ground, ``v_drop`` below the
+    #: ideal high level (0 and 0: an ideal rail-to-rail stage)
+    v_low: float = 0.0
+    v_drop: float = 0.0
 
     @property
     def L(self) -> float:
@@ -122,12 +126,14 @@ def _unit_deck(u: Unit, *, freq: float, duty: float, high: float, edge: float, f
     period = 1.0 / freq
     width = duty * period - edge
     tmax = min(25e-6, 0.5 / fs)
-    lines = [f"* benchfit issue-11 unit: timer (R high {u.r_high:g}, low {u.r_low:g}) into Rs-L-(C+ESR)||Rload",
-             f"Vt ideal 0 PULSE(0 {high:.9g} 0 {edge:.9g} {edge:.9g} {width:.9g} {period:.9g})"]
+    v_lo, v_hi = u.v_low, high - u.v_drop
+    lines = [f"* benchfit issue-11 unit: timer (R high {u.r_high:g}, low {u.r_low:g}; levels {v_lo:g} / {v_hi:g} V) "
+             "into Rs-L-(C+ESR)||Rload",
+             f"Vt ideal 0 PULSE({v_lo:.9g} {v_hi:.9g} 0 {edge:.9g} {edge:.9g} {width:.9g} {period:.9g})"]
     if u.r_high > 0 or u.r_low > 0:
         # the output stage: a resistance that depends on the state (high while the ideal pin is high)
         lines.append(f"B1 ideal drive I = (V(ideal)-V(drive))/({u.r_low:.9g} + "
-                     f"({u.r_high - u.r_low:.9g})*V(ideal)/{high:.9g})")
+                     f"({u.r_high - u.r_low:.9g})*(V(ideal)-{v_lo:.9g})/{v_hi - v_lo:.9g})")
     else:
         lines.append("Rt ideal drive 1e-6")
     lines += [f"Rs drive n1 {u.Rs:.9g}",

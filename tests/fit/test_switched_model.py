@@ -100,3 +100,42 @@ def test_waveform_and_phasors_agree():
     spec = np.fft.rfft(y) * 2 / n
     ph = switched_phasors(k, F, DUTY, high, low)
     assert np.max(np.abs(spec[k] - ph)) < 1e-6 * abs(ph[0])
+
+
+@pytest.mark.parametrize("p", [LowpassParts(0.3, 33e-6, 12.0, 1.5, 1e4), LowpassParts(0.3, 33e-6, 12.0, 1.5, 1e4, 2000.0),
+                               LowpassParts(0.3, 33e-6, 12.0, 0.8, math.inf), LowpassParts(0.3, 33e-6, 0.2, 0.0, 50.0)],
+                         ids=["esr", "core-loss", "open", "overdamped-load"])
+def test_levels_off_the_rails_only_scale_the_output(p):
+    # a timer's levels 0.15 V and 12 − 1.6 V (NE555 datasheet, TI SLFS022A: VOL, VOH) behind 25 Ω high and
+    # 8 Ω low: the harmonics are the 1 V / 0 V drive's times u_h − u_l·(Rs_h + R_L)/(Rs_l + R_L), derived in
+    # benchfit.model.switched; both sides are closed forms, so they agree to rounding (1e-12 as above)
+    high, low = source_parts(p, 25.0, 8.0)
+    u_h, u_l = HIGH - 1.6, 0.15
+    k = np.arange(1, 50)
+    y = switched_phasors(k, F, DUTY, high, low, u_h, u_l)
+    rho = 1.0 if math.isinf(p.Rload) else (high.Rs + p.Rload) / (low.Rs + p.Rload)
+    ref = (u_h - u_l * rho) * switched_phasors(k, F, DUTY, high, low)
+    assert np.max(np.abs(y - ref)) < 1e-12 * np.max(np.abs(ref))
+    # the offset is not a plain shift of the swing: with a load, ρ ≠ 1 moves the scale by u_l·(ρ − 1)
+    if math.isfinite(p.Rload):
+        swing = (u_h - u_l) * switched_phasors(k, F, DUTY, high, low)
+        assert np.max(np.abs(y - swing)) > 1e-6 * np.max(np.abs(ref))
+
+
+@pytest.mark.ngspice
+def test_levels_off_the_rails_match_ngspice(tmp_path):
+    # the same unit in ngspice (fitspice.Unit: the timer's open-circuit levels 0.15 V and 10.4 V), against
+    # the model with those levels, to the bound TOL_REL of test_switched_source_matches_ngspice
+    unit = Unit(r_high=25.0, r_low=8.0, Resr=1.5, v_low=0.15, v_drop=1.6)
+    _, out = simulate_unit(tmp_path, unit, freq=F, duty=DUTY, high=HIGH, edge=EDGE, fs=FS, keep=0.1)
+    high, low = source_parts(_parts(unit), unit.r_high, unit.r_low)
+    n = out.size
+    k = np.arange(1, 50)
+    y_spice = (np.fft.rfft(out) * 2 / n)[k * int(round(n * F / FS))]
+    y_model = switched_phasors(k, F, DUTY, high, low, HIGH - unit.v_drop, unit.v_low) * np.exp(-1j * k * math.pi * F * EDGE)
+    a1 = abs(y_model[0])
+    assert np.max(np.abs(y_spice - y_model)) < TOL_REL * a1, np.abs(y_spice - y_model)[:6] / a1
+    # the DC: the low level through the low phase's divider plus the swing's mean (the model's own waveform)
+    t = 0.4 + np.arange(n) / FS - EDGE / 2
+    y = switched_waveform(t, F, DUTY, high, low, HIGH - unit.v_drop, unit.v_low)
+    assert float(np.mean(out)) == pytest.approx(float(np.mean(y)), abs=TOL_REL * a1)

@@ -20,6 +20,13 @@ Cases (issue 11):
   the fit must find the switched source (benchfit.fit.asymmetry); its truth r_high − r_low = 17 Ω.
 * ``core-loss-output-only`` — the core-loss unit (Rp = 2 kΩ across the chokes) captured like
   ``sound-card`` (output only).
+* ``offset-levels`` / ``offset-levels-output-only`` — the asymmetric timer whose levels are not the
+  rails: low 0.15 V, high 1.6 V below the 12 V supply (a bipolar timer's VOL and VOH, NE555
+  datasheet), two-channel (drive probed at the timer pin) and output only;
+  ``offset-levels-symmetric-output-only`` — the same levels behind 15 Ω high and low, output only.
+  No fit models the levels (they only scale the output's harmonics, benchfit.model.switched); the
+  symmetric unit is a time-invariant one like ``sound-card`` and, with the same capture noise,
+  meets the same seed-0 draw on Q (tests/fit/test_honest_units.py's xfail).
 """
 
 from __future__ import annotations
@@ -47,6 +54,13 @@ class Case:
     edge: float = 50e-6
 
 
+#: a bipolar timer's output levels: low 0.15 V above ground, high 1.6 V below the supply (NE555 datasheet,
+#: TI SLFS022A, electrical characteristics: VOL 0.1 V typ at IOL = 10 mA, 0.4 V at 50 mA; VOH 13.3 V typ at
+#: VCC = 15 V, IOH = −100 mA, i.e. VCC − 1.7 V), with the asymmetric source resistance above ...
+_OFFSET = Unit(r_high=25.0, r_low=8.0, Resr=1.5, v_low=0.15, v_drop=1.6)
+#: ... and with one resistance high and low
+_OFFSET_SYMMETRIC = Unit(r_high=15.0, r_low=15.0, v_low=0.15, v_drop=1.6)
+
 CASES = {
     "coupled-chokes": Case("coupled-chokes", Unit(k=0.55)),
     "core-loss": Case("core-loss", Unit(Rp=2000.0)),
@@ -55,9 +69,13 @@ CASES = {
     "sound-card": Case("sound-card", Unit(), edge=2e-6),
     "asymmetric-output-only": Case("asymmetric-output-only", Unit(r_high=25.0, r_low=8.0, Resr=1.5), edge=2e-6),
     "core-loss-output-only": Case("core-loss-output-only", Unit(Rp=2000.0), edge=2e-6),
+    "offset-levels": Case("offset-levels", _OFFSET),
+    "offset-levels-output-only": Case("offset-levels-output-only", _OFFSET, edge=2e-6),
+    "offset-levels-symmetric-output-only": Case("offset-levels-symmetric-output-only", _OFFSET_SYMMETRIC, edge=2e-6),
 }
 #: the cases captured on the output alone, like a sound card (AC-coupled, 16-bit, FS units)
-OUTPUT_ONLY = ("sound-card", "asymmetric-output-only", "core-loss-output-only")
+OUTPUT_ONLY = ("sound-card", "asymmetric-output-only", "core-loss-output-only", "offset-levels-output-only",
+               "offset-levels-symmetric-output-only")
 
 
 def simulate(tmp_path, case: Case):
@@ -135,14 +153,20 @@ def zscores(result, t: dict[str, float]) -> tuple[dict[str, float], list[str]]:
     return z, undetermined
 
 
-def run_case(tmp_path, name: str, seeds: range):
+def run_case(tmp_path, name: str, seeds: range, times: list[float] | None = None):
+    """Fit every seed of case ``name``; the fits' wall times (s) go to ``times`` when given."""
+    import time
+
     case = CASES[name]
     drive, out = simulate(tmp_path, case)
     t = truth(case.unit, output_only=name in OUTPUT_ONLY)
     rows = []
     for seed in seeds:
         cap, fix, duty = capture_and_fix(case, drive, out, seed)
+        t0 = time.perf_counter()
         r = fit_lowpass(cap, fix=fix, drive_duty=duty)
+        if times is not None:
+            times.append(time.perf_counter() - t0)
         z, und = zscores(r, t)
         rows.append((r, z, und))
     return rows
