@@ -16,7 +16,7 @@ import tempfile
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
-sys.path[:0] = [str(ROOT / "tests" / "model"), str(ROOT / "tests" / "design"), str(ROOT)]
+sys.path[:0] = [str(ROOT / "tests"), str(ROOT / "tests" / "model"), str(ROOT / "tests" / "design"), str(ROOT)]
 
 import numpy as np  # noqa: E402
 
