@@ -98,7 +98,7 @@ def stress_checks(pred, ratings: Ratings | None = None) -> tuple[StressCheck, ..
         _check("inductor_rms_a", pred.inductor_rms_a, "A", r.inductor_rms_a,
                "inductor current RMS", "choke rating"),
         _check("series_loss_w", pred.series_loss_w, "W", r.series_loss_w,
-               "I²R loss in the series resistance (windings, wiring, source)", "rating"),
+               "I²R loss before the choke (windings, wiring, timer output stage, divider)", "rating"),
         _check("capacitor_peak_v", max(abs(pred.capacitor_max_v), abs(pred.capacitor_min_v)), "V",
                r.capacitor_v, "capacitor voltage peak", "capacitor rating"),
     ]
