@@ -15,7 +15,7 @@ over the period; twice that, relative, for the loss, a square of currents). It c
   O((t_r/T)²), and one that jumps at an edge (the core-loss branch's v_L/Rp, the divider's direct path)
   by at most jump·t_r/T ≈ 1e-5 of its scale in the RMS, and its peak by |dq/dt|·t_r ≈ 1e-6;
 * the settling: the run lasts 16 time constants of the slowest mode, e^{−16} ≈ 1e-7;
-* reading peaks on ≤ 5 µs (ngspice) and T/4096 (model) spacing, ½·|q''|·(Δt/2)² ≲ 1e-6;
+* reading peaks on ≤ 5 µs (ngspice) and ≈ T/4000 (the model's 2049 points a phase) spacing, ½·|q''|·(Δt/2)² ≲ 1e-6;
 * the trapezoidal RMS over ≤ 5 µs steps, (Δt·ω)²/12 ≲ 1e-6 at the harmonics that carry the power.
 Before the fix this test came with, the choke's current with a core loss was 1.2 % off (linear path: its
 I_k ignored Rp) or 1.1e-3 off (switched path: L's own current, not the choke's terminal current), and the
