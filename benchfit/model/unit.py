@@ -28,7 +28,8 @@ phase's level, and is sampled exactly on each phase's grid (both ends included, 
 jumps at an edge is read on both sides of the jump, with no Gibbs overshoot of a truncated harmonic
 sum). The inductor current is the choke's terminal current, L and its core loss Rp as one part (the
 current in Rs; L's own current differs from it by v_L/Rp); the timer's current follows from it by
-KCL at the divider's tap; the capacitor voltage is the capacitor's own, without its ESR. RMS values
+KCL at the divider's tap; the capacitor voltage is the capacitor's own, without its ESR, and its
+current (the ripple current: it carries no DC in the steady state) i − v_out/Rload. RMS values
 and the I²R loss are integrated over the phases (Simpson's rule on 2049 points a phase: below 1e-9
 relative for these sums of exponentials); the loss is the dissipation in every resistance before the
 choke: Rs, the timer's output stage (i_timer²·r_high while high, i_timer²·r_low while low) and the
@@ -56,7 +57,8 @@ from typing import Any
 
 import numpy as np
 
-from benchfit.model.filter import LowpassParts, rectangular_phasors, second_order, transfer
+from benchfit.model.filter import (LowpassParts, feedthrough, rectangular_phasors, second_order, state_space,
+                                   transfer)
 
 __all__ = ["Drive", "CaptureChain", "UnitModel", "UnitPrediction", "predict", "predict_quantities",
            "MEASURE_HARMONICS", "SPEC_QUANTITIES"]
@@ -199,6 +201,7 @@ class UnitPrediction:
     series_loss_w: float
     capacitor_max_v: float
     capacitor_min_v: float
+    capacitor_rms_a: float
     source_peak_a: float
     source_rms_a: float
     chain: CaptureChain = field(default_factory=CaptureChain)
@@ -253,10 +256,12 @@ def _stresses(unit: UnitModel) -> dict[str, float]:
     d = unit.drive
     phases = _phase_circuits(unit)
     rows: list = [None, ((np.array([0.0, 1.0]), 0.0),) * 2]
-    i_rows, t_rows, tap_rows = [], [], []
+    i_rows, t_rows, tap_rows, c_rows = [], [], [], []
     for _u, p, _r, top, kk in phases:
         c, dd = series_current_row(p)
         i_rows.append((c, dd))
+        # the capacitor's current C·dv_C/dt = i − g·v_out (benchfit.model.filter.state_space)
+        c_rows.append((c - p.g * state_space(p)[2], dd - p.g * feedthrough(p)))
         if top is None:
             t_rows.append((c, dd))
             tap_rows.append((0.0 * c, 0.0))
@@ -265,8 +270,8 @@ def _stresses(unit: UnitModel) -> dict[str, float]:
             # KCL at the tap: v_tap = u − par·i, i_timer = (u/k − v_tap)/R_top'
             t_rows.append((c * (par / top), (1.0 / kk - 1.0) / top + dd * par / top))
             tap_rows.append((-par * c, 1.0 - par * dd))
-    rows += [tuple(i_rows), tuple(t_rows), tuple(tap_rows)]
-    grids, (out, vc, i, it, tap) = switched_samples(d.frequency_hz, d.duty, phases[0][1], phases[1][1], rows,
+    rows += [tuple(i_rows), tuple(t_rows), tuple(tap_rows), tuple(c_rows)]
+    grids, (out, vc, i, it, tap, ic) = switched_samples(d.frequency_hz, d.duty, phases[0][1], phases[1][1], rows,
                                                     phases[0][0], phases[1][0], _PHASE_POINTS)
     period = 1.0 / d.frequency_hz
 
@@ -282,6 +287,7 @@ def _stresses(unit: UnitModel) -> dict[str, float]:
             "inductor_peak_a": float(np.max(np.abs(cat(i)))), "inductor_rms_a": math.sqrt(mean(sq(i))),
             "series_loss_w": loss,
             "capacitor_max_v": float(max(v.max() for v in vc)), "capacitor_min_v": float(min(v.min() for v in vc)),
+            "capacitor_rms_a": math.sqrt(mean(sq(ic))),
             "source_peak_a": float(np.max(np.abs(cat(it)))), "source_rms_a": math.sqrt(mean(sq(it)))}
 
 

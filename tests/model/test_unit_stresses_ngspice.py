@@ -91,6 +91,7 @@ def test_currents_and_voltages_match_ngspice(case):
     pr = predict(unit)
     t, span = sim["t"], 2.0 / u.f
     rms = lambda q: math.sqrt(_mean(t, q ** 2, span))  # noqa: E731
+    i_c = (sim["out"] - sim["vc"]) / u.Resr
     # the choke's current is its terminal current (L with its core loss as one part, the current in Rs)
     checks = {"output_max_v": (pr.output_max_v, sim["out"].max(), sim["out"]),
               "output_min_v": (pr.output_min_v, sim["out"].min(), sim["out"]),
@@ -98,6 +99,8 @@ def test_currents_and_voltages_match_ngspice(case):
               "inductor_rms_a": (pr.inductor_rms_a, rms(sim["is"]), sim["is"]),
               "capacitor_max_v": (pr.capacitor_max_v, sim["vc"].max(), sim["vc"]),
               "capacitor_min_v": (pr.capacitor_min_v, sim["vc"].min(), sim["vc"]),
+              # the capacitor's (ripple) current, through its ESR: v(nc)/Resr
+              "capacitor_rms_a": (pr.capacitor_rms_a, rms(i_c), i_c),
               "source_peak_a": (pr.source_peak_a, np.abs(sim["it"]).max(), sim["it"]),
               "source_rms_a": (pr.source_rms_a, rms(sim["it"]), sim["it"])}
     bad = {k: (m, s, (m - s) / np.abs(w).max()) for k, (m, s, w) in checks.items()
@@ -113,4 +116,5 @@ def test_currents_and_voltages_match_ngspice(case):
     by_name = {s.quantity: s.value for s in stress_checks(pr)}
     assert by_name["timer_output_peak_a"] == pytest.approx(np.abs(sim["it"]).max(), rel=TOL)
     assert by_name["capacitor_peak_v"] == pytest.approx(np.abs(sim["vc"]).max(), rel=TOL)
+    assert by_name["capacitor_ripple_a"] == pytest.approx(rms(i_c), rel=TOL)
     assert by_name["output_peak_v"] == pytest.approx(np.abs(sim["out"]).max(), rel=TOL)
