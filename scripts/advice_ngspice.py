@@ -2,7 +2,8 @@
 """Print predicted vs ngspice re-simulated frequency, level and THD for the trim-advice cases.
 
 The same scenarios as tests/design/test_design_advice_ngspice.py (invented hum-check units):
-a passing unit, a wrong choke, a fast timer and an off-resonance filter. For each: the advice's
+a passing unit, a wrong choke, a fast timer, an off-resonance filter and a timer whose output
+resistance differs high and low (25 Ω / 8 Ω) driving the filter directly. For each: the advice's
 verdict and changes, and the predicted value ± u (k = 1) next to what benchfit measures on the
 ngspice re-simulation of the changed unit. Needs ngspice. Run from the repository root:
 
@@ -16,13 +17,14 @@ import tempfile
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
-sys.path[:0] = [str(ROOT / "tests" / "model"), str(ROOT / "tests" / "design"), str(ROOT)]
+sys.path[:0] = [str(ROOT / "tests"), str(ROOT / "tests" / "model"), str(ROOT / "tests" / "design"), str(ROOT)]
 
 import numpy as np  # noqa: E402
 
 import benchfit  # noqa: E402
 from benchfit.design.advice import TimerParts, advise  # noqa: E402
-from test_design_advice_ngspice import NOMINAL, SPEC, _capture_measure, _unit  # noqa: E402
+from test_design_advice_ngspice import (ASYM_SPEC, NOMINAL, SPEC, _applied, _asym_unit,  # noqa: E402
+                                        _capture_measure, _unit)
 from unitspice import simulate_astable  # noqa: E402
 
 
@@ -59,6 +61,14 @@ def main() -> None:
                 new["Rs"] += sum(c.values)
         _, after = _capture_measure(tmp, _unit(**new), name.split()[0] + "_after")
         _row(name, adv, after)
+    u = _asym_unit()
+    cap, meas = _capture_measure(tmp, u, "asymmetric")
+    fit = benchfit.fit_lowpass(cap, fix={"C": u.C, "Rload": 10e3})
+    adv = advise(ASYM_SPEC, fit=fit, measurement=meas.to_dict(), n_trials=600)
+    c_new, rs_new = _applied(adv.plan.changes, u.C, u.Rs)
+    _, after = _capture_measure(tmp, _asym_unit(C=c_new, Rs=rs_new), "asymmetric_after")
+    _row(f"asymmetric timer 25/8 Ω (fit: r_high − r_low = {fit.derived['drive_asymmetry_ohm'].value:.3f} Ω)",
+         adv, after)
     ra, rb, vcc = 1e3, 13.7e3, 12.0
     v_sat = vcc * 10.0 / (ra + 10.0)
     k_low = np.log((2 * vcc / 3 - v_sat) / (vcc / 3 - v_sat))

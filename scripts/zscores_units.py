@@ -19,6 +19,7 @@ from scipy.stats import chi2
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests" / "fit"))
+sys.path.insert(0, str(ROOT / "tests"))  # the shared ngspice runner
 
 from units_issue11 import CASES, run_case  # noqa: E402
 

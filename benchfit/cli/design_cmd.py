@@ -424,6 +424,7 @@ def _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, am
     t.add_row("output peak to peak", f"{pred.vpp:.4g} V")
     t.add_row("inductor current peak / RMS", f"{pred.inductor_peak_a:.4g} A / {pred.inductor_rms_a:.4g} A")
     t.add_row("capacitor max / min", f"{pred.capacitor_max_v:.4g} V / {pred.capacitor_min_v:.4g} V")
+    t.add_row("capacitor ripple current RMS", f"{pred.capacitor_rms_a:.4g} A")
     stdout.print(t)
     _print_lines([("FLAGGED: " if s.flagged else "") + s.text for s in stress])
     _print_lines([_CAUTION], "yellow")

@@ -248,7 +248,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                 values, ident, fixed, folded, warnings, ok, msg, alts = refit
                 warnings = list(warnings) + [comparison["note"]]
                 parts = PART_NAMES
-    asym = _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty is None)
+    asym = _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty)
     if asym is not None and asym[1] is not None:
         values, ident, fixed, folded, warnings, ok, msg, alts = asym[1]
         extra[ASYMMETRY] = (values[ASYMMETRY], -ASYMMETRY_BOUND, ASYMMETRY_BOUND)
@@ -329,12 +329,14 @@ def _load_beside_open_core_loss(result, nuis: tuple[Nuisance, ...], fix: Mapping
     return replace(result, parameters=params, warnings=tuple(result.warnings) + (warn,))
 
 
-def _drive_asymmetry(residual, values, ident, fix, extra, parts, duty_fitted: bool):
+def _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty: float | None):
     """Compare the ideal drive with a switched one (r_high ≠ r_low, :mod:`benchfit.fit.asymmetry`).
 
     Returns None when not compared (the asymmetry given as 0 with ``fix``), else (summary with a
-    note, the refit's :func:`solve` tuple when the data support the asymmetry, else None).
+    note and, when chosen, ``duty_high``: the duty of the phase whose resistance is r_high in
+    r_high − r_low; the refit's :func:`solve` tuple when the data support the asymmetry, else None).
     """
+    duty_fitted = drive_duty is None
     if ASYMMETRY in fix or {"L", "C"} <= set(ident.undetermined):
         return None
     ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
@@ -348,6 +350,7 @@ def _drive_asymmetry(residual, values, ident, fix, extra, parts, duty_fitted: bo
     chosen = {n: (v if n not in PART_NAMES or n in fix or v > 0 else 1e-3 * z0) for n, v in chosen.items()}
     refit = solve(residual, chosen, fix, {**ex_now, ASYMMETRY: (chosen[ASYMMETRY], -ASYMMETRY_BOUND,
                                                                  ASYMMETRY_BOUND)}, parts=parts)
+    summary["duty_high"] = float(refit[0]["duty"] if duty_fitted else drive_duty)  # type: ignore[arg-type]
     sign = (f", the phase lasting {100 * refit[0]['duty']:.3g} % of the period taken as high (the output alone "
             "cannot tell which phase is high, so the sign is open)" if duty_fitted else "")
     summary["note"] = (f"{ASYMMETRY_FIGURE}: the data call for a drive whose source resistance differs between "

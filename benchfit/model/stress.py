@@ -8,7 +8,8 @@ Ratings and their sources:
   "recommended operating conditions"; REFERENCES §11). The same datasheet's output-level
   table shows the stage is far from an ideal switch well below that (high level 13.3 V at
   −100 mA, 12.5 V at −200 mA at VCC = 15 V), so a design near the limit also loses level.
-* inductor peak/RMS current, series (I²R) loss, capacitor voltage: the parts' own ratings,
+* inductor peak/RMS current, series (I²R) loss, capacitor voltage and ripple current (RMS): the
+  parts' own ratings,
   checked only when given (no default exists for an unknown choke or capacitor).
 * capacitor below ground: a tank's capacitor swings below 0 V when the output's AC peak
   exceeds its DC level; a polarised (electrolytic) capacitor must then be replaced by a
@@ -50,6 +51,7 @@ class Ratings:
     inductor_rms_a: float | None = None
     series_loss_w: float | None = None
     capacitor_v: float | None = None
+    capacitor_ripple_a: float | None = None
     line_in_peak_v: float | None = LINE_IN_PEAK_V
 
 
@@ -98,9 +100,11 @@ def stress_checks(pred, ratings: Ratings | None = None) -> tuple[StressCheck, ..
         _check("inductor_rms_a", pred.inductor_rms_a, "A", r.inductor_rms_a,
                "inductor current RMS", "choke rating"),
         _check("series_loss_w", pred.series_loss_w, "W", r.series_loss_w,
-               "I²R loss in the series resistance (windings, wiring, source)", "rating"),
+               "I²R loss before the choke (windings, wiring, timer output stage, divider)", "rating"),
         _check("capacitor_peak_v", max(abs(pred.capacitor_max_v), abs(pred.capacitor_min_v)), "V",
                r.capacitor_v, "capacitor voltage peak", "capacitor rating"),
+        _check("capacitor_ripple_a", pred.capacitor_rms_a, "A", r.capacitor_ripple_a,
+               "capacitor ripple current RMS", "capacitor ripple-current rating"),
     ]
     vmin = pred.capacitor_min_v
     if vmin < 0:

@@ -11,19 +11,29 @@ P_k = (2/(kπ))·sin(kπD)·e^{−jkπD} (:func:`benchfit.model.filter.rectangul
 
 Source resistance. A real timer output has a different resistance high and low (TI SLFS022
 output-voltage tables, REFERENCES §11). With r_high = r_low the circuit is linear and
-time-invariant (the formulas below). With r_high ≠ r_low it is switched: the output, the
-inductor current, the capacitor voltage and the source current then come from the exact
-periodic steady state of :mod:`benchfit.model.switched` (each phase with its own Thévenin
-level and resistance, divider included), stated in the prediction's notes. The fast path
-:func:`predict_quantities` does the same for the output. Only ``effective_filter`` (and the
-series loss, i_rms²·Rs) keeps the time-averaged resistance D·r_high + (1 − D)·r_low. A
-one-channel fit already holds the source resistance in its ``Rs`` (DESIGN.md), so then
-r_high = r_low = 0.
+time-invariant (the output formulas below). With r_high ≠ r_low it is switched: the output then
+comes from the exact periodic steady state of :mod:`benchfit.model.switched` (each phase with its
+own Thévenin level and resistance, divider included), stated in the prediction's notes; the fast
+path :func:`predict_quantities` does the same. Only ``effective_filter`` keeps the time-averaged
+resistance D·r_high + (1 − D)·r_low. A one-channel fit already holds the source resistance in its
+``Rs`` (DESIGN.md), so then r_high = r_low = 0.
 
 Output (REFERENCES §6, "square-wave drive"): harmonic k of the output is
-Y_k = S·P_k·H(jkω) and its DC is (v_low + S·D)·H(0). The inductor current is
-I_k = (X_k − Y_k)/(Rs_total + jkωL), the capacitor's own voltage (without its ESR)
-V_C,k = Y_k − Resr·I_C,k with I_C,k = Y_k/(Resr + 1/(jkωC)).
+Y_k = S·P_k·H(jkω) and its DC is (v_low + S·D)·H(0).
+
+Stresses (both cases, one method). The circuit is linear within each phase of the drive, so its
+state [i_L, v_C] is x̄ + e^{A·s}·(x_start − x̄) there, from the periodic steady state
+(:func:`benchfit.model.switched.switched_samples`); every stress is linear in that state and the
+phase's level, and is sampled exactly on each phase's grid (both ends included, so a quantity that
+jumps at an edge is read on both sides of the jump, with no Gibbs overshoot of a truncated harmonic
+sum). The inductor current is the choke's terminal current, L and its core loss Rp as one part (the
+current in Rs; L's own current differs from it by v_L/Rp); the timer's current follows from it by
+KCL at the divider's tap; the capacitor voltage is the capacitor's own, without its ESR, and its
+current (the ripple current: it carries no DC in the steady state) i − v_out/Rload. RMS values
+and the I²R loss are integrated over the phases (Simpson's rule on 2049 points a phase: below 1e-9
+relative for these sums of exponentials); the loss is the dissipation in every resistance before the
+choke: Rs, the timer's output stage (i_timer²·r_high while high, i_timer²·r_low while low) and the
+divider's two resistors. Checked against ngspice in tests/model/test_unit_stresses_ngspice.py.
 
 Capture chain (how ``benchfit measure`` would read the output). A sound card's line-in is
 AC-coupled: a first-order high-pass of time constant τ multiplies harmonic k by
@@ -33,9 +43,9 @@ max − min and THD as THD_F over harmonics 2…H with H = 10 by default
 (:mod:`benchfit.measurement.distortion`). The prediction gives the same quantities through
 the chosen chain; noise (which adds to a measured vrms and vpp) is not modelled.
 
-Waveform extremes (vpp, inductor current peak, capacitor minimum) come from the harmonic sum
-evaluated on a fine time grid; above ~400 harmonics the filtered quantities change by less
-than 1e-6 of their amplitude (they fall as 1/k² or faster), which is ample for ratings.
+The output's vpp (through the capture chain) comes from the harmonic sum evaluated on a fine
+time grid; above ~400 harmonics the filtered output changes by less than 1e-6 of its amplitude
+(it falls as 1/k² or faster).
 """
 
 from __future__ import annotations
@@ -47,7 +57,8 @@ from typing import Any
 
 import numpy as np
 
-from benchfit.model.filter import LowpassParts, rectangular_phasors, second_order, transfer
+from benchfit.model.filter import (LowpassParts, feedthrough, rectangular_phasors, second_order, state_space,
+                                   transfer)
 
 __all__ = ["Drive", "CaptureChain", "UnitModel", "UnitPrediction", "predict", "predict_quantities",
            "MEASURE_HARMONICS", "SPEC_QUANTITIES"]
@@ -190,6 +201,7 @@ class UnitPrediction:
     series_loss_w: float
     capacitor_max_v: float
     capacitor_min_v: float
+    capacitor_rms_a: float
     source_peak_a: float
     source_rms_a: float
     chain: CaptureChain = field(default_factory=CaptureChain)
@@ -208,50 +220,75 @@ class UnitPrediction:
         return d
 
 
-def _phasors(unit: UnitModel, orders: np.ndarray):
-    """Drive, output, inductor-current and capacitor phasors for the orders; DC values."""
-    p = unit.effective_filter()
-    lo, hi, _ = unit.drive.thevenin()
-    f = unit.drive.frequency_hz
-    x = (hi - lo) * rectangular_phasors(orders, unit.drive.duty)
-    fk = orders * f
-    h = transfer(fk, p)
-    y = x * h
-    w = 2 * math.pi * fk
-    i_l = (x - y) / (p.Rs + 1j * w * p.L)
-    zc = p.Resr + 1.0 / (1j * w * p.C)
-    v_c = y - p.Resr * (y / zc)
-    x0 = lo + (hi - lo) * unit.drive.duty
-    y0 = float(np.real(transfer(0.0, p))) * x0
-    i0 = y0 * p.g  # at DC the capacitor carries no current: i_L = load current
-    return x, y, i_l, v_c, x0, y0, float(i0)
-
-
-def _switched(unit: UnitModel, orders: np.ndarray, with_states: bool = True):
-    """Exact steady state of a switched source (r_high ≠ r_low): means and phasors of the output,
-    i_L, v_C and the timer's current, each phase with its own Thévenin source."""
-    from benchfit.model.switched import switched_rows
-
+def _phase_circuits(unit: UnitModel):
+    """The two phases of the drive (high, low), each as the filter sees it: its Thévenin level u and the
+    circuit with that phase's source resistance in Rs, plus (timer resistance, divider top with it, k)."""
     d = unit.drive
-    phases = []
+    out: list[tuple[float, LowpassParts, float, float | None, float]] = []
     for level, r in ((d.v_high, d.r_high), (d.v_low, d.r_low)):
         if d.divider is None:
-            # the timer current is the inductor's: row [1, 0], no direct term
-            phases.append((level, r, (np.array([1.0, 0.0]), 0.0)))
+            out.append((level, dataclasses.replace(unit.filter, Rs=unit.filter.Rs + r), r, None, 1.0))
             continue
         top, bottom = d.divider
         top = top + r
         kk = bottom / (top + bottom)
-        par = top * bottom / (top + bottom)
-        # i_timer = v_t·(1 − par/top)/top + i_L·par/top (see _source_current) with v_t = level = u/kk
-        phases.append((level * kk, par, (np.array([par / top, 0.0]), (1.0 - par / top) / top / kk)))
-    high = dataclasses.replace(unit.filter, Rs=unit.filter.Rs + phases[0][1])
-    low = dataclasses.replace(unit.filter, Rs=unit.filter.Rs + phases[1][1])
-    rows: list = [None]
-    if with_states:
-        rows += [((np.array([1.0, 0.0]), 0.0),) * 2, ((np.array([0.0, 1.0]), 0.0),) * 2,
-                 (phases[0][2], phases[1][2])]
-    return switched_rows(orders, d.frequency_hz, d.duty, high, low, rows, phases[0][0], phases[1][0])
+        out.append((level * kk, dataclasses.replace(unit.filter, Rs=unit.filter.Rs + kk * top), r, top, kk))
+    return out
+
+
+def _switched(unit: UnitModel, orders: np.ndarray):
+    """Mean and phasors of the output in the exact steady state of a switched source (r_high ≠ r_low)."""
+    from benchfit.model.switched import switched_rows
+
+    (u_h, high, *_), (u_l, low, *_) = _phase_circuits(unit)
+    return switched_rows(orders, unit.drive.frequency_hz, unit.drive.duty, high, low, [None], u_h, u_l)[0]
+
+
+#: samples per phase of the exact waveforms (odd, for Simpson's rule)
+_PHASE_POINTS = 2049
+
+
+def _stresses(unit: UnitModel) -> dict[str, float]:
+    """Extremes and RMS of the output, the choke's current, the capacitor and the timer's current,
+    and the I²R loss, from the exact piecewise solution (module text, "Stresses")."""
+    from benchfit.model.switched import series_current_row, switched_samples
+
+    d = unit.drive
+    phases = _phase_circuits(unit)
+    rows: list = [None, ((np.array([0.0, 1.0]), 0.0),) * 2]
+    i_rows, t_rows, tap_rows, c_rows = [], [], [], []
+    for _u, p, _r, top, kk in phases:
+        c, dd = series_current_row(p)
+        i_rows.append((c, dd))
+        # the capacitor's current C·dv_C/dt = i − g·v_out (benchfit.model.filter.state_space)
+        c_rows.append((c - p.g * state_space(p)[2], dd - p.g * feedthrough(p)))
+        if top is None:
+            t_rows.append((c, dd))
+            tap_rows.append((0.0 * c, 0.0))
+        else:
+            par = kk * top  # R_top' ∥ R_bottom
+            # KCL at the tap: v_tap = u − par·i, i_timer = (u/k − v_tap)/R_top'
+            t_rows.append((c * (par / top), (1.0 / kk - 1.0) / top + dd * par / top))
+            tap_rows.append((-par * c, 1.0 - par * dd))
+    rows += [tuple(i_rows), tuple(t_rows), tuple(tap_rows), tuple(c_rows)]
+    grids, (out, vc, i, it, tap, ic) = switched_samples(d.frequency_hz, d.duty, phases[0][1], phases[1][1], rows,
+                                                    phases[0][0], phases[1][0], _PHASE_POINTS)
+    period = 1.0 / d.frequency_hz
+
+    def mean(vals, scale=(1.0, 1.0)) -> float:
+        return sum(s * float(np.sum(w * v)) for (_, w), v, s in zip(grids, vals, scale)) / period
+
+    sq = lambda v: [x * x for x in v]  # noqa: E731
+    loss = mean(sq(i)) * unit.filter.Rs + mean(sq(it), (d.r_high, d.r_low))
+    if d.divider is not None:
+        loss += mean(sq(it)) * d.divider[0] + mean(sq(tap)) / d.divider[1]
+    cat = np.concatenate
+    return {"output_max_v": float(max(v.max() for v in out)), "output_min_v": float(min(v.min() for v in out)),
+            "inductor_peak_a": float(np.max(np.abs(cat(i)))), "inductor_rms_a": math.sqrt(mean(sq(i))),
+            "series_loss_w": loss,
+            "capacitor_max_v": float(max(v.max() for v in vc)), "capacitor_min_v": float(min(v.min() for v in vc)),
+            "capacitor_rms_a": math.sqrt(mean(sq(ic))),
+            "source_peak_a": float(np.max(np.abs(cat(it)))), "source_rms_a": math.sqrt(mean(sq(it)))}
 
 
 def _wave(dc: float, ph: np.ndarray, points: int) -> np.ndarray:
@@ -261,6 +298,17 @@ def _wave(dc: float, ph: np.ndarray, points: int) -> np.ndarray:
     spec[1:n + 1] = ph[:n] * (points / 2.0)
     spec[0] = dc * points
     return np.fft.irfft(spec, n=points)
+
+
+def _output_phasors(unit: UnitModel, orders: np.ndarray) -> tuple[float, np.ndarray]:
+    """DC and phasors of the output: the exact switched steady state when r_high ≠ r_low, else P_k(D)·H(jkω)."""
+    d = unit.drive
+    if d.r_high != d.r_low:
+        return _switched(unit, orders)
+    p = unit.effective_filter()
+    lo, hi, _ = d.thevenin()
+    y = (hi - lo) * rectangular_phasors(orders, d.duty) * transfer(orders * d.frequency_hz, p)
+    return float(np.real(transfer(0.0, p))) * (lo + (hi - lo) * d.duty), y
 
 
 def predict(unit: UnitModel, chain: CaptureChain | None = None) -> UnitPrediction:
@@ -277,64 +325,22 @@ def predict(unit: UnitModel, chain: CaptureChain | None = None) -> UnitPredictio
     k = np.arange(1, _WAVE_HARMONICS + 1, dtype=float)
     f = unit.drive.frequency_hz
     d = unit.drive
-    if d.r_high != d.r_low:
-        (y0, y), (i0, i_l), (vc0, v_c), (it0, i_t) = _switched(unit, k)
-    else:
-        _, y, i_l, v_c, _, y0, i0 = _phasors(unit, k)
-        vc0 = y0
+    y0, y = _output_phasors(unit, k)
     seen = y * chain.response(k * f)
     dc_seen = 0.0 if chain.ac_coupled else y0
     h = max(2, int(chain.n_harmonics))
     a = np.abs(seen)
     thd = float(math.sqrt(np.sum(a[1:h] ** 2)) / a[0]) if a[0] > 0 else math.inf
     out_seen = _wave(dc_seen, seen, _WAVE_POINTS)
-    out = _wave(y0, y, _WAVE_POINTS)
-    il = _wave(i0, i_l, _WAVE_POINTS)
-    vc = _wave(vc0, v_c, _WAVE_POINTS)
     vrms = math.sqrt(dc_seen ** 2 + float(np.sum(a ** 2)) / 2.0)
-    il_rms = math.sqrt(i0 ** 2 + float(np.sum(np.abs(i_l) ** 2)) / 2.0)
-    p = unit.effective_filter()
     notes = []
     if d.r_high != d.r_low:
         notes.append(f"source resistance {d.r_high:g} Ω high / {d.r_low:g} Ω low: exact switched-source "
-                     f"steady state (the series loss uses its time average {d.r_average:.4g} Ω)")
-        wave = _wave(it0, i_t, _WAVE_POINTS)
-        src = (float(np.max(np.abs(wave))), float(np.sqrt(np.mean(wave ** 2))))
-    else:
-        src = _source_current(unit, i_l, i0)
+                     "steady state")
     return UnitPrediction(
         frequency_hz=f, amplitude=float(a[0]), vdc=float(dc_seen), vrms=vrms,
-        vpp=float(out_seen.max() - out_seen.min()), thd=thd, n_harmonics=h,
-        output_max_v=float(out.max()), output_min_v=float(out.min()),
-        inductor_peak_a=float(np.max(np.abs(il))), inductor_rms_a=il_rms,
-        series_loss_w=il_rms ** 2 * p.Rs,
-        capacitor_max_v=float(vc.max()), capacitor_min_v=float(vc.min()),
-        source_peak_a=src[0], source_rms_a=src[1], chain=chain, notes=tuple(notes),
-        divider_known=d.divider is not None)
-
-
-def _source_current(unit: UnitModel, i_l: np.ndarray, i0: float) -> tuple[float, float]:
-    """Peak and RMS of the timer's output current (A).
-
-    Without a divider it is the inductor current. With a divider (R_top from the timer to the
-    tap, R_bottom from the tap to ground) KCL at the tap gives
-    i_timer = (v_t − v_tap)/R_top with v_tap = (v_t/R_top' − i_L)·(R_top' ∥ R_bottom),
-    R_top' = R_top + source resistance.
-    """
-    d = unit.drive
-    if d.divider is None:
-        wave = _wave(i0, i_l, _WAVE_POINTS)
-    else:
-        top, bottom = d.divider
-        top = top + d.r_average
-        par = top * bottom / (top + bottom)
-        k = np.arange(1, i_l.size + 1, dtype=float)
-        vt = d.swing_v * rectangular_phasors(k, d.duty)
-        vt0 = d.v_low + d.swing_v * d.duty
-        it = (vt - (vt / top - i_l) * par) / top
-        it0 = (vt0 - (vt0 / top - i0) * par) / top
-        wave = _wave(it0, it, _WAVE_POINTS)
-    return float(np.max(np.abs(wave))), float(np.sqrt(np.mean(wave ** 2)))
+        vpp=float(out_seen.max() - out_seen.min()), thd=thd, n_harmonics=h, chain=chain, notes=tuple(notes),
+        divider_known=d.divider is not None, **_stresses(unit))
 
 
 def predict_quantities(unit: UnitModel, chain: CaptureChain | None = None) -> dict[str, float]:
@@ -347,15 +353,9 @@ def predict_quantities(unit: UnitModel, chain: CaptureChain | None = None) -> di
     chain = chain or CaptureChain()
     kmax = max(40, int(chain.n_harmonics))
     k = np.arange(1, kmax + 1, dtype=float)
-    p = unit.effective_filter()
-    lo, hi, _ = unit.drive.thevenin()
     f = unit.drive.frequency_hz
-    if unit.drive.r_high != unit.drive.r_low:
-        ((y0, y),) = _switched(unit, k, with_states=False)
-        y = y * chain.response(k * f)
-    else:
-        y = (hi - lo) * rectangular_phasors(k, unit.drive.duty) * transfer(k * f, p) * chain.response(k * f)
-        y0 = float(np.real(transfer(0.0, p))) * (lo + (hi - lo) * unit.drive.duty)
+    y0, y = _output_phasors(unit, k)
+    y = y * chain.response(k * f)
     a = np.abs(y)
     h = max(2, int(chain.n_harmonics))
     dc = 0.0 if chain.ac_coupled else y0

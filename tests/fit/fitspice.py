@@ -1,29 +1,17 @@
 """Helpers for the fit tests: an L-C low-pass simulated by ngspice (an independent tool).
 
-The decks are written here, run with ``ngspice -b`` in a temporary folder and read back
-from the ``wrdata`` output file (success is judged by that file: ``ngspice -b`` may exit 1
-after a ``.control`` run). Nothing is cached between test runs.
+The decks are written here and run by :func:`ngspice_run.run_deck` (``ngspice -b`` in a
+temporary folder, read back from the ``wrdata`` file). Nothing is cached between test runs.
 """
 
 from __future__ import annotations
 
-import os
-import shutil
-import subprocess
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pytest
 
-NGSPICE = shutil.which("ngspice")
-
-
-def _no_ngspice() -> None:
-    """Skip on a developer's machine without ngspice; fail under CI, which installs it."""
-    if os.environ.get("CI"):
-        pytest.fail("ngspice is not installed — scripts/test.sh installs Debian's ngspice")
-    pytest.skip("ngspice is not installed")
+from ngspice_run import run_deck
 
 
 @dataclass(frozen=True)
@@ -72,15 +60,7 @@ def simulate_square(tmp_path: Path, c: Circuit, *, freq: float, duty: float, hig
 def _run_deck(tmp_path: Path, name: str, deck_text: str, out: Path, *, fs: float, settle: float, keep: float,
               timeout: float) -> tuple[np.ndarray, np.ndarray]:
     """Run one deck in batch mode; drive and output (V) on a uniform grid over the last ``keep`` s."""
-    if NGSPICE is None:
-        _no_ngspice()
-    deck = tmp_path / f"{name}.cir"
-    deck.write_text(deck_text)
-    proc = subprocess.run([NGSPICE, "-b", str(deck)], capture_output=True, text=True, timeout=timeout,
-                          cwd=tmp_path)
-    if not out.exists():
-        raise AssertionError(f"ngspice wrote no output:\n{proc.stdout[-2000:]}\n{proc.stderr[-2000:]}")
-    data = np.loadtxt(out)
+    data = run_deck(tmp_path, name, deck_text, out, timeout=timeout)
     t, drive, vout = data[:, 0], data[:, 1], data[:, 3]
     n = int(round(keep * fs))
     grid = settle + np.arange(n) / fs

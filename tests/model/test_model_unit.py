@@ -74,7 +74,7 @@ def test_asymmetric_source_is_switched_and_continuous_with_the_linear_model():
         near = base.with_drive(r_high=20.0 + 1e-6)
         a, b = predict(base).to_dict(), predict(near).to_dict()
         for key in ("amplitude", "vdc", "vrms", "vpp", "thd", "output_max_v", "output_min_v", "inductor_peak_a",
-                    "inductor_rms_a", "capacitor_max_v", "capacitor_min_v", "source_peak_a", "source_rms_a"):
+                    "inductor_rms_a", "capacitor_max_v", "capacitor_min_v", "capacitor_rms_a", "source_peak_a", "source_rms_a"):
             assert b[key] == pytest.approx(a[key], rel=1e-6, abs=1e-9), (divider, key)
         qa, qb = predict_quantities(base), predict_quantities(near)
         for key in ("amplitude", "vdc", "vrms", "thd_pct"):

@@ -5,7 +5,11 @@ result is read back from the ``wrdata`` file (``ngspice -b`` may exit 1 after a 
 run, so success is judged by that file).
 
 * :func:`simulate_unit`: a rectangular source (PULSE, levels ``v_low``/``v_high``, 1 µs edges)
-  behind a source resistance, an optional divider, then Rs → L → out, C + ESR to ground, load.
+  behind a source resistance (``r_src``, or ``r_src`` while high and ``r_low`` while low: a
+  behavioural current source I = (v_ideal − v_pin)/R(t), R moving from r_low to r_src with the
+  ideal level), an optional divider, then Rs → L (optionally with a core loss Rp across it) →
+  out, C + ESR to ground, load. Zero-volt sources sense the timer's current and the filter's
+  input (series) current.
 * :func:`simulate_astable`: a 555-style astable built from the charging law: RA from the
   supply to the discharge node, RB to the threshold node, C1 to ground, and a discharge switch
   with hysteresis that closes at ⅔·Vcc and opens at ⅓·Vcc (ngspice ``SW`` model, VT = Vcc/2,
@@ -17,28 +21,18 @@ Nothing is cached between test runs.
 from __future__ import annotations
 
 import math
-import os
-import shutil
-import subprocess
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pytest
 
-NGSPICE = shutil.which("ngspice")
-
-
-def _no_ngspice() -> None:
-    """Skip on a developer's machine without ngspice; fail under CI, which installs it."""
-    if os.environ.get("CI"):
-        pytest.fail("ngspice is not installed — scripts/test.sh installs Debian's ngspice")
-    pytest.skip("ngspice is not installed")
+from ngspice_run import run_deck
 
 
 @dataclass(frozen=True)
 class SpiceUnit:
-    """The simulated unit (SI units). ``r_src`` is the timer's output resistance."""
+    """The simulated unit (SI units). ``r_src`` is the timer's output resistance (while high when
+    ``r_low`` is given: the resistance while low); ``Rp`` a core loss across L (None: none)."""
 
     f: float
     duty: float
@@ -51,55 +45,66 @@ class SpiceUnit:
     Resr: float
     Rload: float
     divider: tuple[float, float] | None = None
-
-
-def _run(tmp_path: Path, name: str, deck: str, out: Path) -> np.ndarray:
-    if NGSPICE is None:
-        _no_ngspice()
-    path = tmp_path / f"{name}.cir"
-    path.write_text(deck)
-    proc = subprocess.run([NGSPICE, "-b", str(path)], capture_output=True, text=True, timeout=120,
-                          cwd=tmp_path)
-    if not out.exists():
-        raise AssertionError(f"ngspice wrote no output:\n{proc.stdout[-2000:]}\n{proc.stderr[-2000:]}")
-    return np.loadtxt(out)
+    r_low: float | None = None
+    Rp: float | None = None
 
 
 def simulate_unit(tmp_path: Path, u: SpiceUnit, *, fs: float = 48000.0, settle: float = 1.0,
-                  keep: float = 1.0, name: str = "unit") -> dict[str, np.ndarray]:
-    """Time grid, timer output, filter output, inductor current and capacitor voltage over ``keep`` s."""
+                  keep: float = 1.0, name: str = "unit", edge: float = 1e-6,
+                  max_step: float = 10e-6, raw: bool = False) -> dict[str, np.ndarray]:
+    """Over ``keep`` s after ``settle``: time, timer level (ideal source), filter output, inductor
+    current (L alone), capacitor voltage, timer current, the filter's input current (through Rs), the
+    timer pin's voltage behind its output resistance and the divider tap's voltage.
+
+    On the uniform grid ``fs`` (ngspice's 'interp' output) by default; with ``raw`` on ngspice's own
+    time points from ``settle`` on (the PULSE corners among them, so a quantity that jumps at an edge
+    is sampled on both sides), at most ``max_step`` apart."""
     period = 1.0 / u.f
-    edge = 1e-6
     width = u.duty * period - edge
     out = tmp_path / f"{name}.txt"
+    if u.r_low is None:
+        src = f"Rsrc timer ts {u.r_src:.9g}\n"
+    else:
+        # the output stage: r_low at the low level, r_src at the high level, linear in the ideal level between
+        swing = u.v_high - u.v_low
+        src = (f"B1 timer ts I = (V(timer)-V(ts))/({u.r_low:.9g} + ({u.r_src - u.r_low:.9g})*"
+               f"(V(timer)-({u.v_low:.9g}))/{swing:.9g})\n")
     if u.divider is None:
-        div = f"Rsrc timer drive {u.r_src:.9g}\n"
+        div = "Vit ts drive 0\n"
     else:
         top, bottom = u.divider
-        div = f"Rsrc timer t1 {u.r_src:.9g}\nRtop t1 drive {top:.9g}\nRbot drive 0 {bottom:.9g}\n"
+        div = f"Vit ts t1 0\nRtop t1 drive {top:.9g}\nRbot drive 0 {bottom:.9g}\n"
+    rp = "" if u.Rp is None else f"Rp n1 out {u.Rp:.9g}\n"
     deck = f"""* benchfit design test: rectangular drive into source R, divider, Rs-L-(C+ESR)||Rload
 Vt timer 0 PULSE({u.v_low:.9g} {u.v_high:.9g} 0 {edge:.9g} {edge:.9g} {width:.9g} {period:.9g})
-{div}Rs drive n1 {u.Rs:.9g}
+{src}{div}Vis drive d2 0
+Rs d2 n1 {u.Rs:.9g}
 L1 n1 out {u.L:.9g}
-C1 out nc {u.C:.9g}
+{rp}C1 out nc {u.C:.9g}
 Rc nc 0 {max(u.Resr, 1e-6):.9g}
 Rl out 0 {u.Rload:.9g}
-.options interp reltol=1e-6 abstol=1e-12 vntol=1e-9
+.options {"" if raw else "interp "}reltol=1e-6 abstol=1e-12 vntol=1e-9
 .control
-tran {1.0 / fs:.9g} {settle + keep:.9g} 0 {min(10e-6, 0.5 / fs):.9g}
-wrdata {out} v(timer) v(out) i(L1) v(nc)
+tran {1.0 / fs:.9g} {settle + keep:.9g} {settle if raw else 0:.9g} {min(max_step, 0.5 / fs):.9g}
+wrdata {out} v(timer) v(out) i(L1) v(nc) i(Vit) i(Vis) v(ts) v(drive)
 quit
 .endc
 .end
 """
-    data = _run(tmp_path, name, deck, out)
+    data = run_deck(tmp_path, name, deck, out)
     t = data[:, 0]
+    names = ("timer", "out", "il", "nc", "it", "is", "pin", "tap")
+    if raw:
+        sel = t >= settle
+        cols = {k: data[sel, 2 * j + 1] for j, k in enumerate(names)}
+        cols["vc"] = cols["out"] - cols.pop("nc")
+        return {"t": t[sel] - settle, **cols}
     n = int(round(keep * fs))
     grid = settle + np.arange(n) / fs
     col = lambda j: np.interp(grid, t, data[:, j])  # noqa: E731
     out_v = col(3)
     return {"t": grid - settle, "timer": col(1), "out": out_v, "il": col(5),
-            "vc": out_v - col(7)}
+            "vc": out_v - col(7), "it": col(9), "is": col(11), "pin": col(13), "tap": col(15)}
 
 
 def simulate_astable(tmp_path: Path, *, ra: float, rb: float, c1: float, vcc: float = 12.0,
@@ -125,7 +130,7 @@ quit
 .endc
 .end
 """
-    data = _run(tmp_path, name, deck, out)
+    data = run_deck(tmp_path, name, deck, out)
     t, v = data[:, 0], data[:, 1]
     level = vcc / 2.0
     up = np.nonzero((v[:-1] < level) & (v[1:] >= level))[0]
