@@ -84,6 +84,13 @@ def format_quantity(value: float | None, unit: str = "", digits: int = 4) -> str
         return "—"
     if value == 0 or not math.isfinite(value):
         return f"{value:g} {unit}".strip()
+    if not _PREFIX_RANGE[0] <= abs(_round_sig(value, digits)) < _PREFIX_RANGE[1]:
+        # beyond femto … tera (a "no load" conductance's inverse, a bound at 1e30): a prefix
+        # would need a mantissa of many digits, so the decade is written out ("2.26e25 Ω")
+        mantissa, exponent = f"{_round_sig(value, digits):.{digits - 1}e}".split("e")
+        if "." in mantissa:
+            mantissa = mantissa.rstrip("0").rstrip(".")
+        return f"{mantissa}e{int(exponent)} {unit}".strip()
     exp3 = min(max(3 * math.floor(math.log10(abs(value)) / 3), -15), 12)
     mant = _round_sig(value / 10.0 ** exp3, digits)
     if abs(mant) >= 1000 and exp3 < 12:
@@ -94,6 +101,10 @@ def format_quantity(value: float | None, unit: str = "", digits: int = 4) -> str
     if "." in text:
         text = text.rstrip("0").rstrip(".")
     return f"{text} {_PREFIXES[exp3]}{unit}".strip()
+
+
+#: the magnitudes an SI prefix covers here, femto … tera (below 1000 T)
+_PREFIX_RANGE = (1e-15, 1e15)
 
 
 def _round_sig(x: float, digits: int) -> float:
@@ -131,6 +142,11 @@ def format_with_uncertainty(value: float | None, u: float | None, unit: str = ""
             return f"{value:.8g} {unit} ± {u:.2g} {unit}".strip()
         return f"{format_quantity(value, unit, 8)} ± {format_quantity(u, unit, 2)}"
     exp3 = 0
+    if prefixed and not _PREFIX_RANGE[0] <= max(abs(value), u) < _PREFIX_RANGE[1]:
+        # beyond the prefixes: the pair in one decade, "(2.26 ± 0.10)e25 Ω" (GUM 7.2.2)
+        decade = math.floor(math.log10(max(abs(value), u)))
+        pair = format_with_uncertainty(value / 10.0 ** decade, u / 10.0 ** decade, "", digits)
+        return f"({pair})e{decade} {unit}".strip()
     if prefixed:
         exp3 = min(max(3 * math.floor(math.log10(max(abs(value), u)) / 3), -15), 12)
     scale = 10.0 ** exp3

@@ -44,3 +44,18 @@ def test_format():
     assert format_with_uncertainty(50.01234, 0.00123, "Hz") == "50.0123 ± 0.0012 Hz"
     assert format_with_uncertainty(33.2e-6, 0.41e-6, "F") == "33.20 ± 0.41 µF"
     assert format_with_uncertainty(0.5, None, "V") == "500 mV"
+
+
+def test_values_beyond_the_prefixes_are_written_with_their_decade():
+    # femto … tera is the range the prefixes cover; beyond it (a "no load" conductance's inverse,
+    # 2.26e25 Ω) a prefix would print a mantissa of 14 digits. The decade is written out instead,
+    # the pair in one decade as in JCGM 100:2008, 7.2.2 (value and u share the factor)
+    from benchfit.units import format_quantity, format_with_uncertainty, parse_quantity
+
+    assert format_quantity(2.26e25, "Ω") == "2.26e25 Ω"
+    assert parse_quantity(format_quantity(2.26e25, "Ω"), unit="Ω") == 2.26e25
+    assert format_quantity(-1e-30, "F") == "-1e-30 F"
+    assert format_with_uncertainty(2.26e25, 9e23, "Ω") == "(2.260 ± 0.090)e25 Ω"
+    assert format_with_uncertainty(1.2e-17, 1e-19, "F") == "(1.200 ± 0.010)e-17 F"
+    # inside the range nothing changes
+    assert format_quantity(22.6e12, "Ω") == "22.6 TΩ" and format_quantity(1.5e-15, "F") == "1.5 fF"

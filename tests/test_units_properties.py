@@ -44,20 +44,25 @@ def test_value_with_uncertainty_parses_back_within_half_a_unit_of_its_last_digit
     decade."""
     value, u = sign * x, x * rel_u
     text = format_with_uncertainty(value, u, unit, digits=2)
-    m = re.fullmatch(r"(-?\d+(?:\.(\d+))?) ± (\d+(?:\.(\d+))?) ?(\S*)", text)
+    scale = 1.0
+    beyond = re.fullmatch(r"\((.*)\)e(-?\d+) ?(\S*)", text)  # past femto … tera: "(2.26 ± 0.10)e25 Ω"
+    if beyond:
+        assert beyond.group(3) == unit and max(abs(value), u) >= 1e15, text
+        scale = 10.0 ** int(beyond.group(2))
+    m = re.fullmatch(r"(-?\d+(?:\.(\d+))?) ± (\d+(?:\.(\d+))?) ?(\S*)", beyond.group(1) if beyond else text)
     assert m, text
     v_text, v_dec, u_text, u_dec, tail = m.groups()
-    assert tail.endswith(unit), text
-    prefix = tail[: len(tail) - len(unit)]
+    assert beyond or tail.endswith(unit), text
+    prefix = tail[: len(tail) - len(unit)] if not beyond else ""
     assert prefix == "" or unit not in _UNSCALED, text  # no prefix on %, FS, ppm, 1/s or no unit
     assert len(v_dec or "") == len(u_dec or "")  # the same decimal place (GUM 7.2.6)
     shown_u = float(u_text)
     place = math.floor(math.log10(shown_u)) - 1  # the decade of u's second significant digit
     assert float(f"{shown_u:.1e}") == shown_u, text  # two significant digits, no more
     assert len(v_dec or "") == max(0, -place), text
-    back = parse_quantity(v_text + prefix)  # the parser reads the prefix the formatter wrote
-    back_u = parse_quantity(u_text + prefix)
-    half = 0.5 * 10.0 ** place * parse_quantity("1" + prefix)
+    back = scale * parse_quantity(v_text + prefix)  # the parser reads the prefix the formatter wrote
+    back_u = scale * parse_quantity(u_text + prefix)
+    half = 0.5 * 10.0 ** place * parse_quantity("1" + prefix) * scale
     slack = 1e-9 * half + 1e-12 * abs(value)  # float rounding in the scaling, not in the method
     assert abs(back - value) <= half + slack, (text, value)
     assert abs(back_u - u) <= half + slack, (text, u)
