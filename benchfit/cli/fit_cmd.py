@@ -260,9 +260,13 @@ def fit_command(
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
 ) -> None:
+    from benchfit.cli.batch import prefer_one_blas_thread
     from benchfit.cli.common import (check_parts_plausible, fail, parse_assignments, parse_value, print_json,
                                      stderr, stdout)
 
+    # before numpy loads: the fits' tall, narrow matrix products run faster on one thread, several
+    # times faster on a loaded machine (scripts/bench_fit.py)
+    prefer_one_blas_thread()
     model_name = ModelOption(model).value
     method_name = cast(MethodChoice, MethodOption(method).value)
     if plot is not None and plot.suffix.lower() not in (".svg", ".png"):
