@@ -295,9 +295,14 @@ def fit_command(
 
     from benchfit.capture.load import load
 
+    import contextlib
+
     import numpy as np
 
-    with stderr.status("fitting…", spinner="line"), np.errstate(all="ignore"):
+    # the spinner only where someone sees it: elsewhere it is a refresh thread and rich's live
+    # display modules for nothing
+    spinner = stderr.status("fitting…", spinner="line") if stderr.is_terminal else contextlib.nullcontext()
+    with spinner, np.errstate(all="ignore"):
         cap = load(file, sample_rate=rate)
         for line in _clip_warnings(cap):
             stderr.print(f"warning: {line}", markup=False, highlight=False, soft_wrap=True)
