@@ -630,7 +630,7 @@ def progress_bar(label: str, total: int, notes: Sequence[str] = ()) -> Iterator[
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-    console = Console(stderr=True, highlight=False, soft_wrap=True)
+    console = Console(stderr=True, highlight=False, soft_wrap=True, emoji=False)
     to_tty = bool(getattr(sys.stdout, "isatty", lambda: False)())
     with Progress(TextColumn(label), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
                   TextColumn("{task.description}"), console=console, transient=True,
@@ -653,7 +653,7 @@ def block_progress(path: str | Path) -> Iterator[Callable[[int, int | None], Non
     from rich.console import Console
     from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn, TimeRemainingColumn
 
-    console = Console(stderr=True, highlight=False, soft_wrap=True)
+    console = Console(stderr=True, highlight=False, soft_wrap=True, emoji=False)
     with Progress(TextColumn("measuring in blocks"), BarColumn(), TaskProgressColumn(), TimeRemainingColumn(),
                   TextColumn("{task.description}"), console=console, transient=True, redirect_stdout=False,
                   redirect_stderr=False, disable=not console.is_terminal) as progress:
