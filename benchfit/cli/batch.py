@@ -471,22 +471,22 @@ class WorkerPool:
                 notify(outcome)
             return done
 
-        from concurrent.futures import FIRST_COMPLETED, wait
+        from concurrent.futures import as_completed
 
         with _thread_limits(max(1, default_jobs() // self.workers)):  # a forkserver/spawn worker starts here
             pending = {self._executor.submit(_guarded, i, path, job, kw): (i, path)
                        for i, path in enumerate(files)}
-        while pending:
-            finished, _ = wait(pending, return_when=FIRST_COMPLETED)
-            for fut in finished:
-                i, path = pending.pop(fut)
-                try:
-                    outcome = fut.result()
-                except Exception as e:  # a worker died (killed, out of memory) or a result would not pickle
-                    outcome = JobOutcome(i, path, error=f"{path}: the worker process failed "
-                                                        f"({type(e).__name__}: {e}) — run it again with --jobs 1")
-                done.append(outcome)
-                notify(outcome)
+        # as_completed waits on all futures at once (wait(FIRST_COMPLETED) in a loop would lock and
+        # hook every pending future again after each result: O(files²) work in this process)
+        for fut in as_completed(pending):
+            i, path = pending[fut]
+            try:
+                outcome = fut.result()
+            except Exception as e:  # a worker died (killed, out of memory) or a result would not pickle
+                outcome = JobOutcome(i, path, error=f"{path}: the worker process failed "
+                                                    f"({type(e).__name__}: {e}) — run it again with --jobs 1")
+            done.append(outcome)
+            notify(outcome)
         return done
 
 
