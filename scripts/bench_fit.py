@@ -21,7 +21,7 @@ cached: wall median 1.50 s against 1.68 s, CPU time (user + sys) median 0.76 s a
 Earlier the same day, interleaved at load ~9, the command took 4.0–6.2 s wall with a BLAS thread
 per CPU and 1.75–2.8 s with the one thread it now asks for. The CPU time is what an idle machine's
 wall time approaches: about 0.7–0.8 s, under the 1.0 s goal; the rest is scipy.optimize's import
-(~0.45 s CPU, its own linalg/special/fft/sparse/spatial and numpy's lazy submodules),
+(~0.36 s CPU beyond numpy: its own linalg/special/fft/sparse/spatial and numpy's lazy submodules),
 typer 0.29's pydantic coercion (~0.07 s) and numpy (~0.07 s), none of which this package controls.
 """
 
