@@ -7,26 +7,34 @@ prints them as a table. Measured:
   harmonics and seeded noise, a few hundredths of a hertz apart) are written to a temp
   folder as WAV; :func:`benchfit.cli.batch.run_jobs` measures them with
   :func:`benchfit.cli.batch.measure_job` with ``jobs=1`` (in-process) and ``jobs=2``
-  (worker pool). The wall time is that of the ``run_jobs`` call alone, timed inside a
-  fresh interpreter so neither side has numpy/scipy loaded beforehand (the import cost is
-  part of both; Python's own start-up is not). Median of the repeats. Goal: speed-up ≥ 1.7× on
-  an idle machine (issue 15) and never below 1× under load: ``jobs=2`` is also timed with
-  ``adapt_to_load=True`` as ``measure --jobs 2`` runs it (:func:`benchfit.cli.batch.jobs_for_load`:
-  in one process when the load average shows every CPU busy).
+  (worker pool, ``start_method="auto"``: forked, as the child has one thread; and, in turns,
+  the ``forkserver`` pool it falls back to). The wall time is that of the ``run_jobs`` call
+  alone, timed inside a fresh interpreter so neither side has numpy/scipy loaded beforehand
+  (the import cost is part of both; Python's own start-up is not). Median of the repeats.
+  Goal: speed-up ≥ 1.7× on an idle machine (issue 15) and never below 1× under load:
+  ``jobs=2`` is also timed with ``adapt_to_load=True`` as ``measure --jobs 2`` runs it
+  (:func:`benchfit.cli.batch.jobs_for_load`: in one process when the load average shows
+  every CPU busy).
   ``jobs=1`` is timed twice: as ``benchfit measure`` runs it (one BLAS thread, see
   :func:`benchfit.cli.batch.prefer_one_blas_thread`; each pool worker also gets one) and
   with the BLAS library's default of one thread per CPU. The goal is judged against the
   first, the faster and fair one (multi-threaded BLAS on these small matrices is slower,
   and much slower when other processes load the machine).
 * The machine's bound for two processes: two fresh interpreters at once, each measuring
-  every other file in one process; ``jobs 1`` over the longer of the two. A pool cannot beat
-  it (its workers pay the same imports and share the same two cores, caches and memory).
-  On the idle development VM it came out 1.80× and 1.98× in two runs of this script, the
-  pool 1.46× and 1.51× in the same runs: the gap is the pool's own start (the fork server's
-  interpreter and imports, ~0.35 s, before the first worker runs), not the two cores.
+  every other file in one process; ``jobs 1`` over the longer of the two. On the idle
+  development VM it came out 1.80× and 1.98× in two runs, the fork-server pool 1.46× and
+  1.51× in the same runs: the gap was the pool's own start (the fork server's interpreter and
+  imports, ~0.35 s, before the first worker runs), which a forked pool does not pay.
 * Pool start-up by start method: the wall time of a two-worker ``run_jobs`` over two files,
-  in a fresh interpreter, for ``forkserver`` (with the measurement modules preloaded in
-  the server) and ``spawn``.
+  in a fresh interpreter, for ``auto`` (fork), ``forkserver`` (with the measurement modules
+  preloaded in the server) and ``spawn``.
+
+Measured 2026-12-02 17:25 UTC with ``PYTHONPATH=$PWD python3 scripts/bench_batch.py`` on the
+2-core machine at a load average of 6.2 (other sessions' runs; no idle window that day):
+jobs 1 2.32 s, forked pool 2.37 s (0.99×), fork-server pool 2.72 s (0.86×), two independent
+processes 0.82×; with the load rule 1.03× (worst repeat 0.99×); two files: fork 0.51 s,
+forkserver 0.55 s, spawn 1.03 s. The ≥ 1.7× goal is for an idle machine and was not
+measurable then.
 
 On the shared 2-core machine the numbers move with the load of other processes.
 """
@@ -84,7 +92,7 @@ def write_captures(folder: Path, n: int = N_FILES, seconds: float = 1.0) -> list
     return paths
 
 
-def _timed(folder: Path, jobs: int, method: str = "forkserver", limit: int = N_FILES,
+def _timed(folder: Path, jobs: int, method: str = "auto", limit: int = N_FILES,
            blas: str = "cli") -> dict:
     """Time run_jobs in a fresh interpreter; blas="cli" sets threads as the command does,
     "installed" leaves the library's default (one thread per CPU)."""
@@ -121,25 +129,28 @@ def run(repeats: int = 3) -> list[dict]:
     with tempfile.TemporaryDirectory(prefix="benchfit_batch_") as tmp:
         folder = Path(tmp)
         write_captures(folder)
-        one, one_st, two, two_cli, ratios, ratios_cli, loads = [], [], [], [], [], [], []
+        one, one_st, two, two_fs, two_cli, ratios, ratios_fs, ratios_cli, loads = [], [], [], [], [], [], [], [], []
         per_file, per_file_pool, bound = [], [], []
         for _ in range(repeats):
             loads.append(os.getloadavg()[0])
             a = _timed(folder, 1, blas="installed")
             a1 = _timed(folder, 1)
             b = _timed(folder, 2)
+            b_fs = _timed(folder, 2, "forkserver")
             c = _timed(folder, 2, blas="cli-load")  # as `measure --jobs 2`: fewer workers when busy
             one.append(a["seconds"])
             one_st.append(a1["seconds"])
             two.append(b["seconds"])
+            two_fs.append(b_fs["seconds"])
             two_cli.append(c["seconds"])
             ratios.append(a1["seconds"] / b["seconds"])
+            ratios_fs.append(a1["seconds"] / b_fs["seconds"])
             ratios_cli.append(a1["seconds"] / c["seconds"])
             per_file.append(a1["worker_seconds"] / a1["n"])
             per_file_pool.append(b["worker_seconds"] / b["n"])
             bound.append(a1["seconds"] / _halves(folder))
         starts = {m: statistics.median(_timed(folder, 2, m, limit=2)["seconds"] for _ in range(repeats))
-                  for m in ("forkserver", "spawn")}
+                  for m in ("auto", "forkserver", "spawn")}
     t1, t1s, t2 = statistics.median(one), statistics.median(one_st), statistics.median(two)
     return [
         {"name": "1-minute load average before each repeat (median; 2 cores)", "value": statistics.median(loads),
@@ -148,10 +159,14 @@ def run(repeats: int = 3) -> list[dict]:
          "goal": "—"},
         {"name": f"{N_FILES} captures, jobs 1 (as the CLI: 1 BLAS thread)", "value": t1s, "unit": "s",
          "goal": "—"},
-        {"name": f"{N_FILES} captures, jobs 2 (worker pool)", "value": t2, "unit": "s", "goal": "—"},
+        {"name": f"{N_FILES} captures, jobs 2 (worker pool, forked)", "value": t2, "unit": "s", "goal": "—"},
+        {"name": f"{N_FILES} captures, jobs 2 (worker pool, forkserver)", "value": statistics.median(two_fs),
+         "unit": "s", "goal": "—"},
         {"name": "speed-up jobs 2 / jobs 1, BLAS default", "value": t1 / t2, "unit": "×", "goal": "—"},
         {"name": "speed-up jobs 2 / jobs 1, 1 BLAS thread (median of repeats)", "value": statistics.median(ratios),
          "unit": "×", "goal": "≥ 1.7 idle"},
+        {"name": "the same with the forkserver pool (median of repeats)", "value": statistics.median(ratios_fs),
+         "unit": "×", "goal": "—"},
         {"name": "bound: jobs 1 / two independent processes on half each (median)",
          "value": statistics.median(bound), "unit": "×", "goal": "—"},
         {"name": f"{N_FILES} captures, jobs 2 with the load rule (as measure --jobs 2)",
@@ -164,6 +179,8 @@ def run(repeats: int = 3) -> list[dict]:
         # longer than jobs 1 when other processes take CPU time from the two workers
         {"name": "measure_job per file in a pool worker", "value": 1e3 * statistics.median(per_file_pool),
          "unit": "ms", "goal": "—"},
+        {"name": "2 workers, 2 files: fork (auto, one thread)", "value": starts["auto"], "unit": "s",
+         "goal": "—"},
         {"name": "2 workers, 2 files: forkserver + preload", "value": starts["forkserver"], "unit": "s",
          "goal": "—"},
         {"name": "2 workers, 2 files: spawn", "value": starts["spawn"], "unit": "s", "goal": "—"},

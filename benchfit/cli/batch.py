@@ -10,22 +10,24 @@ Pieces:
   taken, whatever its extension (the reader then decides by content).
 * The per-file jobs :func:`measure_job` and :func:`report_job` are top-level functions of
   this module, which imports only the standard library at module level, so a worker
-  process loads nothing but what the job needs (never sounddevice, never the typer app).
+  process loads nothing but what the job needs (never sounddevice, never the typer app; a
+  forked worker shares what the parent had loaded when it forked, and loads nothing more).
   A job never raises a :class:`~benchfit.errors.BenchfitError`: it returns a
   :class:`JobOutcome` holding either the result or the one-line message.
-* :func:`run_jobs` runs a job over the files, in-process for ``jobs=1`` or in a
-  ``concurrent.futures.ProcessPoolExecutor`` of ``jobs`` workers, and calls ``on_outcome``
-  in the parent for each file in completion order (so output streams and the measurement
-  log is written by one process only).
+* :func:`worker_pool` starts the workers (a ``concurrent.futures.ProcessPoolExecutor`` of
+  ``jobs`` processes, or none for ``jobs=1``); its :meth:`WorkerPool.run` runs a job over the
+  files and calls ``on_outcome`` in the parent for each file in completion order (so output
+  streams and the measurement log is written by one process only). :func:`run_jobs` is the
+  two in one call.
 
-Start method: the pool uses the ``forkserver`` context with the measurement modules
-preloaded into the server: the server imports numpy/scipy once and forks the workers
-from it. Measured on the 2-core development machine (with other processes running):
-two files through a fresh two-worker pool took 0.42–0.51 s with ``forkserver`` + preload
-against 0.61–0.81 s with ``spawn`` (scripts/bench_batch.py), and the first results of a
-bare pool came after 0.31–0.50 s against 0.66–0.77 s for ``forkserver`` without preload.
-``fork`` is avoided because the parent may hold threads and open SQLite connections.
-Where ``forkserver`` does not exist, ``spawn`` is used.
+Start method (``"auto"``): the workers are forked from this process when it runs exactly one
+thread (:func:`single_threaded`), else started by the ``forkserver`` with the measurement
+modules preloaded into the server (``spawn`` where that is missing). A fork costs nothing,
+where the fork server first starts an interpreter that imports numpy/scipy (~0.35 s before
+the first worker runs); a fork with other threads running can deadlock the child (a lock
+held by a thread that the child does not have), so the commands enter :func:`worker_pool`
+before they start a progress bar's refresh thread. The log is checked (opened and closed)
+before the fork and written by the parent only, after it; workers never touch it.
 Worker processes ignore Ctrl-C; the parent cancels the queued jobs and exits 130. Each
 worker's BLAS/OpenMP libraries get CPU count ÷ workers threads (unless the user set
 ``OPENBLAS_NUM_THREADS`` etc.): with one BLAS thread per CPU in every worker, two workers
@@ -43,13 +45,14 @@ from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, get_args
 
 __all__ = ["CAPTURE_SUFFIXES", "StartMethod", "JobOutcome", "collect_captures", "default_jobs",
-           "measure_job", "report_job", "unit_serial", "run_jobs", "jobs_for_load", "progress_bar", "BatchProgress", "prefer_one_blas_thread",
+           "measure_job", "report_job", "unit_serial", "run_jobs", "worker_pool", "WorkerPool",
+           "single_threaded", "jobs_for_load", "progress_bar", "BatchProgress", "prefer_one_blas_thread",
            "MEASURE_PRELOAD", "REPORT_PRELOAD"]
 
 #: extensions (lower case) of the files a folder contributes to a batch
 CAPTURE_SUFFIXES: tuple[str, ...] = (".wav", ".flac", ".csv", ".tsv", ".txt", ".ogg", ".aiff")
 
-StartMethod = Literal["forkserver", "spawn"]
+StartMethod = Literal["auto", "forkserver", "spawn"]
 
 #: modules the forkserver imports once, so that forked workers start with them loaded
 MEASURE_PRELOAD: tuple[str, ...] = ("benchfit.capture.load", "benchfit.measurement.summary")
@@ -400,86 +403,150 @@ def prefer_one_blas_thread() -> bool:
     return True
 
 
-def _context(method: StartMethod, preload: Sequence[str]):
+def single_threaded() -> bool:
+    """True when this process runs exactly one thread, counting the threads of C libraries.
+
+    On Linux every thread of the process, Python's or a library's (a BLAS pool, an audio
+    callback), is an entry of ``/proc/self/task``. Elsewhere that count is not available
+    and the answer is False.
+    """
+    import threading
+
+    if threading.active_count() != 1:
+        return False
+    try:
+        return len(os.listdir("/proc/self/task")) == 1
+    except OSError:
+        return False
+
+
+def _start_method(method: StartMethod) -> str:
+    """The start method ``method`` stands for: ``"auto"`` is ``fork`` when this process has
+    one thread (:func:`single_threaded`), else ``forkserver`` (``spawn`` where that is missing)."""
     import multiprocessing
 
     if method not in get_args(StartMethod):
         raise ValueError(f"start method {method!r} is not one of {get_args(StartMethod)}")
-    if method == "forkserver" and "forkserver" in multiprocessing.get_all_start_methods():
-        ctx = multiprocessing.get_context("forkserver")
+    available = multiprocessing.get_all_start_methods()
+    chosen: str = method
+    if method == "auto":
+        chosen = "fork" if "fork" in available and single_threaded() else "forkserver"
+    if chosen == "forkserver" and "forkserver" not in available:
+        return "spawn"
+    return chosen
+
+
+def _context(method: str, preload: Sequence[str]):
+    import multiprocessing
+
+    ctx = multiprocessing.get_context(method)
+    if method == "forkserver":
         # takes effect when the server starts (the first pool of this process)
         ctx.set_forkserver_preload(list(preload))
-        return ctx
-    return multiprocessing.get_context("spawn")
+    return ctx
 
 
-def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
-             kwargs: Mapping[str, Any] | None = None,
-             on_outcome: Callable[[JobOutcome], None] | None = None,
-             start_method: StartMethod = "forkserver",
-             preload: Sequence[str] = MEASURE_PRELOAD, adapt_to_load: bool = False) -> list[JobOutcome]:
-    """Run ``job(path, **kwargs)`` for every file, ``jobs`` at a time.
+def _ready() -> int:
+    """A worker's first job: nothing (submitting it starts the workers)."""
+    return os.getpid()
+
+
+class WorkerPool:
+    """Where a batch's jobs run: ``workers`` processes started by ``start_method``, or this
+    process (``workers`` 1, ``start_method`` ``"in-process"``). Made by :func:`worker_pool`."""
+
+    def __init__(self, workers: int, start_method: str, executor: Any = None) -> None:
+        self.workers, self.start_method, self._executor = workers, start_method, executor
+
+    def run(self, job: Callable[..., Any], files: Sequence[Path], *, kwargs: Mapping[str, Any] | None = None,
+            on_outcome: Callable[[JobOutcome], None] | None = None) -> list[JobOutcome]:
+        """Run ``job(path, **kwargs)`` for every file; see :func:`run_jobs`."""
+        kw = dict(kwargs or {})
+        done: list[JobOutcome] = []
+        notify = on_outcome or (lambda outcome: None)
+        if self._executor is None:
+            for i, path in enumerate(files):
+                outcome = _guarded(i, path, job, kw)
+                done.append(outcome)
+                notify(outcome)
+            return done
+
+        from concurrent.futures import as_completed
+
+        with _thread_limits(max(1, default_jobs() // self.workers)):  # a forkserver/spawn worker starts here
+            pending = {self._executor.submit(_guarded, i, path, job, kw): (i, path)
+                       for i, path in enumerate(files)}
+        # as_completed waits on all futures at once (wait(FIRST_COMPLETED) in a loop would lock and
+        # hook every pending future again after each result: O(files²) work in this process)
+        for fut in as_completed(pending):
+            i, path = pending[fut]
+            try:
+                outcome = fut.result()
+            except Exception as e:  # a worker died (killed, out of memory) or a result would not pickle
+                outcome = JobOutcome(i, path, error=f"{path}: the worker process failed "
+                                                    f"({type(e).__name__}: {e}) — run it again with --jobs 1")
+            done.append(outcome)
+            notify(outcome)
+        return done
+
+
+@contextmanager
+def worker_pool(jobs: int, n_files: int, *, start_method: StartMethod = "auto",
+                preload: Sequence[str] = MEASURE_PRELOAD, adapt_to_load: bool = False) -> Iterator[WorkerPool]:
+    """Start the worker processes for a batch of ``n_files`` files; stop them on the way out.
+
+    Enter it before this process starts any thread (a progress bar's refresh thread) or opens
+    a log connection: with ``start_method="auto"`` the workers are then forked from this
+    process, which costs nothing, while ``forkserver`` first starts a server interpreter
+    that imports the measurement modules (~0.35 s before the first worker runs;
+    scripts/bench_batch.py). ``fork`` is taken only when this process runs exactly one
+    thread (:func:`single_threaded`): a fork copies locks held by other threads, and the
+    child can deadlock on them. With a ``fork`` context, ``concurrent.futures`` forks every
+    worker in the calling thread before it starts its own manager thread, and never forks
+    again (``ProcessPoolExecutor._launch_processes``, CPython's answer to gh-90622, in every
+    Python this package supports), so no second thread exists at any fork and the
+    fork-with-threads DeprecationWarning of Python 3.12+ has no cause to fire. Workers never
+    touch the log: the parent writes it. Numpy loaded with one BLAS thread
+    (:func:`prefer_one_blas_thread`) adds no thread; loaded with a BLAS pool, it does, and
+    the fork server is used.
+
+    On the way out the workers finish the queued jobs; on an exception (Ctrl-C) they are
+    terminated and what is queued is dropped.
 
     Parameters
     ----------
-    job : callable
-        A top-level (picklable) function of a module that is cheap to import.
-    files : sequence of Path
-        The files, one job each.
     jobs : int
-        Worker processes (≥ 1); 1 runs every job in this process, one after the other.
-        More workers than files are not started.
-    kwargs : mapping, optional
-        Keyword arguments for every job (must be picklable).
-    on_outcome : callable, optional
-        Called in this process with each :class:`JobOutcome` as it completes.
-    start_method : {"forkserver", "spawn"}
-        How worker processes are started.
+        Worker processes (≥ 1); 1 runs the jobs in this process. No more workers than files
+        are started.
+    n_files : int
+        Number of files of the batch.
+    start_method : {"auto", "forkserver", "spawn"}
+        How the workers are started.
     preload : sequence of str
         Modules the fork server imports before forking workers (only the first pool of a
         process starts the server; a module that fails to import is skipped by it).
     adapt_to_load : bool
         Take ``jobs`` as a ceiling and start fewer workers when the machine is busy
         (:func:`jobs_for_load`); the command line does.
-
-    Returns
-    -------
-    list of JobOutcome
-        In completion order.
     """
     if jobs < 1:
         raise ValueError(f"jobs must be ≥ 1, got {jobs}")
-    kw = dict(kwargs or {})
-    done: list[JobOutcome] = []
-    notify = on_outcome or (lambda outcome: None)
-    workers = min(jobs_for_load(jobs) if adapt_to_load else jobs, len(files))
+    workers = min(jobs_for_load(jobs) if adapt_to_load else jobs, n_files)
     if workers <= 1:
-        for i, path in enumerate(files):
-            outcome = _guarded(i, path, job, kw)
-            done.append(outcome)
-            notify(outcome)
-        return done
+        yield WorkerPool(1, "in-process")
+        return
 
-    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+    from concurrent.futures import ProcessPoolExecutor
 
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(start_method, preload),
-                               initializer=_worker_init)
+    method = _start_method(start_method)
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(method, preload), initializer=_worker_init)
     try:
-        # worker processes (and the fork server) are started inside submit(): they inherit
-        # the thread limits set here, before they load numpy
+        # start the workers now (fork: all of them at the first submit; forkserver and spawn:
+        # one per submit); they inherit the thread limits set here, before they load numpy
         with _thread_limits(max(1, default_jobs() // workers)):
-            pending = {pool.submit(_guarded, i, path, job, kw): (i, path) for i, path in enumerate(files)}
-        while pending:
-            finished, _ = wait(pending, return_when=FIRST_COMPLETED)
-            for fut in finished:
-                i, path = pending.pop(fut)
-                try:
-                    outcome = fut.result()
-                except Exception as e:  # a worker died (killed, out of memory) or a result would not pickle
-                    outcome = JobOutcome(i, path, error=f"{path}: the worker process failed "
-                                                        f"({type(e).__name__}: {e}) — run it again with --jobs 1")
-                done.append(outcome)
-                notify(outcome)
+            for _ in range(1 if method == "fork" else workers):
+                pool.submit(_ready)
+        yield WorkerPool(workers, method, pool)
     except BaseException:
         # Ctrl-C (or an error in on_outcome): stop now. The workers ignore SIGINT, so the jobs
         # they are running would otherwise finish (and write their files) long after the parent
@@ -494,7 +561,47 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
         pool.shutdown(wait=False, cancel_futures=True)
         raise
     pool.shutdown(wait=True)
-    return done
+
+
+def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
+             kwargs: Mapping[str, Any] | None = None,
+             on_outcome: Callable[[JobOutcome], None] | None = None,
+             start_method: StartMethod = "auto",
+             preload: Sequence[str] = MEASURE_PRELOAD, adapt_to_load: bool = False) -> list[JobOutcome]:
+    """Run ``job(path, **kwargs)`` for every file, ``jobs`` at a time.
+
+    The same as ``with worker_pool(...) as pool: pool.run(...)``; a caller that starts a
+    thread of its own during the batch (a progress bar) enters :func:`worker_pool` first.
+
+    Parameters
+    ----------
+    job : callable
+        A top-level (picklable) function of a module that is cheap to import.
+    files : sequence of Path
+        The files, one job each.
+    jobs : int
+        Worker processes (≥ 1); 1 runs every job in this process, one after the other.
+        More workers than files are not started.
+    kwargs : mapping, optional
+        Keyword arguments for every job (must be picklable).
+    on_outcome : callable, optional
+        Called in this process with each :class:`JobOutcome` as it completes.
+    start_method : {"auto", "forkserver", "spawn"}
+        How worker processes are started (see :func:`worker_pool`).
+    preload : sequence of str
+        Modules the fork server imports before forking workers.
+    adapt_to_load : bool
+        Take ``jobs`` as a ceiling and start fewer workers when the machine is busy
+        (:func:`jobs_for_load`); the command line does.
+
+    Returns
+    -------
+    list of JobOutcome
+        In completion order.
+    """
+    with worker_pool(jobs, len(files), start_method=start_method, preload=preload,
+                     adapt_to_load=adapt_to_load) as pool:
+        return pool.run(job, files, kwargs=kwargs, on_outcome=on_outcome)
 
 
 class BatchProgress:
@@ -523,7 +630,7 @@ def progress_bar(label: str, total: int, notes: Sequence[str] = ()) -> Iterator[
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-    console = Console(stderr=True, highlight=False, soft_wrap=True)
+    console = Console(stderr=True, highlight=False, soft_wrap=True, emoji=False)
     to_tty = bool(getattr(sys.stdout, "isatty", lambda: False)())
     with Progress(TextColumn(label), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
                   TextColumn("{task.description}"), console=console, transient=True,
@@ -546,7 +653,7 @@ def block_progress(path: str | Path) -> Iterator[Callable[[int, int | None], Non
     from rich.console import Console
     from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn, TimeRemainingColumn
 
-    console = Console(stderr=True, highlight=False, soft_wrap=True)
+    console = Console(stderr=True, highlight=False, soft_wrap=True, emoji=False)
     with Progress(TextColumn("measuring in blocks"), BarColumn(), TaskProgressColumn(), TimeRemainingColumn(),
                   TextColumn("{task.description}"), console=console, transient=True, redirect_stdout=False,
                   redirect_stderr=False, disable=not console.is_terminal) as progress:

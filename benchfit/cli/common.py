@@ -15,7 +15,8 @@ __all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse
 def _console(err: bool):
     from rich.console import Console
 
-    return Console(stderr=err, highlight=False, soft_wrap=False)
+    # emoji=False: a ":name:" in a file name or label is text, not an emoji code
+    return Console(stderr=err, highlight=False, soft_wrap=False, emoji=False)
 
 
 class _LazyConsole:

@@ -260,9 +260,13 @@ def fit_command(
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 100k (Hz)."),
 ) -> None:
+    from benchfit.cli.batch import prefer_one_blas_thread
     from benchfit.cli.common import (check_parts_plausible, fail, parse_assignments, parse_value, print_json,
                                      stderr, stdout)
 
+    # before numpy loads: the fits' tall, narrow matrix products run faster on one thread, several
+    # times faster on a loaded machine (scripts/bench_fit.py)
+    prefer_one_blas_thread()
     model_name = ModelOption(model).value
     method_name = cast(MethodChoice, MethodOption(method).value)
     if plot is not None and plot.suffix.lower() not in (".svg", ".png"):
@@ -291,9 +295,14 @@ def fit_command(
 
     from benchfit.capture.load import load
 
+    import contextlib
+
     import numpy as np
 
-    with stderr.status("fitting…", spinner="line"), np.errstate(all="ignore"):
+    # the spinner only where someone sees it: elsewhere it is a refresh thread and rich's live
+    # display modules for nothing
+    spinner = stderr.status("fitting…", spinner="line") if stderr.is_terminal else contextlib.nullcontext()
+    with spinner, np.errstate(all="ignore"):
         cap = load(file, sample_rate=rate)
         for line in _clip_warnings(cap):
             stderr.print(f"warning: {line}", markup=False, highlight=False, soft_wrap=True)

@@ -371,12 +371,14 @@ def _measure_single(path: Path, opts: dict[str, Any], as_json: bool, log_path: L
 def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as_json: bool,
                    log_path: LogTarget | None, jobs: int) -> None:
     """Many files in worker processes; results and error lines stream out as files finish."""
-    from benchfit.cli.batch import measure_job, progress_bar, run_jobs
+    from benchfit.cli.batch import measure_job, progress_bar, worker_pool
     from benchfit.cli.common import fail
 
     failed: list[str] = []
     run_ids: list[int] = []
-    with progress_bar("measuring", len(paths), notes) as progress:
+    # the workers start first: forked while this process has one thread (no progress bar yet)
+    with worker_pool(jobs, len(paths), adapt_to_load=True) as pool, \
+            progress_bar("measuring", len(paths), notes) as progress:
 
         def on_outcome(outcome) -> None:
             progress.advance(outcome.path.name)
@@ -388,7 +390,7 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
             if run_id is not None:
                 run_ids.append(run_id)
 
-        run_jobs(measure_job, paths, jobs=jobs, kwargs=opts, on_outcome=on_outcome, adapt_to_load=True)
+        pool.run(measure_job, paths, kwargs=opts, on_outcome=on_outcome)
     if log_path is not None and as_json and run_ids:
         from benchfit.cli.common import stderr
 

@@ -292,7 +292,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     one per capture. Workers return each unit's log entry and this process appends it, as
     results arrive (one writer to the SQLite log).
     """
-    from benchfit.cli.batch import REPORT_PRELOAD, default_jobs, progress_bar, report_job, run_jobs
+    from benchfit.cli.batch import REPORT_PRELOAD, default_jobs, progress_bar, report_job, worker_pool
     from benchfit.cli.common import fail, print_json, stdout
     from benchfit.report.assemble import _fit_call
     from benchfit.report.spec import load_spec
@@ -319,6 +319,9 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     outcomes = []
     with contextlib.ExitStack() as cleanup:
         cleanup.callback(shutil.rmtree, staging, ignore_errors=True)
+        # the workers start first: forked while this process has one thread (no progress bar yet)
+        pool = cleanup.enter_context(worker_pool(jobs or default_jobs(), len(paths), preload=REPORT_PRELOAD,
+                                                 adapt_to_load=True))
         progress = cleanup.enter_context(progress_bar("reporting", len(paths), notes))
 
         def on_outcome(outcome) -> None:
@@ -339,8 +342,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
                 if as_json:
                     print_json({**r, "log": None if log_path is None else str(log_path)})
 
-        run_jobs(report_job, paths, jobs=jobs or default_jobs(), kwargs=kwargs, on_outcome=on_outcome,
-                 preload=REPORT_PRELOAD, adapt_to_load=True)
+        pool.run(report_job, paths, kwargs=kwargs, on_outcome=on_outcome)
     index = _update_index(out) if any(o.ok for o in outcomes) else None
     outcomes.sort(key=lambda o: o.index)
     failed = [o for o in outcomes if not o.ok]

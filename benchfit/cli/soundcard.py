@@ -32,7 +32,7 @@ def live_console(err: bool):
     """A rich console for live displays (progress bar on stderr, tuning panel on stdout)."""
     from rich.console import Console
 
-    return Console(stderr=err, highlight=False)
+    return Console(stderr=err, highlight=False, emoji=False)
 
 
 def device_arg(text: Optional[str]) -> str | int | None:

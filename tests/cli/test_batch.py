@@ -213,13 +213,19 @@ def _probe(path: Path) -> list[str]:
                   if m in sys.modules)
 
 
-def test_workers_do_not_load_sounddevice_or_the_cli(batch):
-    from benchfit.cli.batch import run_jobs
+@pytest.mark.parametrize("start_method", ["auto", "forkserver"])
+def test_workers_do_not_load_sounddevice_or_the_cli(batch, start_method):
+    """A fork-server worker loads none of them; a forked worker (``auto`` in a process with one
+    thread) has only what this process had loaded when it forked."""
+    from benchfit.cli.batch import worker_pool
 
     files = [batch["dir"] / "HC-01.wav", batch["dir"] / "HC-02.wav"]
-    outcomes = run_jobs(_probe, files, jobs=2)
+    here = sorted(m for m in ("sounddevice", "typer", "benchfit.cli.app", "benchfit.capture.live")
+                  if m in sys.modules)
+    with worker_pool(2, len(files), start_method=start_method) as pool:
+        outcomes = pool.run(_probe, files)
     assert all(o.ok for o in outcomes), [o.error for o in outcomes]
-    assert [o.result for o in outcomes] == [[], []]
+    assert [o.result for o in outcomes] == [here, here] if pool.start_method == "fork" else [[], []]
 
 
 def test_run_jobs_reports_in_completion_order_with_index(batch):

@@ -113,6 +113,16 @@ def test_human_output_has_units_and_uncertainties(wavs, run):
     assert " ± " in text and " Hz" in text and " FS" in text and " dB" in text
 
 
+def test_a_file_name_with_colons_is_shown_as_written(wavs, tmp_path, run):
+    """":thumbs_up:" in a file name is text: rich's consoles would show an emoji for it unless
+    emoji codes are off (rich documentation, "Console API: Emoji")."""
+    named = tmp_path / "HC-02:thumbs_up:.wav"
+    named.write_bytes(wavs["mono"].read_bytes())
+    res = run("measure", str(named))
+    assert res.returncode == 0, res.stderr
+    assert "HC-02:thumbs_up:.wav" in res.stdout and "\N{THUMBS UP SIGN}" not in res.stdout
+
+
 def test_sample_rate_option_reaches_the_csv_reader(tmp_path, run):
     # a headerless CSV of the output (volts) with no time column: the rate comes from the option
     t = np.arange(2000) / 10000.0
