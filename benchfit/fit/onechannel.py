@@ -329,8 +329,17 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     marg = None
     if nuis:
         ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-        marg = marginalise(residual, values, fix, nuis, ex_now, parts,
-                           {ASYMMETRY_FIGURE: asymmetry_ohm} if ASYMMETRY in extra else None)
+        try:
+            marg = marginalise(residual, values, fix, nuis, ex_now, parts,
+                               {ASYMMETRY_FIGURE: asymmetry_ohm} if ASYMMETRY in extra else None)
+        except ValueError as e:  # no point of the grid gave a fit with finite figures (no resonance)
+            raise FitError(
+                f"{where}: channel {name!r}: no fit of the output's shape over the stated range of "
+                f"{', '.join(q.name for q in nuis)} gives a damped resonance (the fit's "
+                f"1/(2π√(LC)) = {1 / (2 * math.pi * math.sqrt(values['L'] * values['C'])):.4g} Hz for a "
+                f"{f:.4g} Hz drive) — "
+                "capture the drive too and use method='two-channel', or give drive_duty and more of the parts "
+                "with fix") from e
         held = {q.name: marg.best[q.name] for q in nuis}
         free = tuple(n for n in parts if n not in fix and n not in held)
         ex_now = {n: (marg.best[n], lo, hi) for n, (_, lo, hi) in extra.items()}
