@@ -154,23 +154,30 @@ def _deepest_basin(residual, fix: Mapping[str, float], fits: list):
 
     When the ideal drive does not fit, its ranking of the valleys says little: on an ngspice unit with
     r_high/r_low = 25/8 Ω tuned 24 % above the drive frequency (tests/fit/test_onechannel_basins.py) the
-    valley below the drive frequency came out 0.5 % deeper, and the switched-source refit from there
-    stayed at L 4 × too high with χ² 10¹¹ times that of the refit from the valley above. So each valley
+    valley below the drive frequency came out 2 % deeper on the grid (its ideal-drive fit 0.5 % lower in
+    χ²), and the switched-source refit from there stayed at L = 2.06 H for 0.3 H, its χ² 3·10¹¹ times
+    that of the refit from the valley above (noise-free, duty given). So each valley
     is judged by the best the fit's models reach from it: the ideal drive and, unless given as 0, the
-    switched source (:func:`benchfit.fit.asymmetry.compare_drive_asymmetry`, whose refit is redone on the
-    chosen valley later)."""
+    switched source (:func:`benchfit.fit.asymmetry.compare_drive_asymmetry`).
+
+    Returns (extra, the :func:`solve` tuple, the comparison on that valley or None), the comparison
+    kept so that :func:`_drive_asymmetry` need not redo it on the same base fit."""
     ranked: list[tuple[float, int]] = []
+    compared = []
     for extra, base in fits:
         values, ident = base[0], base[1]
         r = residual(values)
         chi2 = float(r @ r)
+        cmp = None
         if ASYMMETRY not in fix and not {"L", "C"} <= set(ident.undetermined):
             ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-            summary, _ = compare_drive_asymmetry(residual, values, ident.names, ex_now)
-            if summary is not None and summary["test"].startswith("extra"):
-                chi2 = min(chi2, float(summary["chi2"][1]))
+            cmp = compare_drive_asymmetry(residual, values, ident.names, ex_now)
+            if cmp[0] is not None and cmp[0]["test"].startswith("extra"):
+                chi2 = min(chi2, float(cmp[0]["chi2"][1]))
         ranked.append((chi2, len(ranked)))
-    return fits[min(ranked)[1]]
+        compared.append(cmp)
+    i = min(ranked)[1]
+    return fits[i][0], fits[i][1], compared[i]
 
 
 def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
@@ -290,8 +297,9 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
 
     grid = _shape_grid(k, yk, amp_u, duty0, _BASINS)
     extra, base = base_fit(*grid[0])
+    compared = None
     if len(grid) > 1 and not _ideal_drive_fits(residual, base):
-        extra, base = _deepest_basin(residual, fix, [(extra, base)] + [base_fit(*g) for g in grid[1:]])
+        extra, base, compared = _deepest_basin(residual, fix, [(extra, base)] + [base_fit(*g) for g in grid[1:]])
     values, ident, fixed, folded, warnings, ok, msg, alts = base
     comparison, parts = None, PARAMETER_NAMES
     if "Rp" not in fix:  # a core loss (Rp across L): its loss rises as f², a shape the output shows
@@ -308,7 +316,9 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                 values, ident, fixed, folded, warnings, ok, msg, alts = refit
                 warnings = list(warnings) + [comparison["note"]]
                 parts = PART_NAMES
-    asym = _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty)
+    # the valleys' comparison holds for this base fit unless the core-loss refit replaced it
+    asym = _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty,
+                            compared if values is base[0] else None)
     if asym is not None and asym[1] is not None:
         values, ident, fixed, folded, warnings, ok, msg, alts = asym[1]
         extra[ASYMMETRY] = (values[ASYMMETRY], -ASYMMETRY_BOUND, ASYMMETRY_BOUND)
@@ -398,7 +408,7 @@ def _load_beside_open_core_loss(result, nuis: tuple[Nuisance, ...], fix: Mapping
     return replace(result, parameters=params, warnings=tuple(result.warnings) + (warn,))
 
 
-def _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty: float | None):
+def _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty: float | None, compared=None):
     """Compare the ideal drive with a switched one (r_high ≠ r_low, :mod:`benchfit.fit.asymmetry`).
 
     Returns None when not compared (the asymmetry given as 0 with ``fix``), else (summary with a
@@ -409,7 +419,7 @@ def _drive_asymmetry(residual, values, ident, fix, extra, parts, drive_duty: flo
     if ASYMMETRY in fix or {"L", "C"} <= set(ident.undetermined):
         return None
     ex_now = {n: (values[n], lo, hi) for n, (_, lo, hi) in extra.items()}
-    summary, chosen = compare_drive_asymmetry(residual, values, ident.names, ex_now)
+    summary, chosen = compared or compare_drive_asymmetry(residual, values, ident.names, ex_now)
     if summary is None:
         return None
     if chosen is None:
