@@ -342,4 +342,4 @@ def fit_command(
                     "Q, ESR zero); the parts follow only from a known one")
         render_fit(d, stdout, note)
         if plot is not None:
-            stdout.print(f"figure written to {plot}", markup=False, highlight=False)
+            stdout.print(f"figure written to {plot}", markup=False, highlight=False, soft_wrap=True)

@@ -311,7 +311,7 @@ def _plot(path: Path, opts: dict[str, Any], plot: Path, as_json: bool) -> None:
     if opts.get("channels"):
         cap = cap.select(list(opts["channels"]))
     save_figure(measurement_svg(cap, m), plot, overwrite=False)
-    (stderr if as_json else stdout).print(f"figure written to {plot}", markup=False, highlight=False)
+    (stderr if as_json else stdout).print(f"figure written to {plot}", markup=False, highlight=False, soft_wrap=True)
 
 
 def _log_measurement(log_path: LogTarget, out: dict[str, Any]) -> int:
