@@ -26,41 +26,24 @@ import math
 import numpy as np
 import pytest
 
-from benchfit.capture.capture import Capture, InputCalibration
-from benchfit.fit.lowpass import fit_lowpass
-from fitspice import Unit
 from test_honest_units import _check
-from units_issue11 import FS, Case, simulate, truth, zscores
+from units_issue11 import CASES, fit_rows, simulate
 
 pytestmark = pytest.mark.ngspice
 
 SEEDS = range(10)
-UNITS = {"default": Unit(), "asymmetric": Unit(r_high=25.0, r_low=8.0, Resr=1.5), "open": Unit(Rload=1e9),
-         "heavy-calibrated": Unit(Rload=220.0)}
+#: the free-load cases of tests/fit/units_issue11.py ("load-<name>")
+NAMES = ("default", "asymmetric", "open", "heavy-calibrated")
 
 
 @pytest.fixture(scope="module")
 def sims(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("load-unknown")
-    return {name: simulate(tmp, Case(f"load-{name}", u)) for name, u in UNITS.items()}
+    return {name: simulate(tmp, CASES[f"load-{name}"]) for name in NAMES}
 
 
 def _rows(sims, name: str, seeds) -> list:
-    drive, out = sims[name]
-    u = UNITS[name]
-    t = truth(u)
-    cal = (InputCalibration(gain_v_per_fs=(1.0, 1.0), gain_u_rel=(1e-3, 1e-3), profile="bench")
-           if name == "heavy-calibrated" else InputCalibration())
-    rows = []
-    for seed in seeds:
-        rng = np.random.default_rng(seed)
-        d = drive + rng.normal(0.0, 0.02, drive.size)
-        o = out + rng.normal(0.0, 0.01, out.size)
-        cap = Capture(np.vstack([d, o]), FS, ("drive", "output"), ("V", "V"), source=f"{name}.csv", calibration=cal)
-        r = fit_lowpass(cap, fix={"L": (0.3, 0.03)})
-        z, und = zscores(r, t)
-        rows.append((r, z, und))
-    return rows
+    return fit_rows(CASES[f"load-{name}"], *sims[name], seeds)
 
 
 @pytest.fixture(scope="module")
