@@ -8,7 +8,7 @@
    with its standard error sd/√n, sd(z) against the χ² band an honest sd stays in over n seeds
    (scipy.stats.chi2), the fraction of seeds with |z| > 3 (a normal z: 0.27 %) and seed 0's rank
    by |z| (1 = the largest).
-2. The linearised Q direction: at the simulator's truth (L held, C, Rs, ESR, load and the channel
+2. The linearised Q direction (the fit's model, benchfit.model.filter.sampled_transfer): at the simulator's truth (L held, C, Rs, ESR, load and the channel
    gain ratio free, the ratio's prior row as in the fit) the whitened least-squares map from the
    harmonic phasors H_k = Y_k/X_k to Q (delta method, Moore–Penrose inverse for the Rs/load
    valley, along which Q does not move to first order). Each seed's noise is projected on it:
@@ -46,7 +46,7 @@ from benchfit.fit.common import whiten, whitening  # noqa: E402
 from benchfit.fit.identify import numeric_jacobian  # noqa: E402
 from benchfit.fit.marginal import figures_of  # noqa: E402
 from benchfit.measurement.tone import fit_harmonics  # noqa: E402
-from benchfit.model.filter import transfer  # noqa: E402
+from benchfit.model.filter import sampled_transfer, transfer  # noqa: E402
 from units_issue11 import CASES, FS, capture_and_fix, fit_rows, simulate, truth  # noqa: E402
 
 #: the noise the two-channel cases add (units_issue11.capture_and_fix): drive, output (V rms)
@@ -104,7 +104,7 @@ def table(rows: dict[int, dict]) -> None:
 class QDirection:
     """The linearised map from both channels' noise to Q at the truth (module docstring, item 2)."""
 
-    def __init__(self, case, drive: np.ndarray, out: np.ndarray) -> None:
+    def __init__(self, case, drive: np.ndarray, out: np.ndarray, figure: str = "q_factor") -> None:
         t = truth(case.unit)
         kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * FS - 1e-9) / F_TRUE))))
         self.kmax = kmax
@@ -132,11 +132,11 @@ class QDirection:
 
         def residual(p: np.ndarray) -> np.ndarray:
             v, g = unpack(p)
-            return np.append(whiten(self.w, hk0 - g * transfer(fk, parts_of(v))), (g - 1.0) / u_ratio)
+            return np.append(whiten(self.w, hk0 - g * sampled_transfer(fk, parts_of(v), FS)), (g - 1.0) / u_ratio)
 
         p0 = np.zeros(len(free) + 1)
         jac = numeric_jacobian(residual, p0, step=1e-6)
-        grad = numeric_jacobian(lambda p: np.array([figures_of(unpack(p)[0])["q_factor"]]), p0, step=1e-6)[0]
+        grad = numeric_jacobian(lambda p: np.array([figures_of(unpack(p)[0])[figure]]), p0, step=1e-6)[0]
         pinv = np.linalg.pinv(jac, rcond=1e-10)
         # δθ = −J⁺·[W δh; 0], so δQ = bᵀ·(W δh) with b the data rows of −J⁺ᵀ∇Q
         b = -(pinv.T @ grad)
@@ -146,10 +146,13 @@ class QDirection:
         self.sd_out = float(math.sqrt(np.einsum("ki,kij,kj->", wb, self.cov_out, wb)))
         self.sd_drive = float(math.sqrt(np.einsum("ki,kij,kj->", wb, self.cov_drive, wb)))
         self.sd_data = float(np.linalg.norm(self.b))
-        self.q_true = float(t["q_factor"])
+        self.q_true = float(t[figure])
         # the clean (noise-free) samples' H_k against the model at the truth: a deterministic error of the
-        # harmonic method (e.g. the drive's harmonics above Nyquist aliased onto the kept orders)
-        self.dq_clean = float(self.b @ whiten(self.w, hk0 - transfer(fk, parts_of(base))))
+        # harmonic method, with the drive taken as band-limited (transfer: its harmonics above Nyquist fold
+        # onto the kept orders) and as linear between samples (sampled_transfer, the fit's model)
+        self.dq_clean = {name: float(self.b @ whiten(self.w, hk0 - h))
+                         for name, h in (("band-limited drive, H(j2πkf)", transfer(fk, parts_of(base))),
+                                         ("drive linear between samples", sampled_transfer(fk, parts_of(base), FS)))}
 
     def project(self, case, drive: np.ndarray, out: np.ndarray, seed: int) -> tuple[float, float, float]:
         """t of the output's noise, the drive's and both for one seed (each over its own sd)."""
@@ -177,8 +180,9 @@ def main() -> None:
         print(f"== {a.case}: linearised Q direction at the truth (Q = {qd.q_true:.4g}; f held at {F_TRUE:g} Hz)")
         print(f"  sd of δQ_lin from the data noise {qd.sd_data:.4g} (output {qd.sd_out:.4g}, drive {qd.sd_drive:.4g});"
               f" with the gain prior row: u_lin(Q) = {qd.u_lin:.4g}")
-        print(f"  the clean samples' H_k against the model at the truth move Q by {qd.dq_clean:+.3g}"
-              f" = {qd.dq_clean / qd.sd_data:+.3f} sd (linearised, f held)")
+        for what, dq in qd.dq_clean.items():
+            print(f"  the clean samples' H_k against the model ({what}) at the truth move Q by {dq:+.3g}"
+                  f" = {dq / qd.sd_data:+.3f} sd (linearised, f held)")
         ts = np.array([qd.project(case, drive, out, s) for s in range(max(a.draws, a.seeds))])
         for j, what in enumerate(("output noise", "drive noise", "both")):
             col = ts[:, j]
