@@ -1,6 +1,7 @@
-"""Print z-score spreads per simulated unit (issue 11): python3 scripts/zscores_units.py [SEEDS [CASE ...]].
+"""Print z-score spreads per simulated unit (issue 11): python3 scripts/zscores_units.py [SEEDS] [CASE…].
 
-For each case of tests/fit/units_issue11.py (ngspice-simulated, seeded noise) and each reported
+For each case of tests/fit/units_issue11.py (ngspice-simulated, seeded noise; CASE… picks cases by
+name or name prefix, e.g. ``load-`` for the free-load ones of tests/fit/test_honest_units_load.py) and each reported
 value: max |z|, sd and mean of z = (reported − true)/u over the seeds, and what was reported as
 not determined, then per case the largest |z|, the mean fit time per seed and the range of sd(z) against the χ² band an
 honest sd would stay in (scipy.stats.chi2). Needs ngspice.
@@ -26,7 +27,10 @@ from units_issue11 import CASES, run_case  # noqa: E402
 
 def main() -> None:
     n = int(sys.argv[1]) if len(sys.argv) > 1 else 10
-    names = sys.argv[2:] or list(CASES)
+    picks = sys.argv[2:]
+    names = [c for c in CASES if not picks or any(c == p or c.startswith(p) for p in picks)]
+    if not names:
+        sys.exit(f"no case matches {' '.join(picks)} — cases: {', '.join(CASES)}")
     with tempfile.TemporaryDirectory(prefix="benchfit-z-") as tmp:
         for name in names:
             times: list[float] = []

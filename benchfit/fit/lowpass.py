@@ -30,11 +30,17 @@ the same stated ranges as in the output-only fit (:mod:`benchfit.fit.marginal`),
 determined, with the range, its source and the measurement that would pin it. A load the data
 determine stays fitted.
 
-Known limitation: the harmonic method takes the drive's sampled phasors as the circuit's
-input. A drive with sharp edges sampled without an anti-alias filter (a scope export) has
-aliased harmonics, which biases the highest orders by about (π·k·f/fs)²/3; the time-domain
-refinement holds the drive linear between samples and so avoids most of it (what is left is
-the timing of each edge within one sample).
+The sampled drive is taken as linear between samples in both methods: the harmonic method's model
+of H_k = Y_k/X_k is the exact first-order-hold response of the sampled output to the sampled drive
+(:func:`benchfit.model.filter.sampled_transfer`, the frequency response of the time-domain
+refinement's :func:`benchfit.model.filter.simulate`), not H(j·2πkf). A drive with edges within one
+sample (a scope's export without an anti-alias filter) has its harmonics above Nyquist folded onto
+the kept orders, which moves Y_k/X_k from H(j·2πkf) by about (π·k·f/fs)²/3: on the asymmetric ngspice
+unit (50 Hz at 20 kS/s, L ± 10 % only, load free) that biased Q by +0.27 ± 0.07 of its u (mean z over
+200 seeds; +0.24 from the noise-free samples, linearised; scripts/coverage_freeload.py). Known limitation: a drive that *is* band-limited (both channels behind
+the same anti-alias filter, e.g. a sound card's line input) would be off by the opposite amount, of
+the same order: (π·k·f/fs)² is 4·10⁻⁶ at k = 3, f = 50 Hz, fs = 48 kHz. What is left with sharp edges
+is the timing of each edge within one sample.
 """
 
 from __future__ import annotations
@@ -47,7 +53,7 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, free_response_basis, simulate, transfer
+from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, free_response_basis, sampled_transfer, simulate, transfer
 from benchfit.fit.identify import fit_log_parameters, identify, solve
 from benchfit.fit.marginal import Nuisance, figures_of, load_nuisance, marginalise
 from benchfit.fit.marginal import apply as apply_marginal
@@ -263,7 +269,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     u_abs = _abs_u(hk, cov)
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return whiten(w, hk - v.get("gain_ratio", 1.0) * transfer(fk * v.get("f_scale", 1.0), parts_of(v)))
+        return whiten(w, hk - v.get("gain_ratio", 1.0) * sampled_transfer(fk * v.get("f_scale", 1.0), parts_of(v), fs))
 
     ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
@@ -354,7 +360,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     else:
         specs = {**input_specs(fix_specs or {}, fixed, folded, ratio), **f_spec}
         sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
-    h_model = values.get("gain_ratio", 1.0) * transfer(fk, parts_of(values))
+    h_model = values.get("gain_ratio", 1.0) * sampled_transfer(fk, parts_of(values), fs)
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs
     y_model = hy.dc + sum((xk[i] * h_model[i] * np.exp(1j * orders[i] * 2 * math.pi * f * t)).real
@@ -635,7 +641,7 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
     ym = model(values)
     curves = FitCurves(time_s=np.arange(n) / fs, data=y.copy(), model=ym,
                        harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
-                       h_model=transfer(curves.harmonic_hz, parts_of(values)),
+                       h_model=sampled_transfer(curves.harmonic_hz, parts_of(values), fs),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
     folded = [k for k in fixed if k not in user_fix and k in PART_NAMES]  # undetermined, held at 0
     return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual

@@ -27,7 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["PARAMETER_NAMES", "PART_NAMES", "LowpassParts", "coefficients", "coefficients_full", "feedthrough",
-           "transfer", "second_order",
+           "transfer", "sampled_transfer", "second_order",
            "state_space", "discretize", "simulate", "free_response_basis", "rectangular_phasors"]
 
 #: the parameters of the lc-lowpass model, in the order used everywhere
@@ -117,6 +117,55 @@ def transfer(frequency_hz: np.ndarray | float, p: LowpassParts) -> np.ndarray:
     s = 2j * math.pi * np.asarray(frequency_hz, dtype=float)
     b, a = coefficients_full(p)
     return ((b[0] * s + b[1]) * s + b[2]) / ((a[0] * s + a[1]) * s + a[2])
+
+
+def sampled_transfer(frequency_hz: np.ndarray | float, p: LowpassParts, sample_rate: float) -> np.ndarray:
+    """Response Y/X of the *sampled* output to the *sampled* drive, the drive linear between samples.
+
+    The exact first-order-hold discretisation of :func:`discretize` (the model of :func:`simulate`)
+    at z = e^{j·2πf/fs}: H_d(z) = C·(zI − Φ)⁻¹·(ΦΓ1 + Γ0 − Γ1) + C·Γ1 + D. Unlike :func:`transfer`
+    it takes the drive's samples for what they are, not for a band-limited waveform: a drive with
+    edges within one sample (no anti-alias filter, e.g. a scope's export) has its harmonics above
+    Nyquist folded onto the ones below, which moves Y_k/X_k from H(j·2πkf) by about (π·k·f/fs)²/3
+    while the output (behind the low-pass) has almost none to fold. It tends to :func:`transfer`
+    as fs → ∞.
+
+    Computed per pole p_i of H(s) = D + Σ r_i/(s − p_i) (x = p_i·T, T = 1/fs): one mode has
+    Φ = eˣ, Γ1 = T·E(x), Γ0 = T·(1 + x·E(x)) with E(x) = (eˣ − 1 − x)/x², so its term is
+    r_i·[T·(1 + x·E)²/(z − Φ) + T·E]; a double pole (critical damping) takes the matrix exponential.
+    """
+    b, a = coefficients_full(p)
+    t = 1.0 / float(sample_rate)
+    dc = b[0] / a[0]
+    c1, c0 = b[1] - dc * a[1], b[2] - dc * a[2]  # N − D·Den, the strictly proper part's numerator
+    root = np.sqrt(complex(a[1] * a[1] - 4.0 * a[0] * a[2]))
+    poles = ((-a[1] + root) / (2 * a[0]), (-a[1] - root) / (2 * a[0]))
+    if abs(poles[0] - poles[1]) < 1e-6 * abs(poles[0]):
+        return _sampled_transfer_expm(frequency_hz, p, sample_rate)
+    wt = 2.0 * math.pi * np.asarray(frequency_hz, dtype=float) * t
+    zm1 = np.expm1(1j * wt)  # z − 1, accurate where ωT is small
+    out = np.full(wt.shape, dc, dtype=complex)
+    for pi, pj in (poles, poles[::-1]):
+        r = (c1 * pi + c0) / (a[0] * (pi - pj))
+        x = pi * t
+        if abs(x) < 0.1:  # the series of E(x) to x⁶: relative error below 3·10⁻¹³
+            e = sum(x ** n / math.factorial(n + 2) for n in range(7))
+        else:
+            e = (np.expm1(x) - x) / (x * x)
+        out += r * (t * (1.0 + x * e) ** 2 / (zm1 - x * (1.0 + x * e)) + t * e)
+    return out
+
+
+def _sampled_transfer_expm(frequency_hz: np.ndarray | float, p: LowpassParts, sample_rate: float) -> np.ndarray:
+    """:func:`sampled_transfer` from the state-space matrices (any pole pair, slower)."""
+    phi, gam0, gam1, c = _foh(p, sample_rate)
+    bd = phi @ gam1 + gam0 - gam1
+    z = np.exp(2j * math.pi * np.asarray(frequency_hz, dtype=float) / float(sample_rate))
+    # (zI − Φ)⁻¹·bd for the 2×2 Φ, by its adjugate
+    det = (z - phi[0, 0]) * (z - phi[1, 1]) - phi[0, 1] * phi[1, 0]
+    x0 = ((z - phi[1, 1]) * bd[0] + phi[0, 1] * bd[1]) / det
+    x1 = (phi[1, 0] * bd[0] + (z - phi[0, 0]) * bd[1]) / det
+    return c[0] * x0 + c[1] * x1 + float(c @ gam1) + feedthrough(p)
 
 
 def second_order(p: LowpassParts) -> dict[str, float]:

@@ -26,41 +26,24 @@ import math
 import numpy as np
 import pytest
 
-from benchfit.capture.capture import Capture, InputCalibration
-from benchfit.fit.lowpass import fit_lowpass
-from fitspice import Unit
 from test_honest_units import _check
-from units_issue11 import FS, Case, simulate, truth, zscores
+from units_issue11 import CASES, fit_rows, simulate
 
 pytestmark = pytest.mark.ngspice
 
 SEEDS = range(10)
-UNITS = {"default": Unit(), "asymmetric": Unit(r_high=25.0, r_low=8.0, Resr=1.5), "open": Unit(Rload=1e9),
-         "heavy-calibrated": Unit(Rload=220.0)}
+#: the free-load cases of tests/fit/units_issue11.py ("load-<name>")
+NAMES = ("default", "asymmetric", "open", "heavy-calibrated")
 
 
 @pytest.fixture(scope="module")
 def sims(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("load-unknown")
-    return {name: simulate(tmp, Case(f"load-{name}", u)) for name, u in UNITS.items()}
+    return {name: simulate(tmp, CASES[f"load-{name}"]) for name in NAMES}
 
 
 def _rows(sims, name: str, seeds) -> list:
-    drive, out = sims[name]
-    u = UNITS[name]
-    t = truth(u)
-    cal = (InputCalibration(gain_v_per_fs=(1.0, 1.0), gain_u_rel=(1e-3, 1e-3), profile="bench")
-           if name == "heavy-calibrated" else InputCalibration())
-    rows = []
-    for seed in seeds:
-        rng = np.random.default_rng(seed)
-        d = drive + rng.normal(0.0, 0.02, drive.size)
-        o = out + rng.normal(0.0, 0.01, out.size)
-        cap = Capture(np.vstack([d, o]), FS, ("drive", "output"), ("V", "V"), source=f"{name}.csv", calibration=cal)
-        r = fit_lowpass(cap, fix={"L": (0.3, 0.03)})
-        z, und = zscores(r, t)
-        rows.append((r, z, und))
-    return rows
+    return fit_rows(CASES[f"load-{name}"], *sims[name], seeds)
 
 
 @pytest.fixture(scope="module")
@@ -91,9 +74,9 @@ def test_unknown_load_is_marginalised_and_the_rest_is_within_three_u(rows, name)
         assert not any(c.name.startswith("channel gain ratio") for c in r.parameters["C"].budget.contributions)
 
 
-@pytest.mark.xfail(strict=True, reason="seed 0 is a 3.1σ noise draw on Q (and the decay rate, ≈ 1/Q): over 40 "
-                                       "seeds the z of Q has sd 1.00 and mean 0.25 (see the next test)")
 def test_asymmetric_unit_with_unknown_load_is_within_three_u(rows):
+    # seed 0's noise is a 2.9σ draw along Q (its linearised projection, scripts/coverage_freeload.py: rank 8
+    # of 2000 seeds; the drive's noise alone 4.1σ), so |z(Q)| is 2.85 here: a k = 3 interval still holds it
     _check(rows["asymmetric"])
 
 
@@ -101,13 +84,11 @@ def test_asymmetric_unit_with_unknown_load_has_honest_z_spread(rows):
     from scipy.stats import chi2
 
     rs = rows["asymmetric"]
-    worst: dict[str, float] = {}
     zs: dict[str, list[float]] = {}
     for r, z, und in rs:
         assert {"Rs", "Rload"} <= set(und)
         for k, v in z.items():
             zs.setdefault(k, []).append(v)
-            worst[k] = max(worst.get(k, 0.0), abs(v))
     # sd of z over n seeds scatters as √(χ²_{n−1}/(n−1)): its 99.9 % band (scipy.stats.chi2) bounds the
     # rows driven by the noise; a mean beyond the normal 99.9 % point 3.3/√n would be a bias
     n = len(SEEDS)
@@ -115,9 +96,6 @@ def test_asymmetric_unit_with_unknown_load_has_honest_z_spread(rows):
     for name in ("q_factor", "decay_rate_per_s", "natural_frequency_hz", "damped_frequency_hz"):
         z = np.asarray(zs[name])
         assert z.size == n and np.std(z, ddof=1) < hi and abs(np.mean(z)) < 3.3 / math.sqrt(n), (name, np.round(z, 2))
-    # nothing else strays: 3.5 leaves the one 3.1σ draw of Q above, no more (a normal error exceeds 3.5 in
-    # 5 draws of 10⁴)
-    assert max(worst.values()) < 3.5, worst
 
 
 def test_heavy_load_with_two_equally_good_solutions_is_not_determined(sims):

@@ -27,6 +27,17 @@ Cases (issue 11):
   No fit models the levels (they only scale the output's harmonics, benchfit.model.switched); the
   symmetric unit is a time-invariant one like ``sound-card`` and, with the same capture noise,
   meets the same seed-0 draw on Q (tests/fit/test_honest_units.py's xfail).
+
+Free-load cases (tests/fit/test_honest_units_load.py): two-channel, the user gives L = 300 mH ± 10 %
+and nothing else, so the load is unknown and integrated out:
+
+* ``load-default`` — the default unit (Rs 12 Ω, ESR 0.8 Ω, a 10 kΩ load);
+* ``load-asymmetric`` — the unit of ``asymmetric-drive`` (same circuit, same noise per seed);
+* ``load-open`` — no load at all (1 GΩ);
+* ``load-heavy-calibrated`` — a 220 Ω load, both inputs calibrated to 0.1 %.
+
+Every two-channel case draws its noise the same way from ``numpy.random.default_rng(seed)``
+(drive first, then output), so one seed is one noise draw in all of them.
 """
 
 from __future__ import annotations
@@ -52,6 +63,10 @@ class Case:
     name: str
     unit: Unit
     edge: float = 50e-6
+    #: the user gives L ± 10 % and nothing else: the load is unknown (two-channel)
+    load_free: bool = False
+    #: both inputs calibrated to 0.1 % (otherwise the channel gain ratio is 1 ± 3 %)
+    calibrated: bool = False
 
 
 #: a bipolar timer's output levels: low 0.15 V above ground, high 1.6 V below the supply (NE555 datasheet,
@@ -72,6 +87,10 @@ CASES = {
     "offset-levels": Case("offset-levels", _OFFSET),
     "offset-levels-output-only": Case("offset-levels-output-only", _OFFSET, edge=2e-6),
     "offset-levels-symmetric-output-only": Case("offset-levels-symmetric-output-only", _OFFSET_SYMMETRIC, edge=2e-6),
+    "load-default": Case("load-default", Unit(), load_free=True),
+    "load-asymmetric": Case("load-asymmetric", Unit(r_high=25.0, r_low=8.0, Resr=1.5), load_free=True),
+    "load-open": Case("load-open", Unit(Rload=1e9), load_free=True),
+    "load-heavy-calibrated": Case("load-heavy-calibrated", Unit(Rload=220.0), load_free=True, calibrated=True),
 }
 #: the cases captured on the output alone, like a sound card (AC-coupled, 16-bit, FS units)
 OUTPUT_ONLY = ("sound-card", "asymmetric-output-only", "core-loss-output-only", "offset-levels-output-only",
@@ -121,7 +140,11 @@ def capture_and_fix(case: Case, drive: np.ndarray, out: np.ndarray, seed: int):
         o = 0.975 * o
         d = np.round(d / (20.0 / 256)) * (20.0 / 256)
         o = np.round(o / (4.0 * 16 / 256)) * (4.0 * 16 / 256)  # 64 V range: the 46 V peak fits
-    cap = Capture(np.vstack([d, o]), FS, ("drive", "output"), ("V", "V"), source=f"{case.name}.csv")
+    cal = (InputCalibration(gain_v_per_fs=(1.0, 1.0), gain_u_rel=(1e-3, 1e-3), profile="bench")
+           if case.calibrated else InputCalibration())
+    cap = Capture(np.vstack([d, o]), FS, ("drive", "output"), ("V", "V"), source=f"{case.name}.csv", calibration=cal)
+    if case.load_free:
+        return cap, {"L": (0.3, 0.03)}, None
     if case.name == "coupled-chokes":
         return cap, {"C": (u.C, 0.02 * u.C), "Rload": (u.Rload, 0.01 * u.Rload)}, None
     return cap, {"L": (0.3, 0.03), "Rload": (u.Rload, 0.01 * u.Rload)}, None
@@ -153,12 +176,20 @@ def zscores(result, t: dict[str, float]) -> tuple[dict[str, float], list[str]]:
     return z, undetermined
 
 
-def run_case(tmp_path, name: str, seeds: range, times: list[float] | None = None):
-    """Fit every seed of case ``name``; the fits' wall times (s) go to ``times`` when given."""
-    import time
-
+def run_case(tmp_path, name: str, seeds, times: list[float] | None = None):
+    """Simulate the case once and fit it for every seed: (result, z, not determined) per seed;
+    the fits' wall times (s) go to ``times`` when given."""
     case = CASES[name]
     drive, out = simulate(tmp_path, case)
+    return fit_rows(case, drive, out, seeds, times)
+
+
+def fit_rows(case: Case, drive: np.ndarray, out: np.ndarray, seeds, times: list[float] | None = None):
+    """Fit the simulated unit once per noise seed: (result, z, not determined) per seed; the fits'
+    wall times (s) go to ``times`` when given."""
+    import time
+
+    name = case.name
     t = truth(case.unit, output_only=name in OUTPUT_ONLY)
     rows = []
     for seed in seeds:
