@@ -32,7 +32,8 @@ import numpy as np
 from benchfit.fit.identify import fit_log_parameters, numeric_jacobian
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
 
-__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "point_parts", "load_nuisance", "FIGURE_NAMES"]
+__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "point_parts", "load_nuisance", "scale_input",
+           "FIGURE_NAMES"]
 
 #: grid points per nuisance axis (a second pass refines an axis whose posterior is narrow); a
 #: nuisance may set its own count (``Nuisance.points``, e.g. a share the data hardly see)
@@ -362,7 +363,46 @@ _REL_LIMIT = 0.5
 _PINNED = 0.5
 
 
-def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, label: str):
+#: the power of the impedance scale a in each unit when every impedance is multiplied by a at the same
+#: frequencies: ohm, henry (Ω·s) as a, farad (s/Ω) and siemens as 1/a; frequencies, rates and ratios not
+_IMPEDANCE_POWER = {"ohm": 1, "H": 1, "F": -1, "S": -1, "Hz": 0, "1/s": 0, "1": 0}
+
+
+def scale_input(result) -> str | None:
+    """The part that alone sets the fit's impedance scale: the only part held fixed (None: none or several).
+
+    A voltage ratio of impedances (the filter's H, and so both captures' phasors up to the drive's level) is
+    unchanged when every impedance is multiplied by the same factor a (L → a·L, C → C/a, each R → a·R;
+    impedance scaling, common practice, no source), and every nuisance range here is a share of the fit's
+    own total loss or of its L/C (:func:`load_nuisance`, fit.onechannel), which scale alike. So with one part
+    held, the marginal of each quantity y is exactly y(a) = a^p·y with p the power of its unit
+    (``_IMPEDANCE_POWER``): Q, the frequencies and the decay rate do not depend on it at all.
+    """
+    held = [n for n, d in result.inputs.items() if d.get("role", "fixed") == "fixed" and n in PART_NAMES]
+    return held[0] if len(held) == 1 else None
+
+
+def _scaled_row(c, scale: str | None, value: float, unit: str, marg: Marginal):
+    """A held scale part's row with its exact sensitivity p·y/(p_φ·φ) (:func:`scale_input`).
+
+    The base fit's linearised sensitivity holds the nuisances at their best point in ohms, so it moves the
+    shape when the scale part moves: on the core-loss output-only unit it gave Q a fixed-L row of 0.0060
+    (∂Q/∂L = −0.35 /H) against a marginal Q that changed by 3e-9 with L 1 % higher (scripts/coverage_units.py).
+    """
+    from dataclasses import replace
+
+    from benchfit.fit.result import PARAMETER_UNITS
+
+    if scale is None or not (c.name.startswith(f"fixed {scale} ") and c.input_unit == PARAMETER_UNITS[scale]):
+        return c
+    p, p_in, phi = _IMPEDANCE_POWER.get(unit), _IMPEDANCE_POWER.get(c.input_unit), marg.best.get(scale)
+    if p is None or not p_in or phi is None or not math.isfinite(phi) or phi <= 0:
+        return c
+    return replace(c, sensitivity=p / p_in * float(value) / float(phi))
+
+
+def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, label: str,
+            scale: str | None = None):
     from benchfit.fit.propagate import fit_row
     from benchfit.uncertainty import Budget, Contribution
 
@@ -373,7 +413,7 @@ def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, lab
     if base_budget is not None:
         # the inputs the fit held (fixed parts' tolerances, a channel gain ratio) keep their rows; the fit's
         # own row and any linearised prior are replaced by the two rows above
-        rows += [c for c in base_budget.contributions
+        rows += [_scaled_row(c, scale, value, unit, marg) for c in base_budget.contributions
                  if not (c.name.startswith("noise") or c.name.startswith("undetermined"))]
         cond = base_budget.conditional_on
     return Budget(name, float(value), unit, tuple(rows), conditional_on=cond)
@@ -409,6 +449,7 @@ def apply(result, marg: Marginal):
     from benchfit.units import format_quantity
 
     handled = {q.name for q in marg.nuisances} | set(marg.mean)
+    scale = scale_input(result)
     names = ", ".join(q.name for q in marg.nuisances)
     label = f"undetermined {names}, marginalised over the stated range (spread over the posterior)"
     params = dict(result.parameters)
@@ -453,7 +494,7 @@ def apply(result, marg: Marginal):
         if p.fixed or name in {q.name for q in marg.nuisances} or name not in marg.mean:
             continue
         value = marg.mean[name]
-        b = _budget(name, value, p.unit, marg, p.budget, label)
+        b = _budget(name, value, p.unit, marg, p.budget, label, scale)
         if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
             params[name] = FitParameter(float(value), None, False, p.unit, None, b)
             undetermined.append(name)
@@ -466,7 +507,7 @@ def apply(result, marg: Marginal):
         base_budget = None if base is None else base.budget
         if name == "total_loss_ohm" and base_budget is None:
             base_budget = _total_loss_inputs(marg, derived.get("decay_rate_per_s"))
-        b = _budget(name, value, DERIVED_UNITS[name], marg, base_budget, label)
+        b = _budget(name, value, DERIVED_UNITS[name], marg, base_budget, label, scale)
         if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
             derived[name] = DerivedValue(float(value), None, None, b)
         else:
