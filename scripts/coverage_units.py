@@ -18,6 +18,9 @@ of about the same size.
 At the end: per value mean z, sd z (with the χ² 99.9 % band of an honest sd, scipy.stats.chi2),
 the fraction with |z| > 3 (0.27 % for a normal z) and seed 0's rank by |z|.
 
+``--draws N``: seed 0's shift along the same two directions against N − 1 other seeds' noise, so that
+its size in σ does not rest on the capture's own noise estimate (:func:`true_noise_draws`).
+
 ``--converge`` (grid convergence): for the given seeds, the same posterior the fit marginalises
 (benchfit.fit.marginal) evaluated on a brute-force dense grid over the nuisance axes (N points per
 axis, over the posterior's ±8 sd clipped to the prior range; profile over the other parts as the
@@ -123,7 +126,37 @@ def noise_draw(residual, cap_clean, t: dict[str, float]) -> dict[str, float]:
     # the part of ε in the span of the fit's directions: χ² with 4 degrees of freedom for pure noise
     out["chi2_span"] = float(delta @ (jac.T @ jac) @ delta)
     out["lin_u_q"] = float(math.sqrt(gq @ cov @ gq))
+    # the whitened directions whose dot product with ε gives δQ and δ ln ESR (for true_noise_draws)
+    out["_dirs"] = (-(jac @ cov @ gq), -(jac @ cov[:, i]), w, k, f, yc)
     return out
+
+
+def true_noise_draws(name: str, drive, out, dirs, n: int) -> dict[str, float]:
+    """Seed 0's shift of Q and ln ESR against the same linear functionals over ``n`` other noise seeds.
+
+    The functionals (seed 0's whitening and directions, :func:`noise_draw`) are applied to each seed's
+    phasors at seed 0's fundamental; their spread over the seeds is the noise's true standard deviation
+    along them, whatever the fit's own noise estimate says. Returns seed 0's standardised shifts and the
+    ratio of that true sd to the one the whitening implies (1 when the capture's noise estimate is right).
+    """
+    aq, ae, w, k, f, yc = dirs
+    case = CASES[name]
+    shifts = []
+    for seed in range(n):
+        cap, _, _ = capture_and_fix(case, drive, out, seed)
+        y = np.asarray(cap.samples[0], dtype=float)
+        yk = fit_harmonics(y, cap.sample_rate, f, int(k.max())).phasors[:k.size]
+        tau = cap.calibration.coupling_tau_s
+        if tau:
+            jwt = 2j * math.pi * k * f * tau
+            yk = yk * (1.0 + jwt) / jwt
+        eps = whiten(w, yk) - whiten(w, yc)
+        shifts.append((float(aq @ eps), float(ae @ eps)))
+    a = np.array(shifts)
+    m, sd = a[1:].mean(axis=0), a[1:].std(axis=0, ddof=1)
+    return {"seed0_q_sigma": float((a[0, 0] - m[0]) / sd[0]), "seed0_ln_esr_sigma": float((a[0, 1] - m[1]) / sd[1]),
+            "q_sd_over_whitened": float(sd[0] / math.sqrt(aq @ aq)),
+            "ln_esr_sd_over_whitened": float(sd[1] / math.sqrt(ae @ ae)), "seeds": n - 1}
 
 
 def run_seed(name: str, drive, out, seed: int, t: dict[str, float], rec: Recorder):
@@ -143,6 +176,7 @@ def run_seed(name: str, drive, out, seed: int, t: dict[str, float], rec: Recorde
         clean, _, _ = capture_and_fix(case, drive, out, seed, noise=0.0)
         try:
             row.update(noise_draw(rec.calls[0][0][0], clean, t))
+            row["dirs"] = row.pop("_dirs")
         except Exception as e:  # noqa: BLE001 - a diagnostic; the z row stays
             row["draw_error"] = repr(e)
     return r, row, (rec.calls[0] if rec.calls else None)
@@ -228,6 +262,7 @@ def main() -> None:
     ap.add_argument("--log", type=Path)
     ap.add_argument("--converge", default="")
     ap.add_argument("--points", type=int, default=41)
+    ap.add_argument("--draws", type=int, default=0, help="seed 0's noise against this many noise-only seeds")
     a = ap.parse_args()
     drive, out = waves(a.case)
     t = truth(CASES[a.case].unit, output_only=True)
@@ -245,6 +280,10 @@ def main() -> None:
         if seed in done:
             continue
         _, row, _ = run_seed(a.case, drive, out, seed, t, rec)
+        if seed == 0 and a.draws and "dirs" in row:
+            print(f"seed 0 against {a.draws - 1} noise-only seeds: {true_noise_draws(a.case, drive, out, row['dirs'], a.draws)}",
+                  flush=True)
+        row.pop("dirs", None)
         rows.append(row)
         if a.log:
             with a.log.open("a") as fh:
