@@ -182,14 +182,15 @@ def marginal_asymmetry(result, marg):
     """Δr replaced by its marginal mean and uncertainty (fit.marginal: the nuisances' spread included)."""
     from dataclasses import replace
 
-    from benchfit.fit.marginal import _budget
+    from benchfit.fit.marginal import _budget, scale_input
     from benchfit.fit.result import DERIVED_UNITS, DerivedValue
 
     base = result.derived.get(FIGURE)
     value = float(marg.mean[FIGURE])
     names = ", ".join(q.name for q in marg.nuisances)
     b = _budget(FIGURE, value, DERIVED_UNITS[FIGURE], marg, None if base is None else base.budget,
-                f"undetermined {names}, marginalised over the stated range (spread over the posterior)")
+                f"undetermined {names}, marginalised over the stated range (spread over the posterior)",
+                scale_input(result))
     warnings = [w for w in result.warnings if not w.startswith(f"{FIGURE}: the data call for an uneven drive but")]
     if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
         dv = DerivedValue(value, None, None, b)

@@ -24,7 +24,7 @@ estimate lands high.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable, Mapping
 
 import numpy as np
@@ -32,13 +32,16 @@ import numpy as np
 from benchfit.fit.identify import fit_log_parameters, numeric_jacobian
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
 
-__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "point_parts", "load_nuisance", "FIGURE_NAMES"]
+__all__ = ["Nuisance", "Marginal", "marginalise", "figures_of", "point_parts", "load_nuisance", "scale_input",
+           "FIGURE_NAMES"]
 
 #: grid points per nuisance axis (a second pass refines an axis whose posterior is narrow); a
 #: nuisance may set its own count (``Nuisance.points``, e.g. a share the data hardly see)
 _POINTS = {1: 15, 2: 7, 3: 7}
-#: grid passes at most (each later one refines the axes whose posterior is narrower than its steps)
-_ROUNDS = 3
+#: grid passes at most (each later one refines the axes whose posterior is narrower than its steps; each
+#: halves the step at least, and a posterior conditional on one share cell can be 1/10 of the first step:
+#: with 3 the output-only ngspice units' Q came out up to 0.8 u off a dense grid, with 5 within 0.05 u)
+_ROUNDS = 5
 #: the figures reported from a marginalised fit besides the parts
 FIGURE_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "natural_frequency_hz", "q_factor",
                                  "damped_frequency_hz", "decay_rate_per_s", "total_loss_ohm")
@@ -229,13 +232,64 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
     fixed = {k: v for k, v in fixed.items() if k not in {n.name for n in nuis}}
     free = tuple(n for n in part_names if n not in fixed and n not in {q.name for q in nuis})
     keys = tuple(free) + tuple(q.name for q in nuis) + FIGURE_NAMES + tuple(more or {})
+    # a share axis (how one loss splits between two parts) bends the posterior of the loss axis: at each
+    # split the data favour another loss, so one box refined across all splits missed the ridge (on the
+    # core-loss output-only ngspice unit Q came out 0.8 u off with a u 31 % small against a dense grid,
+    # scripts/coverage_units.py --converge). Each of its cells is refined on its own, then all are mixed.
+    runs = [_refined(residual, values, fixed, cell, free, keys, extra, more, start_for) for cell in _share_cells(nuis)]
+    rows = [r for run, _ in runs for r in run]
+    chi = np.array([r[1] for r in rows])
+    ib = int(np.argmin(chi))
+    # each run's unresolved axes (sd below half its step), weighted by the run's posterior mass
+    share = [float(_weights(rows)[i:i + len(run)].sum()) for i, run in zip(np.cumsum([0] + [len(r) for r, _ in runs]),
+                                                                            (r for r, _ in runs))]
+    resolution = [(m, run, _unresolved_axes(run, cell, sp), int(np.argmin([r[1] for r in run])))
+                  for m, (run, sp), cell in zip(share, runs, _share_cells(nuis))]
+    dof = max(int(rows[ib][5]), 1)
+    chi2_red = float(chi[ib] / dof)
+    s = max(1.0, chi2_red)
+    w = _weights(rows)
+    mean: dict[str, float] = {}
+    u_fit: dict[str, float] = {}
+    u_spread: dict[str, float] = {}
+    for k in keys:
+        q = np.array([r[3][k] for r in rows])
+        uq = np.array([r[4][k] for r in rows])
+        if not np.all(np.isfinite(q)):  # a held part that is infinite at some points: apply uses its coordinate
+            mean[k], u_fit[k], u_spread[k] = math.nan, math.nan, math.nan
+            continue
+        m = float(w @ q)
+        mean[k] = m
+        u_spread[k] = math.sqrt(max(float(w @ (q - m) ** 2), 0.0) + sum(m * _resolution_var(run, axes, b, k)
+                                                                   for m, run, axes, b in resolution))
+        u_fit[k] = math.sqrt(float(w @ np.nan_to_num(uq, nan=0.0) ** 2)) if np.all(np.isfinite(uq)) else math.nan
+    # the fit covariance above is unscaled (noise known from the phasors): Birge-scale it here
+    u_fit = {k: v * math.sqrt(s) for k, v in u_fit.items()}
+    return Marginal(nuis, np.array([r[0] for r in rows]), w, chi, dict(rows[ib][2]), mean, u_fit, u_spread,
+                    chi2_red, dof)
+
+
+def _share_cells(nuis: tuple[Nuisance, ...]) -> list[tuple[Nuisance, ...]]:
+    """The nuisances with the first share axis cut into its cells (one point each), or as they are."""
+    for a, q in enumerate(nuis):
+        n = _count(q, len(nuis))
+        if q.variable == "share" and n > 1:
+            width = (q.hi - q.lo) / n
+            return [nuis[:a] + (replace(q, lo=q.lo + j * width, hi=q.lo + (j + 1) * width, points=1),) + nuis[a + 1:]
+                    for j in range(n)]
+    return [nuis]
+
+
+def _refined(residual, values, fixed, nuis: tuple[Nuisance, ...], free, keys, extra, more, start_for):
+    """The grid rows over the nuisances' ranges, refined where the posterior is narrower than the grid."""
     held_names = {q.name for q in nuis}
     spans = [(q.lo, q.hi) for q in nuis]
+    n_nuis = len(nuis)
     rows: list[tuple] = []  # (point, χ², values, estimates, fit u, dof, prior mass of its cell)
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items() if k in free}
     ex = dict(extra or {})
     for _ in range(_ROUNDS):
-        cell = float(np.prod([_step(q, len(nuis), lo, hi) for q, (lo, hi) in zip(nuis, spans)]))
+        cell = float(np.prod([_step(q, n_nuis, lo, hi) for q, (lo, hi) in zip(nuis, spans)]))
         prev, prev_ex = dict(start), dict(ex)
         fresh = []
         for pt in _grid(nuis, spans):
@@ -271,8 +325,8 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         for a, (lo, hi) in enumerate(spans):
             m = float(w @ pts[:, a])
             sd = math.sqrt(max(float(w @ (pts[:, a] - m) ** 2), 0.0))
-            step = _step(nuis[a], len(nuis), lo, hi)
-            if sd < 2 * step and step > 1e-9 * max(abs(m), 1e-300):  # narrower than the grid: refine
+            step = _step(nuis[a], n_nuis, lo, hi)
+            if _count(nuis[a], n_nuis) > 1 and sd < 2 * step and step > 1e-9 * max(abs(m), 1e-300):  # narrower than the grid: refine
                 refine = True
                 half = max(5 * sd, 1.5 * step)
                 new_spans.append((max(nuis[a].lo, m - half), min(nuis[a].hi, m + half)))
@@ -283,30 +337,7 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
         spans = new_spans
         start = {k: best[2][k] for k in free}
         ex = {k: (best[2][k], lo, hi) for k, (_, lo, hi) in ex.items()}
-    chi = np.array([r[1] for r in rows])
-    ib = int(np.argmin(chi))
-    unresolved = _unresolved_axes(rows, nuis, spans)
-    dof = max(int(rows[ib][5]), 1)
-    chi2_red = float(chi[ib] / dof)
-    s = max(1.0, chi2_red)
-    w = _weights(rows)
-    mean: dict[str, float] = {}
-    u_fit: dict[str, float] = {}
-    u_spread: dict[str, float] = {}
-    for k in keys:
-        q = np.array([r[3][k] for r in rows])
-        uq = np.array([r[4][k] for r in rows])
-        if not np.all(np.isfinite(q)):  # a held part that is infinite at some points: apply uses its coordinate
-            mean[k], u_fit[k], u_spread[k] = math.nan, math.nan, math.nan
-            continue
-        m = float(w @ q)
-        mean[k] = m
-        u_spread[k] = math.sqrt(max(float(w @ (q - m) ** 2), 0.0) + _resolution_var(rows, unresolved, ib, k))
-        u_fit[k] = math.sqrt(float(w @ np.nan_to_num(uq, nan=0.0) ** 2)) if np.all(np.isfinite(uq)) else math.nan
-    # the fit covariance above is unscaled (noise known from the phasors): Birge-scale it here
-    u_fit = {k: v * math.sqrt(s) for k, v in u_fit.items()}
-    return Marginal(nuis, np.array([r[0] for r in rows]), w, chi, dict(rows[ib][2]), mean, u_fit, u_spread,
-                    chi2_red, dof)
+    return rows, spans
 
 
 def _unresolved_axes(rows, nuis: tuple[Nuisance, ...], spans: list[tuple[float, float]]) -> list[int]:
@@ -317,7 +348,7 @@ def _unresolved_axes(rows, nuis: tuple[Nuisance, ...], spans: list[tuple[float, 
     for a, (lo, hi) in enumerate(spans):
         m = float(w @ pts[:, a])
         sd = math.sqrt(max(float(w @ (pts[:, a] - m) ** 2), 0.0))
-        if sd < 0.5 * _step(nuis[a], len(nuis), lo, hi):
+        if _count(nuis[a], len(nuis)) > 1 and sd < 0.5 * _step(nuis[a], len(nuis), lo, hi):
             out.append(a)
     return out
 
@@ -362,7 +393,46 @@ _REL_LIMIT = 0.5
 _PINNED = 0.5
 
 
-def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, label: str):
+#: the power of the impedance scale a in each unit when every impedance is multiplied by a at the same
+#: frequencies: ohm, henry (Ω·s) as a, farad (s/Ω) and siemens as 1/a; frequencies, rates and ratios not
+_IMPEDANCE_POWER = {"ohm": 1, "H": 1, "F": -1, "S": -1, "Hz": 0, "1/s": 0, "1": 0}
+
+
+def scale_input(result) -> str | None:
+    """The part that alone sets the fit's impedance scale: the only part held fixed (None: none or several).
+
+    A voltage ratio of impedances (the filter's H, and so both captures' phasors up to the drive's level) is
+    unchanged when every impedance is multiplied by the same factor a (L → a·L, C → C/a, each R → a·R;
+    impedance scaling, common practice, no source), and every nuisance range here is a share of the fit's
+    own total loss or of its L/C (:func:`load_nuisance`, fit.onechannel), which scale alike. So with one part
+    held, the marginal of each quantity y is exactly y(a) = a^p·y with p the power of its unit
+    (``_IMPEDANCE_POWER``): Q, the frequencies and the decay rate do not depend on it at all.
+    """
+    held = [n for n, d in result.inputs.items() if d.get("role", "fixed") == "fixed" and n in PART_NAMES]
+    return held[0] if len(held) == 1 else None
+
+
+def _scaled_row(c, scale: str | None, value: float, unit: str, marg: Marginal):
+    """A held scale part's row with its exact sensitivity p·y/(p_φ·φ) (:func:`scale_input`).
+
+    The base fit's linearised sensitivity holds the nuisances at their best point in ohms, so it moves the
+    shape when the scale part moves: on the core-loss output-only unit it gave Q a fixed-L row of 0.0060
+    (∂Q/∂L = −0.35 /H) against a marginal Q that changed by 3e-9 with L 1 % higher (scripts/coverage_units.py).
+    """
+    from dataclasses import replace
+
+    from benchfit.fit.result import PARAMETER_UNITS
+
+    if scale is None or not (c.name.startswith(f"fixed {scale} ") and c.input_unit == PARAMETER_UNITS[scale]):
+        return c
+    p, p_in, phi = _IMPEDANCE_POWER.get(unit), _IMPEDANCE_POWER.get(c.input_unit), marg.best.get(scale)
+    if p is None or not p_in or phi is None or not math.isfinite(phi) or phi <= 0:
+        return c
+    return replace(c, sensitivity=p / p_in * float(value) / float(phi))
+
+
+def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, label: str,
+            scale: str | None = None):
     from benchfit.fit.propagate import fit_row
     from benchfit.uncertainty import Budget, Contribution
 
@@ -373,7 +443,7 @@ def _budget(name: str, value: float, unit: str, marg: Marginal, base_budget, lab
     if base_budget is not None:
         # the inputs the fit held (fixed parts' tolerances, a channel gain ratio) keep their rows; the fit's
         # own row and any linearised prior are replaced by the two rows above
-        rows += [c for c in base_budget.contributions
+        rows += [_scaled_row(c, scale, value, unit, marg) for c in base_budget.contributions
                  if not (c.name.startswith("noise") or c.name.startswith("undetermined"))]
         cond = base_budget.conditional_on
     return Budget(name, float(value), unit, tuple(rows), conditional_on=cond)
@@ -409,6 +479,7 @@ def apply(result, marg: Marginal):
     from benchfit.units import format_quantity
 
     handled = {q.name for q in marg.nuisances} | set(marg.mean)
+    scale = scale_input(result)
     names = ", ".join(q.name for q in marg.nuisances)
     label = f"undetermined {names}, marginalised over the stated range (spread over the posterior)"
     params = dict(result.parameters)
@@ -453,7 +524,7 @@ def apply(result, marg: Marginal):
         if p.fixed or name in {q.name for q in marg.nuisances} or name not in marg.mean:
             continue
         value = marg.mean[name]
-        b = _budget(name, value, p.unit, marg, p.budget, label)
+        b = _budget(name, value, p.unit, marg, p.budget, label, scale)
         if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
             params[name] = FitParameter(float(value), None, False, p.unit, None, b)
             undetermined.append(name)
@@ -466,7 +537,7 @@ def apply(result, marg: Marginal):
         base_budget = None if base is None else base.budget
         if name == "total_loss_ohm" and base_budget is None:
             base_budget = _total_loss_inputs(marg, derived.get("decay_rate_per_s"))
-        b = _budget(name, value, DERIVED_UNITS[name], marg, base_budget, label)
+        b = _budget(name, value, DERIVED_UNITS[name], marg, base_budget, label, scale)
         if not math.isfinite(b.u) or b.u > _REL_LIMIT * abs(value):
             derived[name] = DerivedValue(float(value), None, None, b)
         else:

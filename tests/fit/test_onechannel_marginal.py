@@ -110,3 +110,25 @@ def test_core_loss_is_compared_but_not_told_from_the_esr_by_the_output_alone():
     assert any(w.startswith("Resr:") and "core loss" in w and "ESR meter" in w for w in r.warnings)
     tl = r.derived["total_loss_ohm"]
     assert tl.stderr is not None and tl.stderr < 0.05 * tl.value
+
+
+def test_a_fixed_l_tolerance_moves_each_value_by_the_power_of_its_unit_only():
+    # impedance scaling (common practice, no source): the output's shape is a ratio of impedances, unchanged
+    # when L → a·L, C → C/a and every R → a·R, and the nuisance ranges are shares of the fit's own total loss
+    # and L/C, which scale alike. So with L the only part held, Q, the frequencies and the decay rate do not
+    # depend on it, C goes as 1/L and the losses as L: the fixed-L budget rows carry exactly those
+    # sensitivities (the fit's linearised one, with the nuisances held in ohms, gave Q a spurious L term)
+    rng = np.random.default_rng(SEEDS[0])
+    cap = Capture((_output() + rng.normal(0.0, 1e-4, N))[None, :], FS, ("output",), ("FS",))
+    a, b = (fit_lowpass(cap, fix={"L": (big_l, 0.03)}, drive_duty=DUTY) for big_l in (0.3, 0.303))
+    for name, power in (("q_factor", 0), ("decay_rate_per_s", 0), ("natural_frequency_hz", 0),
+                        ("damped_frequency_hz", 0), ("resonant_frequency_hz", 0), ("total_loss_ohm", 1)):
+        da, db = a.derived[name], b.derived[name]
+        # the refit converges to about 1e-9 relative; a tenth of the fit's own u is far above that
+        assert db.value == pytest.approx(da.value * 1.01 ** power, abs=0.1 * da.u_fit), name
+        row = next(c for c in da.budget.contributions if c.name.startswith("fixed L "))
+        assert row.sensitivity == pytest.approx(power * da.value / 0.3, rel=1e-9, abs=1e-12), name
+    pa, pb = a.parameters["C"], b.parameters["C"]
+    assert pb.value == pytest.approx(pa.value / 1.01, abs=0.1 * pa.u_fit)
+    row = next(c for c in pa.budget.contributions if c.name.startswith("fixed L "))
+    assert row.sensitivity == pytest.approx(-pa.value / 0.3, rel=1e-9)

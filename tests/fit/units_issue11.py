@@ -118,8 +118,9 @@ def truth(u: Unit, output_only: bool = False, duty: float = 0.52) -> dict[str, f
     return out
 
 
-def capture_and_fix(case: Case, drive: np.ndarray, out: np.ndarray, seed: int):
-    """A noisy capture of the simulated unit and the fit options a user would give."""
+def capture_and_fix(case: Case, drive: np.ndarray, out: np.ndarray, seed: int, noise: float = 1.0):
+    """A noisy capture of the simulated unit and the fit options a user would give (``noise`` scales the
+    added noise: 0 gives the same capture without it, for scripts/coverage_units.py)."""
     rng = np.random.default_rng(seed)
     u = case.unit
     if case.name in OUTPUT_ONLY:
@@ -129,13 +130,13 @@ def capture_and_fix(case: Case, drive: np.ndarray, out: np.ndarray, seed: int):
         b, a = bilinear([tau, 0.0], [tau, 1.0], FS)  # the input's high-pass (scipy), in steady state:
         x = np.tile(out - out.mean(), 6)  # run over 2 s of the periodic output first
         x = lfilter(b, a, x)[-out.size:]
-        x = x * 0.5 / float(np.max(np.abs(x))) + rng.normal(0.0, 1e-4, x.size)
+        x = x * 0.5 / float(np.max(np.abs(x))) + noise * rng.normal(0.0, 1e-4, x.size)
         x = np.round(x * 32767) / 32767
         cap = Capture(x[None, :], FS, ("output",), ("FS",), source=f"{case.name}.wav",
                       calibration=InputCalibration(coupling_tau_s=tau))
         return cap, {"L": (0.3, 0.03)}, 0.52
-    d = drive + rng.normal(0.0, 0.02, drive.size)
-    o = out + rng.normal(0.0, 0.01, out.size)
+    d = drive + noise * rng.normal(0.0, 0.02, drive.size)
+    o = out + noise * rng.normal(0.0, 0.01, out.size)
     if case.name == "scope-8bit":
         o = 0.975 * o
         d = np.round(d / (20.0 / 256)) * (20.0 / 256)
