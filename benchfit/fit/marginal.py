@@ -236,19 +236,19 @@ def marginalise(residual: Callable[[dict[str, float]], np.ndarray], values: Mapp
     # split the data favour another loss, so one box refined across all splits missed the ridge (on the
     # core-loss output-only ngspice unit Q came out 0.8 u off with a u 31 % small against a dense grid,
     # scripts/coverage_units.py --converge). Each of its cells is refined on its own, then all are mixed.
-    runs = [_refined(residual, values, fixed, cell, free, keys, extra, more, start_for) for cell in _share_cells(nuis)]
+    cells = _share_cells(nuis)
+    runs = [_refined(residual, values, fixed, cell, free, keys, extra, more, start_for) for cell in cells]
     rows = [r for run, _ in runs for r in run]
     chi = np.array([r[1] for r in rows])
     ib = int(np.argmin(chi))
+    w = _weights(rows)
     # each run's unresolved axes (sd below half its step), weighted by the run's posterior mass
-    share = [float(_weights(rows)[i:i + len(run)].sum()) for i, run in zip(np.cumsum([0] + [len(r) for r, _ in runs]),
-                                                                            (r for r, _ in runs))]
-    resolution = [(m, run, _unresolved_axes(run, cell, sp), int(np.argmin([r[1] for r in run])))
-                  for m, (run, sp), cell in zip(share, runs, _share_cells(nuis))]
+    ends = np.cumsum([0] + [len(run) for run, _ in runs])
+    resolution = [(float(w[a:b].sum()), run, _unresolved_axes(run, cell, sp), int(np.argmin([r[1] for r in run])))
+                  for a, b, (run, sp), cell in zip(ends[:-1], ends[1:], runs, cells)]
     dof = max(int(rows[ib][5]), 1)
     chi2_red = float(chi[ib] / dof)
     s = max(1.0, chi2_red)
-    w = _weights(rows)
     mean: dict[str, float] = {}
     u_fit: dict[str, float] = {}
     u_spread: dict[str, float] = {}
@@ -419,8 +419,6 @@ def _scaled_row(c, scale: str | None, value: float, unit: str, marg: Marginal):
     shape when the scale part moves: on the core-loss output-only unit it gave Q a fixed-L row of 0.0060
     (∂Q/∂L = −0.35 /H) against a marginal Q that changed by 3e-9 with L 1 % higher (scripts/coverage_units.py).
     """
-    from dataclasses import replace
-
     from benchfit.fit.result import PARAMETER_UNITS
 
     if scale is None or not (c.name.startswith(f"fixed {scale} ") and c.input_unit == PARAMETER_UNITS[scale]):
