@@ -323,9 +323,13 @@ def _fit_duty(fit) -> float | None:
 # --- the model over draws ----------------------------------------------------------------
 
 class _Evaluator:
-    def __init__(self, duty: float, swing: float, v_low: float, chain: CaptureChain, rp: float = math.inf):
+    def __init__(self, duty: float, swing: float, v_low: float, chain: CaptureChain, rp: float = math.inf,
+                 phase_known: bool = False):
         self.duty, self.swing, self.v_low, self.chain = duty, swing, v_low, chain
         self.rp = rp  # the choke's fitted core loss (a resistance across L), inf when none was fitted
+        # a given duty says which phase is high; a duty from the output's spectrum does not (it fits its
+        # complement as well), so the stresses are then the worse of the two (_stresses_either_phase)
+        self.phase_known = phase_known
 
     def unit(self, s: _State, i: int) -> UnitModel:
         # a switched drive (r_high ≠ r_low): the fitted Rs holds the time average D·r_high + (1 − D)·r_low,
@@ -411,7 +415,9 @@ class _Search:
             summary[q] = (float(v[0]), sd if sd > 1e-12 * abs(float(v[0])) else 0.0)
         stress: tuple[StressCheck, ...] = ()
         if self.has_filter:
-            stress = _stresses_either_phase(self.ev.unit(s, 0), self.ev.chain, self.ratings)
+            unit = self.ev.unit(s, 0)
+            stress = (stress_checks(predict(unit, self.ev.chain), self.ratings) if self.ev.phase_known
+                      else _stresses_either_phase(unit, self.ev.chain, self.ratings))
         changes = []
         for a in actions:
             c = a.change
@@ -489,7 +495,10 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
         Nominal values of the filter parts (``{"L": 0.3, "C": 33e-6}``) and their tolerances as
         fractions (default L ±10 %, C ±20 %); a fitted part outside its tolerance is replaced.
     duty, drive_swing_v : float, optional
-        The drive's duty and swing (V) when they cannot be estimated from the measurement.
+        The drive's duty (the high phase's share of the period, 0–1) and swing (V) when they cannot be
+        estimated from the measurement. A given duty also says which phase is high: the stresses are
+        then this drive's, not the worse of it and its complement (which the output's spectrum
+        cannot tell apart).
     cap_series, resistor_series : str
         E-series for added capacitors and resistors.
     part_tolerance : float, optional
@@ -587,7 +596,7 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
     est = None if (ch is None or fit is None) else _estimate_drive(ch, nom_parts, f_meas, chain)
     asym = None if fit is None else _fit_asymmetry(fit)
     if duty is not None:
-        d = min(float(duty), 1 - float(duty))
+        d = float(duty)  # the high phase's share as given: the complement's DC and peaks are not this unit's
     elif asym is not None:
         # the switched fit's own duty: the harmonic ratios through the time-invariant filter are biased
         # by the asymmetry (on the ngspice unit of the tests: 47.2 % for a true 48.0 %)
@@ -620,10 +629,11 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
                 warnings.append(f"drive swing taken as {swing:g} V (NE555 output high about 1.7 V below the "
                             "supply, TI SLFS022) — give the measurement for a calibrated level")
     if fit is not None:
-        notes.append(f"drive: rectangular, duty {d * 100:.2f} % (or its complement), swing {swing:.4g} V "
+        notes.append(f"drive: rectangular, duty {d * 100:.2f} %"
+                     + (" as given" if duty is not None else " (or its complement)") + f", swing {swing:.4g} V "
                      + ("estimated from the measured harmonics through the fitted filter" if est else "as given")
                      + "; the source resistance is inside the fitted Rs")
-    ev = _Evaluator(d, swing, 0.0, chain, rp)
+    ev = _Evaluator(d, swing, 0.0, chain, rp, phase_known=duty is not None)
     if fit is None:
         limits_eval = [lim for lim in limits if lim.quantity == "frequency_hz"]
     else:

@@ -212,3 +212,29 @@ def test_unit_near_a_limit_that_no_action_improves_gets_no_change():
     assert adv.plan.p_pass == pytest.approx(0.952, abs=0.035)
     assert any("no action found raises that" in w for w in adv.warnings)
     assert any("no timer parts were given" in w for w in adv.warnings)
+
+
+def test_a_given_duty_says_which_phase_is_high():
+    # the output's spectrum cannot tell a duty D from 1 − D (|sin kπD| is the same), so without a
+    # given duty the stresses are the worse of the two; a given duty is this drive's phase, and the
+    # capacitor's peak then follows its DC: a rectangular wave 0…S of duty D has mean D·S (its Fourier
+    # series' a0), divided by Rload/(Rs + Rload) at DC (circuit theory), while the AC part is negated
+    # between the two phases and so changes the peak by at most twice the harmonics' sum
+    fit = _fit(L=0.300, Rs=68.6)
+    meas = _measurement(fit, f=50.02, duty=0.3)  # the same spectrum as duty 0.7
+    ch = meas["channels"][0]
+
+    def cap_peak(duty):
+        adv = advise(SPEC, fit=fit, measurement=meas, duty=duty, n_trials=200)
+        note = next(n for n in adv.notes if n.startswith("drive:"))
+        assert f"duty {duty * 100:.2f} % as given" in note and "complement" not in note
+        return next(s.value for s in adv.plan.stress if s.quantity == "capacitor_peak_v"), note
+
+    (p_low, note), (p_high, _) = cap_peak(0.3), cap_peak(0.7)
+    swing = float(note.split("swing ")[1].split(" V")[0])
+    dc_gain = 1e4 / (68.6 + 1e4)
+    harmonics = sum(h["amplitude"] for h in ch["harmonics"][1:]) * swing / 2.134
+    assert p_high - p_low == pytest.approx(0.4 * swing * dc_gain, abs=2 * harmonics)
+    # without a given duty the phase is unknown and the advice keeps the worse peak of the two
+    unknown = advise(SPEC, fit=fit, measurement=meas, n_trials=200)
+    assert next(s.value for s in unknown.plan.stress if s.quantity == "capacitor_peak_v") == pytest.approx(p_high)
