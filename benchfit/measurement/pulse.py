@@ -197,10 +197,11 @@ def state_levels(x: np.ndarray, n_bins: int | None = None) -> StateLevels:
     width = max(_REFINE_BAND * amp, 2.0 * width_bin)
     near_low = x[np.abs(x - low) <= width]
     near_high = x[np.abs(x - high) <= width]
+    # (the selections are copies already: their medians may partition them in place)
     if near_low.size:
-        low = float(np.median(near_low))
+        low = float(np.median(near_low, overwrite_input=True))
     if near_high.size:
-        high = float(np.median(near_high))
+        high = float(np.median(near_high, overwrite_input=True))
     amp = high - low
     if amp <= 0:
         return StateLevels(low, high, 0.0, 0.0, 0.0, 0.0)
@@ -210,7 +211,7 @@ def state_levels(x: np.ndarray, n_bins: int | None = None) -> StateLevels:
     in_low = np.abs(d_low) <= band
     in_high = np.abs(d_high) <= band
     dev = np.concatenate([d_low[in_low], d_high[in_high]])
-    noise = float(1.4826 * np.median(np.abs(dev))) if dev.size else 0.0
+    noise = float(1.4826 * np.median(np.abs(dev, out=dev), overwrite_input=True)) if dev.size else 0.0
     f_low = float(np.count_nonzero(in_low)) / x.size
     f_high = float(np.count_nonzero(in_high)) / x.size
     return StateLevels(low, high, f_low + f_high, f_low, f_high, noise)
