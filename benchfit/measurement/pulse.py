@@ -419,10 +419,11 @@ def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingF
     lab = np.repeat(np.arange(a_d.size), lengths)
     offsets = np.arange(lab.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
     idx = (a_d[lab] + offsets) * step
-    # ∫(x − m) dt (trapezoidal, 0 at the first sample; see _integral) at those samples only: one
-    # running sum of the record, the mean and the trapezoid's half end-samples taken out at idx
-    ys = x[idx] - m
-    ss = (np.cumsum(x)[idx] - m * (idx + 1) - 0.5 * (ys + (x[0] - m))) / sample_rate
+    # ∫(x − m) dt (trapezoidal, 0 at the first sample; see _integral) at those samples only: the
+    # record's running sum at idx, the mean and the trapezoid's half end-samples taken out there
+    x_idx = x[idx]
+    ys = x_idx - m
+    ss = (_running_sum_at(x, idx, x_idx) - m * (idx + 1) - 0.5 * (ys + (x[0] - m))) / sample_rate
     ym = np.bincount(lab, ys) / lengths
     sm = np.bincount(lab, ss) / lengths
     yt = ys - ym[lab]
@@ -440,6 +441,19 @@ def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingF
     t_flat = float(np.mean(stop - start)) / sample_rate
     return CouplingFit(tau_s=tau, tau_u_s=u_beta / beta ** 2,
                        droop_pct=100.0 * (1.0 - math.exp(-t_flat / tau)), n_segments=int(a.size))
+
+
+def _running_sum_at(x: np.ndarray, idx: np.ndarray, x_idx: np.ndarray) -> np.ndarray:
+    """``np.cumsum(x)[idx]`` for strictly increasing ``idx`` (``x_idx`` = ``x[idx]``), without the
+    record-long running sum: the sums between consecutive indices (one read of the record, no
+    record-long array written), accumulated over the indices only."""
+    between = np.add.reduceat(x, idx)[:-1]  # x[idx[j]] + … + x[idx[j+1] − 1]
+    out = np.empty(idx.size)
+    out[0] = 0.0
+    np.cumsum(between, out=out[1:])
+    out += float(np.sum(x[:idx[0]]))  # now the sums up to idx[j] − 1
+    out += x_idx
+    return out
 
 
 def estimate_coupling_tau(x: np.ndarray, sample_rate: float) -> float | None:
