@@ -119,7 +119,9 @@ def _cosine(n: int, step_rad: float, phasor: complex, block: int = 4096) -> np.n
     blocks = -(-n // block)
     inner = np.exp(1j * step_rad * np.arange(block))
     starts = phasor * np.exp(1j * step_rad * block * np.arange(blocks))
-    return (starts[:, None] * inner[None, :]).real.ravel()[:n]
+    # Re(s·i) = Re s·Re i − Im s·Im i: one real (blocks × 2)·(2 × block) product, written contiguous
+    lhs = np.stack([starts.real, -starts.imag], axis=1)
+    return (lhs @ np.stack([inner.real, inner.imag])).reshape(-1)[:n]
 
 
 def analyse_distortion(x: np.ndarray, sample_rate: float, fit: HarmonicFit) -> Distortion:
@@ -146,7 +148,9 @@ def analyse_distortion(x: np.ndarray, sample_rate: float, fit: HarmonicFit) -> D
     p1 = fit.phasors[0]
     a1 = abs(p1)
     # THD+N: rms of x − dc − fundamental, computed directly over the whole record
-    resid = x - fit.dc - _cosine(n, 2.0 * math.pi * f / sample_rate, p1)
+    resid = _cosine(n, 2.0 * math.pi * f / sample_rate, p1)
+    np.subtract(x, resid, out=resid)  # in place: no second record-long array
+    resid -= fit.dc
     rest_rms = math.sqrt(float(resid @ resid) / n)
     thd_n = rest_rms / (a1 / math.sqrt(2.0)) if a1 > 0 else math.inf
     sinad = -20.0 * math.log10(thd_n) if 0 < thd_n < math.inf else (math.inf if thd_n == 0 else -math.inf)

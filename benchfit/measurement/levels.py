@@ -322,7 +322,7 @@ def vpp_noise_u(model: np.ndarray, sigma: float, low: float, high: float, n_tota
 
 def _runs(mask: np.ndarray, min_run: int) -> tuple[int, int]:
     """Count runs of True of length ≥ min_run and the samples in them."""
-    if not mask.any():
+    if np.count_nonzero(mask) < max(min_run, 1):  # too few True for one qualifying run
         return 0, 0
     edges = np.diff(np.concatenate(([0], mask.view(np.int8), [0])))
     starts = np.flatnonzero(edges == 1)
@@ -447,8 +447,10 @@ def quantisation_step(x: np.ndarray) -> float:
     """
     x = np.asarray(x, dtype=np.float64)
     # the code grid shows in any stretch of the record: 2^16 samples keep the sort cheap
-    v = np.unique(x[: 1 << 16] if x.size > (1 << 16) else x)
-    if v.size < 2:
+    v = np.sort(x[: 1 << 16] if x.size > (1 << 16) else x)
+    gaps = np.diff(v)
+    gaps = gaps[gaps > 0]  # the gaps between distinct values
+    if gaps.size == 0:
         return 0.0
-    q = float(np.min(np.diff(v)))
+    q = float(gaps.min())
     return q if q <= 0.01 * float(v[-1] - v[0]) else 0.0

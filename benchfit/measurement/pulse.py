@@ -163,6 +163,16 @@ class PulseResult:
     warnings: tuple[str, ...] = field(default_factory=tuple)
 
 
+def _median_in_place(v: np.ndarray) -> float:
+    """``np.median`` of a 1-D array of finite values, which it reorders: one partition at the upper
+    middle rank, the lower middle being the largest value below it (numpy partitions at both
+    ranks, several times slower). The same value: the middle sample, or the two middles' mean."""
+    k = v.size // 2
+    v.partition(k)
+    upper = float(v[k])
+    return upper if v.size % 2 else (float(v[:k].max()) + upper) / 2.0
+
+
 def state_levels(x: np.ndarray, n_bins: int | None = None) -> StateLevels:
     """State levels by the histogram-mode method (IEEE Std 181).
 
@@ -197,10 +207,11 @@ def state_levels(x: np.ndarray, n_bins: int | None = None) -> StateLevels:
     width = max(_REFINE_BAND * amp, 2.0 * width_bin)
     near_low = x[np.abs(x - low) <= width]
     near_high = x[np.abs(x - high) <= width]
+    # (the selections are copies already: their medians may partition them in place)
     if near_low.size:
-        low = float(np.median(near_low))
+        low = _median_in_place(near_low)
     if near_high.size:
-        high = float(np.median(near_high))
+        high = _median_in_place(near_high)
     amp = high - low
     if amp <= 0:
         return StateLevels(low, high, 0.0, 0.0, 0.0, 0.0)
@@ -210,7 +221,7 @@ def state_levels(x: np.ndarray, n_bins: int | None = None) -> StateLevels:
     in_low = np.abs(d_low) <= band
     in_high = np.abs(d_high) <= band
     dev = np.concatenate([d_low[in_low], d_high[in_high]])
-    noise = float(1.4826 * np.median(np.abs(dev))) if dev.size else 0.0
+    noise = 1.4826 * _median_in_place(np.abs(dev, out=dev)) if dev.size else 0.0
     f_low = float(np.count_nonzero(in_low)) / x.size
     f_high = float(np.count_nonzero(in_high)) / x.size
     return StateLevels(low, high, f_low + f_high, f_low, f_high, noise)
@@ -408,10 +419,11 @@ def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingF
     lab = np.repeat(np.arange(a_d.size), lengths)
     offsets = np.arange(lab.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
     idx = (a_d[lab] + offsets) * step
-    # ∫(x − m) dt (trapezoidal, 0 at the first sample; see _integral) at those samples only: one
-    # running sum of the record, the mean and the trapezoid's half end-samples taken out at idx
-    ys = x[idx] - m
-    ss = (np.cumsum(x)[idx] - m * (idx + 1) - 0.5 * (ys + (x[0] - m))) / sample_rate
+    # ∫(x − m) dt (trapezoidal, 0 at the first sample; see _integral) at those samples only: the
+    # record's running sum at idx, the mean and the trapezoid's half end-samples taken out there
+    x_idx = x[idx]
+    ys = x_idx - m
+    ss = (_running_sum_at(x, idx, x_idx) - m * (idx + 1) - 0.5 * (ys + (x[0] - m))) / sample_rate
     ym = np.bincount(lab, ys) / lengths
     sm = np.bincount(lab, ss) / lengths
     yt = ys - ym[lab]
@@ -429,6 +441,19 @@ def _fit_coupling(x: np.ndarray, sample_rate: float, edges: _Edges) -> CouplingF
     t_flat = float(np.mean(stop - start)) / sample_rate
     return CouplingFit(tau_s=tau, tau_u_s=u_beta / beta ** 2,
                        droop_pct=100.0 * (1.0 - math.exp(-t_flat / tau)), n_segments=int(a.size))
+
+
+def _running_sum_at(x: np.ndarray, idx: np.ndarray, x_idx: np.ndarray) -> np.ndarray:
+    """``np.cumsum(x)[idx]`` for strictly increasing ``idx`` (``x_idx`` = ``x[idx]``), without the
+    record-long running sum: the sums between consecutive indices (one read of the record, no
+    record-long array written), accumulated over the indices only."""
+    between = np.add.reduceat(x, idx)[:-1]  # x[idx[j]] + … + x[idx[j+1] − 1]
+    out = np.empty(idx.size)
+    out[0] = 0.0
+    np.cumsum(between, out=out[1:])
+    out += float(np.sum(x[:idx[0]]))  # now the sums up to idx[j] − 1
+    out += x_idx
+    return out
 
 
 def estimate_coupling_tau(x: np.ndarray, sample_rate: float) -> float | None:

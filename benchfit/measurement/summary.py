@@ -177,7 +177,8 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
                              "timebase_u_ppm": float(timebase_u_ppm),
                              "gain_u_rel": None if gain_u_rel is None else float(gain_u_rel)}
     n = x.size
-    flat = float(np.ptp(x)) <= 1e-12 * max(1.0, float(np.max(np.abs(x))))
+    vmax, vmin = float(x.max()), float(x.min())
+    flat = vmax - vmin <= 1e-12 * max(1.0, vmax, -vmin)  # (max |x| from the two extremes)
     seed = None if flat else dft_frequency_seed(x, fs)
     h_req = max(int(harmonics), 1)
     # A two-level wave takes its frequency from its edges (below), so the iterative sine fit would

@@ -31,7 +31,8 @@ import numpy as np
 
 __all__ = ["HarmonicFit", "dft_frequency_seed", "fit_harmonics", "fit_tone", "synthesize"]
 
-_SEGMENT = 4096
+#: longest and shortest segment (samples) the normal equations cut a record into (see _segments)
+_SEGMENT, _SEGMENT_MIN = 4096, 256
 
 
 @dataclass(frozen=True, eq=False)
@@ -206,8 +207,15 @@ def dft_frequency_seed(x: np.ndarray, sample_rate: float, min_hz: float = 0.0) -
 
 
 def _segments(n: int) -> tuple[int, int, int]:
-    """Split n samples into m segments of length L plus a remainder: (L, m, remainder)."""
-    length = min(n, _SEGMENT)
+    """Split n samples into m segments of length L plus a remainder: (L, m, remainder).
+
+    The template's Gram costs ∝ L and the per-segment rotations ∝ n/L, so L grows as √n: the
+    power of two nearest √(22·n), within 256…4096 (1024 for 1 s at 48 kHz, 4096 from about 6 s;
+    the balance measured for H = 10 with scripts/bench_measure.py's signals). Only the rounding
+    of the fit depends on L.
+    """
+    best = 2 ** round(0.5 * math.log2(22.0 * max(n, 1)))
+    length = min(n, _SEGMENT, max(_SEGMENT_MIN, best))
     m = n // length
     return length, m, n - m * length
 

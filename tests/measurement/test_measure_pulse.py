@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from benchfit.measurement.pulse import (compensate_coupling, estimate_coupling_tau, fit_coupling,
-                                        pulse_parameters, state_levels)
+from benchfit.measurement.pulse import (_running_sum_at, compensate_coupling, estimate_coupling_tau,
+                                        fit_coupling, pulse_parameters, state_levels)
 
 from _measurement_signals import FS, times, tone, trapezoid, rc_square
 
@@ -204,3 +204,15 @@ def test_no_droop_or_pulse_found_on_other_waves(kind):
          "noise": lambda: np.random.default_rng(0).normal(size=t.size)}[kind]()
     p = pulse_parameters(x, FS)
     assert not p.two_level and p.coupling_tau_s is None
+
+
+@pytest.mark.parametrize("n", [1, 97, 48_000])
+def test_running_sum_at_the_flats_is_numpys_cumsum(n):
+    # the droop fit's running sum at a subset of indices equals numpy.cumsum's there (oracle:
+    # numpy.cumsum); the two sum in a different order, so equal within rounding of a sum of n terms
+    rng = np.random.default_rng(n)
+    x = rng.normal(0.45, 1.0, n)
+    idx = np.unique(rng.integers(0, n, size=max(1, n // 7)))
+    want = np.cumsum(x)[idx]
+    got = _running_sum_at(x, idx, x[idx])
+    assert np.allclose(got, want, rtol=0, atol=n * 4 * np.spacing(np.max(np.abs(np.cumsum(x)))))

@@ -2,7 +2,8 @@
 
 Oracle: numpy.percentile with its default linear interpolation (numpy documentation, method
 "linear", Hyndman & Fan definition 7), which benchfit.measurement.levels._percentiles states
-it computes; long records take a path that sorts only their tails.
+it computes; long records take a path that sorts only their tails. The state levels' medians
+(benchfit.measurement.pulse._median_in_place) against numpy.median, bit for bit.
 """
 
 from __future__ import annotations
@@ -12,6 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from benchfit.measurement.levels import _TAIL_MIN_SAMPLES, _percentiles
+from benchfit.measurement.pulse import _median_in_place
 
 
 @st.composite
@@ -56,3 +58,10 @@ def test_percentiles_equal_numpys(record):
     ref = np.percentile(x, [p_lo, p_hi])
     scale = max(float(np.max(np.abs(x))), 1e-300)
     assert np.allclose([lo, hi], ref, rtol=0, atol=4 * np.spacing(scale))
+
+
+@settings(max_examples=40, deadline=None)
+@given(records())
+def test_state_level_median_equals_numpys(record):
+    x, _ = record
+    assert _median_in_place(x.copy()) == float(np.median(x))
