@@ -74,7 +74,8 @@ class Nuisance:
     share_of: str = ""
     scale: float = 0.0
     #: grid points on this axis (0: the default for the number of nuisances, _POINTS); a "share"
-    #: axis uses the cells' midpoints, so θ = 0 (a conductance 0, an infinite part) is never a point
+    #: axis uses the cells' midpoints, so θ = 0 (a conductance 0, an infinite part) is never a point; its
+    #: edge cells are cut toward θ = 0 and θ = 1 where the posterior lies there (_edge_refined)
     points: int = 0
 
     def part(self, x: float) -> float:
