@@ -46,6 +46,7 @@ from scipy.stats import chi2
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests" / "fit"))
+sys.path.insert(0, str(ROOT / "tests"))  # the shared ngspice runner (tests/ngspice_run.py)
 
 import benchfit.fit.marginal as marginal  # noqa: E402
 import benchfit.fit.onechannel as onechannel  # noqa: E402

@@ -478,8 +478,11 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> 
     return tuple(out)
 
 
-#: grid points across the ESR / core-loss split (its share θ): the output hardly sees θ (see
-#: _core_loss_nuisances), so a few cells suffice for its rectangular prior
+#: cells across the ESR / core-loss split (its share θ, rectangular prior). To first order the output sees only
+#: their sum (_core_loss_nuisances), but not to second order: on the ngspice unit rs12-c22 of
+#: tests/fit/test_onechannel_basins.py (duty given) the profile χ² over θ runs from 77.3 near θ = 0.01 to 99.4 at
+#: θ = 1/6 and 99.7 at θ = 1. So three cells are only the start: fit.marginal cuts the edge cells toward θ = 0
+#: and θ = 1 where the posterior's mass lies there (fit.marginal._edge_refined)
 _SHARE_POINTS = 3
 
 

@@ -86,10 +86,6 @@ def _rs_within_3u(r, u: SpiceUnit) -> None:
         _within_3u("Rs", rs, u.Rs + DUTY * R_HIGH + (1 - DUTY) * R_LOW)
 
 
-@pytest.mark.xfail(strict=True, reason="known: the ESR/core-loss marginal's share axis sits on its cells' midpoints "
-                                       "(fit.marginal), never at 'no core loss'; where the data see a core loss, every "
-                                       "point with an ESR carries one and is rejected, so the posterior sits at ESR 0 and "
-                                       "Rs takes the 1.5 Ω ESR with u ≈ 0.1 Ω (z ≈ 13, measured on this capture)")
 def test_rs_with_the_duty_given_within_3u(captures):
     u, cap = captures["rs12-c22"]
     _rs_within_3u(fit_lowpass(cap, fix={"C": u.C, "Rload": u.Rload}, drive_duty=DUTY), u)
