@@ -36,6 +36,16 @@ processes 0.82×; with the load rule 1.03× (worst repeat 0.99×); two files: fo
 forkserver 0.55 s, spawn 1.03 s. The ≥ 1.7× goal is for an idle machine and was not
 measurable then.
 
+CPU time (user + system of the ``run_jobs`` call, this process and its workers, from
+``resource.getrusage``) moves much less with the load than wall time, so it shows the pool's own
+cost. Measured 2026-12-02 ~20:40 UTC at a load of 0.5–1.1, two runs of ``run(2)`` each, interleaved
+with the previous commit: after the parent imports the measure modules once before the fork
+(:func:`benchfit.cli.batch.worker_pool`), the pool took 1.32–1.43 s of CPU time against 1.17–1.19 s
+for jobs 1 and 1.28–1.31 s for two independent processes (in three interleaved A/B runs of the same
+CPU counts at load ~2, the pool's CPU time less that of two processes: 0.13–0.23 s before,
+−0.07–0.00 s after); the parent's share 12–15 % of it (mostly that one import). Wall speed-ups in the same runs: 1.51–1.63×
+(before 1.61–1.63×; the two-process bound 1.75–1.82×), not told apart at that noise.
+
 On the shared 2-core machine the numbers move with the load of other processes.
 """
 
@@ -54,7 +64,7 @@ N_FILES = 200
 FS = 48000
 
 _CHILD = """
-import json, sys, time
+import json, resource, sys, time
 from pathlib import Path
 from benchfit.cli.batch import measure_job, prefer_one_blas_thread, run_jobs
 folder, jobs, method, limit = sys.argv[1], int(sys.argv[2]), sys.argv[3], int(sys.argv[4])
@@ -64,11 +74,16 @@ files = sorted(Path(folder).glob("*.wav"))[:limit]
 if len(sys.argv) > 6:  # "k/n": every n-th file from the k-th (one of n independent processes)
     k, n = map(int, sys.argv[6].split("/"))
     files = files[k::n]
-t0 = time.perf_counter()
+def cpu(who):
+    r = resource.getrusage(who)
+    return r.ru_utime + r.ru_stime
+p0, c0, t0 = cpu(resource.RUSAGE_SELF), cpu(resource.RUSAGE_CHILDREN), time.perf_counter()
 outcomes = run_jobs(measure_job, files, jobs=jobs, start_method=method, adapt_to_load=sys.argv[5] == "cli-load")
 elapsed = time.perf_counter() - t0
+parent_cpu, children_cpu = cpu(resource.RUSAGE_SELF) - p0, cpu(resource.RUSAGE_CHILDREN) - c0
 bad = [o.error for o in outcomes if not o.ok]
-print(json.dumps({"seconds": elapsed, "n": len(outcomes), "errors": bad,
+print(json.dumps({"seconds": elapsed, "n": len(outcomes), "errors": bad, "parent_cpu": parent_cpu,
+                  "cpu": parent_cpu + children_cpu,
                   "worker_seconds": sum(o.seconds for o in outcomes)}))
 """
 
@@ -104,15 +119,17 @@ def _timed(folder: Path, jobs: int, method: str = "auto", limit: int = N_FILES,
 def _halves(folder: Path) -> float:
     """The machine's own bound for two processes: two fresh interpreters started together, each
     measuring every other file in one process (each pays its imports, nothing is handed over);
-    the longer of their ``run_jobs`` times (timed as in :func:`_timed`)."""
+    the longer of their ``run_jobs`` times (timed as in :func:`_timed`) and their CPU time together."""
     procs = [subprocess.Popen([sys.executable, "-c", _CHILD, str(folder), "1", "forkserver", str(N_FILES), "cli",
                                f"{k}/2"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
              for k in range(2)]
-    seconds = []
+    seconds, cpu = [], 0.0
     for proc in procs:
         out, err = proc.communicate(timeout=900)
-        seconds.append(_result(subprocess.CompletedProcess(proc.args, proc.returncode, out, err))["seconds"])
-    return max(seconds)
+        res = _result(subprocess.CompletedProcess(proc.args, proc.returncode, out, err))
+        seconds.append(res["seconds"])
+        cpu += res["cpu"]
+    return max(seconds), cpu
 
 
 def _result(res: subprocess.CompletedProcess) -> dict:
@@ -131,6 +148,7 @@ def run(repeats: int = 3) -> list[dict]:
         write_captures(folder)
         one, one_st, two, two_fs, two_cli, ratios, ratios_fs, ratios_cli, loads = [], [], [], [], [], [], [], [], []
         per_file, per_file_pool, bound = [], [], []
+        cpu_one, cpu_two, cpu_halves, parent_share = [], [], [], []
         for _ in range(repeats):
             loads.append(os.getloadavg()[0])
             a = _timed(folder, 1, blas="installed")
@@ -148,7 +166,12 @@ def run(repeats: int = 3) -> list[dict]:
             ratios_cli.append(a1["seconds"] / c["seconds"])
             per_file.append(a1["worker_seconds"] / a1["n"])
             per_file_pool.append(b["worker_seconds"] / b["n"])
-            bound.append(a1["seconds"] / _halves(folder))
+            halves_s, halves_cpu = _halves(folder)
+            bound.append(a1["seconds"] / halves_s)
+            cpu_one.append(a1["cpu"])
+            cpu_two.append(b["cpu"])
+            cpu_halves.append(halves_cpu)
+            parent_share.append(b["parent_cpu"] / b["cpu"])
         starts = {m: statistics.median(_timed(folder, 2, m, limit=2)["seconds"] for _ in range(repeats))
                   for m in ("auto", "forkserver", "spawn")}
     t1, t1s, t2 = statistics.median(one), statistics.median(one_st), statistics.median(two)
@@ -174,6 +197,18 @@ def run(repeats: int = 3) -> list[dict]:
         {"name": "speed-up of that over jobs 1 (median of repeats)", "value": statistics.median(ratios_cli),
          "unit": "×", "goal": "≥ 1.7 idle, ≥ 1.0 loaded"},
         {"name": "the same, worst repeat", "value": min(ratios_cli), "unit": "×", "goal": "—"},
+        # CPU time (user + system) of the run_jobs call, this process and its workers: unlike the
+        # wall times it barely moves with other processes' load, so the pool's own cost shows
+        {"name": "CPU time, jobs 1 (in-process)", "value": statistics.median(cpu_one), "unit": "s", "goal": "—"},
+        {"name": "CPU time, jobs 2 forked (parent + workers)", "value": statistics.median(cpu_two), "unit": "s",
+         "goal": "—"},
+        {"name": "CPU time, two independent processes together", "value": statistics.median(cpu_halves),
+         "unit": "s", "goal": "—"},
+        {"name": "pool overhead per file: (CPU jobs 2 − jobs 1) / files",
+         "value": 1e3 * statistics.median(b2 - b1 for b1, b2 in zip(cpu_one, cpu_two)) / N_FILES, "unit": "ms",
+         "goal": "—"},
+        {"name": "parent's share of the jobs 2 CPU time", "value": 100 * statistics.median(parent_share),
+         "unit": "%", "goal": "—"},
         {"name": "measure_job per file (1 s, 48 kHz mono), jobs 1", "value": 1e3 * statistics.median(per_file),
          "unit": "ms", "goal": "—"},
         # longer than jobs 1 when other processes take CPU time from the two workers

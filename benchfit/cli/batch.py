@@ -26,7 +26,9 @@ modules preloaded into the server (``spawn`` where that is missing). A fork cost
 where the fork server first starts an interpreter that imports numpy/scipy (~0.35 s before
 the first worker runs); a fork with other threads running can deadlock the child (a lock
 held by a thread that the child does not have), so the commands enter :func:`worker_pool`
-before they start a progress bar's refresh thread. The log is checked (opened and closed)
+before they start a progress bar's refresh thread. Before a fork the job's modules are imported
+here once (:func:`_preload_here`, when one BLAS thread is asked for), so the workers do not
+import them again each. The log is checked (opened and closed)
 before the fork and written by the parent only, after it; workers never touch it.
 Worker processes ignore Ctrl-C; the parent cancels the queued jobs and exits 130. Each
 worker's BLAS/OpenMP libraries get CPU count ÷ workers threads (unless the user set
@@ -54,8 +56,10 @@ CAPTURE_SUFFIXES: tuple[str, ...] = (".wav", ".flac", ".csv", ".tsv", ".txt", ".
 
 StartMethod = Literal["auto", "forkserver", "spawn"]
 
-#: modules the forkserver imports once, so that forked workers start with them loaded
-MEASURE_PRELOAD: tuple[str, ...] = ("benchfit.capture.load", "benchfit.measurement.summary")
+#: modules a measure job needs (its first file imports the last four), imported once before
+#: the workers are forked (:func:`worker_pool`) or by the forkserver, so no worker imports them
+MEASURE_PRELOAD: tuple[str, ...] = ("benchfit.capture.load", "benchfit.measurement.summary",
+                                    "benchfit.measurement.long_record", "soundfile", "threadpoolctl", "numpy.fft")
 #: the same for report jobs
 REPORT_PRELOAD: tuple[str, ...] = MEASURE_PRELOAD + ("benchfit.report.assemble",)
 
@@ -446,6 +450,29 @@ def _context(method: str, preload: Sequence[str]):
     return ctx
 
 
+def _preload_here(preload: Sequence[str]) -> bool:
+    """Import ``preload`` in this process before the workers are forked from it, when this
+    process has asked for one BLAS thread (every variable of :data:`_THREAD_VARIABLES` is
+    ``"1"``, as :func:`prefer_one_blas_thread` sets them): each forked worker then starts with
+    the modules loaded instead of importing them itself. Otherwise (a caller whose numpy would
+    load a thread pool) nothing is imported here. A module that fails to import is skipped
+    (the job reports it). True when something was imported.
+
+    Two workers importing the measurement modules each spent ~0.14 s of CPU time on it
+    (imports and the first file's lazy imports), the same again as the in-process run:
+    CPU time a loaded machine does not have (scripts/bench_batch.py reports it).
+    """
+    import importlib
+
+    if any(os.environ.get(name) != "1" for name in _THREAD_VARIABLES):
+        return False
+    missing = [name for name in preload if name not in sys.modules]
+    for name in missing:
+        with suppress(Exception):
+            importlib.import_module(name)
+    return bool(missing)
+
+
 def _ready() -> int:
     """A worker's first job: nothing (submitting it starts the workers)."""
     return os.getpid()
@@ -539,6 +566,8 @@ def worker_pool(jobs: int, n_files: int, *, start_method: StartMethod = "auto",
     from concurrent.futures import ProcessPoolExecutor
 
     method = _start_method(start_method)
+    if method == "fork" and _preload_here(preload):
+        method = _start_method(start_method)  # fork only if the imports started no thread
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(method, preload), initializer=_worker_init)
     try:
         # start the workers now (fork: all of them at the first submit; forkserver and spawn:

@@ -376,8 +376,11 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
 
     failed: list[str] = []
     run_ids: list[int] = []
+    from benchfit.log.store import held_open
+
     # the workers start first: forked while this process has one thread (no progress bar yet)
-    with worker_pool(jobs, len(paths), adapt_to_load=True) as pool, \
+    # and no log connection; the log is then held open for the batch, one transaction per run
+    with worker_pool(jobs, len(paths), adapt_to_load=True) as pool, held_open(log_path), \
             progress_bar("measuring", len(paths), notes) as progress:
 
         def on_outcome(outcome) -> None:

@@ -53,6 +53,7 @@ from typing import Literal, Mapping, get_args
 import numpy as np
 
 from benchfit.errors import FitError
+from benchfit.measurement.threads import one_blas_thread
 from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, free_response_basis, sampled_transfer, simulate, transfer
 from benchfit.fit.identify import fit_log_parameters, identify, solve
 from benchfit.fit.marginal import Nuisance, figures_of, load_nuisance, marginalise
@@ -153,6 +154,7 @@ def grid_start(f_hz: np.ndarray, h: np.ndarray, u: np.ndarray) -> tuple[float, f
 
 # --- the public entry point --------------------------------------------------------------
 
+@one_blas_thread  # as measure(): the result does not depend on the caller's BLAS threads
 def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | None = None,
                 response: str | int | None = None, fix: Mapping[str, float] | None = None,
                 guess: Mapping[str, float] | None = None, drive_duty: float | None = None,

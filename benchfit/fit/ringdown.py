@@ -34,6 +34,7 @@ from typing import Mapping
 import numpy as np
 
 from benchfit.errors import FitError
+from benchfit.measurement.threads import one_blas_thread
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult
 
 __all__ = ["fit_ringdown", "RingSegment", "find_ring_starts", "fit_ring", "combine_rings", "ring_figures"]
@@ -226,6 +227,7 @@ def ring_figures(omega_d: float, alpha: float, cov: np.ndarray) -> dict[str, Der
     }
 
 
+@one_blas_thread  # as measure(): the result does not depend on the caller's BLAS threads
 def fit_ringdown(capture, *, channel: str | int | None = None,
                  fix: Mapping[str, float] | None = None) -> FitResult:
     """Fit the free ringing after the edges of a slow square drive.

@@ -21,9 +21,10 @@ from __future__ import annotations
 import os
 import socket
 import sys
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Iterable, Mapping, Sequence
+from typing import Any, Iterable, Iterator, Mapping, Sequence
 
 from benchfit.errors import LogError
 from benchfit.log.base import LogStore
@@ -34,7 +35,8 @@ from benchfit.log.sqlite import APPLICATION_ID, SQLiteStore
 
 __all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "LogURL", "RunId", "MergeSummary", "default_log_path",
            "resolve_log_path", "as_target", "open_store", "open_log", "append_run", "list_runs", "get_run",
-           "results_rows", "merge_log", "sync_log", "use_bench", "current_bench", "iter_quantities"]
+           "results_rows", "merge_log", "sync_log", "use_bench", "current_bench", "iter_quantities",
+           "held_open"]
 
 LogTarget = Path | LogURL
 
@@ -172,6 +174,39 @@ def _note(text: str) -> None:
 
 # --- writing ---------------------------------------------------------------------------
 
+#: SQLite logs held open by :func:`held_open`, by absolute path
+_held: dict[str, LogStore] = {}
+
+
+@contextmanager
+def held_open(target: str | Path | LogURL | None) -> Iterator[None]:
+    """Keep the SQLite log ``target`` open for the :func:`append_run` calls inside the block.
+
+    A batch appends one run per file; each run is still its own committed transaction (a
+    process killed mid-batch keeps every run logged before), but the file is opened, inspected
+    and closed once, not once per run: closing the last connection of a WAL log checkpoints it.
+    Measured on the 2-core machine: 2.7–3.0 ms per run through :func:`append_run` alone,
+    0.9–1.05 ms with the log held open (40 runs of a measure batch each; the disk's own
+    sync time comes on top, up to ~26 ms per run when other processes were writing).
+    A server log (:class:`LogURL`) or None: nothing is held.
+    """
+    t = None if target is None else as_target(target)
+    if t is None or isinstance(t, LogURL):
+        yield
+        return
+    key = os.path.abspath(t)
+    if key in _held:
+        yield
+        return
+    store = SQLiteStore(t)
+    _held[key] = store
+    try:
+        yield
+    finally:
+        del _held[key]
+        store.close()
+
+
 def append_run(db_path: str | Path | LogURL, *, command: str, operator: str | None = None,
                unit: str | None = None, captures: Sequence[Any] = (),
                measurements: Sequence[Any] = (), fits: Sequence[Any] = (),
@@ -231,6 +266,10 @@ def append_run(db_path: str | Path | LogURL, *, command: str, operator: str | No
                       verdict=verdict, details=details, where=str(target), tables=tables)
     uuid = rec["run"]["uuid"]
     if not isinstance(target, LogURL):
+        held = _held.get(os.path.abspath(target))
+        if held is not None:
+            rid, _ = held.write(rec)
+            return RunId(rid, uuid)
         with SQLiteStore(target) as store:
             rid, _ = store.write(rec)
         return RunId(rid, uuid)

@@ -1,6 +1,7 @@
 """One BLAS thread for the estimators, whatever the caller's environment says.
 
-The fits behind :func:`benchfit.measure` multiply tall, narrow matrices (samples × a few
+Used by :func:`benchfit.measure` (per channel), :func:`benchfit.fit_lowpass` and
+:func:`benchfit.fit_ringdown`. The fits behind them multiply tall, narrow matrices (samples × a few
 harmonics); there a second BLAS thread costs more in hand-over than it saves, and on a
 loaded machine several times more (scripts/bench_measure.py shows the figures). The command
 line sets ``OPENBLAS_NUM_THREADS=1`` before numpy loads; a Python caller's numpy is already

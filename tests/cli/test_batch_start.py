@@ -25,6 +25,14 @@ import os
 
 def parent_pid(path):
     return os.getppid()
+
+
+def preloaded(path):
+    import sys
+
+    from benchfit.cli.batch import MEASURE_PRELOAD
+
+    return [name for name in MEASURE_PRELOAD if name in sys.modules]
 '''
 
 CHILD = textwrap.dedent('''
@@ -60,6 +68,14 @@ CHILD = textwrap.dedent('''
             while len(os.listdir("/proc/self/task")) > 1 and time.monotonic() < deadline:
                 time.sleep(0.01)
             rows.append(started("the helper joined"))
+        elif sys.argv[1] == "preload":  # as `benchfit measure`: one BLAS thread asked for, numpy not loaded
+            from probe_job import preloaded
+
+            assert prefer_one_blas_thread()
+            with worker_pool(2, 4) as pool:
+                seen = [o.result for o in pool.run(preloaded, [Path(f"f{i}") for i in range(4)])]
+            rows.append({"method": pool.start_method, "seen": seen,
+                         "threads": len(os.listdir("/proc/self/task"))})
         else:  # numpy loaded with the BLAS thread count of the environment
             if sys.argv[1] == "one-blas-thread":
                 assert prefer_one_blas_thread()
@@ -107,6 +123,19 @@ def test_numpy_with_one_blas_thread_keeps_fork_and_a_blas_pool_does_not(tmp_path
     two = _run(tmp_path, "two-blas-threads", {"OPENBLAS_NUM_THREADS": "2", "OMP_NUM_THREADS": "2"})[0]
     expected = ("fork", True) if two["threads"] == 1 else ("forkserver", False)
     assert (two["method"], two["forked_here"]) == expected, two
+
+
+def test_forked_workers_start_with_the_measure_modules_loaded(tmp_path):
+    """The parent imports them once before the fork (one BLAS thread asked for), so no worker does."""
+    if not Path("/proc/self/task").is_dir():
+        import pytest
+
+        pytest.skip("the thread count of a process is read from /proc (Linux)")
+    from benchfit.cli.batch import MEASURE_PRELOAD
+
+    row = _run(tmp_path, "preload")[0]
+    assert row["method"] == "fork", row
+    assert row["seen"] == [list(MEASURE_PRELOAD)] * 4, row  # the probe job itself imports none of them
 
 
 def test_single_threaded_sees_a_python_thread():

@@ -189,3 +189,24 @@ def test_sigkill_mid_write_keeps_every_committed_run(tmp_path):
     assert all(counts[r] == counts[min(stored)] for r in stored)
     # the log is still usable afterwards
     assert append_run(db, command="measure") == max(stored) + 1
+
+
+def test_a_log_held_open_is_opened_once_and_commits_each_run(tmp_path, monkeypatch):
+    """held_open (a batch): one connection for all runs, each run committed at once (a second
+    connection sees it before the block ends), and append_run opens the file again after it."""
+    import benchfit.log.sqlite as backend
+    from benchfit.log.store import held_open
+
+    db = tmp_path / "log.sqlite"
+    opened = []
+    real = backend.connect
+    monkeypatch.setattr(backend, "connect", lambda *a, **k: opened.append(a) or real(*a, **k))
+    with held_open(db):
+        ids = [append_run(db, command="measure", unit=f"HC-{i}") for i in range(3)]
+        with sqlite3.connect(db) as other:  # committed, not waiting for the block's end
+            assert other.execute("SELECT COUNT(*) FROM runs").fetchone()[0] == 3
+    assert len(opened) == 1, opened
+    append_run(db, command="measure", unit="HC-3")
+    assert len(opened) == 2
+    assert sorted(r["unit"] for r in list_runs(db)) == ["HC-0", "HC-1", "HC-2", "HC-3"]
+    assert len(set(ids)) == 3

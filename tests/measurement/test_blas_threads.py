@@ -71,3 +71,23 @@ def test_the_result_does_not_depend_on_the_callers_threads():
     with threadpool_limits(1, user_api="blas"):
         b = benchfit.measure(cap).to_dict(full=True)
     assert a == b  # the same arithmetic on one thread either way: equal to the last bit
+
+
+def test_the_fits_run_on_one_blas_thread_too(monkeypatch):
+    """fit_lowpass and fit_ringdown take the same limit as measure(): seen from inside, where
+    each first turns its argument into a capture (stopped there: the limit is what is checked)."""
+    import pytest
+
+    import benchfit.fit.lowpass as lowpass
+
+    class Seen(Exception):
+        pass
+
+    def probe(capture):
+        raise Seen(_blas_threads())
+
+    monkeypatch.setattr(lowpass, "as_capture", probe)
+    for fit in (benchfit.fit_lowpass, benchfit.fit_ringdown):
+        with threadpool_limits(2, user_api="blas"), pytest.raises(Seen) as seen:
+            fit(None)
+        assert seen.value.args[0] and set(seen.value.args[0]) == {1}, (fit.__name__, seen.value.args)
