@@ -195,7 +195,9 @@ def _warmup_fit(t: np.ndarray, f: np.ndarray, duration: float, tau0: float):
     best = None
     for tau_start in (duration / 10.0, duration / 5.0, duration / 2.5):
         try:
-            p, cov = curve_fit(model, t, f, p0=(finf0, d0, a0, tau_start), maxfev=4000)
+            # τ bounded to where the result is accepted below (and exp cannot overflow)
+            p, cov = curve_fit(model, t, f, p0=(finf0, d0, a0, tau_start), max_nfev=4000,
+                               bounds=((-np.inf, -np.inf, -np.inf, tau0), (np.inf, np.inf, np.inf, duration)))
         except (RuntimeError, ValueError):
             continue
         if not np.all(np.isfinite(cov)):
