@@ -1,5 +1,7 @@
 #!/usr/bin/env bash
 # Install what the test suite needs and run it. Used by the README and by CI (.ci/run).
+# BENCHFIT_PYTHON names another interpreter (a virtual environment's) to install into and test
+# with, BENCHFIT_CONSTRAINTS a pip constraints file for that install (scripts/test_lowest.sh).
 #
 # Debian packages (installed with apt-get when missing and we are root or have sudo):
 #   ngspice            independent circuit simulator (fit and trim checks)
@@ -32,7 +34,8 @@ elif [ -n "$missing" ]; then
   $sudo env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq $missing
 fi
 
-python3 -m pip install --quiet -e '.[test]'
+py="${BENCHFIT_PYTHON:-python3}"
+"$py" -m pip install --quiet --prefer-binary ${BENCHFIT_CONSTRAINTS:+-c "$BENCHFIT_CONSTRAINTS"} -e '.[test]'
 
 # A throw-away PostgreSQL cluster (Unix socket only, in a temporary folder, as an unprivileged
 # user), removed on exit even when the tests fail. Without one the shared-log tests start
@@ -46,4 +49,4 @@ if pg_url="$(BENCHFIT_PG_PORT=$((50000 + RANDOM % 10000)) bash scripts/pg_throwa
 else
   echo "note: no PostgreSQL server started — the shared-log tests will try to start their own" >&2
 fi
-python3 -m pytest -q "$@"
+"$py" -m pytest -q "$@"
