@@ -121,7 +121,7 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
                        start: Mapping[str, float], free: tuple[str, ...],
                        fixed: Mapping[str, float],
                        extra: Mapping[str, tuple[float, float, float]] | None = None,
-                       max_nfev: int = 4000):
+                       max_nfev: int = 4000, tol: float = 1e-12):
     """Least-squares fit of ``residual(values)`` over the log of the ``free`` parts.
 
     Parameters
@@ -135,6 +135,10 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
         Names of parts to fit (as logarithms), and values held constant.
     extra : mapping name → (start, min, max), optional
         Further parameters fitted directly (not as logarithms), e.g. a duty cycle or a phase.
+    tol : float
+        The optimiser's relative tolerances on the cost, the step and the gradient (xtol, ftol,
+        gtol); a grid of refits that only needs each point's χ² to a small fraction of 1 may
+        loosen it.
 
     Returns
     -------
@@ -172,7 +176,7 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
             return np.where(np.isfinite(r), r, 1e150)
 
         out = least_squares(fcn, np.clip(x0, lo, hi), bounds=(lo, hi), method="trf", x_scale="jac",
-                            max_nfev=max_nfev, xtol=1e-12, ftol=1e-12, gtol=1e-12)
+                            max_nfev=max_nfev, xtol=tol, ftol=tol, gtol=tol)
         xs = np.asarray(out.x, dtype=float)
         success, message = bool(out.success), str(out.message)
     else:

@@ -42,6 +42,11 @@ _POINTS = {1: 15, 2: 7, 3: 7}
 #: halves the step at least, and a posterior conditional on one share cell can be 1/10 of the first step:
 #: with 3 the output-only ngspice units' Q came out up to 0.8 u off a dense grid, with 5 within 0.05 u)
 _ROUNDS = 5
+#: the optimiser's relative tolerances for each grid point's refit (fit_log_parameters' tol): a point's
+#: weight needs its χ² (≈ n, tens) to a small fraction of 1, which 1e-10 of the cost gives a billion times
+#: over; from 1e-12 it cut the one-channel fit of the sample captures hc01, hc02 (L fixed) by 12–14 % of its
+#: time, every reported value and u the same to 8 digits
+_POINT_TOL = 1e-10
 #: the figures reported from a marginalised fit besides the parts
 FIGURE_NAMES: tuple[str, ...] = ("resonant_frequency_hz", "natural_frequency_hz", "q_factor",
                                  "damped_frequency_hz", "decay_rate_per_s", "total_loss_ohm")
@@ -155,7 +160,8 @@ class Marginal:
 
 
 def _fit_point(residual, start, free, fixed, extra):
-    values, names, jac, chi2_red, ok, _ = fit_log_parameters(residual, start, free, fixed, extra, max_nfev=600)
+    values, names, jac, chi2_red, ok, _ = fit_log_parameters(residual, start, free, fixed, extra, max_nfev=600,
+                                                                 tol=_POINT_TOL)
     r = residual(values)
     return values, names, jac, float(r @ r), r.size
 
