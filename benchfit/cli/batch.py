@@ -246,14 +246,15 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
     """
     from benchfit.measurement.long_record import is_long_file
 
-    if is_long_file(path):
+    data = _whole_file(path)
+    if is_long_file(path, data=data):
         return _measure_job_in_blocks(path, channels=channels, harmonics=harmonics, sample_rate=sample_rate,
                                       with_capture=with_capture, force_pulse=force_pulse, on_block=on_block,
                                       gain_u_rel=gain_u_rel)
     from benchfit.capture.load import load
     from benchfit.measurement.summary import measure
 
-    cap = load(path, sample_rate=sample_rate)
+    cap = load(path, sample_rate=sample_rate, data=data)
     result = measure(cap, harmonics=harmonics, channels=list(channels) if channels else None,
                      force_pulse=force_pulse, gain_u_rel=gain_u_rel)
     capture = None
@@ -264,6 +265,25 @@ def measure_job(path: str | Path, *, channels: Sequence[str] | None = None, harm
         capture = {"path": cap.source, "sha256": cap.sha256, "metadata": meta,
                    "unit": unit.strip() if isinstance(unit, str) and unit.strip() else None}
     return {"measurement": result.to_dict(full=True), "capture": capture}
+
+
+def _whole_file(path: str | Path) -> bytes | None:
+    """The bytes of a capture file that may be measured whole, read once (its header, SHA-256 and
+    samples then all come from them), or None: a file larger than 8 bytes × the block threshold
+    (no format stores a sample in more than 8 bytes, so it is long unless its header says
+    otherwise, and is not read whole to find out), or one that cannot be read here (the
+    reader then gives its one-line error)."""
+    from benchfit.capture.blocks import block_threshold
+    from benchfit.capture.load import file_bytes
+    from benchfit.errors import CaptureError
+
+    p = Path(path)
+    try:
+        if not p.is_file() or p.stat().st_size > 8 * block_threshold():
+            return None
+        return file_bytes(p)
+    except (OSError, CaptureError):
+        return None
 
 
 def _measure_job_in_blocks(path: str | Path, *, channels: Sequence[str] | None, harmonics: int,

@@ -239,6 +239,50 @@ def test_run_jobs_reports_in_completion_order_with_index(batch):
     assert outcomes[1].ok and outcomes[1].result["measurement"]["file"] == str(files[1])
 
 
+def test_measure_job_reads_the_file_once_same_hash_and_result(batch, monkeypatch):
+    """A file measured whole is read once: its SHA-256 is that of the bytes read (hashlib,
+    independent of the reader) and the result equals that of the path-by-path reading;
+    libsndfile never opens the path itself, and the separate hashing pass is not run."""
+    import hashlib
+    import io
+
+    import benchfit.capture.audiofile as audiofile
+    import benchfit.capture.load as load_mod
+    from benchfit.capture.load import load
+    from benchfit.cli.batch import measure_job
+    from benchfit.measurement.summary import measure
+
+    path = batch["dir"] / "HC-01.wav"
+    cap = load(path)
+    before = {"measurement": measure(cap).to_dict(full=True), "sha256": cap.sha256}
+    opened: list[object] = []
+    real = sf.SoundFile
+
+    def recording(file, *args, **kwargs):
+        opened.append(file)
+        return real(file, *args, **kwargs)
+
+    def no_second_pass(_path):
+        raise AssertionError("the file was hashed in a second read")
+
+    monkeypatch.setattr(sf, "SoundFile", recording)
+    monkeypatch.setattr(load_mod, "file_sha256", no_second_pass)
+    monkeypatch.setattr(audiofile, "_head", lambda *_: pytest.fail("the header was read from the file"))
+    out = measure_job(path, with_capture=True)
+    assert len(opened) == 2 and all(isinstance(f, io.BytesIO) for f in opened)  # header count, samples
+    assert out["capture"]["sha256"] == hashlib.sha256(path.read_bytes()).hexdigest() == before["sha256"]
+    assert_same_result(before["measurement"], out["measurement"])
+
+
+def test_sample_count_from_the_bytes_equals_the_headers(batch):
+    """Whether a file is measured in blocks is told the same from its bytes as from its path."""
+    from benchfit.capture.blocks import estimated_samples
+
+    for path in (batch["dir"] / "HC-01.wav", batch["bad"]):
+        assert estimated_samples(path, path.read_bytes()) == estimated_samples(path) is not None
+    assert estimated_samples(batch["dir"] / "HC-01.wav") == int(0.5 * FS)  # write_unit: 0.5 s mono
+
+
 # --- report --each -----------------------------------------------------------------------------
 
 @pytest.fixture(scope="module")
