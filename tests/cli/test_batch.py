@@ -340,6 +340,23 @@ def test_report_each_logs_every_unit(units, batch, run, tmp_path):
     assert all(o["log"] == str(log) for o in _lines(res.stdout))
 
 
+def test_report_each_holds_one_log_connection_for_the_batch(units, batch, run, tmp_path, monkeypatch):
+    """The parent opens the log once for the units it appends (plus the check before the
+    workers start), and every unit is still logged."""
+    import benchfit.log.sqlite as backend
+    from benchfit.log.store import list_runs
+
+    log = tmp_path / "log.sqlite"
+    opened = []
+    real = backend.connect
+    monkeypatch.setattr(backend, "connect", lambda *a, **k: opened.append(a) or real(*a, **k))
+    res = run("report", str(units), "--each", "--spec", str(batch["spec"]), "--out", str(tmp_path / "r"),
+              "--log", str(log), "--no-figures", "--jobs", "1", "--json")
+    assert res.returncode == 1, res.stderr
+    assert len(opened) == 2, opened  # the check (open_log) and the batch's held connection
+    assert sorted(r["unit"] for r in list_runs(log)) == ["HC-01", "HC-02", "HC-03", "HC-04"]
+
+
 def test_report_options_that_do_not_fit_together(batch, run, tmp_path):
     spec = str(batch["spec"])
     cases = [
