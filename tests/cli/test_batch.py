@@ -283,6 +283,36 @@ def test_sample_count_from_the_bytes_equals_the_headers(batch):
     assert estimated_samples(batch["dir"] / "HC-01.wav") == int(0.5 * FS)  # write_unit: 0.5 s mono
 
 
+_FAULTS = """
+import resource, sys
+from benchfit.cli.batch import keep_freed_memory, measure_job
+if sys.argv[2] == "keep":
+    assert keep_freed_memory()
+measure_job(sys.argv[1])
+before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+for _ in range(10):
+    measure_job(sys.argv[1])
+print((resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before) / 10)
+"""
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="glibc's mallopt and Linux page-fault counts")
+def test_kept_memory_saves_the_page_faults_of_each_file(batch):
+    """With freed memory kept, measuring the same file again touches pages the process has
+    already faulted in: a 0.5 s capture's arrays (~190 kB each, tens of them) would otherwise
+    come from fresh mmaps, one minor fault a 4 KiB page (getrusage's ru_minflt)."""
+    import os
+    import subprocess
+
+    path = str(batch["dir"] / "HC-01.wav")
+    env = {**os.environ, "OPENBLAS_NUM_THREADS": "1"}
+    faults = {mode: float(subprocess.run([sys.executable, "-c", _FAULTS, path, mode], capture_output=True,
+                                         text=True, check=True, env=env).stdout)
+              for mode in ("default", "keep")}
+    assert faults["default"] > 94  # at least two arrays of ~47 pages each
+    assert faults["keep"] < faults["default"] / 4, faults
+
+
 # --- report --each -----------------------------------------------------------------------------
 
 @pytest.fixture(scope="module")
