@@ -12,6 +12,7 @@ interrupted) is read as far as it goes, with a warning in :attr:`Capture.warning
 
 from __future__ import annotations
 
+import io
 import os
 import struct
 from pathlib import Path
@@ -63,15 +64,16 @@ def sniff_audio(head: bytes) -> str | None:
     return None
 
 
-def wav_declared_frames(path: str | os.PathLike[str]) -> int | None:
-    """Number of frames the RIFF/RF64 header of a WAV file declares, or ``None``.
+def wav_declared_frames(path: str | os.PathLike[str] | bytes) -> int | None:
+    """Number of frames the RIFF/RF64 header of a WAV file (a path, or the file's bytes)
+    declares, or ``None``.
 
     Walks the chunk list up to the ``data`` chunk and divides its declared size by the
     ``fmt`` chunk's block align. ``None`` when the file is not a little-endian RIFF/RF64
     WAV or the header cannot be followed (then no truncation check is made).
     """
     try:
-        with open(path, "rb") as fh:
+        with (io.BytesIO(path) if isinstance(path, bytes) else open(path, "rb")) as fh:
             head = fh.read(12)
             if len(head) < 12 or head[8:12] != b"WAVE" or head[:4] not in (b"RIFF", b"RF64", b"BW64"):
                 return None
@@ -139,7 +141,7 @@ def _read_frames(sf_file: Any) -> tuple[np.ndarray, bool]:
 
 
 def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
-               sample_rate: float | None = None) -> Capture:
+               sample_rate: float | None = None, data: bytes | None = None) -> Capture:
     """Read an audio file (and its sidecar, if any) into a :class:`Capture`.
 
     Parameters
@@ -151,6 +153,9 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
     sample_rate : float, optional
         Ignored for audio (the header gives the rate); a warning is added when it
         differs from the header's.
+    data : bytes, optional
+        The file's bytes when the caller has read them already: decoded from memory, and
+        the file itself is not opened (its sidecar still is).
 
     Returns
     -------
@@ -169,7 +174,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
     p = Path(path)
     where = str(p)
     try:
-        size = p.stat().st_size
+        size = p.stat().st_size if data is None else len(data)
     except OSError as e:
         raise CaptureError(f"{where}: cannot read the file ({e.strerror or e}) — check the path") from e
     if size == 0:
@@ -177,7 +182,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
     sidecar = read_sidecar(p)
     warnings: list[str] = []
     try:
-        with sf.SoundFile(str(p)) as fh:
+        with sf.SoundFile(str(p) if data is None else io.BytesIO(data)) as fh:
             header_frames = int(fh.frames)
             header_fs = float(fh.samplerate)
             fmt, subtype = fh.format, fh.subtype
@@ -185,7 +190,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
             frames, failed = _read_frames(fh)
     except (sf.LibsndfileError, RuntimeError) as e:
         detail = str(e).split(":")[-1].strip() or "libsndfile cannot decode it"
-        if sniff_audio(_head(p)) is None:
+        if sniff_audio(_head(p) if data is None else data[:16]) is None:
             raise CaptureError(
                 f"{where}: not an audio file ({detail}) — give a WAV, FLAC or OGG recording, or a CSV export"
             ) from e
@@ -193,7 +198,7 @@ def read_audio(path: str | os.PathLike[str], *, sha256: str | None = None,
             f"{where}: unreadable audio ({detail}) — the file is damaged; record or export it again"
         ) from e
     n = frames.shape[1]
-    declared = wav_declared_frames(p) if fmt in ("WAV", "WAVEX", "RF64") else None
+    declared = wav_declared_frames(p if data is None else data) if fmt in ("WAV", "WAVEX", "RF64") else None
     if declared is not None and declared > n:
         warnings.append(f"{where}: audio data truncated: header declares {declared} frames, file holds {n} — "
                         "only those are used; record or copy the file again for the full length")

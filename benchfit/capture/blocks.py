@@ -22,6 +22,7 @@ block. Memory is one block plus the reader's buffers, whatever the file's length
 
 from __future__ import annotations
 
+import io
 import os
 from collections.abc import Iterator
 from dataclasses import dataclass
@@ -427,22 +428,26 @@ def block_frames(channels: int, threshold: int | None = None) -> int:
     return max(1024, thr // (8 * max(1, channels)))
 
 
-def estimated_samples(path: str | os.PathLike[str]) -> int | None:
-    """Samples (frames × channels) in a capture file without reading it: the audio header's count,
+def estimated_samples(path: str | os.PathLike[str], data: bytes | None = None) -> int | None:
+    """Samples (frames × channels) in a capture file without decoding it: the audio header's count,
     or for a text export its upper bound (size over 2 bytes a sample). None when it cannot be told
-    (missing file, unreadable header: the reader then gives its own error)."""
+    (missing file, unreadable header: the reader then gives its own error). ``data``: the file's
+    bytes when the caller has read them already (the header is then read from them)."""
     p = Path(path)
     try:
-        size = p.stat().st_size
-        with open(p, "rb") as fh:
-            head = fh.read(64)
+        size = p.stat().st_size if data is None else len(data)
+        if data is None:
+            with open(p, "rb") as fh:
+                head = fh.read(64)
+        else:
+            head = data[:64]
     except OSError:
         return None
     if p.suffix.lower() in AUDIO_SUFFIXES or sniff_audio(head) is not None:
         try:
             import soundfile as sf
 
-            info = sf.info(str(p))
+            info = sf.info(str(p) if data is None else io.BytesIO(data))
         except Exception:  # noqa: BLE001 - any decoder failure: the reader reports it properly
             return None
         return int(info.frames) * int(info.channels)

@@ -18,7 +18,7 @@ from benchfit.capture.csvfile import read_csv
 from benchfit.errors import CaptureError
 from benchfit.units import parse_quantity
 
-__all__ = ["load", "file_sha256"]
+__all__ = ["load", "file_sha256", "file_bytes"]
 
 CSV_SUFFIXES = (".csv", ".txt", ".tsv")
 _CHUNK = 1 << 20
@@ -34,26 +34,54 @@ def file_sha256(path: str | os.PathLike[str]) -> str:
 
 
 
-def file_head(p: Path) -> bytes:
-    """The first 64 bytes of a capture file (to tell its format), after the one-line errors for a
-    missing path, a folder, an unreadable file and an empty one. Shared by :func:`load` and
-    :class:`benchfit.capture.blocks.BlockReader`."""
+def _check_path(p: Path) -> None:
+    """The one-line errors for a missing path and a folder."""
     if not p.exists():
         raise CaptureError(f"{p}: no such file — check the path and the spelling")
     if p.is_dir():
         raise CaptureError(f"{p}: is a folder, not a capture file — give a WAV, FLAC, OGG or CSV file")
+
+
+def _unreadable(p: Path, e: OSError) -> CaptureError:
+    return CaptureError(f"{p}: cannot read the file ({e.strerror or e}) — check its permissions")
+
+
+def _empty(p: Path) -> CaptureError:
+    return CaptureError(f"{p}: the file is empty — record or export it again")
+
+
+def file_head(p: Path) -> bytes:
+    """The first 64 bytes of a capture file (to tell its format), after the one-line errors for a
+    missing path, a folder, an unreadable file and an empty one. Used by
+    :class:`benchfit.capture.blocks.BlockReader`, which must not read a long file whole."""
+    _check_path(p)
     try:
         size = p.stat().st_size
         with open(p, "rb") as fh:
             head = fh.read(64)
     except OSError as e:
-        raise CaptureError(f"{p}: cannot read the file ({e.strerror or e}) — check its permissions") from e
+        raise _unreadable(p, e) from e
     if size == 0:
-        raise CaptureError(f"{p}: the file is empty — record or export it again")
+        raise _empty(p)
     return head
 
+
+def file_bytes(p: Path) -> bytes:
+    """Every byte of a capture file, read once, after the same one-line errors as
+    :func:`file_head`: :func:`load` hashes these bytes and decodes them from memory, where it
+    once read the file three times (header, SHA-256, samples)."""
+    _check_path(p)
+    try:
+        data = p.read_bytes()
+    except OSError as e:
+        raise _unreadable(p, e) from e
+    if not data:
+        raise _empty(p)
+    return data
+
+
 def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None,
-         channels: ChannelSpec | None = None) -> Capture:
+         channels: ChannelSpec | None = None, data: bytes | None = None) -> Capture:
     """Read a capture file (WAV, FLAC, OGG or CSV export) into a :class:`Capture`.
 
     Parameters
@@ -69,6 +97,9 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None
         Keep only these channels, in this order (the rule of
         :func:`~benchfit.capture.capture.channel_keys`): names (case-insensitive), 0-based
         ints, 1-based numbers as text (``"2"``), or one string ``"drive,output"``.
+    data : bytes, optional
+        The file's bytes when the caller has read them already (:func:`file_bytes`); they are
+        hashed and decoded, and the file is not read again.
 
     Returns
     -------
@@ -101,23 +132,24 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None
         if not (rate > 0 and rate < float("inf")):
             raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — e.g. 48000")
         sample_rate = rate
-    head = file_head(p)
-    try:
-        digest = file_sha256(p)
-    except OSError as e:
-        raise CaptureError(f"{where}: cannot read the file ({e.strerror or e}) — check its permissions") from e
+    if data is None:
+        data = file_bytes(p)
+    elif not data:
+        raise _empty(p)
+    head = data[:64]
+    digest = hashlib.sha256(data).hexdigest()
 
     suffix = p.suffix.lower()
     kind = sniff_audio(head)
     if suffix in AUDIO_SUFFIXES or (kind is not None and suffix not in CSV_SUFFIXES):
-        capture = read_audio(p, sha256=digest, sample_rate=sample_rate)
+        capture = read_audio(p, sha256=digest, sample_rate=sample_rate, data=data)
     elif kind is not None:
         raise CaptureError(f"{where}: holds {kind} audio but is named like a CSV — rename it to .{kind.lower()}")
     elif suffix in CSV_SUFFIXES:
-        capture = read_csv(p, sha256=digest, sample_rate=sample_rate)
+        capture = read_csv(p, sha256=digest, sample_rate=sample_rate, raw=data)
     else:  # an unknown extension: a text export may still read as CSV
         try:
-            capture = read_csv(p, sha256=digest, sample_rate=sample_rate)
+            capture = read_csv(p, sha256=digest, sample_rate=sample_rate, raw=data)
         except CaptureError as e:
             if "no numeric data rows" not in str(e):  # a text export with a bad row: that message is precise
                 raise

@@ -290,7 +290,8 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
 
     The spec and fit options are checked here first, so a mistake in them is one error, not
     one per capture. Workers return each unit's log entry and this process appends it, as
-    results arrive (one writer to the SQLite log).
+    results arrive (one writer to the SQLite log, held open for the batch: each unit is still
+    its own committed run).
     """
     from benchfit.cli.batch import REPORT_PRELOAD, default_jobs, progress_bar, report_job, worker_pool
     from benchfit.cli.common import fail, print_json, stdout
@@ -301,7 +302,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     if fit is not None:
         _fit_call(fit)
     from benchfit.cli.logsafe import check_log_writable, sigint_held
-    from benchfit.log.store import open_log
+    from benchfit.log.store import held_open, open_log
 
     if log_path is not None:
         check_log_writable(log_path)  # a read-only log stops here, before any unit is judged
@@ -322,6 +323,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
         # the workers start first: forked while this process has one thread (no progress bar yet)
         pool = cleanup.enter_context(worker_pool(jobs or default_jobs(), len(paths), preload=REPORT_PRELOAD,
                                                  adapt_to_load=True))
+        cleanup.enter_context(held_open(log_path))  # after the fork: one log connection for the batch
         progress = cleanup.enter_context(progress_bar("reporting", len(paths), notes))
 
         def on_outcome(outcome) -> None:

@@ -566,11 +566,12 @@ def measure_blocks(blocks: Iterable[Any], *, n_max: int, harmonics: int = 10, fo
     return Measurement(file=source, sample_rate_hz=fs, duration_s=done / fs, channels=results, sha256=sha256)
 
 
-def is_long_file(path: str | os.PathLike[str], threshold: int | None = None) -> bool:
-    """True when a capture file holds more samples than are measured at once (read in blocks instead)."""
+def is_long_file(path: str | os.PathLike[str], threshold: int | None = None, data: bytes | None = None) -> bool:
+    """True when a capture file holds more samples than are measured at once (read in blocks instead).
+    ``data``: the file's bytes when the caller has read them already."""
     from benchfit.capture.blocks import block_threshold, estimated_samples
 
-    n = estimated_samples(path)
+    n = estimated_samples(path, data)
     return n is not None and n > (block_threshold() if threshold is None else threshold)
 
 

@@ -239,6 +239,80 @@ def test_run_jobs_reports_in_completion_order_with_index(batch):
     assert outcomes[1].ok and outcomes[1].result["measurement"]["file"] == str(files[1])
 
 
+def test_measure_job_reads_the_file_once_same_hash_and_result(batch, monkeypatch):
+    """A file measured whole is read once: its SHA-256 is that of the bytes read (hashlib,
+    independent of the reader) and the result equals that of the path-by-path reading;
+    libsndfile never opens the path itself, and the separate hashing pass is not run."""
+    import hashlib
+    import io
+
+    import benchfit.capture.audiofile as audiofile
+    import benchfit.capture.load as load_mod
+    from benchfit.capture.load import load
+    from benchfit.cli.batch import measure_job
+    from benchfit.measurement.summary import measure
+
+    path = batch["dir"] / "HC-01.wav"
+    cap = load(path)
+    before = {"measurement": measure(cap).to_dict(full=True), "sha256": cap.sha256}
+    opened: list[object] = []
+    real = sf.SoundFile
+
+    def recording(file, *args, **kwargs):
+        opened.append(file)
+        return real(file, *args, **kwargs)
+
+    def no_second_pass(_path):
+        raise AssertionError("the file was hashed in a second read")
+
+    monkeypatch.setattr(sf, "SoundFile", recording)
+    monkeypatch.setattr(load_mod, "file_sha256", no_second_pass)
+    monkeypatch.setattr(audiofile, "_head", lambda *_: pytest.fail("the header was read from the file"))
+    out = measure_job(path, with_capture=True)
+    assert len(opened) == 2 and all(isinstance(f, io.BytesIO) for f in opened)  # header count, samples
+    assert out["capture"]["sha256"] == hashlib.sha256(path.read_bytes()).hexdigest() == before["sha256"]
+    assert_same_result(before["measurement"], out["measurement"])
+
+
+def test_sample_count_from_the_bytes_equals_the_headers(batch):
+    """Whether a file is measured in blocks is told the same from its bytes as from its path."""
+    from benchfit.capture.blocks import estimated_samples
+
+    for path in (batch["dir"] / "HC-01.wav", batch["bad"]):
+        assert estimated_samples(path, path.read_bytes()) == estimated_samples(path) is not None
+    assert estimated_samples(batch["dir"] / "HC-01.wav") == int(0.5 * FS)  # write_unit: 0.5 s mono
+
+
+_FAULTS = """
+import resource, sys
+from benchfit.cli.batch import keep_freed_memory, measure_job
+if sys.argv[2] == "keep":
+    assert keep_freed_memory()
+measure_job(sys.argv[1])
+before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+for _ in range(10):
+    measure_job(sys.argv[1])
+print((resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before) / 10)
+"""
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="glibc's mallopt and Linux page-fault counts")
+def test_kept_memory_saves_the_page_faults_of_each_file(batch):
+    """With freed memory kept, measuring the same file again touches pages the process has
+    already faulted in: a 0.5 s capture's arrays (~190 kB each, tens of them) would otherwise
+    come from fresh mmaps, one minor fault a 4 KiB page (getrusage's ru_minflt)."""
+    import os
+    import subprocess
+
+    path = str(batch["dir"] / "HC-01.wav")
+    env = {**os.environ, "OPENBLAS_NUM_THREADS": "1"}
+    faults = {mode: float(subprocess.run([sys.executable, "-c", _FAULTS, path, mode], capture_output=True,
+                                         text=True, check=True, env=env).stdout)
+              for mode in ("default", "keep")}
+    assert faults["default"] > 94  # at least two arrays of ~47 pages each
+    assert faults["keep"] < faults["default"] / 4, faults
+
+
 # --- report --each -----------------------------------------------------------------------------
 
 @pytest.fixture(scope="module")
@@ -294,6 +368,23 @@ def test_report_each_logs_every_unit(units, batch, run, tmp_path):
     printed = {o["unit"]: o["run_id"] for o in _lines(res.stdout)}
     assert printed == {r["unit"]: r["id"] for r in runs}  # each line names the run it logged
     assert all(o["log"] == str(log) for o in _lines(res.stdout))
+
+
+def test_report_each_holds_one_log_connection_for_the_batch(units, batch, run, tmp_path, monkeypatch):
+    """The parent opens the log once for the units it appends (plus the check before the
+    workers start), and every unit is still logged."""
+    import benchfit.log.sqlite as backend
+    from benchfit.log.store import list_runs
+
+    log = tmp_path / "log.sqlite"
+    opened = []
+    real = backend.connect
+    monkeypatch.setattr(backend, "connect", lambda *a, **k: opened.append(a) or real(*a, **k))
+    res = run("report", str(units), "--each", "--spec", str(batch["spec"]), "--out", str(tmp_path / "r"),
+              "--log", str(log), "--no-figures", "--jobs", "1", "--json")
+    assert res.returncode == 1, res.stderr
+    assert len(opened) == 2, opened  # the check (open_log) and the batch's held connection
+    assert sorted(r["unit"] for r in list_runs(log)) == ["HC-01", "HC-02", "HC-03", "HC-04"]
 
 
 def test_report_options_that_do_not_fit_together(batch, run, tmp_path):
