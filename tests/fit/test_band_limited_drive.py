@@ -70,13 +70,19 @@ def _sharp(seed: int) -> Capture:
     return _with_noise(x, y, seed, 2e-3, "sharp")
 
 
-@pytest.mark.parametrize("seed", range(3))
-def test_band_limited_drive_leaves_noise_only_residuals(seed):
-    r = fit_lowpass(_band_limited(seed), fix={"L": L, "Rload": RLOAD})
-    assert r.adequacy["drive_edges"]["drive_edges"] == "band-limited"
+def _fit_called(cap: Capture, kind: str):
+    """The default fit of ``cap``: its drive called ``kind`` with evidence, and χ²ᵣ of noise only."""
+    r = fit_lowpass(cap, fix={"L": L, "Rload": RLOAD})
+    assert r.adequacy["drive_edges"]["drive_edges"] == kind
     assert r.adequacy["drive_edges"]["decided"]
     # χ²ᵣ below its 99.9 % point (scipy.stats.chi2 via the fit's own limit): residuals are noise
-    assert r.adequacy["chi2_red"] < r.adequacy["chi2_red_limit"], (seed, r.adequacy["chi2_red"])
+    assert r.adequacy["chi2_red"] < r.adequacy["chi2_red_limit"], (cap.source, r.adequacy["chi2_red"])
+    return r
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_band_limited_drive_leaves_noise_only_residuals(seed):
+    r = _fit_called(_band_limited(seed), "band-limited")
     # the fitted parts within 3 combined standard uncertainties of the divider's values (a 3σ bound)
     for name, truth in (("C", C), ("Rs", RS), ("Resr", RESR)):
         p = r.parameters[name]
@@ -92,7 +98,4 @@ def test_band_limited_drive_forced_sharp_shows_the_model_error():
 
 @pytest.mark.parametrize("seed", range(2))
 def test_sharp_edged_drive_is_still_called_sharp(seed):
-    r = fit_lowpass(_sharp(seed), fix={"L": L, "Rload": RLOAD})
-    assert r.adequacy["drive_edges"]["drive_edges"] == "sharp"
-    assert r.adequacy["drive_edges"]["decided"]
-    assert r.adequacy["chi2_red"] < r.adequacy["chi2_red_limit"], (seed, r.adequacy["chi2_red"])
+    _fit_called(_sharp(seed), "sharp")
