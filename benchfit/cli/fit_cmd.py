@@ -36,9 +36,18 @@ class MethodOption(str, enum.Enum):
     two_channel = "two-channel"
     one_channel = "one-channel"
 
+
+class DriveEdgesOption(str, enum.Enum):
+    """``--drive-edges`` choices (the values of benchfit.fit.edges.DriveEdges, not imported: numpy)."""
+
+    auto = "auto"
+    sharp = "sharp"
+    band_limited = "band-limited"
+
 #: the fit functions' parameters and the options that carry them
 _FLAGS = {"fix": "--fix", "guess": "--guess", "drive": "--drive", "response": "--response",
-          "drive_duty": "--drive-duty", "method": "--method"}
+          "drive_duty": "--drive-duty", "method": "--method",
+          "drive_edges": "--drive-edges"}
 
 
 def flag_wording(message: str) -> str:
@@ -254,6 +263,10 @@ def fit_command(
                                              "cycle, high time / period, as 0.5, 50 or 50%; fitted if omitted."),
     time_domain: bool = typer.Option(False, "--time-domain", help="Two-channel: refine by simulating "
                                      "the output from the drive samples (for non-periodic drives)."),
+    drive_edges: DriveEdgesOption = typer.Option(
+        DriveEdgesOption.auto, "--drive-edges", help="Two-channel: how the drive was sampled — sharp (edges "
+        "within a sample, a scope), band-limited (behind an anti-alias filter, a sound card's line input), "
+        "or auto (decided from the drive's harmonics just below Nyquist)."),
     as_json: bool = typer.Option(False, "--json", help="Print the result as one JSON object."),
     plot: Optional[Path] = typer.Option(None, "--plot", metavar="FILE", help="Write a figure: FILE.svg or FILE.png."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace an existing --plot file."),
@@ -324,7 +337,8 @@ def fit_command(
 
             try:
                 result = fit_lowpass(cap, method=method_name, drive=drive, response=response, fix=fixed,
-                                     guess=guessed, drive_duty=duty, time_domain=time_domain)
+                                     guess=guessed, drive_duty=duty, time_domain=time_domain,
+                                     drive_edges=drive_edges.value)
             except FitError as e:
                 raise FitError(flag_wording(str(e))) from None
     if plot is not None:

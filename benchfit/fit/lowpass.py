@@ -37,10 +37,12 @@ refinement's :func:`benchfit.model.filter.simulate`), not H(j·2πkf). A drive w
 sample (a scope's export without an anti-alias filter) has its harmonics above Nyquist folded onto
 the kept orders, which moves Y_k/X_k from H(j·2πkf) by about (π·k·f/fs)²/3: on the asymmetric ngspice
 unit (50 Hz at 20 kS/s, L ± 10 % only, load free) that biased Q by +0.27 ± 0.07 of its u (mean z over
-200 seeds; +0.24 from the noise-free samples, linearised; scripts/coverage_freeload.py). Known limitation: a drive that *is* band-limited (both channels behind
-the same anti-alias filter, e.g. a sound card's line input) would be off by the opposite amount, of
-the same order: (π·k·f/fs)² is 4·10⁻⁶ at k = 3, f = 50 Hz, fs = 48 kHz. What is left with sharp edges
-is the timing of each edge within one sample.
+200 seeds; +0.24 from the noise-free samples, linearised; scripts/coverage_freeload.py). A drive that
+*is* band-limited (both channels behind the same anti-alias filter, e.g. a sound card's line input) is
+modelled by H(j·2πkf) instead: which of the two applies is decided from the drive channel itself
+(:mod:`benchfit.fit.edges`, ``drive_edges="auto"``) or given. The time-domain refinement and its
+simulation keep the first-order hold. What is left with sharp edges is the timing of each edge within
+one sample.
 """
 
 from __future__ import annotations
@@ -63,6 +65,7 @@ from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, comp
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov,  # noqa: F401
                                  noise_rescaled, parts_of, quality_complex, quality_real, start_parts, subset,
                                  whiten, whitening)
+from benchfit.fit.edges import DriveEdges, classify_drive_edges
 from benchfit.fit.onechannel import fit_one_channel
 from benchfit.fit.propagate import InputSpec
 from benchfit.fit.tolerance import FixedValue, as_fixed
@@ -158,7 +161,7 @@ def grid_start(f_hz: np.ndarray, h: np.ndarray, u: np.ndarray) -> tuple[float, f
 def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | None = None,
                 response: str | int | None = None, fix: Mapping[str, float] | None = None,
                 guess: Mapping[str, float] | None = None, drive_duty: float | None = None,
-                time_domain: bool = False) -> FitResult:
+                time_domain: bool = False, drive_edges: DriveEdges = "auto") -> FitResult:
     """Back-solve effective L, C, Rs, Resr and Rload of the lc-lowpass model.
 
     Parameters
@@ -178,6 +181,11 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
         One-channel only: the drive's duty cycle (0…1, high time / period); fitted when None.
     time_domain : bool
         Two-channel only: refine by fitting the simulated output to the samples.
+    drive_edges : {"auto", "sharp", "band-limited"}
+        Two-channel harmonic method only: how the drive was sampled. "sharp" (edges within a sample,
+        no anti-alias filter: the first-order-hold model), "band-limited" (behind an anti-alias
+        filter: H(j·2πkf)), "auto" decided from the drive (:mod:`benchfit.fit.edges`); the choice
+        and its evidence are in ``result.adequacy["drive_edges"]``.
 
     Returns
     -------
@@ -199,6 +207,8 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
     if drive_duty is not None and not (0.0 < float(drive_duty) < 1.0):
         raise FitError(f"drive_duty: {drive_duty!r} is not between 0 and 1 (the duty cycle is high "
                        "time / period) — pass e.g. drive_duty=0.5")
+    if drive_edges not in get_args(DriveEdges):
+        raise FitError(f"drive_edges {drive_edges!r}: unknown — use one of {', '.join(get_args(DriveEdges))}")
     if method == "auto":
         method = "two-channel" if cap.n_channels >= 2 else "one-channel"
     if method == "two-channel":
@@ -206,7 +216,7 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
             raise FitError(f"{where}: two-channel fitting needs the drive and the output, but the "
                            "capture has one channel — use method='one-channel'")
         di, ri = pick_channels(cap, drive, response)
-        return _two_channel(cap, di, ri, fix_d, guess_d, time_domain, fix_specs)
+        return _two_channel(cap, di, ri, fix_d, guess_d, time_domain, fix_specs, drive_edges)
     if response is not None:
         from benchfit.errors import CaptureError
 
@@ -222,7 +232,8 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
 
 
 def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, float],
-                 time_domain: bool, fix_specs: Mapping[str, FixedValue] | None = None) -> FitResult:
+                 time_domain: bool, fix_specs: Mapping[str, FixedValue] | None = None,
+                 drive_edges: DriveEdges = "auto") -> FitResult:
     from benchfit.measurement.tone import fit_harmonics, fit_tone
 
     where = source_name(cap)
@@ -269,9 +280,11 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     fk = orders * f
     w = whitening(cov)
     u_abs = _abs_u(hk, cov)
+    edges = _edges(x, fs, f, drive_edges, orders, hk, u_abs)
+    model_h = _model_of(edges["drive_edges"], fs)
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return whiten(w, hk - v.get("gain_ratio", 1.0) * sampled_transfer(fk * v.get("f_scale", 1.0), parts_of(v), fs))
+        return whiten(w, hk - v.get("gain_ratio", 1.0) * model_h(fk * v.get("f_scale", 1.0), parts_of(v)))
 
     ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
@@ -362,7 +375,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     else:
         specs = {**input_specs(fix_specs or {}, fixed, folded, ratio), **f_spec}
         sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
-    h_model = values.get("gain_ratio", 1.0) * sampled_transfer(fk, parts_of(values), fs)
+    h_model = values.get("gain_ratio", 1.0) * model_h(fk, parts_of(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
     t = np.arange(n_show) / fs
     y_model = hy.dc + sum((xk[i] * h_model[i] * np.exp(1j * orders[i] * 2 * math.pi * f * t)).real
@@ -380,11 +393,12 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
     result = assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
                       alts, specs, sens)
-    if comparison is not None:
-        from dataclasses import replace
+    from dataclasses import replace
 
-        result = replace(result, adequacy={**result.adequacy,
-                                           "model_comparison": {k: v for k, v in comparison.items() if k != "note"}})
+    extra = {"drive_edges": edges}
+    if comparison is not None:
+        extra["model_comparison"] = {k: v for k, v in comparison.items() if k != "note"}
+    result = replace(result, adequacy={**result.adequacy, **extra})
     if marg is None:
         return result
     result = apply_marginal(result, marg)
@@ -478,6 +492,32 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident, fol
     if load:
         out.append(load_nuisance(values, total))
     return tuple(out)
+
+
+def _edges(x: np.ndarray, fs: float, f: float, choice: DriveEdges, orders: np.ndarray, hk: np.ndarray,
+           u_abs: np.ndarray) -> dict:
+    """The sampling model to use (given, or decided from the drive) and its evidence, for the adequacy record.
+
+    Also how much the choice can matter here: the two models differ by about (π·k·f/fs)²/3 at the highest
+    kept order, compared with that order's relative u of |H_k|. Far below it (``effect_over_u`` ≪ 1) the
+    choice is immaterial to the fit.
+    """
+    ev = classify_drive_edges(x, fs, f).to_dict()
+    if choice != "auto":
+        ev = {**ev, "drive_edges": choice, "decided": True, "reason": f"given (drive_edges={choice!r}); "
+              f"the drive's own evidence says {ev['drive_edges']}: {ev['reason']}"}
+    top = int(np.argmax(orders))
+    effect = (math.pi * float(orders[top]) * f / fs) ** 2 / 3.0
+    rel_u = float(u_abs[top] / max(abs(hk[top]), 1e-300))
+    return {**ev, "choice": choice, "model_difference_rel": effect,
+            "effect_over_u": effect / rel_u if rel_u > 0 else None}
+
+
+def _model_of(kind: str, fs: float):
+    """H_k's model: the first-order-hold response for sharp edges, H(j·2πkf) for a band-limited drive."""
+    if kind == "band-limited":
+        return transfer
+    return lambda freq, p: sampled_transfer(freq, p, fs)
 
 
 def _frequency_spec(f: float, f_u: float | None) -> dict[str, InputSpec]:
