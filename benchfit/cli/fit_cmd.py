@@ -190,6 +190,12 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
         da = adq.get("drive_asymmetry")
         if da:
             line += f"; drive r_high ≠ r_low: F-test p = {da['p_value']:.2g} → {da['chosen']}"
+        de = adq.get("drive_edges")
+        if de:
+            model = "H(j2πkf)" if de["drive_edges"] == "band-limited" else "first-order hold"
+            how = "given" if de.get("choice") not in (None, "auto") else (
+                "from the drive's lines below Nyquist" if de.get("decided") else "assumed: the drive cannot tell")
+            line += f"; drive edges {de['drive_edges']} ({how}) → {model}"
         console.print(line, markup=False, highlight=False, soft_wrap=True)
     console.print("± values are combined standard uncertainties (k = 1); budget rows in --json",
                   markup=False, highlight=False)

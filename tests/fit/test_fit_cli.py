@@ -151,3 +151,20 @@ def test_cli_method_choices_match_the_library():
     # the enums typer shows list exactly those choices
     assert tuple(m.value for m in MethodEnum) == get_args(MethodChoice)
     assert tuple(m.value for m in ModelOption) == get_args(Model)
+
+
+@pytest.mark.parametrize("given", [None, "band-limited"])
+def test_drive_edges_choice_is_shown_and_given_choice_kept(tmp_path, run, given):
+    # a drive of exact samples has edges within one sample (benchfit.fit.edges: its lines below Nyquist
+    # follow the square's 1/k trend), so auto calls it sharp; a given choice is used and said to be given
+    f = _filter_capture(tmp_path / "unit.csv", seed=3)
+    extra = () if given is None else ("--drive-edges", given)
+    code, out, err = run("fit", str(f), "--fix", "L=300m", "--fix", "Rload=10k", *extra, "--json")
+    assert code == 0, err
+    de = json.loads(out)["adequacy"]["drive_edges"]
+    assert de["drive_edges"] == (given or "sharp") and de["choice"] == (given or "auto")
+    code, out, err = run("fit", str(f), "--fix", "L=300m", "--fix", "Rload=10k", *extra)
+    assert code == 0, err
+    want = "drive edges sharp (from the drive's lines below Nyquist)" if given is None else \
+        "drive edges band-limited (given) → H(j2πkf)"
+    assert want in " ".join(out.split()), out
