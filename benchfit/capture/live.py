@@ -398,7 +398,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     if prof is not None and calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
         # a profile from before the gain uncertainty was stored: the sidecar leaves gain_u_rel out
         warnings.append(f"profile {prof.name!r}: gain uncertainty not known — levels in V will carry only their "
-                        "noise uncertainty; run 'benchfit calibrate gain' again with --rms-u")
+                        "noise uncertainty; run 'benchfit calibrate gain --rms-u …' again")
 
     total = int(round(seconds * rate))
     blocks: queue.Queue[Any] = queue.Queue()

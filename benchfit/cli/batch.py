@@ -187,8 +187,11 @@ def jobs_for_load(jobs: int, load: float | None = None) -> int:
 # --- the per-file jobs (run in workers) ----------------------------------------------------
 
 def _message(path: Path, err: BaseException) -> str:
-    """One line naming the file: the error's own text, prefixed by the path when it lacks it."""
-    text = " ".join(str(err).split()) or type(err).__name__
+    """One line naming the file: the error's own text (in the command line's words), prefixed by
+    the path when it lacks it."""
+    from benchfit.cli.common import cli_words
+
+    text = cli_words(" ".join(str(err).split())) or type(err).__name__
     return text if str(path) in text else f"{path}: {text}"
 
 

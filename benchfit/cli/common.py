@@ -9,7 +9,7 @@ from typing import Any, NoReturn
 from benchfit.errors import BenchfitError
 
 __all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse_value", "with_fix",
-           "flag_words"]
+           "flag_words", "cli_words", "LIBRARY_FLAGS"]
 
 
 def _console(err: bool):
@@ -65,22 +65,58 @@ def flag_words(message: str, flags: dict[str, str]) -> str:
 
     The computing packages name their parameters (``interval_s: 0 must be …``, ``pass
     drive_duty=0.5``, ``use method='one-channel'``); ``flags`` maps each name to its option.
-    A name followed by ``:`` at the start, by ``=`` or (for names with an underscore, which
-    cannot be ordinary words) standing alone is replaced: ``name='x'`` and ``name=0.5`` become
-    ``--option x`` and ``--option 0.5``, ``name=True`` and a bare ``name=`` become ``--option``.
+    A name followed by ``:`` (or by a quoted value, ``bench 'x': …``) at the start, by ``=``
+    or (for names with an underscore, which cannot be ordinary words) standing alone is
+    replaced: ``name='x'``, ``name=0.5`` and ``name=…`` become ``--option x``, ``--option 0.5``
+    and ``--option …``; ``name=True`` and a bare ``name=`` become ``--option``. A name that is
+    already part of an option (``--fix=``) is left alone, so translating twice changes nothing.
     """
     import re
 
     if not flags:
         return message
     names = "|".join(sorted(map(re.escape, flags), key=len, reverse=True))
-    out = re.sub(rf"\b({names})=True\b", lambda m: flags[m[1]], message)
-    out = re.sub(rf"\b({names})='([^']*)'", lambda m: f"{flags[m[1]]} {m[2]}", out)
-    out = re.sub(rf"\b({names})=(?=[\d.])", lambda m: f"{flags[m[1]]} ", out)
-    out = re.sub(rf"\b({names})=", lambda m: flags[m[1]], out)
-    out = re.sub(rf"^({names}):", lambda m: f"{flags[m[1]]}:", out)
+    at = r"(?<![-\w])"
+    out = re.sub(rf"{at}({names})=True\b", lambda m: flags[m[1]], message)
+    out = re.sub(rf"{at}({names})='([^']*)'", lambda m: f"{flags[m[1]]} {m[2]}", out)
+    out = re.sub(rf"{at}({names})=(?=[\d.…])", lambda m: f"{flags[m[1]]} ", out)
+    out = re.sub(rf"{at}({names})=", lambda m: flags[m[1]], out)
+    out = re.sub(rf"^({names})(?=:| ')", lambda m: flags[m[1]], out)
     bare = "|".join(re.escape(n) for n in flags if "_" in n)
-    return re.sub(rf"\b({bare})\b", lambda m: flags[m[1]], out) if bare else out
+    return re.sub(rf"{at}({bare})\b", lambda m: flags[m[1]], out) if bare else out
+
+
+#: the library's parameter names that mean the same option in every command that shows them
+LIBRARY_FLAGS = {"fix": "--fix", "guess": "--guess", "bank": "--bank", "drift": "--drift", "log_path": "--log",
+                 "out": "--out", "overwrite": "--overwrite", "fmt": "--format", "bench": "--bench",
+                 "channel_map": "--channel", "unit": "--unit", "model": "--model", "harmonics": "--harmonics",
+                 "force_pulse": "--pulse", "gain_u_rel": "--gain-u", "interval_s": "--interval", "out_dir": "--out",
+                 "drive": "--drive", "response": "--response"}
+
+#: whole library phrases with no one-parameter spelling, and what the command line says instead
+_PHRASES = {"timer=TimerParts(ra=…, rb=…, c1=…)": "--ra, --rb, --c1", "sync_log()": "'benchfit log sync'"}
+
+
+def cli_words(message: str, flags: dict[str, str] | None = None) -> str:
+    """A library message (error, warning or note) in the command line's words.
+
+    The library says what a Python caller passes: a part as ``fix={'Rload': …}`` or, with its
+    tolerance, ``fix={'L': '…±10%'}``, a keyword as ``bank=``, ``drift='RUN.json'``,
+    ``overwrite=True``, ``log_path=``; the command line says ``--fix Rload=…``,
+    ``--fix L=…±10%``, ``--bank``, ``--drift RUN.json``, ``--overwrite``, ``--log``.
+    :data:`LIBRARY_FLAGS` holds the names shared by every command; ``flags`` adds (or
+    overrides) a command's own (``drive_duty`` → ``--drive-duty``).
+    """
+    import re
+
+    table = {**LIBRARY_FLAGS, **(flags or {})}
+    out = message
+    for python, words in _PHRASES.items():
+        out = out.replace(python, words)
+    names = "|".join(sorted(map(re.escape, table), key=len, reverse=True))
+    out = re.sub(rf"(?<![-\w])({names})=\{{'(\w+)': (?:'([^']*)'|…)\}}",
+                 lambda m: f"{table[m[1]]} {m[2]}={m[3] if m[3] is not None else '…'}", out)
+    return flag_words(out, table)
 
 
 def with_fix(message: str, fix: str) -> str:

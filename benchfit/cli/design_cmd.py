@@ -199,10 +199,11 @@ def _table(title: str, columns: tuple[str, ...], header: bool = True):
 
 
 def _print_lines(lines, style: str = "") -> None:
-    from benchfit.cli.common import stdout
+    """Print lines (the design library's notes and warnings among them) in the command line's words."""
+    from benchfit.cli.common import cli_words, stdout
 
     for line in lines:
-        stdout.print(line, markup=False, style=style or None)
+        stdout.print(cli_words(line), markup=False, style=style or None)
 
 
 # --- astable --------------------------------------------------------------------------------

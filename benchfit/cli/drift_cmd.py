@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any, Optional
 import typer
 
 from benchfit.cli.app import app
-from benchfit.cli.common import fail, flag_words, print_json, stderr, stdout
+from benchfit.cli.common import cli_words, fail, flag_words, print_json, stderr, stdout
 
 if TYPE_CHECKING:
     from benchfit.log.store import LogTarget
@@ -147,7 +147,7 @@ def render_summary(run: dict[str, Any], console) -> None:
                   markup=False, highlight=False, soft_wrap=True)
     if st is None:
         for w in run["warnings"]:
-            console.print(f"warning: {w}", markup=False, highlight=False, soft_wrap=True)
+            console.print(f"warning: {cli_words(w)}", markup=False, highlight=False, soft_wrap=True)
         return
     band = st["warmup_band_ppm"]
     warm = ("not settled by the end" if st["warmup_s"] is None else
@@ -181,7 +181,7 @@ def render_summary(run: dict[str, Any], console) -> None:
     console.print("  uncertainties are standard (k = 1): fit noise, with the lag-1 correlation of the "
                   "residuals taken into account", markup=False, highlight=False, soft_wrap=True)
     for w in list(run["warnings"]) + list(st["warnings"]):
-        console.print(f"warning: {w}", markup=False, highlight=False, soft_wrap=True)
+        console.print(f"warning: {cli_words(w)}", markup=False, highlight=False, soft_wrap=True)
 
 
 @app.command("drift", help=_HELP, short_help="Warm-up, drift and Allan deviation of a unit over a long run.")

@@ -45,27 +45,28 @@ class DriveEdgesOption(str, enum.Enum):
     band_limited = "band-limited"
 
 #: the fit functions' parameters and the options that carry them
-_FLAGS = {"fix": "--fix", "guess": "--guess", "drive": "--drive", "response": "--response",
-          "drive_duty": "--drive-duty", "method": "--method",
-          "drive_edges": "--drive-edges"}
+#: (beside fix=, guess=, drive= and response=, which every command says alike:
+#: benchfit.cli.common.LIBRARY_FLAGS)
+_FLAGS = {"drive_duty": "--drive-duty", "method": "--method", "drive_edges": "--drive-edges"}
 
 
 def flag_wording(message: str) -> str:
     """A fit library message in the command line's words.
 
     The library names its parameters as Python spells them (``fix: unknown part 'l'``,
-    ``pass fix={'L': …}``, ``use method='one-channel'``, ``time_domain=True``,
-    ``fit_ringdown()``); the command line says ``--fix``, ``--fix L=…``,
-    ``--method one-channel``, ``--time-domain`` and ``--model ringdown``.
+    ``pass fix={'L': …}``, ``fix={'L': '…±10%'}``, ``use method='one-channel'``,
+    ``time_domain=True``, ``fit_ringdown()``); the command line says ``--fix``, ``--fix L=…``,
+    ``--fix L=…±10%``, ``--method one-channel``, ``--time-domain`` and ``--model ringdown``.
+    Errors and the warnings printed on the terminal go through it; ``--json`` keeps the
+    library's words (it is the Python API's data).
     """
     import re
 
-    from benchfit.cli.common import flag_words
+    from benchfit.cli.common import cli_words
 
-    out = re.sub(r"\b(fix|guess)=\{'(\w+)': …\}", lambda m: f"{_FLAGS[m[1]]} {m[2]}=…", message)
-    out = re.sub(r"\btime_domain=True\b", "--time-domain", out)
+    out = re.sub(r"\btime_domain=True\b", "--time-domain", message)
     out = re.sub(r"\bfit_ringdown\(\)", "--model ringdown", out)
-    return flag_words(out, _FLAGS)
+    return cli_words(out, _FLAGS)
 
 
 _HELP = """Back-solve effective L, C, Rs, ESR and load of an L-C low-pass from a capture.
@@ -204,7 +205,7 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
     from rich.markup import escape
 
     for w in d["warnings"]:
-        console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False, soft_wrap=True)
+        console.print(f"[yellow]warning:[/] {escape(flag_wording(w))}", markup=True, highlight=False, soft_wrap=True)
 
 
 def parse_fix_options(items: list[str] | None, names: tuple[str, ...]) -> dict[str, Any]:

@@ -140,7 +140,9 @@ def render_channel_rows(ch: dict[str, Any]) -> list[tuple[str, str, str]]:
             rows.append(("input coupling τ", _num(ex["coupling_tau_s"], "s"),
                          f"{ex.get('coupling_source')}; {note}"))
     elif ex.get("pulse_not_given"):
-        rows.append(("duty cycle, edges", "—", ex["pulse_not_given"]))
+        from benchfit.cli.common import cli_words
+
+        rows.append(("duty cycle, edges", "—", cli_words(ex["pulse_not_given"])))
     if ch["frequency_hz"] is not None:
         rows += [
             ("THD", _pct(ch["thd_pct"], ex.get("thd_u_pct")), f"harmonics 2…{h}"),
@@ -178,8 +180,10 @@ def _render(d: dict[str, Any], console) -> None:
                 ht.add_row(str(hm["order"]), _num(hm["frequency_hz"], "Hz"),
                            _num(hm["amplitude"], ch["unit"]), rel_txt, f"{hm['phase_deg']:.1f}°")
             console.print(ht)
+        from benchfit.cli.common import cli_words
+
         for w in ch["warnings"]:
-            console.print(f"[yellow]warning:[/] {escape(w)}", markup=True, highlight=False, soft_wrap=True)
+            console.print(f"[yellow]warning:[/] {escape(cli_words(w))}", markup=True, highlight=False, soft_wrap=True)
         console.print()
 
 

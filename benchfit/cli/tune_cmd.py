@@ -12,7 +12,7 @@ from typing import Any, Optional
 import typer
 
 from benchfit.cli.app import app
-from benchfit.cli.common import fail, parse_value, print_json, stderr, stdout
+from benchfit.cli.common import cli_words, fail, parse_value, print_json, stderr, stdout
 from benchfit.cli.soundcard import CAUTION, device_arg, freq_text, live_console, whole_rate
 
 __all__ = ["tune"]
@@ -71,7 +71,7 @@ def _panel(r, t: float, target: float, tolerance: float | None, n: int, dropped:
         grid.add_row("input level", Text(f"{r.peak_dbfs:.1f} dBFS" + ("  CLIPPING" if r.clipped else ""),
                                          style="red" if r.clipped else ""))
         for w in r.warnings:
-            grid.add_row("note", Text(w, style="yellow"))
+            grid.add_row("note", Text(cli_words(w), style="yellow"))
         if error:
             grid.add_row("note", Text(error, style="yellow"))
     grid.add_row("", "")

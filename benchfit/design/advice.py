@@ -686,7 +686,7 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
         firsts = list(kinds.values())
         timer_acts = (firsts + [a for a in timer_acts if a not in firsts])[:8]
     elif spec.limit_for("frequency_hz") is not None and keep.p_limits.get("frequency_hz", 1.0) < P_HIGH:
-        warnings.append("the frequency is off and no timer parts were given (--ra, --rb, --c1): the filter "
+        warnings.append("the frequency is off and no timer parts were given (timer=TimerParts(ra=…, rb=…, c1=…)): the filter "
                         "cannot move the frequency")
     plans: list[Plan] = []
     combos: list[list[_Action]] = []

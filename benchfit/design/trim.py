@@ -275,7 +275,7 @@ def capacitor_trim(fit, target_hz: float, *, series: str = "E12", max_parts: int
             notes.append(f"the fit did not determine C by itself ({why}): the advice works from "
                          f"f0 = {f0:.6g} Hz and the fit's C = {fq(cv, 'F', 5)}; an error ε in that C "
                          "changes the capacitance to add by the same fraction and is NOT in the "
-                         "prediction — give the bank's make-up (--bank) or fix C in the fit")
+                         "prediction — give the bank's make-up (bank=) or fix C in the fit")
         else:
             raise DesignError(f"{fit.file}: the fit gives the resonance but no capacitance — give the "
                               "capacitor bank's values (bank=[22e-6, 10e-6, 1e-6]) or fix C or L in the fit")
@@ -354,7 +354,7 @@ def _decrease(cv: float, c_new: float, need_less: float, series: str, bank: Sequ
         if best is not None:
             return best[4], best[1], best[2], best[3]
     rebuilt = _parallel_only(c_new, series, max_parts)
-    notes.append(f"the bank must lose {fq(need_less, 'F', 4)}; without the bank's make-up (--bank) the "
+    notes.append(f"the bank must lose {fq(need_less, 'F', 4)}; without the bank's make-up (bank=) the "
                  "suggestion is to rebuild it from new parts taken at their nominal values")
     return rebuilt, f"reduce the capacitance: rebuild the bank as {rebuilt.describe()}", 0.0, rebuilt.value
 

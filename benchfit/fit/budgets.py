@@ -108,12 +108,12 @@ def assemble(cap, method: Method, values: dict[str, float], ident: Identificatio
         # these move together with the parts of the other solution: fixing the load settles them
         amb_warn.append(f"{', '.join(und_plain)}: not determined by these data either (they shift "
                         "with the other solution above) — fixing Rload usually settles them; otherwise "
-                        f"measure {und_plain[0]} and pass --fix {und_plain[0]}=…")
+                        f"measure {und_plain[0]} and pass fix={{'{und_plain[0]}': …}}")
         und_plain = ()
     warn = list(warnings) + amb_warn + undetermined_warning(und_plain, high_z)
     if not success:
         warn.append(f"fit: the optimiser did not report convergence ({message}) — check the "
-                    "capture and try --guess with approximate part values")
+                    "capture and pass approximate part values as guess=")
     # derived values use the local covariance; the spread between equally good solutions is
     # checked on the derived values themselves below (it widens only the parts' own errors)
     derived = derived_values(values, replace(ident, cov_log=cov_local))
@@ -147,7 +147,7 @@ def assemble(cap, method: Method, values: dict[str, float], ident: Identificatio
         shown = ", ".join(f"{n} = {format_quantity(specs[n].fixed.value, display_unit(n), 4)}"
                           for n in cond if n in PARAMETER_UNITS)
         warn.append(f"{', '.join(cond)}: fixed without a tolerance ({shown}), so every fitted part and derived "
-                    f"value is conditional on it — give the tolerance, e.g. --fix {cond[0]}=…±10%, to include it")
+                    f"value is conditional on it — give the tolerance, e.g. fix={{'{cond[0]}': '…±10%'}}, to include it")
     if ident.chi2_red > _chi2_limit(dof):
         warn.append(f"fit: the residuals are {math.sqrt(ident.chi2_red):.2g}× the noise (χ²ᵣ = {ident.chi2_red:.3g} "
                     f"on {dof} degrees of freedom), so the model does not describe these data fully; every fit "

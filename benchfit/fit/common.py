@@ -36,7 +36,7 @@ def check_not_silent(x: np.ndarray, cap, index: int, role: str) -> None:
     level = max(float(np.max(np.abs(x))), 1e-30)
     if span <= 1e-9 * level or span == 0.0 or float(np.std(x)) < 1e-12:
         raise FitError(f"{source_name(cap)}: {role} channel {cap.channel_names[index]!r} is silent "
-                       f"(no signal) — check the wiring, or choose another channel with --{role}")
+                       f"(no signal) — check the wiring, or choose another channel with {role}=")
 
 
 def start_parts(w0: float, q: float, dc_gain: float | None, fix: Mapping[str, float],

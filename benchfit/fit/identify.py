@@ -275,11 +275,11 @@ def undetermined_warning(undetermined: tuple[str, ...], high_impedance: bool) ->
         rest = [n for n in und if n not in ("L", "C")]
         tail = f" ({', '.join(rest)} also follow only once one part is known)" if rest else ""
         msgs.append(f"L, C: L and C are not separately determined: the data fix {combos}{tail} — "
-                    "measure L (or C) and pass --fix L=… (or --fix C=…)")
+                    "measure L (or C) and pass fix={'L': …} (or fix={'C': …})")
         return msgs
     for name in und:
         why = " (the load is too light to show in the response)" if name == "Rload" else ""
-        msgs.append(f"{name}: not determined by these data{why} — measure it and pass --fix {name}=…")
+        msgs.append(f"{name}: not determined by these data{why} — measure it and pass fix={{'{name}': …}}")
     return msgs
 
 
@@ -338,7 +338,7 @@ def solve(residual, start: dict[str, float], fix: Mapping[str, float],
                             f"Rs + ESR (also given as series_loss_ohm); the ESR may be anywhere in 0…{upper:.3g} Ω "
                             "(the smaller of Rs + ESR and twice the data's own bound) and that range is included "
                             "in the other parts' uncertainties — an ESR meter on the capacitor would split them "
-                            "(then --fix Resr=…)")
+                            "(then fix={'Resr': …})")
             continue
         break
     alternatives: list[dict[str, float]] = []
@@ -440,6 +440,6 @@ def ambiguity(values: Mapping[str, float], ident: Identification,
 
     target = "Rload" if "Rload" in bad else bad[-1]
     msg = (f"{', '.join(bad)}: quite different values fit these data equally well ({describe(values)}; or "
-           f"{describe(alt)}) — measure {target} and pass --fix {target}=…")
+           f"{describe(alt)}) — measure {target} and pass fix={{'{target}': …}}")
     und = tuple(n for n in ident.names if n in set(ident.undetermined) | set(bad))
     return replace(ident, undetermined=und), [msg]

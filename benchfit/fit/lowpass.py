@@ -312,7 +312,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         warnings = list(warnings) + [
             f"{cap.channel_names[ri]}: drive and output are not both calibrated in volts "
             f"({cap.units[di]}, {cap.units[ri]}), so a gain difference between the inputs looks like "
-            "loss in the load — calibrate the inputs, or fix Rload (--fix Rload=…)"]
+            "loss in the load — calibrate the inputs, or fix Rload (fix={'Rload': …})"]
     if ratio_note:
         warnings = list(warnings) + [ratio_note]
     marg, alts_base, gain_fitted = None, [], False
@@ -456,7 +456,7 @@ def _other_modes(result: FitResult, residual_m, alternatives: list, marg, fix: M
             derived[name] = DerivedValue(dv.value, math.hypot(dv.stderr, diff / 2), dv.u_fit, b, dv.conditional_on)
     shown = "; or ".join(f"Rs = {m['Rs']:.3g} Ω, Rload = {m['Rload']:.3g} Ω" for m in modes)
     note = (f"Rs, Rload: another solution fits these data as well ({shown}) — they are not determined; "
-            "measuring the load resistance (then --fix Rload=…) would pick one")
+            "measuring the load resistance (then fix={'Rload': …}) would pick one")
     return replace(result, parameters=params, derived=derived, warnings=tuple(result.warnings) + (note,))
 
 
@@ -488,7 +488,7 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident, fol
     if "Resr" not in fix and "Resr" in und and not load:
         out.append(Nuisance("Resr", 0.0, total, "value", f"0…{total:.3g} Ω (rectangular)",
                             "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
-                            "an ESR meter on the capacitor would pin it (then --fix Resr=…)"))
+                            "an ESR meter on the capacitor would pin it (then fix={'Resr': …})"))
     if load:
         out.append(load_nuisance(values, total))
     return tuple(out)

@@ -102,7 +102,7 @@ def load_nuisance(values: Mapping[str, float], total: float) -> Nuisance:
     return Nuisance("Rload", 0.0, g_max, "conductance",
                     f"{l_over_c / total:.3g} Ω … open (1/Rload rectangular on 0…{g_max:.3g} S)",
                     "the data's own bound: the load takes anywhere from none to all of the damping "
-                    "the response shows", "measuring the load resistance (then --fix Rload=…) "
+                    "the response shows", "measuring the load resistance (then fix={'Rload': …}) "
                     "would split Rs from it")
 
 

@@ -404,7 +404,7 @@ def _load_beside_open_core_loss(result, nuis: tuple[Nuisance, ...], fix: Mapping
     params["Rload"] = replace(p, stderr=None, u_fit=None)
     warn = (f"Rload: not separated by an output-only capture from a core loss in the choke (Rp across L), "
             f"which the data leave open; the fit's {p.value:.4g} Ω takes part of it — measuring the load "
-            "resistance (then --fix Rload=…) or an LCR meter on the choke (then --fix Rp=…) would pin it")
+            "resistance (then fix={'Rload': …}) or an LCR meter on the choke (then fix={'Rp': …}) would pin it")
     return replace(result, parameters=params, warnings=tuple(result.warnings) + (warn,))
 
 
@@ -458,7 +458,7 @@ def _nuisances(values: Mapping[str, float], fix: Mapping[str, float], ident) -> 
     if "Resr" not in fix:
         out.append(Nuisance("Resr", 0.0, total, "value", f"0…{total:.3g} Ω (rectangular)",
                             "the data's own bound: the ESR cannot exceed the total loss that damps the resonance",
-                            "an ESR meter on the capacitor would pin it (then --fix Resr=…)",
+                            "an ESR meter on the capacitor would pin it (then fix={'Resr': …})",
                             reportable="Rp" in fix or "Rp" in values,
                             why="not separated by an output-only capture: a core loss in the choke also turns "
                                 "the roll-off above resonance from 1/f² towards 1/f, as the ESR does"
@@ -510,7 +510,7 @@ def _core_loss_nuisances(nuis: tuple[Nuisance, ...], values: Mapping[str, float]
               "nor rules it out)")
     measure = ("an LCR meter on the choke at the operating frequency (its Q or parallel loss resistance), "
                "an ESR meter on the capacitor, or a two-channel capture (drive and output) would split them "
-               "(then --fix Rp=… or --fix Resr=…)")
+               "(then fix={'Rp': …} or fix={'Resr': …})")
     out = [q for q in nuis if q.name != "Resr"]
     if "Resr" in fix:  # the ESR known: the core loss alone over the data's own bound, as a conductance
         g_max = total / l_over_c
@@ -519,7 +519,7 @@ def _core_loss_nuisances(nuis: tuple[Nuisance, ...], values: Mapping[str, float]
                                       "the data's own bound: the core loss's series equivalent at resonance, "
                                       "L/(C·Rp), cannot exceed the total loss that damps the resonance",
                                       "an LCR meter on the choke at the operating frequency would pin it "
-                                      "(then --fix Rp=…)", why="not determined by these data" + p_text),)
+                                      "(then fix={'Rp': …})", why="not determined by these data" + p_text),)
     why = ("not separated by an output-only capture from a core loss in the choke (Rp across L): to first "
            "order both enter the response only through C·ESR + L/Rp" + p_text)
     esr_and_core = Nuisance(

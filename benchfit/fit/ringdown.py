@@ -339,7 +339,7 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
                         "assuming a light load and a small ESR")
         if spec.u is None:
             warnings.append(f"{known}: fixed without a tolerance, so {other} is conditional on it — give the "
-                            f"tolerance, e.g. --fix {known}=…±10%, to include it")
+                            f"tolerance, e.g. fix={{'{known}': '…±10%'}}, to include it")
     data = np.concatenate([s.data - s.baseline for s in segments])
     model = np.concatenate([s.model - s.baseline for s in segments])
     res = data - model

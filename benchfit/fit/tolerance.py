@@ -40,14 +40,14 @@ class FixedValue:
     text : str
         How the tolerance was given (``"±10 %"``), for budget rows.
     source : str
-        Where the value came from ("--fix", "spec [conditions]", "prior", …).
+        Where the value came from (``"fix"``: the caller's ``fix=``; ``"spec [conditions]"``, ``"prior"``, …).
     """
 
     value: float
     half_width: float | None = None
     distribution: Distribution = "rectangular"
     text: str = ""
-    source: str = "--fix"
+    source: str = "fix"
 
     @property
     def u(self) -> float | None:
@@ -103,5 +103,5 @@ def as_fixed(v: float | FixedValue | Mapping[str, Any] | tuple) -> FixedValue:
                           "" if half is None else f"±{float(half):g}")
     if isinstance(v, Mapping):
         return FixedValue(float(v["value"]), v.get("half_width"), v.get("distribution", "rectangular"),
-                          str(v.get("text", "")), str(v.get("source", "--fix")))
+                          str(v.get("text", "")), str(v.get("source", "fix")))
     return FixedValue(float(v))

@@ -42,11 +42,11 @@ def export_log(db_path: str | Path | LogURL, fmt: str, out: str | Path | None = 
         Unknown format, or ``out`` exists and ``overwrite`` is False.
     """
     if fmt not in get_args(ExportFormat):
-        raise LogError(f"--format: {fmt!r} is unknown — use one of {', '.join(get_args(ExportFormat))}")
+        raise LogError(f"fmt: {fmt!r} is unknown — use one of {', '.join(get_args(ExportFormat))}")
     if out is not None:
         p = Path(out)
         if p.exists() and not overwrite:
-            raise LogError(f"{p}: file exists — choose another --out or add --overwrite")
+            raise LogError(f"{p}: file exists — choose another out= or add overwrite=True")
     df = results_frame(db_path, unit=unit, since=since)
     text = df.to_csv(index=False) if fmt == "csv" else df.to_json(orient="records", indent=1)
     if out is None:
@@ -57,7 +57,7 @@ def export_log(db_path: str | Path | LogURL, fmt: str, out: str | Path | None = 
         with p.open(mode, encoding="utf-8", newline="") as f:
             f.write(text)
     except FileExistsError as e:
-        raise LogError(f"{p}: file exists — choose another --out or add --overwrite") from e
+        raise LogError(f"{p}: file exists — choose another out= or add overwrite=True") from e
     except OSError as e:
         raise LogError(f"{p}: cannot write the export ({e.strerror}) — check the directory") from e
     return None

@@ -168,7 +168,7 @@ class PostgresStore(LogStore):
                 return
             if have is None and not create:
                 raise LogError(f"{self.where}: no benchfit log in this database yet — run a report (or "
-                               "measure with --log) against it first, or give the right URL")
+                               "measure with log_path=) against it first, or give the right URL")
             with self.con.transaction():
                 self.con.execute("SELECT pg_advisory_xact_lock(%s)", (_LOCK_KEY,))
                 have = self._version(locked=True)  # again, under the lock: another bench may have migrated

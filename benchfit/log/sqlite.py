@@ -59,13 +59,13 @@ def _read_schema(path: Path, uri: str) -> int | None:
             # an empty database: a log another process has just created and not yet set up
             raise _EmptyNewLog
         if app_id != APPLICATION_ID or "benchfit_schema" not in tables:
-            raise LogError(f"{path}: not a benchfit measurement log — give another path with --log "
+            raise LogError(f"{path}: not a benchfit measurement log — give another path with log_path= "
                            "or BENCHFIT_LOG (this file was left untouched)")
         return con.execute("SELECT MAX(version) FROM benchfit_schema").fetchone()[0]
     except sqlite3.OperationalError:
         raise
     except sqlite3.DatabaseError as e:
-        raise LogError(f"{path}: not a benchfit measurement log ({e}) — give another path with --log "
+        raise LogError(f"{path}: not a benchfit measurement log ({e}) — give another path with log_path= "
                        "or BENCHFIT_LOG (this file was left untouched)") from e
     finally:
         con.close()
@@ -173,8 +173,8 @@ def connect(path: str | Path, *, create: bool = True) -> sqlite3.Connection:
         raise LogError(f"{p}: is a directory — give a file path for the log, e.g. {p / 'log.sqlite'}")
     exists = p.exists()
     if not exists and not create:
-        raise LogError(f"{p}: no log file there — run a report (or measure/fit with --log) first, "
-                       "or give the right path with --log")
+        raise LogError(f"{p}: no log file there — run a report (or measure/fit with log_path=) first, "
+                       "or give the right path with log_path=")
     current = _inspect(p) if exists else None
     try:
         if not exists:

@@ -90,7 +90,7 @@ def use_bench(name: str | None) -> None:
     """Name the bench for the runs this process writes (the ``--bench`` option); None: the default."""
     global _bench_override
     if name is not None:
-        _check_bench(name, "--bench")
+        _check_bench(name, "bench")
     _bench_override = name
 
 
@@ -312,8 +312,8 @@ def sync_log(target: str | Path | LogURL) -> tuple[int, int]:
     """
     t = as_target(target)
     if not isinstance(t, LogURL):
-        raise LogError(f"{t}: a log file has no spool — `benchfit log sync` is for a server log "
-                       "(--log postgresql://… or BENCHFIT_LOG)")
+        raise LogError(f"{t}: a log file has no spool — sync_log() is for a server log "
+                       "(log_path='postgresql://…' or BENCHFIT_LOG)")
     from benchfit.log import spool
 
     with open_store(t) as store:
@@ -345,7 +345,7 @@ def merge_log(source: str | Path, target: str | Path | LogURL, *, bench: str | N
     if isinstance(t, Path) and t.exists() and t.resolve() == src.resolve():
         raise LogError(f"{src}: is the target log itself — give another bench's log file")
     if bench is not None:
-        _check_bench(bench, "--bench")
+        _check_bench(bench, "bench")
     with SQLiteStore(src, create=False) as s, open_store(t) as d:
         def records() -> Iterable[dict[str, Any]]:
             for _, rec in s.iter_records():

@@ -45,9 +45,9 @@ DEFAULT_SCOPE_GAIN_NOTE = (
     f"vertical gain not calibrated: levels in V read from the instrument's file are taken as "
     f"± {100 * DEFAULT_SCOPE_GAIN_HALF_WIDTH_REL:g} % (rectangular, u = {100 * DEFAULT_SCOPE_GAIN_U_REL:.2f} %; a "
     "scope channel's usual dc gain accuracy, common practice, no source) and their uncertainties include "
-    "it — state the channel's calibrated figure with --gain-u (measure) or gain_u_rel")
+    "it — state the channel's calibrated figure with gain_u_rel=")
 
-_STATED = "stated by the caller (gain_u_rel / --gain-u)"
+_STATED = "stated by the caller (gain_u_rel=)"
 
 
 @dataclass(frozen=True)
@@ -85,7 +85,7 @@ def gain_term(unit: str, index: int, *, gains: tuple[float | None, ...] | None,
 
         return GainTerm(DEFAULT_GAIN_U_REL, "stated default (calibration gives no uncertainty)", full_scale,
                         f"{DEFAULT_GAIN_NOTE}: calibration profile {profile or 'unnamed'!s} does not state it — "
-                        "run 'benchfit calibrate gain' again with --rms-u and record with the new profile")
+                        "run 'benchfit calibrate gain --rms-u …' again and record with the new profile")
     if own is not None:  # volts from an instrument whose channel calibration states its u
         return GainTerm(float(own), "stated vertical gain uncertainty (capture calibration)", name="vertical gain")
     if stated_u_rel is not None:

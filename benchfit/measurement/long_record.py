@@ -213,7 +213,7 @@ class BlockChannel:
             elif self._pulse_not_given is None:
                 frac = state_levels(x).fraction_in_states
                 self._pulse_not_given = (f"not a two-level wave: {100 * frac:.0f} % of the samples lie near two "
-                                         "levels, 75 % are needed (slow edges, or not a pulse; --pulse gives "
+                                         "levels, 75 % are needed (slow edges, or not a pulse; force_pulse=True gives "
                                          "them anyway)")
         if self._snr_noise is None:
             self._snr_noise = _snr_without_harmonics(x, fs, float(fit.frequency_hz), fit.orders)

@@ -310,7 +310,7 @@ def stability(readings: Sequence[IntervalReading], *, interval_s: float,
             adev_1s_u = 0.5 * (pnt.ci_high - pnt.ci_low)
     if adev_1s is None:
         warnings.append(f"adev_1s: τ = 1 s is not among the averaging times (interval {interval_s:g} s) — "
-                        "use --interval 1s (or a divisor of 1 s)")
+                        "use interval_s=1 (or a divisor of 1 s)")
 
     # ---- level and THD
     amps = np.array([r.amplitude for r in good], dtype=np.float64)

@@ -253,7 +253,7 @@ def measure_channel(x: np.ndarray, sample_rate: float, *, name: str = "ch1", uni
             # sine is not a mistake)
             frac = states().fraction_in_states
             extra["pulse_not_given"] = (f"not a two-level wave: {100 * frac:.0f} % of the samples lie near two "
-                                        "levels, 75 % are needed (slow edges, or not a pulse; --pulse gives "
+                                        "levels, 75 % are needed (slow edges, or not a pulse; force_pulse=True gives "
                                         "them anyway)")
     method = "multi-harmonic fit"
     if pulse.two_level and pulse.edge_period_s and pulse.edge_period_u_s is not None:
@@ -424,7 +424,7 @@ def _snr_warning(snr: float, snr_noise: float, h: int) -> str:
     """The warning for a signal-to-residual ratio below 10 dB: harmonics above H, or real noise."""
     if snr_noise >= _LOW_SNR_DB:
         return (f"harmonics above H = {h} carry most of what the fit leaves (signal to residual {snr:.1f} dB; "
-                f"to noise alone {snr_noise:.0f} dB), so the uncertainties are wide — raise --harmonics for "
+                f"to noise alone {snr_noise:.0f} dB), so the uncertainties are wide — raise harmonics= for "
                 "tighter ones")
     return (f"low signal-to-noise ratio ({snr:.1f} dB) — values are less certain; "
             "raise the signal level or shorten the leads")

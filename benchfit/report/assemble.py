@@ -179,7 +179,7 @@ def _drift_value(limit: Limit, drift: Mapping[str, Any] | None) -> dict[str, Any
 
     none = {"value": None, "u": None, "file": None, "channel": None, "unit": limit.unit}
     if drift is None:
-        return {**none, "reason": "no drift run given — add --drift RUN.json (or the long capture) to the report"}
+        return {**none, "reason": "no drift run given — add drift='RUN.json' (or the long capture) to the report"}
     st = drift.get("stability")
     if not st:
         return {**none, "reason": f"{drift.get('file') or 'drift run'}: no stability statistics "
@@ -432,7 +432,7 @@ def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
     elif options.model == "lc-lowpass":
         fn = benchfit.fit_lowpass
     else:
-        raise FitError(f"--model: {options.model!r} is unknown — use lc-lowpass or ringdown")
+        raise FitError(f"model: {options.model!r} is unknown — use model='lc-lowpass' or model='ringdown'")
     params = inspect.signature(fn).parameters
     wanted = {"drive": options.drive, "response": options.response,
               "fix": dict(options.fix) if options.fix else None}
@@ -441,7 +441,7 @@ def _fit_call(options: FitOptions) -> tuple[Callable[..., Any], dict[str, Any]]:
         if value is None:
             continue
         if name not in params:
-            raise FitError(f"--{name}: the {options.model} fit does not take this option — leave it out")
+            raise FitError(f"{name}: the {options.model} fit does not take this option — leave it out")
         kwargs[name] = value
     return fn, kwargs
 
@@ -528,8 +528,8 @@ def _map_channels(capture: Any, channel_map: Mapping[str, str]) -> Any:
         idx = capture.channel_index(key)
         clash = [n for i, n in enumerate(names) if i != idx and n.lower() == spec_name.lower()]
         if clash:
-            raise SpecError(f"--channel {spec_name}={key}: {capture.source} already has a channel named "
-                            f"{clash[0]!r} — map another name, or leave --channel out")
+            raise SpecError(f"channel_map={{'{spec_name}': '{key}'}}: {capture.source} already has a channel "
+                            f"named {clash[0]!r} — map another name, or leave that name out of channel_map")
         names[idx] = spec_name
     return replace(capture, channel_names=tuple(names))
 
@@ -563,8 +563,8 @@ def _check_channels(capture: Any, spec: Spec) -> Any:
         wanted = "output" if lim.channel is None else lim.channel
         raise SpecError(
             f"{capture.source}: no channel {wanted!r} for the spec's {lim.quantity} limit (the capture has "
-            f"{', '.join(capture.channel_names)}) — map one with --channel {wanted}=CH (a name or 1-based "
-            f"number, e.g. --channel {wanted}={capture.n_channels}), or set channel in the spec")
+            f"{', '.join(capture.channel_names)}) — map one with channel_map={{'{wanted}': 'CH'}} (a name or "
+            f"1-based number, e.g. channel_map={{'{wanted}': '{capture.n_channels}'}}), or set channel in the spec")
     return capture
 
 
@@ -626,7 +626,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     step = progress or (lambda text: None)
     sp = spec if isinstance(spec, Spec) else load_spec(spec)
     if not unit or not unit.strip():
-        raise SpecError("--unit: the serial is empty — give the unit's serial, e.g. --unit HC-07")
+        raise SpecError("unit: the serial is empty — give the unit's serial, e.g. unit='HC-07'")
     fit_opts = fit if fit is not None else (FitOptions() if sp.needs_fit else None)
     if fit_opts is not None:
         fit_opts = _with_spec_fixes(fit_opts, sp)

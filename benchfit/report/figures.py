@@ -488,7 +488,7 @@ def save_figure(svg_or_fig, path: str | Path, *, overwrite: bool = True) -> Path
         write_bytes_new(p, data, overwrite=overwrite)
     except FileExistsError as e:
         raise BenchfitError(f"{p}: file exists (it appeared while the figure was drawn) — choose another "
-                            "--plot or add --overwrite") from e
+                            "path or add overwrite=True") from e
     except OSError as e:
         raise BenchfitError(f"{p}: cannot write the figure ({e.strerror}) — check the folder exists "
                             "and is writable") from e

@@ -263,7 +263,7 @@ def write_report(report: Mapping[str, Any], html_text: str, out_dir: str | Path)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as e:
-        raise BenchfitError(f"{out}: cannot create the output directory ({e.strerror}) — check --out") from e
+        raise BenchfitError(f"{out}: cannot create the output directory ({e.strerror}) — check out_dir") from e
     stem = report_stem(str(report["unit"]), str(report["created_utc"]))
     json_text = json.dumps(report, indent=1, ensure_ascii=False, allow_nan=False)
     for n in range(1, 1000):
@@ -284,7 +284,7 @@ def write_report(report: Mapping[str, Any], html_text: str, out_dir: str | Path)
                     html_path.unlink()
                 except OSError:
                     pass
-            raise BenchfitError(f"{html_path}: cannot write the report ({e.strerror}) — check --out and its "
+            raise BenchfitError(f"{html_path}: cannot write the report ({e.strerror}) — check out_dir and its "
                                 "free space") from e
         try:
             with json_path.open("x", encoding="utf-8") as f:
@@ -297,6 +297,6 @@ def write_report(report: Mapping[str, Any], html_text: str, out_dir: str | Path)
                 except OSError:
                     pass
             raise BenchfitError(f"{json_path}: cannot write the JSON twin ({e.strerror or e}; the HTML was "
-                                "removed too) — check --out and its free space") from e
+                                "removed too) — check out_dir and its free space") from e
         return html_path, json_path
-    raise BenchfitError(f"{out}: 999 reports named {stem} already exist — choose another --out")
+    raise BenchfitError(f"{out}: 999 reports named {stem} already exist — choose another out_dir")

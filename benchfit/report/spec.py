@@ -415,9 +415,9 @@ def load_spec(path: str | Path) -> Spec:
         with p.open("rb") as f:
             data = tomllib.load(f)
     except FileNotFoundError as e:
-        raise SpecError(f"{p}: spec file not found — check the path given to --spec") from e
+        raise SpecError(f"{p}: spec file not found — check the path of the spec file") from e
     except IsADirectoryError as e:
-        raise SpecError(f"{p}: is a folder, not a spec file — give the spec TOML file to --spec") from e
+        raise SpecError(f"{p}: is a folder, not a spec file — give the path of the spec TOML file itself") from e
     except OSError as e:
         raise SpecError(f"{p}: cannot read the spec file ({e.strerror}) — check its permissions") from e
     except tomllib.TOMLDecodeError as e:

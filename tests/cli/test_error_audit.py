@@ -307,7 +307,7 @@ CASES = [
       "--plot"),
     # --- report --------------------------------------------------------------------------------
     C("report-spec-missing", "report {good} --spec {missing} --unit HC-01 --no-log", 2,
-      r": spec file not found — check the path given to --spec$", "missing"),
+      r": spec file not found — check the path of the spec file$", "missing"),
     C("report-spec-not-toml", "report {good} --spec {spec_bad} --unit HC-01 --no-log", 2,
       r": not valid TOML \(.*\) — fix the syntax$", "spec_bad"),
     C("report-spec-folder", "report {good} --spec {folder} --unit HC-01 --no-log", 2,

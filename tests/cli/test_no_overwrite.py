@@ -41,7 +41,7 @@ def test_fit_plot_keeps_a_file_made_while_the_fit_ran(run, two_channel, tmp_path
     r = run("fit", str(two_channel), "--plot", str(fig), "--json")
     assert r.returncode == 2 and r.stdout == ""
     assert r.stderr.strip() == (f"error: {fig}: file exists (it appeared while the figure was drawn) — choose "
-                                "another --plot or add --overwrite")
+                                "another path or add --overwrite")
     assert fig.read_text(encoding="utf-8") == "<svg>another program's figure</svg>\n"
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []  # no temporary left
 

@@ -212,6 +212,12 @@ def test_unit_near_a_limit_that_no_action_improves_gets_no_change():
     assert adv.plan.p_pass == pytest.approx(0.952, abs=0.035)
     assert any("no action found raises that" in w for w in adv.warnings)
     assert any("no timer parts were given" in w for w in adv.warnings)
+    # the library names the parameter (timer=TimerParts(…)); the command line says its options
+    # (project convention, no outside source)
+    from benchfit.cli.common import cli_words
+
+    timer = [w for w in adv.warnings if "no timer parts were given" in w]
+    assert "(timer=TimerParts(ra=…, rb=…, c1=…))" in timer[0] and "(--ra, --rb, --c1)" in cli_words(timer[0])
 
 
 def test_a_given_duty_says_which_phase_is_high():

@@ -78,6 +78,11 @@ def test_only_lc_known_uses_the_bank_and_its_tolerance():
     # without the bank the advice says that the C error is left out
     adv2 = suggest_trim(fit, 50.0)
     assert any("NOT in the prediction" in n for n in adv2.notes)
+    # the note names the parameter (bank=), the command line its option (project convention, no source)
+    from benchfit.cli.common import cli_words
+
+    note = next(n for n in adv2.notes if "NOT in the prediction" in n)
+    assert "(bank=)" in note and "(--bank)" in cli_words(note)
 
 
 def test_decrease_removes_or_swaps_a_bank_part():

@@ -46,7 +46,7 @@ def test_nothing_fixed_high_impedance_leaves_L_and_C_open():
     # with R_L → ∞): C (and L) must not get a finite stderr, and the warning says what to fix
     assert d["parameters"]["C"]["stderr"] is None
     assert d["parameters"]["L"]["stderr"] is None
-    assert any("--fix L=" in w and "L·C" in w for w in d["warnings"])
+    assert any("fix={'L': …}" in w and "L·C" in w for w in d["warnings"])
     # the resonance figures are determined all the same
     truth = second_order(HIGH_Z)
     f0 = d["derived"]["resonant_frequency_hz"]
@@ -64,7 +64,7 @@ def test_L_fixed_high_impedance_determines_C_not_Rload():
     assert p["C"].value == pytest.approx(33e-6, rel=0.01)  # 2 mV noise, stderr ≈ 0.01 %
     assert p["Rload"].stderr is None
     assert any(w.startswith("Rload:") or "Rload" in w.split(":")[0] for w in r.warnings)
-    assert all("--fix" in w for w in r.warnings if not w.startswith("channel gain ratio:"))
+    assert all("fix={'" in w for w in r.warnings if not w.startswith("channel gain ratio:"))
 
 
 def test_all_fixed_but_C_and_Rs_correlations_reported():
@@ -150,7 +150,7 @@ def test_second_equally_good_solution_is_reported():
     r = fit_lowpass(_two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=7), fix={"L": 0.3})
     # reported as two solutions, or (issue 11) as a load integrated out over its stated range; either way
     # a warning names the load and the measurement that settles it
-    amb = [w for w in r.warnings if "Rload" in w.split(":")[0] and "--fix Rload=" in w]
+    amb = [w for w in r.warnings if "Rload" in w.split(":")[0] and "fix={'Rload': …}" in w]
     assert amb
     assert r.parameters["Rs"].stderr is None and r.parameters["Rload"].stderr is None
     # the load is integrated out over its stated range (issue 11): C, and with it 1/(2π√(LC)), shifts a
@@ -225,7 +225,7 @@ def test_uncalibrated_two_channel_capture_is_flagged():
     cap = _two_channel(LowpassParts(0.3, 33e-6, 20.0, 1.5, 10e3), seed=11, seconds=0.5)
     fs_units = Capture(cap.samples, FS, cap.channel_names, ("FS", "FS"), source="card.wav")
     r = fit_lowpass(fs_units, fix={"L": 0.3, "Rload": 10e3})
-    assert any("not both calibrated" in w and "--fix Rload" in w for w in r.warnings)
+    assert any("not both calibrated" in w and "fix={'Rload': …}" in w for w in r.warnings)
 
 
 def test_scale_from_known_resistances():

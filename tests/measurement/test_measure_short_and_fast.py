@@ -114,7 +114,7 @@ def test_pulse_analysis_can_be_forced_on_slow_edges():
     square = np.where((t * 50) % 1 < 0.5, 0.8, -0.8)
     slow = np.convolve(square, np.ones(400) / 400, mode="same")
     plain = measure_channel(slow, FS)
-    assert plain.duty_cycle_pct is None and "--pulse gives them anyway" in plain.extra["pulse_not_given"]
+    assert plain.duty_cycle_pct is None and "force_pulse=True gives them anyway" in plain.extra["pulse_not_given"]
     forced = measure_channel(slow, FS, force_pulse=True)
     assert forced.rise_time_s == pytest.approx(0.8 * 400 / FS, rel=0.01)
     assert forced.duty_cycle_pct == pytest.approx(50.0, abs=0.1)

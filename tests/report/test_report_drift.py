@@ -116,7 +116,7 @@ def test_without_a_drift_run_the_limit_is_not_measured(tmp_path, capsys):
     assert e.value.code == 1
     rep = json.loads(next(out.glob("*.json")).read_text())
     row = {r["quantity"]: r for r in rep["results"]}["warmup_s"]
-    assert row["decision"] == "not measured" and "--drift" in row["as_left"]["note"]
+    assert row["decision"] == "not measured" and "drift='RUN.json'" in row["as_left"]["note"]
     capsys.readouterr()
 
 
