@@ -56,10 +56,13 @@ CAPTURE_SUFFIXES: tuple[str, ...] = (".wav", ".flac", ".csv", ".tsv", ".txt", ".
 
 StartMethod = Literal["auto", "forkserver", "spawn"]
 
-#: modules a measure job needs (its first file imports the last four), imported once before
-#: the workers are forked (:func:`worker_pool`) or by the forkserver, so no worker imports them
+#: modules a measure job needs (its first file imports all but the first three; ``numpy.ma`` is
+#: numpy 2's lazy import inside ``np.unique``), imported once before the workers are forked
+#: (:func:`worker_pool`) or by the forkserver, so no worker imports them
+#: (tests/cli/test_batch_start.py checks that a job imports nothing more)
 MEASURE_PRELOAD: tuple[str, ...] = ("benchfit.capture.load", "benchfit.measurement.summary",
-                                    "benchfit.measurement.long_record", "soundfile", "threadpoolctl", "numpy.fft")
+                                    "benchfit.measurement.long_record", "benchfit.capture.blocks", "soundfile",
+                                    "threadpoolctl", "numpy.fft", "numpy.ma")
 #: the same for report jobs
 REPORT_PRELOAD: tuple[str, ...] = MEASURE_PRELOAD + ("benchfit.report.assemble",)
 

@@ -151,3 +151,26 @@ def test_single_threaded_sees_a_python_thread():
     finally:
         stop.set()
         helper.join()
+
+
+def test_a_measure_job_imports_nothing_beyond_the_preload(tmp_path):
+    """Every module a measure job of a WAV needs is in MEASURE_PRELOAD, so a forked worker imports
+    none itself (each worker importing them again is CPU time a loaded machine does not have)."""
+    code = textwrap.dedent('''
+        import importlib, json, sys
+        import numpy as np, soundfile as sf
+        from benchfit.cli.batch import MEASURE_PRELOAD, measure_job, prefer_one_blas_thread
+        prefer_one_blas_thread()
+        t = np.arange(48000) / 48000
+        sf.write(sys.argv[1], (0.3 * np.sin(2 * np.pi * 50 * t)).astype(np.float32), 48000, subtype="FLOAT")
+        for name in MEASURE_PRELOAD:
+            importlib.import_module(name)
+        before = set(sys.modules)
+        result = measure_job(sys.argv[1])
+        print(json.dumps({"measured": bool(result["measurement"]), "new": sorted(set(sys.modules) - before)}))
+    ''')
+    res = subprocess.run([sys.executable, "-c", code, str(tmp_path / "tone.wav")], capture_output=True, text=True,
+                         timeout=120, check=False, cwd=ROOT)
+    assert res.returncode == 0, res.stderr
+    row = json.loads(res.stdout)
+    assert row["measured"] and row["new"] == [], row
