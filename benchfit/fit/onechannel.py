@@ -134,6 +134,8 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
             for i in minima[:max(basins, 1)]]
 
 
+#: the relative step of a forward difference, √(double-precision ε), as scipy.optimize uses for "2-point"
+_FORWARD_STEP = math.sqrt(np.finfo(float).eps)
 #: valleys of the shape grid tried when the ideal-drive model does not fit its deepest one
 _BASINS = 3
 #: the ideal-drive fit is taken as adequate unless its χ² exceeds its degrees of freedom at this level
@@ -250,8 +252,18 @@ class OutputResidual:
     def log_jacobian(self, v: Mapping[str, float], names: tuple[str, ...]) -> np.ndarray | None:
         """∂r/∂ln x for the parts and ∂r/∂x for phase and duty among ``names``, columns in that order;
         None where no closed form is coded (the switched source, or another parameter)."""
-        if ASYMMETRY in v or not set(names) <= set(PART_NAMES) | {"phase", "duty"}:
+        if not set(names) <= set(PART_NAMES) | {"phase", "duty", ASYMMETRY}:
             return None
+        m, dm = self._switched_derivatives(v, names) if ASYMMETRY in v else self._ideal_derivatives(v, names)
+        wm = whiten(self.w, m)
+        wdm = np.einsum("kij,kjn->kin", self.w, np.stack([dm.real, dm.imag], axis=1)).reshape(wm.size, len(names))
+        mm = max(float(wm @ wm), 1e-300)
+        g = float(wm @ self.wy) / mm
+        dg = (self.wy @ wdm - 2.0 * g * (wm @ wdm)) / mm
+        return -np.outer(wm, dg) - g * wdm
+
+    def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
+        """The ideal drive's model phasors and their derivatives (columns over ``names``), in closed form."""
         k, duty = self.k, self._duty(v)
         rot = np.exp(-1j * k * v["phase"])
         pk = rectangular_phasors(k, duty)
@@ -262,13 +274,24 @@ class OutputResidual:
         cols["phase"] = -1j * k * m
         if "duty" in names:
             cols["duty"] = rectangular_phasors_duty_derivative(k, duty) * rot * h
-        dm = np.stack([cols[n] for n in names], axis=1) if names else np.zeros((k.size, 0), dtype=complex)
-        wm = whiten(self.w, m)
-        wdm = np.einsum("kij,kjn->kin", self.w, np.stack([dm.real, dm.imag], axis=1)).reshape(wm.size, len(names))
-        mm = max(float(wm @ wm), 1e-300)
-        g = float(wm @ self.wy) / mm
-        dg = (self.wy @ wdm - 2.0 * g * (wm @ wdm)) / mm
-        return -np.outer(wm, dg) - g * wdm
+        return m, np.stack([cols[n] for n in names], axis=1) if names else np.zeros((k.size, 0), dtype=complex)
+
+    def _switched_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
+        """The switched source's model phasors and their derivatives, the latter by forward differences.
+
+        Its periodic steady state has no closed-form derivative here; the step is scipy's own for a 2-point
+        difference, √ε·max(1, |x|) in the fit's variable (ln part, or the extra itself), so the refit sees
+        the derivatives scipy's solver estimated, from one model call per column instead of a residual call.
+        """
+        m = self.model(v)
+        cols = []
+        for n in names:
+            x = math.log(v[n]) if n in PART_NAMES else float(v[n])
+            step = _FORWARD_STEP * max(1.0, abs(x))
+            moved = dict(v)
+            moved[n] = math.exp(x + step) if n in PART_NAMES else x + step
+            cols.append((self.model(moved) - m) / step)
+        return m, np.stack(cols, axis=1) if cols else np.zeros((m.size, 0), dtype=complex)
 
 
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],

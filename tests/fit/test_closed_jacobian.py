@@ -72,9 +72,20 @@ def test_output_residual_jacobian_matches_scipy_finite_differences(duty):
     _close(res.log_jacobian(v, names), approx_fprime(z0, at, EPS))
 
 
-def test_no_closed_form_for_the_switched_source():
-    """The switched source (r_high ≠ r_low) has no closed form here: the fit keeps finite differences."""
-    assert _residual(0.5).log_jacobian({**PARTS, "phase": 0.1, "asymmetry": 0.1}, ("C",)) is None
+def test_switched_source_jacobian_matches_scipy_finite_differences():
+    """The switched source (r_high ≠ r_low): the model's forward differences through the closed-form chain rule
+    of the variable projection agree with scipy's differences of the whole residual (source: scipy, finite
+    differences; both steps' truncation ε·|f''|/2 is within the docstring's bound)."""
+    res = _residual(None)
+    v = {**PARTS, "phase": 0.4, "duty": 0.42, "asymmetry": 0.05}
+    names = ("C", "Rs", "Resr", "Rload", "Rp", "phase", "duty", "asymmetry")
+    raw = ("phase", "duty", "asymmetry")
+
+    def at(z: np.ndarray) -> np.ndarray:
+        return res({**v, **{n: (x if n in raw else math.exp(x)) for n, x in zip(names, z)}})
+
+    z0 = np.array([v[n] if n in raw else math.log(v[n]) for n in names])
+    _close(res.log_jacobian(v, names), approx_fprime(z0, at, EPS))
 
 
 def test_levenberg_marquardt_reaches_scipy_least_squares_minimum():
@@ -111,3 +122,18 @@ def test_levenberg_marquardt_hands_over_at_the_box():
     assert out.x[0] == pytest.approx(1.0)
     x, ok = levenberg_marquardt(fcn, jac, np.array([0.0]), np.array([-10.0]), np.array([10.0]), 1e-10, 100)
     assert ok and x[0] == pytest.approx(3.0 / 1.01, rel=1e-9)  # the linear least-squares minimum
+
+
+@pytest.mark.parametrize("parts", [LowpassParts(**PARTS), LowpassParts(0.3, 33e-6, 20.0, 0.0, math.inf, math.inf),
+                                   LowpassParts(0.3, 33e-6, 20.0, 1.5, 1e4)])
+def test_switched_source_scalar_rows_equal_the_state_space(parts):
+    """The switched source's written-out state-space rows are the model's own (benchfit.model.filter)."""
+    from benchfit.model.filter import _state_space_d
+    from benchfit.model.switched import _state_space_scalars
+
+    a, b, c, d = _state_space_d(parts)
+    sa, sb, sc, sd = _state_space_scalars(parts)
+    assert np.allclose(sa, a.ravel(), rtol=1e-15, atol=0)
+    assert np.allclose(sb, b, rtol=1e-15, atol=0)
+    assert np.allclose(sc, c, rtol=1e-15, atol=0)
+    assert sd == pytest.approx(d, rel=1e-15, abs=0)
