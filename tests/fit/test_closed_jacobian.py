@@ -137,3 +137,19 @@ def test_switched_source_scalar_rows_equal_the_state_space(parts):
     assert np.allclose(sb, b, rtol=1e-15, atol=0)
     assert np.allclose(sc, c, rtol=1e-15, atol=0)
     assert sd == pytest.approx(d, rel=1e-15, abs=0)
+
+
+def test_levenberg_marquardt_rests_a_part_on_its_lower_bound():
+    """A log-part the data drive towards 0 (χ² falling all the way to its guard bound) is held there, converged,
+    while the other variable still reaches its own minimum; without ``floor`` it hands over instead."""
+    def fcn(x):
+        return np.array([math.exp(x[0]), x[1] - 2.0, 0.5 * (x[1] - 2.0)])
+
+    def jac(x):
+        return np.array([[math.exp(x[0]), 0.0], [0.0, 1.0], [0.0, 0.5]])
+
+    lo, hi = np.array([-25.0, -10.0]), np.array([25.0, 10.0])
+    x, ok = levenberg_marquardt(fcn, jac, np.array([0.0, 0.0]), lo, hi, 1e-10, 200, floor=np.array([True, False]))
+    assert ok and x[0] == -25.0 and x[1] == pytest.approx(2.0, rel=1e-9)
+    x, ok = levenberg_marquardt(fcn, jac, np.array([0.0, 0.0]), lo, hi, 1e-10, 200)
+    assert not ok
