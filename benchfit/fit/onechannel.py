@@ -222,10 +222,11 @@ class OutputResidual:
     """Whitened residuals of the output phasors against Y_k = G·P_k(D)·e^{−jkφ}·H(jkω) (module docstring).
 
     G is solved linearly at every call (variable projection): with m the whitened model and y the whitened
-    data, G = m·y/(m·m) and r = y − G·m. :meth:`log_jacobian` gives ∂r/∂ln(part) and ∂r/∂(phase, duty)
-    in closed form for the ideal drive, so a refit needs no finite differences: by the chain rule
-    ∂r = −∂G·m − G·∂m with ∂G = (∂m·y − 2G·m·∂m)/(m·m), ∂m the whitened ∂Y_k of
-    :func:`benchfit.model.filter.transfer_log_gradient` and :func:`rectangular_phasors_duty_derivative`.
+    data, G = m·y/(m·m) and r = y − G·m. :meth:`log_jacobian` gives ∂r/∂ln(part) and ∂r/∂(phase, duty,
+    asymmetry) by the chain rule ∂r = −∂G·m − G·∂m with ∂G = (∂m·y − 2G·m·∂m)/(m·m), ∂m the whitened
+    ∂Y_k: in closed form for the ideal drive (:func:`benchfit.model.filter.transfer_log_gradient`,
+    :func:`rectangular_phasors_duty_derivative`), by forward differences of the model for the switched
+    source. So a refit needs no finite differences of the whole residual.
     """
 
     def __init__(self, w: np.ndarray, wy: np.ndarray, k: np.ndarray, f: float, drive_duty: float | None):
@@ -250,8 +251,8 @@ class OutputResidual:
         return self.wy - self.gain(wm) * wm
 
     def log_jacobian(self, v: Mapping[str, float], names: tuple[str, ...]) -> np.ndarray | None:
-        """∂r/∂ln x for the parts and ∂r/∂x for phase and duty among ``names``, columns in that order;
-        None where no closed form is coded (the switched source, or another parameter)."""
+        """∂r/∂ln x for the parts and ∂r/∂x for phase, duty and asymmetry among ``names``, columns in that
+        order; None for any other parameter."""
         if not set(names) <= set(PART_NAMES) | {"phase", "duty", ASYMMETRY}:
             return None
         m, dm = self._switched_derivatives(v, names) if ASYMMETRY in v else self._ideal_derivatives(v, names)
