@@ -140,10 +140,10 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
         gtol); a grid of refits that only needs each point's χ² to a small fraction of 1 may
         loosen it.
     quick : bool
-        Try :func:`levenberg_marquardt` first when the residual offers a closed-form Jacobian (scipy's
-        bounded solver otherwise, or when it gives up): for refits whose parameters the data determine,
-        such as a marginal grid's points with the nuisances held. Left off for a fit that may have a
-        direction the data do not see, where the two solvers stop at different places along it.
+        Try :func:`levenberg_marquardt` first when the residual offers its own Jacobian (scipy's bounded
+        solver otherwise, or when it gives up): for refits whose parameters the data determine or drive
+        to 0, such as a marginal grid's points with the nuisances held. Left off for a fit that may have
+        a direction the data do not see, where the two solvers stop at different places along it.
 
     Returns
     -------
@@ -187,7 +187,7 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
             x_start, done = levenberg_marquardt(fcn, closed, x_start, lo, hi, tol, max_nfev,
                                                 floor=np.arange(len(names)) < len(free))
         if done:
-            xs, success, message = x_start, True, "converged (Levenberg–Marquardt, closed-form Jacobian)"
+            xs, success, message = x_start, True, "converged (Levenberg–Marquardt)"
         else:
             out = least_squares(fcn, x_start, jac=closed or "2-point", bounds=(lo, hi), method="trf",
                                 x_scale="jac", max_nfev=max_nfev, xtol=tol, ftol=tol, gtol=tol)
@@ -223,9 +223,9 @@ def levenberg_marquardt(fcn: Callable[[np.ndarray], np.ndarray], jac: Callable[[
 
     The variables marked in ``floor`` (the fit's log-parts) may come to rest on their lower bound: a part the
     data drive towards 0 (an Rs whose loss the load takes over) is held there, e^−25 of its start, which is
-    0 for every figure, while the others converge; its derivative vanishes as it shrinks, so an unbounded
-    solver would crawl towards the same limit for dozens of steps (scipy's, from the same start, stopped
-    anywhere from e^−14 to e^−25 on the sample capture hc02).
+    0 for every figure, while the others converge; its derivative vanishes as it shrinks, so a solver that
+    does not rest on the bound crawls towards the same limit for dozens of steps (scipy's, from the same
+    start, stopped anywhere from e^−14 to e^−25 on the sample capture hc02).
 
     Returns (x, converged). Not converged, the caller goes on with scipy's bounded trust-region solver from
     x, the last point reached: when a step would leave the box elsewhere (a part running off to infinity,
@@ -278,11 +278,11 @@ def levenberg_marquardt(fcn: Callable[[np.ndarray], np.ndarray], jac: Callable[[
 
 def _closed_jacobian(residual, names: tuple[str, ...], values_from,
                      x: np.ndarray) -> Callable[[np.ndarray], np.ndarray] | None:
-    """The Jacobian over the fit's variables in closed form, when ``residual`` offers one for them.
+    """The Jacobian over the fit's variables from ``residual`` itself, when it offers one for them.
 
-    A residual with a ``log_jacobian(values, names)`` method (∂r/∂ln part, ∂r/∂extra; None where it has no
-    closed form, judged at ``x``) spares the optimiser its finite differences, several residual calls per
-    step. Entries that come out non-finite (a residual the fit replaces by a large constant there) are 0.
+    A residual with a ``log_jacobian(values, names)`` method (∂r/∂ln part, ∂r/∂extra; None for names it does
+    not cover, judged at ``x``) spares the optimiser its finite differences of the whole residual, several
+    residual calls per step. Entries that come out non-finite (a residual the fit replaces by a large constant there) are 0.
     """
     of = getattr(residual, "log_jacobian", None)
     if of is None or not names:
