@@ -23,6 +23,23 @@ per CPU and 1.75–2.8 s with the one thread it now asks for. The CPU time is wh
 wall time approaches: about 0.7–0.8 s, under the 1.0 s goal; the rest is scipy.optimize's import
 (~0.36 s CPU beyond numpy: its own linalg/special/fft/sparse/spatial and numpy's lazy submodules),
 typer 0.29's pydantic coercion (~0.07 s) and numpy (~0.07 s), none of which this package controls.
+
+One-channel fit, measured 2026-12-03 12:13–12:25 UTC at a 1-minute load of 1.0–1.95 (other sessions'
+runs), six rounds interleaved with the tree before this stop's changes (b68fa45), each the median of five
+in-process fits: 3.7–4.8 s before, 2.2–2.8 s after (1.3–1.7× a round); the ≤ 0.5 s goal is still missed.
+Where the time went (cProfile): about 740 least-squares refits of the marginal grid (fit.marginal), each
+some 5 ms in scipy's trust-region solver, 80 % of whose residual calls were for its finite-difference
+Jacobian, the rest of its cost the trust-region machinery of each step. Now the ideal-drive residual has
+a closed-form Jacobian (fit.onechannel.OutputResidual) and the refits take plain Levenberg–Marquardt steps
+at the same tolerance (fit.identify.levenberg_marquardt). What is left is mostly their ~11 steps a refit
+(each grid point starts from its neighbour's solution, some 1e9 away in χ²: the data pin C to ppm) and
+numpy's per-call cost on arrays of a few dozen harmonics. The sample fits (``benchfit fit
+hc01_output.flac --fix L=300m``, hc02 likewise; a fresh process, wall, the same rounds): hc01 6.5–8.2 s →
+4.1–5.7 s; hc02 12.9–17.3 s → 11.3–13.9 s. hc02 drives through a switched source (r_high ≠ r_low), whose
+base fits along the Rs–load valley are now half its time and stay on scipy's solver: two solvers stop at
+different places along a direction the data do not see, and the grid's ranges follow from that stop.
+Every value and u of the bench capture, hc01 and hc02 agree before and after to 0.001 % of u
+(``scripts/compare_fits.py`` on the ``--json`` outputs).
 """
 
 from __future__ import annotations

@@ -161,7 +161,7 @@ class Marginal:
 
 def _fit_point(residual, start, free, fixed, extra):
     values, names, jac, chi2_red, ok, _ = fit_log_parameters(residual, start, free, fixed, extra, max_nfev=600,
-                                                                 tol=_POINT_TOL)
+                                                                 tol=_POINT_TOL, quick=True)
     r = residual(values)
     return values, names, jac, float(r @ r), r.size
 

@@ -47,7 +47,8 @@ from typing import Mapping
 import numpy as np
 
 from benchfit.errors import FitError
-from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, rectangular_phasors, transfer
+from benchfit.model.filter import (PARAMETER_NAMES, PART_NAMES, rectangular_phasors,
+                                   rectangular_phasors_duty_derivative, transfer, transfer_log_gradient)
 from benchfit.fit.asymmetry import NAME as ASYMMETRY
 from benchfit.fit.budgets import (assemble, compare_core_loss, core_loss_not_separated, input_specs, propagate,
                                   source_name)
@@ -62,7 +63,7 @@ from benchfit.fit.marginal import Nuisance, figures_of, load_nuisance, marginali
 from benchfit.fit.marginal import apply as apply_marginal
 from benchfit.fit.result import FitCurves
 
-__all__ = ["fit_one_channel"]
+__all__ = ["fit_one_channel", "OutputResidual"]
 
 _DUTY_MIN = 0.02
 #: a subharmonic candidate needs this many periods in the record ...
@@ -133,6 +134,8 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
             for i in minima[:max(basins, 1)]]
 
 
+#: the relative step of a forward difference, √(double-precision ε), as scipy.optimize uses for "2-point"
+_FORWARD_STEP = math.sqrt(np.finfo(float).eps)
 #: valleys of the shape grid tried when the ideal-drive model does not fit its deepest one
 _BASINS = 3
 #: the ideal-drive fit is taken as adequate unless its χ² exceeds its degrees of freedom at this level
@@ -215,6 +218,83 @@ def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
     return best
 
 
+class OutputResidual:
+    """Whitened residuals of the output phasors against Y_k = G·P_k(D)·e^{−jkφ}·H(jkω) (module docstring).
+
+    G is solved linearly at every call (variable projection): with m the whitened model and y the whitened
+    data, G = m·y/(m·m) and r = y − G·m. :meth:`log_jacobian` gives ∂r/∂ln(part) and ∂r/∂(phase, duty,
+    asymmetry) by the chain rule ∂r = −∂G·m − G·∂m with ∂G = (∂m·y − 2G·m·∂m)/(m·m), ∂m the whitened
+    ∂Y_k: in closed form for the ideal drive (:func:`benchfit.model.filter.transfer_log_gradient`,
+    :func:`rectangular_phasors_duty_derivative`), by forward differences of the model for the switched
+    source. So a refit needs no finite differences of the whole residual.
+    """
+
+    def __init__(self, w: np.ndarray, wy: np.ndarray, k: np.ndarray, f: float, drive_duty: float | None):
+        self.w, self.wy, self.k, self.f, self.drive_duty = w, wy, k, f, drive_duty
+        self.fk = k * f
+
+    def _duty(self, v: Mapping[str, float]) -> float:
+        return float(v["duty"] if "duty" in v else self.drive_duty)  # type: ignore[arg-type]  # given when not fitted
+
+    def model(self, v: Mapping[str, float]) -> np.ndarray:
+        """The drive-normalised output phasors P_k(D)·e^{−jkφ}·H(jkω), or the switched source's."""
+        k, duty = self.k, self._duty(v)
+        if ASYMMETRY in v:  # a switched source, r_high ≠ r_low (benchfit.fit.asymmetry)
+            return asymmetric_phasors(k, self.f, duty, parts_of(v), v[ASYMMETRY]) * np.exp(-1j * k * v["phase"])
+        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(self.fk, parts_of(v))
+
+    def gain(self, wm: np.ndarray) -> float:
+        return float(wm @ self.wy) / max(float(wm @ wm), 1e-300)
+
+    def __call__(self, v: Mapping[str, float]) -> np.ndarray:
+        wm = whiten(self.w, self.model(v))
+        return self.wy - self.gain(wm) * wm
+
+    def log_jacobian(self, v: Mapping[str, float], names: tuple[str, ...]) -> np.ndarray | None:
+        """∂r/∂ln x for the parts and ∂r/∂x for phase, duty and asymmetry among ``names``, columns in that
+        order; None for any other parameter."""
+        if not set(names) <= set(PART_NAMES) | {"phase", "duty", ASYMMETRY}:
+            return None
+        m, dm = self._switched_derivatives(v, names) if ASYMMETRY in v else self._ideal_derivatives(v, names)
+        wm = whiten(self.w, m)
+        wdm = np.einsum("kij,kjn->kin", self.w, np.stack([dm.real, dm.imag], axis=1)).reshape(wm.size, len(names))
+        mm = max(float(wm @ wm), 1e-300)
+        g = float(wm @ self.wy) / mm
+        dg = (self.wy @ wdm - 2.0 * g * (wm @ wdm)) / mm
+        return -np.outer(wm, dg) - g * wdm
+
+    def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
+        """The ideal drive's model phasors and their derivatives (columns over ``names``), in closed form."""
+        k, duty = self.k, self._duty(v)
+        rot = np.exp(-1j * k * v["phase"])
+        pk = rectangular_phasors(k, duty)
+        parts = tuple(n for n in names if n in PART_NAMES)
+        h, dh = transfer_log_gradient(self.fk, parts_of(v), parts)
+        m = pk * rot * h
+        cols = dict(zip(parts, pk * rot * dh))
+        cols["phase"] = -1j * k * m
+        if "duty" in names:
+            cols["duty"] = rectangular_phasors_duty_derivative(k, duty) * rot * h
+        return m, np.stack([cols[n] for n in names], axis=1) if names else np.zeros((k.size, 0), dtype=complex)
+
+    def _switched_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
+        """The switched source's model phasors and their derivatives, the latter by forward differences.
+
+        Its periodic steady state has no closed-form derivative here; the step is scipy's own for a 2-point
+        difference, √ε·max(1, |x|) in the fit's variable (ln part, or the extra itself), so the refit sees
+        the derivatives scipy's solver estimated, from one model call per column instead of a residual call.
+        """
+        m = self.model(v)
+        cols = []
+        for n in names:
+            x = math.log(v[n]) if n in PART_NAMES else float(v[n])
+            step = _FORWARD_STEP * max(1.0, abs(x))
+            moved = dict(v)
+            moved[n] = math.exp(x + step) if n in PART_NAMES else x + step
+            cols.append((self.model(moved) - m) / step)
+        return m, np.stack(cols, axis=1) if cols else np.zeros((m.size, 0), dtype=complex)
+
+
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],
                     drive_duty: float | None, fix_specs=None):
     """Fit the lc-lowpass model to the output channel ``ri`` alone (see the module docstring)."""
@@ -263,18 +343,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
     wy = whiten(w, yk)
     k = orders.astype(float)
 
-    def model_phasors(v: Mapping[str, float]) -> np.ndarray:
-        duty = float(v["duty"] if "duty" in v else drive_duty)  # type: ignore[arg-type]  # given when not fitted
-        if ASYMMETRY in v:  # a switched source, r_high ≠ r_low (benchfit.fit.asymmetry)
-            return asymmetric_phasors(k, f, duty, parts_of(v), v[ASYMMETRY]) * np.exp(-1j * k * v["phase"])
-        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(fk, parts_of(v))
-
-    def gain(wm: np.ndarray) -> float:
-        return float(wm @ wy) / max(float(wm @ wm), 1e-300)
-
-    def residual(v: dict[str, float]) -> np.ndarray:
-        wm = whiten(w, model_phasors(v))
-        return wy - gain(wm) * wm
+    residual = OutputResidual(w, wy, k, f, drive_duty)
+    model_phasors, gain = residual.model, residual.gain
 
     # start: shape grid on magnitudes, then the timing phase by a scan
     amp_u = np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1]))
