@@ -11,7 +11,8 @@ discretisation) at 480 kHz, then "captured" the way the group does it:
 
 * a USB oscilloscope samples directly (no anti-alias filter) and exports CSV;
 * the sound card's line-in (through an attenuator) low-pass filters, decimates to 48 kHz,
-  AC-couples (first-order high-pass), adds noise and quantises to 16 bits; its crystal runs
+  AC-couples (first-order high-pass, connected a while before recording: in its steady state),
+  adds noise and quantises to 16 bits; its crystal runs
   a few tens of ppm off, and a calibration profile in the sidecar records gain (with its
   0.3 % relative standard uncertainty), timebase and input coupling.
 
@@ -110,25 +111,50 @@ def simulate(u: Unit, seconds: float, source: np.ndarray | None = None, r_source
     return t, y[:, 1], y[:, 0]
 
 
+#: how long the line-in has been connected before a recording starts: ten time constants of its
+#: AC coupling, so the high-pass is in its periodic steady state (its start transient is down by
+#: e⁻¹⁰ ≈ 4.5e-5, a few 1e-7 FS here, far below one 16-bit code)
+CARD_WARMUP_S = 10 * CARD_TAU_S
+
+
 def soundcard(x_sim: np.ndarray, seconds: float, gain_v_per_fs: float, rng, noise_fs: float = 2e-4):
     """Capture through the line-in: anti-alias + decimate to the card's true rate, AC-couple,
-    add noise, quantise to 16 bits. Returns FS samples (file rate nominally 48 kHz)."""
+    add noise, quantise to 16 bits. Returns FS samples (file rate nominally 48 kHz).
+
+    ``x_sim`` starts CARD_WARMUP_S before the recording (the circuit already settled): the card's
+    high-pass runs over that stretch first and it is dropped, as on a line-in connected a while
+    before recording. (Starting the high-pass from rest instead leaves a decaying start transient
+    in the record, 3.6e-3 FS here, that leaks into every harmonic as about 1/k: an output-only fit
+    read it as a drive whose source resistance differs high and low.)"""
     fs_true = 48_000.0 * (1 + CARD_PPM * 1e-6)
     # resample the simulated signal onto the card's sample instants (band-limited)
+    n_warm = int(round(CARD_WARMUP_S * 48_000))
     n_out = int(seconds * 48_000)
-    t_card = np.arange(n_out) / fs_true
+    t_card = np.arange(n_warm + n_out) / fs_true
     # anti-alias: low-pass at 20 kHz before interpolation
     sos = signal.butter(8, 20_000, fs=FS_SIM, output="sos")
     xf = signal.sosfiltfilt(sos, x_sim)
     t_sim = np.arange(x_sim.size) / FS_SIM
+    if t_card[-1] > t_sim[-1]:
+        raise ValueError(f"soundcard: {x_sim.size / FS_SIM:.3g} s simulated, {t_card[-1]:.3g} s needed "
+                         f"({CARD_WARMUP_S:g} s of warm-up before the {seconds:g} s record)")
     xc = np.interp(t_card, t_sim, xf)
-    # AC coupling: first-order high-pass with time constant CARD_TAU_S (bilinear)
+    # AC coupling: first-order high-pass with time constant CARD_TAU_S (bilinear), run over the
+    # warm-up and then the record; only the record is kept
     b, a = signal.bilinear([CARD_TAU_S, 0.0], [CARD_TAU_S, 1.0], fs=fs_true)
-    # (the line-in has been connected for a while: start the high-pass in its steady state)
-    zi = signal.lfilter_zi(b, a) * 0.0
-    xc = signal.lfilter(b, a, xc - xc.mean(), zi=zi)[0]
+    xc = signal.lfilter(b, a, xc - xc.mean())[n_warm:]
     fs_units = xc / gain_v_per_fs + rng.normal(0, noise_fs, xc.size)
     return np.clip(np.round(fs_units * 32767) / 32767, -1, 32767 / 32768)
+
+
+#: the simulated circuit has settled (its L-C transient died away) this long after switch-on
+SETTLE_S = 0.6
+
+
+def record_output(u: Unit, seconds: float, gain_v_per_fs: float, rng) -> np.ndarray:
+    """The unit's settled output recorded for ``seconds`` on the line-in (after its warm-up)."""
+    _, _, out = simulate(u, SETTLE_S + CARD_WARMUP_S + seconds)
+    return soundcard(out[int(SETTLE_S * FS_SIM):], seconds, gain_v_per_fs, rng)
 
 
 def write_wav(path: Path, data: np.ndarray, names: list[str], gains: list[float], device: str,
@@ -196,8 +222,7 @@ def main() -> None:
     ]
     info = {}
     for k, u in enumerate(batch):
-        _, _, out = simulate(u, 1.6)
-        x = soundcard(out[int(0.6 * FS_SIM):], 1.0, gain, rng)
+        x = record_output(u, 1.0, gain, rng)
         name = f"{u.serial.lower().replace('-', '')}_output.flac"
         write_wav(OUT / name, x, ["output"], [gain], "line-in (USB audio adapter)",
                   f"2026-11-2{k}T18:{10 + k:02d}:00Z", u.serial, subtype="PCM_16", fmt="FLAC")
@@ -207,8 +232,7 @@ def main() -> None:
     hc03 = Unit("HC-03", f_timer=50.40, duty=0.527, l_h=0.304, c_f=33.6e-6, r_wind=24.6)
     for tag, f in (("asfound", 50.40), ("asleft", 50.01)):
         u = replace(hc03, f_timer=f)
-        _, _, out = simulate(u, 2.6)
-        x = soundcard(out[int(0.6 * FS_SIM):], 2.0, gain, rng)
+        x = record_output(u, 2.0, gain, rng)
         write_wav(OUT / f"hc03_{tag}.wav", x, ["output"], [gain], "line-in (USB audio adapter)",
                   "2026-11-27T19:02:00Z" if tag == "asfound" else "2026-11-27T19:20:00Z", u.serial)
         info[f"hc03_{tag}.wav"] = u
@@ -239,8 +263,7 @@ def main() -> None:
 
     # --- HC-07: the failing unit: one choke is a wrong 47 mH part ----------------------------
     u = Unit("HC-07", f_timer=50.05, duty=0.523, l_h=0.150 + 0.047, c_f=33.2e-6, r_wind=17.0)
-    _, _, out = simulate(u, 1.6)
-    x = soundcard(out[int(0.6 * FS_SIM):], 1.0, gain, rng)
+    x = record_output(u, 1.0, gain, rng)
     write_wav(OUT / "hc07_output.wav", x, ["output"], [gain], "line-in (USB audio adapter)",
               "2026-11-28T17:45:00Z", u.serial)
     info["hc07_output.wav"] = u

@@ -14,7 +14,9 @@ the shape of H — resonant frequency, Q and the ESR zero — but not the impeda
 (one part must be fixed, usually L) and hardly the load. A rectangular wave of duty D and
 its inverse of duty 1 − D differ only in sign and timing, so D is reported as the smaller
 of the two. When the capture's input coupling time constant is known
-(``Capture.calibration.coupling_tau_s``) the phasors are corrected for that high-pass first.
+(``Capture.calibration.coupling_tau_s``) the phasors are corrected for that high-pass first, and its
+start transient (a coupling that starts from rest with the record) is fitted with the harmonics
+(:func:`benchfit.fit.common.harmonics_after_start_transient`).
 
 A timer whose output resistance differs high and low (r_high ≠ r_low) is a switched, time-varying
 source, whose output is not G·P_k(D)·H(jkω): the fit compares the model above with the exact
@@ -52,8 +54,9 @@ from benchfit.model.filter import (PARAMETER_NAMES, PART_NAMES, rectangular_phas
 from benchfit.fit.asymmetry import NAME as ASYMMETRY
 from benchfit.fit.budgets import (assemble, compare_core_loss, core_loss_not_separated, input_specs, propagate,
                                   source_name)
-from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov, noise_rescaled,
-                                 parts_of, quality_complex, start_parts, subset, whiten, whitening)
+from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov,
+                                 harmonics_after_start_transient, parts_of, quality_complex, start_parts, subset,
+                                 whiten, whitening)
 from benchfit.fit.asymmetry import BOUND as ASYMMETRY_BOUND
 from benchfit.fit.asymmetry import FIGURE as ASYMMETRY_FIGURE
 from benchfit.fit.asymmetry import asymmetric_phasors, asymmetry_ohm, compare_drive_asymmetry, marginal_asymmetry, \
@@ -298,7 +301,7 @@ class OutputResidual:
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],
                     drive_duty: float | None, fix_specs=None):
     """Fit the lc-lowpass model to the output channel ``ri`` alone (see the module docstring)."""
-    from benchfit.measurement.tone import fit_harmonics, fit_tone
+    from benchfit.measurement.tone import fit_tone
 
     where = source_name(cap)
     fs = cap.sample_rate
@@ -315,7 +318,8 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
         refit = fit_tone(y, fs, n_harmonics=max(9, int(round(f / f_low)) + 3), frequency_hz=f_low)
         f = refit.frequency_hz if refit is not None else f_low
     kmax = max(1, min(MAX_ORDER, int(math.floor((0.5 * fs - 1e-9) / f))))
-    hy_all = noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs)
+    f, hy_all, start_note = harmonics_after_start_transient(y, fs, f, kmax, cap.calibration.coupling_tau_s,
+                                                            cap.units[ri])
     a1 = float(hy_all.amplitudes[0])
     u_floor = _U_FLOOR_REL * a1
     above_noise = hy_all.amplitudes > SIGNIFICANCE * np.maximum(hy_all.amplitudes_u, u_floor)
@@ -440,6 +444,7 @@ def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float]
                        residual=np.concatenate([(yk - y_model_k).real, (yk - y_model_k).imag]))
     msg = (f"{msg}; one-channel: the drive level is unknown, so the data fix the shape of H "
            "(resonant frequency, Q, ESR zero) and the parts only once one of them is known")
+    warnings = list(warnings) + ([start_note] if start_note else [])
     specs = input_specs(fix_specs or {}, fixed, folded)
     sens = propagate(residual, values, ident, specs)
     result = assemble(cap, "one-channel", values, ident, fix, folded, warnings, curves,
