@@ -1,9 +1,9 @@
 """No message of the computing packages quotes a command-line flag.
 
-fit/, design/, measurement/, log/, report/ and model/ are called from Python too: their errors,
-warnings and notes name the parameters (``fix: unknown part 'l'``, ``fix={'Rload': …}``,
-``overwrite=True``), and the command modules translate them to options
-(benchfit.cli.common.cli_words; project convention, no outside source). Every string literal
+capture/, fit/, design/, measurement/, log/, report/ and model/ are called from Python too: their
+errors, warnings and notes name the parameters (``fix: unknown part 'l'``, ``fix={'Rload': …}``,
+``overwrite=True``, ``device=3``, ``sample_rate=``), and the command modules translate them to
+options (benchfit.cli.common.cli_words; project convention, no outside source). Every string literal
 outside docstrings is checked, f-strings with their pieces joined; a flag inside a quoted
 command line (``'benchfit calibrate gain --rms-u …'``) names a command to run and is allowed.
 """
@@ -47,7 +47,7 @@ def flagged(source: str) -> list[tuple[int, str]]:
     return [(line, text) for line, text in _texts(ast.parse(source)) if FLAG.search(COMMAND.sub("", text))]
 
 
-@pytest.mark.parametrize("package", ["fit", "design", "measurement", "log", "report", "model"])
+@pytest.mark.parametrize("package", ["capture", "fit", "design", "measurement", "log", "report", "model"])
 def test_no_library_message_quotes_a_flag(package):
     bad = [f"{path.name}:{line}: {text!r}" for path in sorted((ROOT / package).glob("*.py"))
            for line, text in flagged(path.read_text(encoding="utf-8"))]

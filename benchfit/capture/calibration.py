@@ -439,7 +439,7 @@ def check_profile_name(name: str) -> str:
     """Return ``name`` if it is a valid profile name, else raise CaptureError (one line)."""
     if not isinstance(name, str) or not _NAME_RE.match(name):
         raise CaptureError(
-            f"--profile {name!r}: not a valid profile name — use letters, digits, '_', '.', '-' "
+            f"profile {name!r}: not a valid profile name — use letters, digits, '_', '.', '-' "
             "(up to 64, starting with a letter or digit)")
     return name
 
@@ -503,7 +503,7 @@ def load_profile(name: str, *, missing_ok: bool = False) -> CalibrationProfile |
             return None
         known = ", ".join(p.stem for p in sorted((config_dir() / "profiles").glob("*.toml"))) or "none yet"
         raise CaptureError(
-            f"--profile {name!r}: no such calibration profile (known: {known}) — "
+            f"profile {name!r}: no such calibration profile (known: {known}) — "
             "create it with 'benchfit calibrate gain|timebase|coupling --profile NAME'")
     try:
         with open(path, "rb") as fh:

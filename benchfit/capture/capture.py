@@ -243,12 +243,12 @@ class Capture:
             fs = math.nan
         if not math.isfinite(fs) or fs <= 0:
             raise CaptureError(f"{where}: sample rate must be a positive number of Hz, got {self.sample_rate!r} — "
-                               "check the file's sample rate, or give --sample-rate")
+                               "check the file's sample rate, or give sample_rate=")
         if not MIN_SAMPLE_RATE_HZ <= fs <= MAX_SAMPLE_RATE_HZ:
             raise CaptureError(
                 f"{where}: sample rate {fs:.3g} Hz is outside what any recorder uses "
                 f"({MIN_SAMPLE_RATE_HZ:g} Hz … {MAX_SAMPLE_RATE_HZ:.0e} Hz) — check the time column or "
-                "the file's sample rate, or give the right --sample-rate")
+                "the file's sample rate, or give the right sample_rate=")
         data.setflags(write=False)
         n_ch = data.shape[0]
         names = tuple(self.channel_names) or tuple(f"ch{i + 1}" for i in range(n_ch))

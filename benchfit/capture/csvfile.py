@@ -530,11 +530,11 @@ def _time_axis(values: np.ndarray, line_no: Sequence[int], time_col: int | None,
     elif sample_rate is not None:
         fs = float(sample_rate)
         if not (math.isfinite(fs) and fs > 0):
-            raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — pass e.g. 50000")
+            raise CaptureError(f"sample_rate: {sample_rate!r} must be a positive number of Hz — pass e.g. sample_rate=50000")
         t0, source, sample_rate = start, "sample rate given by the caller", None
     else:
         raise CaptureError(f"{where}: no time column and no sample interval in the file — pass the sample "
-                           "rate (--sample-rate, in Hz)")
+                           "rate in Hz (sample_rate=)")
     if sample_rate is not None and abs(float(sample_rate) / fs - 1) > JITTER_LIMIT:
         warnings.append(f"{where}: sample rate {float(sample_rate):g} Hz given, but the file's {source} says "
                         f"{fs:.6g} Hz — the file is used")

@@ -119,7 +119,7 @@ def resolve_input_device(device: str | int | None) -> InputDevice:
     """
     devices = list_input_devices()
     if not devices:
-        raise DeviceError("--device: no audio input devices found — connect a sound card "
+        raise DeviceError("device: no audio input devices found — connect a sound card "
                           "or start the sound server, then run 'benchfit devices'")
     names = "; ".join(f"{d.index}: {d.name}" for d in devices)
     if device is None or (isinstance(device, str) and not device.strip()):
@@ -132,7 +132,7 @@ def resolve_input_device(device: str | int | None) -> InputDevice:
         for d in devices:
             if d.index == idx:
                 return d
-        raise DeviceError(f"--device {device!r}: no input device with that index — choose one of {names}")
+        raise DeviceError(f"device={device!r}: no input device with that index — choose one of {names}")
     key = device.strip().lower()
     exact = [d for d in devices if d.name.lower() == key]
     if len(exact) == 1:
@@ -141,8 +141,8 @@ def resolve_input_device(device: str | int | None) -> InputDevice:
     if len(partial) == 1:
         return partial[0]
     if not partial:
-        raise DeviceError(f"--device {device!r}: no input device of that name — choose one of {names}")
-    raise DeviceError(f"--device {device!r}: matches several devices ({'; '.join(d.name for d in partial)}) "
+        raise DeviceError(f"device={device!r}: no input device of that name — choose one of {names}")
+    raise DeviceError(f"device={device!r}: matches several devices ({'; '.join(d.name for d in partial)}) "
                       "— give the index instead")
 
 
@@ -155,19 +155,19 @@ def check_input(device: str | int | None, rate: float, channels: int) -> InputDe
         The device is missing or refuses the settings (exit code 3).
     """
     if not (isinstance(channels, int) and channels >= 1):
-        raise CaptureError(f"--channels: must be a whole number ≥ 1, got {channels!r}")
+        raise CaptureError(f"channels: must be a whole number ≥ 1, got {channels!r}")
     if not (math.isfinite(rate) and rate > 0):
-        raise CaptureError(f"--rate: must be a positive number of Hz, got {rate!r}")
+        raise CaptureError(f"rate: must be a positive number of Hz, got {rate!r}")
     dev = resolve_input_device(device)
     if channels > dev.input_channels:
-        raise DeviceError(f"--channels {channels}: device {dev.name!r} has only {dev.input_channels} "
+        raise DeviceError(f"channels={channels}: device {dev.name!r} has only {dev.input_channels} "
                           "input channel(s) — ask for fewer")
     sd = sounddevice_module()
     try:
         with quiet_native_stderr():
             sd.check_input_settings(device=dev.index, channels=channels, samplerate=rate, dtype="float32")
     except sd.PortAudioError as e:
-        raise DeviceError(f"--device {dev.name!r}: refuses {channels} channel(s) at {rate:g} Hz ({e}) — "
+        raise DeviceError(f"device={dev.name!r}: refuses {channels} channel(s) at {rate:g} Hz ({e}) — "
                           f"try its default rate {dev.default_rate_hz:g} Hz or fewer channels") from e
     return dev
 

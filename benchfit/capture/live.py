@@ -188,10 +188,10 @@ def _channel_names(names: list[str] | tuple[str, ...] | str | None, channels: in
         names = [n.strip() for n in names.split(",")]
     names = tuple(str(n).strip() for n in names)
     if len(names) != channels or any(not n for n in names):
-        raise CaptureError(f"--names {','.join(names)!r}: give {channels} non-empty name(s), comma-separated, "
+        raise CaptureError(f"names={','.join(names)!r}: give {channels} non-empty name(s), comma-separated, "
                            f"one per channel")
     if len({n.lower() for n in names}) != len(names):
-        raise CaptureError(f"--names {','.join(names)!r}: channel names must be different")
+        raise CaptureError(f"names={','.join(names)!r}: channel names must be different")
     return names
 
 
@@ -367,10 +367,10 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     from benchfit.capture.sidecar import sidecar_path
 
     if sample_format not in get_args(SampleFormat):
-        raise CaptureError(f"--sample-format {sample_format!r}: unknown sample format — choose one of "
+        raise CaptureError(f"sample_format={sample_format!r}: unknown sample format — choose one of "
                            f"{', '.join(get_args(SampleFormat))}")
     if not (isinstance(seconds, (int, float)) and math.isfinite(seconds) and seconds > 0):
-        raise CaptureError(f"--seconds: must be a positive number of seconds, got {seconds!r} — e.g. --seconds 10")
+        raise CaptureError(f"seconds: must be a positive number of seconds, got {seconds!r} — e.g. seconds=10")
     out = Path(path)
     if out.is_dir():
         raise CaptureError(f"{out}: is a folder — give a WAV file name, e.g. {out / 'take1.wav'}")
@@ -380,7 +380,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     if not overwrite:
         for p in (out, side):
             if p.exists():
-                raise CaptureError(f"{p}: already exists — choose another name or pass --overwrite")
+                raise CaptureError(f"{p}: already exists — choose another name or pass overwrite=True")
     if not out.parent.is_dir():
         raise CaptureError(f"{out.parent}: no such folder — create it first")
     chan_names = _channel_names(names, channels)
@@ -393,11 +393,11 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
     missing = prof.missing_gains(channels) if prof is not None and prof.gains else []
     if missing and prof is not None:
         shown = ", ".join(str(c) for c in missing)
-        warnings.append(f"profile {prof.name!r} has no gain for channel(s) {shown} — those stay in FS (the "
+        warnings.append(f"profile={prof.name!r}: no gain for channel(s) {shown} — those stay in FS (the "
                         "others are in V); calibrate them with 'benchfit calibrate gain' to read volts")
     if prof is not None and calibration.gain_v_per_fs is not None and calibration.gain_u_rel is None:
         # a profile from before the gain uncertainty was stored: the sidecar leaves gain_u_rel out
-        warnings.append(f"profile {prof.name!r}: gain uncertainty not known — levels in V will carry only their "
+        warnings.append(f"profile={prof.name!r}: gain uncertainty not known — levels in V will carry only their "
                         "noise uncertainty; run 'benchfit calibrate gain --rms-u …' again")
 
     total = int(round(seconds * rate))
@@ -424,7 +424,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
         try:
             create_new(out)
         except FileExistsError as e:
-            raise CaptureError(f"{out}: already exists — choose another name or pass --overwrite") from e
+            raise CaptureError(f"{out}: already exists — choose another name or pass overwrite=True") from e
         except OSError as e:
             raise CaptureError(f"{out}: cannot be created ({e.strerror or e}) — check the folder is writable") from e
     try:
@@ -451,7 +451,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
         sf_file.close()
         with contextlib.suppress(OSError):
             out.unlink()  # nothing was recorded: leave no empty file behind
-        raise DeviceError(f"--device {dev.name!r}: cannot open the input stream ({e}) — "
+        raise DeviceError(f"device={dev.name!r}: cannot open the input stream ({e}) — "
                           "check the device is free and supports the settings") from e
     try:
         start_utc = _utc_now()
@@ -471,7 +471,7 @@ def record(path: str | os.PathLike[str], seconds: float, rate: int = 48000, chan
             if done >= total:
                 break
             if now - last > _STALL_S:
-                raise DeviceError(f"--device {dev.name!r}: no samples arrived for {_STALL_S:g} s — "
+                raise DeviceError(f"device={dev.name!r}: no samples arrived for {_STALL_S:g} s — "
                                   "check the device is connected and not used by another program")
     except KeyboardInterrupt:
         interrupted = True
@@ -554,9 +554,9 @@ class LiveWindows:
     def __init__(self, rate: int = 48000, channels: int = 1, window_s: float = 1.0, hop_s: float = 0.25,
                  device: str | int | None = None) -> None:
         if not (math.isfinite(window_s) and window_s > 0):
-            raise CaptureError(f"--window: must be a positive number of seconds, got {window_s!r}")
+            raise CaptureError(f"window_s: must be a positive number of seconds, got {window_s!r}")
         if not (math.isfinite(hop_s) and 0 < hop_s):
-            raise CaptureError(f"hop: must be a positive number of seconds, got {hop_s!r}")
+            raise CaptureError(f"hop_s: must be a positive number of seconds, got {hop_s!r}")
         self.rate = rate
         self.channels = channels
         self.device_info = check_input(device, float(rate), channels)
@@ -581,7 +581,7 @@ class LiveWindows:
                                                        callback=callback)
                 stream.start()
         except sd.PortAudioError as e:
-            raise DeviceError(f"--device {self.device_info.name!r}: cannot open the input stream ({e}) — "
+            raise DeviceError(f"device={self.device_info.name!r}: cannot open the input stream ({e}) — "
                               "check the device is free and supports the settings") from e
         return self
 
@@ -599,7 +599,7 @@ class LiveWindows:
                 item = self._blocks.get(timeout=0.5)
             except queue.Empty:
                 if time.monotonic() - last_block > _STALL_S:
-                    raise DeviceError(f"--device {self.device_info.name!r}: no samples arrived for "
+                    raise DeviceError(f"device={self.device_info.name!r}: no samples arrived for "
                                       f"{_STALL_S:g} s — check the device is connected and not in use") from None
                 continue
             last_block = time.monotonic()

@@ -59,6 +59,13 @@ def _names(names: tuple[str, ...] | None, channels: int) -> tuple[str, ...]:
     return tuple(names)
 
 
+def _check_times(interval_s: float, seconds: float | None) -> None:
+    """Refuse an interval or run length that is not a positive number of seconds, naming the parameter."""
+    for name, value in (("interval_s", interval_s), ("seconds", seconds)):
+        if value is not None and not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
+            raise CaptureError(f"{name}: {value!r} must be a positive number of seconds")
+
+
 def stream_blocks(*, rate: int, channels: int, interval_s: float, device: str | int | None = None,
                   profile: str | None = None, names: tuple[str, ...] | None = None,
                   seconds: float | None = None, state: dict[str, Any] | None = None) -> Iterator[Capture]:
@@ -69,6 +76,7 @@ def stream_blocks(*, rate: int, channels: int, interval_s: float, device: str | 
     """
     from benchfit.capture.live import LiveWindows
 
+    _check_times(interval_s, seconds)
     cal = profile_calibration(profile, channels)
     chan = _names(names, channels)
     st = state if state is not None else {}
@@ -99,6 +107,7 @@ def record_blocks(consume: Callable[[Iterator[Capture]], T], *, path: str, rate:
     """
     from benchfit.capture.live import RecordingInterrupted, record
 
+    _check_times(interval_s, seconds)
     cal = profile_calibration(profile, channels)
     chan = _names(names, channels)
     frames = max(2, int(round(interval_s * rate)))
@@ -130,8 +139,6 @@ def record_blocks(consume: Callable[[Iterator[Capture]], T], *, path: str, rate:
     thread.start()
     # a run "until Ctrl-C" records for at most 30 days (the WAV header would overflow long before)
     length = seconds if seconds is not None else 30 * 86400.0
-    if not math.isfinite(length) or length <= 0:
-        raise CaptureError(f"--seconds: {seconds!r} must be a positive number of seconds")
     interrupted = False
     try:
         result = record(path, length, rate=rate, channels=channels, device=device, names=chan, profile=profile,

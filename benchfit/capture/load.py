@@ -128,9 +128,9 @@ def load(path: str | os.PathLike[str], *, sample_rate: float | str | None = None
                 rate = float(sample_rate)
         except (TypeError, ValueError) as e:
             raise CaptureError(
-                f"sample rate: {sample_rate!r} is not a number — give it in Hz, e.g. 48000 or 100k") from e
+                f"sample_rate: {sample_rate!r} is not a number — give it in Hz, e.g. 48000 or 100k") from e
         if not (rate > 0 and rate < float("inf")):
-            raise CaptureError(f"sample rate: {sample_rate!r} must be a positive number of Hz — e.g. 48000")
+            raise CaptureError(f"sample_rate: {sample_rate!r} must be a positive number of Hz — e.g. 48000")
         sample_rate = rate
     if data is None:
         data = file_bytes(p)

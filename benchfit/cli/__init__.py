@@ -274,9 +274,9 @@ def main(argv: list[str] | None = None) -> None:
     try:
         code = app(args=argv, prog_name="benchfit", standalone_mode=False)
     except BenchfitError as e:
-        from benchfit.cli.common import cli_words
+        from benchfit.cli.common import cli_words, command_flags
 
-        _error(cli_words(str(e)), getattr(e, "exit_code", 2))
+        _error(cli_words(str(e), command_flags(_command_path(app, argv))), getattr(e, "exit_code", 2))
     except typer.Abort:
         sys.stderr.write("aborted\n")
         raise SystemExit(1) from None

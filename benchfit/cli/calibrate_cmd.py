@@ -17,7 +17,7 @@ from typing import Any, NamedTuple, Optional
 import typer
 
 from benchfit.cli.app import calibrate_app
-from benchfit.cli.common import fail, flag_words, parse_value, print_json, stderr, stdout
+from benchfit.cli.common import cli_words, command_flags, fail, flag_words, parse_value, print_json, stderr, stdout
 from benchfit.cli.soundcard import (CAUTION, device_arg, freq_text, positive_seconds, ppm_text, progress_recorder,
                                     whole_rate)
 from benchfit.errors import MeasureError
@@ -345,7 +345,8 @@ def calibrate_show(
     profiles, problems = ([load_profile(name)], []) if name else scan_profiles()
     folder = config_dir() / "profiles"
     for line in problems:  # a broken file does not hide the readable profiles
-        stderr.print(f"warning: {line}", markup=False, highlight=False, soft_wrap=True)
+        stderr.print(f"warning: {cli_words(line, command_flags('calibrate show'))}", markup=False, highlight=False,
+                     soft_wrap=True)
     if problems and not profiles:
         fail(f"{folder}: none of the {len(problems)} profile file(s) can be read — fix or delete them "
              "(see the warnings above), or create a profile with 'benchfit calibrate gain|timebase|"

@@ -9,7 +9,7 @@ from typing import Any, NoReturn
 from benchfit.errors import BenchfitError
 
 __all__ = ["stdout", "stderr", "fail", "print_json", "parse_assignments", "parse_value", "with_fix",
-           "flag_words", "cli_words", "LIBRARY_FLAGS"]
+           "flag_words", "cli_words", "command_flags", "LIBRARY_FLAGS", "COMMAND_FLAGS"]
 
 
 def _console(err: bool):
@@ -68,8 +68,10 @@ def flag_words(message: str, flags: dict[str, str]) -> str:
     A name followed by ``:`` (or by a quoted value, ``bench 'x': …``) at the start, by ``=``
     or (for names with an underscore, which cannot be ordinary words) standing alone is
     replaced: ``name='x'``, ``name=0.5`` and ``name=…`` become ``--option x``, ``--option 0.5``
-    and ``--option …``; ``name=True`` and a bare ``name=`` become ``--option``. A name that is
-    already part of an option (``--fix=``) is left alone, so translating twice changes nothing.
+    and ``--option …`` (a quoted value with a space or quote keeps its quotes, as a shell needs:
+    ``device='USB Audio'`` becomes ``--device 'USB Audio'``); ``name=True`` and a bare ``name=``
+    become ``--option``. A name that is already part of an option (``--fix=``) is left alone,
+    so translating twice changes nothing.
     """
     import re
 
@@ -78,7 +80,7 @@ def flag_words(message: str, flags: dict[str, str]) -> str:
     names = "|".join(sorted(map(re.escape, flags), key=len, reverse=True))
     at = r"(?<![-\w])"
     out = re.sub(rf"{at}({names})=True\b", lambda m: flags[m[1]], message)
-    out = re.sub(rf"{at}({names})='([^']*)'", lambda m: f"{flags[m[1]]} {m[2]}", out)
+    out = re.sub(rf"""{at}({names})=('[^']*'|"[^"]*")""", lambda m: f"{flags[m[1]]} {_shell_word(m[2])}", out)
     out = re.sub(rf"{at}({names})=(?=[\d.…])", lambda m: f"{flags[m[1]]} ", out)
     out = re.sub(rf"{at}({names})=", lambda m: flags[m[1]], out)
     out = re.sub(rf"^({names})(?=:| ')", lambda m: flags[m[1]], out)
@@ -86,12 +88,44 @@ def flag_words(message: str, flags: dict[str, str]) -> str:
     return re.sub(rf"{at}({bare})\b", lambda m: flags[m[1]], out) if bare else out
 
 
-#: the library's parameter names that mean the same option in every command that shows them
+def _shell_word(quoted: str) -> str:
+    """A Python string literal (``'x'`` or ``"x"``) as a shell word: bare, or quoted when it must be."""
+    value = quoted[1:-1]
+    return quoted if not value or any(c.isspace() or c in "'\"" for c in value) else value
+
+
+#: the library's parameter names and the option each means in every command that shows it
+#: (``channels`` is the channel selection of ``load``/``measure``, ``--channel``; the commands
+#: that open a sound card say ``--channels`` for the count: :data:`COMMAND_FLAGS`)
 LIBRARY_FLAGS = {"fix": "--fix", "guess": "--guess", "bank": "--bank", "drift": "--drift", "log_path": "--log",
                  "out": "--out", "overwrite": "--overwrite", "fmt": "--format", "bench": "--bench",
                  "channel_map": "--channel", "unit": "--unit", "model": "--model", "harmonics": "--harmonics",
                  "force_pulse": "--pulse", "gain_u_rel": "--gain-u", "interval_s": "--interval", "out_dir": "--out",
-                 "drive": "--drive", "response": "--response"}
+                 "drive": "--drive", "response": "--response",
+                 # capture/: files, sound-card devices and calibration profiles
+                 "sample_rate": "--sample-rate", "channels": "--channel", "device": "--device", "rate": "--rate",
+                 "seconds": "--seconds", "names": "--names", "profile": "--profile",
+                 "sample_format": "--sample-format", "window_s": "--window"}
+
+#: command → the names it says differently from :data:`LIBRARY_FLAGS` (the longest matching
+#: command path wins: ``calibrate show`` before ``calibrate``)
+COMMAND_FLAGS: dict[str, dict[str, str]] = {
+    "record": {"channels": "--channels"},
+    "drift": {"channels": "--channels"},
+    "calibrate": {"channels": "--channels"},
+    "calibrate show": {"profile": "PROFILE"},
+}
+
+
+def command_flags(command: str) -> dict[str, str]:
+    """The :data:`COMMAND_FLAGS` entry of a command path (``"benchfit calibrate gain"`` or ``"record"``)."""
+    words = command.split()
+    words = words[1:] if words[:1] == ["benchfit"] else words
+    for n in range(len(words), 0, -1):
+        if " ".join(words[:n]) in COMMAND_FLAGS:
+            return COMMAND_FLAGS[" ".join(words[:n])]
+    return {}
+
 
 #: whole library phrases with no one-parameter spelling, and what the command line says instead
 _PHRASES = {"timer=TimerParts(ra=…, rb=…, c1=…)": "--ra, --rb, --c1", "sync_log()": "'benchfit log sync'"}

@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any, Optional
 import typer
 
 from benchfit.cli.app import app
-from benchfit.cli.common import cli_words, fail, flag_words, print_json, stderr, stdout
+from benchfit.cli.common import cli_words, command_flags, fail, flag_words, print_json, stderr, stdout
 
 if TYPE_CHECKING:
     from benchfit.log.store import LogTarget
@@ -138,6 +138,10 @@ def _value(v: float | None, u: float | None, unit: str, digits: int = 4) -> str:
     return f"{v:.{dec}f} ± {u:.{dec}f} {unit}".strip()
 
 
+#: how this command says the library's parameters (``channels`` is its ``--channels`` count)
+_DRIFT_FLAGS = command_flags("drift")
+
+
 def render_summary(run: dict[str, Any], console) -> None:
     """The stability summary of a drift run (the JSON contract) as text."""
     st = run.get("stability")
@@ -147,7 +151,7 @@ def render_summary(run: dict[str, Any], console) -> None:
                   markup=False, highlight=False, soft_wrap=True)
     if st is None:
         for w in run["warnings"]:
-            console.print(f"warning: {cli_words(w)}", markup=False, highlight=False, soft_wrap=True)
+            console.print(f"warning: {cli_words(w, _DRIFT_FLAGS)}", markup=False, highlight=False, soft_wrap=True)
         return
     band = st["warmup_band_ppm"]
     warm = ("not settled by the end" if st["warmup_s"] is None else
@@ -181,7 +185,7 @@ def render_summary(run: dict[str, Any], console) -> None:
     console.print("  uncertainties are standard (k = 1): fit noise, with the lag-1 correlation of the "
                   "residuals taken into account", markup=False, highlight=False, soft_wrap=True)
     for w in list(run["warnings"]) + list(st["warnings"]):
-        console.print(f"warning: {cli_words(w)}", markup=False, highlight=False, soft_wrap=True)
+        console.print(f"warning: {cli_words(w, _DRIFT_FLAGS)}", markup=False, highlight=False, soft_wrap=True)
 
 
 @app.command("drift", help=_HELP, short_help="Warm-up, drift and Allan deviation of a unit over a long run.")

@@ -197,7 +197,7 @@ def test_headerless_file_with_increasing_first_column_uses_it_as_time(tmp_path):
 def test_headerless_file_without_time_needs_the_sample_rate(tmp_path):
     path = _write(tmp_path, "0.5,1\n0.4,2\n0.6,3\n")
     msg = _one_line_error(path)
-    assert msg.startswith(f"{path}: no time column") and "--sample-rate" in msg
+    assert msg.startswith(f"{path}: no time column") and "(sample_rate=)" in msg
     cap = load(path, sample_rate=2000)
     assert cap.sample_rate == 2000
     np.testing.assert_array_equal(cap.samples, [[0.5, 0.4, 0.6], [1, 2, 3]])

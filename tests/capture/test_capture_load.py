@@ -114,8 +114,8 @@ def test_channel_selection_keeps_gains_in_step(tmp_path):
     [
         ({"channels": "load"}, "no channel 'load'"),
         ({"channels": ""}, "selects nothing"),
-        ({"sample_rate": -5}, "sample rate: -5 must be a positive number of Hz"),
-        ({"sample_rate": "fast"}, "sample rate: 'fast' is not a number"),
+        ({"sample_rate": -5}, "sample_rate: -5 must be a positive number of Hz"),
+        ({"sample_rate": "fast"}, "sample_rate: 'fast' is not a number"),
         ({"sample_rate": float("nan")}, "must be a positive number"),
     ],
 )

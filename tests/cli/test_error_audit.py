@@ -370,7 +370,7 @@ CASES = [
     C("record-onto-folder", "record --seconds 1 --overwrite {folder_wav}", 2,
       r": is a folder — give a WAV file name, e.g. .*take1\.wav$", "folder_wav"),
     C("record-sample-format", "record --seconds 1 --sample-format mp3 {new_wav}", 2,
-      r"^error: --sample-format 'mp3': unknown sample format — choose one of pcm24, float$", "--sample-format"),
+      r"^error: --sample-format mp3: unknown sample format — choose one of pcm24, float$", "--sample-format"),
     C("record-channels", "record --seconds 1 --channels 5 {new_wav}", 2,
       r"^error: --channels '5': must be 2 or less" + HELP.format("record "), "--channels"),
     C("record-seconds-negative", "record --seconds -1 {new_wav}", 2,
@@ -423,8 +423,9 @@ CASES = [
       r"silent\.wav channel 1 \(ch1\): no steady tone found — ", "silent"),
     C("calibrate-clipped", "calibrate gain {clipped} --rms 0.35 --profile audit", 2,
       r"clipped\.wav channel 1 \(ch1\): the input reaches .* \(clipped\) — lower the level", "clipped"),
+    # calibrate show takes the profile as its PROFILE argument, not as --profile
     C("calibrate-show-unknown", "calibrate show nosuchprofile", 2,
-      r"^error: --profile 'nosuchprofile': no such calibration profile .* — create it", "--profile"),
+      r"^error: PROFILE 'nosuchprofile': no such calibration profile .* — create it", "PROFILE"),
     # --- robustness sweep (issue 12) ----------------------------------------------------------------
     C("sidecar-huge-number", "measure {huge_side_wav}", 2,
       r"HC-10_huge\.json: 'sample_rate_hz' must be a positive number of Hz, got 1000+\.\.\. — fix the sidecar",
