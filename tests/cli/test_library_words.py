@@ -24,6 +24,8 @@ from benchfit.fit.lowpass import fit_lowpass
 from benchfit.fit.ringdown import fit_ringdown
 from benchfit.model.filter import LowpassParts, simulate
 
+from capture_csv import write_capture_csv
+
 FS = 20000.0
 #: a command-line option: two dashes and a letter after a space, a bracket or the start
 FLAG = re.compile(r"(^|[\s(])--[a-z]")
@@ -165,15 +167,8 @@ def _cli(capsys, monkeypatch, *args: str) -> tuple[int, str, str]:
     return code, res.out, res.err
 
 
-def _csv(path: Path, cap: Capture) -> Path:
-    t = np.arange(cap.n_samples) / FS
-    header = "time (s)," + ",".join(f"{n} (V)" for n in cap.channel_names)
-    np.savetxt(path, np.column_stack([t, *cap.samples]), delimiter=",", header=header, comments="", fmt="%.9g")
-    return path
-
-
 def test_fit_terminal_says_flags_and_json_keeps_the_library_words(tmp_path, capsys, monkeypatch):
-    f = _csv(tmp_path / "two.csv", _settled_two_channel())
+    f = write_capture_csv(tmp_path / "two.csv", _settled_two_channel())
     code, out, _ = _cli(capsys, monkeypatch, "fit", str(f), "--fix", "L=300m")
     assert code == 0 and "warning: L: fixed without a tolerance" in out
     assert "e.g. --fix L=…±10%, to include it" in out and "fix={" not in out

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 import re
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -20,6 +19,8 @@ from benchfit.errors import FitError
 from benchfit.fit.lowpass import fit_lowpass
 from benchfit.fit.ringdown import fit_ringdown
 from benchfit.model.filter import LowpassParts, simulate
+
+from capture_csv import write_capture_csv
 
 FS = 20000.0
 FLAG = re.compile(r"(^|[\s(])--[a-z]")
@@ -83,18 +84,11 @@ def _cli(capsys, monkeypatch, *args: str) -> tuple[int, str]:
     return code, capsys.readouterr().err
 
 
-def _csv(path: Path, cap: Capture) -> Path:
-    t = np.arange(cap.n_samples) / FS
-    header = "time (s)," + ",".join(f"{n} (V)" for n in cap.channel_names)
-    np.savetxt(path, np.column_stack([t, *cap.samples]), delimiter=",", header=header, comments="", fmt="%.9g")
-    return path
-
-
 def test_cli_says_flags_for_library_errors(tmp_path, capsys, monkeypatch):
-    ring = _csv(tmp_path / "ring.csv", _ringing())
+    ring = write_capture_csv(tmp_path / "ring.csv", _ringing())
     code, err = _cli(capsys, monkeypatch, "fit", str(ring), "--model", "ringdown", "--fix", "Rs=20")
     assert code == 2 and err.count("\n") == 1 and err.startswith("error: ")
     assert "--fix: a ring-down fit can use one known part" in err and "--fix L=… or --fix C=…" in err
-    two = _csv(tmp_path / "two.csv", _two_channel())
+    two = write_capture_csv(tmp_path / "two.csv", _two_channel())
     code, err = _cli(capsys, monkeypatch, "fit", str(two), "--drive", "output", "--response", "output")
     assert code == 2 and "pass different channels as --drive and --response" in err and "drive=" not in err
