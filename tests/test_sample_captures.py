@@ -65,3 +65,28 @@ def test_symmetric_drive_sample_is_not_called_asymmetric():
     cmp = fit.adequacy["drive_asymmetry"]
     assert cmp["chosen"] == cmp["models"][0], cmp
     assert "drive_asymmetry_ohm" not in fit.derived
+
+
+def test_sound_card_codes_are_stored_exactly_in_wav_and_flac(tmp_path):
+    """The script's 16-bit quantiser gives values a PCM_16 WAV or FLAC file stores and reads back unchanged.
+
+    Reference: 16-bit PCM holds two's-complement codes c in −2¹⁵…2¹⁵−1 and soundfile reads code c as
+    c/2¹⁵ FS (soundfile's float scaling of integer PCM; benchfit.load reads it so). Tolerance: none, a
+    stored code is exact. A quiet noisy sine (±33 codes, noise 6.6 codes) dwells near zero, so code −1
+    must occur: from a quantiser on the scale 2¹⁵−1 the WAV writer (which rounds down) stores every
+    negative code one lower, never −1, a one-code step at each zero crossing whose odd harmonics an
+    output-only fit reads as a misfit.
+    """
+    import soundfile as sf
+
+    ms = _make_samples()
+    rng = np.random.default_rng(3)
+    t = np.arange(48_000) / 48_000.0
+    x = ms.quantise_16bit(1e-3 * np.sin(2 * math.pi * 50.01 * t) + rng.normal(0.0, 2e-4, t.size))
+    assert np.array_equal(x * 32768.0, np.round(x * 32768.0))
+    for fmt in ("WAV", "FLAC"):
+        path = tmp_path / f"q.{fmt.lower()}"
+        sf.write(str(path), x, 48_000, subtype="PCM_16", format=fmt)
+        back, _ = sf.read(str(path), dtype="float64")
+        assert np.array_equal(back, x), fmt
+        assert np.count_nonzero(np.round(back * 32768.0) == -1) > 0, fmt
