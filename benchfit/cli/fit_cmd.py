@@ -194,6 +194,9 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
         de = adq.get("drive_edges")
         if de:
             model = "H(j2πkf)" if de["drive_edges"] == "band-limited" else "first-order hold"
+            if de.get("time_domain"):  # the time-domain refinement's simulation, as the record names it
+                model = ("time-domain simulation of the band-limited drive (1/sinc² pre-filter, images removed)"
+                         if de["drive_edges"] == "band-limited" else "time-domain simulation, first-order hold")
             how = "given" if de.get("choice") not in (None, "auto") else (
                 "from the drive's lines below Nyquist" if de.get("decided") else "assumed: the drive cannot tell")
             line += f"; drive edges {de['drive_edges']} ({how}) → {model}"

@@ -40,9 +40,12 @@ unit (50 Hz at 20 kS/s, L ± 10 % only, load free) that biased Q by +0.27 ± 0.0
 200 seeds; +0.24 from the noise-free samples, linearised; scripts/coverage_freeload.py). A drive that
 *is* band-limited (both channels behind the same anti-alias filter, e.g. a sound card's line input) is
 modelled by H(j·2πkf) instead: which of the two applies is decided from the drive channel itself
-(:mod:`benchfit.fit.edges`, ``drive_edges="auto"``) or given. The time-domain refinement and its
-simulation keep the first-order hold. What is left with sharp edges is the timing of each edge within
-one sample.
+(:mod:`benchfit.fit.edges`, ``drive_edges="auto"``) or given. The time-domain refinement follows the
+same choice: a band-limited drive is simulated after a 1/sinc² pre-filter of its samples
+and the hold's images removed (:func:`benchfit.model.filter.simulate_band_limited`, which drops 7
+samples at each end), so that the simulation has the response H(j·2πf); how much the images step
+removed at the kept orders is recorded beside the choice. What
+is left with sharp edges is the timing of each edge within one sample.
 """
 
 from __future__ import annotations
@@ -56,7 +59,9 @@ import numpy as np
 
 from benchfit.errors import FitError
 from benchfit.measurement.threads import one_blas_thread
-from benchfit.model.filter import PARAMETER_NAMES, PART_NAMES, free_response_basis, sampled_transfer, simulate, transfer
+from benchfit.model.filter import (PARAMETER_NAMES, PART_NAMES, PREFILTER_TAPS, free_response_basis,
+                                   prefiltered_transfer, sampled_transfer, simulate, simulate_band_limited,
+                                   transfer)
 from benchfit.fit.identify import fit_log_parameters, identify, solve
 from benchfit.fit.marginal import Nuisance, figures_of, load_nuisance, marginalise
 from benchfit.fit.marginal import apply as apply_marginal
@@ -182,10 +187,11 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
     time_domain : bool
         Two-channel only: refine by fitting the simulated output to the samples.
     drive_edges : {"auto", "sharp", "band-limited"}
-        Two-channel harmonic method only: how the drive was sampled. "sharp" (edges within a sample,
-        no anti-alias filter: the first-order-hold model), "band-limited" (behind an anti-alias
-        filter: H(j·2πkf)), "auto" decided from the drive (:mod:`benchfit.fit.edges`); the choice
-        and its evidence are in ``result.adequacy["drive_edges"]``.
+        Two-channel only: how the drive was sampled. "sharp" (edges within a sample, no anti-alias
+        filter: the first-order-hold model), "band-limited" (behind an anti-alias filter: H(j·2πkf),
+        in the time domain the simulation of the 1/sinc²-pre-filtered drive), "auto" decided from the
+        drive (:mod:`benchfit.fit.edges`; a non-periodic drive is taken as sharp); the choice, its
+        evidence and, with ``time_domain``, the simulation used are in ``result.adequacy["drive_edges"]``.
 
     Returns
     -------
@@ -245,7 +251,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     tone = fit_tone(x, fs, n_harmonics=9)
     if tone is None or tone.amplitudes[0] <= SIGNIFICANCE * tone.amplitudes_u[0]:
         if time_domain:  # any drive will do: start from the cross-spectral estimate of H
-            return _aperiodic(cap, x, y, di, fix, guess)
+            return _aperiodic(cap, x, y, di, fix, guess, drive_edges)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} has no periodic content — "
                        "capture at least a few periods of the drive, use time_domain=True for a "
                        "non-periodic drive, or use fit_ringdown()")
@@ -258,7 +264,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     var_x = float(np.sum((x - x.mean()) ** 2))
     if var_x <= 0 or hx_all.rss > 0.1 * var_x:
         if time_domain:
-            return _aperiodic(cap, x, y, di, fix, guess)
+            return _aperiodic(cap, x, y, di, fix, guess, drive_edges)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} is not periodic (its harmonics "
                        f"at {f:.4g} Hz explain {100 * max(0.0, 1 - hx_all.rss / var_x):.0f} % of it) — "
                        "use time_domain=True for a non-periodic drive, or check the drive channel")
@@ -386,7 +392,8 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     quality = quality_complex(hk, h_model)
     if time_domain:
         values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality, td_res = _time_domain(
-            x, y, fs, values, fixed, fix, hy.sigma, curves)
+            x, y, fs, values, fixed, fix, hy.sigma, curves, edges["drive_edges"])
+        edges = {**edges, "time_domain": _td_record(edges["drive_edges"], values, fs, fk, hk, u_abs)}
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
         specs = input_specs(fix_specs or {}, fixed, folded, ratio)
@@ -612,8 +619,11 @@ def _with_gain_prior(residual, ratio: FixedValue):
 
 
 def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],
-               guess: dict[str, float]) -> FitResult:
+               guess: dict[str, float], drive_edges: DriveEdges = "auto") -> FitResult:
     """Time-domain fit for a drive that is not periodic, started from H = P_xy/P_xx (Welch).
+
+    The drive's edges cannot be classified without its harmonics (:mod:`benchfit.fit.edges`), so the
+    first-order hold is assumed unless ``drive_edges`` says otherwise; the record says which.
 
     Bins with magnitude-squared coherence γ² > 0.9 are used for the start; their relative
     random error √(1−γ²)/(|γ|·√(2·n_d)) for n_d averaged segments is the usual one for a
@@ -649,26 +659,65 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
 
     start, _, fixed0, _, _, _, _, _ = solve(residual, start, fix)
     curves = FitCurves(harmonic_hz=fk, h_measured=h, h_measured_u=u)
+    kind = "sharp" if drive_edges == "auto" else drive_edges
+    how = (f"given (drive_edges={drive_edges!r})" if drive_edges != "auto" else
+           "the drive is not periodic, so its edges are not classified; first-order hold assumed (sharp edges)")
     sigma = 1e-3 * float(np.std(y))  # scales χ² only; the covariance is rescaled by χ²_red
     values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality, td_res = _time_domain(
-        x, y, fs, start, dict(fix), fix, sigma, curves)
+        x, y, fs, start, dict(fix), fix, sigma, curves, kind)
     ratio, ratio_note = channel_gain_ratio(cap, di, cap.n_channels - 1 - di if cap.n_channels == 2 else di)
     if ratio_note:
         warnings = list(warnings) + [ratio_note]
     specs = input_specs({}, fixed, folded, ratio)
     sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
-    return assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                    alts, specs, sens)
+    result = assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
+                      alts, specs, sens)
+    from dataclasses import replace
+
+    edges = {"drive_edges": kind, "decided": drive_edges != "auto", "reason": how, "choice": drive_edges,
+             "time_domain": _td_record(kind, values, fs, fk, h, u)}
+    return replace(result, adequacy={**result.adequacy, "drive_edges": edges})
 
 
-def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
-    """Refine by fitting the exactly discretised simulation of the measured drive to the output."""
+def _td_record(kind: str, values: Mapping[str, float], fs: float, fk: np.ndarray, hk: np.ndarray,
+               u_abs: np.ndarray) -> dict:
+    """Which simulation the time-domain fit used and, for a band-limited drive, what its image step removed.
+
+    ``images_rel`` is the largest |H / prefiltered_transfer − 1| at the frequencies ``fk`` for the fitted
+    parts: how far the pre-filtered first-order hold alone would be from H(j·2πf) (the hold's images and
+    the pre-filter's design error, :func:`benchfit.model.filter.simulate_band_limited`);
+    ``images_over_u`` the largest ratio of that to the relative u of the measured |H_k|.
+    """
+    if kind != "band-limited":
+        return {"simulation": "first-order hold (drive linear between samples)", "samples_dropped_each_end": 0}
+    p = parts_of(values)
+    err = np.abs(transfer(fk, p) / prefiltered_transfer(fk, p, fs) - 1.0)
+    rel_u = u_abs / np.maximum(np.abs(hk), 1e-300)
+    return {"simulation": "first-order hold of the drive pre-filtered by 1/sinc², the hold's images removed "
+                          "on the record's DFT grid (band-limited drive)",
+            "samples_dropped_each_end": PREFILTER_TAPS // 2,
+            "images_rel": float(np.max(err)) if err.size else None,
+            "images_over_u": float(np.max(err / rel_u)) if err.size and np.all(rel_u > 0) else None}
+
+
+def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves, kind: str = "sharp"):
+    """Refine by fitting the exactly discretised simulation of the measured drive to the output.
+
+    ``kind`` "band-limited": the drive is simulated as band-limited (:func:`benchfit.model.filter.
+    simulate_band_limited`), whose response is the continuous H(j·2πf); the samples at the ends that its
+    pre-filter does not cover are left out of the fit.
+    """
+    trim = PREFILTER_TAPS // 2 if kind == "band-limited" else 0
+    y = y[trim:y.size - trim]
     n = y.size
     sigma = max(float(sigma), 1e-12 * max(float(np.max(np.abs(y))), 1e-30))
 
+    def drive_response(p) -> np.ndarray:
+        return simulate_band_limited(x, fs, p)[0] if kind == "band-limited" else simulate(x, fs, p)
+
     def model(v: dict[str, float]) -> np.ndarray:
         p = parts_of(v)
-        sim = v.get("gain_ratio", 1.0) * simulate(x, fs, p)
+        sim = v.get("gain_ratio", 1.0) * drive_response(p)
         basis = free_response_basis(p, fs, n)
         design = np.stack([np.ones(n), basis[0], basis[1]], axis=1)
         coef, *_ = np.linalg.lstsq(design, y - sim, rcond=None)
@@ -681,9 +730,10 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves):
     fix_now = {k: v for k, v in fixed.items()}
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix_now)
     ym = model(values)
-    curves = FitCurves(time_s=np.arange(n) / fs, data=y.copy(), model=ym,
+    response = (lambda freq, p, rate: transfer(freq, p)) if kind == "band-limited" else sampled_transfer
+    curves = FitCurves(time_s=(np.arange(n) + trim) / fs, data=y.copy(), model=ym,
                        harmonic_hz=curves.harmonic_hz, h_measured=curves.h_measured,
-                       h_model=sampled_transfer(curves.harmonic_hz, parts_of(values), fs),
+                       h_model=response(curves.harmonic_hz, parts_of(values), fs),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
     folded = [k for k in fixed if k not in user_fix and k in PART_NAMES]  # undetermined, held at 0
     return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual

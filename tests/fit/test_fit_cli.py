@@ -168,3 +168,19 @@ def test_drive_edges_choice_is_shown_and_given_choice_kept(tmp_path, run, given)
     want = "drive edges sharp (from the drive's lines below Nyquist)" if given is None else \
         "drive edges band-limited (given) → H(j2πkf)"
     assert want in " ".join(out.split()), out
+
+
+@pytest.mark.parametrize("given", ["sharp", "band-limited"])
+def test_time_domain_model_check_names_its_simulation(tmp_path, run, given):
+    # with --time-domain the model-check line names the simulation the refinement used, as the record does
+    f = _filter_capture(tmp_path / "unit.csv", seed=3)
+    args = ("fit", str(f), "--fix", "L=300m", "--fix", "Rload=10k", "--time-domain", "--drive-edges", given)
+    code, out, err = run(*args, "--json")
+    assert code == 0, err
+    td = json.loads(out)["adequacy"]["drive_edges"]["time_domain"]
+    assert td["samples_dropped_each_end"] == (7 if given == "band-limited" else 0)
+    code, out, err = run(*args)
+    assert code == 0, err
+    want = ("time-domain simulation of the band-limited drive" if given == "band-limited"
+            else "time-domain simulation, first-order hold")
+    assert f"drive edges {given} (given) → {want}" in " ".join(out.split()), out

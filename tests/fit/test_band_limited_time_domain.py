@@ -1,0 +1,135 @@
+"""The time-domain refinement (time_domain=True) honours a band-limited drive, and keeps the first-order hold otherwise.
+
+The simulation takes the drive as linear between samples; for a drive behind an anti-alias filter its
+samples are first pre-filtered by 1/sinc²(ωT/2) (benchfit.model.filter.band_limit_prefilter), so the
+simulated output has the continuous response H(j·2πf) in band. The captures and the truth are those of
+tests/fit/test_band_limited_drive.py (the textbook Fourier series of a square through the impedance
+divider of the L-C ladder), imported, not copied.
+
+The fit's own χ²ᵣ is scaled by its harmonic fit's σ, so the noise checks here use the synthesised noise
+itself: both channels carry white noise of sd NOISE, and the residual of a right model is the output's
+noise minus the drive's noise passed through the model, of variance NOISE²·(1 + Σ|g_n|²) with g the
+model's impulse response (the variance of filtered white noise; Σ|g_n|² = mean of |H|² over the
+frequency circle, Parseval).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy.signal import freqz
+from scipy.stats import chi2
+
+from benchfit import fit_lowpass
+from benchfit.model.filter import (LowpassParts, _inverse_sinc2_series, band_limit_prefilter, free_response_basis,
+                                   prefilter_drive, prefiltered_transfer, simulate_band_limited)
+from test_band_limited_drive import C, F, FS, L, RESR, RLOAD, RS, _band_limited, _h, _period, _sharp
+
+NOISE = 3e-5  # the band-limited capture's noise on each channel (test_band_limited_drive._band_limited)
+FIX = {"L": L, "Rload": RLOAD}
+
+
+def _chi2_of_noise(residual: np.ndarray) -> float:
+    """Σ residual² over its variance for a right model: the output's noise and the drive's through H."""
+    grid = np.fft.rfftfreq(int(FS), 1.0 / FS)
+    gain = np.abs(_h(np.maximum(grid, 1e-9))) ** 2
+    noise_gain = float(2.0 * gain[1:-1].sum() + gain[0] + gain[-1]) / int(FS)  # mean of |H|² over the circle
+    return float(residual @ residual) / (NOISE ** 2 * (1.0 + noise_gain))
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_band_limited_time_domain_leaves_noise_only_and_finds_the_parts(seed):
+    r = fit_lowpass(_band_limited(seed), fix=FIX, time_domain=True)
+    de = r.adequacy["drive_edges"]
+    assert de["drive_edges"] == "band-limited" and de["decided"]
+    td = de["time_domain"]
+    assert "1/sinc²" in td["simulation"] and td["samples_dropped_each_end"] == 7
+    assert td["images_rel"] is not None and td["images_over_u"] is not None
+    # the fit's own check, and the residual against the synthesised noise: below the 99.9 % point of χ²
+    # (scipy.stats.chi2) for its degrees of freedom — residuals are noise only
+    assert r.adequacy["chi2_red"] < r.adequacy["chi2_red_limit"]
+    res = r.curves.residual
+    assert res.size == r.curves.data.size == int(FS * 2.0) - 14
+    assert _chi2_of_noise(res) < chi2.ppf(0.999, res.size - 3)
+    # the parts within 3 combined standard uncertainties of the divider's values (a 3σ bound)
+    for name, truth in (("C", C), ("Rs", RS), ("Resr", RESR)):
+        p = r.parameters[name]
+        assert p.stderr is not None and abs(p.value - truth) < 3 * p.stderr, (seed, name, p.value, p.stderr)
+
+
+def test_band_limited_time_domain_forced_sharp_shows_the_model_error():
+    # the first-order-hold simulation of the same samples fits worse on the same output samples: the two
+    # models have the same parameters, so Δχ² = 2·ln(likelihood ratio); above 2·ln(1000) the data favour
+    # the band-limited model by more than 1000 to 1 (equal-size models, AIC; common practice, no source)
+    cap = _band_limited(0)
+    band = fit_lowpass(cap, fix=FIX, time_domain=True)
+    sharp = fit_lowpass(cap, fix=FIX, time_domain=True, drive_edges="sharp")
+    assert sharp.adequacy["drive_edges"]["time_domain"]["samples_dropped_each_end"] == 0
+    assert np.allclose(sharp.curves.time_s[7:-7], band.curves.time_s)
+    gain = _chi2_of_noise(sharp.curves.residual[7:-7]) - _chi2_of_noise(band.curves.residual)
+    assert gain > 2.0 * math.log(1000.0), gain
+
+
+def test_sharp_edged_time_domain_keeps_the_first_order_hold():
+    r = fit_lowpass(_sharp(0), fix=FIX, time_domain=True)
+    de = r.adequacy["drive_edges"]
+    assert de["drive_edges"] == "sharp"
+    assert de["time_domain"] == {"simulation": "first-order hold (drive linear between samples)",
+                                 "samples_dropped_each_end": 0}
+    assert r.curves.time_s[0] == 0.0 and r.curves.residual.size == int(FS * 2.0)
+
+
+def test_prefilter_response_is_inverse_sinc_squared():
+    # the taps' response by scipy.signal.freqz against 1/sinc²(ωT/2) from numpy.sinc
+    taps = band_limit_prefilter()
+    assert taps.size == 15 and np.allclose(taps, taps[::-1])  # symmetric: zero phase about its centre
+    w, resp = freqz(taps, worN=2 * np.pi * np.linspace(0.0, 0.45, 901))
+    resp = resp * np.exp(1j * w * 7)  # remove the centre's delay of 7 samples
+    assert np.max(np.abs(resp.imag)) < 1e-12
+    eps = resp.real * np.sinc(w / (2 * np.pi)) ** 2 - 1.0
+    # matched to 1/sinc² at DC through s³ (s = sin²(ωT/2)): the error is of order s⁴, so eps/s⁴ stays
+    # bounded as ω → 0; a missed s³ (or s²) term of coefficient ≈ 0.1 would make it exceed 100 at ωT = 0.05
+    low = (w >= 0.05) & (w < 0.3)
+    assert np.max(np.abs(eps[low]) / np.sin(w[low] / 2) ** 8) < 10.0
+    # over the band: within 1 % (the orders near 0.45·fs of a square behind an L-C low-pass carry relative
+    # uncertainties of tens of per cent, so the size that matters is the χ² test below)
+    assert np.max(np.abs(eps)) < 1e-2
+
+
+def test_prefilter_series_is_that_of_inverse_sinc_squared():
+    # x²/sin²x against its series in s = sin²x: the difference is the s⁴ term and beyond (below s⁴ here);
+    # at x = 0.03 a coefficient off by 10⁻³ of s³ would exceed s⁴, and rounding (10⁻¹⁶) stays below it
+    x = np.array([0.03, 0.1, 0.4])
+    s = np.sin(x) ** 2
+    series = np.polyval(_inverse_sinc2_series(4)[::-1], s)
+    assert np.all(np.abs(series - (x / np.sin(x)) ** 2) < s ** 4)
+
+
+def test_band_limited_simulation_matches_the_fourier_series_truth():
+    # benchfit's band-limited simulation of the noise-free drive against the capture's output, the textbook
+    # series through the divider: after the start (an initial state solved by least squares, as the fit
+    # does) the two agree far below the noise — Σ(difference)²/NOISE² ≪ 1, so no fitted part moves by more
+    # than a small fraction of its u. The hold's images are what the image step removes: near Nyquist the
+    # first is about half of H (the ESR's zero keeps H falling only as 1/f there)
+    period_t, k, terms = _period(int(0.45 * FS / F), 0.0)
+    x = np.tile(0.5 + terms.real.sum(axis=0), 4)
+    truth = np.tile(0.5 * RLOAD / (RS + RLOAD) + (_h(k * F)[:, None] * terms).real.sum(axis=0), 4)
+    p = LowpassParts(L, C, RS, RESR, RLOAD)
+    sim, trim = simulate_band_limited(x, FS, p)
+    basis = free_response_basis(p, FS, sim.size)
+    target = truth[trim:x.size - trim] - sim
+    coef, *_ = np.linalg.lstsq(basis.T, target, rcond=None)
+    diff = target - basis.T @ coef
+    assert float(diff @ diff) / NOISE ** 2 < 0.01
+    images = prefiltered_transfer(k * F, p, FS) / _h(k * F) - 1.0
+    assert np.max(np.abs(images)) > 0.1
+
+
+def test_prefilter_drops_the_ends_it_cannot_cover():
+    u = np.arange(20.0)
+    out, trim = prefilter_drive(u)
+    assert trim == 7 and out.size == 20 - 14
+    # a ramp passes a symmetric filter whose taps sum to 1 unchanged (its response at DC is 1, slope kept)
+    assert np.allclose(out, u[7:-7])
