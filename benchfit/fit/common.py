@@ -199,8 +199,10 @@ def harmonics_after_start_transient(y: np.ndarray, fs: float, f: float, kmax: in
 
     from benchfit.measurement.tone import fit_harmonics
 
+    if not tau_s:
+        return f, noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs), None
     n = y.size
-    e = np.exp(-np.arange(n) / (fs * tau_s)) if tau_s else np.zeros(n)
+    e = np.exp(-np.arange(n) / (fs * tau_s))
 
     def transient_at(freq: float):
         b = fit_harmonics(e, fs, freq, kmax)
@@ -208,9 +210,10 @@ def harmonics_after_start_transient(y: np.ndarray, fs: float, f: float, kmax: in
         ee = float(e_perp @ e_perp)
         return b, ee, (float(e_perp @ y) / ee if ee > 0.0 else 0.0)
 
-    if not tau_s or not transient_at(f)[1] > 0.0:
+    b, ee, amp = transient_at(f)
+    if not ee > 0.0:
         return f, noise_rescaled(fit_harmonics(y, fs, f, kmax), y, fs), None
-    f = fit_harmonics(y - transient_at(f)[2] * e, fs, f, min(kmax, 15), fit_frequency=True).frequency_hz
+    f = fit_harmonics(y - amp * e, fs, f, min(kmax, 15), fit_frequency=True).frequency_hz
     b, ee, amp = transient_at(f)
     clean = y - amp * e
     h = fit_harmonics(clean, fs, f, kmax)
