@@ -49,7 +49,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from benchfit.model.filter import LowpassParts, _state_space_d
+from benchfit.model.filter import LowpassParts, _state_space_d, _state_space_rows
 
 __all__ = ["source_parts", "steady_state", "switched_phasors", "switched_rows", "switched_waveform", "source_phasors",
            "series_current_row", "switched_samples"]
@@ -76,28 +76,9 @@ def _expm2_scalar(a00: float, a01: float, a10: float, a11: float, h: float) -> t
     return c0 + c1 * (a00 - t), c1 * a01, c1 * a10, c0 + c1 * (a11 - t)
 
 
-def _state_space_scalars(p: LowpassParts):
-    """(A, B, C, D) of :func:`benchfit.model.filter.state_space` and its feedthrough as plain floats.
-
-    The same Kirchhoff rows as :func:`benchfit.model.filter._state_space_d` (checked equal in the tests),
-    written out: a fit calls it twice per model evaluation, where numpy's per-call cost on 2 × 2 arrays
-    was a fifth of the switched source's time.
-    """
-    g, rc, gp = p.g, p.Resr, p.gp
-    k = 1.0 / (1.0 + rc * g)
-    r = p.Rs + k * rc
-    m = 1.0 + gp * r
-    i = (1.0 / m, -gp * k / m, gp / m)  # the series current over (i_L, v_C, u)
-    v_out = (k * rc * i[0], k * (1.0 + rc * i[1]), k * rc * i[2])
-    v_l = (-r * i[0], -k - r * i[1], 1.0 - r * i[2])
-    a = (v_l[0] / p.L, v_l[1] / p.L, (i[0] - g * v_out[0]) / p.C, (i[1] - g * v_out[1]) / p.C)
-    b = (v_l[2] / p.L, (i[2] - g * v_out[2]) / p.C)
-    return a, b, (v_out[0], v_out[1]), v_out[2]
-
-
 def _phase_scalars(p: LowpassParts, u: float, h: float):
     """(A, C, D, u, h, x̄, Φ) of one phase as plain floats (2 × 2 work is faster without numpy)."""
-    (a00, a01, a10, a11), (b0, b1), c, d = _state_space_scalars(p)
+    (a00, a01, a10, a11), (b0, b1), c, d = _state_space_rows(p)
     det = a00 * a11 - a01 * a10
     b0, b1 = b0 * u, b1 * u
     xeq = (-(a11 * b0 - a01 * b1) / det, -(-a10 * b0 + a00 * b1) / det)  # −A⁻¹·B·u

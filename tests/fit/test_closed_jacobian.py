@@ -126,17 +126,17 @@ def test_levenberg_marquardt_hands_over_at_the_box():
 
 @pytest.mark.parametrize("parts", [LowpassParts(**PARTS), LowpassParts(0.3, 33e-6, 20.0, 0.0, math.inf, math.inf),
                                    LowpassParts(0.3, 33e-6, 20.0, 1.5, 1e4)])
-def test_switched_source_scalar_rows_equal_the_state_space(parts):
-    """The switched source's written-out state-space rows are the model's own (benchfit.model.filter)."""
-    from benchfit.model.filter import _state_space_d
-    from benchfit.model.switched import _state_space_scalars
+def test_state_space_rows_give_the_transfer_function(parts):
+    """The written-out state-space rows the switched source uses (benchfit.model.filter._state_space_rows)
+    give C·(sI − A)⁻¹·B + D = H(s) of the coefficient form (benchfit.model.filter.transfer, derived apart
+    from them), to rounding (linear-systems algebra, textbook; common practice, no source)."""
+    from benchfit.model.filter import _state_space_rows, transfer
 
-    a, b, c, d = _state_space_d(parts)
-    sa, sb, sc, sd = _state_space_scalars(parts)
-    assert np.allclose(sa, a.ravel(), rtol=1e-15, atol=0)
-    assert np.allclose(sb, b, rtol=1e-15, atol=0)
-    assert np.allclose(sc, c, rtol=1e-15, atol=0)
-    assert sd == pytest.approx(d, rel=1e-15, abs=0)
+    (a00, a01, a10, a11), (b0, b1), (c0, c1), d = _state_space_rows(parts)
+    a, b, c = np.array([[a00, a01], [a10, a11]]), np.array([b0, b1]), np.array([c0, c1])
+    f = np.array([5.0, 50.0, 500.0, 5000.0])
+    h_ss = np.array([c @ np.linalg.solve(2j * math.pi * fi * np.eye(2) - a, b) + d for fi in f])
+    assert np.allclose(h_ss, transfer(f, parts), rtol=1e-12, atol=0)
 
 
 def test_levenberg_marquardt_rests_a_part_on_its_lower_bound():
