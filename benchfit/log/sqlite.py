@@ -44,15 +44,26 @@ class _EmptyNewLog(Exception):
     """The file is an SQLite database with nothing in it yet: a log being created."""
 
 
+def _open_readonly(uri: str) -> sqlite3.Connection:
+    """A read-only connection that starts no transaction by itself (they are begun explicitly)."""
+    return sqlite3.connect(uri, uri=True, timeout=_BUSY_TIMEOUT_S, isolation_level=None)
+
+
 def _read_schema(path: Path, uri: str) -> int | None:
-    """Schema version of the log at ``uri`` (read-only); LogError when it is not benchfit's."""
+    """Schema version of the log at ``uri`` (read-only); LogError when it is not benchfit's.
+
+    The header and the table list are read in one read transaction, so both come from the same
+    snapshot: read one statement at a time, a log that another process sets up in between would
+    show its tables but not yet its application_id, and be refused as foreign.
+    """
     try:
-        con = sqlite3.connect(uri, uri=True, timeout=_BUSY_TIMEOUT_S)
+        con = _open_readonly(uri)
     except sqlite3.OperationalError:
         raise
     except sqlite3.Error as e:
         raise LogError(f"{path}: cannot open the log ({e}) — check the path and permissions") from e
     try:
+        con.execute("BEGIN")
         app_id = con.execute("PRAGMA application_id").fetchone()[0]
         tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
         if app_id == 0 and not tables:
@@ -153,6 +164,15 @@ def _begin(con: sqlite3.Connection) -> None:
             time.sleep(0.05 * (attempt + 1))
 
 
+def _open_writer(path: Path) -> sqlite3.Connection:
+    """A connection for writing: explicit transactions, busy timeout, the schema's SQL functions."""
+    con = sqlite3.connect(str(path), timeout=_BUSY_TIMEOUT_S, isolation_level=None)
+    con.create_function("bf_now", 0, _utc_now)
+    con.create_function("bf_uuid", 0, lambda: str(_uuid.uuid4()))
+    con.execute(f"PRAGMA busy_timeout = {int(_BUSY_TIMEOUT_S * 1000)}")
+    return con
+
+
 def connect(path: str | Path, *, create: bool = True) -> sqlite3.Connection:
     """Open (and if needed create or migrate) a benchfit log file; a raw sqlite3 connection.
 
@@ -179,10 +199,7 @@ def connect(path: str | Path, *, create: bool = True) -> sqlite3.Connection:
     try:
         if not exists:
             p.parent.mkdir(parents=True, exist_ok=True)
-        con = sqlite3.connect(str(p), timeout=_BUSY_TIMEOUT_S, isolation_level=None)
-        con.create_function("bf_now", 0, _utc_now)
-        con.create_function("bf_uuid", 0, lambda: str(_uuid.uuid4()))
-        con.execute(f"PRAGMA busy_timeout = {int(_BUSY_TIMEOUT_S * 1000)}")
+        con = _open_writer(p)
         _set_wal(con)
         con.execute("PRAGMA foreign_keys = ON")
         _migrate(con, current)

@@ -160,6 +160,44 @@ def test_two_processes_append_at_the_same_time(tmp_path):
     assert len(list_runs(db, unit="HC-01")) == n and len(list_runs(db, unit="HC-02")) == n
 
 
+def test_a_log_set_up_between_two_reads_is_not_called_foreign(tmp_path, monkeypatch):
+    """The race behind an intermittent "not a benchfit measurement log" from two first writers.
+
+    Process B inspects the log while process A, which has just created the file, sets it up: B
+    reads the header (application_id 0), then A commits its tables, then B lists the tables. Read
+    one statement at a time, B saw A's tables without A's application_id and refused the log.
+    The interleaving is forced here: A's set-up runs from B's trace callback, just as B's table
+    query starts.
+    """
+    from benchfit.log import sqlite as backend
+
+    db = tmp_path / "log.sqlite"
+    creator = backend._open_writer(db)
+    backend._set_wal(creator)                             # A: created, WAL, nothing set up yet
+    real_open = backend._open_readonly
+    done: list[bool] = []
+
+    def open_with_interleaving(uri):
+        con = real_open(uri)
+
+        def trace(statement):
+            if "sqlite_master" in statement and not done:
+                done.append(True)
+                backend._migrate(creator, None)           # A sets the log up in between
+
+        con.set_trace_callback(trace)
+        return con
+
+    monkeypatch.setattr(backend, "_open_readonly", open_with_interleaving)
+    version = backend._inspect(db)
+    assert done, "the interleaving was not forced"
+    assert version in (None, SCHEMA_VERSION)              # a new log, or the one A just set up
+    creator.close()
+    monkeypatch.undo()
+    append_run(db, command="measure", unit="HC-01", captures=[{"path": "a.wav"}], measurements=[])
+    assert len(list_runs(db, unit="HC-01")) == 1
+
+
 def test_sigkill_mid_write_keeps_every_committed_run(tmp_path):
     db, go = tmp_path / "log.sqlite", tmp_path / "go"
     go.touch()
