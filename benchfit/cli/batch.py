@@ -1,5 +1,6 @@
 """Batch work for ``benchfit measure`` and ``benchfit report``: pick capture files, run one
-job per file in worker processes, and hand each result back as soon as it is done.
+job per file in this process and worker processes, and hand each result back as soon as it is
+done.
 
 Pieces:
 
@@ -14,11 +15,11 @@ Pieces:
   forked worker shares what the parent had loaded when it forked, and loads nothing more).
   A job never raises a :class:`~benchfit.errors.BenchfitError`: it returns a
   :class:`JobOutcome` holding either the result or the one-line message.
-* :func:`worker_pool` starts the workers (a ``concurrent.futures.ProcessPoolExecutor`` of
-  ``jobs`` processes, or none for ``jobs=1``); its :meth:`WorkerPool.run` runs a job over the
-  files and calls ``on_outcome`` in the parent for each file in completion order (so output
-  streams and the measurement log is written by one process only). :func:`run_jobs` is the
-  two in one call.
+* :func:`worker_pool` starts ``jobs − 1`` worker processes (none for ``jobs=1``); its
+  :meth:`WorkerPool.run` runs a job over the files in this process and the workers, which take
+  the next file from one shared counter, and calls ``on_outcome`` in this process for each file
+  in completion order (so output streams and the measurement log is written by one process
+  only). :func:`run_jobs` is the two in one call.
 
 Start method (``"auto"``): the workers are forked from this process when it runs exactly one
 thread (:func:`single_threaded`), else started by the ``forkserver`` with the measurement
@@ -30,7 +31,7 @@ before they start a progress bar's refresh thread. Before a fork the job's modul
 here once (:func:`_preload_here`, when one BLAS thread is asked for), so the workers do not
 import them again each. The log is checked (opened and closed)
 before the fork and written by the parent only, after it; workers never touch it.
-Worker processes ignore Ctrl-C; the parent cancels the queued jobs and exits 130. Each
+Worker processes ignore Ctrl-C; the parent terminates them and exits 130. Each
 worker's BLAS/OpenMP libraries get CPU count ÷ workers threads (unless the user set
 ``OPENBLAS_NUM_THREADS`` etc.): with one BLAS thread per CPU in every worker, two workers
 on two cores were 2× slower than one process.
@@ -531,48 +532,160 @@ def _preload_here(preload: Sequence[str]) -> bool:
     return bool(missing)
 
 
-def _ready() -> int:
-    """A worker's first job: nothing (submitting it starts the workers)."""
-    return os.getpid()
+def _take(counter: Any, n: int) -> int | None:
+    """The index of the batch's next file, or None when all ``n`` have been taken. One shared
+    counter: whoever is free takes the next file."""
+    with counter.get_lock():
+        i = int(counter.value)
+        if i >= n:
+            return None
+        counter.value = i + 1
+    return i
+
+
+#: what a worker sends when it has found no file left to take
+_ROUND_DONE = "round done"
+
+
+def _worker_main(conn: Any, counter: Any) -> None:
+    """A worker process: for each batch sent to it (``(job, files, kwargs)``; None ends it),
+    take files from the shared counter, send back each :class:`JobOutcome`, then
+    :data:`_ROUND_DONE`."""
+    _worker_init()
+    while True:
+        task = conn.recv()
+        if task is None:
+            return
+        job, files, kw = task
+        while (i := _take(counter, len(files))) is not None:
+            outcome = _guarded(i, files[i], job, kw)
+            try:
+                conn.send(outcome)
+            except Exception as e:  # a result that will not pickle (nothing was sent: send pickles first)
+                conn.send(JobOutcome(i, files[i], error=f"{files[i]}: the worker could not hand the result "
+                                                        f"back ({type(e).__name__}: {e}) — run it again with "
+                                                        "--jobs 1", seconds=outcome.seconds))
+        conn.send(_ROUND_DONE)
+
+
+class _Crew:
+    """The worker processes of a pool, each with its pipe, and the file counter they share with
+    this process (a ``multiprocessing`` Value)."""
+
+    def __init__(self, ctx: Any, workers: int) -> None:
+        self.counter = ctx.Value("q", 0)
+        self.pipes: list[Any] = []
+        self.procs: list[Any] = []
+        for _ in range(workers):
+            here, there = ctx.Pipe()
+            proc = ctx.Process(target=_worker_main, args=(there, self.counter), daemon=True)
+            proc.start()
+            there.close()
+            self.pipes.append(here)
+            self.procs.append(proc)
+
+    def stop(self) -> None:
+        """Let every worker end after its batch (normal exit)."""
+        for conn, proc in zip(self.pipes, self.procs):
+            with suppress(OSError):
+                conn.send(None)
+        for proc in self.procs:
+            proc.join(timeout=30)
+
+    def kill(self) -> None:
+        """Stop every worker now (SIGTERM): what it was doing is dropped."""
+        for proc in self.procs:
+            with suppress(Exception):
+                proc.terminate()
+        for proc in self.procs:  # gone before the caller cleans up after them
+            with suppress(Exception):
+                proc.join(timeout=5)
 
 
 class WorkerPool:
-    """Where a batch's jobs run: ``workers`` processes started by ``start_method``, or this
-    process (``workers`` 1, ``start_method`` ``"in-process"``). Made by :func:`worker_pool`."""
+    """Where a batch's jobs run: this process and ``workers − 1`` worker processes started by
+    ``start_method``, or this process alone (``workers`` 1, ``start_method`` ``"in-process"``).
+    Made by :func:`worker_pool`."""
 
-    def __init__(self, workers: int, start_method: str, executor: Any = None) -> None:
-        self.workers, self.start_method, self._executor = workers, start_method, executor
+    def __init__(self, workers: int, start_method: str, crew: _Crew | None = None) -> None:
+        self.workers, self.start_method, self._crew = workers, start_method, crew
 
     def run(self, job: Callable[..., Any], files: Sequence[Path], *, kwargs: Mapping[str, Any] | None = None,
             on_outcome: Callable[[JobOutcome], None] | None = None) -> list[JobOutcome]:
-        """Run ``job(path, **kwargs)`` for every file; see :func:`run_jobs`."""
+        """Run ``job(path, **kwargs)`` for every file; see :func:`run_jobs`.
+
+        This process takes files from the same counter as the workers and, between its own
+        files, hands on what the workers have sent; so no process waits while files are left,
+        and a worker starved of CPU by a busy machine only means this process takes more files.
+        """
         kw = dict(kwargs or {})
         done: list[JobOutcome] = []
-        notify = on_outcome or (lambda outcome: None)
-        if self._executor is None:
-            for i, path in enumerate(files):
-                outcome = _guarded(i, path, job, kw)
-                done.append(outcome)
-                notify(outcome)
-            return done
 
-        from concurrent.futures import as_completed
-
-        with _thread_limits(max(1, default_jobs() // self.workers)):  # a forkserver/spawn worker starts here
-            pending = {self._executor.submit(_guarded, i, path, job, kw): (i, path)
-                       for i, path in enumerate(files)}
-        # as_completed waits on all futures at once (wait(FIRST_COMPLETED) in a loop would lock and
-        # hook every pending future again after each result: O(files²) work in this process)
-        for fut in as_completed(pending):
-            i, path = pending[fut]
-            try:
-                outcome = fut.result()
-            except Exception as e:  # a worker died (killed, out of memory) or a result would not pickle
-                outcome = JobOutcome(i, path, error=f"{path}: the worker process failed "
-                                                    f"({type(e).__name__}: {e}) — run it again with --jobs 1")
+        def notify(outcome: JobOutcome) -> None:
             done.append(outcome)
-            notify(outcome)
+            if on_outcome is not None:
+                on_outcome(outcome)
+
+        crew = self._crew
+        if crew is None:
+            for i, path in enumerate(files):
+                notify(_guarded(i, path, job, kw))
+            return done
+        crew.counter.value = 0
+        busy = {k for k, conn in enumerate(crew.pipes) if _send(conn, (job, list(files), kw))}
+        while True:
+            busy -= _hand_on(crew, busy, files, notify, block=False)
+            mine = _take(crew.counter, len(files))
+            if mine is None:
+                break
+            notify(_guarded(mine, files[mine], job, kw))
+        while busy:
+            busy -= _hand_on(crew, busy, files, notify, block=True)
+        seen = {o.index for o in done}
+        for i in range(len(files)):  # taken by a worker that died before it sent the outcome
+            if i not in seen:
+                notify(JobOutcome(i, files[i], error=f"{files[i]}: the worker process failed — run it again "
+                                                     "with --jobs 1"))
         return done
+
+
+def _send(conn: Any, message: Any) -> bool:
+    """Send ``message`` to a worker; False when the worker is gone."""
+    try:
+        conn.send(message)
+    except OSError:
+        return False
+    return True
+
+
+def _hand_on(crew: _Crew, busy: set[int], files: Sequence[Path], notify: Callable[[JobOutcome], None], *,
+             block: bool) -> set[int]:
+    """Pass every outcome the busy workers have sent to ``notify``; with ``block``, wait for at
+    least one message or a worker's end first. Returns the workers that finished the batch (or died)."""
+    from multiprocessing.connection import wait
+
+    finished: set[int] = set()
+    if not busy:
+        return finished
+    conns = [crew.pipes[k] for k in busy]
+    ready = wait(conns + [crew.procs[k].sentinel for k in busy], timeout=None if block else 0)
+    for k in busy:
+        conn, proc = crew.pipes[k], crew.procs[k]
+        if conn not in ready and proc.sentinel not in ready:
+            continue
+        try:
+            while conn.poll():
+                message = conn.recv()
+                if message == _ROUND_DONE:
+                    finished.add(k)
+                    break
+                notify(message)
+        except (EOFError, OSError):
+            finished.add(k)  # it died; what it had taken is reported as failed at the end
+            continue
+        if k not in finished and not proc.is_alive() and not conn.poll():
+            finished.add(k)
+    return finished
 
 
 @contextmanager
@@ -580,36 +693,35 @@ def worker_pool(jobs: int, n_files: int, *, start_method: StartMethod = "auto",
                 preload: Sequence[str] = MEASURE_PRELOAD, adapt_to_load: bool = False) -> Iterator[WorkerPool]:
     """Start the worker processes for a batch of ``n_files`` files; stop them on the way out.
 
-    Enter it before this process starts any thread (a progress bar's refresh thread) or opens
-    a log connection: with ``start_method="auto"`` the workers are then forked from this
-    process, which costs nothing, while ``forkserver`` first starts a server interpreter
-    that imports the measurement modules (~0.35 s before the first worker runs;
-    scripts/bench_batch.py). ``fork`` is taken only when this process runs exactly one
-    thread (:func:`single_threaded`): a fork copies locks held by other threads, and the
-    child can deadlock on them. With a ``fork`` context, ``concurrent.futures`` forks every
-    worker in the calling thread before it starts its own manager thread, and never forks
-    again (``ProcessPoolExecutor._launch_processes``, CPython's answer to gh-90622, in every
-    Python this package supports), so no second thread exists at any fork and the
-    fork-with-threads DeprecationWarning of Python 3.12+ has no cause to fire. Workers never
-    touch the log: the parent writes it. Numpy loaded with one BLAS thread
-    (:func:`prefer_one_blas_thread`) adds no thread; loaded with a BLAS pool, it does, and
-    the fork server is used.
+    ``jobs`` processes work on the batch: this one and ``jobs − 1`` workers, all taking the next
+    file from one shared counter (:meth:`WorkerPool.run`). Enter it before this process starts any
+    thread (a progress bar's refresh thread) or opens a log connection: with
+    ``start_method="auto"`` the workers are then forked from this process, which costs nothing,
+    while ``forkserver`` first starts a server interpreter that imports the measurement modules
+    (~0.35 s before the first worker runs; scripts/bench_batch.py). ``fork`` is taken only when
+    this process runs exactly one thread (:func:`single_threaded`): a fork copies locks held by
+    other threads, and the child can deadlock on them. The pool starts no thread of its own, so
+    the fork-with-threads DeprecationWarning of Python 3.12+ has no cause to fire. Workers never
+    touch the log: this process writes it. Numpy loaded with one BLAS thread
+    (:func:`prefer_one_blas_thread`) adds no thread; loaded with a BLAS pool, it does, and the
+    fork server is used.
 
-    On the way out the workers finish the queued jobs; on an exception (Ctrl-C) they are
-    terminated and what is queued is dropped.
+    On the way out the workers end after the batch; on an exception (Ctrl-C) they are
+    terminated and what they were doing is dropped.
 
     Parameters
     ----------
     jobs : int
-        Worker processes (≥ 1); 1 runs the jobs in this process. No more workers than files
-        are started.
+        Processes (≥ 1) working on the batch, this one included; 1 runs the jobs in this
+        process only. No more processes than files.
     n_files : int
         Number of files of the batch.
     start_method : {"auto", "forkserver", "spawn"}
         How the workers are started.
     preload : sequence of str
         Modules the fork server imports before forking workers (only the first pool of a
-        process starts the server; a module that fails to import is skipped by it).
+        process starts the server; a module that fails to import is skipped by it), and that
+        this process imports before forking (:func:`_preload_here`).
     adapt_to_load : bool
         Take ``jobs`` as a ceiling and start fewer workers when the machine is busy
         (:func:`jobs_for_load`); the command line does.
@@ -622,33 +734,21 @@ def worker_pool(jobs: int, n_files: int, *, start_method: StartMethod = "auto",
         yield WorkerPool(1, "in-process")
         return
 
-    from concurrent.futures import ProcessPoolExecutor
-
     method = _start_method(start_method)
     if method == "fork" and _preload_here(preload):
         method = _start_method(start_method)  # fork only if the imports started no thread
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(method, preload), initializer=_worker_init)
+    # the workers inherit the thread limits set here, before a forkserver/spawn worker loads numpy
+    with _thread_limits(max(1, default_jobs() // workers)):
+        crew = _Crew(_context(method, preload), workers - 1)
     try:
-        # start the workers now (fork: all of them at the first submit; forkserver and spawn:
-        # one per submit); they inherit the thread limits set here, before they load numpy
-        with _thread_limits(max(1, default_jobs() // workers)):
-            for _ in range(1 if method == "fork" else workers):
-                pool.submit(_ready)
-        yield WorkerPool(workers, method, pool)
+        yield WorkerPool(workers, method, crew)
     except BaseException:
         # Ctrl-C (or an error in on_outcome): stop now. The workers ignore SIGINT, so the jobs
-        # they are running would otherwise finish (and write their files) long after the parent
-        # gave up on them; terminate them (SIGTERM) and drop what is still queued.
-        procs = list((getattr(pool, "_processes", None) or {}).values())
-        for proc in procs:
-            with suppress(Exception):
-                proc.terminate()
-        for proc in procs:  # gone before the caller cleans up after them
-            with suppress(Exception):
-                proc.join(timeout=5)
-        pool.shutdown(wait=False, cancel_futures=True)
+        # they are running would otherwise finish (and write their files) long after this
+        # process gave up on them; terminate them (SIGTERM).
+        crew.kill()
         raise
-    pool.shutdown(wait=True)
+    crew.stop()
 
 
 def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,

@@ -204,28 +204,118 @@ def test_empty_folder_is_bad_input(tmp_path, run):
     assert res.stderr.startswith("error: ") and len(res.stderr.strip().splitlines()) == 1
 
 
-def _probe(path: Path) -> list[str]:
-    """Measure in a worker, then name the heavy or device modules the worker has loaded."""
+def _probe(path: Path, meet: str) -> tuple[int, list[str]]:
+    """Measure, then name the heavy or device modules loaded in the process the job ran in.
+
+    The batch's own process takes files too, so each job first waits until two processes have
+    each started one (markers in ``meet``): a worker then surely runs one of the files.
+    """
+    import os
+    import time
+
     from benchfit.cli.batch import measure_job
 
+    (Path(meet) / f"started-{os.getpid()}").touch()
+    deadline = time.monotonic() + 60
+    while len(list(Path(meet).glob("started-*"))) < 2 and time.monotonic() < deadline:
+        time.sleep(0.01)
     measure_job(path)
-    return sorted(m for m in ("sounddevice", "typer", "benchfit.cli.app", "benchfit.capture.live")
-                  if m in sys.modules)
+    return os.getpid(), sorted(m for m in ("sounddevice", "typer", "benchfit.cli.app", "benchfit.capture.live")
+                               if m in sys.modules)
 
 
 @pytest.mark.parametrize("start_method", ["auto", "forkserver"])
-def test_workers_do_not_load_sounddevice_or_the_cli(batch, start_method):
+def test_workers_do_not_load_sounddevice_or_the_cli(batch, start_method, tmp_path):
     """A fork-server worker loads none of them; a forked worker (``auto`` in a process with one
     thread) has only what this process had loaded when it forked."""
+    import os
+
     from benchfit.cli.batch import worker_pool
 
     files = [batch["dir"] / "HC-01.wav", batch["dir"] / "HC-02.wav"]
     here = sorted(m for m in ("sounddevice", "typer", "benchfit.cli.app", "benchfit.capture.live")
                   if m in sys.modules)
     with worker_pool(2, len(files), start_method=start_method) as pool:
-        outcomes = pool.run(_probe, files)
+        outcomes = pool.run(_probe, files, kwargs={"meet": str(tmp_path)})
     assert all(o.ok for o in outcomes), [o.error for o in outcomes]
-    assert [o.result for o in outcomes] == [here, here] if pool.start_method == "fork" else [[], []]
+    in_workers = [loaded for pid, loaded in (o.result for o in outcomes) if pid != os.getpid()]
+    assert in_workers == [here if pool.start_method == "fork" else []]
+
+
+def _in_worker(parent: int, meet: Path) -> bool:
+    """True in a worker (which leaves a marker in ``meet``); in this process (``parent``), first
+    wait for a worker's marker, so that a worker surely takes one of the files."""
+    import os
+    import time
+
+    if os.getpid() != parent:
+        (meet / "a worker started").touch()
+        return True
+    deadline = time.monotonic() + 60
+    while not (meet / "a worker started").exists() and time.monotonic() < deadline:
+        time.sleep(0.005)
+    return False
+
+
+def _slow_pid(path: Path, parent: int, meet: Path, die: bool = False) -> int:
+    """The pid the job ran in, after 20 ms; with ``die`` a worker dies on its first file without
+    a word (as when killed or out of memory)."""
+    import os
+    import time
+
+    if _in_worker(parent, meet) and die:
+        os._exit(9)
+    time.sleep(0.02)
+    return os.getpid()
+
+
+def _unpicklable(path: Path, parent: int, meet: Path) -> object:
+    """A result that cannot be sent back from a worker (a lock); fine in this process."""
+    import threading
+
+    return threading.Lock() if _in_worker(parent, meet) else "here"
+
+
+def test_every_file_once_shared_by_this_process_and_the_workers(tmp_path):
+    """jobs=3: this process and two workers take files from one counter; each file runs once."""
+    import os
+
+    from benchfit.cli.batch import run_jobs
+
+    files = [tmp_path / f"f{i:02d}" for i in range(40)]
+    outcomes = run_jobs(_slow_pid, files, jobs=3, kwargs={"parent": os.getpid(), "meet": tmp_path})
+    assert sorted(o.index for o in outcomes) == list(range(40)) and all(o.ok for o in outcomes)
+    assert [o.path for o in sorted(outcomes, key=lambda o: o.index)] == files
+    pids = {o.result for o in outcomes}
+    assert os.getpid() in pids and len(pids) >= 2  # this process worked, and so did a worker
+
+
+def test_a_worker_that_dies_costs_only_its_file(tmp_path):
+    """The file a worker was on when it died gets one error line; the others are done by the
+    remaining processes."""
+    import os
+
+    from benchfit.cli.batch import run_jobs
+
+    files = [tmp_path / f"f{i:02d}" for i in range(30)]
+    outcomes = run_jobs(_slow_pid, files, jobs=2, kwargs={"parent": os.getpid(), "meet": tmp_path, "die": True})
+    assert sorted(o.index for o in outcomes) == list(range(30))
+    bad = [o for o in outcomes if not o.ok]
+    assert len(bad) == 1 and "worker process failed" in bad[0].error and "--jobs 1" in bad[0].error
+    assert str(bad[0].path) in bad[0].error and {o.result for o in outcomes if o.ok} == {os.getpid()}
+
+
+def test_a_result_that_will_not_pickle_is_one_error_line(tmp_path):
+    import os
+
+    from benchfit.cli.batch import run_jobs
+
+    files = [tmp_path / f"f{i}" for i in range(12)]
+    outcomes = run_jobs(_unpicklable, files, jobs=2, kwargs={"parent": os.getpid(), "meet": tmp_path})
+    assert sorted(o.index for o in outcomes) == list(range(12)) and not all(o.ok for o in outcomes)
+    for o in outcomes:
+        assert (o.ok and o.result == "here") or ("could not hand the result back" in o.error
+                                                 and str(o.path) in o.error and "\n" not in o.error)
 
 
 def test_run_jobs_reports_in_completion_order_with_index(batch):

@@ -21,34 +21,53 @@ ROOT = Path(__file__).resolve().parents[2]
 
 PROBE = '''
 import os
+import sys
+import time
+from pathlib import Path
+
+
+def _both_started(path):
+    # the batch's own process takes files too: each job waits until two processes have each
+    # started one, so that a worker surely runs a job of these four files
+    here = Path(path).parent
+    (here / f"started-{os.getpid()}").touch()
+    deadline = time.monotonic() + 60
+    while len(list(here.glob("started-*"))) < 2 and time.monotonic() < deadline:
+        time.sleep(0.01)
 
 
 def parent_pid(path):
-    return os.getppid()
+    _both_started(path)
+    return [os.getpid(), os.getppid()]
 
 
 def preloaded(path):
-    import sys
-
     from benchfit.cli.batch import MEASURE_PRELOAD
 
-    return [name for name in MEASURE_PRELOAD if name in sys.modules]
+    _both_started(path)
+    return [os.getpid(), [name for name in MEASURE_PRELOAD if name in sys.modules]]
 '''
 
 CHILD = textwrap.dedent('''
-    import json, os, sys, threading, time
+    import json, os, sys, tempfile, threading, time
     from pathlib import Path
 
     from benchfit.cli.batch import prefer_one_blas_thread, worker_pool
     from probe_job import parent_pid
 
 
+    def four_files():
+        folder = Path(tempfile.mkdtemp())
+        return [folder / f"f{i}" for i in range(4)]
+
+
     def started(label):
         threads = len(os.listdir("/proc/self/task"))
         with worker_pool(2, 4) as pool:
-            outcomes = pool.run(parent_pid, [Path(f"f{i}") for i in range(4)])
+            outcomes = pool.run(parent_pid, four_files())
         assert all(o.ok for o in outcomes), [o.error for o in outcomes]
-        parents = {o.result for o in outcomes}
+        # the parents of the workers' jobs (this process runs jobs too)
+        parents = {ppid for pid, ppid in (o.result for o in outcomes) if pid != os.getpid()}
         return {"label": label, "threads": threads, "method": pool.start_method,
                 "forked_here": parents == {os.getpid()}}
 
@@ -73,7 +92,7 @@ CHILD = textwrap.dedent('''
 
             assert prefer_one_blas_thread()
             with worker_pool(2, 4) as pool:
-                seen = [o.result for o in pool.run(preloaded, [Path(f"f{i}") for i in range(4)])]
+                seen = [o.result[1] for o in pool.run(preloaded, four_files()) if o.result[0] != os.getpid()]
             rows.append({"method": pool.start_method, "seen": seen,
                          "threads": len(os.listdir("/proc/self/task"))})
         else:  # numpy loaded with the BLAS thread count of the environment
@@ -135,7 +154,8 @@ def test_forked_workers_start_with_the_measure_modules_loaded(tmp_path):
 
     row = _run(tmp_path, "preload")[0]
     assert row["method"] == "fork", row
-    assert row["seen"] == [list(MEASURE_PRELOAD)] * 4, row  # the probe job itself imports none of them
+    # every job a worker ran saw them (the probe job itself imports none of them)
+    assert row["seen"] and all(seen == list(MEASURE_PRELOAD) for seen in row["seen"]), row
 
 
 def test_single_threaded_sees_a_python_thread():
