@@ -49,7 +49,7 @@ from typing import Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence
 
 __all__ = ["CAPTURE_SUFFIXES", "StartMethod", "JobOutcome", "collect_captures", "default_jobs",
            "measure_job", "report_job", "unit_serial", "run_jobs", "worker_pool", "WorkerPool",
-           "single_threaded", "jobs_for_load", "progress_bar", "BatchProgress", "prefer_one_blas_thread",
+           "single_threaded", "usable_cpus", "progress_bar", "BatchProgress", "prefer_one_blas_thread",
            "MEASURE_PRELOAD", "REPORT_PRELOAD", "keep_freed_memory"]
 
 #: extensions (lower case) of the files a folder contributes to a batch
@@ -164,28 +164,50 @@ def _sidecar_partner(path: Path) -> Path | None:
     return None
 
 
+def usable_cpus() -> int:
+    """The CPUs this process may run on: those of its affinity mask (``taskset``, a container's
+    cpuset), and no more than its cgroup's CPU quota (cgroup v2 ``cpu.max``, as container
+    limits set it; rounded up). ``os.cpu_count()`` counts the machine's CPUs instead, which a
+    pinned or CPU-limited process cannot all use. At least 1."""
+    try:
+        cpus = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # not on this platform
+        cpus = os.cpu_count() or 1
+    quota = _cgroup_cpu_quota()
+    if quota is not None:
+        cpus = min(cpus, quota)
+    return max(1, cpus)
+
+
+def _cgroup_cpu_quota(path: str = "/sys/fs/cgroup/cpu.max") -> int | None:
+    """CPUs allowed by the cgroup v2 quota at ``path`` (``"<quota> <period>"`` in µs, or
+    ``"max <period>"`` for none; Linux kernel documentation, cgroup-v2 "cpu.max"), rounded up;
+    None when there is no quota or no such file."""
+    import math
+
+    try:
+        with open(path, encoding="ascii") as f:
+            quota, period = f.read().split()[:2]
+    except (OSError, ValueError):
+        return None
+    if quota == "max":
+        return None
+    try:
+        return max(1, math.ceil(int(quota) / int(period)))
+    except (ValueError, ZeroDivisionError):
+        return None
+
+
 def default_jobs() -> int:
-    """Number of worker processes by default: the CPU count (1 when unknown)."""
-    return os.cpu_count() or 1
+    """Processes working on a batch by default, and at most: :func:`usable_cpus`.
 
-
-def jobs_for_load(jobs: int, load: float | None = None) -> int:
-    """Workers to start for ``jobs`` asked for, given the machine's load (``--jobs`` is a ceiling).
-
-    When the 1-minute load average (``os.getloadavg``; ``load`` overrides it) shows every CPU
-    busy already, the batch runs in this process: a pool's start-up and hand-overs then cost
-    more than the extra workers win (scripts/bench_batch.py measured ``--jobs 2`` at 0.86–0.98×
-    ``--jobs 1`` at load 3 on 2 cores), and one process is never slower than itself. The same
-    rule as make's ``--load-average``; where the load is not known, ``jobs`` is kept.
+    More processes than usable CPUs only take turns on them, each paying its own start and
+    cache misses; pinned to one CPU, two processes measured 0.87× of one (scripts/bench_batch.py).
+    A busy machine does not lower it: this process works on the batch too, so a worker that
+    gets little CPU time costs little, and at a load of 1 to 6 busy processes on 2 cores two
+    processes measured 1.19–1.48× one (median; worst repeat 1.06×).
     """
-    if jobs <= 1:
-        return max(1, jobs)
-    if load is None:
-        try:
-            load = os.getloadavg()[0]
-        except (OSError, AttributeError):  # not available on this platform
-            return jobs
-    return 1 if load >= default_jobs() else jobs
+    return usable_cpus()
 
 
 # --- the per-file jobs (run in workers) ----------------------------------------------------
@@ -690,7 +712,7 @@ def _hand_on(crew: _Crew, busy: set[int], files: Sequence[Path], notify: Callabl
 
 @contextmanager
 def worker_pool(jobs: int, n_files: int, *, start_method: StartMethod = "auto",
-                preload: Sequence[str] = MEASURE_PRELOAD, adapt_to_load: bool = False) -> Iterator[WorkerPool]:
+                preload: Sequence[str] = MEASURE_PRELOAD) -> Iterator[WorkerPool]:
     """Start the worker processes for a batch of ``n_files`` files; stop them on the way out.
 
     ``jobs`` processes work on the batch: this one and ``jobs − 1`` workers, all taking the next
@@ -713,7 +735,7 @@ def worker_pool(jobs: int, n_files: int, *, start_method: StartMethod = "auto",
     ----------
     jobs : int
         Processes (≥ 1) working on the batch, this one included; 1 runs the jobs in this
-        process only. No more processes than files.
+        process only. A ceiling: no more processes than files or than :func:`default_jobs`.
     n_files : int
         Number of files of the batch.
     start_method : {"auto", "forkserver", "spawn"}
@@ -722,13 +744,10 @@ def worker_pool(jobs: int, n_files: int, *, start_method: StartMethod = "auto",
         Modules the fork server imports before forking workers (only the first pool of a
         process starts the server; a module that fails to import is skipped by it), and that
         this process imports before forking (:func:`_preload_here`).
-    adapt_to_load : bool
-        Take ``jobs`` as a ceiling and start fewer workers when the machine is busy
-        (:func:`jobs_for_load`); the command line does.
     """
     if jobs < 1:
         raise ValueError(f"jobs must be ≥ 1, got {jobs}")
-    workers = min(jobs_for_load(jobs) if adapt_to_load else jobs, n_files)
+    workers = min(jobs, default_jobs(), n_files)
     keep_freed_memory()  # for the jobs run here, and inherited by forked workers
     if workers <= 1:
         yield WorkerPool(1, "in-process")
@@ -755,7 +774,7 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
              kwargs: Mapping[str, Any] | None = None,
              on_outcome: Callable[[JobOutcome], None] | None = None,
              start_method: StartMethod = "auto",
-             preload: Sequence[str] = MEASURE_PRELOAD, adapt_to_load: bool = False) -> list[JobOutcome]:
+             preload: Sequence[str] = MEASURE_PRELOAD) -> list[JobOutcome]:
     """Run ``job(path, **kwargs)`` for every file, ``jobs`` at a time.
 
     The same as ``with worker_pool(...) as pool: pool.run(...)``; a caller that starts a
@@ -778,17 +797,12 @@ def run_jobs(job: Callable[..., Any], files: Sequence[Path], *, jobs: int,
         How worker processes are started (see :func:`worker_pool`).
     preload : sequence of str
         Modules the fork server imports before forking workers.
-    adapt_to_load : bool
-        Take ``jobs`` as a ceiling and start fewer workers when the machine is busy
-        (:func:`jobs_for_load`); the command line does.
-
     Returns
     -------
     list of JobOutcome
         In completion order.
     """
-    with worker_pool(jobs, len(files), start_method=start_method, preload=preload,
-                     adapt_to_load=adapt_to_load) as pool:
+    with worker_pool(jobs, len(files), start_method=start_method, preload=preload) as pool:
         return pool.run(job, files, kwargs=kwargs, on_outcome=on_outcome)
 
 

@@ -33,7 +33,7 @@ Examples:
   benchfit measure captures/ --recursive --jobs 2 --log-default
   benchfit measure scope_export.csv --sample-rate 100k --harmonics 20
 
-Several files or a folder: files are measured at the same time in worker processes (--jobs)
+Several files or a folder: files are measured at the same time, in this process and workers (--jobs)
 and each result is printed as soon as its file is done, so the order can differ from the
 input (each JSON object names its "file"). A file that cannot be measured gives one
 "error: <file>: …" line on stderr and the others go on; the exit status is then 2.
@@ -207,8 +207,8 @@ def measure_command(
     recursive: bool = typer.Option(False, "--recursive", "-r", help="Also take capture files from sub-folders."),
     jobs: Optional[int] = typer.Option(
         None, "--jobs", "-j", metavar="N", min=1, show_default=False,
-        help="Files measured at once, each in its own worker process (default: the number of CPUs); "
-             "--jobs 1 measures one after the other in this process."),
+        help="Files measured at once: this process and N−1 worker processes (default and ceiling: the "
+             "CPUs this process may use); --jobs 1 measures one after the other in this process."),
     log: Optional[str] = typer.Option(
         None, "--log", metavar="PATH", show_default=False,
         help="Append each measured file as a run (command \"measure\") to this measurement log file (or postgresql:// URL); "
@@ -384,7 +384,7 @@ def _measure_batch(paths: list[Path], notes: list[str], opts: dict[str, Any], as
 
     # the workers start first: forked while this process has one thread (no progress bar yet)
     # and no log connection; the log is then held open for the batch, one transaction per run
-    with worker_pool(jobs, len(paths), adapt_to_load=True) as pool, held_open(log_path), \
+    with worker_pool(jobs, len(paths)) as pool, held_open(log_path), \
             progress_bar("measuring", len(paths), notes) as progress:
 
         def on_outcome(outcome) -> None:

@@ -67,8 +67,8 @@ def report_command(
     recursive: bool = typer.Option(False, "--recursive", "-r", help="Also take capture files from sub-folders."),
     jobs: Optional[int] = typer.Option(
         None, "--jobs", "-j", metavar="N", min=1, show_default=False,
-        help="With --each: units judged at once, each in its own worker process (default: the number of "
-             "CPUs); --jobs 1 works in this process."),
+        help="With --each: units judged at once: this process and N−1 worker processes (default and "
+             "ceiling: the CPUs this process may use); --jobs 1 works in this process alone."),
     as_found: Optional[List[Path]] = typer.Option(None, "--as-found", metavar="FILE",
                                                   help="Capture made before adjustment (repeatable; "
                                                        "not with --each)."),
@@ -321,8 +321,7 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     with contextlib.ExitStack() as cleanup:
         cleanup.callback(shutil.rmtree, staging, ignore_errors=True)
         # the workers start first: forked while this process has one thread (no progress bar yet)
-        pool = cleanup.enter_context(worker_pool(jobs or default_jobs(), len(paths), preload=REPORT_PRELOAD,
-                                                 adapt_to_load=True))
+        pool = cleanup.enter_context(worker_pool(jobs or default_jobs(), len(paths), preload=REPORT_PRELOAD))
         cleanup.enter_context(held_open(log_path))  # after the fork: one log connection for the batch
         progress = cleanup.enter_context(progress_bar("reporting", len(paths), notes))
 
