@@ -649,26 +649,70 @@ class WorkerPool:
                 on_outcome(outcome)
 
         crew = self._crew
-        if crew is None:
-            for i, path in enumerate(files):
-                notify(_guarded(i, path, job, kw))
-            return done
-        crew.counter.value = 0
-        busy = {k for k, conn in enumerate(crew.pipes) if _send(conn, (job, list(files), kw))}
-        while True:
-            busy -= _hand_on(crew, busy, files, notify, block=False)
-            mine = _take(crew.counter, len(files))
-            if mine is None:
-                break
-            notify(_guarded(mine, files[mine], job, kw))
-        while busy:
-            busy -= _hand_on(crew, busy, files, notify, block=True)
+        with _interrupt_between_jobs() as interrupted:
+            if crew is None:
+                for i, path in enumerate(files):
+                    notify(_guarded(i, path, job, kw))
+                    interrupted()
+                return done
+            crew.counter.value = 0
+            busy = {k for k, conn in enumerate(crew.pipes) if _send(conn, (job, list(files), kw))}
+            while True:
+                busy -= _hand_on(crew, busy, files, notify, wait_s=0.0)
+                mine = _take(crew.counter, len(files))
+                if mine is None:
+                    break
+                notify(_guarded(mine, files[mine], job, kw))
+                interrupted()
+            while busy:
+                busy -= _hand_on(crew, busy, files, notify, wait_s=_POLL_S)
+                interrupted()
         seen = {o.index for o in done}
         for i in range(len(files)):  # taken by a worker that died before it sent the outcome
             if i not in seen:
                 notify(JobOutcome(i, files[i], error=f"{files[i]}: the worker process failed — run it again "
                                                      "with --jobs 1"))
         return done
+
+
+#: how long this process waits on the workers at a time before it looks for a Ctrl-C (s)
+_POLL_S = 0.1
+
+
+@contextmanager
+def _interrupt_between_jobs() -> Iterator[Callable[[], None]]:
+    """Take a Ctrl-C in this process between jobs, not inside one; yields the check to call
+    after each job (it raises KeyboardInterrupt when one came).
+
+    A KeyboardInterrupt raised inside a C library's callback (soundfile reads a file from
+    memory through cffi callbacks) is printed as "Exception ignored" and lost, and the batch
+    went on to the end. So the first Ctrl-C only sets a flag; a second one raises at once.
+    Main thread only (elsewhere signals are not delivered, and nothing changes).
+    """
+    import signal
+    import threading
+
+    pending: list[int] = []
+
+    def check() -> None:
+        if pending:
+            raise KeyboardInterrupt
+
+    if threading.current_thread() is not threading.main_thread():
+        yield check
+        return
+
+    def on_sigint(signum: int, frame: Any) -> None:
+        if pending:
+            raise KeyboardInterrupt
+        pending.append(signum)
+        sys.stderr.write("\nstopping after the file in hand — Ctrl-C again to stop at once\n")
+
+    previous = signal.signal(signal.SIGINT, on_sigint)
+    try:
+        yield check
+    finally:
+        signal.signal(signal.SIGINT, previous)
 
 
 def _send(conn: Any, message: Any) -> bool:
@@ -681,16 +725,16 @@ def _send(conn: Any, message: Any) -> bool:
 
 
 def _hand_on(crew: _Crew, busy: set[int], files: Sequence[Path], notify: Callable[[JobOutcome], None], *,
-             block: bool) -> set[int]:
-    """Pass every outcome the busy workers have sent to ``notify``; with ``block``, wait for at
-    least one message or a worker's end first. Returns the workers that finished the batch (or died)."""
+             wait_s: float) -> set[int]:
+    """Pass every outcome the busy workers have sent to ``notify``, waiting up to ``wait_s`` for
+    a message or a worker's end first. Returns the workers that finished the batch (or died)."""
     from multiprocessing.connection import wait
 
     finished: set[int] = set()
     if not busy:
         return finished
     conns = [crew.pipes[k] for k in busy]
-    ready = wait(conns + [crew.procs[k].sentinel for k in busy], timeout=None if block else 0)
+    ready = wait(conns + [crew.procs[k].sentinel for k in busy], timeout=wait_s)
     for k in busy:
         conn, proc = crew.pipes[k], crew.procs[k]
         if conn not in ready and proc.sentinel not in ready:

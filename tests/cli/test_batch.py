@@ -318,6 +318,67 @@ def test_a_result_that_will_not_pickle_is_one_error_line(tmp_path):
                                                  and str(o.path) in o.error and "\n" not in o.error)
 
 
+def _ctrl_c_swallowed(path: Path, parent: int, presses: int, done: Path) -> str:
+    """On file f02, in this process: Ctrl-C ``presses`` times inside code that swallows a
+    KeyboardInterrupt (as a C library's callback does: soundfile's cffi callbacks print
+    "Exception ignored" and go on), then mark the job as finished."""
+    import os
+    import signal
+
+    if path.name == "f02" and os.getpid() == parent:
+        for _ in range(presses):
+            try:
+                os.kill(os.getpid(), signal.SIGINT)
+            except KeyboardInterrupt:  # lost, as in a C callback
+                pass
+    (done / path.name).touch()
+    return path.name
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_ctrl_c_inside_a_job_stops_the_batch_after_that_file(tmp_path, jobs, capsys):
+    """The first Ctrl-C is taken between files: a KeyboardInterrupt raised inside the job could
+    be swallowed by a C callback, and the batch would run to the end."""
+    import os
+
+    from benchfit.cli.batch import run_jobs
+
+    done = tmp_path / "done"
+    done.mkdir()
+    files = [tmp_path / f"f{i:02d}" for i in range(40)]
+    seen: list = []
+    with pytest.raises(KeyboardInterrupt):
+        run_jobs(_ctrl_c_swallowed, files, jobs=jobs, on_outcome=seen.append,
+                 kwargs={"parent": os.getpid(), "presses": 1, "done": done})
+    assert "f02" in {o.result for o in seen}                     # the file in hand was finished
+    assert len(seen) < len(files) and "Ctrl-C again" in capsys.readouterr().err
+
+
+def test_a_second_ctrl_c_stops_at_once(tmp_path):
+    import os
+
+    from benchfit.cli.batch import run_jobs
+
+    done = tmp_path / "done"
+    done.mkdir()
+    files = [tmp_path / f"f{i:02d}" for i in range(10)]
+    with pytest.raises(KeyboardInterrupt):
+        run_jobs(_ctrl_c_raised_twice, files, jobs=1, kwargs={"parent": os.getpid(), "done": done})
+    assert sorted(p.name for p in done.iterdir()) == ["f00", "f01"]  # f02 never finished
+
+
+def _ctrl_c_raised_twice(path: Path, parent: int, done: Path) -> str:
+    """Ctrl-C twice on f02 (the second is not caught), then mark the job as finished."""
+    import os
+    import signal
+
+    if path.name == "f02" and os.getpid() == parent:
+        os.kill(os.getpid(), signal.SIGINT)
+        os.kill(os.getpid(), signal.SIGINT)
+    (done / path.name).touch()
+    return path.name
+
+
 def test_run_jobs_reports_in_completion_order_with_index(batch):
     from benchfit.cli.batch import measure_job, run_jobs
 
