@@ -28,22 +28,18 @@ prints them as a table. Measured:
   in a fresh interpreter, for ``auto`` (fork), ``forkserver`` (with the measurement modules
   preloaded in the server) and ``spawn``.
 
-Measured 2026-12-02 17:25 UTC with ``PYTHONPATH=$PWD python3 scripts/bench_batch.py`` on the
-2-core machine at a load average of 6.2 (other sessions' runs; no idle window that day):
-jobs 1 2.32 s, forked pool 2.37 s (0.99×), fork-server pool 2.72 s (0.86×), two independent
-processes 0.82×; with the load rule 1.03× (worst repeat 0.99×); two files: fork 0.51 s,
-forkserver 0.55 s, spawn 1.03 s. The ≥ 1.7× goal is for an idle machine and was not
-measurable then.
-
-CPU time (user + system of the ``run_jobs`` call, this process and its workers, from
-``resource.getrusage``) moves much less with the load than wall time, so it shows the pool's own
-cost. Measured 2026-12-02 ~20:40 UTC at a load of 0.5–1.1, two runs of ``run(2)`` each, interleaved
-with the previous commit: after the parent imports the measure modules once before the fork
-(:func:`benchfit.cli.batch.worker_pool`), the pool took 1.32–1.43 s of CPU time against 1.17–1.19 s
-for jobs 1 and 1.28–1.31 s for two independent processes (in three interleaved A/B runs of the same
-CPU counts at load ~2, the pool's CPU time less that of two processes: 0.13–0.23 s before,
-−0.07–0.00 s after); the parent's share 12–15 % of it (mostly that one import). Wall speed-ups in the same runs: 1.51–1.63×
-(before 1.61–1.63×; the two-process bound 1.75–1.82×), not told apart at that noise.
+Measured 2026-12-03 15:13 UTC with ``PYTHONPATH=$PWD python3 scripts/bench_batch.py`` (shared
+2-core machine, load 0.4 at the start and 3 at the end as other sessions started): jobs 1 1.36 s,
+forked pool 0.84 s (1.56× median of three repeats; the two-process bound 1.39× in the same,
+disturbed, repeats), fork-server pool 1.28×; with 1 / 2 / 3 busy loops 1.22× / 1.25× / 1.30×
+median of six pairs (worst 1.12× / 1.08× / 1.10×); the pool's CPU time 1.50 s against 1.36 s for
+jobs 1 and 1.88 s for two independent processes. Interleaved A/B pairs (fresh interpreters, 200
+files) against the previous pool (a ProcessPoolExecutor of two workers with the parent only
+handing on): idle, load 0.1–0.8, 1.73× (worst 1.46×) against 1.50× (worst 1.35×) median of six,
+pool CPU time over jobs 1 0.05 s against 0.31 s; pinned to one CPU (``taskset -c 0``) 0.87×
+against 0.79× (since then ``--jobs`` is capped at the usable CPUs, so that case runs in one
+process). By Amdahl's law the parent's imports before the fork (~0.16 s, serial) leave ~1.7×
+at best for 200 one-second files.
 
 On the shared 2-core machine the numbers move with the load of other processes.
 """
