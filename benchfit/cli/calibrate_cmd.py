@@ -18,8 +18,8 @@ import typer
 
 from benchfit.cli.app import calibrate_app
 from benchfit.cli.common import cli_words, command_flags, fail, flag_words, parse_value, print_json, stderr, stdout
-from benchfit.cli.soundcard import (CAUTION, device_arg, freq_text, positive_seconds, ppm_text, progress_recorder,
-                                    whole_rate)
+from benchfit.cli.soundcard import (CAUTION, device_arg, freq_text, positive_seconds, ppm_text, print_recording_warnings,
+                                    progress_recorder, whole_rate)
 from benchfit.errors import MeasureError
 
 __all__ = ["calibrate_gain", "calibrate_timebase", "calibrate_coupling", "calibrate_distortion", "calibrate_show"]
@@ -44,7 +44,9 @@ def _calibration_source(file: Optional[Path], do_record: bool, seconds: Optional
         r, dev = whole_rate(rate), device_arg(device)
         check_input(dev, float(r), channels)  # a missing or refusing device: its one error line only
         stderr.print(CAUTION, markup=False)  # then the cautions, before anything is connected and recorded
-        progress_recorder(target, seconds, r, channels, dev, None, None, overwrite=False, sample_format="float")
+        result = progress_recorder(target, seconds, r, channels, dev, None, None, overwrite=False,
+                                   sample_format="float")
+        print_recording_warnings(result, "calibrate")
         return read_raw_wav(target), str(target) if file is not None else f"live recording ({seconds:g} s)"
     if file is None:
         fail("FILE: missing — give a recording to calibrate from, or use --record --seconds S")

@@ -12,8 +12,8 @@ from typing import Optional
 import typer
 
 from benchfit.cli.app import app
-from benchfit.cli.common import cli_words, command_flags, print_json, stderr, stdout
-from benchfit.cli.soundcard import CAUTION, device_arg, positive_seconds, progress_recorder, whole_rate
+from benchfit.cli.common import print_json, stderr, stdout
+from benchfit.cli.soundcard import CAUTION, device_arg, positive_seconds, print_recording_warnings, progress_recorder, whole_rate
 
 __all__ = ["record"]
 
@@ -65,8 +65,7 @@ def _report_recording(result, json_out: bool) -> None:
                     "clip_count": result.clip_count, "peak_dbfs": list(result.peak_dbfs),
                     "calibration": result.calibration.to_dict(), "warnings": list(result.warnings)})
         return
-    for w in result.warnings:
-        stderr.print(f"warning: {cli_words(w, command_flags('record'))}", soft_wrap=True, markup=False)
+    print_recording_warnings(result, "record")
     peaks = ", ".join(f"{n} {p:.1f} dBFS" for n, p in zip(result.channel_names, result.peak_dbfs))
     stdout.print(f"saved {result.path}: {result.duration_s:.3f} s, {len(result.channel_names)} ch at "
                  f"{result.sample_rate:g} Hz from {result.device!r}; peak {peaks}; "

@@ -103,6 +103,14 @@ def progress_recorder(out: Path, seconds: float, rate: int, channels: int, devic
             progress.stop()
 
 
+def print_recording_warnings(result, command: str) -> None:
+    """The recorder's closing warnings (lost samples, clipping, a silent input), in the command's words."""
+    from benchfit.cli.common import cli_words, command_flags, stderr
+
+    for w in result.warnings:
+        stderr.print(f"warning: {cli_words(w, command_flags(command))}", soft_wrap=True, markup=False)
+
+
 
 def freq_text(f: float, u: float) -> str:
     """Frequency with at least mHz resolution and its standard uncertainty (2 significant digits)."""

@@ -224,6 +224,19 @@ def test_calibrate_gain_recording_live(rig, tmp_path):
     assert (tmp_path / "config" / "profiles" / "live.toml").is_file()
 
 
+def test_calibrate_from_a_silent_recording_says_it_was_silent(rig, tmp_path):
+    """`calibrate timebase --record` with nothing playing: the recorder's closing warning (the input stayed
+    silent) is shown before the calibration's own refusal, and no profile is stored."""
+    r = rig.benchfit("calibrate", "timebase", "--record", "--seconds", "1", "--device", "pulse",
+                     "--frequency", "1000", "--frequency-u", "1m", "--profile", "quiet")
+    assert r.returncode == 2, r.stderr
+    lines = _error_lines(r.stderr)
+    warned = [ln for ln in lines if ln.startswith("warning: ") and "the recording is silent" in ln]
+    assert len(warned) == 1 and lines[-1].startswith("error: "), r.stderr
+    assert lines.index(warned[0]) < len(lines) - 1 and "Traceback" not in r.stderr
+    assert not (tmp_path / "config" / "profiles" / "quiet.toml").exists()
+
+
 _API_SNIPPET = """
 import json, sys
 import benchfit
