@@ -362,7 +362,8 @@ def unit_serial(path: str | Path) -> str:
 
 def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: Any = None,
                operator: str | None = None, with_log_entry: bool = False,
-               with_figures: bool = True, channel_map: Mapping[str, str] | None = None) -> dict[str, Any]:
+               with_figures: bool = True, channel_map: Mapping[str, str] | None = None,
+               sample_rate: float | None = None) -> dict[str, Any]:
     """Judge one capture as its own unit and write its report (the job of ``report --each``).
 
     Parameters
@@ -385,6 +386,8 @@ def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: 
         Draw the report's figures.
     channel_map : mapping, optional
         Spec channel name → capture channel (``report --channel output=2``).
+    sample_rate : float, optional
+        Sample rate in Hz of a CSV capture without a time column.
 
     Returns
     -------
@@ -397,7 +400,7 @@ def report_job(path: str | Path, *, spec: str | Path, out_dir: str | Path, fit: 
     unit = unit_serial(path)
     res = run_unit([path], unit=unit, spec=spec, operator=operator, out_dir=out_dir, fit=fit,
                    log_path=None, with_figures=with_figures, defer_log=with_log_entry,
-                   channel_map=channel_map)
+                   channel_map=channel_map, sample_rate=sample_rate)
     return {"file": str(path), "unit": unit, "verdict": res.verdict, "exit_code": res.exit_code,
             "html": str(res.html_path), "json": str(res.json_path),
             "log_entry": None if res.log_entry is None else dict(res.log_entry)}

@@ -95,6 +95,9 @@ def report_command(
                                                      "name or 1-based number), e.g. --channel output=2 "
                                                      "(repeatable)."),
     no_figures: bool = typer.Option(False, "--no-figures", help="Leave the figures out (faster)."),
+    sample_rate: Optional[str] = typer.Option(
+        None, "--sample-rate", metavar="RATE", help="Sample rate for CSV captures without a time column, "
+        "e.g. 48000 or 100k (Hz)."),
     drift: Optional[Path] = typer.Option(None, "--drift", metavar="RUN",
                                          help="A drift run of the unit for the Stability section: the JSON of "
                                               "'benchfit drift --json', or the long capture itself (not with --each)."),
@@ -102,7 +105,7 @@ def report_command(
                                                        "(with --each: one line per unit as it finishes)."),
 ) -> None:
     from benchfit.cli.batch import collect_captures, prefer_one_blas_thread
-    from benchfit.cli.common import check_parts_plausible, fail
+    from benchfit.cli.common import check_parts_plausible, fail, parse_value
 
     prefer_one_blas_thread()  # before numpy loads: its small matrix products run faster on one thread
 
@@ -119,6 +122,7 @@ def report_command(
                   for k, v in parse_fix_options(fix, tuple(_FIT_NAMES)).items()}
     check_parts_plausible(fix_values, "--fix")
     channel_map = _channel_map(channel)
+    rate = parse_value(sample_rate, "--sample-rate") if sample_rate is not None else None
     fit = None
     if model_name is not None or drive is not None or response is not None or fix_values:
         fit = FitOptions(model=model_name or "lc-lowpass", drive=drive, response=response, fix=fix_values)
@@ -148,14 +152,15 @@ def report_command(
         fail("; ".join(notes))
     if each:
         _report_each(paths, notes, spec=spec, out=out, fit=fit, operator=operator, log_path=log_path,
-                     with_figures=not no_figures, as_json=as_json, jobs=jobs, channel_map=channel_map)
+                     with_figures=not no_figures, as_json=as_json, jobs=jobs, channel_map=channel_map,
+                     sample_rate=rate)
         return
     if drift is not None and not drift.is_file():
         fail(f"{drift}: no such file — give the JSON of 'benchfit drift --json' or the long capture")
     assert unit is not None  # refused above unless --each
     _report_one(paths, unit=unit, spec=spec, as_found=as_found or [], operator=operator, out=out, fit=fit,
                 log_path=log_path, with_figures=not no_figures, as_json=as_json, drift=drift,
-                channel_map=channel_map)
+                channel_map=channel_map, sample_rate=rate)
 
 
 def _channel_map(items: Optional[List[str]]) -> dict[str, str]:
@@ -176,7 +181,8 @@ def _channel_map(items: Optional[List[str]]) -> dict[str, str]:
 
 def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path], operator: str | None,
                 out: Path, fit, log_path: Path | LogURL | None, with_figures: bool, as_json: bool,
-                drift: Path | None = None, channel_map: dict[str, str] | None = None) -> None:
+                drift: Path | None = None, channel_map: dict[str, str] | None = None,
+                sample_rate: float | None = None) -> None:
     """All captures belong to one unit (in this process)."""
     from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.report.assemble import run_unit
@@ -190,7 +196,7 @@ def _report_one(paths: list[Path], *, unit: str, spec: Path, as_found: list[Path
     with stderr.status("benchfit report", spinner="line") as status:
         result = run_unit(paths, unit=unit, spec=spec, as_found=as_found, operator=operator,
                           out_dir=out, fit=fit, log_path=None, defer_log=log_path is not None,
-                          channel_map=channel_map, drift=drift,
+                          channel_map=channel_map, drift=drift, sample_rate=sample_rate,
                           with_figures=with_figures, progress=lambda text: status.update(text))
     if log_path is not None:
         assert result.log_entry is not None  # run_unit returns the entry it deferred
@@ -285,7 +291,7 @@ def _style(verdict: str) -> str:
 
 def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, fit, operator: str | None,
                  log_path: Path | LogURL | None, with_figures: bool, as_json: bool, jobs: int | None,
-                 channel_map: dict[str, str] | None = None) -> None:
+                 channel_map: dict[str, str] | None = None, sample_rate: float | None = None) -> None:
     """Every capture its own unit, in worker processes; a bad capture is named and skipped.
 
     The spec and fit options are checked here first, so a mistake in them is one error, not
@@ -316,7 +322,8 @@ def _report_each(paths: list[Path], notes: list[str], *, spec: Path, out: Path, 
     except OSError as e:
         fail(f"{out}: cannot create the output directory ({e.strerror}) — check --out")
     kwargs = {"spec": str(spec), "out_dir": str(staging), "fit": fit, "operator": operator,
-              "with_log_entry": log_path is not None, "with_figures": with_figures, "channel_map": channel_map}
+              "with_log_entry": log_path is not None, "with_figures": with_figures, "channel_map": channel_map,
+              "sample_rate": sample_rate}
     outcomes = []
     with contextlib.ExitStack() as cleanup:
         cleanup.callback(shutil.rmtree, staging, ignore_errors=True)

@@ -534,17 +534,18 @@ def _map_channels(capture: Any, channel_map: Mapping[str, str]) -> Any:
     return replace(capture, channel_names=tuple(names))
 
 
-def _load_and_measure(path: str | Path, channel_map: Mapping[str, str], spec: Spec) -> tuple[Capture, Measurement]:
+def _load_and_measure(path: str | Path, channel_map: Mapping[str, str], spec: Spec,
+                      sample_rate: float | None = None) -> tuple[Capture, Measurement]:
     """(capture, measurement) of one file; a file too long to hold is measured in blocks, and its
     first block (with the file's source and SHA-256) is the capture that is fitted and drawn."""
     import benchfit
     from benchfit.measurement.long_record import is_long_file, measure_long_file
 
     if not is_long_file(path):
-        capture = _check_channels(_map_channels(benchfit.load(path), channel_map), spec)
+        capture = _check_channels(_map_channels(benchfit.load(path, sample_rate=sample_rate), channel_map), spec)
         return capture, benchfit.measure(capture)
     first: list[Any] = []
-    m = measure_long_file(path, map_block=lambda b: _map_channels(b, channel_map),
+    m = measure_long_file(path, sample_rate=sample_rate, map_block=lambda b: _map_channels(b, channel_map),
                           on_first=lambda b: first.append(_check_channels(b, spec)),
                           reason="; the fit and the waveform figures use its first block")
     return first[0], m
@@ -574,7 +575,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
              log_path: str | Path | None = None, with_figures: bool = True,
              progress: Callable[[str], None] | None = None, defer_log: bool = False,
              drift: str | Path | Mapping[str, Any] | None = None,
-             channel_map: Mapping[str, str] | None = None) -> UnitRun:
+             channel_map: Mapping[str, str] | None = None, sample_rate: float | None = None) -> UnitRun:
     """Measure (and fit) one unit's captures, write its HTML report and JSON twin, log the run.
 
     Parameters
@@ -609,6 +610,8 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     channel_map : mapping of str to str, optional
         ``{spec channel name: capture channel}`` (a name or a 1-based number): the capture's
         channel is renamed to the spec's name before it is measured (``--channel output=2``).
+    sample_rate : float, optional
+        Sample rate in Hz of CSV captures without a time column (as :func:`benchfit.load`).
 
     Raises
     ------
@@ -636,7 +639,7 @@ def run_unit(captures: Sequence[str | Path], *, unit: str, spec: str | Path | Sp
     for paths, group in ((captures, left), (as_found, found)):
         for p in paths:
             step(f"measuring {p}")
-            group.append(_load_and_measure(p, channel_map or {}, sp))
+            group.append(_load_and_measure(p, channel_map or {}, sp, sample_rate))
     fits_left: list[FitResult] = []
     fits_found: list[FitResult] = []
     fit_errors: list[str] = []

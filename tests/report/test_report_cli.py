@@ -162,3 +162,38 @@ def test_log_on_a_foreign_file_is_one_line(bench, capsys):
     code, _, err = run(["log", "list", "--log", str(foreign)], capsys)
     assert code == 2 and err.count("\n") == 1 and "not a benchfit measurement log" in err
     assert foreign.read_bytes() == before
+
+
+def _csv_without_time(path: Path, f_hz: float, seed: int) -> Path:
+    """The same hum-check output as write_unit, in volts, as one CSV column with no time column."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(FS) / FS
+    v = 1.8 * np.sin(2 * np.pi * f_hz * t) + 0.072 * np.sin(2 * np.pi * 3 * f_hz * t + 0.3) + rng.normal(0, 2e-4, t.size)
+    path.write_text("output\n" + "\n".join(f"{x:.7f}" for x in v) + "\n", encoding="utf-8")
+    return path
+
+
+def test_report_takes_the_sample_rate_of_a_csv_without_time(bench, capsys):
+    caps = bench["tmp"] / "csv"
+    caps.mkdir()
+    a = _csv_without_time(caps / "HC-11.csv", 50.02, 4)
+    _csv_without_time(caps / "HC-12.csv", 49.97, 5)
+    # without the rate the file cannot be read: one error line naming the option report now has
+    code, out, err = run(["report", str(a), "--unit", "HC-11", "--spec", str(SPEC), "--no-log"], capsys)
+    lines = [x for x in err.splitlines() if x.strip()]
+    assert code == 2 and len(lines) == 1 and "--sample-rate" in lines[0] and "Traceback" not in err, err
+    code, out, err = run(["report", str(a), "--unit", "HC-11", "--spec", str(SPEC), "--no-log", "--no-figures",
+                          "--sample-rate", "48k", "--out", str(bench["out"]), "--json"], capsys)
+    assert code == 0, err
+    twin = json.loads(Path(json.loads(out)["json"]).read_text(encoding="utf-8"))
+    code, out, err = run(["measure", str(a), "--sample-rate", "48k", "--json"], capsys)
+    measured = json.loads(out.splitlines()[0])
+    assert [m["measurement"] for m in twin["measurements"] if m["role"] == "as-left"] == [measured]
+    assert measured["sample_rate_hz"] == FS
+    # a batch passes the rate to its workers
+    code, out, err = run(["report", str(caps), "--each", "--spec", str(SPEC), "--no-log", "--no-figures",
+                          "--sample-rate", "48000", "--jobs", "2", "--out", str(bench["tmp"] / "each"), "--json"],
+                         capsys)
+    assert code == 0, err
+    units = [json.loads(line) for line in out.splitlines() if line.strip()]  # one JSON object a line
+    assert sorted(u["unit"] for u in units if "unit" in u) == ["HC-11", "HC-12"], out
