@@ -44,8 +44,17 @@ def _calibration_source(file: Optional[Path], do_record: bool, seconds: Optional
         r, dev = whole_rate(rate), device_arg(device)
         check_input(dev, float(r), channels)  # a missing or refusing device: its one error line only
         stderr.print(CAUTION, markup=False)  # then the cautions, before anything is connected and recorded
-        result = progress_recorder(target, seconds, r, channels, dev, None, None, overwrite=False,
-                                   sample_format="float")
+        from benchfit.capture.live import RecordingInterrupted
+
+        try:
+            result = progress_recorder(target, seconds, r, channels, dev, None, None, overwrite=False,
+                                       sample_format="float")
+        except RecordingInterrupted as stop:
+            kept = (f"the {stop.result.duration_s:.3f} s recorded are in {stop.result.path} and its sidecar"
+                    if file is not None else "the recording is discarded")
+            stderr.print(f"stopped by Ctrl-C: nothing calibrated, no profile changed; {kept}", soft_wrap=True,
+                         markup=False)
+            raise typer.Exit(130) from None
         print_recording_warnings(result, "calibrate")
         return read_raw_wav(target), str(target) if file is not None else f"live recording ({seconds:g} s)"
     if file is None:

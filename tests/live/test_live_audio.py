@@ -146,6 +146,32 @@ def test_sigint_keeps_a_valid_file_and_sidecar(rig, tmp_path):
     assert not any("truncat" in w.lower() for w in cap.warnings)
 
 
+def test_sigint_during_a_calibration_recording_stores_nothing(rig, tmp_path):
+    """Ctrl-C while `calibrate timebase --record FILE` records: exit 130, one line saying nothing was
+    calibrated and where the samples went, no profile, and the partial recording kept with its sidecar."""
+    player = rig.play(write_tone(tmp_path / "play.wav", 10.0, [(1000.0, 0.4)]))
+    out = tmp_path / "cal.wav"
+    try:
+        proc = subprocess.Popen([sys.executable, "-m", "benchfit", "calibrate", "timebase", str(out), "--record",
+                                 "--seconds", "30", "--device", "pulse", "--frequency", "1000",
+                                 "--frequency-u", "1m", "--profile", "halted"], env=rig.env,
+                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        end = time.monotonic() + 15
+        while time.monotonic() < end and not (out.exists() and out.stat().st_size > 4 * FS):
+            time.sleep(0.05)
+        assert out.exists(), "recording never started"
+        proc.send_signal(signal.SIGINT)
+        stdout, stderr = proc.communicate(timeout=20)
+    finally:
+        stop(player)
+    assert proc.returncode == 130, stderr
+    said = [ln for ln in _error_lines(stderr) if ln.startswith("stopped by Ctrl-C")]
+    assert len(said) == 1 and "nothing calibrated" in said[0] and str(out) in said[0], stderr
+    assert "Traceback" not in stderr and stdout == ""
+    assert json.loads(out.with_suffix(".json").read_text())["interrupted"] is True
+    assert not list(tmp_path.rglob("halted.toml"))
+
+
 def test_clip_warning_when_input_hits_full_scale(rig, tmp_path):
     """A full-scale tone is flagged live on stderr and counted in the sidecar."""
     t = np.arange(6 * FS) / FS
