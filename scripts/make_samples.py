@@ -141,10 +141,15 @@ def soundcard(x_sim: np.ndarray, seconds: float, gain_v_per_fs: float, rng, nois
     xc = np.interp(t_card, t_sim, xf)
     # AC coupling: first-order high-pass with time constant CARD_TAU_S (bilinear), run over the
     # warm-up and then the record; only the record is kept
-    b, a = signal.bilinear([CARD_TAU_S, 0.0], [CARD_TAU_S, 1.0], fs=fs_true)
-    xc = signal.lfilter(b, a, xc - xc.mean())[n_warm:]
+    xc = ac_couple(xc - xc.mean(), fs_true)[n_warm:]
     fs_units = xc / gain_v_per_fs + rng.normal(0, noise_fs, xc.size)
     return quantise_16bit(fs_units)
+
+
+def ac_couple(x: np.ndarray, fs_true: float) -> np.ndarray:
+    """The line-in's AC coupling: a first-order high-pass of time constant CARD_TAU_S (bilinear), from rest."""
+    b, a = signal.bilinear([CARD_TAU_S, 0.0], [CARD_TAU_S, 1.0], fs=fs_true)
+    return signal.lfilter(b, a, x)
 
 
 def quantise_16bit(fs_units: np.ndarray) -> np.ndarray:
@@ -335,7 +340,8 @@ def warmup_samples() -> None:
     amp = WARM_AMP_V * (1 - 0.004 * (1 - np.exp(-t / WARM_TAU_S)))
     gain = 4.0
     x = (amp * (np.cos(phase) + WARM_H3 * np.cos(3 * phase + 0.4))) / gain
-    x = x + rng.normal(0, 2e-4, x.size)
+    # the line-in was connected before switch-on: its AC coupling starts from rest, the unit's output with it
+    x = ac_couple(x, WARM_FS * card) + rng.normal(0, 2e-4, x.size)
     x = quantise_16bit(x)
     side = {
         "benchfit_sidecar": 1, "channels": [{"name": "output"}], "sample_rate_hz": WARM_FS,
@@ -348,10 +354,11 @@ def warmup_samples() -> None:
     (OUT / "hc08_warmup.json").write_text(json.dumps(side, indent=2) + "\n")
     # as left, right after the run: 1 s at 48 kHz at the settled frequency
     f_end = WARM_F * (1 + float(warm_law(np.array([WARM_S]))[0]))
-    t = np.arange(48_000) / (48_000 * card)
+    n_warm = int(round(CARD_WARMUP_S * 48_000))  # the tone was on the line-in long before: steady state
+    t = (np.arange(n_warm + 48_000) - n_warm) / (48_000 * card)
     a = WARM_AMP_V * 0.996
     x = a * (np.cos(2 * math.pi * f_end * t) + WARM_H3 * np.cos(3 * 2 * math.pi * f_end * t + 0.4)) / gain
-    x = quantise_16bit(x + rng.normal(0, 2e-4, x.size))
+    x = quantise_16bit(ac_couple(x, 48_000 * card)[n_warm:] + rng.normal(0, 2e-4, 48_000))
     write_wav(OUT / "hc08_output.flac", x, ["output"], [gain], "line-in (USB audio adapter)",
               "2026-11-29T09:10:05Z", "HC-08", subtype="PCM_16", fmt="FLAC")
     size = (OUT / "hc08_warmup.flac").stat().st_size
