@@ -740,8 +740,20 @@ def advise(spec, *, fit=None, measurement: Mapping[str, Any] | None = None,
                         f"{cand.p_pass * 100:.1f} %; {blocking} blocks it")
         best = keep
     elif best.p_pass < P_HIGH and verdict != "no change":
-        warnings.append(f"the best plan meets the spec with probability {best.p_pass * 100:.1f} % only — "
+        which = "the advised replacement" if verdict == "replace" else "the best plan"
+        warnings.append(f"{which} meets the spec with probability {best.p_pass * 100:.1f} % only — "
                         "re-measure after the change")
+    if verdict == "replace":
+        likelier = [p for p in plans if p is not best and not p.flagged and p.p_pass > best.p_pass + 0.01
+                    and not any(c.action == "replace" and c.part in far_parts for c in p.changes)]
+        if likelier:
+            # the replacement is advised although a trim around the far part is likelier to pass: say why
+            around = "; ".join(c.text for c in likelier[0].changes)
+            parts = ", ".join(sorted(far_parts))
+            notes.append(f"the part outside its tolerance ({parts}) is replaced first although a trim around it "
+                         f"is likelier to meet the spec ({around}: probability {likelier[0].p_pass * 100:.1f} %, "
+                         "among the alternatives): a part that far from its nominal value is a wrong or faulty "
+                         "part, and a trim would hide it (common practice, no source)")
     if far and verdict != "replace":
         warnings.insert(0, "; ".join(a.change.text for a in far))
     alternatives = tuple(p for p in plans if p is not best)[:8]

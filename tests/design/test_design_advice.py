@@ -79,6 +79,14 @@ def test_wrong_choke_is_replace_first_and_json_has_the_issue_shape():
     assert d["predicted"]["vrms"]["value"] == pytest.approx(math.sqrt(np.sum(y ** 2) / 2), rel=2e-3)
     for alt in d["alternatives"]:
         assert set(alt) >= {"changes", "predicted", "p_pass", "stress", "warnings"}
+    # a trim around the wrong choke that is likelier to pass stays an alternative, and the advice says
+    # why it replaces instead (the part is outside its tolerance: a wrong or faulty part)
+    trims = [a for a in adv.alternatives if a.p_pass > adv.plan.p_pass + 0.01
+             and not any(c.action == "replace" for c in a.changes)]
+    notes = [n for n in adv.notes if n.startswith("the part outside its tolerance (L) is replaced first")]
+    # (here adding C in parallel restores L·C and passes, while a new ±10 % choke alone may land off 50 Hz)
+    assert trims and len(notes) == 1, (adv.notes, [a.p_pass for a in adv.alternatives], adv.plan.p_pass)
+    assert trims[0].changes[0].text in notes[0] and f"{trims[0].p_pass * 100:.1f} %" in notes[0]
 
 
 def test_passing_unit_gets_no_change_even_without_nominal():
