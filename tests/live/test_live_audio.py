@@ -114,23 +114,30 @@ def test_recorded_tone_frequency_and_timebase_profile(rig, tmp_path):
         stop(player)
 
 
-def test_sigint_keeps_a_valid_file_and_sidecar(rig, tmp_path):
-    """Ctrl-C mid-recording: exit 130, a readable WAV and a sidecar describing what was saved."""
-    player = rig.play(write_tone(tmp_path / "play.wav", 10.0, [(250.0, 0.4)]))
-    out = tmp_path / "long.wav"
+def _interrupted(rig, tmp_path: Path, tone_hz: float, out: Path, min_bytes: int, args: list[str]):
+    """Run ``benchfit ARGS`` recording into ``out`` while a tone plays; Ctrl-C it once ``out`` holds
+    ``min_bytes``. Returns (process, stdout, stderr)."""
+    player = rig.play(write_tone(tmp_path / "play.wav", 10.0, [(tone_hz, 0.4)]))
     try:
-        proc = subprocess.Popen([sys.executable, "-m", "benchfit", "record", str(out), "--seconds", "30",
-                                 "--device", "pulse"], env=rig.env, stdout=subprocess.PIPE,
+        proc = subprocess.Popen([sys.executable, "-m", "benchfit", *args], env=rig.env, stdout=subprocess.PIPE,
                                 stderr=subprocess.PIPE, text=True)
-        # wait until about 1 s of 24-bit mono audio is on disk, then interrupt
         end = time.monotonic() + 15
-        while time.monotonic() < end and not (out.exists() and out.stat().st_size > 3 * FS):
+        while time.monotonic() < end and not (out.exists() and out.stat().st_size > min_bytes):
             time.sleep(0.05)
         assert out.exists(), "recording never started"
         proc.send_signal(signal.SIGINT)
         stdout, stderr = proc.communicate(timeout=20)
     finally:
         stop(player)
+    return proc, stdout, stderr
+
+
+def test_sigint_keeps_a_valid_file_and_sidecar(rig, tmp_path):
+    """Ctrl-C mid-recording: exit 130, a readable WAV and a sidecar describing what was saved."""
+    out = tmp_path / "long.wav"
+    # about 1 s of 24-bit mono audio on disk, then Ctrl-C
+    proc, stdout, stderr = _interrupted(rig, tmp_path, 250.0, out, 3 * FS, ["record", str(out), "--seconds", "30",
+                                                                           "--device", "pulse"])
     assert proc.returncode == 130, stderr
     assert "stopped by Ctrl-C: saved" in stderr
     info = sf.info(str(out))
@@ -149,21 +156,10 @@ def test_sigint_keeps_a_valid_file_and_sidecar(rig, tmp_path):
 def test_sigint_during_a_calibration_recording_stores_nothing(rig, tmp_path):
     """Ctrl-C while `calibrate timebase --record FILE` records: exit 130, one line saying nothing was
     calibrated and where the samples went, no profile, and the partial recording kept with its sidecar."""
-    player = rig.play(write_tone(tmp_path / "play.wav", 10.0, [(1000.0, 0.4)]))
     out = tmp_path / "cal.wav"
-    try:
-        proc = subprocess.Popen([sys.executable, "-m", "benchfit", "calibrate", "timebase", str(out), "--record",
-                                 "--seconds", "30", "--device", "pulse", "--frequency", "1000",
-                                 "--frequency-u", "1m", "--profile", "halted"], env=rig.env,
-                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
-        end = time.monotonic() + 15
-        while time.monotonic() < end and not (out.exists() and out.stat().st_size > 4 * FS):
-            time.sleep(0.05)
-        assert out.exists(), "recording never started"
-        proc.send_signal(signal.SIGINT)
-        stdout, stderr = proc.communicate(timeout=20)
-    finally:
-        stop(player)
+    proc, stdout, stderr = _interrupted(rig, tmp_path, 1000.0, out, 4 * FS, [
+        "calibrate", "timebase", str(out), "--record", "--seconds", "30", "--device", "pulse", "--frequency",
+        "1000", "--frequency-u", "1m", "--profile", "halted"])
     assert proc.returncode == 130, stderr
     said = [ln for ln in _error_lines(stderr) if ln.startswith("stopped by Ctrl-C")]
     assert len(said) == 1 and "nothing calibrated" in said[0] and str(out) in said[0], stderr
