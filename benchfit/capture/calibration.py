@@ -510,6 +510,9 @@ def load_profile(name: str, *, missing_ok: bool = False) -> CalibrationProfile |
             data = tomllib.load(fh)
     except tomllib.TOMLDecodeError as e:
         raise CaptureError(f"{path}: not valid TOML ({e}) — fix or delete the profile file") from e
+    except RecursionError as e:
+        raise CaptureError(f"{path}: nested too deeply to be a calibration profile — fix or delete the "
+                           "profile file") from e
     except OSError as e:
         raise CaptureError(f"{path}: cannot be read ({e.strerror or e}) — check its permissions") from e
     profile = CalibrationProfile.from_toml_dict(data, str(path))

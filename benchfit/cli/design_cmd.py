@@ -543,8 +543,8 @@ def _read_fit(path: Path):
         fail(f"{path}: fit file not found — save one with 'benchfit fit CAPTURE --json > FILE'")
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as e:
-        fail(f"{path}: not a JSON file ({e}) — save one with 'benchfit fit CAPTURE --json > FILE'")
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError, RecursionError) as e:
+        fail(f"{path}: not a JSON file ({_why(e)}) — save one with 'benchfit fit CAPTURE --json > FILE'")
     try:
         return FitResult.from_dict(data)
     except (KeyError, TypeError, AttributeError, ValueError) as e:
@@ -613,8 +613,13 @@ def _read_json(path: Path, what: str, how: str):
         fail(f"{path}: {'is a folder, not' if path.is_dir() else 'not found:'} {what} — {how}")
     try:
         return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as e:
-        fail(f"{path}: not a JSON file ({e}) — {how}")
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError, RecursionError) as e:
+        fail(f"{path}: not a JSON file ({_why(e)}) — {how}")
+
+
+def _why(e: BaseException) -> str:
+    """What was wrong with a JSON file, in a few words (a RecursionError's own text names Python's limit)."""
+    return "nested too deeply" if isinstance(e, RecursionError) else str(e)
 
 
 def _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, drive_swing, trials, seed,

@@ -382,8 +382,9 @@ def load_drift(drift: str | Path | Mapping[str, Any]) -> dict[str, Any]:
     if p.suffix.lower() == ".json" and p.is_file():
         try:
             d = json.loads(p.read_text(encoding="utf-8"))
-        except (OSError, UnicodeDecodeError, ValueError) as e:
-            raise SpecError(f"{p}: not a readable drift run ({e}) — give the JSON of 'benchfit drift --json' "
+        except (OSError, UnicodeDecodeError, ValueError, RecursionError) as e:
+            why = "nested too deeply" if isinstance(e, RecursionError) else str(e)
+            raise SpecError(f"{p}: not a readable drift run ({why}) — give the JSON of 'benchfit drift --json' "
                             "or the capture itself") from e
         if not isinstance(d, dict) or d.get("benchfit_drift") != 1:
             raise SpecError(f"{p}: not a drift run (no \"benchfit_drift\": 1) — give the JSON of "

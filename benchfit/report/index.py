@@ -31,7 +31,7 @@ def _entries(folder: Path) -> list[dict[str, str]]:
             continue
         try:
             d = json.loads(twin.read_text(encoding="utf-8"))
-        except (ValueError, OSError):
+        except (ValueError, OSError, RecursionError):
             continue
         if not isinstance(d, dict) or "benchfit_report" not in d:
             continue  # not a report twin (another program's JSON)

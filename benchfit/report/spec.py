@@ -422,6 +422,9 @@ def load_spec(path: str | Path) -> Spec:
         raise SpecError(f"{p}: cannot read the spec file ({e.strerror}) — check its permissions") from e
     except tomllib.TOMLDecodeError as e:
         raise SpecError(f"{p}: not valid TOML ({e}) — fix the syntax") from e
+    except RecursionError as e:  # arrays or tables nested thousands deep: no spec looks like that
+        raise SpecError(f"{p}: nested too deeply to be a spec file — fix the file (a spec holds flat "
+                        "[spec], [conditions] and [[limit]] tables)") from e
     except UnicodeDecodeError as e:
         raise SpecError(f"{p}: not UTF-8 text (byte {e.start} is not UTF-8) — save the spec as UTF-8") from e
     return parse_spec(data, str(p))

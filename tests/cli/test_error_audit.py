@@ -139,6 +139,11 @@ def files(tmp_path_factory) -> dict[str, Path]:
     f["deep_side_json"] = d / "HC-10_deep.json"
     f["deep_side_json"].write_text('{"benchfit_sidecar": 1, "x": ' + "[" * 100000 + "]" * 100000 + "}",
                                    encoding="utf-8")
+    # the same nesting in the other files the commands read (Python's parsers raise RecursionError)
+    f["deep_spec"] = d / "deep_spec.toml"
+    f["deep_spec"].write_text("x = " + "[" * 100000 + "]" * 100000 + "\n", encoding="utf-8")
+    f["deep_json"] = d / "deep_run.json"
+    f["deep_json"].write_text("[" * 100000 + "]" * 100000, encoding="utf-8")
     f["no_time_csv"] = d / "no_time.csv"
     f["no_time_csv"].write_text("output\n" + "\n".join(vals) + "\n", encoding="utf-8")
     huge = list(vals)
@@ -310,6 +315,10 @@ CASES = [
       r": spec file not found — check the path of the spec file$", "missing"),
     C("report-spec-not-toml", "report {good} --spec {spec_bad} --unit HC-01 --no-log", 2,
       r": not valid TOML \(.*\) — fix the syntax$", "spec_bad"),
+    C("report-spec-deep", "report {good} --spec {deep_spec} --unit HC-01 --no-log", 2,
+      r": nested too deeply to be a spec file — fix the file", "deep_spec"),
+    C("report-drift-deep", "report {good} --spec {spec} --unit HC-01 --no-log --drift {deep_json}", 2,
+      r": not a readable drift run \(nested too deeply\) — give the JSON", "deep_json"),
     C("report-spec-folder", "report {good} --spec {folder} --unit HC-01 --no-log", 2,
       r": is a folder, not a spec file — ", "folder"),
     C("report-no-unit", "report {good} --spec {spec} --no-log", 2, r"^error: --unit: missing — give the serial",
@@ -360,6 +369,8 @@ CASES = [
       "--fit"),
     C("design-trim-fit-not-json", "design trim --target 50 --fit {fit_bad}", 2, r": not a JSON file \(.*\) — save one",
       "fit_bad"),
+    C("design-trim-fit-deep", "design trim --target 50 --fit {deep_json}", 2,
+      r": not a JSON file \(nested too deeply\) — save one", "deep_json"),
     C("design-trim-fit-wrong", "design trim --target 50 --fit {fit_wrong}", 2, r": not a benchfit fit result ",
       "fit_wrong"),
     C("design-trim-timer-parts", "design trim --target 50 --timer-frequency 50.6", 2,

@@ -192,6 +192,9 @@ def test_missing_and_malformed_profiles(tmp_path):
     (folder / "broken.toml").write_text("benchfit_profile = 1\nname = \n")
     with pytest.raises(CaptureError, match="broken.toml: not valid TOML"):
         load_profile("broken")
+    (folder / "deep.toml").write_text("x = " + "[" * 100000 + "]" * 100000 + "\n")  # tomllib: RecursionError
+    with pytest.raises(CaptureError, match="deep.toml: nested too deeply to be a calibration profile"):
+        load_profile("deep")
     (folder / "neg.toml").write_text('benchfit_profile = 1\nname = "neg"\n[[gain]]\nchannel = 1\n'
                                      'v_per_fs = -2.0\nu_v_per_fs = 0.0\nreference_rms_v = 1.0\n')
     with pytest.raises(CaptureError, match="'v_per_fs' must be positive"):
