@@ -494,6 +494,14 @@ def design_astable(frequency_hz: float, duty: float | None = None, *, c1_farad: 
     if best is None:
         slow = 1.0 / sum(_times(R_MAX_OHM, R_MAX_OHM, float(c_cands.max()), k, diode))
         fast = 1.0 / sum(_times(R_MIN_OHM, R_MIN_OHM, float(c_cands.min()), k, diode))
+        if duty is not None and slow <= f_t <= fast:
+            # the duty depends on RA/RB alone: the resistor range bounds it whatever the capacitor
+            d_lo, d_hi = (th / (th + tl) for th, tl in (_times(R_MIN_OHM, R_MAX_OHM, 1e-6, k, diode),
+                                                        _times(R_MAX_OHM, R_MIN_OHM, 1e-6, k, diode)))
+            if not d_lo <= d_t <= d_hi:
+                raise DesignError(f"duty: {d_t * 100:.4g} % cannot be made with resistors from 1 kΩ to 1 MΩ "
+                                  f"(RA/RB from 1/1000 to 1000 gives {d_lo * 100:.4g} % to {d_hi * 100:.4g} % "
+                                  f"here; {f_t:g} Hz itself is in reach) — ask for a duty in that range")
         hint = ("use a trimmer well below 2 × RB" if pot is not None and slow <= f_t <= fast
                 else "choose another c1_farad" if c1_farad is not None else "ask for a frequency in that range")
         raise DesignError(f"frequency: {f_t:g} Hz cannot be reached with resistors from 1 kΩ to 1 MΩ "

@@ -140,6 +140,15 @@ def test_duty_below_half_needs_the_diode_or_a_low_control_voltage():
     assert abs(d.timing.duty - 0.48) < 0.01
 
 
+def test_a_duty_beyond_the_resistor_range_is_named_not_the_frequency():
+    # basic astable at 12 V: duty = (RA + RB)/(RA + 2RB) from the 555 charging law (TI SLFS022; REFERENCES §7
+    # form), so RA/RB ≤ 1000 caps it at 1001/1002 = 99.9 %; 50 Hz itself is reachable, so the duty is named
+    with pytest.raises(DesignError, match=r"^duty: 99.99 % cannot be made .* to 99.9 % here; 50 Hz itself is in reach"):
+        design_astable(50.0, 0.9999)
+    d = design_astable(50.0, 0.99, n_trials=500)
+    assert abs(d.timing.duty - 0.99) < 0.005
+
+
 def test_spread_is_seeded_and_matches_first_order_propagation():
     ra, rb, c, tr, tc = 1e3, 10e3, 1e-6, 0.01, 0.10
     a = tolerance_spread(ra, rb, c, 70.0, tolerance_r=tr, tolerance_c=tc, n_trials=40000, seed=3)
