@@ -179,24 +179,28 @@ def parse_assignments(items: list[str] | None, allowed: tuple[str, ...], option:
     return out
 
 
-#: part values no bench filter of this kind comes near (common practice, no source): outside them the
-#: number is a prefix mistake (M for mega where m, milli, was meant; a missing u for micro) rather than a
-#: part; each with an example value as the option is written
-_PLAUSIBLE_PARTS = {"L": (1e-9, 100.0, "H", "300m"), "C": (1e-13, 1.0, "F", "33u"), "Rs": (0.0, 1e7, "Ω", "12"),
-                    "Resr": (0.0, 1e7, "Ω", "0.4"), "Rload": (1e-3, 1e10, "Ω", "10k")}
+#: an example value of each part, as an option is written (the plausible ranges are
+#: benchfit.design.parts.BENCH_RANGES)
+_PART_EXAMPLES = {"L": "300m", "C": "33u", "Rs": "12", "Resr": "0.4", "Rload": "10k"}
 
 
-def check_parts_plausible(values: dict[str, Any], option: str) -> None:
+def check_parts_plausible(values: dict[str, Any], option: str, flags: dict[str, str] | None = None) -> None:
     """Refuse a part value far outside any bench part (``--fix L=300M``: 300 MH), naming the prefix rule.
 
-    A value may be a plain number or a fixed value with a tolerance (its ``value`` is checked).
+    A value may be a plain number or a fixed value with a tolerance (its ``value`` is checked); None is
+    skipped. ``option`` is the ``NAME=VALUE`` option that gave them, or ``flags`` names each part's own
+    option (``{"L": "--inductance"}``).
     """
+    from benchfit.design.parts import BENCH_RANGES
+
     for name, item in values.items():
-        if name not in _PLAUSIBLE_PARTS:
+        if name not in _PART_EXAMPLES or item is None:
             continue
         value = float(getattr(item, "value", item))
-        low, high, unit, example = _PLAUSIBLE_PARTS[name]
+        (low, high, unit), example = BENCH_RANGES[name], _PART_EXAMPLES[name]
         if low <= value <= high:
             continue
-        fail(f"{option} {name}={value:.4g} {unit}: outside any bench part ({low:g}…{high:g} {unit}) — check the "
-             f"SI prefix (M mega, k kilo, m milli, u or µ micro, n nano, p pico), e.g. {option} {name}={example}")
+        given, shown = ((f"{flags[name]} {value:.4g} {unit}", f"{flags[name]} {example}") if flags else
+                        (f"{option} {name}={value:.4g} {unit}", f"{option} {name}={example}"))
+        fail(f"{given}: outside any bench part ({low:g}…{high:g} {unit}) — check the SI prefix (M mega, k kilo, "
+             f"m milli, u or µ micro, n nano, p pico), e.g. {shown}")

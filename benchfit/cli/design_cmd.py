@@ -239,7 +239,8 @@ def astable_command(
     yield_within: str = typer.Option("1%", "--yield-within", metavar="TOL", help="Frequency band for the yield figure."),
     distribution: str = typer.Option("uniform", "--distribution", metavar="NAME",
                                      help="Part spread: uniform over ±tolerance, or normal with tolerance = 3σ."),
-    trials: int = typer.Option(20000, "--trials", metavar="N", min=100, help="Number of simulated units (100 or more)."),
+    trials: int = typer.Option(20000, "--trials", metavar="N", min=100, max=1_000_000,
+                               help="Number of simulated units (100 to 1,000,000)."),
     seed: int = typer.Option(0, "--seed", metavar="N", help="Seed of the random generator."),
     trim_pot: Optional[str] = typer.Option(None, "--trim-pot", metavar="OHM", help="Trimmer in series with RB, e.g. 10k (Ω)."),
     control_range: Optional[str] = typer.Option(None, "--control-range", metavar="LOW:HIGH",
@@ -350,13 +351,18 @@ def filter_command(
     level_tolerance: str = typer.Option("10%", "--level-tolerance", metavar="TOL",
                                         help="With --thd-max: allowed level change over part tolerances."),
     tolerance_l: str = typer.Option("10%", "--tolerance-l", metavar="TOL", help="With --thd-max: choke tolerance."),
-    trials: int = typer.Option(400, "--trials", metavar="N", min=100, help="With --thd-max: draws per point."),
+    trials: int = typer.Option(400, "--trials", metavar="N", min=100, max=20_000,
+                               help="With --thd-max: draws per point (100 to 20,000; about 2 ms each)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object."),
 ) -> None:
-    from benchfit.cli.common import fail, print_json, stdout
+    from benchfit.cli.common import check_parts_plausible, fail, print_json, stdout
     from benchfit.design.filter import design_filter
     from benchfit.units import format_quantity as fq
 
+    given = {"L": (inductance, "--inductance"), "C": (capacitance, "--capacitance"), "Rs": (rs, "--rs"),
+             "Resr": (esr, "--esr"), "Rload": (load, "--load")}
+    check_parts_plausible({k: _opt_value(v, flag, allow_zero=k in ("Rs", "Resr")) for k, (v, flag) in given.items()},
+                          "", flags={k: flag for k, (_, flag) in given.items()})
     if inductance is not None and capacitance is not None:
         _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, amplitude, as_json)
         return
@@ -433,10 +439,10 @@ def _evaluate_filter(frequency, inductance, capacitance, load, rs, esr, duty, am
 
 def _damped_filter(frequency, inductance, load, rs, duty, amplitude, thd_max, level_tolerance, tolerance_l,
                    series, trials, as_json) -> None:
-    from benchfit.cli.common import print_json, stdout
+    from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.design.damped import design_damped
 
-    with _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs", frequency_hz="--frequency",
+    with stderr.status(f"choosing f0 and Q: {trials} draws per point", spinner="line"), _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs", frequency_hz="--frequency",
                       inductance="--inductance", capacitance="--capacitance", rs_ohm="--rs", esr_ohm="--esr", load_ohm="--load"):
         d = design_damped(
             _opt_value(frequency, "--frequency"), _opt_value(inductance, "--inductance"),
@@ -576,7 +582,8 @@ def trim_command(
     duty: Optional[str] = typer.Option(None, "--duty", metavar="DUTY", help="Drive duty when no measurement is given."),
     drive_swing: Optional[str] = typer.Option(None, "--drive-swing", metavar="V",
                                               help="Drive swing at the filter (V) when no measurement is given."),
-    trials: int = typer.Option(1000, "--trials", metavar="N", min=200, help="Monte Carlo draws (200 or more)."),
+    trials: int = typer.Option(1000, "--trials", metavar="N", min=200, max=100_000,
+                               help="Monte Carlo draws (200 to 100,000; about 1 ms each)."),
     seed: int = typer.Option(0, "--seed", metavar="N", help="Seed of the random generator."),
     timer_frequency: Optional[str] = typer.Option(None, "--timer-frequency", metavar="HZ", help="Measured timer frequency (Hz)."),
     timer_frequency_u: Optional[str] = typer.Option(None, "--timer-frequency-u", metavar="HZ",
@@ -625,7 +632,7 @@ def _why(e: BaseException) -> str:
 def _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, drive_swing, trials, seed,
                timer_frequency, timer_frequency_u, ra, rb, c1, supply, diode, resistor_series, tolerance_r,
                as_json) -> None:
-    from benchfit.cli.common import fail, print_json, stdout
+    from benchfit.cli.common import fail, print_json, stderr, stdout
     from benchfit.design.advice import TimerParts, advise
     from benchfit.report.spec import load_spec
 
@@ -661,7 +668,8 @@ def _spec_trim(fit, spec, measurement, nominal, series, part_tolerance, duty, dr
         if not sep or part not in ("L", "C"):
             fail(f"--nominal {item!r}: not PART=VALUE with PART L or C — write e.g. --nominal L=300m")
         nom[part] = parse_part_value(value, f"--nominal {part}", "L" if part == "L" else "C")
-    with _OptionNames(trials="--trials", duty="--duty", measurement="--measurement",
+    with stderr.status(f"judging the plans on every limit: {trials} Monte Carlo draws each", spinner="line"), \
+            _OptionNames(trials="--trials", duty="--duty", measurement="--measurement",
                       timer_frequency_hz="--timer-frequency", supply_v="--supply", diode="--diode"):
         advice = advise(
             sp, fit=fit_result, measurement=meas, timer=timer,

@@ -21,7 +21,7 @@ from typing import Any
 
 import numpy as np
 
-from benchfit.design.parts import SERIES_TOLERANCE, check_series, combine
+from benchfit.design.parts import SERIES_TOLERANCE, check_bench_range, check_series, combine
 from benchfit.errors import DesignError
 from benchfit.model.filter import LowpassParts, transfer
 from benchfit.model.stress import CAUTIONS, stress_checks
@@ -92,6 +92,7 @@ def evaluate_filter(inductance: float, capacitance: float, frequency_hz: float, 
                     ("amplitude", amplitude_v)):
         if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
             raise DesignError(f"{name}: {v!r} must be a positive finite number — give a value above zero")
+    check_bench_range("frequency", frequency_hz, "frequency")
     if not 0 < duty < 1:
         raise DesignError(f"duty: {duty!r} must be between 0 and 1 — write e.g. 0.5 for 50 %")
     p = LowpassParts(inductance, capacitance, rs_ohm, esr_ohm, math.inf if load_ohm is None else load_ohm)
@@ -149,6 +150,7 @@ def design_damped(frequency_hz: float, inductance: float, *, rs_ohm: float, load
     if not (math.isfinite(f) and f > 0 and math.isfinite(L) and L > 0):
         raise DesignError("filter: frequency and inductance must be positive — give e.g. frequency_hz=50, "
                           "inductance=0.3")
+    check_bench_range("frequency", f, "frequency")
     if n_trials < 100:
         raise DesignError(f"trials: {n_trials!r} is too few — use at least 100")
     name = check_series(series)

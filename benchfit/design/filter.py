@@ -22,7 +22,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from benchfit.design.parts import SERIES_TOLERANCE, check_series, combine, nearest_values
+from benchfit.design.parts import BENCH_RANGES, SERIES_TOLERANCE, check_bench_range, check_series, combine, nearest_values
 from benchfit.errors import DesignError
 
 __all__ = ["DriveResponse", "FilterOption", "FilterDesign", "rectangular_response",
@@ -61,7 +61,7 @@ def part_for_resonance(frequency_hz: float, *, inductance: float | None = None,
     From ω0² = a0/a2 = (1 + Rs/Rload)/(L·C·(1 + Resr/Rload)); without a load this is the
     familiar C = 1/(ω²L).
     """
-    w = 2 * math.pi * _pos(frequency_hz, "frequency")
+    w = 2 * math.pi * check_bench_range("frequency", _pos(frequency_hz, "frequency"), "frequency")
     g = 0.0 if load_ohm is None else 1.0 / load_ohm
     ratio = (1.0 + rs_ohm * g) / (1.0 + esr_ohm * g)
     if (inductance is None) == (capacitance is None):
@@ -266,7 +266,7 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
     """
     from benchfit.model.filter import second_order
 
-    f = _pos(frequency_hz, "frequency")
+    f = check_bench_range("frequency", _pos(frequency_hz, "frequency"), "frequency")
     name = check_series(series)
     if (inductance is None) == (capacitance is None):
         raise DesignError("filter: give exactly one of inductance= and capacitance= — the other is solved for")
@@ -285,6 +285,12 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
     nominal = part_for_resonance(f, inductance=inductance, capacitance=capacitance, rs_ohm=rs,
                                  esr_ohm=esr, load_ohm=load)
     unit = "F" if solved == "C" else "H"
+    low, high, _ = BENCH_RANGES[solved]
+    if not low <= nominal <= high:
+        known = ("inductance", given, "H") if solved == "C" else ("capacitance", given, "F")
+        raise DesignError(f"frequency: {f:g} Hz with {known[0]} {known[1]:.4g} {known[2]} needs {solved} = "
+                          f"{nominal:.4g} {unit}, outside any bench part ({low:g}…{high:g} {unit}) — check the "
+                          f"frequency and the {known[0]}")
     below, above = nearest_values(nominal, name)
     combo = combine(nominal, solved, series=name, max_parts=2, top=1).best
 

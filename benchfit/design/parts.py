@@ -27,8 +27,8 @@ import numpy as np
 
 from benchfit.errors import DesignError
 
-__all__ = ["SeriesName", "PartKind", "E_SERIES", "SERIES_TOLERANCE", "PART_UNITS",
-           "check_series", "check_kind", "series_values", "nearest_values", "round_to_series",
+__all__ = ["SeriesName", "PartKind", "E_SERIES", "SERIES_TOLERANCE", "PART_UNITS", "BENCH_RANGES",
+           "check_bench_range", "check_series", "check_kind", "series_values", "nearest_values", "round_to_series",
            "Combination", "CombinationSet", "combine", "combination_value"]
 
 SeriesName = Literal["E6", "E12", "E24", "E48", "E96", "E192"]
@@ -77,6 +77,24 @@ SERIES_TOLERANCE: Mapping[str, float] = MappingProxyType(
 
 #: SI unit of each kind of part (for messages and tables)
 PART_UNITS: Mapping[str, str] = MappingProxyType({"R": "Ω", "C": "F", "L": "H"})
+
+
+#: values no bench L-C filter of this kind comes near (common practice, no source): outside them a number is
+#: a prefix mistake (M for mega where m, milli, was meant; a missing u for micro) rather than a part, and a
+#: drive frequency is outside what lumped chokes and capacitors on a bench are used for
+BENCH_RANGES: Mapping[str, tuple[float, float, str]] = MappingProxyType({
+    "L": (1e-9, 100.0, "H"), "C": (1e-13, 1.0, "F"), "Rs": (0.0, 1e7, "Ω"), "Resr": (0.0, 1e7, "Ω"),
+    "Rload": (1e-3, 1e10, "Ω"), "frequency": (1e-3, 1e7, "Hz")})
+
+
+def check_bench_range(name: str, value: float, param: str) -> float:
+    """``value`` if it lies within :data:`BENCH_RANGES` of ``name``, else a DesignError naming ``param``."""
+    low, high, unit = BENCH_RANGES[name]
+    if math.isfinite(value) and low <= value <= high:
+        return value
+    what = "drive frequency" if name == "frequency" else "part"
+    raise DesignError(f"{param}: {value:.4g} {unit} is outside any bench {what} ({low:g}…{high:g} {unit}) — "
+                      "check the value and its SI prefix (M mega, k kilo, m milli, u micro, n nano, p pico)")
 
 
 def check_series(series: str) -> str:

@@ -357,6 +357,20 @@ CASES = [
       r"^error: --control-range '6': not LOW:HIGH — ", "--control-range"),
     C("design-filter-neither-part", "design filter --frequency 50", 2,
       r"^error: --inductance/--capacitance: neither given — ", "--inductance"),
+    # bench ranges (benchfit.design.parts.BENCH_RANGES; common practice, no source): a prefix slip, a drive
+    # frequency no lumped L-C filter is used at (1e-300 Hz divided by zero), a solved part no bench holds
+    C("design-filter-mega-choke", "design filter --frequency 50 --inductance 300 --rs 1", 2,
+      r"^error: --inductance 300 H: outside any bench part \(1e-09…100 H\) — check the SI prefix .* --inductance 300m$",
+      "--inductance"),
+    C("design-filter-frequency-range", "design filter --frequency 1e-300 --inductance 300m --rs 1 --thd-max 5%", 2,
+      r"^error: --frequency: 1e-300 Hz is outside any bench drive frequency \(0\.001…1e\+07 Hz\) — ", "--frequency"),
+    C("design-filter-solved-part", "design filter --frequency 0.01 --inductance 1n --rs 1", 2,
+      r"^error: --frequency: 0\.01 Hz with inductance 1e-09 H needs C = 2\.533e\+11 F, outside any bench part",
+      "--frequency"),
+    C("design-filter-trials-cap", "design filter --frequency 50 --inductance 300m --rs 1 --thd-max 5% "
+      "--trials 1000000000", 2, r"^error: --trials '1000000000': must be 20000 or less", "--trials"),
+    C("design-astable-duty-range", "design astable --frequency 50 --duty 99.99%", 2,
+      r"^error: --duty: 99\.99 % cannot be made with resistors from 1 kΩ to 1 MΩ", "--duty"),
     C("design-kind", "design combine 1k --kind Z", 2, r"^error: --kind: unknown part kind 'Z' — use one of R, C, L$",
       "--kind"),
     C("design-stock-bad-row", "design combine 1k --kind R --stock {stock_bad}", 2,
