@@ -28,7 +28,7 @@ import numpy as np
 from benchfit.errors import DesignError
 
 __all__ = ["SeriesName", "PartKind", "E_SERIES", "SERIES_TOLERANCE", "PART_UNITS", "BENCH_RANGES",
-           "check_bench_range", "check_series", "check_kind", "series_values", "nearest_values", "round_to_series",
+           "MADE_RANGES", "check_bench_range", "check_series", "check_kind", "series_values", "nearest_values", "round_to_series",
            "Combination", "CombinationSet", "combine", "combination_value"]
 
 SeriesName = Literal["E6", "E12", "E24", "E48", "E96", "E192"]
@@ -85,15 +85,20 @@ PART_UNITS: Mapping[str, str] = MappingProxyType({"R": "Ω", "C": "F", "L": "H"}
 BENCH_RANGES: Mapping[str, tuple[float, float, str]] = MappingProxyType({
     "L": (1e-9, 100.0, "H"), "C": (1e-13, 1.0, "F"), "Rs": (0.0, 1e7, "Ω"), "Resr": (0.0, 1e7, "Ω"),
     "Rload": (1e-3, 1e10, "Ω"), "frequency": (1e-3, 1e7, "Hz")})
+#: the values resistors, capacitors and inductors are made in, shunts and supercapacitors included
+#: (common practice, no source): what :func:`combine` accepts
+MADE_RANGES: Mapping[str, tuple[float, float, str]] = MappingProxyType({
+    "R": (1e-6, 1e12, "Ω"), "C": (1e-15, 1e4, "F"), "L": (1e-12, 1e3, "H")})
 
 
-def check_bench_range(name: str, value: float, param: str) -> float:
-    """``value`` if it lies within :data:`BENCH_RANGES` of ``name``, else a DesignError naming ``param``."""
-    low, high, unit = BENCH_RANGES[name]
+def check_bench_range(name: str, value: float, param: str,
+                      ranges: Mapping[str, tuple[float, float, str]] = BENCH_RANGES) -> float:
+    """``value`` if it lies within ``ranges[name]`` (:data:`BENCH_RANGES`), else a DesignError naming ``param``."""
+    low, high, unit = ranges[name]
     if math.isfinite(value) and low <= value <= high:
         return value
-    what = "drive frequency" if name == "frequency" else "part"
-    raise DesignError(f"{param}: {value:.4g} {unit} is outside any bench {what} ({low:g}…{high:g} {unit}) — "
+    what = "bench drive frequency" if name == "frequency" else "bench part" if ranges is BENCH_RANGES else "part made"
+    raise DesignError(f"{param}: {value:.4g} {unit} is outside any {what} ({low:g}…{high:g} {unit}) — "
                       "check the value and its SI prefix (M mega, k kilo, m milli, u micro, n nano, p pico)")
 
 
@@ -374,7 +379,7 @@ def combine(target: float, kind: str, *, series: str = "E12", stock: Sequence[fl
     CombinationSet
     """
     k = check_kind(kind)
-    t = _positive(target, "value")
+    t = check_bench_range(k, _positive(target, "value"), "value", MADE_RANGES)
     if int(max_parts) != max_parts or not 1 <= max_parts <= 3:
         raise DesignError(f"max-parts: {max_parts!r} is not supported — use 1, 2 or 3")
     if int(top) != top or top < 1:

@@ -371,6 +371,8 @@ CASES = [
       "--trials 1000000000", 2, r"^error: --trials '1000000000': must be 20000 or less", "--trials"),
     C("design-astable-duty-range", "design astable --frequency 50 --duty 99.99%", 2,
       r"^error: --duty: 99\.99 % cannot be made with resistors from 1 kΩ to 1 MΩ", "--duty"),
+    C("design-combine-range", "design combine 1e-300 --kind R", 2,
+      r"^error: VALUE: 1e-300 Ω is outside any part made \(1e-06…1e\+12 Ω\) — ", "VALUE"),
     C("design-kind", "design combine 1k --kind Z", 2, r"^error: --kind: unknown part kind 'Z' — use one of R, C, L$",
       "--kind"),
     C("design-stock-bad-row", "design combine 1k --kind R --stock {stock_bad}", 2,

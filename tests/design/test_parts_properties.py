@@ -69,6 +69,9 @@ def test_add_and_recip_ignore_the_order_of_parts(parts, order):
 @given(st.floats(min_value=1.0, max_value=1e6), st.sampled_from(["R", "C", "L"]),
        st.sampled_from(["E6", "E12", "E24"]), st.integers(min_value=1, max_value=3))
 def test_combine_reports_what_its_parts_give_and_ranks_by_error(target, kind, series, max_parts):
+    # six decades of each kind inside the values parts are made in (benchfit.design.parts.MADE_RANGES):
+    # 1 Ω…1 MΩ, 1 nF…1 mF, 1 µH…1 H
+    target *= {"R": 1.0, "C": 1e-9, "L": 1e-6}[kind]
     result = combine(target, kind, series=series, max_parts=max_parts, top=5)
     errors = [abs(c.error) for c in result.combinations]
     # ranked by |relative error| to 12 decimals (below that a tie, broken by part count)
