@@ -235,6 +235,25 @@ class OutputResidual:
     def __init__(self, w: np.ndarray, wy: np.ndarray, k: np.ndarray, f: float, drive_duty: float | None):
         self.w, self.wy, self.k, self.f, self.drive_duty = w, wy, k, f, drive_duty
         self.fk = k * f
+        # each harmonic's whitening W (a real 2×2 map of (Re, Im)) as the complex map z ↦ p·z + q·z̄:
+        # p = ((W₀₀ + W₁₁) + j(W₁₀ − W₀₁))/2, q = ((W₀₀ − W₁₁) + j(W₁₀ + W₀₁))/2 (write z = x + jy and
+        # collect the terms in z and z̄). So whitened vectors (the (Re, Im) pairs in whiten's order) come
+        # from a few complex products instead of a 2×2 product per harmonic (tests/fit/test_closed_jacobian.py)
+        a, b, c, d = w[:, 0, 0], w[:, 0, 1], w[:, 1, 0], w[:, 1, 1]
+        self._p = 0.5 * ((a + d) + 1j * (c - b))
+        self._q = 0.5 * ((a - d) + 1j * (c + b))
+        # the last residual and Jacobian and the values they were evaluated at: an optimiser asks for the
+        # Jacobian where it has just evaluated the residual, and a refit's driver for both again at its end
+        self._last_r: tuple | None = None
+        self._last_j: tuple | None = None
+
+    def _white(self, z: np.ndarray) -> np.ndarray:
+        """:func:`benchfit.fit.common.whiten` of z (1-D), or of each column of z (2-D: (harmonics, columns),
+        rows (Re, Im) of each harmonic in turn), by the complex form of the whitening."""
+        if z.ndim == 1:
+            return (self._p * z + self._q * np.conj(z)).view(float)
+        zt = np.ascontiguousarray(z.T)
+        return (self._p * zt + self._q * np.conj(zt)).view(float).T
 
     def _duty(self, v: Mapping[str, float]) -> float:
         return float(v["duty"] if "duty" in v else self.drive_duty)  # type: ignore[arg-type]  # given when not fitted
@@ -250,21 +269,33 @@ class OutputResidual:
         return float(wm @ self.wy) / max(float(wm @ wm), 1e-300)
 
     def __call__(self, v: Mapping[str, float]) -> np.ndarray:
-        wm = whiten(self.w, self.model(v))
-        return self.wy - self.gain(wm) * wm
+        key = tuple(v.items())
+        if self._last_r is not None and self._last_r[0] == key:
+            return self._last_r[1]
+        wm = self._white(self.model(v))
+        r = self.wy - self.gain(wm) * wm
+        r.flags.writeable = False  # handed out again for the same values
+        self._last_r = (key, r)
+        return r
 
     def log_jacobian(self, v: Mapping[str, float], names: tuple[str, ...]) -> np.ndarray | None:
         """∂r/∂ln x for the parts and ∂r/∂x for phase, duty and asymmetry among ``names``, columns in that
         order; None for any other parameter."""
         if not set(names) <= set(PART_NAMES) | {"phase", "duty", ASYMMETRY}:
             return None
+        key = (tuple(v.items()), tuple(names))
+        if self._last_j is not None and self._last_j[0] == key:
+            return self._last_j[1]
         m, dm = self._switched_derivatives(v, names) if ASYMMETRY in v else self._ideal_derivatives(v, names)
-        wm = whiten(self.w, m)
-        wdm = np.einsum("kij,kjn->kin", self.w, np.stack([dm.real, dm.imag], axis=1)).reshape(wm.size, len(names))
+        wm = self._white(m)
+        wdm = self._white(dm)
         mm = max(float(wm @ wm), 1e-300)
         g = float(wm @ self.wy) / mm
-        dg = (self.wy @ wdm - 2.0 * g * (wm @ wdm)) / mm
-        return -np.outer(wm, dg) - g * wdm
+        dg = (self.wy - 2.0 * g * wm) @ wdm / mm
+        j = -np.outer(wm, dg) - g * wdm
+        j.flags.writeable = False
+        self._last_j = (key, j)
+        return j
 
     def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
         """The ideal drive's model phasors and their derivatives (columns over ``names``), in closed form."""
