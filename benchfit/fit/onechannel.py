@@ -50,7 +50,7 @@ import numpy as np
 
 from benchfit.errors import FitError
 from benchfit.model.filter import (PARAMETER_NAMES, PART_NAMES, rectangular_phasors,
-                                   rectangular_phasors_duty_derivative, transfer, transfer_log_gradient)
+                                   rectangular_phasors_duty_derivative, transfer_log_gradient_at, transfer_powers)
 from benchfit.fit.asymmetry import NAME as ASYMMETRY
 from benchfit.fit.budgets import (assemble, compare_core_loss, core_loss_not_separated, input_specs, propagate,
                                   source_name)
@@ -242,18 +242,16 @@ class OutputResidual:
         a, b, c, d = w[:, 0, 0], w[:, 0, 1], w[:, 1, 0], w[:, 1, 1]
         self._p = 0.5 * ((a + d) + 1j * (c - b))
         self._q = 0.5 * ((a - d) + 1j * (c + b))
+        self._powers = transfer_powers(self.fk)  # s², s, 1 at every harmonic, for H and its derivatives
         # the last residual and Jacobian and the values they were evaluated at: an optimiser asks for the
         # Jacobian where it has just evaluated the residual, and a refit's driver for both again at its end
         self._last_r: tuple | None = None
         self._last_j: tuple | None = None
 
     def _white(self, z: np.ndarray) -> np.ndarray:
-        """:func:`benchfit.fit.common.whiten` of z (1-D), or of each column of z (2-D: (harmonics, columns),
-        rows (Re, Im) of each harmonic in turn), by the complex form of the whitening."""
-        if z.ndim == 1:
-            return (self._p * z + self._q * np.conj(z)).view(float)
-        zt = np.ascontiguousarray(z.T)
-        return (self._p * zt + self._q * np.conj(zt)).view(float).T
+        """:func:`benchfit.fit.common.whiten` of z (1-D), or of each row of z (2-D: (rows, harmonics), each
+        row whitened to the (Re, Im) pairs of its harmonics in turn), by the complex form of the whitening."""
+        return (self._p * z + self._q * np.conj(z)).view(float)
 
     def _duty(self, v: Mapping[str, float]) -> float:
         return float(v["duty"] if "duty" in v else self.drive_duty)  # type: ignore[arg-type]  # given when not fitted
@@ -263,7 +261,8 @@ class OutputResidual:
         k, duty = self.k, self._duty(v)
         if ASYMMETRY in v:  # a switched source, r_high ≠ r_low (benchfit.fit.asymmetry)
             return asymmetric_phasors(k, self.f, duty, parts_of(v), v[ASYMMETRY]) * np.exp(-1j * k * v["phase"])
-        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(self.fk, parts_of(v))
+        h = transfer_log_gradient_at(self._powers, parts_of(v), ())[0]
+        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * h
 
     def gain(self, wm: np.ndarray) -> float:
         return float(wm @ self.wy) / max(float(wm @ wm), 1e-300)
@@ -288,31 +287,33 @@ class OutputResidual:
             return self._last_j[1]
         m, dm = self._switched_derivatives(v, names) if ASYMMETRY in v else self._ideal_derivatives(v, names)
         wm = self._white(m)
-        wdm = self._white(dm)
+        wdm = self._white(dm)  # a row per parameter
         mm = max(float(wm @ wm), 1e-300)
         g = float(wm @ self.wy) / mm
-        dg = (self.wy - 2.0 * g * wm) @ wdm / mm
-        j = -np.outer(wm, dg) - g * wdm
+        dg = wdm @ (self.wy - 2.0 * g * wm) / mm
+        j = (-dg[:, None] * wm[None, :] - g * wdm).T
         j.flags.writeable = False
         self._last_j = (key, j)
         return j
 
     def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """The ideal drive's model phasors and their derivatives (columns over ``names``), in closed form."""
+        """The ideal drive's model phasors and their derivatives (a row per name), in closed form."""
         k, duty = self.k, self._duty(v)
         rot = np.exp(-1j * k * v["phase"])
-        pk = rectangular_phasors(k, duty)
+        pr = rectangular_phasors(k, duty) * rot
         parts = tuple(n for n in names if n in PART_NAMES)
-        h, dh = transfer_log_gradient(self.fk, parts_of(v), parts)
-        m = pk * rot * h
-        cols = dict(zip(parts, pk * rot * dh))
-        cols["phase"] = -1j * k * m
+        h, dh = transfer_log_gradient_at(self._powers, parts_of(v), parts)
+        m = pr * h
+        rows = np.empty((len(names), k.size), dtype=complex)
+        rows[[names.index(n) for n in parts]] = pr * dh
+        if "phase" in names:
+            rows[names.index("phase")] = -1j * k * m
         if "duty" in names:
-            cols["duty"] = rectangular_phasors_duty_derivative(k, duty) * rot * h
-        return m, np.stack([cols[n] for n in names], axis=1) if names else np.zeros((k.size, 0), dtype=complex)
+            rows[names.index("duty")] = rectangular_phasors_duty_derivative(k, duty) * rot * h
+        return m, rows
 
     def _switched_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """The switched source's model phasors and their derivatives, the latter by forward differences.
+        """The switched source's model phasors and their derivatives (a row per name), by forward differences.
 
         Its periodic steady state has no closed-form derivative here; the step is scipy's own for a 2-point
         difference, √ε·max(1, |x|) in the fit's variable (ln part, or the extra itself), so the refit sees
@@ -326,7 +327,7 @@ class OutputResidual:
             moved = dict(v)
             moved[n] = math.exp(x + step) if n in PART_NAMES else x + step
             cols.append((self.model(moved) - m) / step)
-        return m, np.stack(cols, axis=1) if cols else np.zeros((m.size, 0), dtype=complex)
+        return m, np.stack(cols) if cols else np.zeros((0, m.size), dtype=complex)
 
 
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],

@@ -156,7 +156,7 @@ def test_levenberg_marquardt_rests_a_part_on_its_lower_bound():
 
 
 def test_complex_whitening_equals_the_per_harmonic_matrices():
-    """OutputResidual's whitening by z ↦ p·z + q·z̄ gives whiten()'s 2×2 products, vectors and columns alike:
+    """OutputResidual's whitening by z ↦ p·z + q·z̄ gives whiten()'s 2×2 products, vectors and rows of vectors alike:
     the same real-linear map, so they agree to rounding (a few ulp of the largest entry: 1e-14 relative is
     about 50 ulp; linear algebra, common practice, no source)."""
     rng = np.random.default_rng(7)
@@ -164,11 +164,11 @@ def test_complex_whitening_equals_the_per_harmonic_matrices():
     w = whitening(a @ np.transpose(a, (0, 2, 1)) + 0.1 * np.eye(2))
     res = OutputResidual(w, np.zeros(2 * ORDERS.size), ORDERS, F, None)
     z = rng.normal(size=ORDERS.size) + 1j * rng.normal(size=ORDERS.size)
-    cols = rng.normal(size=(ORDERS.size, 3)) + 1j * rng.normal(size=(ORDERS.size, 3))
+    rows = rng.normal(size=(3, ORDERS.size)) + 1j * rng.normal(size=(3, ORDERS.size))
     direct = whiten(w, z)
     assert np.max(np.abs(res._white(z) - direct)) <= 1e-14 * np.max(np.abs(direct))
-    direct_cols = np.stack([whiten(w, cols[:, i]) for i in range(3)], axis=1)
-    assert np.max(np.abs(res._white(cols) - direct_cols)) <= 1e-14 * np.max(np.abs(direct_cols))
+    direct_rows = np.stack([whiten(w, row) for row in rows])
+    assert np.max(np.abs(res._white(rows) - direct_rows)) <= 1e-14 * np.max(np.abs(direct_rows))
 
 
 def test_output_residual_hands_out_the_same_arrays_for_the_same_values():
