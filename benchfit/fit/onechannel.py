@@ -50,7 +50,8 @@ import numpy as np
 
 from benchfit.errors import FitError
 from benchfit.model.filter import (PARAMETER_NAMES, PART_NAMES, rectangular_phasors,
-                                   rectangular_phasors_duty_derivative, transfer_log_gradient_at, transfer_powers)
+                                   rectangular_phasors_duty_derivative, transfer_at, transfer_log_derivatives_at,
+                                   transfer_powers)
 from benchfit.fit.asymmetry import NAME as ASYMMETRY
 from benchfit.fit.budgets import (assemble, compare_core_loss, core_loss_not_separated, input_specs, propagate,
                                   source_name)
@@ -245,6 +246,7 @@ class OutputResidual:
         self._powers = transfer_powers(self.fk)  # s², s, 1 at every harmonic, for H and its derivatives
         # the last residual and Jacobian and the values they were evaluated at: an optimiser asks for the
         # Jacobian where it has just evaluated the residual, and a refit's driver for both again at its end
+        self._last: tuple | None = None
         self._last_r: tuple | None = None
         self._last_j: tuple | None = None
 
@@ -261,8 +263,32 @@ class OutputResidual:
         k, duty = self.k, self._duty(v)
         if ASYMMETRY in v:  # a switched source, r_high ≠ r_low (benchfit.fit.asymmetry)
             return asymmetric_phasors(k, self.f, duty, parts_of(v), v[ASYMMETRY]) * np.exp(-1j * k * v["phase"])
-        h = transfer_log_gradient_at(self._powers, parts_of(v), ())[0]
-        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * h
+        return self._ideal(v)[0]
+
+    def _ideal(self, v: Mapping[str, float]) -> tuple:
+        """The ideal drive's model phasors and what its derivatives reuse: (m, P_k·e^{−jkφ}, e^{−jkφ}, H, its
+        denominator, the parts)."""
+        rot = np.exp(-1j * self.k * v["phase"])
+        pr = rectangular_phasors(self.k, self._duty(v)) * rot
+        parts = parts_of(v)
+        h, den = transfer_at(self._powers, parts)
+        return pr * h, pr, rot, h, den, parts
+
+    def _state(self, v: Mapping[str, float]) -> tuple:
+        """(key, m, whitened m, m·m, gain, the ideal drive's pieces or None) at ``v``, kept for the last values:
+        the Jacobian is mostly asked for where the residual has just been evaluated."""
+        key = tuple(v.items())
+        if self._last is not None and self._last[0] == key:
+            return self._last
+        if ASYMMETRY in v:
+            m, pieces = self.model(v), None
+        else:
+            pieces = self._ideal(v)
+            m = pieces[0]
+        wm = self._white(m)
+        mm = max(float(wm @ wm), 1e-300)
+        self._last = (key, m, wm, mm, float(wm @ self.wy) / mm, pieces)
+        return self._last
 
     def gain(self, wm: np.ndarray) -> float:
         return float(wm @ self.wy) / max(float(wm @ wm), 1e-300)
@@ -271,8 +297,8 @@ class OutputResidual:
         key = tuple(v.items())
         if self._last_r is not None and self._last_r[0] == key:
             return self._last_r[1]
-        wm = self._white(self.model(v))
-        r = self.wy - self.gain(wm) * wm
+        _, _, wm, _, g, _ = self._state(v)
+        r = self.wy - g * wm
         r.flags.writeable = False  # handed out again for the same values
         self._last_r = (key, r)
         return r
@@ -285,41 +311,35 @@ class OutputResidual:
         key = (tuple(v.items()), tuple(names))
         if self._last_j is not None and self._last_j[0] == key:
             return self._last_j[1]
-        m, dm = self._switched_derivatives(v, names) if ASYMMETRY in v else self._ideal_derivatives(v, names)
-        wm = self._white(m)
+        _, m, wm, mm, g, pieces = self._state(v)
+        dm = self._switched_derivatives(v, names, m) if pieces is None else self._ideal_derivatives(v, names, pieces)
         wdm = self._white(dm)  # a row per parameter
-        mm = max(float(wm @ wm), 1e-300)
-        g = float(wm @ self.wy) / mm
         dg = wdm @ (self.wy - 2.0 * g * wm) / mm
         j = (-dg[:, None] * wm[None, :] - g * wdm).T
         j.flags.writeable = False
         self._last_j = (key, j)
         return j
 
-    def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """The ideal drive's model phasors and their derivatives (a row per name), in closed form."""
-        k, duty = self.k, self._duty(v)
-        rot = np.exp(-1j * k * v["phase"])
-        pr = rectangular_phasors(k, duty) * rot
+    def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...], pieces: tuple) -> np.ndarray:
+        """The ideal drive's model derivatives (a row per name), in closed form."""
+        k = self.k
+        m, pr, rot, h, den, lp = pieces
         parts = tuple(n for n in names if n in PART_NAMES)
-        h, dh = transfer_log_gradient_at(self._powers, parts_of(v), parts)
-        m = pr * h
         rows = np.empty((len(names), k.size), dtype=complex)
-        rows[[names.index(n) for n in parts]] = pr * dh
+        rows[[names.index(n) for n in parts]] = pr * transfer_log_derivatives_at(self._powers, lp, parts, h, den)
         if "phase" in names:
             rows[names.index("phase")] = -1j * k * m
         if "duty" in names:
-            rows[names.index("duty")] = rectangular_phasors_duty_derivative(k, duty) * rot * h
-        return m, rows
+            rows[names.index("duty")] = rectangular_phasors_duty_derivative(k, self._duty(v)) * rot * h
+        return rows
 
-    def _switched_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """The switched source's model phasors and their derivatives (a row per name), by forward differences.
+    def _switched_derivatives(self, v: Mapping[str, float], names: tuple[str, ...], m: np.ndarray) -> np.ndarray:
+        """The switched source's model derivatives (a row per name), by forward differences from its phasors m.
 
         Its periodic steady state has no closed-form derivative here; the step is scipy's own for a 2-point
         difference, √ε·max(1, |x|) in the fit's variable (ln part, or the extra itself), so the refit sees
         the derivatives scipy's solver estimated, from one model call per column instead of a residual call.
         """
-        m = self.model(v)
         cols = []
         for n in names:
             x = math.log(v[n]) if n in PART_NAMES else float(v[n])
@@ -327,7 +347,7 @@ class OutputResidual:
             moved = dict(v)
             moved[n] = math.exp(x + step) if n in PART_NAMES else x + step
             cols.append((self.model(moved) - m) / step)
-        return m, np.stack(cols) if cols else np.zeros((0, m.size), dtype=complex)
+        return np.stack(cols) if cols else np.zeros((0, m.size), dtype=complex)
 
 
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],

@@ -31,7 +31,8 @@ from functools import lru_cache
 import numpy as np
 
 __all__ = ["PARAMETER_NAMES", "PART_NAMES", "LowpassParts", "coefficients", "coefficients_full", "feedthrough",
-           "transfer", "transfer_log_gradient", "transfer_log_gradient_at", "transfer_powers", "sampled_transfer", "second_order",
+           "transfer", "transfer_log_gradient", "transfer_log_gradient_at", "transfer_powers",
+           "transfer_at", "transfer_log_derivatives_at", "sampled_transfer", "second_order",
            "state_space", "discretize", "simulate", "free_response_basis", "rectangular_phasors",
            "band_limit_prefilter", "prefilter_drive", "prefiltered_transfer", "simulate_band_limited",
            "rectangular_phasors_duty_derivative"]
@@ -159,17 +160,29 @@ def transfer_powers(frequency_hz: np.ndarray | float) -> np.ndarray:
     return np.stack([s * s, s, np.ones_like(s)])
 
 
+def transfer_at(powers: np.ndarray, p: LowpassParts) -> tuple[np.ndarray, np.ndarray]:
+    """H = N/D and the denominator D at the frequencies whose :func:`transfer_powers` are given."""
+    b, a = coefficients_full(p)
+    den = a @ powers
+    return (b @ powers) / den, den
+
+
+def transfer_log_derivatives_at(powers: np.ndarray, p: LowpassParts, names: tuple[str, ...], h: np.ndarray,
+                                den: np.ndarray) -> np.ndarray:
+    """∂H/∂ln x for the parts ``names`` (a row each), given H and D there (:func:`transfer_at`):
+    dH = (dN − H·dD)/D (:func:`transfer_log_gradient`)."""
+    if not names:
+        return np.zeros((0, h.size), dtype=complex)
+    db, da = _coefficient_derivative_rows(p, names)
+    return (np.array(db) @ powers - h * (np.array(da) @ powers)) / den
+
+
 def transfer_log_gradient_at(powers: np.ndarray, p: LowpassParts,
                              names: tuple[str, ...] = PART_NAMES) -> tuple[np.ndarray, np.ndarray]:
     """:func:`transfer_log_gradient` at the frequencies whose :func:`transfer_powers` are given, for a caller
     that evaluates it many times at the same frequencies (a fit)."""
-    b, a = coefficients_full(p)
-    den = a @ powers
-    h = (b @ powers) / den
-    if not names:
-        return h, np.zeros((0, h.size), dtype=complex)
-    db, da = _coefficient_derivative_rows(p, names)
-    return h, (np.array(db) @ powers - h * (np.array(da) @ powers)) / den
+    h, den = transfer_at(powers, p)
+    return h, transfer_log_derivatives_at(powers, p, names, h, den)
 
 
 def transfer_log_gradient(frequency_hz: np.ndarray | float, p: LowpassParts,
