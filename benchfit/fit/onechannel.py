@@ -84,6 +84,34 @@ _MIN_HARMONIC_REL = 1e-5
 _U_FLOOR_REL = 1e-7
 
 
+def _turned(x: np.ndarray, k: np.ndarray) -> np.ndarray:
+    """x_k·(x₁*/|x₁|)^k along the last axis (the phasors turned so that the first one is real)."""
+    return x * (np.conj(x[..., :1]) / np.maximum(np.abs(x[..., :1]), 1e-300)) ** k
+
+
+def _shape_costs(k: np.ndarray, z: np.ndarray, w: np.ndarray, pk: np.ndarray, r: np.ndarray,
+                 q: np.ndarray) -> np.ndarray:
+    """:func:`_shape_grid`'s cost Σw|z − g·s^k·N_k|² minus the constant Σw|z|², at the optimal g and sign, over
+    f0/f = ``r``, Q = ``q`` and the duties of the rectangular phasors ``pk`` (D, K): shape (R, Q, D).
+
+    M₁ = P₁·H₂(1), so (M₁*/|M₁|)^k = (P₁*/|P₁|)^k·(H₂(1)*/|H₂(1)|)^k and N_k = A_k·B_k with A = H₂ turned by
+    its own first phase and B = P turned by its own (:func:`_turned`): the sums over k are then products of an
+    (R·Q, K) and a (K, D) matrix instead of sums over an (R, Q, D, K) array
+    (tests/fit/test_onechannel_shape_grid.py checks them against the direct sums).
+    """
+    kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
+    h2 = 1.0 / (1.0 - kr ** 2 + 1j * kr / q[None, :, None])  # (R, Q, K)
+    a_turned = _turned(h2, k).reshape(-1, k.size)  # (R·Q, K)
+    b_turned = _turned(pk, k)  # (D, K)
+    den = (np.abs(a_turned) ** 2) @ (w * np.abs(b_turned) ** 2).T  # Σ w|N_k|², the same for both signs
+    out = np.full(den.shape, math.inf)
+    for sign in (1.0, -1.0):
+        # Σ w·Re(N_k*·s^k·z_k) = Re Σ A_k*·(B_k*·s^k·w·z_k)
+        num = (np.conj(a_turned) @ (np.conj(b_turned) * (np.where(k % 2 == 0, sign, 1.0) * w * z)).T).real
+        out = np.minimum(out, -num * num / np.maximum(den, 1e-300))  # −2g·num + g²·den at g = num/den
+    return out.reshape(r.size, q.size, pk.shape[0])
+
+
 def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
                 duty: float | None, basins: int = 1) -> list[tuple[float, float, float]]:
     """Coarse starts (f0/f, Q, D) from the output phasors, independent of gain and timing, best first.
@@ -102,19 +130,7 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
     pk = rectangular_phasors(k[None, :], d[:, None])  # type: ignore[arg-type]  # broadcasts: (D, K)
 
     def costs(r: np.ndarray, q: np.ndarray) -> np.ndarray:
-        """Σw|z − g·s^k·N_k|² minus the constant Σw|z|², at the optimal g and sign: shape (R, Q, D)."""
-        kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
-        h2 = 1.0 / (1.0 - kr ** 2 + 1j * kr / q[None, :, None])  # (R, Q, K)
-        m = h2[:, :, None, :] * pk[None, None, :, :]  # (R, Q, D, K)
-        m1 = m[..., :1]
-        n = m * (np.conj(m1) / np.maximum(np.abs(m1), 1e-300)) ** k
-        out = np.full(n.shape[:-1], math.inf)
-        for sign in (1.0, -1.0):
-            ns = n * np.where(k % 2 == 0, sign, 1.0)
-            num = np.sum(w * (np.conj(ns) * z).real, axis=-1)
-            den = np.sum(w * np.abs(ns) ** 2, axis=-1)
-            out = np.minimum(out, -num * num / np.maximum(den, 1e-300))  # −2g·num + g²·den at g = num/den
-        return out
+        return _shape_costs(k, z, w, pk, r, q)
 
     def best_of(r: np.ndarray, q: np.ndarray) -> tuple[float, float, float]:
         c = costs(r, q)
