@@ -43,7 +43,7 @@ Every value and u of the bench capture, hc01 and hc02 agree before and after to 
 
 One-channel fit, measured 2026-12-04 20:29–20:31 UTC at a 1-minute load of 0.7–1.0 (other sessions' runs),
 three rounds interleaved with the tree before this stop's changes (f46341d), each the median of five in-process
-fits: 2.51–2.80 s before, 1.20–1.33 s after (2.0–2.1× a round; CPU time the same within 0.05 s); the ≤ 0.5 s
+fits: 2.51–2.80 s before, 1.20–1.33 s after (2.0–2.1× a round; CPU time the same within 0.06 s); the ≤ 0.5 s
 goal is still missed. The same ~740 refits take the same ~11 steps each: this stop cut the cost of a step.
 The Jacobian reuses the model phasors, H and its denominator of the residual just evaluated at the same
 values, and a refit's driver gets its start's and end's residual and Jacobian back instead of computing them

@@ -238,6 +238,10 @@ def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
     return best
 
 
+#: the parameters :meth:`OutputResidual.log_jacobian` has derivatives for
+_JACOBIAN_NAMES = frozenset(PART_NAMES) | {"phase", "duty", ASYMMETRY}
+
+
 class OutputResidual:
     """Whitened residuals of the output phasors against Y_k = G·P_k(D)·e^{−jkφ}·H(jkω) (module docstring).
 
@@ -290,10 +294,9 @@ class OutputResidual:
         h, den = transfer_at(self._powers, parts)
         return pr * h, pr, rot, h, den, parts
 
-    def _state(self, v: Mapping[str, float]) -> tuple:
-        """(key, m, whitened m, m·m, gain, the ideal drive's pieces or None) at ``v``, kept for the last values:
-        the Jacobian is mostly asked for where the residual has just been evaluated."""
-        key = tuple(v.items())
+    def _state(self, v: Mapping[str, float], key: tuple) -> tuple:
+        """(key, m, whitened m, m·m, gain, the ideal drive's pieces or None) at ``v`` (``key`` its items), kept for
+        the last values: the Jacobian is mostly asked for where the residual has just been evaluated."""
         if self._last is not None and self._last[0] == key:
             return self._last
         if ASYMMETRY in v:
@@ -313,7 +316,7 @@ class OutputResidual:
         key = tuple(v.items())
         if self._last_r is not None and self._last_r[0] == key:
             return self._last_r[1]
-        _, _, wm, _, g, _ = self._state(v)
+        _, _, wm, _, g, _ = self._state(v, key)
         r = self.wy - g * wm
         r.flags.writeable = False  # handed out again for the same values
         self._last_r = (key, r)
@@ -322,12 +325,13 @@ class OutputResidual:
     def log_jacobian(self, v: Mapping[str, float], names: tuple[str, ...]) -> np.ndarray | None:
         """∂r/∂ln x for the parts and ∂r/∂x for phase, duty and asymmetry among ``names``, columns in that
         order; None for any other parameter."""
-        if not set(names) <= set(PART_NAMES) | {"phase", "duty", ASYMMETRY}:
+        if not _JACOBIAN_NAMES.issuperset(names):
             return None
-        key = (tuple(v.items()), tuple(names))
+        values_key = tuple(v.items())
+        key = (values_key, tuple(names))
         if self._last_j is not None and self._last_j[0] == key:
             return self._last_j[1]
-        _, m, wm, mm, g, pieces = self._state(v)
+        _, m, wm, mm, g, pieces = self._state(v, values_key)
         dm = self._switched_derivatives(v, names, m) if pieces is None else self._ideal_derivatives(v, names, pieces)
         wdm = self._white(dm)  # a row per parameter
         dg = wdm @ (self.wy - 2.0 * g * wm) / mm
@@ -342,7 +346,11 @@ class OutputResidual:
         m, pr, rot, h, den, lp = pieces
         parts = tuple(n for n in names if n in PART_NAMES)
         rows = np.empty((len(names), k.size), dtype=complex)
-        rows[[names.index(n) for n in parts]] = pr * transfer_log_derivatives_at(self._powers, lp, parts, h, den)
+        dh = transfer_log_derivatives_at(self._powers, lp, parts, h, den)
+        if names[:len(parts)] == parts:  # the usual order: the parts, then the extras
+            np.multiply(pr, dh, out=rows[:len(parts)])
+        else:
+            rows[[names.index(n) for n in parts]] = pr * dh
         if "phase" in names:
             rows[names.index("phase")] = -1j * k * m
         if "duty" in names:

@@ -174,7 +174,8 @@ def transfer_log_derivatives_at(powers: np.ndarray, p: LowpassParts, names: tupl
     if not names:
         return np.zeros((0, h.size), dtype=complex)
     db, da = _coefficient_derivative_rows(p, names)
-    return (np.array(db) @ powers - h * (np.array(da) @ powers)) / den
+    both = np.array(db + da) @ powers  # the rows of dN, then those of dD
+    return (both[:len(names)] - h * both[len(names):]) / den
 
 
 def transfer_log_gradient_at(powers: np.ndarray, p: LowpassParts,
