@@ -156,10 +156,13 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
     extra = dict(extra or {})
     names = tuple(free) + tuple(extra)
 
+    n_free = len(free)
+
     def values_from(z: np.ndarray) -> dict[str, float]:
         out = dict(fixed)
-        out.update({n: float(math.exp(v)) for n, v in zip(free, z[:len(free)])})
-        out.update({n: float(v) for n, v in zip(extra, z[len(free):])})
+        zs = z.tolist()  # Python floats, the same numbers
+        out.update(zip(free, map(math.exp, zs[:n_free])))
+        out.update(zip(extra, zs[n_free:]))
         return out
 
     x0 = np.array([math.log(start[n]) for n in free] + [extra[n][0] for n in extra])
