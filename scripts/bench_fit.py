@@ -40,6 +40,29 @@ base fits along the Rs–load valley are now half its time and stay on scipy's s
 different places along a direction the data do not see, and the grid's ranges follow from that stop.
 Every value and u of the bench capture, hc01 and hc02 agree before and after to 0.001 % of u
 (``scripts/compare_fits.py`` on the ``--json`` outputs).
+
+One-channel fit, measured 2026-12-04 20:29–20:31 UTC at a 1-minute load of 0.7–1.0 (other sessions' runs),
+three rounds interleaved with the tree before this stop's changes (f46341d), each the median of five in-process
+fits: 2.51–2.80 s before, 1.20–1.33 s after (2.0–2.1× a round; CPU time the same within 0.06 s); the ≤ 0.5 s
+goal is still missed. The same ~740 refits take the same ~11 steps each: this stop cut the cost of a step.
+The Jacobian reuses the model phasors, H and its denominator of the residual just evaluated at the same
+values, and a refit's driver gets its start's and end's residual and Jacobian back instead of computing them
+again (fit.onechannel.OutputResidual); H's log-derivatives come from one list of scalar coefficient rows at
+powers of s computed once per fit (model.filter.transfer_at, transfer_log_derivatives_at); the whitening is the
+complex map z ↦ p·z + q·z̄ instead of a 2×2 product per harmonic; Levenberg–Marquardt forms its normal equations
+once per Jacobian, not once per damping tried; the shape grid's sums over the harmonics are matrix products
+(its turning phase factors); a point's delta-method gradient skips the phase's and duty's columns, which are 0.
+Sample fits (``benchfit fit hc01_output.flac --method one-channel --fix L=300m``, hc02 likewise; a fresh
+process, wall, the same rounds): hc01 4.9–5.3 s → 3.3–3.4 s, hc02 4.8–5.2 s → 3.3–3.45 s; what is left there
+is mostly scipy's trust-region solver on the base fits and the core-loss comparison (left on it: a direction
+the data do not see) and imports. Every value and u of the bench capture and of hc01, hc02, hc05 and hc06
+agrees before and after to 0.001 % of u; hc04's to 0.05 % of u, which is also how far one ulp more in its
+whitened data moves the old code's result, except its Rp: an open core loss (1e33…1e57 Ω) that the refits
+leave wherever scipy's solver stops along Rp → ∞ (that ulp moves it as far). Tried and left out: stopping
+a refit once a Gauss–Newton step could gain less than tol·χ² (8 % faster on the bench capture, 0.0004 % of u
+there, but hc04 moved by 11–18 % of u: its refits follow one another's stops along that open direction), and
+warm starts extrapolated along the grid line (no fewer steps: the data pin C to ppm, and the starts stayed
+1e5–1e9 away in χ²).
 """
 
 from __future__ import annotations

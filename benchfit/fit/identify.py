@@ -156,10 +156,13 @@ def fit_log_parameters(residual: Callable[[dict[str, float]], np.ndarray],
     extra = dict(extra or {})
     names = tuple(free) + tuple(extra)
 
+    n_free = len(free)
+
     def values_from(z: np.ndarray) -> dict[str, float]:
         out = dict(fixed)
-        out.update({n: float(math.exp(v)) for n, v in zip(free, z[:len(free)])})
-        out.update({n: float(v) for n, v in zip(extra, z[len(free):])})
+        zs = z.tolist()  # Python floats, the same numbers
+        out.update(zip(free, map(math.exp, zs[:n_free])))
+        out.update(zip(extra, zs[n_free:]))
         return out
 
     x0 = np.array([math.log(start[n]) for n in free] + [extra[n][0] for n in extra])
@@ -236,27 +239,38 @@ def levenberg_marquardt(fcn: Callable[[np.ndarray], np.ndarray], jac: Callable[[
     lam0, down, up = _LM_DAMPING
     x = np.asarray(x0, dtype=float)
     rest = np.zeros(x.size, dtype=bool) if floor is None else np.asarray(floor, dtype=bool)
+    resting = bool(np.any(rest))
     r = fcn(x)
     cost = float(r @ r)
     j = jac(x)
     lam = lam0
     nfev = 1
+    fresh = True  # the normal equations are those of the current x (they change only with an accepted step)
     while nfev < max_nfev:
-        g = j.T @ r
-        move = ~(rest & (x <= lo) & (g > 0))  # held on its lower bound while χ² falls towards it
-        if not np.any(move):
-            return x, True
-        a = j[:, move].T @ j[:, move]
-        step = np.zeros_like(x)
+        if fresh:
+            g = j.T @ r
+            move = ~(rest & (x <= lo) & (g > 0))  # held on its lower bound while χ² falls towards it
+            if not move.any():
+                return x, True
+            every = bool(move.all())
+            jm = j if every else j[:, move]
+            a = jm.T @ jm
+            scale = np.diag(np.maximum(np.diag(a), 1e-300))
+            fresh = False
         try:
-            step[move] = np.linalg.solve(a + lam * np.diag(np.maximum(np.diag(a), 1e-300)), -g[move])
+            solved = np.linalg.solve(a + lam * scale, -(g if every else g[move]))
         except np.linalg.LinAlgError:
             return x, False
-        xn = np.where(rest, np.maximum(x + step, lo), x + step)
-        if np.any(xn < lo) or np.any(xn > hi):
+        if every:
+            step = solved
+        else:
+            step = np.zeros_like(x)
+            step[move] = solved
+        xn = np.where(rest, np.maximum(x + step, lo), x + step) if resting else x + step
+        if (xn < lo).any() or (xn > hi).any():
             return x, False
         step = xn - x
-        small = float(np.linalg.norm(step)) <= tol * (tol + float(np.linalg.norm(x)))
+        small = math.sqrt(float(step @ step)) <= tol * (tol + math.sqrt(float(x @ x)))
         rn = fcn(xn)
         nfev += 1
         cost_n = float(rn @ rn)
@@ -266,6 +280,7 @@ def levenberg_marquardt(fcn: Callable[[np.ndarray], np.ndarray], jac: Callable[[
             if done:
                 return x, True
             j = jac(x)
+            fresh = True
             lam *= down
         else:
             if small:

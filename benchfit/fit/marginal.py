@@ -187,8 +187,18 @@ def _quantities(values: dict[str, float], names: tuple[str, ...], jac: np.ndarra
         return np.array([v[k] if k in v and k not in fig else fig[k] for k in keys])
 
     base = all_of(x0)
-    # a held infinite part (no load) does not move with the fitted ones: numeric_jacobian gives it 0
-    grad = numeric_jacobian(all_of, x0, step=1e-6) if x0.size else np.zeros((len(keys), 0))
+    # a held infinite part (no load) does not move with the fitted ones: numeric_jacobian gives it 0. So does
+    # every extra that is not itself a key (the phase, the duty) when no further figure reads it: the parts
+    # and figures depend on the parts alone, so those columns are exactly 0 and are not differenced
+    moving = np.array([lg or n in keys or bool(more) for n, lg in zip(names, is_log)], dtype=bool)
+    grad = np.zeros((len(keys), x0.size))
+    if np.any(moving):
+        def moved(zm: np.ndarray) -> np.ndarray:
+            z = x0.copy()
+            z[moving] = zm
+            return all_of(z)
+
+        grad[:, moving] = numeric_jacobian(moved, x0[moving], step=1e-6)
     var = np.einsum("ij,jk,ik->i", grad, cov, grad) if x0.size else np.zeros(len(keys))
     return ({k: float(b) for k, b in zip(keys, base)},
             {k: float(math.sqrt(max(s, 0.0))) if math.isfinite(s) else math.nan for k, s in zip(keys, var)})

@@ -50,7 +50,8 @@ import numpy as np
 
 from benchfit.errors import FitError
 from benchfit.model.filter import (PARAMETER_NAMES, PART_NAMES, rectangular_phasors,
-                                   rectangular_phasors_duty_derivative, transfer, transfer_log_gradient)
+                                   rectangular_phasors_duty_derivative, transfer_at, transfer_log_derivatives_at,
+                                   transfer_powers)
 from benchfit.fit.asymmetry import NAME as ASYMMETRY
 from benchfit.fit.budgets import (assemble, compare_core_loss, core_loss_not_separated, input_specs, propagate,
                                   source_name)
@@ -83,6 +84,34 @@ _MIN_HARMONIC_REL = 1e-5
 _U_FLOOR_REL = 1e-7
 
 
+def _turned(x: np.ndarray, k: np.ndarray) -> np.ndarray:
+    """x_k·(x₁*/|x₁|)^k along the last axis (the phasors turned so that the first one is real)."""
+    return x * (np.conj(x[..., :1]) / np.maximum(np.abs(x[..., :1]), 1e-300)) ** k
+
+
+def _shape_costs(k: np.ndarray, z: np.ndarray, w: np.ndarray, pk: np.ndarray, r: np.ndarray,
+                 q: np.ndarray) -> np.ndarray:
+    """:func:`_shape_grid`'s cost Σw|z − g·s^k·N_k|² minus the constant Σw|z|², at the optimal g and sign, over
+    f0/f = ``r``, Q = ``q`` and the duties of the rectangular phasors ``pk`` (D, K): shape (R, Q, D).
+
+    M₁ = P₁·H₂(1), so (M₁*/|M₁|)^k = (P₁*/|P₁|)^k·(H₂(1)*/|H₂(1)|)^k and N_k = A_k·B_k with A = H₂ turned by
+    its own first phase and B = P turned by its own (:func:`_turned`): the sums over k are then products of an
+    (R·Q, K) and a (K, D) matrix instead of sums over an (R, Q, D, K) array
+    (tests/fit/test_onechannel_shape_grid.py checks them against the direct sums).
+    """
+    kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
+    h2 = 1.0 / (1.0 - kr ** 2 + 1j * kr / q[None, :, None])  # (R, Q, K)
+    a_turned = _turned(h2, k).reshape(-1, k.size)  # (R·Q, K)
+    b_turned = _turned(pk, k)  # (D, K)
+    den = (np.abs(a_turned) ** 2) @ (w * np.abs(b_turned) ** 2).T  # Σ w|N_k|², the same for both signs
+    out = np.full(den.shape, math.inf)
+    for sign in (1.0, -1.0):
+        # Σ w·Re(N_k*·s^k·z_k) = Re Σ A_k*·(B_k*·s^k·w·z_k)
+        num = (np.conj(a_turned) @ (np.conj(b_turned) * (np.where(k % 2 == 0, sign, 1.0) * w * z)).T).real
+        out = np.minimum(out, -num * num / np.maximum(den, 1e-300))  # −2g·num + g²·den at g = num/den
+    return out.reshape(r.size, q.size, pk.shape[0])
+
+
 def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
                 duty: float | None, basins: int = 1) -> list[tuple[float, float, float]]:
     """Coarse starts (f0/f, Q, D) from the output phasors, independent of gain and timing, best first.
@@ -101,19 +130,7 @@ def _shape_grid(k: np.ndarray, yk: np.ndarray, amp_u: np.ndarray,
     pk = rectangular_phasors(k[None, :], d[:, None])  # type: ignore[arg-type]  # broadcasts: (D, K)
 
     def costs(r: np.ndarray, q: np.ndarray) -> np.ndarray:
-        """Σw|z − g·s^k·N_k|² minus the constant Σw|z|², at the optimal g and sign: shape (R, Q, D)."""
-        kr = k[None, None, :] / r[:, None, None]  # (R, 1, K)
-        h2 = 1.0 / (1.0 - kr ** 2 + 1j * kr / q[None, :, None])  # (R, Q, K)
-        m = h2[:, :, None, :] * pk[None, None, :, :]  # (R, Q, D, K)
-        m1 = m[..., :1]
-        n = m * (np.conj(m1) / np.maximum(np.abs(m1), 1e-300)) ** k
-        out = np.full(n.shape[:-1], math.inf)
-        for sign in (1.0, -1.0):
-            ns = n * np.where(k % 2 == 0, sign, 1.0)
-            num = np.sum(w * (np.conj(ns) * z).real, axis=-1)
-            den = np.sum(w * np.abs(ns) ** 2, axis=-1)
-            out = np.minimum(out, -num * num / np.maximum(den, 1e-300))  # −2g·num + g²·den at g = num/den
-        return out
+        return _shape_costs(k, z, w, pk, r, q)
 
     def best_of(r: np.ndarray, q: np.ndarray) -> tuple[float, float, float]:
         c = costs(r, q)
@@ -221,6 +238,10 @@ def true_fundamental(y: np.ndarray, fs: float, f_peak: float) -> float:
     return best
 
 
+#: the parameters :meth:`OutputResidual.log_jacobian` has derivatives for
+_JACOBIAN_NAMES = frozenset(PART_NAMES) | {"phase", "duty", ASYMMETRY}
+
+
 class OutputResidual:
     """Whitened residuals of the output phasors against Y_k = G·P_k(D)·e^{−jkφ}·H(jkω) (module docstring).
 
@@ -235,6 +256,24 @@ class OutputResidual:
     def __init__(self, w: np.ndarray, wy: np.ndarray, k: np.ndarray, f: float, drive_duty: float | None):
         self.w, self.wy, self.k, self.f, self.drive_duty = w, wy, k, f, drive_duty
         self.fk = k * f
+        # each harmonic's whitening W (a real 2×2 map of (Re, Im)) as the complex map z ↦ p·z + q·z̄:
+        # p = ((W₀₀ + W₁₁) + j(W₁₀ − W₀₁))/2, q = ((W₀₀ − W₁₁) + j(W₁₀ + W₀₁))/2 (write z = x + jy and
+        # collect the terms in z and z̄). So whitened vectors (the (Re, Im) pairs in whiten's order) come
+        # from a few complex products instead of a 2×2 product per harmonic (tests/fit/test_closed_jacobian.py)
+        a, b, c, d = w[:, 0, 0], w[:, 0, 1], w[:, 1, 0], w[:, 1, 1]
+        self._p = 0.5 * ((a + d) + 1j * (c - b))
+        self._q = 0.5 * ((a - d) + 1j * (c + b))
+        self._powers = transfer_powers(self.fk)  # s², s, 1 at every harmonic, for H and its derivatives
+        # the last residual and Jacobian and the values they were evaluated at: an optimiser asks for the
+        # Jacobian where it has just evaluated the residual, and a refit's driver for both again at its end
+        self._last: tuple | None = None
+        self._last_r: tuple | None = None
+        self._last_j: tuple | None = None
+
+    def _white(self, z: np.ndarray) -> np.ndarray:
+        """:func:`benchfit.fit.common.whiten` of z (1-D), or of each row of z (2-D: (rows, harmonics), each
+        row whitened to the (Re, Im) pairs of its harmonics in turn), by the complex form of the whitening."""
+        return (self._p * z + self._q * np.conj(z)).view(float)
 
     def _duty(self, v: Mapping[str, float]) -> float:
         return float(v["duty"] if "duty" in v else self.drive_duty)  # type: ignore[arg-type]  # given when not fitted
@@ -244,50 +283,87 @@ class OutputResidual:
         k, duty = self.k, self._duty(v)
         if ASYMMETRY in v:  # a switched source, r_high ≠ r_low (benchfit.fit.asymmetry)
             return asymmetric_phasors(k, self.f, duty, parts_of(v), v[ASYMMETRY]) * np.exp(-1j * k * v["phase"])
-        return rectangular_phasors(k, duty) * np.exp(-1j * k * v["phase"]) * transfer(self.fk, parts_of(v))
+        return self._ideal(v)[0]
+
+    def _ideal(self, v: Mapping[str, float]) -> tuple:
+        """The ideal drive's model phasors and what its derivatives reuse: (m, P_k·e^{−jkφ}, e^{−jkφ}, H, its
+        denominator, the parts)."""
+        rot = np.exp(-1j * self.k * v["phase"])
+        pr = rectangular_phasors(self.k, self._duty(v)) * rot
+        parts = parts_of(v)
+        h, den = transfer_at(self._powers, parts)
+        return pr * h, pr, rot, h, den, parts
+
+    def _state(self, v: Mapping[str, float], key: tuple) -> tuple:
+        """(key, m, whitened m, m·m, gain, the ideal drive's pieces or None) at ``v`` (``key`` its items), kept for
+        the last values: the Jacobian is mostly asked for where the residual has just been evaluated."""
+        if self._last is not None and self._last[0] == key:
+            return self._last
+        if ASYMMETRY in v:
+            m, pieces = self.model(v), None
+        else:
+            pieces = self._ideal(v)
+            m = pieces[0]
+        wm = self._white(m)
+        mm = max(float(wm @ wm), 1e-300)
+        self._last = (key, m, wm, mm, float(wm @ self.wy) / mm, pieces)
+        return self._last
 
     def gain(self, wm: np.ndarray) -> float:
         return float(wm @ self.wy) / max(float(wm @ wm), 1e-300)
 
     def __call__(self, v: Mapping[str, float]) -> np.ndarray:
-        wm = whiten(self.w, self.model(v))
-        return self.wy - self.gain(wm) * wm
+        key = tuple(v.items())
+        if self._last_r is not None and self._last_r[0] == key:
+            return self._last_r[1]
+        _, _, wm, _, g, _ = self._state(v, key)
+        r = self.wy - g * wm
+        r.flags.writeable = False  # handed out again for the same values
+        self._last_r = (key, r)
+        return r
 
     def log_jacobian(self, v: Mapping[str, float], names: tuple[str, ...]) -> np.ndarray | None:
         """∂r/∂ln x for the parts and ∂r/∂x for phase, duty and asymmetry among ``names``, columns in that
         order; None for any other parameter."""
-        if not set(names) <= set(PART_NAMES) | {"phase", "duty", ASYMMETRY}:
+        if not _JACOBIAN_NAMES.issuperset(names):
             return None
-        m, dm = self._switched_derivatives(v, names) if ASYMMETRY in v else self._ideal_derivatives(v, names)
-        wm = whiten(self.w, m)
-        wdm = np.einsum("kij,kjn->kin", self.w, np.stack([dm.real, dm.imag], axis=1)).reshape(wm.size, len(names))
-        mm = max(float(wm @ wm), 1e-300)
-        g = float(wm @ self.wy) / mm
-        dg = (self.wy @ wdm - 2.0 * g * (wm @ wdm)) / mm
-        return -np.outer(wm, dg) - g * wdm
+        values_key = tuple(v.items())
+        key = (values_key, tuple(names))
+        if self._last_j is not None and self._last_j[0] == key:
+            return self._last_j[1]
+        _, m, wm, mm, g, pieces = self._state(v, values_key)
+        dm = self._switched_derivatives(v, names, m) if pieces is None else self._ideal_derivatives(v, names, pieces)
+        wdm = self._white(dm)  # a row per parameter
+        dg = wdm @ (self.wy - 2.0 * g * wm) / mm
+        j = (-dg[:, None] * wm[None, :] - g * wdm).T
+        j.flags.writeable = False
+        self._last_j = (key, j)
+        return j
 
-    def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """The ideal drive's model phasors and their derivatives (columns over ``names``), in closed form."""
-        k, duty = self.k, self._duty(v)
-        rot = np.exp(-1j * k * v["phase"])
-        pk = rectangular_phasors(k, duty)
+    def _ideal_derivatives(self, v: Mapping[str, float], names: tuple[str, ...], pieces: tuple) -> np.ndarray:
+        """The ideal drive's model derivatives (a row per name), in closed form."""
+        k = self.k
+        m, pr, rot, h, den, lp = pieces
         parts = tuple(n for n in names if n in PART_NAMES)
-        h, dh = transfer_log_gradient(self.fk, parts_of(v), parts)
-        m = pk * rot * h
-        cols = dict(zip(parts, pk * rot * dh))
-        cols["phase"] = -1j * k * m
+        rows = np.empty((len(names), k.size), dtype=complex)
+        dh = transfer_log_derivatives_at(self._powers, lp, parts, h, den)
+        if names[:len(parts)] == parts:  # the usual order: the parts, then the extras
+            np.multiply(pr, dh, out=rows[:len(parts)])
+        else:
+            rows[[names.index(n) for n in parts]] = pr * dh
+        if "phase" in names:
+            rows[names.index("phase")] = -1j * k * m
         if "duty" in names:
-            cols["duty"] = rectangular_phasors_duty_derivative(k, duty) * rot * h
-        return m, np.stack([cols[n] for n in names], axis=1) if names else np.zeros((k.size, 0), dtype=complex)
+            rows[names.index("duty")] = rectangular_phasors_duty_derivative(k, self._duty(v)) * rot * h
+        return rows
 
-    def _switched_derivatives(self, v: Mapping[str, float], names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """The switched source's model phasors and their derivatives, the latter by forward differences.
+    def _switched_derivatives(self, v: Mapping[str, float], names: tuple[str, ...], m: np.ndarray) -> np.ndarray:
+        """The switched source's model derivatives (a row per name), by forward differences from its phasors m.
 
         Its periodic steady state has no closed-form derivative here; the step is scipy's own for a 2-point
         difference, √ε·max(1, |x|) in the fit's variable (ln part, or the extra itself), so the refit sees
         the derivatives scipy's solver estimated, from one model call per column instead of a residual call.
         """
-        m = self.model(v)
         cols = []
         for n in names:
             x = math.log(v[n]) if n in PART_NAMES else float(v[n])
@@ -295,7 +371,7 @@ class OutputResidual:
             moved = dict(v)
             moved[n] = math.exp(x + step) if n in PART_NAMES else x + step
             cols.append((self.model(moved) - m) / step)
-        return m, np.stack(cols, axis=1) if cols else np.zeros((m.size, 0), dtype=complex)
+        return np.stack(cols) if cols else np.zeros((0, m.size), dtype=complex)
 
 
 def fit_one_channel(cap, ri: int, fix: dict[str, float], guess: dict[str, float],

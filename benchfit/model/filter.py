@@ -31,7 +31,8 @@ from functools import lru_cache
 import numpy as np
 
 __all__ = ["PARAMETER_NAMES", "PART_NAMES", "LowpassParts", "coefficients", "coefficients_full", "feedthrough",
-           "transfer", "transfer_log_gradient", "sampled_transfer", "second_order",
+           "transfer", "transfer_log_gradient", "transfer_log_gradient_at", "transfer_powers",
+           "transfer_at", "transfer_log_derivatives_at", "sampled_transfer", "second_order",
            "state_space", "discretize", "simulate", "free_response_basis", "rectangular_phasors",
            "band_limit_prefilter", "prefilter_drive", "prefiltered_transfer", "simulate_band_limited",
            "rectangular_phasors_duty_derivative"]
@@ -125,33 +126,64 @@ def transfer(frequency_hz: np.ndarray | float, p: LowpassParts) -> np.ndarray:
     return ((b[0] * s + b[1]) * s + b[2]) / ((a[0] * s + a[1]) * s + a[2])
 
 
-def _coefficient_derivatives(p: LowpassParts) -> dict[str, tuple[np.ndarray, np.ndarray]]:
-    """∂b/∂ln x and ∂a/∂ln x of :func:`coefficients_full` for every part x (chain rule, term by term).
+def _coefficient_derivative_rows(p: LowpassParts, names: tuple[str, ...]) -> tuple[list, list]:
+    """∂b/∂ln x and ∂a/∂ln x of :func:`coefficients_full` for the parts ``names``, as rows of Python floats.
 
     With A = L·(1 + Rs·γ) and B = C·(1 + g·Resr): b = [L·γ·C·Resr, L·γ + C·Resr, 1] and
     a = [b0 + A·B, b1 + A·g + Rs·B, 1 + Rs·g]. A resistance R entering as its conductance (the load
-    g = 1/Rload, the core loss γ = 1/Rp) has ∂/∂ln R = −(1/R)·∂/∂(1/R), 0 for R = ∞.
+    g = 1/Rload, the core loss γ = 1/Rp) has ∂/∂ln R = −(1/R)·∂/∂(1/R), 0 for R = ∞. Each part's row
+    comes from the derivatives of b0, b1, A, B and a2 (and, for Rs and g, the extra term of a1).
     """
     g, gp, L, C, rs, rc = p.g, p.gp, p.L, p.C, p.Rs, p.Resr
     big_a, big_b = L * (1.0 + rs * gp), C * (1.0 + g * rc)
+    # name: (db0, db1, dA, dB, da2, extra ∂a1, the factor x of ∂/∂ln x), derivatives by the part's value
+    # (by its conductance for Rload and Rp)
+    terms = {"L": (gp * C * rc, gp, 1.0 + rs * gp, 0.0, 0.0, 0.0, L),
+             "C": (L * gp * rc, rc, 0.0, 1.0 + g * rc, 0.0, 0.0, C),
+             "Rs": (0.0, 0.0, L * gp, 0.0, g, big_b, rs),  # ∂(Rs·B)/∂Rs
+             "Resr": (L * gp * C, C, 0.0, C * g, 0.0, 0.0, rc),
+             "Rload": (0.0, 0.0, 0.0, C * rc, rs, big_a, -g),  # ∂(A·g)/∂g
+             "Rp": (L * C * rc, L, L * rs, 0.0, 0.0, 0.0, -gp)}
+    db, da = [], []
+    for n in names:
+        db0, db1, d_big_a, d_big_b, da2, da1, x = terms[n]
+        db.append([db0 * x, db1 * x, 0.0])
+        da.append([(db0 + d_big_a * big_b + big_a * d_big_b) * x, (db1 + d_big_a * g + rs * d_big_b + da1) * x,
+                   da2 * x])
+    return db, da
 
-    def d(db0: float, db1: float, da_big: float, db_big: float, da2: float) -> tuple[np.ndarray, np.ndarray]:
-        """The coefficients' derivatives from those of b0, b1, A, B and a2."""
-        return (np.array([db0, db1, 0.0]),
-                np.array([db0 + da_big * big_b + big_a * db_big, db1 + da_big * g + rs * db_big, da2]))
 
-    by_value = {"L": d(gp * C * rc, gp, 1.0 + rs * gp, 0.0, 0.0),
-                "C": d(L * gp * rc, rc, 0.0, 1.0 + g * rc, 0.0),
-                "Rs": d(0.0, 0.0, L * gp, 0.0, g),
-                "Resr": d(L * gp * C, C, 0.0, C * g, 0.0)}
-    by_value["Rs"][1][1] += big_b  # ∂(Rs·B)/∂Rs
-    out = {n: (db * x, da * x) for (n, (db, da)), x in zip(by_value.items(), (L, C, rs, rc))}
-    db_g, da_g = d(0.0, 0.0, 0.0, C * rc, rs)
-    da_g[1] += big_a  # ∂(A·g)/∂g
-    out["Rload"] = (-g * db_g, -g * da_g)
-    db_p, da_p = d(L * C * rc, L, L * rs, 0.0, 0.0)
-    out["Rp"] = (-gp * db_p, -gp * da_p)
-    return out
+def transfer_powers(frequency_hz: np.ndarray | float) -> np.ndarray:
+    """The powers s², s, 1 at s = j·2πf, shape (3, number of frequencies): each polynomial of
+    :func:`coefficients_full` there is its coefficients @ these (for :func:`transfer_log_gradient_at`)."""
+    s = 2j * math.pi * np.atleast_1d(np.asarray(frequency_hz, dtype=float))
+    return np.stack([s * s, s, np.ones_like(s)])
+
+
+def transfer_at(powers: np.ndarray, p: LowpassParts) -> tuple[np.ndarray, np.ndarray]:
+    """H = N/D and the denominator D at the frequencies whose :func:`transfer_powers` are given."""
+    b, a = coefficients_full(p)
+    den = a @ powers
+    return (b @ powers) / den, den
+
+
+def transfer_log_derivatives_at(powers: np.ndarray, p: LowpassParts, names: tuple[str, ...], h: np.ndarray,
+                                den: np.ndarray) -> np.ndarray:
+    """∂H/∂ln x for the parts ``names`` (a row each), given H and D there (:func:`transfer_at`):
+    dH = (dN − H·dD)/D (:func:`transfer_log_gradient`)."""
+    if not names:
+        return np.zeros((0, h.size), dtype=complex)
+    db, da = _coefficient_derivative_rows(p, names)
+    both = np.array(db + da) @ powers  # the rows of dN, then those of dD
+    return (both[:len(names)] - h * both[len(names):]) / den
+
+
+def transfer_log_gradient_at(powers: np.ndarray, p: LowpassParts,
+                             names: tuple[str, ...] = PART_NAMES) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`transfer_log_gradient` at the frequencies whose :func:`transfer_powers` are given, for a caller
+    that evaluates it many times at the same frequencies (a fit)."""
+    h, den = transfer_at(powers, p)
+    return h, transfer_log_derivatives_at(powers, p, names, h, den)
 
 
 def transfer_log_gradient(frequency_hz: np.ndarray | float, p: LowpassParts,
@@ -159,19 +191,11 @@ def transfer_log_gradient(frequency_hz: np.ndarray | float, p: LowpassParts,
     """H(j·2πf) (as :func:`transfer`) and its derivatives with respect to the logarithms of the parts ``names``.
 
     dH = (dN − H·dD)/D for H = N/D, N and D the polynomials of :func:`coefficients_full` at s = j·2πf
-    and their coefficients' derivatives from :func:`_coefficient_derivatives`; a fit over log-parts
+    and their coefficients' derivatives from :func:`_coefficient_derivative_rows`; a fit over log-parts
     needs exactly these columns (checked against finite differences in the tests). Returns H (shape of
     the frequencies, 1-D) and the derivatives, shape (len(names), number of frequencies).
     """
-    s = 2j * math.pi * np.atleast_1d(np.asarray(frequency_hz, dtype=float))
-    powers = np.stack([s * s, s, np.ones_like(s)])  # (3, K): each polynomial is its coefficients @ powers
-    b, a = coefficients_full(p)
-    den = a @ powers
-    h = (b @ powers) / den
-    der = _coefficient_derivatives(p)
-    db = np.array([der[n][0] for n in names]).reshape(len(names), 3)
-    da = np.array([der[n][1] for n in names]).reshape(len(names), 3)
-    return h, (db @ powers - h * (da @ powers)) / den
+    return transfer_log_gradient_at(transfer_powers(frequency_hz), p, names)
 
 
 def sampled_transfer(frequency_hz: np.ndarray | float, p: LowpassParts, sample_rate: float) -> np.ndarray:

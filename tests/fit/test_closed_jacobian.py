@@ -153,3 +153,35 @@ def test_levenberg_marquardt_rests_a_part_on_its_lower_bound():
     assert ok and x[0] == -25.0 and x[1] == pytest.approx(2.0, rel=1e-9)
     x, ok = levenberg_marquardt(fcn, jac, np.array([0.0, 0.0]), lo, hi, 1e-10, 200)
     assert not ok
+
+
+def test_complex_whitening_equals_the_per_harmonic_matrices():
+    """OutputResidual's whitening by z ↦ p·z + q·z̄ gives whiten()'s 2×2 products, vectors and rows of vectors alike:
+    the same real-linear map, so they agree to rounding (a few ulp of the largest entry: 1e-14 relative is
+    about 50 ulp; linear algebra, common practice, no source)."""
+    rng = np.random.default_rng(7)
+    a = rng.normal(size=(ORDERS.size, 2, 2))
+    w = whitening(a @ np.transpose(a, (0, 2, 1)) + 0.1 * np.eye(2))
+    res = OutputResidual(w, np.zeros(2 * ORDERS.size), ORDERS, F, None)
+    z = rng.normal(size=ORDERS.size) + 1j * rng.normal(size=ORDERS.size)
+    rows = rng.normal(size=(3, ORDERS.size)) + 1j * rng.normal(size=(3, ORDERS.size))
+    direct = whiten(w, z)
+    assert np.max(np.abs(res._white(z) - direct)) <= 1e-14 * np.max(np.abs(direct))
+    direct_rows = np.stack([whiten(w, row) for row in rows])
+    assert np.max(np.abs(res._white(rows) - direct_rows)) <= 1e-14 * np.max(np.abs(direct_rows))
+
+
+def test_output_residual_hands_out_the_same_arrays_for_the_same_values():
+    """The residual and the Jacobian kept from the last call are those a fresh object computes (no stale
+    values after other calls), and read-only, so no caller can change what is handed out again."""
+    res = _residual(None)
+    v = {**PARTS, "phase": 0.4, "duty": 0.42}
+    other = {**v, "C": 34e-6}
+    names = ("C", "Rs", "phase", "duty")
+    r, j = res(v), res.log_jacobian(v, names)
+    assert res(v) is r and res.log_jacobian(v, names) is j
+    assert not r.flags.writeable and not j.flags.writeable
+    res(other), res.log_jacobian(other, names)
+    fresh = _residual(None)
+    assert np.array_equal(res(v), fresh(v)) and np.array_equal(res.log_jacobian(v, names), fresh.log_jacobian(v, names))
+    assert np.array_equal(res.log_jacobian(v, names[:2]), fresh.log_jacobian(v, names[:2]))
