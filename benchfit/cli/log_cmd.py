@@ -93,7 +93,7 @@ def _resolve_run(log: Optional[str], run: str) -> tuple[int, Optional[str]]:
     if not text:
         fail("log show: RUN is empty — give a run id (e.g. 12) or a unit serial (e.g. HC-03); "
              "see `benchfit log list`")
-    if text.isdigit():
+    if text.isascii() and text.isdigit():  # "²" is a digit to str.isdigit, not to int()
         return int(text), None
     runs = _read_log(log, list_runs, unit=text)
     if not runs:

@@ -37,6 +37,9 @@ _DECISION_COLS = ("quantity", "channel", "label", "value", "expanded_u", "lower"
                   "rule", "decision", "note")
 
 
+#: the largest integer SQLite and PostgreSQL store (64-bit signed)
+_SQL_INT_MAX = 2 ** 63 - 1
+
 class LogStore(abc.ABC):
     """One open log. Subclasses set :attr:`dialect`, :attr:`con` and :meth:`transaction`.
 
@@ -248,16 +251,18 @@ class LogStore(abc.ABC):
         sql, args = _filtered(sql, [("u.serial = ?", unit), ("r.time_utc >= ?", since), ("r.bench = ?", bench)])
         if last:
             rows = self._read(lambda: self._rows(sql + " ORDER BY r.time_utc DESC, r.id DESC LIMIT ?",
-                                                 [*args, int(last)]), "the runs")
+                                                 [*args, min(int(last), _SQL_INT_MAX)]), "the runs")
             return rows[::-1]
         return self._read(lambda: self._rows(sql + " ORDER BY r.time_utc, r.id", args), "the runs")
 
     def get_run(self, run_id: int) -> dict[str, Any]:
         """Everything stored about one run: the run row, its captures, results and decisions."""
         def go() -> dict[str, Any]:
-            rows = self._rows("SELECT r.id, r.uuid, r.bench, r.unit_id, r.command, r.time_utc, r.stored_utc,"
-                              " r.operator, r.benchfit_version, r.verdict, r.details_json, u.serial AS unit"
-                              " FROM runs r LEFT JOIN units u ON u.id = r.unit_id WHERE r.id = ?", (run_id,))
+            # an id beyond SQL's 64-bit integers names no run (and cannot be bound as a parameter)
+            rows = [] if not -_SQL_INT_MAX <= run_id <= _SQL_INT_MAX else self._rows(
+                "SELECT r.id, r.uuid, r.bench, r.unit_id, r.command, r.time_utc, r.stored_utc,"
+                " r.operator, r.benchfit_version, r.verdict, r.details_json, u.serial AS unit"
+                " FROM runs r LEFT JOIN units u ON u.id = r.unit_id WHERE r.id = ?", (run_id,))
             if not rows:
                 last = self._one("SELECT MAX(id) FROM runs")
                 raise LogError(f"run {run_id}: no such run in {self.where} — "

@@ -334,6 +334,10 @@ CASES = [
     # --- log -----------------------------------------------------------------------------------
     C("log-since-not-a-date", "log list --since yesterday --log {log}", 2,
       r"^error: --since 'yesterday': not a date — write it like 2026-12-01", "--since"),
+    C("log-show-huge-id", "log show 99999999999999999999999 --log {log}", 2,
+      r"^error: run 99999999999999999999999: no such run in .* — run ids go from 1", "99999999999999999999999"),
+    C("log-show-superscript", "log show ² --log {log}", 2,
+      r"^error: log show ²: no run id and no logged unit with this serial — ", "²"),
     C("log-missing", "log list --log {no_log}", 2, r": no log file there — ", "no_log"),
     C("log-foreign", "log list --log {foreign_log}", 2, r": not a benchfit measurement log ", "foreign_log"),
     C("log-show-no-run", "log show 999 --log {log}", 2, r"^error: run 999: no such run in .* — run ids go from 1",

@@ -118,6 +118,10 @@ def test_log_commands(bench, capsys):
     assert [r["verdict"] for r in json.loads(out)["runs"]] == ["fail"]
     code, _, err = run(["log", "list", "--since", "yesterday"], capsys)
     assert code == 2 and "--since" in err
+    # --last 1 keeps the latest; a count beyond SQL's 64-bit integers keeps every run (it was an OverflowError)
+    for last, units in (("1", ["HC-02"]), ("9" * 30, ["HC-01", "HC-02"])):
+        code, out, err = run(["log", "list", "--last", last, "--json"], capsys)
+        assert code == 0 and [r["unit"] for r in json.loads(out)["runs"]] == units, err
     code, out, _ = run(["log", "show", "2"], capsys)
     assert code == 0 and "HC-02" in out and "fail" in out
     # export: CSV through pandas, refuses to overwrite without --overwrite
