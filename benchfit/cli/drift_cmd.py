@@ -320,10 +320,14 @@ def _from_line_in(tau0: float, ch_key, harmonics: int, band: float, device: str 
     from dataclasses import replace
 
     from benchfit.capture.live_blocks import record_blocks, stream_blocks
-    from benchfit.measurement.drift_run import run_drift
+    from benchfit.measurement.drift_run import MIN_INTERVAL_SAMPLES, run_drift
 
     if not (math.isfinite(rate) and rate > 0 and float(rate).is_integer()):
         fail(f"--rate: {rate!r} must be a whole positive number of Hz — e.g. --rate 48000")
+    if round(tau0 * rate) < MIN_INTERVAL_SAMPLES:  # refused before the card opens, as run_drift would
+        fail(f"--interval: {tau0:g} s holds {round(tau0 * rate)} sample(s) at {rate:g} Hz — an interval needs at "
+             f"least {MIN_INTERVAL_SAMPLES} samples and a few periods of the tone; give "
+             f"{MIN_INTERVAL_SAMPLES / rate:.3g} s or more, e.g. --interval 1s")
     if seconds is not None and not (math.isfinite(seconds) and seconds > 0):
         fail(f"--seconds: {seconds!r} must be a positive number of seconds — e.g. --seconds 600")
     if seconds is not None and seconds < 8 * tau0:

@@ -77,6 +77,10 @@ def pick_channel(names: tuple[str, ...], channel: str | int | None) -> str | int
     return names[lowered.index("output")] if "output" in lowered else names[-1]
 
 
+#: the fewest samples an interval is measured from (a few periods of the tone are needed as well)
+MIN_INTERVAL_SAMPLES = 64
+
+
 def run_drift(blocks: Iterable[Any], *, interval_s: float, channel: str | int | None = None,
               n_harmonics: int = 10, band_ppm: float = DEFAULT_BAND_PPM,
               on_reading: Callable[[IntervalReading], None] | None = None, **info: Any) -> DriftRun:
@@ -120,7 +124,12 @@ def run_drift(blocks: Iterable[Any], *, interval_s: float, channel: str | int | 
                 first = block
                 key = pick_channel(block.channel_names, channel)
                 idx = block.channel_index(key)
-                frames = max(2, int(round(interval_s * block.sample_rate)))
+                frames = int(round(interval_s * block.sample_rate))
+                if frames < MIN_INTERVAL_SAMPLES:
+                    raise MeasureError(
+                        f"interval_s: {interval_s:g} s holds {frames} sample(s) at {block.sample_rate:g} Hz — an "
+                        f"interval needs at least {MIN_INTERVAL_SAMPLES} samples and a few periods of the tone; "
+                        f"give {MIN_INTERVAL_SAMPLES / block.sample_rate:.3g} s or more, e.g. interval_s=1.0")
                 cal = block.calibration
                 tracker = IntervalTracker(block.sample_rate, n_harmonics=n_harmonics,
                                           timebase_u_ppm=cal.timebase_u_ppm, coupling_tau_s=cal.coupling_tau_s,

@@ -87,6 +87,16 @@ def test_bad_interval(run, capture):
     assert r.returncode == 2 and r.stderr.startswith("error: --interval 'soon'")
 
 
+def test_an_interval_of_a_few_samples_is_refused_at_once(run, capture):
+    # 1e-300 s made one-sample intervals (millions of them, for ever); a file and a live run alike refuse it
+    for args in ((str(capture), "--interval", "1e-300"), (str(capture), "--interval", "1ms"),
+                 ("--device", "0", "--seconds", "10", "--interval", "1ms")):
+        r = run("drift", *args)
+        lines = [ln for ln in r.stderr.splitlines() if ln.strip()]
+        assert r.returncode == 2 and len(lines) == 1, r.stderr
+        assert lines[0].startswith("error: --interval: ") and "needs at least 64 samples" in lines[0], r.stderr
+
+
 def test_too_short_a_file(run, tmp_path):
     p = tmp_path / "short.wav"
     sf.write(str(p), np.cos(2 * math.pi * 50 * np.arange(3 * FS) / FS), FS)
