@@ -345,7 +345,8 @@ def filter_command(
     duty: str = typer.Option("50%", "--duty", metavar="DUTY", help="Drive duty (high time / period)."),
     series: str = typer.Option("E12", "--series", metavar="SERIES", help="Series for the solved part."),
     amplitude: str = typer.Option("12", "--amplitude", metavar="V", help="Drive swing, 0 V to this (V)."),
-    harmonics: int = typer.Option(40, "--harmonics", metavar="N", min=2, help="Highest harmonic in the THD sum (2 or more)."),
+    harmonics: int = typer.Option(40, "--harmonics", metavar="N", min=2, max=10_000,
+                                  help="Highest harmonic in the THD sum (2 to 10,000)."),
     thd_max: Optional[str] = typer.Option(None, "--thd-max", metavar="PCT", help="THD target, e.g. 5%: choose "
                                           "f0 and Q (damping) for it with --inductance."),
     level_tolerance: str = typer.Option("10%", "--level-tolerance", metavar="TOL",

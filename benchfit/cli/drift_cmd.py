@@ -196,7 +196,8 @@ def drift_command(
     channel: Optional[str] = typer.Option(None, "--channel", "-c", metavar="CH",
                                           help="Channel to follow (name or 1-based number; default: the only one, "
                                                "else the one named output, else the last)."),
-    harmonics: int = typer.Option(10, "--harmonics", metavar="H", min=1, help="THD over harmonics 2…H."),
+    harmonics: int = typer.Option(10, "--harmonics", metavar="H", min=1, max=1000,
+                                  help="THD over harmonics 2…H (H from 1 to 1000)."),
     band: float = typer.Option(100.0, "--band", metavar="PPM",
                                help="Warm-up band: settled when within ±PPM of the final value (ppm)."),
     unit: Optional[str] = typer.Option(None, "--unit", metavar="SERIAL",

@@ -199,9 +199,9 @@ def measure_command(
     as_json: bool = typer.Option(False, "--json",
                                  help="Print one JSON object per file (one line each, in the order the files "
                                       "finish) instead of tables."),
-    harmonics: int = typer.Option(10, "--harmonics", metavar="H", min=1,
-                                  help="Highest harmonic order H: THD over harmonics 2…H (default 10), "
-                                       "limited to orders below Nyquist."),
+    harmonics: int = typer.Option(10, "--harmonics", metavar="H", min=1, max=1000,
+                                  help="Highest harmonic order H (1 to 1000): THD over harmonics 2…H "
+                                       "(default 10), limited to orders below Nyquist."),
     sample_rate: Optional[str] = typer.Option(
         None, "--sample-rate", metavar="RATE", help="Sample rate for a CSV without a time column, e.g. 48000 or 100k (Hz)."),
     recursive: bool = typer.Option(False, "--recursive", "-r", help="Also take capture files from sub-folders."),

@@ -380,8 +380,9 @@ def fit_harmonics(x: np.ndarray, sample_rate: float, frequency_hz: float, n_harm
     x = np.asarray(x, dtype=np.float64)
     n = x.size
     fs = float(sample_rate)
-    if orders is None:
-        orders = np.arange(1, max(int(n_harmonics), 1) + 1)
+    if orders is None:  # only the orders below Nyquist are ever fitted: no larger array is made
+        below = int(math.ceil(fs / 2 / float(frequency_hz))) if frequency_hz > 0 else 1
+        orders = np.arange(1, max(min(int(n_harmonics), below), 1) + 1)
     orders = np.asarray(orders, dtype=np.int64)
     orders = orders[orders * frequency_hz < fs / 2]
     if orders.size == 0:

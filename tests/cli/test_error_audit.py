@@ -219,6 +219,8 @@ CASES = [
       "FILES"),
     C("measure-harmonics-abc", "measure --harmonics abc {good}", 2,
       r"^error: --harmonics 'abc': not a whole number" + HELP.format("measure "), "--harmonics"),
+    C("measure-harmonics-huge", "measure --harmonics 99999999999999999999999 {good}", 2,
+      r"^error: --harmonics '99999999999999999999999': must be 1000 or less — ", "--harmonics"),
     C("measure-gain-u-too-big", "measure --gain-u 150% {good}", 2,
       r"^error: --gain-u '150%': a relative uncertainty of 100 % or more — give it as a percentage", "--gain-u"),
     C("measure-gain-u-not-a-number", "measure --gain-u abc {good}", 2, r"^error: .*--gain-u.* — ", "--gain-u"),

@@ -140,3 +140,15 @@ def test_harmonics_option_is_validated():
     with pytest.raises(MeasureError, match="harmonics"):
         measure(cap, harmonics=0)
     assert measure(cap, harmonics=1).channels[0].thd_pct is None  # H = 1: no harmonic to sum
+
+
+def test_harmonics_beyond_nyquist_are_the_orders_below_it():
+    # asking for 10²³ orders (the command line caps it; the library did not) fits the orders below
+    # Nyquist, as any count above them does: 8 kHz, 50.37 Hz → orders 1…79 (79·50.37 < 4000 < 80·50.37)
+    fs = 8000.0
+    t = np.arange(int(0.5 * fs)) / fs
+    x = fourier_wave(t, 50.37, "square", amplitude=1.0)
+    huge = measure_channel(x, fs, unit="V", harmonics=10 ** 23)
+    below = measure_channel(x, fs, unit="V", harmonics=80)
+    assert huge.extra["harmonics_h"] == below.extra["harmonics_h"] == 79
+    assert huge.thd_pct == below.thd_pct and huge.frequency_hz == below.frequency_hz
