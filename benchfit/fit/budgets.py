@@ -153,7 +153,7 @@ def assemble(cap, method: Method, values: dict[str, float], ident: Identificatio
                           for n in cond if n in PARAMETER_UNITS)
         warn.append(f"{', '.join(cond)}: fixed without a tolerance ({shown}), so every fitted part and derived "
                     f"value is conditional on it — give the tolerance, e.g. fix={{'{cond[0]}': '…±10%'}}, to include it")
-    limit = _chi2_limit(dof) if noise_dof is None else chi2_red_limit(dof, noise_dof)
+    limit = chi2_red_limit(dof, math.inf if noise_dof is None else noise_dof)
     if ident.chi2_red > limit:
         warn.append(f"fit: the residuals are {math.sqrt(ident.chi2_red):.2g}× the noise (χ²ᵣ = {ident.chi2_red:.3g} "
                     f"on {dof} degrees of freedom), so the model does not describe these data fully; every fit "
@@ -167,13 +167,6 @@ def assemble(cap, method: Method, values: dict[str, float], ident: Identificatio
                      derived=derived, correlations=correlations(total),
                      quality=quality, warnings=tuple(warn), curves=curves, success=success,
                      message=message, inputs=inputs, conditional_on=cond, adequacy=adequacy)
-
-
-def _chi2_limit(dof: int) -> float:
-    """χ²_red above which residual structure beyond noise is declared: the 99.9 % point of χ²/ν."""
-    from scipy.special import chdtri  # the χ² quantile without loading scipy.stats (same values)
-
-    return float(chdtri(dof, 0.001) / dof)
 
 
 def _figure_function(values: Mapping[str, float], names: tuple[str, ...], keys: tuple[str, ...]):

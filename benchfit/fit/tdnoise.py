@@ -72,6 +72,8 @@ class ResidualNoise:
     u_rel_var: float  # relative standard uncertainty of σ²
     dof: float  # effective degrees of freedom of σ², 2/u_rel_var²
     method: str
+    u_rel_var_output: float = math.nan  # relative standard uncertainty of σ_y² and of σ_x²
+    u_rel_var_drive: float = math.nan
 
     def to_dict(self) -> dict:
         return {**asdict(self), "unit": "V per sample (output channel's unit)"}
@@ -131,15 +133,17 @@ def combine(output: tuple[float, float], drive: tuple[float, float], gain: float
     var = vy + vx * gain
     u_rel = math.hypot(vy * uy, vx * gain * ux) / var if var > 0 else math.inf
     dof = 2.0 / (u_rel * u_rel) if u_rel > 0 else math.inf
-    return ResidualNoise(math.sqrt(var), math.sqrt(vy), math.sqrt(vx), gain, u_rel, dof, method)
+    return ResidualNoise(math.sqrt(var), math.sqrt(vy), math.sqrt(vx), gain, u_rel, dof, method, uy, ux)
 
 
-def chi2_red_limit(dof: int, noise_dof: float) -> float:
-    """χ²ᵣ above which the residuals show structure beyond the estimated noise: the 99.9 % point of F(ν, ν_σ)."""
-    from scipy.special import fdtri
+def chi2_red_limit(dof: int, noise_dof: float = math.inf) -> float:
+    """χ²ᵣ above which the residuals show structure beyond the noise: the 99.9 % point of F(ν, ν_σ).
+
+    With the noise known (``noise_dof`` infinite: a σ from the fit's own covariance model) that is the
+    99.9 % point of χ²/ν. scipy.special's quantiles, without loading scipy.stats (same values).
+    """
+    from scipy.special import chdtri, fdtri
 
     if not math.isfinite(noise_dof):
-        from scipy.special import chdtri
-
         return float(chdtri(dof, 0.001) / dof)
     return float(fdtri(dof, noise_dof, 0.999))
