@@ -73,7 +73,7 @@ from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, comp
 from benchfit.fit.edges import DriveEdges, classify_drive_edges
 from benchfit.fit.onechannel import fit_one_channel
 from benchfit.fit.propagate import InputSpec
-from benchfit.fit.tdnoise import combine, difference_floor, noise_gain, periodic_floor
+from benchfit.fit.tdnoise import channel_floor, combine, difference_floor, noise_gain
 from benchfit.fit.tolerance import FixedValue, as_fixed
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitResult
 
@@ -85,8 +85,10 @@ _DRIVE_NAMES = re.compile(r"^(drive|in|input|source|src|v_?in|vin)\b", re.I)
 _RESPONSE_NAMES = re.compile(r"^(out|output|response|resp|v_?out|vout)\b", re.I)
 
 #: how the time-domain residual's noise is estimated (benchfit.fit.tdnoise), for the record
-_PERIODIC_NOISE = ("each channel's white floor between the harmonics (median of the Hann periodogram), the "
-                   "drive's passed through the fitted model's noise gain Σ|g|²")
+_PERIODIC_NOISE = ("each channel's white floor between the harmonics (median of the Hann periodogram), or the "
+                   "median of its third differences where that is lower beyond both estimates' u (content between "
+                   "the harmonics that is not noise: edges that wander, drift); the drive's passed through the "
+                   "fitted model's noise gain Σ|g|²")
 _APERIODIC_NOISE = ("each channel's white level from the median of its third differences (Gaussian noise, a "
                     "drive smooth at the sample scale between edges), the drive's passed through the fitted "
                     "model's noise gain Σ|g|²")
@@ -261,7 +263,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     tone = fit_tone(x, fs, n_harmonics=9)
     if tone is None or tone.amplitudes[0] <= SIGNIFICANCE * tone.amplitudes_u[0]:
         if time_domain:  # any drive will do: start from the cross-spectral estimate of H
-            return _aperiodic(cap, x, y, di, fix, guess, drive_edges)
+            return _aperiodic(cap, x, y, di, ri, fix, guess, drive_edges)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} has no periodic content — "
                        "capture at least a few periods of the drive, use time_domain=True for a "
                        "non-periodic drive, or use fit_ringdown()")
@@ -274,7 +276,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     var_x = float(np.sum((x - x.mean()) ** 2))
     if var_x <= 0 or hx_all.rss > 0.1 * var_x:
         if time_domain:
-            return _aperiodic(cap, x, y, di, fix, guess, drive_edges)
+            return _aperiodic(cap, x, y, di, ri, fix, guess, drive_edges)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} is not periodic (its harmonics "
                        f"at {f:.4g} Hz explain {100 * max(0.0, 1 - hx_all.rss / var_x):.0f} % of it) — "
                        "use time_domain=True for a non-periodic drive, or check the drive channel")
@@ -402,8 +404,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     quality = quality_complex(hk, h_model)
     noise = None
     if time_domain:
-        floors = (periodic_floor(hy_all, y, fs) or difference_floor(y),
-                  periodic_floor(hx_all, x, fs) or difference_floor(x))
+        floors = (channel_floor(hy_all, y, fs), channel_floor(hx_all, x, fs))
         values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality, td_res, noise = _time_domain(
             x, y, fs, values, fixed, fix, floors, curves, edges["drive_edges"], _PERIODIC_NOISE)
         edges = {**edges, "time_domain": _td_record(edges["drive_edges"], values, fs, fk, hk, u_abs)}
@@ -417,7 +418,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
 
     extra = {"drive_edges": edges}
     if noise is not None:
-        extra["noise"] = noise.to_dict()
+        extra["noise"] = noise.to_dict(cap.units[ri])
     if comparison is not None:
         extra["model_comparison"] = {k: v for k, v in comparison.items() if k != "note"}
     result = replace(result, adequacy={**result.adequacy, **extra})
@@ -633,7 +634,7 @@ def _with_gain_prior(residual, ratio: FixedValue):
     return residual_m
 
 
-def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],
+def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, ri: int, fix: dict[str, float],
                guess: dict[str, float], drive_edges: DriveEdges = "auto") -> FitResult:
     """Time-domain fit for a drive that is not periodic, started from H = P_xy/P_xx (Welch).
 
@@ -680,7 +681,7 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
     values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality, td_res, noise = _time_domain(
         x, y, fs, start, dict(fix), fix, (difference_floor(y), difference_floor(x)), curves, kind,
         _APERIODIC_NOISE)
-    ratio, ratio_note = channel_gain_ratio(cap, di, cap.n_channels - 1 - di if cap.n_channels == 2 else di)
+    ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     if ratio_note:
         warnings = list(warnings) + [ratio_note]
     specs = input_specs({}, fixed, folded, ratio)
@@ -691,7 +692,8 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
 
     edges = {"drive_edges": kind, "decided": drive_edges != "auto", "reason": how, "choice": drive_edges,
              "time_domain": _td_record(kind, values, fs, fk, h, u)}
-    return replace(result, adequacy={**result.adequacy, "drive_edges": edges, "noise": noise.to_dict()})
+    return replace(result, adequacy={**result.adequacy, "drive_edges": edges,
+                                              "noise": noise.to_dict(cap.units[ri])})
 
 
 def _td_record(kind: str, values: Mapping[str, float], fs: float, fk: np.ndarray, hk: np.ndarray,
@@ -734,12 +736,10 @@ def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = 
     n = y.size
     floor = 1e-12 * max(float(np.max(np.abs(y))), 1e-30)
     grid = np.fft.rfftfreq(x.size, 1.0 / fs)
-    levels = tuple(f if f is not None else (0.0, math.inf) for f in floors)
-
     def noise_at(v: Mapping[str, float]):
         p = parts_of(v)
         resp = transfer(grid, p) if kind == "band-limited" else sampled_transfer(grid, p, fs)
-        return combine(levels[0], levels[1], v.get("gain_ratio", 1.0) ** 2 * noise_gain(resp, x.size), how)
+        return combine(floors[0], floors[1], v.get("gain_ratio", 1.0) ** 2 * noise_gain(resp, x.size), how)
 
     def drive_response(p) -> np.ndarray:
         return simulate_band_limited(x, fs, p)[0] if kind == "band-limited" else simulate(x, fs, p)

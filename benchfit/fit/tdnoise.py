@@ -22,6 +22,13 @@ Each channel's white level is estimated on its own:
   Hann window's correlation of neighbouring bins (complex correlation 2/3 and 1/6 at one and two bins):
   F = 1 + 2·Σ_k Cov(1{P_0 < m}, 1{P_k < m})/¼ from the bivariate law of two correlated periodogram values
   (|Z_2|² given |Z_1|² is a scaled non-central χ² with 2 degrees of freedom). F ≈ 1.55.
+  That floor counts as noise whatever lies between the harmonics: a drive whose edges wander by a sample
+  (a square computed or generated with a jittering period) puts broadband content there which the
+  simulation, fed the very samples, reproduces — it is signal to the time-domain fit. So the third
+  differences below are computed too, and where they give a level lower beyond both estimates' u
+  (3.29 combined standard uncertainties, the two-sided 99.9 % point) they are taken instead. Each
+  estimator can only be raised by signal it mistakes for noise (a band-limited square's lines near Nyquist
+  raise the differences, jitter the floor between the harmonics), so the lower one is the noise.
 * non-periodic drive — the drive's spectrum has no band free of signal (a drive of steps falls only as
   1/f² up to Nyquist, far above its noise), so the level is taken in the time domain instead: the median
   absolute value of the third differences of non-overlapping blocks of four samples, c = (1, −3, 3, −1)/√20
@@ -46,12 +53,14 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 from functools import lru_cache
+from typing import NamedTuple
 
 import numpy as np
 
 from benchfit.fit.common import noise_floor_bins
 
-__all__ = ["ResidualNoise", "noise_gain", "periodic_floor", "difference_floor", "combine", "chi2_red_limit"]
+__all__ = ["Floor", "ResidualNoise", "noise_gain", "periodic_floor", "difference_floor", "channel_floor", "combine",
+           "chi2_red_limit"]
 
 #: Hann window: complex correlation of two periodogram bins one and two bins apart (white noise)
 _HANN_BIN_CORRELATION = (2.0 / 3.0, 1.0 / 6.0)
@@ -59,6 +68,16 @@ _HANN_BIN_CORRELATION = (2.0 / 3.0, 1.0 / 6.0)
 _DIFFERENCE = np.array([1.0, -3.0, 3.0, -1.0]) / math.sqrt(20.0)
 #: Φ⁻¹(3/4): the median of |Z| for a standard normal Z
 _MAD_NORMAL = 0.6744897501960817
+#: two estimates of one level disagree beyond this many combined standard uncertainties (two-sided 99.9 %)
+_DISAGREE = 3.29
+
+
+class Floor(NamedTuple):
+    """A channel's white noise level: σ² per sample, its relative standard uncertainty, the estimator."""
+
+    var: float
+    u_rel: float
+    estimator: str
 
 
 @dataclass(frozen=True)
@@ -74,9 +93,12 @@ class ResidualNoise:
     method: str
     u_rel_var_output: float = math.nan  # relative standard uncertainty of σ_y² and of σ_x²
     u_rel_var_drive: float = math.nan
+    estimator_output: str = ""  # which estimate each channel's level is
+    estimator_drive: str = ""
 
-    def to_dict(self) -> dict:
-        return {**asdict(self), "unit": "V per sample (output channel's unit)"}
+    def to_dict(self, unit: str) -> dict:
+        """The record, with the output channel's ``unit`` (that of every σ; per sample)."""
+        return {**asdict(self), "unit": unit}
 
 
 def noise_gain(response: np.ndarray, n: int) -> float:
@@ -106,17 +128,17 @@ def _hann_median_factor() -> float:
     return 1.0 + extra
 
 
-def periodic_floor(h, x: np.ndarray, fs: float) -> tuple[float, float] | None:
-    """σ² per sample of a channel's white floor between the harmonics of ``h``, and its relative u."""
+def periodic_floor(h, x: np.ndarray, fs: float) -> Floor | None:
+    """A channel's white floor between the harmonics of ``h``."""
     got = noise_floor_bins(h, x, fs)
     if got is None:
         return None
     sigma2, m = got
-    return sigma2, math.sqrt(_hann_median_factor() / m) / math.log(2.0)
+    return Floor(sigma2, math.sqrt(_hann_median_factor() / m) / math.log(2.0), "between the harmonics")
 
 
-def difference_floor(x: np.ndarray) -> tuple[float, float] | None:
-    """σ² per sample of a channel's white noise from its blocks' third differences, and its relative u."""
+def difference_floor(x: np.ndarray) -> Floor | None:
+    """A channel's white noise level from its blocks' third differences."""
     x = np.asarray(x, dtype=float)
     m = x.size // _DIFFERENCE.size
     if m < 16:
@@ -124,16 +146,29 @@ def difference_floor(x: np.ndarray) -> tuple[float, float] | None:
     d = x[:m * _DIFFERENCE.size].reshape(m, _DIFFERENCE.size) @ _DIFFERENCE
     sigma = float(np.median(np.abs(d))) / _MAD_NORMAL
     phi = math.exp(-0.5 * _MAD_NORMAL ** 2) / math.sqrt(2.0 * math.pi)
-    return sigma * sigma, 1.0 / (2.0 * math.sqrt(m) * phi * _MAD_NORMAL)
+    return Floor(sigma * sigma, 1.0 / (2.0 * math.sqrt(m) * phi * _MAD_NORMAL), "third differences")
 
 
-def combine(output: tuple[float, float], drive: tuple[float, float], gain: float, method: str) -> ResidualNoise:
-    """σ² = σ_y² + σ_x²·Σ|g|² with its relative u (the two estimates independent)."""
-    (vy, uy), (vx, ux) = output, drive
+def channel_floor(h, x: np.ndarray, fs: float) -> Floor | None:
+    """A periodic channel's level: between the harmonics, or its third differences' where lower beyond both u."""
+    a, b = periodic_floor(h, x, fs), difference_floor(x)
+    if a is None or b is None:
+        return a or b
+    if a.var - b.var > _DISAGREE * math.hypot(a.var * a.u_rel, b.var * b.u_rel):
+        return b
+    return a
+
+
+def combine(output: Floor | None, drive: Floor | None, gain: float, method: str) -> ResidualNoise:
+    """σ² = σ_y² + σ_x²·Σ|g|² with its relative u (the two estimates independent); a level not estimated adds 0."""
+    none = Floor(0.0, math.inf, "not estimated")
+    output, drive = output or none, drive or none
+    (vy, uy, _), (vx, ux, _) = output, drive
     var = vy + vx * gain
-    u_rel = math.hypot(vy * uy, vx * gain * ux) / var if var > 0 else math.inf
+    u_rel = math.hypot(vy * uy if vy > 0 else 0.0, vx * gain * ux if vx > 0 else 0.0) / var if var > 0 else math.inf
     dof = 2.0 / (u_rel * u_rel) if u_rel > 0 else math.inf
-    return ResidualNoise(math.sqrt(var), math.sqrt(vy), math.sqrt(vx), gain, u_rel, dof, method, uy, ux)
+    return ResidualNoise(math.sqrt(var), math.sqrt(vy), math.sqrt(vx), gain, u_rel, dof, method, uy, ux,
+                         output.estimator, drive.estimator)
 
 
 def chi2_red_limit(dof: int, noise_dof: float = math.inf) -> float:
