@@ -73,7 +73,7 @@ from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, comp
 from benchfit.fit.edges import DriveEdges, classify_drive_edges
 from benchfit.fit.onechannel import fit_one_channel
 from benchfit.fit.propagate import InputSpec
-from benchfit.fit.tdnoise import channel_floor, combine, difference_floor, noise_gain
+from benchfit.fit.tdnoise import channel_floor, combine, difference_floor, whiten_by_spectrum
 from benchfit.fit.tolerance import FixedValue, as_fixed
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitResult
 
@@ -92,7 +92,8 @@ _PERIODIC_NOISE = ("each channel's white floor between the harmonics (median of 
 _APERIODIC_NOISE = ("each channel's white level from the median of its third differences (Gaussian noise, a "
                     "drive smooth at the sample scale between edges), the drive's passed through the fitted "
                     "model's noise gain Σ|g|²")
-#: the residual's σ at the fitted parts differs from the start's by more than this: the fit is repeated
+#: the residual's noise spectrum at the fitted parts differs from the start's by more than this somewhere: the
+#: fit is repeated
 _SIGMA_MOVED = 1e-3
 
 
@@ -724,22 +725,22 @@ def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = 
     simulate_band_limited`), whose response is the continuous H(j·2πf); the samples at the ends that its
     pre-filter does not cover are left out of the fit.
 
-    The residual is whitened by the noise a right model leaves (:mod:`benchfit.fit.tdnoise`): ``floors``
-    are the output's and the drive's white levels (σ², relative u), estimated from the channels as ``how``
-    says, and the drive's is passed through the simulation's response at the start values. The fit's
-    minimum does not depend on that constant; its χ²ᵣ does, so the σ is computed again at the fitted parts
-    and the fit repeated from there when it moved (a start far from the result). Also returns the
-    :class:`benchfit.fit.tdnoise.ResidualNoise` used.
+    The residual is whitened by the spectrum of the noise a right model leaves (:mod:`benchfit.fit.tdnoise`):
+    ``floors`` are the output's and the drive's white levels (σ², relative u), estimated from the channels as
+    ``how`` says, the drive's passed through the simulation's response at the start values. The spectrum is
+    computed again at the fitted parts and the fit repeated from there when it moved (a start far from the
+    result). Also returns the :class:`benchfit.fit.tdnoise.ResidualNoise` used.
     """
     trim = PREFILTER_TAPS // 2 if kind == "band-limited" else 0
     y = y[trim:y.size - trim]
     n = y.size
-    floor = 1e-12 * max(float(np.max(np.abs(y))), 1e-30)
-    grid = np.fft.rfftfreq(x.size, 1.0 / fs)
+    floor = (1e-12 * max(float(np.max(np.abs(y))), 1e-30)) ** 2
+    grid = np.fft.rfftfreq(n, 1.0 / fs)
+
     def noise_at(v: Mapping[str, float]):
         p = parts_of(v)
         resp = transfer(grid, p) if kind == "band-limited" else sampled_transfer(grid, p, fs)
-        return combine(floors[0], floors[1], v.get("gain_ratio", 1.0) ** 2 * noise_gain(resp, x.size), how)
+        return combine(floors[0], floors[1], v.get("gain_ratio", 1.0) * resp, n, how, floor)
 
     def drive_response(p) -> np.ndarray:
         return simulate_band_limited(x, fs, p)[0] if kind == "band-limited" else simulate(x, fs, p)
@@ -753,16 +754,15 @@ def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = 
         return sim + design @ coef
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return (y - model(v)) / sigma
+        return whiten_by_spectrum(y - model(v), spectrum)
 
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items()}
     fix_now = {k: v for k, v in fixed.items()}
-    noise = noise_at({**start, **fix_now})
-    sigma = max(noise.sigma, floor)
+    noise, spectrum = noise_at({**start, **fix_now})
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, dict(fix_now))
-    again = noise_at(values)
-    if abs(max(again.sigma, floor) / sigma - 1.0) > _SIGMA_MOVED:
-        noise, sigma = again, max(again.sigma, floor)
+    again, spectrum_again = noise_at(values)
+    if float(np.max(np.abs(spectrum_again / spectrum - 1.0))) > _SIGMA_MOVED:
+        noise, spectrum = again, spectrum_again
         values, ident, fixed, folded, warnings, ok, msg, alts = solve(
             residual, {k: (v if v > 0 else 1e-3) for k, v in values.items()}, dict(fix_now))
     ym = model(values)

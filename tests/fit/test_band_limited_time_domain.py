@@ -9,9 +9,9 @@ divider of the L-C ladder), imported, not copied.
 Both channels carry white noise of sd NOISE, and the residual of a right model is the output's noise minus
 the drive's noise passed through the model, of variance NOISE²·(1 + Σ|g_n|²) with g the model's impulse
 response (the variance of filtered white noise; Σ|g_n|² = mean of |H|² over the frequency circle, Parseval).
-The fit whitens its residual by that σ, estimated from the two channels (benchfit.fit.tdnoise), so its own
-χ²ᵣ is checked here as well as the residual against the synthesised noise: the estimate against the truth
-(within its stated u), χ²ᵣ of a right model inside the F(ν, ν_σ) interval of a ratio of two variance
+The fit whitens its residual by that noise's spectrum NOISE²·(1 + |H(f)|²), its levels estimated from the two
+channels (benchfit.fit.tdnoise), so its own χ²ᵣ is checked here as well as the residual against the
+synthesised noise: the estimates against the truth (within their stated u), χ²ᵣ of a right model inside the F(ν, ν_σ) interval of a ratio of two variance
 estimates, and structure the model lacks (a mains tone on the output lead) above it, with every fit
 uncertainty scaled by √χ²ᵣ.
 """
@@ -117,18 +117,22 @@ def test_band_limited_time_domain_forced_sharp_shows_the_model_error():
 
 
 def test_unmodelled_structure_is_flagged_and_scales_the_uncertainties():
-    # mains pickup on the output lead, 4 mV at 60 Hz (between the drive's harmonics): no part of the model
-    # can produce it, so the residual carries its power A²/2 beyond the noise and χ²ᵣ rises by A²/(2σ²)
-    # (σ the fit's noise estimate, unchanged: the tone is one periodogram bin, which the median ignores)
+    # mains pickup on the output lead, 4 mV at 60 Hz (between the drive's harmonics): no part of the model can
+    # produce it, so the residual carries its power A²/2. The fit weighs the residual by its noise spectrum,
+    # S(f) = σ_y² + σ_x²·|H(f)|² (the drive's noise through the model; 60 Hz is near the resonance, where that
+    # term is most of S), so χ²ᵣ rises by A²/(2·S(60 Hz)); S from the fit's noise levels and the divider's H
+    # (computed here). The noise levels themselves are unchanged: the tone is one periodogram bin, which the
+    # median ignores
     clean, hum = _fit("sharp", 0), _fit("sharp", 0, 4e-3)
     nz = hum.adequacy["noise"]
     assert nz["sigma"] == pytest.approx(clean.adequacy["noise"]["sigma"], rel=1e-3)
     rise = hum.adequacy["chi2_red"] - clean.adequacy["chi2_red"]
     amp, n = 4e-3, hum.curves.residual.size
-    expected = amp ** 2 / 2.0 / nz["sigma"] ** 2
-    # up to the cross term 2·Σ e·a of the noise and the tone, of relative sd 2√2·σ/(A·√n) (0.5 %), at its
-    # two-sided 99.9 % point; the tone, orthogonal over the record to the drive's harmonics, is not absorbed
-    cross = 2.0 * math.sqrt(2.0) * nz["sigma"] / (amp * math.sqrt(n))
+    s60 = nz["sigma_output"] ** 2 + nz["sigma_drive"] ** 2 * float(np.abs(_h(np.array([60.0]))[0]) ** 2)
+    expected = amp ** 2 / 2.0 / s60
+    # up to the cross term 2·Σ e·a of the noise and the tone, of relative sd 2√2·√S/(A·√n), at its two-sided
+    # 99.9 % point; the tone, orthogonal over the record to the drive's harmonics, is not absorbed
+    cross = 2.0 * math.sqrt(2.0) * math.sqrt(s60) / (amp * math.sqrt(n))
     assert rise == pytest.approx(expected, rel=Z_999 * cross), (rise, expected)
     assert hum.adequacy["chi2_red"] > hum.adequacy["chi2_red_limit"]
     assert any(w.startswith("fit: the residuals are") and "Birge" in w for w in hum.warnings)
