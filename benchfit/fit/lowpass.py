@@ -13,7 +13,10 @@ two-channel
     ``time_domain=True`` refines the parts by simulating the output from the measured drive
     samples (exact discretisation, :func:`benchfit.model.filter.simulate`) with the initial
     state and an output offset solved linearly at each step. For a drive far from periodic
-    the start comes instead from the cross-spectral estimate H = P_xy/P_xx (Welch).
+    the start comes instead from the cross-spectral estimate H = P_xy/P_xx (Welch). Its residual is
+    whitened by the noise a right model leaves — the output's, and the drive's through the model —
+    estimated from the two channels apart from the fit (:mod:`benchfit.fit.tdnoise`, recorded in
+    ``adequacy["noise"]``), so its χ²ᵣ, warning and Birge scaling test the model.
 one-channel
     Only the output captured (see :mod:`benchfit.fit.onechannel`).
 
@@ -87,14 +90,14 @@ _RESPONSE_NAMES = re.compile(r"^(out|output|response|resp|v_?out|vout)\b", re.I)
 #: how the time-domain residual's noise is estimated (benchfit.fit.tdnoise), for the record
 _PERIODIC_NOISE = ("each channel's white floor between the harmonics (median of the Hann periodogram), or the "
                    "median of its third differences where that is lower beyond both estimates' u (content between "
-                   "the harmonics that is not noise: edges that wander, drift); the drive's passed through the "
-                   "fitted model's noise gain Σ|g|²")
+                   "the harmonics that is not noise: edges that wander, drift); the residual whitened by "
+                   "σ_y² + σ_x²·|H(f)|², the drive's noise through the fitted model")
 _APERIODIC_NOISE = ("each channel's white level from the median of its third differences (Gaussian noise, a "
-                    "drive smooth at the sample scale between edges), the drive's passed through the fitted "
-                    "model's noise gain Σ|g|²")
+                    "drive smooth at the sample scale between edges); the residual whitened by "
+                    "σ_y² + σ_x²·|H(f)|², the drive's noise through the fitted model")
 #: the residual's noise spectrum at the fitted parts differs from the start's by more than this somewhere: the
 #: fit is repeated
-_SIGMA_MOVED = 1e-3
+_SPECTRUM_MOVED = 1e-3
 
 
 # --- input checks ----------------------------------------------------------------------
@@ -693,8 +696,7 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, ri: int, fix: dict[st
 
     edges = {"drive_edges": kind, "decided": drive_edges != "auto", "reason": how, "choice": drive_edges,
              "time_domain": _td_record(kind, values, fs, fk, h, u)}
-    return replace(result, adequacy={**result.adequacy, "drive_edges": edges,
-                                              "noise": noise.to_dict(cap.units[ri])})
+    return replace(result, adequacy={**result.adequacy, "drive_edges": edges, "noise": noise.to_dict(cap.units[ri])})
 
 
 def _td_record(kind: str, values: Mapping[str, float], fs: float, fk: np.ndarray, hk: np.ndarray,
@@ -761,7 +763,7 @@ def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = 
     noise, spectrum = noise_at({**start, **fix_now})
     values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, dict(fix_now))
     again, spectrum_again = noise_at(values)
-    if float(np.max(np.abs(spectrum_again / spectrum - 1.0))) > _SIGMA_MOVED:
+    if float(np.max(np.abs(spectrum_again / spectrum - 1.0))) > _SPECTRUM_MOVED:
         noise, spectrum = again, spectrum_again
         values, ident, fixed, folded, warnings, ok, msg, alts = solve(
             residual, {k: (v if v > 0 else 1e-3) for k, v in values.items()}, dict(fix_now))
