@@ -410,7 +410,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     if time_domain:
         floors = (channel_floor(hy_all, y, fs), channel_floor(hx_all, x, fs))
         values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality, td_res, noise = _time_domain(
-            x, y, fs, values, fixed, fix, floors, curves, edges["drive_edges"], _PERIODIC_NOISE)
+            x, y, fs, values, fixed, fix, floors, curves, edges["drive_edges"], _PERIODIC_NOISE, parts)
         edges = {**edges, "time_domain": _td_record(edges["drive_edges"], values, fs, fk, hk, u_abs)}
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
@@ -720,7 +720,8 @@ def _td_record(kind: str, values: Mapping[str, float], fs: float, fk: np.ndarray
             "images_over_u": float(np.max(err / rel_u)) if err.size and np.all(rel_u > 0) else None}
 
 
-def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = "sharp", how: str = ""):
+def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = "sharp", how: str = "",
+                 parts: tuple[str, ...] = PARAMETER_NAMES):
     """Refine by fitting the exactly discretised simulation of the measured drive to the output.
 
     ``kind`` "band-limited": the drive is simulated as band-limited (:func:`benchfit.model.filter.
@@ -731,7 +732,8 @@ def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = 
     ``floors`` are the output's and the drive's white levels (σ², relative u), estimated from the channels as
     ``how`` says, the drive's passed through the simulation's response at the start values. The spectrum is
     computed again at the fitted parts and the fit repeated from there when it moved (a start far from the
-    result). Also returns the :class:`benchfit.fit.tdnoise.ResidualNoise` used.
+    result). Also returns the :class:`benchfit.fit.tdnoise.ResidualNoise` used. ``parts``: the model's parts
+    (with "Rp" when the harmonic fit chose the core-loss model, which the refinement keeps).
     """
     trim = PREFILTER_TAPS // 2 if kind == "band-limited" else 0
     y = y[trim:y.size - trim]
@@ -761,12 +763,12 @@ def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = 
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items()}
     fix_now = {k: v for k, v in fixed.items()}
     noise, spectrum = noise_at({**start, **fix_now})
-    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, dict(fix_now))
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, dict(fix_now), parts=parts)
     again, spectrum_again = noise_at(values)
     if float(np.max(np.abs(spectrum_again / spectrum - 1.0))) > _SPECTRUM_MOVED:
         noise, spectrum = again, spectrum_again
         values, ident, fixed, folded, warnings, ok, msg, alts = solve(
-            residual, {k: (v if v > 0 else 1e-3) for k, v in values.items()}, dict(fix_now))
+            residual, {k: (v if v > 0 else 1e-3) for k, v in values.items()}, dict(fix_now), parts=parts)
     ym = model(values)
     response = (lambda freq, p, rate: transfer(freq, p)) if kind == "band-limited" else sampled_transfer
     curves = FitCurves(time_s=(np.arange(n) + trim) / fs, data=y.copy(), model=ym,
