@@ -200,6 +200,12 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
             how = "given" if de.get("choice") not in (None, "auto") else (
                 "from the drive's lines below Nyquist" if de.get("decided") else "assumed: the drive cannot tell")
             line += f"; drive edges {de['drive_edges']} ({how}) → {model}"
+        nz = adq.get("noise")
+        if nz:  # the time-domain residual's noise, estimated from the channels apart from the fit
+            from benchfit.units import format_with_uncertainty
+
+            sigma = format_with_uncertainty(nz["sigma"], 0.5 * nz["u_rel_var"] * nz["sigma"], nz["unit"])
+            line += f"; χ²ᵣ against the channels' noise σ = {sigma} per sample"
         console.print(line, markup=False, highlight=False, soft_wrap=True)
     console.print("± values are combined standard uncertainties (k = 1); budget rows in --json",
                   markup=False, highlight=False)

@@ -16,6 +16,7 @@ from benchfit.fit.common import parts_of, source_name
 from benchfit.fit.identify import (DERIVED_NAMES, Identification, ambiguity, correlations, derived_values,
                                    display_unit, numeric_jacobian, parameter_table, undetermined_warning)
 from benchfit.fit.propagate import InputSpec, derived_budget, input_sensitivities, part_budget, total_log_covariance
+from benchfit.fit.tdnoise import chi2_red_limit
 from benchfit.fit.result import DERIVED_UNITS, PARAMETER_UNITS, DerivedValue, FitCurves, FitParameter, FitQuality, FitResult, Method
 from benchfit.fit.tolerance import FixedValue
 from benchfit.model.filter import PART_NAMES, LowpassParts, second_order
@@ -68,8 +69,12 @@ def assemble(cap, method: Method, values: dict[str, float], ident: Identificatio
              curves: FitCurves, quality: FitQuality, success: bool, message: str,
              alternatives: list[dict[str, float]] | None = None,
              specs: Mapping[str, InputSpec] | None = None,
-             sens: Mapping[str, np.ndarray] | None = None) -> FitResult:
-    """Build the FitResult: parameter table with budgets, derived values, correlations and warnings."""
+             sens: Mapping[str, np.ndarray] | None = None, noise_dof: float | None = None) -> FitResult:
+    """Build the FitResult: parameter table with budgets, derived values, correlations and warnings.
+
+    ``noise_dof``: the effective degrees of freedom of a noise level estimated apart from the fit (the
+    time-domain refinement's, :mod:`benchfit.fit.tdnoise`); χ²ᵣ is then judged against F(ν, ν_σ).
+    """
     from dataclasses import replace
 
     specs = dict(specs or {})
@@ -148,7 +153,8 @@ def assemble(cap, method: Method, values: dict[str, float], ident: Identificatio
                           for n in cond if n in PARAMETER_UNITS)
         warn.append(f"{', '.join(cond)}: fixed without a tolerance ({shown}), so every fitted part and derived "
                     f"value is conditional on it — give the tolerance, e.g. fix={{'{cond[0]}': '…±10%'}}, to include it")
-    if ident.chi2_red > _chi2_limit(dof):
+    limit = chi2_red_limit(dof, math.inf if noise_dof is None else noise_dof)
+    if ident.chi2_red > limit:
         warn.append(f"fit: the residuals are {math.sqrt(ident.chi2_red):.2g}× the noise (χ²ᵣ = {ident.chi2_red:.3g} "
                     f"on {dof} degrees of freedom), so the model does not describe these data fully; every fit "
                     "uncertainty is scaled by that factor (Birge ratio) — check for losses the model lacks "
@@ -156,18 +162,11 @@ def assemble(cap, method: Method, values: dict[str, float], ident: Identificatio
     total = replace(ident, cov_log=total_log_covariance(ident, specs, sens))
     inputs = {n: {**sp.fixed.to_dict(), "role": sp.role, "unit": sp.unit} for n, sp in specs.items()}
     adequacy = {"chi2_red": ident.chi2_red, "dof": dof, "birge_ratio": math.sqrt(max(ident.chi2_red, 0.0)),
-                "chi2_red_limit": _chi2_limit(dof)}
+                "chi2_red_limit": limit}
     return FitResult(file=source_name(cap), model=MODEL_NAME, method=method, parameters=params,
                      derived=derived, correlations=correlations(total),
                      quality=quality, warnings=tuple(warn), curves=curves, success=success,
                      message=message, inputs=inputs, conditional_on=cond, adequacy=adequacy)
-
-
-def _chi2_limit(dof: int) -> float:
-    """χ²_red above which residual structure beyond noise is declared: the 99.9 % point of χ²/ν."""
-    from scipy.special import chdtri  # the χ² quantile without loading scipy.stats (same values)
-
-    return float(chdtri(dof, 0.001) / dof)
 
 
 def _figure_function(values: Mapping[str, float], names: tuple[str, ...], keys: tuple[str, ...]):

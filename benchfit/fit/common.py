@@ -18,7 +18,7 @@ from benchfit.model.filter import LowpassParts
 
 __all__ = ["source_name", "SIGNIFICANCE", "MAX_ORDER", "check_not_silent", "start_parts", "quality_complex", "quality_real",
            "whitening", "whiten", "complex_mult_cov", "noise_rescaled", "harmonics_after_start_transient",
-           "subset", "parts_of"]
+           "subset", "parts_of", "noise_floor_bins"]
 
 #: a harmonic is used when its amplitude exceeds this many standard uncertainties
 SIGNIFICANCE = 10.0
@@ -137,6 +137,12 @@ def _waveform(h, n: int, fs: float) -> np.ndarray:
 
 def _noise_floor(h, x: np.ndarray, fs: float) -> float | None:
     """σ² per sample of the noise between the harmonics (see :func:`noise_rescaled`), None if not told."""
+    got = noise_floor_bins(h, x, fs)
+    return None if got is None else got[0]
+
+
+def noise_floor_bins(h, x: np.ndarray, fs: float) -> tuple[float, int] | None:
+    """:func:`_noise_floor` and the number of periodogram bins its median is taken over."""
     n = x.size
     r = x - h.dc - _waveform(h, n, fs)
     w = 0.5 - 0.5 * np.cos(2 * math.pi * np.arange(n) / n)  # periodic Hann: no broadband leakage
@@ -150,7 +156,7 @@ def _noise_floor(h, x: np.ndarray, fs: float) -> float | None:
     band = spec[clear]
     if band.size < 16 or h.sigma <= 0:
         return None
-    return float(np.median(band)) / (math.log(2.0) * float(w @ w))
+    return float(np.median(band)) / (math.log(2.0) * float(w @ w)), int(band.size)
 
 
 def noise_rescaled(h, x: np.ndarray, fs: float):

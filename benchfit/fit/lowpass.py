@@ -13,7 +13,10 @@ two-channel
     ``time_domain=True`` refines the parts by simulating the output from the measured drive
     samples (exact discretisation, :func:`benchfit.model.filter.simulate`) with the initial
     state and an output offset solved linearly at each step. For a drive far from periodic
-    the start comes instead from the cross-spectral estimate H = P_xy/P_xx (Welch).
+    the start comes instead from the cross-spectral estimate H = P_xy/P_xx (Welch). Its residual is
+    whitened by the noise a right model leaves — the output's, and the drive's through the model —
+    estimated from the two channels apart from the fit (:mod:`benchfit.fit.tdnoise`, recorded in
+    ``adequacy["noise"]``), so its χ²ᵣ, warning and Birge scaling test the model.
 one-channel
     Only the output captured (see :mod:`benchfit.fit.onechannel`).
 
@@ -73,6 +76,7 @@ from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, comp
 from benchfit.fit.edges import DriveEdges, classify_drive_edges
 from benchfit.fit.onechannel import fit_one_channel
 from benchfit.fit.propagate import InputSpec
+from benchfit.fit.tdnoise import channel_floor, combine, difference_floor, whiten_by_spectrum
 from benchfit.fit.tolerance import FixedValue, as_fixed
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitResult
 
@@ -82,6 +86,18 @@ MethodOption = Literal["auto", "two-channel", "one-channel"]
 
 _DRIVE_NAMES = re.compile(r"^(drive|in|input|source|src|v_?in|vin)\b", re.I)
 _RESPONSE_NAMES = re.compile(r"^(out|output|response|resp|v_?out|vout)\b", re.I)
+
+#: how the time-domain residual's noise is estimated (benchfit.fit.tdnoise), for the record
+_PERIODIC_NOISE = ("each channel's white floor between the harmonics (median of the Hann periodogram), or the "
+                   "median of its third differences where that is lower beyond both estimates' u (content between "
+                   "the harmonics that is not noise: edges that wander, drift); the residual whitened by "
+                   "σ_y² + σ_x²·|H(f)|², the drive's noise through the fitted model")
+_APERIODIC_NOISE = ("each channel's white level from the median of its third differences (Gaussian noise, a "
+                    "drive smooth at the sample scale between edges); the residual whitened by "
+                    "σ_y² + σ_x²·|H(f)|², the drive's noise through the fitted model")
+#: the residual's noise spectrum at the fitted parts differs from the start's by more than this somewhere: the
+#: fit is repeated
+_SPECTRUM_MOVED = 1e-3
 
 
 # --- input checks ----------------------------------------------------------------------
@@ -251,7 +267,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     tone = fit_tone(x, fs, n_harmonics=9)
     if tone is None or tone.amplitudes[0] <= SIGNIFICANCE * tone.amplitudes_u[0]:
         if time_domain:  # any drive will do: start from the cross-spectral estimate of H
-            return _aperiodic(cap, x, y, di, fix, guess, drive_edges)
+            return _aperiodic(cap, x, y, di, ri, fix, guess, drive_edges)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} has no periodic content — "
                        "capture at least a few periods of the drive, use time_domain=True for a "
                        "non-periodic drive, or use fit_ringdown()")
@@ -264,7 +280,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     var_x = float(np.sum((x - x.mean()) ** 2))
     if var_x <= 0 or hx_all.rss > 0.1 * var_x:
         if time_domain:
-            return _aperiodic(cap, x, y, di, fix, guess, drive_edges)
+            return _aperiodic(cap, x, y, di, ri, fix, guess, drive_edges)
         raise FitError(f"{where}: drive channel {cap.channel_names[di]!r} is not periodic (its harmonics "
                        f"at {f:.4g} Hz explain {100 * max(0.0, 1 - hx_all.rss / var_x):.0f} % of it) — "
                        "use time_domain=True for a non-periodic drive, or check the drive channel")
@@ -390,19 +406,23 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
                        harmonic_hz=fk, h_measured=hk, h_model=h_model, h_measured_u=u_abs,
                        residual=np.concatenate([(hk - h_model).real, (hk - h_model).imag]))
     quality = quality_complex(hk, h_model)
+    noise = None
     if time_domain:
-        values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality, td_res = _time_domain(
-            x, y, fs, values, fixed, fix, hy.sigma, curves, edges["drive_edges"])
+        floors = (channel_floor(hy_all, y, fs), channel_floor(hx_all, x, fs))
+        values, ident, fixed, folded2, warn2, ok, msg, alts, curves, quality, td_res, noise = _time_domain(
+            x, y, fs, values, fixed, fix, floors, curves, edges["drive_edges"], _PERIODIC_NOISE, parts)
         edges = {**edges, "time_domain": _td_record(edges["drive_edges"], values, fs, fk, hk, u_abs)}
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
         specs = input_specs(fix_specs or {}, fixed, folded, ratio)
         sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
     result = assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                      alts, specs, sens)
+                      alts, specs, sens, noise.dof if noise is not None else None)
     from dataclasses import replace
 
     extra = {"drive_edges": edges}
+    if noise is not None:
+        extra["noise"] = noise.to_dict(cap.units[ri])
     if comparison is not None:
         extra["model_comparison"] = {k: v for k, v in comparison.items() if k != "note"}
     result = replace(result, adequacy={**result.adequacy, **extra})
@@ -618,7 +638,7 @@ def _with_gain_prior(residual, ratio: FixedValue):
     return residual_m
 
 
-def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float],
+def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, ri: int, fix: dict[str, float],
                guess: dict[str, float], drive_edges: DriveEdges = "auto") -> FitResult:
     """Time-domain fit for a drive that is not periodic, started from H = P_xy/P_xx (Welch).
 
@@ -662,21 +682,21 @@ def _aperiodic(cap, x: np.ndarray, y: np.ndarray, di: int, fix: dict[str, float]
     kind = "sharp" if drive_edges == "auto" else drive_edges
     how = (f"given (drive_edges={drive_edges!r})" if drive_edges != "auto" else
            "the drive is not periodic, so its edges are not classified; first-order hold assumed (sharp edges)")
-    sigma = 1e-3 * float(np.std(y))  # scales χ² only; the covariance is rescaled by χ²_red
-    values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality, td_res = _time_domain(
-        x, y, fs, start, dict(fix), fix, sigma, curves, kind)
-    ratio, ratio_note = channel_gain_ratio(cap, di, cap.n_channels - 1 - di if cap.n_channels == 2 else di)
+    values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality, td_res, noise = _time_domain(
+        x, y, fs, start, dict(fix), fix, (difference_floor(y), difference_floor(x)), curves, kind,
+        _APERIODIC_NOISE)
+    ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     if ratio_note:
         warnings = list(warnings) + [ratio_note]
     specs = input_specs({}, fixed, folded, ratio)
     sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
     result = assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
-                      alts, specs, sens)
+                      alts, specs, sens, noise.dof)
     from dataclasses import replace
 
     edges = {"drive_edges": kind, "decided": drive_edges != "auto", "reason": how, "choice": drive_edges,
              "time_domain": _td_record(kind, values, fs, fk, h, u)}
-    return replace(result, adequacy={**result.adequacy, "drive_edges": edges})
+    return replace(result, adequacy={**result.adequacy, "drive_edges": edges, "noise": noise.to_dict(cap.units[ri])})
 
 
 def _td_record(kind: str, values: Mapping[str, float], fs: float, fk: np.ndarray, hk: np.ndarray,
@@ -700,17 +720,31 @@ def _td_record(kind: str, values: Mapping[str, float], fs: float, fk: np.ndarray
             "images_over_u": float(np.max(err / rel_u)) if err.size and np.all(rel_u > 0) else None}
 
 
-def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves, kind: str = "sharp"):
+def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = "sharp", how: str = "",
+                 parts: tuple[str, ...] = PARAMETER_NAMES):
     """Refine by fitting the exactly discretised simulation of the measured drive to the output.
 
     ``kind`` "band-limited": the drive is simulated as band-limited (:func:`benchfit.model.filter.
     simulate_band_limited`), whose response is the continuous H(j·2πf); the samples at the ends that its
     pre-filter does not cover are left out of the fit.
+
+    The residual is whitened by the spectrum of the noise a right model leaves (:mod:`benchfit.fit.tdnoise`):
+    ``floors`` are the output's and the drive's white levels (σ², relative u), estimated from the channels as
+    ``how`` says, the drive's passed through the simulation's response at the start values. The spectrum is
+    computed again at the fitted parts and the fit repeated from there when it moved (a start far from the
+    result). Also returns the :class:`benchfit.fit.tdnoise.ResidualNoise` used. ``parts``: the model's parts
+    (with "Rp" when the harmonic fit chose the core-loss model, which the refinement keeps).
     """
     trim = PREFILTER_TAPS // 2 if kind == "band-limited" else 0
     y = y[trim:y.size - trim]
     n = y.size
-    sigma = max(float(sigma), 1e-12 * max(float(np.max(np.abs(y))), 1e-30))
+    floor = (1e-12 * max(float(np.max(np.abs(y))), 1e-30)) ** 2
+    grid = np.fft.rfftfreq(n, 1.0 / fs)
+
+    def noise_at(v: Mapping[str, float]):
+        p = parts_of(v)
+        resp = transfer(grid, p) if kind == "band-limited" else sampled_transfer(grid, p, fs)
+        return combine(floors[0], floors[1], v.get("gain_ratio", 1.0) * resp, n, how, floor)
 
     def drive_response(p) -> np.ndarray:
         return simulate_band_limited(x, fs, p)[0] if kind == "band-limited" else simulate(x, fs, p)
@@ -724,11 +758,17 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves, kind: str = "
         return sim + design @ coef
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return (y - model(v)) / sigma
+        return whiten_by_spectrum(y - model(v), spectrum)
 
     start = {k: (v if v > 0 else 1e-3) for k, v in values.items()}
     fix_now = {k: v for k, v in fixed.items()}
-    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, fix_now)
+    noise, spectrum = noise_at({**start, **fix_now})
+    values, ident, fixed, folded, warnings, ok, msg, alts = solve(residual, start, dict(fix_now), parts=parts)
+    again, spectrum_again = noise_at(values)
+    if float(np.max(np.abs(spectrum_again / spectrum - 1.0))) > _SPECTRUM_MOVED:
+        noise, spectrum = again, spectrum_again
+        values, ident, fixed, folded, warnings, ok, msg, alts = solve(
+            residual, {k: (v if v > 0 else 1e-3) for k, v in values.items()}, dict(fix_now), parts=parts)
     ym = model(values)
     response = (lambda freq, p, rate: transfer(freq, p)) if kind == "band-limited" else sampled_transfer
     curves = FitCurves(time_s=(np.arange(n) + trim) / fs, data=y.copy(), model=ym,
@@ -736,4 +776,4 @@ def _time_domain(x, y, fs, values, fixed, user_fix, sigma, curves, kind: str = "
                        h_model=response(curves.harmonic_hz, parts_of(values), fs),
                        h_measured_u=curves.h_measured_u, residual=y - ym)
     folded = [k for k in fixed if k not in user_fix and k in PART_NAMES]  # undetermined, held at 0
-    return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual
+    return values, ident, fixed, folded, warnings, ok, msg, alts, curves, quality_real(y, ym), residual, noise

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -177,10 +178,14 @@ def test_time_domain_model_check_names_its_simulation(tmp_path, run, given):
     args = ("fit", str(f), "--fix", "L=300m", "--fix", "Rload=10k", "--time-domain", "--drive-edges", given)
     code, out, err = run(*args, "--json")
     assert code == 0, err
-    td = json.loads(out)["adequacy"]["drive_edges"]["time_domain"]
+    adq = json.loads(out)["adequacy"]
+    td = adq["drive_edges"]["time_domain"]
     assert td["samples_dropped_each_end"] == (7 if given == "band-limited" else 0)
+    # the noise the time-domain χ²ᵣ is judged against, estimated from the channels, in the output's unit
+    assert adq["noise"]["unit"] == "V" and adq["noise"]["sigma"] > 0
     code, out, err = run(*args)
     assert code == 0, err
     want = ("time-domain simulation of the band-limited drive" if given == "band-limited"
             else "time-domain simulation, first-order hold")
     assert f"drive edges {given} (given) → {want}" in " ".join(out.split()), out
+    assert re.search(r"χ²ᵣ against the channels' noise σ = [0-9.]+ ± [0-9.]+ [mµ]?V per sample", " ".join(out.split())), out
