@@ -150,6 +150,29 @@ def test_percentile_noise_limits():
     assert quantisation_step(np.ones(5)) == 0.0
 
 
+def _smallest_gap(x: np.ndarray) -> float:
+    """The definition itself: the smallest positive difference of the sorted distinct values (numpy.unique)."""
+    return float(np.min(np.diff(np.unique(x[: 1 << 16]))))
+
+
+def test_quantisation_step_is_exact_on_a_grid_and_a_negligible_bound_off_it():
+    rng = np.random.default_rng(21)
+    s = 0.7 * np.sin(2 * np.pi * np.arange(60000) / 960.37) + 1e-3 * rng.standard_normal(60000)
+    # 16-bit codes with a gain and an offset: the probe's grid holds every sample, q exact
+    codes = (np.round(s * 32768) / 32768) * 4.0 + 0.25
+    assert quantisation_step(codes) == pytest.approx(_smallest_gap(codes), rel=1e-9)
+    # a probe that shows only every other code (its first 4096 samples on even codes): the grid check
+    # fails and the whole stretch is sorted, so the one-code step is still found exactly
+    lsb = 1 / 128
+    coarse = np.round(s / lsb) * lsb
+    coarse[:4096] = np.round(s[:4096] / (2 * lsb)) * 2 * lsb
+    assert quantisation_step(coarse) == pytest.approx(lsb, rel=1e-9) == _smallest_gap(coarse)
+    # unquantised data: an upper bound of the smallest gap, itself below 1e-6 of the span (a resolution
+    # that fine is far below any capture's noise: 24-bit codes are 1.2e-7 of full scale, from memory)
+    bound = quantisation_step(s)
+    assert _smallest_gap(s) <= bound <= 1e-6 * float(np.ptp(s[: 1 << 16]))
+
+
 def test_quantised_square_keeps_its_resolution():
     """An 8-bit-scope trace of the 555 output (noise 0.3 LSB, so the flat tops hold two or
     three codes): its vpp_u is at least the code step's q/√6 (rectangular ±q/2 at each end,
