@@ -28,18 +28,17 @@ prints them as a table. Measured:
   in a fresh interpreter, for ``auto`` (fork), ``forkserver`` (with the measurement modules
   preloaded in the server) and ``spawn``.
 
-Measured 2026-12-03 15:13 UTC with ``PYTHONPATH=$PWD python3 scripts/bench_batch.py`` (shared
-2-core machine, load 0.4 at the start and 3 at the end as other sessions started): jobs 1 1.36 s,
-forked pool 0.84 s (1.56× median of three repeats; the two-process bound 1.39× in the same,
-disturbed, repeats), fork-server pool 1.28×; with 1 / 2 / 3 busy loops 1.22× / 1.25× / 1.30×
-median of six pairs (worst 1.12× / 1.08× / 1.10×); the pool's CPU time 1.50 s against 1.36 s for
-jobs 1 and 1.88 s for two independent processes. Interleaved A/B pairs (fresh interpreters, 200
-files) against the previous pool (a ProcessPoolExecutor of two workers with the parent only
-handing on): idle, load 0.1–0.8, 1.73× (worst 1.46×) against 1.50× (worst 1.35×) median of six,
-pool CPU time over jobs 1 0.05 s against 0.31 s; pinned to one CPU (``taskset -c 0``) 0.87×
-against 0.79× (since then ``--jobs`` is capped at the usable CPUs, so that case runs in one
-process). By Amdahl's law the parent's imports before the fork (~0.16 s, serial) leave ~1.7×
-at best for 200 one-second files.
+Measured 2026-12-04 21:00 UTC with ``python3 scripts/bench.py batch`` on an idle machine (load 1.0, most
+of it the benchmark's own): jobs 1 1.70 s, forked pool 0.96 s (1.78× median of three repeats; the
+two-process bound 1.87×), fork-server pool 1.58×; with 1 / 2 / 3 busy loops 1.25× / 1.31× / 1.47× median
+of six pairs; the pool's CPU time 1.75 s against 1.70 s for jobs 1 and 1.80 s for two independent
+processes. Twelve idle A/B pairs in fresh interpreters, the order alternating: 1.82× median, worst 1.73×;
+with 1 / 2 / 3 / 6 busy loops, six pairs each: 1.22× / 1.31× / 1.51× / 1.62× median, worst 1.16× / 1.22× /
+1.43× / 1.56×. On 2026-12-03 (another machine), against the previous pool (a ProcessPoolExecutor of two
+workers with the parent only handing on): idle 1.73× (worst 1.46×) against 1.50× (worst 1.35×) median of
+six, pool CPU time over jobs 1 0.05 s against 0.31 s; pinned to one CPU (``taskset -c 0``) 0.87× against
+0.79× (since then ``--jobs`` is capped at the usable CPUs, so that case runs in one process). By Amdahl's
+law the parent's imports before the fork (~0.16 s, serial) bound the gain for 200 one-second files.
 
 On the shared 2-core machine the numbers move with the load of other processes.
 """
