@@ -77,7 +77,7 @@ from benchfit.fit.edges import DriveEdges, classify_drive_edges
 from benchfit.fit.onechannel import fit_one_channel
 from benchfit.fit.propagate import InputSpec
 from benchfit.fit.tdnoise import channel_floor, combine, difference_floor, whiten_by_spectrum
-from benchfit.fit.tolerance import FixedValue, as_fixed
+from benchfit.fit.tolerance import FixedValue, fixed_specs
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitResult
 
 __all__ = ["fit_lowpass", "MethodOption", "MODEL_NAME"]
@@ -223,7 +223,7 @@ def fit_lowpass(capture, *, method: MethodOption = "auto", drive: str | int | No
     where = source_name(cap)
     if method not in get_args(MethodOption):
         raise FitError(f"method {method!r}: unknown — use one of {', '.join(get_args(MethodOption))}")
-    fix_specs = {n: as_fixed(v) for n, v in (fix or {}).items()}
+    fix_specs = fixed_specs(fix)
     fix_d, guess_d = check_parts({n: fv.value for n, fv in fix_specs.items()}, guess, where)
     fix_specs = {n: fix_specs[n] for n in fix_d}
     if drive_duty is not None and not (0.0 < float(drive_duty) < 1.0):

@@ -252,9 +252,9 @@ def fit_ringdown(capture, *, channel: str | int | None = None,
 
     cap = as_capture(capture)
     where = source_name(cap)
-    from benchfit.fit.tolerance import as_fixed
+    from benchfit.fit.tolerance import fixed_specs
 
-    fix_specs = {n: as_fixed(v) for n, v in (fix or {}).items()}
+    fix_specs = fixed_specs(fix)
     fix_d, _ = check_parts({n: fv.value for n, fv in fix_specs.items()}, None, where)
     unknown = [k for k in fix_d if k not in ("L", "C")]
     if unknown or len(fix_d) > 1:

@@ -105,3 +105,22 @@ def as_fixed(v: float | FixedValue | Mapping[str, Any] | tuple) -> FixedValue:
         return FixedValue(float(v["value"]), v.get("half_width"), v.get("distribution", "rectangular"),
                           str(v.get("text", "")), str(v.get("source", "fix")))
     return FixedValue(float(v))
+
+
+def fixed_specs(fix: Mapping[str, Any] | None) -> dict[str, FixedValue]:
+    """The ``fix=`` mapping of a fit as FixedValues; a value that is not one is a FitError naming the part."""
+    from benchfit.errors import FitError
+
+    out: dict[str, FixedValue] = {}
+    for name, v in (fix or {}).items():
+        try:
+            out[name] = parse_fixed(v, name) if isinstance(v, str) else as_fixed(v)
+        except ValueError as e:
+            if isinstance(v, str):  # the parser's own words name the part and the text
+                raise FitError(f"fix: {e}") from e
+            raise FitError(f"fix: {name}: {v!r} is not a value — give a number in SI units, a (value, "
+                           "half_width) pair or text such as '300m±10%'") from e
+        except (TypeError, KeyError) as e:
+            raise FitError(f"fix: {name}: {v!r} is not a value — give a number in SI units, a (value, "
+                           "half_width) pair or text such as '300m±10%'") from e
+    return out

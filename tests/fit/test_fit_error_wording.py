@@ -56,6 +56,11 @@ def _ringing() -> Capture:
      "use method='one-channel'", "use --method one-channel"),
     (lambda: fit_ringdown(_ringing(), fix={"Rs": 20.0}),
      "pass only fix={'L': …} or fix={'C': …}", "pass only --fix L=… or --fix C=…"),
+    # a fixed value the parser cannot read was a bare ValueError; now a FitError naming the part
+    (lambda: fit_lowpass(_two_channel(), fix={"L": "abc"}),
+     "fix: L: 'abc' is not a number", "--fix: L: 'abc' is not a number"),
+    (lambda: fit_ringdown(_ringing(), fix={"L": {"val": 0.1}}),
+     "fix: L: {'val': 0.1} is not a value", "--fix: L: {'val': 0.1} is not a value"),
 ])
 def test_library_names_parameters_and_the_cli_says_flags(call, library, cli):
     with pytest.raises(FitError) as err:
