@@ -443,8 +443,10 @@ def _damped_filter(frequency, inductance, load, rs, duty, amplitude, thd_max, le
     from benchfit.cli.common import print_json, stderr, stdout
     from benchfit.design.damped import design_damped
 
-    with stderr.status(f"choosing f0 and Q: {trials} draws per point", spinner="line"), _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs", frequency_hz="--frequency",
-                      inductance="--inductance", capacitance="--capacitance", rs_ohm="--rs", esr_ohm="--esr", load_ohm="--load"):
+    with stderr.status(f"choosing f0 and Q: {trials} draws per point", spinner="line"), \
+            _OptionNames(duty="--duty", frequency="--frequency", trials="--trials", rs="--rs", frequency_hz="--frequency",
+                         inductance="--inductance", capacitance="--capacitance", rs_ohm="--rs", esr_ohm="--esr",
+                         load_ohm="--load"):
         d = design_damped(
             _opt_value(frequency, "--frequency"), _opt_value(inductance, "--inductance"),
             rs_ohm=_opt_value(rs, "--rs", allow_zero=True), load_ohm=_opt_value(load, "--load"),

@@ -21,7 +21,7 @@ from typing import Any
 
 import numpy as np
 
-from benchfit.design.parts import SERIES_TOLERANCE, check_bench_range, check_series, combine
+from benchfit.design.parts import SERIES_TOLERANCE, check_bench_range, check_filter_parts, check_series, combine
 from benchfit.errors import DesignError
 from benchfit.model.filter import LowpassParts, transfer
 from benchfit.model.stress import CAUTIONS, stress_checks
@@ -93,6 +93,8 @@ def evaluate_filter(inductance: float, capacitance: float, frequency_hz: float, 
         if not (isinstance(v, (int, float)) and math.isfinite(v) and v > 0):
             raise DesignError(f"{name}: {v!r} must be a positive finite number — give a value above zero")
     check_bench_range("frequency", frequency_hz, "frequency")
+    check_filter_parts(inductance=inductance, capacitance=capacitance, rs_ohm=rs_ohm, esr_ohm=esr_ohm,
+                       load_ohm=load_ohm)
     if not 0 < duty < 1:
         raise DesignError(f"duty: {duty!r} must be between 0 and 1 — write e.g. 0.5 for 50 %")
     p = LowpassParts(inductance, capacitance, rs_ohm, esr_ohm, math.inf if load_ohm is None else load_ohm)
@@ -151,6 +153,7 @@ def design_damped(frequency_hz: float, inductance: float, *, rs_ohm: float, load
         raise DesignError("filter: frequency and inductance must be positive — give e.g. frequency_hz=50, "
                           "inductance=0.3")
     check_bench_range("frequency", f, "frequency")
+    check_filter_parts(inductance=L, rs_ohm=rs_ohm, load_ohm=load_ohm)
     if n_trials < 100:
         raise DesignError(f"trials: {n_trials!r} is too few — use at least 100")
     name = check_series(series)

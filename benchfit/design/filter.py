@@ -22,7 +22,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from benchfit.design.parts import BENCH_RANGES, SERIES_TOLERANCE, check_bench_range, check_series, combine, nearest_values
+from benchfit.design.parts import (BENCH_RANGES, SERIES_TOLERANCE, check_bench_range, check_filter_parts, check_series,
+                                   combine, nearest_values)
 from benchfit.errors import DesignError
 
 __all__ = ["DriveResponse", "FilterOption", "FilterDesign", "rectangular_response",
@@ -282,6 +283,7 @@ def design_filter(frequency_hz: float, *, inductance: float | None = None,
     solved = "C" if inductance is not None else "L"
     given = _pos(inductance if inductance is not None else capacitance, "inductance" if solved == "C"
                  else "capacitance")
+    check_filter_parts(inductance=inductance, capacitance=capacitance, rs_ohm=rs, esr_ohm=esr, load_ohm=load)
     nominal = part_for_resonance(f, inductance=inductance, capacitance=capacitance, rs_ohm=rs,
                                  esr_ohm=esr, load_ohm=load)
     unit = "F" if solved == "C" else "H"

@@ -28,7 +28,7 @@ import numpy as np
 from benchfit.errors import DesignError
 
 __all__ = ["SeriesName", "PartKind", "E_SERIES", "SERIES_TOLERANCE", "PART_UNITS", "BENCH_RANGES",
-           "MADE_RANGES", "check_bench_range", "check_series", "check_kind", "series_values", "nearest_values", "round_to_series",
+           "MADE_RANGES", "check_bench_range", "check_filter_parts", "check_series", "check_kind", "series_values", "nearest_values", "round_to_series",
            "Combination", "CombinationSet", "combine", "combination_value"]
 
 SeriesName = Literal["E6", "E12", "E24", "E48", "E96", "E192"]
@@ -100,6 +100,16 @@ def check_bench_range(name: str, value: float, param: str,
     what = "bench drive frequency" if name == "frequency" else "bench part" if ranges is BENCH_RANGES else "part made"
     raise DesignError(f"{param}: {value:.4g} {unit} is outside any {what} ({low:g}…{high:g} {unit}) — "
                       "check the value and its SI prefix (M mega, k kilo, m milli, u micro, n nano, p pico)")
+
+
+def check_filter_parts(*, inductance: float | None = None, capacitance: float | None = None,
+                       rs_ohm: float | None = None, esr_ohm: float | None = None,
+                       load_ohm: float | None = None) -> None:
+    """Refuse an L-C filter part given outside :data:`BENCH_RANGES`, naming its parameter (None: not given)."""
+    for key, param, value in (("L", "inductance", inductance), ("C", "capacitance", capacitance),
+                              ("Rs", "rs_ohm", rs_ohm), ("Resr", "esr_ohm", esr_ohm), ("Rload", "load_ohm", load_ohm)):
+        if value is not None:
+            check_bench_range(key, float(value), param)
 
 
 def check_series(series: str) -> str:

@@ -10,6 +10,7 @@ import pytest
 
 from benchfit.design.filter import (design_filter, part_for_resonance, rectangular_response,
                                     resonant_frequency)
+from benchfit.design.damped import design_damped, evaluate_filter
 from benchfit.errors import DesignError
 from benchfit.model.filter import LowpassParts
 
@@ -155,3 +156,22 @@ def test_damped_design_meets_thd_and_level_tolerance():
     tuned = {(row.ratio, row.q): row for row in d.table}
     assert tuned[(1.0, 0.5)].thd_pct > tuned[(1.0, 1.5)].thd_pct
     assert d.yield_fraction >= max(row.yield_fraction for row in d.table if not row.flagged) - 0.1
+
+
+@pytest.mark.parametrize("call, param", [
+    (lambda: design_filter(50.0, inductance=1e-30, rs_ohm=1.0), "inductance"),
+    (lambda: design_filter(50.0, inductance=0.3, rs_ohm=1e30), "rs_ohm"),
+    (lambda: design_filter(50.0, capacitance=33e-6, rs_ohm=10.0, load_ohm=1e-9), "load_ohm"),
+    (lambda: evaluate_filter(1e-30, 33e-6, 50.0, rs_ohm=1.0), "inductance"),
+    (lambda: evaluate_filter(0.3, 33.0, 50.0, rs_ohm=1.0), "capacitance"),
+    (lambda: design_damped(50.0, 300.0, rs_ohm=1.0), "inductance"),
+])
+def test_parts_no_bench_filter_holds_are_refused_by_the_library(call, param):
+    # the bench ranges (benchfit.design.parts.BENCH_RANGES; common practice, no source) hold for Python
+    # callers too: a prefix slip is one DesignError naming the parameter, not overflow warnings and nonsense
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        with pytest.raises(DesignError, match=rf"^{param}: .* is outside any bench part"):
+            call()
