@@ -200,6 +200,12 @@ def render_fit(d: dict[str, Any], console, note: str | None = None) -> None:
             how = "given" if de.get("choice") not in (None, "auto") else (
                 "from the drive's lines below Nyquist" if de.get("decided") else "assumed: the drive cannot tell")
             line += f"; drive edges {de['drive_edges']} ({how}) → {model}"
+            et = de.get("edge_timing")
+            if et:  # where within their samples the edges lie is unknown: a budget row of every part
+                from benchfit.units import format_quantity
+
+                line += (f"; the edges fall within one sample, their timing u = {et['u_samples']:.2g} sample "
+                         f"({format_quantity(et['u_s'], 's', 2)}) is in the budget")
         nz = adq.get("noise")
         if nz:  # the time-domain residual's noise, estimated from the channels apart from the fit
             from benchfit.units import format_with_uncertainty

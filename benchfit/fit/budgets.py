@@ -61,7 +61,10 @@ def propagate(residual, values: Mapping[str, float], ident: Identification,
               specs: Mapping[str, InputSpec]) -> dict[str, np.ndarray]:
     """Sensitivities of the free log-parameters to every input (see :mod:`benchfit.fit.propagate`)."""
     z0 = math.sqrt(values["L"] / values["C"])
-    return input_sensitivities(residual, values, ident, specs, {n: z0 for n in specs})
+    # an input at zero is stepped by 10⁻⁶ of a typical size: the impedance level for a part, its own u for a
+    # timing (a step of 10⁻⁶·Z0 seconds would turn the top harmonics' phase by radians)
+    scale = {n: (float(sp.u) if sp.role == "timing" and sp.u else z0) for n, sp in specs.items()}
+    return input_sensitivities(residual, values, ident, specs, scale)
 
 
 def assemble(cap, method: Method, values: dict[str, float], ident: Identification,

@@ -73,12 +73,13 @@ from benchfit.fit.budgets import (MODEL_NAME, assemble, channel_gain_ratio, comp
 from benchfit.fit.common import (MAX_ORDER, SIGNIFICANCE, check_not_silent, complex_mult_cov,  # noqa: F401
                                  noise_rescaled, parts_of, quality_complex, quality_real, start_parts, subset,
                                  whiten, whitening)
-from benchfit.fit.edges import DriveEdges, classify_drive_edges
+from benchfit.fit.edges import DriveEdges, classify_drive_edges, edge_timing
 from benchfit.fit.onechannel import fit_one_channel
 from benchfit.fit.propagate import InputSpec
 from benchfit.fit.tdnoise import channel_floor, combine, difference_floor, whiten_by_spectrum
 from benchfit.fit.tolerance import FixedValue, fixed_specs
 from benchfit.fit.result import PARAMETER_UNITS, DerivedValue, FitCurves, FitResult
+from benchfit.units import format_quantity
 
 __all__ = ["fit_lowpass", "MethodOption", "MODEL_NAME"]
 
@@ -304,9 +305,14 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
     u_abs = _abs_u(hk, cov)
     edges = _edges(x, fs, f, drive_edges, orders, hk, u_abs)
     model_h = _model_of(edges["drive_edges"], fs)
+    t_spec = _timing_spec(edges, x, fs, f)
 
     def residual(v: dict[str, float]) -> np.ndarray:
-        return whiten(w, hk - v.get("gain_ratio", 1.0) * model_h(fk * v.get("f_scale", 1.0), parts_of(v)))
+        fv = fk * v.get("f_scale", 1.0)
+        h = v.get("gain_ratio", 1.0) * model_h(fv, parts_of(v))
+        if "drive_delay" in v:  # the drive's edges later than the model reads them (an input, never fitted)
+            h = h * np.exp(-2j * math.pi * fv * v["drive_delay"])
+        return whiten(w, hk - h)
 
     ratio, ratio_note = channel_gain_ratio(cap, di, ri)
     w0, q, b0 = grid_start(fk, hk, np.sqrt(0.5 * (cov[:, 0, 0] + cov[:, 1, 1])))
@@ -389,13 +395,13 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         ident = identify(jac, names, chi2_red)
         fixed, folded, alts = dict(fix), [], []
         warnings = [m for m in warnings if not m.startswith("Resr:")]  # the fold is replaced by the marginal
-        specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec}  # the gain ratio is inside the fit now
+        specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec, **t_spec}  # the gain ratio is inside the fit now
         sens = propagate(residual_m, values, ident, specs)
     elif gain_fitted:  # refined, and the data determine everything at the refined f
-        specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec}
+        specs = {**input_specs(fix_specs or {}, fixed, folded), **f_spec, **t_spec}
         sens = propagate(residual_m, values, ident, specs)
     else:
-        specs = {**input_specs(fix_specs or {}, fixed, folded, ratio), **f_spec}
+        specs = {**input_specs(fix_specs or {}, fixed, folded, ratio), **f_spec, **t_spec}
         sens = propagate(residual, {**values, "gain_ratio": 1.0}, ident, specs)
     h_model = values.get("gain_ratio", 1.0) * model_h(fk, parts_of(values))
     n_show = min(x.size, int(math.ceil(4 * fs / f)))
@@ -414,7 +420,7 @@ def _two_channel(cap, di: int, ri: int, fix: dict[str, float], guess: dict[str, 
         edges = {**edges, "time_domain": _td_record(edges["drive_edges"], values, fs, fk, hk, u_abs)}
         folded = sorted(set(folded) | set(folded2))
         warnings = warnings + [m for m in warn2 if m not in warnings]
-        specs = input_specs(fix_specs or {}, fixed, folded, ratio)
+        specs = {**input_specs(fix_specs or {}, fixed, folded, ratio), **t_spec}
         sens = propagate(td_res, {**values, "gain_ratio": 1.0}, ident, specs)
     result = assemble(cap, "two-channel", values, ident, fix, folded, warnings, curves, quality, ok, msg,
                       alts, specs, sens, noise.dof if noise is not None else None)
@@ -555,6 +561,27 @@ def _frequency_spec(f: float, f_u: float | None) -> dict[str, InputSpec]:
     return {"f_scale": InputSpec("f_scale", FixedValue(1.0, float(f_u) / f, "normal", f"u = {ppm:.2g} ppm",
                                                        "the fundamental's least-squares fit (benchfit.measurement.tone)"),
                                  "1", f"fundamental frequency estimate (u = {ppm:.2g} ppm, normal)", "frequency")}
+
+
+def _timing_spec(edges: dict, x: np.ndarray, fs: float, f: float) -> dict[str, InputSpec]:
+    """The sharp drive's edge timing within a sample as an input of the budget (:func:`benchfit.fit.edges.edge_timing`).
+
+    Records the timing in ``edges`` (under "edge_timing"); empty for a band-limited drive (its samples carry
+    the edges' timing) and for edges resolved by the sampling.
+    """
+    if edges["drive_edges"] != "sharp":
+        return {}
+    timing = edge_timing(x, fs, f)
+    if timing is None or timing.u_s <= 0:
+        return {}
+    edges["edge_timing"] = timing.to_dict()
+    us = format_quantity(timing.u_s, "s", 2)
+    text = f"u = {timing.u_samples:.2g} sample = {us}"
+    fv = FixedValue(0.0, math.sqrt(3.0) * timing.u_s, "rectangular", text,
+                    "the drive's edges fall between samples, where within is not known: rms over the first "
+                    f"edge's phase of the mean timing error of {timing.n_edges} edges (benchfit.fit.edges)")
+    return {"drive_delay": InputSpec("drive_delay", fv, "s", f"drive edge timing within a sample ({text}, rectangular)",
+                                     "timing")}
 
 
 def _harmonic_h(x: np.ndarray, y: np.ndarray, fs: float, f: float, kmax: int, keep: np.ndarray):
@@ -752,6 +779,8 @@ def _time_domain(x, y, fs, values, fixed, user_fix, floors, curves, kind: str = 
     def model(v: dict[str, float]) -> np.ndarray:
         p = parts_of(v)
         sim = v.get("gain_ratio", 1.0) * drive_response(p)
+        if v.get("drive_delay"):  # the drive later by τ: sim(t − τ), to first order (an input, never fitted)
+            sim = sim - v["drive_delay"] * fs * np.gradient(sim)
         basis = free_response_basis(p, fs, n)
         design = np.stack([np.ones(n), basis[0], basis[1]], axis=1)
         coef, *_ = np.linalg.lstsq(design, y - sim, rcond=None)

@@ -189,3 +189,26 @@ def test_time_domain_model_check_names_its_simulation(tmp_path, run, given):
             else "time-domain simulation, first-order hold")
     assert f"drive edges {given} (given) → {want}" in " ".join(out.split()), out
     assert re.search(r"χ²ᵣ against the channels' noise σ = [0-9.]+ ± [0-9.]+ [mµ]?V per sample", " ".join(out.split())), out
+
+
+def test_sharp_synchronous_drive_shows_its_edge_timing_term(tmp_path, run):
+    # the capture's drive is a square sampled with its edges between samples, 400 samples a period (a
+    # synchronous record): where within its sample each edge lies is unknown, a budget row of every part
+    # (benchfit.fit.edges.edge_timing; issue 11)
+    t = np.arange(int(FS)) / FS
+    drive = 12.0 * ((((t + 0.3 / FS) * 50.0) % 1.0) < 0.5)  # every edge 0.7 sample before a sample
+    y = simulate(drive, FS, PARTS)[int(0.5 * FS):]
+    rng = np.random.default_rng(3)
+    f = _write_csv(tmp_path / "sharp.csv", {"drive": drive[int(0.5 * FS):] + rng.normal(0, 5e-3, y.size),
+                                           "output": y + rng.normal(0, 2e-3, y.size)})
+    code, out, err = run("fit", str(f), "--fix", "L=300m±10%", "--fix", "Rload=10k±1%")
+    assert code == 0, err
+    check = next(line for line in out.splitlines() if line.startswith("model check"))
+    assert "the edges fall within one sample, their timing u = 0.2 sample (10 µs) is in the budget" in check
+    code, out, err = run("fit", str(f), "--fix", "L=300m±10%", "--fix", "Rload=10k±1%", "--json")
+    d = json.loads(out)
+    rows = [r for r in d["parameters"]["Resr"]["budget"]["contributions"]
+            if r["name"].startswith("drive edge timing within a sample")]
+    # 1/√24 sample at 20 kHz (two kinds of edge, each uniform on ±½ sample: GUM 4.3.7) = 10.2 µs
+    assert len(rows) == 1 and rows[0]["u_input"] == pytest.approx(1 / (24 ** 0.5 * FS), rel=0.01)
+    assert d["adequacy"]["drive_edges"]["edge_timing"]["n_edges"] >= 49
