@@ -24,6 +24,8 @@ from typing import Literal
 
 import numpy as np
 
+from benchfit.measurement.pulse import edge_period
+
 DriveEdges = Literal["auto", "sharp", "band-limited"]
 
 TOP_BAND = (0.46, 0.49)   # of fs: above a line input's pass band (≈ 0.45·fs, 20 kHz at 44.1 kHz), below Nyquist
@@ -111,8 +113,8 @@ class EdgeTiming:
 
     ``u_samples`` is the standard uncertainty of the drive's mean edge time (in sample intervals, ``u_s``
     in seconds) that the first-order-hold model cannot see; ``within_one_sample`` the share of edges
-    whose step falls between two samples; ``n_edges`` the edges counted; ``synchronous_rel`` how far the edges' sub-sample phases fail to
-    average out (1: every edge of a kind at one phase, the record synchronous with the sample clock).
+    whose step falls between two samples; ``n_edges`` the edges counted; ``synchronous_rel`` how far
+    the edges' sub-sample phases fail to average out (1: every edge of a kind at one phase, the record synchronous with the sample clock).
     """
 
     u_samples: float
@@ -139,20 +141,6 @@ def _phase_rms(offsets: np.ndarray) -> float:
     return float(np.sqrt(np.mean(e ** 2)))
 
 
-def _edge_periods(at: list[np.ndarray], period: float) -> tuple[list[np.ndarray], float]:
-    """Each edge's period number, and the period in samples from a line through the edges' sample indices.
-
-    The line (one slope, an intercept per kind of edge) is fitted to the first sample after each edge: the
-    fundamental's estimate can be off by parts in 10⁵ for a sharp square (its harmonics above the tone
-    model's pull it), which over a long record would spread the phases of a synchronous record over
-    several samples and shrink the term that matters most there.
-    """
-    numbers = [np.rint((k - k[0]) / period) if k.size else k for k in at]
-    cov = sum(float(np.sum((n - n.mean()) * (k - k.mean()))) for n, k in zip(numbers, at) if n.size > 1)
-    var = sum(float(np.sum((n - n.mean()) ** 2)) for n in numbers if n.size > 1)
-    return numbers, (cov / var if var > 0 else period)
-
-
 def edge_timing(x: np.ndarray, fs: float, f: float) -> EdgeTiming | None:
     """The timing uncertainty of a two-level drive whose edges fall within one sample, or None.
 
@@ -163,9 +151,12 @@ def edge_timing(x: np.ndarray, fs: float, f: float) -> EdgeTiming | None:
     the output (to first order), and such a delay moves the fitted parts — most of all the ESR, whose zero
     is a phase lead ω·Resr·C, so a delay δ reads as Resr off by δ/C.
 
-    Within each kind of edge the phases follow from the period P (samples, :func:`_edge_periods`): rising
-    edge n sits at a + n·P samples, falling edge n at b + n·P. Neither a nor b (the first edges' phases) is known from the
-    samples — nor is b − a, the high time, beyond whole samples when the record is synchronous — so each is
+    Within each kind of edge the phases follow from the period P: rising edge n sits at a + n·P samples,
+    falling edge n at b + n·P. P is the least-squares line through the first sample after each edge
+    (:func:`benchfit.measurement.pulse.edge_period`), not the tone fit's fs/f: for a sharp square that is
+    off by parts in 10⁵ (the harmonics above the tone model pull it), which over a long record would
+    spread a synchronous record's phases over samples and shrink the term where it matters most. Neither
+    a nor b (the first edges' phases) is known from the samples — nor is b − a, the high time, beyond whole samples when the record is synchronous — so each is
     taken as uniform on [0, 1) and independent (GUM 4.3.7, rectangular priors). With E_r(a) the mean of
     frac(a + n·P) − ½ over the N_r rising edges, U_r² = ∫₀¹ E_r(a)² da, and likewise U_f for the N_f
     falling ones; the mean over all edges then has u² = (N_r²·U_r² + N_f²·U_f²)/(N_r + N_f)². A record
@@ -183,17 +174,18 @@ def edge_timing(x: np.ndarray, fs: float, f: float) -> EdgeTiming | None:
     if not hi > lo:
         return None
     above = x > 0.5 * (lo + hi)
-    n_edges = int(np.count_nonzero(above[1:] != above[:-1]))
+    step = np.flatnonzero(above[1:] != above[:-1]) + 1  # the first sample after each edge
+    n_edges = int(step.size)
     if n_edges < 2:
         return None
-    step = np.flatnonzero(above[1:] != above[:-1]) + 1  # the first sample after each edge
     jump = np.abs(x[step] - x[step - 1])
     swing = np.abs(x[np.minimum(step + 2, x.size - 1)] - x[np.maximum(step - 3, 0)])
     within = float(np.mean(jump >= STEP_SHARE * swing))
     if within < 0.5:
         return None
     at = [step[above[step]].astype(float), step[~above[step]].astype(float)]
-    numbers, period = _edge_periods(at, fs / f)
-    var = sum((n.size * _phase_rms(n * period)) ** 2 for n in numbers)
+    line = edge_period(at[0], at[1])
+    period = fs / f if line is None else line[0]
+    var = sum((k.size * _phase_rms(np.arange(k.size) * period)) ** 2 for k in at)
     u = float(math.sqrt(var)) / n_edges
     return EdgeTiming(u, u / fs, within, n_edges, u * math.sqrt(24.0))
